@@ -1,0 +1,30 @@
+"""Caution texts attached to results that may be used for life-safety decisions."""
+
+from __future__ import annotations
+
+from . import standards as std
+
+LIFE_SAFETY = (
+    "This STI is a prediction from the measurement and settings given, not a certification. "
+    "For voice-alarm and emergency sound systems the requirement and the measurement "
+    "procedure are set by local codes and standards, and a qualified person must sign off "
+    f"the result. Such systems are commonly required to reach STI {std.VOICE_ALARM_TARGET_STI:.2f} "
+    "or more (common practice; defer to your local code)."
+)
+
+NO_NOISE = (
+    "No background noise was given: the result holds only for a noise-free site. "
+    "Give the octave-band noise levels measured at the listener position with --noise."
+)
+
+NO_AUDITORY = (
+    "Auditory masking and the reception threshold are switched off (textbook form); "
+    "IEC 60268-16 applies them, so report the result with corrections for compliance work."
+)
+
+
+def below_target(sti: float) -> str | None:
+    if sti < std.VOICE_ALARM_TARGET_STI:
+        return (f"STI {sti:.2f} is below {std.VOICE_ALARM_TARGET_STI:.2f}, the value commonly "
+                "required of voice-alarm systems.")
+    return None

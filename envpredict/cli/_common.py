@@ -1,0 +1,123 @@
+"""Output helpers shared by the CLI commands: JSON/table output, files, progress."""
+
+from __future__ import annotations
+
+import json
+import sys
+import time
+from pathlib import Path
+from typing import Any, Callable
+
+import typer
+
+JSON_HELP = "Print one JSON object instead of the table (for scripts)."
+OUT_HELP = "Also write the JSON result to this file (written atomically)."
+
+
+def dumps(obj: Any) -> str:
+    return json.dumps(obj, indent=2, allow_nan=False)
+
+
+def emit(result: dict, human: Callable[[], str], as_json: bool, out: Path | None) -> None:
+    """Print ``result`` as JSON or as the human text, and write ``--out`` atomically."""
+    from envpredict.outputs import atomic_write_text
+
+    text = dumps(result)
+    if out is not None:
+        atomic_write_text(out, text + "\n")
+    if as_json:
+        typer.echo(text)
+    else:
+        typer.echo(human())
+
+
+def note(msg: str) -> None:
+    """A status line on stderr (kept out of JSON on stdout)."""
+    typer.echo(msg, err=True)
+
+
+class Progress:
+    """Progress for long work: a bar on a terminal, plain periodic lines otherwise.
+
+    Use as ``with Progress("scoring", total) as p: p.advance()``. It is also a
+    callable ``p(done, total)`` so numeric code can report without knowing the CLI.
+    """
+
+    def __init__(self, label: str, total: int | None = None, *, quiet: bool = False, every_s: float = 5.0):
+        self.label = label
+        self.total = total
+        self.done = 0
+        self.quiet = quiet
+        self.every_s = every_s
+        self._tty = sys.stderr.isatty()
+        self._bar = None
+        self._task = None
+        self._t0 = time.monotonic()
+        self._last = 0.0
+
+    def __enter__(self) -> "Progress":
+        if self.quiet:
+            return self
+        if self._tty:
+            from rich.progress import (BarColumn, MofNCompleteColumn, Progress as RichProgress,
+                                       TextColumn, TimeElapsedColumn, TimeRemainingColumn)
+            from rich.console import Console
+
+            self._bar = RichProgress(
+                TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+                TextColumn("{task.fields[rate]}"), TimeElapsedColumn(), TextColumn("ETA"),
+                TimeRemainingColumn(), console=Console(stderr=True), transient=True,
+            )
+            self._bar.__enter__()
+            self._task = self._bar.add_task(self.label, total=self.total, rate="")
+        return self
+
+    def __call__(self, done: int, total: int | None = None) -> None:
+        if total is not None:
+            self.total = total
+        self.update(done)
+
+    def advance(self, n: int = 1) -> None:
+        self.update(self.done + n)
+
+    def update(self, done: int) -> None:
+        self.done = done
+        if self.quiet:
+            return
+        elapsed = time.monotonic() - self._t0
+        rate = self.done / elapsed if elapsed > 0 else 0.0
+        if self._bar is not None:
+            self._bar.update(self._task, completed=done, total=self.total, rate=f"{rate:.1f}/s")
+        elif elapsed - self._last >= self.every_s or (self.total and done >= self.total and self._last > 0):
+            self._last = elapsed
+            tot = f"/{self.total}" if self.total else ""
+            eta = ""
+            if self.total and rate > 0:
+                eta = f", about {max(0.0, (self.total - done) / rate):.0f} s left"
+            note(f"{self.label}: {done}{tot} done ({rate:.1f}/s{eta})")
+
+    def __exit__(self, *exc) -> None:
+        if self._bar is not None:
+            self._bar.__exit__(*exc)
+
+
+def table(rows: list[list[str]], header: list[str] | None = None) -> str:
+    """A plain aligned text table."""
+    allrows = ([header] if header else []) + rows
+    widths = [max(len(str(r[i])) for r in allrows) for i in range(len(allrows[0]))]
+    lines = []
+    for j, r in enumerate(allrows):
+        lines.append("  ".join(str(c).rjust(w) if i else str(c).ljust(w) for i, (c, w) in enumerate(zip(r, widths))))
+        if header and j == 0:
+            lines.append("  ".join("-" * w for w in widths))
+    return "\n".join(lines)
+
+
+def fmt(v: Any, spec: str = ".2f", none: str = "—") -> str:
+    """Format a number, or a dash where it could not be computed."""
+    if v is None:
+        return none
+    try:
+        return format(float(v), spec)
+    except (TypeError, ValueError):
+        return str(v)

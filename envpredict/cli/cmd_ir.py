@@ -1,0 +1,84 @@
+"""``envpredict ir``: STI and decay figures from an impulse response."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from ._app import app
+from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, table
+
+NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
+              "comma-separated, e.g. 48,45,42,40,36,32,28. Default: no noise.")
+LEVEL_HELP = "A-weighted speech level at the listener, dB(A). Default 60 (normal voice at 1 m)."
+TALKER_HELP = "Speech spectrum and band weights: male or female (IEC 60268-16)."
+AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textbook form, for "
+                 "comparison with published formulas; not for compliance work).")
+CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
+
+
+def render_ir(d: dict, source: str) -> str:
+    """Readable text for an ``ir`` result dictionary."""
+    lines = [
+        f"Impulse response: {source}  ({d['fs']} Hz, {d['duration_s']:.2f} s)",
+        f"Talker: {d['talker']}   speech level: {d['speech_level_dba']:.1f} dB(A)   "
+        f"auditory corrections: {'on' if d['auditory_corrections'] else 'off'}",
+        "",
+        f"STI = {d['sti']:.2f}   qualification band {d['rating']}   ({d['subjective']})",
+        "",
+    ]
+    dec = d["decay"]
+    rows = []
+    for k, fc in enumerate(d["bands_hz"]):
+        rows.append([
+            f"{fc:g}", fmt(d["mti"][k]), fmt(d["speech_db"][k], ".1f"),
+            fmt(d["noise_db"][k] if d["noise_db"] else None, ".1f"),
+            fmt(dec["edt"][k]), fmt(dec["t20"][k]), fmt(dec["t30"][k]),
+            fmt(dec["c50"][k], ".1f"), fmt(dec["c80"][k], ".1f"), fmt(dec["d50"][k]),
+            fmt(dec["decay_range_db"][k], ".0f"),
+        ])
+    lines.append(table(rows, ["band Hz", "MTI", "speech dB", "noise dB", "EDT s", "T20 s", "T30 s",
+                              "C50 dB", "C80 dB", "D50", "range dB"]))
+    lines.append("")
+    lines.append("MTF used for the index (rows: octave bands; columns: modulation frequency, Hz)")
+    head = ["band Hz"] + [f"{f:g}" for f in d["modulation_hz"]]
+    lines.append(table([[f"{fc:g}"] + [f"{v:.2f}" for v in row] for fc, row in zip(d["bands_hz"], d["mtf"])], head))
+    if dec["notes"]:
+        lines.append("")
+        lines.append("Decay figures not computed:")
+        lines.extend(f"  - {n}" for n in dec["notes"])
+    lines.append("")
+    lines.append("Cautions:")
+    lines.extend(f"  - {c}" for c in d["cautions"])
+    return "\n".join(lines)
+
+
+@app.command("ir")
+def ir_command(
+    ir_file: Path = typer.Argument(..., help="Impulse response (WAV, FLAC or OGG).", show_default=False),
+    noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
+    speech_level: float = typer.Option(60.0, "--speech-level", help=LEVEL_HELP),
+    talker: str = typer.Option("male", "--talker", help=TALKER_HELP),
+    no_auditory: bool = typer.Option(False, "--no-auditory-corrections", help=AUDITORY_HELP),
+    channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
+    as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
+    out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
+) -> None:
+    """STI (IEC 60268-16 indirect method) and ISO 3382-1 decay figures from an impulse response."""
+    from envpredict.audio import load_audio
+    from envpredict.indirect import sti_from_ir
+    from envpredict.sti import check_speech_level, check_talker, parse_noise_levels
+
+    # check the options before the (slower) audio work
+    check_talker(talker)
+    check_speech_level(speech_level)
+    noise_levels = parse_noise_levels(noise)
+    x, fs = load_audio(ir_file, channel, name="impulse response")
+    with Progress("analysing impulse response", 3, quiet=as_json) as prog:
+        result = sti_from_ir(x, fs, noise_db=noise_levels, speech_level_dba=speech_level, talker=talker,
+                             auditory=not no_auditory, progress=prog)
+    d = result.to_dict()
+    d["input"] = str(ir_file)
+    emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)

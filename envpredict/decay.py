@@ -1,0 +1,307 @@
+"""Room-acoustic decay figures from an impulse response (ISO 3382-1:2009).
+
+EDT, T20 and T30 from linear fits to the Schroeder backward-integrated decay curve
+(Schroeder 1965, "New method of measuring reverberation time", JASA 37), with the
+noise floor found by the iterative method of Lundeby et al. (1995, "Uncertainties of
+measurements in room acoustics", Acustica 81) and the integral truncated at the
+crossing of decay and noise floor with compensation for the energy beyond it
+(ISO 3382-1:2009, 5.3.3). C50, C80 and D50 from early/late energy ratios
+(ISO 3382-1:2009, Annex A).
+
+A figure whose evaluation range does not lie at least 10 dB above the noise floor
+is not computed (``NaN`` in arrays, ``null`` in JSON) and a note says why.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import standards as std
+from .results import jsonable
+
+#: Share of the response at its end used for the first noise-floor estimate.
+#: Source: Lundeby et al. 1995 (last 10 %).
+NOISE_TAIL_FRACTION: float = 0.10
+#: Lundeby iteration: intervals per 10 dB of decay for the smoothing of the energy
+#: envelope (the paper recommends 3 to 10), and the maximum number of iterations.
+INTERVALS_PER_10DB: float = 5.0
+MAX_ITERATIONS: int = 5
+#: The last part of the response counts as noise only if it is flatter than this
+#: share of the main decay slope (judgement: a tail still falling at half the decay
+#: rate is decay, not noise).
+NOISE_FLATNESS: float = 0.5
+#: Clarity and definition need at least this decay range, dB (judgement: below it
+#: the late energy is mostly noise and the ratio is meaningless).
+MIN_RANGE_CLARITY_DB: float = 20.0
+
+
+def onset_index(x: np.ndarray) -> int:
+    """Start of the impulse response: first sample whose energy is within 20 dB of the
+    maximum. Source: ISO 3382-1:2009, A.3.2."""
+    e = np.square(np.asarray(x, dtype=np.float64))
+    thr = e.max() * 10.0 ** (-std.ONSET_THRESHOLD_DB / 10.0)
+    return int(np.argmax(e >= thr))
+
+
+def _smooth_db(e: np.ndarray, win: int) -> tuple[np.ndarray, np.ndarray]:
+    """Mean energy in consecutive windows of ``win`` samples: (centres, level dB)."""
+    win = max(1, int(win))
+    n = (e.size // win) * win
+    if n == 0:
+        return np.array([0.0]), np.array([10 * np.log10(max(e.mean(), 1e-300))])
+    blocks = e[:n].reshape(-1, win).mean(axis=1)
+    centres = (np.arange(blocks.size) + 0.5) * win
+    with np.errstate(divide="ignore"):
+        return centres, 10.0 * np.log10(np.maximum(blocks, 1e-300))
+
+
+def _fit_line(t: np.ndarray, y: np.ndarray) -> tuple[float, float]:
+    """Least-squares line y = a + b t; returns (a, b)."""
+    if t.size < 2:
+        return float(y[0]) if y.size else 0.0, 0.0
+    b, a = np.polyfit(t, y, 1)
+    return float(a), float(b)
+
+
+@dataclass(frozen=True)
+class NoiseFloor:
+    """Where a band decay meets its noise floor (samples counted from the onset)."""
+
+    crossing: int           # index of the crossing point (or end of response)
+    noise_db: float         # noise level re the peak of the smoothed envelope, dB (-inf: none)
+    slope_db_per_s: float   # late decay slope used for compensation, dB/s (negative)
+    range_db: float         # usable decay range: peak minus max(noise, level at the end)
+    has_noise: bool
+
+
+def find_noise_floor(e: np.ndarray, fs: float, fc: float | None = None) -> NoiseFloor:
+    """Iterative noise-floor and crossing-point estimate (Lundeby et al. 1995).
+
+    ``e`` is the squared response from the onset on.
+    """
+    n = e.size
+    win0 = int(fs * max(0.010, 4.0 / fc if fc else 0.010))
+    tail = max(1, int(n * NOISE_TAIL_FRACTION))
+    peak_db = float(_smooth_db(e, win0)[1].max())
+
+    def _levels(win):
+        c, L = _smooth_db(e, win)
+        return c, L - peak_db
+
+    c, L = _levels(win0)
+    noise_db = 10 * np.log10(max(e[-tail:].mean(), 1e-300)) - peak_db
+    # is the tail noise at all? compare its slope to the main decay slope
+    a, b = _fit_line(c[L > noise_db + 10] / fs, L[L > noise_db + 10]) if np.any(L > noise_db + 10) else (0.0, 0.0)
+    tail_sel = c >= n - tail
+    _, b_tail = _fit_line(c[tail_sel] / fs, L[tail_sel]) if np.count_nonzero(tail_sel) >= 2 else (0.0, 0.0)
+    if b >= 0 or (b_tail < NOISE_FLATNESS * b) or noise_db < -200:
+        # the response decays to its end: no noise floor in it
+        end_db = float(L[-1])
+        slope = b if b < 0 else -60.0
+        return NoiseFloor(crossing=n, noise_db=-np.inf, slope_db_per_s=slope, range_db=-end_db, has_noise=False)
+
+    crossing = n
+    slope = b
+    for _ in range(MAX_ITERATIONS):
+        # crossing of the regression line with the noise level
+        if slope >= 0:
+            break
+        tc = (noise_db - a) / slope
+        new_cross = int(np.clip(tc * fs, 1, n))
+        # new smoothing interval: INTERVALS_PER_10DB intervals per 10 dB of decay
+        win = int(np.clip(fs * (10.0 / -slope) / INTERVALS_PER_10DB, fs * 0.002, max(fs * 0.002, n / 10)))
+        c, L = _levels(win)
+        # noise from the point where the line is 10 dB below the noise, or the last 10 %
+        t_noise = int(min(n - tail, (tc + 10.0 / -slope) * fs))
+        seg = e[max(0, t_noise):]
+        if seg.size:
+            noise_db = 10 * np.log10(max(seg.mean(), 1e-300)) - peak_db
+        # regression from 5 dB below the peak to 10 dB above the noise
+        sel = (L <= -5.0) & (L >= noise_db + 10.0) & (c < new_cross)
+        if np.count_nonzero(sel) < 2:
+            sel = (L >= noise_db + 5.0) & (c < new_cross)
+        if np.count_nonzero(sel) >= 2:
+            a, slope = _fit_line(c[sel] / fs, L[sel])
+        converged = abs(new_cross - crossing) < win
+        crossing = new_cross
+        if converged:
+            break
+    slope = slope if slope < 0 else -60.0
+    return NoiseFloor(crossing=crossing, noise_db=float(noise_db), slope_db_per_s=float(slope),
+                      range_db=float(-noise_db), has_noise=True)
+
+
+def schroeder_curve(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = None) -> np.ndarray:
+    """Backward-integrated decay curve in dB re its start, truncated at the crossing point
+    with compensation C = e(tc) * T / 13.8 for the energy beyond it (ISO 3382-1, 5.3.3).
+    Samples after the crossing are NaN."""
+    tc = floor.crossing
+    ee = e[:tc]
+    s = np.cumsum(ee[::-1])[::-1] + tail_energy(e, fs, floor, fc)
+    out = np.full(e.size, np.nan)
+    with np.errstate(divide="ignore"):
+        out[:tc] = 10.0 * np.log10(s / s[0])
+    return out
+
+
+def _peak_energy(e: np.ndarray, fs: float, fc: float | None = None) -> float:
+    _, L = _smooth_db(e, int(fs * max(0.010, 4.0 / fc if fc else 0.010)))
+    return float(10 ** (L.max() / 10.0))
+
+
+def noise_energy(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = None) -> float:
+    """Mean noise energy per sample (0 where the response has no noise floor)."""
+    return 10 ** (floor.noise_db / 10.0) * _peak_energy(e, fs, fc) if floor.has_noise else 0.0
+
+
+def tail_energy(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = None) -> float:
+    """Energy beyond the crossing point, as a sum of samples: the decay line's energy at
+    the crossing (the noise level there, or the last 5 ms where there is no noise) times
+    T/13.8 (the integral of the exponential tail). Source: ISO 3382-1:2009, 5.3.3."""
+    if floor.has_noise:
+        e_tc = noise_energy(e, fs, floor, fc)
+    else:
+        w = max(1, int(0.005 * fs))
+        e_tc = float(e[max(0, floor.crossing - w):floor.crossing].mean())
+    T = -60.0 / floor.slope_db_per_s
+    return e_tc * T / 13.8 * fs
+
+
+def fit_decay_time(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) -> float:
+    """Decay time (s, extrapolated to 60 dB) from a least-squares fit of the curve between
+    ``hi_db`` and ``lo_db`` (first passages). NaN if the curve does not reach ``lo_db``."""
+    c = curve_db
+    finite = np.isfinite(c)
+    below_lo = np.flatnonzero(finite & (c <= lo_db))
+    if below_lo.size == 0:
+        return float("nan")
+    i_lo = int(below_lo[0])
+    i_hi = int(np.argmax(finite & (c <= hi_db)))
+    if i_lo - i_hi < 3:
+        return float("nan")
+    t = np.arange(i_hi, i_lo + 1) / fs
+    _, slope = _fit_line(t, c[i_hi : i_lo + 1])
+    return float(-60.0 / slope) if slope < 0 else float("nan")
+
+
+@dataclass(frozen=True)
+class DecayResult:
+    """ISO 3382-1 figures per octave band (NaN where not computable; see ``notes``)."""
+
+    bands_hz: tuple[float, ...]
+    edt: np.ndarray
+    t20: np.ndarray
+    t30: np.ndarray
+    c50: np.ndarray
+    c80: np.ndarray
+    d50: np.ndarray
+    range_db: np.ndarray
+    noise_floor_db: np.ndarray
+    crossing_s: np.ndarray
+    notes: tuple[str, ...] = field(default=())
+    curves_db: np.ndarray | None = field(default=None, repr=False, compare=False)
+    curve_rate_hz: float = 0.0
+
+    def to_dict(self) -> dict:
+        return jsonable(
+            {
+                "bands_hz": self.bands_hz,
+                "edt": np.round(self.edt, 3),
+                "t20": np.round(self.t20, 3),
+                "t30": np.round(self.t30, 3),
+                "c50": np.round(self.c50, 2),
+                "c80": np.round(self.c80, 2),
+                "d50": np.round(self.d50, 3),
+                "decay_range_db": np.round(self.range_db, 1),
+                "noise_floor_db": np.round(self.noise_floor_db, 1),
+                "crossing_s": np.round(self.crossing_s, 3),
+                "notes": list(self.notes),
+            }
+        )
+
+
+def _needed_range(name: str) -> float:
+    return -std.DECAY_RANGES_DB[name][1] + std.DECAY_NOISE_HEADROOM_DB
+
+
+def band_decay(band: np.ndarray, fs: float, t0: int, fc: float | None = None) -> dict:
+    """All decay figures of one band-filtered response (``t0``: onset sample)."""
+    x = np.asarray(band, dtype=np.float64)
+    e_all = np.square(x)
+    e = e_all[t0:]
+    floor = find_noise_floor(e, fs, fc)
+    curve = schroeder_curve(e, fs, floor, fc)
+    out: dict = {"floor": floor, "curve": curve, "notes": []}
+    label = f"{fc:g} Hz" if fc else "broadband"
+    for name, (hi, lo) in std.DECAY_RANGES_DB.items():
+        need = _needed_range(name)
+        if floor.range_db < need:
+            out[name] = float("nan")
+            out["notes"].append(
+                f"{name.upper()} not computed at {label}: decay range {floor.range_db:.0f} dB, "
+                f"{need:.0f} dB needed (ISO 3382-1: range must end 10 dB above the noise floor)"
+            )
+        else:
+            out[name] = fit_decay_time(curve, fs, hi, lo)
+            if not np.isfinite(out[name]):
+                out["notes"].append(f"{name.upper()} not computed at {label}: the decay curve does not reach {lo:.0f} dB")
+    # clarity and definition: early energy from just before the onset (the zero-phase
+    # band filter spreads the direct sound by about 2/bandwidth), late energy to the
+    # crossing point plus the compensated tail, noise energy removed from both.
+    bw = fc * (std.OCTAVE_EDGE_FACTOR - 1 / std.OCTAVE_EDGE_FACTOR) if fc else fs / 4
+    pre = min(t0, int(2.0 / bw * fs))
+    noise_e = noise_energy(e, fs, floor, fc)
+    tc = t0 + floor.crossing
+    tail = tail_energy(e, fs, floor, fc)
+    for name, bound in (("c50", std.C50_S), ("c80", std.C80_S)):
+        split = t0 + int(round(bound * fs))
+        if floor.range_db < MIN_RANGE_CLARITY_DB or split >= tc:
+            out[name] = float("nan")
+            if name == "c50":
+                out["d50"] = float("nan")
+            out["notes"].append(f"{name.upper()} not computed at {label}: decay range {floor.range_db:.0f} dB, "
+                                f"{MIN_RANGE_CLARITY_DB:.0f} dB needed")
+            continue
+        early = max(float(e_all[t0 - pre:split].sum()) - noise_e * (split - t0 + pre), 1e-300)
+        late = max(float(e_all[split:tc].sum()) - noise_e * (tc - split) + tail, 1e-300)
+        out[name] = 10.0 * np.log10(early / late)
+        if name == "c50":
+            out["d50"] = early / (early + late)
+    return out
+
+
+def decay_figures(band_irs: np.ndarray, fs: float, t0: int, *, keep_curves: bool = True) -> DecayResult:
+    """ISO 3382-1 figures of the seven octave-band impulse responses.
+
+    Parameters
+    ----------
+    band_irs : (7, n) band-filtered impulse responses (zero-phase filtered).
+    fs : sample rate, Hz.
+    t0 : onset sample (ISO 3382-1 A.3.2), usually from the broadband response.
+    """
+    per = [band_decay(b, fs, t0, fc) for b, fc in zip(band_irs, std.OCTAVE_BANDS_HZ)]
+    notes = tuple(n for p in per for n in p["notes"])
+    curves = None
+    rate = 0.0
+    if keep_curves:
+        q = max(1, int(fs // 1000))  # 1 kHz is plenty for plotting
+        curves = np.stack([p["curve"][::q] for p in per])
+        rate = fs / q
+    arr = lambda k: np.array([p[k] for p in per], dtype=float)  # noqa: E731
+    return DecayResult(
+        bands_hz=std.OCTAVE_BANDS_HZ,
+        edt=arr("edt"), t20=arr("t20"), t30=arr("t30"),
+        c50=arr("c50"), c80=arr("c80"), d50=arr("d50"),
+        range_db=np.array([p["floor"].range_db for p in per]),
+        noise_floor_db=np.array([p["floor"].noise_db for p in per]),
+        crossing_s=np.array([p["floor"].crossing / fs for p in per]),
+        notes=notes, curves_db=curves, curve_rate_hz=rate,
+    )
+
+
+def reverberation_time(x: np.ndarray, fs: float, kind: str = "t30") -> float:
+    """Broadband EDT/T20/T30 of an impulse response (NaN if the range is too small)."""
+    x = np.asarray(x, dtype=np.float64)
+    return float(band_decay(x, fs, onset_index(x), None)[kind])

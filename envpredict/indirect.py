@@ -1,0 +1,166 @@
+"""STI by the indirect method: from an impulse response (IEC 60268-16:2011, 6.2),
+with the ISO 3382-1 decay figures of the same response."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable, Sequence
+
+import numpy as np
+
+from . import cautions as cau
+from . import standards as std
+from .audio import validate_signal
+from .bands import check_rate_for_octaves, octave_bands
+from .decay import DecayResult, decay_figures, onset_index
+from .exceptions import InputError
+from .modulation import mtf_from_ir
+from .results import jsonable
+from .sti import StiResult, check_speech_level, check_talker, parse_noise_levels, sti_from_mtf
+
+#: Shortest usable impulse response after its onset: half a period of the lowest
+#: modulation frequency, so that the Fourier kernel at 0.63 Hz changes sign within
+#: the response (judgement; common practice, no source). 1/(2*0.63 Hz) = 0.79 s.
+MIN_IR_SECONDS: float = 1.0 / (2.0 * min(std.MODULATION_FREQUENCIES_HZ))
+
+#: Leading samples kept before the onset (the zero-phase band filters spread the
+#: direct sound backwards by up to about 2/bandwidth = 23 ms at 125 Hz).
+PRE_ONSET_S: float = 0.025
+
+#: If the energy still arriving in the last 5 % of the response is above this share of
+#: the total, the response was probably cut before it decayed (judgement).
+TRUNCATION_SHARE: float = 1e-3
+
+
+@dataclass(frozen=True)
+class IrResult:
+    """STI and decay figures of one impulse response."""
+
+    sti: StiResult
+    decay: DecayResult
+    fs: int
+    duration_s: float
+    speech_level_dba: float
+    cautions: tuple[str, ...]
+    ir_range_db: np.ndarray  # decay range of the IR itself per band, dB
+
+    def to_dict(self) -> dict:
+        d = self.sti.to_dict()
+        d["modulation_hz"] = list(std.MODULATION_FREQUENCIES_HZ)
+        d.update(
+            {
+                "method": "indirect (impulse response), IEC 60268-16:2011",
+                "fs": self.fs,
+                "duration_s": round(self.duration_s, 4),
+                "speech_level_dba": self.speech_level_dba,
+                "decay": self.decay.to_dict(),
+                "cautions": list(self.cautions),
+            }
+        )
+        return jsonable(d)
+
+
+def sti_from_ir(
+    ir: np.ndarray,
+    fs: int,
+    *,
+    noise_db: Sequence[float] | str | None = None,
+    speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
+    talker: str = "male",
+    auditory: bool = True,
+    progress: Callable[[int, int], None] | None = None,
+) -> IrResult:
+    """STI (indirect method) and ISO 3382-1 decay figures from an impulse response.
+
+    The response is split into the seven octave bands (zero-phase Butterworth band
+    passes, IEC 61260-1 base-2 edges); each band's MTF at the 14 modulation
+    frequencies follows Schroeder's formula over the part of the response above its
+    noise floor (the noise of the measurement is not the site's noise: the site's
+    noise enters through ``noise_db``); the MTF is then corrected for background
+    noise, auditory masking and the reception threshold and turned into the STI
+    (:func:`envpredict.sti.sti_from_mtf`).
+
+    Parameters
+    ----------
+    ir : 1-D impulse response.
+    fs : sample rate, Hz (above 22.6 kHz so the 8 kHz band fits).
+    noise_db : seven octave-band background-noise levels at the listener, dB SPL.
+    speech_level_dba : A-weighted speech level at the listener, dB(A) (default 60, a
+        normal voice at 1 m).
+    talker : "male" or "female".
+    auditory : apply masking and reception threshold (IEC 60268-16 Ed.4).
+
+    Valid input: at least 0.79 s of response after its onset; the response should
+    decay to its noise floor within the file.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rng = np.random.default_rng(1)
+    >>> fs, T = 48000, 1.0
+    >>> t = np.arange(int(2.5 * fs)) / fs
+    >>> ir = rng.standard_normal(t.size) * np.exp(-6.9 * t / T)
+    >>> r = sti_from_ir(ir * 0.1, fs, auditory=False)
+    >>> 0.5 < r.sti.sti < 0.7
+    True
+    """
+    talker = check_talker(talker)
+    speech_level_dba = check_speech_level(speech_level_dba)
+    noise = parse_noise_levels(noise_db) if noise_db is not None else None
+    x = validate_signal(ir, fs, name="impulse response")
+    fs = int(fs)
+    check_rate_for_octaves(fs, "impulse response")
+    t0 = onset_index(x)
+    after = (x.size - t0) / fs
+    if after < MIN_IR_SECONDS:
+        raise InputError(
+            f"impulse response is {after:.2f} s long after its onset; at least {MIN_IR_SECONDS:.2f} s is "
+            "needed for the 0.63 Hz modulation frequency",
+            "measure or export a longer impulse response",
+        )
+    if progress:
+        progress(0, 3)
+    start = max(0, t0 - int(PRE_ONSET_S * fs))
+    x = x[start:]
+    t0 -= start
+    bands = octave_bands(x, fs, zero_phase=True)
+    if progress:
+        progress(1, 3)
+    decay = decay_figures(bands, fs, t0)
+    if progress:
+        progress(2, 3)
+    lengths = t0 + np.round(decay.crossing_s * fs).astype(int)
+    mtf = mtf_from_ir(bands, fs, std.MODULATION_FREQUENCIES_HZ, lengths=lengths)
+    res = sti_from_mtf(mtf, noise_db=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory)
+    if progress:
+        progress(3, 3)
+
+    cautions = [cau.LIFE_SAFETY]
+    low = cau.below_target(res.sti)
+    if low:
+        cautions.append(low)
+    if noise is None:
+        cautions.append(cau.NO_NOISE)
+    if not auditory:
+        cautions.append(cau.NO_AUDITORY)
+    e = np.square(bands)
+    tail = e[:, int(0.95 * e.shape[1]):].sum(axis=1)
+    no_floor = ~np.isfinite(decay.noise_floor_db)
+    cut = no_floor & (tail > TRUNCATION_SHARE * e.sum(axis=1))
+    if np.any(cut):
+        names = ", ".join(f"{f:g} Hz" for f, c in zip(std.OCTAVE_BANDS_HZ, cut) if c)
+        cautions.append(
+            f"The impulse response seems cut off before it decayed ({names}): the MTF is too high "
+            "there. Export a longer response."
+        )
+    weak = decay.range_db < 20.0
+    if np.any(weak):
+        names = ", ".join(f"{f:g} Hz" for f, c in zip(std.OCTAVE_BANDS_HZ, weak) if c)
+        cautions.append(
+            f"The impulse response has less than 20 dB of decay above its noise floor at {names}: "
+            "the MTF there is uncertain. Measure with more excitation level or averaging."
+        )
+    return IrResult(
+        sti=res, decay=decay, fs=fs, duration_s=x.size / fs, speech_level_dba=speech_level_dba,
+        cautions=tuple(cautions), ir_range_db=decay.range_db,
+    )

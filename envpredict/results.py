@@ -1,0 +1,37 @@
+"""Small helpers shared by the result dataclasses: conversion to JSON-ready values."""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from typing import Any
+
+import numpy as np
+
+
+def jsonable(value: Any, digits: int | None = None) -> Any:
+    """Convert numpy arrays/scalars, tuples and dataclasses to plain JSON values.
+
+    Non-finite floats become ``None`` (JSON ``null``): a figure that could not be
+    computed is absent, never a made-up number.
+    """
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        if hasattr(value, "to_dict"):
+            return value.to_dict()
+        return {f.name: jsonable(getattr(value, f.name), digits) for f in dataclasses.fields(value)}
+    if isinstance(value, dict):
+        return {str(k): jsonable(v, digits) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [jsonable(v, digits) for v in value]
+    if isinstance(value, np.ndarray):
+        return jsonable(value.tolist(), digits)
+    if isinstance(value, (np.bool_, bool)):
+        return bool(value)
+    if isinstance(value, (np.integer, int)):
+        return int(value)
+    if isinstance(value, (np.floating, float)):
+        f = float(value)
+        if not math.isfinite(f):
+            return None
+        return round(f, digits) if digits is not None else f
+    return value

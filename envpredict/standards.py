@@ -1,0 +1,243 @@
+"""Every table envpredict takes from a standard or a paper, each number with its source.
+
+Nothing in this module computes. Other modules import these names; no other module
+may hold a number from a standard.
+
+Sources are cited by short name:
+
+* **IEC 60268-16:2011** -- IEC 60268-16 Ed.4, *Sound system equipment -- Part 16:
+  Objective rating of speech intelligibility by speech transmission index*.
+  Values marked "(from memory)" were written from knowledge of that edition and
+  checked for internal consistency (see ``tests/test_standards.py``), not copied
+  from the printed document; verify them against your copy before relying on
+  them in a contract.
+* **IEC 61260-1:2014** -- octave-band and fractional-octave-band filters.
+* **IEC 61672-1:2013** -- A-weighting.
+* **ISO 3382-1:2009** -- measurement of room acoustic parameters.
+* **Taal 2011** -- C. H. Taal, R. C. Hendriks, R. Heusdens, J. Jensen, "An algorithm
+  for intelligibility prediction of time-frequency weighted noisy speech", IEEE
+  Trans. ASLP 19(7), 2011.
+* **Jensen 2016** -- J. Jensen, C. H. Taal, "An algorithm for predicting the
+  intelligibility of speech masked by modulated noise maskers", IEEE/ACM Trans. ASLP
+  24(11), 2016.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+# ---------------------------------------------------------------------------
+# Octave bands and modulation frequencies
+# ---------------------------------------------------------------------------
+
+#: Octave-band centre frequencies used by the STI, Hz. Source: IEC 60268-16:2011, 5.1
+#: (seven octave bands 125 Hz to 8 kHz).
+OCTAVE_BANDS_HZ: tuple[float, ...] = (125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0, 8000.0)
+
+#: Octave band edges are fc * 2**(-1/2) and fc * 2**(1/2) (base-2 octave).
+#: Source: IEC 61260-1:2014, 5.4 (base-2 system; nominal centres as above).
+OCTAVE_EDGE_FACTOR: float = 2.0 ** 0.5
+
+#: Butterworth order of each octave band-pass prototype. A 3rd-order prototype gives a
+#: 6th-order band-pass, and run forward and backward (zero phase) the magnitude is
+#: squared. This meets the IEC 61260-1 class 1 attenuation mask at the octave
+#: edges -- common practice for STI analysers, no single source.
+OCTAVE_FILTER_ORDER: int = 3
+
+#: The 14 modulation frequencies of the full STI, Hz, in one-third-octave steps.
+#: Source: IEC 60268-16:2011, 5.1 / Table 1 (0.63 ... 12.5 Hz).
+MODULATION_FREQUENCIES_HZ: tuple[float, ...] = (
+    0.63, 0.8, 1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0, 10.0, 12.5,
+)
+
+#: STIPA: the two modulation frequencies of each octave band (125 Hz ... 8 kHz), Hz.
+#: Source: IEC 60268-16:2011, Annex B, Table B.1.
+STIPA_MODULATION_HZ: tuple[tuple[float, float], ...] = (
+    (1.60, 8.00),   # 125 Hz
+    (1.00, 5.00),   # 250 Hz
+    (0.63, 3.15),   # 500 Hz
+    (2.00, 10.0),   # 1 kHz
+    (1.25, 6.25),   # 2 kHz
+    (0.80, 4.00),   # 4 kHz
+    (2.50, 12.5),   # 8 kHz
+)
+
+#: Nominal modulation depth of each of the two STIPA modulations.
+#: Source: IEC 60268-16:2011, Annex B (from memory: 0.55 per modulation frequency).
+STIPA_MODULATION_DEPTH: float = 0.55
+
+# ---------------------------------------------------------------------------
+# Index computation (IEC 60268-16:2011, Annex A)
+# ---------------------------------------------------------------------------
+
+#: Effective signal-to-noise ratios are limited to this range, dB.
+#: Source: IEC 60268-16:2011, A.2.4 (SNR_eff limited to -15 ... +15 dB).
+SNR_LIMIT_DB: float = 15.0
+
+#: Modulation transfer values are limited to at most 1 before conversion to SNR.
+#: Source: IEC 60268-16:2011, A.2.4.
+MTF_MAX: float = 1.0
+
+#: Octave-band weighting factors alpha_k (7) and redundancy factors beta_k (6, between
+#: band k and k+1), male speech. Source: IEC 60268-16:2011, Table A.1 (Ed.4 values).
+#: Check: sum(alpha) - sum(beta) = 1.000.
+ALPHA_MALE: tuple[float, ...] = (0.085, 0.127, 0.230, 0.233, 0.309, 0.224, 0.173)
+BETA_MALE: tuple[float, ...] = (0.085, 0.078, 0.065, 0.011, 0.047, 0.095)
+
+#: Female speech weights; the 125 Hz band is not used for female speech.
+#: Source: IEC 60268-16:2011, Table A.1 (Ed.4 values; from memory).
+#: Check: sum(alpha) - sum(beta) = 1.000.
+ALPHA_FEMALE: tuple[float, ...] = (0.0, 0.117, 0.223, 0.216, 0.328, 0.250, 0.194)
+BETA_FEMALE: tuple[float, ...] = (0.0, 0.099, 0.066, 0.062, 0.025, 0.076)
+
+WEIGHTS: dict[str, tuple[tuple[float, ...], tuple[float, ...]]] = {
+    "male": (ALPHA_MALE, BETA_MALE),
+    "female": (ALPHA_FEMALE, BETA_FEMALE),
+}
+
+#: Octave-band levels of the standard speech spectrum relative to the A-weighted
+#: speech level, dB. ``None`` means the band carries no speech for that talker.
+#: Source: IEC 60268-16:2011, Table A.2 (from memory). Check: the A-weighted sum of
+#: the male levels is 0.0 dB +-0.1 (tests/test_standards.py).
+SPEECH_SPECTRUM_MALE_DB: tuple[float, ...] = (2.9, 2.9, -0.8, -6.8, -12.8, -18.8, -24.8)
+SPEECH_SPECTRUM_FEMALE_DB: tuple[float | None, ...] = (None, 5.3, -1.9, -9.1, -15.8, -16.7, -18.0)
+
+SPEECH_SPECTRA_DB: dict[str, tuple[float | None, ...]] = {
+    "male": SPEECH_SPECTRUM_MALE_DB,
+    "female": SPEECH_SPECTRUM_FEMALE_DB,
+}
+
+#: A-weighting at the octave-band centres, dB. Source: IEC 61672-1:2013, Table 3.
+A_WEIGHTING_OCTAVE_DB: tuple[float, ...] = (-16.1, -8.6, -3.2, 0.0, 1.2, 1.0, -1.1)
+
+#: Level-dependent auditory masking: the masking of band k by band k-1 is
+#: amf = 10**(amdB/10), amdB = slope * L + offset for L (octave-band level of band
+#: k-1, dB) below each upper bound. Source: IEC 60268-16:2011, Table A.3 (from memory;
+#: the four pieces join continuously at 63, 67 and 100 dB, which tests/test_standards.py
+#: checks).
+MASKING_PIECES: tuple[tuple[float, float, float], ...] = (
+    # (upper bound of L in dB, slope, offset in dB)
+    (63.0, 0.5, -65.0),
+    (67.0, 1.8, -146.9),
+    (100.0, 0.5, -59.8),
+    (float("inf"), 0.0, -10.0),
+)
+
+#: Octave-band levels of the absolute speech reception threshold, dB SPL.
+#: Source: IEC 60268-16:2011, Table A.4 (from memory).
+RECEPTION_THRESHOLD_DB: tuple[float, ...] = (46.0, 27.0, 12.0, 6.5, 7.5, 8.0, 12.0)
+
+#: A-weighted speech levels at 1 m for the vocal efforts, dB(A).
+#: Source: IEC 60268-16:2011, Table 4 / ISO 9921:2003, Table A.1 (from memory).
+VOCAL_EFFORT_DBA: dict[str, float] = {
+    "relaxed": 54.0,
+    "normal": 60.0,
+    "raised": 66.0,
+    "loud": 72.0,
+    "very loud": 78.0,
+}
+
+#: Default speech level used when the user gives none: normal vocal effort, dB(A).
+DEFAULT_SPEECH_LEVEL_DBA: float = VOCAL_EFFORT_DBA["normal"]
+
+#: Plausible range for a speech level option, dB(A): below the reception threshold of
+#: every band there is nothing to rate; above 120 dB(A) the input is almost certainly
+#: a mistake (common practice, no source).
+SPEECH_LEVEL_RANGE_DBA: tuple[float, float] = (20.0, 120.0)
+
+#: Plausible range for octave-band noise levels, dB SPL (common practice, no source).
+NOISE_LEVEL_RANGE_DB: tuple[float, float] = (-20.0, 140.0)
+
+# ---------------------------------------------------------------------------
+# Qualification bands (IEC 60268-16:2011, Annex F, Table F.1)
+# ---------------------------------------------------------------------------
+
+#: (label, lower STI edge, nominal STI). A result at or above the lower edge and
+#: below the next band's edge gets that label. Source: IEC 60268-16:2011, Table F.1
+#: (bands 0.04 wide; A+ above 0.76; U below 0.36).
+QUALIFICATION_BANDS: tuple[tuple[str, float, float | None], ...] = (
+    ("A+", 0.76, None),
+    ("A", 0.72, 0.74),
+    ("B", 0.68, 0.70),
+    ("C", 0.64, 0.66),
+    ("D", 0.60, 0.62),
+    ("E", 0.56, 0.58),
+    ("F", 0.52, 0.54),
+    ("G", 0.48, 0.50),
+    ("H", 0.44, 0.46),
+    ("I", 0.40, 0.42),
+    ("J", 0.36, 0.38),
+    ("U", 0.0, None),
+)
+
+#: Five-step subjective scale. Source: IEC 60268-16 earlier editions / ISO 9921:2003
+#: (from memory).
+SUBJECTIVE_SCALE: tuple[tuple[str, float], ...] = (
+    ("excellent", 0.75),
+    ("good", 0.60),
+    ("fair", 0.45),
+    ("poor", 0.30),
+    ("bad", 0.0),
+)
+
+#: STI commonly required of voice-alarm and emergency sound systems (often stated
+#: as qualification band G or better). Common practice, no single source; local
+#: codes and standards set the real requirement.
+VOICE_ALARM_TARGET_STI: float = 0.50
+
+# ---------------------------------------------------------------------------
+# Room-acoustic decay figures (ISO 3382-1:2009)
+# ---------------------------------------------------------------------------
+
+#: Onset of the impulse response: where the squared response first rises to within
+#: this many dB of its maximum. Source: ISO 3382-1:2009, Annex A.3.2 (20 dB below the
+#: maximum).
+ONSET_THRESHOLD_DB: float = 20.0
+
+#: Evaluation ranges on the Schroeder decay curve, dB re the start of the curve, and
+#: the factor that scales the fitted decay time to 60 dB.
+#: Source: ISO 3382-1:2009, 3.2 / 3.3 (EDT 0 to -10 dB; T20 -5 to -25 dB; T30 -5 to
+#: -35 dB).
+DECAY_RANGES_DB: dict[str, tuple[float, float]] = {
+    "edt": (0.0, -10.0),
+    "t20": (-5.0, -25.0),
+    "t30": (-5.0, -35.0),
+}
+
+#: The bottom of an evaluation range must lie at least this far above the noise floor,
+#: dB. Source: ISO 3382-1:2009, 5.3.3 (10 dB above the background noise).
+DECAY_NOISE_HEADROOM_DB: float = 10.0
+
+#: Early/late boundaries for clarity and definition, seconds. Source: ISO 3382-1:2009,
+#: Annex A (C50, C80, D50).
+C50_S: float = 0.050
+C80_S: float = 0.080
+
+# ---------------------------------------------------------------------------
+# STOI and ESTOI (Taal 2011; Jensen 2016)
+# ---------------------------------------------------------------------------
+
+#: Internal sample rate, Hz. Source: Taal 2011, Sec. II.
+STOI_FS: int = 10000
+#: Frame length (256 samples = 25.6 ms), Hann window, 50 % overlap. Source: Taal 2011.
+STOI_FRAME_LEN: int = 256
+STOI_HOP: int = 128
+#: FFT size (zero-padded frames). Source: Taal 2011, Sec. II (512-point DFT).
+STOI_NFFT: int = 512
+#: Number of one-third-octave bands and the lowest centre frequency, Hz.
+#: Source: Taal 2011, Sec. II (15 bands, lowest centre 150 Hz, highest about 4.3 kHz).
+STOI_NUM_BANDS: int = 15
+STOI_MIN_FREQ_HZ: float = 150.0
+#: Frames per analysis segment (30 frames = 384 ms). Source: Taal 2011, Sec. II.
+STOI_SEGMENT_FRAMES: int = 30
+#: Lower bound of the signal-to-distortion ratio used for clipping, dB.
+#: Source: Taal 2011, eq. (3) (beta = -15 dB).
+STOI_BETA_DB: float = -15.0
+#: Frames more than this many dB below the loudest clean frame are removed.
+#: Source: Taal 2011, Sec. II (40 dB dynamic range).
+STOI_DYNAMIC_RANGE_DB: float = 40.0
+
+
+def as_array(values: tuple) -> np.ndarray:
+    """Return a table as a float array, with ``None`` entries as NaN."""
+    return np.array([np.nan if v is None else v for v in values], dtype=float)

@@ -1,0 +1,304 @@
+"""Speech Transmission Index from a modulation transfer matrix (IEC 60268-16:2011, Annex A).
+
+One code path for every STI in this tool: the indirect method (MTF from an impulse
+response), the direct method (full STI and STIPA recordings) and the speech-based
+STI all end in :func:`sti_from_mtf`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Sequence
+
+import numpy as np
+
+from . import standards as std
+from .exceptions import InputError
+from .results import jsonable
+
+TALKERS = tuple(std.WEIGHTS)
+
+
+def check_talker(talker: str) -> str:
+    t = str(talker).strip().lower()
+    if t not in std.WEIGHTS:
+        raise InputError(f"unknown talker '{talker}'", f"use one of: {', '.join(TALKERS)}")
+    return t
+
+
+def check_speech_level(level_dba: float) -> float:
+    lo, hi = std.SPEECH_LEVEL_RANGE_DBA
+    try:
+        v = float(level_dba)
+    except (TypeError, ValueError):
+        raise InputError(f"speech level '{level_dba}' is not a number", "give it in dB(A), e.g. 60") from None
+    if not np.isfinite(v) or not lo <= v <= hi:
+        raise InputError(
+            f"speech level {level_dba} dB(A) is implausible",
+            f"give a level between {lo:.0f} and {hi:.0f} dB(A) (normal voice at 1 m: 60)",
+        )
+    return v
+
+
+def parse_noise_levels(text: str | Sequence[float] | None) -> np.ndarray | None:
+    """Parse seven octave-band noise levels (dB SPL, 125 Hz ... 8 kHz).
+
+    Accepts a comma-separated string or a sequence; ``None`` means no noise.
+    """
+    if text is None:
+        return None
+    if isinstance(text, str):
+        parts = [p.strip() for p in text.replace(";", ",").split(",") if p.strip()]
+        try:
+            vals = [float(p) for p in parts]
+        except ValueError:
+            raise InputError(
+                f"noise levels '{text}' are not all numbers",
+                "give seven comma-separated dB values, 125 Hz to 8 kHz, e.g. 45,42,40,38,35,30,25",
+            ) from None
+    else:
+        try:
+            vals = [float(v) for v in text]
+        except (TypeError, ValueError):
+            raise InputError("noise levels are not all numbers", "give seven dB values, 125 Hz to 8 kHz") from None
+    n = len(std.OCTAVE_BANDS_HZ)
+    if len(vals) != n:
+        raise InputError(
+            f"{len(vals)} noise level(s) given; {n} are needed",
+            "give one dB SPL value per octave band, 125 Hz to 8 kHz, comma-separated",
+        )
+    a = np.array(vals, dtype=float)
+    lo, hi = std.NOISE_LEVEL_RANGE_DB
+    if not np.all(np.isfinite(a)) or np.any(a < lo) or np.any(a > hi):
+        raise InputError(
+            "a noise level is outside the plausible range",
+            f"give octave-band levels between {lo:.0f} and {hi:.0f} dB SPL",
+        )
+    return a
+
+
+def speech_band_levels(level_dba: float, talker: str = "male") -> np.ndarray:
+    """Octave-band speech levels for an A-weighted speech level (NaN: band unused).
+
+    Source: IEC 60268-16:2011, Table A.2 (see :mod:`envpredict.standards`).
+    """
+    return float(level_dba) + std.as_array(std.SPEECH_SPECTRA_DB[check_talker(talker)])
+
+
+def masking_factor(level_db: np.ndarray) -> np.ndarray:
+    """Level-dependent auditory masking factor amf of the next-higher band.
+
+    Source: IEC 60268-16:2011, Table A.3 (piecewise linear amdB in the level of the
+    masking band); amf = 10**(amdB/10).
+    """
+    L = np.asarray(level_db, dtype=float)
+    amdb = np.full(L.shape, np.nan)
+    lower = -np.inf
+    for upper, slope, offset in std.MASKING_PIECES:
+        sel = (L >= lower) & (L < upper)
+        amdb[sel] = slope * L[sel] + offset
+        lower = upper
+    amdb[~np.isfinite(L)] = -np.inf  # no level, no masking
+    return 10.0 ** (amdb / 10.0)
+
+
+def transmission_index(m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Effective SNR and transmission index from modulation transfer values.
+
+    SNR_eff = 10 log10(m / (1 - m)), limited to +-15 dB; TI = (SNR_eff + 15) / 30.
+    Source: IEC 60268-16:2011, A.2.4 - A.2.5.
+    """
+    m = np.clip(np.asarray(m, dtype=float), 0.0, std.MTF_MAX)
+    with np.errstate(divide="ignore"):
+        snr = 10.0 * np.log10(m) - 10.0 * np.log10(1.0 - m)
+    snr = np.clip(snr, -std.SNR_LIMIT_DB, std.SNR_LIMIT_DB)
+    return snr, (snr + std.SNR_LIMIT_DB) / (2 * std.SNR_LIMIT_DB)
+
+
+def combine_bands(mti: np.ndarray, talker: str = "male") -> float:
+    """STI from the seven modulation transmission indices with redundancy correction.
+
+    STI = sum_k alpha_k MTI_k - sum_k beta_k sqrt(MTI_k MTI_{k+1}).
+    Source: IEC 60268-16:2011, A.2.6, weights Table A.1.
+    """
+    alpha, beta = (np.array(w) for w in std.WEIGHTS[check_talker(talker)])
+    mti = np.clip(np.asarray(mti, dtype=float), 0.0, 1.0)
+    sti = float(np.dot(alpha, mti) - np.dot(beta, np.sqrt(mti[:-1] * mti[1:])))
+    return float(np.clip(sti, 0.0, 1.0))
+
+
+def qualification_band(sti: float) -> str:
+    """Qualification band label (A+ ... U). Source: IEC 60268-16:2011, Table F.1."""
+    # round to 1e-9 so a value computed as 0.5199999999 is not pushed down a band
+    v = round(float(sti), 9)
+    for label, lower, _nominal in std.QUALIFICATION_BANDS:
+        if v >= lower:
+            return label
+    return std.QUALIFICATION_BANDS[-1][0]
+
+
+def subjective_rating(sti: float) -> str:
+    """Five-step subjective scale (bad ... excellent). Source: see standards.SUBJECTIVE_SCALE."""
+    for label, lower in std.SUBJECTIVE_SCALE:
+        if sti >= lower:
+            return label
+    return std.SUBJECTIVE_SCALE[-1][0]
+
+
+@dataclass(frozen=True)
+class StiResult:
+    """An STI with everything that explains it.
+
+    Attributes
+    ----------
+    sti : the index, 0..1.
+    rating : qualification band (A+ ... U).
+    subjective : five-step subjective scale.
+    talker : "male" or "female".
+    modulation_hz : the modulation frequencies of the columns, per band (7 lists).
+    mtf_measured : modulation transfer before the noise and auditory corrections.
+    mtf : modulation transfer used for the index (after the corrections).
+    snr_eff : effective SNR per band and modulation frequency, dB, limited to +-15.
+    ti : transmission index per band and modulation frequency.
+    mti : modulation transmission index per band (mean of ti over modulations).
+    speech_db, noise_db, masking_db, threshold_db : octave-band levels used, dB.
+    auditory : whether masking and reception threshold were applied.
+    """
+
+    sti: float
+    rating: str
+    subjective: str
+    talker: str
+    modulation_hz: tuple[tuple[float, ...], ...]
+    mtf_measured: np.ndarray
+    mtf: np.ndarray
+    snr_eff: np.ndarray
+    ti: np.ndarray
+    mti: np.ndarray
+    speech_db: np.ndarray
+    noise_db: np.ndarray | None
+    masking_db: np.ndarray | None
+    threshold_db: np.ndarray | None
+    auditory: bool
+    bands_hz: tuple[float, ...] = field(default=std.OCTAVE_BANDS_HZ)
+
+    def to_dict(self) -> dict:
+        return jsonable(
+            {
+                "sti": round(self.sti, 4),
+                "rating": self.rating,
+                "subjective": self.subjective,
+                "talker": self.talker,
+                "bands_hz": self.bands_hz,
+                "modulation_hz": self.modulation_hz,
+                "mtf": np.round(self.mtf, 4),
+                "mtf_measured": np.round(self.mtf_measured, 4),
+                "snr_eff_db": np.round(self.snr_eff, 2),
+                "ti": np.round(self.ti, 4),
+                "mti": np.round(self.mti, 4),
+                "speech_db": np.round(self.speech_db, 1),
+                "noise_db": self.noise_db,
+                "masking_db": None if self.masking_db is None else np.round(self.masking_db, 1),
+                "threshold_db": self.threshold_db,
+                "auditory_corrections": self.auditory,
+            }
+        )
+
+
+def sti_from_mtf(
+    mtf: np.ndarray,
+    *,
+    modulation_hz: Sequence[float] | Sequence[Sequence[float]] = std.MODULATION_FREQUENCIES_HZ,
+    noise_db: Sequence[float] | np.ndarray | None = None,
+    speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
+    talker: str = "male",
+    auditory: bool = True,
+) -> StiResult:
+    """STI from a modulation transfer matrix, IEC 60268-16:2011 Annex A.
+
+    Steps: (1) the measured MTF m_{k,f} is multiplied by the noise reduction
+    I_k / (I_k + I_n,k + I_am,k + I_rt,k), where I_k is the speech intensity of
+    band k (standard spectrum at ``speech_level_dba``), I_n,k the background noise,
+    I_am,k the level-dependent masking by band k-1 (speech + noise intensity of
+    band k-1 times amf) and I_rt,k the absolute reception threshold; (2) the
+    corrected m is limited to 1 and converted to an effective SNR limited to
+    +-15 dB; (3) TI = (SNR + 15)/30; (4) MTI_k = mean over modulation frequencies;
+    (5) STI = weighted sum with redundancy correction (male or female weights).
+
+    With ``auditory=False`` only the noise correction m * I_k/(I_k + I_n,k) is
+    applied (the textbook form, for comparison with published formulas).
+
+    Parameters
+    ----------
+    mtf : array (7, F) of measured modulation transfer values (F = 14 for full STI,
+        2 for STIPA).
+    modulation_hz : the F modulation frequencies (one list for all bands, or one list
+        per band as for STIPA); reported, not used in the arithmetic.
+    noise_db : seven octave-band background-noise levels at the listener, dB SPL, or
+        ``None`` for no background noise.
+    speech_level_dba : A-weighted speech level at the listener, dB(A).
+    talker : "male" or "female" (weights and speech spectrum).
+    auditory : apply masking and reception threshold.
+
+    Valid range: speech levels 20-120 dB(A); noise levels -20-140 dB SPL.
+    """
+    talker = check_talker(talker)
+    speech_level_dba = check_speech_level(speech_level_dba)
+    m = np.asarray(mtf, dtype=float)
+    nb = len(std.OCTAVE_BANDS_HZ)
+    if m.ndim != 2 or m.shape[0] != nb or m.shape[1] < 1:
+        raise InputError(f"MTF has shape {m.shape}", f"give an array of shape ({nb}, F)")
+    if not np.all(np.isfinite(m)):
+        raise InputError("MTF contains NaN or infinite values", "check the measurement")
+    m = np.clip(m, 0.0, None)
+    noise = parse_noise_levels(noise_db) if noise_db is not None else None
+
+    speech_db = speech_band_levels(speech_level_dba, talker)
+    i_s = np.where(np.isfinite(speech_db), 10.0 ** (speech_db / 10.0), 0.0)
+    i_n = 10.0 ** (noise / 10.0) if noise is not None else np.zeros(nb)
+
+    masking_db = threshold_db = None
+    i_am = np.zeros(nb)
+    i_rt = np.zeros(nb)
+    if auditory:
+        i_total = i_s + i_n
+        with np.errstate(divide="ignore"):
+            level_total = 10.0 * np.log10(i_total)
+        amf = masking_factor(level_total)
+        i_am[1:] = i_total[:-1] * amf[:-1]
+        i_rt = 10.0 ** (std.as_array(std.RECEPTION_THRESHOLD_DB) / 10.0)
+        with np.errstate(divide="ignore"):
+            masking_db = 10.0 * np.log10(i_am)
+        threshold_db = std.as_array(std.RECEPTION_THRESHOLD_DB)
+
+    den = i_s + i_n + i_am + i_rt
+    with np.errstate(invalid="ignore", divide="ignore"):
+        factor = np.where(den > 0, i_s / den, 0.0)
+    m_eff = np.clip(m * factor[:, None], 0.0, std.MTF_MAX)
+    snr, ti = transmission_index(m_eff)
+    mti = ti.mean(axis=1)
+    sti = combine_bands(mti, talker)
+
+    mod = np.asarray(modulation_hz, dtype=float)
+    if mod.ndim == 1:
+        mod_per_band = tuple(tuple(float(v) for v in mod) for _ in range(nb))
+    else:
+        mod_per_band = tuple(tuple(float(v) for v in row) for row in mod)
+
+    return StiResult(
+        sti=sti,
+        rating=qualification_band(sti),
+        subjective=subjective_rating(sti),
+        talker=talker,
+        modulation_hz=mod_per_band,
+        mtf_measured=m,
+        mtf=m_eff,
+        snr_eff=snr,
+        ti=ti,
+        mti=mti,
+        speech_db=speech_db,
+        noise_db=noise,
+        masking_db=masking_db,
+        threshold_db=threshold_db,
+        auditory=bool(auditory),
+    )
