@@ -17,6 +17,8 @@ import importlib
 # ``app`` when imported (add one line per module)
 _COMMAND_MODULES = [
     "cmd_ir",
+    "cmd_demo",
+    "cmd_check",
 ]
 for _name in _COMMAND_MODULES:
     importlib.import_module(f"{__name__}.{_name}")

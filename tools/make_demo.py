@@ -1,0 +1,118 @@
+"""Write the demo material in demo_pairs/ (run by hand; the files are committed).
+
+Scenario (invented): the waiting hall of the Pier 4 ferry terminal in the harbour town
+of Kessel Bay. A ceiling loudspeaker line carries departure announcements and the
+evacuation message. The acoustician measured an impulse response at seat row F and
+the octave-band background noise with the ventilation running and a boarding queue
+waiting. The hearing-aid team next door wants to know how an announcement survives
+the hall and what a denoiser could win.
+
+Files
+-----
+waiting_hall_ir.wav          impulse response at seat row F (48 kHz, synthetic)
+scenario.json                site noise, speech level and description
+announcement_clean.wav       a spoken announcement, dry (16 kHz, espeak-ng voice)
+announcement_in_hall.wav     the same announcement through the hall with its noise
+hall_noise.wav               the hall's background noise alone (16 kHz)
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import tempfile
+from pathlib import Path
+
+import numpy as np
+import soundfile as sf
+from scipy.signal import butter, fftconvolve, resample_poly, sosfiltfilt
+
+OUT = Path(__file__).resolve().parent.parent / "demo_pairs"
+BANDS = (125, 250, 500, 1000, 2000, 4000, 8000)
+T60 = (1.9, 1.8, 1.6, 1.45, 1.3, 1.1, 0.85)      # a hard-surfaced hall
+NOISE_DB = [58.0, 55.0, 52.0, 49.0, 45.0, 40.0, 33.0]  # ventilation + queue, at row F
+SPEECH_DBA = 68.0                                # announcement level at row F
+TEXT = ("Attention please. The ferry to North Island will depart from gate four in ten minutes. "
+        "Passengers with bicycles please board first.")
+
+
+def hall_ir(fs=48000, seconds=3.0, seed=7):
+    rng = np.random.default_rng(seed)
+    n = int(seconds * fs)
+    t = np.arange(n) / fs
+    ir = np.zeros(n)
+    d0 = int(0.012 * fs)  # 4 m from the loudspeaker
+    for fc, T in zip(BANDS, T60):
+        sos = butter(3, [fc / 2 ** 0.5, min(fc * 2 ** 0.5, 0.45 * fs)], btype="bandpass", fs=fs, output="sos")
+        noise = sosfiltfilt(sos, rng.standard_normal(n))
+        env = np.exp(-3 * np.log(10) * np.clip(t - t[d0], 0, None) / T) * (t >= t[d0] + 0.004)
+        ir += noise * env / np.sqrt(np.mean(noise ** 2))
+    ir *= 0.05
+    ir[d0] += 1.0  # direct sound
+    for delay, gain in ((0.019, 0.55), (0.027, 0.4), (0.041, 0.35), (0.056, 0.3)):  # early reflections
+        ir[d0 + int(delay * fs)] += gain * rng.choice([-1, 1])
+    ir += 10 ** (-68 / 20) * rng.standard_normal(n)  # measurement noise floor
+    return 0.5 * ir / np.max(np.abs(ir)), fs
+
+
+def speech(fs=16000):
+    with tempfile.TemporaryDirectory() as d:
+        wav = Path(d) / "s.wav"
+        subprocess.run(["espeak-ng", "-v", "en-gb", "-s", "150", "-w", str(wav), TEXT], check=True)
+        x, fs0 = sf.read(wav)
+    x = resample_poly(x, fs, fs0)
+    x = np.concatenate([np.zeros(int(0.3 * fs)), x, np.zeros(int(0.5 * fs))])
+    return 0.3 * x / np.max(np.abs(x)), fs
+
+
+def shaped_noise(n, fs, seed=3):
+    """Noise with the site's octave-band levels (relative), bands up to Nyquist."""
+    rng = np.random.default_rng(seed)
+    out = np.zeros(n)
+    for fc, L in zip(BANDS, NOISE_DB):
+        hi = fc * 2 ** 0.5
+        if hi >= 0.5 * fs:
+            continue
+        sos = butter(3, [fc / 2 ** 0.5, hi], btype="bandpass", fs=fs, output="sos")
+        b = sosfiltfilt(sos, rng.standard_normal(n))
+        out += b / np.sqrt(np.mean(b ** 2)) * 10 ** (L / 20)
+    # slow level fluctuation of a crowd (about 0.5 Hz)
+    t = np.arange(n) / fs
+    out *= 1 + 0.3 * np.sin(2 * np.pi * 0.45 * t + 1.0)
+    return out / np.sqrt(np.mean(out ** 2))
+
+
+def main():
+    OUT.mkdir(exist_ok=True)
+    ir, fs_ir = hall_ir()
+    sf.write(OUT / "waiting_hall_ir.wav", ir, fs_ir, subtype="PCM_24")
+    x, fs = speech()
+    sf.write(OUT / "announcement_clean.wav", x, fs, subtype="PCM_16")
+    ir16 = resample_poly(ir, fs, fs_ir)
+    wet = fftconvolve(x, ir16)[: x.size + int(0.0 * fs)]
+    wet = wet / np.sqrt(np.mean(wet ** 2)) * np.sqrt(np.mean(x ** 2))
+    noise = shaped_noise(int(20 * fs), fs)
+    seg = noise[: wet.size]
+    snr_db = 3.0  # broadband speech-to-noise ratio at row F during boarding
+    mix = wet + seg * np.sqrt(np.mean(wet ** 2)) * 10 ** (-snr_db / 20)
+    mix = 0.4 * mix / np.max(np.abs(mix))
+    sf.write(OUT / "announcement_in_hall.wav", mix, fs, subtype="PCM_16")
+    sf.write(OUT / "hall_noise.wav", 0.25 * noise / np.max(np.abs(noise)), fs, subtype="PCM_16")
+    scenario = {
+        "title": "Pier 4 ferry terminal, waiting hall, seat row F",
+        "description": ("Ceiling loudspeaker line carrying departure announcements and the evacuation "
+                        "message; ventilation running, boarding queue waiting (invented demo scenario)."),
+        "ir": "waiting_hall_ir.wav",
+        "noise_db": NOISE_DB,
+        "speech_level_dba": SPEECH_DBA,
+        "talker": "male",
+        "clean": "announcement_clean.wav",
+        "degraded": "announcement_in_hall.wav",
+        "noise": "hall_noise.wav",
+        "broadband_snr_db": snr_db,
+    }
+    (OUT / "scenario.json").write_text(json.dumps(scenario, indent=2) + "\n")
+
+
+if __name__ == "__main__":
+    main()
