@@ -17,6 +17,7 @@ import importlib
 # ``app`` when imported (add one line per module)
 _COMMAND_MODULES = [
     "cmd_ir",
+    "cmd_predict",
     "cmd_demo",
     "cmd_check",
 ]
