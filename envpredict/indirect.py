@@ -27,9 +27,10 @@ MIN_IR_SECONDS: float = 1.0 / (2.0 * min(std.MODULATION_FREQUENCIES_HZ))
 #: direct sound backwards by up to about 2/bandwidth = 23 ms at 125 Hz).
 PRE_ONSET_S: float = 0.025
 
-#: If the energy still arriving in the last 5 % of the response is above this share of
-#: the total, the response was probably cut before it decayed (judgement).
-TRUNCATION_SHARE: float = 1e-3
+#: A response with no noise floor that ends less than this far below its peak was cut
+#: while still decaying: its late energy is missing (judgement: 45 dB is the range T30
+#: needs, ISO 3382-1 5.3.3).
+TRUNCATION_RANGE_DB: float = 45.0
 
 
 @dataclass(frozen=True)
@@ -143,17 +144,15 @@ def sti_from_ir(
         cautions.append(cau.NO_NOISE)
     if not auditory:
         cautions.append(cau.NO_AUDITORY)
-    e = np.square(bands)
-    tail = e[:, int(0.95 * e.shape[1]):].sum(axis=1)
     no_floor = ~np.isfinite(decay.noise_floor_db)
-    cut = no_floor & (tail > TRUNCATION_SHARE * e.sum(axis=1))
+    cut = no_floor & (decay.range_db < TRUNCATION_RANGE_DB)
     if np.any(cut):
         names = ", ".join(f"{f:g} Hz" for f, c in zip(std.OCTAVE_BANDS_HZ, cut) if c)
         cautions.append(
             f"The impulse response seems cut off before it decayed ({names}): the MTF is too high "
             "there. Export a longer response."
         )
-    weak = decay.range_db < 20.0
+    weak = ~cut & (decay.range_db < 20.0)
     if np.any(weak):
         names = ", ".join(f"{f:g} Hz" for f, c in zip(std.OCTAVE_BANDS_HZ, weak) if c)
         cautions.append(

@@ -1,0 +1,106 @@
+"""The ir command: output contract and bad input (one line, non-zero exit, no output file)."""
+
+import json
+
+import numpy as np
+import pytest
+
+from conftest import noise_decay, run_cli
+
+FS = 48000
+
+
+@pytest.fixture
+def ir_file(write_wav):
+    return write_wav("room.wav", noise_decay(0.9, seconds=2.0, seed=1, floor_db=-70), FS)
+
+
+def test_json_output(ir_file, capsys, tmp_path):
+    out = tmp_path / "r.json"
+    code, stdout, _ = run_cli(["ir", ir_file, "--noise", "45,42,40,38,35,30,25", "--speech-level", "65",
+                               "--talker", "female", "--json", "--out", out], capsys)
+    assert code == 0
+    d = json.loads(stdout)
+    assert d == json.loads(out.read_text())
+    assert d["talker"] == "female" and 0 <= d["sti"] <= 1
+    assert len(d["mtf"]) == 7 and all(len(r) == 14 for r in d["mtf"])
+    assert set(d["decay"]) >= {"edt", "t20", "t30", "c50", "c80", "d50"}
+    assert d["cautions"]
+
+
+def test_table_output(ir_file, capsys):
+    code, stdout, _ = run_cli(["ir", ir_file], capsys)
+    assert code == 0
+    assert "STI =" in stdout and "qualification band" in stdout and "T30" in stdout
+    assert "No background noise" in stdout
+
+
+def test_textbook_switch(ir_file, capsys):
+    run_cli(["ir", ir_file, "--json"], capsys)
+    code, stdout, _ = run_cli(["ir", ir_file, "--json", "--no-auditory-corrections"], capsys)
+    d = json.loads(stdout)
+    assert code == 0 and d["auditory_corrections"] is False and d["threshold_db"] is None
+
+
+def _assert_clean_failure(code, out, err, expect_code, pattern, out_file=None):
+    assert code == expect_code
+    lines = [ln for ln in err.strip().splitlines() if ln]
+    assert len(lines) == 1 and lines[0].startswith("error: "), err
+    assert pattern in lines[0]
+    assert "Traceback" not in err + out
+    if out_file is not None:
+        assert not out_file.exists()
+        assert not list(out_file.parent.glob(".*.part"))
+
+
+@pytest.mark.parametrize(
+    "extra,pattern",
+    [
+        (["--noise", "1,2,3"], "noise level"),
+        (["--noise", "a,b,c,d,e,f,g"], "not all numbers"),
+        (["--speech-level", "500"], "implausible"),
+        (["--talker", "robot"], "unknown talker"),
+        (["--channel", "3"], "channel 3"),
+        (["--bogus"], "No such option"),
+    ],
+)
+def test_bad_options(ir_file, capsys, tmp_path, extra, pattern):
+    out = tmp_path / "r.json"
+    code, o, e = run_cli(["ir", ir_file, "--out", out] + extra, capsys)
+    _assert_clean_failure(code, o, e, 2, pattern, out)
+
+
+def test_bad_files(tmp_path, capsys, write_wav):
+    out = tmp_path / "r.json"
+    (tmp_path / "text.wav").write_text("hello")
+    (tmp_path / "empty.wav").write_bytes(b"")
+    cases = [
+        (tmp_path / "missing.wav", "does not exist"),
+        (tmp_path, "folder"),
+        (tmp_path / "text.wav", "not a readable audio file"),
+        (tmp_path / "empty.wav", "empty"),
+        (write_wav("zeros.wav", np.zeros(FS), FS), "silent"),
+        (write_wav("nan.wav", np.where(np.arange(FS) == 5, np.nan, noise_decay(0.5, seconds=1.0)), FS, "FLOAT"),
+         "NaN"),
+        (write_wav("short.wav", noise_decay(0.1, seconds=0.3), FS), "0.63 Hz"),
+        (write_wav("clip.wav", np.clip(4 * noise_decay(1.0, seconds=1.5), -1, 1), FS), "clipped"),
+        (write_wav("low.wav", noise_decay(0.5, fs=16000, seconds=1.5), 16000), "8 kHz octave band"),
+    ]
+    for path, pattern in cases:
+        code, o, e = run_cli(["ir", path, "--out", out], capsys)
+        _assert_clean_failure(code, o, e, 2, pattern, out)
+
+
+def test_help_is_fast_and_lists_commands():
+    import subprocess
+    import sys
+
+    r = subprocess.run([sys.executable, "-c", "from envpredict.cli import main; main(['--help'])"],
+                       capture_output=True, text=True, timeout=60)
+    assert r.returncode == 0 and "ir" in r.stdout and "demo" in r.stdout
+    # heavy modules stay unloaded for --help
+    r = subprocess.run([sys.executable, "-c",
+                        "import sys\nfrom envpredict.cli import main\ntry:\n main(['--help'])\nexcept SystemExit: pass\n"
+                        "print([m for m in ('scipy', 'matplotlib', 'soundfile', 'numpy') if m in sys.modules])"],
+                       capture_output=True, text=True, timeout=60)
+    assert r.stdout.strip().splitlines()[-1] == "[]"

@@ -1,0 +1,106 @@
+"""STI from an MTF: IEC 60268-16:2011 Annex A formulas."""
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from envpredict import standards as std
+from envpredict.exceptions import InputError
+from envpredict.sti import (combine_bands, masking_factor, qualification_band, sti_from_mtf,
+                            transmission_index)
+
+
+@pytest.mark.parametrize("snr", [-20, -15, -9, -3, 0, 3, 9, 15, 25])
+def test_ti_from_snr(snr):
+    # IEC 60268-16:2011 A.2.4-A.2.5: m = 1/(1+10^(-SNR/10)) gives SNR_eff = SNR, TI = (SNR+15)/30,
+    # limited to [0, 1]
+    m = 1.0 / (1.0 + 10 ** (-snr / 10))
+    _, ti = transmission_index(np.array([m]))
+    assert ti[0] == pytest.approx(min(1, max(0, (snr + 15) / 30)), abs=1e-9)
+
+
+def test_uniform_mti_gives_sti_equal_mti():
+    # sum(alpha) - sum(beta) = 1 (Table A.1): equal MTI in all bands gives STI = MTI
+    for talker in ("male", "female"):
+        assert combine_bands(np.full(7, 0.37), talker) == pytest.approx(0.37, abs=1e-9)
+
+
+def test_redundancy_correction_by_hand():
+    # IEC 60268-16:2011 A.2.6, male weights; hand calculation
+    mti = np.array([0.2, 0.4, 0.6, 0.8, 1.0, 0.5, 0.3])
+    a, b = std.ALPHA_MALE, std.BETA_MALE
+    hand = sum(ai * mi for ai, mi in zip(a, mti)) - sum(b[k] * (mti[k] * mti[k + 1]) ** 0.5 for k in range(6))
+    assert combine_bands(mti, "male") == pytest.approx(hand, abs=1e-12)
+
+
+@pytest.mark.parametrize(
+    "sti,label",
+    [(0.80, "A+"), (0.76, "A+"), (0.7599, "A"), (0.74, "A"), (0.70, "B"), (0.66, "C"), (0.62, "D"),
+     (0.58, "E"), (0.54, "F"), (0.50, "G"), (0.48, "G"), (0.4799, "H"), (0.42, "I"), (0.38, "J"),
+     (0.36, "J"), (0.3599, "U"), (0.0, "U")],
+)
+def test_qualification_band_edges(sti, label):
+    # IEC 60268-16:2011 Table F.1
+    assert qualification_band(sti) == label
+
+
+def test_masking_factor_values():
+    # IEC 60268-16:2011 Table A.3 evaluated by hand: L=50 -> -40 dB; L=65 -> 1.8*65-146.9 = -29.9 dB;
+    # L=80 -> -19.8 dB; L=110 -> -10 dB
+    amf = masking_factor(np.array([50.0, 65.0, 80.0, 110.0]))
+    assert 10 * np.log10(amf) == pytest.approx([-40.0, -29.9, -19.8, -10.0], abs=1e-9)
+
+
+def test_noise_correction_textbook():
+    # m' = m / (1 + I_n/I_s) (Houtgast & Steeneken 1973) with auditory effects off
+    speech = 60 + np.array(std.SPEECH_SPECTRUM_MALE_DB)
+    noise = speech - 6.0
+    res = sti_from_mtf(np.ones((7, 14)), noise_db=noise, speech_level_dba=60, auditory=False)
+    assert res.sti == pytest.approx((6 + 15) / 30, abs=1e-6)
+    assert np.allclose(res.mtf, 1 / (1 + 10 ** (-0.6)))
+
+
+def test_perfect_channel_normal_voice_is_one():
+    # At 60 dB(A) the masking (Table A.3) and threshold (Table A.4) terms stay more than 15 dB
+    # below the speech in every band, so an ideal channel gives STI = 1 (hand calculation).
+    assert sti_from_mtf(np.ones((7, 14)), speech_level_dba=60).sti == pytest.approx(1.0, abs=1e-9)
+
+
+def test_female_ignores_125_hz():
+    # Table A.1: no 125 Hz band for female speech
+    m = np.ones((7, 14))
+    m[0] = 0.5  # TI = 0.5 in the 125 Hz band
+    assert sti_from_mtf(m, talker="female", auditory=False).sti == pytest.approx(1.0, abs=1e-9)
+    # male, by hand: 1 - 0.085*(1 - 0.5) - 0.085*(sqrt(0.5) - 1)
+    male = 1 - 0.085 * 0.5 - 0.085 * (0.5 ** 0.5 - 1)
+    assert sti_from_mtf(m, talker="male", auditory=False).sti == pytest.approx(male, abs=1e-9)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.floats(0, 1), min_size=7, max_size=7), st.floats(0.0, 0.5))
+def test_more_modulation_loss_never_raises_sti(row, loss):
+    # monotonicity of Annex A: lowering any m cannot raise the index (property)
+    m = np.tile(np.array(row)[:, None], (1, 14))
+    a = sti_from_mtf(m, auditory=False).sti
+    b = sti_from_mtf(m * (1 - loss), auditory=False).sti
+    assert 0.0 <= b <= a + 1e-12 <= 1.0 + 1e-12
+
+
+@pytest.mark.parametrize("bad", ["1,2,3", "a,b,c,d,e,f,g", "40,40,40,40,40,40,400", "", "nan,1,1,1,1,1,1"])
+def test_bad_noise_levels(bad):
+    with pytest.raises(InputError):
+        sti_from_mtf(np.ones((7, 14)), noise_db=bad)
+
+
+@pytest.mark.parametrize("level", [5, 150, float("nan")])
+def test_bad_speech_level(level):
+    with pytest.raises(InputError):
+        sti_from_mtf(np.ones((7, 14)), speech_level_dba=level)
+
+
+def test_bad_talker_and_shape():
+    with pytest.raises(InputError):
+        sti_from_mtf(np.ones((7, 14)), talker="child")
+    with pytest.raises(InputError):
+        sti_from_mtf(np.ones((6, 14)))
