@@ -35,6 +35,9 @@ NOISE_FLATNESS: float = 0.5
 #: Clarity and definition need at least this decay range, dB (judgement: below it
 #: the late energy is mostly noise and the ratio is meaningless).
 MIN_RANGE_CLARITY_DB: float = 20.0
+#: Rate of the decimated Schroeder curve used for fitting, Hz: 0.25 ms steps keep more
+#: than 200 points in the EDT range of a 0.3 s decay.
+CURVE_RATE_HZ: float = 4000.0
 
 
 def onset_index(x: np.ndarray) -> int:
@@ -61,8 +64,13 @@ def _fit_line(t: np.ndarray, y: np.ndarray) -> tuple[float, float]:
     """Least-squares line y = a + b t; returns (a, b)."""
     if t.size < 2:
         return float(y[0]) if y.size else 0.0, 0.0
-    b, a = np.polyfit(t, y, 1)
-    return float(a), float(b)
+    tm, ym = t.mean(), y.mean()
+    dt = t - tm
+    var = float(dt @ dt)
+    if var == 0:
+        return float(ym), 0.0
+    b = float(dt @ (y - ym)) / var
+    return float(ym - b * tm), b
 
 
 @dataclass(frozen=True)
@@ -133,16 +141,20 @@ def find_noise_floor(e: np.ndarray, fs: float, fc: float | None = None) -> Noise
                       range_db=float(-noise_db), has_noise=True)
 
 
-def schroeder_curve(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = None) -> np.ndarray:
+def schroeder_curve(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = None,
+                    step: int = 1) -> np.ndarray:
     """Backward-integrated decay curve in dB re its start, truncated at the crossing point
     with compensation C = e(tc) * T / 13.8 for the energy beyond it (ISO 3382-1, 5.3.3).
+
+    The integral is taken at the full rate; the curve is returned at every ``step``-th
+    sample (it is smooth, so a decimated copy loses nothing for fitting or plotting).
     Samples after the crossing are NaN."""
     tc = floor.crossing
     ee = e[:tc]
-    s = np.cumsum(ee[::-1])[::-1] + tail_energy(e, fs, floor, fc)
-    out = np.full(e.size, np.nan)
+    s = (np.cumsum(ee[::-1])[::-1] + tail_energy(e, fs, floor, fc))[::step]
+    out = np.full(-(-e.size // step), np.nan)
     with np.errstate(divide="ignore"):
-        out[:tc] = 10.0 * np.log10(s / s[0])
+        out[: s.size] = 10.0 * np.log10(s / s[0])
     return out
 
 
@@ -232,8 +244,9 @@ def band_decay(band: np.ndarray, fs: float, t0: int, fc: float | None = None) ->
     e_all = np.square(x)
     e = e_all[t0:]
     floor = find_noise_floor(e, fs, fc)
-    curve = schroeder_curve(e, fs, floor, fc)
-    out: dict = {"floor": floor, "curve": curve, "notes": []}
+    step = max(1, int(fs // CURVE_RATE_HZ))
+    curve = schroeder_curve(e, fs, floor, fc, step=step)
+    out: dict = {"floor": floor, "curve": curve, "curve_rate": fs / step, "notes": []}
     label = f"{fc:g} Hz" if fc else "broadband"
     for name, (hi, lo) in std.DECAY_RANGES_DB.items():
         need = _needed_range(name)
@@ -244,7 +257,7 @@ def band_decay(band: np.ndarray, fs: float, t0: int, fc: float | None = None) ->
                 f"{need:.0f} dB needed (ISO 3382-1: range must end 10 dB above the noise floor)"
             )
         else:
-            out[name] = fit_decay_time(curve, fs, hi, lo)
+            out[name] = fit_decay_time(curve, fs / step, hi, lo)
             if not np.isfinite(out[name]):
                 out["notes"].append(f"{name.upper()} not computed at {label}: the decay curve does not reach {lo:.0f} dB")
     # clarity and definition: early energy from just before the onset (the zero-phase
@@ -286,9 +299,9 @@ def decay_figures(band_irs: np.ndarray, fs: float, t0: int, *, keep_curves: bool
     curves = None
     rate = 0.0
     if keep_curves:
-        q = max(1, int(fs // 1000))  # 1 kHz is plenty for plotting
+        q = max(1, int(per[0]["curve_rate"] // 1000))  # 1 kHz is plenty for plotting
         curves = np.stack([p["curve"][::q] for p in per])
-        rate = fs / q
+        rate = per[0]["curve_rate"] / q
     arr = lambda k: np.array([p[k] for p in per], dtype=float)  # noqa: E731
     return DecayResult(
         bands_hz=std.OCTAVE_BANDS_HZ,
