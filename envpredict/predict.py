@@ -869,9 +869,17 @@ def default_index_functions() -> dict[str, Callable[[np.ndarray, np.ndarray, int
         return _as_float(estoi(c, d, fs), "estoi")
 
     def _ssti(c, d, fs):
-        from .pair import pair_indices
+        # the mixtures are aligned by construction: no delay search
+        from . import pair
 
-        return _as_float(pair_indices(c, d, fs).ssti, "ssti")
+        if hasattr(pair, "speech_sti"):
+            v = pair.speech_sti(c, d, fs)
+        else:
+            v = pair.pair_indices(c, d, fs, align=False).ssti
+        if v is None:
+            raise ComputationError("the speech-based STI cannot be computed for these signals",
+                                   "see the valid range in envpredict.pair_indices")
+        return _as_float(v, "ssti")
 
     return {"stoi": _stoi, "estoi": _estoi, "ssti": _ssti}
 
@@ -923,6 +931,7 @@ class SweepResult:
     level : ``"speech"`` or ``"mixture"`` (see :func:`snr_sweep`).
     segment_offsets_s : start of each noise segment in the noise signal, seconds.
     reverberant : whether the speech went through an impulse response.
+    processed : whether the mixtures went through a processing chain.
     fs : sample rate, Hz.
     duration_s : length of each mixture, seconds.
     mapping : the mapping's MAP.json content, or ``None``.
@@ -939,6 +948,7 @@ class SweepResult:
     level: str
     segment_offsets_s: tuple[float, ...]
     reverberant: bool
+    processed: bool
     fs: int
     duration_s: float
     mapping: dict | None = None
@@ -969,6 +979,7 @@ class SweepResult:
             "n_segments": len(self.segment_offsets_s),
             "segment_offsets_s": self.segment_offsets_s,
             "reverberant": self.reverberant,
+            "processed": self.processed,
             "fs": self.fs,
             "duration_s": self.duration_s,
             "mapping": self.mapping,
@@ -997,6 +1008,17 @@ def _crossing(snr: np.ndarray, curve: np.ndarray, level: float) -> tuple[float |
     return None, None
 
 
+def _processed(process: Callable[[np.ndarray, int], np.ndarray], mix: np.ndarray, fs: int,
+               snr: float) -> np.ndarray:
+    out = np.asarray(process(mix, fs), dtype=float).reshape(-1)
+    if out.shape != mix.shape or not np.all(np.isfinite(out)):
+        raise ComputationError(
+            f"the processing chain returned {out.size} samples (or non-finite values) for a "
+            f"{mix.size}-sample mixture at {snr:g} dB SNR",
+            "make it return a finite signal of the same length, time-aligned with its input")
+    return out
+
+
 def snr_sweep(
     clean: np.ndarray,
     noise: np.ndarray,
@@ -1010,6 +1032,7 @@ def snr_sweep(
     n_segments: int = 5,
     level: str = "speech",
     index_functions: MappingType[str, Callable[[np.ndarray, np.ndarray, int], float]] | None = None,
+    process: Callable[[np.ndarray, int], np.ndarray] | None = None,
     progress: Callable[[int, int], None] | None = None,
 ) -> SweepResult:
     """Predicted index and score against SNR, and the SNR at target scores.
@@ -1043,6 +1066,10 @@ def snr_sweep(
     level : ``"speech"`` or ``"mixture"`` level convention.
     index_functions : ``name -> f(clean, degraded, fs) -> float``; defaults to
         :func:`default_index_functions`.
+    process : optional processing chain ``process(mixture, fs) -> output`` applied to
+        each mixture before the index (e.g. a noise-reduction or hearing-device model);
+        the output must keep the length and time alignment of the mixture. The
+        predicted benefit of the chain in dB is the SRT without it minus the SRT with it.
     progress : optional callable ``progress(done, total)``.
 
     Returns
@@ -1125,6 +1152,8 @@ def snr_sweep(
             mix = speech + g * seg
             if level == "mixture":
                 mix = mix * math.sqrt(p_speech / float(np.mean(mix * mix)))
+            if process is not None:
+                mix = _processed(process, mix, fs, s)
             v = float(f(x, mix, fs))
             if not math.isfinite(v):
                 raise ComputationError(f"the {name} of the mixture at {s:g} dB SNR is not a number",
@@ -1151,8 +1180,13 @@ def snr_sweep(
         note = ""
         lo = hi = seg_sd = slope = None
         if srt is None:
-            where = "already at the lowest SNR" if mean[0] >= xt else "not even at the highest SNR"
-            note = f"{pct:g} % is reached {where}: widen the SNR range"
+            if mean[0] >= xt:
+                note = (f"{pct:g} % is exceeded already at the lowest SNR ({snrs[0]:g} dB): "
+                        "lower FROM in the SNR range")
+            else:
+                note = (f"{pct:g} % is not reached up to the highest SNR ({snrs[-1]:g} dB gives "
+                        f"{float(mapping.percent(mean[-1])):.1f} %): raise TO, or the score is limited "
+                        "by something other than the noise")
         else:
             slope = float(100.0 * mapping.derivative(xt) * (mean[i + 1] - mean[i]) / (snrs[i + 1] - snrs[i]))
             if offsets.size < 2:
@@ -1176,6 +1210,7 @@ def snr_sweep(
     return SweepResult(
         snr_db=snrs, index_name=name, index=mean, index_segments=vals, index_sd=sd,
         predicted_percent=predicted, targets=tuple(out_targets), level=level,
-        segment_offsets_s=tuple(float(o) / fs for o in offsets), reverberant=ir is not None, fs=fs,
+        segment_offsets_s=tuple(float(o) / fs for o in offsets), reverberant=ir is not None,
+        processed=process is not None, fs=fs,
         duration_s=L / fs, mapping=None if mapping is None else mapping.to_dict(), notes=tuple(notes),
     )

@@ -425,6 +425,60 @@ def test_sweep_with_impulse_response(signals):
     assert np.all(wet.index < dry.index)
 
 
+def test_sweep_index_values_match_reference_stoi(signals):
+    # the sweep's STOI at each SNR and segment equals pystoi (reference implementation
+    # of Taal 2011) on the mixture rebuilt here by the stated speech-level convention
+    from pystoi import stoi as reference_stoi
+
+    clean, noise = signals
+    res = snr_sweep(clean, noise, FS, snr_db=[-10, 0], index="stoi", n_segments=2)
+    for j, off in enumerate(res.segment_offsets_s):
+        o = round(off * FS)
+        seg = noise[o: o + clean.size]
+        for i, s in enumerate(res.snr_db):
+            g = np.sqrt(np.sum(clean ** 2) / (np.sum(seg ** 2) * 10 ** (s / 10)))
+            ref = reference_stoi(clean, clean + g * seg, FS)
+            assert res.index_segments[i, j] == pytest.approx(ref, abs=2e-3)
+
+
+def test_sweep_ssti_uses_speech_based_sti(signals):
+    from envpredict.pair import speech_sti
+
+    clean, noise = signals
+    res = snr_sweep(clean, noise, FS, snr_db=[-5, 5], index="ssti", n_segments=1)
+    seg = noise[: clean.size]
+    g = np.sqrt(np.sum(clean ** 2) / (np.sum(seg ** 2) * 10 ** 0.5))
+    assert res.index[1] == pytest.approx(speech_sti(clean, clean + g * seg, FS), abs=1e-12)
+    assert res.index[1] > res.index[0]
+
+
+def test_sweep_processing_chain(signals):
+    # the chain sees each mixture, the index sees the chain's output; a chain that
+    # halves the level leaves STOI unchanged (STOI is scale-invariant, Taal 2011)
+    clean, noise = signals
+    seen_in, seen_idx = [], []
+
+    def chain(y, fs):
+        seen_in.append(y.copy())
+        return 0.5 * y
+
+    def probe(c, d, fs):
+        seen_idx.append(d)
+        return power_index(c, 2 * d, fs)
+
+    snr_sweep(clean, noise, FS, snr_db=[0, 6], index="probe", n_segments=1, process=chain,
+              index_functions={"probe": probe})
+    assert len(seen_in) == 2
+    for y, d in zip(seen_in, seen_idx):
+        assert d == pytest.approx(0.5 * y)
+    kw = {"snr_db": [-6, 0, 6], "index": "stoi", "n_segments": 1}
+    plain = snr_sweep(clean, noise, FS, **kw)
+    halved = snr_sweep(clean, noise, FS, process=lambda y, fs: 0.5 * y, **kw)
+    assert halved.index == pytest.approx(plain.index, abs=1e-9)
+    with pytest.raises(ComputationError, match="processing chain"):
+        snr_sweep(clean, noise, FS, process=lambda y, fs: y[:-10], **kw)
+
+
 def test_sweep_refusals(signals):
     clean, noise = signals
     m = ScoreMapping(index="estoi", shape="logistic", a=-8.0, b=16.0)
@@ -449,6 +503,9 @@ def test_sweep_target_outside_range_is_reported_not_invented(signals):
                     n_segments=2, index_functions={"probe": power_index})
     t = res.targets[0]
     assert t.snr_db is None and t.ci_low is None and "lowest SNR" in t.note
+    res = snr_sweep(clean, noise, FS, snr_db=[-30, -25], index="probe", mapping=m, targets=[50],
+                    n_segments=2, index_functions={"probe": power_index})
+    assert res.targets[0].snr_db is None and "highest SNR" in res.targets[0].note
 
 
 MONO_MAP = ScoreMapping(index="stoi", shape="logistic", a=-11.0, b=17.0)
