@@ -254,3 +254,91 @@ def rms_dbfs(x: np.ndarray) -> float:
     """RMS level in dB re full scale (a full-scale sine reads -3.01 dBFS)."""
     r = float(np.sqrt(np.mean(np.square(x, dtype=np.float64))))
     return 20.0 * np.log10(r) if r > 0 else -np.inf
+
+
+class StreamCheck:
+    """The checks of :func:`validate_signal`, accumulated block by block for long files.
+
+    Call :meth:`update` on every block and :meth:`finish` at the end; errors are the same
+    ``InputError`` messages as for a whole signal.
+    """
+
+    def __init__(self, name: str = "input", allow_clipping: bool = False) -> None:
+        self.name = name
+        self.allow_clipping = allow_clipping
+        self.n = 0
+        self.sum = 0.0
+        self.sumsq = 0.0
+        self.full_scale = 0
+        self.flat_runs = 0
+        self.peak = 0.0
+
+    def update(self, block: np.ndarray) -> None:
+        b = np.asarray(block, dtype=np.float64)
+        if not np.all(np.isfinite(b)):
+            bad = int(np.count_nonzero(~np.isfinite(b)))
+            raise InputError(f"{self.name} contains {bad} NaN or infinite sample(s) near {self.n} samples in",
+                             "repair or re-export the file")
+        self.n += b.size
+        self.sum += float(b.sum())
+        self.sumsq += float(b @ b)
+        ab = np.abs(b)
+        self.full_scale += int(np.count_nonzero(ab >= CLIP_FULL_SCALE))
+        if b.size:
+            self.peak = max(self.peak, float(ab.max()))
+            at = ab >= float(ab.max()) * (1.0 - 1e-9)
+            d = np.diff(np.concatenate(([0], at.astype(np.int8), [0])))
+            runs = np.flatnonzero(d == -1) - np.flatnonzero(d == 1)
+            self.flat_runs += int(np.count_nonzero(runs >= CLIP_RUN))
+
+    def finish(self) -> None:
+        if self.n == 0:
+            raise InputError(f"{self.name} is empty", "give a signal with samples in it")
+        mean = self.sum / self.n
+        rms = np.sqrt(self.sumsq / self.n)
+        if rms < SILENCE_RMS:
+            raise InputError(f"{self.name} is silent (all samples zero or below -140 dBFS)",
+                             "check the recording chain and file")
+        if np.sqrt(max(self.sumsq / self.n - mean * mean, 0.0)) < SILENCE_RMS:
+            raise InputError(f"{self.name} holds only a constant (DC) value", "check the recording chain and file")
+        clipped = self.full_scale >= CLIP_MIN_FULL_SCALE_SAMPLES or self.flat_runs >= CLIP_MIN_RUNS
+        if clipped and not self.allow_clipping:
+            raise InputError(f"{self.name} is clipped (flat tops at the peak level)",
+                             "record again with less gain; a clipped signal gives wrong modulation depths")
+
+
+def iter_audio_blocks(
+    path: str | os.PathLike,
+    channel: int | None = None,
+    *,
+    block_seconds: float = 20.0,
+    name: str = "input",
+    check: StreamCheck | None = None,
+):
+    """Read one channel of a (long) audio file block by block, as float64.
+
+    Yields ``(block, fs)``; memory stays bounded by the block length. If ``check`` is
+    given, every block is fed to it (call ``check.finish()`` after the loop).
+    """
+    import soundfile as sf
+
+    fs, frames, _ = audio_info(path, name)
+    if frames == 0:
+        raise InputError(f"{name} '{path}' contains no samples", "give a file with audio in it")
+    check_rate(fs, f"{name} '{path}'")
+    block = max(1, int(block_seconds * fs))
+    try:
+        with sf.SoundFile(str(path)) as f:
+            while True:
+                data = f.read(block, dtype="float64", always_2d=True)
+                if data.shape[0] == 0:
+                    break
+                x = pick_channel(data, channel, name, str(path))
+                if check is not None:
+                    check.update(x)
+                yield x, fs
+    except InputError:
+        raise
+    except (RuntimeError, OSError, ValueError):
+        raise InputError(f"{name} '{path}' could not be decoded (truncated or damaged file?)",
+                         "re-export the file as WAV or FLAC") from None

@@ -108,3 +108,39 @@ def intensity_envelopes(
     sos = butter(4, cutoff_hz, btype="lowpass", fs=fs, output="sos")
     env = sosfiltfilt(sos, sq, axis=-1)[:, ::q]
     return np.maximum(env, 0.0), fs_env
+
+
+class EnvelopeStream:
+    """Octave-band intensity envelopes of a long signal, block by block.
+
+    Forward (causal) band filtering with the filter state carried from block to block,
+    squaring, a 4th-order low-pass at ``cutoff_hz`` (also stateful) and decimation to
+    about ``target_hz``. The result equals processing the whole signal in one piece
+    with the same causal filters, so the block length does not change any number.
+    Memory is bounded by the block length.
+    """
+
+    def __init__(self, fs: int, *, cutoff_hz: float = 50.0, target_hz: float = 200.0) -> None:
+        from scipy.signal import butter
+
+        self.fs = int(fs)
+        self.sos = octave_sos(self.fs)
+        self.lp = butter(4, cutoff_hz, btype="lowpass", fs=self.fs, output="sos")
+        self.zi_band = [np.zeros((s.shape[0], 2)) for s in self.sos]
+        self.zi_lp = [np.zeros((self.lp.shape[0], 2)) for _ in self.sos]
+        self.q, self.rate = envelope_rate(self.fs, target_hz)
+        self.offset = 0
+
+    def process(self, x: np.ndarray) -> np.ndarray:
+        """Envelope samples (bands, m) for the next block of the signal."""
+        from scipy.signal import sosfilt
+
+        x = np.asarray(x, dtype=np.float64)
+        first = (-self.offset) % self.q
+        out = []
+        for k, sos in enumerate(self.sos):
+            y, self.zi_band[k] = sosfilt(sos, x, zi=self.zi_band[k])
+            e, self.zi_lp[k] = sosfilt(self.lp, y * y, zi=self.zi_lp[k])
+            out.append(e[first::self.q])
+        self.offset += x.size
+        return np.maximum(np.array(out), 0.0)
