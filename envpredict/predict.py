@@ -892,8 +892,12 @@ class SweepTarget:
     SNRs) reaches the index value the mapping gives for ``percent``; ``ci_low`` /
     ``ci_high`` is ``snr_db -+ t * sd / sqrt(n)`` over the per-segment crossings
     (Student t, ``n`` noise segments); ``slope_percent_per_db`` the slope of the
-    predicted psychometric function there. ``None`` where the target is not reached
-    inside the swept range.
+    predicted psychometric function there. ``map_ci_low`` / ``map_ci_high`` is the
+    separate interval from the uncertainty of the mapping itself: the SNRs where the
+    mean index curve reaches ``index -+ z * se`` (``se`` of the inverse mapping by the
+    delta method from the fitted covariance); ``None`` without a covariance or when an
+    end falls outside the swept range. ``None`` where the target is not reached inside
+    the swept range.
     """
 
     percent: float
@@ -904,6 +908,8 @@ class SweepTarget:
     segment_sd_db: float | None
     segment_snr_db: tuple[float | None, ...]
     slope_percent_per_db: float | None
+    map_ci_low: float | None = None
+    map_ci_high: float | None = None
     note: str = ""
 
     def to_dict(self) -> dict:
@@ -911,7 +917,8 @@ class SweepTarget:
             "percent": self.percent, "index": self.index, "snr_db": self.snr_db, "ci_low": self.ci_low,
             "ci_high": self.ci_high, "segment_sd_db": self.segment_sd_db,
             "segment_snr_db": list(self.segment_snr_db),
-            "slope_percent_per_db": self.slope_percent_per_db, "note": self.note or None,
+            "slope_percent_per_db": self.slope_percent_per_db,
+            "map_ci_low": self.map_ci_low, "map_ci_high": self.map_ci_high, "note": self.note or None,
         })
 
 
@@ -1173,6 +1180,9 @@ def snr_sweep(
     predicted = None if mapping is None else mapping.percent(mean)
     tq = float(student_t.ppf(0.5 + CI_LEVEL / 2.0, offsets.size - 1)) if offsets.size > 1 else math.nan
 
+    from scipy.stats import norm
+
+    z_map = float(norm.ppf(0.5 + CI_LEVEL / 2.0))
     out_targets = []
     for pct, xt in zip(target_list, x_targets):
         srt, i = _crossing(snrs, mean, xt)
@@ -1197,9 +1207,17 @@ def snr_sweep(
                 seg_sd = float(np.std(seg_srts, ddof=1))
                 half = tq * seg_sd / math.sqrt(offsets.size)
                 lo, hi = srt - half, srt + half
+        m_lo = m_hi = None
+        if srt is not None and mapping.cov is not None:
+            half_x = z_map * mapping.index_sd_at(pct)
+            m_lo = _crossing(snrs, mean, xt - half_x)[0]
+            m_hi = _crossing(snrs, mean, xt + half_x)[0]
+            if m_lo is None or m_hi is None:
+                m_lo = m_hi = None
         out_targets.append(SweepTarget(
             percent=pct, index=float(xt), snr_db=srt, ci_low=lo, ci_high=hi, segment_sd_db=seg_sd,
-            segment_snr_db=tuple(seg_srts), slope_percent_per_db=slope, note=note))
+            segment_snr_db=tuple(seg_srts), slope_percent_per_db=slope, map_ci_low=m_lo, map_ci_high=m_hi,
+            note=note))
     if mapping is None:
         notes.append("no mapping: give one (fitted with fitmap) to get predicted scores and target SNRs")
     elif mapping.index_range is not None:

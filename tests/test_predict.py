@@ -409,6 +409,18 @@ def test_sweep_srt_equals_inverse_mapping_on_interpolated_index_curve(signals):
 
         assert t.slope_percent_per_db == pytest.approx((pred(t.snr_db + h) - pred(t.snr_db - h)) / (2 * h), rel=1e-3)
     assert res.predicted_percent == pytest.approx(100 * expit(m.a + m.b * res.index))
+    # interval from the mapping's uncertainty: delta method on x_t = (logit(p) - a) / b
+    # with statsmodels' covariance of (a, b), mapped through the interpolated curve
+    glm = sm.GLM(np.c_[simulate(-11.0, 17.0, x, n, seed=2), n - simulate(-11.0, 17.0, x, n, seed=2)],
+                 sm.add_constant(x), family=sm.families.Binomial()).fit()
+    a, b = glm.params
+    cov = np.asarray(glm.cov_params())
+    t = res.targets[1]
+    x_t = -a / b
+    grad = np.array([-1 / b, -x_t / b])
+    half = stats.norm.ppf(0.975) * math.sqrt(grad @ cov @ grad)
+    assert t.map_ci_low == pytest.approx(np.interp(x_t - half, res.index, res.snr_db), abs=1e-4)
+    assert t.map_ci_high == pytest.approx(np.interp(x_t + half, res.index, res.snr_db), abs=1e-4)
 
 
 def test_sweep_with_impulse_response(signals):

@@ -192,19 +192,22 @@ def render_sweep(d: dict) -> str:
         rows.append(r)
     lines.append(table(rows, head))
     if d["targets"]:
-        lines += ["", "SNR at target scores (interval from the spread over noise segments):"]
+        lines += ["", "SNR at target scores, with 95 % intervals from the spread over noise segments "
+                      "and from the mapping's own uncertainty:"]
         trows = []
         for t in d["targets"]:
             ci = "—" if t["ci_low"] is None else f"{t['ci_low']:.1f} .. {t['ci_high']:.1f}"
-            trows.append([f"{t['percent']:g} %", fmt(t["index"], ".3f"), fmt(t["snr_db"], ".1f"), ci,
+            mci = "—" if t["map_ci_low"] is None else f"{t['map_ci_low']:.1f} .. {t['map_ci_high']:.1f}"
+            trows.append([f"{t['percent']:g} %", fmt(t["index"], ".3f"), fmt(t["snr_db"], ".1f"), ci, mci,
                           fmt(t["slope_percent_per_db"], ".1f"), t["note"] or ""])
-        lines.append(table(trows, ["target", d["index_name"], "SNR dB", "95 % interval dB", "slope %/dB", ""]))
+        lines.append(table(trows, ["target", d["index_name"], "SNR dB", "noise segments", "mapping",
+                                   "slope %/dB", ""]))
         if d["srt_db"] is not None:
             lines += ["", (f"Predicted SRT (50 %): {d['srt_db']:.1f} dB SNR, slope "
                           f"{d['slope_at_srt_percent_per_db']:.1f} %/dB")]
     if d["notes"]:
         lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
-    return "\n".join(lines)
+    return "\n".join(line.rstrip() for line in "\n".join(lines).split("\n"))
 
 
 @app.command("sweep")
