@@ -241,3 +241,12 @@ STOI_DYNAMIC_RANGE_DB: float = 40.0
 def as_array(values: tuple) -> np.ndarray:
     """Return a table as a float array, with ``None`` entries as NaN."""
     return np.array([np.nan if v is None else v for v in values], dtype=float)
+
+# ---------------------------------------------------------------------------
+# Single-number room-acoustic figures (ISO 3382-1:2009) -- used by envpredict.batch
+# ---------------------------------------------------------------------------
+
+#: Octave bands averaged for the single-number ("mid-frequency") EDT and T30, Hz.
+#: Source: ISO 3382-1:2009, Annex A, Table A.1 (single-number frequency averaging
+#: 500 Hz to 1000 Hz for EDT and T).
+MID_FREQUENCY_BANDS_HZ: tuple[float, ...] = (500.0, 1000.0)

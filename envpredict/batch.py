@@ -1,0 +1,859 @@
+"""Corpus-scale scoring: manifests, resumable result files, process pool and dask backends.
+
+A *manifest* is a CSV file with one row per item to score:
+
+* **pair rows** have the columns ``clean`` and ``degraded`` (paths of a clean
+  reference and its degraded version) and are scored with STOI, ESTOI and the
+  speech-based STI (``envpredict.pair``);
+* **IR rows** have the column ``ir`` (path of an impulse response) and are scored
+  with the STI by the indirect method and the ISO 3382-1 mid-frequency decay
+  figures (:func:`envpredict.indirect.sti_from_ir`).
+
+Relative paths are taken relative to the folder of the manifest. Both kinds may be
+mixed in one manifest (a row is an IR row when its ``ir`` cell is filled). Optional
+columns that feed the scoring (empty cell = the batch default):
+
+* ``channel`` -- channel of multi-channel files (0 = first; all rows);
+* ``noise`` -- seven octave-band background-noise levels at the listener, dB SPL,
+  125 Hz to 8 kHz, separated by ``;`` or by ``,`` inside a quoted cell (IR rows);
+* ``speech_level`` -- A-weighted speech level at the listener, dB(A) (IR rows);
+* ``sti_talker`` -- ``male`` or ``female`` speech spectrum and weights (IR rows).
+  (A column named ``talker`` is *not* read: in speech corpora it names the speaker,
+  and it is carried through like any other column.)
+
+Every other column (condition, talker, SNR, ...) is carried through unchanged.
+
+The results file has the columns ``row`` (1-based number of the data row in the
+manifest: the key that ``resume`` uses), the manifest's own columns unchanged, the
+index columns (:data:`IR_INDEX_COLUMNS` when the manifest has an ``ir`` column,
+:data:`PAIR_INDEX_COLUMNS` when it has ``clean``/``degraded``), ``notes`` (why a
+figure of a scored row is empty, e.g. a pair too short for the speech-based STI or a
+decay range too small for T30) and ``error`` (empty when the row was scored;
+otherwise the one-line reason, and the index cells are empty). Numbers are
+written with ``repr`` (the shortest text that reads back to the same float); a
+figure that could not be computed is an empty cell.
+
+Never losing work
+-----------------
+Each finished row is appended to the results file as one line with a single
+``write`` on an ``O_APPEND`` descriptor, then ``fsync``-ed, so a kill at any moment
+leaves a valid CSV file holding every finished row (while running, in completion
+order). When the batch completes, the file is rewritten in manifest order through a
+temporary file and an atomic rename, so it is never half-written. ``resume`` reads
+the file, drops a final line that lacks its newline (torn by a power cut or a full
+disk), checks that the header and every kept row still match the manifest, and
+scores only the rows that are missing: no row is lost and none is written twice.
+Cells holding line breaks are refused in the manifest, so one line is one row.
+
+Backends
+--------
+* in-process (``workers=1``);
+* a local :class:`concurrent.futures.ProcessPoolExecutor` with the ``spawn`` start
+  method (``workers=N``; default: the number of usable cores);
+* an existing dask.distributed cluster (``scheduler="tcp://HOST:PORT"``; needs the
+  optional extra ``pip install 'envpredict[cluster]'``). The workers must have
+  envpredict installed and must see the audio files at the same absolute paths
+  (a shared filesystem): the tasks carry paths, not audio.
+
+The job function :func:`score_row` is a plain top-level function of a plain dict,
+so any executor can pickle it; it never raises: a row whose input is bad comes
+back with an ``error`` entry and the batch goes on.
+
+This module reads and writes files and runs executors; it holds no index maths.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import io
+import math
+import os
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable, Iterable, Iterator, Sequence
+
+from . import standards as std
+from .exceptions import ComputationError, EnvpredictError, InputError
+
+#: Manifest columns naming the input files.
+IR_COLUMN = "ir"
+CLEAN_COLUMN = "clean"
+DEGRADED_COLUMN = "degraded"
+PATH_COLUMNS: tuple[str, ...] = (IR_COLUMN, CLEAN_COLUMN, DEGRADED_COLUMN)
+
+#: Optional manifest columns that feed the scoring (see the module docstring).
+CHANNEL_COLUMN = "channel"
+NOISE_COLUMN = "noise"
+SPEECH_LEVEL_COLUMN = "speech_level"
+STI_TALKER_COLUMN = "sti_talker"
+OPTION_COLUMNS: tuple[str, ...] = (CHANNEL_COLUMN, NOISE_COLUMN, SPEECH_LEVEL_COLUMN, STI_TALKER_COLUMN)
+
+#: Result columns added to the manifest's own.
+ROW_COLUMN = "row"
+ERROR_COLUMN = "error"
+#: Why a figure of a scored row is empty (e.g. a decay range too small for T30).
+NOTES_COLUMN = "notes"
+#: IR rows: STI, its qualification band, and the ISO 3382-1 mid-frequency T30 and EDT
+#: (mean of the 500 Hz and 1 kHz octave bands, seconds).
+IR_INDEX_COLUMNS: tuple[str, ...] = ("sti", "rating", "t30_mid", "edt_mid")
+#: Pair rows: STOI, ESTOI, speech-based STI and the delay of the degraded signal, ms.
+PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "delay_ms")
+#: Index columns holding numbers (all except the rating letter).
+NUMERIC_INDEX_COLUMNS: tuple[str, ...] = tuple(
+    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS if c != "rating"
+)
+RESULT_COLUMNS: frozenset[str] = frozenset(
+    (ROW_COLUMN, NOTES_COLUMN, ERROR_COLUMN) + IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS
+)
+
+#: Rows in flight per worker: enough to keep every worker busy while results are
+#: written, few enough that memory stays flat and an interrupt stops quickly
+#: (judgement).
+IN_FLIGHT_PER_WORKER: int = 4
+
+#: Seconds to wait for a dask scheduler to answer (judgement).
+CONNECT_TIMEOUT_S: float = 10.0
+
+#: Failures listed in the summary (all of them are in the results file).
+SUMMARY_FAILURES: int = 20
+
+
+# ---------------------------------------------------------------------------
+# Manifest
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Manifest:
+    """A validated manifest.
+
+    Attributes
+    ----------
+    path : the manifest file.
+    columns : its header, in order.
+    cells : one tuple of strings per data row (manifest order).
+    jobs : one job dict per data row, the argument of :func:`score_row`.
+    index_columns : the index columns of the results file.
+    """
+
+    path: Path
+    columns: tuple[str, ...]
+    cells: tuple[tuple[str, ...], ...]
+    jobs: tuple[dict, ...]
+    index_columns: tuple[str, ...]
+
+    @property
+    def result_columns(self) -> tuple[str, ...]:
+        """Header of the results file."""
+        return (ROW_COLUMN,) + self.columns + self.index_columns + (NOTES_COLUMN, ERROR_COLUMN)
+
+    def __len__(self) -> int:
+        return len(self.cells)
+
+
+def _where(path: Path, row: int | None = None, line: int | None = None, column: str | None = None) -> str:
+    s = f"manifest '{path}'"
+    if row is not None:
+        s += f", row {row}"
+        if line is not None:
+            s += f" (line {line})"
+    if column is not None:
+        s += f", column '{column}'"
+    return s
+
+
+def _read_text(path: Path, what: str) -> str:
+    if not path.exists():
+        raise InputError(f"{what} '{path}' does not exist", "check the path")
+    if path.is_dir():
+        raise InputError(f"{what} '{path}' is a folder", "give the path of a CSV file")
+    try:
+        raw = path.read_bytes()
+    except OSError as e:
+        raise InputError(f"{what} '{path}' cannot be read ({e.strerror})", "check its permissions") from None
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as e:
+        raise InputError(
+            f"{what} '{path}' is not UTF-8 text (undecodable byte at offset {e.start})",
+            "save it as CSV in UTF-8",
+        ) from None
+
+
+def _option_value(path: Path, row: int, line: int, column: str, text: str, defaults: dict) -> Any:
+    """Parse one option cell (empty: the batch default); errors name file, row and column."""
+    from .sti import check_speech_level, check_talker, parse_noise_levels
+
+    text = text.strip()
+    key = {CHANNEL_COLUMN: "channel", NOISE_COLUMN: "noise", SPEECH_LEVEL_COLUMN: "speech_level",
+           STI_TALKER_COLUMN: "talker"}[column]
+    if not text:
+        return defaults[key]
+    try:
+        if column == CHANNEL_COLUMN:
+            try:
+                ch = int(text)
+            except ValueError:
+                raise InputError(f"channel '{text}' is not a whole number", "give 0 for the first channel") from None
+            if ch < 0:
+                raise InputError(f"channel {ch} is negative", "give 0 for the first channel")
+            return ch
+        if column == NOISE_COLUMN:
+            return [float(v) for v in parse_noise_levels(text.replace(";", ","))]
+        if column == SPEECH_LEVEL_COLUMN:
+            return check_speech_level(text)
+        return check_talker(text)
+    except InputError as e:
+        raise InputError(f"{_where(path, row, line, column)}: {e.what}", e.fix) from None
+
+
+def read_manifest(
+    path: str | os.PathLike,
+    *,
+    noise_db: Sequence[float] | str | None = None,
+    speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
+    talker: str = "male",
+) -> Manifest:
+    """Read and validate a manifest (see the module docstring for its columns).
+
+    Parameters
+    ----------
+    path : the manifest CSV file (UTF-8, comma-separated, header on the first line).
+    noise_db, speech_level_dba, talker : defaults for IR rows whose ``noise``,
+        ``speech_level`` or ``sti_talker`` cell is empty (or absent).
+
+    Raises
+    ------
+    InputError
+        For a malformed manifest, naming the file and, where it applies, the row, its
+        line and the column. The audio files are not opened here: a missing or bad
+        audio file is a per-row error of the batch.
+    """
+    from .sti import check_speech_level, check_talker, parse_noise_levels
+
+    p = Path(path)
+    text = _read_text(p, "manifest")
+    noise = parse_noise_levels(noise_db)
+    defaults = {
+        "channel": None,
+        "noise": None if noise is None else [float(v) for v in noise],
+        "speech_level": check_speech_level(speech_level_dba),
+        "talker": check_talker(talker),
+    }
+    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
+    try:
+        header = next(reader, None)
+        if header is None or not any(h.strip() for h in header):
+            raise InputError(f"manifest '{p}' is empty", "write a header line, e.g. clean,degraded,condition")
+        columns = tuple(header)
+        seen: set[str] = set()
+        for i, c in enumerate(columns):
+            if not c.strip():
+                raise InputError(f"{_where(p)}: column {i + 1} of the header has no name", "name every column")
+            if c in seen:
+                raise InputError(f"{_where(p)}: column '{c}' appears twice in the header", "rename one of them")
+            seen.add(c)
+            if c in RESULT_COLUMNS:
+                raise InputError(
+                    f"{_where(p, column=c)} has the name of a result column",
+                    f"rename it (reserved: {', '.join(sorted(RESULT_COLUMNS))})",
+                )
+        has_ir = IR_COLUMN in seen
+        has_clean, has_deg = CLEAN_COLUMN in seen, DEGRADED_COLUMN in seen
+        if has_clean != has_deg:
+            missing = DEGRADED_COLUMN if has_clean else CLEAN_COLUMN
+            raise InputError(f"{_where(p)} has no '{missing}' column", "pair rows need both 'clean' and 'degraded'")
+        has_pair = has_clean and has_deg
+        if not (has_ir or has_pair):
+            hint = ""
+            if len(columns) == 1 and (";" in columns[0] or "\t" in columns[0]):
+                hint = " (it looks separated by ';' or tabs: use commas)"
+            raise InputError(
+                f"{_where(p)} has neither an 'ir' column nor 'clean' and 'degraded' columns{hint}; "
+                f"found: {', '.join(columns)}",
+                "name the input columns ir, or clean and degraded",
+            )
+        col = {c: i for i, c in enumerate(columns)}
+        base = p.resolve().parent
+        cells: list[tuple[str, ...]] = []
+        jobs: list[dict] = []
+        for rec in reader:
+            line = reader.line_num
+            if not rec or (len(rec) == 1 and not rec[0].strip()):
+                continue  # blank line
+            row = len(cells) + 1
+            if len(rec) != len(columns):
+                raise InputError(
+                    f"{_where(p, row, line)} has {len(rec)} cells; the header has {len(columns)} columns",
+                    "give every row one cell per column (quote cells that contain commas)",
+                )
+            for c, v in zip(columns, rec):
+                if "\n" in v or "\r" in v:
+                    raise InputError(f"{_where(p, row, line, c)} contains a line break", "remove it")
+            get = {c: rec[i] for c, i in col.items()}
+            ir = get.get(IR_COLUMN, "").strip()
+            clean = get.get(CLEAN_COLUMN, "").strip()
+            deg = get.get(DEGRADED_COLUMN, "").strip()
+            if ir and (clean or deg):
+                raise InputError(
+                    f"{_where(p, row, line)} fills both 'ir' and 'clean'/'degraded'",
+                    "give either an impulse response or a clean/degraded pair on each row",
+                )
+            if not ir and not (clean or deg):
+                need = "'ir'" if not has_pair else ("'clean' and 'degraded'" if not has_ir else
+                                                   "'ir', or 'clean' and 'degraded'")
+                raise InputError(f"{_where(p, row, line)} names no input file", f"fill {need}")
+            if not ir and not (clean and deg):
+                empty = CLEAN_COLUMN if not clean else DEGRADED_COLUMN
+                raise InputError(f"{_where(p, row, line, empty)} is empty", "a pair row needs both files")
+            opts = {key: _option_value(p, row, line, c, get[c], defaults) if c in get else defaults[key]
+                    for c, key in ((CHANNEL_COLUMN, "channel"), (NOISE_COLUMN, "noise"),
+                                   (SPEECH_LEVEL_COLUMN, "speech_level"), (STI_TALKER_COLUMN, "talker"))}
+
+            def full(s: str) -> str:
+                q = Path(s).expanduser()
+                return str(q if q.is_absolute() else base / q)
+
+            job: dict[str, Any] = {"row": row, "channel": opts["channel"]}
+            if ir:
+                job.update(kind="ir", ir=full(ir), noise=opts["noise"], speech_level=opts["speech_level"],
+                           talker=opts["talker"])
+            else:
+                job.update(kind="pair", clean=full(clean), degraded=full(deg))
+            cells.append(tuple(rec))
+            jobs.append(job)
+    except csv.Error as e:
+        raise InputError(
+            f"{_where(p)}: line {reader.line_num} is not valid CSV ({e})",
+            "check the quotes on that line",
+        ) from None
+    if not cells:
+        raise InputError(f"{_where(p)} has a header but no rows", "add one row per item to score")
+    index_columns = (IR_INDEX_COLUMNS if has_ir else ()) + (PAIR_INDEX_COLUMNS if has_pair else ())
+    return Manifest(path=p, columns=columns, cells=tuple(cells), jobs=tuple(jobs), index_columns=index_columns)
+
+
+# ---------------------------------------------------------------------------
+# The job function (runs in the workers)
+# ---------------------------------------------------------------------------
+
+
+def _mean_bands(values: Any, bands: Sequence[float]) -> float:
+    """Mean of a per-octave-band figure over ``bands`` (NaN if any is NaN)."""
+    vals = [float(values[std.OCTAVE_BANDS_HZ.index(b)]) for b in bands]
+    return math.fsum(vals) / len(vals) if all(math.isfinite(v) for v in vals) else float("nan")
+
+
+def _score_ir(job: dict) -> dict:
+    from .audio import load_audio
+    from .indirect import sti_from_ir
+
+    x, fs = load_audio(job["ir"], job.get("channel"), name="impulse response")
+    r = sti_from_ir(x, fs, noise_db=job.get("noise"), speech_level_dba=job.get("speech_level", 60.0),
+                    talker=job.get("talker", "male"))
+    return {
+        "sti": float(r.sti.sti),
+        "rating": r.sti.rating,
+        "t30_mid": _mean_bands(r.decay.t30, std.MID_FREQUENCY_BANDS_HZ),
+        "edt_mid": _mean_bands(r.decay.edt, std.MID_FREQUENCY_BANDS_HZ),
+        NOTES_COLUMN: "; ".join(r.decay.notes),
+    }
+
+
+def _score_pair(job: dict) -> dict:
+    from .pair import pair_from_files
+
+    r = pair_from_files(job["clean"], job["degraded"], channel=job.get("channel"))
+    return {"stoi": float(r.stoi), "estoi": float(r.estoi), "ssti": None if r.ssti is None else float(r.ssti),
+            "delay_ms": float(r.delay_ms), NOTES_COLUMN: "; ".join(r.notes)}
+
+
+def score_row(job: dict) -> dict:
+    """Score one manifest row; never raises.
+
+    Parameters
+    ----------
+    job : one entry of :attr:`Manifest.jobs` (a plain dict: picklable for any executor).
+
+    Returns
+    -------
+    dict with ``row`` (the manifest row number), ``values`` (index name -> number or
+    text) and ``error`` ("" when scored; otherwise the one-line reason and ``values``
+    is empty).
+    """
+    row = job.get("row")
+    try:
+        values = _score_ir(job) if job.get("kind") == "ir" else _score_pair(job)
+        return {"row": row, "values": values, "error": ""}
+    except EnvpredictError as e:
+        return {"row": row, "values": {}, "error": e.one_line()}
+    except MemoryError:
+        return {"row": row, "values": {}, "error": "out of memory — score this file alone or free memory"}
+    except Exception as e:  # a bug or an unexpected file problem must not stop the batch
+        return {"row": row, "values": {}, "error": f"internal failure ({type(e).__name__}: {e})"}
+
+
+def _cell(v: Any) -> str:
+    """A result value as CSV text: full-precision numbers, empty for missing/non-finite."""
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return str(v).lower()
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float) or hasattr(v, "__float__") and not isinstance(v, str):
+        f = float(v)
+        return repr(f) if math.isfinite(f) else ""
+    return " ".join(str(v).split())  # one line
+
+
+# ---------------------------------------------------------------------------
+# Results file
+# ---------------------------------------------------------------------------
+
+
+def _csv_line(cells: Sequence[str]) -> str:
+    buf = io.StringIO()
+    csv.writer(buf, lineterminator="\n").writerow(cells)
+    return buf.getvalue()
+
+
+def _parse_lines(text: str, path: Path) -> tuple[list[str] | None, list[list[str]], bool]:
+    """Header and complete rows of a results file; ``torn`` if the last line lacked its newline."""
+    torn = bool(text) and not text.endswith("\n")
+    if torn:
+        text = text[: text.rfind("\n") + 1]
+    if not text:
+        return None, [], torn
+    try:
+        recs = list(csv.reader(io.StringIO(text, newline=""), strict=True))
+    except csv.Error as e:
+        raise InputError(f"results file '{path}' is not valid CSV ({e})",
+                         "give a results file written by 'envpredict batch', or a new --out") from None
+    return recs[0], recs[1:], torn
+
+
+def read_results(path: str | os.PathLike) -> tuple[tuple[str, ...], list[dict[str, str]]]:
+    """Read a results file written by :func:`run_batch` (complete or still running).
+
+    A final line without its newline (a write torn by a power cut) is ignored.
+
+    Returns
+    -------
+    columns : the header.
+    rows : one dict per row, column -> cell text.
+    """
+    p = Path(path)
+    text = _read_text(p, "results file")
+    header, recs, _ = _parse_lines(text, p)
+    if header is None:
+        raise InputError(f"results file '{p}' is empty", "run 'envpredict batch' first")
+    rows = []
+    for i, rec in enumerate(recs, start=2):
+        if len(rec) != len(header):
+            raise InputError(f"results file '{p}', line {i} has {len(rec)} cells; the header has {len(header)}",
+                             "repair the line or score again")
+        rows.append(dict(zip(header, rec)))
+    return tuple(header), rows
+
+
+class ResultWriter:
+    """Append-only results file: one ``write`` + ``fsync`` per finished row.
+
+    Use :meth:`open`; :meth:`finish` rewrites the file in manifest order atomically.
+    """
+
+    def __init__(self, path: Path, manifest: Manifest, done: dict[int, list[str]]) -> None:
+        self.path = path
+        self.manifest = manifest
+        self.done = done  # row number -> cells of the results line
+        self._fd: int | None = None
+
+    # -- opening -----------------------------------------------------------
+    @classmethod
+    def open(cls, path: str | os.PathLike, manifest: Manifest, *, resume: bool = False,
+             overwrite: bool = False, retry_failed: bool = False) -> "ResultWriter":
+        """Open (or create) the results file for ``manifest``.
+
+        ``resume`` keeps the rows already in the file (``retry_failed``: except those
+        with an error, which are scored again); ``overwrite`` starts a new file.
+        Without either, an existing non-empty file is refused, so that finished work
+        is never discarded by accident.
+        """
+        p = Path(path)
+        parent = p.parent if str(p.parent) else Path(".")
+        if not parent.is_dir():
+            raise InputError(f"output folder '{parent}' does not exist", "create it first or choose another path")
+        if p.is_dir():
+            raise InputError(f"output '{p}' is a folder", "give a file name, e.g. results.csv")
+        with contextlib.suppress(OSError):
+            if p.exists() and p.resolve() == manifest.path.resolve():
+                raise InputError(f"output '{p}' is the manifest itself", "choose another --out file")
+        header = list(manifest.result_columns)
+        exists = p.exists() and p.stat().st_size > 0
+        if exists and not (resume or overwrite):
+            raise InputError(
+                f"results file '{p}' already exists",
+                "add --resume to finish it, or --overwrite to start again",
+            )
+        done: dict[int, list[str]] = {}
+        rewrite = not exists or overwrite
+        if exists and resume and not overwrite:
+            text = _read_text(p, "results file")
+            old_header, recs, torn = _parse_lines(text, p)
+            if old_header is None:
+                rewrite = True  # killed while writing the header
+            else:
+                if old_header != header:
+                    raise InputError(
+                        f"results file '{p}' has other columns than this manifest gives "
+                        f"({', '.join(old_header)})",
+                        "resume with the manifest it was started with, or choose a new --out",
+                    )
+                n = len(manifest)
+                for i, rec in enumerate(recs, start=2):
+                    if len(rec) != len(header):
+                        raise InputError(
+                            f"results file '{p}', line {i} has {len(rec)} cells; the header has {len(header)}",
+                            "repair that line, or choose a new --out",
+                        )
+                    try:
+                        row = int(rec[0])
+                    except ValueError:
+                        row = -1
+                    if not 1 <= row <= n:
+                        raise InputError(f"results file '{p}', line {i} has row number '{rec[0]}', "
+                                         f"not 1..{n}", "resume with the manifest it was started with")
+                    if tuple(rec[1:1 + len(manifest.columns)]) != manifest.cells[row - 1]:
+                        raise InputError(
+                            f"results file '{p}', line {i}: row {row} does not match row {row} of "
+                            f"manifest '{manifest.path}' (the manifest changed since the batch started)",
+                            "resume with the unchanged manifest, or choose a new --out",
+                        )
+                    if row in done:
+                        # cannot happen with this writer; keep the first and repair the file
+                        rewrite = True
+                        continue
+                    if retry_failed and rec[-1].strip():
+                        rewrite = True
+                        continue
+                    done[row] = rec
+                rewrite = rewrite or torn
+        w = cls(p, manifest, done)
+        if rewrite:
+            w._rewrite(sort=False)
+        w._open_append()
+        return w
+
+    def _open_append(self) -> None:
+        fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
+        try:
+            import fcntl
+        except ImportError:  # Windows: no advisory lock
+            fcntl = None
+        if fcntl is not None:
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError:
+                os.close(fd)
+                raise InputError(f"results file '{self.path}' is being written by another batch run",
+                                 "wait for it to finish, or choose another --out") from None
+        self._fd = fd
+
+    def _rewrite(self, sort: bool) -> None:
+        from .outputs import atomic_write_text
+
+        rows = sorted(self.done) if sort else list(self.done)
+        text = _csv_line(self.manifest.result_columns) + "".join(_csv_line(self.done[r]) for r in rows)
+        atomic_write_text(self.path, text)
+
+    # -- writing -----------------------------------------------------------
+    def pending(self) -> list[dict]:
+        """Jobs of the rows not yet in the file, in manifest order."""
+        return [j for j in self.manifest.jobs if j["row"] not in self.done]
+
+    def add(self, result: dict) -> list[str]:
+        """Append one finished row (a :func:`score_row` result), flushed to disk."""
+        row = int(result["row"])
+        if row in self.done:
+            return self.done[row]  # a backend delivered a row twice: write it once
+        values = result.get("values") or {}
+        cells = ([str(row)] + list(self.manifest.cells[row - 1])
+                 + [_cell(values.get(c)) for c in self.manifest.index_columns + (NOTES_COLUMN,)]
+                 + [_cell(result.get("error"))])
+        data = _csv_line(cells).encode("utf-8")
+        assert self._fd is not None
+        view = memoryview(data)
+        while view:
+            n = os.write(self._fd, view)
+            view = view[n:]
+        os.fsync(self._fd)
+        self.done[row] = cells
+        return cells
+
+    def close(self) -> None:
+        if self._fd is not None:
+            with contextlib.suppress(OSError):
+                os.close(self._fd)
+            self._fd = None
+
+    def finish(self) -> None:
+        """All rows done: rewrite the file in manifest order, atomically."""
+        self._rewrite(sort=True)
+        self.close()
+
+    def failures(self) -> list[tuple[int, str]]:
+        return [(r, self.done[r][-1]) for r in sorted(self.done) if self.done[r][-1].strip()]
+
+
+# ---------------------------------------------------------------------------
+# Executors
+# ---------------------------------------------------------------------------
+
+
+def usable_cores() -> int:
+    """Cores this process may run on."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
+
+
+def _worker_init() -> None:
+    """Pool workers leave Ctrl-C to the parent, which stops the batch cleanly."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+def _run_serial(jobs: Sequence[dict]) -> Iterator[dict]:
+    for job in jobs:
+        yield score_row(job)
+
+
+def _run_pool(jobs: Sequence[dict], workers: int) -> Iterator[dict]:
+    import multiprocessing as mp
+    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+    from concurrent.futures.process import BrokenProcessPool
+
+    todo = iter(jobs)
+    window = workers * IN_FLIGHT_PER_WORKER
+    ex = ProcessPoolExecutor(max_workers=workers, mp_context=mp.get_context("spawn"), initializer=_worker_init)
+    try:
+        running: dict = {}
+        for job in todo:
+            running[ex.submit(score_row, job)] = job
+            if len(running) >= window:
+                break
+        while running:
+            finished, _ = wait(running, return_when=FIRST_COMPLETED)
+            for fut in finished:
+                job = running.pop(fut)
+                try:
+                    res = fut.result()
+                except BrokenProcessPool:
+                    raise ComputationError(
+                        f"a worker process died while scoring row {job['row']} (out of memory, or killed)",
+                        "the finished rows are saved: rerun with --resume, with fewer --workers if memory is short",
+                    ) from None
+                yield res
+                nxt = next(todo, None)
+                if nxt is not None:
+                    running[ex.submit(score_row, nxt)] = nxt
+    finally:
+        ex.shutdown(wait=True, cancel_futures=True)
+
+
+def _connect(address: str):
+    try:
+        from distributed import Client
+    except ImportError:
+        raise InputError(
+            "--scheduler needs dask.distributed, which is not installed",
+            "install the cluster extra: pip install 'envpredict[cluster]'",
+        ) from None
+    try:
+        return Client(address, timeout=f"{CONNECT_TIMEOUT_S}s")
+    except (OSError, TimeoutError, ValueError) as e:
+        raise InputError(f"cannot reach the dask scheduler at '{address}' ({type(e).__name__}: {e})",
+                         "check the address (tcp://HOST:PORT) and that the scheduler is running") from None
+
+
+def _run_dask(jobs: Sequence[dict], address: str, info: dict) -> Iterator[dict]:
+    import uuid
+
+    from distributed import as_completed
+
+    client = _connect(address)
+    try:
+        threads = sum(client.nthreads().values())
+        if threads == 0:
+            raise InputError(f"the dask cluster at '{address}' has no workers", "start workers, then rerun")
+        info["workers"] = threads
+        run = uuid.uuid4().hex[:12]
+        todo = iter(jobs)
+        window = max(threads * IN_FLIGHT_PER_WORKER, 8)
+
+        def submit(job):
+            return client.submit(score_row, job, pure=False, key=f"envpredict-row-{run}-{job['row']}")
+
+        futures = {}
+        for job in todo:
+            futures[submit(job)] = job
+            if len(futures) >= window:
+                break
+        ac = as_completed(list(futures))
+        for fut in ac:
+            job = futures.pop(fut)
+            try:
+                res = fut.result()
+            except Exception as e:
+                # score_row never raises: this is the cluster failing (e.g. a worker that
+                # cannot import envpredict, or a lost worker after retries)
+                raise ComputationError(
+                    f"the dask cluster failed on row {job['row']} ({type(e).__name__}: {e})",
+                    "install envpredict on every worker and check the worker logs; the finished rows "
+                    "are saved: rerun with --resume",
+                ) from None
+            yield res
+            nxt = next(todo, None)
+            if nxt is not None:
+                f = submit(nxt)
+                futures[f] = nxt
+                ac.add(f)
+    finally:
+        with contextlib.suppress(Exception):
+            client.cancel(list(futures)) if "futures" in locals() and futures else None
+        with contextlib.suppress(Exception):
+            client.close()
+
+
+# ---------------------------------------------------------------------------
+# The batch
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class BatchSummary:
+    """Outcome of :func:`run_batch`."""
+
+    manifest: str
+    out: str
+    backend: str  # "in-process", "process pool" or "dask"
+    workers: int
+    total: int  # rows in the manifest
+    skipped: int  # rows already in the results file (resume)
+    scored: int  # rows scored in this run (including failed ones)
+    failed: int  # rows of the results file with an error (this run and earlier)
+    seconds: float
+    failures: tuple[tuple[int, str], ...] = field(default=())  # the first few (row, error)
+
+    @property
+    def rows_per_s(self) -> float:
+        return self.scored / self.seconds if self.seconds > 0 else float("nan")
+
+    def to_dict(self) -> dict:
+        from .results import jsonable
+
+        return jsonable({
+            "manifest": self.manifest, "out": self.out, "backend": self.backend, "workers": self.workers,
+            "total": self.total, "skipped": self.skipped, "scored": self.scored, "failed": self.failed,
+            "ok": self.total - self.failed, "seconds": round(self.seconds, 3),
+            "rows_per_s": round(self.rows_per_s, 3) if self.scored else None,
+            "failures": [{"row": r, "error": e} for r, e in self.failures],
+        })
+
+
+def run_batch(
+    manifest: str | os.PathLike | Manifest,
+    out: str | os.PathLike,
+    *,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    resume: bool = False,
+    overwrite: bool = False,
+    retry_failed: bool = False,
+    noise_db: Sequence[float] | str | None = None,
+    speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
+    talker: str = "male",
+    progress: Callable[[int, int], None] | None = None,
+) -> BatchSummary:
+    """Score every row of a manifest into a resumable results CSV file.
+
+    Parameters
+    ----------
+    manifest : path of the manifest CSV (or a :class:`Manifest` from :func:`read_manifest`).
+    out : results CSV file (see the module docstring for its columns and guarantees).
+    workers : local worker processes (default: the usable cores; 1 = in this process).
+    scheduler : address of a dask.distributed scheduler (``tcp://HOST:PORT``); when
+        given, the rows are scored on that cluster and ``workers`` is ignored.
+    resume : keep the rows already in ``out`` and score only the missing ones.
+    overwrite : start ``out`` again even if it exists.
+    retry_failed : with ``resume``, score again the rows that failed before.
+    noise_db, speech_level_dba, talker : defaults for IR rows (see :func:`read_manifest`).
+    progress : called as ``progress(done, total)`` after each row, counting the rows
+        of this run only (``total`` = rows still to score), so that a rate and the
+        time left computed from it are right when resuming.
+
+    Returns
+    -------
+    BatchSummary (``failed > 0`` when any row of the results file has an error).
+
+    Notes
+    -----
+    Results do not depend on the backend or on the number of workers: every row is
+    scored by the same deterministic function of its files.
+    """
+    if workers is not None:
+        try:
+            w = int(workers)
+        except (TypeError, ValueError):
+            raise InputError(f"--workers '{workers}' is not a whole number", "give 1 or more") from None
+        if w < 1:
+            raise InputError(f"--workers {workers} is below 1", "give 1 or more (default: the number of cores)")
+        workers = w
+    if scheduler is not None and not str(scheduler).strip():
+        raise InputError("--scheduler is empty", "give the scheduler address, e.g. tcp://10.0.0.5:8786")
+    if retry_failed and not resume:
+        raise InputError("--retry-failed works only with --resume", "add --resume")
+    if resume and overwrite:
+        raise InputError("--resume and --overwrite contradict each other", "choose one")
+    m = manifest if isinstance(manifest, Manifest) else read_manifest(
+        manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker)
+    writer = ResultWriter.open(out, m, resume=resume, overwrite=overwrite, retry_failed=retry_failed)
+    t0 = time.monotonic()
+    try:
+        jobs = writer.pending()
+        skipped = len(m) - len(jobs)
+        info: dict[str, Any] = {}
+        if scheduler is not None:
+            backend, n_workers = "dask", 0
+            results: Iterable[dict] = _run_dask(jobs, str(scheduler).strip(), info)
+        else:
+            n_workers = workers or usable_cores()
+            n_workers = max(1, min(n_workers, len(jobs))) if jobs else 1
+            if n_workers == 1:
+                backend, results = "in-process", _run_serial(jobs)
+            else:
+                backend, results = "process pool", _run_pool(jobs, n_workers)
+        if progress:
+            progress(0, len(jobs))
+        scored = 0
+        if jobs:
+            for res in results:
+                writer.add(res)
+                scored += 1
+                if progress:
+                    progress(scored, len(jobs))
+        n_workers = info.get("workers", n_workers)
+        writer.finish()
+    finally:
+        writer.close()
+    fails = writer.failures()
+    return BatchSummary(
+        manifest=str(m.path), out=str(out), backend=backend, workers=n_workers, total=len(m),
+        skipped=skipped, scored=scored, failed=len(fails), seconds=time.monotonic() - t0,
+        failures=tuple(fails[:SUMMARY_FAILURES]),
+    )

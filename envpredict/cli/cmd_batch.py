@@ -1,0 +1,157 @@
+"""``envpredict batch`` (score a manifest) and ``envpredict compare`` (compare conditions)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from ._app import app
+from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, note, table
+
+MANIFEST_HELP = ("Manifest CSV: columns 'clean' and 'degraded' (pair rows) or 'ir' (impulse-response rows), "
+                 "paths relative to the manifest; optional 'channel', and for IR rows 'noise', 'speech_level', "
+                 "'sti_talker'; any other columns are carried through to the results.")
+RESULTS_OUT_HELP = ("Results CSV: one line per manifest row, written as each row finishes (safe to kill; "
+                    "finish with --resume).")
+WORKERS_HELP = "Local worker processes (default: the number of cores; 1 = no pool)."
+SCHEDULER_HELP = ("Score on an existing dask.distributed cluster at this address, e.g. tcp://10.0.0.5:8786 "
+                  "(needs pip install 'envpredict[cluster]'; workers must see the files at the same paths).")
+RESUME_HELP = "Keep the rows already in --out and score only the missing ones."
+RETRY_HELP = "With --resume: score again the rows that failed before."
+OVERWRITE_HELP = "Start --out again even if it exists (its rows are discarded)."
+NOISE_HELP = ("Default background noise for IR rows with an empty 'noise' cell: seven octave-band levels, "
+              "dB SPL, 125 Hz to 8 kHz, comma-separated. Default: no noise.")
+LEVEL_HELP = "Default A-weighted speech level for IR rows, dB(A) (default 60)."
+TALKER_HELP = "Default speech spectrum for IR rows: male or female (IEC 60268-16)."
+
+
+def render_summary(d: dict) -> str:
+    lines = []
+    extra = f"; {d['skipped']} were already done" if d["skipped"] else ""
+    rate = f", {d['rows_per_s']:.2f} rows/s" if d.get("rows_per_s") else ""
+    workers = f", {d['workers']} worker(s)" if d["backend"] != "in-process" else ""
+    lines.append(f"Scored {d['scored']} of {d['total']} rows in {d['seconds']:.1f} s "
+                 f"({d['backend']}{workers}{rate}){extra}.")
+    lines.append(f"OK: {d['ok']}   failed: {d['failed']}")
+    if d["failures"]:
+        lines.append("")
+        lines.append("Failed rows (the 'error' column of the results has all of them):")
+        lines.extend(f"  row {f['row']}: {f['error']}" for f in d["failures"])
+    lines.append("")
+    lines.append(f"Results: {d['out']}")
+    return "\n".join(lines)
+
+
+@app.command("batch")
+def batch_command(
+    manifest: Path = typer.Argument(..., help=MANIFEST_HELP, show_default=False),
+    out: Path = typer.Option(..., "--out", help=RESULTS_OUT_HELP, show_default=False),
+    workers: Optional[int] = typer.Option(None, "--workers", help=WORKERS_HELP, show_default=False),
+    scheduler: Optional[str] = typer.Option(None, "--scheduler", help=SCHEDULER_HELP),
+    resume: bool = typer.Option(False, "--resume", help=RESUME_HELP),
+    retry_failed: bool = typer.Option(False, "--retry-failed", help=RETRY_HELP),
+    overwrite: bool = typer.Option(False, "--overwrite", help=OVERWRITE_HELP),
+    noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
+    speech_level: float = typer.Option(60.0, "--speech-level", help=LEVEL_HELP),
+    talker: str = typer.Option("male", "--talker", help=TALKER_HELP),
+    as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
+) -> None:
+    """Score every row of a manifest (STOI/ESTOI/speech-based STI for pairs, STI and T30/EDT for IRs).
+
+    Uses all cores (or a dask cluster), writes each row as it finishes, survives
+    interruption (--resume finishes the rest), and exits non-zero if any row failed.
+    Progress goes to stderr; with --json the summary is one JSON object on stdout.
+    """
+    from envpredict.batch import read_manifest, run_batch
+
+    if workers is not None and workers < 1:
+        from envpredict.exceptions import InputError
+
+        raise InputError(f"--workers {workers} is below 1", "give 1 or more (default: the number of cores)")
+    m = read_manifest(manifest, noise_db=noise, speech_level_dba=speech_level, talker=talker)
+
+    state: dict = {}
+
+    def progress(done: int, total: int) -> None:
+        # rows of this run only, so that the rate and the time left are right on --resume
+        if "bar" not in state:
+            skipped = len(m) - total
+            label = "scoring" + (f" ({skipped} of {len(m)} rows already done)" if skipped else "")
+            state["bar"] = Progress(label, total).__enter__()
+        state["bar"](done, total)
+
+    try:
+        summary = run_batch(m, out, workers=workers, scheduler=scheduler, resume=resume, overwrite=overwrite,
+                            retry_failed=retry_failed, progress=progress)
+    finally:
+        if "bar" in state:
+            state["bar"].__exit__(None, None, None)
+    d = summary.to_dict()
+    emit(d, lambda: render_summary(d), as_json, None)
+    if summary.failed:
+        note(f"error: {summary.failed} of {summary.total} rows failed — see the 'error' column of {out}; "
+             "fix their inputs and rerun with --resume --retry-failed")
+        raise typer.Exit(1)
+
+
+def _signed(v, spec: str = "+.3f") -> str:
+    return fmt(v, spec)
+
+
+def _p(v) -> str:
+    if v is None:
+        return "—"
+    return "<0.0001" if v < 1e-4 else f"{v:.4f}"
+
+
+def render_comparison(d: dict) -> str:
+    lines = [
+        f"Index: {d['index']}   conditions: column '{d['by']}'   baseline: {d['baseline']}",
+        f"Items matched on: {', '.join(d['pair_on'])}",
+        f"Difference = condition - baseline, mean over matched items; {d['ci_method']} bootstrap "
+        f"{100 * d['confidence']:g} % interval ({d['n_resamples']} resamples, seed {d['seed']}); "
+        "two-sided Wilcoxon signed-rank p.",
+        "",
+    ]
+    rows = []
+    for c in d["conditions"]:
+        base = c["verdict"] == "baseline"
+        ci = "—" if c["ci_low"] is None else f"[{c['ci_low']:+.3f}, {c['ci_high']:+.3f}]"
+        rows.append([c["name"], str(c["n"]), fmt(c["mean"], ".3f"), "—" if base else _signed(c["diff"]), ci,
+                     _p(c["p_value"]), _p(c["p_holm"]), c["verdict"]])
+    lines.append(table(rows, ["condition", "n", "mean", "diff", "95 % CI" if d["confidence"] == 0.95 else "CI",
+                              "p", "p (Holm)", "verdict"]))
+    if d["notes"]:
+        lines.append("")
+        lines.append("Notes:")
+        lines.extend(f"  - {n}" for n in d["notes"])
+    return "\n".join(lines)
+
+
+@app.command("compare")
+def compare_command(
+    results: Path = typer.Argument(..., help="Results CSV written by 'envpredict batch'.", show_default=False),
+    by: str = typer.Option(..., "--by", help="Column naming the condition, e.g. condition.", show_default=False),
+    baseline: str = typer.Option(..., "--baseline", help="The condition the others are compared with.",
+                                 show_default=False),
+    index: Optional[str] = typer.Option(None, "--index",
+                                        help="Numeric column to compare (default: sti or stoi)."),
+    pair_on: Optional[str] = typer.Option(
+        None, "--pair-on",
+        help=("Column(s) identifying an item across conditions, comma-separated (default: every column "
+              "except --by, the result columns and 'degraded'/'ir')."),
+    ),
+    as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
+    out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
+) -> None:
+    """Per condition: mean index, paired difference to the baseline, bootstrap 95 % CI, Wilcoxon p."""
+    from envpredict.batch import read_results
+    from envpredict.stats import compare_conditions
+
+    columns, rows = read_results(results)
+    res = compare_conditions(rows, by=by, baseline=baseline, index=index, pair_on=pair_on, columns=columns)
+    d = res.to_dict()
+    d["input"] = str(results)
+    emit(d, lambda: render_comparison(d), as_json, out)

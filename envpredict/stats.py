@@ -1,0 +1,401 @@
+"""Paired comparison of conditions in a results table: does condition B beat baseline A?
+
+For every condition of a grouping column (``by``), the items scored under both that
+condition and the baseline are matched on item columns (``pair_on``); the paired
+differences d_i = index(condition, item i) - index(baseline, item i) give
+
+* ``diff`` -- the mean paired difference;
+* ``ci_low``, ``ci_high`` -- a bootstrap confidence interval of that mean (BCa by
+  default: Efron 1987; Efron & Tibshirani 1993, ch. 14; or the percentile interval,
+  ch. 13), from :data:`BOOTSTRAP_RESAMPLES` resamples of the items with the fixed
+  seed :data:`BOOTSTRAP_SEED`, so the same table always gives the same interval;
+* ``p_value`` -- the two-sided Wilcoxon signed-rank test of the differences
+  (Wilcoxon 1945; ``scipy.stats.wilcoxon``, zero differences discarded, exact
+  distribution for small samples without ties, normal approximation otherwise);
+* ``p_holm`` -- the same p-values adjusted for testing several conditions against
+  one baseline (Holm 1979 step-down), and a plain-words ``verdict``.
+
+Matching (``pair_on``): by default an item is identified by all columns of the
+table except the ``by`` column, the result columns written by ``envpredict batch``
+(``row``, ``error`` and the index columns) and the per-condition input files
+(``degraded``, ``ir``); for a manifest ``clean,degraded,condition,talker`` that is
+(``clean``, ``talker``). Give ``pair_on`` explicitly (one or more columns) when
+other columns vary with the condition. Rows with an error or an empty index cell
+are left out. Each item may appear only once per condition.
+
+Sources: B. Efron, "Better bootstrap confidence intervals", JASA 82 (1987);
+B. Efron, R. J. Tibshirani, *An Introduction to the Bootstrap*, Chapman & Hall
+1993; F. Wilcoxon, "Individual comparisons by ranking methods", Biometrics
+Bulletin 1 (1945); S. Holm, "A simple sequentially rejective multiple test
+procedure", Scand. J. Statist. 6 (1979).
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+from typing import Any, Mapping, Sequence
+
+import numpy as np
+
+from .batch import DEGRADED_COLUMN, ERROR_COLUMN, IR_COLUMN, RESULT_COLUMNS
+from .exceptions import InputError
+from .results import jsonable
+
+#: Bootstrap resamples. Efron & Tibshirani (1993, sec. 19.3) advise at least 1000 for
+#: a percentile/BCa interval; 10000 keeps the Monte-Carlo error of the interval ends
+#: below about 1 % of the interval width (judgement).
+BOOTSTRAP_RESAMPLES: int = 10000
+#: Fixed seed of the bootstrap generator (numpy PCG64): repeatable intervals.
+BOOTSTRAP_SEED: int = 20240601
+#: Confidence level of the interval (convention).
+CONFIDENCE: float = 0.95
+#: Significance level of the verdict (convention).
+ALPHA: float = 0.05
+#: Index columns tried, in this order, when none is named.
+DEFAULT_INDICES: tuple[str, ...] = ("sti", "stoi")
+#: Resampled values generated at once (memory bound of the bootstrap, judgement).
+_CHUNK_VALUES: int = 2_000_000
+
+
+def _norm_ppf(p: float) -> float:
+    from scipy.special import ndtri
+
+    return float(ndtri(p))
+
+
+def _norm_cdf(z: float) -> float:
+    from scipy.special import ndtr
+
+    return float(ndtr(z))
+
+
+def bootstrap_mean_ci(
+    d: Sequence[float] | np.ndarray,
+    *,
+    confidence: float = CONFIDENCE,
+    n_resamples: int = BOOTSTRAP_RESAMPLES,
+    seed: int = BOOTSTRAP_SEED,
+    method: str = "BCa",
+) -> tuple[float, float]:
+    """Bootstrap confidence interval of the mean of ``d``.
+
+    Percentile interval: the ``(1-confidence)/2`` and ``(1+confidence)/2`` quantiles of
+    the means of ``n_resamples`` resamples (with replacement, same size) of ``d``
+    (Efron & Tibshirani 1993, ch. 13). BCa interval: the same bootstrap distribution
+    read at quantiles corrected for bias z0 = Phi^-1(share of resampled means below
+    the sample mean, ties counted half) and acceleration a from the jackknife,
+    a = sum((m - m_i)^3) / (6 (sum((m - m_i)^2))^1.5) (Efron 1987; Efron & Tibshirani
+    1993, eqs. 14.9-14.15).
+
+    Parameters
+    ----------
+    d : the sample (e.g. paired differences), at least 2 finite values.
+    confidence : in (0, 1).
+    n_resamples : number of bootstrap resamples (>= 100).
+    seed : seed of the numpy generator.
+    method : ``"BCa"`` or ``"percentile"``.
+
+    Returns
+    -------
+    (low, high). When all values are equal the interval is that value.
+    """
+    x = np.asarray(d, dtype=float).ravel()
+    if x.size < 2 or not np.all(np.isfinite(x)):
+        raise InputError(f"a bootstrap interval needs at least 2 finite values ({x.size} given)",
+                         "compare conditions with more matched items")
+    if not 0.0 < confidence < 1.0:
+        raise InputError(f"confidence {confidence} is outside (0, 1)", "give e.g. 0.95")
+    if int(n_resamples) < 100:
+        raise InputError(f"{n_resamples} bootstrap resamples are too few", "use 1000 or more")
+    m = method.lower()
+    if m not in ("bca", "percentile"):
+        raise InputError(f"unknown bootstrap method '{method}'", "use BCa or percentile")
+    theta = float(np.mean(x))
+    if np.ptp(x) == 0.0:
+        return theta, theta
+    n, B = x.size, int(n_resamples)
+    rng = np.random.default_rng(seed)
+    boot = np.empty(B)
+    step = max(1, _CHUNK_VALUES // n)
+    for s in range(0, B, step):
+        k = min(step, B - s)
+        idx = rng.integers(0, n, size=(k, n))
+        boot[s:s + k] = x[idx].mean(axis=1)
+    alpha = (1.0 - confidence) / 2.0
+    lo_q, hi_q = alpha, 1.0 - alpha
+    if m == "bca":
+        share = (np.count_nonzero(boot < theta) + np.count_nonzero(boot <= theta)) / (2.0 * B)
+        if 0.0 < share < 1.0:
+            z0 = _norm_ppf(share)
+            jack = (n * theta - x) / (n - 1)  # leave-one-out means
+            dev = jack.mean() - jack
+            den = 6.0 * float(np.sum(dev * dev)) ** 1.5
+            a = float(np.sum(dev ** 3)) / den if den > 0 else 0.0
+            qs = []
+            for q in (alpha, 1.0 - alpha):
+                zq = _norm_ppf(q)
+                qs.append(_norm_cdf(z0 + (z0 + zq) / (1.0 - a * (z0 + zq))))
+            lo_q, hi_q = qs
+        # share 0 or 1: the sample mean lies outside the bootstrap distribution (tiny
+        # samples); the bias correction is undefined and the percentile interval is used
+    low, high = np.quantile(boot, [lo_q, hi_q])
+    return float(low), float(high)
+
+
+def holm(p_values: Sequence[float | None]) -> list[float | None]:
+    """Holm (1979) step-down adjusted p-values; ``None`` entries stay ``None``."""
+    idx = [i for i, p in enumerate(p_values) if p is not None and math.isfinite(p)]
+    out: list[float | None] = [None] * len(p_values)
+    m = len(idx)
+    running = 0.0
+    for rank, i in enumerate(sorted(idx, key=lambda j: p_values[j])):
+        running = max(running, min(1.0, (m - rank) * float(p_values[i])))
+        out[i] = running
+    return out
+
+
+def wilcoxon_p(d: Sequence[float] | np.ndarray) -> float | None:
+    """Two-sided Wilcoxon signed-rank p-value of paired differences (scipy.stats.wilcoxon).
+
+    ``None`` when it is undefined (no non-zero difference).
+    """
+    from scipy import stats
+
+    x = np.asarray(d, dtype=float).ravel()
+    if np.count_nonzero(x) == 0:
+        return None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            p = float(stats.wilcoxon(x).pvalue)
+        except ValueError:
+            return None
+    return p if math.isfinite(p) else None
+
+
+@dataclass(frozen=True)
+class ConditionStats:
+    """One condition compared with the baseline.
+
+    ``n``: matched items (for the baseline itself: its usable rows); ``n_rows``: usable
+    rows of the condition; ``mean``: mean index over those rows; ``diff``: mean paired
+    difference to the baseline over the matched items; ``ci_low``/``ci_high``:
+    bootstrap interval of ``diff``; ``p_value``: Wilcoxon signed-rank; ``p_holm``:
+    Holm-adjusted; ``verdict``: "higher", "lower", "no clear difference" or
+    "baseline".
+    """
+
+    name: str
+    n: int
+    n_rows: int
+    mean: float
+    diff: float | None
+    ci_low: float | None
+    ci_high: float | None
+    p_value: float | None
+    p_holm: float | None
+    verdict: str
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "name": self.name, "n": self.n, "n_rows": self.n_rows, "mean": self.mean, "diff": self.diff,
+            "ci_low": self.ci_low, "ci_high": self.ci_high, "p_value": self.p_value,
+            "p_holm": self.p_holm, "verdict": self.verdict,
+        })
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """Result of :func:`compare_conditions`."""
+
+    index: str
+    by: str
+    baseline: str
+    pair_on: tuple[str, ...]
+    conditions: tuple[ConditionStats, ...]
+    ci_method: str = "BCa"
+    n_resamples: int = BOOTSTRAP_RESAMPLES
+    seed: int = BOOTSTRAP_SEED
+    confidence: float = CONFIDENCE
+    skipped_rows: int = 0  # rows without a usable index value (error or empty)
+    notes: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "index": self.index, "by": self.by, "baseline": self.baseline, "pair_on": list(self.pair_on),
+            "ci_method": self.ci_method, "n_resamples": self.n_resamples, "seed": self.seed,
+            "confidence": self.confidence, "alpha": ALPHA, "skipped_rows": self.skipped_rows,
+            "conditions": [c.to_dict() for c in self.conditions], "notes": list(self.notes),
+        })
+
+
+def _number(v: Any) -> float | None:
+    if v is None:
+        return None
+    if isinstance(v, (int, float, np.floating, np.integer)):
+        f = float(v)
+    else:
+        s = str(v).strip()
+        if not s:
+            return None
+        try:
+            f = float(s)
+        except ValueError:
+            return None
+    return f if math.isfinite(f) else None
+
+
+def default_pair_on(columns: Sequence[str], by: str, index: str) -> tuple[str, ...]:
+    """Item columns used when ``pair_on`` is not given (see the module docstring)."""
+    skip = set(RESULT_COLUMNS) | {by, index, DEGRADED_COLUMN, IR_COLUMN}
+    return tuple(c for c in columns if c not in skip)
+
+
+def compare_conditions(
+    rows: Sequence[Mapping[str, Any]],
+    *,
+    by: str,
+    baseline: str,
+    index: str | None = None,
+    pair_on: str | Sequence[str] | None = None,
+    columns: Sequence[str] | None = None,
+    confidence: float = CONFIDENCE,
+    n_resamples: int = BOOTSTRAP_RESAMPLES,
+    seed: int = BOOTSTRAP_SEED,
+    ci_method: str = "BCa",
+) -> Comparison:
+    """Compare every condition of column ``by`` with the ``baseline`` condition, paired by item.
+
+    Parameters
+    ----------
+    rows : the results table, one mapping (column -> value or cell text) per row, e.g.
+        from :func:`envpredict.batch.read_results`.
+    by : the column naming the condition.
+    baseline : the condition the others are compared with (a value of ``by``).
+    index : the numeric column compared (default: ``sti`` or ``stoi``, whichever has
+        values; both present -> it must be named).
+    pair_on : column(s) identifying an item across conditions (see the module
+        docstring for the default).
+    columns : column order of the table (default: the keys of the first row).
+    confidence, n_resamples, seed, ci_method : of the bootstrap interval
+        (:func:`bootstrap_mean_ci`).
+
+    Returns
+    -------
+    Comparison, the baseline first, then the other conditions in order of first
+    appearance. A condition with fewer than 2 matched items gets no interval and no
+    p-value (verdict "no clear difference").
+    """
+    if not rows:
+        raise InputError("the results table has no rows", "score a manifest with 'envpredict batch' first")
+    cols = list(columns) if columns is not None else list(rows[0].keys())
+    if by not in cols:
+        raise InputError(f"column '{by}' (--by) is not in the results", f"use one of: {', '.join(cols)}")
+    if index is None:
+        found = [c for c in DEFAULT_INDICES if c in cols and any(_number(r.get(c)) is not None for r in rows)]
+        if not found:
+            raise InputError("no index column (sti or stoi) with values in the results",
+                             "name the column to compare with --index")
+        if len(found) > 1:
+            raise InputError(f"the results hold both {' and '.join(found)}",
+                             "choose the index to compare with --index")
+        index = found[0]
+    if index not in cols:
+        raise InputError(f"column '{index}' (--index) is not in the results", f"use one of: {', '.join(cols)}")
+    if index == by:
+        raise InputError(f"--index and --by are the same column '{by}'", "compare an index across conditions")
+    if pair_on is None:
+        keys = default_pair_on(cols, by, index)
+    else:
+        if isinstance(pair_on, str):
+            keys = tuple(k.strip() for k in pair_on.split(",") if k.strip())
+        else:
+            keys = tuple(str(k) for k in pair_on)
+        for k in keys:
+            if k not in cols:
+                raise InputError(f"column '{k}' (--pair-on) is not in the results", f"use one of: {', '.join(cols)}")
+            if k in (by, index):
+                raise InputError(f"--pair-on column '{k}' is the --by or --index column",
+                                 "pair on the column(s) that identify an item, e.g. the clean file")
+    if not keys:
+        raise InputError("no column is left to identify items across conditions",
+                         "name the item column with --pair-on")
+
+    values: dict[str, dict[tuple, float]] = {}
+    order: list[str] = []
+    skipped = 0
+    for r in rows:
+        cond = str(r.get(by, "")).strip()
+        if cond not in values:
+            values[cond] = {}
+            order.append(cond)
+        v = _number(r.get(index))
+        if str(r.get(ERROR_COLUMN, "") or "").strip() or v is None:
+            skipped += 1
+            continue
+        key = tuple(str(r.get(k, "")) for k in keys)
+        if key in values[cond]:
+            raise InputError(
+                f"condition '{cond}' has more than one row for the item "
+                + ", ".join(f"{k}={val!r}" for k, val in zip(keys, key)),
+                "name the column(s) that identify one item with --pair-on",
+            )
+        values[cond][key] = v
+    baseline = str(baseline).strip()
+    if baseline not in values:
+        raise InputError(f"baseline '{baseline}' is not a value of column '{by}'",
+                         f"use one of: {', '.join(order)}")
+    if not values[baseline]:
+        raise InputError(f"the baseline '{baseline}' has no usable '{index}' values",
+                         "check the error column of the results")
+
+    base = values[baseline]
+    notes: list[str] = []
+    if skipped:
+        notes.append(f"{skipped} row(s) without a usable {index} value (error or empty cell) were left out.")
+    raw: list[dict] = []
+    for cond in [baseline] + [c for c in order if c != baseline]:
+        vals = values[cond]
+        mean = float(np.mean(list(vals.values()))) if vals else float("nan")
+        if cond == baseline:
+            raw.append(dict(name=cond, n=len(vals), n_rows=len(vals), mean=mean, diff=0.0, ci_low=None,
+                            ci_high=None, p_value=None))
+            continue
+        common = [k for k in vals if k in base]
+        d = np.array([vals[k] - base[k] for k in common], dtype=float)
+        entry = dict(name=cond, n=len(common), n_rows=len(vals), mean=mean,
+                     diff=float(np.mean(d)) if d.size else None, ci_low=None, ci_high=None, p_value=None)
+        if d.size == 0:
+            notes.append(f"No item of '{cond}' matches the baseline on ({', '.join(keys)}): give --pair-on "
+                         "with the column(s) that identify an item.")
+        elif d.size < 2:
+            notes.append(f"'{cond}' has only {d.size} matched item: no interval or test.")
+        else:
+            entry["ci_low"], entry["ci_high"] = bootstrap_mean_ci(
+                d, confidence=confidence, n_resamples=n_resamples, seed=seed, method=ci_method)
+            entry["p_value"] = wilcoxon_p(d)
+            if d.size < 10:
+                notes.append(f"'{cond}' has only {d.size} matched items: the interval and p-value are rough.")
+        if len(common) < len(vals) or len(common) < len(base):
+            notes.append(f"'{cond}': {len(common)} item(s) matched; {len(vals) - len(common)} of its rows and "
+                         f"{len(base) - len(common)} baseline rows have no partner.")
+        raw.append(entry)
+    adj = holm([e["p_value"] for e in raw])
+    out = []
+    for e, ph in zip(raw, adj):
+        if e["name"] == baseline:
+            verdict = "baseline"
+        elif (ph is not None and ph < ALPHA and e["ci_low"] is not None
+              and (e["ci_low"] > 0 or e["ci_high"] < 0)):
+            verdict = "higher" if e["diff"] > 0 else "lower"
+        else:
+            verdict = "no clear difference"
+        out.append(ConditionStats(p_holm=ph, verdict=verdict, **e))
+    if len(out) > 2:
+        notes.append("p_holm adjusts the p-values for comparing several conditions with one baseline (Holm).")
+    return Comparison(index=index, by=by, baseline=baseline, pair_on=keys, conditions=tuple(out),
+                      ci_method="BCa" if ci_method.lower() == "bca" else "percentile",
+                      n_resamples=int(n_resamples), seed=int(seed), confidence=float(confidence),
+                      skipped_rows=skipped, notes=tuple(notes))

@@ -1,0 +1,438 @@
+"""Tests of envpredict.batch and the ``batch`` command: manifests, backends, resume, kill safety."""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from envpredict import batch
+from envpredict.batch import read_manifest, read_results, run_batch, score_row
+from envpredict.cli import main
+from envpredict.exceptions import InputError
+
+IR_FS = 24000  # lowest common rate with room for the 8 kHz octave band (fast tests)
+IR_SECONDS = 1.5
+PAIR_FS = 16000
+PAIR_SECONDS = 3.5  # the speech-based STI needs at least 3 s of common part
+N_IR_ROWS = 30
+
+
+def _exp_ir(rng: np.random.Generator, t60: float, fs: int = IR_FS, seconds: float = IR_SECONDS) -> np.ndarray:
+    """Exponentially decaying noise: energy falls 60 dB in ``t60`` seconds (Schroeder 1965 model)."""
+    t = np.arange(int(seconds * fs)) / fs
+    x = rng.standard_normal(t.size) * 10.0 ** (-3.0 * t / t60)  # amplitude: -60 dB at t60
+    return 0.3 * x / np.max(np.abs(x))
+
+
+def _write_csv(path: Path, header: list[str], rows: list[list]) -> Path:
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh)
+        w.writerow(header)
+        w.writerows(rows)
+    return path
+
+
+@pytest.fixture(scope="module")
+def ir_corpus(tmp_path_factory) -> dict:
+    """A manifest of N_IR_ROWS impulse responses: 10 positions x 3 treatment conditions."""
+    d = tmp_path_factory.mktemp("ir_corpus")
+    (d / "irs").mkdir()
+    rng = np.random.default_rng(7)
+    rows, t60s = [], []
+    conds = {"untreated": 1.2, "panels": 0.8, "panels+ceiling": 0.5}
+    for i in range(N_IR_ROWS):
+        cond = list(conds)[i % 3]
+        t60 = conds[cond] * (1.0 + 0.02 * (i // 3))
+        name = f"irs/pos{i // 3:02d}_{i % 3}.wav"
+        sf.write(d / name, _exp_ir(rng, t60), IR_FS, subtype="FLOAT")
+        rows.append([name, cond, f"P{i // 3:02d}", "12,3"])  # a quoted cell with a comma is carried through
+        t60s.append(t60)
+    manifest = _write_csv(d / "manifest.csv", ["ir", "condition", "position", "note"], rows)
+    ref = d / "reference.csv"
+    run_batch(manifest, ref, workers=1)
+    return {"dir": d, "manifest": manifest, "reference": ref, "t60": t60s}
+
+
+def _cli(args: list[str]) -> int:
+    """Run the CLI in this process; return its exit code."""
+    try:
+        main(args)
+    except SystemExit as e:
+        return int(e.code or 0)
+    return 0
+
+
+def _numeric_equal(a: Path, b: Path, tol: float = 1e-9) -> None:
+    ca, ra = read_results(a)
+    cb, rb = read_results(b)
+    assert ca == cb
+    assert len(ra) == len(rb)
+    for x, y in zip(ra, rb):
+        for c in ca:
+            if c in batch.NUMERIC_INDEX_COLUMNS and x[c]:
+                assert abs(float(x[c]) - float(y[c])) <= tol, (c, x, y)
+            else:
+                assert x[c] == y[c], (c, x, y)
+
+
+# ---------------------------------------------------------------------------
+# Values
+# ---------------------------------------------------------------------------
+
+
+def test_ir_rows_match_the_api_and_the_designed_decay(ir_corpus):
+    from envpredict.audio import load_audio
+    from envpredict.indirect import sti_from_ir
+
+    cols, rows = read_results(ir_corpus["reference"])
+    assert cols == ("row", "ir", "condition", "position", "note", "sti", "rating", "t30_mid", "edt_mid",
+                    "notes", "error")
+    assert [int(r["row"]) for r in rows] == list(range(1, N_IR_ROWS + 1))  # manifest order at the end
+    assert all(r["note"] == "12,3" and not r["error"] for r in rows)
+    # ISO 3382-1: T30 and EDT of an exponential decay are its 60 dB decay time (analytic);
+    # a noise-carrier response scatters around it (a few %, more for EDT's 10 dB range),
+    # so each row gets a loose bound and the mean over the 30 rows a tight one
+    t30 = np.array([float(r["t30_mid"]) for r in rows]) / ir_corpus["t60"]
+    edt = np.array([float(r["edt_mid"]) for r in rows]) / ir_corpus["t60"]
+    assert np.all(np.abs(t30 - 1) < 0.10) and abs(t30.mean() - 1) < 0.02
+    assert np.all(np.abs(edt - 1) < 0.20) and abs(edt.mean() - 1) < 0.05
+    # the row is exactly what the public API gives for that file
+    x, fs = load_audio(ir_corpus["dir"] / rows[4]["ir"])
+    res = sti_from_ir(x, fs)
+    assert float(rows[4]["sti"]) == res.sti.sti
+    assert rows[4]["rating"] == res.sti.rating
+    # more reverberation never raises the STI (Houtgast & Steeneken: m(F) falls with T)
+    by_pos: dict[str, dict[str, float]] = {}
+    for r in rows:
+        by_pos.setdefault(r["position"], {})[r["condition"]] = float(r["sti"])
+    for v in by_pos.values():
+        assert v["untreated"] < v["panels"] < v["panels+ceiling"]
+
+
+def _speechlike(rng: np.random.Generator, n: int, fs: int) -> np.ndarray:
+    t = np.arange(n) / fs
+    env = (1 + 0.9 * np.sin(2 * np.pi * 4 * t)) * (1 + 0.5 * np.sin(2 * np.pi * 1.3 * t + 1.0))
+    return 0.05 * rng.standard_normal(n) * env
+
+
+def test_pair_rows_score_stoi_estoi_ssti(tmp_path):
+    from pystoi import stoi
+
+    from envpredict.pair import pair_from_files
+
+    rng = np.random.default_rng(3)
+    n = int(PAIR_SECONDS * PAIR_FS)
+    rows = []
+    sigs = {}
+    for item in range(2):
+        clean = _speechlike(rng, n, PAIR_FS)
+        sf.write(tmp_path / f"c{item}.wav", clean, PAIR_FS, subtype="FLOAT")
+        for snr in (0, 10):
+            deg = clean + 0.05 * 10 ** (-snr / 20) * rng.standard_normal(n)
+            name = f"d{item}_{snr}.wav"
+            sf.write(tmp_path / name, deg, PAIR_FS, subtype="FLOAT")
+            rows.append([f"c{item}.wav", name, f"snr{snr}", f"u{item}"])
+            sigs[name] = (clean, deg)
+    rows.append(["c0.wav", "missing.wav", "snr0", "u9"])
+    m = _write_csv(tmp_path / "pairs.csv", ["clean", "degraded", "condition", "utterance"], rows)
+    out = tmp_path / "r.csv"
+    s = run_batch(m, out, workers=1)
+    assert (s.total, s.scored, s.failed) == (5, 5, 1)
+    cols, res = read_results(out)
+    assert cols[-6:] == ("stoi", "estoi", "ssti", "delay_ms", "notes", "error")
+    for r in res[:4]:
+        assert not r["error"]
+        clean, deg = sigs[r["degraded"]]
+        # reference library: pystoi (Taal 2011 / Jensen 2016), zero delay
+        assert float(r["stoi"]) == pytest.approx(stoi(clean, deg, PAIR_FS), abs=1e-3)
+        assert float(r["estoi"]) == pytest.approx(stoi(clean, deg, PAIR_FS, extended=True), abs=1e-3)
+        assert float(r["delay_ms"]) == 0.0
+        direct = pair_from_files(tmp_path / r["clean"], tmp_path / r["degraded"])
+        assert float(r["ssti"]) == direct.ssti
+    assert float(res[1]["stoi"]) > float(res[0]["stoi"])  # 10 dB SNR beats 0 dB
+    assert "does not exist" in res[4]["error"] and res[4]["stoi"] == ""
+
+
+# ---------------------------------------------------------------------------
+# Backends give identical results
+# ---------------------------------------------------------------------------
+
+
+def test_process_pool_equals_one_worker(ir_corpus, tmp_path):
+    out = tmp_path / "pool.csv"
+    s = run_batch(ir_corpus["manifest"], out, workers=2)
+    assert (s.backend, s.workers, s.scored, s.failed) == ("process pool", 2, N_IR_ROWS, 0)
+    _numeric_equal(out, ir_corpus["reference"])
+    assert out.read_text() == ir_corpus["reference"].read_text()  # even the text is the same
+
+
+def test_dask_cluster_equals_one_worker(ir_corpus, tmp_path):
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                                  dashboard_address=None) as cluster:
+        out = tmp_path / "dask.csv"
+        s = run_batch(ir_corpus["manifest"], out, scheduler=cluster.scheduler_address)
+    assert (s.backend, s.workers, s.scored, s.failed) == ("dask", 2, N_IR_ROWS, 0)
+    _numeric_equal(out, ir_corpus["reference"])
+
+
+def test_unreachable_scheduler_is_an_input_error(ir_corpus, tmp_path, monkeypatch):
+    pytest.importorskip("distributed")
+    monkeypatch.setattr(batch, "CONNECT_TIMEOUT_S", 1.0)
+    with pytest.raises(InputError, match="cannot reach the dask scheduler"):
+        run_batch(ir_corpus["manifest"], tmp_path / "x.csv", scheduler="tcp://127.0.0.1:9")
+
+
+# ---------------------------------------------------------------------------
+# Never lose work
+# ---------------------------------------------------------------------------
+
+
+def _data_lines(path: Path) -> int:
+    try:
+        return max(0, path.read_bytes().count(b"\n") - 1)
+    except FileNotFoundError:
+        return 0
+
+
+@pytest.mark.parametrize("workers", [1, 2])
+def test_sigkill_then_resume_equals_uninterrupted_run(ir_corpus, tmp_path, workers):
+    out = tmp_path / "killed.csv"
+    cmd = [sys.executable, "-c", "from envpredict.cli import main; main()", "batch", str(ir_corpus["manifest"]),
+           "--out", str(out), "--workers", str(workers)]
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, start_new_session=True)
+    try:
+        deadline = time.monotonic() + 60
+        while _data_lines(out) < 3 and proc.poll() is None and time.monotonic() < deadline:
+            time.sleep(0.005)
+    finally:
+        # the whole process group we started (the batch and its pool workers)
+        os.killpg(proc.pid, signal.SIGKILL)
+        proc.wait()
+    assert proc.returncode == -signal.SIGKILL, proc.stderr.read().decode()
+    proc.stderr.close()
+    kept = _data_lines(out)
+    assert 3 <= kept < N_IR_ROWS, "the batch finished before it could be killed"
+    # the killed file is a readable CSV of finished rows (completion order)
+    _, rows = read_results(out)
+    assert all(not r["error"] for r in rows) and len({r["row"] for r in rows}) == len(rows)
+    code = _cli(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume", "--workers", str(workers),
+                 "--json"])
+    assert code == 0
+    _numeric_equal(out, ir_corpus["reference"])
+    assert out.read_text() == ir_corpus["reference"].read_text()  # zero lost, zero duplicated, in order
+
+
+def test_resume_drops_a_torn_last_line(ir_corpus, tmp_path):
+    ref = ir_corpus["reference"].read_text().splitlines(keepends=True)
+    out = tmp_path / "torn.csv"
+    # a state a power cut could leave: header, rows in completion order, half a line
+    kept = [ref[0]] + ref[9:3:-1] + [ref[20][: len(ref[20]) // 2]]
+    out.write_text("".join(kept))
+    s = run_batch(ir_corpus["manifest"], out, workers=1, resume=True)
+    assert (s.skipped, s.scored) == (6, N_IR_ROWS - 6)
+    assert out.read_text() == ir_corpus["reference"].read_text()
+
+
+def test_resume_after_a_kill_during_the_header(ir_corpus, tmp_path):
+    out = tmp_path / "header.csv"
+    out.write_text("row,ir,cond")  # torn header, no newline
+    s = run_batch(ir_corpus["manifest"], out, workers=1, resume=True)
+    assert s.scored == N_IR_ROWS
+    assert out.read_text() == ir_corpus["reference"].read_text()
+
+
+def test_resume_of_a_finished_file_scores_nothing(ir_corpus, tmp_path):
+    out = tmp_path / "done.csv"
+    out.write_text(ir_corpus["reference"].read_text())
+    s = run_batch(ir_corpus["manifest"], out, resume=True)
+    assert (s.skipped, s.scored, s.failed) == (N_IR_ROWS, 0, 0)
+    assert out.read_text() == ir_corpus["reference"].read_text()
+
+
+def test_existing_results_are_never_overwritten_silently(ir_corpus, tmp_path):
+    out = tmp_path / "r.csv"
+    out.write_text(ir_corpus["reference"].read_text())
+    with pytest.raises(InputError, match="already exists.*--resume"):
+        run_batch(ir_corpus["manifest"], out)
+    assert out.read_text() == ir_corpus["reference"].read_text()
+
+
+def test_resume_refuses_a_changed_manifest(ir_corpus, tmp_path):
+    lines = ir_corpus["manifest"].read_text().splitlines(keepends=True)
+    lines[3] = lines[3].replace("panels", "curtains")
+    m2 = ir_corpus["dir"] / "changed.csv"
+    m2.write_text("".join(lines))
+    out = tmp_path / "r.csv"
+    out.write_text(ir_corpus["reference"].read_text())
+    with pytest.raises(InputError, match="row 3 does not match row 3"):
+        run_batch(m2, out, resume=True)
+    other = _write_csv(tmp_path / "other.csv", ["ir", "room"], [[str(ir_corpus["dir"] / "irs/pos00_0.wav"), "x"]])
+    with pytest.raises(InputError, match="other columns"):
+        run_batch(other, out, resume=True)
+
+
+def test_a_second_writer_is_refused(ir_corpus, tmp_path):
+    m = read_manifest(ir_corpus["manifest"])
+    w = batch.ResultWriter.open(tmp_path / "r.csv", m)
+    try:
+        with pytest.raises(InputError, match="another batch run"):
+            batch.ResultWriter.open(tmp_path / "r.csv", m, resume=True)
+    finally:
+        w.close()
+
+
+def test_bad_rows_are_recorded_and_the_batch_goes_on(tmp_path):
+    rng = np.random.default_rng(1)
+    sf.write(tmp_path / "good.wav", _exp_ir(rng, 0.6), IR_FS, subtype="FLOAT")
+    sf.write(tmp_path / "short.wav", _exp_ir(rng, 0.1, seconds=0.3), IR_FS, subtype="FLOAT")
+    sf.write(tmp_path / "silent.wav", np.zeros(IR_FS), IR_FS)
+    (tmp_path / "junk.wav").write_bytes(b"this is not audio" * 10)
+    rows = [["good.wav", "a"], ["missing.wav", "b"], ["short.wav", "c"], ["silent.wav", "d"], ["junk.wav", "e"],
+            ["good.wav", "f"]]
+    m = _write_csv(tmp_path / "m.csv", ["ir", "label"], rows)
+    out = tmp_path / "r.csv"
+    assert _cli(["batch", str(m), "--out", str(out), "--workers", "2", "--json"]) == 1  # rows failed
+    _, res = read_results(out)
+    errors = [r["error"] for r in res]
+    assert errors[0] == "" and errors[5] == "" and res[0]["sti"] == res[5]["sti"] != ""
+    assert "does not exist" in errors[1]
+    assert "0.79 s" in errors[2] or "long" in errors[2]
+    assert "silent" in errors[3]
+    assert "not a readable audio file" in errors[4]
+    assert all(r["sti"] == "" for r in res[1:5])
+    # fix one input, then retry only the failed rows
+    sf.write(tmp_path / "missing.wav", _exp_ir(rng, 0.6), IR_FS, subtype="FLOAT")
+    s = run_batch(m, out, resume=True, retry_failed=True, workers=1)
+    assert (s.skipped, s.scored, s.failed) == (2, 4, 3)
+    _, res2 = read_results(out)
+    assert len(res2) == 6 and res2[1]["error"] == "" and res2[1]["sti"] != ""
+
+
+def test_score_row_never_raises_and_is_picklable():
+    import pickle
+
+    job = {"row": 4, "kind": "ir", "ir": "/nonexistent/x.wav", "channel": None, "noise": None,
+           "speech_level": 60.0, "talker": "male"}
+    fn = pickle.loads(pickle.dumps(score_row))
+    r = fn(job)
+    assert r["row"] == 4 and r["values"] == {} and "does not exist" in r["error"]
+    r = score_row({"row": 5, "kind": "ir"})  # malformed job: a bug, reported, not raised
+    assert r["row"] == 5 and r["error"].startswith("internal failure")
+
+
+def test_progress_counts_the_rows_of_this_run(ir_corpus, tmp_path):
+    out = tmp_path / "r.csv"
+    ref = ir_corpus["reference"].read_text().splitlines(keepends=True)
+    out.write_text("".join(ref[:11]))  # 10 rows done
+    calls = []
+    run_batch(ir_corpus["manifest"], out, workers=1, resume=True, progress=lambda d, t: calls.append((d, t)))
+    assert calls[0] == (0, N_IR_ROWS - 10) and calls[-1] == (N_IR_ROWS - 10, N_IR_ROWS - 10)
+
+
+def test_cli_batch_json_summary(ir_corpus, tmp_path, capsys):
+    out = tmp_path / "r.csv"
+    assert _cli(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--workers", "1", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    for key in ("manifest", "out", "backend", "workers", "total", "skipped", "scored", "failed", "ok",
+                "seconds", "rows_per_s", "failures"):
+        assert key in d
+    assert (d["total"], d["scored"], d["failed"], d["backend"]) == (N_IR_ROWS, N_IR_ROWS, 0, "in-process")
+
+
+def test_ir_option_columns_feed_the_scoring(tmp_path):
+    from envpredict.indirect import sti_from_ir
+
+    rng = np.random.default_rng(5)
+    sf.write(tmp_path / "a.wav", _exp_ir(rng, 0.7), IR_FS, subtype="FLOAT")
+    x, _ = sf.read(tmp_path / "a.wav", dtype="float64")  # the samples as stored (float32)
+    noise = "50;47;44;41;38;35;32"
+    rows = [["a.wav", "", "", ""], ["a.wav", noise, "70", "female"], ["a.wav", "", "", ""]]
+    m = _write_csv(tmp_path / "m.csv", ["ir", "noise", "speech_level", "sti_talker"], rows)
+    out = tmp_path / "r.csv"
+    run_batch(m, out, workers=1, speech_level_dba=65, talker="male")
+    _, res = read_results(out)
+    assert float(res[0]["sti"]) == sti_from_ir(x, IR_FS, speech_level_dba=65).sti.sti
+    want = sti_from_ir(x, IR_FS, noise_db=[50, 47, 44, 41, 38, 35, 32], speech_level_dba=70, talker="female")
+    assert float(res[1]["sti"]) == want.sti.sti
+    assert res[2]["sti"] == res[0]["sti"]
+
+
+# ---------------------------------------------------------------------------
+# Malformed manifests: one clear error naming file, row and column
+# ---------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    "text, pattern",
+    [
+        ("", r"is empty"),
+        ("condition,talker\nA,1\n", r"neither an 'ir' column nor 'clean' and 'degraded'"),
+        ("ir;condition\na.wav;A\n", r"use commas"),
+        ("clean,condition\na.wav,A\n", r"no 'degraded' column"),
+        ("ir,cond,cond\na.wav,A,B\n", r"column 'cond' appears twice"),
+        ("ir,,x\na.wav,A,B\n", r"column 2 of the header has no name"),
+        ("ir,sti\na.wav,0.5\n", r"column 'sti' has the name of a result column"),
+        ("ir,row\na.wav,1\n", r"column 'row' has the name of a result column"),
+        ("ir,cond\n", r"header but no rows"),
+        ("ir,cond\na.wav,A\nb.wav\n", r"row 2 \(line 3\) has 1 cells; the header has 2"),
+        ("ir,cond\na.wav,A\n\nb.wav,A,B\n", r"row 2 \(line 4\) has 3 cells"),
+        ("ir,cond\n,A\n", r"row 1 \(line 2\) names no input file — fill 'ir'"),
+        ("ir,clean,degraded\na.wav,c.wav,\n", r"row 1 \(line 2\) fills both"),
+        ("clean,degraded\nc.wav,\n", r"row 1 \(line 2\), column 'degraded' is empty"),
+        ('ir,cond\na.wav,"two\nlines"\n', r"row 1 \(line 3\), column 'cond' contains a line break"),
+        ("ir,speech_level\na.wav,60\nb.wav,loud\n", r"row 2 \(line 3\), column 'speech_level'.*not a number"),
+        ("ir,sti_talker\na.wav,child\n", r"row 1 \(line 2\), column 'sti_talker'.*unknown talker"),
+        ("ir,noise\na.wav,40;40\n", r"column 'noise'.*2 noise level"),
+        ("ir,channel\na.wav,-1\n", r"column 'channel'.*negative"),
+        ('ir,cond\na.wav,"A\n', r"not valid CSV|line break"),
+    ],
+)
+def test_malformed_manifest(tmp_path, text, pattern):
+    p = tmp_path / "bad.csv"
+    p.write_text(text, encoding="utf-8")
+    with pytest.raises(InputError, match=pattern) as e:
+        read_manifest(p)
+    assert "bad.csv" in str(e.value)
+
+
+def test_manifest_file_problems(tmp_path):
+    with pytest.raises(InputError, match="does not exist"):
+        read_manifest(tmp_path / "nope.csv")
+    with pytest.raises(InputError, match="is a folder"):
+        read_manifest(tmp_path)
+    p = tmp_path / "latin1.csv"
+    p.write_bytes("ir,ort\na.wav,K\xf6ln\n".encode("latin-1"))
+    with pytest.raises(InputError, match="not UTF-8"):
+        read_manifest(p)
+
+
+def test_manifest_paths_are_relative_to_the_manifest(tmp_path):
+    (tmp_path / "sub").mkdir()
+    p = _write_csv(tmp_path / "sub" / "m.csv", ["ir", "x"], [["a.wav", "1"], [str(tmp_path / "b.wav"), "2"]])
+    m = read_manifest(p)
+    assert m.jobs[0]["ir"] == str((tmp_path / "sub" / "a.wav").resolve())
+    assert m.jobs[1]["ir"] == str(tmp_path / "b.wav")
+    # a BOM written by spreadsheet programs is accepted
+    p.write_bytes(b"\xef\xbb\xbf" + p.read_bytes())
+    assert read_manifest(p).columns == ("ir", "x")
+
+
+def test_bad_batch_options(ir_corpus, tmp_path, capsys):
+    for args, pattern in ((["--workers", "0"], "below 1"), (["--retry-failed"], "only with --resume"),
+                          (["--resume", "--overwrite"], "contradict")):
+        assert _cli(["batch", str(ir_corpus["manifest"]), "--out", str(tmp_path / "r.csv")] + args) == 2
+        err = capsys.readouterr().err
+        assert err.startswith("error: ") and pattern in err and "Traceback" not in err
+    assert not (tmp_path / "r.csv").exists()  # refused before any output
+
