@@ -33,6 +33,11 @@ PRE_ONSET_S: float = 0.025
 TRUNCATION_RANGE_DB: float = 45.0
 
 
+#: An impulse response must decay by at least this much in some band; otherwise the file
+#: is noise or a recording, not an impulse response (judgement).
+MIN_DECAY_DB: float = 10.0
+
+
 @dataclass(frozen=True)
 class IrResult:
     """STI and decay figures of one impulse response."""
@@ -128,6 +133,12 @@ def sti_from_ir(
     if progress:
         progress(1, 3)
     decay = decay_figures(bands, fs, t0)
+    if np.all(decay.range_db < MIN_DECAY_DB):
+        raise InputError(
+            f"the file shows less than {MIN_DECAY_DB:.0f} dB of decay in every octave band: it does not look "
+            "like an impulse response",
+            "give a measured impulse response (for a recorded test signal use the stipa command)",
+        )
     if progress:
         progress(2, 3)
     lengths = t0 + np.round(decay.crossing_s * fs).astype(int)

@@ -72,3 +72,9 @@ def test_truncated_ir_caution():
     # T = 2 s cut after 0.9 s: 27 dB of decay, still falling at the end
     r = sti_from_ir(noise_decay(2.0, seconds=0.9), 48000)
     assert any("cut off" in c for c in r.cautions)
+
+
+def test_noise_is_not_an_impulse_response():
+    x = 0.1 * np.random.default_rng(0).standard_normal(2 * 48000)
+    with pytest.raises(InputError, match="does not look like an impulse response"):
+        sti_from_ir(x, 48000)
