@@ -1,0 +1,142 @@
+"""``envpredict inspect``: envelope, periodicity and fine structure of a recording."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from ._app import app
+from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, note, table
+
+CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
+START_HELP = "Start of the excerpt to inspect, seconds from the beginning of the file. Default 0."
+DURATION_HELP = "Length of the excerpt, seconds (1 to 600). Default: to the end of the file."
+F0_MIN_HELP = ("Lowest F0 searched, Hz. Default 50: periodicity spans about 50-500 Hz and adult voices "
+               "are commonly 100-300 Hz (common practice, no source).")
+F0_MAX_HELP = "Highest F0 searched, Hz. Default 500 (see --f0-min)."
+REPORT_HELP = ("Also write a report folder: PNG figures and a self-contained report.html "
+               "(opens offline in a browser). The folder is created or replaced as a whole.")
+
+
+def render_inspect(d: dict, source: str) -> str:
+    """Readable text for an ``inspect`` result dictionary."""
+    lines = [
+        f"Recording: {source}  ({d['fs']} Hz, {d['duration_s']:.2f} s)",
+        "",
+        f"Voiced: {100 * d['voiced_fraction']:.0f} % of the time   median F0: {fmt(d['f0_median_hz'], '.1f')} Hz"
+        f"   (10-90 %: {fmt(d['f0_p10_hz'], '.0f')}-{fmt(d['f0_p90_hz'], '.0f')} Hz; "
+        f"searched {d['f0_search_hz'][0]:g}-{d['f0_search_hz'][1]:g} Hz)",
+        f"Dominant envelope modulation: {fmt(d['modulation_peak_hz'], '.2f')} Hz "
+        f"(resolution {fmt(d['modulation_resolution_hz'], '.3f')} Hz)",
+        "",
+        "Per octave band: modulation index of the amplitude envelope below 50 Hz (envelope) and at "
+        "50-500 Hz (periodicity), carrier rate (fine structure above 500 Hz)",
+    ]
+    rows = []
+    for k, fc in enumerate(d["bands_hz"]):
+        rows.append([f"{fc:g}", fmt(d["band_level_db"][k], ".1f"), fmt(d["envelope_modulation"][k]),
+                     fmt(d["periodicity_modulation"][k]), fmt(d["carrier_hz"][k], ".0f"),
+                     fmt(d["band_peak_hz"][k])])
+    lines.append(table(rows, ["band Hz", "level dB", "envelope", "periodicity", "carrier Hz", "mod. peak Hz"]))
+    lines.append("")
+    lines.append("Envelope modulation spectra (modulation index per 1/3-octave modulation band, Hz)")
+    mb = d["modulation_bands_hz"]
+    keep = [j for j, f in enumerate(mb) if j % 2 == 0]
+    head = ["band Hz"] + [f"{mb[j]:g}" for j in keep]
+    lines.append(table([[f"{fc:g}"] + [fmt(d["modulation_spectra"][k][j]) for j in keep]
+                        for k, fc in enumerate(d["bands_hz"])], head))
+    lines.append("(every second modulation band shown; --json has all)")
+    if d["cautions"]:
+        lines.append("")
+        lines.append("Cautions:")
+        lines.extend(f"  - {c}" for c in d["cautions"])
+    return "\n".join(lines)
+
+
+def _read_excerpt(path: Path, channel: Optional[int], start: float, duration: Optional[float]):
+    """One channel of ``path`` from ``start`` for ``duration`` seconds, validated."""
+    import soundfile as sf
+
+    from envpredict.audio import audio_info, pick_channel, validate_signal
+    from envpredict.exceptions import InputError
+    from envpredict.timescales import MAX_SECONDS, MIN_SECONDS
+
+    fs, frames, _ = audio_info(path, "recording")
+    total = frames / fs if fs else 0.0
+    if start < 0 or start >= total:
+        raise InputError(f"--start {start:g} s is outside the recording (0 to {total:.2f} s)",
+                         "give a start inside the file")
+    if duration is not None and not MIN_SECONDS <= duration <= MAX_SECONDS:
+        raise InputError(f"--duration {duration:g} s is outside {MIN_SECONDS:g}-{MAX_SECONDS:g} s",
+                         "give a duration in that range")
+    length = (total - start) if duration is None else min(duration, total - start)
+    if length > MAX_SECONDS:
+        raise InputError(
+            f"recording '{path}' is {length:.0f} s long from the start point; inspect looks at up to "
+            f"{MAX_SECONDS:.0f} s at a time",
+            "choose an excerpt with --start and --duration (e.g. --duration 60)",
+        )
+    i0 = int(round(start * fs))
+    n = int(round(length * fs))
+    try:
+        data, fs = sf.read(str(path), start=i0, frames=n, dtype="float64", always_2d=True)
+    except Exception:
+        raise InputError(f"recording '{path}' could not be decoded (truncated or damaged file?)",
+                         "re-export the file as WAV or FLAC") from None
+    x = pick_channel(data, channel, "recording", str(path))
+    x = validate_signal(x, fs, name=f"recording '{path}'", min_seconds=MIN_SECONDS)
+    return x, int(fs)
+
+
+@app.command("inspect")
+def inspect_command(
+    audio_file: Path = typer.Argument(..., help="Recording to inspect (WAV, FLAC or OGG).", show_default=False),
+    channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
+    start: float = typer.Option(0.0, "--start", help=START_HELP),
+    duration: Optional[float] = typer.Option(None, "--duration", help=DURATION_HELP),
+    f0_min: float = typer.Option(50.0, "--f0-min", help=F0_MIN_HELP),
+    f0_max: float = typer.Option(500.0, "--f0-max", help=F0_MAX_HELP),
+    report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
+    as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
+    out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
+) -> None:
+    """Three timescales of a recording per octave band: slow envelope (< 50 Hz), periodicity
+    (50-500 Hz: voicing and F0) and fine structure (> 500 Hz); voiced/unvoiced segmentation
+    with an F0 track (YIN, searched 50-500 Hz by default: adult voices are commonly
+    100-300 Hz), and the modulation spectrum of each band's envelope with its dominant rate
+    (the syllable rate for running speech)."""
+    from envpredict.exceptions import InputError
+    from envpredict.timescales import inspect_signal
+
+    # check the options before the (slower) audio work
+    if not (0 < f0_min < f0_max):
+        raise InputError(f"F0 search range {f0_min:g}-{f0_max:g} Hz is empty or negative",
+                         "give 0 < --f0-min < --f0-max (default 50 and 500 Hz)")
+    if f0_min < 20 or f0_max > 2000:
+        raise InputError(f"F0 search range {f0_min:g}-{f0_max:g} Hz is outside 20-2000 Hz",
+                         "periodicity lies at about 50-500 Hz; keep the range within 20-2000 Hz")
+    if report is not None:
+        rp = report.parent if str(report.parent) else Path(".")
+        if not rp.exists():
+            raise InputError(f"folder '{rp}' for the report does not exist", "create it first or choose another path")
+        if report.exists() and not report.is_dir():
+            raise InputError(f"report path '{report}' exists and is not a folder", "give a folder name")
+    x, fs = _read_excerpt(audio_file, channel, start, duration)
+    with Progress("inspecting recording", None, quiet=as_json) as prog:
+        result = inspect_signal(x, fs, f0_min_hz=f0_min, f0_max_hz=f0_max, progress=prog)
+    d = result.to_dict()
+    d["input"] = str(audio_file)
+    d["start_s"] = start
+    if report is not None:
+        from envpredict.report import write_report
+
+        settings = {"input": str(audio_file), "channel": channel if channel is not None else "only channel",
+                    "start, s": start, "duration, s": f"{result.duration_s:.2f}",
+                    "F0 search range, Hz": f"{f0_min:g}-{f0_max:g}"}
+        path = write_report("inspect", d, report, settings=settings,
+                            title=f"Three timescales of {audio_file.name}", extras=result.report_extras())
+        if not as_json:
+            note(f"report written: {path}")
+    emit(d, lambda: render_inspect(d, str(audio_file)), as_json, out)

@@ -1,0 +1,1077 @@
+"""Reports people look at: PNG figures and one self-contained HTML page.
+
+:func:`write_report` takes a command's JSON dictionary (the ``to_dict()`` output it
+prints with ``--json``) and writes into a folder
+
+* one PNG per figure (matplotlib, Agg canvas, imported only when a report is made),
+* ``report.html`` -- figures embedded as base64 data URIs, tables of the numbers, the
+  inputs and settings used, the envpredict version and the cautions; it has no
+  external references and opens offline in any browser,
+* ``result.json`` -- the dictionary itself.
+
+The folder is written through :func:`envpredict.outputs.atomic_directory`: it appears
+whole or not at all. This module draws and lays out; it computes nothing beyond what
+a figure needs (a fitted line through a plotted range). The numeric core never
+imports it.
+
+Every number shown in an HTML table carries a ``data-key`` attribute with its path in
+the JSON dictionary (``"decay.t30.3"``), and the dictionary is embedded in the page as
+``<script type="application/json" id="result">``, so a reader (or a test) can check
+that the page shows the same numbers as the JSON.
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime as _dt
+import html
+import io
+import json
+import math
+import os
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from . import standards as std
+from .exceptions import InputError
+
+KINDS: tuple[str, ...] = ("ir", "stipa", "pair", "compare", "sweep", "inspect")
+
+KIND_TITLES: dict[str, str] = {
+    "ir": "STI and decay figures from an impulse response",
+    "stipa": "STIPA from a test-signal recording",
+    "pair": "Intelligibility of a clean/degraded pair",
+    "compare": "Comparison of conditions",
+    "sweep": "Predicted score against SNR",
+    "inspect": "Envelope, periodicity and fine structure of a recording",
+}
+
+# ---------------------------------------------------------------------------
+# Look: colours and type (a scheme of our own)
+# ---------------------------------------------------------------------------
+
+INK = "#22303c"
+MUTED = "#6a7580"
+GRID = "#dcd6c8"
+PAPER = "#fbfaf6"
+TEAL = "#17736c"
+COPPER = "#c2672f"
+PLUM = "#6b3e75"
+STEEL = "#3d6f9e"
+OCHRE = "#c9962a"
+BRICK = "#a8443a"
+#: sequential ramp for heat maps, dark aubergine (low) to cream (high)
+HEAT_RAMP: tuple[str, ...] = ("#2e1f3b", "#6e2e52", "#b0533a", "#dd9a45", "#f6e9c8")
+#: one colour per octave band, 125 Hz ... 8 kHz (low bands warm, high bands cool)
+BAND_COLOURS: tuple[str, ...] = ("#a8443a", "#c2672f", "#c9962a", "#7d8f2e", "#17736c", "#3d6f9e", "#6b3e75")
+
+DPI = 110
+
+
+def _mpl():
+    """matplotlib's Figure and Agg canvas (no pyplot: no global state, no display)."""
+    import matplotlib
+
+    matplotlib.rcParams.update({
+        "font.size": 10.5, "axes.titlesize": 11.5, "axes.labelsize": 10.5,
+        "axes.edgecolor": MUTED, "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK,
+        "text.color": INK, "axes.grid": True, "grid.color": GRID, "grid.linewidth": 0.7,
+        "axes.spines.top": False, "axes.spines.right": False, "figure.facecolor": "white",
+        "axes.facecolor": "white", "legend.frameon": False, "axes.titleweight": "bold",
+        "axes.titlelocation": "left",
+    })
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    def new(w: float, h: float, **kw):
+        fig = Figure(figsize=(w, h), dpi=DPI, **kw)
+        FigureCanvasAgg(fig)
+        return fig
+
+    return new
+
+
+def _heat_cmap():
+    from matplotlib.colors import LinearSegmentedColormap
+
+    return LinearSegmentedColormap.from_list("envpredict_heat", list(HEAT_RAMP))
+
+
+def _text_colour(rgba) -> str:
+    r, g, b = rgba[:3]
+    return INK if 0.299 * r + 0.587 * g + 0.114 * b > 0.55 else "white"
+
+
+def _band_label(fc: float) -> str:
+    return f"{fc / 1000:g} kHz" if fc >= 1000 else f"{fc:g} Hz"
+
+
+def _arr(v: Any) -> np.ndarray:
+    """JSON list (with nulls) -> float array with NaN."""
+    if v is None:
+        return np.array([], dtype=float)
+    return np.array(_nan_for_none(v), dtype=float)
+
+
+def _nan_for_none(v: Any) -> Any:
+    if isinstance(v, (list, tuple)):
+        return [_nan_for_none(e) for e in v]
+    return np.nan if v is None else v
+
+
+@dataclass
+class Figure:
+    name: str          # file name without suffix
+    caption: str
+    png: bytes
+
+
+@dataclass
+class Cell:
+    text: str
+    key: str | None = None   # JSON path of the number shown ("decay.t30.3")
+    cls: str = ""
+
+
+@dataclass
+class Table:
+    title: str
+    header: list[str]
+    rows: list[list[Cell]]
+    note: str = ""
+
+
+@dataclass
+class Page:
+    headline: list[tuple[str, Cell]] = field(default_factory=list)
+    figures: list[Figure] = field(default_factory=list)
+    tables: list[Table] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)   # e.g. figures left out and why
+
+
+def _png(fig) -> bytes:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=DPI, bbox_inches="tight", pad_inches=0.15, facecolor="white")
+    return buf.getvalue()
+
+
+def _get(d: Mapping, path: str) -> Any:
+    cur: Any = d
+    for part in path.split("."):
+        if isinstance(cur, Mapping):
+            cur = cur[part]
+        else:
+            cur = cur[int(part)]
+    return cur
+
+
+def num(d: Mapping, path: str, spec: str = ".2f", unit: str = "") -> Cell:
+    """A table cell showing the number at ``path`` of ``d`` (a dash where it is null)."""
+    try:
+        v = _get(d, path)
+    except (KeyError, IndexError, TypeError, ValueError):
+        return Cell("—")
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return Cell("—", path, "na")
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        return Cell(html.escape(str(v)))
+    return Cell(format(float(v), spec) + (f" {unit}" if unit else ""), path)
+
+
+def txt(v: Any) -> Cell:
+    return Cell("—" if v is None else html.escape(str(v)))
+
+
+# ---------------------------------------------------------------------------
+# Figures shared by the STI kinds
+# ---------------------------------------------------------------------------
+
+def _mtf_heatmap(d: Mapping, stipa: bool) -> Figure:
+    new = _mpl()
+    m = _arr(d["mtf"])
+    bands = list(d.get("bands_hz", std.OCTAVE_BANDS_HZ))
+    mod = d.get("modulation_hz", std.MODULATION_FREQUENCIES_HZ)
+    per_band = bool(mod) and isinstance(mod[0], (list, tuple))
+    nb, nf = m.shape
+    wide = nf > 4
+    fig = new(10.0 if wide else 6.4, 4.6)
+    ax = fig.add_subplot(111)
+    ax.grid(False)
+    im = ax.imshow(m, cmap=_heat_cmap(), vmin=0.0, vmax=1.0, aspect="auto", origin="lower")
+    for i in range(nb):
+        for j in range(nf):
+            v = m[i, j]
+            if not np.isfinite(v):
+                continue
+            label = f"{v:.2f}"
+            if per_band:
+                label += f"\n{mod[i][j]:g} Hz"
+            ax.text(j, i, label, ha="center", va="center", fontsize=8.5 if wide else 10,
+                    color=_text_colour(im.cmap(im.norm(v))))
+    ax.set_yticks(range(nb), [_band_label(f) for f in bands])
+    ax.set_ylabel("octave band")
+    if per_band:
+        ax.set_xticks(range(nf), ["lower modulation\nfrequency", "upper modulation\nfrequency"][:nf] if nf == 2
+                      else [f"#{j + 1}" for j in range(nf)])
+        ax.set_xlabel("modulation frequency of each band (value shown under m)")
+    else:
+        ax.set_xticks(range(nf), [f"{f:g}" for f in mod])
+        ax.set_xlabel("modulation frequency, Hz")
+    cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
+    cb.set_label("modulation transfer m (0 = lost, 1 = kept)")
+    corr = "after noise and auditory corrections" if d.get("auditory_corrections", True) else "after noise correction"
+    ax.set_title(f"Modulation transfer used for the index ({corr})")
+    return Figure("mtf", "Modulation transfer function m per octave band and modulation frequency: "
+                  "each cell is the fraction of the speech envelope modulation that survives the "
+                  "path to the listener.", _png(fig))
+
+
+def _ti_figure(d: Mapping) -> Figure:
+    new = _mpl()
+    bands = list(d.get("bands_hz", std.OCTAVE_BANDS_HZ))
+    mti = _arr(d["mti"])
+    sti = d.get("sti")
+    fig = new(10.0, 4.4)
+    gs = fig.add_gridspec(1, 2, width_ratios=[5.2, 1.0], wspace=0.08)
+    ax = fig.add_subplot(gs[0])
+    x = np.arange(len(bands))
+    bars = ax.bar(x, np.nan_to_num(mti), color=[BAND_COLOURS[i % 7] for i in x], width=0.66)
+    for b, v in zip(bars, mti):
+        if np.isfinite(v):
+            inside = v > 0.12
+            ax.text(b.get_x() + b.get_width() / 2, v - 0.025 if inside else v + 0.02, f"{v:.2f}",
+                    ha="center", va="top" if inside else "bottom", fontsize=10.5, fontweight="bold",
+                    color="white" if inside else INK)
+    ax.set_xticks(x, [_band_label(f) for f in bands])
+    ax.set_xlabel("octave band")
+    ax.set_ylabel("transmission index (MTI), 0 to 1")
+    ax.set_ylim(0, 1.08)
+    ax.grid(axis="x", visible=False)
+    if sti is not None:
+        ax.axhline(sti, color=INK, lw=1.4, ls="--", label=f"STI {sti:.2f} (weighted over the bands)")
+        ax.legend(loc="upper right", fontsize=10)
+    ax.set_title("Transmission index per octave band")
+    # qualification band scale
+    sc = fig.add_subplot(gs[1])
+    sc.grid(False)
+    qb = [(lab, lo) for lab, lo, _ in std.QUALIFICATION_BANDS]
+    from matplotlib.colors import LinearSegmentedColormap
+
+    ramp = LinearSegmentedColormap.from_list("qb", [BRICK, OCHRE, TEAL])
+    top = 1.0
+    for lab, lo in qb:
+        lo_show = max(lo, 0.20)
+        frac = (lo_show - 0.20) / (0.80 - 0.20)
+        sc.add_patch(_rect((0, lo_show), 1, top - lo_show, ramp(min(1, max(0, frac))), alpha=0.9))
+        sc.text(0.5, (lo_show + min(top, lo_show + 0.04 if lab != "A+" else 0.80)) / 2 if lab != "U" else 0.28,
+                lab, ha="center", va="center", fontsize=9, color="white", fontweight="bold")
+        top = lo_show
+    sc.set_xlim(0, 1)
+    sc.set_ylim(0.20, 0.84)
+    sc.set_xticks([])
+    sc.yaxis.tick_right()
+    sc.yaxis.set_label_position("right")
+    sc.set_ylabel("STI")
+    sc.spines["left"].set_visible(False)
+    sc.spines["right"].set_visible(True)
+    if sti is not None:
+        y = min(max(sti, 0.205), 0.835)
+        sc.axhline(y, color=INK, lw=2.4)
+        sc.plot([0.0], [y], marker=">", ms=11, color=INK, clip_on=False, zorder=5)
+    sc.set_title(f"band {d.get('rating', '?')}", loc="center")
+    return Figure("transmission_index", "Transmission index (MTI) per octave band with the STI (dashed) and "
+                  "the qualification band of IEC 60268-16 Annex F (right, A+ best, U below 0.36).", _png(fig))
+
+
+def _rect(xy, w, h, colour, alpha=1.0):
+    from matplotlib.patches import Rectangle
+
+    return Rectangle(xy, w, h, facecolor=colour, edgecolor="white", lw=1.0, alpha=alpha)
+
+
+def _decay_figure(d: Mapping, extras: Mapping) -> Figure | None:
+    curves = extras.get("decay_curves_db")
+    rate = extras.get("decay_curve_rate_hz")
+    if curves is None or not rate:
+        return None
+    new = _mpl()
+    curves = np.asarray(curves, dtype=float)
+    dec = d.get("decay", {})
+    bands = list(dec.get("bands_hz", d.get("bands_hz", std.OCTAVE_BANDS_HZ)))
+    fig = new(11.0, 6.2)
+    axes = fig.subplots(2, 4, sharex=True, sharey=True).ravel()
+    t = np.arange(curves.shape[1]) / float(rate)
+    t_end = 0.0
+    for k in range(min(len(bands), curves.shape[0])):
+        c = curves[k]
+        ok = np.isfinite(c)
+        if ok.any():
+            t_end = max(t_end, float(t[ok][-1]))
+    t_end = t_end * 1.05 if t_end > 0 else float(t[-1])
+    fits = tuple((name, std.DECAY_RANGES_DB[name], col,
+                  f"{name.upper()}, {std.DECAY_RANGES_DB[name][0]:g} to {std.DECAY_RANGES_DB[name][1]:g} dB")
+                 for name, col in (("edt", COPPER), ("t20", STEEL), ("t30", PLUM)))
+    from matplotlib.transforms import blended_transform_factory
+
+    cross = _arr(dec.get("crossing_s", []))
+    for k, ax in enumerate(axes[: len(bands)]):
+        if k >= curves.shape[0]:
+            break
+        c = curves[k]
+        ok = np.isfinite(c)
+        lines = []
+        tr = blended_transform_factory(ax.transAxes, ax.transData)
+        for j, (name, (hi, lo), col, lab) in enumerate(fits):
+            T = _arr(dec.get(name, []))
+            T = T[k] if k < T.size else np.nan
+            # the evaluation range, as a bar at the right edge of the panel
+            ax.plot([0.72 + 0.05 * j] * 2, [hi, lo], color=col, lw=5, solid_capstyle="butt", transform=tr,
+                    label=lab)
+            if not np.isfinite(T):
+                lines.append(f"{name.upper()} —")
+                continue
+            sel = ok & (c <= hi) & (c >= lo)
+            if np.count_nonzero(sel) < 3:
+                continue
+            # regression line with the fitted slope -60/T (least-squares intercept over the
+            # range), over its range; drawn as nested sleeves (T30 widest) so that all three
+            # stay visible where they agree
+            slope = -60.0 / T
+            a = float(np.mean(c[sel] - slope * t[sel]))
+            ax.plot([(hi - a) / slope, (lo - a) / slope], [hi, lo], color=col, lw=(2.4, 5.0, 8.0)[j],
+                    alpha=(0.95, 0.6, 0.35)[j], solid_capstyle="butt", zorder=3 - j)
+            lines.append(f"{name.upper()} {T:.2f} s")
+        ax.plot(t, c, color=INK, lw=1.1, label="Schroeder decay curve", zorder=4)
+        if k < cross.size and np.isfinite(cross[k]) and cross[k] < t[-1]:
+            ax.axvline(cross[k], color=MUTED, lw=0.9, ls=":", label="crossing with the noise floor")
+        ax.set_title(_band_label(bands[k]), loc="left")
+        ax.text(0.04, 0.04, "\n".join(lines), transform=ax.transAxes, ha="left", va="bottom", fontsize=8.8,
+                bbox={"facecolor": "white", "edgecolor": GRID, "alpha": 0.92, "boxstyle": "round,pad=0.3"})
+        ax.set_ylim(-65, 3)
+        ax.set_xlim(0, t_end)
+    for ax in axes[4:]:
+        ax.set_xlabel("time after onset, s")
+    for ax in axes[::4]:
+        ax.set_ylabel("level, dB")
+    leg_ax = axes[-1]
+    if len(bands) < len(axes):
+        handles, labels = [], []
+        for ax in axes[: len(bands)]:
+            for h, lab in zip(*ax.get_legend_handles_labels()):
+                if lab not in labels:
+                    handles.append(h)
+                    labels.append(lab)
+        leg_ax.axis("off")
+        leg_ax.legend(handles, labels, loc="center left", fontsize=9.5, frameon=False,
+                      title="bars: evaluation ranges;\nsleeves: fitted lines", title_fontsize=9.5,
+                      bbox_to_anchor=(0.08, 0.5))
+    fig.suptitle("Schroeder decay curves per octave band, with the fitted ranges (ISO 3382-1)",
+                 x=0.01, ha="left", fontweight="bold", fontsize=11.5)
+    return Figure("decay_curves", "Backward-integrated (Schroeder) decay curves per octave band, truncated "
+                  "at the crossing with the noise floor (dotted). Coloured bars mark the EDT, T20 and T30 "
+                  "evaluation ranges; the sleeves of the same colour are the regression lines over them, "
+                  "and the box gives the decay times they extrapolate to 60 dB.", _png(fig))
+
+
+def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
+    bands = list(d.get("bands_hz", std.OCTAVE_BANDS_HZ))
+    rows = []
+    noise = d.get("noise_db")
+    for k, fc in enumerate(bands):
+        rows.append([
+            Cell(_band_label(fc)), num(d, f"mti.{k}", ".3f"), num(d, f"speech_db.{k}", ".1f"),
+            num(d, f"noise_db.{k}", ".1f") if noise else Cell("—"),
+            num(d, f"masking_db.{k}", ".1f") if d.get("masking_db") else Cell("—"),
+            num(d, f"threshold_db.{k}", ".1f") if d.get("threshold_db") else Cell("—"),
+        ])
+    tables = [Table("Per octave band", ["band", "MTI", "speech level, dB", "noise level, dB",
+                                        "masking level, dB", "reception threshold, dB"], rows)]
+    mod = d.get("modulation_hz", [])
+    per_band = bool(mod) and isinstance(mod[0], (list, tuple))
+    m = d.get("mtf") or []
+    nf = len(m[0]) if m else 0
+    if per_band:
+        head = ["band"] + [f"m at f{j + 1}" for j in range(nf)] + [f"f{j + 1}, Hz" for j in range(nf)] + \
+            [f"measured m at f{j + 1}" for j in range(nf)]
+        rows = [[Cell(_band_label(fc))] + [num(d, f"mtf.{k}.{j}", ".3f") for j in range(nf)]
+                + [num(d, f"modulation_hz.{k}.{j}", "g") for j in range(nf)]
+                + [num(d, f"mtf_measured.{k}.{j}", ".3f") for j in range(nf)] for k, fc in enumerate(bands)]
+    else:
+        head = ["band"] + [f"{f:g} Hz" for f in mod]
+        rows = [[Cell(_band_label(fc))] + [num(d, f"mtf.{k}.{j}", ".2f") for j in range(nf)]
+                for k, fc in enumerate(bands)]
+    tables.append(Table("Modulation transfer used for the index", head, rows,
+                        "Rows: octave bands. Columns: modulation frequencies."))
+    return tables
+
+
+def _sti_headline(d: Mapping) -> list[tuple[str, Cell]]:
+    return [("STI", num(d, "sti", ".2f")), ("qualification band", txt(d.get("rating"))),
+            ("rating", txt(d.get("subjective"))), ("talker", txt(d.get("talker")))]
+
+
+def _page_ir(d: Mapping, extras: Mapping) -> Page:
+    p = Page(headline=_sti_headline(d))
+    p.figures += [_mtf_heatmap(d, False), _ti_figure(d)]
+    dec_fig = _decay_figure(d, extras)
+    if dec_fig is not None:
+        p.figures.append(dec_fig)
+    else:
+        p.notes.append("Decay curves were not passed to the report (extras 'decay_curves_db'), so they are "
+                       "not drawn.")
+    p.tables += _sti_tables(d, False)
+    dec = d.get("decay")
+    if dec:
+        bands = list(dec.get("bands_hz", d.get("bands_hz", std.OCTAVE_BANDS_HZ)))
+        rows = [[Cell(_band_label(fc)), num(d, f"decay.edt.{k}", ".2f"), num(d, f"decay.t20.{k}", ".2f"),
+                 num(d, f"decay.t30.{k}", ".2f"), num(d, f"decay.c50.{k}", ".1f"), num(d, f"decay.c80.{k}", ".1f"),
+                 num(d, f"decay.d50.{k}", ".2f"), num(d, f"decay.decay_range_db.{k}", ".0f"),
+                 num(d, f"decay.crossing_s.{k}", ".2f")]
+                for k, fc in enumerate(bands)]
+        p.tables.append(Table("Decay figures (ISO 3382-1)", ["band", "EDT, s", "T20, s", "T30, s", "C50, dB",
+                                                             "C80, dB", "D50", "decay range, dB", "crossing, s"],
+                              rows, "A dash: not computed (see the notes below)." if dec.get("notes") else ""))
+        for n in dec.get("notes", []):
+            p.notes.append(str(n))
+    return p
+
+
+def _page_stipa(d: Mapping, extras: Mapping) -> Page:
+    p = Page(headline=_sti_headline(d))
+    p.figures += [_mtf_heatmap(d, True), _ti_figure(d)]
+    p.tables += _sti_tables(d, True)
+    return p
+
+
+# ---------------------------------------------------------------------------
+# pair, compare, sweep
+# ---------------------------------------------------------------------------
+
+def _first(d: Mapping, *keys: str) -> Any:
+    for k in keys:
+        if k in d and d[k] is not None:
+            return d[k]
+    return None
+
+
+def _page_pair(d: Mapping, extras: Mapping) -> Page:
+    p = Page()
+    for key, label in (("stoi", "STOI"), ("estoi", "ESTOI"), ("ssti", "speech-based STI"),
+                       ("delay_ms", "delay, ms")):
+        if d.get(key) is not None:
+            p.headline.append((label, num(d, key, ".1f" if key == "delay_ms" else ".3f")))
+    diag = d.get("bands") if isinstance(d.get("bands"), Mapping) else {}
+    src = {**diag, **{k: v for k, v in extras.items()}}
+    corr = _first(src, "band_segment_correlation", "stoi_band_segment", "segment_band_stoi")
+    cf = _first(src, "band_centres_hz", "band_centers_hz", "bands_hz")
+    t_end = _first(src, "segment_end_s", "segment_time_s")
+    new = None
+    if corr is not None and cf is not None:
+        new = _mpl()
+        c = _arr(corr)
+        cf = list(cf)
+        t = _arr(t_end) if t_end is not None else np.arange(c.shape[1])
+        fig = new(10.5, 4.8)
+        ax = fig.add_subplot(111)
+        ax.grid(False)
+        ext_t = (float(t[0]), float(t[-1])) if t.size > 1 else (0.0, 1.0)
+        im = ax.imshow(c, aspect="auto", origin="lower", cmap=_heat_cmap(), vmin=0.0, vmax=1.0,
+                       extent=(ext_t[0], ext_t[1], -0.5, c.shape[0] - 0.5), interpolation="nearest")
+        step = max(1, len(cf) // 8)
+        ax.set_yticks(range(0, len(cf), step), [_band_label(float(f)) for f in cf[::step]])
+        ax.set_xlabel("time (end of each 384 ms segment), s" if t_end is not None else "segment")
+        ax.set_ylabel("band centre frequency")
+        cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
+        cb.set_label("envelope correlation, clean vs degraded")
+        ax.set_title("Envelope correlation per band over time")
+        p.figures.append(Figure("band_correlation", "Correlation of the clean and degraded band envelopes in "
+                                "each analysis segment: dark stretches show where and when the degraded signal "
+                                "lost the envelope of the clean one.", _png(fig)))
+    else:
+        seg = _first(src, "segment_stoi")
+        if seg is None:
+            seg = _first(d, "segment_stoi")
+        t_end = _first(d, "segment_end_s") if t_end is None else t_end
+        if seg is not None:
+            new = _mpl()
+            s = _arr(seg)
+            t = _arr(t_end) if t_end is not None else np.arange(s.size)
+            fig = new(10.5, 3.8)
+            ax = fig.add_subplot(111)
+            ax.plot(t, s, color=TEAL, lw=1.4)
+            ax.set_ylim(min(0.0, float(np.nanmin(s)) - 0.05), 1.02)
+            ax.set_xlabel("time (end of each segment), s")
+            ax.set_ylabel("envelope correlation")
+            ax.set_title("Envelope correlation over time (mean of the bands)")
+            p.figures.append(Figure("segment_correlation", "Mean envelope correlation of each analysis segment.",
+                                    _png(fig)))
+        else:
+            p.notes.append("No per-band envelope correlations over time were passed to the report, so that "
+                           "figure is not drawn.")
+    band_vals = _first(d, "stoi_band") if _first(src, "stoi_band") is None else None
+    prefix = ""
+    if band_vals is None and isinstance(d.get("bands"), Mapping) and "stoi_band" in d["bands"]:
+        band_vals, prefix = d["bands"]["stoi_band"], "bands."
+    elif band_vals is not None:
+        prefix = ""
+    if band_vals is not None and cf is not None:
+        cfl = list(cf)
+        new = new or _mpl()
+        fig = new(10.5, 3.8)
+        ax = fig.add_subplot(111)
+        v = _arr(band_vals)
+        ax.bar(np.arange(v.size), v, color=STEEL, width=0.7)
+        ax.set_xticks(np.arange(v.size), [_band_label(float(f)) for f in cfl[: v.size]], rotation=45, ha="right")
+        ax.set_ylabel("mean envelope correlation")
+        ax.set_xlabel("band centre frequency")
+        ax.set_ylim(min(0.0, float(np.nanmin(v)) - 0.05), 1.05)
+        ax.grid(axis="x", visible=False)
+        ax.set_title("Envelope correlation per band (mean over segments; their mean is STOI)")
+        p.figures.append(Figure("band_mean_correlation", "Mean envelope correlation per band.", _png(fig)))
+        key = prefix + "stoi_band"
+        p.tables.append(Table("Per band", ["band", "mean envelope correlation"],
+                              [[Cell(_band_label(float(f))), num(d, f"{key}.{k}", ".3f")]
+                               for k, f in enumerate(cfl[: v.size])]))
+    rows = [[Cell(label), num(d, key, spec)] for key, label, spec in
+            (("stoi", "STOI", ".3f"), ("estoi", "ESTOI", ".3f"), ("ssti", "speech-based STI", ".3f"),
+             ("delay_ms", "delay of degraded re clean, ms", ".1f"), ("fs", "sample rate, Hz", ".0f"))
+            if d.get(key) is not None]
+    p.tables.insert(0, Table("Indices", ["quantity", "value"], rows))
+    return p
+
+
+def _page_compare(d: Mapping, extras: Mapping) -> Page:
+    p = Page()
+    conds = list(d.get("conditions") or [])
+    if not conds:
+        p.notes.append("The result holds no conditions.")
+        return p
+    new = _mpl()
+    h = max(2.6, 0.5 * len(conds) + 1.4)
+    fig = new(10.0, h)
+    ax = fig.add_subplot(111)
+    y = np.arange(len(conds))[::-1]
+    for yi, c in zip(y, conds):
+        diff, lo, hi = c.get("diff"), c.get("ci_low"), c.get("ci_high")
+        if diff is None:
+            ax.text(0, yi, "reference", ha="center", va="center", color=MUTED, fontsize=9.5)
+            continue
+        col = TEAL if (lo is not None and lo > 0) else BRICK if (hi is not None and hi < 0) else MUTED
+        if lo is not None and hi is not None:
+            ax.plot([lo, hi], [yi, yi], color=col, lw=3.0, solid_capstyle="butt", alpha=0.85)
+        ax.plot([diff], [yi], "o", color=col, ms=8, mec="white", mew=1.2)
+        pv = c.get("p_value")
+        lab = f"{diff:+.3f}" + (f"  [{lo:+.3f}, {hi:+.3f}]" if lo is not None and hi is not None else "")
+        if pv is not None:
+            lab += f"  p = {pv:.3g}"
+        ax.annotate(lab, (hi if hi is not None else diff, yi), xytext=(8, 0), textcoords="offset points",
+                    va="center", fontsize=9.5)
+    ax.axvline(0, color=INK, lw=1.0)
+    ax.set_yticks(y, [str(c.get("name", "?")) for c in conds])
+    level = d.get("ci_level")
+    lvl = f"{float(level) * 100:g} % " if isinstance(level, (int, float)) else ""
+    index = d.get("index") or d.get("index_name") or "index"
+    ref = d.get("reference")
+    ax.set_xlabel(f"difference in {index}" + (f" from '{ref}'" if ref else "") + f" (dot) with {lvl}confidence "
+                  "interval (bar)")
+    ax.grid(axis="y", visible=False)
+    lo_all = [c.get("ci_low") for c in conds if c.get("ci_low") is not None] + \
+             [c.get("diff") for c in conds if c.get("diff") is not None] + [0.0]
+    hi_all = [c.get("ci_high") for c in conds if c.get("ci_high") is not None] + \
+             [c.get("diff") for c in conds if c.get("diff") is not None] + [0.0]
+    span = max(hi_all) - min(lo_all) or 1.0
+    ax.set_xlim(min(lo_all) - 0.08 * span, max(hi_all) + 0.75 * span)
+    ax.set_ylim(-0.7, len(conds) - 0.3)
+    ax.set_title("Differences between conditions")
+    p.figures.append(Figure("differences", "Difference of each condition (dot) with its confidence interval "
+                            "(bar). Teal: reliably above zero; red: reliably below; grey: interval spans zero.",
+                            _png(fig)))
+    rows = []
+    for i, c in enumerate(conds):
+        rows.append([txt(c.get("name")), num(d, f"conditions.{i}.n", ".0f"), num(d, f"conditions.{i}.mean", ".3f"),
+                     num(d, f"conditions.{i}.diff", "+.3f"), num(d, f"conditions.{i}.ci_low", "+.3f"),
+                     num(d, f"conditions.{i}.ci_high", "+.3f"), num(d, f"conditions.{i}.p_value", ".3g")])
+    p.tables.append(Table("Conditions", ["condition", "n", "mean", "difference", "CI low", "CI high", "p"], rows))
+    return p
+
+
+def _page_sweep(d: Mapping, extras: Mapping) -> Page:
+    p = Page()
+    snr = _arr(d.get("snr_db"))
+    pred = _arr(d.get("predicted_percent")) if d.get("predicted_percent") is not None else None
+    idx = _arr(d.get("index"))
+    name = str(d.get("index_name") or "index").upper()
+    targets = list(d.get("targets") or [])
+    if d.get("srt_db") is not None:
+        p.headline.append(("predicted SRT", num(d, "srt_db", ".1f", "dB")))
+    if d.get("slope_at_srt_percent_per_db") is not None:
+        p.headline.append(("slope at SRT", num(d, "slope_at_srt_percent_per_db", ".1f", "%/dB")))
+    new = _mpl()
+    fig = new(10.0, 4.8)
+    ax = fig.add_subplot(111)
+    if pred is not None and pred.size:
+        ax.plot(snr, pred, "-o", color=TEAL, lw=2.0, ms=4.5, label="predicted score")
+        ax.set_ylabel("predicted score, % correct")
+        ax.set_ylim(-2, 102)
+        for t in targets:
+            s, lo, hi, pc = t.get("snr_db"), t.get("ci_low"), t.get("ci_high"), t.get("percent")
+            if s is None or pc is None:
+                continue
+            is_srt = abs(pc - 50.0) < 1e-9
+            col = COPPER if is_srt else PLUM
+            if lo is not None and hi is not None:
+                ax.axvspan(lo, hi, color=col, alpha=0.15, lw=0)
+            ax.plot([s, s], [-2, pc], color=col, lw=1.3, ls="--")
+            ax.plot([snr[0], s], [pc, pc], color=col, lw=0.9, ls=":")
+            ax.plot([s], [pc], "D", color=col, ms=7, mec="white")
+            lab = (f"SRT {s:.1f} dB" if is_srt else f"{pc:g} % at {s:.1f} dB")
+            if lo is not None and hi is not None:
+                lab += f"\n(CI {lo:.1f} to {hi:.1f} dB)"
+            ax.annotate(lab, (s, pc), xytext=(10, -28 if is_srt else 10), textcoords="offset points",
+                        fontsize=9.5, color=col, fontweight="bold" if is_srt else "normal")
+        ax.set_title(f"Predicted psychometric function ({name} mapped to % correct)")
+        cap = ("Predicted score against SNR; the dashed line marks the predicted speech reception threshold "
+               "(SRT, 50 % correct) and the shaded strip its confidence interval over noise segments.")
+    else:
+        sd = _arr(d.get("index_sd")) if d.get("index_sd") is not None else None
+        ax.plot(snr, idx, "-o", color=TEAL, lw=2.0, ms=4.5)
+        if sd is not None and sd.size == idx.size:
+            ax.fill_between(snr, idx - sd, idx + sd, color=TEAL, alpha=0.15, lw=0, label="± 1 SD over segments")
+        ax.set_ylabel(f"{name} (mean over noise segments)")
+        ax.set_title(f"{name} against SNR (no score mapping given)")
+        cap = f"{name} against SNR; give a score mapping to see the predicted psychometric function and SRT."
+    ax.set_xlabel("signal-to-noise ratio, dB")
+    p.figures.append(Figure("psychometric", cap, _png(fig)))
+    rows = []
+    for i in range(snr.size):
+        r = [num(d, f"snr_db.{i}", ".1f"), num(d, f"index.{i}", ".3f")]
+        if d.get("index_sd") is not None:
+            r.append(num(d, f"index_sd.{i}", ".3f"))
+        if pred is not None:
+            r.append(num(d, f"predicted_percent.{i}", ".1f"))
+        rows.append(r)
+    head = ["SNR, dB", f"{name}"] + (["SD"] if d.get("index_sd") is not None else []) + \
+        (["predicted, %"] if pred is not None else [])
+    p.tables.append(Table("Sweep", head, rows))
+    if targets:
+        trow = [[num(d, f"targets.{i}.percent", "g"), num(d, f"targets.{i}.snr_db", ".1f"),
+                 num(d, f"targets.{i}.ci_low", ".1f"), num(d, f"targets.{i}.ci_high", ".1f"),
+                 num(d, f"targets.{i}.index", ".3f"), num(d, f"targets.{i}.slope_percent_per_db", ".1f"),
+                 txt(t.get("note") or "")] for i, t in enumerate(targets)]
+        p.tables.append(Table("Targets", ["target, %", "SNR, dB", "CI low, dB", "CI high, dB", f"{name} there",
+                                          "slope, %/dB", "note"], trow))
+    for n in d.get("notes") or []:
+        p.notes.append(str(n))
+    return p
+
+
+# ---------------------------------------------------------------------------
+# inspect
+# ---------------------------------------------------------------------------
+
+def _voiced_spans(t: np.ndarray, voiced: np.ndarray, hop: float) -> list[tuple[float, float]]:
+    v = np.concatenate([[False], np.asarray(voiced, bool), [False]])
+    dv = np.diff(v.astype(np.int8))
+    starts, ends = np.flatnonzero(dv == 1), np.flatnonzero(dv == -1)
+    return [(float(t[s] - hop / 2), float(t[e - 1] + hop / 2)) for s, e in zip(starts, ends)]
+
+
+def _page_inspect(d: Mapping, extras: Mapping) -> Page:
+    p = Page()
+    p.headline = [("duration", num(d, "duration_s", ".2f", "s")), ("voiced fraction", num(d, "voiced_fraction", ".2f")),
+                  ("median F0", num(d, "f0_median_hz", ".1f", "Hz")),
+                  ("modulation peak", num(d, "modulation_peak_hz", ".2f", "Hz"))]
+    new = _mpl()
+    bands = list(d.get("bands_hz", []))
+    ex = extras or {}
+    # 1. waveform + envelope, voicing + F0
+    if "wave_t_s" in ex and "f0_times_s" in ex:
+        fig = new(11.0, 5.6)
+        ax1, ax2 = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [1.3, 1.0], "hspace": 0.32})
+        tw = np.asarray(ex["wave_t_s"])
+        ax1.fill_between(tw, ex["wave_min"], ex["wave_max"], color="#9fb4c4", lw=0, label="waveform")
+        te, env = np.asarray(ex["envelope_t_s"]), np.asarray(ex["envelope"])
+        ax1.plot(te, env, color=COPPER, lw=1.5, label="envelope (< 50 Hz)")
+        ax1.plot(te, -env, color=COPPER, lw=1.5)
+        ax1.set_ylabel("amplitude, full scale")
+        ax1.legend(loc="lower right", ncols=2, fontsize=9, bbox_to_anchor=(1.0, 1.0), borderaxespad=0.2)
+        ax1.set_title("Waveform and slow envelope")
+        t0 = np.asarray(ex["f0_times_s"])
+        voiced = np.asarray(ex["voiced"], bool)
+        hop = float(d.get("frame_hop_s") or (t0[1] - t0[0] if t0.size > 1 else 0.01))
+        for a, b in _voiced_spans(t0, voiced, hop):
+            ax2.axvspan(a, b, color=TEAL, alpha=0.13, lw=0)
+            ax1.axvspan(a, b, color=TEAL, alpha=0.08, lw=0)
+        f0 = np.asarray(ex["f0_hz"], float)
+        ax2.plot(t0, f0, ".", color=TEAL, ms=3.5, label="F0 (voiced frames)")
+        lo, hi = d.get("f0_search_hz", [std.F0_MIN_HZ, std.F0_MAX_HZ])
+        ax2.set_yscale("log")
+        ax2.set_ylim(lo * 0.9, hi * 1.1)
+        ticks = [t for t in (50, 70, 100, 150, 200, 300, 500) if lo * 0.9 <= t <= hi * 1.1]
+        ax2.set_yticks(ticks, [f"{t:g}" for t in ticks])
+        ax2.minorticks_off()
+        med = d.get("f0_median_hz")
+        if med:
+            ax2.axhline(med, color=PLUM, lw=1.0, ls="--", label=f"median {med:.1f} Hz")
+        from matplotlib.patches import Patch
+
+        h, lab = ax2.get_legend_handles_labels()
+        h.append(Patch(color=TEAL, alpha=0.25))
+        lab.append(f"voiced ({100 * float(d.get('voiced_fraction') or 0):.0f} % of the time)")
+        ax2.legend(h, lab, loc="lower right", ncols=3, fontsize=9, bbox_to_anchor=(1.0, 1.0), borderaxespad=0.2)
+        ax2.set_ylabel("F0, Hz (log scale)")
+        ax2.set_xlabel("time, s")
+        ax2.set_xlim(0, float(d.get("duration_s") or tw[-1]))
+        ax2.set_title(f"Voicing and F0 (YIN, {lo:g}-{hi:g} Hz)")
+        p.figures.append(Figure("waveform_f0", "Top: waveform (grey) with its envelope below 50 Hz (copper). "
+                                "Bottom: voiced stretches (shaded) and the fundamental frequency of each voiced "
+                                "10 ms frame.", _png(fig)))
+    # 2. three levels of one band, zoomed
+    if "excerpt_t_s" in ex and len(ex["excerpt_t_s"]):
+        fig = new(11.0, 3.9)
+        ax = fig.add_subplot(111)
+        t = (np.asarray(ex["excerpt_t_s"]) - ex["excerpt_t_s"][0]) * 1000.0
+        band = np.asarray(ex["excerpt_band"])
+        amp = np.asarray(ex["excerpt_amplitude"])
+        slow = np.asarray(ex["excerpt_slow"])
+        ax.plot(t, band, color="#9fb4c4", lw=0.8, label="fine structure (band signal, > 500 Hz)")
+        ax.plot(t, amp, color=TEAL, lw=1.6, label="envelope + periodicity (amplitude envelope, < 500 Hz)")
+        ax.plot(t, slow, color=COPPER, lw=2.4, label="slow envelope (< 50 Hz)")
+        ax.set_xlabel(f"time, ms (from {float(ex['excerpt_t_s'][0]):.3f} s)")
+        ax.set_ylabel("amplitude, full scale")
+        peak = float(np.max(np.abs(band))) if band.size else 1.0
+        ax.set_ylim(-1.15 * peak, 1.6 * peak)
+        ax.legend(loc="upper left", ncols=3, fontsize=9)
+        fb = float(ex.get("excerpt_band_hz", 1000.0))
+        ax.set_title(f"The three timing levels in the {_band_label(fb)} band ({t[-1]:.0f} ms excerpt)")
+        p.figures.append(Figure("three_levels", "One octave band over a short stretch: the carrier (fine "
+                                "structure), its amplitude envelope (which beats at the voice's F0: periodicity) "
+                                "and the slow envelope that carries syllables.", _png(fig)))
+    # 3. modulation depth per band by timescale
+    env_m, per_m = _arr(d.get("envelope_modulation")), _arr(d.get("periodicity_modulation"))
+    if bands and env_m.size:
+        fig = new(11.0, 4.2)
+        ax = fig.add_subplot(111)
+        x = np.arange(len(bands))
+        w = 0.38
+        ax.bar(x - w / 2, env_m, w, color=COPPER, label="envelope (< 50 Hz)")
+        ax.bar(x + w / 2, per_m, w, color=TEAL, label="periodicity (50-500 Hz)")
+        car = _arr(d.get("carrier_hz"))
+        top = float(np.nanmax(np.concatenate([env_m, per_m]))) if np.isfinite(env_m).any() else 1.0
+        for i in x:
+            if i < car.size and np.isfinite(car[i]):
+                c = car[i]
+                lab = f"carrier\n{c:.0f} Hz" if c < 1000 else f"carrier\n{c / 1000:.1f} kHz"
+                ax.text(i, top * 1.08, lab, ha="center", va="bottom", fontsize=8.5,
+                        color=STEEL if c > std.TIMESCALE_PERIODICITY_MAX_HZ else MUTED)
+        ax.set_ylim(0, top * 1.42)
+        ax.set_xticks(x, [_band_label(f) for f in bands])
+        ax.set_xlabel("octave band (carrier above 500 Hz: fine structure, blue)")
+        ax.set_ylabel("modulation index of the\namplitude envelope")
+        ax.legend(loc="upper left", ncols=2, fontsize=9, bbox_to_anchor=(0.0, 1.0))
+        ax.grid(axis="x", visible=False)
+        ax.set_title("Where the envelope and the periodicity are carried, per octave band")
+        p.figures.append(Figure("timescales_per_band", "Depth of the slow envelope modulation and of the "
+                                "periodicity modulation of each band's amplitude envelope (1 = a full sinusoidal "
+                                "modulation), with the band's carrier rate.", _png(fig)))
+    # 4. modulation spectra
+    spec = _arr(d.get("modulation_spectra"))
+    mb = list(d.get("modulation_bands_hz", std.MODULATION_BANDS_HZ))
+    if spec.size and bands:
+        fig = new(11.0, 4.8)
+        gs = fig.add_gridspec(1, 2, width_ratios=[1.5, 1.0], wspace=0.45)
+        ax = fig.add_subplot(gs[0])
+        ax.grid(False)
+        vmax = float(np.nanmax(spec)) if np.isfinite(spec).any() else 1.0
+        cm = _heat_cmap()
+        cm.set_bad("#eeeeee")
+        im = ax.imshow(np.ma.masked_invalid(spec), aspect="auto", origin="lower", cmap=cm, vmin=0, vmax=vmax)
+        ax.set_yticks(range(len(bands)), [_band_label(f) for f in bands])
+        step = 3
+        ax.set_xticks(range(0, len(mb), step), [f"{f:g}" for f in mb[::step]])
+        ax.set_xlabel("modulation frequency (1/3-octave bands), Hz")
+        ax.set_ylabel("octave band")
+        cb = fig.colorbar(im, ax=ax, fraction=0.05, pad=0.02)
+        cb.set_label("modulation index (1 = full sine)")
+        ax.set_title("Envelope modulation spectrum per band")
+        ax2 = fig.add_subplot(gs[1])
+        fq = np.asarray(ex.get("modulation_freqs_hz", []), float)
+        comb = np.asarray(ex.get("modulation_psd_combined", []), float)
+        if fq.size > 1 and comb.shape == fq.shape:
+            sel = (fq >= 0.4) & (fq <= 40)
+            y = fq[sel] * comb[sel]
+            y = y / np.max(y) if np.max(y) > 0 else y
+            ax2.fill_between(fq[sel], 0, y, color=TEAL, alpha=0.25, lw=0)
+            ax2.plot(fq[sel], y, color=TEAL, lw=1.4)
+            ax2.set_ylabel("relative power per unit log-frequency")
+            ax2.set_ylim(0, 1.15)
+        else:
+            # from the JSON alone: the mean modulation index over the bands
+            mean = np.nanmean(spec, axis=0)
+            ax2.plot(mb, mean, "-o", ms=3, color=TEAL, lw=1.4)
+            ax2.set_ylabel("mean modulation index over the bands")
+        ax2.set_xscale("log")
+        ticks = [0.5, 1, 2, 4, 8, 16, 32]
+        ax2.set_xticks(ticks, [f"{t:g}" for t in ticks])
+        ax2.minorticks_off()
+        ax2.set_xlabel("modulation frequency, Hz")
+        pk = d.get("modulation_peak_hz")
+        if pk:
+            ax2.axvline(pk, color=INK, lw=1.2, ls="--")
+            ax2.annotate(f"peak {pk:.2f} Hz", (pk, 1.0), xycoords=("data", "axes fraction"), xytext=(6, -16),
+                         textcoords="offset points", fontsize=10, fontweight="bold")
+        ax2.set_title("All bands together, with the dominant rate")
+        p.figures.append(Figure("modulation_spectra", "Modulation spectrum of each band's intensity envelope: "
+                                "left as modulation indices in 1/3-octave modulation bands per octave band (grey: "
+                                "too short to resolve); right, the intensity-weighted sum over the bands as power "
+                                "per unit log-frequency, with its dominant rate (the syllable rate for running "
+                                "speech).", _png(fig)))
+    # tables
+    rows = [[Cell(label), num(d, key, spec, unit)] for label, key, spec, unit in (
+        ("duration", "duration_s", ".2f", "s"), ("sample rate", "fs", ".0f", "Hz"),
+        ("voiced fraction", "voiced_fraction", ".3f", ""), ("median F0", "f0_median_hz", ".1f", "Hz"),
+        ("F0 10th percentile", "f0_p10_hz", ".1f", "Hz"), ("F0 90th percentile", "f0_p90_hz", ".1f", "Hz"),
+        ("dominant modulation rate", "modulation_peak_hz", ".2f", "Hz"),
+        ("spectral resolution", "modulation_resolution_hz", ".3f", "Hz"))]
+    p.tables.append(Table("Summary", ["quantity", "value"], rows))
+    rows = [[Cell(_band_label(fc)), num(d, f"band_level_db.{k}", ".1f"), num(d, f"envelope_modulation.{k}", ".2f"),
+             num(d, f"periodicity_modulation.{k}", ".2f"), num(d, f"carrier_hz.{k}", ".0f"),
+             num(d, f"band_peak_hz.{k}", ".2f")] for k, fc in enumerate(bands)]
+    p.tables.append(Table("Per octave band", ["band", "level re total, dB", "envelope modulation (< 50 Hz)",
+                                              "periodicity modulation (50-500 Hz)", "carrier, Hz",
+                                              "modulation peak, Hz"], rows))
+    if spec.size:
+        rows = [[Cell(_band_label(fc))] + [num(d, f"modulation_spectra.{k}.{j}", ".2f") for j in range(len(mb))]
+                for k, fc in enumerate(bands)]
+        p.tables.append(Table("Envelope modulation spectra (modulation index)", ["band"] + [f"{f:g}" for f in mb],
+                              rows, "Columns: centre of each 1/3-octave modulation band, Hz. A dash: the "
+                              "recording is too short to resolve that band."))
+    return p
+
+
+_PAGES: dict[str, Callable[[Mapping, Mapping], Page]] = {
+    "ir": _page_ir, "stipa": _page_stipa, "pair": _page_pair, "compare": _page_compare,
+    "sweep": _page_sweep, "inspect": _page_inspect,
+}
+
+
+# ---------------------------------------------------------------------------
+# HTML
+# ---------------------------------------------------------------------------
+
+_CSS_TEMPLATE = """
+:root{--ink:@INK@;--muted:@MUTED@;--grid:@GRID@;--paper:@PAPER@;--teal:@TEAL@;--copper:@COPPER@}
+*{box-sizing:border-box}
+body{margin:0;background:var(--paper);color:var(--ink);font:15px/1.5 system-ui,-apple-system,"Segoe UI",
+Roboto,"Helvetica Neue",Arial,sans-serif}
+main{max-width:1180px;margin:0 auto;padding:28px 32px 48px}
+header{border-bottom:3px solid var(--teal);padding-bottom:10px;margin-bottom:18px}
+h1{font-size:26px;margin:0 0 4px}
+h2{font-size:19px;margin:30px 0 10px;border-bottom:1px solid var(--grid);padding-bottom:4px}
+h3{font-size:16px;margin:20px 0 6px}
+.sub{color:var(--muted);font-size:14px}
+.headline{display:flex;flex-wrap:wrap;gap:14px;margin:16px 0}
+.stat{background:white;border:1px solid var(--grid);border-left:5px solid var(--teal);border-radius:6px;
+padding:10px 16px;min-width:150px}
+.stat .label{color:var(--muted);font-size:13px;text-transform:uppercase;letter-spacing:.04em}
+.stat .value{font-size:26px;font-weight:700}
+.cautions{background:#fff7ec;border:1px solid #e8c9a2;border-left:5px solid var(--copper);border-radius:6px;
+padding:10px 18px;margin:14px 0}
+.cautions h2{border:none;margin:6px 0;font-size:17px}
+.cautions li{margin:4px 0}
+figure{margin:18px 0 26px;background:white;border:1px solid var(--grid);border-radius:6px;padding:12px}
+figure img{max-width:100%;height:auto;display:block;margin:0 auto}
+figcaption{color:var(--muted);font-size:14px;margin-top:8px}
+table{border-collapse:collapse;background:white;margin:6px 0 4px;font-variant-numeric:tabular-nums;
+font-size:14px}
+th,td{border:1px solid var(--grid);padding:4px 9px}
+th{background:#eef3f2;text-align:left;font-weight:600}
+td.n{text-align:right}
+td.na{color:var(--muted);text-align:center}
+.scroll{overflow-x:auto;max-width:100%}
+.note{color:var(--muted);font-size:13.5px;margin:2px 0 10px}
+ul.notes{color:var(--ink);font-size:14px}
+details{margin:12px 0}
+pre{background:white;border:1px solid var(--grid);padding:10px;overflow-x:auto;font-size:12.5px}
+footer{margin-top:34px;color:var(--muted);font-size:13px;border-top:1px solid var(--grid);padding-top:8px}
+@media print{body{background:white}figure,table{break-inside:avoid}}
+"""
+CSS = _CSS_TEMPLATE
+for _name, _value in (("INK", INK), ("MUTED", MUTED), ("GRID", GRID), ("PAPER", PAPER), ("TEAL", TEAL),
+                     ("COPPER", COPPER)):
+    CSS = CSS.replace(f"@{_name}@", _value)
+
+
+def _td(c: Cell, first: bool) -> str:
+    cls = c.cls or ("" if first else "n")
+    attrs = f' class="{cls}"' if cls else ""
+    if c.key is not None:
+        attrs += f' data-key="{html.escape(c.key, quote=True)}"'
+    return f"<td{attrs}>{c.text}</td>"
+
+
+def _table_html(t: Table) -> str:
+    head = "".join(f"<th>{html.escape(h)}</th>" for h in t.header)
+    body = "\n".join("<tr>" + "".join(_td(c, i == 0) for i, c in enumerate(r)) + "</tr>" for r in t.rows)
+    note = f'<p class="note">{html.escape(t.note)}</p>' if t.note else ""
+    return (f"<h3>{html.escape(t.title)}</h3>\n<div class=\"scroll\"><table><thead><tr>{head}</tr></thead>"
+            f"<tbody>\n{body}\n</tbody></table></div>{note}")
+
+
+def _settings_rows(settings: Mapping[str, Any]) -> str:
+    rows = []
+    for k, v in settings.items():
+        if isinstance(v, (list, tuple)):
+            v = ", ".join(str(x) for x in v)
+        elif v is None:
+            v = "—"
+        rows.append(f"<tr><th>{html.escape(str(k))}</th><td>{html.escape(str(v))}</td></tr>")
+    return "<table><tbody>" + "\n".join(rows) + "</tbody></table>"
+
+
+def _json_for_script(d: Mapping) -> str:
+    # "</" must not appear inside a <script> element
+    return json.dumps(d, indent=1, allow_nan=False).replace("</", "<\\/")
+
+
+def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str, Any], title: str,
+                version: str, created: str) -> str:
+    """The report page as one HTML string (no external references)."""
+    parts = [
+        "<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
+        '<meta name="viewport" content="width=device-width, initial-scale=1">',
+        f"<title>{html.escape(title)}</title>", f"<style>{CSS}</style>", "</head>", "<body><main>",
+        f"<header><h1>{html.escape(title)}</h1><div class=\"sub\">"
+        + ("" if title == KIND_TITLES[kind] else f"{html.escape(KIND_TITLES[kind])} · ")
+        + (f"input: {html.escape(str(result['input']))} · " if result.get("input") else "")
+        + f"envpredict {html.escape(version)} · {html.escape(created)}</div></header>",
+    ]
+    if page.headline:
+        parts.append('<section class="headline">')
+        for label, c in page.headline:
+            key = f' data-key="{html.escape(c.key, quote=True)}"' if c.key else ""
+            parts.append(f'<div class="stat"><div class="label">{html.escape(label)}</div>'
+                         f'<div class="value"{key}>{c.text}</div></div>')
+        parts.append("</section>")
+    cautions = [str(c) for c in (result.get("cautions") or [])]
+    if cautions:
+        parts.append('<section class="cautions"><h2>Cautions</h2><ul>')
+        parts += [f"<li>{html.escape(c)}</li>" for c in cautions]
+        parts.append("</ul></section>")
+    if page.figures:
+        parts.append("<h2>Figures</h2>")
+        for f in page.figures:
+            b64 = base64.b64encode(f.png).decode("ascii")
+            parts.append(f'<figure id="fig-{f.name}"><img alt="{html.escape(f.caption, quote=True)}" '
+                         f'src="data:image/png;base64,{b64}"><figcaption>{html.escape(f.caption)}</figcaption>'
+                         "</figure>")
+    if page.tables:
+        parts.append("<h2>Numbers</h2>")
+        parts += [_table_html(t) for t in page.tables]
+    if page.notes:
+        parts.append("<h3>Notes</h3><ul class=\"notes\">")
+        parts += [f"<li>{html.escape(n)}</li>" for n in page.notes]
+        parts.append("</ul>")
+    parts.append("<h2>Inputs and settings</h2>")
+    base = {"envpredict version": version, "report kind": kind, "created": created}
+    method = result.get("method")
+    if method:
+        base["method"] = method
+    parts.append(_settings_rows({**base, **dict(settings)}))
+    parts.append("<details><summary>The full result as JSON</summary><pre>"
+                 + html.escape(json.dumps(result, indent=1, allow_nan=False)) + "</pre></details>")
+    parts.append(f'<script type="application/json" id="result">{_json_for_script(result)}</script>')
+    parts.append(f"<footer>Written by envpredict {html.escape(version)}. Figures and tables show the numbers of "
+                 "the JSON result above; a dash marks a figure that could not be computed.</footer>")
+    parts.append("</main></body></html>")
+    return "\n".join(parts) + "\n"
+
+
+def write_report(
+    kind: str,
+    result: Mapping[str, Any],
+    folder: str | Path,
+    *,
+    settings: Mapping[str, Any] | None = None,
+    title: str | None = None,
+    extras: Mapping[str, Any] | None = None,
+) -> Path:
+    """Write PNG figures, ``report.html`` and ``result.json`` into ``folder``.
+
+    Parameters
+    ----------
+    kind : one of ``'ir'``, ``'stipa'``, ``'pair'``, ``'compare'``, ``'sweep'``,
+        ``'inspect'``.
+    result : the command's JSON dictionary -- exactly what it prints with ``--json``
+        (``Result.to_dict()``, plus any keys the command adds such as ``input``).
+        Extra keys are ignored by the figures and kept in the embedded JSON.
+    folder : output folder; created, or replaced as a whole, atomically (a failure
+        leaves the previous folder or nothing).
+    settings : the inputs and options used, shown in the page as given
+        (e.g. ``{"input": "hall.wav", "noise, dB": "40,38,...", "talker": "male"}``).
+    title : page heading (default: the kind's title).
+    extras : arrays too large for the JSON that some figures need:
+
+        * ``'ir'``: ``{"decay_curves_db": res.decay.curves_db,
+          "decay_curve_rate_hz": res.decay.curve_rate_hz}`` (Schroeder curves);
+        * ``'inspect'``: ``res.report_extras()`` of :class:`~envpredict.timescales.InspectResult`;
+        * ``'pair'``: optionally ``{"band_segment_correlation": (bands, segments) array,
+          "band_centres_hz": ..., "segment_end_s": ...}`` for the per-band correlation
+          over time (without it, ``segment_stoi``/``segment_end_s`` from ``result``
+          give the mean over bands).
+
+    Returns
+    -------
+    Path of ``report.html`` inside ``folder``.
+
+    Examples
+    --------
+    In a command, after ``d = result.to_dict()`` (the ``ir`` command)::
+
+        from envpredict.report import write_report
+        write_report("ir", d, report_dir, settings={"input": str(ir_file), "noise": noise or "none",
+                     "speech level, dB(A)": speech_level, "talker": talker},
+                     extras={"decay_curves_db": result.decay.curves_db,
+                             "decay_curve_rate_hz": result.decay.curve_rate_hz})
+    """
+    from . import __version__
+    from .outputs import atomic_directory
+
+    if kind not in KINDS:
+        raise InputError(f"unknown report kind '{kind}'", f"use one of {', '.join(KINDS)}")
+    if not isinstance(result, Mapping):
+        raise InputError("the report needs the result as a dictionary", "pass result.to_dict()")
+    try:
+        json.dumps(result, allow_nan=False)
+    except (TypeError, ValueError) as e:
+        raise InputError(f"the result is not plain JSON ({e})",
+                         "pass result.to_dict(), not the result object") from None
+    settings = dict(settings or {})
+    extras = dict(extras or {})
+    page = _PAGES[kind](result, extras)
+    created = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+    doc = render_html(kind, result, page, settings=settings, title=title or KIND_TITLES[kind],
+                      version=__version__, created=created)
+    folder = Path(folder)
+    with atomic_directory(folder) as tmp:
+        # the temporary folder is private (mode 700); give the report the usual mode
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o777 & ~umask)
+        for f in page.figures:
+            (tmp / f"{f.name}.png").write_bytes(f.png)
+        (tmp / "report.html").write_text(doc, encoding="utf-8")
+        (tmp / "result.json").write_text(json.dumps(result, indent=2, allow_nan=False) + "\n", encoding="utf-8")
+    return folder / "report.html"
+
+
+def figure_names(folder: str | Path) -> list[str]:
+    """PNG files of a report folder, sorted (for listing after a run)."""
+    return sorted(p.name for p in Path(folder).glob("*.png"))
+
+
+__all__: Sequence[str] = ("KINDS", "figure_names", "render_html", "write_report")
