@@ -1,0 +1,91 @@
+"""``envpredict pair``: STOI, ESTOI and speech-based STI of a clean/degraded pair."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import typer
+
+from ._app import app
+from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, table
+
+CHANNEL_HELP = ("Channel to use from any multi-channel file (0 = first); mono files use their only "
+                "channel. Required when a file has several channels.")
+NO_ALIGN_HELP = "Do not search for a delay: compare the files sample by sample (they are still trimmed)."
+MAX_DELAY_HELP = "Largest delay between clean and degraded to search for, seconds."
+CHUNK_HELP = "Seconds of audio per processing chunk (memory only; the results do not change)."
+
+
+def render_pair(d: dict, clean: str, degraded: str) -> str:
+    """Readable text for a ``pair`` result dictionary."""
+    al = d["alignment"]
+    delay = f"{d['delay_ms']:.1f} ms" if al["enabled"] else "alignment off"
+    lines = [
+        f"Clean:    {clean}  ({d['fs_clean']} Hz)",
+        f"Degraded: {degraded}  ({d['fs_degraded']} Hz)",
+        (f"Delay: {delay}   match correlation {al['match_correlation']:.2f}   "
+         f"common part {d['duration_s']:.2f} s   "
+         f"frames with speech {d['frames']['kept']}/{d['frames']['total']}"),
+        "",
+        f"STOI  = {d['stoi']:.3f}",
+        f"ESTOI = {d['estoi']:.3f}",
+        f"speech-based STI = {fmt(d['ssti'], '.3f')}",
+        "",
+        "One-third-octave bands (mean per-band correlation; low values: envelope lost)",
+    ]
+    third = d["bands"]["third_octave"]
+    rows = [[f"{fc:g}", fmt(s, ".3f"), fmt(e, ".3f")]
+            for fc, s, e in zip(third["centre_hz"], third["stoi"], third["estoi"])]
+    lines.append(table(rows, ["band Hz", "STOI", "ESTOI"]))
+    octv = d["bands"]["octave"]
+    if octv is not None:
+        lines.append("")
+        lines.append("Octave bands, speech-based STI (normalised covariance)")
+        rows = [[f"{fc:g}" + (" *" if p else ""), fmt(r, ".3f"), fmt(s, ".1f"), fmt(t, ".3f")]
+                for fc, r, s, t, p in zip(octv["centre_hz"], octv["correlation"], octv["apparent_snr_db"],
+                                          octv["ti"], octv["partial"])]
+        lines.append(table(rows, ["band Hz", "r", "app. SNR dB", "TI"]))
+        if any(octv["partial"]):
+            lines.append("  * band only partly below the Nyquist frequency")
+    if d["worst_moments"]:
+        lines.append("")
+        lines.append("Moments with the lowest local ESTOI")
+        rows = [[f"{w['start_s']:.0f}-{w['end_s']:.0f} s", fmt(w["estoi"], ".3f"), fmt(w["stoi"], ".3f")]
+                for w in d["worst_moments"]]
+        lines.append(table(rows, ["time", "ESTOI", "STOI"]))
+    if d["notes"]:
+        lines.append("")
+        lines.append("Notes:")
+        lines.extend(f"  - {n}" for n in d["notes"])
+    return "\n".join(lines)
+
+
+@app.command("pair")
+def pair_command(
+    clean: Path = typer.Argument(..., help="Clean reference (WAV, FLAC or OGG).", show_default=False),
+    degraded: Path = typer.Argument(..., help="The same utterance after processing or transmission.",
+                                    show_default=False),
+    channel: int | None = typer.Option(None, "--channel", help=CHANNEL_HELP),
+    no_align: bool = typer.Option(False, "--no-align", help=NO_ALIGN_HELP),
+    max_delay: float = typer.Option(1.0, "--max-delay", help=MAX_DELAY_HELP),
+    chunk: float = typer.Option(60.0, "--chunk", help=CHUNK_HELP),
+    as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
+    out: Path | None = typer.Option(None, "--out", help=OUT_HELP),
+) -> None:
+    """STOI, ESTOI and speech-based STI of a clean/degraded pair, with delay alignment and per-band diagnostics."""
+    from envpredict.exceptions import InputError
+    from envpredict.pair import _check_options, pair_from_files
+
+    # check the options before the (slower) audio work
+    _check_options(max_delay, chunk)
+    if channel is not None and channel < 0:
+        raise InputError(f"channel {channel} does not exist", "give --channel 0 or more")
+    if out is not None and not (out.parent if str(out.parent) else Path(".")).exists():
+        raise InputError(f"output folder '{out.parent}' does not exist", "create it first or choose another path")
+    with Progress("analysing pair", None, quiet=as_json) as prog:
+        result = pair_from_files(clean, degraded, channel=channel, align=not no_align, max_delay_s=max_delay,
+                                 chunk_s=chunk, progress=prog)
+    d = result.to_dict()
+    d["clean"] = str(clean)
+    d["degraded"] = str(degraded)
+    emit(d, lambda: render_pair(d, str(clean), str(degraded)), as_json, out)
