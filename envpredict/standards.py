@@ -250,3 +250,54 @@ def as_array(values: tuple) -> np.ndarray:
 #: Source: ISO 3382-1:2009, Annex A, Table A.1 (single-number frequency averaging
 #: 500 Hz to 1000 Hz for EDT and T).
 MID_FREQUENCY_BANDS_HZ: tuple[float, ...] = (500.0, 1000.0)
+
+# ---------------------------------------------------------------------------
+# Direct method: STIPA and full-STI test signals (IEC 60268-16:2011, 6.1 and Annex B)
+# ---------------------------------------------------------------------------
+
+#: Octave-band levels of the STIPA test signal relative to its A-weighted level, dB:
+#: the male speech spectrum. Source: IEC 60268-16:2011, Annex B (from memory: the
+#: STIPA signal has the spectrum of male speech, Table A.2), reused from
+#: SPEECH_SPECTRUM_MALE_DB above so the two can never disagree.
+STIPA_BAND_LEVELS_DB: tuple[float, ...] = SPEECH_SPECTRUM_MALE_DB
+
+#: Intensity envelope of STIPA band k: I_k(t) = 1 + m (sin 2 pi f1 t - sin 2 pi f2 t)
+#: with m = STIPA_MODULATION_DEPTH and (f1, f2) = STIPA_MODULATION_HZ[k].
+#: Source: IEC 60268-16:2011, Annex B (from memory). Check: with f2 = 5 f1 (true of
+#: every band of Table B.1) the minimum of the envelope is +0.0014, so the intensity
+#: never goes negative (tests/test_signals.py); with a plus sign it would reach -0.1.
+STIPA_MODULATION_SIGN: float = -1.0
+
+#: Nominal modulation depth of each full-STI test signal (one sinusoidal intensity
+#: modulation, I(t) = 1 + m cos 2 pi F t). Source: IEC 60268-16:2011, 6.1 (from
+#: memory: the direct method uses fully modulated noise, m = 1). The intensity is
+#: then never negative.
+FULL_STI_MODULATION_DEPTH: float = 1.0
+
+#: Default length of a generated STIPA signal, s, and the shortest one generated.
+#: IEC 60268-16:2011, Annex B (from memory) asks for a STIPA measurement of at least
+#: about 15 s, repeated; 30 s leaves room for the settling margins of the analysis.
+STIPA_DEFAULT_SECONDS: float = 30.0
+STIPA_MIN_SECONDS: float = 15.0
+
+#: Analysed length of each full-STI signal, s (rounded up to whole modulation
+#: periods), plus a settling margin at each end. Choice of this tool (common
+#: practice, no source: 10 s gives at least 6 periods of the lowest frequency).
+FULL_STI_ANALYSIS_SECONDS: float = 10.0
+
+#: Peak level of generated test signals, dB re full scale: 3 dB headroom so that no
+#: D/A converter or file format clips them (common practice, no source).
+TEST_SIGNAL_PEAK_DBFS: float = -3.0
+
+#: Frequency of acoustic calibrators, Hz. Source: IEC 60942:2017 (class 1 and 2
+#: sound calibrators work at a nominal 1 kHz; typical levels 94 or 114 dB SPL).
+CALIBRATOR_HZ: float = 1000.0
+
+#: Width of the noise carrier of each test-signal band, octaves, centred on the
+#: octave-band centre (edges fc * 2**(-1/4) .. fc * 2**(1/4)). Source: IEC 60268-16:2011,
+#: 6.1 / Annex B (from memory: Ed.4 uses half-octave carriers). It matters: with
+#: full-octave carriers the octave analysis filters pass 10-15 % of the neighbouring
+#: bands' (differently modulated) carriers into the 1-8 kHz bands and an undistorted
+#: signal reads an MTF near 0.9; with half-octave carriers the leak is below 0.5 %
+#: (2 % at 8 kHz), see tests/test_signals.py.
+TEST_SIGNAL_CARRIER_OCTAVES: float = 0.5

@@ -1,0 +1,656 @@
+"""STI by the direct method: analysis of recordings of the STIPA and full-STI test
+signals (IEC 60268-16:2011, 6.1 and Annex B).
+
+The path from a recording to the index:
+
+1. **Usable part.** Energy-based: 50 ms frame energies, smoothed over 0.5 s; the
+   longest run within 20 dB of the top level (troughs shorter than 2 s bridged) is
+   the test signal. Noise-only stretches less than 20 dB below the signal cannot be
+   told apart by energy: cut them from the file before the analysis. :data:`GUARD_S`
+   at each end is left out (the room's build-up and decay, plus the edge detection).
+   The test signal may start at any time in the file.
+2. **Bands and envelopes.** The seven octave bands (:func:`envpredict.bands.octave_bands`,
+   zero phase) and their intensity envelopes (:func:`envpredict.bands.intensity_envelopes`,
+   about 200 Hz), at the recording's own sample rate: the modulation frequencies are
+   physical (Hz), so a recorder rate other than the generator's changes nothing.
+3. **Modulation depth.** Over a window of a whole number of periods of the band's
+   lowest modulation frequency (STIPA: f2 = 5 f1, so also whole periods of f2), the
+   depth at F is ``2 |sum I(t) exp(-j 2 pi F t)| / sum I(t)``, the projection of the
+   envelope onto the known frequency (Houtgast & Steeneken's definition of the
+   modulation index). The fluctuation of the noise carrier itself adds a random
+   phasor; its mean power is estimated from the envelope spectrum at the other,
+   unused frequencies of the same window and subtracted from the squared depth.
+4. **MTF** = measured depth / nominal depth of the signal (0.55 for STIPA, 1 for
+   full STI), then :func:`envpredict.sti.sti_from_mtf` -- the one code path for every
+   STI in this tool.
+5. **Uncertainty.** The usable part is split into 2-8 consecutive windows of at
+   least two periods of the lowest modulation frequency; each gives an STI, and the
+   standard uncertainty of the full-length result is their standard deviation divided
+   by sqrt(number of windows).
+
+Level-dependent masking and the reception threshold need absolute levels: with a
+calibration (an offset in dB, or a recording of a 1 kHz calibrator at a stated level)
+the A-weighted level of the received test signal is the speech level; without one the
+index is computed without those corrections and the result says so.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable, Sequence
+
+import numpy as np
+
+from . import cautions as cau
+from . import standards as std
+from .audio import rms_dbfs, validate_signal
+from .bands import check_rate_for_octaves, intensity_envelopes, octave_bands
+from .exceptions import InputError
+from .results import jsonable
+from .signals import SETTLE_S
+from .sti import StiResult, check_talker, parse_noise_levels, sti_from_mtf
+
+#: Frame length and smoothing of the energy detector of the usable part, s.
+FRAME_S: float = 0.050
+SMOOTH_S: float = 0.5
+
+#: Margin left out at each end of the detected test signal, s: the settling time of
+#: the signal set (room build-up and decay) plus half the detector's smoothing.
+GUARD_S: float = SETTLE_S + SMOOTH_S / 2
+
+#: The test signal is where the smoothed level is within this many dB of the top
+#: level (95th percentile of the smoothed frame levels; judgement: deep enough for the
+#: troughs of a fully modulated signal, high enough to leave out quiet lead-ins).
+ACTIVE_THRESHOLD_DB: float = 20.0
+
+#: Stretches below the threshold shorter than this are bridged, s: modulation troughs,
+#: not gaps (a period of the lowest modulation frequency is 1.6 s).
+MAX_GAP_S: float = 2.0
+
+#: Each repeat window holds at least this many periods of the lowest modulation
+#: frequency; at least MIN_WINDOWS and at most MAX_WINDOWS windows (judgement: two
+#: periods keep the window estimates usable; two windows give a spread at all).
+MIN_PERIODS_PER_WINDOW: int = 2
+MIN_WINDOWS: int = 2
+MAX_WINDOWS: int = 8
+
+#: Longest recording analysed, s (the seven band signals of a longer one need
+#: gigabytes of memory; a test-signal recording is normally under a minute).
+MAX_RECORDING_S: float = 600.0
+
+#: Modulation frequencies outside this range are not used for the noise-floor
+#: estimate of the envelope spectrum, Hz (slow level drift below; envelope filter
+#: roll-off above).
+FLOOR_BAND_HZ: tuple[float, float] = (0.4, 16.0)
+
+#: Bins within this many DFT bins of a modulation frequency of the signal are not
+#: used for the noise-floor estimate.
+FLOOR_EXCLUDE_BINS: int = 2
+
+#: Number of unused envelope-spectrum bins nearest to a modulation frequency that give
+#: its local noise floor.
+LOCAL_FLOOR_BINS: int = 12
+
+#: A modulation is "found" where its depth is this many times the local RMS depth of
+#: the envelope noise (for a continuous modulation spectrum -- noise, speech, music --
+#: exceeding 4x its local RMS happens with probability about exp(-16)). The test
+#: signal is present when at least MIN_FOUND pairs (band, frequency) are found
+#: (judgement: even a channel with STI near 0.3 keeps its low-frequency modulations).
+FOUND_RATIO: float = 4.0
+MIN_FOUND: int = 3
+
+#: Plausible A-weighted level of a calibrated test-signal recording, dB(A).
+PLAUSIBLE_LEVEL_DBA: tuple[float, float] = std.SPEECH_LEVEL_RANGE_DBA
+
+#: Plausible calibrator levels, dB SPL (IEC 60942 calibrators: 94, 104, 114 dB typical).
+CALIBRATOR_LEVEL_RANGE_DB: tuple[float, float] = (60.0, 150.0)
+
+#: A calibrator recording must put at least this share of its energy in the 1 kHz
+#: octave band, and its spectral peak within this relative distance of 1 kHz.
+CALIBRATOR_BAND_SHARE: float = 0.9
+CALIBRATOR_FREQ_TOLERANCE: float = 0.05
+
+NO_CALIBRATION = (
+    "No calibration was given: the recording's absolute level is unknown, so the "
+    "level-dependent auditory masking and the speech reception threshold of IEC 60268-16 "
+    "were NOT applied (the index can read too high at low or very high levels). Give "
+    "--calibration-db or a calibrator recording with --calibrator and --calibrator-level."
+)
+
+ADDED_NOISE = (
+    "Background noise given with --noise was added arithmetically on top of the noise "
+    "already in the recording: use it only for a recording made without the site's "
+    "normal noise (e.g. an empty building), or that noise is counted twice."
+)
+
+LEVEL_FROM_SPECTRUM = (
+    "The auditory corrections use the standard male speech spectrum at the measured "
+    "A-weighted level of the received test signal, not the measured band levels."
+)
+
+
+@dataclass(frozen=True)
+class UsablePart:
+    """Where the test signal is in a recording, in samples (stop exclusive)."""
+
+    start: int
+    stop: int
+    signal_start: int
+    signal_stop: int
+    fs: int
+
+    def to_dict(self) -> dict:
+        return {
+            "signal_start_s": round(self.signal_start / self.fs, 3),
+            "signal_end_s": round(self.signal_stop / self.fs, 3),
+            "analysed_start_s": round(self.start / self.fs, 3),
+            "analysed_end_s": round(self.stop / self.fs, 3),
+        }
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    d = np.diff(np.concatenate(([0], mask.astype(np.int8), [0])))
+    return list(zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1)))
+
+
+def find_usable_part(x: np.ndarray, fs: int, *, min_seconds: float, name: str = "recording") -> UsablePart:
+    """Find the test signal in a recording (energy-based) and leave out the settling margins.
+
+    Parameters
+    ----------
+    x : 1-D recording.
+    fs : sample rate, Hz.
+    min_seconds : shortest analysable part (after the margins), s.
+
+    Raises
+    ------
+    InputError if the test signal part is shorter than ``min_seconds`` + 2 margins.
+    """
+    frame = max(1, int(round(FRAME_S * fs)))
+    nfr = x.size // frame
+    need = min_seconds + 2 * GUARD_S
+    if nfr < 3:
+        raise InputError(
+            f"{name} is {x.size / fs:.2f} s long; the analysis needs at least {need:.1f} s of test signal",
+            f"record at least {max(need, std.STIPA_MIN_SECONDS):.0f} s of the test signal",
+        )
+    e = np.mean(np.square(x[: nfr * frame]).reshape(nfr, frame), axis=1)
+    w = max(1, int(round(SMOOTH_S / FRAME_S)))
+    sm = np.convolve(e, np.ones(w) / w, mode="same")
+    with np.errstate(divide="ignore"):
+        lev = 10.0 * np.log10(np.maximum(sm, 1e-30))
+    hi = float(np.percentile(lev, 95))
+    runs = _runs(lev > hi - ACTIVE_THRESHOLD_DB)
+    merged = [list(runs[0])]
+    gap = MAX_GAP_S / FRAME_S
+    for a, b in runs[1:]:
+        if a - merged[-1][1] < gap:
+            merged[-1][1] = b
+        else:
+            merged.append([a, b])
+    a, b = max(merged, key=lambda r: r[1] - r[0])
+    # the smoothing blurs the edges by half its length: refine them on the raw frames
+    with np.errstate(divide="ignore"):
+        raw = 10.0 * np.log10(np.maximum(e[a:b], 1e-30))
+    above = np.flatnonzero(raw > hi - ACTIVE_THRESHOLD_DB)
+    if above.size:
+        a, b = a + int(above[0]), a + int(above[-1]) + 1
+    s0, s1 = int(a * frame), int(min(x.size, b * frame))
+    g = int(round(GUARD_S * fs))
+    start, stop = s0 + g, s1 - g
+    have = (s1 - s0) / fs
+    if stop - start < min_seconds * fs:
+        raise InputError(
+            f"{name} holds {have:.1f} s of test signal; the analysis needs at least {need:.1f} s "
+            f"({min_seconds:.1f} s plus {GUARD_S:g} s settling margin at each end)",
+            f"record at least {max(need, std.STIPA_MIN_SECONDS):.0f} s of the test signal",
+        )
+    return UsablePart(start=start, stop=stop, signal_start=s0, signal_stop=s1, fs=int(fs))
+
+
+def _whole_periods(n: int, fs_env: float, f: float) -> int:
+    """Samples of the longest window of whole periods of ``f`` within ``n`` samples."""
+    periods = int(np.floor(n / fs_env * f + 1e-9))
+    return int(round(periods / f * fs_env)) if periods > 0 else 0
+
+
+def band_depths(
+    env: np.ndarray,
+    fs_env: float,
+    freqs: np.ndarray,
+    exclude_hz: Sequence[float],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Modulation depths of intensity envelopes at known frequencies.
+
+    Parameters
+    ----------
+    env : (bands, n) intensity envelopes.
+    fs_env : envelope sample rate, Hz.
+    freqs : (bands, F) modulation frequencies per band; the window of band k is the
+        longest whole number of periods of ``min(freqs[k])`` (every other frequency of
+        the band must be a whole multiple of it).
+    exclude_hz : all modulation frequencies of the signal (kept out of the noise floor).
+
+    Returns
+    -------
+    depth : (bands, F) noise-corrected depths, sqrt(max(|d|^2 - floor^2, 0)).
+    raw : (bands, F) uncorrected depths 2|X(F)|/X(0).
+    floor : (bands,) RMS depth of the envelope noise at unused frequencies of the
+        window (median-based, over 0.4-16 Hz).
+    local : (bands, F) the same from the :data:`LOCAL_FLOOR_BINS` unused bins nearest to
+        each frequency (for telling a line from a continuous modulation spectrum).
+    """
+    nb, nf = freqs.shape
+    raw = np.full((nb, nf), np.nan)
+    local = np.full((nb, nf), np.nan)
+    floor = np.full(nb, np.nan)
+    for k in range(nb):
+        n = _whole_periods(env.shape[1], fs_env, float(np.min(freqs[k])))
+        if n < 8:
+            continue
+        e = env[k, :n]
+        dc = float(np.sum(e))
+        if dc <= 0:
+            raw[k] = 0.0
+            floor[k] = local[k] = np.inf
+            continue
+        t = np.arange(n) / fs_env
+        ph = np.exp(-2j * np.pi * np.outer(freqs[k], t))
+        raw[k] = 2.0 * np.abs(ph @ e) / dc
+        spec = 2.0 * np.abs(np.fft.rfft(e)) / dc
+        fb = np.arange(spec.size) * fs_env / n
+        keep = (fb >= FLOOR_BAND_HZ[0]) & (fb <= FLOOR_BAND_HZ[1])
+        df = fs_env / n
+        for f in exclude_hz:
+            keep &= np.abs(fb - f) > FLOOR_EXCLUDE_BINS * df
+        if not np.any(keep):
+            continue
+        p2, fk = spec[keep] ** 2, fb[keep]
+        # the median of |d|^2 of a complex Gaussian phasor is ln(2) times its mean
+        # power; the median keeps distortion products and stray lines out
+        floor[k] = float(np.sqrt(np.median(p2) / np.log(2.0)))
+        for i, f in enumerate(freqs[k]):
+            near = np.argsort(np.abs(fk - f))[:LOCAL_FLOOR_BINS]
+            local[k, i] = float(np.sqrt(np.median(p2[near]) / np.log(2.0)))
+    fl = np.where(np.isfinite(floor), floor, 0.0)
+    depth = np.sqrt(np.clip(raw ** 2 - fl[:, None] ** 2, 0.0, None))
+    return depth, raw, floor, local
+
+
+def calibration_from_tone(x: np.ndarray, fs: int, level_db: float, *, name: str = "calibrator recording") -> float:
+    """Calibration offset from a recording of a 1 kHz calibrator at a stated level.
+
+    Returns ``C`` such that a signal's level in dB SPL is ``rms_dbfs(signal) + C``.
+    The tone's level is taken in the 1 kHz octave band over the middle 80 % of the
+    recording. Source of the method: IEC 60942:2017 (sound calibrators at 1 kHz).
+    """
+    try:
+        lvl = float(level_db)
+    except (TypeError, ValueError):
+        raise InputError(f"calibrator level '{level_db}' is not a number", "give it in dB SPL, e.g. 94") from None
+    lo, hi = CALIBRATOR_LEVEL_RANGE_DB
+    if not np.isfinite(lvl) or not lo <= lvl <= hi:
+        raise InputError(f"calibrator level {level_db} dB is implausible",
+                         f"give the level printed on the calibrator, {lo:.0f}..{hi:.0f} dB SPL (often 94 or 114)")
+    x = validate_signal(x, fs, name=name, min_seconds=1.0)
+    check_rate_for_octaves(int(fs), name)
+    n = x.size
+    mid = x[int(0.1 * n): int(0.9 * n)]
+    spec = np.abs(np.fft.rfft(mid * np.hanning(mid.size)))
+    fpk = float(np.argmax(spec)) * fs / mid.size
+    k1 = std.OCTAVE_BANDS_HZ.index(std.CALIBRATOR_HZ)
+    band = octave_bands(mid, fs)[k1]
+    share = float(np.sum(band ** 2) / np.sum(mid ** 2))
+    if abs(fpk / std.CALIBRATOR_HZ - 1.0) > CALIBRATOR_FREQ_TOLERANCE or share < CALIBRATOR_BAND_SHARE:
+        raise InputError(
+            f"{name} is not a 1 kHz calibrator tone (spectral peak at {fpk:.0f} Hz, "
+            f"{100 * share:.0f} % of the energy in the 1 kHz octave)",
+            "record the calibrator on the measurement microphone, with nothing else sounding",
+        )
+    return lvl - rms_dbfs(band)
+
+
+def check_calibration_db(value: float | None) -> float | None:
+    if value is None:
+        return None
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"calibration '{value}' is not a number",
+                         "give the dB SPL of a full-scale RMS signal") from None
+    if not np.isfinite(v) or not 0.0 <= v <= 200.0:
+        raise InputError(f"calibration {value} dB is implausible",
+                         "give the dB SPL that a full-scale RMS signal (0 dBFS) corresponds to, e.g. 120")
+    return v
+
+
+@dataclass(frozen=True)
+class _Analysed:
+    """One recording after bands and envelopes."""
+
+    env: np.ndarray
+    fs_env: float
+    part: UsablePart
+    band_ms: np.ndarray  # mean square of each band over the usable part (full scale)
+    fs: int
+    duration_s: float
+
+
+def _analyse_recording(x: np.ndarray, fs: int, min_seconds: float, name: str) -> _Analysed:
+    x = validate_signal(x, fs, name=name)
+    fs = int(fs)
+    check_rate_for_octaves(fs, name)
+    if x.size > MAX_RECORDING_S * fs:
+        raise InputError(f"{name} is {x.size / fs:.0f} s long; at most {MAX_RECORDING_S:.0f} s is analysed",
+                         "cut the recording to the test signal (a STIPA recording needs 15-60 s)")
+    part = find_usable_part(x, fs, min_seconds=min_seconds, name=name)
+    # filter the whole detected signal (the margins absorb the filter transients)
+    seg = x[part.signal_start: part.signal_stop]
+    bands = octave_bands(seg, fs)
+    a, b = part.start - part.signal_start, part.stop - part.signal_start
+    band_ms = np.mean(np.square(bands[:, a:b]), axis=1)
+    env, fs_env = intensity_envelopes(bands, fs)
+    del bands
+    q = int(round(fs / fs_env))
+    env = env[:, a // q: b // q]
+    return _Analysed(env=env, fs_env=fs_env, part=part, band_ms=band_ms, fs=fs, duration_s=x.size / fs)
+
+
+def _window_count(n: int, fs_env: float, f_low: float) -> int:
+    per = MIN_PERIODS_PER_WINDOW / f_low * fs_env
+    return int(np.clip(int(n // per), MIN_WINDOWS, MAX_WINDOWS))
+
+
+def _level_dba(band_ms: np.ndarray, cal: float) -> tuple[np.ndarray, float]:
+    with np.errstate(divide="ignore"):
+        lk = 10.0 * np.log10(np.maximum(band_ms, 1e-30)) + cal
+    la = 10.0 * np.log10(np.sum(10.0 ** ((lk + np.asarray(std.A_WEIGHTING_OCTAVE_DB)) / 10.0)))
+    return lk, float(la)
+
+
+def _check_found(depth_raw: np.ndarray, local: np.ndarray, what: str, name: str) -> None:
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = depth_raw / np.where(local > 0, local, np.nan)
+    found = np.nan_to_num(ratio, nan=0.0) > FOUND_RATIO
+    if int(found.sum()) < MIN_FOUND:
+        raise InputError(
+            f"{name} shows no {what} modulation: only {int(found.sum())} of {found.size} band/frequency "
+            "pairs stand out of the envelope's noise. It is not a recording of this test signal, or the "
+            "channel destroys nearly all modulation (STI far below 0.2)",
+            "check that the test signal was playing and that the right file and channel were given",
+        )
+
+
+@dataclass(frozen=True)
+class DirectResult:
+    """STI of one direct measurement (STIPA recording or full-STI recording set).
+
+    Attributes
+    ----------
+    method : "STIPA" or "full STI".
+    sti : the index and everything that explains it (:class:`envpredict.sti.StiResult`).
+    depth : measured (noise-corrected) modulation depths, (7, F).
+    nominal_depth : the test signal's own depth (0.55 STIPA, 1 full STI).
+    noise_floor : RMS depth of the envelope noise per band (and recording), a measure
+        of how much the carrier's own fluctuation blurs each depth.
+    uncertainty : standard uncertainty of the STI from the spread of repeated windows.
+    window_sti : the STI of each repeat window.
+    calibrated : absolute levels known (auditory corrections applied).
+    band_levels_db : measured octave-band levels, dB SPL (calibrated) or dBFS.
+    level_dba : A-weighted level of the received test signal (calibrated only).
+    recordings : per recording, where the test signal was found, rate, modulation.
+    cautions : texts that must accompany the number.
+    """
+
+    method: str
+    sti: StiResult
+    depth: np.ndarray
+    nominal_depth: float
+    noise_floor: np.ndarray
+    uncertainty: float
+    window_sti: tuple[float, ...]
+    calibrated: bool
+    calibration_db: float | None
+    band_levels_db: np.ndarray
+    level_dba: float | None
+    recordings: tuple[dict, ...]
+    cautions: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict:
+        d = self.sti.to_dict()
+        if not self.calibrated:
+            d["speech_db"] = None
+        d.update(
+            {
+                "method": f"direct ({self.method} recording), IEC 60268-16:2011",
+                "uncertainty": round(self.uncertainty, 4),
+                "uncertainty_method": (f"standard deviation of the STI of {len(self.window_sti)} consecutive "
+                                       "analysis windows / sqrt(number of windows)"),
+                "window_sti": [round(v, 4) for v in self.window_sti],
+                "modulation_depth": np.round(self.depth, 4),
+                "nominal_depth": self.nominal_depth,
+                "envelope_noise_depth": np.round(self.noise_floor, 4),
+                "calibrated": self.calibrated,
+                "calibration_db": self.calibration_db,
+                "band_levels_db": np.round(self.band_levels_db, 1),
+                "band_levels_unit": "dB SPL" if self.calibrated else "dBFS",
+                "level_dba": None if self.level_dba is None else round(self.level_dba, 1),
+                "recordings": list(self.recordings),
+                "cautions": list(self.cautions),
+            }
+        )
+        return jsonable(d)
+
+
+def _finish(
+    method: str,
+    mtf_full: np.ndarray,
+    mtf_windows: list[np.ndarray],
+    modulation_hz,
+    depth: np.ndarray,
+    nominal: float,
+    floor: np.ndarray,
+    band_ms: np.ndarray,
+    calibration_db: float | None,
+    noise_db,
+    talker: str,
+    recordings: list[dict],
+) -> DirectResult:
+    calibrated = calibration_db is not None
+    if calibrated:
+        band_db, la = _level_dba(band_ms, calibration_db)
+        lo, hi = PLAUSIBLE_LEVEL_DBA
+        if not lo <= la <= hi:
+            raise InputError(
+                f"with the calibration given the test signal is at {la:.1f} dB(A), outside {lo:.0f}..{hi:.0f} dB(A)",
+                "check the calibration offset or calibrator level (and that the calibrator was recorded "
+                "with the same gain)",
+            )
+    else:
+        band_db, _ = _level_dba(band_ms, 0.0)
+        la = None
+    kw = dict(modulation_hz=modulation_hz, talker=talker, noise_db=noise_db,
+              speech_level_dba=la if calibrated else std.DEFAULT_SPEECH_LEVEL_DBA, auditory=calibrated)
+    res = sti_from_mtf(mtf_full, **kw)
+    win = [sti_from_mtf(m, **kw).sti for m in mtf_windows]
+    unc = float(np.std(win, ddof=1) / np.sqrt(len(win))) if len(win) > 1 else float("nan")
+
+    cautions = [cau.LIFE_SAFETY]
+    low = cau.below_target(res.sti)
+    if low:
+        cautions.append(low)
+    if not calibrated:
+        cautions.append(NO_CALIBRATION)
+    else:
+        cautions.append(LEVEL_FROM_SPECTRUM)
+    if noise_db is not None:
+        cautions.append(ADDED_NOISE)
+    return DirectResult(
+        method=method, sti=res, depth=depth, nominal_depth=nominal, noise_floor=floor,
+        uncertainty=unc, window_sti=tuple(float(v) for v in win), calibrated=calibrated,
+        calibration_db=calibration_db, band_levels_db=band_db, level_dba=la,
+        recordings=tuple(recordings), cautions=tuple(cautions),
+    )
+
+
+def _check_options(calibration_db, noise_db, talker):
+    talker = check_talker(talker)
+    cal = check_calibration_db(calibration_db)
+    noise = parse_noise_levels(noise_db) if noise_db is not None else None
+    if noise is not None and cal is None:
+        raise InputError("--noise needs absolute levels",
+                         "give a calibration (--calibration-db or --calibrator) so the noise can be "
+                         "set against the measured signal level")
+    return cal, noise, talker
+
+
+def stipa_from_recording(
+    x: np.ndarray,
+    fs: int,
+    *,
+    calibration_db: float | None = None,
+    noise_db: Sequence[float] | str | None = None,
+    talker: str = "male",
+    name: str = "recording",
+    progress: Callable[[int, int], None] | None = None,
+) -> DirectResult:
+    """STI from a recording of the STIPA test signal (IEC 60268-16:2011, Annex B).
+
+    Parameters
+    ----------
+    x : 1-D recording (any rate above 22.6 kHz; it need not match the generator's).
+    fs : its sample rate, Hz.
+    calibration_db : dB SPL of a full-scale RMS signal (``rms_dbfs(x) + C`` is the
+        level in dB SPL), or ``None``: then no auditory masking or reception threshold.
+    noise_db : optional octave-band noise levels added arithmetically (needs a
+        calibration; only for recordings made without the site's normal noise).
+    talker : band weights, "male" or "female".
+    name : what the recording is, for error messages.
+
+    Valid input: at least 2 x 2 periods of 0.63 Hz (6.3 s) of test signal plus 1.25 s at
+    each end (8.9 s); 15-30 s is usual. Not clipped, not silent.
+
+    Examples
+    --------
+    >>> from envpredict.signals import stipa_signal
+    >>> r = stipa_from_recording(stipa_signal(15, 24000), 24000)
+    >>> r.sti.sti > 0.97
+    True
+    """
+    cal, noise, talker = _check_options(calibration_db, noise_db, talker)
+    pairs = np.asarray(std.STIPA_MODULATION_HZ, dtype=float)
+    f_low = float(pairs.min())
+    min_s = MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / f_low
+    if progress:
+        progress(0, 3)
+    rec = _analyse_recording(x, fs, min_s, name)
+    if progress:
+        progress(1, 3)
+    exclude = sorted(set(pairs.ravel()))
+    depth, raw, floor, local = band_depths(rec.env, rec.fs_env, pairs, exclude)
+    _check_found(raw, local, "STIPA", name)
+    nom = std.STIPA_MODULATION_DEPTH
+    nwin = _window_count(rec.env.shape[1], rec.fs_env, f_low)
+    edges = np.linspace(0, rec.env.shape[1], nwin + 1).astype(int)
+    mtf_w = [band_depths(rec.env[:, a:b], rec.fs_env, pairs, exclude)[0] / nom
+             for a, b in zip(edges[:-1], edges[1:])]
+    if progress:
+        progress(2, 3)
+    info = {"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3), **rec.part.to_dict()}
+    out = _finish("STIPA", depth / nom, mtf_w, std.STIPA_MODULATION_HZ, depth, nom, floor,
+                  rec.band_ms, cal, noise, talker, [info])
+    if progress:
+        progress(3, 3)
+    return out
+
+
+def full_sti_from_recordings(
+    recordings: Sequence[tuple[np.ndarray, int, str]],
+    *,
+    calibration_db: float | None = None,
+    noise_db: Sequence[float] | str | None = None,
+    talker: str = "male",
+    progress: Callable[[int, int], None] | None = None,
+) -> DirectResult:
+    """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16:2011, 6.1).
+
+    Each recording holds one signal of :func:`envpredict.signals.full_sti_plan`
+    (all seven bands modulated at one frequency F, depth 1). The frequency of each
+    recording is found from the recording itself (the one of the 14 whose modulation
+    stands out most in the band envelopes), so the order of the recordings does not
+    matter; each frequency must appear exactly once.
+
+    Parameters
+    ----------
+    recordings : sequence of ``(x, fs, name)``.
+    calibration_db, noise_db, talker : as for :func:`stipa_from_recording`.
+
+    Valid input: each recording with at least 4 periods of its modulation frequency
+    plus 1.25 s at each end (the 0.63 Hz signal: 8.9 s).
+    """
+    cal, noise, talker = _check_options(calibration_db, noise_db, talker)
+    freqs = np.asarray(std.MODULATION_FREQUENCIES_HZ, dtype=float)
+    nb, nf = len(std.OCTAVE_BANDS_HZ), freqs.size
+    if len(recordings) != nf:
+        raise InputError(f"{len(recordings)} recording(s) given; the full STI needs {nf}, one per modulation "
+                         "frequency", "give the recordings of all 14 full-STI test signals")
+    nom = std.FULL_STI_MODULATION_DEPTH
+    assigned: dict[int, tuple[str, _Analysed]] = {}
+    depth = np.zeros((nb, nf))
+    floor = np.zeros((nb, nf))
+    band_ms = np.zeros(nb)
+    infos: list[dict] = []
+    if progress:
+        progress(0, nf + 1)
+    for i, (x, fs, name) in enumerate(recordings):
+        # short enough for the fastest signal; the frequency's own minimum is checked below
+        rec = _analyse_recording(x, fs, MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / freqs.max(), name)
+        cand = np.tile(freqs, (nb, 1))
+        # each candidate over its own whole periods: band_depths windows by the lowest
+        # frequency of a row, so evaluate the candidates one at a time
+        raw = np.zeros((nb, nf))
+        fl = np.zeros((nb, nf))
+        for j in range(nf):
+            _, raw[:, j:j + 1], _, fl[:, j:j + 1] = band_depths(rec.env, rec.fs_env, cand[:, j:j + 1], freqs)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            score = np.nanmedian(raw / fl, axis=0)
+        j = int(np.argmax(score))
+        if not score[j] > FOUND_RATIO:
+            raise InputError(
+                f"{name} shows no full-STI modulation at any of the 14 modulation frequencies "
+                "(not a recording of a full-STI test signal, or the channel destroys nearly all modulation)",
+                "check that the test signal was playing and that the right files were given",
+            )
+        if j in assigned:
+            raise InputError(f"{assigned[j][0]} and {name} both carry the {freqs[j]:g} Hz full-STI signal",
+                             "give one recording of each of the 14 signals")
+        need = MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / freqs[j]
+        if (rec.part.stop - rec.part.start) / rec.fs < need:
+            raise InputError(
+                f"{name} ({freqs[j]:g} Hz signal) holds {(rec.part.stop - rec.part.start) / rec.fs:.1f} s of usable "
+                f"signal; at least {need + 2 * GUARD_S:.1f} s of test signal is needed for {freqs[j]:g} Hz",
+                "record the whole generated signal",
+            )
+        d, _, f, _ = band_depths(rec.env, rec.fs_env, freqs[j] * np.ones((nb, 1)), freqs)
+        depth[:, j], floor[:, j] = d[:, 0], f
+        band_ms += rec.band_ms / nf
+        assigned[j] = (name, rec)
+        infos.append({"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3),
+                      "modulation_hz": float(freqs[j]), **rec.part.to_dict()})
+        if progress:
+            progress(i + 1, nf + 1)
+    nwin = min(_window_count(r.env.shape[1], r.fs_env, freqs[j]) for j, (_, r) in assigned.items())
+    mtf_w = []
+    for w in range(nwin):
+        m = np.zeros((nb, nf))
+        for j, (_, r) in assigned.items():
+            edges = np.linspace(0, r.env.shape[1], nwin + 1).astype(int)
+            seg = r.env[:, edges[w]: edges[w + 1]]
+            m[:, j] = band_depths(seg, r.fs_env, freqs[j] * np.ones((nb, 1)), freqs)[0][:, 0] / nom
+        mtf_w.append(m)
+    infos.sort(key=lambda d: d["modulation_hz"])
+    out = _finish("full STI", depth / nom, mtf_w, std.MODULATION_FREQUENCIES_HZ, depth, nom,
+                  floor, band_ms, cal, noise, talker, infos)
+    if progress:
+        progress(nf + 1, nf + 1)
+    return out

@@ -1,0 +1,205 @@
+"""Test signals of the direct STI method: STIPA and the full-STI set (IEC 60268-16:2011).
+
+Both are seven bands of Gaussian noise, one per octave band, each band-limited to the
+middle half octave of its octave (edges fc * 2**(-1/4) .. fc * 2**(1/4), brick-wall in
+the frequency domain, ``standards.TEST_SIGNAL_CARRIER_OCTAVES``), at the levels of the
+male speech spectrum, and intensity-modulated:
+
+* **STIPA** (IEC 60268-16:2011, Annex B): every band at once, band k with its two
+  modulation frequencies (f1, f2) of Table B.1,
+  ``I_k(t) = 1 + 0.55 (sin 2 pi f1 t - sin 2 pi f2 t)`` (never negative, minimum +0.0014).
+* **Full STI** (IEC 60268-16:2011, 6.1): one signal per modulation frequency F of the
+  14, ascending from 0.63 Hz; in each signal all seven bands are modulated at F in
+  phase, ``I(t) = 1 + cos 2 pi F t`` (m = 1). Each signal lasts a settling margin of
+  :data:`SETTLE_S` at both ends plus at least ``FULL_STI_ANALYSIS_SECONDS`` rounded up
+  to whole periods of F (about 12-13 s each, about 3 minutes for the set). One
+  recording per signal; the analysis tells the signals apart by their modulation
+  frequency, so the files may be recorded in any order.
+
+The carrier amplitude is the square root of the intensity envelope. Generation is
+seeded (same seed, same samples) and normalised to a peak of -3 dBFS; 10 ms raised
+cosine fades at both ends avoid clicks. Nothing here reads or writes files.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import standards as std
+from .audio import check_rate
+from .bands import check_rate_for_octaves
+from .exceptions import InputError
+
+#: Margin at each end of a test signal that the analysis leaves out: the build-up and
+#: decay of the room's reverberation (1 s covers reverberation times up to about 3 s
+#: to within 1 %). Shared with :mod:`envpredict.direct`.
+SETTLE_S: float = 1.0
+
+#: Fade-in / fade-out length, s (only to avoid clicks at the file ends).
+FADE_S: float = 0.010
+
+#: Longest signal generated, s (1 hour; beyond that the memory use is unreasonable and
+#: the request is almost certainly a mistake).
+MAX_SECONDS: float = 3600.0
+
+#: Default sample rate of generated signals, Hz.
+DEFAULT_RATE_HZ: int = 48000
+
+
+def check_generation(fs: int, seconds: float | None = None) -> int:
+    fs = check_rate(fs, "test signal")
+    check_rate_for_octaves(fs, "test signal")
+    if seconds is not None:
+        try:
+            s = float(seconds)
+        except (TypeError, ValueError):
+            raise InputError(f"signal length '{seconds}' is not a number", "give it in seconds, e.g. 30") from None
+        if not np.isfinite(s) or not std.STIPA_MIN_SECONDS <= s <= MAX_SECONDS:
+            raise InputError(
+                f"signal length {seconds} s is outside {std.STIPA_MIN_SECONDS:g}..{MAX_SECONDS:g} s",
+                f"give --seconds of at least {std.STIPA_MIN_SECONDS:g} (the STIPA analysis needs that "
+                "much steady signal plus settling margins)",
+            )
+    return fs
+
+
+def octave_band_noise(
+    n: int, fs: int, rng: np.random.Generator, width_octaves: float = std.TEST_SIGNAL_CARRIER_OCTAVES,
+) -> np.ndarray:
+    """Seven independent Gaussian noises, one per octave band, unit RMS.
+
+    Each is limited to ``width_octaves`` centred on the band's centre frequency,
+    brick-wall in the frequency domain (FFT of white noise, bins outside
+    fc * 2**(-w/2) .. fc * 2**(w/2) set to zero): with the default half octave the
+    carrier lies in the flat part of the octave analysis filter and hardly leaks
+    into the neighbouring bands.
+
+    Returns
+    -------
+    ndarray (7, n).
+    """
+    freqs = np.fft.rfftfreq(n, 1.0 / fs)
+    out = np.empty((len(std.OCTAVE_BANDS_HZ), n))
+    for k, fc in enumerate(std.OCTAVE_BANDS_HZ):
+        spec = np.fft.rfft(rng.standard_normal(n))
+        half = 2.0 ** (float(width_octaves) / 2.0)
+        keep = (freqs >= fc / half) & (freqs < fc * half)
+        spec[~keep] = 0.0
+        b = np.fft.irfft(spec, n)
+        out[k] = b / np.sqrt(np.mean(b * b))
+    return out
+
+
+def stipa_envelope(t: np.ndarray, f1: float, f2: float, depth: float = std.STIPA_MODULATION_DEPTH) -> np.ndarray:
+    """STIPA intensity envelope 1 + m (sin 2 pi f1 t - sin 2 pi f2 t), IEC 60268-16:2011 Annex B."""
+    return 1.0 + depth * (np.sin(2 * np.pi * f1 * t) + std.STIPA_MODULATION_SIGN * np.sin(2 * np.pi * f2 * t))
+
+
+def full_sti_envelope(t: np.ndarray, f: float, depth: float = std.FULL_STI_MODULATION_DEPTH) -> np.ndarray:
+    """Full-STI intensity envelope 1 + m cos 2 pi F t (IEC 60268-16:2011, 6.1)."""
+    return 1.0 + depth * np.cos(2 * np.pi * f * t)
+
+
+def _finish(bands: np.ndarray, envelopes: np.ndarray, fs: int) -> np.ndarray:
+    """Modulate, weight to the speech spectrum, sum, fade and normalise to -3 dBFS."""
+    gains = 10.0 ** (np.asarray(std.STIPA_BAND_LEVELS_DB) / 20.0)
+    amp = np.sqrt(np.clip(envelopes, 0.0, None))
+    mod = bands * (amp if amp.ndim == 2 else amp[None, :])
+    # each modulated band at exactly its speech-spectrum level (the random correlation
+    # of carrier and envelope would otherwise move it by up to a few tenths of a dB)
+    mod /= np.sqrt(np.mean(mod * mod, axis=1, keepdims=True))
+    x = gains @ mod
+    nf = max(1, int(round(FADE_S * fs)))
+    ramp = 0.5 - 0.5 * np.cos(np.pi * np.arange(nf) / nf)
+    x[:nf] *= ramp
+    x[-nf:] *= ramp[::-1]
+    peak = float(np.max(np.abs(x)))
+    return x * (10.0 ** (std.TEST_SIGNAL_PEAK_DBFS / 20.0) / peak)
+
+
+def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0) -> np.ndarray:
+    """The STIPA test signal, IEC 60268-16:2011 Annex B.
+
+    Seven octave bands of Gaussian noise (125 Hz ... 8 kHz) at the male speech
+    spectrum levels (Table A.2), band k intensity-modulated by
+    ``1 + 0.55 (sin 2 pi f1 t - sin 2 pi f2 t)`` with its two modulation
+    frequencies of Table B.1.
+
+    Parameters
+    ----------
+    seconds : length, s (15 s ... 1 h; default 30 s).
+    fs : sample rate, Hz (above 22.6 kHz so the 8 kHz octave fits; default 48000).
+    seed : seed of the noise generator (same seed, same signal).
+
+    Returns
+    -------
+    ndarray (round(seconds * fs),), peak at -3 dBFS.
+
+    Examples
+    --------
+    >>> x = stipa_signal(15, 24000)
+    >>> x.size, round(float(abs(x).max()), 3)
+    (360000, 0.708)
+    """
+    fs = check_generation(fs, seconds)
+    n = int(round(float(seconds) * fs))
+    rng = np.random.default_rng(seed)
+    bands = octave_band_noise(n, fs, rng)
+    t = np.arange(n) / fs
+    env = np.stack([stipa_envelope(t, f1, f2) for f1, f2 in std.STIPA_MODULATION_HZ])
+    return _finish(bands, env, fs)
+
+
+@dataclass(frozen=True)
+class FullStiSignalSpec:
+    """One signal of the full-STI set: its place in the order, frequency and length."""
+
+    index: int
+    modulation_hz: float
+    seconds: float
+    filename: str
+
+    def to_dict(self) -> dict:
+        return {"index": self.index, "modulation_hz": self.modulation_hz,
+                "seconds": round(self.seconds, 6), "file": self.filename}
+
+
+def full_sti_plan() -> tuple[FullStiSignalSpec, ...]:
+    """Order, modulation frequencies and lengths of the full-STI signal set.
+
+    Ascending modulation frequency, 0.63 ... 12.5 Hz (IEC 60268-16:2011, Table 1). Each
+    signal: :data:`SETTLE_S` + whole periods of F covering ``FULL_STI_ANALYSIS_SECONDS``
+    + :data:`SETTLE_S`.
+    """
+    out = []
+    for i, f in enumerate(std.MODULATION_FREQUENCIES_HZ, start=1):
+        periods = int(np.ceil(std.FULL_STI_ANALYSIS_SECONDS * f - 1e-9))
+        secs = periods / f + 2 * SETTLE_S
+        out.append(FullStiSignalSpec(i, float(f), float(secs), f"full_sti_{i:02d}_{f:g}Hz.wav"))
+    return tuple(out)
+
+
+def full_sti_signal(modulation_hz: float, seconds: float, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0) -> np.ndarray:
+    """One full-STI test signal: all seven speech-shaped octave noise bands modulated
+    in phase by ``1 + cos 2 pi F t`` (IEC 60268-16:2011, 6.1; m = 1)."""
+    fs = check_generation(fs)
+    n = int(round(float(seconds) * fs))
+    rng = np.random.default_rng(seed)
+    bands = octave_band_noise(n, fs, rng)
+    env = full_sti_envelope(np.arange(n) / fs, float(modulation_hz))
+    return _finish(bands, env, fs)
+
+
+def full_sti_signals(fs: int = DEFAULT_RATE_HZ, *, seed: int = 0):
+    """The full-STI signal set, one signal per modulation frequency, in plan order.
+
+    Yields ``(spec, signal)`` pairs (a generator, so the whole set is never in memory
+    at once). The signals use seeds ``seed``, ``seed + 1``, ... so their noises differ.
+
+    See :func:`full_sti_plan` for the order and lengths.
+    """
+    fs = check_generation(fs)
+    for spec in full_sti_plan():
+        yield spec, full_sti_signal(spec.modulation_hz, spec.seconds, fs, seed=seed + spec.index - 1)

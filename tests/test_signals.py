@@ -1,0 +1,218 @@
+"""Tests of the direct-method test signals (envpredict.signals, ``envpredict testsignal``)."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+import soundfile as sf
+from scipy.signal import hilbert
+
+from envpredict import standards as std
+from envpredict.audio import is_clipped
+from envpredict.bands import octave_bands
+from envpredict.cli import main
+from envpredict.exceptions import InputError
+from envpredict.signals import (
+    full_sti_envelope,
+    full_sti_plan,
+    full_sti_signal,
+    octave_band_noise,
+    stipa_envelope,
+    stipa_signal,
+)
+
+FS = 24000  # above the 22.6 kHz the 8 kHz octave needs, and cheap
+
+
+@pytest.fixture(scope="module")
+def stipa15():
+    return stipa_signal(15, FS, seed=7)
+
+
+def run_cli(args, capsys):
+    """Run the CLI in-process; returns (exit code, stdout, stderr)."""
+    try:
+        main(args)
+        code = 0
+    except SystemExit as e:
+        code = e.code or 0
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+def carrier_mask(freqs, fc, pad_hz=0.0):
+    half = 2.0 ** (std.TEST_SIGNAL_CARRIER_OCTAVES / 2)
+    return (freqs >= fc / half - pad_hz) & (freqs < fc * half + pad_hz)
+
+
+# --- the published modulation form --------------------------------------------------
+
+
+def test_stipa_frequencies_are_table_b1():
+    # IEC 60268-16:2011 Table B.1: f2 = 5 f1 in every band, 0.63 ... 12.5 Hz
+    for f1, f2 in std.STIPA_MODULATION_HZ:
+        assert f2 == pytest.approx(5 * f1)
+    assert sorted(f for p in std.STIPA_MODULATION_HZ for f in p) == sorted(
+        [0.63, 0.8, 1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.25, 8.0, 10.0, 12.5])
+
+
+def test_stipa_envelope_never_negative():
+    # IEC 60268-16 Annex B form 1 + 0.55 (sin a - sin 5a): analytic minimum
+    # 1 - 1.1 * max(-cos 3a sin 2a) > 0; with a plus sign it would reach 1 - 1.1 = -0.1
+    for f1, f2 in std.STIPA_MODULATION_HZ:
+        t = np.linspace(0.0, 1.0 / f1, 200001)
+        env = stipa_envelope(t, f1, f2)
+        assert env.min() >= 0.0
+        assert env.min() < 0.01  # the depth is as large as it can be without going negative
+        assert env.mean() == pytest.approx(1.0, abs=1e-4)
+    t = np.linspace(0, 2, 20001)
+    assert full_sti_envelope(t, 1.0).min() >= -1e-12
+
+
+# --- generation ---------------------------------------------------------------------
+
+
+def test_stipa_signal_is_reproducible_and_seeded():
+    a = stipa_signal(15, FS, seed=3)
+    b = stipa_signal(15, FS, seed=3)
+    c = stipa_signal(15, FS, seed=4)
+    assert np.array_equal(a, b)
+    assert not np.allclose(a, c)
+
+
+def test_stipa_signal_level_and_length(stipa15):
+    x = stipa15
+    assert x.size == 15 * FS
+    # peak at -3 dBFS exactly (3 dB headroom), so no converter clips it
+    assert 20 * np.log10(np.abs(x).max()) == pytest.approx(std.TEST_SIGNAL_PEAK_DBFS, abs=1e-9)
+    assert not is_clipped(x)
+
+
+def test_stipa_signal_is_band_limited_noise(stipa15):
+    # all energy inside the seven carrier bands, widened by the 12.5 Hz modulation
+    # sidebands (and a little for the 10 ms fades)
+    spec = np.abs(np.fft.rfft(stipa15)) ** 2
+    f = np.fft.rfftfreq(stipa15.size, 1 / FS)
+    inside = np.zeros(f.size, bool)
+    for fc in std.OCTAVE_BANDS_HZ:
+        inside |= carrier_mask(f, fc, pad_hz=25.0)
+    assert spec[~inside].sum() / spec.sum() < 1e-4
+
+
+def test_stipa_band_levels_follow_speech_spectrum(stipa15):
+    # IEC 60268-16 Table A.2 male spectrum, relative levels between bands
+    spec = np.abs(np.fft.rfft(stipa15)) ** 2
+    f = np.fft.rfftfreq(stipa15.size, 1 / FS)
+    lev = np.array([10 * np.log10(spec[carrier_mask(f, fc, 15.0)].sum()) for fc in std.OCTAVE_BANDS_HZ])
+    want = np.array(std.SPEECH_SPECTRUM_MALE_DB)
+    np.testing.assert_allclose(lev - lev[3], want - want[3], atol=0.1)
+
+
+def test_stipa_bands_carry_the_nominal_modulation(stipa15):
+    # isolate each carrier by FFT, take its intensity envelope and project onto f1, f2:
+    # depth 0.55 each (IEC 60268-16 Annex B), nothing at the other band's frequencies
+    x = stipa15
+    f = np.fft.rfftfreq(x.size, 1 / FS)
+    X = np.fft.rfft(x)
+    for fc, (f1, f2) in zip(std.OCTAVE_BANDS_HZ, std.STIPA_MODULATION_HZ):
+        band = np.fft.irfft(np.where(carrier_mask(f, fc, 15.0), X, 0), x.size)
+        inten = np.abs(hilbert(band)) ** 2
+        n = int(round(np.floor(13.0 * f1) / f1 * FS))  # whole periods of f1 (and f2 = 5 f1)
+        seg = inten[FS: FS + n]
+        t = np.arange(n) / FS
+        depth = [2 * abs(np.sum(seg * np.exp(-2j * np.pi * fm * t))) / seg.sum() for fm in (f1, f2)]
+        # the carrier's own random fluctuation blurs a 13 s estimate by about 2/sqrt(B*13)
+        tol = 3 * 2 / np.sqrt(fc * (2 ** 0.25 - 2 ** -0.25) * 13)
+        np.testing.assert_allclose(depth, std.STIPA_MODULATION_DEPTH, atol=tol)
+
+
+def test_half_octave_carriers_hardly_leak_into_neighbour_analysis_bands():
+    # the documented reason for half-octave carriers (standards.TEST_SIGNAL_CARRIER_OCTAVES):
+    # octave analysis filters pass < 0.5 % (8 kHz: < 2.5 %) of the other carriers
+    n = 6 * FS
+    b = octave_band_noise(n, FS, np.random.default_rng(0))
+    g = 10 ** (np.array(std.STIPA_BAND_LEVELS_DB) / 20)
+    M = np.stack([np.mean(octave_bands(g[j] * b[j], FS) ** 2, axis=1) for j in range(7)], axis=1)
+    leak = 1 - np.diag(M) / M.sum(axis=1)
+    assert np.all(leak[:6] < 0.005)
+    assert leak[6] < 0.025
+    # and full-octave carriers would not do: more than 5 % somewhere
+    b8 = octave_band_noise(n, FS, np.random.default_rng(0), width_octaves=1.0)
+    M8 = np.stack([np.mean(octave_bands(g[j] * b8[j], FS) ** 2, axis=1) for j in range(7)], axis=1)
+    assert np.max(1 - np.diag(M8) / M8.sum(axis=1)) > 0.05
+
+
+def test_full_sti_plan_order_and_durations():
+    plan = full_sti_plan()
+    assert [p.modulation_hz for p in plan] == list(std.MODULATION_FREQUENCIES_HZ)  # ascending, IEC Table 1
+    assert [p.index for p in plan] == list(range(1, 15))
+    assert len({p.filename for p in plan}) == 14
+    for p in plan:
+        core = p.seconds - 2.0
+        periods = core * p.modulation_hz
+        assert periods == pytest.approx(round(periods), abs=1e-6)  # whole periods
+        assert core >= std.FULL_STI_ANALYSIS_SECONDS - 1e-9
+        assert core < std.FULL_STI_ANALYSIS_SECONDS + 1.0 / p.modulation_hz
+
+
+def test_full_sti_signal_modulation_depth_is_one():
+    x = full_sti_signal(2.0, 8.0, FS, seed=1)
+    assert 20 * np.log10(np.abs(x).max()) == pytest.approx(std.TEST_SIGNAL_PEAK_DBFS, abs=1e-9)
+    inten = octave_bands(x, FS)[3] ** 2  # 1 kHz band
+    seg = inten[FS: 7 * FS]  # 6 s = 12 whole periods of 2 Hz
+    t = np.arange(seg.size) / FS
+    depth = 2 * abs(np.sum(seg * np.exp(-2j * np.pi * 2.0 * t))) / seg.sum()
+    assert depth == pytest.approx(std.FULL_STI_MODULATION_DEPTH, abs=0.05)
+
+
+@pytest.mark.parametrize("kwargs", [dict(seconds=10), dict(seconds=float("nan")), dict(fs=16000),
+                                    dict(fs=44100.5)])
+def test_generation_refuses_bad_options(kwargs):
+    with pytest.raises(InputError):
+        stipa_signal(**{"seconds": 15, "fs": FS, **kwargs})
+
+
+# --- CLI ----------------------------------------------------------------------------
+
+
+def test_cli_testsignal_stipa_writes_wav(tmp_path, capsys):
+    out = tmp_path / "stipa.wav"
+    code, stdout, _ = run_cli(["testsignal", "stipa", str(out), "--seconds", "15", "--rate", "24000",
+                               "--json"], capsys)
+    assert code == 0
+    d = json.loads(stdout)
+    assert d["fs"] == 24000 and d["seconds"] == 15
+    info = sf.info(str(out))
+    assert info.samplerate == 24000 and info.frames == 15 * 24000 and info.subtype == "PCM_24"
+    y, _ = sf.read(str(out))
+    np.testing.assert_allclose(y, stipa_signal(15, 24000, seed=0), atol=2 ** -22)
+
+
+def test_cli_testsignal_stipa_bad_input(tmp_path, capsys):
+    code, _, err = run_cli(["testsignal", "stipa", str(tmp_path / "x.mp3"), "--rate", "24000"], capsys)
+    assert code == 2 and err.startswith("error:") and len(err.strip().splitlines()) == 1
+    code, _, err = run_cli(["testsignal", "stipa", str(tmp_path / "x.wav"), "--seconds", "5"], capsys)
+    assert code == 2 and "15" in err
+    code, _, err = run_cli(["testsignal", "stipa", str(tmp_path / "x.wav"), "--rate", "16000"], capsys)
+    assert code == 2 and "8 kHz" in err
+    assert not any(tmp_path.iterdir())  # nothing half-written
+
+
+def test_cli_testsignal_full_writes_set(tmp_path, capsys):
+    folder = tmp_path / "full"
+    code, stdout, _ = run_cli(["testsignal", "full", str(folder), "--rate", "24000", "--json"], capsys)
+    assert code == 0
+    d = json.loads(stdout)
+    files = sorted(p.name for p in folder.iterdir())
+    assert len(files) == 15 and "signals.json" in files
+    listing = json.loads((folder / "signals.json").read_text())
+    assert [s["modulation_hz"] for s in listing["signals"]] == list(std.MODULATION_FREQUENCIES_HZ)
+    for s in listing["signals"]:
+        info = sf.info(str(folder / s["file"]))
+        assert info.frames == round(s["seconds"] * 24000)
+    assert d["total_seconds"] == pytest.approx(sum(s["seconds"] for s in listing["signals"]), abs=1e-3)
+    # refuses to overwrite
+    code, _, err = run_cli(["testsignal", "full", str(folder), "--rate", "24000"], capsys)
+    assert code == 2 and "not an empty folder" in err
