@@ -40,7 +40,7 @@ them predicts the wrong score; fit your own with :func:`fit_mapping` on pilot da
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Callable, Sequence
 from collections.abc import Mapping as MappingType
 from dataclasses import dataclass, field
 from typing import Any
@@ -221,6 +221,9 @@ class ScoreMapping:
     index_range : (min, max) index value of the fitted data; predictions outside it
         are extrapolations.
     gof : goodness of fit, or ``None`` for a mapping not fitted here.
+    profile_ci_x50 : profile-likelihood interval of ``x50`` (an end is ``None`` when
+        the likelihood does not fall far enough on that side: the data do not bound it),
+        or ``None`` for a mapping not fitted here.
     source : where the mapping came from (file, rows, method).
     notes : cautions about the fit.
     """
@@ -236,6 +239,7 @@ class ScoreMapping:
     n_trials: int = 0
     index_range: tuple[float, float] | None = None
     gof: GoodnessOfFit | None = None
+    profile_ci_x50: tuple[float | None, float | None] | None = None
     source: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
 
@@ -347,6 +351,7 @@ class ScoreMapping:
             "params": self.params(),
             "ci_level": CI_LEVEL,
             "ci": {k: (None if v is None else list(v)) for k, v in ci.items()},
+            "ci_profile": None if self.profile_ci_x50 is None else {"x50": list(self.profile_ci_x50)},
             "cov_ab": None if self.cov is None else np.asarray(self.cov),
             "n_points": self.n_points,
             "n_trials": self.n_trials,
@@ -396,6 +401,13 @@ def mapping_from_dict(d: Any, source: str = "(dict)") -> ScoreMapping:
     b = _num(params, "b", source)
     if b is None or b <= 0:
         raise InputError(f"mapping {source} has a slope b = {b} (must be > 0)", fix)
+    prof = d.get("ci_profile")
+    prof_x50 = None
+    if isinstance(prof, dict) and isinstance(prof.get("x50"), list) and len(prof["x50"]) == 2:
+        try:
+            prof_x50 = tuple(None if v is None else float(v) for v in prof["x50"])
+        except (TypeError, ValueError):
+            raise InputError(f"mapping {source}: 'ci_profile.x50' is not two numbers", fix) from None
     guess, lapse = check_guess_lapse(_num(d, "guess", source, required=False) or 0.0,
                                      _num(d, "lapse", source, required=False) or 0.0)
     cov = d.get("cov_ab")
@@ -419,7 +431,7 @@ def mapping_from_dict(d: Any, source: str = "(dict)") -> ScoreMapping:
     return ScoreMapping(
         index=index.strip().lower(), shape=shape, a=float(a), b=float(b), guess=guess, lapse=lapse,
         cov=cov_arr, n_points=int(d.get("n_points") or 0), n_trials=int(d.get("n_trials") or 0),
-        index_range=index_range, gof=None, source=str(d.get("source") or source),
+        index_range=index_range, gof=None, profile_ci_x50=prof_x50, source=str(d.get("source") or source),
         notes=tuple(str(n) for n in notes) if isinstance(notes, list) else (),
     )
 
@@ -458,6 +470,22 @@ def _check_score_arrays(index_values: Any, correct: Any, trials: Any) -> tuple[n
         raise InputError(f"row {bad[0] + 1} has more correct ({k[bad[0]]:g}) than trials ({n[bad[0]]:g})",
                          "check the correct and trials columns")
     return x, k, n
+
+
+def _negloglik(a: float, b: float, x, k, n, shape, guess, lapse) -> float:
+    """Negative log-likelihood only (without binomial coefficients)."""
+    eta = a + b * x
+    if guess == 0.0 and lapse == 0.0:
+        logp, log1mp = _log_cdf_pair(shape, eta)
+    else:
+        F = _cdf(shape, eta)
+        s = 1.0 - guess - lapse
+        with np.errstate(divide="ignore"):
+            logp = np.log(guess + s * F)
+            log1mp = np.log(lapse + s * (1.0 - F))
+    with np.errstate(invalid="ignore"):
+        terms = np.where(k > 0, k * logp, 0.0) + np.where(n - k > 0, (n - k) * log1mp, 0.0)
+    return -float(np.sum(terms))
 
 
 def _negloglik_parts(theta: np.ndarray, x, k, n, shape, guess, lapse):
@@ -651,13 +679,63 @@ def fit_mapping(
         notes.append("many expected counts are below 5: the chi-square p-values are approximate")
     if not np.any(prop < 0.5 * (1 + guess - lapse)) or not np.any(prop > 0.5 * (1 + guess - lapse)):
         notes.append("all scores lie on one side of the curve's midpoint: x50 is an extrapolation")
+    prof = _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, float(nll), cov)
+    if prof[0] is None or prof[1] is None:
+        notes.append("the profile-likelihood interval of x50 is open on one side: the data do not bound it")
     return ScoreMapping(
         index=str(index).strip().lower() or "index", shape=shape, a=a, b=b, guess=guess, lapse=lapse,
         cov=cov, n_points=int(x.size), n_trials=int(np.sum(n)),
         index_range=(float(np.min(x)), float(np.max(x))), gof=gof,
         source=source or f"binomial maximum-likelihood fit to {x.size} rows",
-        notes=tuple(notes),
+        notes=tuple(notes), profile_ci_x50=prof,
     )
+
+
+def _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, nll_min, cov) -> tuple[float | None, float | None]:
+    """Profile-likelihood interval of x50 at :data:`CI_LEVEL`.
+
+    With eta = b (x - x50), the profile of x50 maximises the likelihood over b > 0 at
+    each fixed x50; the interval holds the x50 whose likelihood-ratio statistic
+    2 (log L_max - log L_profile) stays below the chi-square(1) quantile
+    (Venzon & Moolgavkar 1988, Appl. Statist. 37(1); McCullagh & Nelder 1989, 7.2).
+    """
+    from scipy.optimize import brentq, minimize_scalar
+    from scipy.stats import chi2
+
+    crit = float(chi2.ppf(CI_LEVEL, 1))
+    x50_hat = -a / b
+    log_b = math.log(b)
+
+    def prof_nll(x50: float) -> float:
+        def f(lb: float) -> float:
+            bb = math.exp(lb)
+            return _negloglik(-bb * x50, bb, x, k, n, shape, guess, lapse)
+
+        r = minimize_scalar(f, bounds=(log_b - 12.0, log_b + 12.0), method="bounded",
+                            options={"xatol": 1e-9})
+        return float(r.fun)
+
+    def g(x50: float) -> float:
+        return 2.0 * (prof_nll(x50) - nll_min) - crit
+
+    se = math.sqrt(max(float(np.array([-1 / b, a / b ** 2]) @ cov @ np.array([-1 / b, a / b ** 2])), 1e-24))
+    span = max(float(np.ptp(x)), se)
+    ends: list[float | None] = []
+    for direction in (-1.0, 1.0):
+        step = se
+        inner, outer = x50_hat, None
+        while step <= 20.0 * span:  # look up to 20 data ranges away (judgement)
+            cand = x50_hat + direction * step
+            if g(cand) > 0:
+                outer = cand
+                break
+            inner = cand
+            step *= 2.0
+        if outer is None:
+            ends.append(None)
+        else:
+            ends.append(float(brentq(g, min(inner, outer), max(inner, outer), xtol=1e-10)))
+    return ends[0], ends[1]
 
 
 # ---------------------------------------------------------------------------
@@ -684,12 +762,16 @@ def _cell_float(row: MappingType[str, Any], column: str, line: int, source: str,
     return f
 
 
-def _check_columns(header: Sequence[str], needed: Iterable[str], source: str) -> None:
-    missing = [c for c in needed if c not in header]
-    if missing:
-        have = ", ".join(h for h in header if h) or "(none)"
-        raise InputError(f"{source} has no column '{missing[0]}' (columns: {have})",
-                         "name the column with the matching option, or add it to the file")
+def _resolve_column(header: Sequence[str], name: str, source: str) -> str:
+    """The header entry called ``name`` (exact, else the one case-insensitive match)."""
+    if name in header:
+        return name
+    near = [h for h in header if h.lower() == name.lower()]
+    if len(near) == 1:
+        return near[0]
+    have = ", ".join(h for h in header if h) or "(none)"
+    raise InputError(f"{source} has no column '{name}' (columns: {have})",
+                     "name the column with the matching option, or add it to the file")
 
 
 def scores_from_rows(
@@ -706,7 +788,7 @@ def scores_from_rows(
     ``rows`` are ``(line_number, {column: text})`` pairs as read from a CSV file;
     errors name ``source``, the line and the column. Counts must be whole numbers.
     """
-    _check_columns(header, (index, correct, trials), source)
+    index, correct, trials = (_resolve_column(header, c, source) for c in (index, correct, trials))
     if not rows:
         raise InputError(f"{source} has a header but no rows", "add one row per tested condition")
     xs, ks, ns = [], [], []
@@ -789,8 +871,7 @@ def add_predictions(
     values outside the range of the data the mapping was fitted on are marked
     ``extrapolated`` in ``column + "_note"``.
     """
-    col = index_column or mapping.index
-    _check_columns(header, (col,), source)
+    col = _resolve_column(header, index_column or mapping.index, source)
     flag = f"{column}_note"
     for c in (column, flag):
         if c in header:

@@ -122,6 +122,30 @@ def test_fit_matches_statsmodels_probit():
     assert m.gof.deviance == pytest.approx(glm.deviance, rel=1e-6)
 
 
+def test_profile_likelihood_interval_of_x50_matches_statsmodels_profile():
+    # independent profile: for fixed x50 the model logit p = b (x - x50) is a GLM without
+    # intercept; its maximised log-likelihood (statsmodels) gives the likelihood-ratio
+    # statistic, and the interval ends are where it equals chi2(1).ppf(0.95) (scipy)
+    from scipy.optimize import brentq
+
+    x = np.linspace(0.45, 0.8, 5)
+    n = np.full(x.size, 20)
+    k = simulate(-10.0, 15.0, x, n, seed=21)
+    m = fit_mapping(x, k, n)
+    full = sm.GLM(np.c_[k, n - k], sm.add_constant(x), family=sm.families.Binomial()).fit()
+
+    def lr(x50):
+        prof = sm.GLM(np.c_[k, n - k], (x - x50)[:, None], family=sm.families.Binomial()).fit()
+        return 2 * (full.llf - prof.llf) - stats.chi2.ppf(0.95, 1)
+
+    x50 = -full.params[0] / full.params[1]
+    lo = brentq(lr, x50 - 0.3, x50)
+    hi = brentq(lr, x50, x50 + 0.3)
+    assert m.profile_ci_x50 == pytest.approx((lo, hi), abs=1e-6)
+    # the profile interval is not the symmetric Wald interval
+    assert m.to_dict()["ci_profile"]["x50"] == pytest.approx([lo, hi], abs=1e-6)
+
+
 def test_fit_recovers_known_parameters_and_intervals_cover():
     # 300 data sets simulated with scipy.stats.binom at known (a, b): estimates are
     # nearly unbiased and the 95 % intervals cover the truth about 95 % of the time
@@ -309,6 +333,8 @@ def test_add_predictions_column():
     assert tab.rows[1]["predicted_percent"] == "" and tab.n_blank == 1
     assert float(tab.rows[2]["predicted_percent"]) == pytest.approx(100 * expit(-9 + 15 * 0.95), abs=0.01)
     assert tab.rows[2]["predicted_percent_note"] == "extrapolated" and tab.n_extrapolated == 1
+    header, rows = rows_of([{"STOI": "0.6"}])  # column names match regardless of case
+    assert float(add_predictions(rows, header, m).rows[0]["predicted_percent"]) == pytest.approx(50.0)
     header, rows = rows_of([{"stoi": "high"}])
     with pytest.raises(InputError, match="row 2, column 'stoi'"):
         add_predictions(rows, header, m, source="r.csv")

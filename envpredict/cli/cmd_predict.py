@@ -123,6 +123,10 @@ def render_fit(d: dict, rows: list[list[str]]) -> str:
     for k, v in d["params"].items():
         ci = d["ci"].get(k)
         prow.append([labels.get(k, k), fmt(v, ".4g"), "—" if ci is None else f"{ci[0]:.4g} .. {ci[1]:.4g}"])
+    prof = (d.get("ci_profile") or {}).get("x50")
+    if prof is not None:
+        ends = [("open" if v is None else f"{v:.4g}") for v in prof]
+        prow.append(["x50, profile likelihood", "", f"{ends[0]} .. {ends[1]}"])
     lines.append(table(prow, ["parameter", "estimate", lvl]))
     f = d["fit"]
     if f:
