@@ -15,13 +15,15 @@ Three pieces, each a pure function on arrays (no file I/O, no printing):
   between the guess rate and 1 - lapse) and ``slope_at_x50 = (1 - guess - lapse) *
   F'(0) * b`` (proportion correct per index unit at ``x50``; ``F'(0)`` is 1/4 for the
   logistic and 1/sqrt(2 pi) for the normal). ``guess`` (e.g. 1/m for an m-alternative
-  closed-set test) and ``lapse`` are fixed by the user, not fitted: a small pilot
-  cannot determine them (Wichmann & Hill 2001, Percept. Psychophys. 63(8), show that
-  a mis-specified lapse rate biases the slope; fixing it is the usual remedy).
+  closed-set test) and ``lapse`` are fixed by the user, not fitted. This is a
+  simplification: Wichmann & Hill (2001, Percept. Psychophys. 63(8)) show that
+  ignoring lapses biases the fitted slope and fit the lapse rate inside a narrow
+  range, which takes more trials near the ceiling than a small pilot has.
 * :func:`fit_mapping` -- binomial maximum-likelihood fit of ``a, b`` to rows of
   (index value, number correct, number of trials), with Wald confidence intervals
-  from the observed information (delta method for ``x50`` and ``slope_at_x50``),
-  deviance and Pearson chi-square goodness of fit, and refusals when the data cannot
+  from the observed information (delta method for ``x50`` and ``slope_at_x50``), a
+  profile-likelihood interval for ``x50``, deviance and Pearson chi-square goodness
+  of fit, and refusals when the data cannot
   determine the curve. For guess = lapse = 0 the logistic fit is the binomial GLM
   with logit link and the normal fit the GLM with probit link (McCullagh & Nelder
   1989, *Generalized Linear Models*, 2nd ed., ch. 4).
@@ -31,6 +33,14 @@ Three pieces, each a pure function on arrays (no file I/O, no printing):
   reports the SNR at target scores (the predicted speech reception threshold, SRT, at
   50 % by default) with a confidence interval from the spread over noise segments,
   and the slope of the predicted psychometric function at each target in %/dB.
+
+A mapping is stored as a JSON object (MAP.json, :meth:`ScoreMapping.to_dict`):
+``format`` ("envpredict-score-mapping"), ``version``, ``index``, ``shape``,
+``formula``, ``guess``, ``lapse``, ``params`` (``a``, ``b``, ``x50``,
+``slope_at_x50``), ``ci_level``, ``ci`` (one ``[low, high]`` per parameter),
+``ci_profile`` (``{"x50": [low, high]}``), ``cov_ab``, ``n_points``, ``n_trials``,
+``index_range``, ``fit`` (goodness of fit), ``source`` and ``notes``. Only
+``index``, ``shape`` and ``params.a``/``params.b`` are needed to read one back.
 
 No built-in mapping is shipped. Published index-to-score fits belong to one speech
 corpus, one listener group and one kind of processing, and a mapping used outside
@@ -677,6 +687,8 @@ def fit_mapping(
             "listeners or items differ; the confidence intervals are too narrow")
     if approximate:
         notes.append("many expected counts are below 5: the chi-square p-values are approximate")
+    if guess > 0 and np.any(prop < guess):
+        notes.append(f"some scores lie below the guess rate ({100 * guess:g} %): check the guess rate")
     if not np.any(prop < 0.5 * (1 + guess - lapse)) or not np.any(prop > 0.5 * (1 + guess - lapse)):
         notes.append("all scores lie on one side of the curve's midpoint: x50 is an extrapolation")
     prof = _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, float(nll), cov)
