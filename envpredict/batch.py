@@ -641,6 +641,7 @@ def _run_pool(jobs: Sequence[dict], workers: int) -> Iterator[dict]:
     todo = iter(jobs)
     window = workers * IN_FLIGHT_PER_WORKER
     ex = ProcessPoolExecutor(max_workers=workers, mp_context=mp.get_context("spawn"), initializer=_worker_init)
+    finished_cleanly = False
     try:
         running: dict = {}
         for job in todo:
@@ -662,8 +663,11 @@ def _run_pool(jobs: Sequence[dict], workers: int) -> Iterator[dict]:
                 nxt = next(todo, None)
                 if nxt is not None:
                     running[ex.submit(score_row, nxt)] = nxt
+        finished_cleanly = True
     finally:
-        ex.shutdown(wait=True, cancel_futures=True)
+        # on an interrupt or error, do not wait for the rows still running: their
+        # results would not be written anyway, and --resume scores them again
+        ex.shutdown(wait=finished_cleanly, cancel_futures=True)
 
 
 def _connect(address: str):
@@ -675,23 +679,24 @@ def _connect(address: str):
             "install the cluster extra: pip install 'envpredict[cluster]'",
         ) from None
     try:
-        return Client(address, timeout=f"{CONNECT_TIMEOUT_S}s")
+        client = Client(address, timeout=f"{CONNECT_TIMEOUT_S}s")
     except (OSError, TimeoutError, ValueError) as e:
         raise InputError(f"cannot reach the dask scheduler at '{address}' ({type(e).__name__}: {e})",
                          "check the address (tcp://HOST:PORT) and that the scheduler is running") from None
+    threads = sum(client.nthreads().values())
+    if threads == 0:
+        client.close()
+        raise InputError(f"the dask cluster at '{address}' has no workers", "start workers, then rerun")
+    return client, threads
 
 
-def _run_dask(jobs: Sequence[dict], address: str, info: dict) -> Iterator[dict]:
+def _run_dask(jobs: Sequence[dict], client: Any, threads: int) -> Iterator[dict]:
     import uuid
 
     from distributed import as_completed
 
-    client = _connect(address)
+    futures: dict = {}
     try:
-        threads = sum(client.nthreads().values())
-        if threads == 0:
-            raise InputError(f"the dask cluster at '{address}' has no workers", "start workers, then rerun")
-        info["workers"] = threads
         run = uuid.uuid4().hex[:12]
         todo = iter(jobs)
         window = max(threads * IN_FLIGHT_PER_WORKER, 8)
@@ -699,7 +704,6 @@ def _run_dask(jobs: Sequence[dict], address: str, info: dict) -> Iterator[dict]:
         def submit(job):
             return client.submit(score_row, job, pure=False, key=f"envpredict-row-{run}-{job['row']}")
 
-        futures = {}
         for job in todo:
             futures[submit(job)] = job
             if len(futures) >= window:
@@ -725,9 +729,8 @@ def _run_dask(jobs: Sequence[dict], address: str, info: dict) -> Iterator[dict]:
                 ac.add(f)
     finally:
         with contextlib.suppress(Exception):
-            client.cancel(list(futures)) if "futures" in locals() and futures else None
-        with contextlib.suppress(Exception):
-            client.close()
+            if futures:
+                client.cancel(list(futures))
 
 
 # ---------------------------------------------------------------------------
@@ -822,15 +825,25 @@ def run_batch(
         raise InputError("--resume and --overwrite contradict each other", "choose one")
     m = manifest if isinstance(manifest, Manifest) else read_manifest(
         manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker)
-    writer = ResultWriter.open(out, m, resume=resume, overwrite=overwrite, retry_failed=retry_failed)
+    client = threads = None
+    if scheduler is not None:  # reach the cluster before any output is created
+        client, threads = _connect(str(scheduler).strip())
+    out_path = Path(out)
+    created = not out_path.exists()
+    try:
+        writer = ResultWriter.open(out_path, m, resume=resume, overwrite=overwrite, retry_failed=retry_failed)
+    except BaseException:
+        if client is not None:
+            client.close()
+        raise
     t0 = time.monotonic()
+    scored = 0
     try:
         jobs = writer.pending()
         skipped = len(m) - len(jobs)
-        info: dict[str, Any] = {}
-        if scheduler is not None:
-            backend, n_workers = "dask", 0
-            results: Iterable[dict] = _run_dask(jobs, str(scheduler).strip(), info)
+        if client is not None:
+            backend, n_workers = "dask", int(threads)
+            results: Iterable[dict] = _run_dask(jobs, client, int(threads))
         else:
             n_workers = workers or usable_cores()
             n_workers = max(1, min(n_workers, len(jobs))) if jobs else 1
@@ -840,17 +853,29 @@ def run_batch(
                 backend, results = "process pool", _run_pool(jobs, n_workers)
         if progress:
             progress(0, len(jobs))
-        scored = 0
         if jobs:
-            for res in results:
-                writer.add(res)
-                scored += 1
-                if progress:
-                    progress(scored, len(jobs))
-        n_workers = info.get("workers", n_workers)
+            try:
+                for res in results:
+                    writer.add(res)
+                    scored += 1
+                    if progress:
+                        progress(scored, len(jobs))
+            finally:
+                close = getattr(results, "close", None)
+                if close is not None:
+                    close()  # stop the executor now, also on an interrupt or a failed write
         writer.finish()
+    except BaseException:
+        writer.close()
+        if created and not writer.done:
+            with contextlib.suppress(OSError):
+                out_path.unlink()  # nothing was scored: leave no file behind
+        raise
     finally:
         writer.close()
+        if client is not None:
+            with contextlib.suppress(Exception):
+                client.close()
     fails = writer.failures()
     return BatchSummary(
         manifest=str(m.path), out=str(out), backend=backend, workers=n_workers, total=len(m),

@@ -191,6 +191,14 @@ def test_unreachable_scheduler_is_an_input_error(ir_corpus, tmp_path, monkeypatc
     monkeypatch.setattr(batch, "CONNECT_TIMEOUT_S", 1.0)
     with pytest.raises(InputError, match="cannot reach the dask scheduler"):
         run_batch(ir_corpus["manifest"], tmp_path / "x.csv", scheduler="tcp://127.0.0.1:9")
+    assert not (tmp_path / "x.csv").exists()  # refused before any output
+
+
+def test_missing_output_folder_is_refused(ir_corpus, tmp_path):
+    with pytest.raises(InputError, match="output folder .* does not exist"):
+        run_batch(ir_corpus["manifest"], tmp_path / "no" / "r.csv")
+    with pytest.raises(InputError, match="is the manifest itself"):
+        run_batch(ir_corpus["manifest"], ir_corpus["manifest"], resume=True)
 
 
 # ---------------------------------------------------------------------------

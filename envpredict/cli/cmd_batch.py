@@ -62,7 +62,9 @@ def batch_command(
 
     Uses all cores (or a dask cluster), writes each row as it finishes, survives
     interruption (--resume finishes the rest), and exits non-zero if any row failed.
-    Progress goes to stderr; with --json the summary is one JSON object on stdout.
+    While running, the results file holds the finished rows in completion order; when
+    the batch completes it is rewritten (atomically) in manifest order. Progress goes
+    to stderr; with --json the summary is one JSON object on stdout.
     """
     from envpredict.batch import read_manifest, run_batch
 
