@@ -99,6 +99,12 @@ LOCAL_FLOOR_BINS: int = 12
 FOUND_RATIO: float = 4.0
 MIN_FOUND: int = 3
 
+#: Full STI: a recording carries modulation frequency F when the mean over the seven
+#: bands of (depth / local noise depth)^2 at F exceeds this (for noise alone that mean
+#: is about Gamma(7, 1/7) distributed: P(> 4) < 1e-6), and F is the candidate with
+#: the largest such mean.
+FULL_FOUND_SCORE: float = 4.0
+
 #: Plausible A-weighted level of a calibrated test-signal recording, dB(A).
 PLAUSIBLE_LEVEL_DBA: tuple[float, float] = std.SPEECH_LEVEL_RANGE_DBA
 
@@ -148,6 +154,11 @@ class UsablePart:
         }
 
 
+def _ceil1(v: float) -> float:
+    """Round up to 0.1 (a stated minimum must not be below the real one)."""
+    return float(np.ceil(v * 10.0 - 1e-9) / 10.0)
+
+
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
     d = np.diff(np.concatenate(([0], mask.astype(np.int8), [0])))
     return list(zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1)))
@@ -168,7 +179,7 @@ def find_usable_part(x: np.ndarray, fs: int, *, min_seconds: float, name: str = 
     """
     frame = max(1, int(round(FRAME_S * fs)))
     nfr = x.size // frame
-    need = min_seconds + 2 * GUARD_S
+    need = _ceil1(min_seconds + 2 * GUARD_S)
     if nfr < 3:
         raise InputError(
             f"{name} is {x.size / fs:.2f} s long; the analysis needs at least {need:.1f} s of test signal",
@@ -202,7 +213,7 @@ def find_usable_part(x: np.ndarray, fs: int, *, min_seconds: float, name: str = 
     if stop - start < min_seconds * fs:
         raise InputError(
             f"{name} holds {have:.1f} s of test signal; the analysis needs at least {need:.1f} s "
-            f"({min_seconds:.1f} s plus {GUARD_S:g} s settling margin at each end)",
+            f"({_ceil1(min_seconds):.1f} s plus {GUARD_S:g} s settling margin at each end)",
             f"record at least {max(need, std.STIPA_MIN_SECONDS):.0f} s of the test signal",
         )
     return UsablePart(start=start, stop=stop, signal_start=s0, signal_stop=s1, fs=int(fs))
@@ -612,10 +623,14 @@ def full_sti_from_recordings(
         fl = np.zeros((nb, nf))
         for j in range(nf):
             _, raw[:, j:j + 1], _, fl[:, j:j + 1] = band_depths(rec.env, rec.fs_env, cand[:, j:j + 1], freqs)
+        # evidence per candidate: mean over bands of (depth / local noise depth)^2; for
+        # a continuous modulation spectrum each term is about Exp(1), so a mean above
+        # FULL_FOUND_SCORE happens by chance with probability below 1e-6
         with np.errstate(invalid="ignore", divide="ignore"):
-            score = np.nanmedian(raw / fl, axis=0)
+            score = np.nanmean((raw / fl) ** 2, axis=0)
+        score = np.nan_to_num(score, nan=0.0)
         j = int(np.argmax(score))
-        if not score[j] > FOUND_RATIO:
+        if not score[j] > FULL_FOUND_SCORE:
             raise InputError(
                 f"{name} shows no full-STI modulation at any of the 14 modulation frequencies "
                 "(not a recording of a full-STI test signal, or the channel destroys nearly all modulation)",
@@ -628,7 +643,7 @@ def full_sti_from_recordings(
         if (rec.part.stop - rec.part.start) / rec.fs < need:
             raise InputError(
                 f"{name} ({freqs[j]:g} Hz signal) holds {(rec.part.stop - rec.part.start) / rec.fs:.1f} s of usable "
-                f"signal; at least {need + 2 * GUARD_S:.1f} s of test signal is needed for {freqs[j]:g} Hz",
+                f"signal; at least {_ceil1(need + 2 * GUARD_S):.1f} s of test signal is needed for {freqs[j]:g} Hz",
                 "record the whole generated signal",
             )
         d, _, f, _ = band_depths(rec.env, rec.fs_env, freqs[j] * np.ones((nb, 1)), freqs)

@@ -1,0 +1,394 @@
+"""Tests of the direct STI method (envpredict.direct, ``envpredict stipa`` / ``fullsti``).
+
+External references:
+* IEC 60268-16:2011 -- an undistorted test signal must read a near-perfect STI
+  (>= 0.97 here; common practice for meter verification).
+* The analytic MTF of an exponential decay with reverberation time T and stationary
+  noise at band SNR (Houtgast & Steeneken; IEC 60268-16:2011, Annex A / 6.2):
+  m(F) = [1 + (2 pi F T / 13.8)^2]^(-1/2) * 1 / (1 + 10^(-SNR/10)).
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+import soundfile as sf
+from scipy.signal import fftconvolve
+
+from envpredict import cautions as cau
+from envpredict import standards as std
+from envpredict.audio import resample
+from envpredict.cli import main
+from envpredict.direct import (
+    NO_CALIBRATION,
+    calibration_from_tone,
+    full_sti_from_recordings,
+    stipa_from_recording,
+)
+from envpredict.exceptions import InputError
+from envpredict.signals import full_sti_signals, stipa_signal
+from envpredict.sti import sti_from_mtf
+
+FS = 24000
+STIPA_F = np.asarray(std.STIPA_MODULATION_HZ)
+FULL_F = np.tile(np.asarray(std.MODULATION_FREQUENCIES_HZ), (7, 1))
+
+
+def analytic_mtf(F, T, snr_db=None):
+    """Houtgast & Steeneken: exponential decay with reverberation time T plus noise."""
+    m = (1.0 + (2 * np.pi * F * T / 13.8) ** 2) ** -0.5
+    return m if snr_db is None else m / (1.0 + 10 ** (-snr_db / 10))
+
+
+def analytic_sti(F, T, snr_db=None, modulation_hz=std.STIPA_MODULATION_HZ):
+    return sti_from_mtf(analytic_mtf(F, T, snr_db), modulation_hz=modulation_hz, auditory=False).sti
+
+
+def carrier_power(y, fc, fs):
+    f = np.fft.rfftfreq(y.size, 1 / fs)
+    half = 2 ** (std.TEST_SIGNAL_CARRIER_OCTAVES / 2)
+    Y = np.fft.rfft(y)
+    return float(np.sum(np.abs(Y[(f >= fc / half) & (f < fc * half)]) ** 2))
+
+
+def room_recording(x, fs, T, snr_db, rng):
+    """Convolve with a decaying-noise IR of reverberation time T (energy -60 dB in T) and
+    add stationary noise generated band by band so that each band's SNR is snr_db."""
+    n = int(1.6 * T * fs)
+    t = np.arange(n) / fs
+    h = rng.standard_normal(n) * np.exp(-6.9 * t / T)
+    y = fftconvolve(x, h)[: x.size]
+    if snr_db is not None:
+        f = np.fft.rfftfreq(y.size, 1 / fs)
+        half = 2 ** (std.TEST_SIGNAL_CARRIER_OCTAVES / 2)
+        noise = np.zeros_like(y)
+        for fc in std.OCTAVE_BANDS_HZ:
+            Z = np.fft.rfft(rng.standard_normal(y.size))
+            Z[~((f >= fc / half) & (f < fc * half))] = 0
+            z = np.fft.irfft(Z, y.size)
+            z *= np.sqrt(carrier_power(y, fc, fs) / carrier_power(z, fc, fs) / 10 ** (snr_db / 10))
+            noise += z
+        y = y + noise
+    return 0.5 * y / np.abs(y).max()
+
+
+def run_cli(args, capsys):
+    """Run the CLI in-process; returns (exit code, stdout, stderr)."""
+    try:
+        main(args)
+        code = 0
+    except SystemExit as e:
+        code = e.code or 0
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+@pytest.fixture(scope="module")
+def stipa24():
+    return stipa_signal(25, FS, seed=3)
+
+
+@pytest.fixture(scope="module")
+def direct24(stipa24):
+    return stipa_from_recording(stipa24, FS)
+
+
+@pytest.fixture(scope="module")
+def stipa48():
+    x = stipa_signal(25, 48000, seed=11)
+    return x, stipa_from_recording(x, 48000)
+
+
+@pytest.fixture(scope="module")
+def full_set():
+    return [(x, FS, spec.filename) for spec, x in full_sti_signals(FS, seed=5)]
+
+
+# --- the undistorted signal ---------------------------------------------------------
+
+
+def test_generated_signal_reads_near_perfect(direct24, stipa48):
+    # IEC 60268-16: an undistorted test signal reads a near-perfect STI (>= 0.97,
+    # common practice for meter verification)
+    for r in (direct24, stipa48[1]):
+        assert r.sti.sti >= 0.97
+        assert r.sti.rating == "A+"
+        assert np.all(r.sti.mtf_measured > 0.75)  # no band lost (the 125 Hz band is the noisiest)
+        assert 0 < r.uncertainty < 0.02
+
+
+def test_json_keys_and_shapes(direct24):
+    d = direct24.to_dict()
+    json.dumps(d, allow_nan=False)
+    for key in ("sti", "rating", "mtf", "mti", "uncertainty", "cautions"):
+        assert key in d
+    assert np.asarray(d["mtf"]).shape == (7, 2)
+    assert len(d["mti"]) == 7
+    assert d["modulation_hz"] == [list(p) for p in std.STIPA_MODULATION_HZ]
+    assert cau.LIFE_SAFETY in d["cautions"]
+    assert NO_CALIBRATION in d["cautions"]
+    assert d["calibrated"] is False and d["speech_db"] is None and d["level_dba"] is None
+    assert d["auditory_corrections"] is False
+    assert len(d["window_sti"]) >= 2
+
+
+# --- round trip against the analytic MTF --------------------------------------------
+
+
+@pytest.mark.parametrize("T, snr", [(0.3, None), (0.5, 15.0), (0.8, 6.0), (1.2, 0.0), (2.0, None), (2.0, 3.0)])
+def test_round_trip_reverberation_and_noise(stipa24, T, snr):
+    # analytic MTF of exponential decay + noise (Houtgast & Steeneken), STIPA frequencies
+    rng = np.random.default_rng(int(T * 100) + (0 if snr is None else int(snr) + 50))
+    y = room_recording(stipa24, FS, T, snr, rng)
+    r = stipa_from_recording(y, FS)
+    want = analytic_sti(STIPA_F, T, snr)
+    assert abs(r.sti.sti - want) <= 0.03, (r.sti.sti, want)
+    # the individual MTF values scatter with the carrier's own fluctuation (largest in
+    # the narrow low bands); their median error is small
+    err = np.abs(r.sti.mtf_measured - analytic_mtf(STIPA_F, T, snr))
+    assert np.median(err) < 0.06
+
+
+def test_more_reverberation_reads_lower(stipa24):
+    # monotonic in T for clearly separated reverberation times (analytic MTF decreases)
+    rng = np.random.default_rng(2)
+    stis = [stipa_from_recording(room_recording(stipa24, FS, T, None, rng), FS).sti.sti for T in (0.4, 1.0, 2.5)]
+    assert stis[0] > stis[1] > stis[2]
+
+
+def test_stated_uncertainty_matches_spread_between_recordings():
+    # the window-based uncertainty must describe the real scatter of repeated
+    # measurements (independent noise carriers): within a factor of 3
+    rng = np.random.default_rng(8)
+    res = [stipa_from_recording(room_recording(stipa_signal(20, FS, seed=s), FS, 0.8, None, rng), FS)
+           for s in range(6)]
+    spread = np.std([r.sti.sti for r in res], ddof=1)
+    stated = np.mean([r.uncertainty for r in res])
+    assert stated / 3 < spread < stated * 3, (spread, stated)
+
+
+# --- where the recording starts, and its sample rate --------------------------------
+
+
+def test_other_rate_and_late_start_give_same_result(stipa48):
+    x, r48 = stipa48
+    y = resample(x, 48000, 44100)
+    rng = np.random.default_rng(4)
+    # the recorder started 0.7 s before the signal (quiet lead-in and tail)
+    lead = np.concatenate([1e-4 * rng.standard_normal(int(0.7 * 44100)), y,
+                           1e-4 * rng.standard_normal(44100)])
+    r1 = stipa_from_recording(lead, 44100)
+    assert r1.recordings[0]["signal_start_s"] == pytest.approx(0.7, abs=0.06)
+    assert abs(r1.sti.sti - r48.sti.sti) <= r48.uncertainty
+    # the recording started 0.7 s after the signal: other windows of the same signal
+    r2 = stipa_from_recording(y[int(0.7 * 44100):], 44100)
+    assert abs(r2.sti.sti - r48.sti.sti) <= max(r48.uncertainty, r2.uncertainty)
+
+
+def test_signal_in_the_middle_of_a_long_recording(stipa24):
+    rng = np.random.default_rng(6)
+    quiet = lambda s: 3e-4 * rng.standard_normal(int(s * FS))  # noqa: E731
+    rec = np.concatenate([quiet(4.0), stipa24, quiet(3.0)])
+    r = stipa_from_recording(rec, FS)
+    info = r.recordings[0]
+    assert info["signal_start_s"] == pytest.approx(4.0, abs=0.06)
+    assert info["signal_end_s"] == pytest.approx(29.0, abs=0.06)
+    assert r.sti.sti >= 0.97
+
+
+# --- calibration ------------------------------------------------------------------
+
+
+def test_calibrator_tone_gives_offset():
+    # a sine of amplitude A has RMS A/sqrt(2): level -23.01 dBFS for A = 0.1
+    t = np.arange(3 * FS) / FS
+    tone = 0.1 * np.sin(2 * np.pi * 1000 * t)
+    c = calibration_from_tone(tone, FS, 94.0)
+    assert c == pytest.approx(94.0 - 20 * np.log10(0.1 / np.sqrt(2)), abs=0.05)
+
+
+def test_calibrator_must_be_a_1khz_tone():
+    rng = np.random.default_rng(1)
+    with pytest.raises(InputError, match="not a 1 kHz calibrator"):
+        calibration_from_tone(0.1 * rng.standard_normal(3 * FS), FS, 94.0)
+    t = np.arange(3 * FS) / FS
+    with pytest.raises(InputError, match="not a 1 kHz calibrator"):
+        calibration_from_tone(0.1 * np.sin(2 * np.pi * 250 * t), FS, 94.0)
+    with pytest.raises(InputError, match="implausible"):
+        calibration_from_tone(0.1 * np.sin(2 * np.pi * 1000 * t), FS, 9.0)
+
+
+def test_calibrated_analysis_applies_auditory_corrections(stipa24, direct24):
+    # choose the offset that puts the received signal at 60 dB(A)
+    rec = room_recording(stipa24, FS, 0.8, None, np.random.default_rng(3))
+    a = np.asarray(std.A_WEIGHTING_OCTAVE_DB)
+    seg = rec[2 * FS: 23 * FS]
+    bands_dbfs = np.array([10 * np.log10(2 * carrier_power(seg, fc, FS) / seg.size ** 2)
+                           for fc in std.OCTAVE_BANDS_HZ])  # Parseval: mean square of each carrier
+    la_fs = 10 * np.log10(np.sum(10 ** ((bands_dbfs + a) / 10)))  # IEC 61672 A-weighting, octave sum
+    cal = 60.0 - la_fs
+    r0 = stipa_from_recording(rec, FS)
+    r = stipa_from_recording(rec, FS, calibration_db=cal)
+    assert r.level_dba == pytest.approx(60.0, abs=0.3)
+    assert r.calibrated and r.sti.auditory
+    assert NO_CALIBRATION not in r.cautions
+    # the same MTF through the one STI code path with the corrections (wiring check)
+    want = sti_from_mtf(r.sti.mtf_measured, modulation_hz=std.STIPA_MODULATION_HZ,
+                        speech_level_dba=r.level_dba, auditory=True).sti
+    assert r.sti.sti == pytest.approx(want, abs=1e-9)
+    assert r.sti.sti < r0.sti.sti  # masking and threshold only take away
+    d = r.to_dict()
+    assert d["band_levels_unit"] == "dB SPL" and d["speech_db"] is not None
+
+
+def test_added_noise_needs_calibration_and_lowers_sti(stipa24):
+    with pytest.raises(InputError, match="needs absolute levels"):
+        stipa_from_recording(stipa24, FS, noise_db="50,47,44,41,38,35,32")
+    quiet = stipa_from_recording(stipa24, FS, calibration_db=80.0)
+    assert 55 < quiet.level_dba < 70
+    r = stipa_from_recording(stipa24, FS, calibration_db=80.0, noise_db="55,52,50,48,45,40,35")
+    assert r.sti.sti < quiet.sti.sti - 0.05
+    assert any("added arithmetically" in c for c in r.cautions)
+    assert not any("added arithmetically" in c for c in quiet.cautions)
+
+
+def test_implausible_calibration_refused(stipa24):
+    with pytest.raises(InputError, match="implausible"):
+        stipa_from_recording(stipa24, FS, calibration_db=-5)
+    with pytest.raises(InputError, match="dB\\(A\\)"):
+        stipa_from_recording(stipa24, FS, calibration_db=190.0)  # puts the signal at ~170 dB(A)
+
+
+# --- bad input ---------------------------------------------------------------------
+
+
+def test_too_short_says_how_long(stipa24):
+    # the lowest STIPA frequency 0.63 Hz: 2 windows x 2 periods = 6.35 s + 2 x 1.25 s margins
+    with pytest.raises(InputError, match=r"at least 8\.9 s"):
+        stipa_from_recording(stipa24[: 7 * FS], FS)
+
+
+def test_not_a_test_signal(full_set):
+    rng = np.random.default_rng(0)
+    with pytest.raises(InputError, match="no STIPA modulation"):
+        stipa_from_recording(0.1 * rng.standard_normal(20 * FS), FS)
+    # speech-like: noise with a strong, continuous 2-8 Hz envelope modulation
+    from scipy.signal import butter, sosfiltfilt
+
+    env = sosfiltfilt(butter(2, [2, 8], "bandpass", fs=FS, output="sos"), rng.standard_normal(20 * FS))
+    env = np.exp(2 * env / env.std())
+    x = rng.standard_normal(20 * FS) * np.sqrt(env)
+    with pytest.raises(InputError, match="no STIPA modulation"):
+        stipa_from_recording(0.3 * x / np.abs(x).max(), FS)
+    # a full-STI signal is not the STIPA signal
+    with pytest.raises(InputError, match="no STIPA modulation"):
+        stipa_from_recording(full_set[6][0], FS)
+
+
+def test_clipped_and_silent_refused(stipa24):
+    with pytest.raises(InputError, match="clipped"):
+        stipa_from_recording(np.clip(4 * stipa24, -1, 1), FS)
+    with pytest.raises(InputError, match="silent"):
+        stipa_from_recording(np.zeros(20 * FS), FS)
+    with pytest.raises(InputError, match="8 kHz octave"):
+        stipa_from_recording(resample(stipa24, FS, 16000), 16000)
+
+
+# --- full STI ----------------------------------------------------------------------
+
+
+def test_full_sti_direct_and_any_order(full_set):
+    r = full_sti_from_recordings(full_set)
+    assert r.sti.sti >= 0.97  # IEC 60268-16: undistorted signal near perfect (common practice)
+    d = r.to_dict()
+    assert np.asarray(d["mtf"]).shape == (7, 14)
+    assert [rec["modulation_hz"] for rec in d["recordings"]] == list(std.MODULATION_FREQUENCIES_HZ)
+    shuffled = [full_set[i] for i in np.random.default_rng(1).permutation(14)]
+    r2 = full_sti_from_recordings(shuffled)
+    assert r2.sti.sti == pytest.approx(r.sti.sti, abs=1e-12)
+
+
+def test_full_sti_round_trip(full_set):
+    rng = np.random.default_rng(12)
+    T, snr = 1.0, 6.0
+    recs = [(room_recording(x, FS, T, snr, rng), fs, name) for x, fs, name in full_set]
+    r = full_sti_from_recordings(recs)
+    want = analytic_sti(FULL_F, T, snr, std.MODULATION_FREQUENCIES_HZ)
+    assert abs(r.sti.sti - want) <= 0.03, (r.sti.sti, want)
+
+
+def test_full_sti_set_must_be_complete(full_set):
+    with pytest.raises(InputError, match="needs 14"):
+        full_sti_from_recordings(full_set[:13])
+    dup = [full_set[0]] + full_set[:13]
+    with pytest.raises(InputError, match="both carry the 0.63 Hz"):
+        full_sti_from_recordings(dup)
+
+
+# --- CLI ------------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def stipa_wav(tmp_path_factory, stipa24):
+    p = tmp_path_factory.mktemp("direct") / "rec.wav"
+    sf.write(str(p), stipa24, FS, subtype="PCM_24")
+    return p
+
+
+def test_cli_stipa_json_and_out(stipa_wav, tmp_path, capsys):
+    out = tmp_path / "r.json"
+    code, stdout, _ = run_cli(["stipa", str(stipa_wav), "--json", "--out", str(out)], capsys)
+    assert code == 0
+    d = json.loads(stdout)
+    assert d["sti"] >= 0.97 and d == json.loads(out.read_text())
+    code, stdout, _ = run_cli(["stipa", str(stipa_wav)], capsys)
+    assert code == 0 and "STI = " in stdout and "NOT calibrated" in stdout
+
+
+def test_cli_stipa_with_calibrator(stipa_wav, tmp_path, capsys):
+    t = np.arange(3 * FS) / FS
+    cal = tmp_path / "cal.wav"
+    sf.write(str(cal), 0.1 * np.sin(2 * np.pi * 1000 * t), FS, subtype="PCM_24")
+    code, stdout, _ = run_cli(["stipa", str(stipa_wav), "--calibrator", str(cal), "--calibrator-level", "94",
+                               "--json"], capsys)
+    assert code == 0
+    d = json.loads(stdout)
+    assert d["calibrated"] and d["calibration_source"] == "calibrator"
+    assert d["calibration_db"] == pytest.approx(94.0 - 20 * np.log10(0.1 / np.sqrt(2)), abs=0.05)
+
+
+@pytest.mark.parametrize("extra, msg", [
+    (["--calibrator-level", "94"], "without --calibrator"),
+    (["--calibration-db", "100", "--calibrator", "x.wav"], "give one of them"),
+    (["--noise", "40,40,40,40,40,40,40"], "needs absolute levels"),
+    (["--talker", "child"], "unknown talker"),
+])
+def test_cli_stipa_bad_options(stipa_wav, extra, msg, capsys):
+    code, _, err = run_cli(["stipa", str(stipa_wav), *extra], capsys)
+    assert code == 2 and msg in err and len(err.strip().splitlines()) == 1
+
+
+def test_cli_stipa_bad_recordings(tmp_path, capsys):
+    silent = tmp_path / "silent.wav"
+    sf.write(str(silent), np.zeros(20 * FS), FS)
+    noise = tmp_path / "noise.wav"
+    sf.write(str(noise), 0.1 * np.random.default_rng(0).standard_normal(20 * FS), FS)
+    for p, msg in ((silent, "silent"), (noise, "no STIPA modulation"), (tmp_path / "none.wav", "does not exist")):
+        out = tmp_path / "o.json"
+        code, _, err = run_cli(["stipa", str(p), "--out", str(out)], capsys)
+        assert code == 2 and msg in err and len(err.strip().splitlines()) == 1
+        assert not out.exists()
+
+
+def test_cli_fullsti_folder(full_set, tmp_path, capsys):
+    for x, fs, name in full_set:
+        sf.write(str(tmp_path / name), x, fs, subtype="PCM_24")
+    code, stdout, _ = run_cli(["fullsti", str(tmp_path), "--json"], capsys)
+    assert code == 0
+    d = json.loads(stdout)
+    assert d["sti"] >= 0.97 and len(d["recordings"]) == 14
+    (tmp_path / full_set[0][2]).unlink()
+    code, _, err = run_cli(["fullsti", str(tmp_path)], capsys)
+    assert code == 2 and "13 recording(s)" in err
