@@ -23,10 +23,10 @@ Three pieces, each a pure function on arrays (no file I/O, no printing):
   (index value, number correct, number of trials), with Wald confidence intervals
   from the observed information (delta method for ``x50`` and ``slope_at_x50``), a
   profile-likelihood interval for ``x50``, deviance and Pearson chi-square goodness
-  of fit, and refusals when the data cannot
-  determine the curve. For guess = lapse = 0 the logistic fit is the binomial GLM
-  with logit link and the normal fit the GLM with probit link (McCullagh & Nelder
-  1989, *Generalized Linear Models*, 2nd ed., ch. 4).
+  of fit, and refusals when the data cannot determine the curve. For guess = lapse
+  = 0 the logistic fit is the binomial GLM with logit link and the normal fit the
+  GLM with probit link (McCullagh & Nelder 1989, *Generalized Linear Models*, 2nd
+  ed., ch. 4).
 * :func:`snr_sweep` -- mixes noise with clean speech at a list of SNRs (several noise
   segments per SNR, optionally after convolving the speech with an impulse
   response), computes an index per mixture and, with a mapping, the predicted score;
