@@ -474,7 +474,7 @@ class ResultWriter:
     # -- opening -----------------------------------------------------------
     @classmethod
     def open(cls, path: str | os.PathLike, manifest: Manifest, *, resume: bool = False,
-             overwrite: bool = False, retry_failed: bool = False) -> "ResultWriter":
+             overwrite: bool = False, retry_failed: bool = False) -> ResultWriter:
         """Open (or create) the results file for ``manifest``.
 
         ``resume`` keeps the rows already in the file (``retry_failed``: except those
@@ -498,6 +498,23 @@ class ResultWriter:
                 f"results file '{p}' already exists",
                 "add --resume to finish it, or --overwrite to start again",
             )
+        # refuse early if another run is writing this file (before reading or replacing it)
+        probe = cls._locked_fd(p, os.O_RDONLY) if p.exists() else None
+        try:
+            done, rewrite = cls._existing_rows(p, manifest, header, exists, resume, overwrite, retry_failed)
+            w = cls(p, manifest, done)
+            if rewrite:
+                w._rewrite(sort=False)
+        finally:
+            if probe is not None:
+                os.close(probe)
+        w._open_append()
+        return w
+
+    @staticmethod
+    def _existing_rows(p: Path, manifest: Manifest, header: list[str], exists: bool, resume: bool,
+                       overwrite: bool, retry_failed: bool) -> tuple[dict[int, list[str]], bool]:
+        """Rows kept from an existing file, and whether the file must be rewritten first."""
         done: dict[int, list[str]] = {}
         rewrite = not exists or overwrite
         if exists and resume and not overwrite:
@@ -541,26 +558,26 @@ class ResultWriter:
                         continue
                     done[row] = rec
                 rewrite = rewrite or torn
-        w = cls(p, manifest, done)
-        if rewrite:
-            w._rewrite(sort=False)
-        w._open_append()
-        return w
+        return done, rewrite
 
-    def _open_append(self) -> None:
-        fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
+    @staticmethod
+    def _locked_fd(path: Path, flags: int) -> int:
+        """Open ``path`` and take an exclusive advisory lock (refused if another run holds it)."""
+        fd = os.open(path, flags, 0o644)
         try:
             import fcntl
         except ImportError:  # Windows: no advisory lock
-            fcntl = None
-        if fcntl is not None:
-            try:
-                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-            except OSError:
-                os.close(fd)
-                raise InputError(f"results file '{self.path}' is being written by another batch run",
-                                 "wait for it to finish, or choose another --out") from None
-        self._fd = fd
+            return fd
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            os.close(fd)
+            raise InputError(f"results file '{path}' is being written by another batch run",
+                             "wait for it to finish, or choose another --out") from None
+        return fd
+
+    def _open_append(self) -> None:
+        self._fd = self._locked_fd(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT)
 
     def _rewrite(self, sort: bool) -> None:
         from .outputs import atomic_write_text

@@ -72,6 +72,37 @@ def _cli(args: list[str]) -> int:
     return 0
 
 
+def _speechlike(rng: np.random.Generator, n: int, fs: int) -> np.ndarray:
+    """Noise with 4 Hz and 1.3 Hz intensity modulation: speech-like envelope (invented test signal)."""
+    t = np.arange(n) / fs
+    env = (1 + 0.9 * np.sin(2 * np.pi * 4 * t)) * (1 + 0.5 * np.sin(2 * np.pi * 1.3 * t + 1.0))
+    return 0.05 * rng.standard_normal(n) * env
+
+
+@pytest.fixture(scope="module")
+def mixed_corpus(tmp_path_factory) -> dict:
+    """IR rows and clean/degraded pair rows (with delays) in one manifest."""
+    d = tmp_path_factory.mktemp("mixed_corpus")
+    rng = np.random.default_rng(11)
+    rows = []
+    for i in range(6):
+        sf.write(d / f"ir{i}.wav", _exp_ir(rng, 0.4 + 0.15 * i), IR_FS, subtype="FLOAT")
+        rows.append([f"ir{i}.wav", "", "", f"room{i % 2}"])
+    n = int(PAIR_SECONDS * PAIR_FS)
+    for i in range(6):
+        clean = _speechlike(rng, n, PAIR_FS)
+        lag = 16 * i  # 0 ... 5 ms
+        deg = np.concatenate([np.zeros(lag), clean[: n - lag]]) + 0.03 * rng.standard_normal(n)
+        sf.write(d / f"c{i}.wav", clean, PAIR_FS, subtype="FLOAT")
+        sf.write(d / f"d{i}.wav", deg, PAIR_FS, subtype="FLOAT")
+        rows.append(["", f"c{i}.wav", f"d{i}.wav", f"codec{i % 2}"])
+    manifest = _write_csv(d / "manifest.csv", ["ir", "clean", "degraded", "condition"], rows)
+    ref = d / "reference.csv"
+    s = run_batch(manifest, ref, workers=1)
+    assert s.failed == 0
+    return {"dir": d, "manifest": manifest, "reference": ref, "rows": len(rows)}
+
+
 def _numeric_equal(a: Path, b: Path, tol: float = 1e-9) -> None:
     ca, ra = read_results(a)
     cb, rb = read_results(b)
@@ -119,12 +150,6 @@ def test_ir_rows_match_the_api_and_the_designed_decay(ir_corpus):
         assert v["untreated"] < v["panels"] < v["panels+ceiling"]
 
 
-def _speechlike(rng: np.random.Generator, n: int, fs: int) -> np.ndarray:
-    t = np.arange(n) / fs
-    env = (1 + 0.9 * np.sin(2 * np.pi * 4 * t)) * (1 + 0.5 * np.sin(2 * np.pi * 1.3 * t + 1.0))
-    return 0.05 * rng.standard_normal(n) * env
-
-
 def test_pair_rows_score_stoi_estoi_ssti(tmp_path):
     from pystoi import stoi
 
@@ -168,22 +193,33 @@ def test_pair_rows_score_stoi_estoi_ssti(tmp_path):
 # ---------------------------------------------------------------------------
 
 
-def test_process_pool_equals_one_worker(ir_corpus, tmp_path):
+def test_mixed_manifest_reference(mixed_corpus):
+    cols, rows = read_results(mixed_corpus["reference"])
+    assert cols == ("row", "ir", "clean", "degraded", "condition", "sti", "rating", "t30_mid", "edt_mid",
+                    "stoi", "estoi", "ssti", "delay_ms", "notes", "error")
+    for r in rows[:6]:
+        assert r["sti"] and r["t30_mid"] and not r["stoi"]
+    for i, r in enumerate(rows[6:]):
+        assert r["stoi"] and r["ssti"] and not r["sti"]
+        assert float(r["delay_ms"]) == pytest.approx(i * 1.0, abs=1e-9)  # 16 samples at 16 kHz = 1 ms
+
+
+def test_process_pool_equals_one_worker(mixed_corpus, tmp_path):
     out = tmp_path / "pool.csv"
-    s = run_batch(ir_corpus["manifest"], out, workers=2)
-    assert (s.backend, s.workers, s.scored, s.failed) == ("process pool", 2, N_IR_ROWS, 0)
-    _numeric_equal(out, ir_corpus["reference"])
-    assert out.read_text() == ir_corpus["reference"].read_text()  # even the text is the same
+    s = run_batch(mixed_corpus["manifest"], out, workers=2)
+    assert (s.backend, s.workers, s.scored, s.failed) == ("process pool", 2, mixed_corpus["rows"], 0)
+    _numeric_equal(out, mixed_corpus["reference"])
+    assert out.read_text() == mixed_corpus["reference"].read_text()  # even the text is the same
 
 
-def test_dask_cluster_equals_one_worker(ir_corpus, tmp_path):
+def test_dask_cluster_equals_one_worker(mixed_corpus, tmp_path):
     distributed = pytest.importorskip("distributed")
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
                                   dashboard_address=None) as cluster:
         out = tmp_path / "dask.csv"
-        s = run_batch(ir_corpus["manifest"], out, scheduler=cluster.scheduler_address)
-    assert (s.backend, s.workers, s.scored, s.failed) == ("dask", 2, N_IR_ROWS, 0)
-    _numeric_equal(out, ir_corpus["reference"])
+        s = run_batch(mixed_corpus["manifest"], out, scheduler=cluster.scheduler_address)
+    assert (s.backend, s.workers, s.scored, s.failed) == ("dask", 2, mixed_corpus["rows"], 0)
+    _numeric_equal(out, mixed_corpus["reference"])
 
 
 def test_unreachable_scheduler_is_an_input_error(ir_corpus, tmp_path, monkeypatch):
