@@ -272,3 +272,12 @@ def test_cli_compare_table_and_errors(tmp_path, capsys):
     err = capsys.readouterr().err
     assert err.startswith("error: baseline 'nope'") and "Traceback" not in err
     assert _cli(["compare", str(tmp_path / "missing.csv"), "--by", "c", "--baseline", "a"]) == 2
+
+
+def test_docstring_examples():
+    import doctest
+
+    import envpredict.stats
+
+    failed, attempted = doctest.testmod(envpredict.stats, optionflags=doctest.ELLIPSIS)
+    assert attempted >= 5 and failed == 0
