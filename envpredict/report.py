@@ -107,7 +107,8 @@ def _text_colour(rgba) -> str:
 
 
 def _band_label(fc: float) -> str:
-    return f"{fc / 1000:g} kHz" if fc >= 1000 else f"{fc:g} Hz"
+    fc = float(fc)
+    return f"{fc / 1000:.3g} kHz" if fc >= 1000 else f"{fc:.0f} Hz"
 
 
 def _arr(v: Any) -> np.ndarray:
@@ -442,6 +443,8 @@ def _page_ir(d: Mapping, extras: Mapping) -> Page:
 
 def _page_stipa(d: Mapping, extras: Mapping) -> Page:
     p = Page(headline=_sti_headline(d))
+    if d.get("uncertainty") is not None:
+        p.headline.insert(1, ("uncertainty (±)", num(d, "uncertainty", ".3f")))
     p.figures += [_mtf_heatmap(d, True), _ti_figure(d)]
     p.tables += _sti_tables(d, True)
     return p
@@ -460,93 +463,135 @@ def _first(d: Mapping, *keys: str) -> Any:
 
 def _page_pair(d: Mapping, extras: Mapping) -> Page:
     p = Page()
-    for key, label in (("stoi", "STOI"), ("estoi", "ESTOI"), ("ssti", "speech-based STI"),
-                       ("delay_ms", "delay, ms")):
+    for key, label, spec in (("stoi", "STOI", ".3f"), ("estoi", "ESTOI", ".3f"), ("ssti", "speech-based STI", ".3f"),
+                             ("delay_ms", "delay", ".1f")):
         if d.get(key) is not None:
-            p.headline.append((label, num(d, key, ".1f" if key == "delay_ms" else ".3f")))
-    diag = d.get("bands") if isinstance(d.get("bands"), Mapping) else {}
-    src = {**diag, **{k: v for k, v in extras.items()}}
-    corr = _first(src, "band_segment_correlation", "stoi_band_segment", "segment_band_stoi")
-    cf = _first(src, "band_centres_hz", "band_centers_hz", "bands_hz")
-    t_end = _first(src, "segment_end_s", "segment_time_s")
-    new = None
-    if corr is not None and cf is not None:
-        new = _mpl()
-        c = _arr(corr)
-        cf = list(cf)
-        t = _arr(t_end) if t_end is not None else np.arange(c.shape[1])
-        fig = new(10.5, 4.8)
+            p.headline.append((label, num(d, key, spec, "ms" if key == "delay_ms" else "")))
+    new = _mpl()
+    bands = d.get("bands") if isinstance(d.get("bands"), Mapping) else {}
+    third = bands.get("third_octave") if isinstance(bands.get("third_octave"), Mapping) else {}
+    octave = bands.get("octave") if isinstance(bands.get("octave"), Mapping) else {}
+    tl = d.get("timeline") if isinstance(d.get("timeline"), Mapping) else {}
+    worst = list(d.get("worst_moments") or [])
+    # 1. envelope correlation over time: per band if the caller passed the matrix
+    corr = extras.get("band_segment_correlation")
+    if corr is not None:
+        c = np.asarray(corr, dtype=float)
+        cf = list(extras.get("band_centres_hz", third.get("centre_hz", [])))
+        t_end = np.asarray(extras.get("segment_end_s", np.arange(c.shape[1])), dtype=float)
+        fig = new(11.0, 4.8)
         ax = fig.add_subplot(111)
         ax.grid(False)
-        ext_t = (float(t[0]), float(t[-1])) if t.size > 1 else (0.0, 1.0)
+        lo_t = float(t_end[0]) if t_end.size else 0.0
+        hi_t = float(t_end[-1]) if t_end.size > 1 else lo_t + 1.0
         im = ax.imshow(c, aspect="auto", origin="lower", cmap=_heat_cmap(), vmin=0.0, vmax=1.0,
-                       extent=(ext_t[0], ext_t[1], -0.5, c.shape[0] - 0.5), interpolation="nearest")
+                       extent=(lo_t, hi_t, -0.5, c.shape[0] - 0.5), interpolation="nearest")
         step = max(1, len(cf) // 8)
         ax.set_yticks(range(0, len(cf), step), [_band_label(float(f)) for f in cf[::step]])
-        ax.set_xlabel("time (end of each 384 ms segment), s" if t_end is not None else "segment")
+        ax.set_xlabel("time (end of each 384 ms analysis segment), s")
         ax.set_ylabel("band centre frequency")
         cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
-        cb.set_label("envelope correlation, clean vs degraded")
-        ax.set_title("Envelope correlation per band over time")
-        p.figures.append(Figure("band_correlation", "Correlation of the clean and degraded band envelopes in "
-                                "each analysis segment: dark stretches show where and when the degraded signal "
+        cb.set_label("envelope correlation")
+        ax.set_title("Envelope correlation per band over time, clean vs degraded")
+        p.figures.append(Figure("band_correlation", "Correlation of the clean and degraded band envelopes in each "
+                                "analysis segment: dark patches show in which bands and when the degraded signal "
                                 "lost the envelope of the clean one.", _png(fig)))
-    else:
-        seg = _first(src, "segment_stoi")
-        if seg is None:
-            seg = _first(d, "segment_stoi")
-        t_end = _first(d, "segment_end_s") if t_end is None else t_end
-        if seg is not None:
-            new = _mpl()
-            s = _arr(seg)
-            t = _arr(t_end) if t_end is not None else np.arange(s.size)
-            fig = new(10.5, 3.8)
-            ax = fig.add_subplot(111)
-            ax.plot(t, s, color=TEAL, lw=1.4)
-            ax.set_ylim(min(0.0, float(np.nanmin(s)) - 0.05), 1.02)
-            ax.set_xlabel("time (end of each segment), s")
-            ax.set_ylabel("envelope correlation")
-            ax.set_title("Envelope correlation over time (mean of the bands)")
-            p.figures.append(Figure("segment_correlation", "Mean envelope correlation of each analysis segment.",
-                                    _png(fig)))
-        else:
-            p.notes.append("No per-band envelope correlations over time were passed to the report, so that "
-                           "figure is not drawn.")
-    band_vals = _first(d, "stoi_band") if _first(src, "stoi_band") is None else None
-    prefix = ""
-    if band_vals is None and isinstance(d.get("bands"), Mapping) and "stoi_band" in d["bands"]:
-        band_vals, prefix = d["bands"]["stoi_band"], "bands."
-    elif band_vals is not None:
-        prefix = ""
-    if band_vals is not None and cf is not None:
-        cfl = list(cf)
-        new = new or _mpl()
-        fig = new(10.5, 3.8)
+    if tl.get("start_s") is not None and (tl.get("stoi") is not None or tl.get("estoi") is not None):
+        start = _arr(tl["start_s"])
+        step_s = float(tl.get("step_s") or (start[1] - start[0] if start.size > 1 else 1.0))
+        mid = start + step_s / 2
+        fig = new(11.0, 3.9)
         ax = fig.add_subplot(111)
-        v = _arr(band_vals)
-        ax.bar(np.arange(v.size), v, color=STEEL, width=0.7)
-        ax.set_xticks(np.arange(v.size), [_band_label(float(f)) for f in cfl[: v.size]], rotation=45, ha="right")
-        ax.set_ylabel("mean envelope correlation")
-        ax.set_xlabel("band centre frequency")
-        ax.set_ylim(min(0.0, float(np.nanmin(v)) - 0.05), 1.05)
+        w0 = worst[0] if worst else {}
+        if w0.get("start_s") is not None and w0.get("end_s") is not None:
+            ax.axvspan(w0["start_s"], w0["end_s"], color=COPPER, alpha=0.18, lw=0,
+                       label=f"lowest ESTOI ({w0['start_s']:g}-{w0['end_s']:g} s)")
+        if tl.get("stoi") is not None:
+            ax.plot(mid, _arr(tl["stoi"]), "-o", ms=3.5, color=TEAL, lw=1.6, label="STOI in the time bin")
+        if tl.get("estoi") is not None:
+            ax.plot(mid, _arr(tl["estoi"]), "-s", ms=3.5, color=PLUM, lw=1.6, label="ESTOI in the time bin")
+        ax.legend(loc="upper center", ncols=3, fontsize=9.5, bbox_to_anchor=(0.5, -0.2))
+        vals = np.concatenate([_arr(tl.get("stoi") or []), _arr(tl.get("estoi") or [])])
+        low = float(np.nanmin(vals)) if np.isfinite(vals).any() else 0.0
+        ax.set_ylim(min(0.0, low - 0.05), 1.02)
+        ax.set_xlim(0, float(start[-1] + step_s) if start.size else 1.0)
+        ax.set_xlabel(f"time in the aligned pair, s (bins of {step_s:g} s)")
+        ax.set_ylabel("envelope correlation")
+        ax.set_title("Envelope correlation over time (all bands)")
+        p.figures.append(Figure("correlation_over_time", "Local STOI and ESTOI (mean envelope correlation over "
+                                "the bands) in each time bin; shaded: the bin where the envelope is lost most. "
+                                "Gaps: no speech in the bin.", _png(fig)))
+    if corr is None:
+        p.notes.append("The per-band envelope correlation over time is drawn only when the command passes the "
+                       "band x segment matrix (extras 'band_segment_correlation'); the figure over time shows "
+                       "the mean over the bands.")
+    # 2. per band
+    cf = third.get("centre_hz")
+    if cf is not None and (third.get("stoi") is not None or third.get("estoi") is not None):
+        cfl = [float(f) for f in cf]
+        fig = new(11.0, 4.2)
+        ax = fig.add_subplot(111)
+        x = np.arange(len(cfl))
+        w = 0.4
+        if third.get("stoi") is not None:
+            ax.bar(x - w / 2, _arr(third["stoi"]), w, color=TEAL, label="STOI: mean envelope correlation")
+        if third.get("estoi") is not None:
+            ax.bar(x + w / 2, _arr(third["estoi"]), w, color=PLUM, label="ESTOI: band share x 15")
+        ax.set_xticks(x, [f"{f / 1000:.2g}k" if f >= 1000 else f"{f:.0f}" for f in cfl])
+        ax.set_xlabel("one-third-octave band centre, Hz")
+        ax.set_ylabel("per-band value")
+        vals = np.concatenate([_arr(third.get("stoi") or []), _arr(third.get("estoi") or [])])
+        low = float(np.nanmin(vals)) if np.isfinite(vals).any() else 0.0
+        ax.set_ylim(min(0.0, low - 0.05), 1.18)
+        ax.legend(loc="upper left", ncols=2, fontsize=9)
         ax.grid(axis="x", visible=False)
-        ax.set_title("Envelope correlation per band (mean over segments; their mean is STOI)")
-        p.figures.append(Figure("band_mean_correlation", "Mean envelope correlation per band.", _png(fig)))
-        key = prefix + "stoi_band"
-        p.tables.append(Table("Per band", ["band", "mean envelope correlation"],
-                              [[Cell(_band_label(float(f))), num(d, f"{key}.{k}", ".3f")]
-                               for k, f in enumerate(cfl[: v.size])]))
-    rows = [[Cell(label), num(d, key, spec)] for key, label, spec in
-            (("stoi", "STOI", ".3f"), ("estoi", "ESTOI", ".3f"), ("ssti", "speech-based STI", ".3f"),
-             ("delay_ms", "delay of degraded re clean, ms", ".1f"), ("fs", "sample rate, Hz", ".0f"))
-            if d.get(key) is not None]
+        ax.set_title("Envelope correlation per band (mean over the segments; their mean is the index)")
+        p.figures.append(Figure("band_correlation_mean", "Per one-third-octave band: the mean envelope correlation "
+                                "(STOI) and 15 times the band's share of the spectral correlation (ESTOI). Low bars "
+                                "are the bands whose envelope the degradation destroyed.", _png(fig)))
+        rows = [[Cell(_band_label(f)), num(d, f"bands.third_octave.stoi.{k}", ".3f"),
+                 num(d, f"bands.third_octave.estoi.{k}", ".3f")] for k, f in enumerate(cfl)]
+        p.tables.append(Table("Per one-third-octave band", ["band", "STOI part", "ESTOI part"], rows))
+    if octave.get("centre_hz") is not None:
+        rows = []
+        for k, f in enumerate(octave["centre_hz"]):
+            rows.append([Cell(_band_label(float(f))), num(d, f"bands.octave.correlation.{k}", ".3f"),
+                         num(d, f"bands.octave.mtf.{k}", ".3f"), num(d, f"bands.octave.apparent_snr_db.{k}", ".1f"),
+                         num(d, f"bands.octave.ti.{k}", ".3f")])
+        p.tables.append(Table("Speech-based STI per octave band", ["band", "envelope correlation",
+                                                                    "apparent MTF", "apparent SNR, dB", "TI"], rows))
+    rows = [[Cell(label), num(d, key, spec, unit)] for key, label, spec, unit in
+            (("stoi", "STOI", ".3f", ""), ("estoi", "ESTOI", ".3f", ""), ("ssti", "speech-based STI", ".3f", ""),
+             ("delay_ms", "delay of degraded re clean", ".1f", "ms"),
+             ("alignment.match_correlation", "waveform match at that delay", ".3f", ""),
+             ("duration_s", "common duration", ".2f", "s"), ("fs", "analysis sample rate", ".0f", "Hz"))
+            if _has(d, key)]
     p.tables.insert(0, Table("Indices", ["quantity", "value"], rows))
+    if worst:
+        rows = [[num(d, f"worst_moments.{i}.start_s", ".1f", "s"), num(d, f"worst_moments.{i}.end_s", ".1f", "s"),
+                 num(d, f"worst_moments.{i}.estoi", ".3f"), num(d, f"worst_moments.{i}.stoi", ".3f")]
+                for i in range(len(worst))]
+        p.tables.append(Table("Worst moments", ["from", "to", "ESTOI", "STOI"], rows))
+    for n in d.get("notes") or []:
+        p.notes.append(str(n))
     return p
+
+
+def _has(d: Mapping, path: str) -> bool:
+    try:
+        return _get(d, path) is not None
+    except (KeyError, IndexError, TypeError, ValueError):
+        return False
 
 
 def _page_compare(d: Mapping, extras: Mapping) -> Page:
     p = Page()
     conds = list(d.get("conditions") or [])
+    if d.get("index"):
+        p.headline.append(("index", txt(str(d["index"]).upper())))
+    if d.get("baseline") is not None:
+        p.headline.append(("baseline", txt(d["baseline"])))
+    p.headline.append(("conditions", Cell(str(len(conds)))))
     if not conds:
         p.notes.append("The result holds no conditions.")
         return p
@@ -557,10 +602,16 @@ def _page_compare(d: Mapping, extras: Mapping) -> Page:
     y = np.arange(len(conds))[::-1]
     for yi, c in zip(y, conds):
         diff, lo, hi = c.get("diff"), c.get("ci_low"), c.get("ci_high")
-        if diff is None:
-            ax.text(0, yi, "reference", ha="center", va="center", color=MUTED, fontsize=9.5)
+        if diff is None or c.get("verdict") == "baseline":
+            ax.plot([0], [yi], "|", color=INK, ms=14, mew=2)
+            ax.annotate("baseline", (0, yi), xytext=(8, 0), textcoords="offset points", va="center",
+                        fontsize=9.5, color=MUTED)
             continue
-        col = TEAL if (lo is not None and lo > 0) else BRICK if (hi is not None and hi < 0) else MUTED
+        verdict = c.get("verdict")
+        if verdict in ("higher", "lower", "no clear difference"):
+            col = {"higher": TEAL, "lower": BRICK}.get(verdict, MUTED)
+        else:
+            col = TEAL if (lo is not None and lo > 0) else BRICK if (hi is not None and hi < 0) else MUTED
         if lo is not None and hi is not None:
             ax.plot([lo, hi], [yi, yi], color=col, lw=3.0, solid_capstyle="butt", alpha=0.85)
         ax.plot([diff], [yi], "o", color=col, ms=8, mec="white", mew=1.2)
@@ -572,12 +623,12 @@ def _page_compare(d: Mapping, extras: Mapping) -> Page:
                     va="center", fontsize=9.5)
     ax.axvline(0, color=INK, lw=1.0)
     ax.set_yticks(y, [str(c.get("name", "?")) for c in conds])
-    level = d.get("ci_level")
+    level = _first(d, "confidence", "ci_level")
     lvl = f"{float(level) * 100:g} % " if isinstance(level, (int, float)) else ""
     index = d.get("index") or d.get("index_name") or "index"
-    ref = d.get("reference")
-    ax.set_xlabel(f"difference in {index}" + (f" from '{ref}'" if ref else "") + f" (dot) with {lvl}confidence "
-                  "interval (bar)")
+    ref = _first(d, "baseline", "reference")
+    ref_text = f" from '{ref}'" if ref else ""
+    ax.set_xlabel(f"difference in {str(index).upper()}{ref_text} (dot) with {lvl}confidence interval (bar)")
     ax.grid(axis="y", visible=False)
     lo_all = [c.get("ci_low") for c in conds if c.get("ci_low") is not None] + \
              [c.get("diff") for c in conds if c.get("diff") is not None] + [0.0]
@@ -588,14 +639,21 @@ def _page_compare(d: Mapping, extras: Mapping) -> Page:
     ax.set_ylim(-0.7, len(conds) - 0.3)
     ax.set_title("Differences between conditions")
     p.figures.append(Figure("differences", "Difference of each condition (dot) with its confidence interval "
-                            "(bar). Teal: reliably above zero; red: reliably below; grey: interval spans zero.",
+                            "(bar). Teal: higher than the baseline; red: lower; grey: no clear difference (the "
+                            "verdict of the comparison, or the interval spanning zero).",
                             _png(fig)))
     rows = []
     for i, c in enumerate(conds):
         rows.append([txt(c.get("name")), num(d, f"conditions.{i}.n", ".0f"), num(d, f"conditions.{i}.mean", ".3f"),
                      num(d, f"conditions.{i}.diff", "+.3f"), num(d, f"conditions.{i}.ci_low", "+.3f"),
-                     num(d, f"conditions.{i}.ci_high", "+.3f"), num(d, f"conditions.{i}.p_value", ".3g")])
-    p.tables.append(Table("Conditions", ["condition", "n", "mean", "difference", "CI low", "CI high", "p"], rows))
+                     num(d, f"conditions.{i}.ci_high", "+.3f"), num(d, f"conditions.{i}.p_value", ".3g"),
+                     num(d, f"conditions.{i}.p_holm", ".3g"), txt(c.get("verdict"))])
+    p.tables.append(Table("Conditions", ["condition", "n", "mean", "difference", "CI low", "CI high", "p",
+                                         "p (Holm)", "verdict"], rows,
+                          "Difference: mean paired difference to the baseline; CI: "
+                          f"{lvl}bootstrap confidence interval ({d.get('ci_method', 'bootstrap')})."))
+    for n in d.get("notes") or []:
+        p.notes.append(str(n))
     return p
 
 
@@ -631,8 +689,13 @@ def _page_sweep(d: Mapping, extras: Mapping) -> Page:
             lab = (f"SRT {s:.1f} dB" if is_srt else f"{pc:g} % at {s:.1f} dB")
             if lo is not None and hi is not None:
                 lab += f"\n(CI {lo:.1f} to {hi:.1f} dB)"
-            ax.annotate(lab, (s, pc), xytext=(10, -28 if is_srt else 10), textcoords="offset points",
-                        fontsize=9.5, color=col, fontweight="bold" if is_srt else "normal")
+            # up and to the left of the point: above a rising curve, where it is empty
+            ax.annotate(lab, (s, pc), xytext=(-12, 12), textcoords="offset points", va="bottom", ha="right",
+                        fontsize=9.5, color=col, fontweight="bold" if is_srt else "normal",
+                        bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.6, "pad": 1.5})
+        if d.get("srt_db") is None and any(abs((t.get("percent") or 0) - 50.0) < 1e-9 for t in targets):
+            ax.text(0.99, 0.04, "SRT (50 %) not reached in the swept range", transform=ax.transAxes,
+                    ha="right", va="bottom", fontsize=10, color=BRICK)
         ax.set_title(f"Predicted psychometric function ({name} mapped to % correct)")
         cap = ("Predicted score against SNR; the dashed line marks the predicted speech reception threshold "
                "(SRT, 50 % correct) and the shaded strip its confidence interval over noise segments.")
@@ -787,8 +850,7 @@ def _page_inspect(d: Mapping, extras: Mapping) -> Page:
         ax = fig.add_subplot(gs[0])
         ax.grid(False)
         vmax = float(np.nanmax(spec)) if np.isfinite(spec).any() else 1.0
-        cm = _heat_cmap()
-        cm.set_bad("#eeeeee")
+        cm = _heat_cmap().with_extremes(bad="#eeeeee")
         im = ax.imshow(np.ma.masked_invalid(spec), aspect="auto", origin="lower", cmap=cm, vmin=0, vmax=vmax)
         ax.set_yticks(range(len(bands)), [_band_label(f) for f in bands])
         step = 3
@@ -811,7 +873,9 @@ def _page_inspect(d: Mapping, extras: Mapping) -> Page:
             ax2.set_ylim(0, 1.15)
         else:
             # from the JSON alone: the mean modulation index over the bands
-            mean = np.nanmean(spec, axis=0)
+            ok = np.isfinite(spec)
+            mean = np.where(ok.any(axis=0), np.where(ok, spec, 0.0).sum(axis=0) / np.maximum(ok.sum(axis=0), 1),
+                            np.nan)
             ax2.plot(mb, mean, "-o", ms=3, color=TEAL, lw=1.4)
             ax2.set_ylabel("mean modulation index over the bands")
         ax2.set_xscale("log")
@@ -1058,15 +1122,20 @@ def write_report(
                       version=__version__, created=created)
     folder = Path(folder)
     with atomic_directory(folder) as tmp:
-        # the temporary folder is private (mode 700); give the report the usual mode
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o777 & ~umask)
-        for f in page.figures:
-            (tmp / f"{f.name}.png").write_bytes(f.png)
-        (tmp / "report.html").write_text(doc, encoding="utf-8")
-        (tmp / "result.json").write_text(json.dumps(result, indent=2, allow_nan=False) + "\n", encoding="utf-8")
+        _write_folder(tmp, page, doc, result)
     return folder / "report.html"
+
+
+def _write_folder(tmp: Path, page: Page, doc: str, result: Mapping[str, Any]) -> None:
+    """Fill the temporary report folder (made by :func:`write_report`)."""
+    # the temporary folder is private (mode 700); give the report the usual mode
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o777 & ~umask)
+    for f in page.figures:
+        (tmp / f"{f.name}.png").write_bytes(f.png)
+    (tmp / "report.html").write_text(doc, encoding="utf-8")
+    (tmp / "result.json").write_text(json.dumps(result, indent=2, allow_nan=False) + "\n", encoding="utf-8")
 
 
 def figure_names(folder: str | Path) -> list[str]:

@@ -66,6 +66,11 @@ MOD_PEAK_RANGE_HZ: tuple[float, float] = (
     std.MODULATION_BANDS_HZ[0] * 2 ** (-1 / 6), std.MODULATION_BANDS_HZ[-1] * 2 ** (1 / 6),
 )
 
+#: The modulation depths leave out this much at each end of the recording, s: the band
+#: filters and the Hilbert transform ring there (judgement: 4/bandwidth of the 125 Hz
+#: band is 45 ms).
+EDGE_S: float = 0.05
+
 #: Length of the excerpt kept for the three-level figure, s.
 EXCERPT_S: float = 0.060
 
@@ -386,6 +391,7 @@ def inspect_signal(
     * ``periodicity_modulation`` = sqrt(2) std(a in 50-500 Hz) / mean(a),
 
     both equal to the modulation index m for a sinusoidal modulation ``1 + m cos``;
+    (over the recording less 50 ms at each end, where the filters ring);
     ``carrier_hz`` is the power-weighted mean instantaneous frequency of the band (its
     fine-structure rate; above 500 Hz for the 1 kHz band and up). The modulation
     spectrum of each band is that of its intensity envelope (squared band signal,
@@ -470,18 +476,20 @@ def inspect_signal(
     i1 = min(x.size, i0 + int(EXCERPT_S * fs))
     excerpt = {}
     show_band = 1000.0 if 1000.0 in bands else bands[-1]
+    edge = int(EDGE_S * fs)
     for k, fc in enumerate(bands):
         xb = sosfiltfilt(_band_sos(fs, fc), x, padtype=None)
         pw = float(np.mean(xb * xb))
         level[k] = 10 * np.log10(pw / total_power) if pw > 0 else -np.inf
         z = hilbert(xb)
         a = np.abs(z)
-        ma = float(a.mean())
+        inner = slice(edge, a.size - edge)
+        ma = float(a[inner].mean())
         if ma > 0:
             slow = sosfiltfilt(lp, a)
             per = sosfiltfilt(bp, a)
-            env_mod[k] = np.sqrt(2.0) * float(np.std(slow)) / ma
-            per_mod[k] = np.sqrt(2.0) * float(np.std(per)) / ma
+            env_mod[k] = np.sqrt(2.0) * float(np.std(slow[inner])) / ma
+            per_mod[k] = np.sqrt(2.0) * float(np.std(per[inner])) / ma
             inst = np.angle(z[1:] * np.conj(z[:-1])) * fs / (2 * np.pi)
             wgt = a[1:] ** 2
             carrier[k] = float(np.sum(inst * wgt) / np.sum(wgt))
