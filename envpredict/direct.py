@@ -129,6 +129,18 @@ ADDED_NOISE = (
     "normal noise (e.g. an empty building), or that noise is counted twice."
 )
 
+#: Above this standard uncertainty of the STI the repeat windows disagree more than
+#: the carrier's own fluctuation explains for a recording of 15 s or more
+#: (judgement, from the spread of undistorted recordings: about 0.01).
+UNCERTAIN_STI: float = 0.03
+
+UNSTEADY = (
+    "The analysis windows disagree (standard uncertainty {u:.3f}): conditions changed during "
+    "the recording (passing noise, level changes), or it crosses the seam of a test signal "
+    "played in a loop whose length is not a whole number of modulation periods (use the "
+    "100 s STIPA signal to loop). Repeat the measurement."
+)
+
 LEVEL_FROM_SPECTRUM = (
     "The auditory corrections use the standard male speech spectrum at the measured "
     "A-weighted level of the received test signal, not the measured band levels."
@@ -496,6 +508,8 @@ def _finish(
         cautions.append(LEVEL_FROM_SPECTRUM)
     if noise_db is not None:
         cautions.append(ADDED_NOISE)
+    if np.isfinite(unc) and unc > UNCERTAIN_STI:
+        cautions.append(UNSTEADY.format(u=unc))
     return DirectResult(
         method=method, sti=res, depth=depth, nominal_depth=nominal, noise_floor=floor,
         uncertainty=unc, window_sti=tuple(float(v) for v in win), calibrated=calibrated,

@@ -10,15 +10,21 @@ male speech spectrum, and intensity-modulated:
   ``I_k(t) = 1 + 0.55 (sin 2 pi f1 t - sin 2 pi f2 t)`` (never negative, minimum +0.0014).
 * **Full STI** (IEC 60268-16:2011, 6.1): one signal per modulation frequency F of the
   14, ascending from 0.63 Hz; in each signal all seven bands are modulated at F in
-  phase, ``I(t) = 1 + cos 2 pi F t`` (m = 1). Each signal lasts a settling margin of
-  :data:`SETTLE_S` at both ends plus at least ``FULL_STI_ANALYSIS_SECONDS`` rounded up
-  to whole periods of F (about 12-13 s each, about 3 minutes for the set). One
-  recording per signal; the analysis tells the signals apart by their modulation
-  frequency, so the files may be recorded in any order.
+  phase, ``I(t) = 1 + cos 2 pi F t`` (m = 1). Each signal lasts the smallest whole
+  number of periods of F covering ``FULL_STI_ANALYSIS_SECONDS`` plus a settling
+  margin of :data:`SETTLE_S` at both ends (12.0-13.3 s each, about 3 minutes for the
+  set). One recording per signal; the analysis tells the signals apart by their
+  modulation frequency, so the files may be recorded in any order.
 
 The carrier amplitude is the square root of the intensity envelope. Generation is
-seeded (same seed, same samples) and normalised to a peak of -3 dBFS; 10 ms raised
-cosine fades at both ends avoid clicks. Nothing here reads or writes files.
+seeded (same seed, same samples) and normalised to a peak of -3 dBFS.
+
+**Looping.** The noise is made by FFT and so is circular. A signal whose length holds
+whole periods of all its modulation frequencies therefore loops without a seam, and
+gets no fades: every full-STI signal, and a STIPA signal whose length is a multiple of
+100 s (the common period of the STIPA frequencies; the default length). Other STIPA
+lengths get 10 ms raised-cosine fades at both ends and should not be looped (a
+recording across the seam reads a lower MTF). Nothing here reads or writes files.
 """
 
 from __future__ import annotations
@@ -102,8 +108,22 @@ def full_sti_envelope(t: np.ndarray, f: float, depth: float = std.FULL_STI_MODUL
     return 1.0 + depth * np.cos(2 * np.pi * f * t)
 
 
-def _finish(bands: np.ndarray, envelopes: np.ndarray, fs: int) -> np.ndarray:
-    """Modulate, weight to the speech spectrum, sum, fade and normalise to -3 dBFS."""
+def is_loopable(n: int, fs: int, freqs) -> bool:
+    """True if ``n`` samples at ``fs`` hold whole periods of every frequency in ``freqs``
+    to within one sample (the seam of a loop then shifts no modulation phase by more
+    than 2 pi F / fs)."""
+    f = np.asarray(freqs, dtype=float)
+    secs = n / float(fs)
+    err_s = np.abs(secs - np.round(secs * f) / f)
+    return bool(np.all(err_s <= 1.0 / fs + 1e-12) and np.all(np.round(secs * f) >= 1))
+
+
+def _finish(bands: np.ndarray, envelopes: np.ndarray, fs: int, loopable: bool) -> np.ndarray:
+    """Modulate, weight to the speech spectrum, sum, fade and normalise to -3 dBFS.
+
+    A loopable signal (whole periods of every modulation; the FFT-made noise is
+    circular anyway) gets no fades, so that playing it in a loop has no seam.
+    """
     gains = 10.0 ** (np.asarray(std.STIPA_BAND_LEVELS_DB) / 20.0)
     amp = np.sqrt(np.clip(envelopes, 0.0, None))
     mod = bands * (amp if amp.ndim == 2 else amp[None, :])
@@ -111,10 +131,11 @@ def _finish(bands: np.ndarray, envelopes: np.ndarray, fs: int) -> np.ndarray:
     # of carrier and envelope would otherwise move it by up to a few tenths of a dB)
     mod /= np.sqrt(np.mean(mod * mod, axis=1, keepdims=True))
     x = gains @ mod
-    nf = max(1, int(round(FADE_S * fs)))
-    ramp = 0.5 - 0.5 * np.cos(np.pi * np.arange(nf) / nf)
-    x[:nf] *= ramp
-    x[-nf:] *= ramp[::-1]
+    if not loopable:
+        nf = max(1, int(round(FADE_S * fs)))
+        ramp = 0.5 - 0.5 * np.cos(np.pi * np.arange(nf) / nf)
+        x[:nf] *= ramp
+        x[-nf:] *= ramp[::-1]
     peak = float(np.max(np.abs(x)))
     return x * (10.0 ** (std.TEST_SIGNAL_PEAK_DBFS / 20.0) / peak)
 
@@ -129,7 +150,7 @@ def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_R
 
     Parameters
     ----------
-    seconds : length, s (15 s ... 1 h; default 30 s).
+    seconds : length, s (15 s ... 1 h; default 100 s, which loops without a seam).
     fs : sample rate, Hz (above 22.6 kHz so the 8 kHz octave fits; default 48000).
     seed : seed of the noise generator (same seed, same signal).
 
@@ -149,7 +170,7 @@ def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_R
     bands = octave_band_noise(n, fs, rng)
     t = np.arange(n) / fs
     env = np.stack([stipa_envelope(t, f1, f2) for f1, f2 in std.STIPA_MODULATION_HZ])
-    return _finish(bands, env, fs)
+    return _finish(bands, env, fs, is_loopable(n, fs, np.ravel(std.STIPA_MODULATION_HZ)))
 
 
 @dataclass(frozen=True)
@@ -170,13 +191,14 @@ def full_sti_plan() -> tuple[FullStiSignalSpec, ...]:
     """Order, modulation frequencies and lengths of the full-STI signal set.
 
     Ascending modulation frequency, 0.63 ... 12.5 Hz (IEC 60268-16:2011, Table 1). Each
-    signal: :data:`SETTLE_S` + whole periods of F covering ``FULL_STI_ANALYSIS_SECONDS``
-    + :data:`SETTLE_S`.
+    signal lasts the smallest whole number of periods of F that covers
+    ``FULL_STI_ANALYSIS_SECONDS`` plus :data:`SETTLE_S` at each end (12.0-13.3 s), so
+    it can also be played in a loop without a seam.
     """
     out = []
     for i, f in enumerate(std.MODULATION_FREQUENCIES_HZ, start=1):
-        periods = int(np.ceil(std.FULL_STI_ANALYSIS_SECONDS * f - 1e-9))
-        secs = periods / f + 2 * SETTLE_S
+        periods = int(np.ceil((std.FULL_STI_ANALYSIS_SECONDS + 2 * SETTLE_S) * f - 1e-9))
+        secs = periods / f
         out.append(FullStiSignalSpec(i, float(f), float(secs), f"full_sti_{i:02d}_{f:g}Hz.wav"))
     return tuple(out)
 
@@ -189,7 +211,7 @@ def full_sti_signal(modulation_hz: float, seconds: float, fs: int = DEFAULT_RATE
     rng = np.random.default_rng(seed)
     bands = octave_band_noise(n, fs, rng)
     env = full_sti_envelope(np.arange(n) / fs, float(modulation_hz))
-    return _finish(bands, env, fs)
+    return _finish(bands, env, fs, is_loopable(n, fs, [modulation_hz]))
 
 
 def full_sti_signals(fs: int = DEFAULT_RATE_HZ, *, seed: int = 0):

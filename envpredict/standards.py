@@ -276,12 +276,14 @@ FULL_STI_MODULATION_DEPTH: float = 1.0
 
 #: Default length of a generated STIPA signal, s, and the shortest one generated.
 #: IEC 60268-16:2011, Annex B (from memory) asks for a STIPA measurement of at least
-#: about 15 s, repeated; 30 s leaves room for the settling margins of the analysis.
-STIPA_DEFAULT_SECONDS: float = 30.0
+#: about 15 s, repeated. 100 s is the common period of the seven STIPA frequency pairs
+#: of Table B.1 (0.63 Hz: 63 periods, 1.6 Hz: 160 ...), so a 100 s signal loops without
+#: a seam and a recording may start anywhere in the loop (choice of this tool).
+STIPA_DEFAULT_SECONDS: float = 100.0
 STIPA_MIN_SECONDS: float = 15.0
 
-#: Analysed length of each full-STI signal, s (rounded up to whole modulation
-#: periods), plus a settling margin at each end. Choice of this tool (common
+#: Analysed length of each full-STI signal, s; with a settling margin at each end the
+#: total is rounded up to whole modulation periods. Choice of this tool (common
 #: practice, no source: 10 s gives at least 6 periods of the lowest frequency).
 FULL_STI_ANALYSIS_SECONDS: float = 10.0
 

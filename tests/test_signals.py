@@ -18,6 +18,7 @@ from envpredict.signals import (
     full_sti_envelope,
     full_sti_plan,
     full_sti_signal,
+    is_loopable,
     octave_band_noise,
     stipa_envelope,
     stipa_signal,
@@ -150,9 +151,9 @@ def test_full_sti_plan_order_and_durations():
     assert [p.index for p in plan] == list(range(1, 15))
     assert len({p.filename for p in plan}) == 14
     for p in plan:
-        core = p.seconds - 2.0
-        periods = core * p.modulation_hz
-        assert periods == pytest.approx(round(periods), abs=1e-6)  # whole periods
+        periods = p.seconds * p.modulation_hz
+        assert periods == pytest.approx(round(periods), abs=1e-6)  # whole periods: loops seamlessly
+        core = p.seconds - 2.0  # 1 s settling margin at each end
         assert core >= std.FULL_STI_ANALYSIS_SECONDS - 1e-9
         assert core < std.FULL_STI_ANALYSIS_SECONDS + 1.0 / p.modulation_hz
 
@@ -165,6 +166,33 @@ def test_full_sti_signal_modulation_depth_is_one():
     t = np.arange(seg.size) / FS
     depth = 2 * abs(np.sum(seg * np.exp(-2j * np.pi * 2.0 * t))) / seg.sum()
     assert depth == pytest.approx(std.FULL_STI_MODULATION_DEPTH, abs=0.05)
+
+
+def test_loopable_lengths():
+    # 100 s is the common period of the Table B.1 frequencies (0.63 Hz: 63 periods)
+    freqs = [f for p in std.STIPA_MODULATION_HZ for f in p]
+    assert is_loopable(100 * 48000, 48000, freqs)
+    assert is_loopable(200 * 44100, 44100, freqs)
+    assert not is_loopable(30 * 48000, 48000, freqs)  # 1.25 Hz: 37.5 periods
+    assert not is_loopable(50 * 48000, 48000, freqs)  # 0.63 Hz: 31.5 periods
+
+
+def test_loopable_signal_has_no_seam():
+    # a 100 s STIPA signal played in a loop: a recording across the seam reads as well
+    # as anywhere else (circular noise, whole periods, no fades)
+    from envpredict.direct import stipa_from_recording
+
+    x = stipa_signal(100, FS, seed=2)
+    assert x[0] != 0.0  # no fade
+    across = np.concatenate([x[-10 * FS:], x[: 10 * FS]])
+    assert stipa_from_recording(across, FS).sti.sti >= 0.97
+    # a 30 s signal is not loopable: across its seam the 2 kHz band (1.25 Hz: 37.5
+    # periods) jumps by half a period, and the analysis warns
+    y = stipa_signal(30, FS, seed=2)
+    assert y[0] == 0.0  # faded
+    r = stipa_from_recording(np.concatenate([y[-10 * FS:], y[: 10 * FS]]), FS)
+    assert r.sti.mtf_measured[4].max() < 0.3
+    assert any("analysis windows disagree" in c for c in r.cautions)
 
 
 @pytest.mark.parametrize("kwargs", [dict(seconds=10), dict(seconds=float("nan")), dict(fs=16000),

@@ -60,7 +60,8 @@ def _check_wav_path(out: Path) -> None:
 @testsignal_app.command("stipa")
 def testsignal_stipa(
     out_file: Path = typer.Argument(..., help="WAV file to write (24-bit PCM).", show_default=False),
-    seconds: float = typer.Option(30.0, "--seconds", help="Length in seconds (at least 15)."),
+    seconds: float = typer.Option(100.0, "--seconds", help="Length in seconds (at least 15). Multiples of "
+                                  "100 s loop without a seam (the common period of the STIPA modulations)."),
     rate: int = typer.Option(48000, "--rate", help=RATE_HELP),
     seed: int = typer.Option(0, "--seed", help=SEED_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
@@ -69,7 +70,7 @@ def testsignal_stipa(
     intensity-modulated at its two modulation frequencies (depth 0.55), peak -3 dBFS."""
     from envpredict import standards as std
     from envpredict.audio import rms_dbfs
-    from envpredict.signals import check_generation, stipa_signal
+    from envpredict.signals import check_generation, is_loopable, stipa_signal
 
     _check_wav_path(out_file)
     fs = check_generation(rate, seconds)
@@ -82,9 +83,12 @@ def testsignal_stipa(
         "modulation_hz": [list(p) for p in std.STIPA_MODULATION_HZ],
         "modulation_depth": std.STIPA_MODULATION_DEPTH,
         "band_levels_db": list(std.STIPA_BAND_LEVELS_DB),
+        "loopable": is_loopable(x.size, fs, [f for p in std.STIPA_MODULATION_HZ for f in p]),
     }
+    loop = ("It loops without a seam." if d["loopable"] else
+            "Do not loop it (only multiples of 100 s loop without a seam).")
     emit(d, lambda: (f"wrote {out_file}: STIPA test signal, {d['seconds']:g} s at {fs} Hz, seed {seed}, "
-                     f"peak {d['peak_dbfs']:g} dBFS, RMS {d['rms_dbfs']:.1f} dBFS.\n"
+                     f"peak {d['peak_dbfs']:g} dBFS, RMS {d['rms_dbfs']:.1f} dBFS. {loop}\n"
                      "Play it at the level of speech through the sound system and record at least 15 s "
                      "at each listener position; analyse with 'envpredict stipa RECORDING.wav'."),
          as_json, None)
