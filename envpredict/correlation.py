@@ -201,9 +201,13 @@ def tf_envelopes(
 
 
 def _unit(v: np.ndarray, axis: int) -> np.ndarray:
-    """Subtract the mean along ``axis`` and scale to unit norm along it."""
+    """Subtract the mean along ``axis`` (0: bands, 2: frames) of a (J, S, N) array and
+    scale to unit norm along it."""
     v = v - v.mean(axis=axis, keepdims=True)
-    return v / (np.sqrt(np.sum(v * v, axis=axis, keepdims=True)) + EPS)
+    norm = np.sqrt(np.einsum("jsn,jsn->sn" if axis == 0 else "jsn,jsn->js", v, v))
+    norm = norm[None, :, :] if axis == 0 else norm[:, :, None]
+    v /= norm + EPS
+    return v
 
 
 def segment_scores(x_env: np.ndarray, y_env: np.ndarray) -> dict[str, np.ndarray]:
@@ -233,16 +237,16 @@ def segment_scores(x_env: np.ndarray, y_env: np.ndarray) -> dict[str, np.ndarray
     share = np.empty((n_bands, n_seg))
     for s0 in range(0, n_seg, SEGMENT_BLOCK):
         s1 = min(n_seg, s0 + SEGMENT_BLOCK)
-        xs = xs_all[:, s0:s1]
-        ys = ys_all[:, s0:s1]
+        xs = np.ascontiguousarray(xs_all[:, s0:s1])
+        ys = np.ascontiguousarray(ys_all[:, s0:s1])
+        # the clean rows normalised over time serve both indices
+        xr = _unit(xs, 2)
         # STOI: energy normalisation and clipping, then correlation per band
-        alpha = np.sqrt(np.sum(xs * xs, axis=2, keepdims=True) / (np.sum(ys * ys, axis=2, keepdims=True) + EPS))
-        yp = np.minimum(ys * alpha, xs * clip)
-        rho[:, s0:s1] = np.einsum("jsn,jsn->js", _unit(xs, 2), _unit(yp, 2))
+        alpha = np.sqrt(np.einsum("jsn,jsn->js", xs, xs) / (np.einsum("jsn,jsn->js", ys, ys) + EPS))
+        yp = np.minimum(ys * alpha[:, :, None], xs * clip)
+        rho[:, s0:s1] = np.einsum("jsn,jsn->js", xr, _unit(yp, 2))
         # ESTOI: rows (time) then columns (frequency) normalised, spectral correlation
-        xn = _unit(_unit(xs, 2), 0)
-        yn = _unit(_unit(ys, 2), 0)
-        share[:, s0:s1] = np.einsum("jsn,jsn->js", xn, yn) / n
+        share[:, s0:s1] = np.einsum("jsn,jsn->js", _unit(xr, 0), _unit(_unit(ys, 2), 0)) / n
     return {"stoi_band_segment": rho, "estoi_band_segment": share}
 
 

@@ -30,7 +30,14 @@ from fractions import Fraction
 import numpy as np
 
 from . import standards as std
-from .audio import CLIP_FULL_SCALE, SILENCE_RMS, audio_info, check_rate, pick_channel
+from .audio import (
+    CLIP_FULL_SCALE,
+    CLIP_MIN_FULL_SCALE_SAMPLES,
+    SILENCE_RMS,
+    audio_info,
+    check_rate,
+    pick_channel,
+)
 from .correlation import CorrelationResult, frame_count, stoi_estoi_stream
 from .exceptions import ComputationError, InputError
 from .modulation import mtf_from_pair_ncm
@@ -76,6 +83,23 @@ SSTI_ENVELOPE_RATE_HZ: float = 100.0
 #: a 12.5 Hz envelope gives about 25 independent samples per second, so 3 s keep it
 #: near 0.1 (1 - r^2) (judgement). Shorter pairs get ssti = null with a note.
 SSTI_MIN_SECONDS: float = 3.0
+
+#: A band whose upper edge lies above this share of the Nyquist frequency cannot be
+#: designed as a band-pass (the Butterworth design fails at Nyquist); it becomes a
+#: high-pass at its lower edge (judgement).
+NYQUIST_SHARE: float = 0.98
+
+#: Below this share of frames with speech (within 40 dB of the loudest) the result gets
+#: a note that it rests on little speech (judgement).
+LOW_SPEECH_SHARE: float = 0.2
+
+#: Valid range of the speech-based STI, shown with every result.
+SSTI_VALID_RANGE: str = (
+    "speech-based STI (NCM): for additive noise, reverberation and linear filtering of whole "
+    "utterances of 3 s or more; it measures the loss of envelope fluctuation, so a steady masker "
+    "whose envelope hardly fluctuates (wide bands, stationary noise) lowers it much less than the "
+    "classical STI, and nonlinear processing can raise it without raising intelligibility"
+)
 
 #: Timeline of local STOI/ESTOI: bin width, s, and the largest number of bins (the
 #: bin grows for long inputs).
@@ -212,6 +236,7 @@ def _scan(src: _Source) -> dict:
     n_bad = 0
     s1 = s2 = 0.0
     full_scale = 0
+    energy = []
     for a in range(0, src.n, SCAN_BLOCK):
         x = src.read(a, min(src.n, a + SCAN_BLOCK))
         fin = np.isfinite(x)
@@ -219,7 +244,9 @@ def _scan(src: _Source) -> dict:
             n_bad += int(np.count_nonzero(~fin))
             continue
         s1 += float(x.sum())
-        s2 += float(np.dot(x, x))
+        e = float(np.dot(x, x))
+        energy.append(e)
+        s2 += e
         full_scale += int(np.count_nonzero(np.abs(x) >= CLIP_FULL_SCALE))
     if n_bad:
         raise InputError(f"{src.name} contains {n_bad} NaN or infinite sample(s)", "repair or re-export the file")
@@ -229,7 +256,7 @@ def _scan(src: _Source) -> dict:
     var = max(0.0, s2 / src.n - (s1 / src.n) ** 2)
     if math.sqrt(var) < SILENCE_RMS:
         raise InputError(f"{src.name} holds only a constant (DC) value", "check the recording and file")
-    return {"rms": rms, "full_scale_samples": full_scale}
+    return {"rms": rms, "full_scale_samples": full_scale, "loudest_block": int(np.argmax(energy)) * SCAN_BLOCK}
 
 
 # ---------------------------------------------------------------------------
@@ -237,20 +264,22 @@ def _scan(src: _Source) -> dict:
 # ---------------------------------------------------------------------------
 
 
-def _find_delay(clean: _Source, degraded: _Source, max_delay_s: float) -> tuple[int, float]:
+def _find_delay(clean: _Source, degraded: _Source, max_delay_s: float, near: int = 0) -> tuple[int, float]:
     """Lag (samples; positive: degraded late) maximising |cross-correlation| and its
-    normalised value, from a clean excerpt of at most ALIGN_EXCERPT_S."""
+    normalised value, from a clean excerpt of at most ALIGN_EXCERPT_S starting as
+    close to sample ``near`` (the loudest stretch of a long input) as the length allows."""
     from scipy.signal import fftconvolve
 
     fs = clean.fs
     d = round(max_delay_s * fs)
     w = min(clean.n, int(ALIGN_EXCERPT_S * fs))
-    ref = clean.read(0, w)
-    sig = degraded.read(-d, w + d)
+    s0 = max(0, min(int(near), clean.n - w))
+    ref = clean.read(s0, s0 + w)
+    sig = degraded.read(s0 - d, s0 + w + d)
     cc = fftconvolve(sig, ref[::-1], mode="valid")  # index i -> lag i - d
     i = int(np.argmax(np.abs(cc)))
     lag = i - d
-    matched = degraded.read(lag, lag + w)
+    matched = degraded.read(s0 + lag, s0 + lag + w)
     den = math.sqrt(float(np.dot(ref, ref)) * float(np.dot(matched, matched)))
     corr = float(cc[i] / den) if den > 0 else 0.0
     return lag, corr
@@ -271,7 +300,7 @@ def _zero_lag_correlation(clean: _Source, degraded: _Source) -> float:
 def ssti_band_filters(fs: int) -> tuple[list[np.ndarray | None], np.ndarray]:
     """Octave band-pass SOS (IEC 61260-1 base-2 edges) for the speech-based STI at ``fs``.
 
-    A band whose upper edge lies above 0.98 x Nyquist is realised as a high-pass at
+    A band whose upper edge lies above NYQUIST_SHARE x Nyquist is realised as a high-pass at
     its lower edge (it holds only the part of the band below Nyquist: ``partial``); a
     band whose lower edge is above that has no content (``None``).
     """
@@ -279,7 +308,7 @@ def ssti_band_filters(fs: int) -> tuple[list[np.ndarray | None], np.ndarray]:
 
     out: list[np.ndarray | None] = []
     partial = np.zeros(len(std.OCTAVE_BANDS_HZ), dtype=bool)
-    top = 0.98 * fs / 2.0
+    top = NYQUIST_SHARE * fs / 2.0
     for k, fc in enumerate(std.OCTAVE_BANDS_HZ):
         lo, hi = fc / std.OCTAVE_EDGE_FACTOR, fc * std.OCTAVE_EDGE_FACTOR
         if lo >= top:
@@ -458,6 +487,7 @@ class PairResult:
                 "estoi": "Jensen & Taal 2016",
                 "ssti": "normalised-covariance method (Goldsworthy & Greenberg 2004) on octave-band "
                         "intensity envelopes, IEC 60268-16:2011 male band weights, no auditory corrections",
+                "ssti_valid_range": SSTI_VALID_RANGE,
             },
             "notes": list(self.notes),
         })
@@ -499,7 +529,7 @@ def _pair(
         )
     stats_c = _scan(clean)
     _scan(degraded)
-    if stats_c["full_scale_samples"] >= 3:
+    if stats_c["full_scale_samples"] >= CLIP_MIN_FULL_SCALE_SAMPLES:
         notes.append(f"the clean reference reaches full scale in {stats_c['full_scale_samples']} samples "
                      "(possibly clipped); the indices treat it as the reference as it is")
     deg = degraded if degraded.fs == fs else _Resampled(degraded, fs)
@@ -507,7 +537,7 @@ def _pair(
         notes.append(f"degraded signal resampled from {degraded.fs} Hz to {fs} Hz")
 
     if align:
-        lag, corr = _find_delay(clean, deg, max_delay_s)
+        lag, corr = _find_delay(clean, deg, max_delay_s, near=stats_c["loudest_block"])
         if abs(corr) < MIN_MATCH_CORRELATION:
             raise InputError(
                 f"clean and degraded do not match: peak waveform correlation {abs(corr):.3f} within "
@@ -600,7 +630,7 @@ def _pair(
                 notes.append(f"octave band(s) {part} Hz only partly below the Nyquist frequency of {fs} Hz: "
                              "their envelope holds only the part of the band that was recorded")
         ssti_bands = SstiBands(std.OCTAVE_BANDS_HZ, r, m, snr, ti, partial)
-    if corr_res.frames_kept < 0.2 * corr_res.frames_total:
+    if corr_res.frames_kept < LOW_SPEECH_SHARE * corr_res.frames_total:
         notes.append(f"only {corr_res.frames_kept} of {corr_res.frames_total} frames carry speech "
                      "(within 40 dB of the loudest); the indices rest on little speech")
 

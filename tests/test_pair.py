@@ -309,3 +309,18 @@ def test_cli_bad_inputs(wav_pair, tmp_path, capsys):
         assert not out.exists()
     code, stdout, _ = run_cli(["pair", str(c), str(stereo), "--channel", "1", "--json"], capsys)
     assert code == 0 and json.loads(stdout)["stoi"] > 0.5
+
+
+def test_delay_found_after_a_quiet_start(monkeypatch):
+    # long inputs are aligned on an excerpt; it is taken at the loudest stretch, so a
+    # quiet lead-in longer than the excerpt does not defeat the alignment
+    import envpredict.pair as pair_mod
+
+    fs = 16000
+    monkeypatch.setattr(pair_mod, "ALIGN_EXCERPT_S", 2.0)
+    monkeypatch.setattr(pair_mod, "SCAN_BLOCK", fs)
+    rng = np.random.default_rng(53)
+    x = np.concatenate([1e-5 * rng.standard_normal(3 * fs), speech_like(4.0, fs, 54)])
+    y = delayed(at_snr(x, speech_shaped_noise(x, 55), 5), 400)
+    r = pair_indices(x, y, fs)
+    assert r.delay_samples == 400
