@@ -546,7 +546,9 @@ def _pair(
                 "--no-align skips the check",
             )
         if corr < 0:
-            notes.append("the degraded signal is polarity-inverted relative to the clean one")
+            notes.append("the best match between the waveforms has inverted polarity (an inverting chain, "
+                         "or a strong reflection in a reverberant recording); the indices do not depend "
+                         "on polarity")
     else:
         lag, corr = 0, _zero_lag_correlation(clean, deg)
 
@@ -694,6 +696,10 @@ def pair_indices(
 
     Valid range
     -----------
+    Alignment: one fixed delay for the whole pair, taken where the waveform
+    cross-correlation peaks; in a reverberant recording that can be a strong reflection
+    rather than the direct sound (a few tens of ms later), which is the shift at which
+    the envelopes agree best. Drifting clocks and time-varying delays are not corrected.
     STOI/ESTOI: see :func:`envpredict.stoi`. Speech-based STI: additive noise,
     reverberation and linear filtering of natural speech of at least 3 s (better whole
     sentences); the NCM only sees envelope *fluctuations*, so a perfectly steady masker
