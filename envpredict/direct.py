@@ -176,7 +176,9 @@ def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
     return list(zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1)))
 
 
-def find_usable_part(x: np.ndarray, fs: int, *, min_seconds: float, name: str = "recording") -> UsablePart:
+def find_usable_part(
+    x: np.ndarray, fs: int, *, min_seconds: float, name: str = "recording", advice: str | None = None,
+) -> UsablePart:
     """Find the test signal in a recording (energy-based) and leave out the settling margins.
 
     Parameters
@@ -184,6 +186,7 @@ def find_usable_part(x: np.ndarray, fs: int, *, min_seconds: float, name: str = 
     x : 1-D recording.
     fs : sample rate, Hz.
     min_seconds : shortest analysable part (after the margins), s.
+    advice : what to tell the user if the part is too short.
 
     Raises
     ------
@@ -192,10 +195,12 @@ def find_usable_part(x: np.ndarray, fs: int, *, min_seconds: float, name: str = 
     frame = max(1, int(round(FRAME_S * fs)))
     nfr = x.size // frame
     need = _ceil1(min_seconds + 2 * GUARD_S)
+    if advice is None:
+        advice = f"record at least {max(need, std.STIPA_MIN_SECONDS):.0f} s of the test signal"
     if nfr < 3:
         raise InputError(
             f"{name} is {x.size / fs:.2f} s long; the analysis needs at least {need:.1f} s of test signal",
-            f"record at least {max(need, std.STIPA_MIN_SECONDS):.0f} s of the test signal",
+            advice,
         )
     e = np.mean(np.square(x[: nfr * frame]).reshape(nfr, frame), axis=1)
     w = max(1, int(round(SMOOTH_S / FRAME_S)))
@@ -226,7 +231,7 @@ def find_usable_part(x: np.ndarray, fs: int, *, min_seconds: float, name: str = 
         raise InputError(
             f"{name} holds {have:.1f} s of test signal; the analysis needs at least {need:.1f} s "
             f"({_ceil1(min_seconds):.1f} s plus {GUARD_S:g} s settling margin at each end)",
-            f"record at least {max(need, std.STIPA_MIN_SECONDS):.0f} s of the test signal",
+            advice,
         )
     return UsablePart(start=start, stop=stop, signal_start=s0, signal_stop=s1, fs=int(fs))
 
@@ -359,14 +364,15 @@ class _Analysed:
     duration_s: float
 
 
-def _analyse_recording(x: np.ndarray, fs: int, min_seconds: float, name: str) -> _Analysed:
+def _analyse_recording(x: np.ndarray, fs: int, min_seconds: float, name: str,
+                       advice: str | None = None) -> _Analysed:
     x = validate_signal(x, fs, name=name)
     fs = int(fs)
     check_rate_for_octaves(fs, name)
     if x.size > MAX_RECORDING_S * fs:
         raise InputError(f"{name} is {x.size / fs:.0f} s long; at most {MAX_RECORDING_S:.0f} s is analysed",
                          "cut the recording to the test signal (a STIPA recording needs 15-60 s)")
-    part = find_usable_part(x, fs, min_seconds=min_seconds, name=name)
+    part = find_usable_part(x, fs, min_seconds=min_seconds, name=name, advice=advice)
     # filter the whole detected signal (the margins absorb the filter transients)
     seg = x[part.signal_start: part.signal_stop]
     bands = octave_bands(seg, fs)
@@ -629,7 +635,8 @@ def full_sti_from_recordings(
         progress(0, nf + 1)
     for i, (x, fs, name) in enumerate(recordings):
         # short enough for the fastest signal; the frequency's own minimum is checked below
-        rec = _analyse_recording(x, fs, MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / freqs.max(), name)
+        rec = _analyse_recording(x, fs, MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / freqs.max(), name,
+                                 advice="record the whole generated full-STI signal (12-13 s)")
         cand = np.tile(freqs, (nb, 1))
         # each candidate over its own whole periods: band_depths windows by the lowest
         # frequency of a row, so evaluate the candidates one at a time

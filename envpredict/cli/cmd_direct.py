@@ -9,7 +9,7 @@ from typing import List, Optional
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, note, table
+from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, table
 
 testsignal_app = typer.Typer(
     help="Generate the test signals of the direct STI method (IEC 60268-16): STIPA or the full-STI set.",
@@ -160,6 +160,8 @@ def _calibration(calibration_db, calibrator, calibrator_level, channel):
 
 def render_direct(d: dict) -> str:
     """Readable text for a direct-method result dictionary."""
+    import numpy as np
+
     lines = [f"Method: {d['method']}"]
     for r in d["recordings"]:
         mod = f", {r['modulation_hz']:g} Hz signal" if "modulation_hz" in r else ""
@@ -181,8 +183,10 @@ def render_direct(d: dict) -> str:
         head += ["F1 Hz", "MTF1", "F2 Hz", "MTF2"]
     rows = []
     for k, fc in enumerate(d["bands_hz"]):
-        row = [f"{fc:g}", fmt(d["mti"][k]), fmt(d["band_levels_db"][k], ".1f"),
-               fmt(d["envelope_noise_depth"][k] if nmod == 2 else None, ".3f")]
+        nd = d["envelope_noise_depth"][k]
+        if isinstance(nd, list):  # full STI: one per recording; show the median
+            nd = float(np.median([v for v in nd if v is not None])) if any(v is not None for v in nd) else None
+        row = [f"{fc:g}", fmt(d["mti"][k]), fmt(d["band_levels_db"][k], ".1f"), fmt(nd, ".3f")]
         if nmod == 2:
             for f, m in zip(d["modulation_hz"][k], d["mtf"][k]):
                 row += [f"{f:g}", fmt(m)]
@@ -286,8 +290,6 @@ def fullsti_command(
             x, fs = load_audio(f, channel, name=f"recording '{f.name}'")
             loaded.append((x, fs, f.name))
             prog.advance()
-    if not as_json:
-        note("analysing 14 recordings")
     with Progress("analysing full-STI recordings", 15, quiet=as_json) as prog:
         result = full_sti_from_recordings(loaded, calibration_db=cal, noise_db=noise_levels, talker=talker,
                                           progress=prog)
