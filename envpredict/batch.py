@@ -353,13 +353,30 @@ def _score_ir(job: dict) -> dict:
     x, fs = load_audio(job["ir"], job.get("channel"), name="impulse response")
     r = sti_from_ir(x, fs, noise_db=job.get("noise"), speech_level_dba=job.get("speech_level", 60.0),
                     talker=job.get("talker", "male"))
-    return {
+    values = {
         "sti": float(r.sti.sti),
         "rating": r.sti.rating,
         "t30_mid": _mean_bands(r.decay.t30, std.MID_FREQUENCY_BANDS_HZ),
         "edt_mid": _mean_bands(r.decay.edt, std.MID_FREQUENCY_BANDS_HZ),
-        NOTES_COLUMN: "; ".join(r.decay.notes),
     }
+    notes = []
+    for col, fig in (("t30_mid", "T30"), ("edt_mid", "EDT")):
+        if not math.isfinite(values[col]):
+            why = [n for n in r.decay.notes if n.startswith(fig) and any(f" at {b:g} Hz" in n for b in
+                                                                         std.MID_FREQUENCY_BANDS_HZ)]
+            notes.append(f"{col} not computed" + (f" ({'; '.join(why)})" if why else
+                                                  f": {fig} missing at 500 Hz or 1 kHz"))
+    values[NOTES_COLUMN] = "; ".join(tuple(notes) + _specific_cautions(r))
+    return values
+
+
+def _specific_cautions(r: Any) -> tuple[str, ...]:
+    """Cautions about this response (cut off, weak decay...), without the generic ones
+    that hold for every row (those are in the batch summary)."""
+    from . import cautions as cau
+
+    generic = {cau.LIFE_SAFETY, cau.NO_NOISE, cau.NO_AUDITORY, cau.below_target(r.sti.sti)}
+    return tuple(c for c in r.cautions if c not in generic)
 
 
 def _score_pair(job: dict) -> dict:
@@ -769,6 +786,7 @@ class BatchSummary:
     failed: int  # rows of the results file with an error (this run and earlier)
     seconds: float
     failures: tuple[tuple[int, str], ...] = field(default=())  # the first few (row, error)
+    cautions: tuple[str, ...] = field(default=())  # for every STI of the file
 
     @property
     def rows_per_s(self) -> float:
@@ -783,6 +801,7 @@ class BatchSummary:
             "ok": self.total - self.failed, "seconds": round(self.seconds, 3),
             "rows_per_s": round(self.rows_per_s, 3) if self.scored else None,
             "failures": [{"row": r, "error": e} for r, e in self.failures],
+            "cautions": list(self.cautions),
         })
 
 
@@ -897,5 +916,19 @@ def run_batch(
     return BatchSummary(
         manifest=str(m.path), out=str(out), backend=backend, workers=n_workers, total=len(m),
         skipped=skipped, scored=scored, failed=len(fails), seconds=time.monotonic() - t0,
-        failures=tuple(fails[:SUMMARY_FAILURES]),
+        failures=tuple(fails[:SUMMARY_FAILURES]), cautions=_batch_cautions(m),
     )
+
+
+def _batch_cautions(m: Manifest) -> tuple[str, ...]:
+    """Cautions that hold for every STI of an IR batch."""
+    from . import cautions as cau
+
+    ir_jobs = [j for j in m.jobs if j["kind"] == "ir"]
+    if not ir_jobs:
+        return ()
+    out = [cau.LIFE_SAFETY]
+    if any(j.get("noise") is None for j in ir_jobs):
+        out.append("Rows without noise levels hold only for a noise-free site: give the octave-band noise "
+                   "at the listener in a 'noise' column or with --noise.")
+    return tuple(out)

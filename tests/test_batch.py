@@ -363,6 +363,20 @@ def test_bad_rows_are_recorded_and_the_batch_goes_on(tmp_path):
     assert len(res2) == 6 and res2[1]["error"] == "" and res2[1]["sti"] != ""
 
 
+def test_notes_say_why_a_figure_is_missing(tmp_path):
+    rng = np.random.default_rng(4)
+    # a 1.2 s file holding a 2.5 s decay: cut off, too little decay range for T30
+    sf.write(tmp_path / "cut.wav", _exp_ir(rng, 2.5, seconds=1.2), IR_FS, subtype="FLOAT")
+    m = _write_csv(tmp_path / "m.csv", ["ir"], [["cut.wav"]])
+    s = run_batch(m, tmp_path / "r.csv", workers=1)
+    _, res = read_results(tmp_path / "r.csv")
+    r = res[0]
+    assert r["sti"] and not r["error"] and r["t30_mid"] == ""
+    assert r["notes"].startswith("t30_mid not computed (T30 not computed at 500 Hz")
+    assert "cut off" in r["notes"]
+    assert s.cautions and "not a certification" in s.cautions[0]  # life-safety caution, once per batch
+
+
 def test_score_row_never_raises_and_is_picklable():
     import pickle
 

@@ -41,6 +41,10 @@ def render_summary(d: dict) -> str:
         lines.extend(f"  row {f['row']}: {f['error']}" for f in d["failures"])
     lines.append("")
     lines.append(f"Results: {d['out']}")
+    if d.get("cautions"):
+        lines.append("")
+        lines.append("Cautions:")
+        lines.extend(f"  - {c}" for c in d["cautions"])
     return "\n".join(lines)
 
 
