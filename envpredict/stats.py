@@ -333,6 +333,8 @@ def compare_conditions(
         raise InputError(f"column '{index}' (--index) is not in the results", f"use one of: {', '.join(cols)}")
     if index == by:
         raise InputError(f"--index and --by are the same column '{by}'", "compare an index across conditions")
+    if not any(_number(r.get(index)) is not None for r in rows):
+        raise InputError(f"column '{index}' holds no numbers", "choose a numeric index column with --index")
     if pair_on is None:
         keys = default_pair_on(cols, by, index)
     else:

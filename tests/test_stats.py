@@ -204,6 +204,8 @@ def test_compare_refuses_ambiguous_items_and_bad_names():
         compare_conditions(rows, by="condition", baseline="unprocessed", index="pesq")
     with pytest.raises(InputError, match="--pair-on"):
         compare_conditions(rows, by="condition", baseline="unprocessed", pair_on="nope")
+    with pytest.raises(InputError, match="'talker' holds no numbers"):
+        compare_conditions(rows, by="condition", baseline="unprocessed", index="talker")
     with pytest.raises(InputError, match="no rows"):
         compare_conditions([], by="condition", baseline="unprocessed")
     for r in rows:

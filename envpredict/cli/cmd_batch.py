@@ -77,6 +77,8 @@ def batch_command(
 
         raise InputError(f"--workers {workers} is below 1", "give 1 or more (default: the number of cores)")
     m = read_manifest(manifest, noise_db=noise, speech_level_dba=speech_level, talker=talker)
+    if scheduler is not None and workers is not None:
+        note("note: --workers is ignored with --scheduler (the cluster's workers score the rows)")
 
     state: dict = {}
 
