@@ -158,6 +158,21 @@ def test_more_reverberation_reads_lower(stipa24):
     assert stis[0] > stis[1] > stis[2]
 
 
+def test_compression_lowers_sti(stipa24):
+    # a fast broadband compressor (gain ~ power^(-a/2), 20 Hz power follower) flattens
+    # the envelopes: the direct method must see it (monotonic in the amount;
+    # common practice, no source for the size of the effect)
+    from scipy.signal import butter, sosfilt
+
+    power = sosfilt(butter(1, 20, fs=FS, output="sos"), stipa24 ** 2)
+    stis = []
+    for a in (0.0, 0.25, 0.5):
+        y = stipa24 * np.maximum(power, 1e-12) ** (-a / 2)
+        stis.append(stipa_from_recording(0.5 * y / np.abs(y).max(), FS).sti.sti)
+    assert stis[0] > stis[1] > stis[2]
+    assert stis[2] < stis[0] - 0.02
+
+
 def test_stated_uncertainty_matches_spread_between_recordings():
     # the window-based uncertainty must describe the real scatter of repeated
     # measurements (independent noise carriers): within a factor of 3
