@@ -40,9 +40,9 @@ Each finished row is appended to the results file as one line with a single
 leaves a valid CSV file holding every finished row (while running, in completion
 order). When the batch completes, the file is rewritten in manifest order through a
 temporary file and an atomic rename, so it is never half-written. ``resume`` reads
-the file, drops a final line that lacks its newline (torn by a power cut or a full
-disk), checks that the header and every kept row still match the manifest, and
-scores only the rows that are missing: no row is lost and none is written twice.
+the file, drops a final line that lacks its newline (a write cut short by a kill
+in the middle of it, a power cut or a full disk), checks that the header and every
+kept row still match the manifest, and scores only the rows that are missing: no row is lost and none is written twice.
 Cells holding line breaks are refused in the manifest, so one line is one row.
 
 Backends
@@ -455,7 +455,8 @@ def _parse_lines(text: str, path: Path) -> tuple[list[str] | None, list[list[str
 def read_results(path: str | os.PathLike) -> tuple[tuple[str, ...], list[dict[str, str]]]:
     """Read a results file written by :func:`run_batch` (complete or still running).
 
-    A final line without its newline (a write torn by a power cut) is ignored.
+    A final line without its newline (a write cut short) is ignored, so a file that
+    is still being written can be read at any time.
 
     Returns
     -------
