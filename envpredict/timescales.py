@@ -34,7 +34,7 @@ import numpy as np
 
 from . import standards as std
 from .audio import resample, validate_signal
-from .bands import intensity_envelopes
+from .bands import envelope_rate, intensity_envelopes
 from .exceptions import InputError
 from .results import jsonable
 
@@ -45,7 +45,7 @@ YIN_RATE_HZ: int = 16000
 #: (judgement: keeps the F0 track off the noise floor between phrases).
 SILENCE_BELOW_PEAK_DB: float = 50.0
 #: Frames processed per block in the vectorised YIN (memory bound, not a method constant).
-YIN_BLOCK_FRAMES: int = 4096
+YIN_BLOCK_FRAMES: int = 1024
 
 #: Shortest recording inspected: two periods of the slowest 0.5 Hz modulation band
 #: would be 4 s; we accept 1 s and report the spectrum bands that cannot be resolved
@@ -70,6 +70,12 @@ MOD_PEAK_RANGE_HZ: tuple[float, float] = (
 #: filters and the Hilbert transform ring there (judgement: 4/bandwidth of the 125 Hz
 #: band is 45 ms).
 EDGE_S: float = 0.05
+
+#: Block length and the margin filtered on each side of a block (and thrown away), s:
+#: the band analysis runs block by block so memory does not grow with the duration.
+#: The margin is far longer than the ringing of the filters (judgement).
+BLOCK_S: float = 20.0
+BLOCK_MARGIN_S: float = 1.0
 
 #: Length of the excerpt kept for the three-level figure, s.
 EXCERPT_S: float = 0.060
@@ -373,6 +379,80 @@ def _minmax_trace(x: np.ndarray, fs: int, points: int = 2000) -> tuple[np.ndarra
     return t, blk.min(axis=1), blk.max(axis=1)
 
 
+def _blocks(n: int, fs: int):
+    """Blocks ``[b0, b1)`` of the signal with margins ``[s0, s1)`` around them.
+
+    Block starts and margins are multiples of the envelope decimation factor, so the
+    decimated envelopes of consecutive blocks join on the same sample grid.
+    """
+    q = envelope_rate(fs, ENVELOPE_RATE_HZ)[0]
+    block = max(q, int(BLOCK_S * fs) // q * q)
+    margin = max(q, int(BLOCK_MARGIN_S * fs) // q * q)
+    for b0 in range(0, n, block):
+        b1 = min(n, b0 + block)
+        yield b0, b1, max(0, b0 - margin), min(n, b1 + margin)
+
+
+def _band_timescales(x: np.ndarray, fs: int, fc: float, lp: np.ndarray, bp: np.ndarray, edge: int,
+                     excerpt: tuple[int, int] | None) -> dict:
+    """Timescale figures of one octave band, block by block (bounded memory).
+
+    Each block is filtered with a margin on both sides that is thrown away, so the
+    result equals the whole-signal computation up to the filters' ringing beyond the
+    margin (far below 1e-6 after 1 s for these filters).
+    """
+    from scipy.signal import hilbert, sosfiltfilt
+
+    sos = _band_sos(fs, fc)
+    n = x.size
+    power = 0.0
+    sums = np.zeros(6)  # count, sum a, sum slow, sum slow^2, sum per, sum per^2
+    c_num = c_den = 0.0
+    env_parts = []
+    fs_env = ENVELOPE_RATE_HZ
+    out: dict = {}
+    for b0, b1, s0, s1 in _blocks(n, fs):
+        xb = sosfiltfilt(sos, x[s0:s1], padtype=None)
+        core = slice(b0 - s0, b1 - s0)
+        power += float(np.sum(np.square(xb[core])))
+        z = hilbert(xb)
+        a = np.abs(z)
+        slow = sosfiltfilt(lp, a)
+        per = sosfiltfilt(bp, a)
+        lo, hi = max(b0, edge), min(b1, n - edge)
+        if hi > lo:
+            sl = slice(lo - s0, hi - s0)
+            sums += (hi - lo, a[sl].sum(), slow[sl].sum(), np.square(slow[sl]).sum(), per[sl].sum(),
+                     np.square(per[sl]).sum())
+        zc = z[b0 - s0 : min(b1 + 1, s1) - s0]
+        inst = np.angle(zc[1:] * np.conj(zc[:-1]))
+        w = np.square(a[b0 - s0 + 1 : b0 - s0 + 1 + inst.size])
+        c_num += float(np.sum(inst * w))
+        c_den += float(np.sum(w))
+        env, fs_env = intensity_envelopes(xb[None, :], fs, cutoff_hz=std.TIMESCALE_ENVELOPE_MAX_HZ,
+                                          target_hz=ENVELOPE_RATE_HZ)
+        q = envelope_rate(fs, ENVELOPE_RATE_HZ)[0]
+        env_parts.append(env[0][(b0 - s0) // q : -(-(b1 - s0) // q)])
+        if excerpt is not None and b0 <= excerpt[0] < b1:
+            e0, e1 = excerpt[0] - s0, min(excerpt[1], s1) - s0
+            out["excerpt"] = {
+                "excerpt_band_hz": fc, "excerpt_t_s": np.arange(e0 + s0, e1 + s0) / fs,
+                "excerpt_band": xb[e0:e1], "excerpt_amplitude": a[e0:e1],
+                "excerpt_slow": slow[e0:e1], "excerpt_periodicity": per[e0:e1],
+            }
+    cnt, sa, ss, ss2, ps, ps2 = sums
+    mean_a = sa / cnt if cnt else 0.0
+    env_m = per_m = carrier = float("nan")
+    if mean_a > 0:
+        env_m = np.sqrt(2.0 * max(ss2 / cnt - (ss / cnt) ** 2, 0.0)) / mean_a
+        per_m = np.sqrt(2.0 * max(ps2 / cnt - (ps / cnt) ** 2, 0.0)) / mean_a
+    if c_den > 0:
+        carrier = c_num / c_den * fs / (2 * np.pi)
+    out.update(power=power / n, envelope_modulation=float(env_m), periodicity_modulation=float(per_m),
+               carrier_hz=float(carrier), envelope=np.concatenate(env_parts), envelope_rate_hz=fs_env)
+    return out
+
+
 def inspect_signal(
     x: np.ndarray,
     fs: int,
@@ -422,7 +502,7 @@ def inspect_signal(
     >>> abs(r.f0_median_hz - 150) < 3
     True
     """
-    from scipy.signal import butter, hilbert, sosfiltfilt
+    from scipy.signal import butter, sosfiltfilt
 
     x = validate_signal(x, fs, name="recording", min_seconds=MIN_SECONDS)
     fs = int(fs)
@@ -478,31 +558,12 @@ def inspect_signal(
     show_band = 1000.0 if 1000.0 in bands else bands[-1]
     edge = int(EDGE_S * fs)
     for k, fc in enumerate(bands):
-        xb = sosfiltfilt(_band_sos(fs, fc), x, padtype=None)
-        pw = float(np.mean(xb * xb))
-        level[k] = 10 * np.log10(pw / total_power) if pw > 0 else -np.inf
-        z = hilbert(xb)
-        a = np.abs(z)
-        inner = slice(edge, a.size - edge)
-        ma = float(a[inner].mean())
-        if ma > 0:
-            slow = sosfiltfilt(lp, a)
-            per = sosfiltfilt(bp, a)
-            env_mod[k] = np.sqrt(2.0) * float(np.std(slow[inner])) / ma
-            per_mod[k] = np.sqrt(2.0) * float(np.std(per[inner])) / ma
-            inst = np.angle(z[1:] * np.conj(z[:-1])) * fs / (2 * np.pi)
-            wgt = a[1:] ** 2
-            carrier[k] = float(np.sum(inst * wgt) / np.sum(wgt))
-            if fc == show_band:
-                excerpt = {
-                    "excerpt_band_hz": fc, "excerpt_t_s": np.arange(i0, i1) / fs,
-                    "excerpt_band": xb[i0:i1], "excerpt_amplitude": a[i0:i1],
-                    "excerpt_slow": slow[i0:i1], "excerpt_periodicity": per[i0:i1],
-                }
-        del z, a
-        env, fs_env = intensity_envelopes(xb[None, :], fs, cutoff_hz=std.TIMESCALE_ENVELOPE_MAX_HZ,
-                                          target_hz=ENVELOPE_RATE_HZ)
-        env = env[0]
+        st = _band_timescales(x, fs, fc, lp, bp, edge, (i0, i1) if fc == show_band else None)
+        level[k] = 10 * np.log10(st["power"] / total_power) if st["power"] > 0 else -np.inf
+        env_mod[k], per_mod[k], carrier[k] = st["envelope_modulation"], st["periodicity_modulation"], st["carrier_hz"]
+        if st.get("excerpt"):
+            excerpt = st["excerpt"]
+        env, fs_env = st["envelope"], st["envelope_rate_hz"]
         freqs, psd = envelope_spectrum(env, fs_env)
         spectra[k] = modulation_indices(freqs, psd)
         band_peak[k] = spectral_peak(freqs, psd, *MOD_PEAK_RANGE_HZ)
@@ -536,13 +597,14 @@ def inspect_signal(
         cautions.append("No envelope modulation peak could be found.")
 
     t_w, w_lo, w_hi = _minmax_trace(x, fs)
-    from scipy.signal import sosfiltfilt as _sf  # same filter as above, broadband
-
-    env_bb = np.sqrt(2.0 * np.maximum(_sf(lp, x * x), 0.0))
-    q = max(1, int(fs // ENVELOPE_RATE_HZ))
+    q = envelope_rate(fs, ENVELOPE_RATE_HZ)[0]
+    env_bb = np.concatenate([
+        np.sqrt(2.0 * np.maximum(sosfiltfilt(lp, np.square(x[s0:s1])), 0.0))[b0 - s0 : b1 - s0 : q]
+        for b0, b1, s0, s1 in _blocks(x.size, fs)
+    ])
     plot = {
         "wave_t_s": t_w, "wave_min": w_lo, "wave_max": w_hi,
-        "envelope_t_s": np.arange(0, x.size, q) / fs, "envelope": env_bb[::q],
+        "envelope_t_s": np.arange(env_bb.size) * q / fs, "envelope": env_bb,
         "band_envelopes": np.array(env_tracks), "band_envelope_rate_hz": fs_env,
         "modulation_freqs_hz": freqs, "modulation_psd": np.array(fine_spectra),
         "modulation_psd_combined": combined,
