@@ -42,8 +42,9 @@ order). When the batch completes, the file is rewritten in manifest order throug
 temporary file and an atomic rename, so it is never half-written. ``resume`` reads
 the file, drops a final line that lacks its newline (a write cut short by a kill
 in the middle of it, a power cut or a full disk), checks that the header and every
-kept row still match the manifest, and scores only the rows that are missing: no row is lost and none is written twice.
-Cells holding line breaks are refused in the manifest, so one line is one row.
+kept row still match the manifest, and scores only the rows that are missing: no
+row is lost and none is written twice. Cells holding line breaks are refused in the
+manifest, so one line is one row.
 
 Backends
 --------
