@@ -17,9 +17,13 @@ import importlib
 # ``app`` when imported (add one line per module)
 _COMMAND_MODULES = [
     "cmd_ir",
+    "cmd_direct",
+    "cmd_pair",
+    "cmd_batch",
     "cmd_predict",
     "cmd_demo",
     "cmd_check",
+    "cmd_inspect",
 ]
 for _name in _COMMAND_MODULES:
     importlib.import_module(f"{__name__}.{_name}")
