@@ -494,3 +494,17 @@ def test_bad_batch_options(ir_corpus, tmp_path, capsys):
         assert err.startswith("error: ") and pattern in err and "Traceback" not in err
     assert not (tmp_path / "r.csv").exists()  # refused before any output
 
+
+
+def test_compare_on_a_batch_result(ir_corpus, capsys):
+    # end to end: score, then ask whether the treatments beat the untreated room
+    code = _cli(["compare", str(ir_corpus["reference"]), "--by", "condition", "--baseline", "untreated", "--json"])
+    assert code == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["index"] == "sti" and d["pair_on"] == ["position", "note"]  # 'ir' differs per condition
+    by = {c["name"]: c for c in d["conditions"]}
+    assert by["untreated"]["verdict"] == "baseline"
+    for name in ("panels", "panels+ceiling"):
+        assert by[name]["n"] == 10 and by[name]["diff"] > 0 and by[name]["ci_low"] > 0
+        assert by[name]["p_value"] == pytest.approx(2 / 2 ** 10)  # all 10 differences positive: exact p
+        assert by[name]["verdict"] == "higher"
