@@ -70,6 +70,9 @@ HEAT_RAMP: tuple[str, ...] = ("#2e1f3b", "#6e2e52", "#b0533a", "#dd9a45", "#f6e9
 BAND_COLOURS: tuple[str, ...] = ("#a8443a", "#c2672f", "#c9962a", "#7d8f2e", "#17736c", "#3d6f9e", "#6b3e75")
 
 DPI = 110
+#: Recordings longer than this (s) are drawn as an overview: syllables are no longer
+#: resolved at figure width (about 1000 pixels), so lines get thinner (judgement).
+LONG_VIEW_S = 30.0
 
 
 def _mpl():
@@ -389,8 +392,10 @@ def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
             num(d, f"masking_db.{k}", ".1f") if d.get("masking_db") else Cell("—"),
             num(d, f"threshold_db.{k}", ".1f") if d.get("threshold_db") else Cell("—"),
         ])
-    tables = [Table("Per octave band", ["band", "MTI", "speech level, dB", "noise level, dB",
-                                        "masking level, dB", "reception threshold, dB"], rows)]
+    head = ["band", "MTI", "speech level, dB", "noise level, dB", "masking level, dB", "reception threshold, dB"]
+    # leave out the level columns the result has no values for (e.g. an uncalibrated recording)
+    keep = [j for j in range(len(head)) if j < 2 or any(r[j].text != "—" for r in rows)]
+    tables = [Table("Per octave band", [head[j] for j in keep], [[r[j] for j in keep] for r in rows])]
     mod = d.get("modulation_hz", [])
     per_band = bool(mod) and isinstance(mod[0], (list, tuple))
     m = d.get("mtf") or []
@@ -727,6 +732,16 @@ def _page_sweep(d: Mapping, extras: Mapping) -> Page:
                  txt(t.get("note") or "")] for i, t in enumerate(targets)]
         p.tables.append(Table("Targets", ["target, %", "SNR, dB", "CI low, dB", "CI high, dB", f"{name} there",
                                           "slope, %/dB", "note"], trow))
+    mp = d.get("mapping") if isinstance(d.get("mapping"), Mapping) else None
+    if mp:
+        rows = [[Cell("formula"), txt(mp.get("formula"))]]
+        params = mp.get("params") if isinstance(mp.get("params"), Mapping) else {}
+        rows += [[Cell(html.escape(str(k))), num(d, f"mapping.params.{k}", ".4g")] for k in params]
+        if mp.get("source"):
+            rows.append([Cell("source"), txt(mp.get("source"))])
+        p.tables.append(Table("Score mapping", ["quantity", "value"], rows))
+    if d.get("level_convention_text"):
+        p.notes.append(f"Level convention ({d.get('level_convention', '')}): {d['level_convention_text']}.")
     for n in d.get("notes") or []:
         p.notes.append(str(n))
     return p
@@ -758,19 +773,23 @@ def _page_inspect(d: Mapping, extras: Mapping) -> Page:
         tw = np.asarray(ex["wave_t_s"])
         ax1.fill_between(tw, ex["wave_min"], ex["wave_max"], color="#9fb4c4", lw=0, label="waveform")
         te, env = np.asarray(ex["envelope_t_s"]), np.asarray(ex["envelope"])
-        ax1.plot(te, env, color=COPPER, lw=1.5, label="envelope (< 50 Hz)")
-        ax1.plot(te, -env, color=COPPER, lw=1.5)
+        dur = float(d.get("duration_s") or tw[-1])
+        long_view = dur > LONG_VIEW_S
+        ax1.plot(te, env, color=COPPER, lw=0.6 if long_view else 1.5, label="envelope (< 50 Hz)")
+        if not long_view:
+            ax1.plot(te, -env, color=COPPER, lw=1.5)
         ax1.set_ylabel("amplitude, full scale")
         ax1.legend(loc="lower right", ncols=2, fontsize=9, bbox_to_anchor=(1.0, 1.0), borderaxespad=0.2)
-        ax1.set_title("Waveform and slow envelope")
+        ax1.set_title("Waveform and slow envelope" + (" (overview)" if long_view else ""))
         t0 = np.asarray(ex["f0_times_s"])
         voiced = np.asarray(ex["voiced"], bool)
         hop = float(d.get("frame_hop_s") or (t0[1] - t0[0] if t0.size > 1 else 0.01))
         for a, b in _voiced_spans(t0, voiced, hop):
             ax2.axvspan(a, b, color=TEAL, alpha=0.13, lw=0)
-            ax1.axvspan(a, b, color=TEAL, alpha=0.08, lw=0)
+            if not long_view:
+                ax1.axvspan(a, b, color=TEAL, alpha=0.08, lw=0)
         f0 = np.asarray(ex["f0_hz"], float)
-        ax2.plot(t0, f0, ".", color=TEAL, ms=3.5, label="F0 (voiced frames)")
+        ax2.plot(t0, f0, ".", color=TEAL, ms=1.5 if long_view else 3.5, label="F0 (voiced frames)")
         lo, hi = d.get("f0_search_hz", [std.F0_MIN_HZ, std.F0_MAX_HZ])
         ax2.set_yscale("log")
         ax2.set_ylim(lo * 0.9, hi * 1.1)
@@ -792,7 +811,10 @@ def _page_inspect(d: Mapping, extras: Mapping) -> Page:
         ax2.set_title(f"Voicing and F0 (YIN, {lo:g}-{hi:g} Hz)")
         p.figures.append(Figure("waveform_f0", "Top: waveform (grey) with its envelope below 50 Hz (copper). "
                                 "Bottom: voiced stretches (shaded) and the fundamental frequency of each voiced "
-                                "10 ms frame.", _png(fig)))
+                                "10 ms frame."
+                                + (f" The recording is longer than {LONG_VIEW_S:g} s, so this is an overview; "
+                                   "look closer at an excerpt with 'envpredict inspect --start S --duration S'."
+                                   if long_view else ""), _png(fig)))
     # 2. three levels of one band, zoomed
     if "excerpt_t_s" in ex and len(ex["excerpt_t_s"]):
         fig = new(11.0, 3.9)
@@ -971,7 +993,7 @@ for _name, _value in (("INK", INK), ("MUTED", MUTED), ("GRID", GRID), ("PAPER", 
 
 
 def _td(c: Cell, first: bool) -> str:
-    cls = c.cls or ("" if first else "n")
+    cls = c.cls or ("n" if c.key is not None else "")
     attrs = f' class="{cls}"' if cls else ""
     if c.key is not None:
         attrs += f' data-key="{html.escape(c.key, quote=True)}"'
