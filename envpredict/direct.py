@@ -141,12 +141,6 @@ UNSTEADY = (
     "100 s STIPA signal to loop). Repeat the measurement."
 )
 
-LEVEL_FROM_SPECTRUM = (
-    "The auditory corrections use the standard male speech spectrum at the measured "
-    "A-weighted level of the received test signal, not the measured band levels."
-)
-
-
 @dataclass(frozen=True)
 class UsablePart:
     """Where the test signal is in a recording, in samples (stop exclusive)."""
@@ -499,7 +493,8 @@ def _finish(
         band_db, _ = _level_dba(band_ms, 0.0)
         la = None
     kw = dict(modulation_hz=modulation_hz, talker=talker, noise_db=noise_db,
-              speech_level_dba=la if calibrated else std.DEFAULT_SPEECH_LEVEL_DBA, auditory=calibrated)
+              speech_level_dba=la if calibrated else std.DEFAULT_SPEECH_LEVEL_DBA, auditory=calibrated,
+              speech_db=band_db if calibrated else None)
     res = sti_from_mtf(mtf_full, **kw)
     win = [sti_from_mtf(m, **kw).sti for m in mtf_windows]
     unc = float(np.std(win, ddof=1) / np.sqrt(len(win))) if len(win) > 1 else float("nan")
@@ -510,8 +505,6 @@ def _finish(
         cautions.append(low)
     if not calibrated:
         cautions.append(NO_CALIBRATION)
-    else:
-        cautions.append(LEVEL_FROM_SPECTRUM)
     if noise_db is not None:
         cautions.append(ADDED_NOISE)
     if np.isfinite(unc) and unc > UNCERTAIN_STI:

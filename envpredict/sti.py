@@ -213,6 +213,7 @@ def sti_from_mtf(
     speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
     talker: str = "male",
     auditory: bool = True,
+    speech_db: Sequence[float] | np.ndarray | None = None,
 ) -> StiResult:
     """STI from a modulation transfer matrix, IEC 60268-16:2011 Annex A.
 
@@ -239,6 +240,9 @@ def sti_from_mtf(
     speech_level_dba : A-weighted speech level at the listener, dB(A).
     talker : "male" or "female" (weights and speech spectrum).
     auditory : apply masking and reception threshold.
+    speech_db : optional measured octave-band levels of the received signal, dB SPL
+        (direct method with a calibrated recording); they replace the standard
+        spectrum at ``speech_level_dba``.
 
     Valid range: speech levels 20-120 dB(A); noise levels -20-140 dB SPL.
     """
@@ -253,7 +257,12 @@ def sti_from_mtf(
     m = np.clip(m, 0.0, None)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
 
-    speech_db = speech_band_levels(speech_level_dba, talker)
+    if speech_db is None:
+        speech_db = speech_band_levels(speech_level_dba, talker)
+    else:
+        speech_db = np.asarray(speech_db, dtype=float)
+        if speech_db.shape != (nb,) or np.any(np.isnan(speech_db)) or np.any(speech_db > 160):
+            raise InputError("band speech levels must be seven numbers in dB SPL", "check the calibration")
     i_s = np.where(np.isfinite(speech_db), 10.0 ** (speech_db / 10.0), 0.0)
     i_n = 10.0 ** (noise / 10.0) if noise is not None else np.zeros(nb)
 

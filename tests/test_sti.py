@@ -104,3 +104,14 @@ def test_bad_talker_and_shape():
         sti_from_mtf(np.ones((7, 14)), talker="child")
     with pytest.raises(InputError):
         sti_from_mtf(np.ones((6, 14)))
+
+
+def test_measured_band_levels_equal_standard_spectrum():
+    # giving the standard spectrum (Table A.2) as measured band levels changes nothing
+    m = np.full((7, 14), 0.7)
+    a = sti_from_mtf(m, speech_level_dba=75, noise_db=[50] * 7)
+    b = sti_from_mtf(m, speech_db=75 + np.array(std.SPEECH_SPECTRUM_MALE_DB), noise_db=[50] * 7)
+    assert a.sti == pytest.approx(b.sti, abs=1e-12)
+    # louder measured bands are masked more strongly from below (Table A.3 rises with level)
+    c = sti_from_mtf(np.ones((7, 14)), speech_db=[110.0] * 7)
+    assert c.sti < 1.0
