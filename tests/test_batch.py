@@ -508,3 +508,15 @@ def test_compare_on_a_batch_result(ir_corpus, capsys):
         assert by[name]["n"] == 10 and by[name]["diff"] > 0 and by[name]["ci_low"] > 0
         assert by[name]["p_value"] == pytest.approx(2 / 2 ** 10)  # all 10 differences positive: exact p
         assert by[name]["verdict"] == "higher"
+
+
+def test_plain_progress_lines_when_not_a_terminal(ir_corpus, tmp_path, capsys, monkeypatch):
+    from envpredict.cli import cmd_batch
+
+    monkeypatch.setattr(cmd_batch, "PROGRESS_EVERY_S", 0.0)
+    out = tmp_path / "r.csv"
+    out.write_text("".join(ir_corpus["reference"].read_text().splitlines(keepends=True)[:21]))  # 20 done
+    assert _cli(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume", "--workers", "1"]) == 0
+    err = capsys.readouterr().err
+    assert "scoring (20 of 30 rows already done): 10/10 done" in err
+    assert "/s" in err

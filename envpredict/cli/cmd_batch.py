@@ -27,6 +27,11 @@ LEVEL_HELP = "Default A-weighted speech level for IR rows, dB(A) (default 60)."
 TALKER_HELP = "Default speech spectrum for IR rows: male or female (IEC 60268-16)."
 
 
+#: Seconds between plain progress lines when stderr is not a terminal (a long batch
+#: writes a log; one line every 30 s keeps it short).
+PROGRESS_EVERY_S = 30.0
+
+
 def render_summary(d: dict) -> str:
     lines = []
     extra = f"; {d['skipped']} were already done" if d["skipped"] else ""
@@ -87,7 +92,7 @@ def batch_command(
         if "bar" not in state:
             skipped = len(m) - total
             label = "scoring" + (f" ({skipped} of {len(m)} rows already done)" if skipped else "")
-            state["bar"] = Progress(label, total).__enter__()
+            state["bar"] = Progress(label, total, every_s=PROGRESS_EVERY_S).__enter__()
         state["bar"](done, total)
 
     try:
