@@ -282,9 +282,10 @@ def test_calibrated_analysis_applies_auditory_corrections(stipa24, direct24):
     assert r.level_dba == pytest.approx(60.0, abs=0.3)
     assert r.calibrated and r.sti.auditory
     assert NO_CALIBRATION not in r.cautions
-    # the same MTF through the one STI code path with the corrections (wiring check)
+    # the same MTF through the one STI code path with the corrections, using the measured
+    # band levels of the received signal (wiring check)
     want = sti_from_mtf(r.sti.mtf_measured, modulation_hz=std.STIPA_MODULATION_HZ,
-                        speech_level_dba=r.level_dba, auditory=True).sti
+                        speech_db=r.band_levels_db, auditory=True).sti
     assert r.sti.sti == pytest.approx(want, abs=1e-9)
     assert r.sti.sti < r0.sti.sti  # masking and threshold only take away
     d = r.to_dict()
