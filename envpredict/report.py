@@ -1143,9 +1143,37 @@ def write_report(
     doc = render_html(kind, result, page, settings=settings, title=title or KIND_TITLES[kind],
                       version=__version__, created=created)
     folder = Path(folder)
+    check_report_folder(folder)
     with atomic_directory(folder) as tmp:
         _write_folder(tmp, page, doc, result)
     return folder / "report.html"
+
+
+#: What a report folder holds; a folder with anything else in it is not replaced.
+REPORT_SUFFIXES: frozenset[str] = frozenset({".png", ".html", ".json"})
+
+
+def check_report_folder(folder: str | Path) -> None:
+    """Refuse a report folder that exists and holds more than an earlier report.
+
+    The report replaces its folder as a whole, so a folder with other files in it
+    (``--report .`` or a home folder by mistake) must not be used. Call it before the
+    slow work so a command fails fast.
+    """
+    p = Path(folder)
+    parent = p.parent if str(p.parent) else Path(".")
+    if not parent.exists():
+        raise InputError(f"folder '{parent}' for the report does not exist", "create it first or choose another path")
+    if not p.exists():
+        return
+    if not p.is_dir():
+        raise InputError(f"report path '{p}' exists and is not a folder", "give a folder name")
+    entries = list(p.iterdir())
+    is_report = all(e.is_file() and e.suffix.lower() in REPORT_SUFFIXES for e in entries) and (
+        not entries or (p / "report.html").is_file())
+    if not is_report:
+        raise InputError(f"folder '{p}' exists and holds files that are not part of a report",
+                         "give a new folder name (the report replaces its folder as a whole)")
 
 
 def _write_folder(tmp: Path, page: Page, doc: str, result: Mapping[str, Any]) -> None:
@@ -1165,4 +1193,4 @@ def figure_names(folder: str | Path) -> list[str]:
     return sorted(p.name for p in Path(folder).glob("*.png"))
 
 
-__all__: Sequence[str] = ("KINDS", "figure_names", "render_html", "write_report")
+__all__: Sequence[str] = ("KINDS", "check_report_folder", "figure_names", "render_html", "write_report")

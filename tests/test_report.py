@@ -422,3 +422,21 @@ def test_the_page_checks_catch_a_wrong_number(tmp_path, inspect_result):
     check_shown_number("0.58", 0.576)
     check_shown_number("1.2e-05", 1.24e-5)
     check_shown_number("124.8 Hz", 124.83)
+
+
+def test_folder_with_other_files_is_never_replaced(tmp_path):
+    # the report replaces its folder as a whole: a folder holding anything but an
+    # earlier report (e.g. '--report .') is refused and left as it was
+    folder = tmp_path / "work"
+    folder.mkdir()
+    (folder / "notes.txt").write_text("keep me")
+    with pytest.raises(InputError, match="not part of a report"):
+        write_report("sweep", sweep_result(), folder)
+    assert (folder / "notes.txt").read_text() == "keep me"
+    # an earlier report folder, and an empty folder, are fine
+    write_report("sweep", sweep_result(), tmp_path / "rep")
+    write_report("compare", {"conditions": []}, tmp_path / "rep")
+    assert not (tmp_path / "rep" / "psychometric.png").exists()
+    (tmp_path / "empty").mkdir()
+    write_report("sweep", sweep_result(), tmp_path / "empty")
+    assert (tmp_path / "empty" / "report.html").is_file()

@@ -247,3 +247,10 @@ def test_cli_report(voiced_file, tmp_path, capsys):
     assert (rep / "report.html").is_file()
     assert json.loads((rep / "result.json").read_text()) == d
     assert len(list(rep.glob("*.png"))) == 4
+
+
+def test_cli_report_refuses_a_folder_with_other_files(voiced_file, tmp_path, capsys):
+    # voiced_file lives in tmp_path: '--report tmp_path' would replace it
+    code, _, err = run_cli(["inspect", str(voiced_file), "--report", str(tmp_path)], capsys)
+    assert code == 2 and "not part of a report" in err
+    assert voiced_file.is_file()

@@ -11,13 +11,13 @@ from ._app import app
 from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, note, table
 
 CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
-START_HELP = "Start of the excerpt to inspect, seconds from the beginning of the file. Default 0."
+START_HELP = "Start of the excerpt to inspect, seconds from the beginning of the file."
 DURATION_HELP = "Length of the excerpt, seconds (1 to 600). Default: to the end of the file."
-F0_MIN_HELP = ("Lowest F0 searched, Hz. Default 50: periodicity spans about 50-500 Hz and adult voices "
-               "are commonly 100-300 Hz (common practice, no source).")
-F0_MAX_HELP = "Highest F0 searched, Hz. Default 500 (see --f0-min)."
+F0_MIN_HELP = ("Lowest F0 searched, Hz. Periodicity spans about 50-500 Hz and adult voices are commonly "
+               "100-300 Hz (common practice, no source), hence the 50-500 Hz default range.")
+F0_MAX_HELP = "Highest F0 searched, Hz (see --f0-min)."
 REPORT_HELP = ("Also write a report folder: PNG figures and a self-contained report.html "
-               "(opens offline in a browser). The folder is created or replaced as a whole.")
+               "(opens offline in a browser). A new folder, or an earlier report folder (replaced as a whole).")
 
 
 def render_inspect(d: dict, source: str) -> str:
@@ -118,11 +118,9 @@ def inspect_command(
         raise InputError(f"F0 search range {f0_min:g}-{f0_max:g} Hz is outside 20-2000 Hz",
                          "periodicity lies at about 50-500 Hz; keep the range within 20-2000 Hz")
     if report is not None:
-        rp = report.parent if str(report.parent) else Path(".")
-        if not rp.exists():
-            raise InputError(f"folder '{rp}' for the report does not exist", "create it first or choose another path")
-        if report.exists() and not report.is_dir():
-            raise InputError(f"report path '{report}' exists and is not a folder", "give a folder name")
+        from envpredict.report import check_report_folder
+
+        check_report_folder(report)
     x, fs = _read_excerpt(audio_file, channel, start, duration)
     with Progress("inspecting recording", None, quiet=as_json) as prog:
         result = inspect_signal(x, fs, f0_min_hz=f0_min, f0_max_hz=f0_max, progress=prog)
