@@ -1116,13 +1116,33 @@ def write_report(
 
     Examples
     --------
-    In a command, after ``d = result.to_dict()`` (the ``ir`` command)::
+    In a command, after ``d = result.to_dict()`` (plus the keys the command adds, so
+    the page embeds exactly what ``--json`` prints), with ``--report DIR`` given as
+    ``report: Optional[Path]``. Check the folder before the slow work with
+    ``check_report_folder(report)`` (refuses a folder holding other files), then::
 
         from envpredict.report import write_report
-        write_report("ir", d, report_dir, settings={"input": str(ir_file), "noise": noise or "none",
+
+        # ir
+        write_report("ir", d, report, settings={"input": str(ir_file), "noise, dB SPL": noise or "none",
                      "speech level, dB(A)": speech_level, "talker": talker},
                      extras={"decay_curves_db": result.decay.curves_db,
                              "decay_curve_rate_hz": result.decay.curve_rate_hz})
+        # stipa (DirectResult.to_dict())
+        write_report("stipa", d, report, settings={"recording": str(path), "talker": talker})
+        # pair (PairResult.to_dict()); the per-band figure over time needs the matrix
+        write_report("pair", d, report, settings={"clean": str(clean), "degraded": str(degraded)},
+                     extras={"band_segment_correlation": rho, "segment_end_s": end_s})
+        # compare (Comparison.to_dict())
+        write_report("compare", d, report, settings={"results": str(csv), "by": by, "baseline": baseline})
+        # sweep (SweepResult.to_dict())
+        write_report("sweep", d, report, settings={"clean": str(clean), "noise": str(noise),
+                     "mapping": str(map_file)})
+        # inspect (InspectResult.to_dict())
+        write_report("inspect", d, report, settings={"input": str(audio)}, extras=result.report_extras())
+
+    ``write_report`` returns the path of ``report.html``; print it with ``note(...)``
+    when not in ``--json`` mode.
     """
     from . import __version__
     from .outputs import atomic_directory
