@@ -1,0 +1,127 @@
+"""The error contract across commands: one line `error: WHAT — FIX` on stderr, exit code 2 for
+bad input or usage (1 for a computation that cannot be trusted), no traceback, and no output
+file left behind. One row per way of being wrong."""
+
+import json
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from conftest import noise_decay, run_cli
+
+FS_IR = 48000
+FS_SP = 16000
+
+
+def speechlike(seconds=3.0, fs=FS_SP, seed=0):
+    """Harmonic complex with a 4 Hz syllable envelope (invented test material)."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(int(seconds * fs)) / fs
+    f0 = 120 + 20 * np.sin(2 * np.pi * 0.5 * t)
+    phase = 2 * np.pi * np.cumsum(f0) / fs
+    x = sum(np.sin(k * phase) / k for k in range(1, 20))
+    env = np.clip(np.sin(2 * np.pi * 4 * t), 0, None) ** 2
+    return 0.2 * x * env / np.max(np.abs(x)) + 1e-4 * rng.standard_normal(t.size)
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory):
+    d = tmp_path_factory.mktemp("bad")
+    w = lambda name, x, fs, st="PCM_24": (sf.write(d / name, x, fs, subtype=st), d / name)[1]  # noqa: E731
+    f = {}
+    f["ir"] = w("ir.wav", noise_decay(0.8, seconds=2.0, seed=1, floor_db=-70), FS_IR)
+    f["clean"] = w("clean.wav", speechlike(), FS_SP)
+    f["other"] = w("other.wav", 0.1 * np.random.default_rng(5).standard_normal(3 * FS_SP), FS_SP)
+    f["empty"] = d / "empty.wav"
+    f["empty"].write_bytes(b"")
+    f["text"] = d / "notes.wav"
+    f["text"].write_text("not audio at all\n" * 50)
+    f["truncated"] = d / "truncated.wav"
+    f["truncated"].write_bytes(f["ir"].read_bytes()[:40])
+    f["silence"] = w("silence.wav", np.zeros(3 * FS_SP), FS_SP)
+    f["dc"] = w("dc.wav", np.full(2 * FS_IR, 0.25), FS_IR)
+    nan = speechlike()
+    nan[100] = np.nan
+    f["nan"] = w("nan.wav", nan, FS_SP, "FLOAT")
+    f["clipped"] = w("clipped.wav", np.clip(6 * speechlike(fs=48000), -1, 1), 48000)
+    f["short_ir"] = w("short_ir.wav", noise_decay(0.1, seconds=0.3), FS_IR)
+    f["short_pair"] = w("short.wav", speechlike(seconds=0.2), FS_SP)
+    f["low_rate"] = w("low_rate.wav", speechlike(fs=8000), 8000)
+    f["stereo"] = w("stereo.wav", np.stack([noise_decay(0.8, seconds=2.0, seed=s) for s in (1, 2)], axis=1), FS_IR)
+    f["manifest_bad"] = d / "manifest.csv"
+    f["manifest_bad"].write_text("speaker,condition\nA,1\n")
+    f["scores_bad"] = d / "scores.csv"
+    f["scores_bad"].write_text("stoi,correct,trials\n0.5,three,10\n0.6,5,10\n0.7,8,10\n")
+    f["map_bad"] = d / "map.json"
+    f["map_bad"].write_text("{not json")
+    f["results"] = d / "results.csv"
+    f["results"].write_text("condition,item,stoi\nA,1,0.5\nB,1,0.6\n")
+    f["dir"] = d
+    return f
+
+
+# (name, argv builder, expected exit code, text the one-line message must contain)
+CASES = [
+    ("missing file", lambda f, o: ["ir", f["dir"] / "nope.wav", "--out", o], 2, "does not exist"),
+    ("empty file", lambda f, o: ["pair", f["empty"], f["clean"], "--out", o], 2, "empty"),
+    ("directory", lambda f, o: ["stipa", f["dir"], "--out", o], 2, "folder"),
+    ("not audio", lambda f, o: ["inspect", f["text"], "--out", o], 2, "not a readable audio file"),
+    ("truncated header", lambda f, o: ["ir", f["truncated"], "--out", o], 2, "audio"),
+    ("silent reference", lambda f, o: ["pair", f["silence"], f["clean"], "--out", o], 2, "silent"),
+    ("DC only", lambda f, o: ["ir", f["dc"], "--out", o], 2, "constant"),
+    ("NaN samples", lambda f, o: ["pair", f["clean"], f["nan"], "--out", o], 2, "NaN"),
+    ("clipped", lambda f, o: ["stipa", f["clipped"], "--out", o], 2, "clipped"),
+    ("IR too short", lambda f, o: ["ir", f["short_ir"], "--out", o], 2, "0.63 Hz"),
+    ("pair too short", lambda f, o: ["pair", f["short_pair"], f["short_pair"], "--out", o], 2, "short"),
+    ("too long for the excerpt limit", lambda f, o: ["inspect", f["clean"], "--duration", "100000", "--out", o], 2,
+     "duration"),
+    ("rate too low for octaves", lambda f, o: ["ir", f["clean"], "--out", o], 2, "8 kHz octave band"),
+    ("rate too low for pair", lambda f, o: ["pair", f["low_rate"], f["low_rate"], "--out", o], 2, "Hz"),
+    ("stereo where mono is needed", lambda f, o: ["ir", f["stereo"], "--out", o], 2, "--channel"),
+    ("mismatched pair", lambda f, o: ["pair", f["clean"], f["other"], "--out", o], 2, "match"),
+    ("malformed manifest", lambda f, o: ["batch", f["manifest_bad"], "--out", o], 2, "manifest"),
+    ("malformed scores", lambda f, o: ["fitmap", f["scores_bad"], "--index", "stoi", "--out", o], 2, "three"),
+    ("malformed map", lambda f, o: ["predict", f["results"], "--map", f["map_bad"], "--out", o], 2, "map"),
+    ("noise option out of range", lambda f, o: ["ir", f["ir"], "--noise", "40,40,40,40,40,40,900", "--out", o], 2,
+     "noise level"),
+    ("speech level out of range", lambda f, o: ["ir", f["ir"], "--speech-level", "500", "--out", o], 2,
+     "implausible"),
+    ("unknown talker", lambda f, o: ["ir", f["ir"], "--talker", "robot", "--out", o], 2, "unknown talker"),
+    ("bad SNR range", lambda f, o: ["sweep", f["clean"], f["other"], "--snr", "10:x:2", "--out", o], 2, "snr"),
+    ("unknown option", lambda f, o: ["pair", f["clean"], f["clean"], "--frobnicate", "--out", o], 2,
+     "No such option"),
+    ("unknown compare column", lambda f, o: ["compare", f["results"], "--by", "nosuch", "--baseline", "A",
+                                             "--out", o], 2, "nosuch"),
+]
+
+
+@pytest.mark.parametrize("name,argv,code,text", CASES, ids=[c[0] for c in CASES])
+def test_bad_input_contract(files, tmp_path, capsys, name, argv, code, text):
+    out = tmp_path / "result.out"
+    got, stdout, stderr = run_cli(argv(files, out), capsys)
+    lines = [ln for ln in stderr.strip().splitlines() if ln.strip()]
+    assert got == code, (name, stderr)
+    assert len(lines) == 1 and lines[0].startswith("error: "), (name, stderr)
+    assert " — " in lines[0], "message has the form WHAT — FIX"
+    assert text.lower() in lines[0].lower(), (name, lines[0])
+    assert "Traceback" not in stdout + stderr
+    assert not out.exists(), "no partial output file"
+    assert not [p for p in tmp_path.iterdir() if p.name.startswith(".")], "no temporary leftovers"
+
+
+def test_debug_flag_shows_traceback(files, capsys):
+    from envpredict.exceptions import InputError
+
+    with pytest.raises(InputError):
+        from envpredict.cli import main
+
+        main(["--debug", "ir", str(files["dir"] / "nope.wav")])
+
+
+def test_json_output_is_valid_everywhere(files, capsys):
+    # every command that succeeds with --json prints exactly one JSON object
+    code, out, _ = run_cli(["ir", files["ir"], "--json"], capsys)
+    assert code == 0 and isinstance(json.loads(out), dict)
+    code, out, _ = run_cli(["pair", files["clean"], files["clean"], "--json"], capsys)
+    assert code == 0 and json.loads(out)["stoi"] == pytest.approx(1.0, abs=1e-6)
