@@ -451,7 +451,33 @@ def _page_stipa(d: Mapping, extras: Mapping) -> Page:
     if d.get("uncertainty") is not None:
         p.headline.insert(1, ("uncertainty (±)", num(d, "uncertainty", ".3f")))
     p.figures += [_mtf_heatmap(d, True), _ti_figure(d)]
+    win = _arr(d.get("window_sti")) if d.get("window_sti") else np.array([])
+    if win.size >= 2:
+        new = _mpl()
+        fig = new(10.0, 3.4)
+        ax = fig.add_subplot(111)
+        x = np.arange(1, win.size + 1)
+        ax.plot(x, win, "o", color=TEAL, ms=7, label="STI of each analysis window")
+        if d.get("sti") is not None:
+            ax.axhline(d["sti"], color=INK, lw=1.2, ls="--", label=f"STI of the whole recording {d['sti']:.2f}")
+        # at least +-0.05 around the values: a scatter of 0.01 should look small
+        span = max(0.05, float(np.nanmax(win) - np.nanmin(win)))
+        ax.set_ylim(float(np.nanmin(win)) - span, float(np.nanmax(win)) + span)
+        ax.set_xticks(x)
+        ax.set_xlabel("analysis window (consecutive stretches of the recording)")
+        ax.set_ylabel("STI")
+        ax.legend(loc="lower right", ncols=2, fontsize=9.5, bbox_to_anchor=(1.0, 1.0), borderaxespad=0.2)
+        ax.set_title("Consistency over time")
+        unc = d.get("uncertainty")
+        cap = "STI of consecutive analysis windows of the recording: a wide scatter points to a changing noise or a "\
+              "disturbed measurement."
+        if unc is not None:
+            cap += f" Their standard error, {unc:.3f}, is the uncertainty given above."
+        p.figures.append(Figure("window_sti", cap, _png(fig)))
     p.tables += _sti_tables(d, True)
+    if win.size:
+        p.tables.append(Table("STI per analysis window", ["window", "STI"],
+                              [[Cell(str(i + 1)), num(d, f"window_sti.{i}", ".3f")] for i in range(win.size)]))
     return p
 
 
