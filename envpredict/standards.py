@@ -243,15 +243,6 @@ def as_array(values: tuple) -> np.ndarray:
     return np.array([np.nan if v is None else v for v in values], dtype=float)
 
 # ---------------------------------------------------------------------------
-# Single-number room-acoustic figures (ISO 3382-1:2009) -- used by envpredict.batch
-# ---------------------------------------------------------------------------
-
-#: Octave bands averaged for the single-number ("mid-frequency") EDT and T30, Hz.
-#: Source: ISO 3382-1:2009, Annex A, Table A.1 (single-number frequency averaging
-#: 500 Hz to 1000 Hz for EDT and T).
-MID_FREQUENCY_BANDS_HZ: tuple[float, ...] = (500.0, 1000.0)
-
-# ---------------------------------------------------------------------------
 # Direct method: STIPA and full-STI test signals (IEC 60268-16:2011, 6.1 and Annex B)
 # ---------------------------------------------------------------------------
 
@@ -303,3 +294,57 @@ CALIBRATOR_HZ: float = 1000.0
 #: signal reads an MTF near 0.9; with half-octave carriers the leak is below 0.5 %
 #: (2 % at 8 kHz), see tests/test_signals.py.
 TEST_SIGNAL_CARRIER_OCTAVES: float = 0.5
+
+# ---------------------------------------------------------------------------
+# Three timescales of a signal; voicing and F0 (envpredict.timescales)
+# ---------------------------------------------------------------------------
+
+#: Boundaries between the three temporal levels of speech, Hz: envelope (slow
+#: intensity changes, below about 50 Hz), periodicity (voicing and fundamental
+#: frequency, about 50-500 Hz) and temporal fine structure (above about 500 Hz).
+#: Source: S. Rosen, "Temporal information in speech: acoustic, auditory and
+#: linguistic aspects", Phil. Trans. R. Soc. Lond. B 336 (1992) 367-373 (from
+#: memory: 2-50 Hz, 50-500 Hz, 600-10000 Hz; the round 500 Hz boundary is ours).
+TIMESCALE_ENVELOPE_MAX_HZ: float = 50.0
+TIMESCALE_PERIODICITY_MAX_HZ: float = 500.0
+
+#: F0 search range, Hz. Adult voices commonly lie at 100-300 Hz and periodicity spans
+#: about 50-500 Hz (common practice, no source).
+F0_MIN_HZ: float = 50.0
+F0_MAX_HZ: float = 500.0
+
+#: YIN absolute threshold on the cumulative mean normalised difference d'(tau): the
+#: first dip below it is taken as the period. Source: A. de Cheveigne, H. Kawahara,
+#: "YIN, a fundamental frequency estimator for speech and music", JASA 111(4) (2002)
+#: 1917-1930, Sec. II.C step 4 (threshold 0.1).
+YIN_THRESHOLD: float = 0.10
+
+#: A frame counts as voiced when d'(tau) at the chosen period (its aperiodicity) is
+#: below this. Judgement (common practice, no source): clean voicing gives about
+#: 0-0.2, white noise about 0.8-1.
+YIN_VOICING_THRESHOLD: float = 0.25
+
+#: YIN integration window and frame hop, s. The window is longer than the longest
+#: period searched (1/50 Hz = 20 ms), as YIN needs (de Cheveigne & Kawahara 2002,
+#: Sec. II.A); the 10 ms hop is common practice (no source).
+YIN_WINDOW_S: float = 0.030
+YIN_HOP_S: float = 0.010
+
+#: Centres of the one-third-octave modulation bands of the envelope spectra, Hz
+#: (0.5 ... 31.5 Hz, base-2 steps of 2**(1/3), nominal values as for audio bands of
+#: IEC 61260-1). The 0.63-12.5 Hz part is the STI set (IEC 60268-16:2011, 5.1); the
+#: extension to 0.5-31.5 Hz covers syllable and phoneme rates (common practice, no
+#: source) and stays below the 50 Hz envelope low-pass.
+MODULATION_BANDS_HZ: tuple[float, ...] = (
+    0.5, 0.63, 0.8, 1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0, 10.0, 12.5, 16.0,
+    20.0, 25.0, 31.5,
+)
+
+# ---------------------------------------------------------------------------
+# Single-number room-acoustic figures (ISO 3382-1:2009) -- used by envpredict.batch
+# ---------------------------------------------------------------------------
+
+#: Octave bands averaged for the single-number ("mid-frequency") EDT and T30, Hz.
+#: Source: ISO 3382-1:2009, Annex A, Table A.1 (single-number frequency averaging
+#: 500 Hz to 1000 Hz for EDT and T).
+MID_FREQUENCY_BANDS_HZ: tuple[float, ...] = (500.0, 1000.0)
