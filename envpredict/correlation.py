@@ -28,7 +28,7 @@ the whole signal at once. Chunked and unchunked results are identical.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import lru_cache
 
 import numpy as np
@@ -264,6 +264,8 @@ class CorrelationResult:
     segment_stoi, segment_estoi : the index of each 384 ms segment.
     segment_end_s : time in the (aligned) input where each segment ends, s.
     frames_total, frames_kept : analysis frames before and after silent-frame removal.
+    stoi_band_segment : (15, segments) correlation of each band in each segment (the
+        per-band envelope correlation over time; its mean is STOI).
     """
 
     stoi: float
@@ -276,6 +278,7 @@ class CorrelationResult:
     segment_end_s: np.ndarray
     frames_total: int
     frames_kept: int
+    stoi_band_segment: np.ndarray | None = field(default=None, repr=False, compare=False)
 
 
 def correlation_from_envelopes(
@@ -302,6 +305,7 @@ def correlation_from_envelopes(
         segment_end_s=end_s,
         frames_total=int(frames_total),
         frames_kept=int(kept_idx.size),
+        stoi_band_segment=rho,
     )
 
 

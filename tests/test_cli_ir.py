@@ -104,3 +104,42 @@ def test_help_is_fast_and_lists_commands():
                         "print([m for m in ('scipy', 'matplotlib', 'soundfile', 'numpy') if m in sys.modules])"],
                        capture_output=True, text=True, timeout=60)
     assert r.stdout.strip().splitlines()[-1] == "[]"
+
+
+def test_report_folder(ir_file, capsys, tmp_path):
+    import html.parser
+
+    rep = tmp_path / "report"
+    code, out, _ = run_cli(["ir", ir_file, "--json", "--report", rep], capsys)
+    assert code == 0
+    d = json.loads(out)
+    names = {p.name for p in rep.iterdir()}
+    assert {"report.html", "mtf.png", "decay_curves.png", "transmission_index.png"} <= names
+    for p in rep.glob("*.png"):
+        assert p.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    page = (rep / "report.html").read_text()
+
+    class Embedded(html.parser.HTMLParser):
+        parts: list = []
+        inside = False
+
+        def handle_starttag(self, tag, attrs):
+            self.inside = tag == "script" and ("id", "result") in attrs
+
+        def handle_endtag(self, tag):
+            self.inside = False
+
+        def handle_data(self, text):
+            if self.inside:
+                Embedded.parts.append(text)
+
+    Embedded().feed(page)
+    embedded = json.loads("".join(Embedded.parts))
+    assert embedded["sti"] == d["sti"] and embedded["mtf"] == d["mtf"]
+
+
+def test_report_refuses_a_busy_folder(ir_file, capsys, tmp_path):
+    (tmp_path / "keep.txt").write_text("mine")
+    code, _, err = run_cli(["ir", ir_file, "--report", tmp_path], capsys)
+    assert code == 2 and err.startswith("error: ")
+    assert (tmp_path / "keep.txt").read_text() == "mine"

@@ -12,6 +12,28 @@ import typer
 
 JSON_HELP = "Print one JSON object instead of the table (for scripts)."
 OUT_HELP = "Also write the JSON result to this file (written atomically)."
+REPORT_HELP = ("Also write a report folder: PNG figures and a self-contained report.html "
+               "(opens offline in a browser). A new folder, or an earlier report folder (replaced as a whole).")
+
+
+def check_report(report: Path | None) -> None:
+    """Refuse an unusable --report folder before the slow work."""
+    if report is not None:
+        from envpredict.report import check_report_folder
+
+        check_report_folder(report)
+
+
+def write_report_if(report: Path | None, kind: str, d: dict, *, settings: dict, title: str | None = None,
+                    extras: dict | None = None, as_json: bool = False) -> None:
+    """Write the --report folder (figures + report.html) when one was asked for."""
+    if report is None:
+        return
+    from envpredict.report import write_report
+
+    path = write_report(kind, d, report, settings=settings, title=title, extras=extras)
+    if not as_json:
+        note(f"report written: {path}")
 
 
 def dumps(obj: Any) -> str:

@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, note, table
+from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
 
 CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
 START_HELP = "Start of the excerpt to inspect, seconds from the beginning of the file."
@@ -16,8 +16,6 @@ DURATION_HELP = "Length of the excerpt, seconds (1 to 600). Default: to the end 
 F0_MIN_HELP = ("Lowest F0 searched, Hz. Periodicity spans about 50-500 Hz and adult voices are commonly "
                "100-300 Hz (common practice, no source), hence the 50-500 Hz default range.")
 F0_MAX_HELP = "Highest F0 searched, Hz (see --f0-min)."
-REPORT_HELP = ("Also write a report folder: PNG figures and a self-contained report.html "
-               "(opens offline in a browser). A new folder, or an earlier report folder (replaced as a whole).")
 
 
 def render_inspect(d: dict, source: str) -> str:
@@ -117,24 +115,16 @@ def inspect_command(
     if f0_min < 20 or f0_max > 2000:
         raise InputError(f"F0 search range {f0_min:g}-{f0_max:g} Hz is outside 20-2000 Hz",
                          "periodicity lies at about 50-500 Hz; keep the range within 20-2000 Hz")
-    if report is not None:
-        from envpredict.report import check_report_folder
-
-        check_report_folder(report)
+    check_report(report)
     x, fs = _read_excerpt(audio_file, channel, start, duration)
     with Progress("inspecting recording", None, quiet=as_json) as prog:
         result = inspect_signal(x, fs, f0_min_hz=f0_min, f0_max_hz=f0_max, progress=prog)
     d = result.to_dict()
     d["input"] = str(audio_file)
     d["start_s"] = start
-    if report is not None:
-        from envpredict.report import write_report
-
-        settings = {"input": str(audio_file), "channel": channel if channel is not None else "only channel",
-                    "start, s": start, "duration, s": f"{result.duration_s:.2f}",
-                    "F0 search range, Hz": f"{f0_min:g}-{f0_max:g}"}
-        path = write_report("inspect", d, report, settings=settings,
-                            title=f"Three timescales of {audio_file.name}", extras=result.report_extras())
-        if not as_json:
-            note(f"report written: {path}")
+    settings = {"input": str(audio_file), "channel": channel if channel is not None else "only channel",
+                "start, s": start, "duration, s": f"{result.duration_s:.2f}",
+                "F0 search range, Hz": f"{f0_min:g}-{f0_max:g}"}
+    write_report_if(report, "inspect", d, settings=settings, title=f"Three timescales of {audio_file.name}",
+                    extras=result.report_extras() if report is not None else None, as_json=as_json)
     emit(d, lambda: render_inspect(d, str(audio_file)), as_json, out)

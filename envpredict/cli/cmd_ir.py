@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, table
+from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
               "comma-separated, e.g. 48,45,42,40,36,32,28. Default: no noise.")
@@ -65,6 +65,7 @@ def ir_command(
     channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
+    report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """STI (IEC 60268-16 indirect method) and ISO 3382-1 decay figures from an impulse response."""
     from envpredict.audio import load_audio
@@ -75,10 +76,19 @@ def ir_command(
     check_talker(talker)
     check_speech_level(speech_level)
     noise_levels = parse_noise_levels(noise)
+    check_report(report)
     x, fs = load_audio(ir_file, channel, name="impulse response")
     with Progress("analysing impulse response", 3, quiet=as_json) as prog:
         result = sti_from_ir(x, fs, noise_db=noise_levels, speech_level_dba=speech_level, talker=talker,
                              auditory=not no_auditory, progress=prog)
     d = result.to_dict()
     d["input"] = str(ir_file)
+    write_report_if(report, "ir", d, as_json=as_json,
+                    settings={"impulse response": str(ir_file), "channel": "only" if channel is None else channel,
+                              "noise, dB SPL (125 Hz-8 kHz)": noise or "none",
+                              "speech level, dB(A)": speech_level, "talker": talker,
+                              "auditory corrections": "off" if no_auditory else "on"},
+                    title=f"STI and decay figures of {ir_file.name}",
+                    extras={"decay_curves_db": result.decay.curves_db,
+                            "decay_curve_rate_hz": result.decay.curve_rate_hz})
     emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)

@@ -7,7 +7,7 @@ from pathlib import Path
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, table
+from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
 
 CHANNEL_HELP = ("Channel to use from any multi-channel file (0 = first); mono files use their only "
                 "channel. Required when a file has several channels.")
@@ -71,6 +71,7 @@ def pair_command(
     chunk: float = typer.Option(60.0, "--chunk", help=CHUNK_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help=OUT_HELP),
+    report: Path | None = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, with delay alignment and per-band diagnostics."""
     from envpredict.exceptions import InputError
@@ -82,10 +83,18 @@ def pair_command(
         raise InputError(f"channel {channel} does not exist", "give --channel 0 or more")
     if out is not None and not (out.parent if str(out.parent) else Path(".")).exists():
         raise InputError(f"output folder '{out.parent}' does not exist", "create it first or choose another path")
+    check_report(report)
     with Progress("analysing pair", None, quiet=as_json) as prog:
         result = pair_from_files(clean, degraded, channel=channel, align=not no_align, max_delay_s=max_delay,
                                  chunk_s=chunk, progress=prog)
     d = result.to_dict()
     d["clean"] = str(clean)
     d["degraded"] = str(degraded)
+    c = result.correlation
+    write_report_if(report, "pair", d, as_json=as_json,
+                    settings={"clean": str(clean), "degraded": str(degraded),
+                              "alignment": "off" if no_align else f"on, up to ±{max_delay:g} s"},
+                    title=f"{degraded.name} against {clean.name}",
+                    extras={"band_segment_correlation": c.stoi_band_segment, "band_centres_hz": c.band_centres_hz,
+                            "segment_end_s": c.segment_end_s})
     emit(d, lambda: render_pair(d, str(clean), str(degraded)), as_json, out)
