@@ -8,7 +8,7 @@ from pathlib import Path
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, Progress, emit, fmt, note, table
+from ._common import JSON_HELP, REPORT_HELP, Progress, check_report, emit, fmt, note, table, write_report_if
 
 CHANNEL_HELP = "Channel to use from multi-channel files (0 = first). Required for multi-channel files."
 
@@ -235,6 +235,7 @@ def sweep_command(
     channel: int | None = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help="Also write the JSON result to this file (atomically)."),
+    report: Path | None = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """Predicted index and % correct against SNR, and the SNR at target scores (the SRT)."""
     from envpredict.audio import load_audio, resample
@@ -266,6 +267,7 @@ def sweep_command(
     elif target:
         raise InputError("--target needs a mapping", "give --map MAP.json (write one with 'envpredict fitmap')")
 
+    check_report(report)
     x, fs = load_audio(clean, channel, name="clean speech")
     nz, fs_n = load_audio(noise, channel, name="noise")
     if fs_n != fs:
@@ -284,6 +286,11 @@ def sweep_command(
     d = res.to_dict()
     d["inputs"] = {"clean": str(clean), "noise": str(noise), "ir": None if ir is None else str(ir),
                    "map": None if map_file is None else str(map_file)}
+    write_report_if(report, "sweep", d, as_json=as_json,
+                    settings={"clean speech": str(clean), "noise": str(noise), "impulse response": str(ir or "none"),
+                              "mapping": str(map_file or "none"), "index": name, "SNR range, dB": snr,
+                              "noise segments": segments, "level convention": level},
+                    title=f"Predicted scores against SNR: {clean.name} in {noise.name}")
     emit(d, lambda: render_sweep(d), as_json, out)
 
 
