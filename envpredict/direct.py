@@ -9,10 +9,20 @@ The path from a recording to the index:
    told apart by energy: cut them from the file before the analysis. :data:`GUARD_S`
    at each end is left out (the room's build-up and decay, plus the edge detection).
    The test signal may start at any time in the file.
-2. **Bands and envelopes.** The seven octave bands (:func:`envpredict.bands.octave_bands`,
-   zero phase) and their intensity envelopes (:func:`envpredict.bands.intensity_envelopes`,
-   about 200 Hz), at the recording's own sample rate: the modulation frequencies are
-   physical (Hz), so a recorder rate other than the generator's changes nothing.
+2. **Bands and envelopes.** The seven octave bands and their intensity envelopes
+   (squared, 50 Hz low-pass, about 200 Hz) at the recording's own sample rate: the
+   modulation frequencies are physical (Hz), so a recorder rate other than the
+   generator's changes nothing. The recording is read block by block
+   (:class:`envpredict.bands.EnvelopeStream`, filter states carried across blocks), so
+   memory stays bounded for recordings of an hour or more, and an array in memory goes
+   through the same block-wise path as a file. Each band filter runs twice in cascade,
+   which gives the magnitude response of the zero-phase octave filters of
+   :func:`envpredict.bands.octave_bands` (|H|^2); the delay of each band's envelope
+   (twice the band filter's group delay at its centre plus the low-pass's, a few
+   envelope samples) is taken off, so the analysed envelope covers the same time as
+   the usable part. The filters' start-up transient (well under 0.1 s) lies inside
+   the margin :data:`GUARD_S`. Two passes over a recording: first the frame energies
+   (usable part) and the input checks, then the envelopes of the usable part only.
 3. **Modulation depth.** Over a window of a whole number of periods of the band's
    lowest modulation frequency (STIPA: f2 = 5 f1, so also whole periods of f2), the
    depth at F is ``2 |sum I(t) exp(-j 2 pi F t)| / sum I(t)``, the projection of the
@@ -36,15 +46,18 @@ index is computed without those corrections and the result says so.
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, field
-from typing import Callable, Sequence
+from functools import lru_cache
+from pathlib import Path
+from typing import Callable, Iterator, Sequence
 
 import numpy as np
 
 from . import cautions as cau
 from . import standards as std
-from .audio import rms_dbfs, validate_signal
-from .bands import check_rate_for_octaves, intensity_envelopes, octave_bands
+from .audio import StreamCheck, audio_info, check_rate, iter_audio_blocks, rms_dbfs, validate_signal
+from .bands import EnvelopeStream, check_rate_for_octaves, octave_bands
 from .exceptions import InputError
 from .results import jsonable
 from .signals import SETTLE_S
@@ -74,9 +87,22 @@ MIN_PERIODS_PER_WINDOW: int = 2
 MIN_WINDOWS: int = 2
 MAX_WINDOWS: int = 8
 
-#: Longest recording analysed, s (the seven band signals of a longer one need
-#: gigabytes of memory; a test-signal recording is normally under a minute).
-MAX_RECORDING_S: float = 600.0
+#: Longest recording analysed, s: 4 hours. The recording is processed block by block,
+#: but the seven envelopes of the usable part (about 200 Hz) are held in memory, about
+#: 40 MB per hour, plus the same again while the depths are computed (judgement: a
+#: measurement of one condition does not last longer; a longer file is almost surely
+#: a mistake).
+MAX_RECORDING_S: float = 4 * 3600.0
+
+#: Length of the blocks a recording is processed in, s (memory per block: about 60 MB
+#: at 48 kHz). The block length does not change any result.
+BLOCK_SECONDS: float = 20.0
+
+#: Band filters of the envelope stream run this many times in cascade: 2 gives the
+#: magnitude response of the zero-phase octave bands (:func:`envpredict.bands.octave_bands`).
+#: A single causal pass has half the attenuation in dB outside the band; the neighbouring
+#: STIPA bands then leak in and dilute the depths (an undistorted signal reads about 0.83).
+BAND_PASSES: int = 2
 
 #: Modulation frequencies outside this range are not used for the noise-floor
 #: estimate of the envelope spectrum, Hz (slow level drift below; envelope filter
@@ -186,17 +212,55 @@ def find_usable_part(
     ------
     InputError if the test signal part is shorter than ``min_seconds`` + 2 margins.
     """
-    frame = max(1, int(round(FRAME_S * fs)))
-    nfr = x.size // frame
+    frame = _frame_length(fs)
+    fe = _FrameEnergies(frame)
+    fe.update(np.asarray(x, dtype=np.float64))
+    return _usable_from_frames(fe.result(), x.size, fs, min_seconds=min_seconds, name=name, advice=advice)
+
+
+def _frame_length(fs: int) -> int:
+    return max(1, int(round(FRAME_S * fs)))
+
+
+class _FrameEnergies:
+    """Mean square of consecutive :data:`FRAME_S` frames of a signal fed block by block.
+
+    Every frame is computed from its own samples in one piece, so the block split does
+    not change any value.
+    """
+
+    def __init__(self, frame: int) -> None:
+        self.frame = frame
+        self.rest = np.zeros(0)
+        self.parts: list[np.ndarray] = []
+        self.n = 0
+
+    def update(self, block: np.ndarray) -> None:
+        self.n += block.size
+        b = np.concatenate([self.rest, block]) if self.rest.size else block
+        nfr = b.size // self.frame
+        if nfr:
+            self.parts.append(np.mean(np.square(b[: nfr * self.frame]).reshape(nfr, self.frame), axis=1))
+        self.rest = np.array(b[nfr * self.frame:], dtype=np.float64)
+
+    def result(self) -> np.ndarray:
+        return np.concatenate(self.parts) if self.parts else np.zeros(0)
+
+
+def _usable_from_frames(
+    e: np.ndarray, n: int, fs: int, *, min_seconds: float, name: str, advice: str | None,
+) -> UsablePart:
+    """:func:`find_usable_part` from the frame energies ``e`` of a recording of ``n`` samples."""
+    frame = _frame_length(fs)
+    nfr = e.size
     need = _ceil1(min_seconds + 2 * GUARD_S)
     if advice is None:
         advice = f"record at least {max(need, std.STIPA_MIN_SECONDS):.0f} s of the test signal"
     if nfr < 3:
         raise InputError(
-            f"{name} is {x.size / fs:.2f} s long; the analysis needs at least {need:.1f} s of test signal",
+            f"{name} is {n / fs:.2f} s long; the analysis needs at least {need:.1f} s of test signal",
             advice,
         )
-    e = np.mean(np.square(x[: nfr * frame]).reshape(nfr, frame), axis=1)
     w = max(1, int(round(SMOOTH_S / FRAME_S)))
     sm = np.convolve(e, np.ones(w) / w, mode="same")
     with np.errstate(divide="ignore"):
@@ -217,7 +281,7 @@ def find_usable_part(
     above = np.flatnonzero(raw > hi - ACTIVE_THRESHOLD_DB)
     if above.size:
         a, b = a + int(above[0]), a + int(above[-1]) + 1
-    s0, s1 = int(a * frame), int(min(x.size, b * frame))
+    s0, s1 = int(a * frame), int(min(n, b * frame))
     g = int(round(GUARD_S * fs))
     start, stop = s0 + g, s1 - g
     have = (s1 - s0) / fs
@@ -358,25 +422,170 @@ class _Analysed:
     duration_s: float
 
 
-def _analyse_recording(x: np.ndarray, fs: int, min_seconds: float, name: str,
-                       advice: str | None = None) -> _Analysed:
+class _Ticks:
+    """Progress in steps for a ``progress(done, total)`` callback (``None``: silent)."""
+
+    def __init__(self, progress: Callable[[int, int], None] | None, total: int) -> None:
+        self.progress = progress
+        self.total = max(1, int(total))
+        self.done = 0
+
+    def tick(self, n: int = 1) -> None:
+        self.done = min(self.done + n, self.total)
+        if self.progress:
+            self.progress(self.done, self.total)
+
+    def retotal(self, total: int) -> None:
+        self.total = max(self.done, int(total))
+        if self.progress:
+            self.progress(self.done, self.total)
+
+    def finish(self) -> None:
+        self.tick(self.total - self.done)
+
+
+#: Blocks of a recording in order, from the start; the argument is the input check to
+#: feed (pass 1) or ``None`` (pass 2).
+BlockSource = Callable[[StreamCheck | None], Iterator[np.ndarray]]
+
+
+def check_block_seconds(value: float) -> float:
+    """Refuse a block length that is not a positive number of seconds."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"block length '{value}' is not a number", "give it in seconds, e.g. 20") from None
+    if not np.isfinite(v) or not 0.0 < v <= 3600.0:
+        raise InputError(f"block length {value} s is out of range", "give 0 < seconds <= 3600, e.g. 20")
+    return v
+
+
+def _check_length(n: int, fs: int, name: str) -> None:
+    if n > MAX_RECORDING_S * fs:
+        raise InputError(
+            f"{name} is {n / fs / 3600:.2f} h long; at most {MAX_RECORDING_S / 3600:g} h is analysed",
+            "cut the recording to the part that holds the test signal",
+        )
+
+
+@lru_cache(maxsize=16)
+def _envelope_delays(fs: int) -> tuple[int, ...]:
+    """Delay of each band's causal envelope behind the signal, in envelope samples.
+
+    The group delay of the cascaded band filter at the band centre (the envelope of a
+    narrow-band signal travels at the group delay) plus that of the low-pass at the
+    modulation frequencies (constant within 1 % below 16 Hz for a 4th-order Butterworth
+    at 50 Hz), rounded to envelope samples.
+    """
+    from scipy.signal import sosfreqz
+
+    st = EnvelopeStream(fs, band_passes=BAND_PASSES)
+
+    def group_delay(sos: np.ndarray, f: float) -> float:
+        f2 = np.array([f * (1.0 - 1e-3), f * (1.0 + 1e-3)])
+        _, h = sosfreqz(sos, worN=f2, fs=fs)
+        return float(-np.angle(h[1] / h[0]) / (2.0 * np.pi * (f2[1] - f2[0])))
+
+    lp = group_delay(st.lp, 2.0)
+    return tuple(int(round((group_delay(sos, fc) + lp) * st.rate)) for fc, sos in zip(std.OCTAVE_BANDS_HZ, st.sos))
+
+
+def _analyse_blocks(
+    blocks: BlockSource, fs: int, n_expected: int, block: int, min_seconds: float, name: str,
+    advice: str | None, check: StreamCheck | None, ticks: _Ticks | None,
+) -> _Analysed:
+    """The one path from a recording (in memory or in a file) to band envelopes.
+
+    Pass 1: frame energies (usable part) and, for a file, the input checks. Pass 2:
+    envelopes of the usable part, block by block, delays taken off.
+    """
+    n_blocks = -(-n_expected // block)
+    if ticks is not None:
+        ticks.retotal(ticks.total + 2 * n_blocks)
+    fe = _FrameEnergies(_frame_length(fs))
+    for b in blocks(check):
+        fe.update(b)
+        if ticks is not None:
+            ticks.tick()
+    if check is not None:
+        check.finish()
+    n = fe.n
+    _check_length(n, fs, name)
+    part = _usable_from_frames(fe.result(), n, fs, min_seconds=min_seconds, name=name, advice=advice)
+
+    stream = EnvelopeStream(fs, band_passes=BAND_PASSES)
+    q = stream.q
+    delays = _envelope_delays(fs)
+    p0 = part.signal_start  # the margin GUARD_S absorbs the filters' start-up
+    p1 = min(n, part.stop + (max(delays) + 2) * q)
+    if ticks is not None:
+        ticks.retotal(ticks.total - 2 * n_blocks + -(-n // block) + -(-p1 // block))
+    full = np.empty((len(std.OCTAVE_BANDS_HZ), -(-(p1 - p0) // q)))
+    j = pos = 0
+    it = blocks(None)
+    try:
+        for b in it:
+            lo, hi = max(p0, pos), min(p1, pos + b.size)
+            if hi > lo:
+                e = stream.process(b[lo - pos: hi - pos])
+                full[:, j: j + e.shape[1]] = e
+                j += e.shape[1]
+            pos += b.size
+            if ticks is not None:
+                ticks.tick()
+            if pos >= p1:
+                break
+    finally:
+        close = getattr(it, "close", None)
+        if close is not None:
+            close()
+    if j != full.shape[1]:
+        raise InputError(f"{name} changed while it was read (fewer samples on the second reading)",
+                         "analyse a copy of the file that is not being written to")
+    i0 = (part.start - p0) // q
+    m = (part.stop - p0) // q - i0
+    env = np.stack([full[k, i0 + d: i0 + d + m] for k, d in enumerate(delays)])
+    del full
+    # mean of the intensity envelope = mean square of the band signal (unit DC gain)
+    band_ms = np.mean(env, axis=1)
+    return _Analysed(env=env, fs_env=stream.rate, part=part, band_ms=band_ms, fs=fs, duration_s=n / fs)
+
+
+def _analyse_recording(x: np.ndarray, fs: int, min_seconds: float, name: str, advice: str | None = None, *,
+                       block_seconds: float = BLOCK_SECONDS, ticks: _Ticks | None = None) -> _Analysed:
+    """A recording in memory, through the same block-wise path as a file."""
     x = validate_signal(x, fs, name=name)
     fs = int(fs)
     check_rate_for_octaves(fs, name)
-    if x.size > MAX_RECORDING_S * fs:
-        raise InputError(f"{name} is {x.size / fs:.0f} s long; at most {MAX_RECORDING_S:.0f} s is analysed",
-                         "cut the recording to the test signal (a STIPA recording needs 15-60 s)")
-    part = find_usable_part(x, fs, min_seconds=min_seconds, name=name, advice=advice)
-    # filter the whole detected signal (the margins absorb the filter transients)
-    seg = x[part.signal_start: part.signal_stop]
-    bands = octave_bands(seg, fs)
-    a, b = part.start - part.signal_start, part.stop - part.signal_start
-    band_ms = np.mean(np.square(bands[:, a:b]), axis=1)
-    env, fs_env = intensity_envelopes(bands, fs)
-    del bands
-    q = int(round(fs / fs_env))
-    env = env[:, a // q: b // q]
-    return _Analysed(env=env, fs_env=fs_env, part=part, band_ms=band_ms, fs=fs, duration_s=x.size / fs)
+    _check_length(x.size, fs, name)
+    block = max(1, int(check_block_seconds(block_seconds) * fs))
+
+    def blocks(check: StreamCheck | None) -> Iterator[np.ndarray]:
+        for i in range(0, x.size, block):
+            yield x[i: i + block]
+
+    return _analyse_blocks(blocks, fs, x.size, block, min_seconds, name, advice, None, ticks)
+
+
+def _analyse_file(path: str | os.PathLike, channel: int | None, min_seconds: float, name: str,
+                  advice: str | None = None, *, block_seconds: float = BLOCK_SECONDS,
+                  ticks: _Ticks | None = None) -> _Analysed:
+    """A recording in a file, read block by block twice (memory bounded by the block length)."""
+    block_seconds = check_block_seconds(block_seconds)
+    label = f"recording '{path}'"
+    fs, frames, _ = audio_info(path, "recording")
+    if frames == 0:
+        raise InputError(f"{label} contains no samples", "give a file with audio in it")
+    fs = check_rate(fs, label)
+    check_rate_for_octaves(fs, label)
+    _check_length(frames, fs, name)
+    block = max(1, int(block_seconds * fs))
+
+    def blocks(check: StreamCheck | None) -> Iterator[np.ndarray]:
+        for b, _ in iter_audio_blocks(path, channel, block_seconds=block_seconds, name="recording", check=check):
+            yield b
+
+    return _analyse_blocks(blocks, fs, frames, block, min_seconds, name, advice, StreamCheck(label), ticks)
 
 
 def _window_count(n: int, fs_env: float, f_low: float) -> int:
@@ -528,6 +737,30 @@ def _check_options(calibration_db, noise_db, talker):
     return cal, noise, talker
 
 
+def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_db, talker, name: str,
+           progress) -> DirectResult:
+    cal, noise, talker = _check_options(calibration_db, noise_db, talker)
+    pairs = np.asarray(std.STIPA_MODULATION_HZ, dtype=float)
+    f_low = float(pairs.min())
+    min_s = MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / f_low
+    ticks = _Ticks(progress, 1)  # the depths; the analysis adds the blocks of both passes
+    ticks.retotal(1)  # reports (0, 1): started
+    rec = analyse(min_s, ticks)
+    exclude = sorted(set(pairs.ravel()))
+    depth, raw, floor, local = band_depths(rec.env, rec.fs_env, pairs, exclude)
+    _check_found(raw, local, "STIPA", name)
+    nom = std.STIPA_MODULATION_DEPTH
+    nwin = _window_count(rec.env.shape[1], rec.fs_env, f_low)
+    edges = np.linspace(0, rec.env.shape[1], nwin + 1).astype(int)
+    mtf_w = [band_depths(rec.env[:, a:b], rec.fs_env, pairs, exclude)[0] / nom
+             for a, b in zip(edges[:-1], edges[1:])]
+    info = {"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3), **rec.part.to_dict()}
+    out = _finish("STIPA", depth / nom, mtf_w, std.STIPA_MODULATION_HZ, depth, nom, floor,
+                  rec.band_ms, cal, noise, talker, [info])
+    ticks.finish()
+    return out
+
+
 def stipa_from_recording(
     x: np.ndarray,
     fs: int,
@@ -536,6 +769,7 @@ def stipa_from_recording(
     noise_db: Sequence[float] | str | None = None,
     talker: str = "male",
     name: str = "recording",
+    block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
 ) -> DirectResult:
     """STI from a recording of the STIPA test signal (IEC 60268-16:2011, Annex B).
@@ -550,9 +784,13 @@ def stipa_from_recording(
         calibration; only for recordings made without the site's normal noise).
     talker : band weights, "male" or "female".
     name : what the recording is, for error messages.
+    block_seconds : the array is processed in blocks of this length, exactly as a file
+        by :func:`stipa_from_file` (the block length does not change the result).
+    progress : optional ``progress(done, total)`` callback.
 
     Valid input: at least 2 x 2 periods of 0.63 Hz (6.3 s) of test signal plus 1.25 s at
-    each end (8.9 s); 15-30 s is usual. Not clipped, not silent.
+    each end (8.9 s); 15-30 s is usual; at most :data:`MAX_RECORDING_S` (4 h). Not
+    clipped, not silent.
 
     Examples
     --------
@@ -561,62 +799,54 @@ def stipa_from_recording(
     >>> r.sti.sti > 0.97
     True
     """
-    cal, noise, talker = _check_options(calibration_db, noise_db, talker)
-    pairs = np.asarray(std.STIPA_MODULATION_HZ, dtype=float)
-    f_low = float(pairs.min())
-    min_s = MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / f_low
-    if progress:
-        progress(0, 3)
-    rec = _analyse_recording(x, fs, min_s, name)
-    if progress:
-        progress(1, 3)
-    exclude = sorted(set(pairs.ravel()))
-    depth, raw, floor, local = band_depths(rec.env, rec.fs_env, pairs, exclude)
-    _check_found(raw, local, "STIPA", name)
-    nom = std.STIPA_MODULATION_DEPTH
-    nwin = _window_count(rec.env.shape[1], rec.fs_env, f_low)
-    edges = np.linspace(0, rec.env.shape[1], nwin + 1).astype(int)
-    mtf_w = [band_depths(rec.env[:, a:b], rec.fs_env, pairs, exclude)[0] / nom
-             for a, b in zip(edges[:-1], edges[1:])]
-    if progress:
-        progress(2, 3)
-    info = {"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3), **rec.part.to_dict()}
-    out = _finish("STIPA", depth / nom, mtf_w, std.STIPA_MODULATION_HZ, depth, nom, floor,
-                  rec.band_ms, cal, noise, talker, [info])
-    if progress:
-        progress(3, 3)
-    return out
+    return _stipa(lambda min_s, ticks: _analyse_recording(x, fs, min_s, name, block_seconds=block_seconds,
+                                                          ticks=ticks),
+                  calibration_db, noise_db, talker, name, progress)
 
 
-def full_sti_from_recordings(
-    recordings: Sequence[tuple[np.ndarray, int, str]],
+def stipa_from_file(
+    path: str | os.PathLike,
+    channel: int | None = None,
     *,
     calibration_db: float | None = None,
     noise_db: Sequence[float] | str | None = None,
     talker: str = "male",
+    name: str | None = None,
+    block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
 ) -> DirectResult:
-    """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16:2011, 6.1).
+    """STI from a recording file of the STIPA test signal (IEC 60268-16:2011, Annex B).
 
-    Each recording holds one signal of :func:`envpredict.signals.full_sti_plan`
-    (all seven bands modulated at one frequency F, depth 1). The frequency of each
-    recording is found from the recording itself (the one of the 14 whose modulation
-    stands out most in the band envelopes), so the order of the recordings does not
-    matter; each frequency must appear exactly once.
+    The file is read block by block, twice (usable part and input checks, then the
+    envelopes); memory stays bounded by the block length plus about 40 MB per hour of
+    usable signal, so recordings of an hour or more can be analysed. Same numbers as
+    :func:`stipa_from_recording` on the file's samples.
 
     Parameters
     ----------
-    recordings : sequence of ``(x, fs, name)``.
-    calibration_db, noise_db, talker : as for :func:`stipa_from_recording`.
+    path : WAV, FLAC, OGG or other libsndfile-readable file.
+    channel : channel of a multi-channel file (``None``: the file must be mono).
+    name : what the recording is called in the result (default: the file name).
+    block_seconds : length of the blocks read, s.
+    calibration_db, noise_db, talker, progress : as for :func:`stipa_from_recording`.
 
-    Valid input: each recording with at least 4 periods of its modulation frequency
-    plus 1.25 s at each end (the 0.63 Hz signal: 8.9 s).
+    Valid input: as for :func:`stipa_from_recording`; at most :data:`MAX_RECORDING_S` (4 h).
     """
+    name = Path(path).name if name is None else name
+    return _stipa(lambda min_s, ticks: _analyse_file(path, channel, min_s, name, block_seconds=block_seconds,
+                                                     ticks=ticks),
+                  calibration_db, noise_db, talker, name, progress)
+
+
+def _full_sti(
+    sources: Sequence[tuple[str, Callable[[float, str], _Analysed]]],
+    calibration_db, noise_db, talker, progress,
+) -> DirectResult:
     cal, noise, talker = _check_options(calibration_db, noise_db, talker)
     freqs = np.asarray(std.MODULATION_FREQUENCIES_HZ, dtype=float)
     nb, nf = len(std.OCTAVE_BANDS_HZ), freqs.size
-    if len(recordings) != nf:
-        raise InputError(f"{len(recordings)} recording(s) given; the full STI needs {nf}, one per modulation "
+    if len(sources) != nf:
+        raise InputError(f"{len(sources)} recording(s) given; the full STI needs {nf}, one per modulation "
                          "frequency", "give the recordings of all 14 full-STI test signals")
     nom = std.FULL_STI_MODULATION_DEPTH
     assigned: dict[int, tuple[str, _Analysed]] = {}
@@ -626,10 +856,10 @@ def full_sti_from_recordings(
     infos: list[dict] = []
     if progress:
         progress(0, nf + 1)
-    for i, (x, fs, name) in enumerate(recordings):
+    for i, (name, analyse) in enumerate(sources):
         # short enough for the fastest signal; the frequency's own minimum is checked below
-        rec = _analyse_recording(x, fs, MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / freqs.max(), name,
-                                 advice="record the whole generated full-STI signal (12-13 s)")
+        rec = analyse(MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / freqs.max(),
+                      "record the whole generated full-STI signal (12-13 s)")
         cand = np.tile(freqs, (nb, 1))
         # each candidate over its own whole periods: band_depths windows by the lowest
         # frequency of a row, so evaluate the candidates one at a time
@@ -683,3 +913,73 @@ def full_sti_from_recordings(
     if progress:
         progress(nf + 1, nf + 1)
     return out
+
+
+def full_sti_from_recordings(
+    recordings: Sequence[tuple[np.ndarray, int, str]],
+    *,
+    calibration_db: float | None = None,
+    noise_db: Sequence[float] | str | None = None,
+    talker: str = "male",
+    block_seconds: float = BLOCK_SECONDS,
+    progress: Callable[[int, int], None] | None = None,
+) -> DirectResult:
+    """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16:2011, 6.1).
+
+    Each recording holds one signal of :func:`envpredict.signals.full_sti_plan`
+    (all seven bands modulated at one frequency F, depth 1). The frequency of each
+    recording is found from the recording itself (the one of the 14 whose modulation
+    stands out most in the band envelopes), so the order of the recordings does not
+    matter; each frequency must appear exactly once.
+
+    Parameters
+    ----------
+    recordings : sequence of ``(x, fs, name)``.
+    calibration_db, noise_db, talker : as for :func:`stipa_from_recording`.
+    block_seconds : the arrays are processed in blocks of this length, exactly as files
+        by :func:`full_sti_from_files`.
+    progress : optional ``progress(done, total)`` callback (one step per recording).
+
+    Valid input: each recording with at least 4 periods of its modulation frequency
+    plus 1.25 s at each end (the 0.63 Hz signal: 8.9 s).
+    """
+    check_block_seconds(block_seconds)
+
+    def source(x, fs, name):
+        return name, lambda min_s, advice: _analyse_recording(x, fs, min_s, name, advice,
+                                                              block_seconds=block_seconds)
+
+    return _full_sti([source(x, fs, name) for x, fs, name in recordings], calibration_db, noise_db, talker,
+                     progress)
+
+
+def full_sti_from_files(
+    paths: Sequence[str | os.PathLike],
+    channel: int | None = None,
+    *,
+    calibration_db: float | None = None,
+    noise_db: Sequence[float] | str | None = None,
+    talker: str = "male",
+    block_seconds: float = BLOCK_SECONDS,
+    progress: Callable[[int, int], None] | None = None,
+) -> DirectResult:
+    """Full STI from the 14 recording files of the full-STI test signals (IEC 60268-16:2011, 6.1).
+
+    As :func:`full_sti_from_recordings`, each file read block by block (memory bounded
+    by the block length); the recordings are named by their file names.
+
+    Parameters
+    ----------
+    paths : the 14 files, any order.
+    channel : channel of multi-channel files (``None``: the files must be mono).
+    calibration_db, noise_db, talker, block_seconds, progress : as for
+        :func:`full_sti_from_recordings`.
+    """
+    check_block_seconds(block_seconds)
+
+    def source(path):
+        name = Path(path).name
+        return name, lambda min_s, advice: _analyse_file(path, channel, min_s, name, advice,
+                                                         block_seconds=block_seconds)
+
+    return _full_sti([source(p) for p in paths], calibration_db, noise_db, talker, progress)

@@ -224,17 +224,18 @@ def stipa_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
 ) -> None:
-    """STI from a recording of the STIPA test signal (IEC 60268-16 direct method, Annex B)."""
-    from envpredict.audio import load_audio
-    from envpredict.direct import stipa_from_recording
+    """STI from a recording of the STIPA test signal (IEC 60268-16 direct method, Annex B).
+    The file is read in blocks, so recordings of an hour or more (up to 4 h) are analysed in
+    bounded memory."""
+    from envpredict.direct import stipa_from_file
 
     noise_levels = _common_checks(talker, noise)
     cal, source = _calibration(calibration_db, calibrator, calibrator_level,
                                calibrator_channel if calibrator_channel is not None else channel)
-    x, fs = load_audio(recording, channel, name="recording")
-    with Progress("analysing STIPA recording", 3, quiet=as_json) as prog:
-        result = stipa_from_recording(x, fs, calibration_db=cal, noise_db=noise_levels, talker=talker,
-                                      name=recording.name, progress=prog)
+    # steps: the blocks of both passes over the file, then the modulation depths
+    with Progress("analysing STIPA recording", None, quiet=as_json) as prog:
+        result = stipa_from_file(recording, channel, calibration_db=cal, noise_db=noise_levels, talker=talker,
+                                 name=recording.name, progress=prog)
     d = result.to_dict()
     d["input"] = str(recording)
     d["calibration_source"] = source
@@ -272,8 +273,7 @@ def fullsti_command(
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
 ) -> None:
     """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16 direct method)."""
-    from envpredict.audio import load_audio
-    from envpredict.direct import full_sti_from_recordings
+    from envpredict.direct import full_sti_from_files
 
     noise_levels = _common_checks(talker, noise)
     cal, source = _calibration(calibration_db, calibrator, calibrator_level,
@@ -284,15 +284,9 @@ def fullsti_command(
 
         raise InputError(f"{len(files)} recording(s) found; the full STI needs 14 (one per modulation frequency)",
                          "give the recordings of all 14 full-STI signals, or a folder holding only them")
-    loaded = []
-    with Progress("loading recordings", len(files), quiet=as_json) as prog:
-        for f in files:
-            x, fs = load_audio(f, channel, name=f"recording '{f.name}'")
-            loaded.append((x, fs, f.name))
-            prog.advance()
-    with Progress("analysing full-STI recordings", 15, quiet=as_json) as prog:
-        result = full_sti_from_recordings(loaded, calibration_db=cal, noise_db=noise_levels, talker=talker,
-                                          progress=prog)
+    with Progress("analysing full-STI recordings", len(files) + 1, quiet=as_json) as prog:
+        result = full_sti_from_files(files, channel, calibration_db=cal, noise_db=noise_levels, talker=talker,
+                                     progress=prog)
     d = result.to_dict()
     d["input"] = [str(f) for f in files]
     d["calibration_source"] = source
