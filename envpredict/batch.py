@@ -55,7 +55,8 @@ Backends
 * an existing dask.distributed cluster (``scheduler="tcp://HOST:PORT"``; needs the
   optional extra ``pip install 'envpredict[cluster]'``). The workers must have
   envpredict installed and must see the audio files at the same absolute paths
-  (a shared filesystem): the tasks carry paths, not audio.
+  (a shared filesystem): the tasks carry paths, not audio. (dask's nanny already
+  starts its workers with single-threaded numeric libraries.)
 
 The job function :func:`score_row` is a plain top-level function of a plain dict,
 so any executor can pickle it; it never raises: a row whose input is bad comes
