@@ -20,8 +20,9 @@ The path from a recording to the index:
    :func:`envpredict.bands.octave_bands` (|H|^2); the delay of each band's envelope
    (twice the band filter's group delay at its centre plus the low-pass's, a few
    envelope samples) is taken off, so the analysed envelope covers the same time as
-   the usable part. The filters' start-up transient (well under 0.1 s) lies inside
-   the margin :data:`GUARD_S`. Two passes over a recording: first the frame energies
+   the usable part. The filters' start-up transient (impulse-response energy -60 dB
+   after about 0.15 s in the 125 Hz band, less above) lies inside the margin
+   :data:`GUARD_S`. Two passes over a recording: first the frame energies
    (usable part) and the input checks, then the envelopes of the usable part only.
 3. **Modulation depth.** Over a window of a whole number of periods of the band's
    lowest modulation frequency (STIPA: f2 = 5 f1, so also whole periods of f2), the
