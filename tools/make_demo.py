@@ -14,6 +14,9 @@ scenario.json                site noise, speech level and description
 announcement_clean.wav       a spoken announcement, dry (16 kHz, espeak-ng voice)
 announcement_in_hall.wav     the same announcement through the hall with its noise
 hall_noise.wav               the hall's background noise alone (16 kHz)
+corpus/                      eight short announcements, each dry ("clean"), through the hall
+                             in noise ("unprocessed"), and after two invented noise-reduction
+                             chains ("wiener", "gate"); corpus.csv is the batch manifest
 """
 
 from __future__ import annotations
@@ -82,6 +85,70 @@ def shaped_noise(n, fs, seed=3):
     return out / np.sqrt(np.mean(out ** 2))
 
 
+SENTENCES = [
+    "Gate four is now open for boarding.",
+    "The ferry to North Island is delayed by ten minutes.",
+    "Please keep your ticket ready at the barrier.",
+    "Bicycles board through the lower deck entrance.",
+    "The last ferry tonight leaves at eleven fifteen.",
+    "Lost property can be collected at the information desk.",
+    "Passengers for Kessel Bay please proceed to gate two.",
+    "Do not leave luggage unattended in the waiting hall.",
+]
+
+
+def say(text, fs=16000):
+    with tempfile.TemporaryDirectory() as d:
+        wav = Path(d) / "s.wav"
+        subprocess.run(["espeak-ng", "-v", "en-gb", "-s", "155", "-w", str(wav), text], check=True)
+        x, fs0 = sf.read(wav)
+    x = resample_poly(x, fs, fs0)
+    x = np.concatenate([np.zeros(int(0.25 * fs)), x, np.zeros(int(0.35 * fs))])
+    return 0.3 * x / np.max(np.abs(x))
+
+
+def stft_gain(mix, noise_only, fs, kind):
+    """Two invented noise-reduction chains on a short-time spectrum (oracle noise PSD)."""
+    from scipy.signal import istft, stft
+
+    _, _, Y = stft(mix, fs, nperseg=512)
+    _, _, N = stft(noise_only, fs, nperseg=512)
+    pn = np.mean(np.abs(N) ** 2, axis=1, keepdims=True)
+    py = np.abs(Y) ** 2
+    snr_post = np.maximum(py / pn - 1, 1e-3)
+    if kind == "wiener":
+        g = snr_post / (1 + snr_post)
+        g = np.maximum(g, 0.1)
+    else:  # hard spectral gate: strong reduction, musical noise
+        g = np.where(py > 4 * pn, 1.0, 0.05)
+    _, y = istft(Y * g, fs, nperseg=512)
+    return y[: mix.size]
+
+
+def corpus(ir, fs_ir, fs=16000):
+    folder = OUT / "corpus"
+    folder.mkdir(exist_ok=True)
+    for old in folder.glob("*.wav"):
+        old.unlink()
+    ir16 = resample_poly(ir, fs, fs_ir)
+    rows = []
+    for i, text in enumerate(SENTENCES, start=1):
+        x = say(text, fs)
+        wet = fftconvolve(x, ir16)[: x.size]
+        wet = wet / np.sqrt(np.mean(wet ** 2)) * np.sqrt(np.mean(x ** 2))
+        nz = shaped_noise(x.size, fs, seed=100 + i) * np.sqrt(np.mean(wet ** 2)) * 10 ** (-3.0 / 20)
+        mix = wet + nz
+        versions = {"unprocessed": mix, "wiener": stft_gain(mix, nz, fs, "wiener"),
+                    "gate": stft_gain(mix, nz, fs, "gate")}
+        name = f"s{i:02d}"
+        sf.write(folder / f"{name}_clean.wav", x, fs, subtype="PCM_16")
+        for cond, y in versions.items():
+            y = 0.4 * y / np.max(np.abs(y))
+            sf.write(folder / f"{name}_{cond}.wav", y, fs, subtype="PCM_16")
+            rows.append(f"corpus/{name}_clean.wav,corpus/{name}_{cond}.wav,{cond},{name}")
+    (OUT / "corpus.csv").write_text("clean,degraded,condition,sentence\n" + "\n".join(rows) + "\n")
+
+
 def main():
     OUT.mkdir(exist_ok=True)
     ir, fs_ir = hall_ir()
@@ -112,6 +179,7 @@ def main():
         "broadband_snr_db": snr_db,
     }
     (OUT / "scenario.json").write_text(json.dumps(scenario, indent=2) + "\n")
+    corpus(ir, fs_ir)
 
 
 if __name__ == "__main__":

@@ -72,6 +72,14 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
             f"speech-based STI = {fmt(pair.get('ssti'), '.2f')}   delay = {fmt(pair.get('delay_ms'), '.1f')} ms",
         ]
     lines += ["", "Cautions:"] + [f"  - {c}" for c in d["cautions"]]
-    lines += ["", "Next: 'envpredict ir FILE --noise ... --speech-level ...' for your own measurement; "
-              "'envpredict check' runs the reference cases."]
+    noise = ",".join(f"{v:g}" for v in sc["noise_db"])
+    lines += [
+        "",
+        f"The demo material is in {folder}. Try next:",
+        f"  envpredict ir {folder / sc['ir']} --noise {noise} --speech-level {sc['speech_level_dba']:g} --report hall_report",
+        f"  envpredict batch {folder / 'corpus.csv'} --out demo_results.csv",
+        "  envpredict compare demo_results.csv --by condition --baseline unprocessed --pair-on sentence",
+        f"  envpredict sweep {folder / sc['clean']} {folder / sc['noise']} --snr=-15:6:3",
+        "  envpredict check        (the reference-case library)",
+    ]
     typer.echo("\n".join(lines))
