@@ -36,14 +36,10 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
     d = res.to_dict()
     out = {"scenario": sc["title"], "ir": d}
 
-    pair = None
-    try:
-        from envpredict.pair import pair_from_files
-    except ImportError:  # pair indices not available in this build
-        pair_from_files = None
-    if pair_from_files is not None:
-        pair = pair_from_files(folder / sc["clean"], folder / sc["degraded"]).to_dict()
-        out["announcement"] = pair
+    from envpredict.pair import pair_from_files
+
+    pair = pair_from_files(folder / sc["clean"], folder / sc["degraded"]).to_dict()
+    out["announcement"] = pair
 
     if as_json:
         typer.echo(dumps(out))
@@ -64,13 +60,12 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
     rows = [[f"{fc:g}", fmt(d["mti"][k]), fmt(dec["t30"][k]), fmt(dec["c50"][k], ".1f")]
             for k, fc in enumerate(d["bands_hz"])]
     lines.append(table(rows, ["band Hz", "MTI", "T30 s", "C50 dB"]))
-    if pair is not None:
-        lines += [
-            "",
-            "Announcement recorded in the hall vs its clean original:",
-            f"  STOI = {fmt(pair.get('stoi'), '.3f')}   ESTOI = {fmt(pair.get('estoi'), '.3f')}   "
-            f"speech-based STI = {fmt(pair.get('ssti'), '.2f')}   delay = {fmt(pair.get('delay_ms'), '.1f')} ms",
-        ]
+    lines += [
+        "",
+        "Announcement recorded in the hall vs its clean original:",
+        f"  STOI = {fmt(pair.get('stoi'), '.3f')}   ESTOI = {fmt(pair.get('estoi'), '.3f')}   "
+        f"speech-based STI = {fmt(pair.get('ssti'), '.2f')}   delay = {fmt(pair.get('delay_ms'), '.1f')} ms",
+    ]
     lines += ["", "Cautions:"] + [f"  - {c}" for c in d["cautions"]]
     noise = ",".join(f"{v:g}" for v in sc["noise_db"])
     lines += [
