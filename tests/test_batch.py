@@ -520,3 +520,15 @@ def test_plain_progress_lines_when_not_a_terminal(ir_corpus, tmp_path, capsys, m
     err = capsys.readouterr().err
     assert "scoring (20 of 30 rows already done): 10/10 done" in err
     assert "/s" in err
+
+
+def test_interrupt_says_how_to_finish(ir_corpus, tmp_path, capsys, monkeypatch):
+    out = tmp_path / "r.csv"
+    out.write_text(ir_corpus["reference"].read_text().splitlines(keepends=True)[0])
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(batch, "run_batch", interrupted)
+    assert _cli(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume"]) == 130
+    assert "finish with: envpredict batch" in capsys.readouterr().err

@@ -98,6 +98,11 @@ def batch_command(
     try:
         summary = run_batch(m, out, workers=workers, scheduler=scheduler, resume=resume, overwrite=overwrite,
                             retry_failed=retry_failed, progress=progress)
+    except KeyboardInterrupt:
+        if out.exists():
+            note(f"the finished rows are saved in {out}; finish with: envpredict batch {manifest} --out {out} "
+                 "--resume")
+        raise
     finally:
         if "bar" in state:
             state["bar"].__exit__(None, None, None)
