@@ -5,7 +5,7 @@ import importlib
 
 import pytest
 
-MODULES = ["envpredict.modulation", "envpredict.indirect", "envpredict.sti", "envpredict.decay"]
+MODULES = ["envpredict.modulation", "envpredict.indirect", "envpredict.sti", "envpredict.decay", "envpredict.stats"]
 
 
 @pytest.mark.parametrize("name", MODULES)

@@ -58,7 +58,10 @@ def main(argv: list[str] | None = None) -> None:
             raise
         _fail(e.one_line(), e.exit_code)
     except exits as e:
-        raise SystemExit(getattr(e, "exit_code", 0)) from None
+        code = getattr(e, "exit_code", 0)
+        if code == 130:  # typer turns Ctrl-C into Exit(130)
+            _fail("interrupted — run the command again (batch: add --resume to finish the rows)", 130)
+        raise SystemExit(code) from None
     except aborts:
         _fail("interrupted", 130)
     except no_args as e:
