@@ -631,6 +631,12 @@ def _page_compare(d: Mapping, extras: Mapping) -> Page:
     fig = new(10.0, h)
     ax = fig.add_subplot(111)
     y = np.arange(len(conds))[::-1]
+    # labels stand in one column right of every interval and of the zero line
+    right = max([c.get("ci_high") for c in conds if c.get("ci_high") is not None]
+                + [c.get("diff") for c in conds if c.get("diff") is not None] + [0.0])
+    left = min([c.get("ci_low") for c in conds if c.get("ci_low") is not None]
+               + [c.get("diff") for c in conds if c.get("diff") is not None] + [0.0])
+    label_x = right + 0.04 * ((right - left) or 1.0)
     for yi, c in zip(y, conds):
         diff, lo, hi = c.get("diff"), c.get("ci_low"), c.get("ci_high")
         if diff is None or c.get("verdict") == "baseline":
@@ -650,8 +656,7 @@ def _page_compare(d: Mapping, extras: Mapping) -> Page:
         lab = f"{diff:+.3f}" + (f"  [{lo:+.3f}, {hi:+.3f}]" if lo is not None and hi is not None else "")
         if pv is not None:
             lab += f"  p = {pv:.3g}"
-        ax.annotate(lab, (hi if hi is not None else diff, yi), xytext=(8, 0), textcoords="offset points",
-                    va="center", fontsize=9.5)
+        ax.annotate(lab, (label_x, yi), xytext=(0, 0), textcoords="offset points", va="center", fontsize=9.5)
     ax.axvline(0, color=INK, lw=1.0)
     ax.set_yticks(y, [str(c.get("name", "?")) for c in conds])
     level = _first(d, "confidence", "ci_level")

@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, note, table
+from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, note, table, write_report_if
 
 MANIFEST_HELP = ("Manifest CSV: columns 'clean' and 'degraded' (pair rows) or 'ir' (impulse-response rows), "
                  "paths relative to the manifest; optional 'channel', and for IR rows 'noise', 'speech_level', "
@@ -163,13 +163,19 @@ def compare_command(
     ),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
+    report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """Per condition: mean index, paired difference to the baseline, bootstrap 95 % CI, Wilcoxon p."""
     from envpredict.batch import read_results
     from envpredict.stats import compare_conditions
 
+    check_report(report)
     columns, rows = read_results(results)
     res = compare_conditions(rows, by=by, baseline=baseline, index=index, pair_on=pair_on, columns=columns)
     d = res.to_dict()
     d["input"] = str(results)
+    write_report_if(report, "compare", d, as_json=as_json,
+                    settings={"results": str(results), "conditions column": by, "baseline": baseline,
+                              "index": d.get("index", index), "items matched on": pair_on or "default columns"},
+                    title=f"{d.get('index', index)} by {by}, against {baseline}")
     emit(d, lambda: render_comparison(d), as_json, out)
