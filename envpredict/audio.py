@@ -138,6 +138,28 @@ def check_rate(fs: float, name: str = "input") -> int:
     return int(fsf)
 
 
+def as_mono_array(x, fs: float, name: str = "input", *, hint: str = "") -> tuple[np.ndarray, int]:
+    """The shape checks of every array input: a supported rate, numeric samples, one
+    channel, not empty. Returns ``(array, fs)`` without copying where possible."""
+    fs = check_rate(fs, name)
+    try:
+        a = np.asarray(x)
+    except (TypeError, ValueError):
+        raise InputError(f"{name} is not numeric audio", "pass a 1-D array of samples") from None
+    if a.dtype.kind not in "fiu":
+        raise InputError(f"{name} is not numeric audio (dtype {a.dtype})", "pass a 1-D array of samples")
+    if a.ndim == 2 and 1 in a.shape:
+        a = a.reshape(-1)
+    if a.ndim != 1:
+        raise InputError(
+            f"{name} has shape {a.shape}; one channel is needed",
+            "select one channel (e.g. x[:, 0], or --channel N)" + hint,
+        )
+    if a.size == 0:
+        raise InputError(f"{name} is empty", "give a signal with samples in it")
+    return a, fs
+
+
 def validate_signal(
     x: np.ndarray,
     fs: float,
@@ -152,20 +174,8 @@ def validate_signal(
     NaN/inf, silence, a constant (DC) signal, digital clipping, sample rates outside
     the supported range and inputs shorter than ``min_seconds``.
     """
-    fs = check_rate(fs, name)
-    try:
-        a = np.asarray(x, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise InputError(f"{name} is not numeric audio", "pass a 1-D array of samples") from None
-    if a.ndim == 2 and 1 in a.shape:
-        a = a.reshape(-1)
-    if a.ndim != 1:
-        raise InputError(
-            f"{name} has shape {a.shape}; one channel is needed",
-            "select one channel (e.g. x[:, 0], or --channel N)",
-        )
-    if a.size == 0:
-        raise InputError(f"{name} is empty", "give a signal with samples in it")
+    a, fs = as_mono_array(x, fs, name)
+    a = a.astype(np.float64, copy=False)
     if not np.all(np.isfinite(a)):
         bad = int(np.count_nonzero(~np.isfinite(a)))
         raise InputError(f"{name} contains {bad} NaN or infinite sample(s)", "repair or re-export the file")

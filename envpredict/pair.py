@@ -31,11 +31,10 @@ import numpy as np
 
 from . import standards as std
 from .audio import (
-    CLIP_FULL_SCALE,
     CLIP_MIN_FULL_SCALE_SAMPLES,
-    SILENCE_RMS,
+    StreamCheck,
+    as_mono_array,
     audio_info,
-    check_rate,
     pick_channel,
 )
 from .correlation import CorrelationResult, frame_count, stoi_estoi_stream
@@ -212,50 +211,22 @@ class _Window(_Source):
 
 
 def _as_array_source(x: np.ndarray, fs: int, name: str) -> _ArraySource:
-    fs = check_rate(fs, name)
-    try:
-        a = np.asarray(x)
-    except (TypeError, ValueError):
-        raise InputError(f"{name} is not numeric audio", "pass a 1-D array of samples") from None
-    if a.dtype.kind not in "fiu":
-        raise InputError(f"{name} is not numeric audio (dtype {a.dtype})", "pass a 1-D array of samples")
-    if a.ndim == 2 and 1 in a.shape:
-        a = a.reshape(-1)
-    if a.ndim != 1:
-        raise InputError(
-            f"{name} has shape {a.shape}; one channel is needed",
-            "select one channel (e.g. x[:, 0], or --channel N); mono and stereo signals cannot be compared",
-        )
-    if a.size == 0:
-        raise InputError(f"{name} is empty", "give a signal with samples in it")
+    a, fs = as_mono_array(x, fs, name, hint="; mono and stereo signals cannot be compared")
     return _ArraySource(a, fs, name)
 
 
 def _scan(src: _Source) -> dict:
-    """Check a source block by block: finite, not silent, not constant. Returns stats."""
-    n_bad = 0
-    s1 = s2 = 0.0
-    full_scale = 0
+    """Check a source block by block: finite, not silent, not constant (clipping is a
+    legitimate degradation here, so it is only counted). Returns stats."""
+    check = StreamCheck(src.name, allow_clipping=True)
     energy = []
     for a in range(0, src.n, SCAN_BLOCK):
         x = src.read(a, min(src.n, a + SCAN_BLOCK))
-        fin = np.isfinite(x)
-        if not fin.all():
-            n_bad += int(np.count_nonzero(~fin))
-            continue
-        s1 += float(x.sum())
-        e = float(np.dot(x, x))
-        energy.append(e)
-        s2 += e
-        full_scale += int(np.count_nonzero(np.abs(x) >= CLIP_FULL_SCALE))
-    if n_bad:
-        raise InputError(f"{src.name} contains {n_bad} NaN or infinite sample(s)", "repair or re-export the file")
-    rms = math.sqrt(s2 / src.n)
-    if rms < SILENCE_RMS:
-        raise InputError(f"{src.name} is silent (all samples zero or below -140 dBFS)", "check the recording and file")
-    var = max(0.0, s2 / src.n - (s1 / src.n) ** 2)
-    if math.sqrt(var) < SILENCE_RMS:
-        raise InputError(f"{src.name} holds only a constant (DC) value", "check the recording and file")
+        check.update(x)
+        energy.append(float(np.dot(x, x)))
+    check.finish()
+    rms = math.sqrt(check.sumsq / check.n)
+    full_scale = check.full_scale
     return {"rms": rms, "full_scale_samples": full_scale, "loudest_block": int(np.argmax(energy)) * SCAN_BLOCK}
 
 
