@@ -186,7 +186,8 @@ def validate_signal(
         )
     rms = float(np.sqrt(np.mean(a * a)))
     if rms < SILENCE_RMS:
-        raise InputError(f"{name} is silent (all samples zero or below -140 dBFS)", "check the recording chain and file")
+        raise InputError(f"{name} is silent (all samples zero or below -140 dBFS)",
+                         "check the recording chain and file")
     if float(np.std(a)) < SILENCE_RMS:
         raise InputError(f"{name} holds only a constant (DC) value", "check the recording chain and file")
     if not allow_clipping and is_clipped(a):

@@ -259,7 +259,8 @@ def band_decay(band: np.ndarray, fs: float, t0: int, fc: float | None = None) ->
         else:
             out[name] = fit_decay_time(curve, fs / step, hi, lo)
             if not np.isfinite(out[name]):
-                out["notes"].append(f"{name.upper()} not computed at {label}: the decay curve does not reach {lo:.0f} dB")
+                out["notes"].append(
+                    f"{name.upper()} not computed at {label}: the decay curve does not reach {lo:.0f} dB")
     # clarity and definition: early energy from just before the onset (the zero-phase
     # band filter spreads the direct sound by about 2/bandwidth), late energy to the
     # crossing point plus the compensated tail, noise energy removed from both.

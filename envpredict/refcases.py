@@ -159,7 +159,8 @@ def run_case(case: dict) -> CaseOutcome:
         "c50": r.decay.c50, "c80": r.decay.c80, "d50": r.decay.d50,
         "t30_broadband": lambda: reverberation_time(ir, fs, "t30"),
         "t20_broadband": lambda: reverberation_time(ir, fs, "t20"),
-        "mtf_500_1k": r.sti.mtf_measured[[std.OCTAVE_BANDS_HZ.index(500.0), std.OCTAVE_BANDS_HZ.index(1000.0)]].mean(axis=0),
+        "mtf_500_1k": r.sti.mtf_measured[[std.OCTAVE_BANDS_HZ.index(500.0),
+                                          std.OCTAVE_BANDS_HZ.index(1000.0)]].mean(axis=0),
     }
     checks = []
     for name, exp in case["expected"].items():

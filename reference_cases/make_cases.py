@@ -140,7 +140,7 @@ def main():
         speech = band_speech(60.0)
         write({
             "id": f"decay_T1.0s_snr{snr:+.0f}dB",
-            "title": f"Exponential noise decay, T = 1 s, background noise {snr:+.0f} dB below/above speech in every band",
+            "title": f"Exponential noise decay, T = 1 s, speech-to-noise ratio {snr:+.0f} dB in every band",
             "source": SRC_DECAY + "; " + SRC_NOISE,
             "input": decay_input(T, seed=31),
             "settings": {"noise_db": [round(s - snr, 2) for s in speech], "speech_level_dba": 60.0,
@@ -255,7 +255,8 @@ def main():
     t20 = float(pra.experimental.measure_rt60(h, fs, decay_db=20))
     write({
         "id": "shoebox_room",
-        "title": f"Shoebox room {dims[0]} x {dims[1]} x {dims[2]} m simulated with the image method (Sabine T = {target} s)",
+        "title": (f"Shoebox room {dims[0]} x {dims[1]} x {dims[2]} m simulated with the image method "
+                  f"(Sabine T = {target} s)"),
         "source": (f"pyroomacoustics {pra.__version__}: ShoeBox image method (Allen & Berkley 1979) and its "
                    "measure_rt60 (Schroeder integration) on the same response"),
         "input": {"file": "shoebox_room_ir.wav"},

@@ -100,7 +100,8 @@ def test_help_is_fast_and_lists_commands():
     assert r.returncode == 0 and "ir" in r.stdout and "demo" in r.stdout
     # heavy modules stay unloaded for --help
     r = subprocess.run([sys.executable, "-c",
-                        "import sys\nfrom envpredict.cli import main\ntry:\n main(['--help'])\nexcept SystemExit: pass\n"
+                        "import sys\nfrom envpredict.cli import main\n"
+                        "try:\n main(['--help'])\nexcept SystemExit: pass\n"
                         "print([m for m in ('scipy', 'matplotlib', 'soundfile', 'numpy') if m in sys.modules])"],
                        capture_output=True, text=True, timeout=60)
     assert r.stdout.strip().splitlines()[-1] == "[]"

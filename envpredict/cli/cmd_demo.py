@@ -71,7 +71,8 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
     lines += [
         "",
         f"The demo material is in {folder}. Try next:",
-        f"  envpredict ir {folder / sc['ir']} --noise {noise} --speech-level {sc['speech_level_dba']:g} --report hall_report",
+        f"  envpredict ir {folder / sc['ir']} --noise {noise} --speech-level {sc['speech_level_dba']:g} "
+        "--report hall_report",
         f"  envpredict batch {folder / 'corpus.csv'} --out demo_results.csv",
         "  envpredict compare demo_results.csv --by condition --baseline unprocessed --pair-on sentence",
         f"  envpredict sweep {folder / sc['clean']} {folder / sc['noise']} --snr=-15:6:3",
