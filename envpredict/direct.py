@@ -89,10 +89,12 @@ MIN_WINDOWS: int = 2
 MAX_WINDOWS: int = 8
 
 #: Longest recording analysed, s: 4 hours. The recording is processed block by block,
-#: but the seven envelopes of the usable part (about 200 Hz) are held in memory, about
-#: 40 MB per hour, plus the same again while the depths are computed (judgement: a
-#: measurement of one condition does not last longer; a longer file is almost surely
-#: a mistake).
+#: but the seven envelopes of the usable part (about 200 Hz, 40 MB per hour) are held
+#: in memory, and the FFT of a whole analysis window (for the envelope noise floor)
+#: needs working memory of about 100 MB per hour of window. Measured peak resident
+#: memory of ``envpredict stipa`` at 48 kHz (benchmarks/bench_long_stipa.py): about
+#: 280 MB for 1 h, 440 MB for 2 h, 750 MB for 4 h. Judgement: a measurement of one
+#: condition does not last longer; a longer file is almost surely a mistake.
 MAX_RECORDING_S: float = 4 * 3600.0
 
 #: Length of the blocks a recording is processed in, s (memory per block: about 60 MB
@@ -301,6 +303,22 @@ def _whole_periods(n: int, fs_env: float, f: float) -> int:
     return int(round(periods / f * fs_env)) if periods > 0 else 0
 
 
+#: Envelope samples per piece of the projection onto the modulation frequencies (bounds
+#: the memory of the complex phasors for hours-long envelopes; changes no number beyond
+#: rounding).
+PROJECTION_CHUNK: int = 1 << 16
+
+
+def _project(e: np.ndarray, freqs: np.ndarray, fs_env: float) -> np.ndarray:
+    """``sum_t e(t) exp(-j 2 pi F t)`` for each F in ``freqs`` (t = index / fs_env), in pieces."""
+    out = np.zeros(len(freqs), dtype=complex)
+    f = np.asarray(freqs, dtype=float)[:, None]
+    for c in range(0, e.size, PROJECTION_CHUNK):
+        t = np.arange(c, min(e.size, c + PROJECTION_CHUNK)) / fs_env
+        out += np.exp(-2j * np.pi * f * t) @ e[c: c + t.size]
+    return out
+
+
 def band_depths(
     env: np.ndarray,
     fs_env: float,
@@ -341,9 +359,7 @@ def band_depths(
             raw[k] = 0.0
             floor[k] = local[k] = np.inf
             continue
-        t = np.arange(n) / fs_env
-        ph = np.exp(-2j * np.pi * np.outer(freqs[k], t))
-        raw[k] = 2.0 * np.abs(ph @ e) / dc
+        raw[k] = 2.0 * np.abs(_project(e, freqs[k], fs_env)) / dc
         spec = 2.0 * np.abs(np.fft.rfft(e)) / dc
         fb = np.arange(spec.size) * fs_env / n
         keep = (fb >= FLOOR_BAND_HZ[0]) & (fb <= FLOOR_BAND_HZ[1])
@@ -521,7 +537,11 @@ def _analyse_blocks(
     p1 = min(n, part.stop + (max(delays) + 2) * q)
     if ticks is not None:
         ticks.retotal(ticks.total - 2 * n_blocks + -(-n // block) + -(-p1 // block))
-    full = np.empty((len(std.OCTAVE_BANDS_HZ), -(-(p1 - p0) // q)))
+    # envelope sample j (from p0) of band k is the envelope at sample p0 + (j - delay_k) q;
+    # keep those of the usable part: j - delay_k in [i0, i0 + m)
+    i0 = (part.start - p0) // q
+    m = (part.stop - p0) // q - i0
+    env = np.empty((len(std.OCTAVE_BANDS_HZ), m))
     j = pos = 0
     it = blocks(None)
     try:
@@ -529,7 +549,10 @@ def _analyse_blocks(
             lo, hi = max(p0, pos), min(p1, pos + b.size)
             if hi > lo:
                 e = stream.process(b[lo - pos: hi - pos])
-                full[:, j: j + e.shape[1]] = e
+                for k, d in enumerate(delays):
+                    a0, a1 = max(j, i0 + d), min(j + e.shape[1], i0 + d + m)
+                    if a1 > a0:
+                        env[k, a0 - i0 - d: a1 - i0 - d] = e[k, a0 - j: a1 - j]
                 j += e.shape[1]
             pos += b.size
             if ticks is not None:
@@ -540,13 +563,9 @@ def _analyse_blocks(
         close = getattr(it, "close", None)
         if close is not None:
             close()
-    if j != full.shape[1]:
+    if j != -(-(p1 - p0) // q):
         raise InputError(f"{name} changed while it was read (fewer samples on the second reading)",
                          "analyse a copy of the file that is not being written to")
-    i0 = (part.start - p0) // q
-    m = (part.stop - p0) // q - i0
-    env = np.stack([full[k, i0 + d: i0 + d + m] for k, d in enumerate(delays)])
-    del full
     # mean of the intensity envelope = mean square of the band signal (unit DC gain)
     band_ms = np.mean(env, axis=1)
     return _Analysed(env=env, fs_env=stream.rate, part=part, band_ms=band_ms, fs=fs, duration_s=n / fs)
@@ -819,8 +838,9 @@ def stipa_from_file(
     """STI from a recording file of the STIPA test signal (IEC 60268-16:2011, Annex B).
 
     The file is read block by block, twice (usable part and input checks, then the
-    envelopes); memory stays bounded by the block length plus about 40 MB per hour of
-    usable signal, so recordings of an hour or more can be analysed. Same numbers as
+    envelopes); memory grows only with the envelopes and the noise-floor FFT of the
+    usable part (measured peak about 280 MB for 1 h at 48 kHz, 750 MB for 4 h; see
+    :data:`MAX_RECORDING_S`), so recordings of an hour or more can be analysed. Same numbers as
     :func:`stipa_from_recording` on the file's samples.
 
     Parameters
