@@ -102,7 +102,7 @@ NOTES_COLUMN = "notes"
 #: (mean of the 500 Hz and 1 kHz octave bands, seconds).
 IR_INDEX_COLUMNS: tuple[str, ...] = ("sti", "rating", "t30_mid", "edt_mid")
 #: Pair rows: STOI, ESTOI, speech-based STI and the delay of the degraded signal, ms.
-PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "delay_ms")
+PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression", "delay_ms")
 #: Index columns holding numbers (all except the rating letter).
 NUMERIC_INDEX_COLUMNS: tuple[str, ...] = tuple(
     c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS if c != "rating"
@@ -394,6 +394,7 @@ def _score_pair(job: dict) -> dict:
 
     r = pair_from_files(job["clean"], job["degraded"], channel=job.get("channel"))
     return {"stoi": float(r.stoi), "estoi": float(r.estoi), "ssti": None if r.ssti is None else float(r.ssti),
+            "ssti_regression": None if r.ssti_regression is None else float(r.ssti_regression),
             "delay_ms": float(r.delay_ms), NOTES_COLUMN: "; ".join(r.notes)}
 
 

@@ -39,7 +39,7 @@ from .audio import (
 )
 from .correlation import CorrelationResult, frame_count, stoi_estoi_stream
 from .exceptions import ComputationError, InputError
-from .modulation import mtf_from_pair_ncm
+from .modulation import mtf_from_pair_ncm, mtf_from_pair_regression
 from .results import jsonable
 
 # ---------------------------------------------------------------------------
@@ -345,6 +345,10 @@ class SstiBands:
     apparent_snr_db: np.ndarray  # 10 log10(r^2 / (1 - r^2)), limited to +-15 dB
     ti: np.ndarray  # transmission index (SNR + 15) / 30
     partial: np.ndarray  # band only partly below the Nyquist frequency (or absent)
+    # envelope regression (Ludvigsen et al. 1990): modulation transfer, apparent SNR, TI
+    regression_mtf: np.ndarray | None = None
+    regression_snr_db: np.ndarray | None = None
+    regression_ti: np.ndarray | None = None
 
     def to_dict(self) -> dict:
         return jsonable({
@@ -354,6 +358,9 @@ class SstiBands:
             "apparent_snr_db": np.round(self.apparent_snr_db, 2),
             "ti": np.round(self.ti, 4),
             "partial": self.partial,
+            "regression_mtf": None if self.regression_mtf is None else np.round(self.regression_mtf, 4),
+            "regression_snr_db": None if self.regression_snr_db is None else np.round(self.regression_snr_db, 2),
+            "regression_ti": None if self.regression_ti is None else np.round(self.regression_ti, 4),
         })
 
 
@@ -366,6 +373,8 @@ class PairResult:
     stoi, estoi : Taal 2011 / Jensen 2016 indices.
     ssti : speech-based STI (NCM, IEC 60268-16 male weights, no auditory corrections),
         or ``None`` when it cannot be computed (see ``notes``).
+    ssti_regression : speech-based STI by envelope regression (same bands, weights and
+        limits), which follows the classical STI for steady noise; ``None`` like ``ssti``.
     delay_ms : delay of the degraded signal removed before the analysis (positive:
         degraded late); 0 when alignment is off.
     match_correlation : normalised waveform cross-correlation at that delay.
@@ -394,6 +403,7 @@ class PairResult:
     correlation: CorrelationResult
     ssti_bands: SstiBands | None
     notes: tuple[str, ...] = field(default=())
+    ssti_regression: float | None = None
     chunks: int = 1
 
     def timeline(self) -> dict:
@@ -428,6 +438,7 @@ class PairResult:
             "stoi": round(self.stoi, 4),
             "estoi": round(self.estoi, 4),
             "ssti": None if self.ssti is None else round(self.ssti, 4),
+            "ssti_regression": None if self.ssti_regression is None else round(self.ssti_regression, 4),
             "delay_ms": round(self.delay_ms, 3),
             "fs": self.fs,
             "bands": {
@@ -459,6 +470,9 @@ class PairResult:
                 "ssti": "normalised-covariance method (Goldsworthy & Greenberg 2004) on octave-band "
                         "intensity envelopes, IEC 60268-16:2011 male band weights, no auditory corrections",
                 "ssti_valid_range": SSTI_VALID_RANGE,
+                "ssti_regression": "envelope regression (Ludvigsen et al. 1990; Goldsworthy & Greenberg 2004) "
+                                   "on the same envelopes: m = slope x mean(clean)/mean(degraded); follows "
+                                   "m = 1/(1+N/S) for steady noise",
             },
             "notes": list(self.notes),
         })
@@ -571,6 +585,7 @@ def _pair(
 
     # speech-based STI at the clean rate
     ssti = None
+    ssti_reg = None
     ssti_bands = None
     if n_common < SSTI_MIN_SECONDS * fs:
         notes.append(f"speech-based STI not computed: the common part is shorter than {SSTI_MIN_SECONDS:g} s")
@@ -580,8 +595,10 @@ def _pair(
         x_env, y_env, partial, _fs_env = _ssti_envelopes(c_al, d_al, chunk_s, tick_ssti)
         avail = np.all(np.isfinite(x_env), axis=1)
         r = np.full(len(std.OCTAVE_BANDS_HZ), np.nan)
+        m_reg = np.full(len(std.OCTAVE_BANDS_HZ), np.nan)
         if avail.any():
             r[avail] = mtf_from_pair_ncm(x_env[avail], y_env[avail], return_correlation=True)
+            m_reg[avail] = mtf_from_pair_regression(x_env[avail], y_env[avail])
         m = np.where(np.isfinite(r), np.clip(r, 0.0, None) ** 2, np.nan)
         if not avail.all():
             missing = ", ".join(f"{std.OCTAVE_BANDS_HZ[k]:g}" for k in np.flatnonzero(~avail))
@@ -589,20 +606,26 @@ def _pair(
                          f"Nyquist frequency of {fs} Hz (give signals sampled at 22.7 kHz or more)")
             snr = np.full(len(std.OCTAVE_BANDS_HZ), np.nan)
             ti = snr.copy()
+            snr_reg, ti_reg = snr.copy(), snr.copy()
             if avail.any():
                 from .sti import transmission_index
 
                 s_, t_ = transmission_index(m[avail])
                 snr[avail], ti[avail] = s_, t_
+                s_, t_ = transmission_index(m_reg[avail])
+                snr_reg[avail], ti_reg[avail] = s_, t_
         else:
             res = sti_from_mtf(m[:, None], modulation_hz=(0.0,), auditory=False)
             ssti = res.sti
             snr, ti = res.snr_eff[:, 0], res.ti[:, 0]
+            res_reg = sti_from_mtf(m_reg[:, None], modulation_hz=(0.0,), auditory=False)
+            ssti_reg = res_reg.sti
+            snr_reg, ti_reg = res_reg.snr_eff[:, 0], res_reg.ti[:, 0]
             if partial.any():
                 part = ", ".join(f"{std.OCTAVE_BANDS_HZ[k]:g}" for k in np.flatnonzero(partial))
                 notes.append(f"octave band(s) {part} Hz only partly below the Nyquist frequency of {fs} Hz: "
                              "their envelope holds only the part of the band that was recorded")
-        ssti_bands = SstiBands(std.OCTAVE_BANDS_HZ, r, m, snr, ti, partial)
+        ssti_bands = SstiBands(std.OCTAVE_BANDS_HZ, r, m, snr, ti, partial, m_reg, snr_reg, ti_reg)
     if corr_res.frames_kept < LOW_SPEECH_SHARE * corr_res.frames_total:
         notes.append(f"only {corr_res.frames_kept} of {corr_res.frames_total} frames carry speech "
                      "(within 40 dB of the loudest); the indices rest on little speech")
@@ -611,6 +634,7 @@ def _pair(
         stoi=corr_res.stoi,
         estoi=corr_res.estoi,
         ssti=ssti,
+        ssti_regression=ssti_reg,
         delay_ms=lag / fs * 1000.0,
         delay_samples=int(lag),
         match_correlation=float(corr),

@@ -94,7 +94,7 @@ MAX_SNR_POINTS: int = 401
 MAX_SEGMENTS: int = 100
 
 #: Index names the sweep knows how to compute with the package's own code.
-SWEEP_INDICES: tuple[str, ...] = ("stoi", "estoi", "ssti")
+SWEEP_INDICES: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression")
 
 #: A fall of the mean index smaller than this between neighbouring SNRs is numerical
 #: noise, not a reversal worth a note (judgement).
@@ -965,16 +965,19 @@ def default_index_functions() -> dict[str, Callable[[np.ndarray, np.ndarray, int
         # the mixtures are aligned by construction: no delay search
         from . import pair
 
-        if hasattr(pair, "speech_sti"):
-            v = pair.speech_sti(c, d, fs)
-        else:
-            v = pair.pair_indices(c, d, fs, align=False).ssti
+        v = pair.speech_sti(c, d, fs)
+        return _as_float(v, "ssti")
+
+    def _ssti_regression(c, d, fs):
+        from . import pair
+
+        v = pair.pair_indices(c, d, fs, align=False).ssti_regression
         if v is None:
             raise ComputationError("the speech-based STI cannot be computed for these signals",
                                    "see the valid range in envpredict.pair_indices")
-        return _as_float(v, "ssti")
+        return _as_float(v, "ssti_regression")
 
-    return {"stoi": _stoi, "estoi": _estoi, "ssti": _ssti}
+    return {"stoi": _stoi, "estoi": _estoi, "ssti": _ssti, "ssti_regression": _ssti_regression}
 
 
 @dataclass(frozen=True)

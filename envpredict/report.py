@@ -592,7 +592,9 @@ def _page_pair(d: Mapping, extras: Mapping) -> Page:
         p.tables.append(Table("Speech-based STI per octave band", ["band", "envelope correlation",
                                                                     "apparent MTF", "apparent SNR, dB", "TI"], rows))
     rows = [[Cell(label), num(d, key, spec, unit)] for key, label, spec, unit in
-            (("stoi", "STOI", ".3f", ""), ("estoi", "ESTOI", ".3f", ""), ("ssti", "speech-based STI", ".3f", ""),
+            (("stoi", "STOI", ".3f", ""), ("estoi", "ESTOI", ".3f", ""),
+             ("ssti", "speech-based STI (normalised covariance)", ".3f", ""),
+             ("ssti_regression", "speech-based STI (envelope regression)", ".3f", ""),
              ("delay_ms", "delay of degraded re clean", ".1f", "ms"),
              ("alignment.match_correlation", "waveform match at that delay", ".3f", ""),
              ("duration_s", "common duration", ".2f", "s"), ("fs", "analysis sample rate", ".0f", "Hz"))

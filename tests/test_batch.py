@@ -174,7 +174,7 @@ def test_pair_rows_score_stoi_estoi_ssti(tmp_path):
     s = run_batch(m, out, workers=1)
     assert (s.total, s.scored, s.failed) == (5, 5, 1)
     cols, res = read_results(out)
-    assert cols[-6:] == ("stoi", "estoi", "ssti", "delay_ms", "notes", "error")
+    assert cols[-7:] == ("stoi", "estoi", "ssti", "ssti_regression", "delay_ms", "notes", "error")
     for r in res[:4]:
         assert not r["error"]
         clean, deg = sigs[r["degraded"]]
@@ -196,7 +196,7 @@ def test_pair_rows_score_stoi_estoi_ssti(tmp_path):
 def test_mixed_manifest_reference(mixed_corpus):
     cols, rows = read_results(mixed_corpus["reference"])
     assert cols == ("row", "ir", "clean", "degraded", "condition", "sti", "rating", "t30_mid", "edt_mid",
-                    "stoi", "estoi", "ssti", "delay_ms", "notes", "error")
+                    "stoi", "estoi", "ssti", "ssti_regression", "delay_ms", "notes", "error")
     for r in rows[:6]:
         assert r["sti"] and r["t30_mid"] and not r["stoi"]
     for i, r in enumerate(rows[6:]):

@@ -324,3 +324,38 @@ def test_delay_found_after_a_quiet_start(monkeypatch):
     y = delayed(at_snr(x, speech_shaped_noise(x, 55), 5), 400)
     r = pair_indices(x, y, fs)
     assert r.delay_samples == 400
+
+
+def test_ssti_regression_follows_the_stationary_noise_relation():
+    # Envelope regression (Ludvigsen et al. 1990): for noise independent of the speech the
+    # regression slope is 1 and the mean ratio S/(S+N), so m = 1/(1+N/S) and the apparent SNR
+    # equals the band SNR (Houtgast & Steeneken's stationary-noise relation, IEC 60268-16 A.2).
+    # Tolerance: the slope's sampling error with about 2 x 4 Hz x 20 s = 160 independent envelope
+    # samples is below 0.5 dB of apparent SNR where |SNR| <= 10 dB; we allow 1.5 dB (3 SE).
+    from envpredict.bands import octave_bands
+
+    fs = 24000
+    x = speech_like(20.0, fs, 44)
+    n = speech_shaped_noise(x, 45)
+    xb = octave_bands(x, fs)
+    for snr in (-10, -5, 0, 5, 10):
+        y = at_snr(x, n, snr)
+        band_snr = 10 * np.log10(np.mean(xb ** 2, axis=1) / np.mean((octave_bands(y, fs) - xb) ** 2, axis=1))
+        r = pair_indices(x, y, fs, align=False)
+        assert np.all(np.abs(r.ssti_bands.regression_snr_db - band_snr) < 1.5), (snr, r.ssti_bands.regression_snr_db)
+        # the index itself then equals the classical STI of that band SNR: TI = (SNR + 15)/30
+        assert r.ssti_regression == pytest.approx((snr + 15) / 30, abs=0.05)
+
+
+def test_ssti_regression_falls_with_reverberation():
+    from scipy.signal import fftconvolve
+
+    fs = 24000
+    x = speech_like(10.0, fs, 46)
+    rng = np.random.default_rng(0)
+    vals = []
+    for T in (0.3, 0.8, 2.0):
+        t = np.arange(int(2.5 * T * fs)) / fs
+        y = fftconvolve(x, rng.standard_normal(t.size) * np.exp(-6.9 * t / T))[: x.size]
+        vals.append(pair_indices(x, y, fs, align=False).ssti_regression)
+    assert vals[0] > vals[1] > vals[2]

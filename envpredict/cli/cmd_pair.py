@@ -29,7 +29,8 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
         "",
         f"STOI  = {d['stoi']:.3f}",
         f"ESTOI = {d['estoi']:.3f}",
-        f"speech-based STI = {fmt(d['ssti'], '.3f')}",
+        f"speech-based STI = {fmt(d['ssti'], '.3f')} (normalised covariance), "
+        f"{fmt(d.get('ssti_regression'), '.3f')} (envelope regression)",
         "",
         "One-third-octave bands (mean per-band correlation; low values: envelope lost)",
     ]
@@ -40,11 +41,14 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
     octv = d["bands"]["octave"]
     if octv is not None:
         lines.append("")
-        lines.append("Octave bands, speech-based STI (normalised covariance)")
-        rows = [[f"{fc:g}" + (" *" if p else ""), fmt(r, ".3f"), fmt(s, ".1f"), fmt(t, ".3f")]
-                for fc, r, s, t, p in zip(octv["centre_hz"], octv["correlation"], octv["apparent_snr_db"],
-                                          octv["ti"], octv["partial"])]
-        lines.append(table(rows, ["band Hz", "r", "app. SNR dB", "TI"]))
+        lines.append("Octave bands, speech-based STI: normalised covariance (r) and envelope regression (m)")
+        reg_snr = octv.get("regression_snr_db") or [None] * len(octv["centre_hz"])
+        reg_ti = octv.get("regression_ti") or [None] * len(octv["centre_hz"])
+        rows = [[f"{fc:g}" + (" *" if p else ""), fmt(r, ".3f"), fmt(s, ".1f"), fmt(t, ".3f"), fmt(rs, ".1f"),
+                 fmt(rt, ".3f")]
+                for fc, r, s, t, p, rs, rt in zip(octv["centre_hz"], octv["correlation"], octv["apparent_snr_db"],
+                                                  octv["ti"], octv["partial"], reg_snr, reg_ti)]
+        lines.append(table(rows, ["band Hz", "r", "app. SNR dB", "TI", "regr. SNR dB", "regr. TI"]))
         if any(octv["partial"]):
             lines.append("  * band only partly below the Nyquist frequency")
     if d["worst_moments"]:

@@ -222,8 +222,8 @@ def sweep_command(
                                                          "is added (noise is taken as recorded at the listener)."),
     snr: str = typer.Option("-15:15:3", "--snr", help="SNRs to sweep, FROM:TO:STEP in dB (write --snr=-20:10:2 "
                                                       "when FROM is negative)."),
-    index: str | None = typer.Option(None, "--index", help="Index: stoi, estoi or ssti. Default: the mapping's "
-                                                              "index, or stoi without a mapping."),
+    index: str | None = typer.Option(None, "--index", help="Index: stoi, estoi, ssti or ssti_regression. Default: the "
+                                                              "mapping's index, or stoi without a mapping."),
     map_file: Path | None = typer.Option(None, "--map", help="Mapping (MAP.json from fitmap) for predicted "
                                                                 "scores and target SNRs."),
     target: list[float] | None = typer.Option(None, "--target", help="Target score in percent; repeat for "
@@ -256,7 +256,7 @@ def sweep_command(
     mapping = load_mapping_file(map_file) if map_file is not None else None
     name = (index or (mapping.index if mapping is not None else "stoi")).strip().lower()
     if name not in SWEEP_INDICES:
-        raise InputError(f"unknown index '{name}' for the sweep", f"use --index {' or '.join(SWEEP_INDICES)}")
+        raise InputError(f"unknown index '{name}' for the sweep", f"use --index {', '.join(SWEEP_INDICES)}")
     if mapping is not None and mapping.index != name:
         raise InputError(f"the mapping '{map_file}' takes '{mapping.index}' but --index is '{name}'",
                          f"use --index {mapping.index} or a mapping fitted on {name}")
