@@ -47,6 +47,8 @@ _API: dict[str, str] = {
     "stipa_from_recording": "envpredict.direct",
     "full_sti_from_recordings": "envpredict.direct",
     "DirectResult": "envpredict.direct",
+    "stipa_from_file": "envpredict.direct",
+    "full_sti_from_files": "envpredict.direct",
     "stoi": "envpredict.correlation",
     "estoi": "envpredict.correlation",
     "correlation_indices": "envpredict.correlation",

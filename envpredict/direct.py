@@ -88,14 +88,15 @@ MIN_PERIODS_PER_WINDOW: int = 2
 MIN_WINDOWS: int = 2
 MAX_WINDOWS: int = 8
 
-#: Longest recording analysed, s: 4 hours. The recording is processed block by block,
+#: Longest recording analysed, s: 2 hours. The recording is processed block by block,
 #: but the seven envelopes of the usable part (about 200 Hz, 40 MB per hour) are held
 #: in memory, and the FFT of a whole analysis window (for the envelope noise floor)
 #: needs working memory of about 100 MB per hour of window. Measured peak resident
 #: memory of ``envpredict stipa`` at 48 kHz (benchmarks/bench_long_stipa.py): about
-#: 280 MB for 1 h, 440 MB for 2 h, 750 MB for 4 h. Judgement: a measurement of one
-#: condition does not last longer; a longer file is almost surely a mistake.
-MAX_RECORDING_S: float = 4 * 3600.0
+#: 280 MB for 1 h, 440 MB for 2 h, 750 MB for 4 h. The limit keeps every accepted file
+#: within 600 MB. Judgement: a measurement of one condition does not last longer; a
+#: longer file is almost surely a mistake.
+MAX_RECORDING_S: float = 2 * 3600.0
 
 #: Length of the blocks a recording is processed in, s (memory per block: about 60 MB
 #: at 48 kHz). The block length does not change any result.
@@ -809,7 +810,7 @@ def stipa_from_recording(
     progress : optional ``progress(done, total)`` callback.
 
     Valid input: at least 2 x 2 periods of 0.63 Hz (6.3 s) of test signal plus 1.25 s at
-    each end (8.9 s); 15-30 s is usual; at most :data:`MAX_RECORDING_S` (4 h). Not
+    each end (8.9 s); 15-30 s is usual; at most :data:`MAX_RECORDING_S` (2 h). Not
     clipped, not silent.
 
     Examples
@@ -851,7 +852,7 @@ def stipa_from_file(
     block_seconds : length of the blocks read, s.
     calibration_db, noise_db, talker, progress : as for :func:`stipa_from_recording`.
 
-    Valid input: as for :func:`stipa_from_recording`; at most :data:`MAX_RECORDING_S` (4 h).
+    Valid input: as for :func:`stipa_from_recording`; at most :data:`MAX_RECORDING_S` (2 h).
     """
     name = Path(path).name if name is None else name
     return _stipa(lambda min_s, ticks: _analyse_file(path, channel, min_s, name, block_seconds=block_seconds,
