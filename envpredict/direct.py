@@ -840,7 +840,7 @@ def stipa_from_file(
 
     The file is read block by block, twice (usable part and input checks, then the
     envelopes); memory grows only with the envelopes and the noise-floor FFT of the
-    usable part (measured peak about 280 MB for 1 h at 48 kHz, 750 MB for 4 h; see
+    usable part (measured peak about 280 MB for 1 h at 48 kHz, 440 MB for 2 h; see
     :data:`MAX_RECORDING_S`), so recordings of an hour or more can be analysed. Same numbers as
     :func:`stipa_from_recording` on the file's samples.
 

@@ -225,7 +225,7 @@ def stipa_command(
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
 ) -> None:
     """STI from a recording of the STIPA test signal (IEC 60268-16 direct method, Annex B).
-    The file is read in blocks, so recordings of an hour or more (up to 4 h) are analysed in
+    The file is read in blocks, so recordings of an hour or more (up to 2 h) are analysed in
     bounded memory."""
     from envpredict.direct import stipa_from_file
 
