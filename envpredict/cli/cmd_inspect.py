@@ -12,7 +12,8 @@ from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, e
 
 CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
 START_HELP = "Start of the excerpt to inspect, seconds from the beginning of the file."
-DURATION_HELP = "Length of the excerpt, seconds (1 to 600). Default: to the end of the file."
+DURATION_HELP = ("Length of the excerpt, seconds (1 to 14400, i.e. 4 hours; the file is read in blocks, so long "
+                 "recordings need little memory). Default: to the end of the file.")
 F0_MIN_HELP = ("Lowest F0 searched, Hz. Periodicity spans about 50-500 Hz and adult voices are commonly "
                "100-300 Hz (common practice, no source), hence the 50-500 Hz default range.")
 F0_MAX_HELP = "Highest F0 searched, Hz (see --f0-min)."
@@ -53,11 +54,9 @@ def render_inspect(d: dict, source: str) -> str:
     return "\n".join(lines)
 
 
-def _read_excerpt(path: Path, channel: Optional[int], start: float, duration: Optional[float]):
-    """One channel of ``path`` from ``start`` for ``duration`` seconds, validated."""
-    import soundfile as sf
-
-    from envpredict.audio import audio_info, pick_channel, validate_signal
+def _check_excerpt(path: Path, start: float, duration: Optional[float]) -> None:
+    """Refuse --start/--duration outside the file before any audio work (header only)."""
+    from envpredict.audio import audio_info
     from envpredict.exceptions import InputError
     from envpredict.timescales import MAX_SECONDS, MIN_SECONDS
 
@@ -73,19 +72,9 @@ def _read_excerpt(path: Path, channel: Optional[int], start: float, duration: Op
     if length > MAX_SECONDS:
         raise InputError(
             f"recording '{path}' is {length:.0f} s long from the start point; inspect looks at up to "
-            f"{MAX_SECONDS:.0f} s at a time",
-            "choose an excerpt with --start and --duration (e.g. --duration 60)",
+            f"{MAX_SECONDS:.0f} s ({MAX_SECONDS / 3600:g} h) at a time",
+            "choose an excerpt with --start and --duration (e.g. --duration 3600)",
         )
-    i0 = int(round(start * fs))
-    n = int(round(length * fs))
-    try:
-        data, fs = sf.read(str(path), start=i0, frames=n, dtype="float64", always_2d=True)
-    except Exception:
-        raise InputError(f"recording '{path}' could not be decoded (truncated or damaged file?)",
-                         "re-export the file as WAV or FLAC") from None
-    x = pick_channel(data, channel, "recording", str(path))
-    x = validate_signal(x, fs, name=f"recording '{path}'", min_seconds=MIN_SECONDS)
-    return x, int(fs)
 
 
 @app.command("inspect")
@@ -106,7 +95,7 @@ def inspect_command(
     100-300 Hz), and the modulation spectrum of each band's envelope with its dominant rate
     (the syllable rate for running speech)."""
     from envpredict.exceptions import InputError
-    from envpredict.timescales import inspect_signal
+    from envpredict.timescales import inspect_file
 
     # check the options before the (slower) audio work
     if not (0 < f0_min < f0_max):
@@ -116,9 +105,10 @@ def inspect_command(
         raise InputError(f"F0 search range {f0_min:g}-{f0_max:g} Hz is outside 20-2000 Hz",
                          "periodicity lies at about 50-500 Hz; keep the range within 20-2000 Hz")
     check_report(report)
-    x, fs = _read_excerpt(audio_file, channel, start, duration)
-    with Progress("inspecting recording", None, quiet=as_json) as prog:
-        result = inspect_signal(x, fs, f0_min_hz=f0_min, f0_max_hz=f0_max, progress=prog)
+    _check_excerpt(audio_file, start, duration)
+    with Progress("inspecting recording (blocks)", None, quiet=as_json) as prog:
+        result = inspect_file(audio_file, channel, start_s=start, duration_s=duration, f0_min_hz=f0_min,
+                              f0_max_hz=f0_max, progress=prog)
     d = result.to_dict()
     d["input"] = str(audio_file)
     d["start_s"] = start
