@@ -200,6 +200,8 @@ def _mtf_heatmap(d: Mapping, stipa: bool) -> Figure:
     bands = list(d.get("bands_hz", std.OCTAVE_BANDS_HZ))
     mod = d.get("modulation_hz", std.MODULATION_FREQUENCIES_HZ)
     per_band = bool(mod) and isinstance(mod[0], (list, tuple))
+    if per_band and all(list(row) == list(mod[0]) for row in mod):
+        mod, per_band = list(mod[0]), False  # the same frequencies in every band (full STI)
     nb, nf = m.shape
     wide = nf > 4
     fig = new(10.0 if wide else 6.4, 4.6)

@@ -551,3 +551,19 @@ def test_full_sti_file_path_equals_array_path(full_set, tmp_path):
     assert f.sti.sti == pytest.approx(mem.sti.sti, abs=1e-9)
     assert np.allclose(f.depth, mem.depth, rtol=0, atol=1e-9)
     assert f.recordings == mem.recordings
+
+
+def test_cli_stipa_report(stipa24, tmp_path, capsys):
+    import json
+
+    import soundfile as sf
+
+    from conftest import run_cli
+
+    rec = tmp_path / "rec.wav"
+    sf.write(rec, stipa24, FS, subtype="PCM_24")
+    rep = tmp_path / "report"
+    code, out, _ = run_cli(["stipa", rec, "--json", "--report", rep], capsys)
+    assert code == 0
+    assert {"report.html", "mtf.png", "transmission_index.png"} <= {p.name for p in rep.iterdir()}
+    assert json.loads((rep / "result.json").read_text())["sti"] == json.loads(out)["sti"]

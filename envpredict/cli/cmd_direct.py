@@ -9,7 +9,7 @@ from typing import List, Optional
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, Progress, emit, fmt, table
+from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
 
 testsignal_app = typer.Typer(
     help="Generate the test signals of the direct STI method (IEC 60268-16): STIPA or the full-STI set.",
@@ -223,6 +223,7 @@ def stipa_command(
     channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
+    report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """STI from a recording of the STIPA test signal (IEC 60268-16 direct method, Annex B).
     The file is read in blocks, so recordings of an hour or more (up to 2 h) are analysed in
@@ -230,6 +231,7 @@ def stipa_command(
     from envpredict.direct import stipa_from_file
 
     noise_levels = _common_checks(talker, noise)
+    check_report(report)
     cal, source = _calibration(calibration_db, calibrator, calibrator_level,
                                calibrator_channel if calibrator_channel is not None else channel)
     # steps: the blocks of both passes over the file, then the modulation depths
@@ -239,6 +241,10 @@ def stipa_command(
     d = result.to_dict()
     d["input"] = str(recording)
     d["calibration_source"] = source
+    write_report_if(report, "stipa", d, as_json=as_json, title=f"STIPA: {recording.name}",
+                    settings={"recording": str(recording), "channel": "only" if channel is None else channel,
+                              "calibration": source or "none (no auditory corrections)", "talker": talker,
+                              "added noise, dB SPL": noise or "none"})
     emit(d, lambda: render_direct(d), as_json, out)
 
 
@@ -271,11 +277,13 @@ def fullsti_command(
     channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
+    report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16 direct method)."""
     from envpredict.direct import full_sti_from_files
 
     noise_levels = _common_checks(talker, noise)
+    check_report(report)
     cal, source = _calibration(calibration_db, calibrator, calibrator_level,
                                calibrator_channel if calibrator_channel is not None else channel)
     files = _recording_paths(recordings)
@@ -290,4 +298,8 @@ def fullsti_command(
     d = result.to_dict()
     d["input"] = [str(f) for f in files]
     d["calibration_source"] = source
+    write_report_if(report, "stipa", d, as_json=as_json, title="Full STI from 14 recordings",
+                    settings={"recordings": f"{len(files)} files in {files[0].parent}",
+                              "calibration": source or "none (no auditory corrections)", "talker": talker,
+                              "added noise, dB SPL": noise or "none"})
     emit(d, lambda: render_direct(d), as_json, out)
