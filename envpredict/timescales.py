@@ -658,7 +658,8 @@ def _inspect_stream(
             w_lo[c0:c1] = np.minimum(w_lo[c0:c1], np.minimum.reduceat(core[: top - b0], cut))
             w_hi[c0:c1] = np.maximum(w_hi[c0:c1], np.maximum.reduceat(core[: top - b0], cut))
         # broadband envelope below 50 Hz, for the figure
-        env_parts.append(np.sqrt(2.0 * np.maximum(sosfiltfilt(lp, np.square(seg)), 0.0))[b0 - s0 : b1 - s0 : q])
+        # (a copy: a strided view would keep the whole block alive)
+        env_parts.append(np.sqrt(2.0 * np.maximum(sosfiltfilt(lp, np.square(seg)), 0.0))[b0 - s0 : b1 - s0 : q].copy())
         # YIN on the block (resampled with its margins), frames starting inside the block
         seg16 = resample(seg, fs, YIN_RATE_HZ) if up != down else seg
         S0, B0 = s0 * up // down, b0 * up // down
