@@ -20,7 +20,6 @@ from scipy.signal import fftconvolve
 from envpredict import cautions as cau
 from envpredict import standards as std
 from envpredict.audio import resample
-from envpredict.cli import main
 from envpredict.direct import (
     NO_CALIBRATION,
     calibration_from_tone,
@@ -28,6 +27,8 @@ from envpredict.direct import (
     stipa_from_recording,
 )
 from envpredict.exceptions import InputError
+
+from conftest import run_cli
 from envpredict.signals import full_sti_signals, stipa_signal
 from envpredict.sti import sti_from_mtf
 
@@ -74,15 +75,6 @@ def room_recording(x, fs, T, snr_db, rng):
     return 0.5 * y / np.abs(y).max()
 
 
-def run_cli(args, capsys):
-    """Run the CLI in-process; returns (exit code, stdout, stderr)."""
-    try:
-        main(args)
-        code = 0
-    except SystemExit as e:
-        code = e.code or 0
-    out = capsys.readouterr()
-    return code, out.out, out.err
 
 
 @pytest.fixture(scope="module")
@@ -558,7 +550,6 @@ def test_cli_stipa_report(stipa24, tmp_path, capsys):
 
     import soundfile as sf
 
-    from conftest import run_cli
 
     rec = tmp_path / "rec.wav"
     sf.write(rec, stipa24, FS, subtype="PCM_24")

@@ -32,6 +32,8 @@ from envpredict.predict import (
     snr_sweep,
 )
 
+from conftest import run_cli
+
 sm = pytest.importorskip("statsmodels.api")
 
 FS = 16000
@@ -578,16 +580,6 @@ def test_predicted_score_never_falls_as_snr_rises_in_stationary_noise(signals, s
 # CLI
 # ---------------------------------------------------------------------------
 
-def run_cli(args, capsys):
-    from envpredict.cli import main
-
-    try:
-        main(args)
-        code = 0
-    except SystemExit as e:
-        code = e.code or 0
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def write_pilot(path, x, k, n, index="stoi"):

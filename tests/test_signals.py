@@ -12,7 +12,6 @@ from scipy.signal import hilbert
 from envpredict import standards as std
 from envpredict.audio import is_clipped
 from envpredict.bands import octave_bands
-from envpredict.cli import main
 from envpredict.exceptions import InputError
 from envpredict.signals import (
     full_sti_envelope,
@@ -24,6 +23,8 @@ from envpredict.signals import (
     stipa_signal,
 )
 
+from conftest import run_cli
+
 FS = 24000  # above the 22.6 kHz the 8 kHz octave needs, and cheap
 
 
@@ -32,15 +33,6 @@ def stipa15():
     return stipa_signal(15, FS, seed=7)
 
 
-def run_cli(args, capsys):
-    """Run the CLI in-process; returns (exit code, stdout, stderr)."""
-    try:
-        main(args)
-        code = 0
-    except SystemExit as e:
-        code = e.code or 0
-    out = capsys.readouterr()
-    return code, out.out, out.err
 
 
 def carrier_mask(freqs, fc, pad_hz=0.0):
