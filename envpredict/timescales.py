@@ -14,6 +14,12 @@ band's amplitude envelope, the carrier rate of the band, the voiced/unvoiced
 segmentation with an F0 track (YIN, de Cheveigne & Kawahara 2002) and the modulation
 spectrum of each band's intensity envelope with its dominant rate.
 
+Long recordings are analysed in blocks (:data:`BLOCK_S` with :data:`BLOCK_MARGIN_S`
+margins, thrown away): per-band sums, Welch accumulators of the envelope spectra, YIN
+per block on the 16 kHz copy; :func:`inspect_file` reads the blocks from disk, so a
+60-minute 48 kHz recording needs about 310 MB (benchmarks/bench_long_inspect.py).
+The in-memory :func:`inspect_signal` runs the same code on slices of its array.
+
 Sources
 -------
 S. Rosen, "Temporal information in speech: acoustic, auditory and linguistic aspects",
