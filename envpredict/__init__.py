@@ -61,6 +61,7 @@ _API: dict[str, str] = {
     "read_results": "envpredict.batch",
     "compare_conditions": "envpredict.stats",
     "inspect_signal": "envpredict.timescales",
+    "inspect_file": "envpredict.timescales",
     "InspectResult": "envpredict.timescales",
     "write_report": "envpredict.report",
 }

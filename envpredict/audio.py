@@ -353,3 +353,50 @@ def iter_audio_blocks(
     except (RuntimeError, OSError, ValueError):
         raise InputError(f"{name} '{path}' could not be decoded (truncated or damaged file?)",
                          "re-export the file as WAV or FLAC") from None
+
+
+class AudioFile:
+    """Random access to one channel of an audio file, as float64 (for long files).
+
+    ``read(start, stop)`` returns samples ``start .. stop-1`` counted from ``offset``;
+    a damaged or truncated file gives the usual one-line ``InputError``. Use as a
+    context manager or call :meth:`close`.
+    """
+
+    def __init__(self, path: str | os.PathLike, channel: int | None = None, *, name: str = "input",
+                 offset: int = 0) -> None:
+        import soundfile as sf
+
+        fs, frames, n_ch = audio_info(path, name)
+        if frames == 0:
+            raise InputError(f"{name} '{path}' contains no samples", "give a file with audio in it")
+        # refuse a multi-channel file without a channel before any reading
+        pick_channel(np.zeros((1, n_ch)), channel, name, str(path))
+        self.path, self.channel, self.name, self.offset = str(path), channel, name, int(offset)
+        self.fs, self.frames = int(fs), int(frames)
+        try:
+            self._f = sf.SoundFile(self.path)
+        except Exception:
+            raise InputError(f"{name} '{path}' is not a readable audio file",
+                             "give a WAV, FLAC or OGG file (other formats: convert first)") from None
+
+    def read(self, start: int, stop: int) -> np.ndarray:
+        n = int(stop) - int(start)
+        try:
+            self._f.seek(self.offset + int(start))
+            data = self._f.read(n, dtype="float64", always_2d=True)
+        except Exception:  # soundfile raises several types for damaged files
+            data = np.zeros((0, 1))
+        if data.shape[0] != n:
+            raise InputError(f"{self.name} '{self.path}' could not be decoded (truncated or damaged file?)",
+                             "re-export the file as WAV or FLAC")
+        return pick_channel(data, self.channel, self.name, self.path)
+
+    def close(self) -> None:
+        self._f.close()
+
+    def __enter__(self) -> "AudioFile":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()

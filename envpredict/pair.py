@@ -32,10 +32,10 @@ import numpy as np
 from . import standards as std
 from .audio import (
     CLIP_MIN_FULL_SCALE_SAMPLES,
+    AudioFile,
     StreamCheck,
     as_mono_array,
     audio_info,
-    pick_channel,
 )
 from .correlation import CorrelationResult, frame_count, stoi_estoi_stream
 from .exceptions import ComputationError, InputError
@@ -142,33 +142,11 @@ class _ArraySource(_Source):
 
 class _FileSource(_Source):
     def __init__(self, path: str | os.PathLike, channel: int | None, name: str) -> None:
-        fs, frames, n_ch = audio_info(path, name)
-        if frames == 0:
-            raise InputError(f"{name} '{path}' contains no samples", "give a file with audio in it")
-        # refuse a multi-channel file without --channel before any reading
-        pick_channel(np.zeros((1, n_ch)), channel, name, str(path))
-        self.path, self.channel = str(path), channel
-        self.n, self.fs, self.name = int(frames), int(fs), f"{name} '{path}'"
-        self._label = name
+        self.file = AudioFile(path, channel, name=name)
+        self.n, self.fs, self.name = self.file.frames, self.file.fs, f"{name} '{path}'"
 
     def read(self, start: int, stop: int) -> np.ndarray:
-        import soundfile as sf
-
-        def inner(a: int, b: int) -> np.ndarray:
-            try:
-                with sf.SoundFile(self.path) as f:
-                    f.seek(a)
-                    data = f.read(b - a, dtype="float64", always_2d=True)
-            except Exception:  # noqa: BLE001 - soundfile raises several types for damaged files
-                raise InputError(
-                    f"{self.name} could not be decoded (truncated or damaged file?)",
-                    "re-export the file as WAV or FLAC",
-                ) from None
-            if data.shape[0] < b - a:  # header promised more than the file holds
-                raise InputError(f"{self.name} is shorter than its header says", "re-export the file")
-            return pick_channel(data, self.channel, self._label, self.path)
-
-        return self._pad(start, stop, inner)
+        return self._pad(start, stop, self.file.read)
 
 
 class _Resampled(_Source):

@@ -39,7 +39,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import standards as std
-from .audio import StreamCheck, audio_info, check_rate, pick_channel, resample, validate_signal
+from .audio import AudioFile, StreamCheck, audio_info, check_rate, resample, validate_signal
 from .bands import envelope_rate, intensity_envelopes
 from .exceptions import InputError
 from .results import jsonable
@@ -841,34 +841,6 @@ def inspect_signal(
                            block_s=block_seconds, progress=progress)
 
 
-class _FileReader:
-    """Samples ``[s0, s1)`` (from ``offset``) of one channel of an audio file, as float64."""
-
-    def __init__(self, path, channel: int | None, offset: int, name: str) -> None:
-        import soundfile as sf
-
-        self.path, self.channel, self.offset, self.name = str(path), channel, int(offset), name
-        try:
-            self.f = sf.SoundFile(self.path)
-        except Exception:
-            raise InputError(f"{name} '{path}' is not a readable audio file",
-                             "give a WAV, FLAC or OGG file (other formats: convert first)") from None
-
-    def read(self, s0: int, s1: int) -> np.ndarray:
-        try:
-            self.f.seek(self.offset + s0)
-            data = self.f.read(s1 - s0, dtype="float64", always_2d=True)
-        except Exception:
-            data = np.zeros((0, 1))
-        if data.shape[0] != s1 - s0:
-            raise InputError(f"{self.name} '{self.path}' could not be decoded (truncated or damaged file?)",
-                             "re-export the file as WAV or FLAC")
-        return pick_channel(data, self.channel, self.name, self.path)
-
-    def close(self) -> None:
-        self.f.close()
-
-
 def inspect_file(
     path,
     channel: int | None = None,
@@ -923,10 +895,7 @@ def inspect_file(
             f"{MAX_SECONDS:.0f} s ({MAX_SECONDS / 3600:g} h) at a time",
             "choose an excerpt with a start and a duration",
         )
-    reader = _FileReader(path, channel, i0, name)
-    try:
+    with AudioFile(path, channel, name=name, offset=i0) as reader:
         return _inspect_stream(reader.read, n, fs, f0_min_hz=f0_min_hz, f0_max_hz=f0_max_hz,
                                block_s=block_seconds, progress=progress,
                                check=StreamCheck(f"{name} '{path}'"))
-    finally:
-        reader.close()
