@@ -21,7 +21,7 @@ HERE = Path(__file__).resolve().parent
 RUNS = [
     ("(a) STOI+ESTOI vs pystoi", ["bench_stoi.py"]),
     ("(b) IR path vs band-pass filtering", ["bench_ir.py"]),
-    ("(c) batch throughput", ["bench_batch.py", "--rows", "400"]),
+    ("(c) batch throughput", ["bench_batch.py", "--rows", "1000"]),
     ("(d) --help CPU time", ["bench_help.py"]),
 ]
 LONG = [
