@@ -712,10 +712,13 @@ def _inspect_stream(
     peak = spectral_peak(freqs, combined, *MOD_PEAK_RANGE_HZ)
     df = float(freqs[1] - freqs[0]) if freqs.size > 1 else float("nan")
 
-    # excerpt for the three-level figure: the most periodic voiced frame, or the middle;
-    # read again with margins (a second, short read)
-    if np.any(track.voiced):
-        centre = float(track.times_s[int(np.argmin(np.where(track.voiced, track.aperiodicity, np.inf)))])
+    # excerpt for the three-level figure: the loudest voiced frame (where all three levels
+    # show), or the middle; read again with margins (a second, short read)
+    env_bb = np.concatenate(env_parts)
+    del env_parts
+    if np.any(track.voiced) and env_bb.size:
+        idx = np.clip(np.round(track.times_s * fs / q).astype(int), 0, env_bb.size - 1)
+        centre = float(track.times_s[int(np.argmax(np.where(track.voiced, env_bb[idx], -np.inf)))])
     else:
         centre = dur / 2
     i0 = int(np.clip((centre - EXCERPT_S / 2) * fs, 0, max(0, n - int(EXCERPT_S * fs))))
@@ -749,8 +752,6 @@ def _inspect_stream(
     if not np.isfinite(peak):
         cautions.append("No envelope modulation peak could be found.")
 
-    env_bb = np.concatenate(env_parts)
-    del env_parts
     g = max(1, -(-env_bb.size // ENVELOPE_POINTS))  # overview: the largest value per g samples
     if g > 1:
         m_env = -(-env_bb.size // g)
