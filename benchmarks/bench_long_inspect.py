@@ -17,12 +17,11 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
-import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
+
+from _measure import run_measured
 
 BLOCK_S = 20.0
 LIMIT_MB = 600.0
@@ -50,19 +49,6 @@ def write_recording(path: Path, minutes: float, fs: int, noise_db: float = 30.0,
             # signal RMS: harmonic power sum(1/k^2)/2 times the mean of env^2 (sin^8: 35/128; 4 of 5 syllables)
             rms = 0.08 * np.sqrt(np.sum(1.0 / np.arange(1, 31) ** 2) / 2 * 35 / 128 * 4 / 5)
             f.write(y + rms * 10 ** (-noise_db / 20) * rng.standard_normal(t.size))
-
-
-def run_measured(args: list[str]) -> tuple[int, str, str, float, float]:
-    """Run a child; return (exit code, stdout, stderr, wall time s, peak RSS MB) of that child alone."""
-    with tempfile.TemporaryFile() as fo, tempfile.TemporaryFile() as fe:
-        t0 = time.perf_counter()
-        p = subprocess.Popen(args, stdout=fo, stderr=fe)
-        _, status, usage = os.wait4(p.pid, 0)
-        wall = time.perf_counter() - t0
-        p.returncode = os.waitstatus_to_exitcode(status)
-        fo.seek(0)
-        fe.seek(0)
-        return p.returncode, fo.read().decode(), fe.read().decode(), wall, usage.ru_maxrss / 1024.0  # KiB
 
 
 def main() -> None:

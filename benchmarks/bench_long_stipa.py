@@ -19,12 +19,11 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
-import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
+
+from _measure import run_measured
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
@@ -54,19 +53,6 @@ def write_recording(path: Path, minutes: float, fs: int, t60: float, noise_db: f
         for start in range(0, total, block):
             idx = np.arange(start, min(total, start + block)) % y.size
             f.write(y[idx] + noise_rms * rng.standard_normal(idx.size))
-
-
-def run_measured(args: list[str]) -> tuple[int, str, str, float, float]:
-    """Run a child; return (exit code, stdout, stderr, wall time s, peak RSS MB) of that child alone."""
-    with tempfile.TemporaryFile() as fo, tempfile.TemporaryFile() as fe:
-        t0 = time.perf_counter()
-        p = subprocess.Popen(args, stdout=fo, stderr=fe)
-        _, status, usage = os.wait4(p.pid, 0)
-        wall = time.perf_counter() - t0
-        p.returncode = os.waitstatus_to_exitcode(status)
-        fo.seek(0)
-        fe.seek(0)
-        return p.returncode, fo.read().decode(), fe.read().decode(), wall, usage.ru_maxrss / 1024.0  # KiB
 
 
 def main() -> None:
