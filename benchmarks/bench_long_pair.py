@@ -1,7 +1,7 @@
 """Peak memory and time of ``pair_from_files`` on a long (default 30 min) 16 kHz pair.
 
 Run by hand: ``python benchmarks/bench_long_pair.py [--minutes 30] [--keep DIR]``.
-Writes an invented clean/degraded pair as float32 WAV files block by block
+Writes an invented clean/degraded pair as 16-bit WAV files block by block
 (speech-like signal from tests/test_correlation.py; degraded = 120 ms late, in
 fluctuating speech-shaped noise at 3 dB SNR), then analyses it in a child process and
 prints the child's wall time and peak resident memory (resource.getrusage). Goal
@@ -11,14 +11,14 @@ prints the child's wall time and peak resident memory (resource.getrusage). Goal
 from __future__ import annotations
 
 import argparse
-import resource
-import subprocess
 import sys
 import tempfile
 import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
+
+from _measure import run_measured  # noqa: E402
 
 BLOCK_S = 60.0
 DELAY_S = 0.120
@@ -44,7 +44,7 @@ def write_pair(folder: Path, minutes: float, fs: int) -> tuple[Path, Path]:
     clean, degraded = folder / "clean.wav", folder / "degraded.wav"
     lag = int(DELAY_S * fs)
     n_blocks = int(np.ceil(minutes * 60 / BLOCK_S))
-    with sf.SoundFile(clean, "w", fs, 1, "FLOAT") as fc, sf.SoundFile(degraded, "w", fs, 1, "FLOAT") as fd:
+    with sf.SoundFile(clean, "w", fs, 1, "PCM_16") as fc, sf.SoundFile(degraded, "w", fs, 1, "PCM_16") as fd:
         fd.write(np.zeros(lag, dtype=np.float32))
         for b in range(n_blocks):
             x = speech_like(BLOCK_S, fs, seed=1000 + b)
@@ -67,13 +67,11 @@ def main() -> None:
         t0 = time.perf_counter()
         clean, degraded = write_pair(folder, a.minutes, a.fs)
         print(f"wrote {a.minutes:g} min pair at {a.fs} Hz in {time.perf_counter() - t0:.0f} s")
-        out = subprocess.run([sys.executable, "-c", CHILD, str(clean), str(degraded)],
-                             capture_output=True, text=True, check=False)
-        if out.returncode != 0:
-            print(out.stderr)
+        code, stdout, stderr, _wall, peak_mb = run_measured([sys.executable, "-c", CHILD, str(clean), str(degraded)])
+        if code != 0:
+            print(stderr)
             raise SystemExit(1)
-        peak_mb = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0  # Linux: KiB
-        print(out.stdout.strip())
+        print(stdout.strip())
         verdict = "OK" if peak_mb <= LIMIT_MB else "OVER THE LIMIT"
         print(f"peak RSS of the analysis: {peak_mb:.0f} MB (limit {LIMIT_MB:.0f} MB): {verdict}")
 
