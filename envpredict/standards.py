@@ -24,8 +24,6 @@ Sources are cited by short name:
 
 from __future__ import annotations
 
-import numpy as np
-
 # ---------------------------------------------------------------------------
 # Octave bands and modulation frequencies
 # ---------------------------------------------------------------------------
@@ -238,9 +236,6 @@ STOI_BETA_DB: float = -15.0
 STOI_DYNAMIC_RANGE_DB: float = 40.0
 
 
-def as_array(values: tuple) -> np.ndarray:
-    """Return a table as a float array, with ``None`` entries as NaN."""
-    return np.array([np.nan if v is None else v for v in values], dtype=float)
 
 # ---------------------------------------------------------------------------
 # Direct method: STIPA and full-STI test signals (IEC 60268-16:2011, 6.1 and Annex B)

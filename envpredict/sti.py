@@ -19,6 +19,11 @@ from .results import jsonable
 TALKERS = tuple(std.WEIGHTS)
 
 
+def table_array(values: tuple) -> np.ndarray:
+    """A table of :mod:`envpredict.standards` as a float array, ``None`` entries as NaN."""
+    return np.array([np.nan if v is None else v for v in values], dtype=float)
+
+
 def check_talker(talker: str) -> str:
     t = str(talker).strip().lower()
     if t not in std.WEIGHTS:
@@ -82,7 +87,7 @@ def speech_band_levels(level_dba: float, talker: str = "male") -> np.ndarray:
 
     Source: IEC 60268-16:2011, Table A.2 (see :mod:`envpredict.standards`).
     """
-    return float(level_dba) + std.as_array(std.SPEECH_SPECTRA_DB[check_talker(talker)])
+    return float(level_dba) + table_array(std.SPEECH_SPECTRA_DB[check_talker(talker)])
 
 
 def masking_factor(level_db: np.ndarray) -> np.ndarray:
@@ -275,10 +280,10 @@ def sti_from_mtf(
             level_total = 10.0 * np.log10(i_total)
         amf = masking_factor(level_total)
         i_am[1:] = i_total[:-1] * amf[:-1]
-        i_rt = 10.0 ** (std.as_array(std.RECEPTION_THRESHOLD_DB) / 10.0)
+        i_rt = 10.0 ** (table_array(std.RECEPTION_THRESHOLD_DB) / 10.0)
         with np.errstate(divide="ignore"):
             masking_db = 10.0 * np.log10(i_am)
-        threshold_db = std.as_array(std.RECEPTION_THRESHOLD_DB)
+        threshold_db = table_array(std.RECEPTION_THRESHOLD_DB)
 
     den = i_s + i_n + i_am + i_rt
     with np.errstate(invalid="ignore", divide="ignore"):
