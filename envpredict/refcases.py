@@ -14,7 +14,7 @@ Case file format
                 "amplitude", "noise_floor_db"(optional)}`` -- Gaussian noise times
                 exp(-6.91 t / T60) (energy decays 60 dB in T60), optional
                 stationary noise floor in dB re the initial envelope level; or
-                ``{"synth": "dirac", "fs", "seconds"}``; or ``{"file": "name.wav"}``.
+                ``{"synth": "impulse", "fs", "seconds"}`` (a unit impulse: an ideal channel); or ``{"file": "name.wav"}``.
 ``settings``    ``noise_db`` (7 values or null), ``speech_level_dba``, ``talker``,
                 ``auditory``
 ``expected``    per quantity ``{"value": number or 7-list, "abs_tol" or "rel_tol"}``;
@@ -89,7 +89,7 @@ def synthesize(spec: dict, folder: Path | None = None) -> tuple[np.ndarray, int]
         return load_audio(base / spec["file"], name="reference impulse response")
     kind = spec["synth"]
     n = int(round(float(spec["seconds"]) * fs))
-    if kind == "dirac":
+    if kind == "impulse":
         x = np.zeros(n)
         x[int(spec.get("delay_s", 0.01) * fs)] = float(spec.get("amplitude", 0.5))
         return x, fs

@@ -148,7 +148,7 @@ def main():
             "expected": {"sti": {"value": round(sti, 4), "abs_tol": TOL_STI}},
         })
 
-    # 3. ideal channel (Dirac) with noise only: STI = (SNR + 15)/30
+    # 3. ideal channel (unit impulse) with noise only: STI = (SNR + 15)/30
     for snr in (-15.0, -9.0, -3.0, 0.0, 3.0, 9.0, 15.0):
         sti = (snr + 15) / 30
         speech = band_speech(60.0)
@@ -156,10 +156,10 @@ def main():
         if snr in (-9.0, 0.0, 9.0):  # well inside a qualification band
             exp["rating"] = {"value": rating(sti)}
         write({
-            "id": f"dirac_snr{snr:+.0f}dB",
+            "id": f"impulse_snr{snr:+.0f}dB",
             "title": f"Ideal channel with stationary noise at {snr:+.0f} dB band SNR (auditory corrections off)",
             "source": SRC_NOISE + "; qualification bands IEC 60268-16:2011 Table F.1",
-            "input": {"synth": "dirac", "fs": 48000, "seconds": 1.2},
+            "input": {"synth": "impulse", "fs": 48000, "seconds": 1.2},
             "settings": {"noise_db": [round(s - snr, 2) for s in speech], "speech_level_dba": 60.0,
                          "talker": "male", "auditory": False},
             "expected": exp,
@@ -180,7 +180,7 @@ def main():
             "id": f"weights_{talker}",
             "title": f"Ideal channel, noise only in the 4 and 8 kHz bands, {talker} weights",
             "source": SRC_NOISE + "; band weights IEC 60268-16:2011 Table A.1",
-            "input": {"synth": "dirac", "fs": 48000, "seconds": 1.2},
+            "input": {"synth": "impulse", "fs": 48000, "seconds": 1.2},
             "settings": {"noise_db": noise, "speech_level_dba": 60.0, "talker": talker, "auditory": False},
             "expected": {"sti": {"value": round(sti_of(mti, talker), 4), "abs_tol": 0.01}},
         })
@@ -205,7 +205,7 @@ def main():
             "title": f"Ideal channel, speech {level:.0f} dB(A)" + (", noise 40 dB SPL per band" if noise else "")
             + ", auditory masking and reception threshold on",
             "source": SRC_AUDITORY,
-            "input": {"synth": "dirac", "fs": 48000, "seconds": 1.2},
+            "input": {"synth": "impulse", "fs": 48000, "seconds": 1.2},
             "settings": {"noise_db": noise, "speech_level_dba": level, "talker": "male", "auditory": True},
             "expected": {"sti": {"value": round(sti, 4), "abs_tol": 0.01},
                          # 0.02: the 125 Hz octave filter's own ringing lowers m(12.5 Hz) to about 0.96

@@ -41,14 +41,14 @@ def test_expected_values_follow_the_formula():
 
 
 def test_check_command_json(capsys):
-    code, out, _ = run_cli(["check", "--case", "dirac", "--json"], capsys)
+    code, out, _ = run_cli(["check", "--case", "impulse", "--json"], capsys)
     d = json.loads(out)
     assert code == 0 and d["failed"] == 0 and d["passed"] >= 7
 
 
 def test_check_command_fails_on_a_wrong_case(tmp_path, monkeypatch, capsys):
     # a case whose expectation is wrong must make `check` exit non-zero
-    case = dict(next(c for c in CASES if c["id"] == "dirac_snr+0dB"))
+    case = dict(next(c for c in CASES if c["id"] == "impulse_snr+0dB"))
     case.pop("_path")
     case["expected"] = {"sti": {"value": 0.9, "abs_tol": 0.01}}
     (tmp_path / "wrong.json").write_text(json.dumps(case))
