@@ -23,3 +23,13 @@ def run_measured(args: list[str]) -> tuple[int, str, str, float, float]:
         fo.seek(0)
         fe.seek(0)
         return p.returncode, fo.read().decode(), fe.read().decode(), wall, usage.ru_maxrss / 1024.0  # KiB
+
+
+def run_or_exit(args: list[str]) -> tuple[str, float, float]:
+    """:func:`run_measured`, stopping the benchmark with the child's stderr if it failed.
+    Returns (stdout, wall time s, peak RSS MB)."""
+    code, out, err, wall, peak_mb = run_measured(args)
+    if code != 0:
+        print(err)
+        raise SystemExit(1)
+    return out, wall, peak_mb

@@ -21,7 +21,7 @@ import sys
 import tempfile
 from pathlib import Path
 
-from _measure import run_measured
+from _measure import run_or_exit
 
 BLOCK_S = 20.0
 LIMIT_MB = 600.0
@@ -66,18 +66,12 @@ def main() -> None:
         folder = a.keep or Path(tmp)
         folder.mkdir(parents=True, exist_ok=True)
         path = folder / f"speechlike_{a.minutes:g}min_{a.fs}.wav"
-        code, _, err, wall, _ = run_measured(
+        _, wall, _ = run_or_exit(
             [sys.executable, __file__, "--write-only", str(path), "--minutes", str(a.minutes), "--fs", str(a.fs)])
-        if code != 0:
-            print(err)
-            raise SystemExit(1)
         print(f"wrote {path.name}: {a.minutes:g} min at {a.fs} Hz, 16-bit, {path.stat().st_size / 1e6:.0f} MB, "
               f"in {wall:.0f} s")
-        code, out, err, wall, peak_mb = run_measured(
+        out, wall, peak_mb = run_or_exit(
             [sys.executable, "-c", "from envpredict.cli import main; main()", "inspect", str(path), "--json"])
-        if code != 0:
-            print(err)
-            raise SystemExit(1)
         d = json.loads(out)
         print(f"duration {d['duration_s']:.1f} s; voiced {100 * d['voiced_fraction']:.0f} %; median F0 "
               f"{d['f0_median_hz']} Hz (contour median ~130 Hz); modulation peak {d['modulation_peak_hz']} Hz "

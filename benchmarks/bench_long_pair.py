@@ -18,7 +18,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
-from _measure import run_measured  # noqa: E402
+from _measure import run_or_exit  # noqa: E402
 
 BLOCK_S = 60.0
 DELAY_S = 0.120
@@ -67,10 +67,7 @@ def main() -> None:
         t0 = time.perf_counter()
         clean, degraded = write_pair(folder, a.minutes, a.fs)
         print(f"wrote {a.minutes:g} min pair at {a.fs} Hz in {time.perf_counter() - t0:.0f} s")
-        code, stdout, stderr, _wall, peak_mb = run_measured([sys.executable, "-c", CHILD, str(clean), str(degraded)])
-        if code != 0:
-            print(stderr)
-            raise SystemExit(1)
+        stdout, _wall, peak_mb = run_or_exit([sys.executable, "-c", CHILD, str(clean), str(degraded)])
         print(stdout.strip())
         verdict = "OK" if peak_mb <= LIMIT_MB else "OVER THE LIMIT"
         print(f"peak RSS of the analysis: {peak_mb:.0f} MB (limit {LIMIT_MB:.0f} MB): {verdict}")

@@ -23,7 +23,7 @@ import sys
 import tempfile
 from pathlib import Path
 
-from _measure import run_measured
+from _measure import run_or_exit
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
@@ -72,19 +72,13 @@ def main() -> None:
         folder = a.keep or Path(tmp)
         folder.mkdir(parents=True, exist_ok=True)
         path = folder / f"stipa_{a.minutes:g}min_{a.fs}.wav"
-        code, _, err, wall, _ = run_measured(
+        _, wall, _ = run_or_exit(
             [sys.executable, __file__, "--write-only", str(path), "--minutes", str(a.minutes), "--fs", str(a.fs),
              "--t60", str(a.t60), "--noise-db", str(a.noise_db)])
-        if code != 0:
-            print(err)
-            raise SystemExit(1)
         print(f"wrote {path.name}: {a.minutes:g} min at {a.fs} Hz, 16-bit, {path.stat().st_size / 1e6:.0f} MB, "
               f"in {wall:.0f} s")
-        code, out, err, wall, peak_mb = run_measured(
+        out, wall, peak_mb = run_or_exit(
             [sys.executable, "-c", "from envpredict.cli import main; main()", "stipa", str(path), "--json"])
-        if code != 0:
-            print(err)
-            raise SystemExit(1)
         d = json.loads(out)
         rec = d["recordings"][0]
         print(f"STI {d['sti']:.3f} +- {d['uncertainty']:.3f} ({len(d['window_sti'])} windows), analysed "

@@ -14,7 +14,8 @@ Case file format
                 "amplitude", "noise_floor_db"(optional)}`` -- Gaussian noise times
                 exp(-6.91 t / T60) (energy decays 60 dB in T60), optional
                 stationary noise floor in dB re the initial envelope level; or
-                ``{"synth": "impulse", "fs", "seconds"}`` (a unit impulse: an ideal channel); or ``{"file": "name.wav"}``.
+                ``{"synth": "impulse", "fs", "seconds"}`` (a unit impulse: an ideal channel);
+                or ``{"file": "name.wav"}``.
 ``settings``    ``noise_db`` (7 values or null), ``speech_level_dba``, ``talker``,
                 ``auditory``
 ``expected``    per quantity ``{"value": number or 7-list, "abs_tol" or "rel_tol"}``;

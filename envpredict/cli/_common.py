@@ -12,6 +12,7 @@ import typer
 
 JSON_HELP = "Print one JSON object instead of the table (for scripts)."
 OUT_HELP = "Also write the JSON result to this file (written atomically)."
+CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
 REPORT_HELP = ("Also write a report folder: PNG figures and a self-contained report.html "
                "(opens offline in a browser). A new folder, or an earlier report folder (replaced as a whole).")
 

@@ -8,9 +8,10 @@ from typing import Optional
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
+from ._common import (
+    CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if,
+)
 
-CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
 START_HELP = "Start of the excerpt to inspect, seconds from the beginning of the file."
 DURATION_HELP = ("Length of the excerpt, seconds (1 to 14400, i.e. 4 hours; the file is read in blocks, so long "
                  "recordings need little memory). Default: to the end of the file.")

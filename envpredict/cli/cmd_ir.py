@@ -8,7 +8,9 @@ from typing import Optional
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
+from ._common import (
+    CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if,
+)
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
               "comma-separated, e.g. 48,45,42,40,36,32,28. Default: no noise.")
@@ -16,7 +18,6 @@ LEVEL_HELP = "A-weighted speech level at the listener, dB(A). Default 60 (normal
 TALKER_HELP = "Speech spectrum and band weights: male or female (IEC 60268-16)."
 AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textbook form, for "
                  "comparison with published formulas; not for compliance work).")
-CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
 
 
 def render_ir(d: dict, source: str) -> str:

@@ -8,9 +8,10 @@ from pathlib import Path
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, REPORT_HELP, Progress, check_report, emit, fmt, note, table, write_report_if
+from ._common import (
+    CHANNEL_HELP, JSON_HELP, REPORT_HELP, Progress, check_report, emit, fmt, note, table, write_report_if,
+)
 
-CHANNEL_HELP = "Channel to use from multi-channel files (0 = first). Required for multi-channel files."
 
 
 # ---------------------------------------------------------------------------
