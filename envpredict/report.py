@@ -75,18 +75,32 @@ DPI = 110
 LONG_VIEW_S = 30.0
 
 
-def _mpl():
-    """matplotlib's Figure and Agg canvas (no pyplot: no global state, no display)."""
+#: The report's look, applied inside :func:`_style` only (never process-wide).
+STYLE: dict[str, Any] = {
+    "font.size": 10.5, "axes.titlesize": 11.5, "axes.labelsize": 10.5,
+    "axes.edgecolor": MUTED, "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK,
+    "text.color": INK, "axes.grid": True, "grid.color": GRID, "grid.linewidth": 0.7,
+    "axes.spines.top": False, "axes.spines.right": False, "figure.facecolor": "white",
+    "axes.facecolor": "white", "legend.frameon": False, "axes.titleweight": "bold",
+    "axes.titlelocation": "left",
+    # labels are shown as typed: a '$' in a condition name is not mathematics
+    "text.usetex": False, "text.parse_math": False,
+}
+
+
+def _style():
+    """A context in which the report's figures are drawn; the caller's matplotlib
+    settings are restored on exit (``matplotlib.rc_context``)."""
     import matplotlib
 
-    matplotlib.rcParams.update({
-        "font.size": 10.5, "axes.titlesize": 11.5, "axes.labelsize": 10.5,
-        "axes.edgecolor": MUTED, "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK,
-        "text.color": INK, "axes.grid": True, "grid.color": GRID, "grid.linewidth": 0.7,
-        "axes.spines.top": False, "axes.spines.right": False, "figure.facecolor": "white",
-        "axes.facecolor": "white", "legend.frameon": False, "axes.titleweight": "bold",
-        "axes.titlelocation": "left",
-    })
+    return matplotlib.rc_context(STYLE)
+
+
+def _mpl():
+    """matplotlib's Figure and Agg canvas (no pyplot: no global state, no display).
+
+    Call inside :func:`_style`: figures take the report's look from there.
+    """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 
@@ -1193,7 +1207,8 @@ def write_report(
                          "pass result.to_dict(), not the result object") from None
     settings = dict(settings or {})
     extras = dict(extras or {})
-    page = _PAGES[kind](result, extras)
+    with _style():
+        page = _PAGES[kind](result, extras)
     created = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     doc = render_html(kind, result, page, settings=settings, title=title or KIND_TITLES[kind],
                       version=__version__, created=created)

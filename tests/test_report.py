@@ -440,3 +440,24 @@ def test_folder_with_other_files_is_never_replaced(tmp_path):
     (tmp_path / "empty").mkdir()
     write_report("sweep", sweep_result(), tmp_path / "empty")
     assert (tmp_path / "empty" / "report.html").is_file()
+
+
+def test_report_leaves_the_callers_matplotlib_settings_alone(tmp_path, compare_result):
+    """The report's look is applied in a context (matplotlib.rc_context), never process-wide."""
+    import matplotlib
+
+    with matplotlib.rc_context({"font.size": 7.0, "axes.grid": False, "text.color": "#123456"}):
+        before = dict(matplotlib.rcParams)
+        write_report("compare", compare_result, tmp_path / "rep")
+        after = dict(matplotlib.rcParams)
+    changed = {k for k in before if before[k] != after[k] and not (before[k] is after[k])}
+    assert not changed, changed
+
+
+def test_labels_are_drawn_as_typed_not_as_mathematics(tmp_path, compare_result):
+    """A '$' in a condition name (or a half-formed TeX command) must neither fail nor be
+    interpreted: without the setting, matplotlib's mathtext raises on '$\\frac$'."""
+    d = json.loads(json.dumps(compare_result))
+    d["conditions"][1]["name"] = "gain $\\frac$"
+    write_report("compare", d, tmp_path / "rep")
+    assert (tmp_path / "rep" / "report.html").is_file()
