@@ -450,7 +450,7 @@ def test_report_leaves_the_callers_matplotlib_settings_alone(tmp_path, compare_r
         before = dict(matplotlib.rcParams)
         write_report("compare", compare_result, tmp_path / "rep")
         after = dict(matplotlib.rcParams)
-    changed = {k for k in before if before[k] != after[k] and not (before[k] is after[k])}
+    changed = {k for k in before if before[k] != after[k]}
     assert not changed, changed
 
 
