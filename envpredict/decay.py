@@ -198,6 +198,11 @@ def fit_decay_time(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) 
     return float(-60.0 / slope) if slope < 0 else float("nan")
 
 
+#: Sample rate of the Schroeder curves kept in a result for its figures, Hz: 5 ms steps
+#: resolve the first 10 dB of any decay longer than 0.1 s at figure width (judgement).
+FIGURE_CURVE_RATE_HZ: float = 200.0
+
+
 @dataclass(frozen=True)
 class DecayResult:
     """ISO 3382-1 figures per octave band (NaN where not computable; see ``notes``)."""
@@ -230,8 +235,17 @@ class DecayResult:
                 "noise_floor_db": np.round(self.noise_floor_db, 1),
                 "crossing_s": np.round(self.crossing_s, 3),
                 "notes": list(self.notes),
+                **self._curves_for_figures(),
             }
         )
+
+    def _curves_for_figures(self) -> dict:
+        """The Schroeder curves at no more than FIGURE_CURVE_RATE_HZ, 0.01 dB (figure data:
+        a report is drawn from the result alone)."""
+        if self.curves_db is None or not self.curve_rate_hz:
+            return {"curves_db": None, "curve_rate_hz": None}
+        q = max(1, int(round(self.curve_rate_hz / FIGURE_CURVE_RATE_HZ)))
+        return {"curves_db": np.round(self.curves_db[:, ::q], 2), "curve_rate_hz": self.curve_rate_hz / q}
 
 
 def _needed_range(name: str) -> float:

@@ -52,7 +52,6 @@ class IrResult:
 
     def to_dict(self) -> dict:
         d = self.sti.to_dict()
-        d["modulation_hz"] = list(std.MODULATION_FREQUENCIES_HZ)
         d.update(
             {
                 "method": "indirect (impulse response), IEC 60268-16:2011",
@@ -61,6 +60,7 @@ class IrResult:
                 "speech_level_dba": self.speech_level_dba,
                 "decay": self.decay.to_dict(),
                 "cautions": list(self.cautions),
+                "notes": [],
             }
         )
         return jsonable(d)

@@ -330,7 +330,7 @@ class SstiBands:
 
     def to_dict(self) -> dict:
         return jsonable({
-            "centre_hz": self.bands_hz,
+            "bands_hz": self.bands_hz,
             "correlation": np.round(self.correlation, 4),
             "mtf": np.round(self.mtf, 4),
             "apparent_snr_db": np.round(self.apparent_snr_db, 2),
@@ -396,7 +396,14 @@ class PairResult:
             e = np.bincount(idx, c.segment_estoi, minlength=n_bins) / cnt
         s[cnt == 0] = np.nan
         e[cnt == 0] = np.nan
-        return {"step_s": float(step), "start_s": np.arange(n_bins) * step, "stoi": s, "estoi": e}
+        # per band: the mean segment correlation of each one-third-octave band in the bin
+        band = np.zeros((c.stoi_band_segment.shape[0], n_bins))
+        np.add.at(band, (slice(None), idx), c.stoi_band_segment)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            band /= cnt
+        band[:, cnt == 0] = np.nan
+        return {"step_s": float(step), "start_s": np.arange(n_bins) * step, "stoi": s, "estoi": e,
+                "band_stoi": band}
 
     def worst_moments(self, count: int = WORST_MOMENTS) -> list[dict]:
         """The time bins with the lowest local ESTOI (where the envelope is lost most)."""
@@ -421,7 +428,7 @@ class PairResult:
             "fs": self.fs,
             "bands": {
                 "third_octave": {
-                    "centre_hz": np.round(c.band_centres_hz, 1),
+                    "bands_hz": np.round(c.band_centres_hz, 1),
                     "stoi": np.round(c.stoi_band, 4),
                     "estoi": np.round(c.estoi_band, 4),
                 },
@@ -440,7 +447,8 @@ class PairResult:
             "frames": {"total": c.frames_total, "kept": c.frames_kept,
                        "segments": int(c.segment_stoi.size)},
             "timeline": {"step_s": tl["step_s"], "start_s": tl["start_s"],
-                         "stoi": np.round(tl["stoi"], 4), "estoi": np.round(tl["estoi"], 4)},
+                         "stoi": np.round(tl["stoi"], 4), "estoi": np.round(tl["estoi"], 4),
+                         "band_stoi": np.round(tl["band_stoi"], 4)},
             "worst_moments": self.worst_moments(),
             "methods": {
                 "stoi": "Taal et al. 2011",

@@ -1010,7 +1010,7 @@ class SweepTarget:
 
     def to_dict(self) -> dict:
         return jsonable({
-            "percent": self.percent, "index": self.index, "snr_db": self.snr_db, "ci_low": self.ci_low,
+            "percent": self.percent, "index_value": self.index, "snr_db": self.snr_db, "ci_low": self.ci_low,
             "ci_high": self.ci_high, "segment_sd_db": self.segment_sd_db,
             "segment_snr_db": list(self.segment_snr_db),
             "slope_percent_per_db": self.slope_percent_per_db,
@@ -1069,8 +1069,8 @@ class SweepResult:
         srt = next((t for t in self.targets if abs(t.percent - 50.0) < 1e-9), None)
         return jsonable({
             "snr_db": self.snr_db,
-            "index_name": self.index_name,
-            "index": np.round(self.index, 5),
+            "index": self.index_name,
+            self.index_name: np.round(self.index, 5),
             "index_sd": np.round(self.index_sd, 5),
             "index_segments": np.round(self.index_segments, 5),
             "predicted_percent": None if self.predicted_percent is None else np.round(self.predicted_percent, 3),

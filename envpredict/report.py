@@ -313,14 +313,14 @@ def _rect(xy, w, h, colour, alpha=1.0):
     return Rectangle(xy, w, h, facecolor=colour, edgecolor="white", lw=1.0, alpha=alpha)
 
 
-def _decay_figure(d: Mapping, extras: Mapping) -> Figure | None:
-    curves = extras.get("decay_curves_db")
-    rate = extras.get("decay_curve_rate_hz")
+def _decay_figure(d: Mapping) -> Figure | None:
+    dec = d.get("decay") or {}
+    curves = dec.get("curves_db")
+    rate = dec.get("curve_rate_hz")
     if curves is None or not rate:
         return None
     new = _mpl()
-    curves = np.asarray(curves, dtype=float)
-    dec = d.get("decay", {})
+    curves = _arr(curves)
     bands = list(dec.get("bands_hz", d.get("bands_hz", std.OCTAVE_BANDS_HZ)))
     fig = new(11.0, 6.2)
     axes = fig.subplots(2, 4, sharex=True, sharey=True).ravel()
@@ -414,6 +414,8 @@ def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
     tables = [Table("Per octave band", [head[j] for j in keep], [[r[j] for j in keep] for r in rows])]
     mod = d.get("modulation_hz", [])
     per_band = bool(mod) and isinstance(mod[0], (list, tuple))
+    if per_band and all(list(row) == list(mod[0]) for row in mod):
+        mod, per_band = list(mod[0]), False  # the same frequencies in every band
     m = d.get("mtf") or []
     nf = len(m[0]) if m else 0
     if per_band:
@@ -436,15 +438,14 @@ def _sti_headline(d: Mapping) -> list[tuple[str, Cell]]:
             ("rating", txt(d.get("subjective"))), ("talker", txt(d.get("talker")))]
 
 
-def _page_ir(d: Mapping, extras: Mapping) -> Page:
+def _page_ir(d: Mapping) -> Page:
     p = Page(headline=_sti_headline(d))
     p.figures += [_mtf_heatmap(d, False), _ti_figure(d)]
-    dec_fig = _decay_figure(d, extras)
+    dec_fig = _decay_figure(d)
     if dec_fig is not None:
         p.figures.append(dec_fig)
     else:
-        p.notes.append("Decay curves were not passed to the report (extras 'decay_curves_db'), so they are "
-                       "not drawn.")
+        p.notes.append("The result holds no decay curves (decay.curves_db), so they are not drawn.")
     p.tables += _sti_tables(d, False)
     dec = d.get("decay")
     if dec:
@@ -462,7 +463,7 @@ def _page_ir(d: Mapping, extras: Mapping) -> Page:
     return p
 
 
-def _page_stipa(d: Mapping, extras: Mapping) -> Page:
+def _page_stipa(d: Mapping) -> Page:
     p = Page(headline=_sti_headline(d))
     if d.get("uncertainty") is not None:
         p.headline.insert(1, ("uncertainty (±)", num(d, "uncertainty", ".3f")))
@@ -508,7 +509,7 @@ def _first(d: Mapping, *keys: str) -> Any:
     return None
 
 
-def _page_pair(d: Mapping, extras: Mapping) -> Page:
+def _page_pair(d: Mapping) -> Page:
     p = Page()
     for key, label, spec in (("stoi", "STOI", ".3f"), ("estoi", "ESTOI", ".3f"), ("ssti", "speech-based STI", ".3f"),
                              ("delay_ms", "delay", ".1f")):
@@ -520,22 +521,23 @@ def _page_pair(d: Mapping, extras: Mapping) -> Page:
     octave = bands.get("octave") if isinstance(bands.get("octave"), Mapping) else {}
     tl = d.get("timeline") if isinstance(d.get("timeline"), Mapping) else {}
     worst = list(d.get("worst_moments") or [])
-    # 1. envelope correlation over time: per band if the caller passed the matrix
-    corr = extras.get("band_segment_correlation")
-    if corr is not None:
-        c = np.asarray(corr, dtype=float)
-        cf = list(extras.get("band_centres_hz", third.get("centre_hz", [])))
-        t_end = np.asarray(extras.get("segment_end_s", np.arange(c.shape[1])), dtype=float)
+    # 1. envelope correlation over time, per band (timeline.band_stoi: bands x time bins)
+    corr = tl.get("band_stoi")
+    if corr is not None and tl.get("start_s") is not None:
+        c = _arr(corr)
+        cf = list(third.get("bands_hz", []))
+        start = _arr(tl["start_s"])
+        step_s = float(tl.get("step_s") or 1.0)
         fig = new(11.0, 4.8)
         ax = fig.add_subplot(111)
         ax.grid(False)
-        lo_t = float(t_end[0]) if t_end.size else 0.0
-        hi_t = float(t_end[-1]) if t_end.size > 1 else lo_t + 1.0
+        lo_t = float(start[0]) if start.size else 0.0
+        hi_t = float(start[-1] + step_s) if start.size else lo_t + step_s
         im = ax.imshow(c, aspect="auto", origin="lower", cmap=_heat_cmap(), vmin=0.0, vmax=1.0,
                        extent=(lo_t, hi_t, -0.5, c.shape[0] - 0.5), interpolation="nearest")
         step = max(1, len(cf) // 8)
         ax.set_yticks(range(0, len(cf), step), [_band_label(float(f)) for f in cf[::step]])
-        ax.set_xlabel("time (end of each 384 ms analysis segment), s")
+        ax.set_xlabel(f"time in the aligned pair, s (bins of {step_s:g} s; blank: no speech)")
         ax.set_ylabel("band centre frequency")
         cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
         cb.set_label("envelope correlation")
@@ -568,12 +570,8 @@ def _page_pair(d: Mapping, extras: Mapping) -> Page:
         p.figures.append(Figure("correlation_over_time", "Local STOI and ESTOI (mean envelope correlation over "
                                 "the bands) in each time bin; shaded: the bin where the envelope is lost most. "
                                 "Gaps: no speech in the bin.", _png(fig)))
-    if corr is None:
-        p.notes.append("The per-band envelope correlation over time is drawn only when the command passes the "
-                       "band x segment matrix (extras 'band_segment_correlation'); the figure over time shows "
-                       "the mean over the bands.")
     # 2. per band
-    cf = third.get("centre_hz")
+    cf = third.get("bands_hz")
     if cf is not None and (third.get("stoi") is not None or third.get("estoi") is not None):
         cfl = [float(f) for f in cf]
         fig = new(11.0, 4.2)
@@ -599,9 +597,9 @@ def _page_pair(d: Mapping, extras: Mapping) -> Page:
         rows = [[Cell(_band_label(f)), num(d, f"bands.third_octave.stoi.{k}", ".3f"),
                  num(d, f"bands.third_octave.estoi.{k}", ".3f")] for k, f in enumerate(cfl)]
         p.tables.append(Table("Per one-third-octave band", ["band", "STOI part", "ESTOI part"], rows))
-    if octave.get("centre_hz") is not None:
+    if octave.get("bands_hz") is not None:
         rows = []
-        for k, f in enumerate(octave["centre_hz"]):
+        for k, f in enumerate(octave["bands_hz"]):
             rows.append([Cell(_band_label(float(f))), num(d, f"bands.octave.correlation.{k}", ".3f"),
                          num(d, f"bands.octave.mtf.{k}", ".3f"), num(d, f"bands.octave.apparent_snr_db.{k}", ".1f"),
                          num(d, f"bands.octave.ti.{k}", ".3f")])
@@ -633,7 +631,7 @@ def _has(d: Mapping, path: str) -> bool:
         return False
 
 
-def _page_compare(d: Mapping, extras: Mapping) -> Page:
+def _page_compare(d: Mapping) -> Page:
     p = Page()
     conds = list(d.get("conditions") or [])
     if d.get("index"):
@@ -679,7 +677,7 @@ def _page_compare(d: Mapping, extras: Mapping) -> Page:
     ax.set_yticks(y, [str(c.get("name", "?")) for c in conds])
     level = _first(d, "confidence", "ci_level")
     lvl = f"{float(level) * 100:g} % " if isinstance(level, (int, float)) else ""
-    index = d.get("index") or d.get("index_name") or "index"
+    index = d.get("index") or "index"
     ref = _first(d, "baseline", "reference")
     ref_text = f" from '{ref}'" if ref else ""
     ax.set_xlabel(f"difference in {str(index).upper()}{ref_text} (dot) with {lvl}confidence interval (bar)")
@@ -711,12 +709,13 @@ def _page_compare(d: Mapping, extras: Mapping) -> Page:
     return p
 
 
-def _page_sweep(d: Mapping, extras: Mapping) -> Page:
+def _page_sweep(d: Mapping) -> Page:
     p = Page()
     snr = _arr(d.get("snr_db"))
     pred = _arr(d.get("predicted_percent")) if d.get("predicted_percent") is not None else None
-    idx = _arr(d.get("index"))
-    name = str(d.get("index_name") or "index").upper()
+    key = str(d.get("index") or "index")
+    idx = _arr(d.get(key))
+    name = key.upper()
     targets = list(d.get("targets") or [])
     if d.get("srt_db") is not None:
         p.headline.append(("predicted SRT", num(d, "srt_db", ".1f", "dB")))
@@ -765,7 +764,7 @@ def _page_sweep(d: Mapping, extras: Mapping) -> Page:
     p.figures.append(Figure("psychometric", cap, _png(fig)))
     rows = []
     for i in range(snr.size):
-        r = [num(d, f"snr_db.{i}", ".1f"), num(d, f"index.{i}", ".3f")]
+        r = [num(d, f"snr_db.{i}", ".1f"), num(d, f"{key}.{i}", ".3f")]
         if d.get("index_sd") is not None:
             r.append(num(d, f"index_sd.{i}", ".3f"))
         if pred is not None:
@@ -777,7 +776,7 @@ def _page_sweep(d: Mapping, extras: Mapping) -> Page:
     if targets:
         trow = [[num(d, f"targets.{i}.percent", "g"), num(d, f"targets.{i}.snr_db", ".1f"),
                  num(d, f"targets.{i}.ci_low", ".1f"), num(d, f"targets.{i}.ci_high", ".1f"),
-                 num(d, f"targets.{i}.index", ".3f"), num(d, f"targets.{i}.slope_percent_per_db", ".1f"),
+                 num(d, f"targets.{i}.index_value", ".3f"), num(d, f"targets.{i}.slope_percent_per_db", ".1f"),
                  txt(t.get("note") or "")] for i, t in enumerate(targets)]
         p.tables.append(Table("Targets", ["target, %", "SNR, dB", "CI low, dB", "CI high, dB", f"{name} there",
                                           "slope, %/dB", "note"], trow))
@@ -807,14 +806,15 @@ def _voiced_spans(t: np.ndarray, voiced: np.ndarray, hop: float) -> list[tuple[f
     return [(float(t[s] - hop / 2), float(t[e - 1] + hop / 2)) for s, e in zip(starts, ends)]
 
 
-def _page_inspect(d: Mapping, extras: Mapping) -> Page:
+def _page_inspect(d: Mapping) -> Page:
     p = Page()
     p.headline = [("duration", num(d, "duration_s", ".2f", "s")), ("voiced fraction", num(d, "voiced_fraction", ".2f")),
                   ("median F0", num(d, "f0_median_hz", ".1f", "Hz")),
                   ("modulation peak", num(d, "modulation_peak_hz", ".2f", "Hz"))]
     new = _mpl()
     bands = list(d.get("bands_hz", []))
-    ex = extras or {}
+    # figure data of the result: JSON lists (null for NaN) back to float arrays
+    ex = {k: (_arr(v) if isinstance(v, list) else v) for k, v in (d.get("figure_data") or {}).items()}
     # 1. waveform + envelope, voicing + F0
     if "wave_t_s" in ex and "f0_times_s" in ex:
         fig = new(11.0, 5.6)
@@ -988,7 +988,7 @@ def _page_inspect(d: Mapping, extras: Mapping) -> Page:
     return p
 
 
-_PAGES: dict[str, Callable[[Mapping, Mapping], Page]] = {
+_PAGES: dict[str, Callable[[Mapping], Page]] = {
     "ir": _page_ir, "stipa": _page_stipa, "pair": _page_pair, "compare": _page_compare,
     "sweep": _page_sweep, "inspect": _page_inspect,
 }
@@ -1073,6 +1073,18 @@ def _json_for_script(d: Mapping) -> str:
     return json.dumps(d, indent=1, allow_nan=False).replace("</", "<\\/")
 
 
+def _input_files(result: Mapping) -> dict[str, str]:
+    """The file names among the result's inputs, for the page header (never folders)."""
+    inputs = result.get("inputs")
+    if not isinstance(inputs, Mapping):
+        return {}
+    out = {}
+    for k, v in inputs.items():
+        if isinstance(v, str) and "." in Path(v).name:
+            out[str(k)] = Path(v).name
+    return out
+
+
 def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str, Any], title: str,
                 version: str, created: str) -> str:
     """The report page as one HTML string (no external references)."""
@@ -1082,7 +1094,7 @@ def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str
         f"<title>{html.escape(title)}</title>", f"<style>{CSS}</style>", "</head>", "<body><main>",
         f"<header><h1>{html.escape(title)}</h1><div class=\"sub\">"
         + ("" if title == KIND_TITLES[kind] else f"{html.escape(KIND_TITLES[kind])} · ")
-        + (f"input: {html.escape(str(result['input']))} · " if result.get("input") else "")
+        + "".join(f"{html.escape(str(k))}: {html.escape(str(v))} · " for k, v in _input_files(result).items())
         + f"envpredict {html.escape(version)} · {html.escape(created)}</div></header>",
     ]
     if page.headline:
@@ -1133,31 +1145,23 @@ def write_report(
     *,
     settings: Mapping[str, Any] | None = None,
     title: str | None = None,
-    extras: Mapping[str, Any] | None = None,
 ) -> Path:
     """Write PNG figures, ``report.html`` and ``result.json`` into ``folder``.
+
+    The page is drawn from ``result`` alone (figure data are part of the result, e.g.
+    ``decay.curves_db``, ``timeline.band_stoi``, ``figure_data``), so writing the report
+    again from the ``result.json`` it wrote gives the same page.
 
     Parameters
     ----------
     kind : one of ``'ir'``, ``'stipa'``, ``'pair'``, ``'compare'``, ``'sweep'``,
         ``'inspect'``.
     result : the command's JSON dictionary -- exactly what it prints with ``--json``
-        (``Result.to_dict()``, plus any keys the command adds such as ``input``).
-        Extra keys are ignored by the figures and kept in the embedded JSON.
+        (``Result.to_dict()`` plus its ``inputs`` object).
     folder : output folder; created, or replaced as a whole, atomically (a failure
         leaves the previous folder or nothing).
-    settings : the inputs and options used, shown in the page as given
-        (e.g. ``{"input": "hall.wav", "noise, dB": "40,38,...", "talker": "male"}``).
+    settings : the inputs and options to show in the page (default: ``result["inputs"]``).
     title : page heading (default: the kind's title).
-    extras : arrays too large for the JSON that some figures need:
-
-        * ``'ir'``: ``{"decay_curves_db": res.decay.curves_db,
-          "decay_curve_rate_hz": res.decay.curve_rate_hz}`` (Schroeder curves);
-        * ``'inspect'``: ``res.report_extras()`` of :class:`~envpredict.timescales.InspectResult`;
-        * ``'pair'``: optionally ``{"band_segment_correlation": (bands, segments) array,
-          "band_centres_hz": ..., "segment_end_s": ...}`` for the per-band correlation
-          over time (without it, ``segment_stoi``/``segment_end_s`` from ``result``
-          give the mean over bands).
 
     Returns
     -------
@@ -1165,33 +1169,19 @@ def write_report(
 
     Examples
     --------
-    In a command, after ``d = result.to_dict()`` (plus the keys the command adds, so
-    the page embeds exactly what ``--json`` prints), with ``--report DIR`` given as
+    In a command, after ``d = result.to_dict()`` and ``d["inputs"] = {...}`` (so the page
+    embeds exactly what ``--json`` prints), with ``--report DIR`` given as
     ``report: Optional[Path]``. Check the folder before the slow work with
     ``check_report_folder(report)`` (refuses a folder holding other files), then::
 
         from envpredict.report import write_report
 
-        # ir
-        write_report("ir", d, report, settings={"input": str(ir_file), "noise, dB SPL": noise or "none",
-                     "speech level, dB(A)": speech_level, "talker": talker},
-                     extras={"decay_curves_db": result.decay.curves_db,
-                             "decay_curve_rate_hz": result.decay.curve_rate_hz})
-        # stipa (DirectResult.to_dict())
-        write_report("stipa", d, report, settings={"recording": str(path), "talker": talker})
-        # pair (PairResult.to_dict()); the per-band figure over time needs the matrix
-        write_report("pair", d, report, settings={"clean": str(clean), "degraded": str(degraded)},
-                     extras={"band_segment_correlation": rho, "segment_end_s": end_s})
-        # compare (Comparison.to_dict())
-        write_report("compare", d, report, settings={"results": str(csv), "by": by, "baseline": baseline})
-        # sweep (SweepResult.to_dict())
-        write_report("sweep", d, report, settings={"clean": str(clean), "noise": str(noise),
-                     "mapping": str(map_file)})
-        # inspect (InspectResult.to_dict())
-        write_report("inspect", d, report, settings={"input": str(audio)}, extras=result.report_extras())
+        write_report("ir", d, report)
 
-    ``write_report`` returns the path of ``report.html``; print it with ``note(...)``
-    when not in ``--json`` mode.
+    and later, from the folder alone::
+
+        d = json.loads((report / "result.json").read_text())
+        write_report("ir", d, other_folder)
     """
     from . import __version__
     from .outputs import atomic_directory
@@ -1205,12 +1195,13 @@ def write_report(
     except (TypeError, ValueError) as e:
         raise InputError(f"the result is not plain JSON ({e})",
                          "pass result.to_dict(), not the result object") from None
-    settings = dict(settings or {})
-    extras = dict(extras or {})
+    if settings is None:
+        inputs = result.get("inputs")
+        settings = inputs if isinstance(inputs, Mapping) else {}
     with _style():
-        page = _PAGES[kind](result, extras)
+        page = _PAGES[kind](result)
     created = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
-    doc = render_html(kind, result, page, settings=settings, title=title or KIND_TITLES[kind],
+    doc = render_html(kind, result, page, settings=dict(settings), title=title or KIND_TITLES[kind],
                       version=__version__, created=created)
     folder = Path(folder)
     check_report_folder(folder)

@@ -35,3 +35,17 @@ def jsonable(value: Any, digits: int | None = None) -> Any:
             return None
         return round(f, digits) if digits is not None else f
     return value
+
+
+def round_significant(x, digits: int = 4) -> np.ndarray:
+    """Round to ``digits`` significant figures (figure data in results: small JSON, no
+    visible change at figure resolution). NaN and inf pass through.
+
+    >>> round_significant([123456.0, 0.000123456, 0.0, float("nan")], 3).tolist()[:3]
+    [123000.0, 0.000123, 0.0]
+    """
+    a = np.asarray(x, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mag = np.where(np.isfinite(a) & (a != 0), np.floor(np.log10(np.abs(a))), 0.0)
+        scale = 10.0 ** (digits - 1 - mag)
+        return np.where(np.isfinite(a), np.round(a * scale) / scale, a)

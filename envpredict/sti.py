@@ -190,6 +190,7 @@ class StiResult:
     def to_dict(self) -> dict:
         return jsonable(
             {
+                "index": "sti",
                 "sti": round(self.sti, 4),
                 "rating": self.rating,
                 "subjective": self.subjective,

@@ -42,7 +42,7 @@ from . import standards as std
 from .audio import AudioFile, StreamCheck, audio_info, check_rate, resample, validate_signal
 from .bands import envelope_rate, intensity_envelopes
 from .exceptions import InputError
-from .results import jsonable
+from .results import jsonable, round_significant
 
 #: YIN runs at this rate (or the input rate if lower): 16 kHz keeps the 500 Hz period
 #: at 32 samples, ample with parabolic interpolation (judgement).
@@ -446,6 +446,9 @@ class InspectResult:
             "modulation_bands_hz": list(std.MODULATION_BANDS_HZ),
             "modulation_spectra": np.round(self.modulation_spectra, 4),
             "cautions": list(self.cautions),
+            "notes": [],
+            "figure_data": {k: (v if np.asarray(v).dtype == bool else round_significant(v, 5))
+                            for k, v in self.report_extras().items()},
         })
 
 

@@ -396,7 +396,7 @@ def test_cli_stipa_with_calibrator(stipa_wav, tmp_path, capsys):
                                "--json"], capsys)
     assert code == 0
     d = json.loads(stdout)
-    assert d["calibrated"] and d["calibration_source"] == "calibrator"
+    assert d["calibrated"] and d["inputs"]["calibration_source"] == "calibrator"
     assert d["calibration_db"] == pytest.approx(94.0 - 20 * np.log10(0.1 / np.sqrt(2)), abs=0.05)
 
 

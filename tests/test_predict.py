@@ -615,7 +615,7 @@ def test_cli_fitmap_sweep_predict(tmp_path, capsys, signals):
     assert code == 0, err
     s = json.loads(out)
     assert s["snr_db"] == [-18, -12, -6, 0, 6]
-    assert len(s["index"]) == len(s["predicted_percent"]) == 5
+    assert s["index"] == "stoi" and len(s["stoi"]) == len(s["predicted_percent"]) == 5
     assert [t["percent"] for t in s["targets"]] == [20, 50]
     assert s["srt_db"] == s["targets"][1]["snr_db"]
     code, out, err = run_cli(["sweep", str(cw), str(nw), "--snr", "-6:6:6", "--segments", "2"], capsys)

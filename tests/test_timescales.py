@@ -213,7 +213,7 @@ def test_cli_json(voiced_file, capsys):
     assert code == 0
     d = json.loads(out)
     assert abs(d["f0_median_hz"] - 180.0) / 180.0 < 0.02
-    assert d["input"] == str(voiced_file)
+    assert d["inputs"]["recording"] == str(voiced_file)
 
 
 def test_cli_text_and_excerpt(voiced_file, capsys):

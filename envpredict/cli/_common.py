@@ -25,14 +25,15 @@ def check_report(report: Path | None) -> None:
         check_report_folder(report)
 
 
-def write_report_if(report: Path | None, kind: str, d: dict, *, settings: dict, title: str | None = None,
-                    extras: dict | None = None, as_json: bool = False) -> None:
-    """Write the --report folder (figures + report.html) when one was asked for."""
+def write_report_if(report: Path | None, kind: str, d: dict, *, title: str | None = None,
+                    as_json: bool = False) -> None:
+    """Write the --report folder (figures + report.html) from the JSON result ``d``
+    (``to_dict()`` plus ``inputs``) when one was asked for."""
     if report is None:
         return
     from envpredict.report import write_report
 
-    path = write_report(kind, d, report, settings=settings, title=title, extras=extras)
+    path = write_report(kind, d, report, title=title)
     if not as_json:
         note(f"report written: {path}")
 

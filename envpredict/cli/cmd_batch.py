@@ -173,9 +173,8 @@ def compare_command(
     columns, rows = read_results(results)
     res = compare_conditions(rows, by=by, baseline=baseline, index=index, pair_on=pair_on, columns=columns)
     d = res.to_dict()
-    d["input"] = str(results)
+    d["inputs"] = {"results": str(results), "by": by, "baseline": baseline, "index": index,
+                   "pair_on": pair_on}
     write_report_if(report, "compare", d, as_json=as_json,
-                    settings={"results": str(results), "conditions column": by, "baseline": baseline,
-                              "index": d.get("index", index), "items matched on": pair_on or "default columns"},
                     title=f"{d.get('index', index)} by {by}, against {baseline}")
     emit(d, lambda: render_comparison(d), as_json, out)

@@ -168,7 +168,7 @@ def render_direct(d: dict) -> str:
         lines.append(f"  {r['name']}: {r['fs']} Hz, {r['duration_s']:.1f} s; test signal "
                      f"{r['signal_start_s']:.2f}-{r['signal_end_s']:.2f} s, analysed "
                      f"{r['analysed_start_s']:.2f}-{r['analysed_end_s']:.2f} s{mod}")
-    cal = (f"calibrated ({d['calibration_source']}, {d['calibration_db']:.1f} dB), level "
+    cal = (f"calibrated ({d['inputs']['calibration_source']}, {d['calibration_db']:.1f} dB), level "
            f"{d['level_dba']:.1f} dB(A)" if d["calibrated"] else "NOT calibrated (no auditory corrections)")
     lines += [
         f"Talker weights: {d['talker']}   {cal}",
@@ -239,12 +239,9 @@ def stipa_command(
         result = stipa_from_file(recording, channel, calibration_db=cal, noise_db=noise_levels, talker=talker,
                                  name=recording.name, progress=prog)
     d = result.to_dict()
-    d["input"] = str(recording)
-    d["calibration_source"] = source
-    write_report_if(report, "stipa", d, as_json=as_json, title=f"STIPA: {recording.name}",
-                    settings={"recording": str(recording), "channel": "only" if channel is None else channel,
-                              "calibration": source or "none (no auditory corrections)", "talker": talker,
-                              "added noise, dB SPL": noise or "none"})
+    d["inputs"] = {"recording": str(recording), "channel": channel, "calibration_source": source,
+                   "noise_db": None if noise_levels is None else [float(v) for v in noise_levels], "talker": talker}
+    write_report_if(report, "stipa", d, as_json=as_json, title=f"STIPA: {recording.name}")
     emit(d, lambda: render_direct(d), as_json, out)
 
 
@@ -296,10 +293,7 @@ def fullsti_command(
         result = full_sti_from_files(files, channel, calibration_db=cal, noise_db=noise_levels, talker=talker,
                                      progress=prog)
     d = result.to_dict()
-    d["input"] = [str(f) for f in files]
-    d["calibration_source"] = source
-    write_report_if(report, "stipa", d, as_json=as_json, title="Full STI from 14 recordings",
-                    settings={"recordings": f"{len(files)} files in {files[0].parent}",
-                              "calibration": source or "none (no auditory corrections)", "talker": talker,
-                              "added noise, dB SPL": noise or "none"})
+    d["inputs"] = {"recordings": [str(f) for f in files], "channel": channel, "calibration_source": source,
+                   "noise_db": None if noise_levels is None else [float(v) for v in noise_levels], "talker": talker}
+    write_report_if(report, "stipa", d, as_json=as_json, title="Full STI from 14 recordings")
     emit(d, lambda: render_direct(d), as_json, out)

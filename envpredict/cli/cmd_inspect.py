@@ -111,11 +111,7 @@ def inspect_command(
         result = inspect_file(audio_file, channel, start_s=start, duration_s=duration, f0_min_hz=f0_min,
                               f0_max_hz=f0_max, progress=prog)
     d = result.to_dict()
-    d["input"] = str(audio_file)
-    d["start_s"] = start
-    settings = {"input": str(audio_file), "channel": channel if channel is not None else "only channel",
-                "start, s": start, "duration, s": f"{result.duration_s:.2f}",
-                "F0 search range, Hz": f"{f0_min:g}-{f0_max:g}"}
-    write_report_if(report, "inspect", d, settings=settings, title=f"Three timescales of {audio_file.name}",
-                    extras=result.report_extras() if report is not None else None, as_json=as_json)
+    d["inputs"] = {"recording": str(audio_file), "channel": channel, "start_s": start, "duration_s": duration,
+                   "f0_min_hz": f0_min, "f0_max_hz": f0_max}
+    write_report_if(report, "inspect", d, title=f"Three timescales of {audio_file.name}", as_json=as_json)
     emit(d, lambda: render_inspect(d, str(audio_file)), as_json, out)

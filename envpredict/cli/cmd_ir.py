@@ -44,7 +44,7 @@ def render_ir(d: dict, source: str) -> str:
                               "C50 dB", "C80 dB", "D50", "range dB"]))
     lines.append("")
     lines.append("MTF used for the index (rows: octave bands; columns: modulation frequency, Hz)")
-    head = ["band Hz"] + [f"{f:g}" for f in d["modulation_hz"]]
+    head = ["band Hz"] + [f"{f:g}" for f in d["modulation_hz"][0]]
     lines.append(table([[f"{fc:g}"] + [f"{v:.2f}" for v in row] for fc, row in zip(d["bands_hz"], d["mtf"])], head))
     if dec["notes"]:
         lines.append("")
@@ -83,13 +83,8 @@ def ir_command(
         result = sti_from_ir(x, fs, noise_db=noise_levels, speech_level_dba=speech_level, talker=talker,
                              auditory=not no_auditory, progress=prog)
     d = result.to_dict()
-    d["input"] = str(ir_file)
-    write_report_if(report, "ir", d, as_json=as_json,
-                    settings={"impulse response": str(ir_file), "channel": "only" if channel is None else channel,
-                              "noise, dB SPL (125 Hz-8 kHz)": noise or "none",
-                              "speech level, dB(A)": speech_level, "talker": talker,
-                              "auditory corrections": "off" if no_auditory else "on"},
-                    title=f"STI and decay figures of {ir_file.name}",
-                    extras={"decay_curves_db": result.decay.curves_db,
-                            "decay_curve_rate_hz": result.decay.curve_rate_hz})
+    d["inputs"] = {"impulse_response": str(ir_file), "channel": channel,
+                   "noise_db": None if noise_levels is None else [float(v) for v in noise_levels],
+                   "speech_level_dba": speech_level, "talker": talker, "auditory_corrections": not no_auditory}
+    write_report_if(report, "ir", d, as_json=as_json, title=f"STI and decay figures of {ir_file.name}")
     emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)

@@ -36,17 +36,17 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
     ]
     third = d["bands"]["third_octave"]
     rows = [[f"{fc:g}", fmt(s, ".3f"), fmt(e, ".3f")]
-            for fc, s, e in zip(third["centre_hz"], third["stoi"], third["estoi"])]
+            for fc, s, e in zip(third["bands_hz"], third["stoi"], third["estoi"])]
     lines.append(table(rows, ["band Hz", "STOI", "ESTOI"]))
     octv = d["bands"]["octave"]
     if octv is not None:
         lines.append("")
         lines.append("Octave bands, speech-based STI: normalised covariance (r) and envelope regression (m)")
-        reg_snr = octv.get("regression_snr_db") or [None] * len(octv["centre_hz"])
-        reg_ti = octv.get("regression_ti") or [None] * len(octv["centre_hz"])
+        reg_snr = octv.get("regression_snr_db") or [None] * len(octv["bands_hz"])
+        reg_ti = octv.get("regression_ti") or [None] * len(octv["bands_hz"])
         rows = [[f"{fc:g}" + (" *" if p else ""), fmt(r, ".3f"), fmt(s, ".1f"), fmt(t, ".3f"), fmt(rs, ".1f"),
                  fmt(rt, ".3f")]
-                for fc, r, s, t, p, rs, rt in zip(octv["centre_hz"], octv["correlation"], octv["apparent_snr_db"],
+                for fc, r, s, t, p, rs, rt in zip(octv["bands_hz"], octv["correlation"], octv["apparent_snr_db"],
                                                   octv["ti"], octv["partial"], reg_snr, reg_ti)]
         lines.append(table(rows, ["band Hz", "r", "app. SNR dB", "TI", "regr. SNR dB", "regr. TI"]))
         if any(octv["partial"]):
@@ -92,13 +92,7 @@ def pair_command(
         result = pair_from_files(clean, degraded, channel=channel, align=not no_align, max_delay_s=max_delay,
                                  chunk_s=chunk, progress=prog)
     d = result.to_dict()
-    d["clean"] = str(clean)
-    d["degraded"] = str(degraded)
-    c = result.correlation
-    write_report_if(report, "pair", d, as_json=as_json,
-                    settings={"clean": str(clean), "degraded": str(degraded),
-                              "alignment": "off" if no_align else f"on, up to ±{max_delay:g} s"},
-                    title=f"{degraded.name} against {clean.name}",
-                    extras={"band_segment_correlation": c.stoi_band_segment, "band_centres_hz": c.band_centres_hz,
-                            "segment_end_s": c.segment_end_s})
+    d["inputs"] = {"clean": str(clean), "degraded": str(degraded), "channel": channel, "align": not no_align,
+                   "max_delay_s": max_delay}
+    write_report_if(report, "pair", d, as_json=as_json, title=f"{degraded.name} against {clean.name}")
     emit(d, lambda: render_pair(d, str(clean), str(degraded)), as_json, out)

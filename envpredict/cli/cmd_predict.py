@@ -182,16 +182,16 @@ def fitmap_command(
 
 def render_sweep(d: dict) -> str:
     lines = [
-        (f"SNR sweep: {d['index_name']} of {d['duration_s']:.2f} s of speech"
+        (f"SNR sweep: {d['index']} of {d['duration_s']:.2f} s of speech"
         f"{' through the impulse response' if d['reverberant'] else ''}, {d['n_segments']} noise segment(s) per SNR"),
         f"Level convention: {d['level_convention_text']}",
         "",
     ]
     mapped = d["predicted_percent"] is not None
-    head = ["SNR dB", d["index_name"], "sd"] + (["predicted %"] if mapped else [])
+    head = ["SNR dB", d["index"], "sd"] + (["predicted %"] if mapped else [])
     rows = []
     for i, s in enumerate(d["snr_db"]):
-        r = [f"{s:g}", fmt(d["index"][i], ".3f"), fmt(d["index_sd"][i], ".3f")]
+        r = [f"{s:g}", fmt(d[d["index"]][i], ".3f"), fmt(d["index_sd"][i], ".3f")]
         if mapped:
             r.append(fmt(d["predicted_percent"][i], ".1f"))
         rows.append(r)
@@ -203,9 +203,9 @@ def render_sweep(d: dict) -> str:
         for t in d["targets"]:
             ci = "—" if t["ci_low"] is None else f"{t['ci_low']:.1f} .. {t['ci_high']:.1f}"
             mci = "—" if t["map_ci_low"] is None else f"{t['map_ci_low']:.1f} .. {t['map_ci_high']:.1f}"
-            trows.append([f"{t['percent']:g} %", fmt(t["index"], ".3f"), fmt(t["snr_db"], ".1f"), ci, mci,
+            trows.append([f"{t['percent']:g} %", fmt(t["index_value"], ".3f"), fmt(t["snr_db"], ".1f"), ci, mci,
                           fmt(t["slope_percent_per_db"], ".1f"), t["note"] or ""])
-        lines.append(table(trows, ["target", d["index_name"], "SNR dB", "noise segments", "mapping",
+        lines.append(table(trows, ["target", d["index"], "SNR dB", "noise segments", "mapping",
                                    "slope %/dB", ""]))
         if d["srt_db"] is not None:
             lines += ["", (f"Predicted SRT (50 %): {d['srt_db']:.1f} dB SNR, slope "
@@ -286,11 +286,9 @@ def sweep_command(
                         n_segments=segments, level=level, progress=prog)
     d = res.to_dict()
     d["inputs"] = {"clean": str(clean), "noise": str(noise), "ir": None if ir is None else str(ir),
-                   "map": None if map_file is None else str(map_file)}
+                   "map": None if map_file is None else str(map_file), "index": name, "snr": snr,
+                   "segments": segments, "level": level}
     write_report_if(report, "sweep", d, as_json=as_json,
-                    settings={"clean speech": str(clean), "noise": str(noise), "impulse response": str(ir or "none"),
-                              "mapping": str(map_file or "none"), "index": name, "SNR range, dB": snr,
-                              "noise segments": segments, "level convention": level},
                     title=f"Predicted scores against SNR: {clean.name} in {noise.name}")
     emit(d, lambda: render_sweep(d), as_json, out)
 
