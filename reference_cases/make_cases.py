@@ -70,21 +70,23 @@ TOL_STI = 0.02  # issue requirement, cf. IEC 60268-16 measurement repeatability 
 #: STIPA table IEC 60268-16:2011 Table B.1, typed again here: (f1, f2) per octave band
 STIPA_PAIRS = [[1.6, 8.0], [1.0, 5.0], [0.63, 3.15], [2.0, 10.0], [1.25, 6.25], [0.8, 4.0], [2.5, 12.5]]
 BANDS = [125, 250, 500, 1000, 2000, 4000, 8000]
-#: Tolerances of the direct method, measured with measure_tolerances.py (8 seeds of
-#: each recipe, 30 s STIPA, 12 s full-STI signals at 24 kHz; largest |STI - formula| seen):
-#: ideal channel 0.024 (one-sided: band filters and envelope noise only lower m near 1);
-#: noise only 0.005 (0 dB) and 0.011 (-6 dB); exponential decays 0.022-0.032 (the MTF of
-#: one noise decay scatters around the ensemble formula, as for the IR cases).
-TOL_STIPA = {"ideal": 0.03, "noise": 0.015, "decay": 0.04}
-#: full STI (6 seeds): ideal channel 0.005, noise only 0.0015, decays 0.015
-TOL_FULLSTI = {"ideal": 0.01, "noise": 0.005, "decay": 0.02}
-#: speech-based STI by envelope regression in steady noise (8 seeds, 10 s): up to 0.022
-TOL_SSTI = 0.03
-#: STOI/ESTOI: at 10 kHz envpredict and pystoi do the same arithmetic (seen: 3e-15);
-#: at 16 kHz both resample to 10 kHz with different filters (seen over 10 seeds: see
-#: measure_tolerances.py; STOI up to 2e-5, ESTOI up to 1.5e-4)
+#: Tolerances, measured with measure_tolerances.py: the same recipe with other seeds (signal,
+#: room response, noise); the largest |envpredict - expected| seen, times about 1.2, rounded up.
+#: STIPA (30 s at 24 kHz, 16 seeds): ideal channel 0.025 (one-sided: band filters and envelope
+#: noise only lower m near 1); noise only 0.009 (0 dB) and 0.020 (-6 dB); exponential decays
+#: 0.017-0.043 (the MTF of one noise decay scatters around the ensemble formula, as for the IR
+#: cases, and the 125 Hz carrier is narrow).
+TOL_STIPA = {"ideal": 0.03, "noise": 0.025, "decay": 0.05}
+#: full STI (14 x 12 s at 24 kHz, 12 seeds): ideal channel 0.005, noise only 0.0024, decay 0.020
+TOL_FULLSTI = {"ideal": 0.01, "noise": 0.005, "decay": 0.03}
+#: speech-based STI by envelope regression in steady noise (10 s at 24 kHz, 16 seeds): up to
+#: 0.044 (1.3 dB of band SNR; the README's limits state "within 1.5 dB")
+TOL_SSTI = 0.05
+#: STOI/ESTOI: at 10 kHz envpredict and pystoi do the same arithmetic (seen: 7e-16); at 16 kHz
+#: both resample to 10 kHz with different filters (12 seeds: STOI up to 2.4e-5, ESTOI up to
+#: 4.9e-5; ESTOI 1.5e-4 seen on a white-noise pair while the recipe was written)
 TOL_STOI_10K = 1e-9
-TOL_STOI_16K = {"stoi": 1e-4, "estoi": 5e-4}
+TOL_STOI_16K = {"stoi": 1e-4, "estoi": 2e-4}
 #: mapping fit: both maximise the same binomial likelihood (seen: 2e-9)
 TOL_MAPPING = 1e-6
 
