@@ -227,7 +227,7 @@ def _ssti_quantities(case: dict, folder: Path | None) -> dict:
 
     clean, degraded, fs = _recipes().speechlike(case["input"])
     r = envpredict.pair_indices(clean, degraded, fs, align=False)
-    return {"ssti_regression": r.ssti_regression, "ssti_ncm": r.ssti}
+    return {"ssti_regression": r.ssti_regression}
 
 
 def _mapping_quantities(case: dict, folder: Path | None) -> dict:
