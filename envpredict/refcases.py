@@ -7,21 +7,32 @@ and :func:`run_case`.
 Case file format
 ----------------
 ``id``          short unique name
+``method``      what the case checks: ``"ir"`` (STI and decay figures from an impulse
+                response), ``"stipa"``, ``"fullsti"`` (direct method), ``"stoi"``,
+                ``"estoi"``, ``"ssti"`` (speech-based STI of a pair) or ``"mapping"``
+                (score-mapping fit); a file without it is an ``"ir"`` case
 ``title``       one line for people
 ``source``      where the expected values come from (formula, standard, library)
-``input``       how to get the impulse response:
-                ``{"synth": "exponential_decay", "t60_s", "fs", "seconds", "seed",
-                "amplitude", "noise_floor_db"(optional)}`` -- Gaussian noise times
-                exp(-6.91 t / T60) (energy decays 60 dB in T60), optional
-                stationary noise floor in dB re the initial envelope level; or
-                ``{"synth": "impulse", "fs", "seconds"}`` (a unit impulse: an ideal channel);
-                or ``{"file": "name.wav"}``.
-``settings``    ``noise_db`` (7 values or null), ``speech_level_dba``, ``talker``,
-                ``auditory``
-``expected``    per quantity ``{"value": number or 7-list, "abs_tol" or "rel_tol"}``;
-                quantities: ``sti``, ``rating``, ``mti``, ``t30``, ``t20``, ``edt``,
+``input``       what to analyse:
+
+                * ``ir``: ``{"synth": "exponential_decay", "t60_s", "fs", "seconds", "seed",
+                  "amplitude", "noise_floor_db"(optional)}`` -- Gaussian noise times
+                  exp(-6.91 t / T60) (energy decays 60 dB in T60), optional
+                  stationary noise floor in dB re the initial envelope level; or
+                  ``{"synth": "impulse", "fs", "seconds"}`` (a unit impulse: an ideal channel);
+                  or ``{"file": "name.wav"}``;
+                * ``stipa``, ``fullsti``, ``stoi``, ``estoi``, ``ssti``: a signal recipe
+                  (``reference_cases/recipes.py``: plain numpy/scipy, not the product's
+                  generator ``envpredict.signals``);
+                * ``mapping``: the data rows ``{"index", "correct", "trials", "shape"}``.
+``settings``    ``ir``: ``noise_db`` (7 values or null), ``speech_level_dba``, ``talker``,
+                ``auditory``; ``stipa``/``fullsti``: ``talker``
+``expected``    per quantity ``{"value": number or list, "abs_tol" or "rel_tol"}``;
+                ``ir`` quantities: ``sti``, ``rating``, ``mti``, ``t30``, ``t20``, ``edt``,
                 ``c50``, ``c80``, ``d50``, ``mtf_500_1k`` (mean MTF of the 500 Hz and 1 kHz
-                bands at the 14 frequencies, before noise corrections).
+                bands at the 14 frequencies, before noise corrections); ``stipa``,
+                ``fullsti``: ``sti``; ``stoi``: ``stoi``; ``estoi``: ``estoi``; ``ssti``:
+                ``ssti_regression``; ``mapping``: ``a``, ``b``, ``se_a``, ``se_b``.
 """
 
 from __future__ import annotations
@@ -47,6 +58,7 @@ class Check:
 @dataclass(frozen=True)
 class CaseOutcome:
     id: str
+    method: str
     title: str
     source: str
     passed: bool
@@ -57,7 +69,7 @@ class CaseOutcome:
         from .results import jsonable
 
         return jsonable({
-            "id": self.id, "title": self.title, "source": self.source, "passed": self.passed,
+            "id": self.id, "method": self.method, "title": self.title, "source": self.source, "passed": self.passed,
             "error": self.error,
             "checks": [{"quantity": c.quantity, "expected": c.expected, "got": c.got,
                         "tolerance": c.tolerance, "passed": c.passed} for c in self.checks],
@@ -129,49 +141,170 @@ def _compare(name: str, exp: dict, got) -> Check:
     ok_num = np.isfinite(g[num]) & (np.abs(g[num] - e[num]) <= limit[num] + 1e-12)
     ok_nan = ~np.isfinite(g[must_nan])
     ok = bool(np.all(ok_num) and np.all(ok_nan))
-    exp_show = [None if v is None else ("not computed" if isinstance(v, str) else round(float(v), 4)) for v in vals]
-    got_show = [None if not np.isfinite(x) else round(float(x), 4) for x in g]
+    # show enough digits to see the tolerance (4 for the usual ones, 11 for 1e-9)
+    positive = limit[num][limit[num] > 0]
+    digits = int(max(4, np.ceil(-np.log10(np.min(positive))) + 2)) if positive.size else 4
+    exp_show = [None if v is None else ("not computed" if isinstance(v, str) else round(float(v), digits))
+                for v in vals]
+    got_show = [None if not np.isfinite(x) else round(float(x), digits) for x in g]
     if not isinstance(value, list):
         exp_show, got_show = exp_show[0], got_show[0]
     return Check(name, exp_show, got_show, tol_text, ok)
 
 
-def run_case(case: dict) -> CaseOutcome:
-    """Run one case and compare every expected quantity."""
+def _ir_quantities(case: dict, folder: Path | None) -> dict:
+    import envpredict
     from . import standards as std
-    from .decay import reverberation_time
-    from .indirect import sti_from_ir
 
-    folder = Path(case["_path"]).parent if "_path" in case else None
-    try:
-        ir, fs = synthesize(case["input"], folder)
-        s = case.get("settings", {})
-        r = sti_from_ir(
-            ir, fs, noise_db=s.get("noise_db"), speech_level_dba=s.get("speech_level_dba", 60.0),
-            talker=s.get("talker", "male"), auditory=s.get("auditory", True),
-        )
-    except Exception as e:  # a case that cannot run is a failed case, with the reason
-        return CaseOutcome(case["id"], case.get("title", ""), case.get("source", ""), False, (), str(e))
-    got = {
+    ir, fs = synthesize(case["input"], folder)
+    s = case.get("settings", {})
+    r = envpredict.sti_from_ir(
+        ir, fs, noise_db=s.get("noise_db"), speech_level_dba=s.get("speech_level_dba", 60.0),
+        talker=s.get("talker", "male"), auditory=s.get("auditory", True),
+    )
+    return {
         "sti": r.sti.sti,
         "rating": r.sti.rating,
         "mti": r.sti.mti,
         "t30": r.decay.t30, "t20": r.decay.t20, "edt": r.decay.edt,
         "c50": r.decay.c50, "c80": r.decay.c80, "d50": r.decay.d50,
-        "t30_broadband": lambda: reverberation_time(ir, fs, "t30"),
-        "t20_broadband": lambda: reverberation_time(ir, fs, "t20"),
+        "t30_broadband": lambda: envpredict.reverberation_time(ir, fs, "t30"),
+        "t20_broadband": lambda: envpredict.reverberation_time(ir, fs, "t20"),
         "mtf_500_1k": r.sti.mtf_measured[[std.OCTAVE_BANDS_HZ.index(500.0),
                                           std.OCTAVE_BANDS_HZ.index(1000.0)]].mean(axis=0),
     }
-    checks = []
-    for name, exp in case["expected"].items():
-        if name not in got:
-            checks.append(Check(name, exp.get("value"), None, "", False))
-            continue
-        value = got[name]() if callable(got[name]) else got[name]
-        checks.append(_compare(name, exp, value))
-    return CaseOutcome(case["id"], case.get("title", ""), case.get("source", ""),
-                       all(c.passed for c in checks) and bool(checks), tuple(checks))
+
+
+def _recipes():
+    """The case library's own signal synthesiser (``reference_cases/recipes.py``)."""
+    import importlib.util
+
+    from ._data import reference_dir as package_reference_dir
+
+    try:
+        from envpredict.reference_cases import recipes  # installed package data
+        return recipes
+    except ImportError:  # pragma: no cover - a source tree without the package mapping
+        path = package_reference_dir() / "recipes.py"
+        spec = importlib.util.spec_from_file_location("envpredict_reference_recipes", path)
+        mod = importlib.util.module_from_spec(spec)
+        spec.loader.exec_module(mod)
+        return mod
+
+
+def _stipa_quantities(case: dict, folder: Path | None) -> dict:
+    import envpredict
+
+    x, fs = _recipes().stipa(case["input"])
+    r = envpredict.stipa_from_recording(x, fs, talker=case.get("settings", {}).get("talker", "male"))
+    return {"sti": r.sti.sti}
+
+
+def _fullsti_quantities(case: dict, folder: Path | None) -> dict:
+    import envpredict
+
+    recs = _recipes().full_sti(case["input"])
+    r = envpredict.full_sti_from_recordings(recs, talker=case.get("settings", {}).get("talker", "male"))
+    return {"sti": r.sti.sti}
+
+
+def _stoi_quantities(case: dict, folder: Path | None) -> dict:
+    import envpredict
+
+    clean, degraded, fs = _recipes().speechlike(case["input"])
+    return {"stoi": lambda: envpredict.stoi(clean, degraded, fs)}
+
+
+def _estoi_quantities(case: dict, folder: Path | None) -> dict:
+    import envpredict
+
+    clean, degraded, fs = _recipes().speechlike(case["input"])
+    return {"estoi": lambda: envpredict.estoi(clean, degraded, fs)}
+
+
+def _ssti_quantities(case: dict, folder: Path | None) -> dict:
+    import envpredict
+
+    clean, degraded, fs = _recipes().speechlike(case["input"])
+    r = envpredict.pair_indices(clean, degraded, fs, align=False)
+    return {"ssti_regression": r.ssti_regression}
+
+
+def _mapping_quantities(case: dict, folder: Path | None) -> dict:
+    import envpredict
+
+    rows = case["input"]
+    m = envpredict.fit_mapping(rows["index"], rows["correct"], rows["trials"], shape=rows.get("shape", "logistic"))
+    se = np.sqrt(np.diag(np.asarray(m.cov, dtype=float)))
+    return {"a": m.a, "b": m.b, "se_a": se[0], "se_b": se[1]}
+
+
+#: method name -> function returning the computed quantities of a case (a value, or a
+#: callable for a quantity that is computed only when a case asks for it)
+METHODS = {
+    "ir": _ir_quantities,
+    "stipa": _stipa_quantities,
+    "fullsti": _fullsti_quantities,
+    "stoi": _stoi_quantities,
+    "estoi": _estoi_quantities,
+    "ssti": _ssti_quantities,
+    "mapping": _mapping_quantities,
+}
+
+
+def run_case(case: dict) -> CaseOutcome:
+    """Run one case and compare every expected quantity."""
+    folder = Path(case["_path"]).parent if "_path" in case else None
+    method = case.get("method", "ir")
+    head = (case["id"], method, case.get("title", ""), case.get("source", ""))
+    try:
+        if method not in METHODS:
+            raise ValueError(f"unknown method '{method}' (known: {', '.join(METHODS)})")
+        got = METHODS[method](case, folder)
+        checks = []
+        for name, exp in case["expected"].items():
+            if name not in got:
+                checks.append(Check(name, exp.get("value"), None, "", False))
+                continue
+            value = got[name]() if callable(got[name]) else got[name]
+            checks.append(_compare(name, exp, value))
+    except Exception as e:  # a case that cannot run is a failed case, with the reason
+        return CaseOutcome(*head, False, (), str(e))
+    return CaseOutcome(*head, all(c.passed for c in checks) and bool(checks), tuple(checks))
+
+
+def select_cases(id_contains: str | None = None, method: str | None = None,
+                 folder: Path | None = None) -> list[dict]:
+    """The cases of the library whose id contains ``id_contains`` and whose method is ``method``.
+
+    Raises
+    ------
+    InputError
+        An unknown method, or no case left.
+    """
+    from .exceptions import InputError
+
+    cases = load_cases(folder)
+    if method:
+        if method not in METHODS:
+            raise InputError(f"unknown method '{method}'", f"give one of {', '.join(METHODS)}")
+        cases = [c for c in cases if c.get("method", "ir") == method]
+    if id_contains:
+        cases = [c for c in cases if id_contains in c["id"]]
+    if not cases:
+        raise InputError("no reference case matches " + " and ".join(
+            t for t in (f"method '{method}'" if method else "", f"id containing '{id_contains}'" if id_contains
+                        else "") if t), "run 'envpredict check' to list them")
+    return cases
+
+
+def summary(outcomes: list[CaseOutcome]) -> dict:
+    """Passed and failed counts, in all and per method (methods in the order of :data:`METHODS`)."""
+    per = {m: {"passed": 0, "failed": 0} for m in METHODS if any(o.method == m for o in outcomes)}
+    for o in outcomes:
+        per.setdefault(o.method, {"passed": 0, "failed": 0})["passed" if o.passed else "failed"] += 1
+    n_fail = sum(not o.passed for o in outcomes)
+    return {"passed": len(outcomes) - n_fail, "failed": n_fail, "methods": per}
 
 
 def run_all(folder: Path | None = None, progress=None) -> list[CaseOutcome]:

@@ -16,17 +16,30 @@ Formulas used (sources in each case file):
   sum beta sqrt(MTI_k MTI_k+1), weights of Table A.1).
 * C50, D50 of an exponential decay (ISO 3382-1:2009 Annex A definitions applied to
   E(t) ~ exp(-13.8 t / T)): C = 10 log10(exp(13.8 t_e / T) - 1), D50 = 1 - exp(-13.8 * 0.05 / T).
+* STIPA (IEC 60268-16:2011 Annex B): the same formulas at the two modulation frequencies
+  of each band (Table B.1), MTI_k = mean of the two TI.
+* STOI, ESTOI: pystoi (Taal et al. 2011; Jensen & Taal 2016), its version recorded.
+* Speech-based STI in steady noise at a uniform band SNR: STI = (SNR + 15)/30.
+* Binomial GLM (logit and probit links) by statsmodels, its version recorded.
+
+Signals of the direct-method and pair cases come from ``recipes.py`` beside this file
+(plain numpy/scipy; the same code ``envpredict check`` uses to rebuild them). The
+tolerances were measured with ``measure_tolerances.py`` (which does use envpredict):
+the spread over other seeds of the same recipe, see the constants below.
 """
 
 from __future__ import annotations
 
 import json
 import math
+import sys
 from pathlib import Path
 
 import numpy as np
 
 HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+import recipes  # noqa: E402  (the case library's own synthesiser, beside this file)
 
 # IEC 60268-16:2011 tables, typed again here on purpose (independent of envpredict.standards)
 F = np.array([0.63, 0.8, 1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0, 10.0, 12.5])
@@ -53,6 +66,29 @@ SRC_DECAYTIME = "exact T60 of the synthesised exponential decay (ISO 3382-1:2009
 #: The MTF of one noise decay scatters by up to about 0.1 around the ensemble formula at
 #: the higher modulation frequencies (random fine structure of h^2), hence 0.10 there.
 TOL_STI = 0.02  # issue requirement, cf. IEC 60268-16 measurement repeatability (~0.02-0.03)
+
+#: STIPA table IEC 60268-16:2011 Table B.1, typed again here: (f1, f2) per octave band
+STIPA_PAIRS = [[1.6, 8.0], [1.0, 5.0], [0.63, 3.15], [2.0, 10.0], [1.25, 6.25], [0.8, 4.0], [2.5, 12.5]]
+BANDS = [125, 250, 500, 1000, 2000, 4000, 8000]
+#: Tolerances, measured with measure_tolerances.py: the same recipe with other seeds (signal,
+#: room response, noise); the largest |envpredict - expected| seen, times about 1.2, rounded up.
+#: STIPA (30 s at 24 kHz, 16 seeds): ideal channel 0.025 (one-sided: band filters and envelope
+#: noise only lower m near 1); noise only 0.009 (0 dB) and 0.020 (-6 dB); exponential decays
+#: 0.017-0.043 (the MTF of one noise decay scatters around the ensemble formula, as for the IR
+#: cases, and the 125 Hz carrier is narrow).
+TOL_STIPA = {"ideal": 0.03, "noise": 0.025, "decay": 0.05}
+#: full STI (14 x 12 s at 24 kHz, 12 seeds): ideal channel 0.005, noise only 0.0024, decay 0.020
+TOL_FULLSTI = {"ideal": 0.01, "noise": 0.005, "decay": 0.03}
+#: speech-based STI by envelope regression in steady noise (10 s at 24 kHz, 16 seeds): up to
+#: 0.044 (1.3 dB of band SNR; the README's limits state "within 1.5 dB")
+TOL_SSTI = 0.05
+#: STOI/ESTOI: at 10 kHz envpredict and pystoi do the same arithmetic (seen: 7e-16); at 16 kHz
+#: both resample to 10 kHz with different filters (12 seeds: STOI up to 2.4e-5, ESTOI up to
+#: 4.9e-5; ESTOI 1.5e-4 seen on a white-noise pair while the recipe was written)
+TOL_STOI_10K = 1e-9
+TOL_STOI_16K = {"stoi": 1e-4, "estoi": 2e-4}
+#: mapping fit: both maximise the same binomial likelihood (seen: 2e-9)
+TOL_MAPPING = 1e-6
 
 
 def sti_of(mti, talker="male"):
@@ -95,6 +131,7 @@ def decay_input(T, seed, fs=48000, noise_floor_db=None, seconds=None):
 
 
 def write(case):
+    case = {"id": case["id"], "method": case.get("method", "ir"), **case}
     path = HERE / f"{case['id']}.json"
     path.write_text(json.dumps(case, indent=2) + "\n", encoding="utf-8")
 
@@ -231,6 +268,10 @@ def main():
         "expected": {"t30": {"value": [None, None, None, 1.2, 1.2, 1.2, 1.2], "rel_tol": 0.08}},
     })
 
+    direct_method_cases()
+    pair_cases()
+    mapping_cases()
+
     # 7. a shoebox room simulated by pyroomacoustics' image method
     try:
         import pyroomacoustics as pra
@@ -264,6 +305,157 @@ def main():
         "expected": {"t30_broadband": {"value": round(t30, 4), "rel_tol": 0.05},
                      "t20_broadband": {"value": round(t20, 4), "rel_tol": 0.05}},
     })
+
+
+SRC_STIPA = ("IEC 60268-16:2011 Annex B (STIPA signal: half-octave noise carriers at the male speech spectrum, "
+             "Table A.2; intensity 1 + 0.55 (sin 2 pi f1 t - sin 2 pi f2 t), frequencies of Table B.1), "
+             "signal built by reference_cases/recipes.py")
+SRC_FULLSTI = ("IEC 60268-16:2011 6.1 (full STI: 14 signals, all bands modulated at one F, depth 1), "
+               "signal built by reference_cases/recipes.py")
+
+
+def channel_text(T, snr):
+    parts = []
+    if T:
+        parts.append(f"exponential decay T = {T} s")
+    if snr is not None:
+        parts.append(f"stationary noise at {snr:+.0f} dB band SNR")
+    return ", ".join(parts) if parts else "ideal channel"
+
+
+def channel_id(T, snr):
+    return ("" if not T else f"_T{T:.1f}s") + ("" if snr is None else f"_snr{snr:+.0f}dB") or "_ideal"
+
+
+def m_channel(freqs, T, snr):
+    """MTF of the channel at ``freqs``: decay formula times the noise factor."""
+    f = np.asarray(freqs, dtype=float)
+    m = 1.0 / np.sqrt(1.0 + (2 * np.pi * f * T / 13.8) ** 2) if T else np.ones(f.shape)
+    return m / (1 + 10 ** (-snr / 10)) if snr is not None else m
+
+
+def direct_method_cases():
+    base = {"fs": 24000, "bands_hz": BANDS, "band_levels_db": SPECTRUM["male"], "carrier_octaves": 0.5}
+    for i, (T, snr) in enumerate([(None, None), (None, 0.0), (None, -6.0), (0.5, None), (1.0, None),
+                                  (1.0, 3.0)]):
+        kind = "decay" if T else ("noise" if snr is not None else "ideal")
+        mti = [float(ti_of(m_channel(pair, T, snr)).mean()) for pair in STIPA_PAIRS]
+        src = SRC_STIPA + "; " + (SRC_DECAY + "; " if T else "") + (SRC_NOISE if snr is not None else
+                                                                     "index per IEC 60268-16:2011 Annex A")
+        write({
+            "id": "stipa" + channel_id(T, snr),
+            "method": "stipa",
+            "title": f"STIPA signal (30 s, 24 kHz), channel: {channel_text(T, snr)} (no calibration: no auditory "
+                     "corrections)",
+            "source": src,
+            "input": {"signal": "stipa", **base, "seconds": 30.0, "seed": 100 + i, "depth": 0.55,
+                      "modulation_hz": STIPA_PAIRS,
+                      "channel": {"t60_s": T, "ir_seed": 200 + i, "snr_db": snr, "noise_seed": 300 + i}},
+            "settings": {"talker": "male"},
+            "expected": {"sti": {"value": round(sti_of(mti), 4), "abs_tol": TOL_STIPA[kind]}},
+        })
+    for i, (T, snr) in enumerate([(None, None), (None, 0.0), (1.0, 3.0)]):
+        kind = "decay" if T else ("noise" if snr is not None else "ideal")
+        mti = [float(ti_of(m_channel(F, T, snr)).mean())] * 7
+        src = SRC_FULLSTI + "; " + (SRC_DECAY + "; " if T else "") + (SRC_NOISE if snr is not None else
+                                                                       "index per IEC 60268-16:2011 Annex A")
+        write({
+            "id": "fullsti" + channel_id(T, snr),
+            "method": "fullsti",
+            "title": f"Full-STI signal set (14 x 12 s, 24 kHz), channel: {channel_text(T, snr)} (no calibration)",
+            "source": src,
+            "input": {"signal": "fullsti", **base, "seconds": 12.0, "seed": 400 + 1000 * i, "depth": 1.0,
+                      "modulation_hz": F.tolist(),
+                      "channel": {"t60_s": T, "ir_seed": 500 + i, "snr_db": snr, "noise_seed": 600 + 1000 * i}},
+            "settings": {"talker": "male"},
+            "expected": {"sti": {"value": round(sti_of(mti), 4), "abs_tol": TOL_FULLSTI[kind]}},
+        })
+
+
+def speech_input(fs, seed, kind, snr, gate_hz=None, seconds=4.0):
+    noise = {"kind": kind, "snr_db": snr, "seed": seed + 1}
+    if gate_hz:
+        noise["gate_hz"] = gate_hz
+    return {"signal": "speechlike", "fs": fs, "seconds": seconds, "seed": seed, "f0_hz": 120.0,
+            "top_hz": min(0.45 * fs, 11000.0), "syllable_hz": 4.0, "pause_share": 0.2, "noise": noise}
+
+
+def pair_cases():
+    try:
+        import pystoi
+        from pystoi import stoi
+    except ImportError:
+        print("pystoi not installed: STOI/ESTOI cases not written")
+    else:
+        noise_text = {"speech_shaped": "speech-shaped noise", "white": "white noise"}
+        for method, fs, kind, snr, gate, seed in [
+            ("stoi", 10000, "speech_shaped", -3.0, None, 700), ("estoi", 10000, "speech_shaped", -5.0, 8.0, 710),
+            ("stoi", 16000, "white", 0.0, None, 720), ("estoi", 16000, "speech_shaped", -3.0, None, 730),
+        ]:
+            spec = speech_input(fs, seed, kind, snr, gate)
+            clean, degraded, _ = recipes.speechlike(spec)
+            value = float(stoi(clean, degraded, fs, extended=(method == "estoi")))
+            tol = TOL_STOI_10K if fs == 10000 else TOL_STOI_16K[method]
+            masker = noise_text[kind] + (f" switched at {gate:g} Hz" if gate else "")
+            write({
+                "id": f"{method}_{fs // 1000}k_{kind}{snr:+.0f}dB" + (f"_gated{gate:g}Hz" if gate else ""),
+                "method": method,
+                "title": f"{method.upper()} of a speech-like signal (4 s, {fs // 1000} kHz) in {masker} "
+                         f"at {snr:+.0f} dB SNR",
+                "source": (f"pystoi {pystoi.__version__} (" + ("Jensen & Taal 2016, IEEE/ACM TASLP 24(11)"
+                           if method == "estoi" else "Taal et al. 2011, IEEE TASLP 19(7)")
+                           + ") on the signal built by reference_cases/recipes.py"),
+                "input": spec,
+                "expected": {method: {"value": round(value, 12), "abs_tol": tol}},
+            })
+    for snr in (-6.0, 0.0, 6.0):
+        write({
+            "id": f"ssti_speech_shaped{snr:+.0f}dB",
+            "method": "ssti",
+            "title": f"Speech-based STI (envelope regression) of a speech-like signal (10 s, 24 kHz) in steady "
+                     f"speech-shaped noise at {snr:+.0f} dB in every band",
+            "source": ("Houtgast & Steeneken (1973); IEC 60268-16:2011 A.2: steady noise at band SNR gives "
+                       "m = 1/(1+10^(-SNR/10)), TI = (SNR+15)/30, STI = (SNR+15)/30 for a uniform SNR; "
+                       "envelope regression per Ludvigsen et al. (1990), Acta Otolaryngol. Suppl. 469. "
+                       "The normalised-covariance index (ssti) is not checked: it ignores the steady offset "
+                       "the noise adds (README, limits)"),
+            "input": speech_input(24000, 800 + int(snr), "speech_shaped", snr, seconds=10.0),
+            "expected": {"ssti_regression": {"value": round((snr + 15) / 30, 4), "abs_tol": TOL_SSTI}},
+        })
+
+
+def mapping_cases():
+    try:
+        import statsmodels
+        import statsmodels.api as sm
+    except ImportError:
+        print("statsmodels not installed: mapping cases not written")
+        return
+    rng = np.random.default_rng(900)
+    x = np.round(np.linspace(0.3, 0.8, 8), 3)
+    trials = np.full(x.size, 40)
+    for shape, link, a0, b0 in (("logistic", sm.families.links.Logit(), -6.0, 12.0),
+                                ("normal", sm.families.links.Probit(), -3.6, 7.2)):
+        eta = a0 + b0 * x
+        p = 1 / (1 + np.exp(-eta)) if shape == "logistic" else 0.5 * (1 + np.vectorize(math.erf)(eta / math.sqrt(2)))
+        k = rng.binomial(trials, p)
+        model = sm.GLM(np.column_stack([k, trials - k]), sm.add_constant(x), family=sm.families.Binomial(link=link))
+        # Newton's method: covariance from the observed information, as envpredict states for
+        # its fit (for the logit link it equals the expected information of IRLS)
+        res = model.fit(method="newton", tol=1e-12, maxiter=100)
+        name = "logit" if shape == "logistic" else "probit"
+        write({
+            "id": f"mapping_{shape}",
+            "method": "mapping",
+            "title": f"Binomial {name} fit of 8 rows (index, correct of 40 trials): {shape} mapping, a, b and "
+                     "their standard errors",
+            "source": (f"statsmodels {statsmodels.__version__}: GLM(Binomial, link={name}).fit(method='newton'), "
+                       "standard errors from the observed information (McCullagh & Nelder 1989); rows drawn "
+                       f"from a {shape} curve (a = {a0}, b = {b0}), seed 900"),
+            "input": {"index": x.tolist(), "correct": k.tolist(), "trials": trials.tolist(), "shape": shape},
+            "expected": {q: {"value": round(float(v), 10), "abs_tol": TOL_MAPPING}
+                         for q, v in zip(("a", "b", "se_a", "se_b"), [*res.params, *res.bse])},
+        })
 
 
 if __name__ == "__main__":

@@ -13,19 +13,16 @@ from ._common import JSON_HELP, Progress, dumps
 @app.command("check")
 def check_command(
     case: Optional[str] = typer.Option(None, "--case", help="Run only the cases whose id contains this text."),
+    method: Optional[str] = typer.Option(None, "--method", help="Run only the cases of this method (ir, stipa, "
+                                         "fullsti, stoi, estoi, ssti, mapping)."),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     verbose: bool = typer.Option(False, "--verbose", "-v", help="Show every compared quantity."),
 ) -> None:
     """Run the reference cases (analytic formulas, standard values, reference libraries) and
     print pass/fail per case with its source. Exits 1 if any case fails."""
-    from envpredict.exceptions import InputError
-    from envpredict.refcases import load_cases, run_case
+    from envpredict.refcases import run_case, select_cases, summary
 
-    cases = load_cases()
-    if case:
-        cases = [c for c in cases if case in c["id"]]
-        if not cases:
-            raise InputError(f"no reference case id contains '{case}'", "run 'envpredict check' to list them")
+    cases = select_cases(id_contains=case, method=method)
     outcomes = []
     with Progress("running reference cases", len(cases), quiet=as_json) as prog:
         for i, c in enumerate(cases):
@@ -33,11 +30,10 @@ def check_command(
             prog(i + 1)
     n_fail = sum(not o.passed for o in outcomes)
     if as_json:
-        typer.echo(dumps({"passed": len(outcomes) - n_fail, "failed": n_fail,
-                          "cases": [o.to_dict() for o in outcomes]}))
+        typer.echo(dumps({**summary(outcomes), "cases": [o.to_dict() for o in outcomes]}))
     else:
         for o in outcomes:
-            typer.echo(f"{'PASS' if o.passed else 'FAIL'}  {o.id}: {o.title}")
+            typer.echo(f"{'PASS' if o.passed else 'FAIL'}  [{o.method}] {o.id}: {o.title}")
             typer.echo(f"      source: {o.source}")
             if o.error:
                 typer.echo(f"      could not run: {o.error}")
@@ -46,6 +42,8 @@ def check_command(
                     typer.echo(f"      {c.quantity}: expected {c.expected}, got {c.got} ({c.tolerance})"
                                f"{'' if c.passed else '  <-- outside tolerance'}")
         typer.echo("")
-        typer.echo(f"{len(outcomes) - n_fail} of {len(outcomes)} reference cases passed.")
+        per = summary(outcomes)["methods"]
+        typer.echo(f"{len(outcomes) - n_fail} of {len(outcomes)} reference cases passed ("
+                   + ", ".join(f"{m} {v['passed']}/{v['passed'] + v['failed']}" for m, v in per.items()) + ").")
     if n_fail:
         raise typer.Exit(1)
