@@ -40,8 +40,8 @@ from .exceptions import InputError
 EPS: float = float(np.finfo(np.float64).eps)
 
 #: Segments processed at once in the vectorised segment statistics (bounds memory:
-#: 15 bands x 30 frames x 4096 segments x 8 bytes = 15 MB per array).
-SEGMENT_BLOCK: int = 4096
+#: 15 bands x 30 frames x 512 segments x 8 bytes = 1.8 MB per array, which stays in cache).
+SEGMENT_BLOCK: int = 512
 
 #: Frames per chunk of the streamed passes (about 52 s of signal at 10 kHz).
 DEFAULT_CHUNK_FRAMES: int = 4096
@@ -91,6 +91,38 @@ def third_octave_matrix() -> tuple[np.ndarray, np.ndarray]:
     a.flags.writeable = False
     cf.flags.writeable = False
     return a, cf
+
+
+@lru_cache(maxsize=1)
+def _band_bin_edges() -> np.ndarray:
+    """The 16 DFT-bin edges of the contiguous bands of :func:`third_octave_matrix`.
+
+    Band j holds bins ``edges[j] .. edges[j+1]-1``; summing the power over those bins
+    (``np.add.reduceat``) equals the product with the 0/1 band matrix without a
+    (15 x 257) matrix product per frame.
+    """
+    a, _ = third_octave_matrix()
+    lo = a.argmax(axis=1)
+    hi = lo + a.sum(axis=1).astype(int)
+    if not (np.all(hi[:-1] == lo[1:]) and np.all(hi > lo) and a.sum() == (hi - lo).sum()):
+        raise AssertionError("the one-third-octave bands are expected to be contiguous and non-empty")
+    edges = np.append(lo, hi[-1])
+    edges.flags.writeable = False
+    return edges
+
+
+def band_envelopes(dft_frames: np.ndarray) -> np.ndarray:
+    """One-third-octave TF envelopes (15, K) of K windowed 256-sample frames (K, 256).
+
+    Each value is the root of the summed 512-point DFT power of the band's bins
+    (Taal 2011, eq. 1): ``sqrt(A @ |X|**2)`` with ``A`` from :func:`third_octave_matrix`.
+    """
+    edges = _band_bin_edges()
+    spec = np.fft.rfft(dft_frames, n=std.STOI_NFFT, axis=1)
+    sq = spec.view(np.float64)  # (K, 2 * 257): real and imaginary parts side by side
+    sq *= sq
+    # each band sums re**2 + im**2 over its bins: columns 2 * edges[j] .. 2 * edges[j+1] - 1
+    return np.sqrt(np.add.reduceat(sq, 2 * edges, axis=1)[:, :-1]).T
 
 
 def frame_count(n_samples: int) -> int:
@@ -150,11 +182,9 @@ class _EnvelopeBuilder:
         self.pending = blocks[-1].copy()
         if blocks.shape[0] < 2:
             return
-        dft_frames = np.concatenate([blocks[:-1], blocks[1:]], axis=1) * w
-        spec = np.fft.rfft(dft_frames, n=std.STOI_NFFT, axis=1)
-        power = spec.real ** 2 + spec.imag ** 2
-        bands, _ = third_octave_matrix()
-        self.parts.append(np.sqrt(power @ bands.T).T)  # (15, frames)
+        dft_frames = np.concatenate([blocks[:-1], blocks[1:]], axis=1)
+        dft_frames *= w
+        self.parts.append(band_envelopes(dft_frames))  # (15, frames)
 
     def result(self) -> np.ndarray:
         if not self.parts:
@@ -200,27 +230,35 @@ def tf_envelopes(
 # ---------------------------------------------------------------------------
 
 
-def _unit(v: np.ndarray, axis: int) -> np.ndarray:
-    """Subtract the mean along ``axis`` (0: bands, 2: frames) of a (J, S, N) array and
-    scale to unit norm along it."""
-    v = v - v.mean(axis=axis, keepdims=True)
+#: The per-segment statistics :func:`segment_scores` computes (both by default).
+SCORES: tuple[str, ...] = ("stoi_band_segment", "estoi_band_segment")
+
+
+def _normalise(v: np.ndarray, axis: int) -> np.ndarray:
+    """In place: subtract the mean along ``axis`` (0: bands, 2: frames) of a (J, S, N)
+    array and divide by the norm along it (plus EPS, as the reference does)."""
+    v -= v.mean(axis=axis, keepdims=True)
     norm = np.sqrt(np.einsum("jsn,jsn->sn" if axis == 0 else "jsn,jsn->js", v, v))
-    norm = norm[None, :, :] if axis == 0 else norm[:, :, None]
-    v /= norm + EPS
+    v /= (norm[None, :, :] if axis == 0 else norm[:, :, None]) + EPS
     return v
 
 
-def segment_scores(x_env: np.ndarray, y_env: np.ndarray) -> dict[str, np.ndarray]:
+def segment_scores(x_env: np.ndarray, y_env: np.ndarray, which: tuple[str, ...] = SCORES) -> dict[str, np.ndarray]:
     """STOI and ESTOI statistics of every 30-frame segment of the TF envelopes.
 
-    Returns arrays ``stoi_band_segment`` (15, S): correlation of band j in segment m
-    after normalisation and clipping (Taal 2011, eqs. 3-5); ``estoi_band_segment``
-    (15, S): band j's share of the spectral correlation of segment m (row then column
-    normalisation, Jensen 2016 Sec. III; summed over bands it is the segment's ESTOI).
-    S = M - 29 for M frames.
+    Returns the arrays named in ``which`` (default both): ``stoi_band_segment``
+    (15, S): correlation of band j in segment m after normalisation and clipping
+    (Taal 2011, eqs. 3-5); ``estoi_band_segment`` (15, S): band j's share of the
+    spectral correlation of segment m (row then column normalisation, Jensen 2016
+    Sec. III; summed over bands it is the segment's ESTOI). S = M - 29 for M frames.
+    All segments are processed at once (blocks of :data:`SEGMENT_BLOCK`), on a
+    strided view of the envelopes.
     """
     from numpy.lib.stride_tricks import sliding_window_view
 
+    unknown = set(which) - set(SCORES)
+    if unknown:
+        raise ValueError(f"unknown segment statistics {sorted(unknown)}; choose from {SCORES}")
     n = std.STOI_SEGMENT_FRAMES
     n_bands, m_frames = x_env.shape
     n_seg = m_frames - n + 1
@@ -230,24 +268,29 @@ def segment_scores(x_env: np.ndarray, y_env: np.ndarray) -> dict[str, np.ndarray
             f"({n * std.STOI_HOP / std.STOI_FS * 1000:.0f} ms of speech)",
             "give a longer pair with more speech in it",
         )
+    want_stoi, want_estoi = SCORES[0] in which, SCORES[1] in which
     xs_all = sliding_window_view(x_env, n, axis=1)  # (J, S, N) view
     ys_all = sliding_window_view(y_env, n, axis=1)
     clip = 1.0 + 10.0 ** (-std.STOI_BETA_DB / 20.0)
-    rho = np.empty((n_bands, n_seg))
-    share = np.empty((n_bands, n_seg))
+    out = {k: np.empty((n_bands, n_seg)) for k in SCORES if k in which}
     for s0 in range(0, n_seg, SEGMENT_BLOCK):
         s1 = min(n_seg, s0 + SEGMENT_BLOCK)
-        xs = np.ascontiguousarray(xs_all[:, s0:s1])
-        ys = np.ascontiguousarray(ys_all[:, s0:s1])
+        xs = np.array(xs_all[:, s0:s1])
+        ys = np.array(ys_all[:, s0:s1])
         # the clean rows normalised over time serve both indices
-        xr = _unit(xs, 2)
-        # STOI: energy normalisation and clipping, then correlation per band
-        alpha = np.sqrt(np.einsum("jsn,jsn->js", xs, xs) / (np.einsum("jsn,jsn->js", ys, ys) + EPS))
-        yp = np.minimum(ys * alpha[:, :, None], xs * clip)
-        rho[:, s0:s1] = np.einsum("jsn,jsn->js", xr, _unit(yp, 2))
-        # ESTOI: rows (time) then columns (frequency) normalised, spectral correlation
-        share[:, s0:s1] = np.einsum("jsn,jsn->js", _unit(xr, 0), _unit(_unit(ys, 2), 0)) / n
-    return {"stoi_band_segment": rho, "estoi_band_segment": share}
+        xr = _normalise(xs.copy() if want_stoi else xs, 2)
+        if want_stoi:
+            # energy normalisation and clipping, then correlation per band
+            alpha = np.sqrt(np.einsum("jsn,jsn->js", xs, xs) / (np.einsum("jsn,jsn->js", ys, ys) + EPS))
+            yp = ys * alpha[:, :, None]
+            xs *= clip
+            np.minimum(yp, xs, out=yp)
+            out[SCORES[0]][:, s0:s1] = np.einsum("jsn,jsn->js", xr, _normalise(yp, 2))
+        if want_estoi:
+            # rows (time) then columns (frequency) normalised, spectral correlation
+            yn = _normalise(_normalise(ys, 2), 0)
+            out[SCORES[1]][:, s0:s1] = np.einsum("jsn,jsn->js", _normalise(xr, 0), yn) / n
+    return out
 
 
 @dataclass(frozen=True)
@@ -371,13 +414,29 @@ def _array_reader(a: np.ndarray) -> Reader:
     return read
 
 
+def _array_envelopes(
+    clean: np.ndarray, degraded: np.ndarray, fs: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """Checked, resampled arrays through the streamed envelope kernel (:func:`tf_envelopes`)."""
+    x, y = _prepare(clean, degraded, fs)
+    return tf_envelopes(_array_reader(x), _array_reader(y), x.size)
+
+
 def correlation_indices(clean: np.ndarray, degraded: np.ndarray, fs: int) -> CorrelationResult:
     """STOI and ESTOI with per-band and per-segment diagnostics (arrays of equal length).
 
     See :func:`stoi` for the method and the valid range.
     """
-    x, y = _prepare(clean, degraded, fs)
-    return stoi_estoi_stream(_array_reader(x), _array_reader(y), x.size)
+    return correlation_from_envelopes(*_array_envelopes(clean, degraded, fs))
+
+
+def _one_index(clean: np.ndarray, degraded: np.ndarray, fs: int, score: str) -> float:
+    """The mean of one segment statistic: what :func:`stoi` or :func:`estoi` alone needs."""
+    x_env, y_env, _, _ = _array_envelopes(clean, degraded, fs)
+    values = segment_scores(x_env, y_env, which=(score,))[score]
+    if score == "estoi_band_segment":  # a segment's ESTOI is the sum of its bands' shares
+        return float(values.sum(axis=0).mean())
+    return float(values.mean())
 
 
 def stoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
@@ -418,7 +477,7 @@ def stoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
     >>> round(stoi(x, x, 10000), 6)
     1.0
     """
-    return correlation_indices(clean, degraded, fs).stoi
+    return _one_index(clean, degraded, fs, "stoi_band_segment")
 
 
 def estoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
@@ -437,4 +496,4 @@ def estoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
     Parameters and valid range as :func:`stoi`; ESTOI also covers modulated
     (fluctuating) maskers, for which it was designed.
     """
-    return correlation_indices(clean, degraded, fs).estoi
+    return _one_index(clean, degraded, fs, "estoi_band_segment")
