@@ -105,7 +105,7 @@ def test_more_reverberation_never_raises_pair_indices(T, factor, seed):
 # --- STIPA recordings: valid domain ---------------------------------------------
 # The recordings are the package's STIPA signal (IEC 60268-16 Annex B) through a noise
 # decay and steady noise: the property checked is the range and the error contract, not
-# the value, so the package's own generator is a fair input here. Measured (200 examples,
+# the value, so the package's own generator is a fair input here. Measured (100 examples,
 # --hypothesis-show-statistics): 100 % reach the computation.
 
 
