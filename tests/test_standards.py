@@ -101,3 +101,13 @@ def test_qualification_bands_are_004_wide():
     assert np.allclose(-np.diff(edges[:-1]), 0.04)
     for _, lo, nominal in std.QUALIFICATION_BANDS[1:-1]:
         assert nominal == pytest.approx(lo + 0.02)
+
+
+def test_stoi_constants_are_the_published_ones():
+    # Taal et al. 2011 (IEEE TASLP 19(7)) Sec. II and Jensen & Taal 2016 Sec. III, written here
+    # from the papers: 10 kHz, 256-sample Hann frames with 50 % overlap, 512-point DFT, 15
+    # one-third-octave bands from 150 Hz, 30-frame (384 ms) segments, beta = -15 dB, frames
+    # more than 40 dB below the loudest clean frame removed
+    assert (std.STOI_FS, std.STOI_FRAME_LEN, std.STOI_HOP, std.STOI_NFFT) == (10000, 256, 128, 512)
+    assert (std.STOI_NUM_BANDS, std.STOI_MIN_FREQ_HZ, std.STOI_SEGMENT_FRAMES) == (15, 150.0, 30)
+    assert (std.STOI_BETA_DB, std.STOI_DYNAMIC_RANGE_DB) == (-15.0, 40.0)
