@@ -232,6 +232,8 @@ def test_band_diagnostics_average_to_the_index():
 
 # --- properties (hypothesis) -------------------------------------------------
 
+# Every example of these properties reaches the computation (100 %): they draw only seeds
+# and SNRs of valid 1.5-3 s pairs at 10 kHz, never a length or rate that is refused.
 SEEDS = st.integers(min_value=0, max_value=10_000)
 
 

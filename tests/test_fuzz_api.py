@@ -40,7 +40,7 @@ def _run(fn, *args, **kwargs):
 
 
 # --- the pair: valid domain ------------------------------------------------------
-# Measured (seed-free run of 200 examples, --hypothesis-show-statistics): 100 % reach the
+# Measured (a run of 200 examples, --hypothesis-show-statistics): 100 % reach the
 # computation. Domain: rates from the 10 kHz STOI grid up to 44.1 kHz, 1.2-3 s of speech
 # (at least 384 ms of it after silent-frame removal), levels over 74 dB, DC, added noise.
 
