@@ -40,11 +40,15 @@ from .exceptions import InputError
 EPS: float = float(np.finfo(np.float64).eps)
 
 #: Segments processed at once in the vectorised segment statistics (bounds memory:
-#: 15 bands x 30 frames x 4096 segments x 8 bytes = 15 MB per array).
-SEGMENT_BLOCK: int = 4096
+#: 15 bands x 2048 segments x 8 bytes = 0.25 MB per array, which stays in cache).
+SEGMENT_BLOCK: int = 2048
 
 #: Frames per chunk of the streamed passes (about 52 s of signal at 10 kHz).
 DEFAULT_CHUNK_FRAMES: int = 4096
+
+#: Kept frames sent at once through the spectra (bounds the working set: 512 frames x
+#: 512 DFT points x 8 bytes = 2 MB, which stays in cache; the result does not depend on it).
+SPECTRUM_BLOCK: int = 512
 
 Reader = Callable[[int, int], np.ndarray]
 
@@ -91,6 +95,40 @@ def third_octave_matrix() -> tuple[np.ndarray, np.ndarray]:
     a.flags.writeable = False
     cf.flags.writeable = False
     return a, cf
+
+
+@lru_cache(maxsize=1)
+def _band_bin_edges() -> np.ndarray:
+    """The 16 DFT-bin edges of the contiguous bands of :func:`third_octave_matrix`.
+
+    Band j holds bins ``edges[j] .. edges[j+1]-1``; summing the power over those bins
+    (``np.add.reduceat``) equals the product with the 0/1 band matrix without a
+    (15 x 257) matrix product per frame.
+    """
+    a, _ = third_octave_matrix()
+    lo = a.argmax(axis=1)
+    hi = lo + a.sum(axis=1).astype(int)
+    if not (np.all(hi[:-1] == lo[1:]) and np.all(hi > lo) and a.sum() == (hi - lo).sum()):
+        raise AssertionError("the one-third-octave bands are expected to be contiguous and non-empty")
+    edges = np.append(lo, hi[-1])
+    edges.flags.writeable = False
+    return edges
+
+
+def band_envelopes(dft_frames: np.ndarray) -> np.ndarray:
+    """One-third-octave TF envelopes (15, K) of K windowed 256-sample frames.
+
+    ``dft_frames`` is (K, 256), or (K, 512) already zero-padded to the DFT length (which
+    spares the FFT a copy). Each value is the root of the summed 512-point DFT power of the
+    band's bins (Taal 2011, eq. 1): ``sqrt(A @ |X|**2)`` with ``A`` from
+    :func:`third_octave_matrix`.
+    """
+    edges = _band_bin_edges()
+    spec = np.fft.rfft(dft_frames, n=std.STOI_NFFT, axis=1)
+    sq = spec[:, edges[0] : edges[-1]].view(np.float64)  # real and imaginary parts side by side
+    sq *= sq
+    # each band sums re**2 + im**2 over its bins: columns 2 * (edges[j] .. edges[j+1]) - 1
+    return np.sqrt(np.add.reduceat(sq, 2 * (edges[:-1] - edges[0]), axis=1)).T
 
 
 def frame_count(n_samples: int) -> int:
@@ -150,11 +188,11 @@ class _EnvelopeBuilder:
         self.pending = blocks[-1].copy()
         if blocks.shape[0] < 2:
             return
-        dft_frames = np.concatenate([blocks[:-1], blocks[1:]], axis=1) * w
-        spec = np.fft.rfft(dft_frames, n=std.STOI_NFFT, axis=1)
-        power = spec.real ** 2 + spec.imag ** 2
-        bands, _ = third_octave_matrix()
-        self.parts.append(np.sqrt(power @ bands.T).T)  # (15, frames)
+        # DFT frame j = blocks j and j+1, windowed, zero-padded to the DFT length
+        dft_frames = np.zeros((blocks.shape[0] - 1, std.STOI_NFFT))
+        np.multiply(blocks[:-1], w[:h], out=dft_frames[:, :h])
+        np.multiply(blocks[1:], w[h:], out=dft_frames[:, h : 2 * h])
+        self.parts.append(band_envelopes(dft_frames))  # (15, frames)
 
     def result(self) -> np.ndarray:
         if not self.parts:
@@ -186,10 +224,13 @@ def tf_envelopes(
     bx, by = _EnvelopeBuilder(), _EnvelopeBuilder()
     for i, f0 in enumerate(range(0, total, chunk_frames)):
         f1 = min(total, f0 + chunk_frames)
-        sel = keep[f0:f1]
-        if sel.any():
-            bx.add(_frames(_chunk_samples(clean_read, f0, f1), f1 - f0)[sel])
-            by.add(_frames(_chunk_samples(degraded_read, f0, f1), f1 - f0)[sel])
+        sel = np.flatnonzero(keep[f0:f1])
+        if sel.size:
+            fx = _frames(_chunk_samples(clean_read, f0, f1), f1 - f0)
+            fy = _frames(_chunk_samples(degraded_read, f0, f1), f1 - f0)
+            for k0 in range(0, sel.size, SPECTRUM_BLOCK):
+                bx.add(fx[sel[k0 : k0 + SPECTRUM_BLOCK]])
+                by.add(fy[sel[k0 : k0 + SPECTRUM_BLOCK]])
         if progress is not None:
             progress(i + 2, n_chunks + 1)
     return bx.result(), by.result(), kept_idx, total
@@ -200,27 +241,109 @@ def tf_envelopes(
 # ---------------------------------------------------------------------------
 
 
-def _unit(v: np.ndarray, axis: int) -> np.ndarray:
-    """Subtract the mean along ``axis`` (0: bands, 2: frames) of a (J, S, N) array and
-    scale to unit norm along it."""
-    v = v - v.mean(axis=axis, keepdims=True)
-    norm = np.sqrt(np.einsum("jsn,jsn->sn" if axis == 0 else "jsn,jsn->js", v, v))
-    norm = norm[None, :, :] if axis == 0 else norm[:, :, None]
-    v /= norm + EPS
-    return v
+#: The per-segment statistics :func:`segment_scores` computes (both by default).
+SCORES: tuple[str, ...] = ("stoi_band_segment", "estoi_band_segment")
 
 
-def segment_scores(x_env: np.ndarray, y_env: np.ndarray) -> dict[str, np.ndarray]:
+def _row_stats(windows: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """Mean over the frames of each segment and 1 / (norm of the centred rows + EPS).
+
+    ``windows[n]`` is the (J, S) array of frame n of every segment (a view of the
+    envelopes); the results are (J, S).
+    """
+    mean = windows[0].copy()
+    for w in windows[1:]:
+        mean += w
+    mean /= len(windows)
+    ss = np.zeros_like(mean)
+    for w in windows:
+        d = w - mean
+        d *= d
+        ss += d
+    np.sqrt(ss, out=ss)
+    ss += EPS
+    return mean, np.reciprocal(ss, out=ss)
+
+
+def _stoi_block(xw: list[np.ndarray], yw: list[np.ndarray], clip: float) -> np.ndarray:
+    """Correlation of each band in each segment after normalisation and clipping (J, S).
+
+    Taal 2011 eqs. (3)-(5): alpha = ||x|| / ||y|| over the segment's frames;
+    y' = min(alpha y, clip x); d = sum((x - mean x)(y' - mean y')) / (norms of both).
+    """
+    sxx = np.zeros_like(xw[0])
+    syy = np.zeros_like(xw[0])
+    for x, y in zip(xw, yw):
+        sxx += x * x
+        syy += y * y
+    syy += EPS
+    alpha = np.sqrt(sxx / syy)
+
+    def clipped(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        yp = y * alpha
+        return np.minimum(yp, clip * x, out=yp)
+
+    mx, ix = _row_stats(xw)
+    myp = np.zeros_like(mx)
+    for x, y in zip(xw, yw):
+        myp += clipped(x, y)
+    myp /= len(xw)
+    cxy = np.zeros_like(mx)
+    cyy = np.zeros_like(mx)
+    for x, y in zip(xw, yw):
+        yp = clipped(x, y)
+        yp -= myp
+        cxy += (x - mx) * yp
+        yp *= yp
+        cyy += yp
+    np.sqrt(cyy, out=cyy)
+    cyy += EPS
+    cxy *= ix
+    cxy /= cyy
+    return cxy
+
+
+def _estoi_block(xw: list[np.ndarray], yw: list[np.ndarray]) -> np.ndarray:
+    """Each band's share of the spectral correlation of each segment (J, S).
+
+    Jensen 2016 Sec. III: the segment matrix is normalised to zero mean and unit norm
+    along time per band (rows), then along frequency per frame (columns); the segment's
+    score is the mean over frames of the inner products of the clean and degraded columns.
+    """
+    mx, ix = _row_stats(xw)
+    my, iy = _row_stats(yw)
+    share = np.zeros_like(mx)
+    for x, y in zip(xw, yw):
+        xr = x - mx
+        xr *= ix
+        xr -= xr.mean(axis=0)
+        yr = y - my
+        yr *= iy
+        yr -= yr.mean(axis=0)
+        norm = np.sqrt(np.einsum("js,js->s", xr, xr)) + EPS
+        norm *= np.sqrt(np.einsum("js,js->s", yr, yr)) + EPS
+        xr *= yr
+        xr /= norm
+        share += xr
+    share /= len(xw)
+    return share
+
+
+def segment_scores(x_env: np.ndarray, y_env: np.ndarray, which: tuple[str, ...] = SCORES) -> dict[str, np.ndarray]:
     """STOI and ESTOI statistics of every 30-frame segment of the TF envelopes.
 
-    Returns arrays ``stoi_band_segment`` (15, S): correlation of band j in segment m
-    after normalisation and clipping (Taal 2011, eqs. 3-5); ``estoi_band_segment``
-    (15, S): band j's share of the spectral correlation of segment m (row then column
-    normalisation, Jensen 2016 Sec. III; summed over bands it is the segment's ESTOI).
-    S = M - 29 for M frames.
+    Returns the arrays named in ``which`` (default both): ``stoi_band_segment``
+    (15, S): correlation of band j in segment m after normalisation and clipping
+    (Taal 2011, eqs. 3-5); ``estoi_band_segment`` (15, S): band j's share of the
+    spectral correlation of segment m (row then column normalisation, Jensen 2016
+    Sec. III; summed over bands it is the segment's ESTOI). S = M - 29 for M frames.
+    All segments are processed at once (blocks of :data:`SEGMENT_BLOCK`): the sums over
+    a segment's 30 frames run as 30 vector operations over all segments, on views of the
+    envelopes, so the working set stays small (no 30-fold copy of the envelopes).
     """
-    from numpy.lib.stride_tricks import sliding_window_view
-
+    unknown = set(which) - set(SCORES)
+    if unknown:
+        raise ValueError(f"unknown segment statistics {sorted(unknown)}; choose from {SCORES}")
     n = std.STOI_SEGMENT_FRAMES
     n_bands, m_frames = x_env.shape
     n_seg = m_frames - n + 1
@@ -230,24 +353,18 @@ def segment_scores(x_env: np.ndarray, y_env: np.ndarray) -> dict[str, np.ndarray
             f"({n * std.STOI_HOP / std.STOI_FS * 1000:.0f} ms of speech)",
             "give a longer pair with more speech in it",
         )
-    xs_all = sliding_window_view(x_env, n, axis=1)  # (J, S, N) view
-    ys_all = sliding_window_view(y_env, n, axis=1)
     clip = 1.0 + 10.0 ** (-std.STOI_BETA_DB / 20.0)
-    rho = np.empty((n_bands, n_seg))
-    share = np.empty((n_bands, n_seg))
+    out = {k: np.empty((n_bands, n_seg)) for k in SCORES if k in which}
     for s0 in range(0, n_seg, SEGMENT_BLOCK):
         s1 = min(n_seg, s0 + SEGMENT_BLOCK)
-        xs = np.ascontiguousarray(xs_all[:, s0:s1])
-        ys = np.ascontiguousarray(ys_all[:, s0:s1])
-        # the clean rows normalised over time serve both indices
-        xr = _unit(xs, 2)
-        # STOI: energy normalisation and clipping, then correlation per band
-        alpha = np.sqrt(np.einsum("jsn,jsn->js", xs, xs) / (np.einsum("jsn,jsn->js", ys, ys) + EPS))
-        yp = np.minimum(ys * alpha[:, :, None], xs * clip)
-        rho[:, s0:s1] = np.einsum("jsn,jsn->js", xr, _unit(yp, 2))
-        # ESTOI: rows (time) then columns (frequency) normalised, spectral correlation
-        share[:, s0:s1] = np.einsum("jsn,jsn->js", _unit(xr, 0), _unit(_unit(ys, 2), 0)) / n
-    return {"stoi_band_segment": rho, "estoi_band_segment": share}
+        # frame k of every segment s0..s1-1: a (15, s1 - s0) view of the envelopes
+        xw = [x_env[:, s0 + k : s1 + k] for k in range(n)]
+        yw = [y_env[:, s0 + k : s1 + k] for k in range(n)]
+        if SCORES[0] in out:
+            out[SCORES[0]][:, s0:s1] = _stoi_block(xw, yw, clip)
+        if SCORES[1] in out:
+            out[SCORES[1]][:, s0:s1] = _estoi_block(xw, yw)
+    return out
 
 
 @dataclass(frozen=True)
@@ -371,13 +488,29 @@ def _array_reader(a: np.ndarray) -> Reader:
     return read
 
 
+def _array_envelopes(
+    clean: np.ndarray, degraded: np.ndarray, fs: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """Checked, resampled arrays through the streamed envelope kernel (:func:`tf_envelopes`)."""
+    x, y = _prepare(clean, degraded, fs)
+    return tf_envelopes(_array_reader(x), _array_reader(y), x.size)
+
+
 def correlation_indices(clean: np.ndarray, degraded: np.ndarray, fs: int) -> CorrelationResult:
     """STOI and ESTOI with per-band and per-segment diagnostics (arrays of equal length).
 
     See :func:`stoi` for the method and the valid range.
     """
-    x, y = _prepare(clean, degraded, fs)
-    return stoi_estoi_stream(_array_reader(x), _array_reader(y), x.size)
+    return correlation_from_envelopes(*_array_envelopes(clean, degraded, fs))
+
+
+def _one_index(clean: np.ndarray, degraded: np.ndarray, fs: int, score: str) -> float:
+    """The mean of one segment statistic: what :func:`stoi` or :func:`estoi` alone needs."""
+    x_env, y_env, _, _ = _array_envelopes(clean, degraded, fs)
+    values = segment_scores(x_env, y_env, which=(score,))[score]
+    if score == "estoi_band_segment":  # a segment's ESTOI is the sum of its bands' shares
+        return float(values.sum(axis=0).mean())
+    return float(values.mean())
 
 
 def stoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
@@ -418,7 +551,7 @@ def stoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
     >>> round(stoi(x, x, 10000), 6)
     1.0
     """
-    return correlation_indices(clean, degraded, fs).stoi
+    return _one_index(clean, degraded, fs, "stoi_band_segment")
 
 
 def estoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
@@ -436,5 +569,16 @@ def estoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
 
     Parameters and valid range as :func:`stoi`; ESTOI also covers modulated
     (fluctuating) maskers, for which it was designed.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rng = np.random.default_rng(0)
+    >>> t = np.arange(30000) / 10000
+    >>> x = rng.standard_normal(t.size) * (1 + np.sin(2 * np.pi * 4 * t))
+    >>> round(estoi(x, x, 10000), 6)
+    1.0
+    >>> bool(estoi(x, x + 3 * rng.standard_normal(t.size), 10000) < 0.5)
+    True
     """
-    return correlation_indices(clean, degraded, fs).estoi
+    return _one_index(clean, degraded, fs, "estoi_band_segment")

@@ -2,8 +2,8 @@
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
+from signals_for_tests import noise_decay  # noqa: F401  (re-exported: tests import it from here)
 
 
 def run_cli(args, capsys=None):
@@ -19,17 +19,6 @@ def run_cli(args, capsys=None):
         out, err = capsys.readouterr()
         return code, out, err
     return code, "", ""
-
-
-def noise_decay(T, fs=48000, seconds=None, seed=0, amplitude=0.2, floor_db=None):
-    """Gaussian noise times exp(-6.91 t/T): the energy decays 60 dB in T seconds."""
-    rng = np.random.default_rng(seed)
-    n = int((seconds if seconds else 1.5 * T + 0.6) * fs)
-    t = np.arange(n) / fs
-    x = amplitude * rng.standard_normal(n) * np.exp(-3 * np.log(10) * t / T)
-    if floor_db is not None:
-        x += amplitude * 10 ** (floor_db / 20) * rng.standard_normal(n)
-    return x
 
 
 @pytest.fixture

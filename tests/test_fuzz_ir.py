@@ -3,41 +3,77 @@
 Invariants (Houtgast & Steeneken; IEC 60268-16:2011): more noise or more reverberation
 never raises the STI; the index lies in [0, 1]; random input either gives a result or one
 of the documented errors (InputError / ComputationError), never anything else.
+
+Inputs are drawn inside the valid domain so that most examples reach the computation (the
+share is measured with hypothesis ``event()``; run with ``--hypothesis-show-statistics``);
+degenerate inputs have their own test, which checks that they are refused.
 """
 
 import numpy as np
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
+from signals_for_tests import noise_decay
 
 from envpredict.exceptions import EnvpredictError
 from envpredict.indirect import sti_from_ir
 
-from conftest import noise_decay
-
 SETTINGS = dict(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+
+def _run(x, fs, **kwargs):
+    """The result, or None after checking that the error is a documented one-line error."""
+    try:
+        out = sti_from_ir(x, fs, **kwargs)
+    except EnvpredictError as e:
+        assert e.what and "\n" not in e.one_line()
+        event(f"refused: {e.what[:50]}")
+        return None
+    event("reached the computation")
+    return out
+
+
+# Measured (200 examples, --hypothesis-show-statistics): 100 % reach the computation.
+# Domain: rates that hold the 8 kHz octave (above 22.6 kHz), at least 0.8 s after the onset
+# (the 0.63 Hz modulation frequency needs 0.79 s), decays of 0.05-4 s, levels over 80 dB,
+# a small DC offset, an optional noise floor and a delayed onset.
 
 
 @settings(**SETTINGS)
 @given(
-    seconds=st.floats(0.0, 2.0),
-    fs=st.sampled_from([8000, 16000, 22050, 24000, 44100, 48000, 96000]),
-    level=st.floats(1e-9, 0.9),
-    dc=st.floats(-0.5, 0.5),
+    seconds=st.floats(0.8, 2.0),
+    fs=st.sampled_from([24000, 44100, 48000, 96000]),
+    level=st.floats(1e-4, 0.9),
+    dc=st.floats(-0.05, 0.05),
     T=st.floats(0.05, 4.0),
-    zeros=st.booleans(),
+    floor_db=st.one_of(st.none(), st.floats(-90.0, -30.0)),
+    onset_s=st.floats(0.0, 0.2),
     seed=st.integers(0, 1000),
 )
-def test_random_input_gives_result_or_documented_error(seconds, fs, level, dc, T, zeros, seed):
-    n = int(seconds * fs)
-    x = np.zeros(n) if zeros else level * noise_decay(T, fs=fs, seconds=max(seconds, 1e-3), seed=seed)[:n]
-    x = x + dc * level
-    try:
-        r = sti_from_ir(x, fs)
-    except EnvpredictError as e:
-        assert e.what and "\n" not in e.one_line()
-        return
-    assert 0.0 <= r.sti.sti <= 1.0
-    assert np.all((r.sti.mti >= 0) & (r.sti.mti <= 1))
+def test_ir_sti_stays_in_range(seconds, fs, level, dc, T, floor_db, onset_s, seed):
+    x = noise_decay(T, fs=fs, seconds=seconds, seed=seed, floor_db=floor_db)
+    x = level * (np.concatenate([np.zeros(int(onset_s * fs)), x]) / np.max(np.abs(x)) + dc)
+    r = _run(x, fs)
+    if r is not None:
+        assert 0.0 <= r.sti.sti <= 1.0
+        assert np.all((r.sti.mti >= 0) & (r.sti.mti <= 1))
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(
+    kind=st.sampled_from(["empty", "zeros", "dc", "short", "low rate"]),
+    fs=st.sampled_from([8000, 16000, 22050, 48000]),
+    seed=st.integers(0, 1000),
+)
+def test_degenerate_irs_are_refused(kind, fs, seed):
+    # empty, silent, constant, shorter than 0.79 s, or a rate below the 8 kHz octave's 22.6 kHz
+    if kind == "low rate":
+        fs = min(fs, 22050)
+    else:
+        fs = 48000
+    x = {"empty": np.zeros(0), "zeros": np.zeros(fs), "dc": np.full(fs, 0.25),
+         "short": noise_decay(0.3, fs=fs, seconds=0.5, seed=seed),
+         "low rate": noise_decay(0.5, fs=fs, seconds=1.5, seed=seed)}[kind]
+    assert _run(x, fs) is None
 
 
 @settings(**SETTINGS)

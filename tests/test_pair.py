@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 import soundfile as sf
 from scipy.signal import butter, resample_poly, sosfilt
-from test_correlation import TOL, at_snr, fluctuating_noise, ref, speech_like, speech_shaped_noise
+from signals_for_tests import PYSTOI_TOL_RESAMPLED as TOL, at_snr, fluctuating_noise, pystoi_value as ref, speech_like, speech_shaped_noise  # noqa: E501
 
 from envpredict.cli import main
 from envpredict.exceptions import ComputationError, InputError

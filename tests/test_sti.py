@@ -8,7 +8,12 @@ from hypothesis import strategies as st
 from envpredict import standards as std
 from envpredict.exceptions import InputError
 from envpredict.sti import (combine_bands, masking_factor, qualification_band, sti_from_mtf,
-                            transmission_index)
+                            subjective_rating, transmission_index)
+
+# IEC 60268-16:2011 Table A.1, male speech (written here from the table, not taken from the
+# package): octave-band weights alpha_k (125 Hz ... 8 kHz) and redundancy weights beta_k.
+ALPHA_MALE_TABLE_A1 = (0.085, 0.127, 0.230, 0.233, 0.309, 0.224, 0.173)
+BETA_MALE_TABLE_A1 = (0.085, 0.078, 0.065, 0.011, 0.047, 0.095)
 
 
 @pytest.mark.parametrize("snr", [-20, -15, -9, -3, 0, 3, 9, 15, 25])
@@ -29,7 +34,7 @@ def test_uniform_mti_gives_sti_equal_mti():
 def test_redundancy_correction_by_hand():
     # IEC 60268-16:2011 A.2.6, male weights; hand calculation
     mti = np.array([0.2, 0.4, 0.6, 0.8, 1.0, 0.5, 0.3])
-    a, b = std.ALPHA_MALE, std.BETA_MALE
+    a, b = ALPHA_MALE_TABLE_A1, BETA_MALE_TABLE_A1
     hand = sum(ai * mi for ai, mi in zip(a, mti)) - sum(b[k] * (mti[k] * mti[k + 1]) ** 0.5 for k in range(6))
     assert combine_bands(mti, "male") == pytest.approx(hand, abs=1e-12)
 
@@ -43,6 +48,45 @@ def test_redundancy_correction_by_hand():
 def test_qualification_band_edges(sti, label):
     # IEC 60268-16:2011 Table F.1
     assert qualification_band(sti) == label
+
+
+# IEC 60268-16:2011 Annex F, Table F.1 (written here from the table): lower STI edge of each
+# qualification band; a value at or above the edge and below the next one gets the label.
+TABLE_F1_LOWER_EDGES = [("A+", 0.76), ("A", 0.72), ("B", 0.68), ("C", 0.64), ("D", 0.60), ("E", 0.56),
+                        ("F", 0.52), ("G", 0.48), ("H", 0.44), ("I", 0.40), ("J", 0.36)]
+
+
+@pytest.mark.parametrize("k", range(len(TABLE_F1_LOWER_EDGES)))
+def test_every_qualification_edge(k):
+    # each edge of Table F.1 pinned from both sides: moving any edge by 0.001 fails here
+    label, edge = TABLE_F1_LOWER_EDGES[k]
+    below = TABLE_F1_LOWER_EDGES[k + 1][0] if k + 1 < len(TABLE_F1_LOWER_EDGES) else "U"
+    assert qualification_band(edge) == label
+    assert qualification_band(edge + 0.0009) == label
+    assert qualification_band(edge - 0.0009) == below
+
+
+# The five-step subjective scale for the STI: bad < 0.30 <= poor < 0.45 <= fair < 0.60 <= good
+# < 0.75 <= excellent. Source: IEC 60268-16 (2nd/3rd editions, 1998/2003, the table relating
+# STI to the subjective scale; the 2011 edition keeps it beside the qualification bands of
+# Annex F) and ISO 9921:2003 (edition and clause from memory).
+SUBJECTIVE_EDGES = [("excellent", 0.75), ("good", 0.60), ("fair", 0.45), ("poor", 0.30)]
+
+
+@pytest.mark.parametrize("k", range(len(SUBJECTIVE_EDGES)))
+def test_subjective_scale_edges(k):
+    label, edge = SUBJECTIVE_EDGES[k]
+    below = SUBJECTIVE_EDGES[k + 1][0] if k + 1 < len(SUBJECTIVE_EDGES) else "bad"
+    assert subjective_rating(edge) == label
+    assert subjective_rating(edge + 0.0009) == label
+    assert subjective_rating(edge - 0.0009) == below
+
+
+@pytest.mark.parametrize("sti,label", [(0.0, "bad"), (0.15, "bad"), (0.375, "poor"), (0.525, "fair"),
+                                       (0.675, "good"), (0.9, "excellent"), (1.0, "excellent")])
+def test_subjective_scale_inside_the_steps(sti, label):
+    # mid-points of the five steps (same source as above)
+    assert subjective_rating(sti) == label
 
 
 def test_masking_factor_values():
