@@ -491,7 +491,8 @@ def test_block_wise_causal_path_matches_zero_phase_analysis(lead_in_recording):
     # 2x allowed), and the STI within 0.005 (a tenth of a just-noticeable difference of
     # 0.03; common practice, no source)
     from envpredict.bands import intensity_envelopes, octave_bands
-    from envpredict.direct import band_depths, find_usable_part
+    from envpredict.direct import find_usable_part
+    from envpredict.modulation import modulation_depths
 
     r = stipa_from_recording(lead_in_recording, FS)
     part = find_usable_part(lead_in_recording, FS, min_seconds=4 * 0.63 ** -1)
@@ -499,7 +500,7 @@ def test_block_wise_causal_path_matches_zero_phase_analysis(lead_in_recording):
     env, fs_env = intensity_envelopes(octave_bands(seg, FS), FS)
     q = FS // 200
     a, b = (part.start - part.signal_start) // q, (part.stop - part.signal_start) // q
-    depth = band_depths(env[:, a:b], fs_env, STIPA_F, sorted(set(STIPA_F.ravel())))[0]
+    depth = modulation_depths(env[:, a:b], fs_env, STIPA_F, sorted(set(STIPA_F.ravel())))[0]
     assert np.all(np.abs(r.depth - depth) <= 2 * r.noise_floor[:, None]), (r.depth - depth, r.noise_floor)
     assert np.max(np.abs(r.depth - depth)[2:]) < 0.005  # 500 Hz up: wide bands, little scatter
     want = sti_from_mtf(depth / std.STIPA_MODULATION_DEPTH, modulation_hz=std.STIPA_MODULATION_HZ,
