@@ -24,7 +24,7 @@ from functools import lru_cache
 import numpy as np
 
 from . import standards as std
-from .exceptions import InputError
+from .exceptions import ComputationError, InputError
 
 #: A band whose upper edge lies above this share of the Nyquist frequency cannot be
 #: designed as a band-pass (the Butterworth design fails at Nyquist and is poorly
@@ -37,6 +37,19 @@ NYQUIST_SHARE: float = 0.98
 #: "highpass" at its lower edge (a band whose lower edge is beyond is absent), or
 #: "omit" the band.
 BEYOND_NYQUIST: tuple[str, ...] = ("refuse", "highpass", "omit")
+
+#: Filter-definition check (:func:`check_filterbank`): gain at the band edges fc/sqrt(2),
+#: fc*sqrt(2), dB per pass, and its allowed deviation. Source: IEC 61260-1:2014, 5.4
+#: (base-2 edges); a Butterworth prototype has -10 log10(2) = -3.01 dB at its edges, which
+#: the bilinear design with pre-warped edges keeps exactly in the digital filter.
+DEFINITION_EDGE_DB: float = -10.0 * float(np.log10(2.0))
+DEFINITION_TOLERANCE_DB: float = 0.05
+
+#: Gain at the band centre, dB per pass, and its allowed deviation (judgement: the
+#: bilinear warping moves the digital pass-band peak off fc near the Nyquist frequency;
+#: at the lowest accepted rate, 22628 Hz, the 8 kHz band reads -0.06 dB at fc).
+DEFINITION_CENTRE_DB: float = 0.0
+DEFINITION_CENTRE_TOLERANCE_DB: float = 0.1
 
 #: Order of the Butterworth low-pass of the intensity envelopes (choice of this tool:
 #: flat to 16 Hz, 80 dB/decade above the cut-off).
@@ -155,8 +168,46 @@ def octave_filterbank(
             present[k] = False
             continue
         sos.append(_frozen(np.vstack([s] * passes) if passes > 1 else s))
-    return OctaveFilterbank(fs=fs, bands_hz=std.OCTAVE_BANDS_HZ, sos=tuple(sos), present=_frozen(present),
+    bank = OctaveFilterbank(fs=fs, bands_hz=std.OCTAVE_BANDS_HZ, sos=tuple(sos), present=_frozen(present),
                             partial=_frozen(partial), order=order, passes=passes)
+    check_filterbank(bank)
+    return bank
+
+
+def check_filterbank(bank: OctaveFilterbank) -> None:
+    """Check a filterbank against its definition (IEC 61260-1 base-2 octave bands).
+
+    Per pass: -3.01 dB at the band edges fc/sqrt(2) and fc*sqrt(2) within
+    :data:`DEFINITION_TOLERANCE_DB` (a partial band, realised as a high-pass: at its lower
+    edge) and 0 dB at the band centre within :data:`DEFINITION_CENTRE_TOLERANCE_DB`.
+    Run once per design by :func:`octave_filterbank`.
+
+    Raises
+    ------
+    ComputationError if a band misses its definition (a design failure near the Nyquist
+    frequency or at an extreme rate).
+    """
+    from scipy.signal import sosfreqz
+
+    for k, (fc, sos) in enumerate(zip(bank.bands_hz, bank.sos)):
+        if sos is None:
+            continue
+        lo, hi = fc / std.OCTAVE_EDGE_FACTOR, fc * std.OCTAVE_EDGE_FACTOR
+        if bank.partial[k]:
+            f, want, tol = np.array([lo]), np.array([DEFINITION_EDGE_DB]), np.array([DEFINITION_TOLERANCE_DB])
+        else:
+            f = np.array([fc, lo, hi])
+            want = np.array([DEFINITION_CENTRE_DB, DEFINITION_EDGE_DB, DEFINITION_EDGE_DB])
+            tol = np.array([DEFINITION_CENTRE_TOLERANCE_DB, DEFINITION_TOLERANCE_DB, DEFINITION_TOLERANCE_DB])
+        _, h = sosfreqz(sos, worN=f, fs=bank.fs)
+        with np.errstate(divide="ignore"):
+            db = 20.0 * np.log10(np.abs(h)) / bank.passes
+        if not np.all(np.abs(db - want) <= tol):
+            raise ComputationError(
+                f"the {fc:g} Hz octave filter at {bank.fs} Hz misses its definition (gain "
+                f"{', '.join(f'{v:.2f}' for v in db)} dB at {', '.join(f'{v:.0f}' for v in f)} Hz)",
+                "use a sample rate of 44100 or 48000 Hz",
+            )
 
 
 def octave_sos(fs: int, order: int = std.OCTAVE_FILTER_ORDER) -> tuple[np.ndarray, ...]:
@@ -290,3 +341,34 @@ class EnvelopeStream:
             out[k] = e[first::self.q]
         self.offset += x.size
         return np.maximum(out, 0.0) if self.clip_negative else out
+
+
+def _group_delay(sos: np.ndarray, f: float, fs: int) -> float:
+    """Group delay of ``sos`` at ``f``, s (phase difference over +-0.1 % of f)."""
+    from scipy.signal import sosfreqz
+
+    f2 = np.array([f * (1.0 - 1e-3), f * (1.0 + 1e-3)])
+    _, h = sosfreqz(sos, worN=f2, fs=fs)
+    return float(-np.angle(h[1] / h[0]) / (2.0 * np.pi * (f2[1] - f2[0])))
+
+
+#: Modulation frequency at which the envelope low-pass's group delay is taken, Hz (the
+#: delay of a 4th-order Butterworth at 50 Hz is constant within 1 % below 16 Hz).
+DELAY_MODULATION_HZ: float = 2.0
+
+
+@lru_cache(maxsize=16)
+def envelope_delays(fs: int, *, band_passes: int = 1, cutoff_hz: float = 50.0, target_hz: float = 200.0,
+                    order: int = ENVELOPE_LOWPASS_ORDER) -> tuple[int, ...]:
+    """Delay of each band's causal envelope (:class:`EnvelopeStream`) behind the signal,
+    in envelope samples.
+
+    The group delay of the (cascaded) band filter at the band centre (the envelope of a
+    narrow-band signal travels at the group delay) plus that of the low-pass at the
+    modulation frequencies (:data:`DELAY_MODULATION_HZ`), rounded to envelope samples.
+    The seven bands must all be present (``beyond_nyquist="refuse"``).
+    """
+    st = EnvelopeStream(fs, cutoff_hz=cutoff_hz, target_hz=target_hz, order=order, band_passes=band_passes)
+    lp = _group_delay(st.lp, DELAY_MODULATION_HZ, st.fs)
+    return tuple(int(round((_group_delay(sos, fc, st.fs) + lp) * st.rate))
+                 for fc, sos in zip(std.OCTAVE_BANDS_HZ, st.sos))

@@ -50,7 +50,6 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
-from functools import lru_cache
 from pathlib import Path
 from typing import Callable, Iterator, Sequence
 
@@ -59,7 +58,7 @@ import numpy as np
 from . import cautions as cau
 from . import standards as std
 from .audio import StreamCheck, audio_info, check_rate, iter_audio_blocks, rms_dbfs, validate_signal
-from .bands import EnvelopeStream, check_rate_for_octaves, octave_bands
+from .bands import EnvelopeStream, check_rate_for_octaves, envelope_delays, octave_bands
 from .exceptions import InputError
 from .modulation import modulation_depths, mtf_from_test_signal
 from .results import jsonable
@@ -392,28 +391,6 @@ def _check_length(n: int, fs: int, name: str) -> None:
         )
 
 
-@lru_cache(maxsize=16)
-def _envelope_delays(fs: int) -> tuple[int, ...]:
-    """Delay of each band's causal envelope behind the signal, in envelope samples.
-
-    The group delay of the cascaded band filter at the band centre (the envelope of a
-    narrow-band signal travels at the group delay) plus that of the low-pass at the
-    modulation frequencies (constant within 1 % below 16 Hz for a 4th-order Butterworth
-    at 50 Hz), rounded to envelope samples.
-    """
-    from scipy.signal import sosfreqz
-
-    st = EnvelopeStream(fs, band_passes=BAND_PASSES)
-
-    def group_delay(sos: np.ndarray, f: float) -> float:
-        f2 = np.array([f * (1.0 - 1e-3), f * (1.0 + 1e-3)])
-        _, h = sosfreqz(sos, worN=f2, fs=fs)
-        return float(-np.angle(h[1] / h[0]) / (2.0 * np.pi * (f2[1] - f2[0])))
-
-    lp = group_delay(st.lp, 2.0)
-    return tuple(int(round((group_delay(sos, fc) + lp) * st.rate)) for fc, sos in zip(std.OCTAVE_BANDS_HZ, st.sos))
-
-
 def _analyse_blocks(
     blocks: BlockSource, fs: int, n_expected: int, block: int, min_seconds: float, name: str,
     advice: str | None, check: StreamCheck | None, ticks: _Ticks | None,
@@ -439,7 +416,7 @@ def _analyse_blocks(
 
     stream = EnvelopeStream(fs, band_passes=BAND_PASSES)
     q = stream.q
-    delays = _envelope_delays(fs)
+    delays = envelope_delays(fs, band_passes=BAND_PASSES)
     p0 = part.signal_start  # the margin GUARD_S absorbs the filters' start-up
     p1 = min(n, part.stop + (max(delays) + 2) * q)
     if ticks is not None:

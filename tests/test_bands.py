@@ -11,12 +11,14 @@ from scipy.signal import butter, sosfilt, sosfiltfilt, sosfreqz
 
 from envpredict.bands import (
     EnvelopeStream,
+    check_filterbank,
+    envelope_delays,
     lowpass_sos,
     octave_bands,
     octave_filterbank,
     octave_sos,
 )
-from envpredict.exceptions import InputError
+from envpredict.exceptions import ComputationError, InputError
 
 # IEC 60268-16:2011, 5.1: the seven octave bands of the STI
 CENTRES = (125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0, 8000.0)
@@ -175,3 +177,44 @@ def test_envelope_stream_recovers_modulation_depth():
     n = int(6 * s.rate)  # whole periods
     c = 2 * np.abs(np.sum(env[:n] * np.exp(-2j * np.pi * 2.0 * tt[:n]))) / np.sum(env[:n])
     assert c == pytest.approx(0.5, abs=0.05)
+
+
+def test_filter_definition_check_refuses_a_wrong_band():
+    # the check run beside the design: a band whose edges are 5 % off misses -3.01 dB there
+    from dataclasses import replace
+
+    bank = octave_filterbank(48000)
+    wrong = design(1000.0 * 1.05, 48000)
+    bad = replace(bank, sos=bank.sos[:3] + (wrong,) + bank.sos[4:])
+    with pytest.raises(ComputationError, match="1000 Hz octave filter"):
+        check_filterbank(bad)
+    check_filterbank(bank)  # the real one passes
+
+
+@pytest.mark.parametrize("passes", [1, 2])
+def test_envelope_delays_match_a_measured_burst(passes):
+    # a Gaussian tone burst at each band centre (sigma 0.15 s: a few Hz wide, well inside
+    # the band): its intensity envelope peaks at t0 at the input; the streamed envelope
+    # peaks one group delay later (band filter at fc plus envelope low-pass). Measured
+    # here (parabolic peak) at a 1 kHz envelope rate, so that one envelope sample is 1 ms:
+    # the stated delay agrees within one sample (rounding plus the peak estimate)
+    fs, rate = 24000, 1000.0
+    t = np.arange(3 * fs) / fs
+    t0 = 1.5
+    delays = envelope_delays(fs, band_passes=passes, target_hz=rate)
+    for k, fc in enumerate(CENTRES):
+        x = np.cos(2 * np.pi * fc * t) * np.exp(-(((t - t0) / 0.15) ** 2))
+        env = EnvelopeStream(fs, band_passes=passes, target_hz=rate).process(x)[k]
+        i = int(np.argmax(env))
+        y0, y1, y2 = env[i - 1: i + 2]
+        measured = i + 0.5 * (y0 - y2) / (y0 - 2 * y1 + y2) - t0 * rate
+        assert abs(measured - delays[k]) <= 1.0, (fc, measured, delays[k])
+
+
+def test_factory_runs_the_definition_check(monkeypatch):
+    import envpredict.bands as bands
+
+    seen = []
+    monkeypatch.setattr(bands, "check_filterbank", lambda bank: seen.append(bank.fs))
+    bands.octave_filterbank(47999, passes=3)  # a design not in the cache yet
+    assert seen == [47999]
