@@ -372,3 +372,20 @@ def test_ssti_regression_falls_with_reverberation():
         y = fftconvolve(x, rng.standard_normal(t.size) * np.exp(-6.9 * t / T))[: x.size]
         vals.append(pair_indices(x, y, fs, align=False).ssti_regression)
     assert vals[0] > vals[1] > vals[2]
+
+
+def test_speech_sti_computes_only_the_speech_based_sti(monkeypatch):
+    # speech_sti shares the pair job's checks and envelopes but runs no STOI/ESTOI pass;
+    # the value is the pair job's ssti, bit for bit
+    import envpredict.pair as pair
+
+    fs = 16000
+    x = speech_like(4.0, fs, 51)
+    y = at_snr(x, speech_shaped_noise(x, 52), 0)
+    want = pair_indices(x, y, fs, align=False).ssti
+
+    def no_stoi(*args, **kwargs):
+        raise AssertionError("speech_sti ran the STOI/ESTOI pass")
+
+    monkeypatch.setattr(pair, "stoi_estoi_stream", no_stoi)
+    assert speech_sti(x, y, fs) == want
