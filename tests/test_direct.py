@@ -403,12 +403,16 @@ def test_full_sti_direct_and_any_order(full_set):
 
 
 def test_full_sti_round_trip(full_set):
+    # analytic MTF (Houtgast & Steeneken) at the 14 frequencies. Tolerance measured: over
+    # 5 seeds (12-16) the STI was off by 0.0002-0.0059 (the 14 recordings, each through
+    # its own IR realisation, average the scatter that a single STIPA recording shows):
+    # 0.015 allowed, 2.5 times the largest
     rng = np.random.default_rng(12)
     T, snr = 1.0, 6.0
     recs = [(room_recording(x, FS, T, snr, rng), fs, name) for x, fs, name in full_set]
     r = full_sti_from_recordings(recs)
     want = analytic_sti(FULL_F, T, snr)
-    assert abs(r.sti.sti - want) <= 0.03, (r.sti.sti, want)
+    assert abs(r.sti.sti - want) <= 0.015, (r.sti.sti, want)
 
 
 def test_full_sti_set_must_be_complete(full_set):
