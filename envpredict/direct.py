@@ -30,7 +30,8 @@ The path from a recording to the index:
    envelope onto the known frequency (Houtgast & Steeneken's definition of the
    modulation index). The fluctuation of the noise carrier itself adds a random
    phasor; its mean power is estimated from the envelope spectrum at the other,
-   unused frequencies of the same window and subtracted from the squared depth.
+   unused frequencies of the same window and subtracted from the squared depth
+   (:func:`envpredict.modulation.modulation_depths`; this module only orchestrates).
 4. **MTF** = measured depth / nominal depth of the signal (0.55 for STIPA, 1 for
    full STI), then :func:`envpredict.sti.sti_from_mtf` -- the one code path for every
    STI in this tool.
@@ -49,7 +50,6 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
-from functools import lru_cache
 from pathlib import Path
 from typing import Callable, Iterator, Sequence
 
@@ -58,8 +58,9 @@ import numpy as np
 from . import cautions as cau
 from . import standards as std
 from .audio import StreamCheck, audio_info, check_rate, iter_audio_blocks, rms_dbfs, validate_signal
-from .bands import EnvelopeStream, check_rate_for_octaves, octave_bands
+from .bands import EnvelopeStream, check_rate_for_octaves, envelope_delays, octave_bands
 from .exceptions import InputError
+from .modulation import modulation_depths, mtf_from_test_signal
 from .results import jsonable
 from .signals import SETTLE_S
 from .sti import StiResult, check_talker, parse_noise_levels, sti_from_mtf
@@ -107,19 +108,6 @@ BLOCK_SECONDS: float = 20.0
 #: A single causal pass has half the attenuation in dB outside the band; the neighbouring
 #: STIPA bands then leak in and dilute the depths (an undistorted signal reads about 0.83).
 BAND_PASSES: int = 2
-
-#: Modulation frequencies outside this range are not used for the noise-floor
-#: estimate of the envelope spectrum, Hz (slow level drift below; envelope filter
-#: roll-off above).
-FLOOR_BAND_HZ: tuple[float, float] = (0.4, 16.0)
-
-#: Bins within this many DFT bins of a modulation frequency of the signal are not
-#: used for the noise-floor estimate.
-FLOOR_EXCLUDE_BINS: int = 2
-
-#: Number of unused envelope-spectrum bins nearest to a modulation frequency that give
-#: its local noise floor.
-LOCAL_FLOOR_BINS: int = 12
 
 #: A modulation is "found" where its depth is this many times the local RMS depth of
 #: the envelope noise (for a continuous modulation spectrum -- noise, speech, music --
@@ -298,89 +286,6 @@ def _usable_from_frames(
     return UsablePart(start=start, stop=stop, signal_start=s0, signal_stop=s1, fs=int(fs))
 
 
-def _whole_periods(n: int, fs_env: float, f: float) -> int:
-    """Samples of the longest window of whole periods of ``f`` within ``n`` samples."""
-    periods = int(np.floor(n / fs_env * f + 1e-9))
-    return int(round(periods / f * fs_env)) if periods > 0 else 0
-
-
-#: Envelope samples per piece of the projection onto the modulation frequencies (bounds
-#: the memory of the complex phasors for hours-long envelopes; changes no number beyond
-#: rounding).
-PROJECTION_CHUNK: int = 1 << 16
-
-
-def _project(e: np.ndarray, freqs: np.ndarray, fs_env: float) -> np.ndarray:
-    """``sum_t e(t) exp(-j 2 pi F t)`` for each F in ``freqs`` (t = index / fs_env), in pieces."""
-    out = np.zeros(len(freqs), dtype=complex)
-    f = np.asarray(freqs, dtype=float)[:, None]
-    for c in range(0, e.size, PROJECTION_CHUNK):
-        t = np.arange(c, min(e.size, c + PROJECTION_CHUNK)) / fs_env
-        out += np.exp(-2j * np.pi * f * t) @ e[c: c + t.size]
-    return out
-
-
-def band_depths(
-    env: np.ndarray,
-    fs_env: float,
-    freqs: np.ndarray,
-    exclude_hz: Sequence[float],
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Modulation depths of intensity envelopes at known frequencies.
-
-    Parameters
-    ----------
-    env : (bands, n) intensity envelopes.
-    fs_env : envelope sample rate, Hz.
-    freqs : (bands, F) modulation frequencies per band; the window of band k is the
-        longest whole number of periods of ``min(freqs[k])`` (every other frequency of
-        the band must be a whole multiple of it).
-    exclude_hz : all modulation frequencies of the signal (kept out of the noise floor).
-
-    Returns
-    -------
-    depth : (bands, F) noise-corrected depths, sqrt(max(|d|^2 - floor^2, 0)).
-    raw : (bands, F) uncorrected depths 2|X(F)|/X(0).
-    floor : (bands,) RMS depth of the envelope noise at unused frequencies of the
-        window (median-based, over 0.4-16 Hz).
-    local : (bands, F) the same from the :data:`LOCAL_FLOOR_BINS` unused bins nearest to
-        each frequency (for telling a line from a continuous modulation spectrum).
-    """
-    nb, nf = freqs.shape
-    raw = np.full((nb, nf), np.nan)
-    local = np.full((nb, nf), np.nan)
-    floor = np.full(nb, np.nan)
-    for k in range(nb):
-        n = _whole_periods(env.shape[1], fs_env, float(np.min(freqs[k])))
-        if n < 8:
-            continue
-        e = env[k, :n]
-        dc = float(np.sum(e))
-        if dc <= 0:
-            raw[k] = 0.0
-            floor[k] = local[k] = np.inf
-            continue
-        raw[k] = 2.0 * np.abs(_project(e, freqs[k], fs_env)) / dc
-        spec = 2.0 * np.abs(np.fft.rfft(e)) / dc
-        fb = np.arange(spec.size) * fs_env / n
-        keep = (fb >= FLOOR_BAND_HZ[0]) & (fb <= FLOOR_BAND_HZ[1])
-        df = fs_env / n
-        for f in exclude_hz:
-            keep &= np.abs(fb - f) > FLOOR_EXCLUDE_BINS * df
-        if not np.any(keep):
-            continue
-        p2, fk = spec[keep] ** 2, fb[keep]
-        # the median of |d|^2 of a complex Gaussian phasor is ln(2) times its mean
-        # power; the median keeps distortion products and stray lines out
-        floor[k] = float(np.sqrt(np.median(p2) / np.log(2.0)))
-        for i, f in enumerate(freqs[k]):
-            near = np.argsort(np.abs(fk - f))[:LOCAL_FLOOR_BINS]
-            local[k, i] = float(np.sqrt(np.median(p2[near]) / np.log(2.0)))
-    fl = np.where(np.isfinite(floor), floor, 0.0)
-    depth = np.sqrt(np.clip(raw ** 2 - fl[:, None] ** 2, 0.0, None))
-    return depth, raw, floor, local
-
-
 def calibration_from_tone(x: np.ndarray, fs: int, level_db: float, *, name: str = "calibrator recording") -> float:
     """Calibration offset from a recording of a 1 kHz calibrator at a stated level.
 
@@ -486,28 +391,6 @@ def _check_length(n: int, fs: int, name: str) -> None:
         )
 
 
-@lru_cache(maxsize=16)
-def _envelope_delays(fs: int) -> tuple[int, ...]:
-    """Delay of each band's causal envelope behind the signal, in envelope samples.
-
-    The group delay of the cascaded band filter at the band centre (the envelope of a
-    narrow-band signal travels at the group delay) plus that of the low-pass at the
-    modulation frequencies (constant within 1 % below 16 Hz for a 4th-order Butterworth
-    at 50 Hz), rounded to envelope samples.
-    """
-    from scipy.signal import sosfreqz
-
-    st = EnvelopeStream(fs, band_passes=BAND_PASSES)
-
-    def group_delay(sos: np.ndarray, f: float) -> float:
-        f2 = np.array([f * (1.0 - 1e-3), f * (1.0 + 1e-3)])
-        _, h = sosfreqz(sos, worN=f2, fs=fs)
-        return float(-np.angle(h[1] / h[0]) / (2.0 * np.pi * (f2[1] - f2[0])))
-
-    lp = group_delay(st.lp, 2.0)
-    return tuple(int(round((group_delay(sos, fc) + lp) * st.rate)) for fc, sos in zip(std.OCTAVE_BANDS_HZ, st.sos))
-
-
 def _analyse_blocks(
     blocks: BlockSource, fs: int, n_expected: int, block: int, min_seconds: float, name: str,
     advice: str | None, check: StreamCheck | None, ticks: _Ticks | None,
@@ -533,7 +416,7 @@ def _analyse_blocks(
 
     stream = EnvelopeStream(fs, band_passes=BAND_PASSES)
     q = stream.q
-    delays = _envelope_delays(fs)
+    delays = envelope_delays(fs, band_passes=BAND_PASSES)
     p0 = part.signal_start  # the margin GUARD_S absorbs the filters' start-up
     p1 = min(n, part.stop + (max(delays) + 2) * q)
     if ticks is not None:
@@ -768,12 +651,12 @@ def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_
     ticks.retotal(1)  # reports (0, 1): started
     rec = analyse(min_s, ticks)
     exclude = sorted(set(pairs.ravel()))
-    depth, raw, floor, local = band_depths(rec.env, rec.fs_env, pairs, exclude)
+    depth, raw, floor, local = modulation_depths(rec.env, rec.fs_env, pairs, exclude)
     _check_found(raw, local, "STIPA", name)
     nom = std.STIPA_MODULATION_DEPTH
     nwin = _window_count(rec.env.shape[1], rec.fs_env, f_low)
     edges = np.linspace(0, rec.env.shape[1], nwin + 1).astype(int)
-    mtf_w = [band_depths(rec.env[:, a:b], rec.fs_env, pairs, exclude)[0] / nom
+    mtf_w = [mtf_from_test_signal(rec.env[:, a:b], rec.fs_env, pairs, nom, exclude)
              for a, b in zip(edges[:-1], edges[1:])]
     info = {"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3), **rec.part.to_dict()}
     out = _finish("STIPA", depth / nom, mtf_w, std.STIPA_MODULATION_HZ, depth, nom, floor,
@@ -888,7 +771,7 @@ def _full_sti(
         raw = np.zeros((nb, nf))
         fl = np.zeros((nb, nf))
         for j in range(nf):
-            _, raw[:, j:j + 1], _, fl[:, j:j + 1] = band_depths(rec.env, rec.fs_env, cand[:, j:j + 1], freqs)
+            _, raw[:, j:j + 1], _, fl[:, j:j + 1] = modulation_depths(rec.env, rec.fs_env, cand[:, j:j + 1], freqs)
         # evidence per candidate: mean over bands of (depth / local noise depth)^2; for
         # a continuous modulation spectrum each term is about Exp(1), so a mean above
         # FULL_FOUND_SCORE happens by chance with probability below 1e-6
@@ -912,7 +795,7 @@ def _full_sti(
                 f"signal; at least {_ceil1(need + 2 * GUARD_S):.1f} s of test signal is needed for {freqs[j]:g} Hz",
                 "record the whole generated signal",
             )
-        d, _, f, _ = band_depths(rec.env, rec.fs_env, freqs[j] * np.ones((nb, 1)), freqs)
+        d, _, f, _ = modulation_depths(rec.env, rec.fs_env, freqs[j] * np.ones((nb, 1)), freqs)
         depth[:, j], floor[:, j] = d[:, 0], f
         band_ms += rec.band_ms / nf
         assigned[j] = (name, rec)
@@ -927,7 +810,7 @@ def _full_sti(
         for j, (_, r) in assigned.items():
             edges = np.linspace(0, r.env.shape[1], nwin + 1).astype(int)
             seg = r.env[:, edges[w]: edges[w + 1]]
-            m[:, j] = band_depths(seg, r.fs_env, freqs[j] * np.ones((nb, 1)), freqs)[0][:, 0] / nom
+            m[:, j] = mtf_from_test_signal(seg, r.fs_env, freqs[j] * np.ones((nb, 1)), nom, freqs)[:, 0]
         mtf_w.append(m)
     infos.sort(key=lambda d: d["modulation_hz"])
     out = _finish("full STI", depth / nom, mtf_w, std.MODULATION_FREQUENCIES_HZ, depth, nom,

@@ -37,6 +37,7 @@ from .audio import (
     as_mono_array,
     audio_info,
 )
+from .bands import EnvelopeStream
 from .correlation import CorrelationResult, frame_count, stoi_estoi_stream
 from .exceptions import ComputationError, InputError
 from .modulation import mtf_from_pair_ncm, mtf_from_pair_regression
@@ -82,11 +83,6 @@ SSTI_ENVELOPE_RATE_HZ: float = 100.0
 #: a 12.5 Hz envelope gives about 25 independent samples per second, so 3 s keep it
 #: near 0.1 (1 - r^2) (judgement). Shorter pairs get ssti = null with a note.
 SSTI_MIN_SECONDS: float = 3.0
-
-#: A band whose upper edge lies above this share of the Nyquist frequency cannot be
-#: designed as a band-pass (the Butterworth design fails at Nyquist); it becomes a
-#: high-pass at its lower edge (judgement).
-NYQUIST_SHARE: float = 0.98
 
 #: Below this share of frames with speech (within 40 dB of the loudest) the result gets
 #: a note that it rests on little speech (judgement).
@@ -246,66 +242,35 @@ def _zero_lag_correlation(clean: _Source, degraded: _Source) -> float:
 # ---------------------------------------------------------------------------
 
 
-def ssti_band_filters(fs: int) -> tuple[list[np.ndarray | None], np.ndarray]:
-    """Octave band-pass SOS (IEC 61260-1 base-2 edges) for the speech-based STI at ``fs``.
-
-    A band whose upper edge lies above NYQUIST_SHARE x Nyquist is realised as a high-pass at
-    its lower edge (it holds only the part of the band below Nyquist: ``partial``); a
-    band whose lower edge is above that has no content (``None``).
-    """
-    from scipy.signal import butter
-
-    out: list[np.ndarray | None] = []
-    partial = np.zeros(len(std.OCTAVE_BANDS_HZ), dtype=bool)
-    top = NYQUIST_SHARE * fs / 2.0
-    for k, fc in enumerate(std.OCTAVE_BANDS_HZ):
-        lo, hi = fc / std.OCTAVE_EDGE_FACTOR, fc * std.OCTAVE_EDGE_FACTOR
-        if lo >= top:
-            out.append(None)
-            partial[k] = True
-        elif hi >= top:
-            out.append(butter(std.OCTAVE_FILTER_ORDER, lo, btype="highpass", fs=fs, output="sos"))
-            partial[k] = True
-        else:
-            out.append(butter(std.OCTAVE_FILTER_ORDER, [lo, hi], btype="bandpass", fs=fs, output="sos"))
-    return out, partial
-
-
 def _ssti_envelopes(
     clean: _Source, degraded: _Source, chunk_s: float, progress: Callable[[], None] | None = None
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
     """Octave-band intensity envelopes (7, m) of both signals, causal filters streamed.
 
-    Band-pass, square, low-pass at SSTI_ENVELOPE_LOWPASS_HZ, keep every q-th sample.
-    The filters are causal with their state carried across chunks, so the result does
-    not depend on the chunk length (both signals are delayed alike, which leaves the
-    correlation unchanged). Bands without content are NaN.
+    :class:`envpredict.bands.EnvelopeStream` with the speech-based STI's options: band-pass
+    (a band reaching the Nyquist frequency as a high-pass at its lower edge), square,
+    low-pass at SSTI_ENVELOPE_LOWPASS_HZ, keep every q-th sample, no clipping of the
+    low-pass's ringing below zero. The filters are causal with their state carried across
+    chunks, so the result does not depend on the chunk length (both signals are delayed
+    alike, which leaves the correlation unchanged). Bands without content are NaN.
+    Returns the envelopes, the bands that are partial or absent, and the envelope rate.
     """
-    from scipy.signal import butter, sosfilt, sosfilt_zi
-
     fs = clean.fs
-    sos_bands, _partial = ssti_band_filters(fs)
-    q = max(1, int(fs // SSTI_ENVELOPE_RATE_HZ))
-    lp = butter(SSTI_ENVELOPE_ORDER, SSTI_ENVELOPE_LOWPASS_HZ, btype="lowpass", fs=fs, output="sos")
-    nb = len(sos_bands)
-    m = -(-clean.n // q)
-    env = np.full((2, nb, m), np.nan)
-    zi_b = [[None if s is None else np.zeros_like(sosfilt_zi(s)) for s in sos_bands] for _ in range(2)]
-    zi_l = [[np.zeros_like(sosfilt_zi(lp)) for _ in range(nb)] for _ in range(2)]
+    streams = [EnvelopeStream(fs, cutoff_hz=SSTI_ENVELOPE_LOWPASS_HZ, order=SSTI_ENVELOPE_ORDER,
+                              target_hz=SSTI_ENVELOPE_RATE_HZ, beyond_nyquist="highpass", clip_negative=False)
+               for _ in range(2)]
+    q = streams[0].q
+    env = np.full((2, len(std.OCTAVE_BANDS_HZ), -(-clean.n // q)), np.nan)
     step = max(q, int(chunk_s * fs) // q * q)
     for a in range(0, clean.n, step):
         b = min(clean.n, a + step)
         for s, src in enumerate((clean, degraded)):
-            x = src.read(a, b)
-            for k, sos in enumerate(sos_bands):
-                if sos is None:
-                    continue
-                band, zi_b[s][k] = sosfilt(sos, x, zi=zi_b[s][k])
-                inten, zi_l[s][k] = sosfilt(lp, band * band, zi=zi_l[s][k])
-                env[s, k, a // q : a // q + -(-(b - a) // q)] = inten[::q]
+            e = streams[s].process(src.read(a, b))
+            env[s, :, a // q: a // q + e.shape[1]] = e
         if progress is not None:
             progress()
-    return env[0], env[1], _partial, fs / q
+    bank = streams[0].bank
+    return env[0], env[1], bank.partial | ~bank.present, streams[0].rate
 
 
 # ---------------------------------------------------------------------------
@@ -481,16 +446,22 @@ def _check_options(max_delay_s: float, chunk_s: float) -> tuple[float, float]:
     return md, cs
 
 
-def _pair(
-    clean: _Source,
-    degraded: _Source,
-    *,
-    align: bool,
-    max_delay_s: float,
-    chunk_s: float,
-    progress: Callable[[int, int], None] | None,
-) -> PairResult:
-    max_delay_s, chunk_s = _check_options(max_delay_s, chunk_s)
+@dataclass(frozen=True)
+class _Aligned:
+    """The pair after checks, resampling, alignment and trimming (the common part)."""
+
+    clean: _Source
+    degraded: _Source
+    lag: int
+    corr: float
+    n_common: int
+    drop: tuple[int, int]
+    notes: tuple[str, ...]
+
+
+def _align(clean: _Source, degraded: _Source, *, align: bool, max_delay_s: float) -> _Aligned:
+    """Check both signals, resample the degraded one to the clean rate, find and remove
+    the delay and trim both to their common part (every pair index starts here)."""
     notes: list[str] = []
     fs = clean.fs
     if fs < std.STOI_FS:
@@ -538,8 +509,84 @@ def _pair(
     if max(drop_c, drop_d) > 0.01 * fs:
         notes.append(f"trimmed to the common part of {n_common / fs:.2f} s "
                      f"({drop_c / fs:.3f} s of clean, {drop_d / fs:.3f} s of degraded dropped)")
-    c_al = _Window(clean, s_c, n_common)
-    d_al = _Window(deg, s_c + lag, n_common)
+    return _Aligned(clean=_Window(clean, s_c, n_common), degraded=_Window(deg, s_c + lag, n_common), lag=int(lag),
+                    corr=float(corr), n_common=int(n_common), drop=(int(drop_c), int(drop_d)), notes=tuple(notes))
+
+
+@dataclass(frozen=True)
+class _Ssti:
+    """The speech-based STI part of a pair result."""
+
+    ssti: float | None
+    regression: float | None
+    bands: SstiBands | None
+    notes: tuple[str, ...]
+
+
+def _ssti(c_al: _Source, d_al: _Source, chunk_s: float, tick: Callable[[], None] | None) -> _Ssti:
+    """Speech-based STI (NCM and envelope regression) of an aligned pair of equal length."""
+    fs = c_al.fs
+    n_common = c_al.n
+    notes: list[str] = []
+    ssti = None
+    ssti_reg = None
+    ssti_bands = None
+    if n_common < SSTI_MIN_SECONDS * fs:
+        notes.append(f"speech-based STI not computed: the common part is shorter than {SSTI_MIN_SECONDS:g} s")
+        return _Ssti(None, None, None, tuple(notes))
+    from .sti import sti_from_mtf
+
+    x_env, y_env, partial, _fs_env = _ssti_envelopes(c_al, d_al, chunk_s, tick)
+    avail = np.all(np.isfinite(x_env), axis=1)
+    r = np.full(len(std.OCTAVE_BANDS_HZ), np.nan)
+    m_reg = np.full(len(std.OCTAVE_BANDS_HZ), np.nan)
+    if avail.any():
+        r[avail] = mtf_from_pair_ncm(x_env[avail], y_env[avail], return_correlation=True)
+        m_reg[avail] = mtf_from_pair_regression(x_env[avail], y_env[avail])
+    m = np.where(np.isfinite(r), np.clip(r, 0.0, None) ** 2, np.nan)
+    if not avail.all():
+        missing = ", ".join(f"{std.OCTAVE_BANDS_HZ[k]:g}" for k in np.flatnonzero(~avail))
+        notes.append(f"speech-based STI not computed: the octave band(s) {missing} Hz lie above the "
+                     f"Nyquist frequency of {fs} Hz (give signals sampled at 22.7 kHz or more)")
+        snr = np.full(len(std.OCTAVE_BANDS_HZ), np.nan)
+        ti = snr.copy()
+        snr_reg, ti_reg = snr.copy(), snr.copy()
+        if avail.any():
+            from .sti import transmission_index
+
+            s_, t_ = transmission_index(m[avail])
+            snr[avail], ti[avail] = s_, t_
+            s_, t_ = transmission_index(m_reg[avail])
+            snr_reg[avail], ti_reg[avail] = s_, t_
+    else:
+        res = sti_from_mtf(m[:, None], modulation_hz=(0.0,), auditory=False)
+        ssti = res.sti
+        snr, ti = res.snr_eff[:, 0], res.ti[:, 0]
+        res_reg = sti_from_mtf(m_reg[:, None], modulation_hz=(0.0,), auditory=False)
+        ssti_reg = res_reg.sti
+        snr_reg, ti_reg = res_reg.snr_eff[:, 0], res_reg.ti[:, 0]
+        if partial.any():
+            part = ", ".join(f"{std.OCTAVE_BANDS_HZ[k]:g}" for k in np.flatnonzero(partial))
+            notes.append(f"octave band(s) {part} Hz only partly below the Nyquist frequency of {fs} Hz: "
+                         "their envelope holds only the part of the band that was recorded")
+    ssti_bands = SstiBands(std.OCTAVE_BANDS_HZ, r, m, snr, ti, partial, m_reg, snr_reg, ti_reg)
+    return _Ssti(ssti, ssti_reg, ssti_bands, tuple(notes))
+
+
+def _pair(
+    clean: _Source,
+    degraded: _Source,
+    *,
+    align: bool,
+    max_delay_s: float,
+    chunk_s: float,
+    progress: Callable[[int, int], None] | None,
+) -> PairResult:
+    max_delay_s, chunk_s = _check_options(max_delay_s, chunk_s)
+    fs = clean.fs
+    al = _align(clean, degraded, align=align, max_delay_s=max_delay_s)
+    notes = list(al.notes)
+    c_al, d_al, n_common, lag = al.clean, al.degraded, al.n_common, al.lag
 
     # STOI / ESTOI on the 10 kHz grid
     c10 = c_al if fs == std.STOI_FS else _Resampled(c_al, std.STOI_FS)
@@ -570,48 +617,8 @@ def _pair(
     corr_res = stoi_estoi_stream(c10.read, d10.read, n10, chunk_frames=chunk_frames, progress=stoi_progress)
 
     # speech-based STI at the clean rate
-    ssti = None
-    ssti_reg = None
-    ssti_bands = None
-    if n_common < SSTI_MIN_SECONDS * fs:
-        notes.append(f"speech-based STI not computed: the common part is shorter than {SSTI_MIN_SECONDS:g} s")
-    else:
-        from .sti import sti_from_mtf
-
-        x_env, y_env, partial, _fs_env = _ssti_envelopes(c_al, d_al, chunk_s, tick_ssti)
-        avail = np.all(np.isfinite(x_env), axis=1)
-        r = np.full(len(std.OCTAVE_BANDS_HZ), np.nan)
-        m_reg = np.full(len(std.OCTAVE_BANDS_HZ), np.nan)
-        if avail.any():
-            r[avail] = mtf_from_pair_ncm(x_env[avail], y_env[avail], return_correlation=True)
-            m_reg[avail] = mtf_from_pair_regression(x_env[avail], y_env[avail])
-        m = np.where(np.isfinite(r), np.clip(r, 0.0, None) ** 2, np.nan)
-        if not avail.all():
-            missing = ", ".join(f"{std.OCTAVE_BANDS_HZ[k]:g}" for k in np.flatnonzero(~avail))
-            notes.append(f"speech-based STI not computed: the octave band(s) {missing} Hz lie above the "
-                         f"Nyquist frequency of {fs} Hz (give signals sampled at 22.7 kHz or more)")
-            snr = np.full(len(std.OCTAVE_BANDS_HZ), np.nan)
-            ti = snr.copy()
-            snr_reg, ti_reg = snr.copy(), snr.copy()
-            if avail.any():
-                from .sti import transmission_index
-
-                s_, t_ = transmission_index(m[avail])
-                snr[avail], ti[avail] = s_, t_
-                s_, t_ = transmission_index(m_reg[avail])
-                snr_reg[avail], ti_reg[avail] = s_, t_
-        else:
-            res = sti_from_mtf(m[:, None], modulation_hz=(0.0,), auditory=False)
-            ssti = res.sti
-            snr, ti = res.snr_eff[:, 0], res.ti[:, 0]
-            res_reg = sti_from_mtf(m_reg[:, None], modulation_hz=(0.0,), auditory=False)
-            ssti_reg = res_reg.sti
-            snr_reg, ti_reg = res_reg.snr_eff[:, 0], res_reg.ti[:, 0]
-            if partial.any():
-                part = ", ".join(f"{std.OCTAVE_BANDS_HZ[k]:g}" for k in np.flatnonzero(partial))
-                notes.append(f"octave band(s) {part} Hz only partly below the Nyquist frequency of {fs} Hz: "
-                             "their envelope holds only the part of the band that was recorded")
-        ssti_bands = SstiBands(std.OCTAVE_BANDS_HZ, r, m, snr, ti, partial, m_reg, snr_reg, ti_reg)
+    ss = _ssti(c_al, d_al, chunk_s, tick_ssti)
+    notes.extend(ss.notes)
     if corr_res.frames_kept < LOW_SPEECH_SHARE * corr_res.frames_total:
         notes.append(f"only {corr_res.frames_kept} of {corr_res.frames_total} frames carry speech "
                      "(within 40 dB of the loudest); the indices rest on little speech")
@@ -619,19 +626,19 @@ def _pair(
     return PairResult(
         stoi=corr_res.stoi,
         estoi=corr_res.estoi,
-        ssti=ssti,
-        ssti_regression=ssti_reg,
+        ssti=ss.ssti,
+        ssti_regression=ss.regression,
         delay_ms=lag / fs * 1000.0,
         delay_samples=int(lag),
-        match_correlation=float(corr),
+        match_correlation=al.corr,
         aligned=bool(align),
         fs=fs,
         fs_clean=clean.fs,
         fs_degraded=degraded.fs,
         duration_s=n_common / fs,
-        trimmed_s=(drop_c / fs, drop_d / fs),
+        trimmed_s=(al.drop[0] / fs, al.drop[1] / fs),
         correlation=corr_res,
-        ssti_bands=ssti_bands,
+        ssti_bands=ss.bands,
         notes=tuple(notes),
         chunks=n_stoi - 1,
     )
@@ -735,7 +742,10 @@ def speech_sti(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float | None
             f"clean ({c.n} samples) and degraded ({d.n} samples) differ in length",
             "pass aligned signals of equal length, or use envpredict.pair_indices",
         )
-    res = _pair(c, d, align=False, max_delay_s=0.0, chunk_s=DEFAULT_CHUNK_S, progress=None)
+    # the pair job's checks and trimming (no delay search), then only the speech-based STI:
+    # no STOI/ESTOI pass
+    al = _align(c, d, align=False, max_delay_s=0.0)
+    res = _ssti(al.clean, al.degraded, DEFAULT_CHUNK_S, None)
     if res.ssti is None:
         raise ComputationError("; ".join(n for n in res.notes if "speech-based STI" in n),
                                "see the valid range in envpredict.pair_indices")

@@ -40,7 +40,7 @@ import numpy as np
 
 from . import standards as std
 from .audio import AudioFile, StreamCheck, audio_info, check_rate, resample, validate_signal
-from .bands import envelope_rate, intensity_envelopes
+from .bands import envelope_rate, intensity_envelopes, octave_filterbank
 from .exceptions import InputError
 from .results import jsonable, round_significant
 
@@ -274,16 +274,20 @@ def yin_f0(
 # Band envelopes and modulation spectra
 # ---------------------------------------------------------------------------
 
+def _bank(fs: int):
+    """The octave filterbank of this analysis: bands reaching the Nyquist frequency left out."""
+    return octave_filterbank(int(fs), beyond_nyquist="omit")
+
+
 def usable_bands(fs: int) -> tuple[float, ...]:
     """The STI octave bands whose upper edge lies below the Nyquist frequency."""
-    return tuple(fc for fc in std.OCTAVE_BANDS_HZ if fc * std.OCTAVE_EDGE_FACTOR < 0.5 * fs * 0.98)
+    bank = _bank(fs)
+    return tuple(fc for fc, ok in zip(bank.bands_hz, bank.present) if ok)
 
 
-def _band_sos(fs: int, fc: float) -> np.ndarray:
-    from scipy.signal import butter
-
-    lo, hi = fc / std.OCTAVE_EDGE_FACTOR, fc * std.OCTAVE_EDGE_FACTOR
-    return butter(std.OCTAVE_FILTER_ORDER, [lo, hi], btype="bandpass", fs=fs, output="sos")
+def _band_filter(x: np.ndarray, fs: int, fc: float) -> np.ndarray:
+    """Zero-phase octave band ``fc`` of ``x`` (no padding)."""
+    return _bank(fs).apply(x, std.OCTAVE_BANDS_HZ.index(fc), zero_phase=True)
 
 
 def modulation_band_edges() -> np.ndarray:
@@ -533,7 +537,7 @@ class _BandStats:
     """Running figures of one octave band over the blocks (see :func:`inspect_signal`)."""
 
     def __init__(self, fs: int, fc: float, nper: int, fs_env: float) -> None:
-        self.sos = _band_sos(fs, fc)
+        self.fc = fc
         self.power = 0.0
         self.sums = np.zeros(6)  # count, sum a, sum slow, sum slow^2, sum per, sum per^2
         self.c_num = 0.0
@@ -546,7 +550,7 @@ class _BandStats:
         from scipy.signal import hilbert, sosfiltfilt
 
         s1 = s0 + seg.size
-        xb = sosfiltfilt(self.sos, seg, padtype=None)
+        xb = _band_filter(seg, fs, self.fc)
         core = slice(b0 - s0, b1 - s0)
         self.power += float(np.sum(np.square(xb[core])))
         z = hilbert(_taper_margins(xb, b0 - s0, s1 - b1))
@@ -728,7 +732,7 @@ def _inspect_stream(
     i1 = min(n, i0 + int(EXCERPT_S * fs))
     show_band = 1000.0 if 1000.0 in bands else bands[-1]
     s0, s1 = max(0, i0 - margin), min(n, i1 + margin)
-    xb = sosfiltfilt(_band_sos(fs, show_band), read(s0, s1), padtype=None)
+    xb = _band_filter(read(s0, s1), fs, show_band)
     a = np.abs(hilbert(_taper_margins(xb, i0 - s0, s1 - i1)))
     e = slice(i0 - s0, i1 - s0)
     excerpt = {

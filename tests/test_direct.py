@@ -6,6 +6,10 @@ External references:
 * The analytic MTF of an exponential decay with reverberation time T and stationary
   noise at band SNR (Houtgast & Steeneken; IEC 60268-16:2011, Annex A / 6.2):
   m(F) = [1 + (2 pi F T / 13.8)^2]^(-1/2) * 1 / (1 + 10^(-SNR/10)).
+* The STI of an MTF by the formulas of IEC 60268-16:2011, Annex A (written out here:
+  SNR = 10 log10(m/(1-m)) limited to +-15 dB, TI = (SNR + 15)/30, MTI = mean over the
+  modulation frequencies, STI = sum alpha MTI - sum beta sqrt(MTI_k MTI_k+1), male
+  weights of Table A.1), and the STIPA modulation frequencies of Annex B, Table B.1.
 """
 
 from __future__ import annotations
@@ -33,18 +37,32 @@ from envpredict.signals import full_sti_signals, stipa_signal
 from envpredict.sti import sti_from_mtf
 
 FS = 24000
-STIPA_F = np.asarray(std.STIPA_MODULATION_HZ)
-FULL_F = np.tile(np.asarray(std.MODULATION_FREQUENCIES_HZ), (7, 1))
+# IEC 60268-16:2011, Annex B, Table B.1: the two modulation frequencies of each octave band
+STIPA_F = np.array([[1.6, 8.0], [1.0, 5.0], [0.63, 3.15], [2.0, 10.0], [1.25, 6.25], [0.8, 4.0], [2.5, 12.5]])
+# IEC 60268-16:2011, 5.1: the 14 modulation frequencies of the full STI, one-third-octave steps
+FULL_F = np.tile([0.63, 0.8, 1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0, 10.0, 12.5], (7, 1))
+# IEC 60268-16:2011, Table A.1: male weights and redundancy factors
+ALPHA = np.array([0.085, 0.127, 0.230, 0.233, 0.309, 0.224, 0.173])
+BETA = np.array([0.085, 0.078, 0.065, 0.011, 0.047, 0.095])
 
 
 def analytic_mtf(F, T, snr_db=None):
-    """Houtgast & Steeneken: exponential decay with reverberation time T plus noise."""
+    """Houtgast & Steeneken: exponential decay with reverberation time T plus noise
+    (``snr_db`` one value or one per band, shape (7, 1))."""
     m = (1.0 + (2 * np.pi * F * T / 13.8) ** 2) ** -0.5
-    return m if snr_db is None else m / (1.0 + 10 ** (-snr_db / 10))
+    return m if snr_db is None else m / (1.0 + 10 ** (-np.asarray(snr_db) / 10))
 
 
-def analytic_sti(F, T, snr_db=None, modulation_hz=std.STIPA_MODULATION_HZ):
-    return sti_from_mtf(analytic_mtf(F, T, snr_db), modulation_hz=modulation_hz, auditory=False).sti
+def iec_sti(mtf):
+    """STI of a (7, F) MTF without auditory corrections, IEC 60268-16:2011 Annex A (written out)."""
+    m = np.clip(mtf, 1e-12, 1 - 1e-12)
+    ti = (np.clip(10 * np.log10(m / (1 - m)), -15, 15) + 15) / 30
+    mti = ti.mean(axis=1)
+    return float(ALPHA @ mti - BETA @ np.sqrt(mti[:-1] * mti[1:]))
+
+
+def analytic_sti(F, T, snr_db=None):
+    return iec_sti(analytic_mtf(F, T, snr_db))
 
 
 def carrier_power(y, fc, fs):
@@ -56,7 +74,8 @@ def carrier_power(y, fc, fs):
 
 def room_recording(x, fs, T, snr_db, rng):
     """Convolve with a decaying-noise IR of reverberation time T (energy -60 dB in T) and
-    add stationary noise generated band by band so that each band's SNR is snr_db."""
+    add stationary noise generated band by band so that each band's SNR is snr_db (one
+    value, or seven: one per octave band)."""
     n = int(1.6 * T * fs)
     t = np.arange(n) / fs
     h = rng.standard_normal(n) * np.exp(-6.9 * t / T)
@@ -65,11 +84,11 @@ def room_recording(x, fs, T, snr_db, rng):
         f = np.fft.rfftfreq(y.size, 1 / fs)
         half = 2 ** (std.TEST_SIGNAL_CARRIER_OCTAVES / 2)
         noise = np.zeros_like(y)
-        for fc in std.OCTAVE_BANDS_HZ:
+        for fc, snr_k in zip(std.OCTAVE_BANDS_HZ, np.broadcast_to(np.ravel(snr_db), (7,))):
             Z = np.fft.rfft(rng.standard_normal(y.size))
             Z[~((f >= fc / half) & (f < fc * half))] = 0
             z = np.fft.irfft(Z, y.size)
-            z *= np.sqrt(carrier_power(y, fc, fs) / carrier_power(z, fc, fs) / 10 ** (snr_db / 10))
+            z *= np.sqrt(carrier_power(y, fc, fs) / carrier_power(z, fc, fs) / 10 ** (snr_k / 10))
             noise += z
         y = y + noise
     return 0.5 * y / np.abs(y).max()
@@ -118,7 +137,7 @@ def test_json_keys_and_shapes(direct24):
         assert key in d
     assert np.asarray(d["mtf"]).shape == (7, 2)
     assert len(d["mti"]) == 7
-    assert d["modulation_hz"] == [list(p) for p in std.STIPA_MODULATION_HZ]
+    assert d["modulation_hz"] == STIPA_F.tolist()
     assert cau.LIFE_SAFETY in d["cautions"]
     assert NO_CALIBRATION in d["cautions"]
     assert d["calibrated"] is False and d["speech_db"] is None and d["level_dba"] is None
@@ -129,18 +148,50 @@ def test_json_keys_and_shapes(direct24):
 # --- round trip against the analytic MTF --------------------------------------------
 
 
-@pytest.mark.parametrize("T, snr", [(0.3, None), (0.5, 15.0), (0.8, 6.0), (1.2, 0.0), (2.0, None), (2.0, 3.0)])
-def test_round_trip_reverberation_and_noise(stipa24, T, snr):
-    # analytic MTF of exponential decay + noise (Houtgast & Steeneken), STIPA frequencies
-    rng = np.random.default_rng(int(T * 100) + (0 if snr is None else int(snr) + 50))
-    y = room_recording(stipa24, FS, T, snr, rng)
-    r = stipa_from_recording(y, FS)
-    want = analytic_sti(STIPA_F, T, snr)
-    assert abs(r.sti.sti - want) <= 0.03, (r.sti.sti, want)
-    # the individual MTF values scatter with the carrier's own fluctuation (largest in
-    # the narrow low bands); their median error is small
-    err = np.abs(r.sti.mtf_measured - analytic_mtf(STIPA_F, T, snr))
-    assert np.median(err) < 0.06
+ROUND_TRIP_CASES = [(0.3, None), (0.5, 15.0), (0.8, 6.0), (1.2, 0.0), (2.0, None), (2.0, 3.0)]
+
+
+def test_round_trip_reverberation_and_noise(stipa24):
+    # analytic MTF of exponential decay + noise (Houtgast & Steeneken), STIPA frequencies.
+    # Tolerances measured (5 seed sets x these 6 channels, 25 s recordings): a single
+    # recording is off by up to 0.029 in STI (the realised noise-decay IR differs from the
+    # ensemble formula, and the carrier's own envelope fluctuation scatters the depths), so
+    # 0.03 per channel is what the method achieves; the mean error over the 6 channels
+    # was -0.014 ... -0.004 (the corrected depths read slightly low through the log in
+    # the TI): 0.02 allowed. The median MTF error per recording was at most 0.046: 0.05.
+    errors = []
+    for T, snr in ROUND_TRIP_CASES:
+        rng = np.random.default_rng(int(T * 100) + (0 if snr is None else int(snr) + 50))
+        y = room_recording(stipa24, FS, T, snr, rng)
+        r = stipa_from_recording(y, FS)
+        want = analytic_sti(STIPA_F, T, snr)
+        assert abs(r.sti.sti - want) <= 0.03, (T, snr, r.sti.sti, want)
+        errors.append(r.sti.sti - want)
+        # the individual MTF values scatter with the carrier's own fluctuation (largest in
+        # the narrow low bands); their median error is small
+        err = np.abs(r.sti.mtf_measured - analytic_mtf(STIPA_F, T, snr))
+        assert np.median(err) < 0.05, (T, snr, np.median(err))
+    assert abs(np.mean(errors)) <= 0.02, errors
+
+
+def test_envelope_noise_floor_correction_on_a_noisy_channel():
+    # A channel with strong noise in the low bands (band SNR -6 ... -3 dB, T = 0.3 s) and
+    # short recordings (10 s): the envelope of the noise carrier fluctuates by itself and
+    # adds a random phasor of mean power f^2 (f: the RMS noise depth, about 0.1 in the
+    # 125 Hz band here) to every measured depth, |d|^2 = m^2 + f^2 on average. Reference:
+    # m = m_room / (1 + 10^(-SNR/10)) with m_room = [1 + (2 pi F T / 13.8)^2]^(-1/2)
+    # (Houtgast & Steeneken), m = 0.196 at 125 Hz (SNR -6 dB). Mean over 32 independent
+    # recordings of (MTF^2 - m^2) in the 125 Hz band (both frequencies): the corrected
+    # depths give +0.011 (standard error 0.006), the uncorrected ones +0.038 (fails the
+    # 0.02 allowed here by almost a factor of 2); higher bands are left out (their
+    # floor is small, and the steps of the band SNR leak between neighbouring bands).
+    T = 0.3
+    snr = np.array([-6.0, -5.0, -4.0, -3.0, 0.0, 6.0, 10.0])[:, None]
+    x = stipa_signal(15, FS, seed=3)[: 10 * FS]
+    m = analytic_mtf(STIPA_F, T, snr)
+    d2 = [(stipa_from_recording(room_recording(x, FS, T, snr, np.random.default_rng(100 + seed)), FS).depth[0]
+           / 0.55) ** 2 - m[0] ** 2 for seed in range(32)]  # 0.55: the STIPA depth, IEC 60268-16 Annex B
+    assert abs(np.mean(d2)) <= 0.02, np.mean(d2)
 
 
 def test_more_reverberation_reads_lower(stipa24):
@@ -345,19 +396,23 @@ def test_full_sti_direct_and_any_order(full_set):
     assert r.sti.sti >= 0.97  # IEC 60268-16: undistorted signal near perfect (common practice)
     d = r.to_dict()
     assert np.asarray(d["mtf"]).shape == (7, 14)
-    assert [rec["modulation_hz"] for rec in d["recordings"]] == list(std.MODULATION_FREQUENCIES_HZ)
+    assert [rec["modulation_hz"] for rec in d["recordings"]] == FULL_F[0].tolist()
     shuffled = [full_set[i] for i in np.random.default_rng(1).permutation(14)]
     r2 = full_sti_from_recordings(shuffled)
     assert r2.sti.sti == pytest.approx(r.sti.sti, abs=1e-12)
 
 
 def test_full_sti_round_trip(full_set):
+    # analytic MTF (Houtgast & Steeneken) at the 14 frequencies. Tolerance measured: over
+    # 5 seeds (12-16) the STI was off by 0.0002-0.0059 (the 14 recordings, each through
+    # its own IR realisation, average the scatter that a single STIPA recording shows):
+    # 0.015 allowed, 2.5 times the largest
     rng = np.random.default_rng(12)
     T, snr = 1.0, 6.0
     recs = [(room_recording(x, FS, T, snr, rng), fs, name) for x, fs, name in full_set]
     r = full_sti_from_recordings(recs)
-    want = analytic_sti(FULL_F, T, snr, std.MODULATION_FREQUENCIES_HZ)
-    assert abs(r.sti.sti - want) <= 0.03, (r.sti.sti, want)
+    want = analytic_sti(FULL_F, T, snr)
+    assert abs(r.sti.sti - want) <= 0.015, (r.sti.sti, want)
 
 
 def test_full_sti_set_must_be_complete(full_set):
@@ -482,29 +537,57 @@ def test_file_path_equals_array_path_for_any_block_length(lead_in_recording, lea
     assert done == sorted(done) and calls[-1][0] == calls[-1][1] and len(calls) > 3
 
 
+def reference_depths(env, fs_env, freqs):
+    """Noise-corrected modulation depths computed here with numpy: over the longest window
+    of whole periods of the band's lowest frequency, d = 2 |sum e exp(-j 2 pi F t)| / sum e
+    (Houtgast & Steeneken's modulation index); the carrier's envelope noise power is the
+    median of d^2 over the DFT bins 0.4-16 Hz more than 2 bins away from every STIPA
+    frequency, divided by ln 2 (median of an exponential distribution), and is taken off
+    the squared depth."""
+    out = np.zeros(freqs.shape)
+    used = np.unique(freqs)
+    for k in range(freqs.shape[0]):
+        n = int(round(np.floor(env.shape[1] / fs_env * freqs[k].min() + 1e-9) / freqs[k].min() * fs_env))
+        e = env[k, :n]
+        t = np.arange(n) / fs_env
+        d = 2 * np.abs(np.exp(-2j * np.pi * np.outer(freqs[k], t)) @ e) / e.sum()
+        spec = 2 * np.abs(np.fft.rfft(e)) / e.sum()
+        fb = np.fft.rfftfreq(n, 1 / fs_env)
+        keep = (fb >= 0.4) & (fb <= 16) & np.all(np.abs(fb[:, None] - used[None, :]) > 2 * fs_env / n, axis=1)
+        floor2 = np.median(spec[keep] ** 2) / np.log(2)
+        out[k] = np.sqrt(np.clip(d ** 2 - floor2, 0, None))
+    return out
+
+
 def test_block_wise_causal_path_matches_zero_phase_analysis(lead_in_recording):
-    # reference: the zero-phase octave bands and envelopes of the whole usable part in one
-    # piece (bands.octave_bands, bands.intensity_envelopes). The causal cascade has the
-    # same magnitude response and the envelope delays are taken off; its other phase
-    # response gives another realisation of the noise carrier's own envelope fluctuation,
-    # so the depths agree within that random scatter (RMS: the envelope noise depth;
-    # 2x allowed), and the STI within 0.005 (a tenth of a just-noticeable difference of
-    # 0.03; common practice, no source)
-    from envpredict.bands import intensity_envelopes, octave_bands
-    from envpredict.direct import band_depths, find_usable_part
+    # reference computed here with scipy/numpy: zero-phase octave bands of the whole
+    # recording in one piece (3rd-order Butterworth prototypes on the IEC 61260-1 base-2
+    # edges fc/sqrt(2), fc*sqrt(2), run forward and backward), intensity envelopes
+    # (squared, 4th-order 50 Hz low-pass, zero phase, decimated to 200 Hz) and the depths
+    # of :func:`reference_depths`. The tool's causal cascade has the same magnitude
+    # response and the envelope delays are taken off; its other phase response gives
+    # another realisation of the noise carrier's own envelope fluctuation, so the depths
+    # agree within that random scatter (RMS: the envelope noise depth; 2x allowed), and
+    # the STI within 0.005 (a tenth of a just-noticeable difference of 0.03; common
+    # practice, no source)
+    from scipy.signal import butter, sosfiltfilt
+
+    from envpredict.direct import find_usable_part
 
     r = stipa_from_recording(lead_in_recording, FS)
     part = find_usable_part(lead_in_recording, FS, min_seconds=4 * 0.63 ** -1)
     seg = lead_in_recording[part.signal_start: part.signal_stop]
-    env, fs_env = intensity_envelopes(octave_bands(seg, FS), FS)
     q = FS // 200
+    lp = butter(4, 50.0, "lowpass", fs=FS, output="sos")
+    env = np.array([
+        np.maximum(sosfiltfilt(lp, sosfiltfilt(butter(3, [fc / 2 ** 0.5, fc * 2 ** 0.5], "bandpass", fs=FS,
+                                                      output="sos"), seg, padtype=None) ** 2), 0)[::q]
+        for fc in (125, 250, 500, 1000, 2000, 4000, 8000)])
     a, b = (part.start - part.signal_start) // q, (part.stop - part.signal_start) // q
-    depth = band_depths(env[:, a:b], fs_env, STIPA_F, sorted(set(STIPA_F.ravel())))[0]
+    depth = reference_depths(env[:, a:b], FS / q, STIPA_F)
     assert np.all(np.abs(r.depth - depth) <= 2 * r.noise_floor[:, None]), (r.depth - depth, r.noise_floor)
     assert np.max(np.abs(r.depth - depth)[2:]) < 0.005  # 500 Hz up: wide bands, little scatter
-    want = sti_from_mtf(depth / std.STIPA_MODULATION_DEPTH, modulation_hz=std.STIPA_MODULATION_HZ,
-                        auditory=False).sti
-    assert abs(r.sti.sti - want) < 0.005
+    assert abs(r.sti.sti - iec_sti(depth / 0.55)) < 0.005  # 0.55: the STIPA depth (IEC 60268-16 Annex B)
 
 
 def test_file_path_input_errors(lead_in_wav, tmp_path, monkeypatch):

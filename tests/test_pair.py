@@ -26,7 +26,6 @@ from envpredict.pair import (
     pair_from_files,
     pair_indices,
     speech_sti,
-    ssti_band_filters,
 )
 
 pytest.importorskip("pystoi")
@@ -130,9 +129,23 @@ def test_bad_arrays():
 # --- speech-based STI (normalised-covariance method) ---------------------------
 
 
+def _octave_filters(fs: int) -> list:
+    """Octave band-passes designed here: IEC 61260-1 base-2 edges fc/sqrt(2), fc*sqrt(2),
+    3rd-order Butterworth prototypes; a band reaching 98 % of Nyquist as a high-pass at
+    its lower edge (the tool's documented treatment of the top band)."""
+    out = []
+    for fc in (125, 250, 500, 1000, 2000, 4000, 8000):
+        lo, hi = fc / 2 ** 0.5, fc * 2 ** 0.5
+        if hi >= 0.98 * fs / 2:
+            out.append(butter(3, lo, "highpass", fs=fs, output="sos"))
+        else:
+            out.append(butter(3, [lo, hi], "bandpass", fs=fs, output="sos"))
+    return out
+
+
 def _envelopes(sig: np.ndarray, fs: int) -> np.ndarray:
     """Intensity envelopes computed here, whole-signal, for the independent check."""
-    sos_bands, _ = ssti_band_filters(fs)
+    sos_bands = _octave_filters(fs)
     lp = butter(SSTI_ENVELOPE_ORDER, SSTI_ENVELOPE_LOWPASS_HZ, "lowpass", fs=fs, output="sos")
     q = int(fs // SSTI_ENVELOPE_RATE_HZ)
     return np.array([sosfilt(lp, sosfilt(s, sig) ** 2)[::q] for s in sos_bands])
@@ -359,3 +372,20 @@ def test_ssti_regression_falls_with_reverberation():
         y = fftconvolve(x, rng.standard_normal(t.size) * np.exp(-6.9 * t / T))[: x.size]
         vals.append(pair_indices(x, y, fs, align=False).ssti_regression)
     assert vals[0] > vals[1] > vals[2]
+
+
+def test_speech_sti_computes_only_the_speech_based_sti(monkeypatch):
+    # speech_sti shares the pair job's checks and envelopes but runs no STOI/ESTOI pass;
+    # the value is the pair job's ssti, bit for bit
+    import envpredict.pair as pair
+
+    fs = 16000
+    x = speech_like(4.0, fs, 51)
+    y = at_snr(x, speech_shaped_noise(x, 52), 0)
+    want = pair_indices(x, y, fs, align=False).ssti
+
+    def no_stoi(*args, **kwargs):
+        raise AssertionError("speech_sti ran the STOI/ESTOI pass")
+
+    monkeypatch.setattr(pair, "stoi_estoi_stream", no_stoi)
+    assert speech_sti(x, y, fs) == want
