@@ -35,6 +35,7 @@ import numpy as np
 
 from . import standards as std
 from .exceptions import InputError
+from .results import jsonable
 
 #: Guard against division by zero in normalisations (double-precision machine epsilon).
 EPS: float = float(np.finfo(np.float64).eps)
@@ -396,6 +397,22 @@ class CorrelationResult:
     frames_total: int
     frames_kept: int
     stoi_band_segment: np.ndarray | None = field(default=None, repr=False, compare=False)
+
+    def to_dict(self) -> dict:
+        """The indices, their per-band values and the local index of every segment."""
+        return jsonable({
+            "stoi": round(self.stoi, 4),
+            "estoi": round(self.estoi, 4),
+            "bands_hz": np.round(self.band_centres_hz, 1),
+            "stoi_band": np.round(self.stoi_band, 4),
+            "estoi_band": np.round(self.estoi_band, 4),
+            "segment_end_s": np.round(self.segment_end_s, 4),
+            "segment_stoi": np.round(self.segment_stoi, 4),
+            "segment_estoi": np.round(self.segment_estoi, 4),
+            "frames": {"total": self.frames_total, "kept": self.frames_kept},
+            "cautions": [],
+            "notes": [],
+        })
 
 
 def correlation_from_envelopes(

@@ -573,6 +573,7 @@ class DirectResult:
                 "level_dba": None if self.level_dba is None else round(self.level_dba, 1),
                 "recordings": list(self.recordings),
                 "cautions": list(self.cautions),
+                "notes": [],
             }
         )
         return jsonable(d)

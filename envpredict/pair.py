@@ -425,6 +425,7 @@ class PairResult:
                                    "on the same envelopes: m = slope x mean(clean)/mean(degraded); follows "
                                    "m = 1/(1+N/S) for steady noise",
             },
+            "cautions": [],
             "notes": list(self.notes),
         })
 
