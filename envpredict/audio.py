@@ -134,22 +134,11 @@ def load_audio(
     x : ndarray, shape (n,), float64 in [-1, 1] full scale.
     fs : int sample rate, Hz.
     """
-    import soundfile as sf
-
-    fs, frames, _ = audio_info(path, name)
-    if frames == 0:
-        raise InputError(f"{name} '{path}' contains no samples", "give a file with audio in it")
-    try:
-        data, fs = sf.read(str(path), dtype="float64", always_2d=True)
-    except Exception:
-        raise InputError(
-            f"{name} '{path}' could not be decoded (truncated or damaged file?)",
-            "re-export the file as WAV or FLAC",
-        ) from None
-    x = pick_channel(data, channel, name, str(path))
+    with FileSource(path, channel, name=name) as src:
+        x = src.read(0, src.n)
     if check:
-        validate_signal(x, fs, name=f"{name} '{path}'")
-    return x, int(fs)
+        validate_signal(x, src.fs, name=src.name)
+    return x, src.fs
 
 
 def check_rate(fs: float, name: str = "input") -> int:
