@@ -361,8 +361,15 @@ def resample(x: np.ndarray, fs_in: int, fs_out: int) -> np.ndarray:
         return np.asarray(x, dtype=np.float64)
     from scipy.signal import resample_poly
 
-    ratio = Fraction(int(fs_out), int(fs_in)).limit_denominator(2000)
-    return resample_poly(np.asarray(x, dtype=np.float64), ratio.numerator, ratio.denominator)
+    up, down = resample_ratio(fs_in, fs_out)
+    return resample_poly(np.asarray(x, dtype=np.float64), up, down)
+
+
+def resample_ratio(fs_in: int, fs_out: int) -> tuple[int, int]:
+    """``(up, down)`` factors of the polyphase resampling from ``fs_in`` to ``fs_out``
+    (the ratio in lowest terms, denominator at most 2000)."""
+    r = Fraction(int(fs_out), int(fs_in)).limit_denominator(2000)
+    return r.numerator, r.denominator
 
 
 def estimate_delay(
@@ -560,8 +567,8 @@ class Resampled(Source):
     """
 
     def __init__(self, src: Source, fs_out: int) -> None:
-        r = Fraction(int(fs_out), int(src.fs)).limit_denominator(2000)
-        self.src, self.up, self.down = src, r.numerator, r.denominator
+        self.src = src
+        self.up, self.down = resample_ratio(src.fs, fs_out)
         self.fs, self.name = int(fs_out), src.name
         self.n = -(-src.n * self.up // self.down)
         half_len = 10 * max(self.up, self.down)  # scipy's default filter half-length

@@ -39,7 +39,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import standards as std
-from .audio import ArraySource, FileSource, SignalCheck, Window, check_rate, resample, validate_signal
+from .audio import ArraySource, FileSource, SignalCheck, Window, check_rate, resample, resample_ratio, validate_signal
 from .bands import envelope_rate, intensity_envelopes
 from .exceptions import InputError
 from .results import jsonable
@@ -583,13 +583,11 @@ def _grid(fs: int, block_s: float) -> tuple[int, int, int, int, int]:
     envelopes and the resampled signal of consecutive blocks join on the same sample
     grid as the whole-signal computation.
     """
-    from fractions import Fraction
     from math import lcm
 
     q = envelope_rate(fs, ENVELOPE_RATE_HZ)[0]
     if fs > YIN_RATE_HZ:
-        r = Fraction(YIN_RATE_HZ, fs).limit_denominator(2000)  # as audio.resample
-        up, down = r.numerator, r.denominator
+        up, down = resample_ratio(fs, YIN_RATE_HZ)  # the factors of audio.resample
     else:
         up = down = 1
     g = lcm(q, down)
