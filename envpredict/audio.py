@@ -195,7 +195,9 @@ class SignalCheck:
       of the signal (clipped, then scaled down). When a later block has a higher peak the
       runs counted so far no longer apply; a run crossing a block boundary is counted
       once. A stretch of digital silence is never "at the peak" of a signal that is not
-      silent, so it is not clipping.
+      silent, so it is not clipping. "At the peak" means exactly equal: a tolerance
+      relative to a peak that may still rise could not be applied to blocks already
+      passed (clipped tops are equal samples anyway).
 
     Call :meth:`update` on every block and :meth:`finish` after the last; the errors are
     one-line ``InputError`` messages.
