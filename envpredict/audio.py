@@ -1,13 +1,27 @@
-"""Audio input: loading, validation, resampling, alignment.
+"""Audio input: the first stage of every job, one home for each of its steps.
 
-All checks of malformed audio live here and raise :class:`~envpredict.exceptions.InputError`
-with a one-line message saying what is wrong and what to do. Nothing here computes
-an index.
+* **Reading.** :func:`load_audio` for a whole file; for long inputs a *source*
+  (:class:`Source`): :class:`ArraySource`, :class:`FileSource`, and the views
+  :class:`Resampled` and :class:`Window`, each read as ``read(start, stop)`` (zeros
+  outside the signal) or in blocks (:meth:`Source.blocks`). Memory is bounded by the
+  block length.
+* **Checks.** One rule, :class:`SignalCheck`, fed the whole array by
+  :func:`validate_signal` or a stream block by block: the verdict does not depend on
+  the block length. All checks of malformed audio raise
+  :class:`~envpredict.exceptions.InputError` with a one-line message saying what is
+  wrong and what to do.
+* **Resampling** (:func:`resample`, :class:`Resampled`), **alignment**
+  (:func:`estimate_delay`, the one delay finder) and **calibration**
+  (:func:`calibration_from_tone`, :func:`check_calibration_db`).
+
+Nothing here computes an index.
 """
 
 from __future__ import annotations
 
+import math
 import os
+from collections.abc import Iterator
 from fractions import Fraction
 from pathlib import Path
 
@@ -33,6 +47,22 @@ CLIP_MIN_FULL_SCALE_SAMPLES: int = 3
 #: repeats its exact peak value four times running in several places.
 CLIP_RUN: int = 4
 CLIP_MIN_RUNS: int = 5
+
+#: Longest excerpt of the reference used to find a delay, s: enough for a stable
+#: cross-correlation peak, small enough to bound memory on long inputs (judgement).
+ALIGN_EXCERPT_S: float = 30.0
+
+#: Plausible calibrator levels, dB SPL (IEC 60942 calibrators: 94, 104, 114 dB typical).
+CALIBRATOR_LEVEL_RANGE_DB: tuple[float, float] = (60.0, 150.0)
+
+#: A calibrator recording must put at least this share of its energy in the 1 kHz
+#: octave band, and its spectral peak within this relative distance of 1 kHz (judgement).
+CALIBRATOR_BAND_SHARE: float = 0.9
+CALIBRATOR_FREQ_TOLERANCE: float = 0.05
+
+#: Plausible calibration offsets, dB SPL of a full-scale RMS signal (judgement: a
+#: microphone chain maps 0 dBFS somewhere between a whisper and beyond the threshold of pain).
+CALIBRATION_RANGE_DB: tuple[float, float] = (0.0, 200.0)
 
 AUDIO_SUFFIXES = {".wav", ".flac", ".ogg", ".oga", ".aif", ".aiff", ".caf", ".w64", ".rf64"}
 
@@ -104,22 +134,11 @@ def load_audio(
     x : ndarray, shape (n,), float64 in [-1, 1] full scale.
     fs : int sample rate, Hz.
     """
-    import soundfile as sf
-
-    fs, frames, _ = audio_info(path, name)
-    if frames == 0:
-        raise InputError(f"{name} '{path}' contains no samples", "give a file with audio in it")
-    try:
-        data, fs = sf.read(str(path), dtype="float64", always_2d=True)
-    except Exception:
-        raise InputError(
-            f"{name} '{path}' could not be decoded (truncated or damaged file?)",
-            "re-export the file as WAV or FLAC",
-        ) from None
-    x = pick_channel(data, channel, name, str(path))
+    with FileSource(path, channel, name=name) as src:
+        x = src.read(0, src.n)
     if check:
-        validate_signal(x, fs, name=f"{name} '{path}'")
-    return x, int(fs)
+        validate_signal(x, src.fs, name=src.name)
+    return x, src.fs
 
 
 def check_rate(fs: float, name: str = "input") -> int:
@@ -160,6 +179,140 @@ def as_mono_array(x, fs: float, name: str = "input", *, hint: str = "") -> tuple
     return a, fs
 
 
+class SignalCheck:
+    """The input checks of a signal, fed in blocks: the one rule for arrays and streams.
+
+    :func:`validate_signal` feeds a whole array as one block; the streamed jobs feed a
+    file block by block. Every figure is accumulated so that the verdict does not depend
+    on where the blocks are cut:
+
+    * NaN or infinite samples (refused at the first block that holds one);
+    * empty, shorter than ``min_seconds``;
+    * silent (RMS below :data:`SILENCE_RMS`) or constant (standard deviation below it);
+    * clipped: at least :data:`CLIP_MIN_FULL_SCALE_SAMPLES` samples at full scale
+      (``|x| >= CLIP_FULL_SCALE``), or at least :data:`CLIP_MIN_RUNS` flat tops of at
+      least :data:`CLIP_RUN` consecutive samples whose magnitude equals the *global* peak
+      of the signal (clipped, then scaled down). When a later block has a higher peak the
+      runs counted so far no longer apply; a run crossing a block boundary is counted
+      once. A stretch of digital silence is never "at the peak" of a signal that is not
+      silent, so it is not clipping. "At the peak" means exactly equal: a tolerance
+      relative to a peak that may still rise could not be applied to blocks already
+      passed (clipped tops are equal samples anyway).
+
+    Call :meth:`update` on every block and :meth:`finish` after the last; the errors are
+    one-line ``InputError`` messages.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> x = 0.5 * np.clip(1.5 * np.sin(np.arange(4800) / 20), -1, 1)
+    >>> check = SignalCheck("x", allow_clipping=True)
+    >>> for i in range(0, x.size, 1000):
+    ...     check.update(x[i: i + 1000])
+    >>> check.finish().clipped
+    True
+    """
+
+    def __init__(self, name: str = "input", *, allow_clipping: bool = False, min_seconds: float = 0.0,
+                 fs: float | None = None) -> None:
+        self.name = name
+        self.allow_clipping = allow_clipping
+        self.min_seconds = float(min_seconds)
+        self.fs = fs
+        self.n = 0
+        self.sumsq = 0.0
+        self._mean = 0.0
+        self._m2 = 0.0  # sum of squared deviations from the mean (Chan et al. 1979 update)
+        self.full_scale = 0
+        self.peak = 0.0
+        self._closed_runs = 0  # flat tops at the current peak, ended
+        self._open_run = 0  # length of the run at the current peak still open at the last block's end
+
+    def update(self, block: np.ndarray) -> None:
+        """Add the next block of samples (any real dtype)."""
+        b = np.asarray(block, dtype=np.float64).reshape(-1)
+        if b.size == 0:
+            return
+        finite = np.isfinite(b)
+        if not finite.all():
+            first = self.n + int(np.argmin(finite))
+            raise InputError(f"{self.name} contains NaN or infinite sample(s), the first at sample {first}",
+                             "repair or re-export the file")
+        # mean and spread, merged block by block (Chan, Golub & LeVeque 1979)
+        m = float(b.mean())
+        m2 = float(np.dot(b - m, b - m))
+        n0, nb = self.n, b.size
+        n1 = n0 + nb
+        delta = m - self._mean
+        self._mean += delta * nb / n1
+        self._m2 += m2 + delta * delta * n0 * nb / n1
+        self.n = n1
+        self.sumsq += float(np.dot(b, b))
+        ab = np.abs(b)
+        self.full_scale += int(np.count_nonzero(ab >= CLIP_FULL_SCALE))
+        bp = float(ab.max())
+        if bp > self.peak:  # a new global peak: earlier runs were below it
+            self.peak, self._closed_runs, self._open_run = bp, 0, 0
+        if bp < self.peak:
+            self._close_run()
+            return
+        at = ab == self.peak
+        d = np.diff(np.concatenate(([0], at.astype(np.int8), [0])))
+        starts, ends = np.flatnonzero(d == 1), np.flatnonzero(d == -1)
+        runs = ends - starts
+        if starts[0] == 0:
+            runs[0] += self._open_run  # continues the run open at the end of the last block
+        else:
+            self._close_run()
+        if ends[-1] == b.size:  # the last run stays open
+            self._open_run = int(runs[-1])
+            runs = runs[:-1]
+        else:
+            self._open_run = 0
+        self._closed_runs += int(np.count_nonzero(runs >= CLIP_RUN))
+
+    def _close_run(self) -> None:
+        if self._open_run >= CLIP_RUN:
+            self._closed_runs += 1
+        self._open_run = 0
+
+    @property
+    def flat_runs(self) -> int:
+        """Flat tops of at least :data:`CLIP_RUN` samples at the peak so far."""
+        return self._closed_runs + (1 if self._open_run >= CLIP_RUN else 0)
+
+    @property
+    def clipped(self) -> bool:
+        """The clipping verdict for the samples so far."""
+        return self.full_scale >= CLIP_MIN_FULL_SCALE_SAMPLES or self.flat_runs >= CLIP_MIN_RUNS
+
+    @property
+    def rms(self) -> float:
+        """RMS of the samples so far (full scale 1)."""
+        return float(np.sqrt(self.sumsq / self.n)) if self.n else 0.0
+
+    def finish(self) -> "SignalCheck":
+        """Refuse the signal if it breaks a rule (``InputError``); return the check."""
+        if self.n == 0:
+            raise InputError(f"{self.name} is empty", "give a signal with samples in it")
+        if self.min_seconds and self.fs and self.n < self.min_seconds * self.fs:
+            raise InputError(
+                f"{self.name} is {self.n / self.fs:.3f} s long; at least {self.min_seconds:.2f} s is needed",
+                "give a longer signal",
+            )
+        if self.rms < SILENCE_RMS:
+            raise InputError(f"{self.name} is silent (all samples zero or below -140 dBFS)",
+                             "check the recording chain and file")
+        if np.sqrt(max(self._m2, 0.0) / self.n) < SILENCE_RMS:
+            raise InputError(f"{self.name} holds only a constant (DC) value", "check the recording chain and file")
+        if self.clipped and not self.allow_clipping:
+            raise InputError(
+                f"{self.name} is clipped (flat tops at the peak level)",
+                "record again with less gain; a clipped signal gives wrong modulation depths",
+            )
+        return self
+
+
 def validate_signal(
     x: np.ndarray,
     fs: float,
@@ -172,47 +325,36 @@ def validate_signal(
 
     Refuses (``InputError``): non-numeric or multi-dimensional arrays, empty input,
     NaN/inf, silence, a constant (DC) signal, digital clipping, sample rates outside
-    the supported range and inputs shorter than ``min_seconds``.
+    the supported range and inputs shorter than ``min_seconds``. The rule is
+    :class:`SignalCheck`, fed the whole array as one block: a file streamed in blocks
+    gets the same verdict.
+
+    Parameters
+    ----------
+    x : 1-D signal (a (n, 1) or (1, n) array is taken as 1-D).
+    fs : sample rate, Hz.
+    name : what the signal is, for error messages.
+    allow_clipping : accept clipped signals (a degraded signal may be clipped).
+    min_seconds : shortest accepted length, s.
+
+    Returns
+    -------
+    ndarray, shape (n,), float64 (the input itself when it already is).
     """
     a, fs = as_mono_array(x, fs, name)
     a = a.astype(np.float64, copy=False)
-    if not np.all(np.isfinite(a)):
-        bad = int(np.count_nonzero(~np.isfinite(a)))
-        raise InputError(f"{name} contains {bad} NaN or infinite sample(s)", "repair or re-export the file")
-    if min_seconds and a.size < min_seconds * fs:
-        raise InputError(
-            f"{name} is {a.size / fs:.3f} s long; at least {min_seconds:.2f} s is needed",
-            "give a longer signal",
-        )
-    rms = float(np.sqrt(np.mean(a * a)))
-    if rms < SILENCE_RMS:
-        raise InputError(f"{name} is silent (all samples zero or below -140 dBFS)",
-                         "check the recording chain and file")
-    if float(np.std(a)) < SILENCE_RMS:
-        raise InputError(f"{name} holds only a constant (DC) value", "check the recording chain and file")
-    if not allow_clipping and is_clipped(a):
-        raise InputError(
-            f"{name} is clipped (flat tops at the peak level)",
-            "record again with less gain; a clipped signal gives wrong modulation depths",
-        )
+    check = SignalCheck(name, allow_clipping=allow_clipping, min_seconds=min_seconds, fs=fs)
+    check.update(a)
+    check.finish()
     return a
 
 
 def is_clipped(x: np.ndarray) -> bool:
-    """Detect digital clipping: samples at full scale, or repeated flat tops at the peak."""
-    ax = np.abs(x)
-    peak = float(ax.max())
-    if peak >= CLIP_FULL_SCALE and np.count_nonzero(ax >= CLIP_FULL_SCALE) >= CLIP_MIN_FULL_SCALE_SAMPLES:
-        return True
-    at_peak = ax >= peak * (1.0 - 1e-9)
-    if np.count_nonzero(at_peak) < CLIP_RUN * CLIP_MIN_RUNS:
-        return False
-    # runs of consecutive samples at the peak
-    d = np.diff(np.concatenate(([0], at_peak.astype(np.int8), [0])))
-    starts = np.flatnonzero(d == 1)
-    ends = np.flatnonzero(d == -1)
-    runs = ends - starts
-    return int(np.count_nonzero(runs >= CLIP_RUN)) >= CLIP_MIN_RUNS
+    """Digital clipping by the rule of :class:`SignalCheck` (samples at full scale, or
+    repeated flat tops at the global peak)."""
+    check = SignalCheck(allow_clipping=True)
+    check.update(x)
+    return check.clipped
 
 
 def resample(x: np.ndarray, fs_in: int, fs_out: int) -> np.ndarray:
@@ -221,44 +363,87 @@ def resample(x: np.ndarray, fs_in: int, fs_out: int) -> np.ndarray:
         return np.asarray(x, dtype=np.float64)
     from scipy.signal import resample_poly
 
-    ratio = Fraction(int(fs_out), int(fs_in)).limit_denominator(2000)
-    return resample_poly(np.asarray(x, dtype=np.float64), ratio.numerator, ratio.denominator)
+    up, down = resample_ratio(fs_in, fs_out)
+    return resample_poly(np.asarray(x, dtype=np.float64), up, down)
+
+
+def resample_ratio(fs_in: int, fs_out: int) -> tuple[int, int]:
+    """``(up, down)`` factors of the polyphase resampling from ``fs_in`` to ``fs_out``
+    (the ratio in lowest terms, denominator at most 2000)."""
+    r = Fraction(int(fs_out), int(fs_in)).limit_denominator(2000)
+    return r.numerator, r.denominator
 
 
 def estimate_delay(
-    reference: np.ndarray,
-    x: np.ndarray,
-    fs: int,
+    reference: "Source | np.ndarray",
+    x: "Source | np.ndarray",
+    fs: int | None = None,
     max_delay_s: float = 1.0,
+    *,
+    near: int = 0,
+    excerpt_s: float | None = None,
 ) -> tuple[int, float]:
-    """Delay of ``x`` relative to ``reference`` by FFT cross-correlation.
+    """Delay of ``x`` relative to ``reference`` by FFT cross-correlation (the one delay finder).
 
-    Returns ``(lag, correlation)``: ``x[n + lag]`` lines up with ``reference[n]``
-    (positive lag: ``x`` is late), and the normalised cross-correlation at that lag
-    over the overlapping part (1 for an exact delayed copy, near 0 for unrelated
-    signals).
+    The search uses an excerpt of the reference of at most ``excerpt_s`` (default
+    :data:`ALIGN_EXCERPT_S`) starting as close to sample ``near`` (e.g. the loudest
+    stretch of a long input) as the length allows, and the matching stretch of ``x``
+    widened by ``max_delay_s`` on each side (zeros outside ``x``): memory stays bounded
+    however long the signals are.
+
+    Parameters
+    ----------
+    reference, x : :class:`Source` objects at the same rate, or 1-D arrays (then ``fs``
+        is needed).
+    fs : sample rate of arrays, Hz (ignored for sources).
+    max_delay_s : largest delay searched, s (both directions).
+    near : sample of the reference the excerpt should start at.
+    excerpt_s : longest excerpt of the reference used, s.
+
+    Returns
+    -------
+    lag : int, samples: ``x[n + lag]`` lines up with ``reference[n]`` (positive: ``x``
+        is late); the lag maximising the magnitude of the cross-correlation.
+    correlation : float, the cross-correlation at ``lag`` divided by the root of the
+        energies of the reference excerpt and of the stretch of ``x`` it is matched
+        with (1 for an exact delayed copy, near 0 for unrelated signals; negative for
+        inverted polarity).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> ref = np.random.default_rng(0).standard_normal(8000)
+    >>> lag, corr = estimate_delay(ref, np.concatenate([np.zeros(120), ref]), 8000, 0.1)
+    >>> lag, round(corr, 6)
+    (120, 1.0)
     """
     from scipy.signal import fftconvolve
 
-    ref = np.asarray(reference, dtype=np.float64)
-    sig = np.asarray(x, dtype=np.float64)
-    max_lag = int(round(max_delay_s * fs))
-    cc = fftconvolve(sig, ref[::-1], mode="full")  # index i -> lag i - (len(ref) - 1)
-    lags = np.arange(cc.size) - (ref.size - 1)
-    keep = np.abs(lags) <= max_lag
-    cc, lags = cc[keep], lags[keep]
+    ref_src, x_src = _as_source(reference, fs, "reference"), _as_source(x, fs, "signal")
+    rate = ref_src.fs
+    d = round(max_delay_s * rate)
+    w = min(ref_src.n, int((ALIGN_EXCERPT_S if excerpt_s is None else excerpt_s) * rate))
+    s0 = max(0, min(int(near), ref_src.n - w))
+    ref = ref_src.read(s0, s0 + w)
+    sig = x_src.read(s0 - d, s0 + w + d)
+    cc = fftconvolve(sig, ref[::-1], mode="valid")  # index i -> lag i - d
     i = int(np.argmax(np.abs(cc)))
-    lag = int(lags[i])
-    # normalised correlation over the overlap at this lag
-    if lag >= 0:
-        a, b = ref[: max(0, sig.size - lag)], sig[lag:]
-    else:
-        a, b = ref[-lag:], sig[: max(0, ref.size + lag)]
-    n = min(a.size, b.size)
-    a, b = a[:n], b[:n]
-    den = float(np.sqrt(np.sum(a * a) * np.sum(b * b)))
-    corr = float(np.sum(a * b) / den) if den > 0 else 0.0
+    lag = i - d
+    matched = x_src.read(s0 + lag, s0 + lag + w)
+    den = math.sqrt(float(np.dot(ref, ref)) * float(np.dot(matched, matched)))
+    corr = float(cc[i] / den) if den > 0 else 0.0
     return lag, corr
+
+
+def zero_lag_correlation(reference: "Source | np.ndarray", x: "Source | np.ndarray", fs: int | None = None, *,
+                         excerpt_s: float | None = None) -> float:
+    """Normalised correlation of two signals taken as aligned (lag 0), over their common
+    start of at most ``excerpt_s`` (default :data:`ALIGN_EXCERPT_S`)."""
+    ref_src, x_src = _as_source(reference, fs, "reference"), _as_source(x, fs, "signal")
+    w = min(ref_src.n, x_src.n, int((ALIGN_EXCERPT_S if excerpt_s is None else excerpt_s) * ref_src.fs))
+    a, b = ref_src.read(0, w), x_src.read(0, w)
+    den = math.sqrt(float(np.dot(a, a)) * float(np.dot(b, b)))
+    return float(np.dot(a, b) / den) if den > 0 else 0.0
 
 
 def rms_dbfs(x: np.ndarray) -> float:
@@ -267,136 +452,228 @@ def rms_dbfs(x: np.ndarray) -> float:
     return 20.0 * np.log10(r) if r > 0 else -np.inf
 
 
-class StreamCheck:
-    """The checks of :func:`validate_signal`, accumulated block by block for long files.
+# ---------------------------------------------------------------------------
+# Sources: one channel of a signal, read in blocks
+# ---------------------------------------------------------------------------
 
-    Call :meth:`update` on every block and :meth:`finish` at the end; errors are the same
-    ``InputError`` messages as for a whole signal.
+
+class Source:
+    """One channel of a signal, ``n`` samples at ``fs`` Hz, read a stretch at a time.
+
+    :meth:`read` returns samples ``start .. stop-1`` as float64 with zeros outside
+    ``0 .. n-1`` (so filter margins and shifted views need no special case);
+    :meth:`blocks` iterates over consecutive blocks. Every job that reads a signal in
+    pieces (the direct method, the pair job, inspection, STOI) reads it through a source,
+    so an array in memory and a file on disk take the same path. Subclasses implement
+    ``_read(start, stop)`` for ``0 <= start < stop <= n``.
     """
 
-    def __init__(self, name: str = "input", allow_clipping: bool = False) -> None:
-        self.name = name
-        self.allow_clipping = allow_clipping
-        self.n = 0
-        self.sum = 0.0
-        self.sumsq = 0.0
-        self.full_scale = 0
-        self.flat_runs = 0
-        self.peak = 0.0
+    n: int
+    fs: int
+    name: str
 
-    def update(self, block: np.ndarray) -> None:
-        b = np.asarray(block, dtype=np.float64)
-        if not np.all(np.isfinite(b)):
-            bad = int(np.count_nonzero(~np.isfinite(b)))
-            raise InputError(f"{self.name} contains {bad} NaN or infinite sample(s) near {self.n} samples in",
-                             "repair or re-export the file")
-        self.n += b.size
-        self.sum += float(b.sum())
-        self.sumsq += float(b @ b)
-        ab = np.abs(b)
-        self.full_scale += int(np.count_nonzero(ab >= CLIP_FULL_SCALE))
-        if b.size:
-            self.peak = max(self.peak, float(ab.max()))
-            at = ab >= float(ab.max()) * (1.0 - 1e-9)
-            d = np.diff(np.concatenate(([0], at.astype(np.int8), [0])))
-            runs = np.flatnonzero(d == -1) - np.flatnonzero(d == 1)
-            self.flat_runs += int(np.count_nonzero(runs >= CLIP_RUN))
+    def _read(self, start: int, stop: int) -> np.ndarray:  # pragma: no cover - interface
+        raise NotImplementedError
 
-    def finish(self) -> None:
-        if self.n == 0:
-            raise InputError(f"{self.name} is empty", "give a signal with samples in it")
-        mean = self.sum / self.n
-        rms = np.sqrt(self.sumsq / self.n)
-        if rms < SILENCE_RMS:
-            raise InputError(f"{self.name} is silent (all samples zero or below -140 dBFS)",
-                             "check the recording chain and file")
-        if np.sqrt(max(self.sumsq / self.n - mean * mean, 0.0)) < SILENCE_RMS:
-            raise InputError(f"{self.name} holds only a constant (DC) value", "check the recording chain and file")
-        clipped = self.full_scale >= CLIP_MIN_FULL_SCALE_SAMPLES or self.flat_runs >= CLIP_MIN_RUNS
-        if clipped and not self.allow_clipping:
-            raise InputError(f"{self.name} is clipped (flat tops at the peak level)",
-                             "record again with less gain; a clipped signal gives wrong modulation depths")
+    def read(self, start: int, stop: int) -> np.ndarray:
+        """Samples ``start .. stop-1`` (float64), zeros outside the signal."""
+        start, stop = int(start), int(stop)
+        a, b = max(0, start), min(self.n, stop)
+        if a >= b:
+            return np.zeros(max(0, stop - start))
+        core = self._read(a, b)
+        if a == start and b == stop:
+            return core
+        return np.concatenate([np.zeros(a - start), core, np.zeros(stop - b)])
+
+    def blocks(self, block: int, start: int = 0, stop: int | None = None) -> Iterator[np.ndarray]:
+        """Consecutive blocks of ``block`` samples from ``start`` to ``stop`` (default: the end)."""
+        block = max(1, int(block))
+        stop = self.n if stop is None else min(self.n, int(stop))
+        for a in range(int(start), stop, block):
+            yield self.read(a, min(stop, a + block))
+
+    def close(self) -> None:
+        """Release the underlying file, if any."""
+
+    def __enter__(self) -> "Source":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
 
 
-def iter_audio_blocks(
-    path: str | os.PathLike,
-    channel: int | None = None,
-    *,
-    block_seconds: float = 20.0,
-    name: str = "input",
-    check: StreamCheck | None = None,
-):
-    """Read one channel of a (long) audio file block by block, as float64.
+class ArraySource(Source):
+    """A 1-D array as a source (kept as given; blocks are converted to float64 when read)."""
 
-    Yields ``(block, fs)``; memory stays bounded by the block length. If ``check`` is
-    given, every block is fed to it (call ``check.finish()`` after the loop).
-    """
-    import soundfile as sf
+    def __init__(self, x: np.ndarray, fs: int, name: str = "input") -> None:
+        self.a = np.asarray(x).reshape(-1)
+        self.n, self.fs, self.name = int(self.a.size), int(fs), name
 
-    fs, frames, _ = audio_info(path, name)
-    if frames == 0:
-        raise InputError(f"{name} '{path}' contains no samples", "give a file with audio in it")
-    check_rate(fs, f"{name} '{path}'")
-    block = max(1, int(block_seconds * fs))
-    try:
-        with sf.SoundFile(str(path)) as f:
-            while True:
-                data = f.read(block, dtype="float64", always_2d=True)
-                if data.shape[0] == 0:
-                    break
-                x = pick_channel(data, channel, name, str(path))
-                if check is not None:
-                    check.update(x)
-                yield x, fs
-    except InputError:
-        raise
-    except (RuntimeError, OSError, ValueError):
-        raise InputError(f"{name} '{path}' could not be decoded (truncated or damaged file?)",
-                         "re-export the file as WAV or FLAC") from None
+    def _read(self, start: int, stop: int) -> np.ndarray:
+        return np.asarray(self.a[start:stop], dtype=np.float64)
 
 
-class AudioFile:
-    """Random access to one channel of an audio file, as float64 (for long files).
+class FileSource(Source):
+    """One channel of an audio file as a source, read by seeking (memory: one block).
 
-    ``read(start, stop)`` returns samples ``start .. stop-1`` counted from ``offset``;
-    a damaged or truncated file gives the usual one-line ``InputError``. Use as a
-    context manager or call :meth:`close`.
+    ``name`` says what the file is ("recording", "clean"...); messages name it as
+    ``name 'path'`` (attribute :attr:`name`). A multi-channel file without ``channel``
+    is refused before any reading; a damaged or truncated file gives the usual one-line
+    ``InputError`` when a read comes up short. The sample rate is not checked here (the
+    jobs check it against their own needs).
     """
 
-    def __init__(self, path: str | os.PathLike, channel: int | None = None, *, name: str = "input",
-                 offset: int = 0) -> None:
+    def __init__(self, path: str | os.PathLike, channel: int | None = None, *, name: str = "input") -> None:
         import soundfile as sf
 
         fs, frames, n_ch = audio_info(path, name)
         if frames == 0:
             raise InputError(f"{name} '{path}' contains no samples", "give a file with audio in it")
-        # refuse a multi-channel file without a channel before any reading
         pick_channel(np.zeros((1, n_ch)), channel, name, str(path))
-        self.path, self.channel, self.name, self.offset = str(path), channel, name, int(offset)
-        self.fs, self.frames = int(fs), int(frames)
+        self.path, self.channel, self.kind = str(path), channel, name
+        self.fs, self.n, self.name = int(fs), int(frames), f"{name} '{path}'"
         try:
             self._f = sf.SoundFile(self.path)
         except Exception:
             raise InputError(f"{name} '{path}' is not a readable audio file",
                              "give a WAV, FLAC or OGG file (other formats: convert first)") from None
+        self._pos = 0
 
-    def read(self, start: int, stop: int) -> np.ndarray:
-        n = int(stop) - int(start)
+    def _read(self, start: int, stop: int) -> np.ndarray:
+        n = stop - start
         try:
-            self._f.seek(self.offset + int(start))
+            if start != self._pos:
+                self._f.seek(start)
             data = self._f.read(n, dtype="float64", always_2d=True)
         except Exception:  # soundfile raises several types for damaged files
             data = np.zeros((0, 1))
+        self._pos = start + data.shape[0]
         if data.shape[0] != n:
-            raise InputError(f"{self.name} '{self.path}' could not be decoded (truncated or damaged file?)",
+            self._pos = -1
+            raise InputError(f"{self.name} could not be decoded (truncated or damaged file?)",
                              "re-export the file as WAV or FLAC")
-        return pick_channel(data, self.channel, self.name, self.path)
+        return pick_channel(data, self.channel, self.kind, self.path)
 
     def close(self) -> None:
         self._f.close()
 
-    def __enter__(self) -> "AudioFile":
-        return self
 
-    def __exit__(self, *exc) -> None:
-        self.close()
+class Resampled(Source):
+    """``scipy.signal.resample_poly`` of a source, computed per block exactly as on the
+    whole signal (the ratio as in :func:`resample`).
+
+    A block of output samples is computed from an input stretch that starts on a
+    multiple of the decimation factor (so the output grids coincide) and extends by the
+    filter half-length on both sides; the outputs of the margins are dropped.
+    """
+
+    def __init__(self, src: Source, fs_out: int) -> None:
+        self.src = src
+        self.up, self.down = resample_ratio(src.fs, fs_out)
+        self.fs, self.name = int(fs_out), src.name
+        self.n = -(-src.n * self.up // self.down)
+        half_len = 10 * max(self.up, self.down)  # scipy's default filter half-length
+        self.margin = half_len // self.up + 4 + self.down
+
+    def _read(self, a: int, b: int) -> np.ndarray:
+        from scipy.signal import resample_poly
+
+        i0 = max(0, ((a * self.down) // self.up - self.margin) // self.down * self.down)
+        i1 = min(self.src.n, -(-(b * self.down) // self.up) + self.margin)
+        seg = resample_poly(self.src.read(i0, i1), self.up, self.down)
+        off = i0 * self.up // self.down
+        return seg[a - off: b - off]
+
+
+class Window(Source):
+    """Samples ``offset .. offset+n-1`` of a source as a new signal (zeros outside the source)."""
+
+    def __init__(self, src: Source, offset: int, n: int) -> None:
+        self.src, self.offset, self.n, self.fs, self.name = src, int(offset), int(n), src.fs, src.name
+
+    def _read(self, a: int, b: int) -> np.ndarray:
+        return self.src.read(a + self.offset, b + self.offset)
+
+
+def as_source(x, fs: float, name: str = "input", *, hint: str = "") -> ArraySource:
+    """An array input as a source, after the shape checks of :func:`as_mono_array`."""
+    a, fs = as_mono_array(x, fs, name, hint=hint)
+    return ArraySource(a, fs, name)
+
+
+def _as_source(x, fs: int | None, name: str) -> Source:
+    if isinstance(x, Source):
+        return x
+    if fs is None:
+        raise InputError(f"no sample rate given for the {name} array", "pass fs")
+    return as_source(x, fs, name)
+
+
+# ---------------------------------------------------------------------------
+# Calibration
+# ---------------------------------------------------------------------------
+
+
+def calibration_from_tone(x: np.ndarray, fs: int, level_db: float, *, name: str = "calibrator recording") -> float:
+    """Calibration offset from a recording of a 1 kHz calibrator at a stated level.
+
+    Returns ``C`` such that a signal's level in dB SPL is ``rms_dbfs(signal) + C``.
+    The tone's level is taken in the 1 kHz octave band over the middle 80 % of the
+    recording. Source of the method: IEC 60942:2017 (sound calibrators at 1 kHz).
+
+    Parameters
+    ----------
+    x : recording of the calibrator, 1 s or more.
+    fs : sample rate, Hz (the octave bands up to 8 kHz must fit).
+    level_db : level printed on the calibrator, dB SPL.
+    name : what the recording is, for error messages.
+
+    Returns
+    -------
+    float, dB SPL of a full-scale RMS signal.
+    """
+    from . import standards as std
+    from .bands import check_rate_for_octaves, octave_bands
+
+    try:
+        lvl = float(level_db)
+    except (TypeError, ValueError):
+        raise InputError(f"calibrator level '{level_db}' is not a number", "give it in dB SPL, e.g. 94") from None
+    lo, hi = CALIBRATOR_LEVEL_RANGE_DB
+    if not np.isfinite(lvl) or not lo <= lvl <= hi:
+        raise InputError(f"calibrator level {level_db} dB is implausible",
+                         f"give the level printed on the calibrator, {lo:.0f}..{hi:.0f} dB SPL (often 94 or 114)")
+    x = validate_signal(x, fs, name=name, min_seconds=1.0)
+    check_rate_for_octaves(int(fs), name)
+    n = x.size
+    mid = x[int(0.1 * n): int(0.9 * n)]
+    spec = np.abs(np.fft.rfft(mid * np.hanning(mid.size)))
+    fpk = float(np.argmax(spec)) * fs / mid.size
+    k1 = std.OCTAVE_BANDS_HZ.index(std.CALIBRATOR_HZ)
+    band = octave_bands(mid, fs)[k1]
+    share = float(np.sum(band ** 2) / np.sum(mid ** 2))
+    if abs(fpk / std.CALIBRATOR_HZ - 1.0) > CALIBRATOR_FREQ_TOLERANCE or share < CALIBRATOR_BAND_SHARE:
+        raise InputError(
+            f"{name} is not a 1 kHz calibrator tone (spectral peak at {fpk:.0f} Hz, "
+            f"{100 * share:.0f} % of the energy in the 1 kHz octave)",
+            "record the calibrator on the measurement microphone, with nothing else sounding",
+        )
+    return lvl - rms_dbfs(band)
+
+
+def check_calibration_db(value: float | None) -> float | None:
+    """Refuse a calibration offset (dB SPL of a full-scale RMS signal) that is not a
+    plausible number; ``None`` (no calibration) passes."""
+    if value is None:
+        return None
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"calibration '{value}' is not a number",
+                         "give the dB SPL of a full-scale RMS signal") from None
+    lo, hi = CALIBRATION_RANGE_DB
+    if not np.isfinite(v) or not lo <= v <= hi:
+        raise InputError(f"calibration {value} dB is implausible",
+                         "give the dB SPL that a full-scale RMS signal (0 dBFS) corresponds to, e.g. 120")
+    return v

@@ -496,13 +496,9 @@ def _prepare(clean: np.ndarray, degraded: np.ndarray, fs: int) -> tuple[np.ndarr
 
 
 def _array_reader(a: np.ndarray) -> Reader:
-    def read(start: int, stop: int) -> np.ndarray:
-        out = a[max(0, start) : max(0, stop)]
-        if start < 0 or stop > a.size:
-            out = np.concatenate([np.zeros(max(0, -start)), out, np.zeros(max(0, stop - max(a.size, start)))])
-        return out
+    from .audio import ArraySource
 
-    return read
+    return ArraySource(a, std.STOI_FS).read
 
 
 def _array_envelopes(

@@ -51,14 +51,14 @@ from __future__ import annotations
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Iterator, Sequence
+from typing import Callable, Sequence
 
 import numpy as np
 
 from . import cautions as cau
 from . import standards as std
-from .audio import StreamCheck, audio_info, check_rate, iter_audio_blocks, rms_dbfs, validate_signal
-from .bands import EnvelopeStream, check_rate_for_octaves, envelope_delays, octave_bands
+from .audio import ArraySource, FileSource, SignalCheck, Source, check_calibration_db, check_rate, validate_signal
+from .bands import EnvelopeStream, check_rate_for_octaves, envelope_delays
 from .exceptions import InputError
 from .modulation import modulation_depths, mtf_from_test_signal
 from .results import jsonable
@@ -125,14 +125,6 @@ FULL_FOUND_SCORE: float = 4.0
 
 #: Plausible A-weighted level of a calibrated test-signal recording, dB(A).
 PLAUSIBLE_LEVEL_DBA: tuple[float, float] = std.SPEECH_LEVEL_RANGE_DBA
-
-#: Plausible calibrator levels, dB SPL (IEC 60942 calibrators: 94, 104, 114 dB typical).
-CALIBRATOR_LEVEL_RANGE_DB: tuple[float, float] = (60.0, 150.0)
-
-#: A calibrator recording must put at least this share of its energy in the 1 kHz
-#: octave band, and its spectral peak within this relative distance of 1 kHz.
-CALIBRATOR_BAND_SHARE: float = 0.9
-CALIBRATOR_FREQ_TOLERANCE: float = 0.05
 
 NO_CALIBRATION = (
     "No calibration was given: the recording's absolute level is unknown, so the "
@@ -286,51 +278,6 @@ def _usable_from_frames(
     return UsablePart(start=start, stop=stop, signal_start=s0, signal_stop=s1, fs=int(fs))
 
 
-def calibration_from_tone(x: np.ndarray, fs: int, level_db: float, *, name: str = "calibrator recording") -> float:
-    """Calibration offset from a recording of a 1 kHz calibrator at a stated level.
-
-    Returns ``C`` such that a signal's level in dB SPL is ``rms_dbfs(signal) + C``.
-    The tone's level is taken in the 1 kHz octave band over the middle 80 % of the
-    recording. Source of the method: IEC 60942:2017 (sound calibrators at 1 kHz).
-    """
-    try:
-        lvl = float(level_db)
-    except (TypeError, ValueError):
-        raise InputError(f"calibrator level '{level_db}' is not a number", "give it in dB SPL, e.g. 94") from None
-    lo, hi = CALIBRATOR_LEVEL_RANGE_DB
-    if not np.isfinite(lvl) or not lo <= lvl <= hi:
-        raise InputError(f"calibrator level {level_db} dB is implausible",
-                         f"give the level printed on the calibrator, {lo:.0f}..{hi:.0f} dB SPL (often 94 or 114)")
-    x = validate_signal(x, fs, name=name, min_seconds=1.0)
-    check_rate_for_octaves(int(fs), name)
-    n = x.size
-    mid = x[int(0.1 * n): int(0.9 * n)]
-    spec = np.abs(np.fft.rfft(mid * np.hanning(mid.size)))
-    fpk = float(np.argmax(spec)) * fs / mid.size
-    k1 = std.OCTAVE_BANDS_HZ.index(std.CALIBRATOR_HZ)
-    band = octave_bands(mid, fs)[k1]
-    share = float(np.sum(band ** 2) / np.sum(mid ** 2))
-    if abs(fpk / std.CALIBRATOR_HZ - 1.0) > CALIBRATOR_FREQ_TOLERANCE or share < CALIBRATOR_BAND_SHARE:
-        raise InputError(
-            f"{name} is not a 1 kHz calibrator tone (spectral peak at {fpk:.0f} Hz, "
-            f"{100 * share:.0f} % of the energy in the 1 kHz octave)",
-            "record the calibrator on the measurement microphone, with nothing else sounding",
-        )
-    return lvl - rms_dbfs(band)
-
-
-def check_calibration_db(value: float | None) -> float | None:
-    if value is None:
-        return None
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise InputError(f"calibration '{value}' is not a number",
-                         "give the dB SPL of a full-scale RMS signal") from None
-    if not np.isfinite(v) or not 0.0 <= v <= 200.0:
-        raise InputError(f"calibration {value} dB is implausible",
-                         "give the dB SPL that a full-scale RMS signal (0 dBFS) corresponds to, e.g. 120")
-    return v
 
 
 @dataclass(frozen=True)
@@ -367,11 +314,6 @@ class _Ticks:
         self.tick(self.total - self.done)
 
 
-#: Blocks of a recording in order, from the start; the argument is the input check to
-#: feed (pass 1) or ``None`` (pass 2).
-BlockSource = Callable[[StreamCheck | None], Iterator[np.ndarray]]
-
-
 def check_block_seconds(value: float) -> float:
     """Refuse a block length that is not a positive number of seconds."""
     try:
@@ -391,20 +333,23 @@ def _check_length(n: int, fs: int, name: str) -> None:
         )
 
 
-def _analyse_blocks(
-    blocks: BlockSource, fs: int, n_expected: int, block: int, min_seconds: float, name: str,
-    advice: str | None, check: StreamCheck | None, ticks: _Ticks | None,
+def _analyse_source(
+    src: Source, block: int, min_seconds: float, name: str,
+    advice: str | None, check: SignalCheck | None, ticks: _Ticks | None,
 ) -> _Analysed:
     """The one path from a recording (in memory or in a file) to band envelopes.
 
     Pass 1: frame energies (usable part) and, for a file, the input checks. Pass 2:
     envelopes of the usable part, block by block, delays taken off.
     """
-    n_blocks = -(-n_expected // block)
+    fs = src.fs
+    n_blocks = -(-src.n // block)
     if ticks is not None:
         ticks.retotal(ticks.total + 2 * n_blocks)
     fe = _FrameEnergies(_frame_length(fs))
-    for b in blocks(check):
+    for b in src.blocks(block):
+        if check is not None:
+            check.update(b)
         fe.update(b)
         if ticks is not None:
             ticks.tick()
@@ -427,26 +372,18 @@ def _analyse_blocks(
     m = (part.stop - p0) // q - i0
     env = np.empty((len(std.OCTAVE_BANDS_HZ), m))
     j = pos = 0
-    it = blocks(None)
-    try:
-        for b in it:
-            lo, hi = max(p0, pos), min(p1, pos + b.size)
-            if hi > lo:
-                e = stream.process(b[lo - pos: hi - pos])
-                for k, d in enumerate(delays):
-                    a0, a1 = max(j, i0 + d), min(j + e.shape[1], i0 + d + m)
-                    if a1 > a0:
-                        env[k, a0 - i0 - d: a1 - i0 - d] = e[k, a0 - j: a1 - j]
-                j += e.shape[1]
-            pos += b.size
-            if ticks is not None:
-                ticks.tick()
-            if pos >= p1:
-                break
-    finally:
-        close = getattr(it, "close", None)
-        if close is not None:
-            close()
+    for b in src.blocks(block, stop=p1):
+        lo, hi = max(p0, pos), min(p1, pos + b.size)
+        if hi > lo:
+            e = stream.process(b[lo - pos: hi - pos])
+            for k, d in enumerate(delays):
+                a0, a1 = max(j, i0 + d), min(j + e.shape[1], i0 + d + m)
+                if a1 > a0:
+                    env[k, a0 - i0 - d: a1 - i0 - d] = e[k, a0 - j: a1 - j]
+            j += e.shape[1]
+        pos += b.size
+        if ticks is not None:
+            ticks.tick()
     if j != -(-(p1 - p0) // q):
         raise InputError(f"{name} changed while it was read (fewer samples on the second reading)",
                          "analyse a copy of the file that is not being written to")
@@ -463,12 +400,8 @@ def _analyse_recording(x: np.ndarray, fs: int, min_seconds: float, name: str, ad
     check_rate_for_octaves(fs, name)
     _check_length(x.size, fs, name)
     block = max(1, int(check_block_seconds(block_seconds) * fs))
-
-    def blocks(check: StreamCheck | None) -> Iterator[np.ndarray]:
-        for i in range(0, x.size, block):
-            yield x[i: i + block]
-
-    return _analyse_blocks(blocks, fs, x.size, block, min_seconds, name, advice, None, ticks)
+    # checked above by the same rule (SignalCheck) the file path feeds block by block
+    return _analyse_source(ArraySource(x, fs, name), block, min_seconds, name, advice, None, ticks)
 
 
 def _analyse_file(path: str | os.PathLike, channel: int | None, min_seconds: float, name: str,
@@ -476,20 +409,12 @@ def _analyse_file(path: str | os.PathLike, channel: int | None, min_seconds: flo
                   ticks: _Ticks | None = None) -> _Analysed:
     """A recording in a file, read block by block twice (memory bounded by the block length)."""
     block_seconds = check_block_seconds(block_seconds)
-    label = f"recording '{path}'"
-    fs, frames, _ = audio_info(path, "recording")
-    if frames == 0:
-        raise InputError(f"{label} contains no samples", "give a file with audio in it")
-    fs = check_rate(fs, label)
-    check_rate_for_octaves(fs, label)
-    _check_length(frames, fs, name)
-    block = max(1, int(block_seconds * fs))
-
-    def blocks(check: StreamCheck | None) -> Iterator[np.ndarray]:
-        for b, _ in iter_audio_blocks(path, channel, block_seconds=block_seconds, name="recording", check=check):
-            yield b
-
-    return _analyse_blocks(blocks, fs, frames, block, min_seconds, name, advice, StreamCheck(label), ticks)
+    with FileSource(path, channel, name="recording") as src:
+        fs = check_rate(src.fs, src.name)
+        check_rate_for_octaves(fs, src.name)
+        _check_length(src.n, fs, name)
+        block = max(1, int(block_seconds * fs))
+        return _analyse_source(src, block, min_seconds, name, advice, SignalCheck(src.name), ticks)
 
 
 def _window_count(n: int, fs_env: float, f_low: float) -> int:

@@ -12,8 +12,8 @@ their common part, and compute
 with per-band diagnostics and a timeline of the local STOI/ESTOI.
 
 Long inputs are never held whole at the working precision: every signal is a
-*source* read block by block (an array, an audio file, a resampled or shifted view of
-another source), and each index is computed in chunks whose results equal the
+*source* read block by block (:class:`envpredict.audio.Source`: an array, an audio
+file, a resampled or shifted view of another source), and each index is computed in chunks whose results equal the
 unchunked ones (resampling is exact per block with margins; STOI keeps silent-frame
 removal global with two passes; the speech-based STI uses causal filters whose state
 is carried from chunk to chunk).
@@ -25,17 +25,21 @@ import math
 import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from fractions import Fraction
 
 import numpy as np
 
 from . import standards as std
 from .audio import (
     CLIP_MIN_FULL_SCALE_SAMPLES,
-    AudioFile,
-    StreamCheck,
-    as_mono_array,
+    FileSource,
+    Resampled,
+    SignalCheck,
+    Source,
+    Window,
+    as_source,
     audio_info,
+    estimate_delay,
+    zero_lag_correlation,
 )
 from .bands import EnvelopeStream
 from .correlation import CorrelationResult, frame_count, stoi_estoi_stream
@@ -52,10 +56,6 @@ from .results import jsonable
 #: sqrt(0.1/1.1) = 0.30 and unrelated signals about 1/sqrt(samples) (< 0.01 for a few
 #: seconds), so 0.1 (about -20 dB SNR) separates them with margin (judgement).
 MIN_MATCH_CORRELATION: float = 0.1
-
-#: Length of the clean excerpt used to find the delay, s: enough for a stable peak,
-#: small enough to bound memory on long inputs (judgement).
-ALIGN_EXCERPT_S: float = 30.0
 
 #: After alignment each signal may lose at most this much (s) or this share of the
 #: common part, whichever is larger, when trimmed to the common length; more means
@@ -103,138 +103,22 @@ TIMELINE_MAX_BINS: int = 600
 WORST_MOMENTS: int = 5
 
 
-# ---------------------------------------------------------------------------
-# Sources: signals read block by block
-# ---------------------------------------------------------------------------
-
-
-class _Source:
-    """A 1-D signal of ``n`` samples at ``fs``; ``read`` pads with zeros outside 0..n."""
-
-    n: int
-    fs: int
-    name: str
-
-    def read(self, start: int, stop: int) -> np.ndarray:  # pragma: no cover - interface
-        raise NotImplementedError
-
-    def _pad(self, start: int, stop: int, inner: Callable[[int, int], np.ndarray]) -> np.ndarray:
-        a, b = max(0, start), min(self.n, stop)
-        if a >= b:
-            return np.zeros(max(0, stop - start))
-        core = inner(a, b)
-        if a == start and b == stop:
-            return core
-        return np.concatenate([np.zeros(a - start), core, np.zeros(stop - b)])
-
-
-class _ArraySource(_Source):
-    def __init__(self, a: np.ndarray, fs: int, name: str) -> None:
-        self.a, self.n, self.fs, self.name = a, int(a.size), int(fs), name
-
-    def read(self, start: int, stop: int) -> np.ndarray:
-        return self._pad(start, stop, lambda a, b: np.asarray(self.a[a:b], dtype=np.float64))
-
-
-class _FileSource(_Source):
-    def __init__(self, path: str | os.PathLike, channel: int | None, name: str) -> None:
-        self.file = AudioFile(path, channel, name=name)
-        self.n, self.fs, self.name = self.file.frames, self.file.fs, f"{name} '{path}'"
-
-    def read(self, start: int, stop: int) -> np.ndarray:
-        return self._pad(start, stop, self.file.read)
-
-
-class _Resampled(_Source):
-    """``resample_poly`` of a source, computed per block exactly as on the whole signal.
-
-    A block of output samples is computed from an input stretch that starts on a
-    multiple of the decimation factor (so the output grids coincide) and extends by the
-    filter half-length on both sides; the outputs of the margins are dropped.
-    """
-
-    def __init__(self, src: _Source, fs_out: int) -> None:
-        r = Fraction(int(fs_out), int(src.fs)).limit_denominator(2000)
-        self.src, self.up, self.down = src, r.numerator, r.denominator
-        self.fs, self.name = int(fs_out), src.name
-        self.n = -(-src.n * self.up // self.down)
-        half_len = 10 * max(self.up, self.down)  # scipy's default filter half-length
-        self.margin = half_len // self.up + 4 + self.down
-
-    def read(self, start: int, stop: int) -> np.ndarray:
-        from scipy.signal import resample_poly
-
-        def inner(a: int, b: int) -> np.ndarray:
-            i0 = max(0, ((a * self.down) // self.up - self.margin) // self.down * self.down)
-            i1 = min(self.src.n, -(-(b * self.down) // self.up) + self.margin)
-            seg = resample_poly(self.src.read(i0, i1), self.up, self.down)
-            off = i0 * self.up // self.down
-            return seg[a - off : b - off]
-
-        return self._pad(start, stop, inner)
-
-
-class _Window(_Source):
-    """Samples ``offset .. offset+n-1`` of a source as a new signal (zeros outside)."""
-
-    def __init__(self, src: _Source, offset: int, n: int) -> None:
-        self.src, self.offset, self.n, self.fs, self.name = src, int(offset), int(n), src.fs, src.name
-
-    def read(self, start: int, stop: int) -> np.ndarray:
-        return self._pad(start, stop, lambda a, b: self.src.read(a + self.offset, b + self.offset))
-
-
-def _as_array_source(x: np.ndarray, fs: int, name: str) -> _ArraySource:
-    a, fs = as_mono_array(x, fs, name, hint="; mono and stereo signals cannot be compared")
-    return _ArraySource(a, fs, name)
-
-
-def _scan(src: _Source) -> dict:
-    """Check a source block by block: finite, not silent, not constant (clipping is a
-    legitimate degradation here, so it is only counted). Returns stats."""
-    check = StreamCheck(src.name, allow_clipping=True)
+def _scan(src: Source) -> dict:
+    """Check a source block by block by the one input rule (:class:`envpredict.audio.SignalCheck`):
+    finite, not silent, not constant (clipping is a legitimate degradation here, so it
+    is only counted). Returns stats and where the loudest block starts."""
+    check = SignalCheck(src.name, allow_clipping=True)
     energy = []
-    for a in range(0, src.n, SCAN_BLOCK):
-        x = src.read(a, min(src.n, a + SCAN_BLOCK))
+    for x in src.blocks(SCAN_BLOCK):
         check.update(x)
         energy.append(float(np.dot(x, x)))
     check.finish()
-    rms = math.sqrt(check.sumsq / check.n)
-    full_scale = check.full_scale
-    return {"rms": rms, "full_scale_samples": full_scale, "loudest_block": int(np.argmax(energy)) * SCAN_BLOCK}
+    return {"rms": check.rms, "full_scale_samples": check.full_scale,
+            "loudest_block": int(np.argmax(energy)) * SCAN_BLOCK}
 
 
-# ---------------------------------------------------------------------------
-# Alignment
-# ---------------------------------------------------------------------------
-
-
-def _find_delay(clean: _Source, degraded: _Source, max_delay_s: float, near: int = 0) -> tuple[int, float]:
-    """Lag (samples; positive: degraded late) maximising |cross-correlation| and its
-    normalised value, from a clean excerpt of at most ALIGN_EXCERPT_S starting as
-    close to sample ``near`` (the loudest stretch of a long input) as the length allows."""
-    from scipy.signal import fftconvolve
-
-    fs = clean.fs
-    d = round(max_delay_s * fs)
-    w = min(clean.n, int(ALIGN_EXCERPT_S * fs))
-    s0 = max(0, min(int(near), clean.n - w))
-    ref = clean.read(s0, s0 + w)
-    sig = degraded.read(s0 - d, s0 + w + d)
-    cc = fftconvolve(sig, ref[::-1], mode="valid")  # index i -> lag i - d
-    i = int(np.argmax(np.abs(cc)))
-    lag = i - d
-    matched = degraded.read(s0 + lag, s0 + lag + w)
-    den = math.sqrt(float(np.dot(ref, ref)) * float(np.dot(matched, matched)))
-    corr = float(cc[i] / den) if den > 0 else 0.0
-    return lag, corr
-
-
-def _zero_lag_correlation(clean: _Source, degraded: _Source) -> float:
-    w = min(clean.n, degraded.n, int(ALIGN_EXCERPT_S * clean.fs))
-    a, b = clean.read(0, w), degraded.read(0, w)
-    den = math.sqrt(float(np.dot(a, a)) * float(np.dot(b, b)))
-    return float(np.dot(a, b) / den) if den > 0 else 0.0
+def _as_pair_source(x: np.ndarray, fs: int, name: str) -> Source:
+    return as_source(x, fs, name, hint="; mono and stereo signals cannot be compared")
 
 
 # ---------------------------------------------------------------------------
@@ -243,7 +127,7 @@ def _zero_lag_correlation(clean: _Source, degraded: _Source) -> float:
 
 
 def _ssti_envelopes(
-    clean: _Source, degraded: _Source, chunk_s: float, progress: Callable[[], None] | None = None
+    clean: Source, degraded: Source, chunk_s: float, progress: Callable[[], None] | None = None
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
     """Octave-band intensity envelopes (7, m) of both signals, causal filters streamed.
 
@@ -451,8 +335,8 @@ def _check_options(max_delay_s: float, chunk_s: float) -> tuple[float, float]:
 class _Aligned:
     """The pair after checks, resampling, alignment and trimming (the common part)."""
 
-    clean: _Source
-    degraded: _Source
+    clean: Source
+    degraded: Source
     lag: int
     corr: float
     n_common: int
@@ -460,7 +344,7 @@ class _Aligned:
     notes: tuple[str, ...]
 
 
-def _align(clean: _Source, degraded: _Source, *, align: bool, max_delay_s: float) -> _Aligned:
+def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float) -> _Aligned:
     """Check both signals, resample the degraded one to the clean rate, find and remove
     the delay and trim both to their common part (every pair index starts here)."""
     notes: list[str] = []
@@ -475,12 +359,12 @@ def _align(clean: _Source, degraded: _Source, *, align: bool, max_delay_s: float
     if stats_c["full_scale_samples"] >= CLIP_MIN_FULL_SCALE_SAMPLES:
         notes.append(f"the clean reference reaches full scale in {stats_c['full_scale_samples']} samples "
                      "(possibly clipped); the indices treat it as the reference as it is")
-    deg = degraded if degraded.fs == fs else _Resampled(degraded, fs)
+    deg = degraded if degraded.fs == fs else Resampled(degraded, fs)
     if degraded.fs != fs:
         notes.append(f"degraded signal resampled from {degraded.fs} Hz to {fs} Hz")
 
     if align:
-        lag, corr = _find_delay(clean, deg, max_delay_s, near=stats_c["loudest_block"])
+        lag, corr = estimate_delay(clean, deg, max_delay_s=max_delay_s, near=stats_c["loudest_block"])
         if abs(corr) < MIN_MATCH_CORRELATION:
             raise InputError(
                 f"clean and degraded do not match: peak waveform correlation {abs(corr):.3f} within "
@@ -493,7 +377,7 @@ def _align(clean: _Source, degraded: _Source, *, align: bool, max_delay_s: float
                          "or a strong reflection in a reverberant recording); the indices do not depend "
                          "on polarity")
     else:
-        lag, corr = 0, _zero_lag_correlation(clean, deg)
+        lag, corr = 0, zero_lag_correlation(clean, deg)
 
     # common part: clean[s_c + n] with deg[s_c + lag + n]
     s_c = max(0, -lag)
@@ -510,7 +394,7 @@ def _align(clean: _Source, degraded: _Source, *, align: bool, max_delay_s: float
     if max(drop_c, drop_d) > 0.01 * fs:
         notes.append(f"trimmed to the common part of {n_common / fs:.2f} s "
                      f"({drop_c / fs:.3f} s of clean, {drop_d / fs:.3f} s of degraded dropped)")
-    return _Aligned(clean=_Window(clean, s_c, n_common), degraded=_Window(deg, s_c + lag, n_common), lag=int(lag),
+    return _Aligned(clean=Window(clean, s_c, n_common), degraded=Window(deg, s_c + lag, n_common), lag=int(lag),
                     corr=float(corr), n_common=int(n_common), drop=(int(drop_c), int(drop_d)), notes=tuple(notes))
 
 
@@ -524,7 +408,7 @@ class _Ssti:
     notes: tuple[str, ...]
 
 
-def _ssti(c_al: _Source, d_al: _Source, chunk_s: float, tick: Callable[[], None] | None) -> _Ssti:
+def _ssti(c_al: Source, d_al: Source, chunk_s: float, tick: Callable[[], None] | None) -> _Ssti:
     """Speech-based STI (NCM and envelope regression) of an aligned pair of equal length."""
     fs = c_al.fs
     n_common = c_al.n
@@ -575,8 +459,8 @@ def _ssti(c_al: _Source, d_al: _Source, chunk_s: float, tick: Callable[[], None]
 
 
 def _pair(
-    clean: _Source,
-    degraded: _Source,
+    clean: Source,
+    degraded: Source,
     *,
     align: bool,
     max_delay_s: float,
@@ -590,8 +474,8 @@ def _pair(
     c_al, d_al, n_common, lag = al.clean, al.degraded, al.n_common, al.lag
 
     # STOI / ESTOI on the 10 kHz grid
-    c10 = c_al if fs == std.STOI_FS else _Resampled(c_al, std.STOI_FS)
-    d10 = d_al if fs == std.STOI_FS else _Resampled(d_al, std.STOI_FS)
+    c10 = c_al if fs == std.STOI_FS else Resampled(c_al, std.STOI_FS)
+    d10 = d_al if fs == std.STOI_FS else Resampled(d_al, std.STOI_FS)
     n10 = c10.n
     if frame_count(n10) < std.STOI_SEGMENT_FRAMES + 1:
         raise InputError(
@@ -701,8 +585,8 @@ def pair_indices(
     -------
     PairResult
     """
-    c = _as_array_source(clean, fs, "clean signal")
-    d = _as_array_source(degraded, fs if fs_degraded is None else fs_degraded, "degraded signal")
+    c = _as_pair_source(clean, fs, "clean signal")
+    d = _as_pair_source(degraded, fs if fs_degraded is None else fs_degraded, "degraded signal")
     return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
 
 
@@ -721,9 +605,10 @@ def pair_from_files(
     ``channel`` selects the channel of any multi-channel file (mono files use their
     only channel); a multi-channel file without ``channel`` is refused.
     """
-    c = _FileSource(clean_path, channel if _channels(clean_path, "clean") > 1 else None, "clean")
-    d = _FileSource(degraded_path, channel if _channels(degraded_path, "degraded") > 1 else None, "degraded")
-    return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
+    with (FileSource(clean_path, channel if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
+          FileSource(degraded_path, channel if _channels(degraded_path, "degraded") > 1 else None,
+                     name="degraded") as d):
+        return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
 
 
 def _channels(path: str | os.PathLike, name: str) -> int:
@@ -736,8 +621,8 @@ def speech_sti(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float | None
     Raises ComputationError when the rate has no 8 kHz octave band content or the pair
     is shorter than 3 s.
     """
-    c = _as_array_source(clean, fs, "clean signal")
-    d = _as_array_source(degraded, fs, "degraded signal")
+    c = _as_pair_source(clean, fs, "clean signal")
+    d = _as_pair_source(degraded, fs, "degraded signal")
     if c.n != d.n:
         raise InputError(
             f"clean ({c.n} samples) and degraded ({d.n} samples) differ in length",

@@ -39,7 +39,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import standards as std
-from .audio import AudioFile, StreamCheck, audio_info, check_rate, resample, validate_signal
+from .audio import ArraySource, FileSource, SignalCheck, Window, check_rate, resample, resample_ratio, validate_signal
 from .bands import envelope_rate, intensity_envelopes, octave_filterbank
 from .exceptions import InputError
 from .results import jsonable, round_significant
@@ -590,13 +590,11 @@ def _grid(fs: int, block_s: float) -> tuple[int, int, int, int, int]:
     envelopes and the resampled signal of consecutive blocks join on the same sample
     grid as the whole-signal computation.
     """
-    from fractions import Fraction
     from math import lcm
 
     q = envelope_rate(fs, ENVELOPE_RATE_HZ)[0]
     if fs > YIN_RATE_HZ:
-        r = Fraction(YIN_RATE_HZ, fs).limit_denominator(2000)  # as audio.resample
-        up, down = r.numerator, r.denominator
+        up, down = resample_ratio(fs, YIN_RATE_HZ)  # the factors of audio.resample
     else:
         up = down = 1
     g = lcm(q, down)
@@ -845,7 +843,7 @@ def inspect_signal(
             f"recording is {dur:.0f} s long; inspect looks at up to {MAX_SECONDS:.0f} s at a time",
             "choose an excerpt (envpredict inspect --start S --duration S)",
         )
-    return _inspect_stream(lambda s0, s1: x[s0:s1], x.size, fs, f0_min_hz=f0_min_hz, f0_max_hz=f0_max_hz,
+    return _inspect_stream(ArraySource(x, fs).read, x.size, fs, f0_min_hz=f0_min_hz, f0_max_hz=f0_max_hz,
                            block_s=block_seconds, progress=progress)
 
 
@@ -867,8 +865,8 @@ def inspect_file(
     small figures per block are kept, so the peak memory does not grow with the
     duration except for the 10 ms F0 track and a 200 Hz envelope (about 50 MB for
     4 hours). The input checks of :func:`envpredict.audio.validate_signal` (NaN,
-    silence, DC, clipping) are accumulated over the blocks
-    (:class:`envpredict.audio.StreamCheck`). The result equals
+    silence, DC, clipping) are accumulated over the blocks by the same rule
+    (:class:`envpredict.audio.SignalCheck`), so the verdict is that of the array. The result equals
     ``inspect_signal(x, fs)`` of the same samples (the same code runs on both).
 
     Parameters
@@ -883,10 +881,14 @@ def inspect_file(
     progress : called as ``progress(done, total)`` after every block.
     """
     name = "recording"
-    fs, frames, _ = audio_info(path, name)
-    if frames == 0:
-        raise InputError(f"{name} '{path}' contains no samples", "give a file with audio in it")
-    fs = check_rate(fs, f"{name} '{path}'")
+    with FileSource(path, channel, name=name) as src:
+        return _inspect_file(src, path, start_s, duration_s, f0_min_hz, f0_max_hz, block_seconds, progress)
+
+
+def _inspect_file(src: FileSource, path, start_s, duration_s, f0_min_hz, f0_max_hz, block_seconds,
+                  progress) -> InspectResult:
+    name = src.kind
+    fs, frames = check_rate(src.fs, src.name), src.n
     total = frames / fs
     if not 0 <= start_s < total:
         raise InputError(f"start {start_s:g} s is outside the recording (0 to {total:.2f} s)",
@@ -903,7 +905,5 @@ def inspect_file(
             f"{MAX_SECONDS:.0f} s ({MAX_SECONDS / 3600:g} h) at a time",
             "choose an excerpt with a start and a duration",
         )
-    with AudioFile(path, channel, name=name, offset=i0) as reader:
-        return _inspect_stream(reader.read, n, fs, f0_min_hz=f0_min_hz, f0_max_hz=f0_max_hz,
-                               block_s=block_seconds, progress=progress,
-                               check=StreamCheck(f"{name} '{path}'"))
+    return _inspect_stream(Window(src, i0, n).read, n, fs, f0_min_hz=f0_min_hz, f0_max_hz=f0_max_hz,
+                           block_s=block_seconds, progress=progress, check=SignalCheck(src.name))

@@ -3,7 +3,15 @@
 from __future__ import annotations
 
 import pytest
+from hypothesis import settings
 from signals_for_tests import noise_decay  # noqa: F401  (re-exported: tests import it from here)
+
+# The property tests draw the same examples on every run (here and in CI): a failure is
+# reproducible, and CI cannot fail on an example no one has seen before. Widen the search
+# for a run by hand with HYPOTHESIS_PROFILE=explore.
+settings.register_profile("repeatable", derandomize=True, database=None)
+settings.register_profile("explore", derandomize=False)
+settings.load_profile(__import__("os").environ.get("HYPOTHESIS_PROFILE", "repeatable"))
 
 
 def run_cli(args, capsys=None):

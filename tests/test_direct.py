@@ -26,7 +26,6 @@ from envpredict import standards as std
 from envpredict.audio import resample
 from envpredict.direct import (
     NO_CALIBRATION,
-    calibration_from_tone,
     full_sti_from_recordings,
     stipa_from_recording,
 )
@@ -287,28 +286,6 @@ def test_signal_in_the_middle_of_a_long_recording(stipa24):
     assert info["signal_start_s"] == pytest.approx(4.0, abs=0.06)
     assert info["signal_end_s"] == pytest.approx(29.0, abs=0.06)
     assert r.sti.sti >= 0.97
-
-
-# --- calibration ------------------------------------------------------------------
-
-
-def test_calibrator_tone_gives_offset():
-    # a sine of amplitude A has RMS A/sqrt(2): level -23.01 dBFS for A = 0.1
-    t = np.arange(3 * FS) / FS
-    tone = 0.1 * np.sin(2 * np.pi * 1000 * t)
-    c = calibration_from_tone(tone, FS, 94.0)
-    assert c == pytest.approx(94.0 - 20 * np.log10(0.1 / np.sqrt(2)), abs=0.05)
-
-
-def test_calibrator_must_be_a_1khz_tone():
-    rng = np.random.default_rng(1)
-    with pytest.raises(InputError, match="not a 1 kHz calibrator"):
-        calibration_from_tone(0.1 * rng.standard_normal(3 * FS), FS, 94.0)
-    t = np.arange(3 * FS) / FS
-    with pytest.raises(InputError, match="not a 1 kHz calibrator"):
-        calibration_from_tone(0.1 * np.sin(2 * np.pi * 250 * t), FS, 94.0)
-    with pytest.raises(InputError, match="implausible"):
-        calibration_from_tone(0.1 * np.sin(2 * np.pi * 1000 * t), FS, 9.0)
 
 
 def test_calibrated_analysis_applies_auditory_corrections(stipa24, direct24):

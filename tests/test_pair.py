@@ -327,10 +327,11 @@ def test_cli_bad_inputs(wav_pair, tmp_path, capsys):
 def test_delay_found_after_a_quiet_start(monkeypatch):
     # long inputs are aligned on an excerpt; it is taken at the loudest stretch, so a
     # quiet lead-in longer than the excerpt does not defeat the alignment
+    import envpredict.audio as audio_mod
     import envpredict.pair as pair_mod
 
     fs = 16000
-    monkeypatch.setattr(pair_mod, "ALIGN_EXCERPT_S", 2.0)
+    monkeypatch.setattr(audio_mod, "ALIGN_EXCERPT_S", 2.0)
     monkeypatch.setattr(pair_mod, "SCAN_BLOCK", fs)
     rng = np.random.default_rng(53)
     x = np.concatenate([1e-5 * rng.standard_normal(3 * fs), speech_like(4.0, fs, 54)])

@@ -141,8 +141,7 @@ def testsignal_full(
 
 
 def _calibration(calibration_db, calibrator, calibrator_level, channel):
-    from envpredict.audio import load_audio
-    from envpredict.direct import calibration_from_tone, check_calibration_db
+    from envpredict.audio import calibration_from_tone, check_calibration_db, load_audio
     from envpredict.exceptions import InputError
 
     if calibration_db is not None and calibrator is not None:
