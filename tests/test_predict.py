@@ -1,4 +1,4 @@
-"""Tests of envpredict.predict: mappings, binomial fit, SNR sweep, predicted-score column.
+"""Tests of envpredict.mapping and envpredict.sweep: mappings, binomial fit, SNR sweep, predicted-score column.
 
 External references: scipy.stats (binomial simulation, chi-square, Student t,
 binomial log-pmf), statsmodels (binomial GLM with logit and probit links; Logit and
@@ -21,16 +21,15 @@ from scipy import stats
 from scipy.special import expit, logit, ndtr
 
 from envpredict.exceptions import ComputationError, InputError
-from envpredict.predict import (
+from envpredict.mapping import (
     ScoreMapping,
     add_predictions,
     fit_mapping,
     mapping_from_dict,
-    parse_snr_range,
     predict_scores,
     scores_from_rows,
-    snr_sweep,
 )
+from envpredict.sweep import parse_snr_range, snr_sweep
 
 from conftest import run_cli
 
