@@ -29,6 +29,9 @@ YIN_RATE_HZ: int = 16000
 SILENCE_BELOW_PEAK_DB: float = 50.0
 #: Frames processed per block in the vectorised YIN (memory bound, not a method constant).
 YIN_BLOCK_FRAMES: int = 1024
+#: Widest F0 search range accepted, Hz (judgement: periodicity lies at about 50-500 Hz;
+#: below 20 Hz is infrasound, above 2 kHz no voice has its fundamental).
+F0_SEARCH_LIMITS_HZ: tuple[float, float] = (20.0, 2000.0)
 #: Shortest lag searched, samples (lag 1 has no dip to interpolate below it).
 MIN_LAG: int = 2
 #: The search range must stay below this share of the YIN rate (the longest lag plus
@@ -78,10 +81,22 @@ class _YinSetup:
     voicing_threshold: float
 
 
+def check_f0_range(f0_min_hz: float, f0_max_hz: float) -> tuple[float, float]:
+    """Refuse an empty F0 search range or one outside :data:`F0_SEARCH_LIMITS_HZ`."""
+    lo, hi = F0_SEARCH_LIMITS_HZ
+    if not 0 < f0_min_hz < f0_max_hz:
+        raise InputError(f"F0 search range {f0_min_hz:g}-{f0_max_hz:g} Hz is empty or negative",
+                         f"give 0 < --f0-min < --f0-max (default {std.F0_MIN_HZ:g} and {std.F0_MAX_HZ:g} Hz)")
+    if f0_min_hz < lo or f0_max_hz > hi:
+        raise InputError(f"F0 search range {f0_min_hz:g}-{f0_max_hz:g} Hz is outside {lo:g}-{hi:g} Hz",
+                         f"periodicity lies at about {std.F0_MIN_HZ:g}-{std.F0_MAX_HZ:g} Hz; keep the range "
+                         f"within {lo:g}-{hi:g} Hz")
+    return float(f0_min_hz), float(f0_max_hz)
+
+
 def _yin_setup(fs: int, f0_min_hz: float, f0_max_hz: float, threshold: float, voicing_threshold: float,
                window_s: float, hop_s: float) -> _YinSetup:
-    if not 0 < f0_min_hz < f0_max_hz:
-        raise InputError(f"F0 search range {f0_min_hz:g}-{f0_max_hz:g} Hz is empty", "give min < max, both > 0")
+    check_f0_range(f0_min_hz, f0_max_hz)
     fs = YIN_RATE_HZ if fs > YIN_RATE_HZ else int(fs)
     tau_min = max(MIN_LAG, int(np.floor(fs / f0_max_hz)))
     tau_max = int(np.ceil(fs / f0_min_hz))
