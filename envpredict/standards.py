@@ -436,3 +436,14 @@ SRT_PERCENT: float = 50.0
 MAPPING_SHAPE: str = "logistic"
 MAPPING_GUESS: float = 0.0
 MAPPING_LAPSE: float = 0.0
+#: Sample rate of generated test signals, Hz (judgement: the common rate of
+#: measurement recorders; the 8 kHz octave band needs more than 22.6 kHz).
+TEST_SIGNAL_RATE_HZ: int = 48000
+#: Seed of the test-signal noise generator (any fixed value: the same seed gives the
+#: same signal).
+TEST_SIGNAL_SEED: int = 0
+#: Largest delay between a clean and a degraded signal searched by the pair analysis,
+#: s (judgement: transmission and processing delays stay well below 1 s).
+PAIR_MAX_DELAY_S: float = 1.0
+#: Audio per processing chunk of the pair analysis, s (memory only; judgement).
+PAIR_CHUNK_S: float = 60.0
