@@ -108,6 +108,10 @@ from .tables import (  # noqa: F401  (the column vocabulary, re-exported for bat
 #: (judgement).
 IN_FLIGHT_PER_WORKER: int = 4
 
+#: Rows in flight on a dask cluster at least (judgement: keeps a small cluster's
+#: scheduler fed while results travel back).
+MIN_DASK_IN_FLIGHT: int = 8
+
 #: Thread-count variables of the numeric libraries, set to 1 for the pool's worker
 #: processes (unless the user set them): N single-threaded processes on N cores
 #: instead of N processes each starting a thread per core, which oversubscribes the
@@ -744,7 +748,7 @@ def _run_dask(jobs: Sequence[dict], client: Any, threads: int) -> Iterator[dict]
     try:
         run = uuid.uuid4().hex[:12]
         todo = iter(jobs)
-        window = max(threads * IN_FLIGHT_PER_WORKER, 8)
+        window = max(threads * IN_FLIGHT_PER_WORKER, MIN_DASK_IN_FLIGHT)
 
         def submit(job):
             return client.submit(score_row, job, pure=False, key=f"envpredict-row-{run}-{job['row']}")

@@ -91,6 +91,32 @@ COCHRAN_MAX_SHARE: float = 0.2
 #: Guess + lapse must leave room for a curve (judgement).
 MAX_GUESS_PLUS_LAPSE: float = 0.9
 
+#: Numerical settings of the fit (not method constants). Trust-region Newton stops at a
+#: gradient norm below FIT_GTOL or after FIT_MAXITER steps; the fit counts as converged
+#: when every gradient component is below FIT_GRADIENT_TOL times the number of trials.
+FIT_GTOL: float = 1e-10
+FIT_MAXITER: int = 500
+FIT_GRADIENT_TOL: float = 1e-5
+#: Starting values: observed proportions are clipped to this range before the
+#: link function, so that 0 % and 100 % rows give finite starting points.
+START_CLIP: tuple[float, float] = (0.02, 0.98)
+#: Fallback slope scale of the starting values when the data range is (nearly) zero.
+MIN_START_RANGE: float = 1e-6
+#: Probabilities are kept this far from 0 and 1 in the goodness-of-fit sums.
+P_CLIP: float = 1e-15
+#: Floor of probabilities in the log-likelihood derivatives (avoids 0/0).
+P_FLOOR: float = 1e-300
+#: Profile likelihood of x50: the slope is searched within this many log units of its
+#: maximum-likelihood value, and the interval ends are sought up to this many data
+#: ranges away from x50 (judgement: beyond that the data do not bound x50).
+PROFILE_LOG_B_SPAN: float = 12.0
+PROFILE_MAX_RANGES: float = 20.0
+#: Solver tolerances of the profile (x50 units) and the smallest standard error used
+#: for its first step.
+PROFILE_XTOL: float = 1e-10
+PROFILE_INNER_XTOL: float = 1e-9
+PROFILE_MIN_VAR: float = 1e-24
+
 #: Decimals of the predicted percent written into a table (0.01 %: far below any
 #: listening test's resolution).
 PREDICTED_DIGITS: int = 2
@@ -511,7 +537,7 @@ def _negloglik_parts(theta: np.ndarray, x, k, n, shape, guess, lapse):
     nll = -float(np.sum(np.where(k > 0, k * logp, 0.0) + np.where(n - k > 0, (n - k) * log1mp, 0.0)))
     f = _pdf(shape, eta)
     df = _dpdf(shape, eta)
-    tiny = 1e-300
+    tiny = P_FLOOR
     pp = np.maximum(p, tiny)
     qq = np.maximum(q, tiny)
     dL_dp = k / pp - (n - k) / qq
@@ -528,7 +554,7 @@ def _negloglik_parts(theta: np.ndarray, x, k, n, shape, guess, lapse):
 def _start(x, k, n, shape, guess, lapse) -> np.ndarray:
     """Starting values: weighted least squares on the transformed proportions."""
     p = (k + 0.5) / (n + 1.0)
-    q = np.clip((p - guess) / (1.0 - guess - lapse), 0.02, 0.98)
+    q = np.clip((p - guess) / (1.0 - guess - lapse), *START_CLIP)
     eta = _ppf(shape, q)
     w = n
     xm = np.sum(w * x) / np.sum(w)
@@ -536,7 +562,7 @@ def _start(x, k, n, shape, guess, lapse) -> np.ndarray:
     sxx = np.sum(w * (x - xm) ** 2)
     b = np.sum(w * (x - xm) * (eta - em)) / sxx if sxx > 0 else 1.0
     if not np.isfinite(b) or b <= 0:
-        b = 1.0 / max(float(np.ptp(x)), 1e-6)
+        b = 1.0 / max(float(np.ptp(x)), MIN_START_RANGE)
     return np.array([em - b * xm, b])
 
 
@@ -624,7 +650,7 @@ def fit_mapping(
 
     t0 = _start(x, k, n, shape, guess, lapse)
     res = minimize(fun, t0, jac=jac, hess=hess, method="trust-exact",
-                   options={"gtol": 1e-10, "maxiter": 500})
+                   options={"gtol": FIT_GTOL, "maxiter": FIT_MAXITER})
     a, b = (float(v) for v in res.x)
     eta_span = abs(b) * float(np.ptp(x))
     if not (np.all(np.isfinite(res.x)) and eta_span <= MAX_ETA_SPAN):
@@ -633,7 +659,7 @@ def fit_mapping(
             "slope is not finite", "add conditions between the floor and the ceiling")
     nll, grad, h = _negloglik_parts(res.x, x, k, n, shape, guess, lapse)
     scale = max(1.0, float(np.sum(n)))
-    if not np.all(np.abs(grad) <= 1e-5 * scale):
+    if not np.all(np.abs(grad) <= FIT_GRADIENT_TOL * scale):
         raise ComputationError("the fit did not converge", "check the data; " + fix_more)
     if b <= 0:
         raise ComputationError(
@@ -658,7 +684,7 @@ def fit_mapping(
     # goodness of fit
     s = 1.0 - guess - lapse
     p_hat = guess + s * _cdf(shape, a + b * x)
-    p_hat = np.clip(p_hat, 1e-15, 1 - 1e-15)
+    p_hat = np.clip(p_hat, P_CLIP, 1 - P_CLIP)
     with np.errstate(divide="ignore", invalid="ignore"):
         t1 = np.where(k > 0, k * np.log(k / (n * p_hat)), 0.0)
         t2 = np.where(n - k > 0, (n - k) * np.log((n - k) / (n * (1 - p_hat))), 0.0)
@@ -717,20 +743,20 @@ def _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, nll_min, cov) -> t
             bb = math.exp(lb)
             return _negloglik(-bb * x50, bb, x, k, n, shape, guess, lapse)
 
-        r = minimize_scalar(f, bounds=(log_b - 12.0, log_b + 12.0), method="bounded",
-                            options={"xatol": 1e-9})
+        r = minimize_scalar(f, bounds=(log_b - PROFILE_LOG_B_SPAN, log_b + PROFILE_LOG_B_SPAN),
+                            method="bounded", options={"xatol": PROFILE_INNER_XTOL})
         return float(r.fun)
 
     def g(x50: float) -> float:
         return 2.0 * (prof_nll(x50) - nll_min) - crit
 
-    se = math.sqrt(max(float(np.array([-1 / b, a / b ** 2]) @ cov @ np.array([-1 / b, a / b ** 2])), 1e-24))
+    se = math.sqrt(max(float(np.array([-1 / b, a / b ** 2]) @ cov @ np.array([-1 / b, a / b ** 2])), PROFILE_MIN_VAR))
     span = max(float(np.ptp(x)), se)
     ends: list[float | None] = []
     for direction in (-1.0, 1.0):
         step = se
         inner, outer = x50_hat, None
-        while step <= 20.0 * span:  # look up to 20 data ranges away (judgement)
+        while step <= PROFILE_MAX_RANGES * span:
             cand = x50_hat + direction * step
             if g(cand) > 0:
                 outer = cand
@@ -740,7 +766,7 @@ def _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, nll_min, cov) -> t
         if outer is None:
             ends.append(None)
         else:
-            ends.append(float(brentq(g, min(inner, outer), max(inner, outer), xtol=1e-10)))
+            ends.append(float(brentq(g, min(inner, outer), max(inner, outer), xtol=PROFILE_XTOL)))
     return ends[0], ends[1]
 
 

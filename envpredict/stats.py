@@ -56,6 +56,12 @@ CONFIDENCE: float = 0.95
 ALPHA: float = 0.05
 #: Index columns tried, in this order, when none is named.
 DEFAULT_INDICES: tuple[str, ...] = ("sti", "stoi")
+#: Fewest bootstrap resamples accepted (judgement: below this even the percentile
+#: interval's ends are mostly Monte-Carlo noise; Efron & Tibshirani 1993 advise 1000).
+MIN_RESAMPLES: int = 100
+#: Fewer matched items than this get a note that the interval and p-value are rough
+#: (judgement).
+FEW_ITEMS: int = 10
 #: Resampled values generated at once (memory bound of the bootstrap, judgement).
 _CHUNK_VALUES: int = 2_000_000
 
@@ -114,7 +120,7 @@ def bootstrap_mean_ci(
                          "compare conditions with more matched items")
     if not 0.0 < confidence < 1.0:
         raise InputError(f"confidence {confidence} is outside (0, 1)", "give e.g. 0.95")
-    if int(n_resamples) < 100:
+    if int(n_resamples) < MIN_RESAMPLES:
         raise InputError(f"{n_resamples} bootstrap resamples are too few", "use 1000 or more")
     m = method.lower()
     if m not in ("bca", "percentile"):
@@ -390,7 +396,7 @@ def compare_conditions(
             entry["ci_low"], entry["ci_high"] = bootstrap_mean_ci(
                 d, confidence=confidence, n_resamples=n_resamples, seed=seed, method=ci_method)
             entry["p_value"] = wilcoxon_p(d)
-            if d.size < 10:
+            if d.size < FEW_ITEMS:
                 notes.append(f"'{cond}' has only {d.size} matched items: the interval and p-value are rough.")
         if len(common) < len(vals) or len(common) < len(base):
             notes.append(f"'{cond}': {len(common)} item(s) matched; {len(vals) - len(common)} of its rows and "

@@ -47,6 +47,10 @@ DEFAULT_SNR_DB: tuple[float, ...] = tuple(
 #: Taal 2011; judgement: 1 s).
 MIN_SPEECH_S: float = 1.0
 
+#: TO is on the FROM:TO:STEP grid when it lies within this many steps of a grid point
+#: (rounding of decimal steps such as 0.1 dB).
+GRID_SLACK: float = 1e-9
+
 #: Two target percents closer than this are the same target (finds the SRT target).
 SAME_TARGET_PERCENT: float = 1e-9
 
@@ -71,7 +75,7 @@ def parse_snr_range(text: str) -> np.ndarray:
         raise InputError(f"SNR range '{text}' is not finite", fix)
     if step <= 0 or hi <= lo:
         raise InputError(f"SNR range '{text}' needs FROM < TO and STEP > 0", fix)
-    count = math.floor((hi - lo) / step + 1e-9) + 1
+    count = math.floor((hi - lo) / step + GRID_SLACK) + 1
     if count < 2:
         raise InputError(f"SNR range '{text}' has fewer than two points", "use a smaller STEP")
     if count > MAX_SNR_POINTS:

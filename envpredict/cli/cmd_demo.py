@@ -31,7 +31,7 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
     from envpredict.indirect import sti_from_ir_file
 
     sc, folder = load_scenario()
-    with Progress("rating the demo hall", 3, quiet=as_json) as prog:
+    with Progress("rating the demo hall", None, quiet=as_json) as prog:
         res = sti_from_ir_file(folder / sc["ir"], noise_db=sc["noise_db"], speech_level_dba=sc["speech_level_dba"],
                                talker=sc["talker"], progress=prog)
     d = res.to_dict()

@@ -75,7 +75,7 @@ def ir_command(
     from envpredict.indirect import sti_from_ir_file
 
     check_report(report)
-    with Progress("analysing impulse response", 3, quiet=as_json) as prog:
+    with Progress("analysing impulse response", None, quiet=as_json) as prog:
         result = sti_from_ir_file(ir_file, channel=channel, noise_db=noise, speech_level_dba=speech_level,
                                   talker=talker, auditory=not no_auditory, progress=prog)
     d = result.to_dict()
