@@ -49,9 +49,13 @@ manifest, so one line is one row.
 Backends
 --------
 * in-process (``workers=1``);
-* a local :class:`concurrent.futures.ProcessPoolExecutor` with the ``spawn`` start
-  method (``workers=N``; default: the number of usable cores), each worker with
-  single-threaded numeric libraries (:data:`THREAD_ENV_VARS`);
+* a local :class:`concurrent.futures.ProcessPoolExecutor` (``workers=N``; default: the
+  number of usable cores), each worker with single-threaded numeric libraries
+  (:data:`THREAD_ENV_VARS`). The workers are forked from a fork server that imports the
+  scoring modules once (:data:`WORKER_MODULES`), started as soon as ``run_batch`` is
+  called so that it imports while the manifest is read; where there is no fork server
+  (Windows) they are spawned and each imports on its own. A worker ends by itself
+  when the batch process is killed;
 * an existing dask.distributed cluster (``scheduler="tcp://HOST:PORT"``; needs the
   optional extra ``pip install 'envpredict[cluster]'``). The workers must have
   envpredict installed and must see the audio files at the same absolute paths
