@@ -9,9 +9,13 @@ Each job has an array-level function that takes samples (``x, fs``) or numbers, 
 a file-level one that takes paths, checks every option before it reads any audio,
 and returns the same result: its name is the array function's with ``_file`` or
 ``_files`` at the end (``sti_from_ir`` / ``sti_from_ir_file``, ``snr_sweep`` /
-``snr_sweep_files``), or ``X_from_file(s)`` where the array function reads
-``X_from_recording(s)`` or ``X_indices``. Results are frozen dataclasses named
-``...Result`` with ``to_dict()``. The command line calls the file-level functions.
+``snr_sweep_files``, ``compare_conditions`` / ``compare_conditions_file``), or
+``X_from_file(s)`` where the array function reads ``X_from_recording(s)`` or
+``X_indices``. Two file-level names stand for their job as a whole: ``predict_file``
+(``predict_scores`` and ``add_predictions`` on a table) and ``run_batch``. Readers of
+a stored result are ``read_X``; generators of a test signal are ``X_signal(s)``.
+Results are frozen dataclasses named ``...Result`` with ``to_dict()``. The command
+line calls the file-level functions.
 
 Public names, by job
 --------------------
