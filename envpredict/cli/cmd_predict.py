@@ -150,10 +150,11 @@ def sweep_command(
     report: Path | None = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """Predicted index and % correct against SNR, and the SNR at target scores (the SRT)."""
-    from envpredict.sweep import snr_sweep_files
+    from envpredict.sweep import DEFAULT_INDEX, snr_sweep_files
 
     check_report(report)
-    with Progress("sweeping", None, quiet=as_json) as prog:
+    shown = index or (None if map_file is not None else DEFAULT_INDEX)  # the mapping's index is read by the API
+    with Progress(f"sweeping {shown}" if shown else "sweeping", None, quiet=as_json) as prog:
         res = snr_sweep_files(clean, noise, ir=ir, snr_db=snr, index=index, mapping=map_file, targets=target,
                               n_segments=segments, level=level, channel=channel, progress=prog)
     name = res.index_name
