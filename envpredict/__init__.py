@@ -3,12 +3,47 @@
 The public API is imported lazily so that ``import envpredict`` (and the CLI's
 ``--help``) stay fast; ``envpredict.sti_from_ir`` etc. load their modules on first use.
 
-Main entry points
------------------
-sti_from_ir(ir, fs, ...)          STI (indirect method) + ISO 3382-1 decay figures
-sti_from_mtf(mtf, ...)            STI from any modulation transfer matrix
-decay_figures(bands, fs, t0)      EDT, T20, T30, C50, C80, D50 per octave band
-load_audio(path, channel)         one channel of an audio file, validated
+Naming
+------
+Each job has an array-level function that takes samples (``x, fs``) or numbers, and
+a file-level one that takes paths, checks every option before it reads any audio,
+and returns the same result: its name is the array function's with ``_file`` or
+``_files`` at the end (``sti_from_ir`` / ``sti_from_ir_file``, ``snr_sweep`` /
+``snr_sweep_files``, ``compare_conditions`` / ``compare_conditions_file``), or
+``X_from_file(s)`` where the array function reads ``X_from_recording(s)`` or
+``X_indices``. Two file-level names stand for their job as a whole: ``predict_file``
+(``predict_scores`` and ``add_predictions`` on a table) and ``run_batch``. Readers of
+a stored result are ``read_X``; generators of a test signal are ``X_signal(s)``.
+Results are frozen dataclasses named ``...Result`` with ``to_dict()``. The command
+line calls the file-level functions.
+
+Public names, by job
+--------------------
+Impulse response (indirect STI, ISO 3382-1 decay figures)
+    sti_from_ir, sti_from_ir_file, IrResult, sti_from_mtf, StiResult,
+    qualification_band, decay_figures, reverberation_time, mid_frequency,
+    mtf_from_ir, octave_bands
+Audio
+    load_audio, validate_signal
+Direct method (test signals and their recordings)
+    stipa_signal, full_sti_signals, full_sti_plan, stipa_from_recording,
+    stipa_from_file, full_sti_from_recordings, full_sti_from_files, DirectResult
+Clean/degraded pairs
+    stoi, estoi, correlation_indices, CorrelationResult, pair_indices,
+    pair_from_files, PairResult, speech_sti
+Inspection of a recording
+    inspect_signal, inspect_file, InspectResult, yin_f0, F0Track
+Index-to-score mappings
+    fit_mapping, fit_mapping_file, ScoreMapping, mapping_from_dict, read_mapping,
+    predict_scores, add_predictions, predict_file
+SNR sweeps and the SRT
+    snr_sweep, snr_sweep_files, SweepResult
+Corpora
+    run_batch, read_results, compare_conditions, compare_conditions_file
+Reports
+    write_report
+Errors
+    EnvpredictError, InputError, ComputationError
 """
 
 from __future__ import annotations
@@ -20,27 +55,22 @@ __version__ = "0.1.0"
 
 # public name -> module that defines it (add one line per public function)
 _API: dict[str, str] = {
+    # impulse response -> STI and decay figures
     "sti_from_ir": "envpredict.indirect",
+    "sti_from_ir_file": "envpredict.indirect",
     "IrResult": "envpredict.indirect",
     "sti_from_mtf": "envpredict.sti",
     "StiResult": "envpredict.sti",
     "qualification_band": "envpredict.sti",
     "decay_figures": "envpredict.decay",
     "reverberation_time": "envpredict.decay",
+    "mid_frequency": "envpredict.decay",
     "mtf_from_ir": "envpredict.modulation",
     "octave_bands": "envpredict.bands",
+    # audio
     "load_audio": "envpredict.audio",
     "validate_signal": "envpredict.audio",
-    "fit_mapping": "envpredict.predict",
-    "ScoreMapping": "envpredict.predict",
-    "mapping_from_dict": "envpredict.predict",
-    "snr_sweep": "envpredict.predict",
-    "SweepResult": "envpredict.predict",
-    "predict_scores": "envpredict.predict",
-    "add_predictions": "envpredict.predict",
-    "EnvpredictError": "envpredict.exceptions",
-    "InputError": "envpredict.exceptions",
-    "ComputationError": "envpredict.exceptions",
+    # direct method: test signals and their recordings
     "stipa_signal": "envpredict.signals",
     "full_sti_signals": "envpredict.signals",
     "full_sti_plan": "envpredict.signals",
@@ -49,6 +79,7 @@ _API: dict[str, str] = {
     "DirectResult": "envpredict.direct",
     "stipa_from_file": "envpredict.direct",
     "full_sti_from_files": "envpredict.direct",
+    # clean/degraded pairs
     "stoi": "envpredict.correlation",
     "estoi": "envpredict.correlation",
     "correlation_indices": "envpredict.correlation",
@@ -57,13 +88,36 @@ _API: dict[str, str] = {
     "pair_from_files": "envpredict.pair",
     "PairResult": "envpredict.pair",
     "speech_sti": "envpredict.pair",
-    "run_batch": "envpredict.batch",
-    "read_results": "envpredict.batch",
-    "compare_conditions": "envpredict.stats",
+    # inspection of a recording
     "inspect_signal": "envpredict.timescales",
     "inspect_file": "envpredict.timescales",
     "InspectResult": "envpredict.timescales",
+    "yin_f0": "envpredict.pitch",
+    "F0Track": "envpredict.pitch",
+    # index -> score mappings
+    "fit_mapping": "envpredict.mapping",
+    "fit_mapping_file": "envpredict.mapping",
+    "ScoreMapping": "envpredict.mapping",
+    "mapping_from_dict": "envpredict.mapping",
+    "read_mapping": "envpredict.mapping",
+    "predict_scores": "envpredict.mapping",
+    "add_predictions": "envpredict.mapping",
+    "predict_file": "envpredict.mapping",
+    # SNR sweeps
+    "snr_sweep": "envpredict.sweep",
+    "snr_sweep_files": "envpredict.sweep",
+    "SweepResult": "envpredict.sweep",
+    # corpora: batches, result tables, comparisons
+    "run_batch": "envpredict.batch",
+    "read_results": "envpredict.tables",
+    "compare_conditions": "envpredict.stats",
+    "compare_conditions_file": "envpredict.stats",
+    # reports
     "write_report": "envpredict.report",
+    # errors
+    "EnvpredictError": "envpredict.exceptions",
+    "InputError": "envpredict.exceptions",
+    "ComputationError": "envpredict.exceptions",
 }
 
 __all__ = sorted(_API) + ["__version__"]

@@ -14,30 +14,50 @@ is not computed (``NaN`` in arrays, ``null`` in JSON) and a note says why.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
+from typing import Sequence
 
 import numpy as np
 
 from . import standards as std
 from .results import jsonable
 
-#: Share of the response at its end used for the first noise-floor estimate.
-#: Source: Lundeby et al. 1995 (last 10 %).
-NOISE_TAIL_FRACTION: float = 0.10
-#: Lundeby iteration: intervals per 10 dB of decay for the smoothing of the energy
-#: envelope (the paper recommends 3 to 10), and the maximum number of iterations.
-INTERVALS_PER_10DB: float = 5.0
-MAX_ITERATIONS: int = 5
+#: Lundeby's procedure (Lundeby et al. 1995): see :mod:`envpredict.standards` for each
+#: constant and its source.
+NOISE_TAIL_FRACTION: float = std.LUNDEBY_NOISE_TAIL_FRACTION
+INTERVALS_PER_10DB: float = std.LUNDEBY_INTERVALS_PER_10DB
+MAX_ITERATIONS: int = std.LUNDEBY_MAX_ITERATIONS
 #: The last part of the response counts as noise only if it is flatter than this
 #: share of the main decay slope (judgement: a tail still falling at half the decay
 #: rate is decay, not noise).
 NOISE_FLATNESS: float = 0.5
+#: A "noise floor" this far below the peak is digital silence (the energy floor
+#: TINY_ENERGY reads as -3000 dB; no recording has 200 dB of dynamic range), dB:
+#: the response decays to its end (judgement).
+NO_NOISE_BELOW_DB: float = -200.0
+#: Slope used where no negative slope can be fitted, dB/s: a reverberation time of 1 s,
+#: so that the compensation term stays finite (judgement; such bands get no figures).
+FALLBACK_SLOPE_DB_PER_S: float = -60.0
+#: Where a response has no noise floor, the energy at its end is the mean over this
+#: last stretch, s (judgement: a short average at the very end of the decay).
+END_ENERGY_S: float = 0.005
+#: Energy floor before taking logarithms (keeps log10 finite for digital silence).
+TINY_ENERGY: float = 1e-300
 #: Clarity and definition need at least this decay range, dB (judgement: below it
 #: the late energy is mostly noise and the ratio is meaningless).
 MIN_RANGE_CLARITY_DB: float = 20.0
 #: Rate of the decimated Schroeder curve used for fitting, Hz: 0.25 ms steps keep more
 #: than 200 points in the EDT range of a 0.3 s decay.
 CURVE_RATE_HZ: float = 4000.0
+#: Rate of the decay curves kept for the figures, Hz (drawing only: 1 ms steps).
+PLOT_CURVE_RATE_HZ: float = 1000.0
+#: Least points of a fitted decay range (below it the slope is not a fit).
+MIN_FIT_POINTS: int = 4
+#: A zero-phase band filter spreads the direct sound backwards by about this many
+#: reciprocal bandwidths; the early energy of C50/C80 starts that much before the
+#: onset (judgement).
+FILTER_SPREAD_BANDWIDTHS: float = 2.0
 
 
 def onset_index(x: np.ndarray) -> int:
@@ -53,11 +73,11 @@ def _smooth_db(e: np.ndarray, win: int) -> tuple[np.ndarray, np.ndarray]:
     win = max(1, int(win))
     n = (e.size // win) * win
     if n == 0:
-        return np.array([0.0]), np.array([10 * np.log10(max(e.mean(), 1e-300))])
+        return np.array([0.0]), np.array([10 * np.log10(max(e.mean(), TINY_ENERGY))])
     blocks = e[:n].reshape(-1, win).mean(axis=1)
     centres = (np.arange(blocks.size) + 0.5) * win
     with np.errstate(divide="ignore"):
-        return centres, 10.0 * np.log10(np.maximum(blocks, 1e-300))
+        return centres, 10.0 * np.log10(np.maximum(blocks, TINY_ENERGY))
 
 
 def _fit_line(t: np.ndarray, y: np.ndarray) -> tuple[float, float]:
@@ -84,13 +104,19 @@ class NoiseFloor:
     has_noise: bool
 
 
+def _initial_window(fs: float, fc: float | None) -> int:
+    """Samples of the first smoothing window (Lundeby step 1; longer for low bands)."""
+    w0 = std.LUNDEBY_INITIAL_WINDOW_S
+    return int(fs * max(w0, std.LUNDEBY_INITIAL_WINDOW_PERIODS / fc if fc else w0))
+
+
 def find_noise_floor(e: np.ndarray, fs: float, fc: float | None = None) -> NoiseFloor:
     """Iterative noise-floor and crossing-point estimate (Lundeby et al. 1995).
 
     ``e`` is the squared response from the onset on.
     """
     n = e.size
-    win0 = int(fs * max(0.010, 4.0 / fc if fc else 0.010))
+    win0 = _initial_window(fs, fc)
     tail = max(1, int(n * NOISE_TAIL_FRACTION))
     peak_db = float(_smooth_db(e, win0)[1].max())
 
@@ -99,15 +125,16 @@ def find_noise_floor(e: np.ndarray, fs: float, fc: float | None = None) -> Noise
         return c, L - peak_db
 
     c, L = _levels(win0)
-    noise_db = 10 * np.log10(max(e[-tail:].mean(), 1e-300)) - peak_db
+    noise_db = 10 * np.log10(max(e[-tail:].mean(), TINY_ENERGY)) - peak_db
     # is the tail noise at all? compare its slope to the main decay slope
-    a, b = _fit_line(c[L > noise_db + 10] / fs, L[L > noise_db + 10]) if np.any(L > noise_db + 10) else (0.0, 0.0)
+    above = L > noise_db + std.LUNDEBY_REGRESSION_NOISE_MARGIN_DB
+    a, b = _fit_line(c[above] / fs, L[above]) if np.any(above) else (0.0, 0.0)
     tail_sel = c >= n - tail
     _, b_tail = _fit_line(c[tail_sel] / fs, L[tail_sel]) if np.count_nonzero(tail_sel) >= 2 else (0.0, 0.0)
-    if b >= 0 or (b_tail < NOISE_FLATNESS * b) or noise_db < -200:
+    if b >= 0 or (b_tail < NOISE_FLATNESS * b) or noise_db < NO_NOISE_BELOW_DB:
         # the response decays to its end: no noise floor in it
         end_db = float(L[-1])
-        slope = b if b < 0 else -60.0
+        slope = b if b < 0 else FALLBACK_SLOPE_DB_PER_S
         return NoiseFloor(crossing=n, noise_db=-np.inf, slope_db_per_s=slope, range_db=-end_db, has_noise=False)
 
     crossing = n
@@ -119,24 +146,28 @@ def find_noise_floor(e: np.ndarray, fs: float, fc: float | None = None) -> Noise
         tc = (noise_db - a) / slope
         new_cross = int(np.clip(tc * fs, 1, n))
         # new smoothing interval: INTERVALS_PER_10DB intervals per 10 dB of decay
-        win = int(np.clip(fs * (10.0 / -slope) / INTERVALS_PER_10DB, fs * 0.002, max(fs * 0.002, n / 10)))
+        w_min = fs * std.LUNDEBY_MIN_WINDOW_S
+        win = int(np.clip(fs * (10.0 / -slope) / INTERVALS_PER_10DB, w_min,
+                          max(w_min, n * std.LUNDEBY_MAX_WINDOW_FRACTION)))
         c, L = _levels(win)
-        # noise from the point where the line is 10 dB below the noise, or the last 10 %
-        t_noise = int(min(n - tail, (tc + 10.0 / -slope) * fs))
+        # noise from the point where the line is LUNDEBY_NOISE_POINT_DB below the noise,
+        # or the last 10 %
+        t_noise = int(min(n - tail, (tc + std.LUNDEBY_NOISE_POINT_DB / -slope) * fs))
         seg = e[max(0, t_noise):]
         if seg.size:
-            noise_db = 10 * np.log10(max(seg.mean(), 1e-300)) - peak_db
+            noise_db = 10 * np.log10(max(seg.mean(), TINY_ENERGY)) - peak_db
         # regression from 5 dB below the peak to 10 dB above the noise
-        sel = (L <= -5.0) & (L >= noise_db + 10.0) & (c < new_cross)
+        sel = ((L <= std.LUNDEBY_REGRESSION_TOP_DB) & (L >= noise_db + std.LUNDEBY_REGRESSION_NOISE_MARGIN_DB)
+               & (c < new_cross))
         if np.count_nonzero(sel) < 2:
-            sel = (L >= noise_db + 5.0) & (c < new_cross)
+            sel = (L >= noise_db + std.LUNDEBY_FALLBACK_NOISE_MARGIN_DB) & (c < new_cross)
         if np.count_nonzero(sel) >= 2:
             a, slope = _fit_line(c[sel] / fs, L[sel])
         converged = abs(new_cross - crossing) < win
         crossing = new_cross
         if converged:
             break
-    slope = slope if slope < 0 else -60.0
+    slope = slope if slope < 0 else FALLBACK_SLOPE_DB_PER_S
     return NoiseFloor(crossing=crossing, noise_db=float(noise_db), slope_db_per_s=float(slope),
                       range_db=float(-noise_db), has_noise=True)
 
@@ -144,7 +175,8 @@ def find_noise_floor(e: np.ndarray, fs: float, fc: float | None = None) -> Noise
 def schroeder_curve(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = None,
                     step: int = 1) -> np.ndarray:
     """Backward-integrated decay curve in dB re its start, truncated at the crossing point
-    with compensation C = e(tc) * T / 13.8 for the energy beyond it (ISO 3382-1, 5.3.3).
+    with compensation C = e(tc) * T / 13.8 for the energy beyond it (ISO 3382-1, 5.3.3;
+    :data:`envpredict.standards.DECAY_TAIL_DIVISOR`).
 
     The integral is taken at the full rate; the curve is returned at every ``step``-th
     sample (it is smooth, so a decimated copy loses nothing for fitting or plotting).
@@ -159,7 +191,7 @@ def schroeder_curve(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | Non
 
 
 def _peak_energy(e: np.ndarray, fs: float, fc: float | None = None) -> float:
-    _, L = _smooth_db(e, int(fs * max(0.010, 4.0 / fc if fc else 0.010)))
+    _, L = _smooth_db(e, _initial_window(fs, fc))
     return float(10 ** (L.max() / 10.0))
 
 
@@ -175,10 +207,10 @@ def tail_energy(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = 
     if floor.has_noise:
         e_tc = noise_energy(e, fs, floor, fc)
     else:
-        w = max(1, int(0.005 * fs))
+        w = max(1, int(END_ENERGY_S * fs))
         e_tc = float(e[max(0, floor.crossing - w):floor.crossing].mean())
     T = -60.0 / floor.slope_db_per_s
-    return e_tc * T / 13.8 * fs
+    return e_tc * T / std.DECAY_TAIL_DIVISOR * fs
 
 
 def fit_decay_time(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) -> float:
@@ -191,7 +223,7 @@ def fit_decay_time(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) 
         return float("nan")
     i_lo = int(below_lo[0])
     i_hi = int(np.argmax(finite & (c <= hi_db)))
-    if i_lo - i_hi < 3:
+    if i_lo - i_hi < MIN_FIT_POINTS - 1:
         return float("nan")
     t = np.arange(i_hi, i_lo + 1) / fs
     _, slope = _fit_line(t, c[i_hi : i_lo + 1])
@@ -279,7 +311,7 @@ def band_decay(band: np.ndarray, fs: float, t0: int, fc: float | None = None) ->
     # band filter spreads the direct sound by about 2/bandwidth), late energy to the
     # crossing point plus the compensated tail, noise energy removed from both.
     bw = fc * (std.OCTAVE_EDGE_FACTOR - 1 / std.OCTAVE_EDGE_FACTOR) if fc else fs / 4
-    pre = min(t0, int(2.0 / bw * fs))
+    pre = min(t0, int(FILTER_SPREAD_BANDWIDTHS / bw * fs))
     noise_e = noise_energy(e, fs, floor, fc)
     tc = t0 + floor.crossing
     tail = tail_energy(e, fs, floor, fc)
@@ -292,8 +324,8 @@ def band_decay(band: np.ndarray, fs: float, t0: int, fc: float | None = None) ->
             out["notes"].append(f"{name.upper()} not computed at {label}: decay range {floor.range_db:.0f} dB, "
                                 f"{MIN_RANGE_CLARITY_DB:.0f} dB needed")
             continue
-        early = max(float(e_all[t0 - pre:split].sum()) - noise_e * (split - t0 + pre), 1e-300)
-        late = max(float(e_all[split:tc].sum()) - noise_e * (tc - split) + tail, 1e-300)
+        early = max(float(e_all[t0 - pre:split].sum()) - noise_e * (split - t0 + pre), TINY_ENERGY)
+        late = max(float(e_all[split:tc].sum()) - noise_e * (tc - split) + tail, TINY_ENERGY)
         out[name] = 10.0 * np.log10(early / late)
         if name == "c50":
             out["d50"] = early / (early + late)
@@ -314,7 +346,7 @@ def decay_figures(band_irs: np.ndarray, fs: float, t0: int, *, keep_curves: bool
     curves = None
     rate = 0.0
     if keep_curves:
-        q = max(1, int(per[0]["curve_rate"] // 1000))  # 1 kHz is plenty for plotting
+        q = max(1, int(per[0]["curve_rate"] // PLOT_CURVE_RATE_HZ))  # 1 kHz is plenty for plotting
         curves = np.stack([p["curve"][::q] for p in per])
         rate = per[0]["curve_rate"] / q
     arr = lambda k: np.array([p[k] for p in per], dtype=float)  # noqa: E731
@@ -333,3 +365,55 @@ def reverberation_time(x: np.ndarray, fs: float, kind: str = "t30") -> float:
     """Broadband EDT/T20/T30 of an impulse response (NaN if the range is too small)."""
     x = np.asarray(x, dtype=np.float64)
     return float(band_decay(x, fs, onset_index(x), None)[kind])
+
+
+def mid_frequency(values: Sequence[float | None] | np.ndarray,
+                  bands_hz: Sequence[float] = std.OCTAVE_BANDS_HZ) -> float:
+    """Single-number ("mid-frequency") value of a per-octave-band figure such as T30 or EDT.
+
+    The mean of the 500 Hz and 1 kHz octave values
+    (:data:`envpredict.standards.MID_FREQUENCY_BANDS_HZ`). If either is missing (NaN or
+    ``None``) the single number is missing too: the mean of the band that is left would
+    be reported as if it were the standard figure.
+
+    Parameters
+    ----------
+    values : one value per band of ``bands_hz`` (``None`` or NaN where not computed),
+        e.g. ``DecayResult.t30`` or the ``decay["t30"]`` list of a result's JSON.
+    bands_hz : centre frequencies of ``values``, Hz (default: the seven STI octave bands).
+
+    Returns
+    -------
+    float, NaN when a mid-frequency band is missing.
+
+    References
+    ----------
+    ISO 3382-1:2009, Annex A, Table A.1 (single-number frequency averaging, 500 Hz to
+    1000 Hz, for EDT and T).
+
+    Examples
+    --------
+    >>> mid_frequency([1.9, 1.8, 1.6, 1.5, 1.3, 1.1, 0.9])
+    1.55
+    >>> import math
+    >>> math.isnan(mid_frequency([1.9, 1.8, None, 1.5, 1.3, 1.1, 0.9]))
+    True
+    """
+    bands = [float(b) for b in bands_hz]
+    if len(values) != len(bands):
+        raise ValueError(f"{len(values)} values for {len(bands)} bands")
+    vals = []
+    for fc in std.MID_FREQUENCY_BANDS_HZ:
+        if fc not in bands:
+            return float("nan")
+        v = values[bands.index(fc)]
+        vals.append(float("nan") if v is None else float(v))
+    return math.fsum(vals) / len(vals) if all(math.isfinite(v) for v in vals) else float("nan")
+
+
+def mid_frequency_notes(decay: DecayResult, name: str) -> tuple[str, ...]:
+    """The notes of :func:`decay_figures` that explain a missing 500 Hz or 1 kHz value of
+    figure ``name`` ("t30", "edt", ...); empty when there is none."""
+    fig = name.upper()
+    return tuple(n for n in decay.notes if n.startswith(fig) and any(f" at {b:g} Hz" in n for b in
+                                                                     std.MID_FREQUENCY_BANDS_HZ))

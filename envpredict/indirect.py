@@ -4,6 +4,7 @@ with the ISO 3382-1 decay figures of the same response."""
 from __future__ import annotations
 
 from dataclasses import dataclass
+import os
 from typing import Callable, Sequence
 
 import numpy as np
@@ -28,9 +29,14 @@ MIN_IR_SECONDS: float = 1.0 / (2.0 * min(std.MODULATION_FREQUENCIES_HZ))
 PRE_ONSET_S: float = 0.025
 
 #: A response with no noise floor that ends less than this far below its peak was cut
-#: while still decaying: its late energy is missing (judgement: 45 dB is the range T30
-#: needs, ISO 3382-1 5.3.3).
-TRUNCATION_RANGE_DB: float = 45.0
+#: while still decaying: its late energy is missing (45 dB, the range T30 needs:
+#: ISO 3382-1:2009, 3.3 and 5.3.3, see :data:`envpredict.standards.T30_NEEDED_RANGE_DB`).
+TRUNCATION_RANGE_DB: float = std.T30_NEEDED_RANGE_DB
+
+#: A band with less decay than this above its noise floor gets a caution: its MTF rests
+#: on a short stretch of decay (judgement: the range T20 would need is 35 dB; below
+#: 20 dB the Schroeder integral of the band is dominated by its noise compensation).
+WEAK_DECAY_DB: float = 20.0
 
 
 #: An impulse response must decay by at least this much in some band; otherwise the file
@@ -72,7 +78,7 @@ def sti_from_ir(
     *,
     noise_db: Sequence[float] | str | None = None,
     speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
-    talker: str = "male",
+    talker: str = std.DEFAULT_TALKER,
     auditory: bool = True,
     progress: Callable[[int, int], None] | None = None,
 ) -> IrResult:
@@ -163,14 +169,56 @@ def sti_from_ir(
             f"The impulse response seems cut off before it decayed ({names}): the MTF is too high "
             "there. Export a longer response."
         )
-    weak = ~cut & (decay.range_db < 20.0)
+    weak = ~cut & (decay.range_db < WEAK_DECAY_DB)
     if np.any(weak):
         names = ", ".join(f"{f:g} Hz" for f, c in zip(std.OCTAVE_BANDS_HZ, weak) if c)
         cautions.append(
-            f"The impulse response has less than 20 dB of decay above its noise floor at {names}: "
+            f"The impulse response has less than {WEAK_DECAY_DB:.0f} dB of decay above its noise floor at {names}: "
             "the MTF there is uncertain. Measure with more excitation level or averaging."
         )
     return IrResult(
         sti=res, decay=decay, fs=fs, duration_s=x.size / fs, speech_level_dba=speech_level_dba,
         cautions=tuple(cautions), ir_range_db=decay.range_db,
     )
+
+
+def sti_from_ir_file(
+    path: str | os.PathLike,
+    *,
+    channel: int | None = None,
+    noise_db: Sequence[float] | str | None = None,
+    speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
+    talker: str = std.DEFAULT_TALKER,
+    auditory: bool = True,
+    progress: Callable[[int, int], None] | None = None,
+) -> IrResult:
+    """STI (indirect method) and ISO 3382-1 decay figures of an impulse-response file.
+
+    The options are checked before the file is read (a bad option is refused without
+    touching the audio); then one channel of the file is loaded and validated
+    (:func:`envpredict.audio.load_audio`) and passed to :func:`sti_from_ir`.
+
+    Parameters
+    ----------
+    path : WAV, FLAC or OGG file holding the impulse response.
+    channel : channel of a multi-channel file (0 = first); ``None`` requires a mono file.
+    noise_db, speech_level_dba, talker, auditory, progress : as for :func:`sti_from_ir`.
+
+    Returns
+    -------
+    IrResult, the same as ``sti_from_ir(*load_audio(path, channel), ...)``.
+
+    Raises
+    ------
+    InputError
+        A bad option, or a missing, unreadable, clipped or silent file, or one that is not
+        an impulse response.
+    """
+    from .audio import load_audio
+
+    talker = check_talker(talker)
+    speech_level_dba = check_speech_level(speech_level_dba)
+    noise = parse_noise_levels(noise_db) if noise_db is not None else None
+    x, fs = load_audio(path, channel, name="impulse response")
+    return sti_from_ir(x, fs, noise_db=noise, speech_level_dba=speech_level_dba, talker=talker,
+                       auditory=auditory, progress=progress)

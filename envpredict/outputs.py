@@ -20,6 +20,12 @@ def _check_parent(path: Path) -> None:
         raise InputError(f"output '{path}' is a folder", "give a file name")
 
 
+def check_output_file(path: str | os.PathLike) -> None:
+    """Refuse an output file whose folder is missing or which is a folder (what the atomic
+    writers below refuse), so that a command can say so before its slow work."""
+    _check_parent(Path(path))
+
+
 def atomic_write_bytes(path: str | os.PathLike, data: bytes) -> Path:
     """Write ``data`` to ``path`` through a temporary file and an atomic rename."""
     p = Path(path)

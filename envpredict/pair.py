@@ -68,7 +68,7 @@ SCAN_BLOCK: int = 1 << 20
 
 #: Seconds of (aligned, 10 kHz) signal per chunk of the STOI passes and of the
 #: speech-based STI pass. Memory grows with it, results do not.
-DEFAULT_CHUNK_S: float = 60.0
+DEFAULT_CHUNK_S: float = std.PAIR_CHUNK_S
 
 #: Envelope low-pass of the speech-based STI, Hz: the top modulation frequency of the
 #: STI, 12.5 Hz (IEC 60268-16:2011, Table 1), so the NCM compares the envelope content
@@ -536,7 +536,7 @@ def pair_indices(
     *,
     fs_degraded: int | None = None,
     align: bool = True,
-    max_delay_s: float = 1.0,
+    max_delay_s: float = std.PAIR_MAX_DELAY_S,
     chunk_s: float = DEFAULT_CHUNK_S,
     progress: Callable[[int, int], None] | None = None,
 ) -> PairResult:
@@ -596,7 +596,7 @@ def pair_from_files(
     *,
     channel: int | None = None,
     align: bool = True,
-    max_delay_s: float = 1.0,
+    max_delay_s: float = std.PAIR_MAX_DELAY_S,
     chunk_s: float = DEFAULT_CHUNK_S,
     progress: Callable[[int, int], None] | None = None,
 ) -> PairResult:

@@ -51,7 +51,7 @@ FADE_S: float = 0.010
 MAX_SECONDS: float = 3600.0
 
 #: Default sample rate of generated signals, Hz.
-DEFAULT_RATE_HZ: int = 48000
+DEFAULT_RATE_HZ: int = std.TEST_SIGNAL_RATE_HZ
 
 
 def check_generation(fs: int, seconds: float | None = None) -> int:

@@ -138,6 +138,10 @@ VOCAL_EFFORT_DBA: dict[str, float] = {
 #: Default speech level used when the user gives none: normal vocal effort, dB(A).
 DEFAULT_SPEECH_LEVEL_DBA: float = VOCAL_EFFORT_DBA["normal"]
 
+#: Speech spectrum and band weights used when the user names no talker. Source:
+#: IEC 60268-16:2011, Annex A (the male spectrum is the reference one; from memory).
+DEFAULT_TALKER: str = "male"
+
 #: Plausible range for a speech level option, dB(A): below the reception threshold of
 #: every band there is nothing to rate; above 120 dB(A) the input is almost certainly
 #: a mistake (common practice, no source).
@@ -210,6 +214,67 @@ DECAY_NOISE_HEADROOM_DB: float = 10.0
 #: Annex A (C50, C80, D50).
 C50_S: float = 0.050
 C80_S: float = 0.080
+
+#: Decay range a band needs for T30: the -35 dB end of its evaluation range plus the
+#: 10 dB headroom above the noise floor, i.e. 45 dB. A response with no noise floor
+#: that ends less than this below its peak was cut while still decaying. Derived from
+#: ISO 3382-1:2009, 3.3 and 5.3.3 (the two tables above).
+T30_NEEDED_RANGE_DB: float = -DECAY_RANGES_DB["t30"][1] + DECAY_NOISE_HEADROOM_DB
+
+#: Divisor of the energy beyond the truncation point: an exponential decay with
+#: reverberation time T holds E(t1) * T / 13.8 after t1 (13.8 = 60 / (10 lg e), rounded
+#: as printed). Source: ISO 3382-1:2009, 5.3.3 (compensation term C), from memory.
+DECAY_TAIL_DIVISOR: float = 13.8
+
+# ---------------------------------------------------------------------------
+# Noise floor and truncation point of an impulse response (Lundeby et al. 1995)
+# ---------------------------------------------------------------------------
+# Source: A. Lundeby, T. E. Vigran, H. Bietz, M. Vorlaender, "Uncertainties of
+# measurements in room acoustics", Acustica 81 (1995) 344-355, the iterative
+# procedure of Sec. 4 (steps 1-9). Values "from memory" were written from knowledge
+# of the paper, not copied from it.
+
+#: Share of the response at its end used for the first noise-floor estimate (step 2:
+#: the last 10 % of the response).
+LUNDEBY_NOISE_TAIL_FRACTION: float = 0.10
+
+#: Averaging window of the first smoothing of the squared response, s (step 1: 10 to
+#: 50 ms; the shortest is used). Bands below 400 Hz use 4 periods of their centre
+#: frequency instead when that is longer (judgement: a window shorter than a few
+#: periods leaves the carrier ripple in the envelope).
+LUNDEBY_INITIAL_WINDOW_S: float = 0.010
+LUNDEBY_INITIAL_WINDOW_PERIODS: float = 4.0
+
+#: Intervals per 10 dB of decay for the smoothing of the later iterations (step 5:
+#: 3 to 10 intervals per 10 dB; the middle of that range is used).
+LUNDEBY_INTERVALS_PER_10DB: float = 5.0
+
+#: The first regression line (step 3) and the later ones (step 7) fit the smoothed
+#: decay from this level re its peak down to LUNDEBY_REGRESSION_NOISE_MARGIN_DB above
+#: the noise, dB. The paper starts at 0 dB; -5 dB skips the direct sound, as the T30
+#: range of ISO 3382-1 does (judgement).
+LUNDEBY_REGRESSION_TOP_DB: float = -5.0
+#: Step 3 / step 7: the regression ends this far above the noise level, dB (10 dB).
+LUNDEBY_REGRESSION_NOISE_MARGIN_DB: float = 10.0
+#: When fewer than two points lie in that range, the regression runs from the peak to
+#: this far above the noise instead, dB (judgement).
+LUNDEBY_FALLBACK_NOISE_MARGIN_DB: float = 5.0
+
+#: Step 6: the noise is re-estimated from the point where the regression line lies
+#: this far below the crossing point (the paper: 5 to 10 dB; 10 dB used), or from the
+#: last LUNDEBY_NOISE_TAIL_FRACTION of the response if that starts earlier.
+LUNDEBY_NOISE_POINT_DB: float = 10.0
+
+#: Step 9: iterate until the crossing point moves less than one averaging window, at
+#: most this many times (the paper reports convergence within a few iterations; from
+#: memory: 5 is enough in practice).
+LUNDEBY_MAX_ITERATIONS: int = 5
+
+#: Bounds of the averaging window of the later iterations: at least this long, s, and
+#: at most this share of the response (judgement: keeps a steep or a shallow decay
+#: from a window of one sample or of the whole response).
+LUNDEBY_MIN_WINDOW_S: float = 0.002
+LUNDEBY_MAX_WINDOW_FRACTION: float = 0.10
 
 # ---------------------------------------------------------------------------
 # STOI and ESTOI (Taal 2011; Jensen 2016)
@@ -343,3 +408,42 @@ MODULATION_BANDS_HZ: tuple[float, ...] = (
 #: Source: ISO 3382-1:2009, Annex A, Table A.1 (single-number frequency averaging
 #: 500 Hz to 1000 Hz for EDT and T).
 MID_FREQUENCY_BANDS_HZ: tuple[float, ...] = (500.0, 1000.0)
+
+# ---------------------------------------------------------------------------
+# Defaults of the tool's options, shared by the API signatures and the CLI
+# ---------------------------------------------------------------------------
+# Not from a standard unless a source is given: named here once so that the API and
+# the command line use the same value (this module imports nothing, so the CLI can
+# read them without loading the numeric code).
+
+#: Default SNR range of a sweep, dB: from, to (inclusive) and step (judgement: spans
+#: the steep part of typical psychometric functions of sentences in noise).
+SWEEP_SNR_FROM_DB: float = -15.0
+SWEEP_SNR_TO_DB: float = 15.0
+SWEEP_SNR_STEP_DB: float = 3.0
+#: Noise segments per SNR of a sweep (judgement: enough for a t interval, few enough
+#: to keep a sweep short).
+SWEEP_SEGMENTS: int = 5
+#: Level convention of a sweep ("speech": the speech stays at its level and the noise
+#: is scaled; judgement, the usual convention of SRT tests).
+SWEEP_LEVEL: str = "speech"
+#: Target score of the speech reception threshold, percent correct. Source: R. Plomp,
+#: A. M. Mimpen, "Improving the reliability of testing the speech reception threshold
+#: for sentences", Audiology 18 (1979) 43-52 (SRT = SNR at 50 % sentences correct).
+SRT_PERCENT: float = 50.0
+#: Shape of a fitted mapping and its fixed guess and lapse rates (judgement: the
+#: logistic of an open-set test, no floor, no lapses).
+MAPPING_SHAPE: str = "logistic"
+MAPPING_GUESS: float = 0.0
+MAPPING_LAPSE: float = 0.0
+#: Sample rate of generated test signals, Hz (judgement: the common rate of
+#: measurement recorders; the 8 kHz octave band needs more than 22.6 kHz).
+TEST_SIGNAL_RATE_HZ: int = 48000
+#: Seed of the test-signal noise generator (any fixed value: the same seed gives the
+#: same signal).
+TEST_SIGNAL_SEED: int = 0
+#: Largest delay between a clean and a degraded signal searched by the pair analysis,
+#: s (judgement: transmission and processing delays stay well below 1 s).
+PAIR_MAX_DELAY_S: float = 1.0
+#: Audio per processing chunk of the pair analysis, s (memory only; judgement).
+PAIR_CHUNK_S: float = 60.0

@@ -33,15 +33,16 @@ procedure", Scand. J. Statist. 6 (1979).
 from __future__ import annotations
 
 import math
+import os
 import warnings
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
 import numpy as np
 
-from .batch import DEGRADED_COLUMN, ERROR_COLUMN, IR_COLUMN, RESULT_COLUMNS
 from .exceptions import InputError
 from .results import jsonable
+from .tables import DEGRADED_COLUMN, ERROR_COLUMN, IR_COLUMN, RESULT_COLUMNS, cell_number
 
 #: Bootstrap resamples. Efron & Tibshirani (1993, sec. 19.3) advise at least 1000 for
 #: a percentile/BCa interval; 10000 keeps the Monte-Carlo error of the interval ends
@@ -55,6 +56,12 @@ CONFIDENCE: float = 0.95
 ALPHA: float = 0.05
 #: Index columns tried, in this order, when none is named.
 DEFAULT_INDICES: tuple[str, ...] = ("sti", "stoi")
+#: Fewest bootstrap resamples accepted (judgement: below this even the percentile
+#: interval's ends are mostly Monte-Carlo noise; Efron & Tibshirani 1993 advise 1000).
+MIN_RESAMPLES: int = 100
+#: Fewer matched items than this get a note that the interval and p-value are rough
+#: (judgement).
+FEW_ITEMS: int = 10
 #: Resampled values generated at once (memory bound of the bootstrap, judgement).
 _CHUNK_VALUES: int = 2_000_000
 
@@ -113,7 +120,7 @@ def bootstrap_mean_ci(
                          "compare conditions with more matched items")
     if not 0.0 < confidence < 1.0:
         raise InputError(f"confidence {confidence} is outside (0, 1)", "give e.g. 0.95")
-    if int(n_resamples) < 100:
+    if int(n_resamples) < MIN_RESAMPLES:
         raise InputError(f"{n_resamples} bootstrap resamples are too few", "use 1000 or more")
     m = method.lower()
     if m not in ("bca", "percentile"):
@@ -239,24 +246,8 @@ class Comparison:
             "index": self.index, "by": self.by, "baseline": self.baseline, "pair_on": list(self.pair_on),
             "ci_method": self.ci_method, "n_resamples": self.n_resamples, "seed": self.seed,
             "confidence": self.confidence, "alpha": ALPHA, "skipped_rows": self.skipped_rows,
-            "conditions": [c.to_dict() for c in self.conditions], "notes": list(self.notes),
+            "conditions": [c.to_dict() for c in self.conditions], "cautions": [], "notes": list(self.notes),
         })
-
-
-def _number(v: Any) -> float | None:
-    if v is None:
-        return None
-    if isinstance(v, (int, float, np.floating, np.integer)):
-        f = float(v)
-    else:
-        s = str(v).strip()
-        if not s:
-            return None
-        try:
-            f = float(s)
-        except ValueError:
-            return None
-    return f if math.isfinite(f) else None
 
 
 def default_pair_on(columns: Sequence[str], by: str, index: str) -> tuple[str, ...]:
@@ -283,7 +274,7 @@ def compare_conditions(
     Parameters
     ----------
     rows : the results table, one mapping (column -> value or cell text) per row, e.g.
-        from :func:`envpredict.batch.read_results`.
+        from :func:`envpredict.tables.read_results`.
     by : the column naming the condition.
     baseline : the condition the others are compared with (a value of ``by``).
     index : the numeric column compared (default: ``sti`` or ``stoi``, whichever has
@@ -321,7 +312,7 @@ def compare_conditions(
     if by not in cols:
         raise InputError(f"column '{by}' (--by) is not in the results", f"use one of: {', '.join(cols)}")
     if index is None:
-        found = [c for c in DEFAULT_INDICES if c in cols and any(_number(r.get(c)) is not None for r in rows)]
+        found = [c for c in DEFAULT_INDICES if c in cols and any(cell_number(r.get(c)) is not None for r in rows)]
         if not found:
             raise InputError("no index column (sti or stoi) with values in the results",
                              "name the column to compare with --index")
@@ -333,7 +324,7 @@ def compare_conditions(
         raise InputError(f"column '{index}' (--index) is not in the results", f"use one of: {', '.join(cols)}")
     if index == by:
         raise InputError(f"--index and --by are the same column '{by}'", "compare an index across conditions")
-    if not any(_number(r.get(index)) is not None for r in rows):
+    if not any(cell_number(r.get(index)) is not None for r in rows):
         raise InputError(f"column '{index}' holds no numbers", "choose a numeric index column with --index")
     if pair_on is None:
         keys = default_pair_on(cols, by, index)
@@ -360,7 +351,7 @@ def compare_conditions(
         if cond not in values:
             values[cond] = {}
             order.append(cond)
-        v = _number(r.get(index))
+        v = cell_number(r.get(index))
         if str(r.get(ERROR_COLUMN, "") or "").strip() or v is None:
             skipped += 1
             continue
@@ -405,7 +396,7 @@ def compare_conditions(
             entry["ci_low"], entry["ci_high"] = bootstrap_mean_ci(
                 d, confidence=confidence, n_resamples=n_resamples, seed=seed, method=ci_method)
             entry["p_value"] = wilcoxon_p(d)
-            if d.size < 10:
+            if d.size < FEW_ITEMS:
                 notes.append(f"'{cond}' has only {d.size} matched items: the interval and p-value are rough.")
         if len(common) < len(vals) or len(common) < len(base):
             notes.append(f"'{cond}': {len(common)} item(s) matched; {len(vals) - len(common)} of its rows and "
@@ -428,3 +419,35 @@ def compare_conditions(
                       ci_method="BCa" if ci_method.lower() == "bca" else "percentile",
                       n_resamples=int(n_resamples), seed=int(seed), confidence=float(confidence),
                       skipped_rows=skipped, notes=tuple(notes))
+
+
+def compare_conditions_file(
+    path: str | os.PathLike,
+    *,
+    by: str,
+    baseline: str,
+    index: str | None = None,
+    pair_on: str | Sequence[str] | None = None,
+    confidence: float = CONFIDENCE,
+    n_resamples: int = BOOTSTRAP_RESAMPLES,
+    seed: int = BOOTSTRAP_SEED,
+    ci_method: str = "BCa",
+) -> Comparison:
+    """:func:`compare_conditions` of a results file written by ``envpredict batch``.
+
+    Parameters
+    ----------
+    path : the results CSV (read by :func:`envpredict.tables.read_results`; a file still
+        being written is read up to its last complete line).
+    by, baseline, index, pair_on, confidence, n_resamples, seed, ci_method : as for
+        :func:`compare_conditions`.
+
+    Returns
+    -------
+    Comparison
+    """
+    from .tables import read_results
+
+    columns, rows = read_results(path)
+    return compare_conditions(rows, by=by, baseline=baseline, index=index, pair_on=pair_on, columns=columns,
+                              confidence=confidence, n_resamples=n_resamples, seed=seed, ci_method=ci_method)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import json
 import os
@@ -277,6 +278,36 @@ def test_sigkill_then_resume_equals_uninterrupted_run(ir_corpus, tmp_path, worke
     _numeric_equal(out, ir_corpus["reference"])
 
 
+def test_no_worker_outlives_a_killed_batch(ir_corpus, tmp_path):
+    # SIGKILL of the batch process alone (not its group): its pool workers (and the fork
+    # server they come from) must end by themselves instead of scoring on as orphans
+    out = tmp_path / "orphans.csv"
+    cmd = [sys.executable, "-c", "from envpredict.cli import main; main()", "batch", str(ir_corpus["manifest"]),
+           "--out", str(out), "--workers", "2"]
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    group = proc.pid
+    try:
+        deadline = time.monotonic() + 60
+        while _data_lines(out) < 2 and proc.poll() is None and time.monotonic() < deadline:
+            time.sleep(0.005)
+        assert proc.poll() is None, "the batch finished before it could be killed"
+        os.kill(proc.pid, signal.SIGKILL)
+        proc.wait()
+        gone = False
+        deadline = time.monotonic() + 10 * batch.PARENT_CHECK_S + 5
+        while time.monotonic() < deadline:
+            try:
+                os.killpg(group, 0)  # any process of the batch's group left?
+            except ProcessLookupError:
+                gone = True
+                break
+            time.sleep(0.05)
+        assert gone, "pool processes survived the killed batch"
+    finally:
+        with contextlib.suppress(ProcessLookupError):
+            os.killpg(group, signal.SIGKILL)
+
+
 def test_resume_drops_a_torn_last_line(ir_corpus, tmp_path):
     ref = ir_corpus["reference"].read_text().splitlines(keepends=True)
     out = tmp_path / "torn.csv"
@@ -402,9 +433,10 @@ def test_cli_batch_json_summary(ir_corpus, tmp_path, capsys):
     out = tmp_path / "r.csv"
     assert _cli(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--workers", "1", "--json"]) == 0
     d = json.loads(capsys.readouterr().out)
-    for key in ("manifest", "out", "backend", "workers", "total", "skipped", "scored", "failed", "ok",
-                "seconds", "rows_per_s", "failures"):
+    for key in ("backend", "workers", "total", "skipped", "scored", "failed", "ok",
+                "seconds", "rows_per_s", "failures", "cautions", "notes"):
         assert key in d
+    assert (d["inputs"]["manifest"], d["inputs"]["out"]) == (str(ir_corpus["manifest"]), str(out))
     assert (d["total"], d["scored"], d["failed"], d["backend"]) == (N_IR_ROWS, N_IR_ROWS, 0, "in-process")
 
 

@@ -89,3 +89,41 @@ def test_onset_is_20db_rule():
     x[300] = 0.2   # -14 dB: the onset
     x[400] = 1.0
     assert onset_index(x) == 300
+
+
+def test_mid_frequency_is_the_iso_3382_mean_of_500_hz_and_1_khz():
+    # ISO 3382-1:2009, Table A.1: the single number is (X_500 + X_1000) / 2, computed
+    # here by hand from the band values (1.61 and 1.48)
+    from envpredict.decay import mid_frequency
+
+    t30 = [1.96, 1.85, 1.61, 1.48, 1.31, 1.14, 0.90]
+    assert mid_frequency(t30) == pytest.approx((1.61 + 1.48) / 2, abs=1e-15)
+    # other bands do not enter
+    assert mid_frequency([9.0, 9.0, 1.61, 1.48, 9.0, 9.0, 9.0]) == mid_frequency(t30)
+
+
+@pytest.mark.parametrize("missing", [2, 3])
+def test_mid_frequency_is_missing_when_either_band_is(missing):
+    # refuse rather than mislead: the mean of the one band left is not the standard figure
+    # (a nanmean would give 1.48 or 1.61 here)
+    from envpredict.decay import mid_frequency
+
+    for gap in (None, float("nan")):
+        t30 = [1.96, 1.85, 1.61, 1.48, 1.31, 1.14, 0.90]
+        t30[missing] = gap
+        assert np.isnan(mid_frequency(t30))
+    # a missing band outside 500 Hz-1 kHz does not matter
+    assert mid_frequency([None, None, 1.0, 2.0, None, None, None]) == 1.5
+
+
+def test_mid_frequency_notes_name_the_missing_band():
+    from envpredict.decay import DecayResult, mid_frequency_notes
+
+    nan = float("nan")
+    d = DecayResult(bands_hz=(125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0, 8000.0), edt=np.ones(7),
+                    t20=np.ones(7), t30=np.array([1, 1, nan, 1, 1, 1, nan]), c50=np.ones(7), c80=np.ones(7),
+                    d50=np.ones(7), range_db=np.ones(7), noise_floor_db=np.ones(7), crossing_s=np.ones(7),
+                    notes=("T30 not computed at 500 Hz: decay range 30 dB, 45 dB needed",
+                           "T30 not computed at 8000 Hz: decay range 20 dB, 45 dB needed"))
+    assert mid_frequency_notes(d, "t30") == ("T30 not computed at 500 Hz: decay range 30 dB, 45 dB needed",)
+    assert mid_frequency_notes(d, "edt") == ()

@@ -78,3 +78,32 @@ def test_noise_is_not_an_impulse_response():
     x = 0.1 * np.random.default_rng(0).standard_normal(2 * 48000)
     with pytest.raises(InputError, match="does not look like an impulse response"):
         sti_from_ir(x, 48000)
+
+
+def test_sti_from_ir_file_equals_the_array_function(tmp_path):
+    import soundfile as sf
+
+    from envpredict.indirect import sti_from_ir_file
+
+    x = noise_decay(0.8, seed=11)
+    path = tmp_path / "ir.wav"
+    sf.write(path, x, 48000, subtype="FLOAT")  # float32 on disk: compare with what is read back
+    y, fs = sf.read(path, dtype="float64")
+    a = sti_from_ir(y, fs, noise_db=[50, 47, 44, 41, 38, 35, 32], speech_level_dba=65, talker="female")
+    b = sti_from_ir_file(path, noise_db="50,47,44,41,38,35,32", speech_level_dba=65, talker="female")
+    assert b.to_dict() == a.to_dict()
+
+
+@pytest.mark.parametrize("kw,what", [
+    ({"talker": "child"}, "talker"),
+    ({"speech_level_dba": float("nan")}, "speech level"),
+    ({"noise_db": "1,2,3"}, "noise"),
+])
+def test_sti_from_ir_file_checks_options_before_reading(tmp_path, kw, what):
+    # the file does not exist: the option error must come first (no audio work for bad options)
+    from envpredict.indirect import sti_from_ir_file
+
+    with pytest.raises(InputError, match=what):
+        sti_from_ir_file(tmp_path / "missing.wav", **kw)
+    with pytest.raises(InputError, match="does not exist"):
+        sti_from_ir_file(tmp_path / "missing.wav")

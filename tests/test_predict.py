@@ -1,4 +1,4 @@
-"""Tests of envpredict.predict: mappings, binomial fit, SNR sweep, predicted-score column.
+"""Tests of envpredict.mapping and envpredict.sweep: mappings, binomial fit, SNR sweep, predicted-score column.
 
 External references: scipy.stats (binomial simulation, chi-square, Student t,
 binomial log-pmf), statsmodels (binomial GLM with logit and probit links; Logit and
@@ -21,16 +21,15 @@ from scipy import stats
 from scipy.special import expit, logit, ndtr
 
 from envpredict.exceptions import ComputationError, InputError
-from envpredict.predict import (
+from envpredict.mapping import (
     ScoreMapping,
     add_predictions,
     fit_mapping,
     mapping_from_dict,
-    parse_snr_range,
     predict_scores,
     scores_from_rows,
-    snr_sweep,
 )
+from envpredict.sweep import parse_snr_range, snr_sweep
 
 from conftest import run_cli
 
@@ -675,3 +674,79 @@ def test_cli_sweep_and_predict_refusals(tmp_path, capsys):
     assert code == 2 and "FROM < TO" in err
     code, _out, err = run_cli(["sweep", "a.wav", "b.wav", "--target", "50"], capsys)
     assert code == 2 and "needs a mapping" in err
+
+
+# ---------------------------------------------------------------------------
+# File-level functions (mapping.fit_mapping_file / predict_file / read_mapping,
+# sweep.snr_sweep_files) and the old module name
+# ---------------------------------------------------------------------------
+
+def test_file_functions_equal_the_array_functions(tmp_path):
+    from envpredict.mapping import fit_mapping_file, predict_file, read_mapping
+
+    x = np.linspace(0.4, 0.95, 6)
+    n = np.full(x.size, 40)
+    k = simulate(-11.0, 17.0, x, n, seed=9)
+    pilot = tmp_path / "pilot.csv"
+    write_pilot(pilot, x, k, n)
+    m, data = fit_mapping_file(pilot, index="stoi")
+    ref = fit_mapping(x.round(4), k, n, index="stoi")
+    assert (m.a, m.b) == (ref.a, ref.b)
+    assert np.array_equal(data.correct, k) and np.array_equal(data.observed_percent, 100 * k / n)
+    mp = tmp_path / "map.json"
+    mp.write_text(json.dumps(m.to_dict()))
+    back = read_mapping(mp)
+    assert (back.a, back.b, back.index) == (m.a, m.b, "stoi")
+    results = tmp_path / "results.csv"
+    results.write_text("row,stoi,error\n1,0.7,\n2,,bad file\n")
+    tab = predict_file(results, mp, out=tmp_path / "out.csv")
+    assert tab.rows[0]["predicted_percent"] == f"{float(m.percent(0.7)):.2f}"
+    assert list(csv.DictReader((tmp_path / "out.csv").open())) == tab.rows
+    assert tab.csv_text() == (tmp_path / "out.csv").read_text()
+
+
+def test_fit_mapping_file_checks_options_before_reading(tmp_path):
+    from envpredict.mapping import fit_mapping_file
+
+    with pytest.raises(InputError, match="unknown mapping shape"):
+        fit_mapping_file(tmp_path / "missing.csv", index="stoi", shape="weibull")
+    with pytest.raises(InputError, match="does not exist"):
+        fit_mapping_file(tmp_path / "missing.csv", index="stoi")
+
+
+@pytest.mark.parametrize("kw,what", [
+    ({"snr_db": "0:10"}, "FROM:TO:STEP"),
+    ({"targets": [50.0]}, "--target needs a mapping"),
+    ({"index": "pesq"}, "unknown index"),
+    ({"level": "loud"}, "level convention"),
+    ({"n_segments": 0}, "--segments"),
+])
+def test_snr_sweep_files_checks_options_before_reading(tmp_path, kw, what):
+    from envpredict.sweep import snr_sweep_files
+
+    with pytest.raises(InputError, match=what):
+        snr_sweep_files(tmp_path / "no_clean.wav", tmp_path / "no_noise.wav", **kw)
+
+
+def test_snr_sweep_files_equals_snr_sweep(tmp_path, signals):
+    from envpredict.sweep import snr_sweep_files
+
+    clean, noise = signals
+    cw, nw = tmp_path / "clean.wav", tmp_path / "noise.wav"
+    sf.write(cw, clean, FS, subtype="DOUBLE")
+    sf.write(nw, noise, FS, subtype="DOUBLE")
+    a = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], n_segments=2)
+    b = snr_sweep_files(cw, nw, snr_db="-6:6:6", n_segments=2)
+    assert b.to_dict() == a.to_dict()
+
+
+def test_old_module_name_still_works():
+    import envpredict
+    import envpredict.mapping
+    import envpredict.predict
+    import envpredict.sweep
+
+    assert envpredict.predict.fit_mapping is envpredict.mapping.fit_mapping
+    assert envpredict.predict.snr_sweep is envpredict.sweep.snr_sweep
+    assert envpredict.fit_mapping is envpredict.mapping.fit_mapping
+    assert envpredict.snr_sweep_files is envpredict.sweep.snr_sweep_files

@@ -85,7 +85,7 @@ def _factories(speech, batch_summary) -> dict:
         return envpredict.stipa_from_recording(x, 44100)
 
     def predicted():
-        rows = [{"stoi": "0.6"}, {"stoi": "0.7"}]
+        rows = [(line, {"stoi": v}) for line, v in ((2, "0.6"), (3, "0.7"))]  # (line number, row)
         return envpredict.add_predictions(rows, ["stoi"], mapping())
 
     from envpredict.bands import octave_bands

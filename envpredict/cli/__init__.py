@@ -30,6 +30,9 @@ for _name in _COMMAND_MODULES:
 
 __all__ = ["app", "main"]
 
+#: Exit code of an interrupted command: 128 + SIGINT (2), the shell convention.
+EXIT_INTERRUPTED = 130
+
 
 def _fail(msg: str, code: int) -> None:
     sys.stderr.write(f"error: {msg}\n")
@@ -59,11 +62,11 @@ def main(argv: list[str] | None = None) -> None:
         _fail(e.one_line(), e.exit_code)
     except exits as e:
         code = getattr(e, "exit_code", 0)
-        if code == 130:  # typer turns Ctrl-C into Exit(130)
-            _fail("interrupted — run the command again (batch: add --resume to finish the rows)", 130)
+        if code == EXIT_INTERRUPTED:  # typer turns Ctrl-C into Exit(130)
+            _fail("interrupted — run the command again (batch: add --resume to finish the rows)", EXIT_INTERRUPTED)
         raise SystemExit(code) from None
     except aborts:
-        _fail("interrupted", 130)
+        _fail("interrupted", EXIT_INTERRUPTED)
     except no_args as e:
         typer.echo(e.format_message())
         raise SystemExit(0) from None
@@ -77,7 +80,7 @@ def main(argv: list[str] | None = None) -> None:
         msg = " ".join(e.format_message().split())
         _fail(f"{msg} — {hint}", 2)
     except KeyboardInterrupt:
-        _fail("interrupted", 130)
+        _fail("interrupted", EXIT_INTERRUPTED)
     except BrokenPipeError:
         raise SystemExit(1) from None
     except MemoryError:

@@ -10,6 +10,9 @@ from typing import Any, Callable
 
 import typer
 
+#: Seconds between plain progress lines when stderr is not a terminal (judgement).
+PROGRESS_EVERY_S = 5.0
+
 JSON_HELP = "Print one JSON object instead of the table (for scripts)."
 OUT_HELP = "Also write the JSON result to this file (written atomically)."
 CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
@@ -67,7 +70,8 @@ class Progress:
     callable ``p(done, total)`` so numeric code can report without knowing the CLI.
     """
 
-    def __init__(self, label: str, total: int | None = None, *, quiet: bool = False, every_s: float = 5.0):
+    def __init__(self, label: str, total: int | None = None, *, quiet: bool = False,
+                 every_s: float = PROGRESS_EVERY_S):
         self.label = label
         self.total = total
         self.done = 0

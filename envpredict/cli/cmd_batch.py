@@ -7,6 +7,8 @@ from typing import Optional
 
 import typer
 
+from envpredict import standards as std
+
 from ._app import app
 from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, note, table, write_report_if
 
@@ -23,7 +25,7 @@ RETRY_HELP = "With --resume: score again the rows that failed before."
 OVERWRITE_HELP = "Start --out again even if it exists (its rows are discarded)."
 NOISE_HELP = ("Default background noise for IR rows with an empty 'noise' cell: seven octave-band levels, "
               "dB SPL, 125 Hz to 8 kHz, comma-separated. Default: no noise.")
-LEVEL_HELP = "Default A-weighted speech level for IR rows, dB(A) (default 60)."
+LEVEL_HELP = f"Default A-weighted speech level for IR rows, dB(A) (default {std.DEFAULT_SPEECH_LEVEL_DBA:g})."
 TALKER_HELP = "Default speech spectrum for IR rows: male or female (IEC 60268-16)."
 
 
@@ -45,7 +47,7 @@ def render_summary(d: dict) -> str:
         lines.append("Failed rows (the 'error' column of the results has all of them):")
         lines.extend(f"  row {f['row']}: {f['error']}" for f in d["failures"])
     lines.append("")
-    lines.append(f"Results: {d['out']}")
+    lines.append(f"Results: {d['inputs']['out']}")
     if d.get("cautions"):
         lines.append("")
         lines.append("Cautions:")
@@ -63,8 +65,8 @@ def batch_command(
     retry_failed: bool = typer.Option(False, "--retry-failed", help=RETRY_HELP),
     overwrite: bool = typer.Option(False, "--overwrite", help=OVERWRITE_HELP),
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
-    speech_level: float = typer.Option(60.0, "--speech-level", help=LEVEL_HELP),
-    talker: str = typer.Option("male", "--talker", help=TALKER_HELP),
+    speech_level: float = typer.Option(std.DEFAULT_SPEECH_LEVEL_DBA, "--speech-level", help=LEVEL_HELP),
+    talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
 ) -> None:
     """Score every row of a manifest (STOI/ESTOI/speech-based STI for pairs, STI and T30/EDT for IRs).
@@ -77,10 +79,6 @@ def batch_command(
     """
     from envpredict.batch import read_manifest, run_batch
 
-    if workers is not None and workers < 1:
-        from envpredict.exceptions import InputError
-
-        raise InputError(f"--workers {workers} is below 1", "give 1 or more (default: the number of cores)")
     m = read_manifest(manifest, noise_db=noise, speech_level_dba=speech_level, talker=talker)
     if scheduler is not None and workers is not None:
         note("note: --workers is ignored with --scheduler (the cluster's workers score the rows)")
@@ -107,6 +105,9 @@ def batch_command(
         if "bar" in state:
             state["bar"].__exit__(None, None, None)
     d = summary.to_dict()
+    d["inputs"] = {"manifest": str(manifest), "out": str(out), "workers": workers, "scheduler": scheduler,
+                   "resume": resume, "retry_failed": retry_failed, "overwrite": overwrite, "noise": noise,
+                   "speech_level_dba": speech_level, "talker": talker}
     emit(d, lambda: render_summary(d), as_json, None)
     if summary.failed:
         note(f"error: {summary.failed} of {summary.total} rows failed — see the 'error' column of {out}; "
@@ -166,12 +167,10 @@ def compare_command(
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """Per condition: mean index, paired difference to the baseline, bootstrap 95 % CI, Wilcoxon p."""
-    from envpredict.batch import read_results
-    from envpredict.stats import compare_conditions
+    from envpredict.stats import compare_conditions_file
 
     check_report(report)
-    columns, rows = read_results(results)
-    res = compare_conditions(rows, by=by, baseline=baseline, index=index, pair_on=pair_on, columns=columns)
+    res = compare_conditions_file(results, by=by, baseline=baseline, index=index, pair_on=pair_on)
     d = res.to_dict()
     d["inputs"] = {"results": str(results), "by": by, "baseline": baseline, "index": index,
                    "pair_on": pair_on}

@@ -18,21 +18,22 @@ def load_scenario() -> tuple[dict, "object"]:
         return json.load(fh), folder
 
 
+def _fmt_mid(v: float) -> str:
+    return fmt(v if v == v else None)  # NaN (a band missing) prints as a dash
+
+
 @app.command("demo")
 def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) -> None:
     """Rate the bundled demo site (an invented ferry-terminal waiting hall): STI and decay
     figures from its impulse response and site noise, and the indices of a recorded
     announcement against its clean original."""
-    import numpy as np
-
-    from envpredict.audio import load_audio
-    from envpredict.indirect import sti_from_ir
+    from envpredict.decay import mid_frequency
+    from envpredict.indirect import sti_from_ir_file
 
     sc, folder = load_scenario()
-    ir, fs = load_audio(folder / sc["ir"], name="demo impulse response")
-    with Progress("rating the demo hall", 3, quiet=as_json) as prog:
-        res = sti_from_ir(ir, fs, noise_db=sc["noise_db"], speech_level_dba=sc["speech_level_dba"],
-                          talker=sc["talker"], progress=prog)
+    with Progress("rating the demo hall", None, quiet=as_json) as prog:
+        res = sti_from_ir_file(folder / sc["ir"], noise_db=sc["noise_db"], speech_level_dba=sc["speech_level_dba"],
+                               talker=sc["talker"], progress=prog)
     d = res.to_dict()
     out = {"scenario": sc["title"], "ir": d}
 
@@ -46,7 +47,11 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
         return
 
     dec = d["decay"]
-    mid = lambda key: np.nanmean([v if v is not None else np.nan for v in dec[key][2:4]])  # noqa: E731
+
+    def mid(key: str) -> float:
+        # ISO 3382-1 single number (500 Hz and 1 kHz); missing if either band is missing
+        return mid_frequency(getattr(res.decay, key), res.decay.bands_hz)
+
     lines = [
         f"Demo site: {sc['title']}",
         f"  {sc['description']}",
@@ -54,7 +59,8 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
         f"{', '.join(f'{v:.0f}' for v in sc['noise_db'])} dB SPL (125 Hz - 8 kHz).",
         "",
         f"STI = {d['sti']:.2f}, qualification band {d['rating']} ({d['subjective']})",
-        f"Reverberation (mid frequencies, 500 Hz-1 kHz): T30 = {fmt(mid('t30'))} s, EDT = {fmt(mid('edt'))} s",
+        (f"Reverberation (mid frequencies, 500 Hz-1 kHz): T30 = {_fmt_mid(mid('t30'))} s, "
+         f"EDT = {_fmt_mid(mid('edt'))} s"),
         "",
     ]
     rows = [[f"{fc:g}", fmt(d["mti"][k]), fmt(dec["t30"][k]), fmt(dec["c50"][k], ".1f")]

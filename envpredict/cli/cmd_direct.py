@@ -8,6 +8,8 @@ from typing import List, Optional
 
 import typer
 
+from envpredict import standards as std
+
 from ._app import app
 from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
 
@@ -19,7 +21,7 @@ testsignal_app = typer.Typer(
 )
 app.add_typer(testsignal_app, name="testsignal")
 
-RATE_HELP = "Sample rate of the generated file(s), Hz (above 22627 Hz; default 48000)."
+RATE_HELP = f"Sample rate of the generated file(s), Hz (above 22627 Hz; default {std.TEST_SIGNAL_RATE_HZ})."
 SEED_HELP = "Seed of the noise generator: the same seed gives the same signal."
 CHANNEL_HELP = "Channel to use from a multi-channel recording (0 = first). Required for multi-channel files."
 CAL_HELP = ("Calibration: the dB SPL that a full-scale RMS signal (0 dBFS RMS) in the recording "
@@ -60,15 +62,15 @@ def _check_wav_path(out: Path) -> None:
 @testsignal_app.command("stipa")
 def testsignal_stipa(
     out_file: Path = typer.Argument(..., help="WAV file to write (24-bit PCM).", show_default=False),
-    seconds: float = typer.Option(100.0, "--seconds", help="Length in seconds (at least 15). Multiples of "
-                                  "100 s loop without a seam (the common period of the STIPA modulations)."),
-    rate: int = typer.Option(48000, "--rate", help=RATE_HELP),
-    seed: int = typer.Option(0, "--seed", help=SEED_HELP),
+    seconds: float = typer.Option(std.STIPA_DEFAULT_SECONDS, "--seconds",
+                                  help="Length in seconds (at least 15). Multiples of 100 s loop without a seam "
+                                       "(the common period of the STIPA modulations)."),
+    rate: int = typer.Option(std.TEST_SIGNAL_RATE_HZ, "--rate", help=RATE_HELP),
+    seed: int = typer.Option(std.TEST_SIGNAL_SEED, "--seed", help=SEED_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
 ) -> None:
     """Write the STIPA test signal (IEC 60268-16 Annex B): seven speech-shaped noise bands, each
     intensity-modulated at its two modulation frequencies (depth 0.55), peak -3 dBFS."""
-    from envpredict import standards as std
     from envpredict.audio import rms_dbfs
     from envpredict.signals import check_generation, is_loopable, stipa_signal
 
@@ -97,8 +99,8 @@ def testsignal_stipa(
 @testsignal_app.command("full")
 def testsignal_full(
     out_folder: Path = typer.Argument(..., help="Folder to create for the 14 WAV files.", show_default=False),
-    rate: int = typer.Option(48000, "--rate", help=RATE_HELP),
-    seed: int = typer.Option(0, "--seed", help=SEED_HELP),
+    rate: int = typer.Option(std.TEST_SIGNAL_RATE_HZ, "--rate", help=RATE_HELP),
+    seed: int = typer.Option(std.TEST_SIGNAL_SEED, "--seed", help=SEED_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
 ) -> None:
     """Write the full-STI test signal set: 14 files, one per modulation frequency (0.63 ... 12.5 Hz,
@@ -217,7 +219,7 @@ def stipa_command(
     calibrator: Optional[Path] = typer.Option(None, "--calibrator", help=CALIBRATOR_HELP),
     calibrator_level: Optional[float] = typer.Option(None, "--calibrator-level", help=CAL_LEVEL_HELP),
     calibrator_channel: Optional[int] = typer.Option(None, "--calibrator-channel", help=CAL_CHANNEL_HELP),
-    talker: str = typer.Option("male", "--talker", help=TALKER_HELP),
+    talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP),
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
     channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
@@ -239,7 +241,7 @@ def stipa_command(
                                  name=recording.name, progress=prog)
     d = result.to_dict()
     d["inputs"] = {"recording": str(recording), "channel": channel, "calibration_source": source,
-                   "noise_db": None if noise_levels is None else [float(v) for v in noise_levels], "talker": talker}
+                   "noise": noise, "talker": talker}
     write_report_if(report, "stipa", d, as_json=as_json, title=f"STIPA: {recording.name}")
     emit(d, lambda: render_direct(d), as_json, out)
 
@@ -268,7 +270,7 @@ def fullsti_command(
     calibrator: Optional[Path] = typer.Option(None, "--calibrator", help=CALIBRATOR_HELP),
     calibrator_level: Optional[float] = typer.Option(None, "--calibrator-level", help=CAL_LEVEL_HELP),
     calibrator_channel: Optional[int] = typer.Option(None, "--calibrator-channel", help=CAL_CHANNEL_HELP),
-    talker: str = typer.Option("male", "--talker", help=TALKER_HELP),
+    talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP),
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
     channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
@@ -293,6 +295,6 @@ def fullsti_command(
                                      progress=prog)
     d = result.to_dict()
     d["inputs"] = {"recordings": [str(f) for f in files], "channel": channel, "calibration_source": source,
-                   "noise_db": None if noise_levels is None else [float(v) for v in noise_levels], "talker": talker}
+                   "noise": noise, "talker": talker}
     write_report_if(report, "stipa", d, as_json=as_json, title="Full STI from 14 recordings")
     emit(d, lambda: render_direct(d), as_json, out)

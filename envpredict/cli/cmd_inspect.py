@@ -7,6 +7,8 @@ from typing import Optional
 
 import typer
 
+from envpredict import standards as std
+
 from ._app import app
 from ._common import (
     CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if,
@@ -84,8 +86,8 @@ def inspect_command(
     channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
     start: float = typer.Option(0.0, "--start", help=START_HELP),
     duration: Optional[float] = typer.Option(None, "--duration", help=DURATION_HELP),
-    f0_min: float = typer.Option(50.0, "--f0-min", help=F0_MIN_HELP),
-    f0_max: float = typer.Option(500.0, "--f0-max", help=F0_MAX_HELP),
+    f0_min: float = typer.Option(std.F0_MIN_HZ, "--f0-min", help=F0_MIN_HELP),
+    f0_max: float = typer.Option(std.F0_MAX_HZ, "--f0-max", help=F0_MAX_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
@@ -95,16 +97,8 @@ def inspect_command(
     with an F0 track (YIN, searched 50-500 Hz by default: adult voices are commonly
     100-300 Hz), and the modulation spectrum of each band's envelope with its dominant rate
     (the syllable rate for running speech)."""
-    from envpredict.exceptions import InputError
     from envpredict.timescales import inspect_file
 
-    # check the options before the (slower) audio work
-    if not (0 < f0_min < f0_max):
-        raise InputError(f"F0 search range {f0_min:g}-{f0_max:g} Hz is empty or negative",
-                         "give 0 < --f0-min < --f0-max (default 50 and 500 Hz)")
-    if f0_min < 20 or f0_max > 2000:
-        raise InputError(f"F0 search range {f0_min:g}-{f0_max:g} Hz is outside 20-2000 Hz",
-                         "periodicity lies at about 50-500 Hz; keep the range within 20-2000 Hz")
     check_report(report)
     _check_excerpt(audio_file, start, duration)
     with Progress("inspecting recording (blocks)", None, quiet=as_json) as prog:

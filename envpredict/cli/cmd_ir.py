@@ -7,6 +7,8 @@ from typing import Optional
 
 import typer
 
+from envpredict import standards as std
+
 from ._app import app
 from ._common import (
     CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if,
@@ -14,7 +16,8 @@ from ._common import (
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
               "comma-separated, e.g. 48,45,42,40,36,32,28. Default: no noise.")
-LEVEL_HELP = "A-weighted speech level at the listener, dB(A). Default 60 (normal voice at 1 m)."
+LEVEL_HELP = (f"A-weighted speech level at the listener, dB(A). Default {std.DEFAULT_SPEECH_LEVEL_DBA:g} "
+              "(normal voice at 1 m).")
 TALKER_HELP = "Speech spectrum and band weights: male or female (IEC 60268-16)."
 AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textbook form, for "
                  "comparison with published formulas; not for compliance work).")
@@ -60,8 +63,8 @@ def render_ir(d: dict, source: str) -> str:
 def ir_command(
     ir_file: Path = typer.Argument(..., help="Impulse response (WAV, FLAC or OGG).", show_default=False),
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
-    speech_level: float = typer.Option(60.0, "--speech-level", help=LEVEL_HELP),
-    talker: str = typer.Option("male", "--talker", help=TALKER_HELP),
+    speech_level: float = typer.Option(std.DEFAULT_SPEECH_LEVEL_DBA, "--speech-level", help=LEVEL_HELP),
+    talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP),
     no_auditory: bool = typer.Option(False, "--no-auditory-corrections", help=AUDITORY_HELP),
     channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
@@ -69,22 +72,15 @@ def ir_command(
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """STI (IEC 60268-16 indirect method) and ISO 3382-1 decay figures from an impulse response."""
-    from envpredict.audio import load_audio
-    from envpredict.indirect import sti_from_ir
-    from envpredict.sti import check_speech_level, check_talker, parse_noise_levels
+    from envpredict.indirect import sti_from_ir_file
 
-    # check the options before the (slower) audio work
-    check_talker(talker)
-    check_speech_level(speech_level)
-    noise_levels = parse_noise_levels(noise)
     check_report(report)
-    x, fs = load_audio(ir_file, channel, name="impulse response")
-    with Progress("analysing impulse response", 3, quiet=as_json) as prog:
-        result = sti_from_ir(x, fs, noise_db=noise_levels, speech_level_dba=speech_level, talker=talker,
-                             auditory=not no_auditory, progress=prog)
+    with Progress("analysing impulse response", None, quiet=as_json) as prog:
+        result = sti_from_ir_file(ir_file, channel=channel, noise_db=noise, speech_level_dba=speech_level,
+                                  talker=talker, auditory=not no_auditory, progress=prog)
     d = result.to_dict()
     d["inputs"] = {"impulse_response": str(ir_file), "channel": channel,
-                   "noise_db": None if noise_levels is None else [float(v) for v in noise_levels],
+                   "noise": noise,
                    "speech_level_dba": speech_level, "talker": talker, "auditory_corrections": not no_auditory}
     write_report_if(report, "ir", d, as_json=as_json, title=f"STI and decay figures of {ir_file.name}")
     emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)

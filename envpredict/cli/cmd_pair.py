@@ -6,6 +6,8 @@ from pathlib import Path
 
 import typer
 
+from envpredict import standards as std
+
 from ._app import app
 from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
 
@@ -71,22 +73,19 @@ def pair_command(
                                     show_default=False),
     channel: int | None = typer.Option(None, "--channel", help=CHANNEL_HELP),
     no_align: bool = typer.Option(False, "--no-align", help=NO_ALIGN_HELP),
-    max_delay: float = typer.Option(1.0, "--max-delay", help=MAX_DELAY_HELP),
-    chunk: float = typer.Option(60.0, "--chunk", help=CHUNK_HELP),
+    max_delay: float = typer.Option(std.PAIR_MAX_DELAY_S, "--max-delay", help=MAX_DELAY_HELP),
+    chunk: float = typer.Option(std.PAIR_CHUNK_S, "--chunk", help=CHUNK_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help=OUT_HELP),
     report: Path | None = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, with delay alignment and per-band diagnostics."""
-    from envpredict.exceptions import InputError
-    from envpredict.pair import _check_options, pair_from_files
+    from envpredict.outputs import check_output_file
+    from envpredict.pair import pair_from_files
 
-    # check the options before the (slower) audio work
-    _check_options(max_delay, chunk)
-    if channel is not None and channel < 0:
-        raise InputError(f"channel {channel} does not exist", "give --channel 0 or more")
-    if out is not None and not (out.parent if str(out.parent) else Path(".")).exists():
-        raise InputError(f"output folder '{out.parent}' does not exist", "create it first or choose another path")
+    # refuse an unusable --out before the (slower) audio work, as the writer would after it
+    if out is not None:
+        check_output_file(out)
     check_report(report)
     with Progress("analysing pair", None, quiet=as_json) as prog:
         result = pair_from_files(clean, degraded, channel=channel, align=not no_align, max_delay_s=max_delay,

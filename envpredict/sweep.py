@@ -1,0 +1,567 @@
+"""SNR sweeps: predicted index and score against SNR, and the speech reception threshold.
+
+:func:`snr_sweep` mixes noise with clean speech at a list of SNRs (several noise
+segments per SNR, optionally after convolving the speech with an impulse response),
+computes an index per mixture and, with a mapping (:mod:`envpredict.mapping`), the
+predicted score; it reports the SNR at target scores (the predicted speech reception
+threshold, SRT, at 50 % by default) with a confidence interval from the spread over
+noise segments, and the slope of the predicted psychometric function at each target
+in %/dB. :func:`snr_sweep_files` does the same from audio files (the options are
+checked before the audio is read). Pure functions on arrays otherwise: no printing.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Callable, Sequence
+from collections.abc import Mapping as MappingType
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from . import standards as std
+from .exceptions import ComputationError, InputError
+from .mapping import CI_LEVEL, ScoreMapping
+from .results import jsonable
+
+#: Sweep limits: number of SNR points and noise segments (judgement: beyond these a
+#: sweep is a mistake in the options, not a plan).
+MAX_SNR_POINTS: int = 401
+MAX_SEGMENTS: int = 100
+
+#: Index names the sweep knows how to compute with the package's own code; the first
+#: is the default.
+SWEEP_INDICES: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression")
+DEFAULT_INDEX: str = SWEEP_INDICES[0]
+
+#: Default SNRs of a sweep, dB (:data:`envpredict.standards.SWEEP_SNR_FROM_DB` ...).
+DEFAULT_SNR_RANGE: str = f"{std.SWEEP_SNR_FROM_DB:g}:{std.SWEEP_SNR_TO_DB:g}:{std.SWEEP_SNR_STEP_DB:g}"
+DEFAULT_SNR_DB: tuple[float, ...] = tuple(
+    std.SWEEP_SNR_FROM_DB + std.SWEEP_SNR_STEP_DB * i
+    for i in range(int(round((std.SWEEP_SNR_TO_DB - std.SWEEP_SNR_FROM_DB) / std.SWEEP_SNR_STEP_DB)) + 1)
+)
+
+#: Shortest clean speech a sweep takes, s (STOI needs several of its 384 ms segments;
+#: Taal 2011; judgement: 1 s).
+MIN_SPEECH_S: float = 1.0
+
+#: TO is on the FROM:TO:STEP grid when it lies within this many steps of a grid point
+#: (rounding of decimal steps such as 0.1 dB).
+GRID_SLACK: float = 1e-9
+
+#: Two target percents closer than this are the same target (finds the SRT target).
+SAME_TARGET_PERCENT: float = 1e-9
+
+#: A fall of the mean index smaller than this between neighbouring SNRs is numerical
+#: noise, not a reversal worth a note (judgement).
+MONOTONE_TOLERANCE: float = 1e-6
+# ---------------------------------------------------------------------------
+# SNR sweep
+# ---------------------------------------------------------------------------
+
+def parse_snr_range(text: str) -> np.ndarray:
+    """``"FROM:TO:STEP"`` in dB -> increasing array of SNRs including TO when on the grid."""
+    parts = str(text).split(":")
+    fix = "give --snr FROM:TO:STEP in dB, e.g. --snr=-15:15:3"
+    if len(parts) != 3:
+        raise InputError(f"SNR range '{text}' is not FROM:TO:STEP", fix)
+    try:
+        lo, hi, step = (float(p) for p in parts)
+    except ValueError:
+        raise InputError(f"SNR range '{text}' holds something that is not a number", fix) from None
+    if not all(math.isfinite(v) for v in (lo, hi, step)):
+        raise InputError(f"SNR range '{text}' is not finite", fix)
+    if step <= 0 or hi <= lo:
+        raise InputError(f"SNR range '{text}' needs FROM < TO and STEP > 0", fix)
+    count = math.floor((hi - lo) / step + GRID_SLACK) + 1
+    if count < 2:
+        raise InputError(f"SNR range '{text}' has fewer than two points", "use a smaller STEP")
+    if count > MAX_SNR_POINTS:
+        raise InputError(f"SNR range '{text}' has {count} points (at most {MAX_SNR_POINTS})", "use a larger STEP")
+    return np.round(lo + step * np.arange(count), 10)
+
+
+def _as_float(v: Any, name: str) -> float:
+    for attr in (name, "value", "index"):
+        if hasattr(v, attr) and not callable(getattr(v, attr)):
+            v = getattr(v, attr)
+            break
+    return float(v)
+
+
+def default_index_functions() -> dict[str, Callable[[np.ndarray, np.ndarray, int], float]]:
+    """The package's own index functions, ``name -> f(clean, degraded, fs) -> float``.
+
+    Imported lazily: ``stoi`` and ``estoi`` from :mod:`envpredict.correlation`
+    (Taal 2011; Jensen 2016), ``ssti`` (speech-based STI) from :mod:`envpredict.pair`.
+    """
+
+    def _stoi(c, d, fs):
+        from .correlation import stoi
+
+        return _as_float(stoi(c, d, fs), "stoi")
+
+    def _estoi(c, d, fs):
+        from .correlation import estoi
+
+        return _as_float(estoi(c, d, fs), "estoi")
+
+    def _ssti(c, d, fs):
+        # the mixtures are aligned by construction: no delay search
+        from . import pair
+
+        v = pair.speech_sti(c, d, fs)
+        return _as_float(v, "ssti")
+
+    def _ssti_regression(c, d, fs):
+        from . import pair
+
+        v = pair.pair_indices(c, d, fs, align=False).ssti_regression
+        if v is None:
+            raise ComputationError("the speech-based STI cannot be computed for these signals",
+                                   "see the valid range in envpredict.pair_indices")
+        return _as_float(v, "ssti_regression")
+
+    return {"stoi": _stoi, "estoi": _estoi, "ssti": _ssti, "ssti_regression": _ssti_regression}
+
+
+@dataclass(frozen=True)
+class SweepTarget:
+    """The SNR at which the predicted score reaches ``percent``.
+
+    ``snr_db`` is where the mean index curve (linearly interpolated between the swept
+    SNRs) reaches the index value the mapping gives for ``percent``; ``ci_low`` /
+    ``ci_high`` is ``snr_db -+ t * sd / sqrt(n)`` over the per-segment crossings
+    (Student t, ``n`` noise segments); ``slope_percent_per_db`` the slope of the
+    predicted psychometric function there. ``map_ci_low`` / ``map_ci_high`` is the
+    separate interval from the uncertainty of the mapping itself: the SNRs where the
+    mean index curve reaches ``index -+ z * se`` (``se`` of the inverse mapping by the
+    delta method from the fitted covariance); ``None`` without a covariance or when an
+    end falls outside the swept range. ``None`` where the target is not reached inside
+    the swept range.
+    """
+
+    percent: float
+    index: float
+    snr_db: float | None
+    ci_low: float | None
+    ci_high: float | None
+    segment_sd_db: float | None
+    segment_snr_db: tuple[float | None, ...]
+    slope_percent_per_db: float | None
+    map_ci_low: float | None = None
+    map_ci_high: float | None = None
+    note: str = ""
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "percent": self.percent, "index_value": self.index, "snr_db": self.snr_db, "ci_low": self.ci_low,
+            "ci_high": self.ci_high, "segment_sd_db": self.segment_sd_db,
+            "segment_snr_db": list(self.segment_snr_db),
+            "slope_percent_per_db": self.slope_percent_per_db,
+            "map_ci_low": self.map_ci_low, "map_ci_high": self.map_ci_high, "note": self.note or None,
+        })
+
+
+@dataclass(frozen=True)
+class SweepResult:
+    """Index (and predicted score) against SNR, and the SNRs at target scores.
+
+    Attributes
+    ----------
+    snr_db : swept SNRs, dB, increasing.
+    index_name : the index computed.
+    index : mean index over noise segments at each SNR.
+    index_segments : (n_snr, n_segments) index per SNR and noise segment.
+    index_sd : standard deviation over segments at each SNR.
+    predicted_percent : mapping applied to the mean index, or ``None`` without a mapping.
+    targets : one :class:`SweepTarget` per requested percent (empty without a mapping).
+    level : ``"speech"`` or ``"mixture"`` (see :func:`snr_sweep`).
+    segment_offsets_s : start of each noise segment in the noise signal, seconds.
+    reverberant : whether the speech went through an impulse response.
+    processed : whether the mixtures went through a processing chain.
+    fs : sample rate, Hz.
+    duration_s : length of each mixture, seconds.
+    mapping : the mapping's MAP.json content, or ``None``.
+    notes : cautions.
+    """
+
+    snr_db: np.ndarray
+    index_name: str
+    index: np.ndarray
+    index_segments: np.ndarray
+    index_sd: np.ndarray
+    predicted_percent: np.ndarray | None
+    targets: tuple[SweepTarget, ...]
+    level: str
+    segment_offsets_s: tuple[float, ...]
+    reverberant: bool
+    processed: bool
+    fs: int
+    duration_s: float
+    mapping: dict | None = None
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    @property
+    def srt_db(self) -> float | None:
+        """Predicted SRT: the SNR of the 50 % target (:data:`envpredict.standards.SRT_PERCENT`), if
+        requested and reached."""
+        for t in self.targets:
+            if abs(t.percent - std.SRT_PERCENT) < SAME_TARGET_PERCENT:
+                return t.snr_db
+        return None
+
+    def to_dict(self) -> dict:
+        srt = next((t for t in self.targets if abs(t.percent - std.SRT_PERCENT) < SAME_TARGET_PERCENT), None)
+        return jsonable({
+            "snr_db": self.snr_db,
+            "index": self.index_name,
+            self.index_name: np.round(self.index, 5),
+            "index_sd": np.round(self.index_sd, 5),
+            "index_segments": np.round(self.index_segments, 5),
+            "predicted_percent": None if self.predicted_percent is None else np.round(self.predicted_percent, 3),
+            "targets": [t.to_dict() for t in self.targets],
+            "srt_db": None if srt is None else srt.snr_db,
+            "slope_at_srt_percent_per_db": None if srt is None else srt.slope_percent_per_db,
+            "level_convention": self.level,
+            "level_convention_text": LEVEL_CONVENTIONS[self.level],
+            "n_segments": len(self.segment_offsets_s),
+            "segment_offsets_s": self.segment_offsets_s,
+            "reverberant": self.reverberant,
+            "processed": self.processed,
+            "fs": self.fs,
+            "duration_s": self.duration_s,
+            "mapping": self.mapping,
+            "cautions": [],
+            "notes": list(self.notes),
+        })
+
+
+LEVEL_CONVENTIONS: dict[str, str] = {
+    "speech": ("SNR = 10 log10(mean speech power / mean noise power) over the length of the speech; the "
+               "speech (after the impulse response, if any) stays at its level and each noise segment is "
+               "scaled to give the SNR"),
+    "mixture": ("SNR defined as for 'speech', then each mixture is rescaled to the speech's RMS level, so "
+                "the presentation level stays constant as the SNR changes"),
+}
+
+
+def _crossing(snr: np.ndarray, curve: np.ndarray, level: float) -> tuple[float | None, int | None]:
+    """First SNR where ``curve`` (linear between points) rises to ``level``, and its segment."""
+    if curve[0] >= level:
+        return None, None
+    for i in range(curve.size - 1):
+        c0, c1 = curve[i], curve[i + 1]
+        if c0 < level <= c1:
+            s = snr[i] + (level - c0) * (snr[i + 1] - snr[i]) / (c1 - c0)
+            return float(s), i
+    return None, None
+
+
+def _processed(process: Callable[[np.ndarray, int], np.ndarray], mix: np.ndarray, fs: int,
+               snr: float) -> np.ndarray:
+    out = np.asarray(process(mix, fs), dtype=float).reshape(-1)
+    if out.shape != mix.shape or not np.all(np.isfinite(out)):
+        raise ComputationError(
+            f"the processing chain returned {out.size} samples (or non-finite values) for a "
+            f"{mix.size}-sample mixture at {snr:g} dB SNR",
+            "make it return a finite signal of the same length, time-aligned with its input")
+    return out
+
+
+def _check_options(snr_db: Any, index: str, funcs: MappingType, level: str, n_segments: Any,
+                   mapping: ScoreMapping | None, targets: Sequence[float]
+                   ) -> tuple[np.ndarray, str, list[float], list[float]]:
+    """Refuse bad sweep options (before any audio work); the SNRs, index name and targets."""
+    name = str(index).strip().lower()
+    if name not in funcs:
+        raise InputError(f"unknown index '{index}' for the sweep", f"use one of {', '.join(sorted(funcs))}")
+    if level not in LEVEL_CONVENTIONS:
+        raise InputError(f"unknown level convention '{level}'", "use 'speech' or 'mixture'")
+    try:
+        snrs = np.asarray(snr_db, dtype=float).reshape(-1)
+    except (TypeError, ValueError):
+        raise InputError("SNRs must be numbers", "give a list of SNRs in dB") from None
+    if snrs.size < 2 or not np.all(np.isfinite(snrs)) or np.any(np.diff(snrs) <= 0):
+        raise InputError("the SNRs must be at least two finite values, strictly increasing",
+                         "give e.g. --snr=-15:15:3")
+    if snrs.size > MAX_SNR_POINTS:
+        raise InputError(f"{snrs.size} SNR points (at most {MAX_SNR_POINTS})", "use a larger step")
+    if not isinstance(n_segments, (int, np.integer)) or not 1 <= n_segments <= MAX_SEGMENTS:
+        raise InputError(f"number of noise segments {n_segments!r} is outside 1..{MAX_SEGMENTS}",
+                         "give e.g. 5 segments")
+    if mapping is not None:
+        if not isinstance(mapping, ScoreMapping):
+            raise InputError("mapping is not a ScoreMapping", "fit one with fit_mapping or load a MAP.json")
+        if mapping.index != name:
+            raise InputError(f"the mapping takes '{mapping.index}' but the sweep computes '{name}'",
+                             f"use --index {mapping.index} or a mapping fitted on {name}")
+        target_list = [float(t) for t in targets]
+        x_targets = [mapping.index_at(t) for t in target_list]  # refuses unreachable targets
+    else:
+        target_list, x_targets = [], []
+    return snrs, name, target_list, x_targets
+
+
+def snr_sweep(
+    clean: np.ndarray,
+    noise: np.ndarray,
+    fs: int,
+    *,
+    snr_db: Sequence[float] | np.ndarray = DEFAULT_SNR_DB,
+    index: str = DEFAULT_INDEX,
+    mapping: ScoreMapping | None = None,
+    targets: Sequence[float] = (std.SRT_PERCENT,),
+    ir: np.ndarray | None = None,
+    n_segments: int = std.SWEEP_SEGMENTS,
+    level: str = std.SWEEP_LEVEL,
+    index_functions: MappingType[str, Callable[[np.ndarray, np.ndarray, int], float]] | None = None,
+    process: Callable[[np.ndarray, int], np.ndarray] | None = None,
+    progress: Callable[[int, int], None] | None = None,
+) -> SweepResult:
+    """Predicted index and score against SNR, and the SNR at target scores.
+
+    For each SNR and each of ``n_segments`` noise segments (evenly spaced starts in
+    ``noise``; the same segments at every SNR, so the curves differ only by the SNR),
+    the speech -- ``clean``, or ``clean`` convolved with ``ir`` from its onset
+    (ISO 3382-1 A.3.2 onset, so the speech is not delayed) and cut to the length of
+    ``clean`` -- is mixed with the segment at the SNR (see :data:`LEVEL_CONVENTIONS`)
+    and the index is computed between ``clean`` and the mixture. The mean index over
+    segments is mapped to a predicted score. For each target percent the mapping is
+    inverted to an index value ``x_t`` and the SNR where the mean index curve, linear
+    between the swept SNRs, first rises to ``x_t`` is reported; the same is done for
+    each segment's curve, and the interval is ``snr -+ t_{0.975, n-1} * sd / sqrt(n)``.
+    The slope at a target is ``100 * mapping'(x_t) * (index slope of that SNR step)``,
+    in % per dB.
+
+    Parameters
+    ----------
+    clean : clean speech, 1-D, at ``fs``. At least 1 s (STOI needs several 384 ms
+        segments; Taal 2011).
+    noise : noise recording at ``fs``, at least as long as ``clean`` (longer for
+        independent segments).
+    fs : sample rate, Hz.
+    snr_db : SNRs to sweep, dB, strictly increasing, at least two.
+    index : ``"stoi"``, ``"estoi"``, ``"ssti"`` or a key of ``index_functions``.
+    mapping : a :class:`ScoreMapping` for the same index, or ``None`` (index only).
+    targets : target scores, percent (used only with a mapping).
+    ir : impulse response at ``fs`` applied to the speech, or ``None``.
+    n_segments : number of noise segments per SNR (1 gives no interval).
+    level : ``"speech"`` or ``"mixture"`` level convention.
+    index_functions : ``name -> f(clean, degraded, fs) -> float``; defaults to
+        :func:`default_index_functions`.
+    process : optional processing chain ``process(mixture, fs) -> output`` applied to
+        each mixture before the index (e.g. a noise-reduction or hearing-device model);
+        the output must keep the length and time alignment of the mixture. The
+        predicted benefit of the chain in dB is the SRT without it minus the SRT with it.
+    progress : optional callable ``progress(done, total)``.
+
+    Returns
+    -------
+    SweepResult
+    """
+    from scipy.signal import fftconvolve
+    from scipy.stats import t as student_t
+
+    from .audio import check_rate, validate_signal
+    from .decay import onset_index
+
+    fs = check_rate(fs, "clean speech")
+    x = validate_signal(clean, fs, name="clean speech", min_seconds=MIN_SPEECH_S)
+    nz = validate_signal(noise, fs, name="noise", allow_clipping=True)
+    funcs = dict(index_functions) if index_functions is not None else default_index_functions()
+    snrs, name, target_list, x_targets = _check_options(snr_db, index, funcs, level, n_segments, mapping, targets)
+
+    notes: list[str] = []
+    speech = x
+    if ir is not None:
+        h = validate_signal(ir, fs, name="impulse response", allow_clipping=True)
+        h = h[onset_index(h):]
+        speech = fftconvolve(x, h)[: x.size]
+    L = x.size
+    if nz.size < L:
+        raise InputError(f"the noise ({nz.size / fs:.2f} s) is shorter than the speech ({L / fs:.2f} s)",
+                         "give a noise recording at least as long as the speech (longer for several segments)")
+    room = nz.size - L
+    offsets = np.unique(np.round(np.linspace(0, room, n_segments)).astype(int)) if n_segments > 1 \
+        else np.array([0])
+    if offsets.size < n_segments:
+        raise InputError(
+            f"the noise is only {nz.size / fs:.2f} s long: it does not hold {n_segments} different segments "
+            f"of {L / fs:.2f} s", "give a longer noise recording or fewer segments")
+    if n_segments > 1 and room < (n_segments - 1) * L:
+        notes.append(f"the {n_segments} noise segments overlap (noise {nz.size / fs:.1f} s, speech "
+                     f"{L / fs:.1f} s): the interval may understate the uncertainty")
+    p_speech = float(np.mean(speech * speech))
+    if p_speech <= 0:
+        raise InputError("the speech after the impulse response is silent", "check the impulse response")
+
+    f = funcs[name]
+    total = snrs.size * offsets.size
+    vals = np.empty((snrs.size, offsets.size))
+    done = 0
+    for j, o in enumerate(offsets):
+        seg = nz[o:o + L]
+        p_noise = float(np.mean(seg * seg))
+        if p_noise <= 0:
+            raise InputError(f"noise segment at {o / fs:.2f} s is silent", "give a noise without silent stretches")
+        for i, s in enumerate(snrs):
+            g = math.sqrt(p_speech / (p_noise * 10.0 ** (s / 10.0)))
+            mix = speech + g * seg
+            if level == "mixture":
+                mix = mix * math.sqrt(p_speech / float(np.mean(mix * mix)))
+            if process is not None:
+                mix = _processed(process, mix, fs, s)
+            v = float(f(x, mix, fs))
+            if not math.isfinite(v):
+                raise ComputationError(f"the {name} of the mixture at {s:g} dB SNR is not a number",
+                                       "check the signals (long silences?)")
+            vals[i, j] = v
+            done += 1
+            if progress is not None:
+                progress(done, total)
+
+    mean = vals.mean(axis=1)
+    sd = vals.std(axis=1, ddof=1) if offsets.size > 1 else np.zeros(snrs.size)
+    falls = np.flatnonzero(np.diff(mean) < -MONOTONE_TOLERANCE)
+    if falls.size:
+        i = int(falls[0])
+        notes.append(f"the mean {name} falls between {snrs[i]:g} and {snrs[i + 1]:g} dB SNR: the curve is not "
+                     "monotonic (fluctuating noise?); target SNRs use the first crossing")
+    predicted = None if mapping is None else mapping.percent(mean)
+    tq = float(student_t.ppf(0.5 + CI_LEVEL / 2.0, offsets.size - 1)) if offsets.size > 1 else math.nan
+
+    from scipy.stats import norm
+
+    z_map = float(norm.ppf(0.5 + CI_LEVEL / 2.0))
+    out_targets = []
+    for pct, xt in zip(target_list, x_targets):
+        srt, i = _crossing(snrs, mean, xt)
+        seg_srts = [_crossing(snrs, vals[:, j], xt)[0] for j in range(offsets.size)]
+        note = ""
+        lo = hi = seg_sd = slope = None
+        if srt is None:
+            if mean[0] >= xt:
+                note = (f"{pct:g} % is exceeded already at the lowest SNR ({snrs[0]:g} dB): "
+                        "lower FROM in the SNR range")
+            else:
+                note = (f"{pct:g} % is not reached up to the highest SNR ({snrs[-1]:g} dB gives "
+                        f"{float(mapping.percent(mean[-1])):.1f} %): raise TO, or the score is limited "
+                        "by something other than the noise")
+        else:
+            slope = float(100.0 * mapping.derivative(xt) * (mean[i + 1] - mean[i]) / (snrs[i + 1] - snrs[i]))
+            if offsets.size < 2:
+                note = "one noise segment: no interval"
+            elif any(v is None for v in seg_srts):
+                note = "some noise segments do not reach the target inside the swept range: no interval"
+            else:
+                seg_sd = float(np.std(seg_srts, ddof=1))
+                half = tq * seg_sd / math.sqrt(offsets.size)
+                lo, hi = srt - half, srt + half
+        m_lo = m_hi = None
+        if srt is not None and mapping.cov is not None:
+            half_x = z_map * mapping.index_sd_at(pct)
+            m_lo = _crossing(snrs, mean, xt - half_x)[0]
+            m_hi = _crossing(snrs, mean, xt + half_x)[0]
+            if m_lo is None or m_hi is None:
+                m_lo = m_hi = None
+        out_targets.append(SweepTarget(
+            percent=pct, index=float(xt), snr_db=srt, ci_low=lo, ci_high=hi, segment_sd_db=seg_sd,
+            segment_snr_db=tuple(seg_srts), slope_percent_per_db=slope, map_ci_low=m_lo, map_ci_high=m_hi,
+            note=note))
+    if mapping is None:
+        notes.append("no mapping: give one (fitted with fitmap) to get predicted scores and target SNRs")
+    elif mapping.index_range is not None:
+        lo_r, hi_r = mapping.index_range
+        if np.any((mean < lo_r) | (mean > hi_r)):
+            notes.append(f"part of the curve lies outside the index range the mapping was fitted on "
+                         f"({lo_r:.3g} to {hi_r:.3g}): those predictions are extrapolations")
+    return SweepResult(
+        snr_db=snrs, index_name=name, index=mean, index_segments=vals, index_sd=sd,
+        predicted_percent=predicted, targets=tuple(out_targets), level=level,
+        segment_offsets_s=tuple(float(o) / fs for o in offsets), reverberant=ir is not None,
+        processed=process is not None, fs=fs,
+        duration_s=L / fs, mapping=None if mapping is None else mapping.to_dict(), notes=tuple(notes),
+    )
+
+
+
+def snr_sweep_files(
+    clean: str | os.PathLike,
+    noise: str | os.PathLike,
+    *,
+    ir: str | os.PathLike | None = None,
+    snr_db: str | Sequence[float] | np.ndarray = DEFAULT_SNR_RANGE,
+    index: str | None = None,
+    mapping: ScoreMapping | str | os.PathLike | None = None,
+    targets: Sequence[float] | None = None,
+    n_segments: int = std.SWEEP_SEGMENTS,
+    level: str = std.SWEEP_LEVEL,
+    channel: int | None = None,
+    progress: Callable[[int, int], None] | None = None,
+) -> SweepResult:
+    """:func:`snr_sweep` of audio files: clean speech, a noise recording and an optional IR.
+
+    Every option is checked before the audio is read (a bad SNR range, index, mapping
+    or target is refused without touching the files). The noise and the impulse
+    response are resampled to the rate of the clean speech when theirs differs (a note
+    says so).
+
+    Parameters
+    ----------
+    clean, noise : audio files (WAV, FLAC, OGG); the noise at least as long as the speech.
+    ir : impulse-response file applied to the speech, or ``None``.
+    snr_db : SNRs, dB: ``"FROM:TO:STEP"`` (:func:`parse_snr_range`) or a sequence.
+    index : index to compute (:data:`SWEEP_INDICES`); default: the mapping's index, or
+        :data:`DEFAULT_INDEX` without a mapping.
+    mapping : a :class:`~envpredict.mapping.ScoreMapping`, the path of a MAP.json, or ``None``.
+    targets : target scores, percent (default: the SRT, 50 %); they need a mapping.
+    n_segments, level, progress : as for :func:`snr_sweep`.
+    channel : channel of multi-channel files (0 = first).
+
+    Returns
+    -------
+    SweepResult
+    """
+    from .audio import load_audio, resample
+    from .mapping import read_mapping
+
+    snrs = parse_snr_range(snr_db) if isinstance(snr_db, str) else snr_db
+    if level not in LEVEL_CONVENTIONS:
+        raise InputError(f"unknown level convention '{level}'", "use --level speech or --level mixture")
+    if not isinstance(n_segments, (int, np.integer)) or not 1 <= n_segments <= MAX_SEGMENTS:
+        raise InputError(f"--segments {n_segments} is outside 1..{MAX_SEGMENTS}", "give e.g. --segments 5")
+    m = mapping if mapping is None or isinstance(mapping, ScoreMapping) else read_mapping(mapping)
+    name = (index or (m.index if m is not None else DEFAULT_INDEX)).strip().lower()
+    if name not in SWEEP_INDICES:
+        raise InputError(f"unknown index '{name}' for the sweep", f"use --index {', '.join(SWEEP_INDICES)}")
+    if m is not None and m.index != name:
+        where = "" if isinstance(mapping, ScoreMapping) else f" '{mapping}'"
+        raise InputError(f"the mapping{where} takes '{m.index}' but --index is '{name}'",
+                         f"use --index {m.index} or a mapping fitted on {name}")
+    if m is None and targets:
+        raise InputError("--target needs a mapping", "give --map MAP.json (write one with 'envpredict fitmap')")
+    target_list = list(targets) if targets else [std.SRT_PERCENT]
+    _check_options(snrs, name, default_index_functions(), level, n_segments, m, target_list)
+
+    x, fs = load_audio(clean, channel, name="clean speech")
+    nz, fs_n = load_audio(noise, channel, name="noise")
+    notes = []
+    if fs_n != fs:
+        notes.append(f"the noise was resampled from {fs_n} Hz to {fs} Hz")
+        nz = resample(nz, fs_n, fs)
+    h = None
+    if ir is not None:
+        h, fs_h = load_audio(ir, channel, name="impulse response")
+        if fs_h != fs:
+            notes.append(f"the impulse response was resampled from {fs_h} Hz to {fs} Hz")
+            h = resample(h, fs_h, fs)
+    res = snr_sweep(x, nz, fs, snr_db=snrs, index=name, mapping=m, targets=target_list, ir=h,
+                    n_segments=n_segments, level=level, progress=progress)
+    if notes:
+        from dataclasses import replace
+
+        res = replace(res, notes=tuple(notes) + res.notes)
+    return res

@@ -1,0 +1,332 @@
+"""Result tables (CSV): reading and writing them, in one place.
+
+Every CSV file the tool reads or writes goes through this module: the manifests and
+results files of :mod:`envpredict.batch`, the results tables compared by
+:mod:`envpredict.stats`, the score tables fitted by :mod:`envpredict.mapping` and the
+tables it adds a predicted-score column to. Nothing here computes an index; the
+numeric modules receive plain rows (``{column: text}``) and never parse CSV
+themselves.
+
+Conventions
+-----------
+* Files are UTF-8 (a byte-order mark is accepted), comma-separated, one header line.
+* A results file written by ``envpredict batch`` has the columns ``row``, the
+  manifest's own columns, the index columns (:data:`IR_INDEX_COLUMNS` and/or
+  :data:`PAIR_INDEX_COLUMNS`), ``notes`` and ``error``.
+* Numbers are written with ``repr`` (the shortest text that reads back to the same
+  float); a figure that could not be computed is an empty cell (:func:`format_cell`).
+* Errors are :class:`~envpredict.exceptions.InputError` naming the file, the row and
+  the column.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import os
+from pathlib import Path
+from typing import Any, Callable, Iterator, Mapping, Sequence
+
+from .exceptions import InputError
+
+# ---------------------------------------------------------------------------
+# Column vocabulary of manifests and results files
+# ---------------------------------------------------------------------------
+
+#: Manifest columns naming the input files.
+IR_COLUMN = "ir"
+CLEAN_COLUMN = "clean"
+DEGRADED_COLUMN = "degraded"
+PATH_COLUMNS: tuple[str, ...] = (IR_COLUMN, CLEAN_COLUMN, DEGRADED_COLUMN)
+
+#: Optional manifest columns that feed the scoring (see :mod:`envpredict.batch`).
+CHANNEL_COLUMN = "channel"
+NOISE_COLUMN = "noise"
+SPEECH_LEVEL_COLUMN = "speech_level"
+STI_TALKER_COLUMN = "sti_talker"
+OPTION_COLUMNS: tuple[str, ...] = (CHANNEL_COLUMN, NOISE_COLUMN, SPEECH_LEVEL_COLUMN, STI_TALKER_COLUMN)
+
+#: Result columns added to the manifest's own.
+ROW_COLUMN = "row"
+ERROR_COLUMN = "error"
+#: Why a figure of a scored row is empty (e.g. a decay range too small for T30).
+NOTES_COLUMN = "notes"
+#: IR rows: STI, its qualification band, and the ISO 3382-1 mid-frequency T30 and EDT
+#: (mean of the 500 Hz and 1 kHz octave bands, seconds; :func:`envpredict.decay.mid_frequency`).
+IR_INDEX_COLUMNS: tuple[str, ...] = ("sti", "rating", "t30_mid", "edt_mid")
+#: Pair rows: STOI, ESTOI, speech-based STI and the delay of the degraded signal, ms.
+PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression", "delay_ms")
+#: Index columns holding numbers (all except the rating letter).
+NUMERIC_INDEX_COLUMNS: tuple[str, ...] = tuple(
+    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS if c != "rating"
+)
+RESULT_COLUMNS: frozenset[str] = frozenset(
+    (ROW_COLUMN, NOTES_COLUMN, ERROR_COLUMN) + IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS
+)
+
+#: Default columns of a scores table (number correct, number of trials) fitted by
+#: :func:`envpredict.mapping.fit_mapping_file`, and the predicted-score column that
+#: :func:`envpredict.mapping.predict_file` adds to a results table.
+CORRECT_COLUMN: str = "correct"
+TRIALS_COLUMN: str = "trials"
+PREDICTED_COLUMN: str = "predicted_percent"
+
+#: Rows of a table as read by :func:`read_table`: ``(line number, {column: text})``.
+Rows = list[tuple[int, dict[str, str]]]
+
+
+# ---------------------------------------------------------------------------
+# Reading
+# ---------------------------------------------------------------------------
+
+
+def read_text(path: str | os.PathLike, what: str) -> str:
+    """The text of a UTF-8 file, refusing a missing, unreadable or undecodable one.
+
+    Parameters
+    ----------
+    path : the file.
+    what : what it is, for the error message (e.g. ``"manifest"``).
+    """
+    p = Path(path)
+    if not p.exists():
+        raise InputError(f"{what} '{p}' does not exist", "check the path")
+    if p.is_dir():
+        raise InputError(f"{what} '{p}' is a folder", "give the path of a CSV file")
+    try:
+        raw = p.read_bytes()
+    except OSError as e:
+        raise InputError(f"{what} '{p}' cannot be read ({e.strerror})", "check its permissions") from None
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as e:
+        raise InputError(
+            f"{what} '{p}' is not UTF-8 text (undecodable byte at offset {e.start})",
+            "save it as CSV in UTF-8",
+        ) from None
+
+
+def iter_records(text: str, on_error: Callable[[int, csv.Error], InputError], *,
+                 strict: bool = True) -> Iterator[tuple[int, list[str]]]:
+    """``(line number, cells)`` of each record of CSV ``text`` (header included).
+
+    A malformed record raises the :class:`InputError` that ``on_error(line, error)``
+    builds, so each caller names its own file in the message.
+    """
+    reader = csv.reader(io.StringIO(text, newline=""), strict=strict)
+    while True:
+        try:
+            rec = next(reader)
+        except StopIteration:
+            return
+        except csv.Error as e:
+            raise on_error(reader.line_num, e) from None
+        yield reader.line_num, rec
+
+
+def parse_lines(text: str, path: str | os.PathLike) -> tuple[list[str] | None, list[list[str]], bool]:
+    """Header and complete rows of a results file; ``torn`` if the last line lacked its newline.
+
+    A final line without its newline is a write cut short (a kill, a power cut, a full
+    disk): it is dropped, so a file still being written can be read at any time.
+    """
+    torn = bool(text) and not text.endswith("\n")
+    if torn:
+        text = text[: text.rfind("\n") + 1]
+    if not text:
+        return None, [], torn
+
+    def bad(_line: int, e: csv.Error) -> InputError:
+        return InputError(f"results file '{path}' is not valid CSV ({e})",
+                          "give a results file written by 'envpredict batch', or a new --out")
+
+    recs = [rec for _, rec in iter_records(text, bad)]
+    return recs[0], recs[1:], torn
+
+
+def read_results(path: str | os.PathLike) -> tuple[tuple[str, ...], list[dict[str, str]]]:
+    """Read a results file written by :func:`envpredict.batch.run_batch` (complete or still running).
+
+    A final line without its newline (a write cut short) is ignored, so a file that
+    is still being written can be read at any time.
+
+    Parameters
+    ----------
+    path : the results CSV file.
+
+    Returns
+    -------
+    columns : the header.
+    rows : one dict per row, column -> cell text.
+    """
+    p = Path(path)
+    text = read_text(p, "results file")
+    header, recs, _ = parse_lines(text, p)
+    if header is None:
+        raise InputError(f"results file '{p}' is empty", "run 'envpredict batch' first")
+    rows = []
+    for i, rec in enumerate(recs, start=2):
+        if len(rec) != len(header):
+            raise InputError(f"results file '{p}', line {i} has {len(rec)} cells; the header has {len(header)}",
+                             "repair the line or score again")
+        rows.append(dict(zip(header, rec)))
+    return tuple(header), rows
+
+
+def read_table(path: str | os.PathLike, what: str) -> tuple[list[str], Rows]:
+    """Read a comma-separated table: header and ``(line, {column: text})`` rows.
+
+    Blank lines (before the header and between rows) are skipped. Refuses, naming the
+    file and row: a missing or unreadable file, no header, empty or repeated column
+    names, a file separated by ``;``, rows with more or fewer cells than the header.
+
+    Parameters
+    ----------
+    path : the CSV file.
+    what : what it is, for the error messages (e.g. ``"scores file"``).
+    """
+    p = Path(path)
+    if not p.exists():
+        raise InputError(f"{what} '{p}' does not exist", "check the path")
+    if p.is_dir():
+        raise InputError(f"{what} '{p}' is a folder", "give the path of a CSV file")
+    try:
+        text = p.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError:
+        raise InputError(f"{what} '{p}' is not UTF-8 text", "save the table as CSV (UTF-8)") from None
+    except OSError as e:
+        raise InputError(f"{what} '{p}' cannot be read ({e.strerror})", "check the file permissions") from None
+
+    def bad(line: int, e: csv.Error) -> InputError:
+        return InputError(f"{what} '{p}', row {line}: malformed CSV ({e})", "repair the quoting in that row")
+
+    records = iter_records(text, bad, strict=False)
+    header: list[str] | None = None
+    for line, cells in records:
+        if any(c.strip() for c in cells):
+            header = [h.strip() for h in cells]
+            header_line = line
+            break
+    if header is None:
+        raise InputError(f"{what} '{p}' is empty", "give a CSV file with a header row and data rows")
+    for i, h in enumerate(header):
+        if not h:
+            raise InputError(f"{what} '{p}', row {header_line}: column {i + 1} of the header has no name",
+                             "name every column")
+    dup = sorted({h for h in header if header.count(h) > 1})
+    if dup:
+        raise InputError(f"{what} '{p}': column '{dup[0]}' appears more than once in the header",
+                         "give every column a distinct name")
+    if len(header) == 1 and ";" in header[0]:
+        raise InputError(f"{what} '{p}' seems to use ';' as separator", "save it with commas between the columns")
+    rows: Rows = []
+    for line, cells in records:
+        if not any(c.strip() for c in cells):
+            continue
+        if len(cells) != len(header):
+            raise InputError(
+                f"{what} '{p}', row {line}: {len(cells)} cell(s) but the header has {len(header)} columns",
+                "give every row one cell per column (quote cells that contain commas)")
+        rows.append((line, dict(zip(header, cells))))
+    return header, rows
+
+
+# ---------------------------------------------------------------------------
+# Cells
+# ---------------------------------------------------------------------------
+
+
+def cell_number(v: Any) -> float | None:
+    """A cell as a finite number, or ``None`` (empty, not a number, or not finite)."""
+    if v is None:
+        return None
+    if isinstance(v, (int, float)) or hasattr(v, "__float__") and not isinstance(v, str):
+        f = float(v)
+    else:
+        s = str(v).strip()
+        if not s:
+            return None
+        try:
+            f = float(s)
+        except ValueError:
+            return None
+    return f if math.isfinite(f) else None
+
+
+def cell_float(row: Mapping[str, Any], column: str, line: int, source: str, *, blank_ok: bool = False) -> float:
+    """The number in ``row[column]``; refuses text and (unless ``blank_ok``) blanks.
+
+    With ``blank_ok`` an empty or non-finite cell gives NaN (e.g. a row whose
+    computation failed). Errors name ``source``, the row ``line`` and the column.
+    """
+    v = row.get(column)
+    text = "" if v is None else str(v).strip()
+    if text == "":
+        if blank_ok:
+            return math.nan
+        raise InputError(f"{source}, row {line}, column '{column}': empty cell", "fill in the value or remove the row")
+    try:
+        f = float(text)
+    except ValueError:
+        raise InputError(f"{source}, row {line}, column '{column}': '{text}' is not a number",
+                         "give a plain number (decimal point, no units or % sign)") from None
+    if not math.isfinite(f):
+        if blank_ok:
+            return math.nan
+        raise InputError(f"{source}, row {line}, column '{column}': '{text}' is not finite", "repair the row")
+    return f
+
+
+def resolve_column(header: Sequence[str], name: str, source: str) -> str:
+    """The header entry called ``name`` (exact, else the one case-insensitive match)."""
+    if name in header:
+        return name
+    near = [h for h in header if h.lower() == name.lower()]
+    if len(near) == 1:
+        return near[0]
+    have = ", ".join(h for h in header if h) or "(none)"
+    raise InputError(f"{source} has no column '{name}' (columns: {have})",
+                     "name the column with the matching option, or add it to the file")
+
+
+def format_cell(v: Any) -> str:
+    """A result value as CSV text: full-precision numbers, empty for missing/non-finite."""
+    if v is None:
+        return ""
+    if isinstance(v, bool):
+        return str(v).lower()
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float) or hasattr(v, "__float__") and not isinstance(v, str):
+        f = float(v)
+        return repr(f) if math.isfinite(f) else ""
+    return " ".join(str(v).split())  # one line
+
+
+# ---------------------------------------------------------------------------
+# Writing
+# ---------------------------------------------------------------------------
+
+
+def csv_line(cells: Sequence[str]) -> str:
+    """One CSV record with its newline (quoting as needed)."""
+    buf = io.StringIO()
+    csv.writer(buf, lineterminator="\n").writerow(cells)
+    return buf.getvalue()
+
+
+def table_text(header: Sequence[str], rows: Sequence[Mapping[str, str]]) -> str:
+    """A whole table as CSV text: the header line and one line per row dict."""
+    buf = io.StringIO()
+    w = csv.DictWriter(buf, fieldnames=list(header), lineterminator="\n")
+    w.writeheader()
+    w.writerows(rows)
+    return buf.getvalue()
+
+
+def write_table(path: str | os.PathLike, header: Sequence[str], rows: Sequence[Mapping[str, str]]) -> Path:
+    """Write a table as CSV atomically (it appears whole or not at all); may replace its input."""
+    from .outputs import atomic_write_text
+
+    return atomic_write_text(path, table_text(header, rows))
