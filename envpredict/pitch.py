@@ -20,6 +20,7 @@ import numpy as np
 from . import standards as std
 from .audio import resample
 from .exceptions import InputError
+from .results import jsonable
 
 #: YIN runs at this rate (or the input rate if lower): 16 kHz keeps the 500 Hz period
 #: at 32 samples, ample with parabolic interpolation (judgement).
@@ -57,6 +58,18 @@ class F0Track:
     aperiodicity: np.ndarray
     voiced: np.ndarray
     hop_s: float
+
+    def to_dict(self) -> dict:
+        """The track frame by frame (``f0_hz`` null where unvoiced)."""
+        return jsonable({
+            "hop_s": self.hop_s,
+            "times_s": np.round(self.times_s, 5),
+            "f0_hz": np.round(self.f0_hz, 2),
+            "aperiodicity": np.round(self.aperiodicity, 4),
+            "voiced": self.voiced,
+            "cautions": [],
+            "notes": [],
+        })
 
 
 def _frames(x: np.ndarray, starts: np.ndarray, length: int) -> np.ndarray:

@@ -30,7 +30,7 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 
 #: Results a command prints as a whole: each carries both lists.
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
-             "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult"}
+             "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track"}
 
 
 # ---------------------------------------------------------------------------
@@ -104,6 +104,7 @@ def _factories(speech, batch_summary) -> dict:
         "Comparison": comparison,
         "BatchSummary": lambda: batch_summary,
         "PredictedTable": predicted,
+        "F0Track": lambda: envpredict.yin_f0(clean, fs),
     }
 
 
@@ -123,13 +124,21 @@ def _result_types() -> dict[str, type]:
 
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
-         "CaseOutcome", "Check", "F0Track"}
+         "CaseOutcome", "Check"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):
     types = set(_result_types())
     missing = types - set(_factories(speech, batch_summary)) - PARTS
     assert not missing, f"result types without a vocabulary check: {sorted(missing)}"
+
+
+def test_every_public_result_class_has_to_dict():
+    """Every dataclass the package exports (envpredict.__all__) is a result with to_dict()."""
+    for name in envpredict.__all__:
+        obj = getattr(envpredict, name)
+        if isinstance(obj, type) and dataclasses.is_dataclass(obj):
+            assert callable(getattr(obj, "to_dict", None)), f"{name} has no to_dict()"
 
 
 def _walk(d, path=""):
