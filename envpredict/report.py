@@ -1069,8 +1069,9 @@ def _settings_rows(settings: Mapping[str, Any]) -> str:
 
 
 def _json_for_script(d: Mapping) -> str:
-    # "</" must not appear inside a <script> element
-    return json.dumps(d, indent=1, allow_nan=False).replace("</", "<\\/")
+    # no "<" at all inside the <script> element ("</script>", "<!--" in a name): JSON's own
+    # escape \u003c reads back as the same character
+    return json.dumps(d, indent=1, allow_nan=False).replace("<", "\\u003c")
 
 
 def _input_files(result: Mapping) -> dict[str, str]:

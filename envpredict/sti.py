@@ -7,6 +7,7 @@ STI all end in :func:`sti_from_mtf`.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Sequence
 
@@ -132,10 +133,25 @@ def combine_bands(mti: np.ndarray, talker: str = "male") -> float:
     return float(np.clip(sti, 0.0, 1.0))
 
 
+def _check_index_value(sti: float) -> float:
+    """An STI to be rated: a number in 0..1 (a NaN or 1.5 has no band and no rating)."""
+    try:
+        v = float(sti)
+    except (TypeError, ValueError):
+        raise InputError(f"STI '{sti}' is not a number", "give a value from 0 to 1") from None
+    if not math.isfinite(v) or not 0.0 <= v <= 1.0:
+        raise InputError(f"STI {sti} is outside 0..1", "give a value from 0 to 1")
+    return v
+
+
 def qualification_band(sti: float) -> str:
-    """Qualification band label (A+ ... U). Source: IEC 60268-16:2011, Table F.1."""
+    """Qualification band label (A+ ... U) of an STI in 0..1, from its unrounded value.
+
+    Source: IEC 60268-16:2011, Table F.1. Raises :class:`InputError` for a value that is
+    not a number in 0..1.
+    """
     # round to 1e-9 so a value computed as 0.5199999999 is not pushed down a band
-    v = round(float(sti), 9)
+    v = round(_check_index_value(sti), 9)
     for label, lower, _nominal in std.QUALIFICATION_BANDS:
         if v >= lower:
             return label
@@ -143,9 +159,11 @@ def qualification_band(sti: float) -> str:
 
 
 def subjective_rating(sti: float) -> str:
-    """Five-step subjective scale (bad ... excellent). Source: see standards.SUBJECTIVE_SCALE."""
+    """Five-step subjective scale (bad ... excellent) of an STI in 0..1. Source: see
+    standards.SUBJECTIVE_SCALE."""
+    v = _check_index_value(sti)
     for label, lower in std.SUBJECTIVE_SCALE:
-        if sti >= lower:
+        if v >= lower:
             return label
     return std.SUBJECTIVE_SCALE[-1][0]
 

@@ -159,3 +159,15 @@ def test_measured_band_levels_equal_standard_spectrum():
     # louder measured bands are masked more strongly from below (Table A.3 rises with level)
     c = sti_from_mtf(np.ones((7, 14)), speech_db=[110.0] * 7)
     assert c.sti < 1.0
+
+
+@pytest.mark.parametrize("value", [float("nan"), float("inf"), -0.01, 1.5, "abc", None])
+def test_rating_an_impossible_sti_is_refused(value):
+    # IEC 60268-16:2011 Table F.1 and the five-step scale rate values in 0..1 only: a NaN
+    # (a failed computation) must not become band U, nor 1.5 band A+
+    from envpredict.sti import qualification_band, subjective_rating
+
+    with pytest.raises(InputError):
+        qualification_band(value)
+    with pytest.raises(InputError):
+        subjective_rating(value)
