@@ -139,9 +139,14 @@ def _check_index_value(sti: float) -> float:
         v = float(sti)
     except (TypeError, ValueError):
         raise InputError(f"STI '{sti}' is not a number", "give a value from 0 to 1") from None
-    if not math.isfinite(v) or not 0.0 <= v <= 1.0:
+    if not math.isfinite(v) or not -RATING_ROUNDING <= v <= 1.0 + RATING_ROUNDING:
         raise InputError(f"STI {sti} is outside 0..1", "give a value from 0 to 1")
-    return v
+    return min(max(v, 0.0), 1.0)
+
+
+#: Floating-point slack of a computed STI at the ends of 0..1 (sums of weighted square
+#: roots can land a few ulp outside).
+RATING_ROUNDING: float = 1e-9
 
 
 def qualification_band(sti: float) -> str:
