@@ -24,7 +24,11 @@ NO_AUDITORY = (
 
 
 def below_target(sti: float) -> str | None:
+    """The caution for an STI below the common voice-alarm requirement, judged on the
+    unrounded value and shown with the decimals that keep the two consistent."""
+    from .sti import format_index
+
     if sti < std.VOICE_ALARM_TARGET_STI:
-        return (f"STI {sti:.2f} is below {std.VOICE_ALARM_TARGET_STI:.2f}, the value commonly "
+        return (f"STI {format_index(sti)} is below {std.VOICE_ALARM_TARGET_STI:.2f}, the value commonly "
                 "required of voice-alarm systems.")
     return None

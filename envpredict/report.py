@@ -434,7 +434,11 @@ def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
 
 
 def _sti_headline(d: Mapping) -> list[tuple[str, Cell]]:
-    return [("STI", num(d, "sti", ".2f")), ("qualification band", txt(d.get("rating"))),
+    from .sti import verdict_decimals
+
+    # two decimals, or more where rounding would contradict the verdict (0.498, not "0.50")
+    spec = f".{verdict_decimals(d['sti'])}f" if isinstance(d.get("sti"), (int, float)) else ".2f"
+    return [("STI", num(d, "sti", spec)), ("qualification band", txt(d.get("rating"))),
             ("rating", txt(d.get("subjective"))), ("talker", txt(d.get("talker")))]
 
 

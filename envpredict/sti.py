@@ -149,6 +149,39 @@ def _check_index_value(sti: float) -> float:
 RATING_ROUNDING: float = 1e-9
 
 
+#: Decimals of the STI in a result's dictionary (more near the requirement, see below).
+JSON_DECIMALS: int = 4
+
+#: Most decimals an index is shown with to keep it on its side of a requirement.
+MAX_VERDICT_DECIMALS: int = 6
+
+
+def verdict_decimals(value: float, requirement: float = std.VOICE_ALARM_TARGET_STI, minimum: int = 2) -> int:
+    """Decimals to show ``value`` with so that the shown number and the verdict against
+    ``requirement`` (met when ``value >= requirement``, judged on the unrounded value)
+    never contradict each other: ``minimum`` unless rounding would cross or reach the
+    requirement from below (0.498 shown as "0.50" beside "below 0.50"), then more.
+
+    >>> verdict_decimals(0.498), verdict_decimals(0.4996), verdict_decimals(0.62)
+    (3, 4, 2)
+    """
+    v, req = float(value), float(requirement)
+    for d in range(int(minimum), MAX_VERDICT_DECIMALS + 1):
+        if (round(v, d) >= req) == (v >= req):
+            return d
+    return MAX_VERDICT_DECIMALS
+
+
+def format_index(value: float, requirement: float = std.VOICE_ALARM_TARGET_STI, minimum: int = 2) -> str:
+    """``value`` as text with :func:`verdict_decimals` decimals ("0.48", "0.498"); a value
+    within 1e-6 below the requirement is cut (not rounded) to stay below it ("0.499999")."""
+    v = float(value)
+    d = verdict_decimals(v, requirement, minimum)
+    if (round(v, d) >= requirement) != (v >= requirement):
+        return f"{math.floor(v * 10 ** d) / 10 ** d:.{d}f}"
+    return f"{v:.{d}f}"
+
+
 def qualification_band(sti: float) -> str:
     """Qualification band label (A+ ... U) of an STI in 0..1, from its unrounded value.
 
@@ -214,7 +247,7 @@ class StiResult:
         return jsonable(
             {
                 "index": "sti",
-                "sti": round(self.sti, 4),
+                "sti": float(format_index(self.sti, minimum=JSON_DECIMALS)),
                 "rating": self.rating,
                 "subjective": self.subjective,
                 "talker": self.talker,

@@ -171,3 +171,34 @@ def test_rating_an_impossible_sti_is_refused(value):
         qualification_band(value)
     with pytest.raises(InputError):
         subjective_rating(value)
+
+
+@pytest.mark.parametrize("value, shown", [(0.498, "0.498"), (0.4996, "0.4996"), (0.4949, "0.49"),
+                                          (0.5, "0.50"), (0.5004, "0.50"), (0.62, "0.62"), (0.49999999, "0.499999")])
+def test_a_value_near_the_requirement_is_never_rounded_across_it(value, shown):
+    # the verdict against 0.50 is taken from the unrounded value; the number shown beside it
+    # must be on the same side (a shown "0.50" with "below 0.50" contradicts itself). The
+    # last case would round up even at 6 decimals and is cut instead.
+    from envpredict.sti import format_index
+
+    assert format_index(value, 0.5) == shown
+    assert (float(shown) >= 0.5) == (value >= 0.5)
+
+
+def test_the_caution_and_the_result_agree_at_the_threshold():
+    # IEC 60268-16 Annex A with an MTF chosen so the STI lands just below 0.50: the
+    # caution names the value with the decimals that keep it below, and so does the JSON
+    from envpredict.cautions import below_target
+
+    lo, hi = 0.0, 1.0
+    for _ in range(60):  # bisect a uniform MTF to an STI of 0.4996 (textbook form)
+        mid = (lo + hi) / 2
+        if sti_from_mtf(np.full((7, 14), mid), auditory=False).sti < 0.4996:
+            lo = mid
+        else:
+            hi = mid
+    r = sti_from_mtf(np.full((7, 14), lo), auditory=False)
+    assert 0.4995 < r.sti < 0.5
+    text = below_target(r.sti)
+    assert text is not None and text.startswith("STI 0.4996 is below 0.50")
+    assert r.to_dict()["sti"] < 0.5
