@@ -25,12 +25,14 @@ AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textb
 
 def render_ir(d: dict, source: str) -> str:
     """Readable text for an ``ir`` result dictionary."""
+    from envpredict.sti import format_index
+
     lines = [
         f"Impulse response: {source}  ({d['fs']} Hz, {d['duration_s']:.2f} s)",
         f"Talker: {d['talker']}   speech level: {d['speech_level_dba']:.1f} dB(A)   "
         f"auditory corrections: {'on' if d['auditory_corrections'] else 'off'}",
         "",
-        f"STI = {d['sti']:.2f}   qualification band {d['rating']}   ({d['subjective']})",
+        f"STI = {format_index(d['sti'])}   qualification band {d['rating']}   ({d['subjective']})",
         "",
     ]
     dec = d["decay"]
