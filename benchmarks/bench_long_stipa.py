@@ -25,8 +25,6 @@ from pathlib import Path
 
 from _measure import run_or_exit
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
-
 BLOCK_S = 20.0
 LIMIT_MB = 600.0
 PERIOD_S = 100.0  # the STIPA signal's loopable length (common period of its modulations)
@@ -83,14 +81,14 @@ def main() -> None:
         rec = d["recordings"][0]
         print(f"STI {d['sti']:.3f} +- {d['uncertainty']:.3f} ({len(d['window_sti'])} windows), analysed "
               f"{rec['analysed_start_s']:.1f}-{rec['analysed_end_s']:.1f} s of {rec['duration_s']:.1f} s")
-        try:
-            import numpy as np
-            from test_direct import STIPA_F, analytic_sti
+        from _signals import decay_mtf
 
-            print(f"analytic STI of the decay alone (T = {a.t60:g} s, no noise): "
-                  f"{analytic_sti(np.asarray(STIPA_F), a.t60):.3f}")
-        except ImportError:
-            pass
+        from envpredict import standards as std
+        from envpredict.sti import sti_from_mtf
+
+        mtf = decay_mtf(std.STIPA_MODULATION_HZ, a.t60)
+        print(f"analytic STI of the decay alone (T = {a.t60:g} s, no noise): "
+              f"{sti_from_mtf(mtf, modulation_hz=std.STIPA_MODULATION_HZ, auditory=False).sti:.3f}")
         verdict = "OK" if peak_mb <= LIMIT_MB else "OVER THE LIMIT"
         print(f"analysis wall time {wall:.1f} s; peak RSS {peak_mb:.0f} MB (limit {LIMIT_MB:.0f} MB): {verdict}")
 
