@@ -51,6 +51,16 @@ def write_pilot(path, x, k, n, index="stoi"):
             w.writerow([f"c{i}", f"{xi:.4f}", int(ki), int(ni)])
 
 
+def write_simulated_pilot(path):
+    """A pilot table of six conditions, 40 trials each, simulated at a = -11, b = 17;
+    returns (x, k, n)."""
+    x = np.linspace(0.4, 0.95, 6)
+    n = np.full(x.size, 40)
+    k = simulate(-11.0, 17.0, x, n, seed=9)
+    write_pilot(path, x, k, n)
+    return x, k, n
+
+
 # ---------------------------------------------------------------------------
 # fitting
 # ---------------------------------------------------------------------------
@@ -325,11 +335,8 @@ def test_add_predictions_column():
 # ---------------------------------------------------------------------------
 
 def test_cli_fitmap_and_predict(tmp_path, capsys):
-    x = np.linspace(0.4, 0.95, 6)
-    n = np.full(x.size, 40)
-    k = simulate(-11.0, 17.0, x, n, seed=9)
     pilot = tmp_path / "pilot.csv"
-    write_pilot(pilot, x, k, n)
+    x, k, n = write_simulated_pilot(pilot)
     mp = tmp_path / "map.json"
     code, out, err = run_cli(["fitmap", str(pilot), "--index", "stoi", "--out", str(mp), "--json"], capsys)
     assert code == 0, err
@@ -397,11 +404,8 @@ def test_cli_predict_refusals(tmp_path, capsys):
 def test_file_functions_equal_the_array_functions(tmp_path):
     from envpredict.mapping import fit_mapping_file, predict_file, read_mapping
 
-    x = np.linspace(0.4, 0.95, 6)
-    n = np.full(x.size, 40)
-    k = simulate(-11.0, 17.0, x, n, seed=9)
     pilot = tmp_path / "pilot.csv"
-    write_pilot(pilot, x, k, n)
+    x, k, n = write_simulated_pilot(pilot)
     m, data = fit_mapping_file(pilot, index="stoi")
     ref = fit_mapping(x.round(4), k, n, index="stoi")
     assert (m.a, m.b) == (ref.a, ref.b)
