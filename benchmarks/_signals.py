@@ -2,7 +2,8 @@
 
 A speech-like signal (voiced syllables through three formant resonances, fricative
 noise bursts, pauses) and maskers built from it. Same recipe as the tests' helper
-module, kept apart so that benchmarks and tests stay independent.
+module, kept apart so that benchmarks and tests stay independent. Also the analytic
+modulation transfer of an exponential decay, for the benchmarks' sanity prints.
 """
 
 from __future__ import annotations
@@ -56,3 +57,9 @@ def fluctuating_noise(x: np.ndarray, fs: int, seed: int) -> np.ndarray:
 def at_snr(x: np.ndarray, noise: np.ndarray, snr_db: float) -> np.ndarray:
     """``x`` plus ``noise`` scaled to the given signal-to-noise ratio (mean power), dB."""
     return x + noise * np.sqrt(np.mean(x ** 2) / np.mean(noise ** 2)) * 10 ** (-snr_db / 20)
+
+
+def decay_mtf(modulation_hz: np.ndarray, t60: float) -> np.ndarray:
+    """Analytic MTF of an exponential energy decay with reverberation time ``t60``, no noise:
+    m(F) = (1 + (2 pi F T / 13.8)^2)^-1/2 (Houtgast & Steeneken 1985)."""
+    return (1.0 + (2 * np.pi * np.asarray(modulation_hz) * t60 / 13.8) ** 2) ** -0.5

@@ -15,13 +15,10 @@ the F0 contour, about 130 Hz) and the dominant modulation rate (expected near 4 
 
 from __future__ import annotations
 
-import argparse
-import json
-import sys
 import tempfile
 from pathlib import Path
 
-from _measure import run_or_exit
+from _measure import analyse_in_child, long_recording_parser, write_in_child
 
 BLOCK_S = 20.0
 LIMIT_MB = 600.0
@@ -52,12 +49,7 @@ def write_recording(path: Path, minutes: float, fs: int, noise_db: float = 30.0,
 
 
 def main() -> None:
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--minutes", type=float, default=60.0, help="length of the recording (default 60)")
-    ap.add_argument("--fs", type=int, default=48000)
-    ap.add_argument("--keep", type=Path, default=None, help="write the recording here and keep it")
-    ap.add_argument("--write-only", type=Path, default=None, help=argparse.SUPPRESS)
-    a = ap.parse_args()
+    a = long_recording_parser(__doc__, minutes=60.0, fs=48000).parse_args()
     if a.write_only is not None:
         write_recording(a.write_only, a.minutes, a.fs)
         return
@@ -66,13 +58,8 @@ def main() -> None:
         folder = a.keep or Path(tmp)
         folder.mkdir(parents=True, exist_ok=True)
         path = folder / f"speechlike_{a.minutes:g}min_{a.fs}.wav"
-        _, wall, _ = run_or_exit(
-            [sys.executable, __file__, "--write-only", str(path), "--minutes", str(a.minutes), "--fs", str(a.fs)])
-        print(f"wrote {path.name}: {a.minutes:g} min at {a.fs} Hz, 16-bit, {path.stat().st_size / 1e6:.0f} MB, "
-              f"in {wall:.0f} s")
-        out, wall, peak_mb = run_or_exit(
-            [sys.executable, "-c", "from envpredict.cli import main; main()", "inspect", str(path), "--json"])
-        d = json.loads(out)
+        write_in_child(__file__, path, a.minutes, a.fs)
+        d, wall, peak_mb = analyse_in_child("inspect", path)
         print(f"duration {d['duration_s']:.1f} s; voiced {100 * d['voiced_fraction']:.0f} %; median F0 "
               f"{d['f0_median_hz']} Hz (contour median ~130 Hz); modulation peak {d['modulation_peak_hz']} Hz "
               f"(syllable rate {SYLLABLE_HZ:g} Hz)")

@@ -2,7 +2,7 @@
 
 Run by hand: ``python benchmarks/bench_long_pair.py [--minutes 30] [--keep DIR]``.
 Writes an invented clean/degraded pair as 16-bit WAV files block by block
-(speech-like signal from tests/test_correlation.py; degraded = 120 ms late, in
+(speech-like signal from benchmarks/_signals.py; degraded = 120 ms late, in
 fluctuating speech-shaped noise at 3 dB SNR), then analyses it in a child process and
 prints the child's wall time and peak resident memory (resource.getrusage). Goal
 (issue 3): peak RSS <= 600 MB for 30 minutes.
@@ -16,9 +16,7 @@ import tempfile
 import time
 from pathlib import Path
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
-
-from _measure import run_or_exit  # noqa: E402
+from _measure import run_or_exit
 
 BLOCK_S = 60.0
 DELAY_S = 0.120
@@ -39,7 +37,7 @@ print(json.dumps({"seconds": time.perf_counter() - t0, "stoi": d["stoi"], "estoi
 def write_pair(folder: Path, minutes: float, fs: int) -> tuple[Path, Path]:
     import numpy as np
     import soundfile as sf
-    from test_correlation import at_snr, fluctuating_noise, speech_like
+    from _signals import at_snr, fluctuating_noise, speech_like
 
     clean, degraded = folder / "clean.wav", folder / "degraded.wav"
     lag = int(DELAY_S * fs)

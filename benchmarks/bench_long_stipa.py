@@ -17,15 +17,10 @@ than the measurement).
 
 from __future__ import annotations
 
-import argparse
-import json
-import sys
 import tempfile
 from pathlib import Path
 
-from _measure import run_or_exit
-
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
+from _measure import analyse_in_child, long_recording_parser, write_in_child
 
 BLOCK_S = 20.0
 LIMIT_MB = 600.0
@@ -56,13 +51,9 @@ def write_recording(path: Path, minutes: float, fs: int, t60: float, noise_db: f
 
 
 def main() -> None:
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--minutes", type=float, default=60.0, help="length of the recording (default 60)")
-    ap.add_argument("--fs", type=int, default=48000)
+    ap = long_recording_parser(__doc__, minutes=60.0, fs=48000)
     ap.add_argument("--t60", type=float, default=0.8, help="reverberation time of the room, s")
     ap.add_argument("--noise-db", type=float, default=30.0, help="white noise this far below the signal RMS, dB")
-    ap.add_argument("--keep", type=Path, default=None, help="write the recording here and keep it")
-    ap.add_argument("--write-only", type=Path, default=None, help=argparse.SUPPRESS)
     a = ap.parse_args()
     if a.write_only is not None:
         write_recording(a.write_only, a.minutes, a.fs, a.t60, a.noise_db)
@@ -72,25 +63,19 @@ def main() -> None:
         folder = a.keep or Path(tmp)
         folder.mkdir(parents=True, exist_ok=True)
         path = folder / f"stipa_{a.minutes:g}min_{a.fs}.wav"
-        _, wall, _ = run_or_exit(
-            [sys.executable, __file__, "--write-only", str(path), "--minutes", str(a.minutes), "--fs", str(a.fs),
-             "--t60", str(a.t60), "--noise-db", str(a.noise_db)])
-        print(f"wrote {path.name}: {a.minutes:g} min at {a.fs} Hz, 16-bit, {path.stat().st_size / 1e6:.0f} MB, "
-              f"in {wall:.0f} s")
-        out, wall, peak_mb = run_or_exit(
-            [sys.executable, "-c", "from envpredict.cli import main; main()", "stipa", str(path), "--json"])
-        d = json.loads(out)
+        write_in_child(__file__, path, a.minutes, a.fs, "--t60", str(a.t60), "--noise-db", str(a.noise_db))
+        d, wall, peak_mb = analyse_in_child("stipa", path)
         rec = d["recordings"][0]
         print(f"STI {d['sti']:.3f} +- {d['uncertainty']:.3f} ({len(d['window_sti'])} windows), analysed "
               f"{rec['analysed_start_s']:.1f}-{rec['analysed_end_s']:.1f} s of {rec['duration_s']:.1f} s")
-        try:
-            import numpy as np
-            from test_direct import STIPA_F, analytic_sti
+        from _signals import decay_mtf
 
-            print(f"analytic STI of the decay alone (T = {a.t60:g} s, no noise): "
-                  f"{analytic_sti(np.asarray(STIPA_F), a.t60):.3f}")
-        except ImportError:
-            pass
+        from envpredict import standards as std
+        from envpredict.sti import sti_from_mtf
+
+        mtf = decay_mtf(std.STIPA_MODULATION_HZ, a.t60)
+        print(f"analytic STI of the decay alone (T = {a.t60:g} s, no noise): "
+              f"{sti_from_mtf(mtf, modulation_hz=std.STIPA_MODULATION_HZ, auditory=False).sti:.3f}")
         verdict = "OK" if peak_mb <= LIMIT_MB else "OVER THE LIMIT"
         print(f"analysis wall time {wall:.1f} s; peak RSS {peak_mb:.0f} MB (limit {LIMIT_MB:.0f} MB): {verdict}")
 

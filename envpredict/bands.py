@@ -10,6 +10,9 @@
 * :func:`intensity_envelopes` -- zero-phase intensity envelopes of a whole signal.
 * :class:`EnvelopeStream` -- causal band -> square -> low-pass -> decimate, block by
   block, for long inputs (the direct method and the speech-based STI).
+* :func:`lowpass_sos` and :func:`bandpass_sos` -- the Butterworth filters applied to
+  envelopes (cached, read-only), each checked against its definition by
+  :func:`check_butterworth`.
 
 Cached filter arrays are read-only, so no caller can change the cache; the functions
 here pass private copies to :mod:`scipy.signal` (whose ``sosfilt`` needs writable
@@ -248,10 +251,57 @@ def octave_bands(x: np.ndarray, fs: int, *, zero_phase: bool = True) -> np.ndarr
 
 @lru_cache(maxsize=32)
 def lowpass_sos(fs: int, cutoff_hz: float, order: int = ENVELOPE_LOWPASS_ORDER) -> np.ndarray:
-    """Butterworth low-pass SOS of the intensity envelopes (read-only, cached)."""
+    """Butterworth low-pass SOS of the intensity envelopes (read-only, cached).
+
+    Checked against its definition by :func:`check_butterworth`. Pass a copy
+    (``np.array(sos)``) to :mod:`scipy.signal`, whose filters need writable arrays.
+    """
     from scipy.signal import butter
 
-    return _frozen(butter(int(order), float(cutoff_hz), btype="lowpass", fs=int(fs), output="sos"))
+    sos = _frozen(butter(int(order), float(cutoff_hz), btype="lowpass", fs=int(fs), output="sos"))
+    check_butterworth(sos, int(fs), (float(cutoff_hz),), "low-pass")
+    return sos
+
+
+@lru_cache(maxsize=32)
+def bandpass_sos(fs: int, low_hz: float, high_hz: float, order: int = ENVELOPE_LOWPASS_ORDER) -> np.ndarray:
+    """Butterworth band-pass SOS from ``low_hz`` to ``high_hz`` (read-only, cached).
+
+    For envelopes and other signals outside the octave filterbank (the filterbank's bands
+    come from :func:`octave_filterbank`). ``order`` is the prototype order (the band-pass
+    has twice this order). Checked against its definition by :func:`check_butterworth`.
+    Pass a copy (``np.array(sos)``) to :mod:`scipy.signal`.
+    """
+    from scipy.signal import butter
+
+    edges = (float(low_hz), float(high_hz))
+    sos = _frozen(butter(int(order), list(edges), btype="bandpass", fs=int(fs), output="sos"))
+    check_butterworth(sos, int(fs), edges, "band-pass")
+    return sos
+
+
+def check_butterworth(sos: np.ndarray, fs: int, edges_hz: tuple[float, ...], what: str) -> None:
+    """Check a Butterworth design against its definition: -3.01 dB (half power) at each
+    cut-off frequency, within :data:`DEFINITION_TOLERANCE_DB` (the bilinear design with
+    pre-warped cut-offs keeps the analogue prototype's edge gain exactly).
+
+    Raises
+    ------
+    ComputationError if a cut-off misses its definition (a design failure near the
+    Nyquist frequency or at an extreme rate).
+    """
+    from scipy.signal import sosfreqz
+
+    f = np.asarray(edges_hz, dtype=float)
+    _, h = sosfreqz(sos, worN=f, fs=fs)
+    with np.errstate(divide="ignore"):
+        db = 20.0 * np.log10(np.abs(h))
+    if not np.all(np.abs(db - DEFINITION_EDGE_DB) <= DEFINITION_TOLERANCE_DB):
+        raise ComputationError(
+            f"the {what} filter at {fs} Hz misses its definition (gain "
+            f"{', '.join(f'{v:.2f}' for v in db)} dB at {', '.join(f'{v:g}' for v in f)} Hz)",
+            "use a sample rate of 16000 Hz or more",
+        )
 
 
 def envelope_rate(fs: int, target_hz: float = 200.0) -> tuple[int, float]:

@@ -40,7 +40,7 @@ import numpy as np
 
 from . import standards as std
 from .audio import ArraySource, FileSource, SignalCheck, Window, check_rate, resample, resample_ratio, validate_signal
-from .bands import envelope_rate, intensity_envelopes, octave_filterbank
+from .bands import bandpass_sos, envelope_rate, intensity_envelopes, lowpass_sos, octave_filterbank
 from .exceptions import InputError
 from .pitch import YIN_RATE_HZ, F0Track, _yin_finish, _yin_frames, _yin_setup, yin_f0  # noqa: F401
 from .results import jsonable, round_significant
@@ -60,6 +60,10 @@ MAX_SECONDS: float = 4 * 3600.0
 MOD_SEGMENT_S: float = 8.0
 #: Envelope rate, Hz (the envelopes are low-passed at 50 Hz first).
 ENVELOPE_RATE_HZ: float = 200.0
+#: Butterworth prototype order of the envelope low-pass and the periodicity band-pass
+#: that split each band's amplitude into the envelope and periodicity ranges (choice of
+#: this tool; the same order as the intensity envelopes of the STI family).
+ENVELOPE_FILTER_ORDER: int = 4
 #: Search range of the dominant modulation rate, Hz: the one-third-octave modulation
 #: bands 0.5 .. 31.5 Hz (band edges 0.45 .. 35.4 Hz).
 MOD_PEAK_RANGE_HZ: tuple[float, float] = (
@@ -436,7 +440,7 @@ def _inspect_stream(
     ``n`` samples, block by block: memory is bounded by the block length; only figures
     per band, Welch accumulators, the 10 ms F0 track, a 200 Hz broadband envelope and a
     min/max overview of the waveform grow with the duration."""
-    from scipy.signal import butter, hilbert, sosfiltfilt
+    from scipy.signal import hilbert, sosfiltfilt
 
     dur = n / fs
     bands = usable_bands(fs)
@@ -451,9 +455,10 @@ def _inspect_stream(
     ap = np.ones(n_frames)
     energy = np.zeros(n_frames)
 
-    lp = butter(4, std.TIMESCALE_ENVELOPE_MAX_HZ, btype="lowpass", fs=fs, output="sos")
+    # the envelope and periodicity ranges of the amplitude (copies: scipy needs writable SOS)
+    lp = np.array(lowpass_sos(fs, std.TIMESCALE_ENVELOPE_MAX_HZ, ENVELOPE_FILTER_ORDER))
     per_hi = min(std.TIMESCALE_PERIODICITY_MAX_HZ, 0.45 * fs)
-    bp = butter(4, [std.TIMESCALE_ENVELOPE_MAX_HZ, per_hi], btype="bandpass", fs=fs, output="sos")
+    bp = np.array(bandpass_sos(fs, std.TIMESCALE_ENVELOPE_MAX_HZ, per_hi, ENVELOPE_FILTER_ORDER))
     fs_env = envelope_rate(fs, ENVELOPE_RATE_HZ)[1]
     n_env = -(-n // q)
     nper = int(min(n_env, round(MOD_SEGMENT_S * fs_env)))

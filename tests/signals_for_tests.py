@@ -70,6 +70,46 @@ def harmonic_syllables(seconds: float = 3.0, fs: int = 16000, seed: int = 0) -> 
     return 0.2 * x * env / np.max(np.abs(x)) + 1e-4 * rng.standard_normal(t.size)
 
 
+def gated_harmonic_complex(seconds: float = 3.0, fs: int = 16000, seed: int = 0) -> np.ndarray:
+    """A gliding harmonic complex (F0 110 +- 10 Hz, 34 harmonics) gated by sin**2 syllables
+    at 4 per second with random syllable levels (0.2-1.0). Peak 0.1. Used by the mapping
+    and sweep tests, whose figures depend on this recipe."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(int(seconds * fs)) / fs
+    phase = 2 * np.pi * np.cumsum(110 + 10 * np.sin(2 * np.pi * 0.5 * t)) / fs
+    x = sum(np.sin(h * phase) / h for h in range(1, 35))
+    amps = rng.uniform(0.2, 1.0, int(seconds * 4) + 1)
+    env = np.repeat(amps, fs // 4)[: t.size] * np.maximum(0, np.sin(2 * np.pi * 2 * t)) ** 2
+    return 0.1 * x * env / np.max(np.abs(x))
+
+
+def raised_cosine_syllables(fs: int, seconds: float, seed: int = 3) -> np.ndarray:
+    """A harmonic complex (F0 gliding 120-160 Hz, 24 harmonics) under a raised-cosine-squared
+    4 Hz syllable envelope, peak 0.05, plus noise at 3e-4 rms. Used by the inspection tests."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(int(seconds * fs)) / fs
+    ph = 2 * np.pi * np.cumsum(140.0 + 20.0 * np.sin(2 * np.pi * 0.4 * t)) / fs
+    x = sum(np.cos(k * ph) / k for k in range(1, 25)) * (0.5 - 0.5 * np.cos(2 * np.pi * 4.0 * t)) ** 2
+    return 0.05 * x / np.max(np.abs(x)) + 3e-4 * rng.standard_normal(t.size)
+
+
+def intensity_modulated_noise(rate: float, m: float, fs: int, seconds: float, seed: int = 1) -> np.ndarray:
+    """White noise whose intensity is 1 + m cos(2 pi rate t) (modulation index m by
+    the definition of Houtgast & Steeneken 1985). Rms about 0.05."""
+    t = np.arange(int(seconds * fs)) / fs
+    n = np.random.default_rng(seed).standard_normal(t.size)
+    return 0.05 * n * np.sqrt(1.0 + m * np.cos(2 * np.pi * rate * t))
+
+
+def two_rate_modulated_noise(rng: np.random.Generator, n: int, fs: int) -> np.ndarray:
+    """Gaussian noise with 4 Hz and 1.3 Hz intensity modulation: a speech-like envelope
+    without a carrier structure. Draws ``n`` normals from ``rng`` (callers share one
+    generator across a corpus)."""
+    t = np.arange(n) / fs
+    env = (1 + 0.9 * np.sin(2 * np.pi * 4 * t)) * (1 + 0.5 * np.sin(2 * np.pi * 1.3 * t + 1.0))
+    return 0.05 * rng.standard_normal(n) * env
+
+
 # ---------------------------------------------------------------------------
 # Maskers and channels
 # ---------------------------------------------------------------------------
@@ -116,6 +156,30 @@ def noise_decay(T, fs=48000, seconds=None, seed=0, amplitude=0.2, floor_db=None)
     if floor_db is not None:
         x += amplitude * 10 ** (floor_db / 20) * rng.standard_normal(n)
     return x
+
+
+def normalised_decay(rng: np.random.Generator, t60: float, fs: int, seconds: float) -> np.ndarray:
+    """Exponentially decaying noise, energy falling 60 dB in ``t60`` seconds (Schroeder 1965
+    model), scaled to peak 0.3. Draws from ``rng`` (callers share one generator across a corpus)."""
+    t = np.arange(int(seconds * fs)) / fs
+    x = rng.standard_normal(t.size) * 10.0 ** (-3.0 * t / t60)  # amplitude: -60 dB at t60
+    return 0.3 * x / np.max(np.abs(x))
+
+
+# ---------------------------------------------------------------------------
+# Listening-test scores
+# ---------------------------------------------------------------------------
+
+
+def simulated_counts(a, b, x, n, seed, shape="logistic", guess=0.0, lapse=0.0) -> np.ndarray:
+    """Binomial counts of correct answers drawn with scipy.stats at
+    p = guess + (1 - guess - lapse) F(a + b x), F the logistic or the normal CDF."""
+    from scipy import stats
+    from scipy.special import expit, ndtr
+
+    F = expit if shape == "logistic" else ndtr
+    p = guess + (1 - guess - lapse) * F(a + b * np.asarray(x))
+    return stats.binom.rvs(np.asarray(n), p, random_state=np.random.default_rng(seed))
 
 
 # ---------------------------------------------------------------------------

@@ -8,21 +8,11 @@ import numpy as np
 import pytest
 import soundfile as sf
 
-from conftest import noise_decay, run_cli
+from cli_for_tests import run_cli
+from signals_for_tests import harmonic_syllables, noise_decay
 
 FS_IR = 48000
 FS_SP = 16000
-
-
-def speechlike(seconds=3.0, fs=FS_SP, seed=0):
-    """Harmonic complex with a 4 Hz syllable envelope (invented test material)."""
-    rng = np.random.default_rng(seed)
-    t = np.arange(int(seconds * fs)) / fs
-    f0 = 120 + 20 * np.sin(2 * np.pi * 0.5 * t)
-    phase = 2 * np.pi * np.cumsum(f0) / fs
-    x = sum(np.sin(k * phase) / k for k in range(1, 20))
-    env = np.clip(np.sin(2 * np.pi * 4 * t), 0, None) ** 2
-    return 0.2 * x * env / np.max(np.abs(x)) + 1e-4 * rng.standard_normal(t.size)
 
 
 @pytest.fixture(scope="module")
@@ -31,7 +21,7 @@ def files(tmp_path_factory):
     w = lambda name, x, fs, st="PCM_24": (sf.write(d / name, x, fs, subtype=st), d / name)[1]  # noqa: E731
     f = {}
     f["ir"] = w("ir.wav", noise_decay(0.8, seconds=2.0, seed=1, floor_db=-70), FS_IR)
-    f["clean"] = w("clean.wav", speechlike(), FS_SP)
+    f["clean"] = w("clean.wav", harmonic_syllables(), FS_SP)
     f["other"] = w("other.wav", 0.1 * np.random.default_rng(5).standard_normal(3 * FS_SP), FS_SP)
     f["empty"] = d / "empty.wav"
     f["empty"].write_bytes(b"")
@@ -41,13 +31,13 @@ def files(tmp_path_factory):
     f["truncated"].write_bytes(f["ir"].read_bytes()[:40])
     f["silence"] = w("silence.wav", np.zeros(3 * FS_SP), FS_SP)
     f["dc"] = w("dc.wav", np.full(2 * FS_IR, 0.25), FS_IR)
-    nan = speechlike()
+    nan = harmonic_syllables()
     nan[100] = np.nan
     f["nan"] = w("nan.wav", nan, FS_SP, "FLOAT")
-    f["clipped"] = w("clipped.wav", np.clip(6 * speechlike(fs=48000), -1, 1), 48000)
+    f["clipped"] = w("clipped.wav", np.clip(6 * harmonic_syllables(fs=48000), -1, 1), 48000)
     f["short_ir"] = w("short_ir.wav", noise_decay(0.1, seconds=0.3), FS_IR)
-    f["short_pair"] = w("short.wav", speechlike(seconds=0.2), FS_SP)
-    f["low_rate"] = w("low_rate.wav", speechlike(fs=8000), 8000)
+    f["short_pair"] = w("short.wav", harmonic_syllables(seconds=0.2), FS_SP)
+    f["low_rate"] = w("low_rate.wav", harmonic_syllables(fs=8000), 8000)
     f["stereo"] = w("stereo.wav", np.stack([noise_decay(0.8, seconds=2.0, seed=s) for s in (1, 2)], axis=1), FS_IR)
     f["manifest_bad"] = d / "manifest.csv"
     f["manifest_bad"].write_text("speaker,condition\nA,1\n")

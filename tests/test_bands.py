@@ -11,6 +11,8 @@ from scipy.signal import butter, sosfilt, sosfiltfilt, sosfreqz
 
 from envpredict.bands import (
     EnvelopeStream,
+    bandpass_sos,
+    check_butterworth,
     check_filterbank,
     envelope_delays,
     lowpass_sos,
@@ -218,3 +220,54 @@ def test_factory_runs_the_definition_check(monkeypatch):
     monkeypatch.setattr(bands, "check_filterbank", lambda bank: seen.append(bank.fs))
     bands.octave_filterbank(47999, passes=3)  # a design not in the cache yet
     assert seen == [47999]
+
+
+# --- envelope filters: low-pass and band-pass ------------------------------------------
+
+
+def butterworth_power(f, fs, order, low=None, high=None):
+    """|H|^2 of a digital Butterworth filter from the bilinear transform with pre-warped
+    cut-offs, written out (Oppenheim & Schafer, Discrete-Time Signal Processing, 7.1):
+    W = tan(pi f / fs); low-pass 1 / (1 + (W / Wc)^2n); band-pass, by the low-pass to
+    band-pass substitution W -> (W^2 - Wl Wh) / (W (Wh - Wl)), 1 / (1 + (that)^2n)."""
+    w = np.tan(np.pi * np.asarray(f, dtype=float) / fs)
+    if low is None:
+        x = w / np.tan(np.pi * high / fs)
+    else:
+        wl, wh = np.tan(np.pi * low / fs), np.tan(np.pi * high / fs)
+        x = (w ** 2 - wl * wh) / (w * (wh - wl))
+    return 1.0 / (1.0 + x ** (2 * order))
+
+
+@pytest.mark.parametrize("fs", [8000, 16000, 48000])
+def test_envelope_filters_have_the_butterworth_magnitude(fs):
+    # the cached low-pass (50 Hz) and band-pass (50 Hz .. min(500 Hz, 0.45 fs)), order 4,
+    # against the written-out Butterworth magnitude over the whole band
+    f = np.geomspace(5.0, 0.49 * fs, 400)
+    _, h = sosfreqz(lowpass_sos(fs, 50.0, 4), worN=f, fs=fs)
+    np.testing.assert_allclose(np.abs(h) ** 2, butterworth_power(f, fs, 4, high=50.0), atol=1e-9)
+    hi = min(500.0, 0.45 * fs)
+    _, h = sosfreqz(bandpass_sos(fs, 50.0, hi, 4), worN=f, fs=fs)
+    np.testing.assert_allclose(np.abs(h) ** 2, butterworth_power(f, fs, 4, low=50.0, high=hi), atol=1e-9)
+
+
+def test_envelope_filters_are_cached_read_only_and_checked():
+    sos = bandpass_sos(16000, 50.0, 500.0)
+    assert sos is bandpass_sos(16000, 50.0, 500.0) and not sos.flags.writeable
+    with pytest.raises(ValueError):
+        sos[0, 0] = 0.0
+    # the definition check: a band-pass whose upper cut-off is 5 % off misses -3.01 dB there
+    wrong = butter(4, [50.0, 525.0], btype="bandpass", fs=16000, output="sos")
+    with pytest.raises(ComputationError, match="band-pass filter at 16000 Hz"):
+        check_butterworth(wrong, 16000, (50.0, 500.0), "band-pass")
+    check_butterworth(sos, 16000, (50.0, 500.0), "band-pass")  # the real one passes
+
+
+def test_envelope_filter_designs_run_the_definition_check(monkeypatch):
+    import envpredict.bands as bands
+
+    seen = []
+    monkeypatch.setattr(bands, "check_butterworth", lambda sos, fs, edges, what: seen.append((what, edges)))
+    bands.lowpass_sos(47999, 51.0)  # designs not in the cache yet
+    bands.bandpass_sos(47999, 51.0, 499.0)
+    assert seen == [("low-pass", (51.0,)), ("band-pass", (51.0, 499.0))]

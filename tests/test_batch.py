@@ -18,21 +18,16 @@ import soundfile as sf
 
 from envpredict import batch
 from envpredict.batch import read_manifest, read_results, run_batch, score_row
-from envpredict.cli import main
 from envpredict.exceptions import InputError
+
+from cli_for_tests import cli_exit_code
+from signals_for_tests import normalised_decay, two_rate_modulated_noise
 
 IR_FS = 24000  # lowest common rate with room for the 8 kHz octave band (fast tests)
 IR_SECONDS = 1.5
 PAIR_FS = 16000
 PAIR_SECONDS = 3.5  # the speech-based STI needs at least 3 s of common part
 N_IR_ROWS = 30
-
-
-def _exp_ir(rng: np.random.Generator, t60: float, fs: int = IR_FS, seconds: float = IR_SECONDS) -> np.ndarray:
-    """Exponentially decaying noise: energy falls 60 dB in ``t60`` seconds (Schroeder 1965 model)."""
-    t = np.arange(int(seconds * fs)) / fs
-    x = rng.standard_normal(t.size) * 10.0 ** (-3.0 * t / t60)  # amplitude: -60 dB at t60
-    return 0.3 * x / np.max(np.abs(x))
 
 
 def _write_csv(path: Path, header: list[str], rows: list[list]) -> Path:
@@ -55,29 +50,13 @@ def ir_corpus(tmp_path_factory) -> dict:
         cond = list(conds)[i % 3]
         t60 = conds[cond] * (1.0 + 0.02 * (i // 3))
         name = f"irs/pos{i // 3:02d}_{i % 3}.wav"
-        sf.write(d / name, _exp_ir(rng, t60), IR_FS, subtype="FLOAT")
+        sf.write(d / name, normalised_decay(rng, t60, IR_FS, IR_SECONDS), IR_FS, subtype="FLOAT")
         rows.append([name, cond, f"P{i // 3:02d}", "12,3"])  # a quoted cell with a comma is carried through
         t60s.append(t60)
     manifest = _write_csv(d / "manifest.csv", ["ir", "condition", "position", "note"], rows)
     ref = d / "reference.csv"
     run_batch(manifest, ref, workers=1)
     return {"dir": d, "manifest": manifest, "reference": ref, "t60": t60s}
-
-
-def _cli(args: list[str]) -> int:
-    """Run the CLI in this process; return its exit code."""
-    try:
-        main(args)
-    except SystemExit as e:
-        return int(e.code or 0)
-    return 0
-
-
-def _speechlike(rng: np.random.Generator, n: int, fs: int) -> np.ndarray:
-    """Noise with 4 Hz and 1.3 Hz intensity modulation: speech-like envelope (invented test signal)."""
-    t = np.arange(n) / fs
-    env = (1 + 0.9 * np.sin(2 * np.pi * 4 * t)) * (1 + 0.5 * np.sin(2 * np.pi * 1.3 * t + 1.0))
-    return 0.05 * rng.standard_normal(n) * env
 
 
 @pytest.fixture(scope="module")
@@ -87,11 +66,11 @@ def mixed_corpus(tmp_path_factory) -> dict:
     rng = np.random.default_rng(11)
     rows = []
     for i in range(6):
-        sf.write(d / f"ir{i}.wav", _exp_ir(rng, 0.4 + 0.15 * i), IR_FS, subtype="FLOAT")
+        sf.write(d / f"ir{i}.wav", normalised_decay(rng, 0.4 + 0.15 * i, IR_FS, IR_SECONDS), IR_FS, subtype="FLOAT")
         rows.append([f"ir{i}.wav", "", "", f"room{i % 2}"])
     n = int(PAIR_SECONDS * PAIR_FS)
     for i in range(6):
-        clean = _speechlike(rng, n, PAIR_FS)
+        clean = two_rate_modulated_noise(rng, n, PAIR_FS)
         lag = 16 * i  # 0 ... 5 ms
         deg = np.concatenate([np.zeros(lag), clean[: n - lag]]) + 0.03 * rng.standard_normal(n)
         sf.write(d / f"c{i}.wav", clean, PAIR_FS, subtype="FLOAT")
@@ -161,7 +140,7 @@ def test_pair_rows_score_stoi_estoi_ssti(tmp_path):
     rows = []
     sigs = {}
     for item in range(2):
-        clean = _speechlike(rng, n, PAIR_FS)
+        clean = two_rate_modulated_noise(rng, n, PAIR_FS)
         sf.write(tmp_path / f"c{item}.wav", clean, PAIR_FS, subtype="FLOAT")
         for snr in (0, 10):
             deg = clean + 0.05 * 10 ** (-snr / 20) * rng.standard_normal(n)
@@ -270,7 +249,7 @@ def test_sigkill_then_resume_equals_uninterrupted_run(ir_corpus, tmp_path, worke
     # the killed file is a readable CSV of finished rows (completion order)
     _, rows = read_results(out)
     assert all(not r["error"] for r in rows) and len({r["row"] for r in rows}) == len(rows)
-    code = _cli(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume", "--workers", str(workers),
+    code = cli_exit_code(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume", "--workers", str(workers),
                  "--json"])
     assert code == 0
     # same rows in the same order (zero lost, zero duplicated), numbers equal to 1e-9 (the
@@ -369,15 +348,15 @@ def test_a_second_writer_is_refused(ir_corpus, tmp_path):
 
 def test_bad_rows_are_recorded_and_the_batch_goes_on(tmp_path):
     rng = np.random.default_rng(1)
-    sf.write(tmp_path / "good.wav", _exp_ir(rng, 0.6), IR_FS, subtype="FLOAT")
-    sf.write(tmp_path / "short.wav", _exp_ir(rng, 0.1, seconds=0.3), IR_FS, subtype="FLOAT")
+    sf.write(tmp_path / "good.wav", normalised_decay(rng, 0.6, IR_FS, IR_SECONDS), IR_FS, subtype="FLOAT")
+    sf.write(tmp_path / "short.wav", normalised_decay(rng, 0.1, IR_FS, 0.3), IR_FS, subtype="FLOAT")
     sf.write(tmp_path / "silent.wav", np.zeros(IR_FS), IR_FS)
     (tmp_path / "junk.wav").write_bytes(b"this is not audio" * 10)
     rows = [["good.wav", "a"], ["missing.wav", "b"], ["short.wav", "c"], ["silent.wav", "d"], ["junk.wav", "e"],
             ["good.wav", "f"]]
     m = _write_csv(tmp_path / "m.csv", ["ir", "label"], rows)
     out = tmp_path / "r.csv"
-    assert _cli(["batch", str(m), "--out", str(out), "--workers", "2", "--json"]) == 1  # rows failed
+    assert cli_exit_code(["batch", str(m), "--out", str(out), "--workers", "2", "--json"]) == 1  # rows failed
     _, res = read_results(out)
     errors = [r["error"] for r in res]
     assert errors[0] == "" and errors[5] == "" and res[0]["sti"] == res[5]["sti"] != ""
@@ -387,7 +366,7 @@ def test_bad_rows_are_recorded_and_the_batch_goes_on(tmp_path):
     assert "not a readable audio file" in errors[4]
     assert all(r["sti"] == "" for r in res[1:5])
     # fix one input, then retry only the failed rows
-    sf.write(tmp_path / "missing.wav", _exp_ir(rng, 0.6), IR_FS, subtype="FLOAT")
+    sf.write(tmp_path / "missing.wav", normalised_decay(rng, 0.6, IR_FS, IR_SECONDS), IR_FS, subtype="FLOAT")
     s = run_batch(m, out, resume=True, retry_failed=True, workers=1)
     assert (s.skipped, s.scored, s.failed) == (2, 4, 3)
     _, res2 = read_results(out)
@@ -397,7 +376,7 @@ def test_bad_rows_are_recorded_and_the_batch_goes_on(tmp_path):
 def test_notes_say_why_a_figure_is_missing(tmp_path):
     rng = np.random.default_rng(4)
     # a 1.2 s file holding a 2.5 s decay: cut off, too little decay range for T30
-    sf.write(tmp_path / "cut.wav", _exp_ir(rng, 2.5, seconds=1.2), IR_FS, subtype="FLOAT")
+    sf.write(tmp_path / "cut.wav", normalised_decay(rng, 2.5, IR_FS, 1.2), IR_FS, subtype="FLOAT")
     m = _write_csv(tmp_path / "m.csv", ["ir"], [["cut.wav"]])
     s = run_batch(m, tmp_path / "r.csv", workers=1)
     _, res = read_results(tmp_path / "r.csv")
@@ -431,7 +410,7 @@ def test_progress_counts_the_rows_of_this_run(ir_corpus, tmp_path):
 
 def test_cli_batch_json_summary(ir_corpus, tmp_path, capsys):
     out = tmp_path / "r.csv"
-    assert _cli(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--workers", "1", "--json"]) == 0
+    assert cli_exit_code(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--workers", "1", "--json"]) == 0
     d = json.loads(capsys.readouterr().out)
     for key in ("backend", "workers", "total", "skipped", "scored", "failed", "ok",
                 "seconds", "rows_per_s", "failures", "cautions", "notes"):
@@ -444,7 +423,7 @@ def test_ir_option_columns_feed_the_scoring(tmp_path):
     from envpredict.indirect import sti_from_ir
 
     rng = np.random.default_rng(5)
-    sf.write(tmp_path / "a.wav", _exp_ir(rng, 0.7), IR_FS, subtype="FLOAT")
+    sf.write(tmp_path / "a.wav", normalised_decay(rng, 0.7, IR_FS, IR_SECONDS), IR_FS, subtype="FLOAT")
     x, _ = sf.read(tmp_path / "a.wav", dtype="float64")  # the samples as stored (float32)
     noise = "50;47;44;41;38;35;32"
     rows = [["a.wav", "", "", ""], ["a.wav", noise, "70", "female"], ["a.wav", "", "", ""]]
@@ -521,7 +500,7 @@ def test_manifest_paths_are_relative_to_the_manifest(tmp_path):
 def test_bad_batch_options(ir_corpus, tmp_path, capsys):
     for args, pattern in ((["--workers", "0"], "below 1"), (["--retry-failed"], "only with --resume"),
                           (["--resume", "--overwrite"], "contradict")):
-        assert _cli(["batch", str(ir_corpus["manifest"]), "--out", str(tmp_path / "r.csv")] + args) == 2
+        assert cli_exit_code(["batch", str(ir_corpus["manifest"]), "--out", str(tmp_path / "r.csv")] + args) == 2
         err = capsys.readouterr().err
         assert err.startswith("error: ") and pattern in err and "Traceback" not in err
     assert not (tmp_path / "r.csv").exists()  # refused before any output
@@ -530,7 +509,8 @@ def test_bad_batch_options(ir_corpus, tmp_path, capsys):
 
 def test_compare_on_a_batch_result(ir_corpus, capsys):
     # end to end: score, then ask whether the treatments beat the untreated room
-    code = _cli(["compare", str(ir_corpus["reference"]), "--by", "condition", "--baseline", "untreated", "--json"])
+    code = cli_exit_code(["compare", str(ir_corpus["reference"]), "--by", "condition", "--baseline", "untreated",
+                          "--json"])
     assert code == 0
     d = json.loads(capsys.readouterr().out)
     assert d["index"] == "sti" and d["pair_on"] == ["position", "note"]  # 'ir' differs per condition
@@ -548,7 +528,7 @@ def test_plain_progress_lines_when_not_a_terminal(ir_corpus, tmp_path, capsys, m
     monkeypatch.setattr(cmd_batch, "PROGRESS_EVERY_S", 0.0)
     out = tmp_path / "r.csv"
     out.write_text("".join(ir_corpus["reference"].read_text().splitlines(keepends=True)[:21]))  # 20 done
-    assert _cli(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume", "--workers", "1"]) == 0
+    assert cli_exit_code(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume", "--workers", "1"]) == 0
     err = capsys.readouterr().err
     assert "scoring (20 of 30 rows already done): 10/10 done" in err
     assert "/s" in err
@@ -562,5 +542,5 @@ def test_interrupt_says_how_to_finish(ir_corpus, tmp_path, capsys, monkeypatch):
         raise KeyboardInterrupt
 
     monkeypatch.setattr(batch, "run_batch", interrupted)
-    assert _cli(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume"]) == 130
+    assert cli_exit_code(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume"]) == 130
     assert "finish with: envpredict batch" in capsys.readouterr().err

@@ -5,7 +5,8 @@ import json
 import numpy as np
 import pytest
 
-from conftest import noise_decay, run_cli
+from cli_for_tests import run_cli
+from signals_for_tests import noise_decay
 
 FS = 48000
 

@@ -6,7 +6,7 @@ import pytest
 from envpredict.bands import octave_bands
 from envpredict.decay import decay_figures, onset_index, reverberation_time
 
-from conftest import noise_decay
+from signals_for_tests import noise_decay
 
 FS = 48000
 

@@ -15,28 +15,16 @@ Steeneken: reverberation flattens the envelope).
 from functools import lru_cache
 
 import numpy as np
-from hypothesis import HealthCheck, event, given, settings
+from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.signal import fftconvolve
+from errors_for_tests import result_or_refusal
 from signals_for_tests import harmonic_syllables, noise_decay
 
 from envpredict.direct import stipa_from_recording
-from envpredict.exceptions import EnvpredictError
 from envpredict.pair import pair_indices
 
 SETTINGS = dict(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-
-
-def _run(fn, *args, **kwargs):
-    """The result, or None after checking that the error is a documented one-line error."""
-    try:
-        out = fn(*args, **kwargs)
-    except EnvpredictError as e:
-        assert e.what and "\n" not in e.one_line()
-        event(f"refused: {e.what[:50]}")
-        return None
-    event("reached the computation")
-    return out
 
 
 # --- the pair: valid domain ------------------------------------------------------
@@ -58,7 +46,7 @@ def test_pair_indices_stay_in_range(seconds, fs, level, dc, noise, seed):
     rng = np.random.default_rng(seed)
     x = level * (harmonic_syllables(seconds, fs, seed) + dc)
     y = x + level * noise * 0.2 * rng.standard_normal(x.size)
-    r = _run(pair_indices, x, y, fs)
+    r = result_or_refusal(pair_indices, x, y, fs)
     if r is not None:
         assert -1.0 <= r.stoi <= 1.0 and -1.0 <= r.estoi <= 1.0
         assert r.ssti is None or 0.0 <= r.ssti <= 1.0
@@ -82,7 +70,7 @@ def test_degenerate_pairs_are_refused(seconds, fs, kind, seed):
         x = np.zeros(n)
     elif kind == "degraded silent":
         y = np.zeros(n)
-    assert _run(pair_indices, x, y, fs) is None
+    assert result_or_refusal(pair_indices, x, y, fs) is None
 
 
 @settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -131,7 +119,7 @@ def test_stipa_stays_in_range(seconds, fs, level, dc, T, snr, seed):
     s = _stipa(fs)[: int(seconds * fs)]
     y = fftconvolve(s, noise_decay(T, fs=fs, seconds=min(1.5 * T, 2.0), seed=seed))[: s.size]
     y = y / np.max(np.abs(y)) + 10 ** (-snr / 20) * np.std(y / np.max(np.abs(y))) * rng.standard_normal(s.size)
-    r = _run(stipa_from_recording, 0.5 * level * (y / np.max(np.abs(y)) + dc), fs)
+    r = result_or_refusal(stipa_from_recording, 0.5 * level * (y / np.max(np.abs(y)) + dc), fs)
     if r is not None:
         assert 0.0 <= r.sti.sti <= 1.0
 
@@ -152,6 +140,6 @@ def test_stipa_on_other_material_gives_result_or_documented_error(seconds, fs, l
     t = np.arange(n) / fs
     x = {"noise": rng.standard_normal(n), "tone": np.sin(2 * np.pi * 1000 * t), "zeros": np.zeros(n),
          "speech": harmonic_syllables(max(seconds, 0.01), fs, seed)[:n]}[kind]
-    r = _run(stipa_from_recording, level * (x + dc), fs)
+    r = result_or_refusal(stipa_from_recording, level * (x + dc), fs)
     if r is not None:
         assert 0.0 <= r.sti.sti <= 1.0

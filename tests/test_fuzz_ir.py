@@ -10,26 +10,14 @@ degenerate inputs have their own test, which checks that they are refused.
 """
 
 import numpy as np
-from hypothesis import HealthCheck, event, given, settings
+from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from errors_for_tests import result_or_refusal
 from signals_for_tests import noise_decay
 
-from envpredict.exceptions import EnvpredictError
 from envpredict.indirect import sti_from_ir
 
 SETTINGS = dict(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-
-
-def _run(x, fs, **kwargs):
-    """The result, or None after checking that the error is a documented one-line error."""
-    try:
-        out = sti_from_ir(x, fs, **kwargs)
-    except EnvpredictError as e:
-        assert e.what and "\n" not in e.one_line()
-        event(f"refused: {e.what[:50]}")
-        return None
-    event("reached the computation")
-    return out
 
 
 # Measured (200 examples, --hypothesis-show-statistics): 100 % reach the computation.
@@ -52,7 +40,7 @@ def _run(x, fs, **kwargs):
 def test_ir_sti_stays_in_range(seconds, fs, level, dc, T, floor_db, onset_s, seed):
     x = noise_decay(T, fs=fs, seconds=seconds, seed=seed, floor_db=floor_db)
     x = level * (np.concatenate([np.zeros(int(onset_s * fs)), x]) / np.max(np.abs(x)) + dc)
-    r = _run(x, fs)
+    r = result_or_refusal(sti_from_ir, x, fs)
     if r is not None:
         assert 0.0 <= r.sti.sti <= 1.0
         assert np.all((r.sti.mti >= 0) & (r.sti.mti <= 1))
@@ -73,7 +61,7 @@ def test_degenerate_irs_are_refused(kind, fs, seed):
     x = {"empty": np.zeros(0), "zeros": np.zeros(fs), "dc": np.full(fs, 0.25),
          "short": noise_decay(0.3, fs=fs, seconds=0.5, seed=seed),
          "low rate": noise_decay(0.5, fs=fs, seconds=1.5, seed=seed)}[kind]
-    assert _run(x, fs) is None
+    assert result_or_refusal(sti_from_ir, x, fs) is None
 
 
 @settings(**SETTINGS)

@@ -7,7 +7,7 @@ from envpredict import standards as std
 from envpredict.exceptions import InputError
 from envpredict.indirect import sti_from_ir
 
-from conftest import noise_decay
+from signals_for_tests import noise_decay
 
 F = np.array(std.MODULATION_FREQUENCIES_HZ)
 ALPHA = np.array(std.ALPHA_MALE)

@@ -15,7 +15,7 @@ from envpredict.modulation import (
     project,
 )
 
-from conftest import noise_decay
+from signals_for_tests import noise_decay
 
 # IEC 60268-16:2011, 5.1: the 14 modulation frequencies, one-third-octave steps 0.63-12.5 Hz
 F = np.array([0.63, 0.8, 1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0, 10.0, 12.5])

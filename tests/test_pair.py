@@ -14,9 +14,9 @@ import numpy as np
 import pytest
 import soundfile as sf
 from scipy.signal import butter, resample_poly, sosfilt
+from cli_for_tests import run_cli
 from signals_for_tests import PYSTOI_TOL_RESAMPLED as TOL, at_snr, fluctuating_noise, pystoi_value as ref, speech_like, speech_shaped_noise  # noqa: E501
 
-from envpredict.cli import main
 from envpredict.exceptions import ComputationError, InputError
 from envpredict.pair import (
     MIN_MATCH_CORRELATION,
@@ -268,14 +268,6 @@ def test_files_equal_arrays(wav_pair):
     a = pair_from_files(c, d)
     b = pair_indices(x, y, 16000)
     assert a.stoi == pytest.approx(b.stoi, abs=1e-7) and a.delay_ms == pytest.approx(30.0)
-
-
-def run_cli(args, capsys):
-    with pytest.raises(SystemExit) as e:
-        main(args)
-        raise SystemExit(0)
-    out = capsys.readouterr()
-    return e.value.code, out.out, out.err
 
 
 def test_cli_json_and_out(wav_pair, tmp_path, capsys):

@@ -9,7 +9,7 @@ import pytest
 from envpredict.reference_cases import recipes
 from envpredict.refcases import METHODS, load_cases, run_case
 
-from conftest import run_cli
+from cli_for_tests import run_cli
 
 CASES = load_cases()
 

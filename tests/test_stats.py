@@ -15,9 +15,10 @@ import numpy as np
 import pytest
 from scipy import stats as sps
 
-from envpredict.cli import main
 from envpredict.exceptions import InputError
 from envpredict.stats import BOOTSTRAP_RESAMPLES, bootstrap_mean_ci, compare_conditions, holm, wilcoxon_p
+
+from cli_for_tests import cli_exit_code
 
 
 def _scipy_ci(d, method, n_resamples, seed):
@@ -239,19 +240,11 @@ def _write(rows, path):
     return path
 
 
-def _cli(args):
-    try:
-        main(args)
-    except SystemExit as e:
-        return int(e.code or 0)
-    return 0
-
-
 def test_cli_compare_json(tmp_path, capsys):
     rows = _table()
     p = _write(rows, tmp_path / "results.csv")
     out = tmp_path / "cmp.json"
-    assert _cli(["compare", str(p), "--by", "condition", "--baseline", "unprocessed", "--json",
+    assert cli_exit_code(["compare", str(p), "--by", "condition", "--baseline", "unprocessed", "--json",
                  "--out", str(out)]) == 0
     d = json.loads(capsys.readouterr().out)
     assert d == json.loads(out.read_text())
@@ -267,13 +260,14 @@ def test_cli_compare_json(tmp_path, capsys):
 
 def test_cli_compare_table_and_errors(tmp_path, capsys):
     p = _write(_table(), tmp_path / "results.csv")
-    assert _cli(["compare", str(p), "--by", "condition", "--baseline", "unprocessed", "--pair-on", "clean"]) == 0
+    assert cli_exit_code(["compare", str(p), "--by", "condition", "--baseline", "unprocessed",
+                          "--pair-on", "clean"]) == 0
     text = capsys.readouterr().out
     assert "denoiser-a" in text and "95 % CI" in text and "higher" in text
-    assert _cli(["compare", str(p), "--by", "condition", "--baseline", "nope"]) == 2
+    assert cli_exit_code(["compare", str(p), "--by", "condition", "--baseline", "nope"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("error: baseline 'nope'") and "Traceback" not in err
-    assert _cli(["compare", str(tmp_path / "missing.csv"), "--by", "c", "--baseline", "a"]) == 2
+    assert cli_exit_code(["compare", str(tmp_path / "missing.csv"), "--by", "c", "--baseline", "a"]) == 2
 
 
 def test_docstring_examples():

@@ -56,14 +56,21 @@ TABLE_F1_LOWER_EDGES = [("A+", 0.76), ("A", 0.72), ("B", 0.68), ("C", 0.64), ("D
                         ("F", 0.52), ("G", 0.48), ("H", 0.44), ("I", 0.40), ("J", 0.36)]
 
 
+def assert_edge_pinned(classify, edges, k, lowest):
+    """Edge ``k`` of a table of (label, lower edge), highest first, pinned from both sides:
+    the edge and 0.0009 above it give its label, 0.0009 below gives the next lower label
+    (``lowest`` below the last edge). Moving an edge by 0.001 fails."""
+    label, edge = edges[k]
+    below = edges[k + 1][0] if k + 1 < len(edges) else lowest
+    assert classify(edge) == label
+    assert classify(edge + 0.0009) == label
+    assert classify(edge - 0.0009) == below
+
+
 @pytest.mark.parametrize("k", range(len(TABLE_F1_LOWER_EDGES)))
 def test_every_qualification_edge(k):
     # each edge of Table F.1 pinned from both sides: moving any edge by 0.001 fails here
-    label, edge = TABLE_F1_LOWER_EDGES[k]
-    below = TABLE_F1_LOWER_EDGES[k + 1][0] if k + 1 < len(TABLE_F1_LOWER_EDGES) else "U"
-    assert qualification_band(edge) == label
-    assert qualification_band(edge + 0.0009) == label
-    assert qualification_band(edge - 0.0009) == below
+    assert_edge_pinned(qualification_band, TABLE_F1_LOWER_EDGES, k, "U")
 
 
 # The five-step subjective scale for the STI: bad < 0.30 <= poor < 0.45 <= fair < 0.60 <= good
@@ -75,11 +82,7 @@ SUBJECTIVE_EDGES = [("excellent", 0.75), ("good", 0.60), ("fair", 0.45), ("poor"
 
 @pytest.mark.parametrize("k", range(len(SUBJECTIVE_EDGES)))
 def test_subjective_scale_edges(k):
-    label, edge = SUBJECTIVE_EDGES[k]
-    below = SUBJECTIVE_EDGES[k + 1][0] if k + 1 < len(SUBJECTIVE_EDGES) else "bad"
-    assert subjective_rating(edge) == label
-    assert subjective_rating(edge + 0.0009) == label
-    assert subjective_rating(edge - 0.0009) == below
+    assert_edge_pinned(subjective_rating, SUBJECTIVE_EDGES, k, "bad")
 
 
 @pytest.mark.parametrize("sti,label", [(0.0, "bad"), (0.15, "bad"), (0.375, "poor"), (0.525, "fair"),

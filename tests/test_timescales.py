@@ -19,6 +19,9 @@ from envpredict import standards as std
 from envpredict.exceptions import InputError
 from envpredict.timescales import inspect_signal, yin_f0
 
+from cli_for_tests import run_cli
+from signals_for_tests import intensity_modulated_noise, raised_cosine_syllables
+
 
 def harmonic_complex(f0: float, fs: int, seconds: float, first: int = 1, rng=None) -> np.ndarray:
     t = np.arange(int(seconds * fs)) / fs
@@ -86,13 +89,6 @@ def test_white_noise_is_unvoiced():
     assert r.voiced_fraction < 0.02
     assert r.to_dict()["f0_median_hz"] is None
     assert any("No voiced frames" in c for c in r.cautions)
-
-
-def intensity_modulated_noise(rate: float, m: float, fs: int, seconds: float, seed: int = 1) -> np.ndarray:
-    """White noise whose intensity is 1 + m cos(2 pi rate t)."""
-    t = np.arange(int(seconds * fs)) / fs
-    n = np.random.default_rng(seed).standard_normal(t.size)
-    return 0.05 * n * np.sqrt(1.0 + m * np.cos(2 * np.pi * rate * t))
 
 
 @pytest.mark.parametrize("rate", [2.5, 4.0, 7.0])
@@ -188,18 +184,6 @@ def test_bad_f0_range_refused():
 # CLI
 # ---------------------------------------------------------------------------
 
-def run_cli(args, capsys):
-    from envpredict.cli import main
-
-    try:
-        main(args)
-        code = 0
-    except SystemExit as e:
-        code = int(e.code or 0)
-    out = capsys.readouterr()
-    return code, out.out, out.err
-
-
 @pytest.fixture
 def voiced_file(tmp_path):
     fs = 16000
@@ -260,15 +244,6 @@ def test_cli_report_refuses_a_folder_with_other_files(voiced_file, tmp_path, cap
 # Streaming: the file path, block lengths, accumulators
 # ---------------------------------------------------------------------------
 
-def speech_like(fs: int, seconds: float, seed: int = 3) -> np.ndarray:
-    """Harmonic complex with a gliding F0 (120-160 Hz), a 4 Hz syllable envelope and noise."""
-    rng = np.random.default_rng(seed)
-    t = np.arange(int(seconds * fs)) / fs
-    ph = 2 * np.pi * np.cumsum(140.0 + 20.0 * np.sin(2 * np.pi * 0.4 * t)) / fs
-    x = sum(np.cos(k * ph) / k for k in range(1, 25)) * (0.5 - 0.5 * np.cos(2 * np.pi * 4.0 * t)) ** 2
-    return 0.05 * x / np.max(np.abs(x)) + 3e-4 * rng.standard_normal(t.size)
-
-
 def _assert_same(a, b, *, depth_atol=0.0, rtol=0.0, carrier_rtol=0.0):
     # the figures of two results, equal within the given tolerances
     assert a.bands_hz == b.bands_hz and a.fs == b.fs and a.duration_s == b.duration_s
@@ -287,7 +262,7 @@ def _assert_same(a, b, *, depth_atol=0.0, rtol=0.0, carrier_rtol=0.0):
 def long_file(tmp_path_factory):
     fs = 48000
     p = tmp_path_factory.mktemp("stream") / "speech.wav"
-    sf.write(p, speech_like(fs, 9.0), fs, subtype="PCM_24")
+    sf.write(p, raised_cosine_syllables(fs, 9.0), fs, subtype="PCM_24")
     return p, fs
 
 

@@ -1,0 +1,334 @@
+"""Tests of envpredict.sweep: SNR sweeps, SRT and its interval, parse_snr_range, the
+``sweep`` command and sweep.snr_sweep_files.
+
+External references: scipy.stats (Student t and normal quantiles, binomial simulation),
+statsmodels (binomial GLM covariance for the delta-method interval), and the package's
+own STOI only as the index inside the sweep (itself checked against pystoi elsewhere).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+import soundfile as sf
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from scipy import stats
+from scipy.special import expit, logit
+
+from envpredict.exceptions import ComputationError, InputError
+from envpredict.mapping import ScoreMapping, fit_mapping
+from envpredict.sweep import parse_snr_range, snr_sweep
+
+from cli_for_tests import run_cli
+from signals_for_tests import gated_harmonic_complex, simulated_counts as simulate
+
+sm = pytest.importorskip("statsmodels.api")
+
+FS = 16000
+
+
+# ---------------------------------------------------------------------------
+# helpers
+# ---------------------------------------------------------------------------
+
+def power_index(clean, degraded, fs):
+    """A simple deterministic index for the sweep machinery: SNR of (degraded - clean)
+    mapped to 0..1, rising with the SNR (not a published index; test scaffolding)."""
+    e = degraded - clean
+    snr = 10 * np.log10(np.mean(clean ** 2) / np.mean(e ** 2))
+    return float(expit(snr / 8.0))
+
+
+# ---------------------------------------------------------------------------
+# SNR sweep
+# ---------------------------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def signals():
+    clean = gated_harmonic_complex(3.0, FS, seed=0)
+    noise = np.random.default_rng(7).standard_normal(int(10 * FS)) * 0.05
+    return clean, noise
+
+
+def test_parse_snr_range():
+    assert parse_snr_range("-15:15:5").tolist() == [-15, -10, -5, 0, 5, 10, 15]
+    assert parse_snr_range("0:1:0.25").tolist() == [0, 0.25, 0.5, 0.75, 1.0]
+    for bad in ("1:2", "5:0:1", "0:10:0", "a:b:c", "0:1:2"):
+        with pytest.raises(InputError):
+            parse_snr_range(bad)
+
+
+def test_sweep_mixes_at_the_stated_snr(signals):
+    # speech-level convention: 10 log10(sum clean^2 / sum noise part^2) equals the SNR
+    # asked for, and the noise part is a contiguous piece of the noise recording
+    clean, noise = signals
+    seen = []
+
+    def probe(c, d, fs):
+        seen.append(d - c)
+        return power_index(c, d, fs)
+
+    res = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], index="probe", n_segments=3,
+                    index_functions={"probe": probe})
+    assert len(seen) == 9
+    snrs = [10 * np.log10(np.sum(clean ** 2) / np.sum(e ** 2)) for e in seen]
+    assert snrs == pytest.approx([-6, 0, 6] * 3, abs=1e-9)
+    offs = [round(o * FS) for o in res.segment_offsets_s]
+    assert offs == [0, (noise.size - clean.size) // 2, noise.size - clean.size]
+    e = seen[3]  # second segment, -6 dB
+    seg = noise[offs[1]: offs[1] + clean.size]
+    assert np.corrcoef(e, seg)[0, 1] == pytest.approx(1.0, abs=1e-12)
+    # mixture convention: the mixture is rescaled to the speech level
+    seen.clear()
+    snr_sweep(clean, noise, FS, snr_db=[-6, 0], index="probe", n_segments=2, level="mixture",
+              index_functions={"probe": lambda c, d, fs: seen.append(d) or 0.5})
+    for d in seen:
+        assert np.mean(d ** 2) == pytest.approx(np.mean(clean ** 2), rel=1e-12)
+
+
+def test_sweep_targets_and_interval_from_segments(signals):
+    clean, noise = signals
+    m = ScoreMapping(index="probe", shape="logistic", a=-8.0, b=16.0)
+    res = snr_sweep(clean, noise, FS, snr_db=np.arange(-12, 13, 3.0), index="probe", mapping=m,
+                    targets=[20, 50, 80], n_segments=4, index_functions={"probe": power_index})
+    d = res.to_dict()
+    for key in ("snr_db", "index", "predicted_percent", "targets"):
+        assert key in d
+    for t in d["targets"]:
+        assert {"percent", "snr_db", "ci_low", "ci_high"} <= set(t)
+        seg = np.array(t["segment_snr_db"], dtype=float)
+        # Student-t interval over the per-segment crossings (scipy.stats.t)
+        half = stats.t.ppf(0.975, seg.size - 1) * seg.std(ddof=1) / math.sqrt(seg.size)
+        assert t["ci_low"] == pytest.approx(t["snr_db"] - half, abs=1e-9)
+        assert t["ci_high"] == pytest.approx(t["snr_db"] + half, abs=1e-9)
+    snrs = [t["snr_db"] for t in d["targets"]]
+    assert snrs == sorted(snrs)
+    assert d["srt_db"] == d["targets"][1]["snr_db"]
+
+
+def test_sweep_srt_equals_inverse_mapping_on_interpolated_index_curve(signals):
+    # A mapping fitted on simulated pilot scores; independently of the sweep code the
+    # SRT is the SNR at which the linearly interpolated mean STOI curve reaches the
+    # STOI value where the fitted logistic gives 50 % (logit(0.5) = 0).
+    clean, noise = signals
+    x = np.linspace(0.4, 0.95, 7)
+    n = np.full(x.size, 50)
+    m = fit_mapping(x, simulate(-11.0, 17.0, x, n, seed=2), n, index="stoi")
+    res = snr_sweep(clean, noise, FS, snr_db=np.arange(-21, 10, 3.0), index="stoi", mapping=m,
+                    targets=[20, 50, 80], n_segments=3)
+    assert np.all(np.diff(res.index) > 0)
+    for t in res.targets:
+        x_t = (logit(t.percent / 100.0) - m.a) / m.b
+        expect = np.interp(x_t, res.index, res.snr_db)
+        assert t.snr_db == pytest.approx(expect, abs=1e-9)
+        # predicted score at that SNR through the interpolated curve is the target
+        assert 100 * expit(m.a + m.b * np.interp(t.snr_db, res.snr_db, res.index)) == pytest.approx(t.percent)
+        # slope at the target: central difference of the predicted curve
+        h = 1e-4
+
+        def pred(s):
+            return 100 * expit(m.a + m.b * np.interp(s, res.snr_db, res.index))
+
+        assert t.slope_percent_per_db == pytest.approx((pred(t.snr_db + h) - pred(t.snr_db - h)) / (2 * h), rel=1e-3)
+    assert res.predicted_percent == pytest.approx(100 * expit(m.a + m.b * res.index))
+    # interval from the mapping's uncertainty: delta method on x_t = (logit(p) - a) / b
+    # with statsmodels' covariance of (a, b), mapped through the interpolated curve
+    glm = sm.GLM(np.c_[simulate(-11.0, 17.0, x, n, seed=2), n - simulate(-11.0, 17.0, x, n, seed=2)],
+                 sm.add_constant(x), family=sm.families.Binomial()).fit()
+    a, b = glm.params
+    cov = np.asarray(glm.cov_params())
+    t = res.targets[1]
+    x_t = -a / b
+    grad = np.array([-1 / b, -x_t / b])
+    half = stats.norm.ppf(0.975) * math.sqrt(grad @ cov @ grad)
+    assert t.map_ci_low == pytest.approx(np.interp(x_t - half, res.index, res.snr_db), abs=1e-4)
+    assert t.map_ci_high == pytest.approx(np.interp(x_t + half, res.index, res.snr_db), abs=1e-4)
+
+
+def test_sweep_with_impulse_response(signals):
+    # reverberation lowers the index at every SNR (same noise segments)
+    clean, noise = signals
+    rng = np.random.default_rng(4)
+    t = np.arange(int(0.8 * FS)) / FS
+    ir = rng.standard_normal(t.size) * np.exp(-6.91 * t / 0.8)  # T60 = 0.8 s exponential decay
+    ir[0] = 5.0
+    kw = {"snr_db": [-6, 0, 6, 12], "index": "stoi", "n_segments": 2}
+    dry = snr_sweep(clean, noise, FS, **kw)
+    wet = snr_sweep(clean, noise, FS, ir=ir, **kw)
+    assert wet.reverberant and not dry.reverberant
+    assert np.all(wet.index < dry.index)
+
+
+def test_sweep_index_values_match_reference_stoi(signals):
+    # the sweep's STOI at each SNR and segment equals pystoi (reference implementation
+    # of Taal 2011) on the mixture rebuilt here by the stated speech-level convention
+    from pystoi import stoi as reference_stoi
+
+    clean, noise = signals
+    res = snr_sweep(clean, noise, FS, snr_db=[-10, 0], index="stoi", n_segments=2)
+    for j, off in enumerate(res.segment_offsets_s):
+        o = round(off * FS)
+        seg = noise[o: o + clean.size]
+        for i, s in enumerate(res.snr_db):
+            g = np.sqrt(np.sum(clean ** 2) / (np.sum(seg ** 2) * 10 ** (s / 10)))
+            ref = reference_stoi(clean, clean + g * seg, FS)
+            assert res.index_segments[i, j] == pytest.approx(ref, abs=2e-3)
+
+
+def test_sweep_ssti_uses_speech_based_sti(signals):
+    from envpredict.pair import speech_sti
+
+    clean, noise = signals
+    res = snr_sweep(clean, noise, FS, snr_db=[-5, 5], index="ssti", n_segments=1)
+    seg = noise[: clean.size]
+    g = np.sqrt(np.sum(clean ** 2) / (np.sum(seg ** 2) * 10 ** 0.5))
+    assert res.index[1] == pytest.approx(speech_sti(clean, clean + g * seg, FS), abs=1e-12)
+    assert res.index[1] > res.index[0]
+
+
+def test_sweep_processing_chain(signals):
+    # the chain sees each mixture, the index sees the chain's output; a chain that
+    # halves the level leaves STOI unchanged (STOI is scale-invariant, Taal 2011)
+    clean, noise = signals
+    seen_in, seen_idx = [], []
+
+    def chain(y, fs):
+        seen_in.append(y.copy())
+        return 0.5 * y
+
+    def probe(c, d, fs):
+        seen_idx.append(d)
+        return power_index(c, 2 * d, fs)
+
+    snr_sweep(clean, noise, FS, snr_db=[0, 6], index="probe", n_segments=1, process=chain,
+              index_functions={"probe": probe})
+    assert len(seen_in) == 2
+    for y, d in zip(seen_in, seen_idx):
+        assert d == pytest.approx(0.5 * y)
+    kw = {"snr_db": [-6, 0, 6], "index": "stoi", "n_segments": 1}
+    plain = snr_sweep(clean, noise, FS, **kw)
+    halved = snr_sweep(clean, noise, FS, process=lambda y, fs: 0.5 * y, **kw)
+    assert halved.index == pytest.approx(plain.index, abs=1e-9)
+    with pytest.raises(ComputationError, match="processing chain"):
+        snr_sweep(clean, noise, FS, process=lambda y, fs: y[:-10], **kw)
+
+
+def test_sweep_refusals(signals):
+    clean, noise = signals
+    m = ScoreMapping(index="estoi", shape="logistic", a=-8.0, b=16.0)
+    with pytest.raises(InputError, match="shorter than the speech"):
+        snr_sweep(clean, noise[: clean.size // 2], FS, index="stoi")
+    with pytest.raises(InputError, match="takes 'estoi'"):
+        snr_sweep(clean, noise, FS, index="stoi", mapping=m)
+    with pytest.raises(InputError, match="outside the range"):
+        snr_sweep(clean, noise, FS, index="estoi", mapping=m, targets=[100])
+    with pytest.raises(InputError, match="unknown index"):
+        snr_sweep(clean, noise, FS, index="sii")
+    with pytest.raises(InputError, match="different segments"):
+        snr_sweep(clean, noise[: clean.size + 2], FS, index="stoi", n_segments=5)
+    with pytest.raises(InputError, match="increasing"):
+        snr_sweep(clean, noise, FS, snr_db=[3, 0], index="stoi")
+
+
+def test_sweep_target_outside_range_is_reported_not_invented(signals):
+    clean, noise = signals
+    m = ScoreMapping(index="probe", shape="logistic", a=-8.0, b=16.0)
+    res = snr_sweep(clean, noise, FS, snr_db=[20, 25, 30], index="probe", mapping=m, targets=[50],
+                    n_segments=2, index_functions={"probe": power_index})
+    t = res.targets[0]
+    assert t.snr_db is None and t.ci_low is None and "lowest SNR" in t.note
+    res = snr_sweep(clean, noise, FS, snr_db=[-30, -25], index="probe", mapping=m, targets=[50],
+                    n_segments=2, index_functions={"probe": power_index})
+    assert res.targets[0].snr_db is None and "highest SNR" in res.targets[0].note
+
+
+MONO_MAP = ScoreMapping(index="stoi", shape="logistic", a=-11.0, b=17.0)
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(
+    seed=st.integers(0, 10_000),
+    start=st.floats(-25.0, 5.0),
+    step=st.floats(2.0, 6.0),
+    count=st.integers(3, 6),
+    coloured=st.booleans(),
+    level=st.sampled_from(["speech", "mixture"]),
+)
+def test_predicted_score_never_falls_as_snr_rises_in_stationary_noise(signals, seed, start, step, count,
+                                                                      coloured, level):
+    # property (stationary Gaussian noise, white or low-pass coloured): more SNR never
+    # lowers the predicted score
+    from scipy.signal import butter, sosfilt
+
+    clean, _ = signals
+    noise = np.random.default_rng(seed).standard_normal(clean.size + FS // 2)
+    if coloured:
+        noise = sosfilt(butter(2, 1000, fs=FS, output="sos"), noise)
+    snrs = start + step * np.arange(count)
+    res = snr_sweep(clean, noise, FS, snr_db=snrs, index="stoi", mapping=MONO_MAP, n_segments=2, level=level)
+    assert np.all(np.diff(res.predicted_percent) >= -1e-9)
+    assert np.all(np.diff(res.index_segments, axis=0) >= -1e-9)
+
+# ---------------------------------------------------------------------------
+# CLI: sweep
+# ---------------------------------------------------------------------------
+
+def test_cli_sweep(tmp_path, capsys, signals):
+    # a mapping file as fitmap writes it (the mapping of the hypothesis test below)
+    mp = tmp_path / "map.json"
+    mp.write_text(json.dumps(MONO_MAP.to_dict()))
+    clean, noise = signals
+    cw, nw = tmp_path / "clean.wav", tmp_path / "noise.wav"
+    sf.write(cw, clean, FS, subtype="FLOAT")
+    sf.write(nw, noise, FS, subtype="FLOAT")
+    code, out, err = run_cli(["sweep", str(cw), str(nw), "--map", str(mp), "--snr=-18:6:6", "--segments", "2",
+                              "--target", "20", "--target", "50", "--json"], capsys)
+    assert code == 0, err
+    s = json.loads(out)
+    assert s["snr_db"] == [-18, -12, -6, 0, 6]
+    assert s["index"] == "stoi" and len(s["stoi"]) == len(s["predicted_percent"]) == 5
+    assert [t["percent"] for t in s["targets"]] == [20, 50]
+    assert s["srt_db"] == s["targets"][1]["snr_db"]
+    code, out, err = run_cli(["sweep", str(cw), str(nw), "--snr", "-6:6:6", "--segments", "2"], capsys)
+    assert code == 0, err
+    assert "no mapping" in out
+
+
+def test_cli_sweep_refusals(tmp_path, capsys):
+    code, _out, err = run_cli(["sweep", "a.wav", "b.wav", "--snr", "5:0:1"], capsys)
+    assert code == 2 and "FROM < TO" in err
+    code, _out, err = run_cli(["sweep", "a.wav", "b.wav", "--target", "50"], capsys)
+    assert code == 2 and "needs a mapping" in err
+
+# ---------------------------------------------------------------------------
+# File-level function sweep.snr_sweep_files
+# ---------------------------------------------------------------------------
+
+@pytest.mark.parametrize("kw,what", [
+    ({"snr_db": "0:10"}, "FROM:TO:STEP"),
+    ({"targets": [50.0]}, "--target needs a mapping"),
+    ({"index": "pesq"}, "unknown index"),
+    ({"level": "loud"}, "level convention"),
+    ({"n_segments": 0}, "--segments"),
+])
+def test_snr_sweep_files_checks_options_before_reading(tmp_path, kw, what):
+    from envpredict.sweep import snr_sweep_files
+
+    with pytest.raises(InputError, match=what):
+        snr_sweep_files(tmp_path / "no_clean.wav", tmp_path / "no_noise.wav", **kw)
+
+
+def test_snr_sweep_files_equals_snr_sweep(tmp_path, signals):
+    from envpredict.sweep import snr_sweep_files
+
+    clean, noise = signals
+    cw, nw = tmp_path / "clean.wav", tmp_path / "noise.wav"
+    sf.write(cw, clean, FS, subtype="DOUBLE")
+    sf.write(nw, noise, FS, subtype="DOUBLE")
+    a = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], n_segments=2)
+    b = snr_sweep_files(cw, nw, snr_db="-6:6:6", n_segments=2)
+    assert b.to_dict() == a.to_dict()
