@@ -10,7 +10,7 @@ from __future__ import annotations
 import json
 import re
 
-from conftest import run_cli
+from cli_for_tests import run_cli
 
 from envpredict._data import demo_dir
 

@@ -23,7 +23,8 @@ import numpy as np
 import pytest
 
 import envpredict
-from conftest import noise_decay, run_cli
+from cli_for_tests import run_cli
+from signals_for_tests import noise_decay
 
 #: Keys that name a thing the vocabulary already has a name for.
 SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warnings", "warning", "frequencies_hz"}
