@@ -179,6 +179,12 @@ def as_mono_array(x, fs: float, name: str = "input", *, hint: str = "") -> tuple
     return a, fs
 
 
+#: Below this ratio of (sum of squared deviations) to (sum of squares) a block's spread
+#: is recomputed from the deviations themselves: the one-pass difference would lose its
+#: digits to cancellation (a DC offset with little else on it).
+CANCELLATION_SHARE: float = 1e-3
+
+
 class SignalCheck:
     """The input checks of a signal, fed in blocks: the one rule for arrays and streams.
 
@@ -233,32 +239,40 @@ class SignalCheck:
         b = np.asarray(block, dtype=np.float64).reshape(-1)
         if b.size == 0:
             return
-        finite = np.isfinite(b)
-        if not finite.all():
-            first = self.n + int(np.argmin(finite))
-            raise InputError(f"{self.name} contains NaN or infinite sample(s), the first at sample {first}",
-                             "repair or re-export the file")
+        total = float(b.sum())  # NaN or inf if any sample is (the slow search only then)
+        if not math.isfinite(total):
+            finite = np.isfinite(b)
+            if not finite.all():
+                first = self.n + int(np.argmin(finite))
+                raise InputError(f"{self.name} contains NaN or infinite sample(s), the first at sample {first}",
+                                 "repair or re-export the file")
         # mean and spread, merged block by block (Chan, Golub & LeVeque 1979)
-        m = float(b.mean())
-        m2 = float(np.dot(b - m, b - m))
         n0, nb = self.n, b.size
+        m = total / nb
+        sq = float(np.dot(b, b))
+        m2 = sq - nb * m * m
+        if m2 <= CANCELLATION_SHARE * sq:  # spread small beside the mean: the exact two-pass sum
+            m2 = float(np.dot(b - m, b - m))
         n1 = n0 + nb
         delta = m - self._mean
         self._mean += delta * nb / n1
         self._m2 += m2 + delta * delta * n0 * nb / n1
         self.n = n1
-        self.sumsq += float(np.dot(b, b))
+        self.sumsq += sq
         ab = np.abs(b)
-        self.full_scale += int(np.count_nonzero(ab >= CLIP_FULL_SCALE))
         bp = float(ab.max())
+        if bp >= CLIP_FULL_SCALE:
+            self.full_scale += int(np.count_nonzero(ab >= CLIP_FULL_SCALE))
         if bp > self.peak:  # a new global peak: earlier runs were below it
             self.peak, self._closed_runs, self._open_run = bp, 0, 0
         if bp < self.peak:
             self._close_run()
             return
-        at = ab == self.peak
-        d = np.diff(np.concatenate(([0], at.astype(np.int8), [0])))
-        starts, ends = np.flatnonzero(d == 1), np.flatnonzero(d == -1)
+        # runs of consecutive samples at the peak, from the (few) positions that hold it
+        at = np.flatnonzero(ab == self.peak)
+        breaks = np.flatnonzero(np.diff(at) != 1)
+        starts = at[np.concatenate(([0], breaks + 1))]
+        ends = at[np.concatenate((breaks, [at.size - 1]))] + 1
         runs = ends - starts
         if starts[0] == 0:
             runs[0] += self._open_run  # continues the run open at the end of the last block

@@ -471,3 +471,23 @@ def test_docstring_examples():
 
     failed, attempted = doctest.testmod(envpredict.audio, optionflags=doctest.ELLIPSIS)
     assert failed == 0 and attempted > 0
+
+
+def test_a_small_spread_on_a_large_offset_is_not_called_constant():
+    # the DC test compares the standard deviation with SILENCE_RMS; on a large offset the
+    # one-pass variance sum(x^2)/n - mean^2 loses every digit to cancellation (float64 has
+    # 16), so the spread must come from the deviations themselves (two-pass, as numpy.std)
+    from envpredict.audio import SILENCE_RMS, SignalCheck
+
+    rng = np.random.default_rng(4)
+    x = 100.0 + 3 * SILENCE_RMS * rng.standard_normal(480000)
+    assert np.std(x) > 2 * SILENCE_RMS  # the reference: numpy's two-pass standard deviation
+    check = SignalCheck("offset signal", allow_clipping=True)
+    for i in range(0, x.size, 100000):
+        check.update(x[i: i + 100000])
+    check.finish()  # not "holds only a constant (DC) value"
+    flat = np.full(480000, 100.0)
+    c = SignalCheck("flat", allow_clipping=True)
+    c.update(flat)
+    with pytest.raises(InputError, match="constant"):
+        c.finish()
