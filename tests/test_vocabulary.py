@@ -30,7 +30,10 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 
 #: Results a command prints as a whole: each carries both lists.
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
-             "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult"}
+             "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "DemoResult",
+             "StipaSignalResult"}
+# not yet walked: FullStiSignalsResult, whose signals[].index is a position (1..14), as in the
+# signals.json it writes; renaming it changes that file
 
 
 # ---------------------------------------------------------------------------
@@ -104,7 +107,19 @@ def _factories(speech, batch_summary) -> dict:
         "Comparison": comparison,
         "BatchSummary": lambda: batch_summary,
         "PredictedTable": predicted,
+        "DemoResult": envpredict.rate_demo_site,
+        "StipaSignalResult": lambda: _in_tmp(lambda d: envpredict.write_stipa_signal(d / "s.wav", 15.0, 24000)),
+        "FullStiSignalsResult": lambda: _in_tmp(lambda d: envpredict.write_full_sti_signals(d / "full", 24000)),
     }
+
+
+def _in_tmp(write):
+    """Call ``write(folder)`` in a temporary folder removed afterwards (the result stays)."""
+    import pathlib
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as d:
+        return write(pathlib.Path(d))
 
 
 def _result_types() -> dict[str, type]:

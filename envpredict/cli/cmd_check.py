@@ -30,7 +30,8 @@ def check_command(
             prog(i + 1)
     n_fail = sum(not o.passed for o in outcomes)
     if as_json:
-        typer.echo(dumps({**summary(outcomes), "cases": [o.to_dict() for o in outcomes]}))
+        typer.echo(dumps({**summary(outcomes), "cases": [o.to_dict() for o in outcomes],
+                          "inputs": {"case": case, "method": method}}))
     else:
         for o in outcomes:
             typer.echo(f"{'PASS' if o.passed else 'FAIL'}  [{o.method}] {o.id}: {o.title}")
