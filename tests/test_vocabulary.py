@@ -92,6 +92,7 @@ def _factories(speech, batch_summary) -> dict:
         return envpredict.add_predictions(rows, ["stoi"], mapping())
 
     from envpredict.bands import octave_bands
+    from envpredict.refcases import run_cases
 
     return {
         "IrResult": lambda: envpredict.sti_from_ir(ir, 48000, noise_db=[40] * 7),
@@ -110,6 +111,7 @@ def _factories(speech, batch_summary) -> dict:
         "DemoResult": envpredict.rate_demo_site,
         "StipaSignalResult": lambda: _in_tmp(lambda d: envpredict.write_stipa_signal(d / "s.wav", 15.0, 24000)),
         "FullStiSignalsResult": lambda: _in_tmp(lambda d: envpredict.write_full_sti_signals(d / "full", 24000)),
+        "ReferenceRun": lambda: run_cases(id_contains="decay_T0.3"),
     }
 
 
