@@ -13,7 +13,8 @@ and returns the same result: its name is the array function's with ``_file`` or
 ``X_from_file(s)`` where the array function reads ``X_from_recording(s)`` or
 ``X_indices``. Two file-level names stand for their job as a whole: ``predict_file``
 (``predict_scores`` and ``add_predictions`` on a table) and ``run_batch``. Readers of
-a stored result are ``read_X``; generators of a test signal are ``X_signal(s)``.
+a stored result are ``read_X``; generators of a test signal are ``X_signal(s)``, and their file-level writers
+``write_X_signal(s)``.
 Results are frozen dataclasses named ``...Result`` with ``to_dict()``. The command
 line calls the file-level functions.
 
@@ -24,10 +25,12 @@ Impulse response (indirect STI, ISO 3382-1 decay figures)
     qualification_band, decay_figures, reverberation_time, mid_frequency,
     mtf_from_ir, octave_bands
 Audio
-    load_audio, validate_signal
+    load_audio, validate_signal, resolve_calibration, write_wav
 Direct method (test signals and their recordings)
-    stipa_signal, full_sti_signals, full_sti_plan, stipa_from_recording,
-    stipa_from_file, full_sti_from_recordings, full_sti_from_files, DirectResult
+    stipa_signal, full_sti_signals, full_sti_plan, write_stipa_signal,
+    StipaSignalResult, write_full_sti_signals, FullStiSignalsResult,
+    stipa_from_recording, stipa_from_file, full_sti_from_recordings,
+    full_sti_from_files, DirectResult
 Clean/degraded pairs
     stoi, estoi, correlation_indices, CorrelationResult, pair_indices,
     pair_from_files, PairResult, speech_sti
@@ -42,6 +45,8 @@ Corpora
     run_batch, read_results, compare_conditions, compare_conditions_file
 Reports
     write_report
+Demo
+    rate_demo_site, DemoResult
 Errors
     EnvpredictError, InputError, ComputationError
 """
@@ -70,10 +75,16 @@ _API: dict[str, str] = {
     # audio
     "load_audio": "envpredict.audio",
     "validate_signal": "envpredict.audio",
+    "resolve_calibration": "envpredict.audio",
+    "write_wav": "envpredict.audio",
     # direct method: test signals and their recordings
     "stipa_signal": "envpredict.signals",
     "full_sti_signals": "envpredict.signals",
     "full_sti_plan": "envpredict.signals",
+    "write_stipa_signal": "envpredict.signals",
+    "StipaSignalResult": "envpredict.signals",
+    "write_full_sti_signals": "envpredict.signals",
+    "FullStiSignalsResult": "envpredict.signals",
     "stipa_from_recording": "envpredict.direct",
     "full_sti_from_recordings": "envpredict.direct",
     "DirectResult": "envpredict.direct",
@@ -114,6 +125,9 @@ _API: dict[str, str] = {
     "compare_conditions_file": "envpredict.stats",
     # reports
     "write_report": "envpredict.report",
+    # the bundled demo site
+    "rate_demo_site": "envpredict.demo",
+    "DemoResult": "envpredict.demo",
     # errors
     "EnvpredictError": "envpredict.exceptions",
     "InputError": "envpredict.exceptions",

@@ -12,7 +12,11 @@
   wrong and what to do.
 * **Resampling** (:func:`resample`, :class:`Resampled`), **alignment**
   (:func:`estimate_delay`, the one delay finder) and **calibration**
-  (:func:`calibration_from_tone`, :func:`check_calibration_db`).
+  (:func:`calibration_from_tone`, :func:`check_calibration_db`, and
+  :func:`resolve_calibration`, which turns an offset or a calibrator recording into one
+  calibration and says where it came from).
+* **Files.** :func:`audio_files_in` lists the audio files of a folder; :func:`write_wav`
+  is the one WAV writer (atomic: the file appears whole or not at all).
 
 Nothing here computes an index.
 """
@@ -65,6 +69,50 @@ CALIBRATOR_FREQ_TOLERANCE: float = 0.05
 CALIBRATION_RANGE_DB: tuple[float, float] = (0.0, 200.0)
 
 AUDIO_SUFFIXES = {".wav", ".flac", ".ogg", ".oga", ".aif", ".aiff", ".caf", ".w64", ".rf64"}
+
+
+def audio_files_in(folder: str | os.PathLike) -> list[Path]:
+    """The audio files of a folder (by suffix, :data:`AUDIO_SUFFIXES`), sorted by name;
+    hidden files (names starting with a dot) are skipped. Not recursive."""
+    return sorted(q for q in Path(folder).iterdir()
+                  if q.suffix.lower() in AUDIO_SUFFIXES and not q.name.startswith("."))
+
+
+def check_wav_path(path: str | os.PathLike) -> Path:
+    """Refuse an output path that :func:`write_wav` cannot write: not ending in .wav, a
+    folder, or in a folder that does not exist (so that a caller can refuse it before
+    its slow work)."""
+    out = Path(path)
+    if out.suffix.lower() != ".wav":
+        raise InputError(f"output '{out}' does not end in .wav", "give a file name ending in .wav")
+    if out.exists() and out.is_dir():
+        raise InputError(f"output '{out}' is a folder", "give a file name ending in .wav")
+    parent = out.parent if str(out.parent) else Path(".")
+    if not parent.exists():
+        raise InputError(f"output folder '{parent}' does not exist", "create it first or choose another path")
+    return out
+
+
+def write_wav(path: str | os.PathLike, x: np.ndarray, fs: int, *, subtype: str = "PCM_24") -> Path:
+    """Write a mono signal to a WAV file, atomically (through a temporary file and a rename).
+
+    Parameters
+    ----------
+    path : file to write, ending in .wav (checked by :func:`check_wav_path`).
+    x : samples, full scale +-1.
+    fs : sample rate, Hz.
+    subtype : sample format of libsndfile (default 24-bit PCM).
+    """
+    import io
+
+    import soundfile as sf
+
+    from .outputs import atomic_write_bytes
+
+    out = check_wav_path(path)
+    buf = io.BytesIO()
+    sf.write(buf, x, fs, format="WAV", subtype=subtype)
+    return atomic_write_bytes(out, buf.getvalue())
 
 
 def _check_path(path: str | os.PathLike, name: str) -> Path:
@@ -691,3 +739,37 @@ def check_calibration_db(value: float | None) -> float | None:
         raise InputError(f"calibration {value} dB is implausible",
                          "give the dB SPL that a full-scale RMS signal (0 dBFS) corresponds to, e.g. 120")
     return v
+
+
+def resolve_calibration(
+    calibration_db: float | None = None,
+    calibrator: str | os.PathLike | None = None,
+    calibrator_level: float | None = None,
+    channel: int | None = None,
+) -> tuple[float | None, str | None]:
+    """One calibration from either an offset or a calibrator recording.
+
+    Parameters
+    ----------
+    calibration_db : dB SPL of a full-scale RMS signal (:func:`check_calibration_db`).
+    calibrator : recording of a 1 kHz acoustic calibrator made with the same gain
+        (instead of ``calibration_db``), analysed by :func:`calibration_from_tone`.
+    calibrator_level : the calibrator's level, dB SPL (required with ``calibrator``).
+    channel : channel of a multi-channel calibrator recording.
+
+    Returns
+    -------
+    (calibration_db, source) : the offset, or ``None`` without a calibration; ``source``
+        is "offset", "calibrator" or ``None``.
+    """
+    if calibration_db is not None and calibrator is not None:
+        raise InputError("both --calibration-db and --calibrator were given", "give one of them")
+    if calibrator is not None:
+        if calibrator_level is None:
+            raise InputError("--calibrator needs --calibrator-level", "give the calibrator's level in dB SPL, e.g. 94")
+        x, fs = load_audio(calibrator, channel, name="calibrator recording")
+        return calibration_from_tone(x, fs, calibrator_level), "calibrator"
+    if calibrator_level is not None:
+        raise InputError("--calibrator-level was given without --calibrator", "give the calibrator recording too")
+    cal = check_calibration_db(calibration_db)
+    return cal, ("offset" if cal is not None else None)

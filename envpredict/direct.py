@@ -57,7 +57,10 @@ import numpy as np
 
 from . import cautions as cau
 from . import standards as std
-from .audio import ArraySource, FileSource, SignalCheck, Source, check_calibration_db, check_rate, validate_signal
+from .audio import (
+    ArraySource, FileSource, SignalCheck, Source, audio_files_in, check_calibration_db, check_rate, resolve_calibration,
+    validate_signal,
+)
 from .bands import EnvelopeStream, check_rate_for_octaves, envelope_delays
 from .exceptions import InputError
 from .modulation import modulation_depths, mtf_from_test_signal
@@ -461,6 +464,8 @@ class DirectResult:
     level_dba : A-weighted level of the received test signal (calibrated only).
     recordings : per recording, where the test signal was found, rate, modulation.
     cautions : texts that must accompany the number.
+    calibration_source : where the calibration came from: "offset" (a given
+        ``calibration_db``), "calibrator" (a calibrator recording) or ``None``.
     """
 
     method: str
@@ -476,6 +481,7 @@ class DirectResult:
     level_dba: float | None
     recordings: tuple[dict, ...]
     cautions: tuple[str, ...] = field(default=())
+    calibration_source: str | None = None
 
     def to_dict(self) -> dict:
         d = self.sti.to_dict()
@@ -493,6 +499,7 @@ class DirectResult:
                 "envelope_noise_depth": np.round(self.noise_floor, 4),
                 "calibrated": self.calibrated,
                 "calibration_db": self.calibration_db,
+                "calibration_source": self.calibration_source,
                 "band_levels_db": np.round(self.band_levels_db, 1),
                 "band_levels_unit": "dB SPL" if self.calibrated else "dBFS",
                 "level_dba": None if self.level_dba is None else round(self.level_dba, 1),
@@ -517,6 +524,7 @@ def _finish(
     noise_db,
     talker: str,
     recordings: list[dict],
+    calibration_source: str | None = None,
 ) -> DirectResult:
     calibrated = calibration_db is not None
     if calibrated:
@@ -553,6 +561,7 @@ def _finish(
         uncertainty=unc, window_sti=tuple(float(v) for v in win), calibrated=calibrated,
         calibration_db=calibration_db, band_levels_db=band_db, level_dba=la,
         recordings=tuple(recordings), cautions=tuple(cautions),
+        calibration_source=(calibration_source or "offset") if calibrated else None,
     )
 
 
@@ -567,8 +576,14 @@ def _check_options(calibration_db, noise_db, talker):
     return cal, noise, talker
 
 
+def _check_talker_and_noise(talker, noise_db):
+    """The option checks that come before the calibration (and its calibrator recording)."""
+    check_talker(talker)
+    parse_noise_levels(noise_db)
+
+
 def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_db, talker, name: str,
-           progress) -> DirectResult:
+           progress, calibration_source: str | None = None) -> DirectResult:
     cal, noise, talker = _check_options(calibration_db, noise_db, talker)
     pairs = np.asarray(std.STIPA_MODULATION_HZ, dtype=float)
     f_low = float(pairs.min())
@@ -586,7 +601,7 @@ def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_
              for a, b in zip(edges[:-1], edges[1:])]
     info = {"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3), **rec.part.to_dict()}
     out = _finish("STIPA", depth / nom, mtf_w, std.STIPA_MODULATION_HZ, depth, nom, floor,
-                  rec.band_ms, cal, noise, talker, [info])
+                  rec.band_ms, cal, noise, talker, [info], calibration_source)
     ticks.finish()
     return out
 
@@ -639,6 +654,9 @@ def stipa_from_file(
     channel: int | None = None,
     *,
     calibration_db: float | None = None,
+    calibrator: str | os.PathLike | None = None,
+    calibrator_level: float | None = None,
+    calibrator_channel: int | None = None,
     noise_db: Sequence[float] | str | None = None,
     talker: str = "male",
     name: str | None = None,
@@ -660,18 +678,26 @@ def stipa_from_file(
     name : what the recording is called in the result (default: the file name).
     block_seconds : length of the blocks read, s.
     calibration_db, noise_db, talker, progress : as for :func:`stipa_from_recording`.
+    calibrator, calibrator_level : instead of ``calibration_db``, a recording of a 1 kHz
+        acoustic calibrator made with the same gain and its level in dB SPL
+        (:func:`envpredict.audio.resolve_calibration`).
+    calibrator_channel : channel of the calibrator recording (default: ``channel``).
 
     Valid input: as for :func:`stipa_from_recording`; at most :data:`MAX_RECORDING_S` (2 h).
+    The result's ``calibration_source`` says where the calibration came from.
     """
+    _check_talker_and_noise(talker, noise_db)
+    cal, source = resolve_calibration(calibration_db, calibrator, calibrator_level,
+                                      channel if calibrator_channel is None else calibrator_channel)
     name = Path(path).name if name is None else name
     return _stipa(lambda min_s, ticks: _analyse_file(path, channel, min_s, name, block_seconds=block_seconds,
                                                      ticks=ticks),
-                  calibration_db, noise_db, talker, name, progress)
+                  cal, noise_db, talker, name, progress, source)
 
 
 def _full_sti(
     sources: Sequence[tuple[str, Callable[[float, str], _Analysed]]],
-    calibration_db, noise_db, talker, progress,
+    calibration_db, noise_db, talker, progress, calibration_source: str | None = None,
 ) -> DirectResult:
     cal, noise, talker = _check_options(calibration_db, noise_db, talker)
     freqs = np.asarray(std.MODULATION_FREQUENCIES_HZ, dtype=float)
@@ -740,7 +766,7 @@ def _full_sti(
         mtf_w.append(m)
     infos.sort(key=lambda d: d["modulation_hz"])
     out = _finish("full STI", depth / nom, mtf_w, std.MODULATION_FREQUENCIES_HZ, depth, nom,
-                  floor, band_ms, cal, noise, talker, infos)
+                  floor, band_ms, cal, noise, talker, infos, calibration_source)
     if progress:
         progress(nf + 1, nf + 1)
     return out
@@ -784,11 +810,31 @@ def full_sti_from_recordings(
                      progress)
 
 
+def recording_paths(paths: str | os.PathLike | Sequence[str | os.PathLike]) -> list[Path]:
+    """The recording files of ``paths``: each folder replaced by its audio files
+    (:func:`envpredict.audio.audio_files_in`), files kept as given, in order."""
+    if isinstance(paths, (str, os.PathLike)):
+        paths = [paths]
+    files: list[Path] = []
+    for p in map(Path, paths):
+        if p.is_dir():
+            found = audio_files_in(p)
+            if not found:
+                raise InputError(f"folder '{p}' holds no audio files", "give the folder with the 14 recordings")
+            files.extend(found)
+        else:
+            files.append(p)
+    return files
+
+
 def full_sti_from_files(
-    paths: Sequence[str | os.PathLike],
+    paths: str | os.PathLike | Sequence[str | os.PathLike],
     channel: int | None = None,
     *,
     calibration_db: float | None = None,
+    calibrator: str | os.PathLike | None = None,
+    calibrator_level: float | None = None,
+    calibrator_channel: int | None = None,
     noise_db: Sequence[float] | str | None = None,
     talker: str = "male",
     block_seconds: float = BLOCK_SECONDS,
@@ -801,16 +847,26 @@ def full_sti_from_files(
 
     Parameters
     ----------
-    paths : the 14 files, any order.
+    paths : the 14 files, any order, or folders holding them (each folder's audio files,
+        hidden files skipped: :func:`recording_paths`).
     channel : channel of multi-channel files (``None``: the files must be mono).
     calibration_db, noise_db, talker, block_seconds, progress : as for
         :func:`full_sti_from_recordings`.
+    calibrator, calibrator_level, calibrator_channel : as for :func:`stipa_from_file`.
     """
     check_block_seconds(block_seconds)
+    _check_talker_and_noise(talker, noise_db)
+    cal, cal_source = resolve_calibration(calibration_db, calibrator, calibrator_level,
+                                          channel if calibrator_channel is None else calibrator_channel)
+    files = recording_paths(paths)
+    nf = len(std.MODULATION_FREQUENCIES_HZ)
+    if len(files) != nf:
+        raise InputError(f"{len(files)} recording(s) found; the full STI needs {nf} (one per modulation frequency)",
+                         f"give the recordings of all {nf} full-STI signals, or a folder holding only them")
 
     def source(path):
         name = Path(path).name
         return name, lambda min_s, advice: _analyse_file(path, channel, min_s, name, advice,
                                                          block_seconds=block_seconds)
 
-    return _full_sti([source(p) for p in paths], calibration_db, noise_db, talker, progress)
+    return _full_sti([source(p) for p in files], cal, noise_db, talker, progress, cal_source)

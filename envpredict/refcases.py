@@ -307,6 +307,38 @@ def summary(outcomes: list[CaseOutcome]) -> dict:
     return {"passed": len(outcomes) - n_fail, "failed": n_fail, "methods": per}
 
 
+@dataclass(frozen=True)
+class ReferenceRun:
+    """The outcomes of a run of the reference-case library (:func:`run_cases`)."""
+
+    outcomes: tuple[CaseOutcome, ...]
+
+    @property
+    def n_failed(self) -> int:
+        return sum(not o.passed for o in self.outcomes)
+
+    def to_dict(self) -> dict:
+        return {**summary(list(self.outcomes)), "cases": [o.to_dict() for o in self.outcomes]}
+
+
+def run_cases(id_contains: str | None = None, method: str | None = None, *, folder: Path | None = None,
+              progress=None) -> ReferenceRun:
+    """Run the cases of :func:`select_cases` (all by default).
+
+    Parameters
+    ----------
+    id_contains, method, folder : as for :func:`select_cases`.
+    progress : optional ``progress(done, total)`` callback, one step per case.
+    """
+    cases = select_cases(id_contains=id_contains, method=method, folder=folder)
+    out = []
+    for i, c in enumerate(cases):
+        out.append(run_case(c))
+        if progress:
+            progress(i + 1, len(cases))
+    return ReferenceRun(tuple(out))
+
+
 def run_all(folder: Path | None = None, progress=None) -> list[CaseOutcome]:
     cases = load_cases(folder)
     out = []

@@ -24,17 +24,23 @@ whole periods of all its modulation frequencies therefore loops without a seam, 
 gets no fades: every full-STI signal, and a STIPA signal whose length is a multiple of
 100 s (the common period of the STIPA frequencies; the default length). Other STIPA
 lengths get 10 ms raised-cosine fades at both ends and should not be looped (a
-recording across the seam reads a lower MTF). Nothing here reads or writes files.
+recording across the seam reads a lower MTF). The generators return arrays;
+:func:`write_stipa_signal` and :func:`write_full_sti_signals` write them to WAV files
+through the one writer, :func:`envpredict.audio.write_wav`.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import json
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
 
 import numpy as np
 
 from . import standards as std
-from .audio import check_rate
+from .audio import check_rate, check_wav_path, rms_dbfs, write_wav
 from .bands import check_rate_for_octaves
 from .exceptions import InputError
 
@@ -183,7 +189,7 @@ class FullStiSignalSpec:
     filename: str
 
     def to_dict(self) -> dict:
-        return {"index": self.index, "modulation_hz": self.modulation_hz,
+        return {"number": self.index, "modulation_hz": self.modulation_hz,
                 "seconds": round(self.seconds, 6), "file": self.filename}
 
 
@@ -225,3 +231,119 @@ def full_sti_signals(fs: int = DEFAULT_RATE_HZ, *, seed: int = 0):
     fs = check_generation(fs)
     for spec in full_sti_plan():
         yield spec, full_sti_signal(spec.modulation_hz, spec.seconds, fs, seed=seed + spec.index - 1)
+
+
+@dataclass(frozen=True)
+class StipaSignalResult:
+    """What :func:`write_stipa_signal` wrote: the file and the signal's properties."""
+
+    file: str
+    fs: int
+    seconds: float
+    seed: int
+    rms_dbfs: float
+    loopable: bool
+    cautions: tuple[str, ...] = field(default=())
+    notes: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict:
+        return {
+            "file": self.file, "signal": "STIPA", "fs": self.fs, "seconds": self.seconds, "seed": self.seed,
+            "peak_dbfs": std.TEST_SIGNAL_PEAK_DBFS, "rms_dbfs": self.rms_dbfs,
+            "bands_hz": list(std.OCTAVE_BANDS_HZ),
+            "modulation_hz": [list(p) for p in std.STIPA_MODULATION_HZ],
+            "modulation_depth": std.STIPA_MODULATION_DEPTH,
+            "band_levels_db": list(std.STIPA_BAND_LEVELS_DB),
+            "loopable": self.loopable,
+            "cautions": list(self.cautions), "notes": list(self.notes),
+        }
+
+
+def write_stipa_signal(
+    path: str | os.PathLike, seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0,
+) -> StipaSignalResult:
+    """Write the STIPA test signal (:func:`stipa_signal`) to a 24-bit WAV file, atomically.
+
+    Parameters
+    ----------
+    path : file to write, ending in .wav, in an existing folder (checked first).
+    seconds, fs, seed : as for :func:`stipa_signal`.
+
+    Returns
+    -------
+    StipaSignalResult : the file, rate, length, seed, RMS level and whether it loops.
+    """
+    check_wav_path(path)
+    fs = check_generation(fs, seconds)
+    x = stipa_signal(seconds, fs, seed=seed)
+    write_wav(path, x, fs)
+    return StipaSignalResult(
+        file=str(path), fs=fs, seconds=round(x.size / fs, 6), seed=seed, rms_dbfs=round(rms_dbfs(x), 2),
+        loopable=is_loopable(x.size, fs, [f for p in std.STIPA_MODULATION_HZ for f in p]),
+    )
+
+
+#: Listing file written beside the full-STI signals.
+FULL_STI_LISTING = "signals.json"
+
+
+@dataclass(frozen=True)
+class FullStiSignalsResult:
+    """What :func:`write_full_sti_signals` wrote: the folder and its plan."""
+
+    folder: str
+    fs: int
+    seed: int
+    signals: tuple[FullStiSignalSpec, ...]
+    cautions: tuple[str, ...] = field(default=())
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def total_seconds(self) -> float:
+        return round(sum(s.seconds for s in self.signals), 3)
+
+    def listing(self) -> dict:
+        """The content of the folder's ``signals.json``."""
+        return {
+            "signal": "full STI", "fs": self.fs, "seed": self.seed,
+            "modulation_depth": std.FULL_STI_MODULATION_DEPTH,
+            "order": "ascending modulation frequency; every file has all seven octave bands "
+                     "modulated in phase at its frequency; record each file once, in any order",
+            "total_seconds": self.total_seconds,
+            "signals": [s.to_dict() for s in self.signals],
+        }
+
+    def to_dict(self) -> dict:
+        return {**self.listing(), "folder": self.folder, "cautions": list(self.cautions), "notes": list(self.notes)}
+
+
+def write_full_sti_signals(
+    folder: str | os.PathLike, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0,
+    progress: Callable[[int, int], None] | None = None,
+) -> FullStiSignalsResult:
+    """Write the full-STI signal set (:func:`full_sti_signals`) to a new folder: 14 WAV
+    files (24-bit) and ``signals.json`` listing their order and lengths. The folder
+    appears whole or not at all.
+
+    Parameters
+    ----------
+    folder : a new folder (or an empty one); nothing is overwritten.
+    fs, seed : as for :func:`full_sti_signals`.
+    progress : optional ``progress(done, total)`` callback, one step per file.
+    """
+    from .outputs import atomic_directory
+
+    out = Path(folder)
+    if out.exists() and (not out.is_dir() or any(out.iterdir())):
+        raise InputError(f"'{out}' already exists and is not an empty folder",
+                         "give the name of a new folder (nothing is overwritten)")
+    fs = check_generation(fs)
+    plan = full_sti_plan()
+    result = FullStiSignalsResult(folder=str(folder), fs=fs, seed=seed, signals=plan)
+    with atomic_directory(out) as tmp:
+        for i, (spec, x) in enumerate(full_sti_signals(fs, seed=seed), start=1):
+            write_wav(tmp / spec.filename, x, fs)
+            if progress:
+                progress(i, len(plan))
+        (tmp / FULL_STI_LISTING).write_text(json.dumps(result.listing(), indent=2) + "\n")
+    return result

@@ -714,8 +714,11 @@ def _inspect_file(src: FileSource, path, start_s, duration_s, f0_min_hz, f0_max_
     fs, frames = check_rate(src.fs, src.name), src.n
     total = frames / fs
     if not 0 <= start_s < total:
-        raise InputError(f"start {start_s:g} s is outside the recording (0 to {total:.2f} s)",
+        raise InputError(f"--start {start_s:g} s is outside the recording (0 to {total:.2f} s)",
                          "give a start inside the file")
+    if duration_s is not None and not MIN_SECONDS <= duration_s <= MAX_SECONDS:
+        raise InputError(f"--duration {duration_s:g} s is outside {MIN_SECONDS:g}-{MAX_SECONDS:g} s",
+                         "give a duration in that range")
     length = (total - start_s) if duration_s is None else min(float(duration_s), total - start_s)
     i0 = int(round(start_s * fs))
     n = min(int(round(length * fs)), frames - i0)
@@ -726,7 +729,7 @@ def _inspect_file(src: FileSource, path, start_s, duration_s, f0_min_hz, f0_max_
         raise InputError(
             f"{name} '{path}' is {n / fs:.0f} s long from the start point; inspect looks at up to "
             f"{MAX_SECONDS:.0f} s ({MAX_SECONDS / 3600:g} h) at a time",
-            "choose an excerpt with a start and a duration",
+            "choose an excerpt with --start and --duration (e.g. --duration 3600)",
         )
     return _inspect_stream(Window(src, i0, n).read, n, fs, f0_min_hz=f0_min_hz, f0_max_hz=f0_max_hz,
                            block_s=block_seconds, progress=progress, check=SignalCheck(src.name))

@@ -23,12 +23,16 @@ from envpredict.audio import (
     SignalCheck,
     Source,
     Window,
+    audio_files_in,
     calibration_from_tone,
+    check_wav_path,
     estimate_delay,
     is_clipped,
     load_audio,
     resample,
+    resolve_calibration,
     validate_signal,
+    write_wav,
     zero_lag_correlation,
 )
 from envpredict.exceptions import InputError
@@ -491,3 +495,48 @@ def test_a_small_spread_on_a_large_offset_is_not_called_constant():
     c.update(flat)
     with pytest.raises(InputError, match="constant"):
         c.finish()
+
+
+def test_resolve_calibration_from_an_offset_or_a_calibrator(write_wav):
+    # a sine of amplitude A has RMS A / sqrt(2) (IEC 60942 calibrator at 94 dB SPL)
+    t = np.arange(3 * FS) / FS
+    cal = write_wav("cal.wav", 0.1 * np.sin(2 * np.pi * 1000 * t), FS)
+    c, source = resolve_calibration(calibrator=cal, calibrator_level=94.0)
+    assert source == "calibrator" and c == pytest.approx(94.0 - 20 * np.log10(0.1 / np.sqrt(2)), abs=0.05)
+    assert resolve_calibration(calibration_db=100) == (100.0, "offset")
+    assert resolve_calibration() == (None, None)
+
+
+@pytest.mark.parametrize("kwargs, msg", [
+    (dict(calibration_db=100.0, calibrator="x.wav"), "both --calibration-db and --calibrator were given"),
+    (dict(calibrator="x.wav"), "--calibrator needs --calibrator-level"),
+    (dict(calibrator_level=94.0), "--calibrator-level was given without --calibrator"),
+    (dict(calibration_db=-5.0), "implausible"),
+    (dict(calibrator="nothere.wav", calibrator_level=94.0), "does not exist"),
+])
+def test_resolve_calibration_refuses(kwargs, msg):
+    with pytest.raises(InputError, match=msg):
+        resolve_calibration(**kwargs)
+
+
+def test_audio_files_in_a_folder(tmp_path):
+    for name in ("b.wav", "a.FLAC", ".hidden.wav", "notes.txt", "c.ogg"):
+        (tmp_path / name).write_bytes(b"x")
+    # by suffix (any case), sorted by name, hidden files and other files left out
+    assert [p.name for p in audio_files_in(tmp_path)] == ["a.FLAC", "b.wav", "c.ogg"]
+
+
+def test_write_wav_is_atomic_24_bit(tmp_path):
+    x = 0.5 * np.sin(2 * np.pi * 440 * np.arange(FS) / FS)
+    p = write_wav(tmp_path / "t.wav", x, FS)
+    info = sf.info(str(p))
+    assert info.subtype == "PCM_24" and info.samplerate == FS and info.frames == FS
+    y, _ = sf.read(str(p))
+    np.testing.assert_allclose(y, x, atol=2.0 ** -23)  # 24-bit quantisation: half a step of 2^-22
+    assert sorted(q.name for q in tmp_path.iterdir()) == ["t.wav"]  # no temporary file left
+    for bad, msg in (("t.mp3", "does not end in .wav"), ("no/t.wav", "does not exist")):
+        with pytest.raises(InputError, match=msg):
+            write_wav(tmp_path / bad, x, FS)
+    (tmp_path / "d.wav").mkdir()
+    with pytest.raises(InputError, match="is a folder"):
+        check_wav_path(tmp_path / "d.wav")

@@ -420,7 +420,14 @@ def test_cli_stipa_json_and_out(stipa_wav, tmp_path, capsys):
     assert code == 0 and "STI = " in stdout and "NOT calibrated" in stdout
 
 
+def as_json(d):
+    """A result dictionary as the CLI prints it (tuples as lists, the same float text)."""
+    return json.loads(json.dumps(d, allow_nan=False))
+
+
 def test_cli_stipa_with_calibrator(stipa_wav, tmp_path, capsys):
+    from envpredict.direct import stipa_from_file
+
     t = np.arange(3 * FS) / FS
     cal = tmp_path / "cal.wav"
     sf.write(str(cal), 0.1 * np.sin(2 * np.pi * 1000 * t), FS, subtype="PCM_24")
@@ -428,13 +435,47 @@ def test_cli_stipa_with_calibrator(stipa_wav, tmp_path, capsys):
                                "--json"], capsys)
     assert code == 0
     d = json.loads(stdout)
-    assert d["calibrated"] and d["inputs"]["calibration_source"] == "calibrator"
+    # the result says where its calibration came from; the CLI adds only its inputs
+    assert d["calibrated"] and d["calibration_source"] == "calibrator"
+    # a sine of amplitude A has RMS A / sqrt(2): the calibrator's 94 dB SPL sits at 20 log10(0.1 / sqrt 2) dBFS
     assert d["calibration_db"] == pytest.approx(94.0 - 20 * np.log10(0.1 / np.sqrt(2)), abs=0.05)
+    inputs = d.pop("inputs")
+    assert inputs == {"recording": str(stipa_wav), "channel": None, "calibration_db": None, "calibrator": str(cal),
+                      "calibrator_level": 94.0, "calibrator_channel": None, "noise": None, "talker": "male"}
+    api = stipa_from_file(stipa_wav, calibrator=cal, calibrator_level=94.0)
+    assert d == as_json(api.to_dict())
+    code, stdout, _ = run_cli(["stipa", str(stipa_wav), "--calibrator", str(cal), "--calibrator-level", "94"],
+                              capsys)
+    assert code == 0 and f"calibrated (calibrator, {api.calibration_db:.1f} dB)" in stdout
+
+
+def test_calibration_source_of_an_offset(stipa24):
+    assert stipa_from_recording(stipa24, FS, calibration_db=80.0).to_dict()["calibration_source"] == "offset"
+    assert stipa_from_recording(stipa24, FS).to_dict()["calibration_source"] is None
+
+
+@pytest.mark.parametrize("kwargs, msg", [
+    (dict(calibrator_level=94.0), "--calibrator-level was given without --calibrator"),
+    (dict(calibration_db=100.0, calibrator="x.wav"), "both --calibration-db and --calibrator were given"),
+    (dict(calibrator="x.wav"), "--calibrator needs --calibrator-level"),
+    (dict(noise_db="40,40,40,40,40,40,40"), "--noise needs absolute levels"),
+    (dict(talker="child"), "unknown talker"),
+])
+def test_calibration_combinations_refused_by_the_api(stipa_wav, kwargs, msg):
+    # the checks live in the API (envpredict.audio.resolve_calibration, envpredict.direct),
+    # the CLI only passes its options on
+    from envpredict.direct import full_sti_from_files, stipa_from_file
+
+    with pytest.raises(InputError, match=msg):
+        stipa_from_file(stipa_wav, **kwargs)
+    with pytest.raises(InputError, match=msg):
+        full_sti_from_files([stipa_wav] * 14, **kwargs)
 
 
 @pytest.mark.parametrize("extra, msg", [
     (["--calibrator-level", "94"], "without --calibrator"),
     (["--calibration-db", "100", "--calibrator", "x.wav"], "give one of them"),
+    (["--calibrator", "x.wav"], "needs --calibrator-level"),
     (["--noise", "40,40,40,40,40,40,40"], "needs absolute levels"),
     (["--talker", "child"], "unknown talker"),
 ])
@@ -456,15 +497,33 @@ def test_cli_stipa_bad_recordings(tmp_path, capsys):
 
 
 def test_cli_fullsti_folder(full_set, tmp_path, capsys):
+    from envpredict.direct import full_sti_from_files, recording_paths
+
     for x, fs, name in full_set:
         sf.write(str(tmp_path / name), x, fs, subtype="PCM_24")
+    (tmp_path / ".hidden.wav").write_bytes(b"")  # hidden files are skipped
+    (tmp_path / "signals.json").write_text("{}")  # so are files that are not audio
     code, stdout, _ = run_cli(["fullsti", str(tmp_path), "--json"], capsys)
     assert code == 0
     d = json.loads(stdout)
     assert d["sti"] >= 0.97 and len(d["recordings"]) == 14
+    # the CLI's JSON is the API's result plus the inputs as given; the API takes the folder itself
+    assert d.pop("inputs") == {"recordings": [str(tmp_path)], "channel": None, "calibration_db": None,
+                               "calibrator": None, "calibrator_level": None, "calibrator_channel": None,
+                               "noise": None, "talker": "male"}
+    assert d == as_json(full_sti_from_files(tmp_path).to_dict())
+    assert [p.name for p in recording_paths(tmp_path)] == sorted(name for _, _, name in full_set)
     (tmp_path / full_set[0][2]).unlink()
     code, _, err = run_cli(["fullsti", str(tmp_path)], capsys)
-    assert code == 2 and "13 recording(s)" in err
+    assert code == 2 and "13 recording(s)" in err and len(err.strip().splitlines()) == 1
+    with pytest.raises(InputError, match=r"13 recording\(s\) found; the full STI needs 14"):
+        full_sti_from_files(tmp_path)
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    with pytest.raises(InputError, match="holds no audio files"):
+        full_sti_from_files([empty])
+    code, _, err = run_cli(["fullsti", str(empty)], capsys)
+    assert code == 2 and "holds no audio files" in err and len(err.strip().splitlines()) == 1
 
 
 # --- block-wise processing: files and arrays, any block length ---------------------

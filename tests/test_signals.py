@@ -236,3 +236,68 @@ def test_cli_testsignal_full_writes_set(tmp_path, capsys):
     # refuses to overwrite
     code, _, err = run_cli(["testsignal", "full", str(folder), "--rate", "24000"], capsys)
     assert code == 2 and "not an empty folder" in err
+
+
+# --- file-level writers: the CLI prints their result --------------------------------
+
+
+def test_write_stipa_signal_is_what_the_cli_prints_and_writes(tmp_path, capsys):
+    import io
+
+    from envpredict.signals import write_stipa_signal
+
+    cli_out = tmp_path / "cli.wav"
+    code, stdout, _ = run_cli(["testsignal", "stipa", str(cli_out), "--seconds", "15", "--rate", "24000",
+                               "--seed", "3", "--json"], capsys)
+    assert code == 0
+    d = json.loads(stdout)
+    assert d.pop("inputs") == {"out_file": str(cli_out), "seconds": 15.0, "rate": 24000, "seed": 3}
+    api_out = tmp_path / "api.wav"
+    r = write_stipa_signal(api_out, 15, 24000, seed=3)
+    assert d == {**json.loads(json.dumps(r.to_dict())), "file": str(cli_out)}
+    assert d["cautions"] == [] and d["notes"] == []
+    # the file is the generator's signal as libsndfile writes it (24-bit PCM WAV), byte for byte
+    buf = io.BytesIO()
+    sf.write(buf, stipa_signal(15, 24000, seed=3), 24000, format="WAV", subtype="PCM_24")
+    assert api_out.read_bytes() == buf.getvalue() == cli_out.read_bytes()
+    # RMS level in the result: 10 log10(mean square) of the samples written
+    y, _ = sf.read(str(api_out))
+    assert d["rms_dbfs"] == pytest.approx(10 * np.log10(np.mean(y ** 2)), abs=0.01)
+
+
+@pytest.mark.parametrize("name, kwargs, msg", [
+    ("x.mp3", {}, "does not end in .wav"),
+    ("nofolder/x.wav", {}, "does not exist"),
+    ("x.wav", dict(seconds=5), "outside 15..3600 s"),
+    ("x.wav", dict(fs=16000), "8 kHz octave"),
+])
+def test_write_stipa_signal_refuses_from_the_api(tmp_path, name, kwargs, msg):
+    from envpredict.signals import write_stipa_signal
+
+    with pytest.raises(InputError, match=msg):
+        write_stipa_signal(tmp_path / name, **{"seconds": 15, "fs": FS, **kwargs})
+    assert not any(tmp_path.iterdir())
+
+
+def test_write_full_sti_signals_is_what_the_cli_prints(tmp_path, capsys):
+    from envpredict.signals import write_full_sti_signals
+
+    code, stdout, _ = run_cli(["testsignal", "full", str(tmp_path / "cli"), "--rate", "24000", "--seed", "2",
+                               "--json"], capsys)
+    assert code == 0
+    d = json.loads(stdout)
+    assert d.pop("inputs") == {"out_folder": str(tmp_path / "cli"), "rate": 24000, "seed": 2}
+    calls = []
+    r = write_full_sti_signals(tmp_path / "api", 24000, seed=2, progress=lambda done, total: calls.append(done))
+    assert d == {**json.loads(json.dumps(r.to_dict())), "folder": str(tmp_path / "cli")}
+    assert calls == list(range(1, 15))
+    for name in sorted(p.name for p in (tmp_path / "api").iterdir()):
+        assert (tmp_path / "api" / name).read_bytes() == (tmp_path / "cli" / name).read_bytes()
+    # signals.json is the listing without the folder and the cautions
+    listing = json.loads((tmp_path / "api" / "signals.json").read_text())
+    assert listing == {k: v for k, v in d.items() if k not in ("folder", "cautions", "notes")}
+    with pytest.raises(InputError, match="not an empty folder"):
+        write_full_sti_signals(tmp_path / "api", 24000)
+    with pytest.raises(InputError, match="8 kHz octave"):
+        write_full_sti_signals(tmp_path / "new", 16000)
+    assert not (tmp_path / "new").exists()

@@ -31,7 +31,8 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 
 #: Results a command prints as a whole: each carries both lists.
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
-             "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track"}
+             "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track", "DemoResult",
+             "StipaSignalResult", "FullStiSignalsResult"}
 
 
 # ---------------------------------------------------------------------------
@@ -90,6 +91,7 @@ def _factories(speech, batch_summary) -> dict:
         return envpredict.add_predictions(rows, ["stoi"], mapping())
 
     from envpredict.bands import octave_bands
+    from envpredict.refcases import run_cases
 
     return {
         "IrResult": lambda: envpredict.sti_from_ir(ir, 48000, noise_db=[40] * 7),
@@ -106,7 +108,20 @@ def _factories(speech, batch_summary) -> dict:
         "BatchSummary": lambda: batch_summary,
         "PredictedTable": predicted,
         "F0Track": lambda: envpredict.yin_f0(clean, fs),
+        "DemoResult": envpredict.rate_demo_site,
+        "StipaSignalResult": lambda: _in_tmp(lambda d: envpredict.write_stipa_signal(d / "s.wav", 15.0, 24000)),
+        "FullStiSignalsResult": lambda: _in_tmp(lambda d: envpredict.write_full_sti_signals(d / "full", 24000)),
+        "ReferenceRun": lambda: run_cases(id_contains="decay_T0.3"),
     }
+
+
+def _in_tmp(write):
+    """Call ``write(folder)`` in a temporary folder removed afterwards (the result stays)."""
+    import pathlib
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as d:
+        return write(pathlib.Path(d))
 
 
 def _result_types() -> dict[str, type]:

@@ -20,19 +20,16 @@ def check_command(
 ) -> None:
     """Run the reference cases (analytic formulas, standard values, reference libraries) and
     print pass/fail per case with its source. Exits 1 if any case fails."""
-    from envpredict.refcases import run_case, select_cases, summary
+    from envpredict.refcases import run_cases
 
-    cases = select_cases(id_contains=case, method=method)
-    outcomes = []
-    with Progress("running reference cases", len(cases), quiet=as_json) as prog:
-        for i, c in enumerate(cases):
-            outcomes.append(run_case(c))
-            prog(i + 1)
-    n_fail = sum(not o.passed for o in outcomes)
+    with Progress("running reference cases", None, quiet=as_json) as prog:
+        run = run_cases(id_contains=case, method=method, progress=prog)
+    d = run.to_dict()
+    d["inputs"] = {"case": case, "method": method}
     if as_json:
-        typer.echo(dumps({**summary(outcomes), "cases": [o.to_dict() for o in outcomes]}))
+        typer.echo(dumps(d))
     else:
-        for o in outcomes:
+        for o in run.outcomes:
             typer.echo(f"{'PASS' if o.passed else 'FAIL'}  [{o.method}] {o.id}: {o.title}")
             typer.echo(f"      source: {o.source}")
             if o.error:
@@ -42,8 +39,8 @@ def check_command(
                     typer.echo(f"      {c.quantity}: expected {c.expected}, got {c.got} ({c.tolerance})"
                                f"{'' if c.passed else '  <-- outside tolerance'}")
         typer.echo("")
-        per = summary(outcomes)["methods"]
-        typer.echo(f"{len(outcomes) - n_fail} of {len(outcomes)} reference cases passed ("
+        per = d["methods"]
+        typer.echo(f"{d['passed']} of {len(run.outcomes)} reference cases passed ("
                    + ", ".join(f"{m} {v['passed']}/{v['passed'] + v['failed']}" for m, v in per.items()) + ").")
-    if n_fail:
+    if run.n_failed:
         raise typer.Exit(1)

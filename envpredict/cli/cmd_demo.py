@@ -2,56 +2,19 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import typer
 
 from ._app import app
 from ._common import JSON_HELP, Progress, dumps, fmt, table
 
 
-def load_scenario() -> tuple[dict, "object"]:
-    import json
-
-    from envpredict._data import demo_dir
-
-    folder = demo_dir()
-    with open(folder / "scenario.json", encoding="utf-8") as fh:
-        return json.load(fh), folder
-
-
-def _fmt_mid(v: float) -> str:
-    return fmt(v if v == v else None)  # NaN (a band missing) prints as a dash
-
-
-@app.command("demo")
-def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) -> None:
-    """Rate the bundled demo site (an invented ferry-terminal waiting hall): STI and decay
-    figures from its impulse response and site noise, and the indices of a recorded
-    announcement against its clean original."""
-    from envpredict.decay import mid_frequency
-    from envpredict.indirect import sti_from_ir_file
-
-    sc, folder = load_scenario()
-    with Progress("rating the demo hall", None, quiet=as_json) as prog:
-        res = sti_from_ir_file(folder / sc["ir"], noise_db=sc["noise_db"], speech_level_dba=sc["speech_level_dba"],
-                               talker=sc["talker"], progress=prog)
-    d = res.to_dict()
-    out = {"scenario": sc["title"], "ir": d}
-
-    from envpredict.pair import pair_from_files
-
-    pair = pair_from_files(folder / sc["clean"], folder / sc["degraded"]).to_dict()
-    out["announcement"] = pair
-
-    if as_json:
-        typer.echo(dumps(out))
-        return
-
+def render_demo(out: dict) -> str:
+    """Readable text for a ``demo`` result dictionary."""
+    sc, d, pair = out["scenario"], out["ir"], out["announcement"]
+    folder = Path(out["folder"])
     dec = d["decay"]
-
-    def mid(key: str) -> float:
-        # ISO 3382-1 single number (500 Hz and 1 kHz); missing if either band is missing
-        return mid_frequency(getattr(res.decay, key), res.decay.bands_hz)
-
     lines = [
         f"Demo site: {sc['title']}",
         f"  {sc['description']}",
@@ -59,8 +22,9 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
         f"{', '.join(f'{v:.0f}' for v in sc['noise_db'])} dB SPL (125 Hz - 8 kHz).",
         "",
         f"STI = {d['sti']:.2f}, qualification band {d['rating']} ({d['subjective']})",
-        (f"Reverberation (mid frequencies, 500 Hz-1 kHz): T30 = {_fmt_mid(mid('t30'))} s, "
-         f"EDT = {_fmt_mid(mid('edt'))} s"),
+        # ISO 3382-1 single number (500 Hz and 1 kHz); a dash if either band is missing
+        (f"Reverberation (mid frequencies, 500 Hz-1 kHz): T30 = {fmt(out['t30_mid_s'])} s, "
+         f"EDT = {fmt(out['edt_mid_s'])} s"),
         "",
     ]
     rows = [[f"{fc:g}", fmt(d["mti"][k]), fmt(dec["t30"][k]), fmt(dec["c50"][k], ".1f")]
@@ -72,7 +36,7 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
         f"  STOI = {fmt(pair.get('stoi'), '.3f')}   ESTOI = {fmt(pair.get('estoi'), '.3f')}   "
         f"speech-based STI = {fmt(pair.get('ssti'), '.2f')}   delay = {fmt(pair.get('delay_ms'), '.1f')} ms",
     ]
-    lines += ["", "Cautions:"] + [f"  - {c}" for c in d["cautions"]]
+    lines += ["", "Cautions:"] + [f"  - {c}" for c in out["cautions"]]
     noise = ",".join(f"{v:g}" for v in sc["noise_db"])
     lines += [
         "",
@@ -84,4 +48,17 @@ def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) 
         f"  envpredict sweep {folder / sc['clean']} {folder / sc['noise']} --snr=-15:6:3",
         "  envpredict check        (the reference-case library)",
     ]
-    typer.echo("\n".join(lines))
+    return "\n".join(lines)
+
+
+@app.command("demo")
+def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) -> None:
+    """Rate the bundled demo site (an invented ferry-terminal waiting hall): STI and decay
+    figures from its impulse response and site noise, and the indices of a recorded
+    announcement against its clean original."""
+    from envpredict.demo import rate_demo_site
+
+    with Progress("rating the demo hall", None, quiet=as_json) as prog:
+        d = rate_demo_site(progress=prog).to_dict()
+    d["inputs"] = {}
+    typer.echo(dumps(d) if as_json else render_demo(d))

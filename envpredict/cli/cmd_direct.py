@@ -35,30 +35,6 @@ NOISE_HELP = ("Optional: octave-band noise levels to ADD arithmetically, dB SPL,
               "direct method measures the noise in the recording). Needs a calibration.")
 
 
-def _write_wav(path: Path, x, fs: int) -> None:
-    import io
-
-    import soundfile as sf
-
-    from envpredict.outputs import atomic_write_bytes
-
-    buf = io.BytesIO()
-    sf.write(buf, x, fs, format="WAV", subtype="PCM_24")
-    atomic_write_bytes(path, buf.getvalue())
-
-
-def _check_wav_path(out: Path) -> None:
-    from envpredict.exceptions import InputError
-
-    if out.suffix.lower() != ".wav":
-        raise InputError(f"output '{out}' does not end in .wav", "give a file name ending in .wav")
-    if out.exists() and out.is_dir():
-        raise InputError(f"output '{out}' is a folder", "give a file name ending in .wav")
-    parent = out.parent if str(out.parent) else Path(".")
-    if not parent.exists():
-        raise InputError(f"output folder '{parent}' does not exist", "create it first or choose another path")
-
-
 @testsignal_app.command("stipa")
 def testsignal_stipa(
     out_file: Path = typer.Argument(..., help="WAV file to write (24-bit PCM).", show_default=False),
@@ -71,22 +47,11 @@ def testsignal_stipa(
 ) -> None:
     """Write the STIPA test signal (IEC 60268-16 Annex B): seven speech-shaped noise bands, each
     intensity-modulated at its two modulation frequencies (depth 0.55), peak -3 dBFS."""
-    from envpredict.audio import rms_dbfs
-    from envpredict.signals import check_generation, is_loopable, stipa_signal
+    from envpredict.signals import write_stipa_signal
 
-    _check_wav_path(out_file)
-    fs = check_generation(rate, seconds)
-    x = stipa_signal(seconds, fs, seed=seed)
-    _write_wav(out_file, x, fs)
-    d = {
-        "file": str(out_file), "signal": "STIPA", "fs": fs, "seconds": round(x.size / fs, 6), "seed": seed,
-        "peak_dbfs": std.TEST_SIGNAL_PEAK_DBFS, "rms_dbfs": round(rms_dbfs(x), 2),
-        "bands_hz": list(std.OCTAVE_BANDS_HZ),
-        "modulation_hz": [list(p) for p in std.STIPA_MODULATION_HZ],
-        "modulation_depth": std.STIPA_MODULATION_DEPTH,
-        "band_levels_db": list(std.STIPA_BAND_LEVELS_DB),
-        "loopable": is_loopable(x.size, fs, [f for p in std.STIPA_MODULATION_HZ for f in p]),
-    }
+    d = write_stipa_signal(out_file, seconds, rate, seed=seed).to_dict()
+    d["inputs"] = {"out_file": str(out_file), "seconds": seconds, "rate": rate, "seed": seed}
+    fs = d["fs"]
     loop = ("It loops without a seam." if d["loopable"] else
             "Do not loop it (only multiples of 100 s loop without a seam).")
     emit(d, lambda: (f"wrote {out_file}: STIPA test signal, {d['seconds']:g} s at {fs} Hz, seed {seed}, "
@@ -106,57 +71,20 @@ def testsignal_full(
     """Write the full-STI test signal set: 14 files, one per modulation frequency (0.63 ... 12.5 Hz,
     ascending), all seven speech-shaped noise bands modulated at that frequency (depth 1), plus
     signals.json listing order and durations."""
-    import json
+    from envpredict.signals import write_full_sti_signals
 
-    from envpredict.exceptions import InputError
-    from envpredict.outputs import atomic_directory
-    from envpredict.signals import check_generation, full_sti_plan, full_sti_signals
-
-    if out_folder.exists() and (not out_folder.is_dir() or any(out_folder.iterdir())):
-        raise InputError(f"'{out_folder}' already exists and is not an empty folder",
-                         "give the name of a new folder (nothing is overwritten)")
-    fs = check_generation(rate)
-    plan = full_sti_plan()
-    with Progress("writing full-STI signals", len(plan), quiet=as_json) as prog:
-        with atomic_directory(out_folder) as tmp:
-            for spec, x in full_sti_signals(fs, seed=seed):
-                _write_wav(tmp / spec.filename, x, fs)
-                prog.advance()
-            listing = {
-                "signal": "full STI", "fs": fs, "seed": seed, "modulation_depth": 1.0,
-                "order": "ascending modulation frequency; every file has all seven octave bands "
-                         "modulated in phase at its frequency; record each file once, in any order",
-                "total_seconds": round(sum(s.seconds for s in plan), 3),
-                "signals": [s.to_dict() for s in plan],
-            }
-            (tmp / "signals.json").write_text(json.dumps(listing, indent=2) + "\n")
-    listing["folder"] = str(out_folder)
+    with Progress("writing full-STI signals", None, quiet=as_json) as prog:
+        d = write_full_sti_signals(out_folder, rate, seed=seed, progress=prog).to_dict()
+    d["inputs"] = {"out_folder": str(out_folder), "rate": rate, "seed": seed}
 
     def human() -> str:
-        rows = [[str(s.index), f"{s.modulation_hz:g}", f"{s.seconds:.2f}", s.filename] for s in plan]
-        return (f"wrote {len(plan)} full-STI test signals to {out_folder} ({fs} Hz, seed {seed}, "
-                f"{listing['total_seconds']:.0f} s in all):\n"
+        rows = [[str(s["number"]), f"{s['modulation_hz']:g}", f"{s['seconds']:.2f}", s["file"]] for s in d["signals"]]
+        return (f"wrote {len(rows)} full-STI test signals to {out_folder} ({d['fs']} Hz, seed {seed}, "
+                f"{d['total_seconds']:.0f} s in all):\n"
                 + table(rows, ["#", "F Hz", "seconds", "file"])
                 + "\nRecord each signal completely; analyse with 'envpredict fullsti FOLDER_OF_RECORDINGS'.")
 
-    emit(listing, human, as_json, None)
-
-
-def _calibration(calibration_db, calibrator, calibrator_level, channel):
-    from envpredict.audio import calibration_from_tone, check_calibration_db, load_audio
-    from envpredict.exceptions import InputError
-
-    if calibration_db is not None and calibrator is not None:
-        raise InputError("both --calibration-db and --calibrator were given", "give one of them")
-    if calibrator is not None:
-        if calibrator_level is None:
-            raise InputError("--calibrator needs --calibrator-level", "give the calibrator's level in dB SPL, e.g. 94")
-        x, fs = load_audio(calibrator, channel, name="calibrator recording")
-        return calibration_from_tone(x, fs, calibrator_level), "calibrator"
-    if calibrator_level is not None:
-        raise InputError("--calibrator-level was given without --calibrator", "give the calibrator recording too")
-    cal = check_calibration_db(calibration_db)
-    return cal, ("offset" if cal is not None else None)
+    emit(d, human, as_json, None)
 
 
 def render_direct(d: dict) -> str:
@@ -169,7 +97,7 @@ def render_direct(d: dict) -> str:
         lines.append(f"  {r['name']}: {r['fs']} Hz, {r['duration_s']:.1f} s; test signal "
                      f"{r['signal_start_s']:.2f}-{r['signal_end_s']:.2f} s, analysed "
                      f"{r['analysed_start_s']:.2f}-{r['analysed_end_s']:.2f} s{mod}")
-    cal = (f"calibrated ({d['inputs']['calibration_source']}, {d['calibration_db']:.1f} dB), level "
+    cal = (f"calibrated ({d['calibration_source']}, {d['calibration_db']:.1f} dB), level "
            f"{d['level_dba']:.1f} dB(A)" if d["calibrated"] else "NOT calibrated (no auditory corrections)")
     lines += [
         f"Talker weights: {d['talker']}   {cal}",
@@ -204,13 +132,6 @@ def render_direct(d: dict) -> str:
     return "\n".join(lines)
 
 
-def _common_checks(talker, noise):
-    from envpredict.sti import check_talker, parse_noise_levels
-
-    check_talker(talker)
-    return parse_noise_levels(noise)
-
-
 @app.command("stipa")
 def stipa_command(
     recording: Path = typer.Argument(..., help="Recording of the STIPA test signal (WAV, FLAC or OGG).",
@@ -231,35 +152,22 @@ def stipa_command(
     bounded memory."""
     from envpredict.direct import stipa_from_file
 
-    noise_levels = _common_checks(talker, noise)
     check_report(report)
-    cal, source = _calibration(calibration_db, calibrator, calibrator_level,
-                               calibrator_channel if calibrator_channel is not None else channel)
     # steps: the blocks of both passes over the file, then the modulation depths
     with Progress("analysing STIPA recording", None, quiet=as_json) as prog:
-        result = stipa_from_file(recording, channel, calibration_db=cal, noise_db=noise_levels, talker=talker,
-                                 name=recording.name, progress=prog)
+        result = stipa_from_file(recording, channel, calibration_db=calibration_db, calibrator=calibrator,
+                                 calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
+                                 noise_db=noise, talker=talker, progress=prog)
     d = result.to_dict()
-    d["inputs"] = {"recording": str(recording), "channel": channel, "calibration_source": source,
-                   "noise": noise, "talker": talker}
+    d["inputs"] = {"recording": str(recording), "channel": channel, **_calibration_inputs(
+        calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker}
     write_report_if(report, "stipa", d, as_json=as_json, title=f"STIPA: {recording.name}")
     emit(d, lambda: render_direct(d), as_json, out)
 
 
-def _recording_paths(paths: List[Path]) -> List[Path]:
-    from envpredict.audio import AUDIO_SUFFIXES
-    from envpredict.exceptions import InputError
-
-    files: list[Path] = []
-    for p in paths:
-        if p.is_dir():
-            found = sorted(q for q in p.iterdir() if q.suffix.lower() in AUDIO_SUFFIXES and not q.name.startswith("."))
-            if not found:
-                raise InputError(f"folder '{p}' holds no audio files", "give the folder with the 14 recordings")
-            files.extend(found)
-        else:
-            files.append(p)
-    return files
+def _calibration_inputs(calibration_db, calibrator, calibrator_level, calibrator_channel) -> dict:
+    return {"calibration_db": calibration_db, "calibrator": None if calibrator is None else str(calibrator),
+            "calibrator_level": calibrator_level, "calibrator_channel": calibrator_channel}
 
 
 @app.command("fullsti")
@@ -280,21 +188,13 @@ def fullsti_command(
     """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16 direct method)."""
     from envpredict.direct import full_sti_from_files
 
-    noise_levels = _common_checks(talker, noise)
     check_report(report)
-    cal, source = _calibration(calibration_db, calibrator, calibrator_level,
-                               calibrator_channel if calibrator_channel is not None else channel)
-    files = _recording_paths(recordings)
-    if len(files) != 14:
-        from envpredict.exceptions import InputError
-
-        raise InputError(f"{len(files)} recording(s) found; the full STI needs 14 (one per modulation frequency)",
-                         "give the recordings of all 14 full-STI signals, or a folder holding only them")
-    with Progress("analysing full-STI recordings", len(files) + 1, quiet=as_json) as prog:
-        result = full_sti_from_files(files, channel, calibration_db=cal, noise_db=noise_levels, talker=talker,
-                                     progress=prog)
+    with Progress("analysing full-STI recordings", None, quiet=as_json) as prog:
+        result = full_sti_from_files(recordings, channel, calibration_db=calibration_db, calibrator=calibrator,
+                                     calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
+                                     noise_db=noise, talker=talker, progress=prog)
     d = result.to_dict()
-    d["inputs"] = {"recordings": [str(f) for f in files], "channel": channel, "calibration_source": source,
-                   "noise": noise, "talker": talker}
+    d["inputs"] = {"recordings": [str(f) for f in recordings], "channel": channel, **_calibration_inputs(
+        calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker}
     write_report_if(report, "stipa", d, as_json=as_json, title="Full STI from 14 recordings")
     emit(d, lambda: render_direct(d), as_json, out)

@@ -57,29 +57,6 @@ def render_inspect(d: dict, source: str) -> str:
     return "\n".join(lines)
 
 
-def _check_excerpt(path: Path, start: float, duration: Optional[float]) -> None:
-    """Refuse --start/--duration outside the file before any audio work (header only)."""
-    from envpredict.audio import audio_info
-    from envpredict.exceptions import InputError
-    from envpredict.timescales import MAX_SECONDS, MIN_SECONDS
-
-    fs, frames, _ = audio_info(path, "recording")
-    total = frames / fs if fs else 0.0
-    if start < 0 or start >= total:
-        raise InputError(f"--start {start:g} s is outside the recording (0 to {total:.2f} s)",
-                         "give a start inside the file")
-    if duration is not None and not MIN_SECONDS <= duration <= MAX_SECONDS:
-        raise InputError(f"--duration {duration:g} s is outside {MIN_SECONDS:g}-{MAX_SECONDS:g} s",
-                         "give a duration in that range")
-    length = (total - start) if duration is None else min(duration, total - start)
-    if length > MAX_SECONDS:
-        raise InputError(
-            f"recording '{path}' is {length:.0f} s long from the start point; inspect looks at up to "
-            f"{MAX_SECONDS:.0f} s ({MAX_SECONDS / 3600:g} h) at a time",
-            "choose an excerpt with --start and --duration (e.g. --duration 3600)",
-        )
-
-
 @app.command("inspect")
 def inspect_command(
     audio_file: Path = typer.Argument(..., help="Recording to inspect (WAV, FLAC or OGG).", show_default=False),
@@ -100,7 +77,6 @@ def inspect_command(
     from envpredict.timescales import inspect_file
 
     check_report(report)
-    _check_excerpt(audio_file, start, duration)
     with Progress("inspecting recording (blocks)", None, quiet=as_json) as prog:
         result = inspect_file(audio_file, channel, start_s=start, duration_s=duration, f0_min_hz=f0_min,
                               f0_max_hz=f0_max, progress=prog)

@@ -1,0 +1,92 @@
+"""The bundled demo site: the main jobs on the installed demo material.
+
+:func:`rate_demo_site` rates an invented ferry-terminal waiting hall: STI and decay
+figures from its impulse response and site noise (:func:`envpredict.indirect.sti_from_ir_file`),
+and the indices of a recorded announcement against its clean original
+(:func:`envpredict.pair.pair_from_files`). The scenario (levels, file names) is read
+from the demo folder's ``scenario.json``.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+from ._data import demo_dir
+from .decay import mid_frequency
+from .indirect import IrResult
+from .pair import PairResult
+from .results import jsonable
+
+#: The file of the demo folder that describes the scenario.
+SCENARIO_FILE = "scenario.json"
+
+
+def read_scenario(folder: Path | None = None) -> dict:
+    """The demo scenario (title, description, levels, file names) from ``scenario.json``."""
+    folder = demo_dir() if folder is None else Path(folder)
+    with open(folder / SCENARIO_FILE, encoding="utf-8") as fh:
+        return json.load(fh)
+
+
+@dataclass(frozen=True)
+class DemoResult:
+    """The rating of the demo site.
+
+    Attributes
+    ----------
+    scenario : the scenario as stored in ``scenario.json`` (title, description, speech
+        level, site noise per octave band, talker, file names).
+    folder : the installed demo folder.
+    ir : STI and decay figures of the hall's impulse response with the site noise.
+    announcement : STOI, ESTOI and speech-based STI of the recorded announcement.
+    t30_mid_s, edt_mid_s : mid-frequency T30 and EDT (ISO 3382-1, 500 Hz and 1 kHz;
+        NaN when a band is missing).
+    cautions : what must accompany the numbers (those of the impulse-response result).
+    notes : method details.
+    """
+
+    scenario: dict
+    folder: str
+    ir: IrResult
+    announcement: PairResult
+    t30_mid_s: float
+    edt_mid_s: float
+    cautions: tuple[str, ...] = field(default=())
+    notes: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "scenario": self.scenario, "folder": self.folder, "ir": self.ir.to_dict(),
+            "announcement": self.announcement.to_dict(), "t30_mid_s": self.t30_mid_s,
+            "edt_mid_s": self.edt_mid_s, "cautions": list(self.cautions), "notes": list(self.notes),
+        })
+
+
+def rate_demo_site(progress: Callable[[int, int], None] | None = None) -> DemoResult:
+    """Rate the bundled demo site (the impulse-response job and the pair job on its material).
+
+    Parameters
+    ----------
+    progress : optional ``progress(done, total)`` callback of the impulse-response job.
+
+    Returns
+    -------
+    DemoResult
+    """
+    from .indirect import sti_from_ir_file
+    from .pair import pair_from_files
+
+    folder = demo_dir()
+    sc = read_scenario(folder)
+    ir = sti_from_ir_file(folder / sc["ir"], noise_db=sc["noise_db"], speech_level_dba=sc["speech_level_dba"],
+                          talker=sc["talker"], progress=progress)
+    pair = pair_from_files(folder / sc["clean"], folder / sc["degraded"])
+    return DemoResult(
+        scenario=sc, folder=str(folder), ir=ir, announcement=pair,
+        t30_mid_s=mid_frequency(ir.decay.t30, ir.decay.bands_hz),
+        edt_mid_s=mid_frequency(ir.decay.edt, ir.decay.bands_hz),
+        cautions=tuple(ir.cautions),
+    )
