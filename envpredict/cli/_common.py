@@ -26,9 +26,10 @@ def check_outputs(*, out: Path | None = None, report: Path | None = None,
     folder that is (or holds) one of the ``inputs``, ``--out`` inside ``--report``, a
     missing, read-only or unwritable folder, a pipe or device as ``--out``, a report
     folder holding files envpredict did not write."""
-    from envpredict.outputs import check_output_file
+    from envpredict.outputs import check_distinct, check_output_file
 
     inputs = [i for i in inputs if i is not None]
+    check_distinct(out, report)
     if out is not None:
         check_output_file(out, inputs=inputs, option="--out")
     if report is not None:
