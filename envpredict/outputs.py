@@ -404,7 +404,10 @@ def atomic_write_bytes(path: _PathLike, data: bytes) -> Path:
         raise output_error(e, p) from None
     try:
         with os.fdopen(fd, "wb") as fh:
-            os.fchmod(fh.fileno(), mode)
+            if hasattr(os, "fchmod"):
+                os.fchmod(fh.fileno(), mode)
+            else:  # Windows before Python 3.13
+                os.chmod(tmp, mode)
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
