@@ -76,7 +76,8 @@ def _result_inputs(d: dict) -> list[str]:
     import os
 
     found = []
-    vals = list((d.get("inputs") or {}).values()) if isinstance(d.get("inputs"), dict) else []
+    given = d.get("inputs") if isinstance(d.get("inputs"), dict) else {}
+    vals = [v for k, v in given.items() if k not in ("out", "report")]  # outputs named there are not inputs
     for v in vals:
         for item in (v if isinstance(v, (list, tuple)) else [v]):
             if isinstance(item, str) and item and os.path.exists(item):
