@@ -297,6 +297,37 @@ def test_report_folder_gaining_a_file_while_the_report_is_made_is_kept(tmp_path)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["rep"], "no temporary left"
 
 
+def test_write_report_keeps_a_file_added_to_the_folder_meanwhile(tmp_path, monkeypatch):
+    import envpredict.report as report
+
+    rep = tmp_path / "rep"
+    report.write_report("compare", {"conditions": []}, rep)
+    fill = report._write_folder
+
+    def slow_fill(tmp, *a):  # a colleague saves a photo into the folder while the report is drawn
+        (rep / "photo.jpg").write_bytes(b"photo")
+        fill(tmp, *a)
+
+    monkeypatch.setattr(report, "_write_folder", slow_fill)
+    with pytest.raises(InputError, match="gained files"):
+        report.write_report("compare", {"conditions": []}, rep)
+    assert (rep / "photo.jpg").read_bytes() == b"photo"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["rep"], "no temporary left"
+
+
+def test_report_through_a_symlinked_folder_keeps_the_link(work, tmp_path, capsys):
+    real = tmp_path / "real_rep"
+    link = tmp_path / "rep_link"
+    link.symlink_to(real, target_is_directory=True)
+    code, _, err = run_cli(["ir", work / "a.wav", "--report", link], capsys)
+    assert code == 0, err
+    assert link.is_symlink() and (real / "report.html").is_file()
+    code, _, err = run_cli(["ir", work / "a.wav", "--report", link], capsys)  # replaced again, through the link
+    assert code == 0, err
+    assert link.is_symlink() and (real / "report.html").is_file()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["real_rep", "rep_link", "work"]
+
+
 def test_atomic_directory_replaces_only_an_empty_folder_by_default(tmp_path):
     from envpredict.outputs import atomic_directory
 
