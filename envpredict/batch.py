@@ -433,15 +433,15 @@ class ResultWriter:
         Without either, an existing non-empty file is refused, so that finished work
         is never discarded by accident.
         """
+        from .outputs import check_output_file
+
         p = Path(path)
-        parent = p.parent if str(p.parent) else Path(".")
-        if not parent.is_dir():
-            raise InputError(f"output folder '{parent}' does not exist", "create it first or choose another path")
-        if p.is_dir():
-            raise InputError(f"output '{p}' is a folder", "give a file name, e.g. results.csv")
         with contextlib.suppress(OSError):
-            if p.exists() and p.resolve() == manifest.path.resolve():
+            if p.exists() and os.path.samefile(p, manifest.path):
                 raise InputError(f"output '{p}' is the manifest itself", "choose another --out file")
+        # not the manifest nor any file it names; not a folder, pipe or device; a writable folder
+        inputs = [manifest.path] + [j[k] for j in manifest.jobs for k in ("ir", "clean", "degraded") if k in j]
+        check_output_file(p, inputs=inputs, option="results file")
         header = list(manifest.result_columns)
         exists = p.exists() and p.stat().st_size > 0
         if exists and not (resume or overwrite):
@@ -514,7 +514,7 @@ class ResultWriter:
     @staticmethod
     def _locked_fd(path: Path, flags: int) -> int:
         """Open ``path`` and take an exclusive advisory lock (refused if another run holds it)."""
-        fd = os.open(path, flags, 0o644)
+        fd = os.open(path, flags, 0o666)  # 0666 & ~umask, as any new file
         try:
             import fcntl
         except ImportError:  # Windows: no advisory lock

@@ -7,7 +7,9 @@ prints with ``--json``) and writes into a folder
 * ``report.html`` -- figures embedded as base64 data URIs, tables of the numbers, the
   inputs and settings used, the envpredict version and the cautions; it has no
   external references and opens offline in any browser,
-* ``result.json`` -- the dictionary itself.
+* ``result.json`` -- the dictionary itself,
+* ``.envpredict-report`` -- the list of the files above: a later report into the same
+  folder replaces only these, and refuses a folder holding anything else.
 
 The folder is written through :func:`envpredict.outputs.atomic_directory`: it appears
 whole or not at all. This module draws and lays out; it computes nothing beyond what
@@ -1210,48 +1212,107 @@ def write_report(
                       version=__version__, created=created)
     folder = Path(folder)
     check_report_folder(folder)
-    with atomic_directory(folder) as tmp:
+    with atomic_directory(folder, replaceable=_replaceable) as tmp:
         _write_folder(tmp, page, doc, result)
     return folder / "report.html"
 
 
-#: What a report folder holds; a folder with anything else in it is not replaced.
-REPORT_SUFFIXES: frozenset[str] = frozenset({".png", ".html", ".json"})
+#: Hidden file in every report folder listing the files envpredict wrote there (one name
+#: a line after its first line): only these are ever replaced or removed.
+REPORT_MANIFEST = ".envpredict-report"
+_MANIFEST_HEAD = "envpredict report folder: files written by envpredict (replaced as a whole by the next report)"
+
+#: File names a report folder of an earlier version (without a manifest) can hold: the
+#: page, the JSON and the figures of every kind. Such a folder is replaced only when it
+#: holds nothing else.
+LEGACY_REPORT_FILES: frozenset[str] = frozenset(
+    {"report.html", "result.json"} | {f"{n}.png" for n in (
+        "mtf", "transmission_index", "decay_curves", "window_sti", "band_correlation", "correlation_over_time",
+        "band_correlation_mean", "differences", "psychometric", "waveform_f0", "three_levels",
+        "timescales_per_band", "modulation_spectra")})
 
 
-def check_report_folder(folder: str | Path) -> None:
-    """Refuse a report folder that exists and holds more than an earlier report.
+def _foreign_files(folder: Path) -> list[str]:
+    """Names in an existing report folder that envpredict did not write there."""
+    names = sorted(os.listdir(folder))
+    if not names:
+        return []
+    listed: set[str] | None = None
+    mpath = folder / REPORT_MANIFEST
+    if REPORT_MANIFEST in names and mpath.is_file() and not mpath.is_symlink():
+        try:
+            lines = mpath.read_text(encoding="utf-8").splitlines()
+        except (OSError, UnicodeDecodeError):
+            lines = []
+        if lines and lines[0] == _MANIFEST_HEAD:
+            listed = {n for n in lines[1:] if n and "/" not in n and n not in (".", "..")}
+            listed.add(REPORT_MANIFEST)
+    if listed is None:  # a folder of an earlier version: only the known names, with the page
+        listed = set(LEGACY_REPORT_FILES) if "report.html" in names else set()
+    foreign = []
+    for n in names:
+        e = folder / n
+        if n not in listed or e.is_symlink() or not e.is_file():
+            foreign.append(n)
+    return foreign
+
+
+def check_report_folder(folder: str | Path, *, inputs: Sequence[str | os.PathLike | None] | None = None,
+                        out: str | os.PathLike | None = None) -> None:
+    """Refuse a report folder that cannot be written, holds files envpredict did not write
+    there, or holds an input; and an ``out`` file that is the folder or lies inside it.
 
     The report replaces its folder as a whole, so a folder with other files in it
-    (``--report .`` or a home folder by mistake) must not be used. Call it before the
-    slow work so a command fails fast.
+    (``--report .``, a home folder, a folder with a site photo) must not be used. A
+    report folder lists the files envpredict wrote in its hidden ``.envpredict-report``;
+    a folder of an earlier version without that list is used only when it holds nothing
+    but report file names. Call it before the slow work so a command fails fast.
+
+    Parameters
+    ----------
+    folder : the report folder.
+    inputs : the input files of the run (refused inside the folder).
+    out : the run's other output file (``--out``), refused inside the folder.
+
+    Raises
+    ------
+    InputError
+        With the reason and what to do.
     """
+    from .outputs import check_distinct, check_inputs_outside, check_output_folder
+
     p = Path(folder)
-    parent = p.parent if str(p.parent) else Path(".")
-    if not parent.exists():
-        raise InputError(f"folder '{parent}' for the report does not exist", "create it first or choose another path")
-    if not p.exists():
-        return
-    if not p.is_dir():
-        raise InputError(f"report path '{p}' exists and is not a folder", "give a folder name")
-    entries = list(p.iterdir())
-    is_report = all(e.is_file() and e.suffix.lower() in REPORT_SUFFIXES for e in entries) and (
-        not entries or (p / "report.html").is_file())
-    if not is_report:
-        raise InputError(f"folder '{p}' exists and holds files that are not part of a report",
-                         "give a new folder name (the report replaces its folder as a whole)")
+    target = check_output_folder(p, option="report folder")
+    check_distinct(out, p)
+    if target.is_dir():
+        foreign = _foreign_files(target)
+        if foreign:
+            shown = ", ".join(f"'{n}'" for n in foreign[:3]) + (f" and {len(foreign) - 3} more"
+                                                                 if len(foreign) > 3 else "")
+            raise InputError(f"folder '{p}' holds files that are not part of a report ({shown})",
+                             "give a new folder name (the report replaces its folder as a whole)")
+    check_inputs_outside(p, inputs, option="report folder")
+
+
+def _replaceable(old: Path) -> None:
+    """Last check on the old report folder, moved aside just before it is replaced."""
+    foreign = _foreign_files(old)
+    if foreign:
+        raise InputError(f"the report folder gained files while the report was made ({', '.join(foreign[:3])})",
+                         "move them out or give a new folder name, then run again")
 
 
 def _write_folder(tmp: Path, page: Page, doc: str, result: Mapping[str, Any]) -> None:
-    """Fill the temporary report folder (made by :func:`write_report`)."""
-    # the temporary folder is private (mode 700); give the report the usual mode
-    umask = os.umask(0)
-    os.umask(umask)
-    os.chmod(tmp, 0o777 & ~umask)
+    """Fill the temporary report folder (made by :func:`write_report`), listing every file
+    written in the folder's manifest."""
+    written = []
     for f in page.figures:
         (tmp / f"{f.name}.png").write_bytes(f.png)
+        written.append(f"{f.name}.png")
     (tmp / "report.html").write_text(doc, encoding="utf-8")
     (tmp / "result.json").write_text(json.dumps(result, indent=2, allow_nan=False) + "\n", encoding="utf-8")
+    written += ["report.html", "result.json"]
+    (tmp / REPORT_MANIFEST).write_text("\n".join([_MANIFEST_HEAD, *written]) + "\n", encoding="utf-8")
 
 
 def figure_names(folder: str | Path) -> list[str]:
@@ -1259,4 +1320,5 @@ def figure_names(folder: str | Path) -> list[str]:
     return sorted(p.name for p in Path(folder).glob("*.png"))
 
 
-__all__: Sequence[str] = ("KINDS", "check_report_folder", "figure_names", "render_html", "write_report")
+__all__: Sequence[str] = ("KINDS", "REPORT_MANIFEST", "check_report_folder", "figure_names", "render_html",
+                          "write_report")

@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 
 from envpredict import __version__
-from envpredict.exceptions import InputError
+from envpredict.exceptions import ComputationError, InputError
 from envpredict.report import KINDS, write_report
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
@@ -385,13 +385,14 @@ def test_failure_leaves_nothing_half_written(tmp_path, monkeypatch):
         raise OSError("disk full")
 
     monkeypatch.setattr(rep, "_write_folder", broken)
-    with pytest.raises(OSError):
+    # an OSError while writing is the documented one-line error (exit 1), not a raw OSError
+    with pytest.raises(ComputationError, match="could not be written"):
         write_report("sweep", d, folder)
     # the previous report is untouched and no temporary folder is left behind
     assert sorted(p.name for p in folder.iterdir()) == before
     assert (folder / "report.html").read_bytes() == old_html
     assert sorted(p.name for p in tmp_path.iterdir()) == ["rep"]
-    with pytest.raises(OSError):
+    with pytest.raises(ComputationError):
         write_report("sweep", d, tmp_path / "new")
     assert not (tmp_path / "new").exists()
 

@@ -7,6 +7,8 @@ that ``envpredict --help`` stays fast.
 
 from __future__ import annotations
 
+import errno
+import os
 import sys
 
 from ._app import STATE, app
@@ -35,8 +37,44 @@ EXIT_INTERRUPTED = 130
 
 
 def _fail(msg: str, code: int) -> None:
-    sys.stderr.write(f"error: {msg}\n")
+    if sys.stderr is not None:
+        try:
+            sys.stderr.write(f"error: {msg}\n")
+            sys.stderr.flush()
+        except (OSError, ValueError):
+            pass
     raise SystemExit(code)
+
+
+def _stdout_failure() -> OSError | None:
+    """The error of flushing standard output, if what is still buffered cannot be written."""
+    out = sys.stdout
+    if out is None:
+        return OSError(errno.EBADF, "standard output is closed")
+    try:
+        out.flush()
+    except OSError as e:
+        return e
+    except ValueError:  # closed file object
+        return OSError(errno.EBADF, "standard output is closed")
+    return None
+
+
+def _from_echo(e: BaseException) -> bool:
+    """Whether an OSError was raised while printing (click's echo) rather than by a file."""
+    tb = e.__traceback__
+    while tb is not None:
+        code = tb.tb_frame.f_code
+        if code.co_name == "echo" and os.path.basename(os.path.dirname(code.co_filename)) in ("click", "_click"):
+            return True
+        tb = tb.tb_next
+    return False
+
+
+def _fail_stdout(e: OSError) -> None:
+    from ._common import stdout_error
+
+    _fail(stdout_error(e).one_line(), 1)
 
 
 def main(argv: list[str] | None = None) -> None:
@@ -53,6 +91,8 @@ def main(argv: list[str] | None = None) -> None:
     click_errors, no_args, exits, aborts = _click_classes()
     args = sys.argv[1:] if argv is None else list(argv)
     debug = "--debug" in args
+    if sys.stdout is None:  # started with standard output closed (`>&-`): the result would be lost
+        _fail("standard output is closed — run the command with its output going to a file or terminal", 2)
     command = typer_main_command()
     try:
         rv = command.main(args=args, prog_name="envpredict", standalone_mode=False)
@@ -62,6 +102,9 @@ def main(argv: list[str] | None = None) -> None:
         _fail(e.one_line(), e.exit_code)
     except exits as e:
         code = getattr(e, "exit_code", 0)
+        failure = _stdout_failure() if not code else None
+        if failure is not None:
+            _fail_stdout(failure)
         if code == EXIT_INTERRUPTED:  # typer turns Ctrl-C into Exit(130)
             _fail("interrupted — run the command again (batch: add --resume to finish the rows)", EXIT_INTERRUPTED)
         raise SystemExit(code) from None
@@ -81,8 +124,17 @@ def main(argv: list[str] | None = None) -> None:
         _fail(f"{msg} — {hint}", 2)
     except KeyboardInterrupt:
         _fail("interrupted", EXIT_INTERRUPTED)
-    except BrokenPipeError:
+    except BrokenPipeError:  # the reader went away (`| head`): stop quietly, as shell tools do
+        from ._common import silence_stdout
+
+        silence_stdout()
         raise SystemExit(1) from None
+    except OSError as e:
+        if _from_echo(e):  # printed by a command directly (typer.echo), not through _common.echo
+            _fail_stdout(e)
+        if debug or STATE.get("debug"):
+            raise
+        _fail(f"internal failure ({type(e).__name__}: {e}) — rerun with --debug and report it", 1)
     except MemoryError:
         if debug:
             raise
@@ -91,6 +143,9 @@ def main(argv: list[str] | None = None) -> None:
         if debug or STATE.get("debug"):
             raise
         _fail(f"internal failure ({type(e).__name__}: {e}) — rerun with --debug and report it", 1)
+    failure = _stdout_failure()
+    if failure is not None:
+        _fail_stdout(failure)
     if isinstance(rv, int) and rv:
         raise SystemExit(rv)
 

@@ -6,7 +6,7 @@ import json
 import sys
 import time
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any, Callable, Iterable
 
 import typer
 
@@ -20,12 +20,69 @@ REPORT_HELP = ("Also write a report folder: PNG figures and a self-contained rep
                "(opens offline in a browser). A new folder, or an earlier report folder (replaced as a whole).")
 
 
-def check_report(report: Path | None) -> None:
-    """Refuse an unusable --report folder before the slow work."""
+def check_outputs(*, out: Path | None = None, report: Path | None = None,
+                  inputs: Iterable[Path | str | None] = ()) -> None:
+    """Refuse unusable outputs before the slow work: an ``--out`` file or ``--report``
+    folder that is (or holds) one of the ``inputs``, ``--out`` inside ``--report``, a
+    missing, read-only or unwritable folder, a pipe or device as ``--out``, a report
+    folder holding files envpredict did not write."""
+    from envpredict.outputs import check_distinct, check_output_file
+
+    inputs = [i for i in inputs if i is not None]
+    check_distinct(out, report)
+    if out is not None:
+        check_output_file(out, inputs=inputs, option="--out")
     if report is not None:
         from envpredict.report import check_report_folder
 
-        check_report_folder(report)
+        check_report_folder(report, inputs=inputs, out=out)
+
+
+def _command_paths() -> tuple[Path | None, list[Path]]:
+    """``--out`` and the input paths of the running command, from its parameters."""
+    import importlib
+
+    ctx = None
+    for modname in ("typer._click.globals", "click.globals"):  # typer may vendor its own click
+        try:
+            ctx = importlib.import_module(modname).get_current_context(silent=True)
+        except (ImportError, AttributeError):
+            continue
+        if ctx is not None:
+            break
+    if ctx is None:
+        return None, []
+    out = ctx.params.get("out")
+    inputs: list[Path] = []
+    for name, v in ctx.params.items():
+        if name in ("out", "report"):
+            continue
+        for item in (v if isinstance(v, (list, tuple)) else [v]):
+            if isinstance(item, Path):
+                inputs.append(item)
+    return (out if isinstance(out, Path) else None), inputs
+
+
+def check_report(report: Path | None) -> None:
+    """Refuse unusable outputs of the running command before the slow work: as
+    :func:`check_outputs`, with ``--out`` and the inputs taken from the command's own
+    parameters (every path parameter other than ``--out`` and ``--report``)."""
+    out, inputs = _command_paths()
+    check_outputs(out=out, report=report, inputs=inputs)
+
+
+def _result_inputs(d: dict) -> list[str]:
+    """Strings of the result's ``inputs`` object that name existing files (a last guard)."""
+    import os
+
+    found = []
+    given = d.get("inputs") if isinstance(d.get("inputs"), dict) else {}
+    vals = [v for k, v in given.items() if k not in ("out", "report")]  # outputs named there are not inputs
+    for v in vals:
+        for item in (v if isinstance(v, (list, tuple)) else [v]):
+            if isinstance(item, str) and item and os.path.exists(item):
+                found.append(item)
+    return found
 
 
 def write_report_if(report: Path | None, kind: str, d: dict, *, title: str | None = None,
@@ -34,11 +91,52 @@ def write_report_if(report: Path | None, kind: str, d: dict, *, title: str | Non
     (``to_dict()`` plus ``inputs``) when one was asked for."""
     if report is None:
         return
-    from envpredict.report import write_report
+    from envpredict.report import check_report_folder, write_report
 
+    check_report_folder(report, inputs=_result_inputs(d))  # the early check's last guard
     path = write_report(kind, d, report, title=title)
     if not as_json:
         note(f"report written: {path}")
+
+
+def silence_stdout() -> None:
+    """Point the process's standard output at the null device (after it failed), so that
+    Python's own flush at exit cannot print a second error."""
+    import os
+
+    try:
+        fd = sys.stdout.fileno()
+        null = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(null, fd)
+        os.close(null)
+    except (OSError, ValueError, AttributeError):
+        pass
+
+
+def stdout_error(e: OSError):
+    """The one-line error (exit 1) for a result that could not be printed."""
+    import errno
+
+    from envpredict.exceptions import ComputationError
+
+    silence_stdout()
+    why = "it is closed" if e.errno == errno.EBADF else (e.strerror or str(e))
+    return ComputationError(f"the result could not be written to standard output ({why})",
+                            "send the output to a file or a terminal, or use --out FILE")
+
+
+def echo(text: str, nl: bool = True) -> None:
+    """Print ``text`` on standard output; a closed or full output is an error, not a lost result."""
+    if sys.stdout is None:
+        import errno
+
+        raise stdout_error(OSError(errno.EBADF, "standard output is closed"))
+    try:
+        typer.echo(text, nl=nl)
+    except BrokenPipeError:
+        raise
+    except OSError as e:
+        raise stdout_error(e) from None
 
 
 def dumps(obj: Any) -> str:
@@ -47,15 +145,13 @@ def dumps(obj: Any) -> str:
 
 def emit(result: dict, human: Callable[[], str], as_json: bool, out: Path | None) -> None:
     """Print ``result`` as JSON or as the human text, and write ``--out`` atomically."""
-    from envpredict.outputs import atomic_write_text
+    from envpredict.outputs import atomic_write_text, check_output_file
 
     text = dumps(result)
     if out is not None:
+        check_output_file(out, inputs=_result_inputs(result), option="--out")  # the early check's last guard
         atomic_write_text(out, text + "\n")
-    if as_json:
-        typer.echo(text)
-    else:
-        typer.echo(human())
+    echo(text if as_json else human())
 
 
 def note(msg: str) -> None:

@@ -10,7 +10,7 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, note, table, write_report_if
+from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, note, table, write_report_if
 
 MANIFEST_HELP = ("Manifest CSV: columns 'clean' and 'degraded' (pair rows) or 'ir' (impulse-response rows), "
                  "paths relative to the manifest; optional 'channel', and for IR rows 'noise', 'speech_level', "
@@ -169,7 +169,7 @@ def compare_command(
     """Per condition: mean index, paired difference to the baseline, bootstrap 95 % CI, Wilcoxon p."""
     from envpredict.stats import compare_conditions_file
 
-    check_report(report)
+    check_outputs(out=out, report=report, inputs=[results])
     res = compare_conditions_file(results, by=by, baseline=baseline, index=index, pair_on=pair_on)
     d = res.to_dict()
     d["inputs"] = {"results": str(results), "by": by, "baseline": baseline, "index": index,

@@ -11,7 +11,7 @@ from envpredict import standards as std
 
 from ._app import app
 from ._common import (
-    CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if,
+    CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, table, write_report_if,
 )
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
@@ -76,7 +76,7 @@ def ir_command(
     """STI (IEC 60268-16 indirect method) and ISO 3382-1 decay figures from an impulse response."""
     from envpredict.indirect import sti_from_ir_file
 
-    check_report(report)
+    check_outputs(out=out, report=report, inputs=[ir_file])
     with Progress("analysing impulse response", None, quiet=as_json) as prog:
         result = sti_from_ir_file(ir_file, channel=channel, noise_db=noise, speech_level_dba=speech_level,
                                   talker=talker, auditory=not no_auditory, progress=prog)

@@ -9,7 +9,7 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
+from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, table, write_report_if
 
 CHANNEL_HELP = ("Channel to use from any multi-channel file (0 = first); mono files use their only "
                 "channel. Required when a file has several channels.")
@@ -80,13 +80,9 @@ def pair_command(
     report: Path | None = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, with delay alignment and per-band diagnostics."""
-    from envpredict.outputs import check_output_file
     from envpredict.pair import pair_from_files
 
-    # refuse an unusable --out before the (slower) audio work, as the writer would after it
-    if out is not None:
-        check_output_file(out)
-    check_report(report)
+    check_outputs(out=out, report=report, inputs=[clean, degraded])  # before the (slower) audio work
     with Progress("analysing pair", None, quiet=as_json) as prog:
         result = pair_from_files(clean, degraded, channel=channel, align=not no_align, max_delay_s=max_delay,
                                  chunk_s=chunk, progress=prog)

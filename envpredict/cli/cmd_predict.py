@@ -11,7 +11,7 @@ from envpredict.tables import CORRECT_COLUMN, PREDICTED_COLUMN, TRIALS_COLUMN
 
 from ._app import app
 from ._common import (
-    CHANNEL_HELP, JSON_HELP, REPORT_HELP, Progress, check_report, dumps, emit, fmt, note, table, write_report_if,
+    CHANNEL_HELP, JSON_HELP, REPORT_HELP, Progress, check_outputs, dumps, echo, emit, fmt, note, table, write_report_if,
 )
 
 
@@ -70,6 +70,7 @@ def fitmap_command(
     """Fit a mapping from an index to % correct (binomial maximum likelihood) on pilot scores."""
     from envpredict.mapping import fit_mapping_file
 
+    check_outputs(out=out, inputs=[scores])
     m, data = fit_mapping_file(scores, index=index, correct=correct, trials=trials, shape=shape, guess=guess,
                                lapse=lapse)
     d = m.to_dict()
@@ -154,7 +155,7 @@ def sweep_command(
     """Predicted index and % correct against SNR, and the SNR at target scores (the SRT)."""
     from envpredict.sweep import DEFAULT_INDEX, snr_sweep_files
 
-    check_report(report)
+    check_outputs(out=out, report=report, inputs=[clean, noise, ir, map_file])
     shown = index or (None if map_file is not None else DEFAULT_INDEX)  # the mapping's index is read by the API
     with Progress(f"sweeping {shown}" if shown else "sweeping", None, quiet=as_json) as prog:
         res = snr_sweep_files(clean, noise, ir=ir, snr_db=snr, index=index, mapping=map_file, targets=target,
@@ -190,15 +191,16 @@ def predict_command(
     """Add a predicted % correct column to a results table, using a fitted mapping."""
     from envpredict.mapping import predict_file
 
+    check_outputs(out=out, inputs=[map_file])  # --out may be RESULTS itself (an in-place update, atomic)
     tab = predict_file(results, map_file, index_column=column, column=name, out=out)
     summary = tab.to_dict()
     summary["inputs"] = {"results": str(results), "map": str(map_file), "out": None if out is None else str(out),
                          "column": column, "name": name}
     if as_json:
-        typer.echo(dumps(summary))
+        echo(dumps(summary))
         return
     if out is None:
-        typer.echo(tab.csv_text(), nl=False)
+        echo(tab.csv_text(), nl=False)
     msg = (f"{tab.n_predicted} of {tab.n_rows} rows predicted from '{tab.index_column}'"
            + (f", {tab.n_blank} without an index value" if tab.n_blank else "")
            + (f", {tab.n_extrapolated} extrapolated outside the fitted range" if tab.n_extrapolated else "")
