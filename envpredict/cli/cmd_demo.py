@@ -12,6 +12,8 @@ from ._common import JSON_HELP, Progress, dumps, fmt, table
 
 def render_demo(out: dict) -> str:
     """Readable text for a ``demo`` result dictionary."""
+    from envpredict.sti import format_index
+
     sc, d, pair = out["scenario"], out["ir"], out["announcement"]
     folder = Path(out["folder"])
     dec = d["decay"]
@@ -21,7 +23,7 @@ def render_demo(out: dict) -> str:
         f"  Speech {sc['speech_level_dba']:.0f} dB(A) at the listener; site noise per octave band "
         f"{', '.join(f'{v:.0f}' for v in sc['noise_db'])} dB SPL (125 Hz - 8 kHz).",
         "",
-        f"STI = {d['sti']:.2f}, qualification band {d['rating']} ({d['subjective']})",
+        f"STI = {format_index(d['sti'])}, qualification band {d['rating']} ({d['subjective']})",
         # ISO 3382-1 single number (500 Hz and 1 kHz); a dash if either band is missing
         (f"Reverberation (mid frequencies, 500 Hz-1 kHz): T30 = {fmt(out['t30_mid_s'])} s, "
          f"EDT = {fmt(out['edt_mid_s'])} s"),

@@ -91,6 +91,10 @@ def render_direct(d: dict) -> str:
     """Readable text for a direct-method result dictionary."""
     import numpy as np
 
+    from envpredict.sti import format_index, verdict_decimals
+
+    unc_spec = f".{verdict_decimals(d['sti'])}f"  # the uncertainty with as many decimals as the STI
+
     lines = [f"Method: {d['method']}"]
     for r in d["recordings"]:
         mod = f", {r['modulation_hz']:g} Hz signal" if "modulation_hz" in r else ""
@@ -102,7 +106,8 @@ def render_direct(d: dict) -> str:
     lines += [
         f"Talker weights: {d['talker']}   {cal}",
         "",
-        f"STI = {d['sti']:.2f} ± {fmt(d['uncertainty'])}   qualification band {d['rating']}   ({d['subjective']})",
+        f"STI = {format_index(d['sti'])} ± {fmt(d['uncertainty'], unc_spec)}   qualification band {d['rating']}   "
+        f"({d['subjective']})",
         f"(± is the standard uncertainty from {len(d['window_sti'])} analysis windows)",
         "",
     ]
