@@ -228,3 +228,60 @@ def test_stipa_json_is_to_dict_plus_inputs(write_wav, capsys):
     d = _cli_json(["stipa", p], capsys)
     d.pop("inputs")
     assert d == envpredict.stipa_from_file(p, name=p.name).to_dict()
+
+
+@pytest.fixture(scope="module")
+def corpus_files(tmp_path_factory, speech):
+    """A small results table, pilot scores and a noise file for the table commands."""
+    import soundfile as sf
+
+    clean, _, fs = speech
+    d = tmp_path_factory.mktemp("vocab_tables")
+    rows = ["condition,item,stoi"] + [f"{c},{i},{0.6 + 0.01 * i - 0.05 * (c == 'b'):.3f}"
+                                      for i in range(6) for c in ("a", "b")]
+    (d / "results.csv").write_text("\n".join(rows) + "\n")
+    (d / "pilot.csv").write_text("stoi,correct,trials\n0.45,8,100\n0.55,22,100\n0.65,48,100\n0.75,74,100\n"
+                                 "0.85,90,100\n")
+    sf.write(d / "clean.wav", clean, fs, subtype="FLOAT")
+    sf.write(d / "noise.wav", 0.05 * np.random.default_rng(3).standard_normal(3 * clean.size), fs, subtype="FLOAT")
+    return d
+
+
+def test_compare_json_is_to_dict_plus_inputs(corpus_files, capsys):
+    p = corpus_files / "results.csv"
+    d = _cli_json(["compare", p, "--by", "condition", "--baseline", "a", "--pair-on", "item"], capsys)
+    d.pop("inputs")
+    assert d == envpredict.compare_conditions_file(p, by="condition", baseline="a", pair_on="item").to_dict()
+
+
+def test_fitmap_and_predict_json_are_to_dict_plus_inputs(corpus_files, capsys):
+    scores, results = corpus_files / "pilot.csv", corpus_files / "results.csv"
+    d = _cli_json(["fitmap", scores, "--index", "stoi"], capsys)
+    d.pop("inputs")
+    m, _ = envpredict.fit_mapping_file(scores, index="stoi")
+    assert d == m.to_dict()
+    (corpus_files / "map.json").write_text(json.dumps(d))
+    d = _cli_json(["predict", results, "--map", corpus_files / "map.json"], capsys)
+    d.pop("inputs")
+    assert d == envpredict.predict_file(results, corpus_files / "map.json").to_dict()
+
+
+def test_sweep_json_is_to_dict_plus_inputs(corpus_files, capsys):
+    c, n = corpus_files / "clean.wav", corpus_files / "noise.wav"
+    d = _cli_json(["sweep", c, n, "--snr=-6:0:6", "--segments", "2"], capsys)
+    d.pop("inputs")
+    assert d == envpredict.snr_sweep_files(c, n, snr_db="-6:0:6", n_segments=2).to_dict()
+
+
+def test_batch_json_is_to_dict_plus_inputs(tmp_path, capsys):
+    import soundfile as sf
+
+    sf.write(tmp_path / "a.wav", noise_decay(0.6, seed=5), 48000, subtype="FLOAT")
+    manifest = tmp_path / "m.csv"
+    manifest.write_text("ir,position\na.wav,front\n")
+    d = _cli_json(["batch", manifest, "--out", tmp_path / "out.csv", "--workers", "1"], capsys)
+    d.pop("inputs")
+    api = envpredict.run_batch(manifest, tmp_path / "out2.csv", workers=1).to_dict()
+    for timing in ("seconds", "rows_per_s"):  # wall-clock figures of two runs
+        d.pop(timing), api.pop(timing)
+    assert d == api
