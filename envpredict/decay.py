@@ -611,7 +611,8 @@ def mid_frequency(values: Sequence[float | None] | np.ndarray,
 
 def mid_frequency_notes(decay: DecayResult, name: str) -> tuple[str, ...]:
     """The notes of :func:`decay_figures` that explain a missing 500 Hz or 1 kHz value of
-    figure ``name`` ("t30", "edt", ...); empty when there is none."""
+    figure ``name`` ("t30", "edt", ...): "not computed" and "not given" notes, not the
+    cautions about a value that was kept; empty when there is none."""
     fig = name.upper()
-    return tuple(n for n in decay.notes if n.startswith(fig) and any(f" at {b:g} Hz" in n for b in
-                                                                     std.MID_FREQUENCY_BANDS_HZ))
+    return tuple(n for n in decay.notes if n.startswith(f"{fig} not ") and any(f" at {b:g} Hz" in n for b in
+                                                                              std.MID_FREQUENCY_BANDS_HZ))
