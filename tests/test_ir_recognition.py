@@ -396,3 +396,23 @@ def test_straight_decays_get_no_shape_caution():
     for T in (0.5, 1.5):
         r = sti_from_ir(noise_decay(T, seconds=1.5 * T + 0.6, seed=5, floor_db=-70), FS)
         assert not r.decay.bent and not r.decay.withheld, r.decay.notes
+
+
+def test_batch_row_with_noise_is_an_error_row(tmp_path):
+    # batch scores IR rows with sti_from_ir_file: the refusal becomes that row's error
+    import csv
+
+    import soundfile as sf
+
+    from envpredict.batch import run_batch
+    from envpredict.tables import read_results
+
+    sf.write(tmp_path / "room.wav", IMPULSE_RESPONSES["10x8x3.5 m T0.8, clean"](), FS, subtype="PCM_24")
+    sf.write(tmp_path / "noise.wav", _pink(10, 8), FS, subtype="PCM_24")
+    with open(tmp_path / "m.csv", "w", newline="") as f:
+        csv.writer(f).writerows([["ir"], ["room.wav"], ["noise.wav"]])
+    s = run_batch(tmp_path / "m.csv", tmp_path / "r.csv", workers=1)
+    assert (s.total, s.failed) == (2, 1)
+    _, rows = read_results(tmp_path / "r.csv")
+    assert not rows[0]["error"] and rows[1]["error"].startswith("'noise.wav' " + REFUSED)
+    assert rows[1]["sti"] in ("", None)
