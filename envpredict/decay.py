@@ -21,6 +21,7 @@ from typing import Sequence
 import numpy as np
 
 from . import standards as std
+from .exceptions import InputError
 from .results import jsonable
 
 #: Lundeby's procedure (Lundeby et al. 1995): see :mod:`envpredict.standards` for each
@@ -66,6 +67,135 @@ def onset_index(x: np.ndarray) -> int:
     e = np.square(np.asarray(x, dtype=np.float64))
     thr = e.max() * 10.0 ** (-std.ONSET_THRESHOLD_DB / 10.0)
     return int(np.argmax(e >= thr))
+
+
+@dataclass(frozen=True)
+class ImpulseShape:
+    """How much a signal looks like an impulse response (see :func:`impulse_shape`).
+
+    ``prominence_db``: highest envelope block over the background, dB;
+    ``fall_s``: time the noise-compensated Schroeder energy takes to fall
+    :data:`~envpredict.standards.IR_DECAY_TEST_DB` after the onset, s (NaN: never);
+    ``after_onset_s``: length of the signal from the onset on, s;
+    ``steady_s``: length of the analysed envelope (the whole signal), s.
+    """
+
+    prominence_db: float
+    fall_s: float
+    after_onset_s: float
+    steady_s: float
+
+    @property
+    def fall_share(self) -> float:
+        """``fall_s`` as a share of ``after_onset_s``."""
+        return self.fall_s / self.after_onset_s if self.after_onset_s > 0 else float("nan")
+
+    @property
+    def has_onset(self) -> bool:
+        return bool(self.prominence_db >= std.IR_MIN_ONSET_PROMINENCE_DB)
+
+    @property
+    def has_decay(self) -> bool:
+        return bool(np.isfinite(self.fall_s) and self.fall_share <= std.IR_MAX_DECAY_SHARE
+                    and self.fall_s <= std.IR_MAX_REVERBERATION_S * std.IR_DECAY_TEST_DB / 60.0)
+
+    @property
+    def is_impulse_response(self) -> bool:
+        return self.has_onset and self.has_decay
+
+
+def impulse_shape(x: np.ndarray, fs: float) -> ImpulseShape:
+    """Measure the onset and the decay of a signal: is it an impulse response?
+
+    The squared signal (its mean removed, so that a DC offset does not count as
+    energy) is averaged in blocks of :data:`~envpredict.standards.IR_ENVELOPE_BLOCK_S`.
+    The *background* is the median block or the mean of the last 10 % of the blocks
+    (Lundeby's first noise estimate), whichever is lower: the noise floor of an impulse
+    response, or the end of one cut while still decaying. The *onset prominence* is the
+    highest block over the background. The *fall* is the time the backward-integrated
+    (Schroeder) energy of the blocks from the onset (ISO 3382-1:2009, A.3.2: the first
+    block within 20 dB of the highest), with the background taken off each block, takes
+    to fall by :data:`~envpredict.standards.IR_DECAY_TEST_DB`. An impulse response
+    has a prominent onset and falls within a fraction of its length; a steady signal
+    (noise, a test signal, music) has no prominent onset, and speech, whose energy goes
+    on, needs most of its length to fall (the thresholds and their reasons are in
+    :mod:`envpredict.standards`).
+
+    Parameters
+    ----------
+    x : 1-D signal (validated).
+    fs : sample rate, Hz.
+
+    Returns
+    -------
+    ImpulseShape
+
+    References
+    ----------
+    M. R. Schroeder, "New method of measuring reverberation time", JASA 37 (1965) 409-412.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rng = np.random.default_rng(0)
+    >>> t = np.arange(48000 * 2) / 48000
+    >>> impulse_shape(rng.standard_normal(t.size) * np.exp(-6.9 * t), 48000).is_impulse_response
+    True
+    >>> impulse_shape(rng.standard_normal(t.size), 48000).is_impulse_response
+    False
+    """
+    a = np.asarray(x, dtype=np.float64)
+    win = max(1, int(round(std.IR_ENVELOPE_BLOCK_S * fs)))
+    n = (a.size // win) * win
+    if n == 0:
+        return ImpulseShape(0.0, float("nan"), a.size / fs, a.size / fs)
+    blocks = a[:n].reshape(-1, win)
+    centred = blocks - a.mean()
+    energy = np.einsum("ij,ij->i", centred, centred) / win
+    top = int(np.argmax(energy))
+    tail = max(1, int(energy.size * NOISE_TAIL_FRACTION))
+    background = min(float(np.median(energy)), float(energy[-tail:].mean()))
+    peak = float(energy[top])
+    prominence = 10.0 * np.log10(max(peak, TINY_ENERGY) / max(background, TINY_ENERGY))
+    start = int(np.argmax(energy >= peak * 10.0 ** (-std.ONSET_THRESHOLD_DB / 10.0)))
+    excess = np.maximum(energy[start:] - background, 0.0)
+    remaining = np.cumsum(excess[::-1])[::-1]
+    after = excess.size * win / fs
+    if remaining[0] <= 0:
+        fall = float("nan")
+    else:
+        below = np.flatnonzero(remaining <= remaining[0] * 10.0 ** (-std.IR_DECAY_TEST_DB / 10.0))
+        fall = float(below[0] * win / fs) if below.size else float("nan")
+    return ImpulseShape(prominence_db=float(prominence), fall_s=fall, after_onset_s=after, steady_s=n / fs)
+
+
+def check_impulse_response(x: np.ndarray, fs: float, label: str = "the input") -> ImpulseShape:
+    """Refuse a signal that is not an impulse response (:func:`impulse_shape`).
+
+    Raises
+    ------
+    InputError
+        One line saying what the signal looks like and what to do instead.
+    """
+    shape = impulse_shape(x, fs)
+    if shape.is_impulse_response:
+        return shape
+    fix = ("record or compute an impulse response (sweep or impulse method), or analyse a recorded STIPA "
+           "signal with 'envpredict stipa'")
+    if not shape.has_onset:
+        what = (f"{label} does not look like an impulse response: its level stays within "
+                f"{shape.prominence_db:.0f} dB of its background for {shape.steady_s:.0f} s, with no onset "
+                f"{std.IR_MIN_ONSET_PROMINENCE_DB:.0f} dB above it (steady noise, speech, music or a "
+                "test-signal recording?)")
+    else:
+        took = (f"takes {shape.fall_s:.1f} s ({100 * shape.fall_share:.0f} % of it)" if np.isfinite(shape.fall_s)
+                else "does not")
+        what = (f"{label} does not look like an impulse response: after its onset its energy {took} to fall "
+                f"{std.IR_DECAY_TEST_DB:.0f} dB, where an impulse response falls within "
+                f"{100 * std.IR_MAX_DECAY_SHARE:.0f} % of its length and "
+                f"{std.IR_MAX_REVERBERATION_S * std.IR_DECAY_TEST_DB / 60.0:.0f} s (speech, music or a recording "
+                "of a test signal?)")
+    raise InputError(what, fix)
 
 
 def _smooth_db(e: np.ndarray, win: int) -> tuple[np.ndarray, np.ndarray]:
@@ -213,21 +343,50 @@ def tail_energy(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = 
     return e_tc * T / std.DECAY_TAIL_DIVISOR * fs
 
 
-def fit_decay_time(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) -> float:
-    """Decay time (s, extrapolated to 60 dB) from a least-squares fit of the curve between
-    ``hi_db`` and ``lo_db`` (first passages). NaN if the curve does not reach ``lo_db``."""
+@dataclass(frozen=True)
+class DecayFit:
+    """A least-squares line over one evaluation range of a decay curve.
+
+    ``time_s``: decay time extrapolated to 60 dB (NaN: no fit); ``xi_permille``: the
+    non-linearity 1000 (1 - r^2) of ISO 3382-2:2008, Annex B (from memory); ``span_time_s``: the time the
+    curve itself takes to fall through the range, scaled to 60 dB (the chord).
+    """
+
+    time_s: float
+    xi_permille: float
+    span_time_s: float
+
+
+_NO_FIT = DecayFit(float("nan"), float("nan"), float("nan"))
+
+
+def fit_decay_range(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) -> DecayFit:
+    """Fit a line to the curve between ``hi_db`` and ``lo_db`` (first passages) and measure
+    how straight the curve is there (ISO 3382-2:2008, Annex B, from memory: xi = 1000 (1 - r^2))."""
     c = curve_db
     finite = np.isfinite(c)
     below_lo = np.flatnonzero(finite & (c <= lo_db))
     if below_lo.size == 0:
-        return float("nan")
+        return _NO_FIT
     i_lo = int(below_lo[0])
     i_hi = int(np.argmax(finite & (c <= hi_db)))
     if i_lo - i_hi < MIN_FIT_POINTS - 1:
-        return float("nan")
+        return _NO_FIT
     t = np.arange(i_hi, i_lo + 1) / fs
-    _, slope = _fit_line(t, c[i_hi : i_lo + 1])
-    return float(-60.0 / slope) if slope < 0 else float("nan")
+    y = c[i_hi : i_lo + 1]
+    _, slope = _fit_line(t, y)
+    if not slope < 0:
+        return _NO_FIT
+    dt, dy = t - t.mean(), y - y.mean()
+    r2 = float((dt @ dy) ** 2 / ((dt @ dt) * (dy @ dy))) if (dy @ dy) > 0 else 1.0
+    span = 60.0 * (t[-1] - t[0]) / max(float(y[0] - y[-1]), TINY_ENERGY)
+    return DecayFit(float(-60.0 / slope), 1000.0 * (1.0 - r2), float(span))
+
+
+def fit_decay_time(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) -> float:
+    """Decay time (s, extrapolated to 60 dB) from a least-squares fit of the curve between
+    ``hi_db`` and ``lo_db`` (first passages). NaN if the curve does not reach ``lo_db``."""
+    return fit_decay_range(curve_db, fs, hi_db, lo_db).time_s
 
 
 #: Sample rate of the Schroeder curves kept in a result for its figures, Hz: 5 ms steps
@@ -252,6 +411,13 @@ class DecayResult:
     notes: tuple[str, ...] = field(default=())
     curves_db: np.ndarray | None = field(default=None, repr=False, compare=False)
     curve_rate_hz: float = 0.0
+    #: non-linearity xi (per mille, ISO 3382-2 Annex B) of the "edt", "t20" and "t30" fits,
+    #: shape (3, bands); NaN where no fit was made. Explained in ``notes``; not in to_dict().
+    xi_permille: np.ndarray | None = field(default=None, repr=False, compare=False)
+    #: (figure, band Hz) pairs whose curve is not straight (xi above the limit), and those
+    #: whose fitted time was withheld as beyond what the curve supports.
+    bent: tuple[tuple[str, float], ...] = field(default=(), compare=False)
+    withheld: tuple[tuple[str, float], ...] = field(default=(), compare=False)
 
     def to_dict(self) -> dict:
         return jsonable(
@@ -280,6 +446,11 @@ class DecayResult:
         return {"curves_db": np.round(self.curves_db[:, ::q], 2), "curve_rate_hz": self.curve_rate_hz / q}
 
 
+def _bandwidth(fc: float) -> float:
+    """Bandwidth of the octave band centred on ``fc``, Hz (IEC 61260-1 base-2 edges)."""
+    return fc * (std.OCTAVE_EDGE_FACTOR - 1 / std.OCTAVE_EDGE_FACTOR)
+
+
 def _needed_range(name: str) -> float:
     return -std.DECAY_RANGES_DB[name][1] + std.DECAY_NOISE_HEADROOM_DB
 
@@ -292,7 +463,8 @@ def band_decay(band: np.ndarray, fs: float, t0: int, fc: float | None = None) ->
     floor = find_noise_floor(e, fs, fc)
     step = max(1, int(fs // CURVE_RATE_HZ))
     curve = schroeder_curve(e, fs, floor, fc, step=step)
-    out: dict = {"floor": floor, "curve": curve, "curve_rate": fs / step, "notes": []}
+    out: dict = {"floor": floor, "curve": curve, "curve_rate": fs / step, "notes": [], "xi": {},
+                 "bent": [], "absurd": []}
     label = f"{fc:g} Hz" if fc else "broadband"
     for name, (hi, lo) in std.DECAY_RANGES_DB.items():
         need = _needed_range(name)
@@ -303,14 +475,37 @@ def band_decay(band: np.ndarray, fs: float, t0: int, fc: float | None = None) ->
                 f"{need:.0f} dB needed (ISO 3382-1: range must end 10 dB above the noise floor)"
             )
         else:
-            out[name] = fit_decay_time(curve, fs / step, hi, lo)
+            fit = fit_decay_range(curve, fs / step, hi, lo)
+            out[name] = fit.time_s
+            out["xi"][name] = fit.xi_permille
             if not np.isfinite(out[name]):
                 out["notes"].append(
                     f"{name.upper()} not computed at {label}: the decay curve does not reach {lo:.0f} dB")
+            elif fit.time_s > e.size / fs or fit.time_s > std.DECAY_FIT_MAX_RATIO * fit.span_time_s:
+                out[name] = float("nan")
+                out["absurd"].append(name)
+                out["notes"].append(
+                    f"{name.upper()} not given at {label}: the fitted line gives {fit.time_s:.3g} s, but the curve "
+                    f"falls through its range at the rate of {fit.span_time_s:.3g} s per 60 dB and the response "
+                    f"lasts {e.size / fs:.3g} s after its onset: the decay is not straight "
+                    f"(xi = {fit.xi_permille:.0f} per mille; ISO 3382-2:2008, Annex B)")
+            elif fc and fit.time_s * _bandwidth(fc) < std.DECAY_MIN_BANDWIDTH_TIME:
+                out[name] = float("nan")
+                out["absurd"].append(name)
+                out["notes"].append(
+                    f"{name.upper()} not given at {label}: {fit.time_s:.3g} s is the octave filter's own decay, "
+                    f"not the room's (bandwidth x time {fit.time_s * _bandwidth(fc):.1f}, "
+                    f"{std.DECAY_MIN_BANDWIDTH_TIME:.0f} needed; ISO 3382-2:2008, 7.3)")
+            elif name != "edt" and fit.xi_permille > std.DECAY_NONLINEARITY_LIMIT_PERMILLE:
+                out["bent"].append(name)
+                out["notes"].append(
+                    f"{name.upper()} at {label} is suspect: the decay curve is not straight over its range "
+                    f"(xi = {fit.xi_permille:.0f} per mille, above the "
+                    f"{std.DECAY_NONLINEARITY_LIMIT_PERMILLE:.0f} per mille limit; ISO 3382-2:2008, Annex B)")
     # clarity and definition: early energy from just before the onset (the zero-phase
     # band filter spreads the direct sound by about 2/bandwidth), late energy to the
     # crossing point plus the compensated tail, noise energy removed from both.
-    bw = fc * (std.OCTAVE_EDGE_FACTOR - 1 / std.OCTAVE_EDGE_FACTOR) if fc else fs / 4
+    bw = _bandwidth(fc) if fc else fs / 4
     pre = min(t0, int(FILTER_SPREAD_BANDWIDTHS / bw * fs))
     noise_e = noise_energy(e, fs, floor, fc)
     tc = t0 + floor.crossing
@@ -358,6 +553,9 @@ def decay_figures(band_irs: np.ndarray, fs: float, t0: int, *, keep_curves: bool
         noise_floor_db=np.array([p["floor"].noise_db for p in per]),
         crossing_s=np.array([p["floor"].crossing / fs for p in per]),
         notes=notes, curves_db=curves, curve_rate_hz=rate,
+        xi_permille=np.array([[p["xi"].get(k, np.nan) for p in per] for k in std.DECAY_RANGES_DB], dtype=float),
+        bent=tuple((k, fc) for p, fc in zip(per, std.OCTAVE_BANDS_HZ) for k in p["bent"]),
+        withheld=tuple((k, fc) for p, fc in zip(per, std.OCTAVE_BANDS_HZ) for k in p["absurd"]),
     )
 
 
@@ -413,7 +611,8 @@ def mid_frequency(values: Sequence[float | None] | np.ndarray,
 
 def mid_frequency_notes(decay: DecayResult, name: str) -> tuple[str, ...]:
     """The notes of :func:`decay_figures` that explain a missing 500 Hz or 1 kHz value of
-    figure ``name`` ("t30", "edt", ...); empty when there is none."""
+    figure ``name`` ("t30", "edt", ...): "not computed" and "not given" notes, not the
+    cautions about a value that was kept; empty when there is none."""
     fig = name.upper()
-    return tuple(n for n in decay.notes if n.startswith(fig) and any(f" at {b:g} Hz" in n for b in
-                                                                     std.MID_FREQUENCY_BANDS_HZ))
+    return tuple(n for n in decay.notes if n.startswith(f"{fig} not ") and any(f" at {b:g} Hz" in n for b in
+                                                                              std.MID_FREQUENCY_BANDS_HZ))

@@ -13,7 +13,7 @@ from . import cautions as cau
 from . import standards as std
 from .audio import validate_signal
 from .bands import check_rate_for_octaves, octave_bands
-from .decay import DecayResult, decay_figures, onset_index
+from .decay import DecayResult, check_impulse_response, decay_figures, onset_index
 from .exceptions import InputError
 from .modulation import mtf_from_ir
 from .results import jsonable
@@ -122,6 +122,14 @@ def sti_from_ir(
     x = validate_signal(ir, fs, name="impulse response")
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
+    return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
+                    progress=progress, label="the signal")
+
+
+def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_dba: float, talker: str,
+             auditory: bool, progress: Callable[[int, int], None] | None, label: str) -> IrResult:
+    """The indirect method on a validated response (options already checked)."""
+    check_impulse_response(x, fs, label)
     t0 = onset_index(x)
     after = (x.size - t0) / fs
     if after < MIN_IR_SECONDS:
@@ -176,10 +184,37 @@ def sti_from_ir(
             f"The impulse response has less than {WEAK_DECAY_DB:.0f} dB of decay above its noise floor at {names}: "
             "the MTF there is uncertain. Measure with more excitation level or averaging."
         )
+    cautions.extend(_decay_shape_cautions(decay))
     return IrResult(
         sti=res, decay=decay, fs=fs, duration_s=x.size / fs, speech_level_dba=speech_level_dba,
         cautions=tuple(cautions), ir_range_db=decay.range_db,
     )
+
+
+def _by_band(pairs: tuple[tuple[str, float], ...]) -> str:
+    """'250 Hz (EDT), 500 Hz (EDT, T20)' from (figure, band) pairs."""
+    bands: dict[float, list[str]] = {}
+    for name, fc in pairs:
+        bands.setdefault(fc, []).append(name.upper())
+    return ", ".join(f"{fc:g} Hz ({', '.join(names)})" for fc, names in bands.items())
+
+
+def _decay_shape_cautions(decay: DecayResult) -> list[str]:
+    """Cautions for decay curves that are not straight (details in the decay notes)."""
+    out = []
+    if decay.withheld:
+        out.append(
+            f"Decay figures withheld at {_by_band(decay.withheld)}: a line fitted to the decay curve there "
+            "gives a time the response does not support (a curve far from straight, as with a strong echo, "
+            "or a decay as fast as the octave filter's own). See the decay notes."
+        )
+    if decay.bent:
+        out.append(
+            f"The decay curve is not straight at {_by_band(decay.bent)} (non-linearity above "
+            f"{std.DECAY_NONLINEARITY_LIMIT_PERMILLE:.0f} per mille, ISO 3382-2 Annex B): those decay figures "
+            "are suspect (an echo, a double slope or coupled spaces?)."
+        )
+    return out
 
 
 def sti_from_ir_file(
@@ -212,7 +247,7 @@ def sti_from_ir_file(
     ------
     InputError
         A bad option, or a missing, unreadable, clipped or silent file, or one that is not
-        an impulse response.
+        an impulse response (:func:`envpredict.decay.impulse_shape`).
     """
     from .audio import load_audio
 
@@ -220,5 +255,9 @@ def sti_from_ir_file(
     speech_level_dba = check_speech_level(speech_level_dba)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
     x, fs = load_audio(path, channel, name="impulse response")
-    return sti_from_ir(x, fs, noise_db=noise, speech_level_dba=speech_level_dba, talker=talker,
-                       auditory=auditory, progress=progress)
+    x = validate_signal(x, fs, name="impulse response")
+    fs = int(fs)
+    check_rate_for_octaves(fs, "impulse response")
+    name = os.path.basename(os.fsdecode(path)).encode("utf-8", "surrogateescape").decode("utf-8", "replace")
+    return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
+                    progress=progress, label=f"'{name}'")

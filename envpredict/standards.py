@@ -277,6 +277,77 @@ LUNDEBY_MIN_WINDOW_S: float = 0.002
 LUNDEBY_MAX_WINDOW_FRACTION: float = 0.10
 
 # ---------------------------------------------------------------------------
+# Is it an impulse response? Recognition rule and decay-curve checks
+# ---------------------------------------------------------------------------
+# An impulse response is a clear onset followed by a decay. The rule below tests both
+# on the broadband energy envelope before any figure is computed (judgement where no
+# standard gives a threshold; the reason is stated with each value). Measured on the
+# test corpus of tests/test_ir_recognition.py: real-looking impulse responses give an
+# onset prominence of 29-84 dB and a 10 dB fall within 0.6 s and 11 % of the response;
+# steady noise, STIPA signals and recordings, chords and sweeps give 1-11 dB; speech
+# gives 17-47 dB but needs 78-94 % of its length (2.3 s or more) to fall 10 dB.
+
+#: The energy envelope is the squared signal (mean removed) averaged in blocks of this
+#: length, s: the shortest first smoothing window of Lundeby's procedure (see
+#: LUNDEBY_INITIAL_WINDOW_S below; it is defined there with the same value).
+IR_ENVELOPE_BLOCK_S: float = 0.010
+
+#: Onset: the highest block must stand at least this far above the background (the
+#: median block, or the mean of the last 10 % of the blocks where that is lower: the
+#: end of a response cut while still decaying), dB.
+#: 20 dB is the least decay range any ISO 3382-1 figure uses (EDT: a 10 dB fall that
+#: must end 10 dB above the noise floor, ISO 3382-1:2009, 3.2 and 5.3.3); a file with
+#: less cannot yield a decay figure and cannot be told from a fading steady signal.
+#: A steady signal reads 1-11 dB (white and pink noise, STIPA, music with sustained
+#: chords).
+IR_MIN_ONSET_PROMINENCE_DB: float = 20.0
+
+#: Decay: the backward-integrated (Schroeder) energy from the onset, with the background
+#: (the noise floor of an impulse response) taken off every block, must
+#: fall by IR_DECAY_TEST_DB -- the EDT range (ISO 3382-1:2009, 3.2) -- within this
+#: share of the response after its onset. A steady signal of any length needs 90 % of
+#: its length (10 lg(1 - t/L) = -10 dB at t = 0.9 L); an exponential decay falls 10 dB
+#: in T/6; 0.5 lies midway (judgement).
+IR_DECAY_TEST_DB: float = 10.0
+IR_MAX_DECAY_SHARE: float = 0.5
+
+#: ... and within this time, s: the 10 dB fall of a decay with the longest
+#: reverberation time met in rooms, about 12 s (the largest stone churches at low
+#: frequencies; from memory), takes 12 / 6 = 2 s (judgement). A recording of a test
+#: signal followed by silence passes the share test but not this one.
+IR_MAX_REVERBERATION_S: float = 12.0
+
+#: Non-linearity of a decay curve: xi = 1000 (1 - r^2), per mille, where r is the
+#: correlation coefficient of the least-squares line over the evaluation range.
+#: Source of the parameter: ISO 3382-2:2008, Annex B (from memory; the issue that asked
+#: for it names ISO 3382-1 Annex B), which calls values above about 10 per mille
+#: suspicious. The limit used here is 50 per mille (judgement): the straight line then
+#: leaves 5 % of the curve's variance unexplained (about 1.3 dB RMS over T20's 20 dB).
+#: At 10 per mille the caution would fire for straight decays that merely fluctuate:
+#: exponential noise decays, straight on average, read up to 41 per mille at 125 Hz
+#: over a 0.3 s decay (measured on the test corpus), the demo hall 30 per mille. A
+#: strong echo reads 150-990 per mille. Applied to T20 and T30, the ranges the Annex
+#: addresses; EDT's 0 to -10 dB holds the direct sound and the first reflections,
+#: whose steps are expected (simulated small rooms read up to 110 per mille there).
+DECAY_NONLINEARITY_LIMIT_PERMILLE: float = 50.0
+
+#: A decay time T measured through a band filter of bandwidth B is the filter's own
+#: decay, not the room's, unless B * T exceeds this. Source: ISO 3382-2:2008, 7.3 / F. Jacobsen,
+#: "A note on acoustic decay measurements", JSV 115 (1987) 163-170 (from memory: B T > 16
+#: for a forward filter; about 4 with time-reversed filtering). 16 is used: this tool's
+#: zero-phase octave filters alone read B T = 3 to 5 on a unit impulse (measured), and
+#: 16 keeps a margin of 3 above that. Such a figure is not printed.
+DECAY_MIN_BANDWIDTH_TIME: float = 16.0
+
+#: A fitted decay time that exceeds the time the curve itself takes to fall through
+#: the evaluation range (scaled to 60 dB) by more than this factor describes the line,
+#: not the decay: it is not printed (judgement: on a straight curve the two agree; a
+#: factor 2 only passes curves far from straight). Nor is any decay time longer than
+#: the response after its onset printed: the file cannot show such a decay.
+DECAY_FIT_MAX_RATIO: float = 2.0
+
+
+# ---------------------------------------------------------------------------
 # STOI and ESTOI (Taal 2011; Jensen 2016)
 # ---------------------------------------------------------------------------
 

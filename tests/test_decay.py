@@ -127,3 +127,18 @@ def test_mid_frequency_notes_name_the_missing_band():
                            "T30 not computed at 8000 Hz: decay range 20 dB, 45 dB needed"))
     assert mid_frequency_notes(d, "t30") == ("T30 not computed at 500 Hz: decay range 30 dB, 45 dB needed",)
     assert mid_frequency_notes(d, "edt") == ()
+
+
+def test_mid_frequency_notes_leave_out_cautions_about_kept_values():
+    # a withheld EDT explains a missing mid-frequency value; a kept but suspect T20 does not
+    from envpredict.decay import DecayResult, mid_frequency_notes
+
+    nan = float("nan")
+    d = DecayResult(bands_hz=(125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0, 8000.0),
+                    edt=np.array([1, 1, nan, 1, 1, 1, 1.0]), t20=np.ones(7), t30=np.ones(7), c50=np.ones(7),
+                    c80=np.ones(7), d50=np.ones(7), range_db=np.ones(7), noise_floor_db=np.ones(7),
+                    crossing_s=np.ones(7),
+                    notes=("EDT not given at 500 Hz: the fitted line gives 11.8 s",
+                           "T20 at 500 Hz is suspect: the decay curve is not straight over its range"))
+    assert mid_frequency_notes(d, "edt") == ("EDT not given at 500 Hz: the fitted line gives 11.8 s",)
+    assert mid_frequency_notes(d, "t20") == ()
