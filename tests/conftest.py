@@ -8,12 +8,6 @@ from __future__ import annotations
 import pytest
 from hypothesis import settings
 
-# Transitional re-exports: test_vocabulary, test_direct, test_signals, test_demo and test_audio
-# still write `from conftest import ...`; they move to the helper modules after the merge,
-# and then these two lines go.
-from cli_for_tests import run_cli  # noqa: F401
-from signals_for_tests import noise_decay  # noqa: F401
-
 # The property tests draw the same examples on every run (here and in CI): a failure is
 # reproducible, and CI cannot fail on an example no one has seen before. Widen the search
 # for a run by hand with HYPOTHESIS_PROFILE=explore.

@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import soundfile as sf
-from conftest import run_cli
+from cli_for_tests import run_cli
 
 from envpredict.audio import (
     ArraySource,

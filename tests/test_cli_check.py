@@ -5,7 +5,7 @@ import json
 
 import pytest
 
-from conftest import run_cli
+from cli_for_tests import run_cli
 from envpredict.exceptions import InputError
 from envpredict.refcases import run_case, run_cases, select_cases, summary
 

@@ -6,7 +6,7 @@ import json
 import numpy as np
 import pytest
 
-from conftest import run_cli
+from cli_for_tests import run_cli
 from envpredict import standards as std
 from envpredict.exceptions import InputError
 from envpredict.timescales import inspect_file

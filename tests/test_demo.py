@@ -6,7 +6,7 @@ import os
 
 import pytest
 
-from conftest import run_cli
+from cli_for_tests import run_cli
 
 
 @pytest.fixture(scope="module")

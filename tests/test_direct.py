@@ -31,7 +31,7 @@ from envpredict.direct import (
 )
 from envpredict.exceptions import InputError
 
-from conftest import run_cli
+from cli_for_tests import run_cli
 from envpredict.signals import full_sti_signals, stipa_signal
 from envpredict.sti import sti_from_mtf
 

@@ -26,6 +26,7 @@ from envpredict import standards as std
 from envpredict.decay import fit_decay_range, impulse_shape
 from envpredict.exceptions import InputError
 from envpredict.indirect import sti_from_ir, sti_from_ir_file
+from cli_for_tests import run_cli
 from signals_for_tests import harmonic_syllables, noise_decay, speech_like
 
 FS = 48000
@@ -265,18 +266,6 @@ def test_speech_recorded_in_a_room_is_refused():
         sti_from_ir(_through_room(speech_like(10, FS, seed=9)), FS)
 
 
-def _cli(args, capsys):
-    from envpredict.cli import main
-
-    try:
-        main([str(a) for a in args])
-        code = 0
-    except SystemExit as e:
-        code = e.code if isinstance(e.code, int) else (0 if e.code is None else 1)
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
 @pytest.mark.parametrize("name", ["pink noise 30 s", "STIPA signal 15 s", "STIPA recorded in a room 30 s",
                                   "speech-like 10 s", "chords 10 s"])
 def test_cli_refuses_with_one_line(name, tmp_path, capsys):
@@ -286,7 +275,7 @@ def test_cli_refuses_with_one_line(name, tmp_path, capsys):
     p = tmp_path / "take 1.wav"
     sf.write(p, x, FS, subtype="PCM_24")
     before = sorted(tmp_path.iterdir())
-    code, out, err = _cli(["ir", p, "--json"], capsys)
+    code, out, err = run_cli(["ir", p, "--json"], capsys)
     assert code == 2
     assert out == ""
     lines = err.strip().splitlines()
@@ -330,7 +319,7 @@ def test_direct_sound_and_echo_gives_no_absurd_decay_times(tmp_path, capsys):
     assert any("EDT not given at 500 Hz" in n for n in r.decay.notes)
     p = tmp_path / "echo.wav"
     sf.write(p, x, FS, subtype="PCM_24")
-    code, out, err = _cli(["ir", p, "--json"], capsys)
+    code, out, err = run_cli(["ir", p, "--json"], capsys)
     assert code == 0, err
     d = json.loads(out)
     assert d["decay"]["edt"] == [None] * 7

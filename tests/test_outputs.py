@@ -23,7 +23,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 import soundfile as sf
-from conftest import noise_decay, run_cli
+from cli_for_tests import run_cli
+from signals_for_tests import noise_decay
 
 from envpredict.exceptions import ComputationError, InputError
 

@@ -23,7 +23,7 @@ from envpredict.signals import (
     stipa_signal,
 )
 
-from conftest import run_cli
+from cli_for_tests import run_cli
 
 FS = 24000  # above the 22.6 kHz the 8 kHz octave needs, and cheap
 
