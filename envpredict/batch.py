@@ -112,6 +112,12 @@ from .tables import (  # noqa: F401  (the column vocabulary, re-exported for bat
 #: (judgement).
 IN_FLIGHT_PER_WORKER: int = 4
 
+#: Rows a pool worker scores per task, at most: fewer round trips between the batch
+#: process and its workers (each costs the parent CPU that the workers need on a small
+#: machine), while a kill loses at most this many finished but unwritten rows per
+#: worker, which --resume scores again (judgement).
+ROWS_PER_TASK: int = 4
+
 #: Rows in flight on a dask cluster at least (judgement: keeps a small cluster's
 #: scheduler fed while results travel back).
 MIN_DASK_IN_FLIGHT: int = 8
@@ -617,6 +623,19 @@ def _no_op() -> None:
     """A task that only makes the pool start a worker."""
 
 
+def score_rows(jobs: Sequence[dict]) -> list[dict]:
+    """:func:`score_row` for each job of a pool task, in order."""
+    return [score_row(job) for job in jobs]
+
+
+def _tasks(jobs: Sequence[dict], workers: int) -> Iterator[list[dict]]:
+    """The jobs in tasks of up to ROWS_PER_TASK rows; one row per task while there are
+    too few rows to keep every worker busy with several tasks."""
+    size = max(1, min(ROWS_PER_TASK, len(jobs) // (workers * IN_FLIGHT_PER_WORKER * 2)))
+    for i in range(0, len(jobs), size):
+        yield list(jobs[i: i + size])
+
+
 def _run_serial(jobs: Sequence[dict]) -> Iterator[dict]:
     for job in jobs:
         yield score_row(job)
@@ -679,7 +698,7 @@ def _run_pool(jobs: Sequence[dict], workers: int) -> Iterator[dict]:
     from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
     from concurrent.futures.process import BrokenProcessPool
 
-    todo = iter(jobs)
+    todo = _tasks(jobs, workers)
     window = workers * IN_FLIGHT_PER_WORKER
     # spawned workers inherit the environment at their start (during the first submits);
     # with a fork server, the server's (set when it started, see start_workers_early)
@@ -697,25 +716,26 @@ def _run_pool(jobs: Sequence[dict], workers: int) -> Iterator[dict]:
     finished_cleanly = False
     try:
         running: dict = {}
-        for job in todo:
-            running[ex.submit(score_row, job)] = job
+        for task in todo:
+            running[ex.submit(score_rows, task)] = task
             if len(running) >= window:
                 break
         while running:
             finished, _ = wait(running, return_when=FIRST_COMPLETED)
             for fut in finished:
-                job = running.pop(fut)
+                task = running.pop(fut)
                 try:
-                    res = fut.result()
+                    results = fut.result()
                 except BrokenProcessPool:
+                    rows = ", ".join(str(job["row"]) for job in task)
                     raise ComputationError(
-                        f"a worker process died while scoring row {job['row']} (out of memory, or killed)",
+                        f"a worker process died while scoring row(s) {rows} (out of memory, or killed)",
                         "the finished rows are saved: rerun with --resume, with fewer --workers if memory is short",
                     ) from None
-                yield res
+                yield from results
                 nxt = next(todo, None)
                 if nxt is not None:
-                    running[ex.submit(score_row, nxt)] = nxt
+                    running[ex.submit(score_rows, nxt)] = nxt
         finished_cleanly = True
     finally:
         # on an interrupt or error, do not wait for the rows still running: their
