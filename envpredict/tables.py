@@ -187,16 +187,7 @@ def read_table(path: str | os.PathLike, what: str) -> tuple[list[str], Rows]:
     what : what it is, for the error messages (e.g. ``"scores file"``).
     """
     p = Path(path)
-    if not p.exists():
-        raise InputError(f"{what} '{p}' does not exist", "check the path")
-    if p.is_dir():
-        raise InputError(f"{what} '{p}' is a folder", "give the path of a CSV file")
-    try:
-        text = p.read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError:
-        raise InputError(f"{what} '{p}' is not UTF-8 text", "save the table as CSV (UTF-8)") from None
-    except OSError as e:
-        raise InputError(f"{what} '{p}' cannot be read ({e.strerror})", "check the file permissions") from None
+    text = read_text(p, what)
 
     def bad(line: int, e: csv.Error) -> InputError:
         return InputError(f"{what} '{p}', row {line}: malformed CSV ({e})", "repair the quoting in that row")
