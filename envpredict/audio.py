@@ -429,6 +429,41 @@ def resample(x: np.ndarray, fs_in: int, fs_out: int) -> np.ndarray:
     return resample_poly(np.asarray(x, dtype=np.float64), up, down)
 
 
+
+#: Environment variables that limit the threads of numeric libraries; the first one set
+#: also limits the threads of :func:`in_parallel` (1: one task after the other).
+THREAD_LIMIT_VARS: tuple[str, ...] = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def usable_threads() -> int:
+    """Cores this process may use, at most the first thread limit set in the environment."""
+    try:
+        n = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        n = os.cpu_count() or 1
+    for var in THREAD_LIMIT_VARS:
+        value = os.environ.get(var, "").strip()
+        if value.isdigit() and int(value) > 0:
+            return max(1, min(n, int(value)))
+    return max(1, n)
+
+
+def in_parallel(tasks: list) -> list:
+    """Results of the callables ``tasks``, in order: run in threads at the same time where
+    more than one core is usable (:func:`usable_threads`), else one after the other.
+
+    For work that releases the GIL (scipy's polyphase filter, numpy's FFT and array
+    arithmetic on long arrays); the results are the same either way.
+    """
+    threads = min(len(tasks), usable_threads())
+    if threads < 2:
+        return [task() for task in tasks]
+    from concurrent.futures import ThreadPoolExecutor
+
+    with ThreadPoolExecutor(max_workers=threads) as ex:
+        return list(ex.map(lambda task: task(), tasks))
+
+
 def resample_ratio(fs_in: int, fs_out: int) -> tuple[int, int]:
     """``(up, down)`` factors of the polyphase resampling from ``fs_in`` to ``fs_out``
     (the ratio in lowest terms, denominator at most 2000)."""

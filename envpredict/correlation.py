@@ -229,6 +229,7 @@ def tf_envelopes(
         if sel.size:
             fx = _frames(_chunk_samples(clean_read, f0, f1), f1 - f0)
             fy = _frames(_chunk_samples(degraded_read, f0, f1), f1 - f0)
+
             for k0 in range(0, sel.size, SPECTRUM_BLOCK):
                 bx.add(fx[sel[k0 : k0 + SPECTRUM_BLOCK]])
                 by.add(fy[sel[k0 : k0 + SPECTRUM_BLOCK]])
@@ -474,7 +475,7 @@ def stoi_estoi_stream(
 
 
 def _prepare(clean: np.ndarray, degraded: np.ndarray, fs: int) -> tuple[np.ndarray, np.ndarray]:
-    from .audio import resample, validate_signal
+    from .audio import in_parallel, resample, validate_signal
 
     x = validate_signal(clean, fs, name="clean signal", allow_clipping=True)
     y = validate_signal(degraded, fs, name="degraded signal", allow_clipping=True)
@@ -489,9 +490,8 @@ def _prepare(clean: np.ndarray, degraded: np.ndarray, fs: int) -> tuple[np.ndarr
             f"sample rate {fs} Hz is below the {std.STOI_FS} Hz that STOI analyses",
             f"give signals sampled at {std.STOI_FS} Hz or more (upsampling cannot restore the missing band)",
         )
-    if fs != std.STOI_FS:
-        x = resample(x, fs, std.STOI_FS)
-        y = resample(y, fs, std.STOI_FS)
+    if fs != std.STOI_FS:  # both signals at once where two cores are free
+        x, y = in_parallel([lambda: resample(x, fs, std.STOI_FS), lambda: resample(y, fs, std.STOI_FS)])
     return x, y
 
 
