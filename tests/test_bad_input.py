@@ -115,3 +115,26 @@ def test_json_output_is_valid_everywhere(files, capsys):
     assert code == 0 and isinstance(json.loads(out), dict)
     code, out, _ = run_cli(["pair", files["clean"], files["clean"], "--json"], capsys)
     assert code == 0 and json.loads(out)["stoi"] == pytest.approx(1.0, abs=1e-6)
+
+
+def test_ctrl_c_exits_130_with_one_line(tmp_path):
+    """SIGINT in the middle of a computation: exit 130 and one line 'error: interrupted — ...'
+    on stderr (typer turns Ctrl-C into an exit code that click returns, not raises)."""
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    from envpredict._data import demo_dir
+
+    d = demo_dir()
+    cmd = [sys.executable, "-c", "from envpredict.cli import main; main()", "sweep",
+           str(d / "announcement_clean.wav"), str(d / "hall_noise.wav"), "--snr=-30:30:1"]
+    p = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=tmp_path)
+    time.sleep(3.0)  # well into the sweep (imports take about 1 s)
+    p.send_signal(signal.SIGINT)
+    out, err = p.communicate(timeout=60)
+    lines = [ln for ln in err.splitlines() if ln.startswith("error:")]
+    assert p.returncode == 130, err
+    assert lines and lines[-1].startswith("error: interrupted — "), err
+    assert "Traceback" not in err and out == ""

@@ -34,6 +34,7 @@ __all__ = ["app", "main"]
 
 #: Exit code of an interrupted command: 128 + SIGINT (2), the shell convention.
 EXIT_INTERRUPTED = 130
+INTERRUPTED = "interrupted — run the command again (batch: add --resume to finish the rows)"
 
 
 def _fail(msg: str, code: int) -> None:
@@ -106,10 +107,10 @@ def main(argv: list[str] | None = None) -> None:
         if failure is not None:
             _fail_stdout(failure)
         if code == EXIT_INTERRUPTED:  # typer turns Ctrl-C into Exit(130)
-            _fail("interrupted — run the command again (batch: add --resume to finish the rows)", EXIT_INTERRUPTED)
+            _fail(INTERRUPTED, EXIT_INTERRUPTED)
         raise SystemExit(code) from None
     except aborts:
-        _fail("interrupted", EXIT_INTERRUPTED)
+        _fail(INTERRUPTED, EXIT_INTERRUPTED)
     except no_args as e:
         typer.echo(e.format_message())
         raise SystemExit(0) from None
@@ -123,7 +124,7 @@ def main(argv: list[str] | None = None) -> None:
         msg = " ".join(e.format_message().split())
         _fail(f"{msg} — {hint}", 2)
     except KeyboardInterrupt:
-        _fail("interrupted", EXIT_INTERRUPTED)
+        _fail(INTERRUPTED, EXIT_INTERRUPTED)
     except BrokenPipeError:  # the reader went away (`| head`): stop quietly, as shell tools do
         from ._common import silence_stdout
 
@@ -146,6 +147,8 @@ def main(argv: list[str] | None = None) -> None:
     failure = _stdout_failure()
     if failure is not None:
         _fail_stdout(failure)
+    if rv == EXIT_INTERRUPTED:  # click returns typer's Exit(130) for Ctrl-C instead of raising it
+        _fail(INTERRUPTED, EXIT_INTERRUPTED)
     if isinstance(rv, int) and rv:
         raise SystemExit(rv)
 
