@@ -743,6 +743,11 @@ def _run_pool(jobs: Sequence[dict], workers: int) -> Iterator[dict]:
         ex.shutdown(wait=finished_cleanly, cancel_futures=True)
 
 
+#: Address schemes of a dask scheduler that the batch connects to (the plain and the
+#: TLS transport of dask.distributed; others need extra packages and setup).
+SCHEDULER_SCHEMES: tuple[str, ...] = ("tcp://", "tls://")
+
+
 def _connect(address: str):
     try:
         from distributed import Client
@@ -895,6 +900,9 @@ def run_batch(
         workers = w
     if scheduler is not None and not str(scheduler).strip():
         raise InputError("--scheduler is empty", "give the scheduler address, e.g. tcp://10.0.0.5:8786")
+    if scheduler is not None and not str(scheduler).strip().startswith(SCHEDULER_SCHEMES):
+        raise InputError(f"--scheduler '{str(scheduler).strip()}' is not a {' or '.join(SCHEDULER_SCHEMES)} address",
+                         "give the dask scheduler's address, e.g. tcp://10.0.0.5:8786")
     if retry_failed and not resume:
         raise InputError("--retry-failed works only with --resume", "add --resume")
     if resume and overwrite:

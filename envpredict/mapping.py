@@ -393,6 +393,12 @@ class ScoreMapping:
         })
 
 
+#: Largest magnitude of a mapping parameter or an index value accepted (judgement: a
+#: fitted intercept or slope beyond it means a step function, which predicts 0 or 100 %
+#: for every input and must not pass for a mapping; index values are 0..1 or dB).
+MAX_PARAMETER: float = 1e6
+
+
 def _num(d: MappingType, key: str, source: str, *, required: bool = True) -> float | None:
     v = d.get(key)
     if v is None:
@@ -404,8 +410,9 @@ def _num(d: MappingType, key: str, source: str, *, required: bool = True) -> flo
     except (TypeError, ValueError):
         raise InputError(f"mapping {source}: '{key}' is not a number ({v!r})",
                          "give a MAP.json written by 'envpredict fitmap'") from None
-    if not math.isfinite(f):
-        raise InputError(f"mapping {source}: '{key}' is not finite", "refit the mapping")
+    if not math.isfinite(f) or abs(f) > MAX_PARAMETER:
+        raise InputError(f"mapping {source}: '{key}' = {f:g} is not a finite number within "
+                         f"±{MAX_PARAMETER:g}", "refit the mapping")
     return f
 
 
@@ -485,9 +492,10 @@ def _check_score_arrays(index_values: Any, correct: Any, trials: Any) -> tuple[n
     if x.size == 0:
         raise InputError("no score rows", "give at least three rows of (index, correct, trials)")
     for name, v in (("index value", x), ("correct count", k), ("trial count", n)):
-        bad = np.flatnonzero(~np.isfinite(v))
+        bad = np.flatnonzero(~np.isfinite(v) | (np.abs(v) > MAX_PARAMETER))
         if bad.size:
-            raise InputError(f"{name} of row {bad[0] + 1} is not a finite number", "repair the row")
+            raise InputError(f"{name} of row {bad[0] + 1} is not a finite number within ±{MAX_PARAMETER:g}",
+                             "repair the row")
     for name, v in (("correct count", k), ("trial count", n)):
         bad = np.flatnonzero((v != np.round(v)) | (v < 0))
         if bad.size:
@@ -938,6 +946,11 @@ def read_mapping(path: str | os.PathLike) -> ScoreMapping:
     except (UnicodeDecodeError, json.JSONDecodeError) as e:
         raise InputError(f"mapping '{p}' is not valid JSON ({getattr(e, 'msg', e)})",
                          "give a MAP.json written by 'envpredict fitmap'") from None
+    except (ValueError, RecursionError):  # a number of thousands of digits, nesting thousands deep
+        raise InputError(f"mapping '{p}' is not a mapping file (numbers or nesting beyond any MAP.json)",
+                         "give a MAP.json written by 'envpredict fitmap'") from None
+    except OSError as e:
+        raise InputError(f"mapping '{p}' cannot be read ({e.strerror})", "check its permissions") from None
     return mapping_from_dict(d, source=f"'{p}'")
 
 

@@ -60,6 +60,17 @@ MAX_SECONDS: float = 3600.0
 DEFAULT_RATE_HZ: int = std.TEST_SIGNAL_RATE_HZ
 
 
+def check_seed(seed: int) -> int:
+    """A seed of the noise generator: a whole number from 0 (numpy's SeedSequence rule)."""
+    try:
+        s = int(seed)
+    except (TypeError, ValueError):
+        raise InputError(f"seed '{seed}' is not a whole number", "give a whole number from 0, e.g. 0") from None
+    if s != seed or s < 0:
+        raise InputError(f"seed {seed} is not a whole number from 0", "give a whole number from 0, e.g. 0")
+    return s
+
+
 def check_generation(fs: int, seconds: float | None = None) -> int:
     fs = check_rate(fs, "test signal")
     check_rate_for_octaves(fs, "test signal")
@@ -171,6 +182,7 @@ def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_R
     (360000, 0.708)
     """
     fs = check_generation(fs, seconds)
+    seed = check_seed(seed)
     n = int(round(float(seconds) * fs))
     rng = np.random.default_rng(seed)
     bands = octave_band_noise(n, fs, rng)
@@ -213,6 +225,7 @@ def full_sti_signal(modulation_hz: float, seconds: float, fs: int = DEFAULT_RATE
     """One full-STI test signal: all seven speech-shaped octave noise bands modulated
     in phase by ``1 + cos 2 pi F t`` (IEC 60268-16:2011, 6.1; m = 1)."""
     fs = check_generation(fs)
+    seed = check_seed(seed)
     n = int(round(float(seconds) * fs))
     rng = np.random.default_rng(seed)
     bands = octave_band_noise(n, fs, rng)
@@ -229,6 +242,7 @@ def full_sti_signals(fs: int = DEFAULT_RATE_HZ, *, seed: int = 0):
     See :func:`full_sti_plan` for the order and lengths.
     """
     fs = check_generation(fs)
+    seed = check_seed(seed)
     for spec in full_sti_plan():
         yield spec, full_sti_signal(spec.modulation_hz, spec.seconds, fs, seed=seed + spec.index - 1)
 
@@ -275,6 +289,7 @@ def write_stipa_signal(
     """
     check_wav_path(path)
     fs = check_generation(fs, seconds)
+    seed = check_seed(seed)
     x = stipa_signal(seconds, fs, seed=seed)
     write_wav(path, x, fs)
     return StipaSignalResult(
@@ -338,6 +353,7 @@ def write_full_sti_signals(
         raise InputError(f"'{out}' already exists and is not an empty folder",
                          "give the name of a new folder (nothing is overwritten)")
     fs = check_generation(fs)
+    seed = check_seed(seed)
     plan = full_sti_plan()
     result = FullStiSignalsResult(folder=str(folder), fs=fs, seed=seed, signals=plan)
     with atomic_directory(out) as tmp:

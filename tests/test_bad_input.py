@@ -138,3 +138,37 @@ def test_ctrl_c_exits_130_with_one_line(tmp_path):
     assert p.returncode == 130, err
     assert lines and lines[-1].startswith("error: interrupted — "), err
     assert "Traceback" not in err and out == ""
+
+
+def _hostile_inputs(folder):
+    """Files of the cases below: a mapping with absurd parameters, nesting 100 000 deep, a
+    5000-digit number; pilot scores with an index value of 1e300; a results table."""
+    import json
+
+    json.dump({"format": "envpredict-score-mapping", "version": 1, "index": "stoi", "shape": "logistic",
+               "params": {"a": 1e308, "b": 1e308}, "guess": 0, "lapse": 0}, open(folder / "huge.json", "w"))
+    (folder / "deep.json").write_text("[" * 100000 + "]" * 100000)
+    (folder / "digits.json").write_text('{"a": ' + "9" * 5000 + "}")
+    (folder / "scores.csv").write_text("stoi,correct,trials\n1e300,5,10\n0.5,3,10\n0.6,8,10\n")
+    (folder / "r.csv").write_text("condition,stoi\nx,0.5\n")
+    (folder / "m.csv").write_text("ir,position\nhall.wav,front\n")
+
+
+@pytest.mark.parametrize("args, message", [
+    (["testsignal", "stipa", "x.wav", "--seconds", "15", "--seed", "-1"], "seed -1 is not a whole number from 0"),
+    (["predict", "r.csv", "--map", "huge.json"], "'a' = 1e+308 is not a finite number"),
+    (["predict", "r.csv", "--map", "deep.json"], "is not a mapping file"),
+    (["predict", "r.csv", "--map", "digits.json"], "is not a mapping file"),
+    (["fitmap", "scores.csv", "--index", "stoi"], "index value of row 1 is not a finite number"),
+    (["batch", "m.csv", "--out", "o.csv", "--scheduler", "ucx://127.0.0.1:1"], "is not a tcp:// or tls:// address"),
+])
+def test_hostile_values_are_refused_in_one_line(args, message, tmp_path, capsys, monkeypatch):
+    # each was an "internal failure" (a traceback-class error) or, for the huge mapping, a
+    # silent 100 % prediction
+    _hostile_inputs(tmp_path)
+    monkeypatch.chdir(tmp_path)
+    before = {p.name: p.read_bytes() for p in tmp_path.iterdir()}
+    code, out, err = run_cli(args, capsys)
+    assert code == 2, err
+    assert err.startswith("error: ") and message in err and err.count("\n") == 1, err
+    assert {p.name: p.read_bytes() for p in tmp_path.iterdir()} == before
