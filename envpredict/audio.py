@@ -132,7 +132,7 @@ def audio_info(path: str | os.PathLike, name: str = "input") -> tuple[int, int, 
 
     p = _check_path(path, name)
     try:
-        info = sf.info(str(p))
+        info = sf.info(os.fsencode(p))  # the name's own bytes: non-UTF-8 names open too
     except Exception:  # soundfile raises several types for unreadable files
         raise InputError(
             f"{name} '{p}' is not a readable audio file",
@@ -631,7 +631,7 @@ class FileSource(Source):
         self.path, self.channel, self.kind = str(path), channel, name
         self.fs, self.n, self.name = int(fs), int(frames), f"{name} '{path}'"
         try:
-            self._f = sf.SoundFile(self.path)
+            self._f = sf.SoundFile(os.fsencode(self.path))
         except Exception:
             raise InputError(f"{name} '{path}' is not a readable audio file",
                              "give a WAV, FLAC or OGG file (other formats: convert first)") from None

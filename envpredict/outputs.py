@@ -423,8 +423,9 @@ def atomic_write_bytes(path: _PathLike, data: bytes) -> Path:
 
 
 def atomic_write_text(path: _PathLike, text: str) -> Path:
-    """:func:`atomic_write_bytes` of ``text`` encoded as UTF-8."""
-    return atomic_write_bytes(path, text.encode("utf-8"))
+    """:func:`atomic_write_bytes` of ``text`` encoded as UTF-8 (a file name's undecodable
+    bytes, kept as surrogates, are written back as they were)."""
+    return atomic_write_bytes(path, text.encode("utf-8", "surrogateescape"))
 
 
 @contextlib.contextmanager

@@ -1309,7 +1309,8 @@ def _write_folder(tmp: Path, page: Page, doc: str, result: Mapping[str, Any]) ->
     for f in page.figures:
         (tmp / f"{f.name}.png").write_bytes(f.png)
         written.append(f"{f.name}.png")
-    (tmp / "report.html").write_text(doc, encoding="utf-8")
+    # a file name that is not UTF-8 (its undecodable bytes kept as surrogates) is shown escaped
+    (tmp / "report.html").write_bytes(doc.encode("utf-8", "backslashreplace"))
     (tmp / "result.json").write_text(json.dumps(result, indent=2, allow_nan=False) + "\n", encoding="utf-8")
     written += ["report.html", "result.json"]
     (tmp / REPORT_MANIFEST).write_text("\n".join([_MANIFEST_HEAD, *written]) + "\n", encoding="utf-8")

@@ -172,3 +172,19 @@ def test_hostile_values_are_refused_in_one_line(args, message, tmp_path, capsys,
     assert code == 2, err
     assert err.startswith("error: ") and message in err and err.count("\n") == 1, err
     assert {p.name: p.read_bytes() for p in tmp_path.iterdir()} == before
+
+
+def test_a_file_name_that_is_not_utf8_is_read(tmp_path, capsys):
+    # Linux file names are bytes; b"hall\xe9.wav" (Latin-1) is not UTF-8. Python keeps the
+    # byte as a surrogate; the file must open, and the text, JSON and report must be written
+    import os
+
+    name = os.fsdecode(b"hall\xe9.wav")
+    with open(os.fsencode(tmp_path / name), "wb") as f:
+        sf.write(f, noise_decay(0.6, seed=3), 48000, format="WAV", subtype="FLOAT")
+    code, out, err = run_cli(["ir", tmp_path / name], capsys)
+    assert code == 0, err
+    code, out, err = run_cli(["ir", tmp_path / name, "--json", "--report", tmp_path / "rep"], capsys)
+    assert code == 0, err
+    assert json.loads(out)["inputs"]["impulse_response"] == str(tmp_path / name)
+    assert (tmp_path / "rep" / "report.html").read_bytes().count(b"hall\\udce9.wav") >= 1

@@ -94,6 +94,11 @@ def main(argv: list[str] | None = None) -> None:
     debug = "--debug" in args
     if sys.stdout is None:  # started with standard output closed (`>&-`): the result would be lost
         _fail("standard output is closed — run the command with its output going to a file or terminal", 2)
+    for stream in (sys.stdout, sys.stderr):  # a file name that is not UTF-8 is shown escaped, not fatal
+        try:
+            stream.reconfigure(errors="backslashreplace")
+        except (AttributeError, ValueError, OSError):
+            pass
     command = typer_main_command()
     try:
         rv = command.main(args=args, prog_name="envpredict", standalone_mode=False)
