@@ -521,12 +521,17 @@ def estimate_delay(
     d = round(max_delay_s * rate)
     w = min(ref_src.n, int((ALIGN_EXCERPT_S if excerpt_s is None else excerpt_s) * rate))
     s0 = max(0, min(int(near), ref_src.n - w))
+    # without their DC: a constant offset (of a recorder, a processing chain) correlates
+    # with itself at every lag and would outweigh the waveform
     ref = ref_src.read(s0, s0 + w)
+    ref = ref - ref.mean()
     sig = x_src.read(s0 - d, s0 + w + d)
+    sig = sig - sig.mean()
     cc = fftconvolve(sig, ref[::-1], mode="valid")  # index i -> lag i - d
     i = int(np.argmax(np.abs(cc)))
     lag = i - d
     matched = x_src.read(s0 + lag, s0 + lag + w)
+    matched = matched - matched.mean()
     den = math.sqrt(float(np.dot(ref, ref)) * float(np.dot(matched, matched)))
     corr = float(cc[i] / den) if den > 0 else 0.0
     return lag, corr

@@ -108,13 +108,28 @@ def _scan(src: Source) -> dict:
     finite, not silent, not constant (clipping is a legitimate degradation here, so it
     is only counted). Returns stats and where the loudest block starts."""
     check = SignalCheck(src.name, allow_clipping=True)
-    energy = []
+    sec = max(1, int(src.fs))
+    energy = np.zeros(max(1, -(-src.n // sec)))  # per second of signal
+    pos = 0
     for x in src.blocks(SCAN_BLOCK):
         check.update(x)
-        energy.append(float(np.dot(x, x)))
+        first = pos // sec
+        per = np.bincount((pos + np.arange(x.size)) // sec - first, weights=x * x)
+        energy[first: first + per.size] += per
+        pos += x.size
     check.finish()
-    return {"rms": check.rms, "full_scale_samples": check.full_scale,
-            "loudest_block": int(np.argmax(energy)) * SCAN_BLOCK}
+    return {"rms": check.rms, "full_scale_samples": check.full_scale, "energy_per_second": energy}
+
+
+def _loudest_excerpt_start(energy_per_second: np.ndarray, n: int, fs: int) -> int:
+    """Start (sample) of the alignment excerpt (ALIGN_EXCERPT_S, or the whole signal)
+    holding the most energy: a stretch of silence (30 s of digital zeros before the
+    speech) never becomes the excerpt the delay is searched with."""
+    from .audio import ALIGN_EXCERPT_S
+
+    width = max(1, min(energy_per_second.size, int(math.ceil(min(n, ALIGN_EXCERPT_S * fs) / fs))))
+    sums = np.convolve(energy_per_second, np.ones(width), mode="valid")
+    return int(np.argmax(sums)) * int(fs)
 
 
 def _as_pair_source(x: np.ndarray, fs: int, name: str) -> Source:
@@ -364,7 +379,8 @@ def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float) 
         notes.append(f"degraded signal resampled from {degraded.fs} Hz to {fs} Hz")
 
     if align:
-        lag, corr = estimate_delay(clean, deg, max_delay_s=max_delay_s, near=stats_c["loudest_block"])
+        near = _loudest_excerpt_start(stats_c["energy_per_second"], clean.n, fs)
+        lag, corr = estimate_delay(clean, deg, max_delay_s=max_delay_s, near=near)
         if abs(corr) < MIN_MATCH_CORRELATION:
             raise InputError(
                 f"clean and degraded do not match: peak waveform correlation {abs(corr):.3f} within "

@@ -386,17 +386,23 @@ def test_silence_case_pair(tmp_path, capsys):
 
 
 def _brute_force_delay(ref, x, max_lag):
-    """The normalised cross-correlation written out: c(l) = sum_n ref[n] x[n + l] (zeros
-    outside x), the lag of the largest |c|, divided by sqrt(sum ref^2 * sum x[l .. l+w)^2)."""
+    """The normalised cross-correlation written out, each signal without its DC (mean):
+    c(l) = sum_n r[n] s[n + l] with r = ref - mean(ref) and s the searched stretch of x
+    (zeros outside x) minus its mean; the lag of the largest |c|, divided by
+    sqrt(sum r^2 * sum m^2) with m the matched stretch x[l .. l+w) minus its own mean."""
     w = ref.size
+    r = ref - ref.mean()
     pad = np.concatenate([np.zeros(max_lag), x, np.zeros(w + max_lag)])
+    searched = pad[: w + 2 * max_lag].copy()
+    searched -= searched.mean()
     best, lag = -1.0, 0
     for k in range(-max_lag, max_lag + 1):
-        c = float(np.sum(ref * pad[max_lag + k: max_lag + k + w]))
+        c = float(np.sum(r * searched[max_lag + k: max_lag + k + w]))
         if abs(c) > best:
             best, lag, value = abs(c), k, c
     seg = pad[max_lag + lag: max_lag + lag + w]
-    return lag, value / np.sqrt(np.sum(ref ** 2) * np.sum(seg ** 2))
+    seg = seg - seg.mean()
+    return lag, value / np.sqrt(np.sum(r ** 2) * np.sum(seg ** 2))
 
 
 @pytest.mark.parametrize("delay,sign", [(37, 1), (-23, 1), (61, -1)])

@@ -188,3 +188,25 @@ def test_a_file_name_that_is_not_utf8_is_read(tmp_path, capsys):
     assert code == 0, err
     assert json.loads(out)["inputs"]["impulse_response"] == str(tmp_path / name)
     assert (tmp_path / "rep" / "report.html").read_bytes().count(b"hall\\udce9.wav") >= 1
+
+
+def test_a_pair_after_30_s_of_digital_silence_and_a_pair_with_dc_are_aligned(tmp_path):
+    # valid data that was refused or misaligned: the same demo pair (i) preceded by 30 s of
+    # digital silence in both files, (ii) with a DC offset of 0.05 on the degraded file,
+    # must give the delay and the STOI of the plain pair (the delay search uses the
+    # loudest stretch, without DC)
+    import envpredict
+    from envpredict._data import demo_dir
+
+    c, fs = sf.read(demo_dir() / "announcement_clean.wav")
+    d, _ = sf.read(demo_dir() / "announcement_in_hall.wav")
+    plain = envpredict.pair_indices(c, d, fs)
+    silence = np.zeros(30 * fs)
+    sf.write(tmp_path / "c.wav", np.concatenate([silence, c]), fs, subtype="FLOAT")
+    sf.write(tmp_path / "d.wav", np.concatenate([silence, d]), fs, subtype="FLOAT")
+    assert envpredict.pair_from_files(tmp_path / "c.wav", tmp_path / "c.wav").delay_ms == 0.0
+    late = envpredict.pair_from_files(tmp_path / "c.wav", tmp_path / "d.wav")
+    assert late.delay_samples == plain.delay_samples and abs(late.stoi - plain.stoi) < 0.005
+    offset = envpredict.pair_indices(c, d + 0.05, fs)
+    assert offset.delay_samples == plain.delay_samples
+    assert abs(offset.match_correlation - plain.match_correlation) < 1e-3
