@@ -427,6 +427,7 @@ class ResultWriter:
         self.manifest = manifest
         self.done = done  # row number -> cells of the results line
         self._fd: int | None = None
+        self._run_lock: int | None = None  # held from open() to close(), see _lock_run
 
     # -- opening -----------------------------------------------------------
     @classmethod
@@ -455,18 +456,44 @@ class ResultWriter:
                 f"results file '{p}' already exists",
                 "add --resume to finish it, or --overwrite to start again",
             )
-        # refuse early if another run is writing this file (before reading or replacing it)
-        probe = cls._locked_fd(p, os.O_RDONLY) if p.exists() else None
+        # one run per results file: a lock on a path that stays the same while the file is
+        # replaced (a rewrite renames a new file over it, so a lock on the file itself
+        # would let a second run that starts at the same moment lock the new one)
+        run_lock = cls._lock_run(p)
         try:
-            done, rewrite = cls._existing_rows(p, manifest, header, exists, resume, overwrite, retry_failed)
-            w = cls(p, manifest, done)
-            if rewrite:
-                w._rewrite(sort=False)
-        finally:
-            if probe is not None:
-                os.close(probe)
-        w._open_append()
+            # and a run of an older version holding the file itself
+            probe = cls._locked_fd(p, os.O_RDONLY) if p.exists() else None
+            try:
+                done, rewrite = cls._existing_rows(p, manifest, header, exists, resume, overwrite, retry_failed)
+                w = cls(p, manifest, done)
+                if rewrite:
+                    w._rewrite(sort=False)
+            finally:
+                if probe is not None:
+                    os.close(probe)
+            w._open_append()
+        except BaseException:
+            os.close(run_lock)
+            raise
+        w._run_lock = run_lock
         return w
+
+    @classmethod
+    def _lock_run(cls, path: Path) -> int:
+        """Take the run lock of results file ``path``: a lock file named by the file's
+        resolved path in a folder of this user's under the temporary folder (nothing is
+        added beside the user's files; the lock ends with the process)."""
+        import hashlib
+        import tempfile
+
+        key = hashlib.sha256(os.fsencode(os.path.realpath(path))).hexdigest()[:32]
+        folder = Path(tempfile.gettempdir()) / f"envpredict-locks-{os.getuid() if hasattr(os, 'getuid') else 0}"
+        try:
+            folder.mkdir(mode=0o700, exist_ok=True)
+        except OSError as e:
+            raise InputError(f"cannot create the lock folder '{folder}' ({e.strerror})",
+                             "check the temporary folder (TMPDIR)") from None
+        return cls._locked_fd(folder / f"{key}.lock", os.O_RDWR | os.O_CREAT, shown=path)
 
     @staticmethod
     def _existing_rows(p: Path, manifest: Manifest, header: list[str], exists: bool, resume: bool,
@@ -518,8 +545,9 @@ class ResultWriter:
         return done, rewrite
 
     @staticmethod
-    def _locked_fd(path: Path, flags: int) -> int:
-        """Open ``path`` and take an exclusive advisory lock (refused if another run holds it)."""
+    def _locked_fd(path: Path, flags: int, shown: Path | None = None) -> int:
+        """Open ``path`` and take an exclusive advisory lock (refused if another run holds it;
+        the message names ``shown``, default ``path``)."""
         fd = os.open(path, flags, 0o666)  # 0666 & ~umask, as any new file
         try:
             import fcntl
@@ -529,7 +557,7 @@ class ResultWriter:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except OSError:
             os.close(fd)
-            raise InputError(f"results file '{path}' is being written by another batch run",
+            raise InputError(f"results file '{shown or path}' is being written by another batch run",
                              "wait for it to finish, or choose another --out") from None
         return fd
 
@@ -568,10 +596,12 @@ class ResultWriter:
         return cells
 
     def close(self) -> None:
-        if self._fd is not None:
-            with contextlib.suppress(OSError):
-                os.close(self._fd)
-            self._fd = None
+        for attr in ("_fd", "_run_lock"):
+            fd = getattr(self, attr)
+            if fd is not None:
+                with contextlib.suppress(OSError):
+                    os.close(fd)
+                setattr(self, attr, None)
 
     def finish(self) -> None:
         """All rows done: rewrite the file in manifest order, atomically."""

@@ -544,3 +544,32 @@ def test_interrupt_says_how_to_finish(ir_corpus, tmp_path, capsys, monkeypatch):
     monkeypatch.setattr(batch, "run_batch", interrupted)
     assert cli_exit_code(["batch", str(ir_corpus["manifest"]), "--out", str(out), "--resume"]) == 130
     assert "finish with: envpredict batch" in capsys.readouterr().err
+
+
+def test_two_runs_starting_together_cannot_both_take_the_results_file(ir_corpus, tmp_path, monkeypatch):
+    # run A replaces the results file (a rename: a new file) before it appends; a run B that
+    # opens the same file in that moment found the new file unlocked and scored every row
+    # too. The run lock is on a path that does not change, so B is refused.
+    import shutil
+
+    out = tmp_path / "r.csv"
+    shutil.copy(ir_corpus["reference"], out)
+    m = read_manifest(ir_corpus["manifest"])
+    seen = {}
+    rewrite = batch.ResultWriter._rewrite
+
+    def rewrite_then_second_run(self, sort):
+        rewrite(self, sort)  # the file is now a new one, not yet opened for appending by A
+        try:
+            batch.ResultWriter.open(out, m, overwrite=True).close()
+            seen["second"] = "opened"
+        except InputError as e:
+            seen["second"] = str(e)
+
+    monkeypatch.setattr(batch.ResultWriter, "_rewrite", rewrite_then_second_run)
+    first = batch.ResultWriter.open(out, m, overwrite=True)
+    first.close()
+    assert "being written by another batch run" in seen["second"]
+    # after A closes, the file can be opened again
+    monkeypatch.setattr(batch.ResultWriter, "_rewrite", rewrite)
+    batch.ResultWriter.open(out, m, resume=True).close()
