@@ -791,6 +791,10 @@ def _connect(address: str):
     except (OSError, TimeoutError, ValueError) as e:
         raise InputError(f"cannot reach the dask scheduler at '{address}' ({type(e).__name__}: {e})",
                          "check the address (tcp://HOST:PORT) and that the scheduler is running") from None
+    except Exception as e:  # a service that is not a dask scheduler: its bytes read as a message of
+        # absurd length (MemoryError) or a malformed one
+        raise InputError(f"the service at '{address}' does not answer as a dask scheduler ({type(e).__name__})",
+                         "give the address of a dask scheduler (printed by 'dask scheduler' when it starts)") from None
     threads = sum(client.nthreads().values())
     if threads == 0:
         client.close()

@@ -573,3 +573,38 @@ def test_two_runs_starting_together_cannot_both_take_the_results_file(ir_corpus,
     # after A closes, the file can be opened again
     monkeypatch.setattr(batch.ResultWriter, "_rewrite", rewrite)
     batch.ResultWriter.open(out, m, resume=True).close()
+
+
+def test_a_scheduler_address_that_is_not_dask_is_refused_in_one_line(tmp_path, capsys):
+    # a plain TCP service on this machine (loopback only) that answers with HTTP text: dask
+    # read its bytes as a message of absurd length and the batch said "out of memory"
+    pytest.importorskip("distributed")
+    import socket
+    import threading
+
+    srv = socket.socket()
+    srv.bind(("127.0.0.1", 0))
+    srv.listen(4)
+    srv.settimeout(30)
+    port = srv.getsockname()[1]
+
+    def serve():  # answers at most 10 connections, then stops
+        for _ in range(10):
+            try:
+                conn, _ = srv.accept()
+            except OSError:
+                return
+            with conn:
+                conn.sendall(b"HTTP/1.1 200 OK\r\nContent-Length: 5\r\n\r\nhello" * 1000)
+
+    threading.Thread(target=serve, daemon=True).start()
+    (tmp_path / "m.csv").write_text("ir,position\nhall.wav,front\n")
+    try:
+        code = cli_exit_code(["batch", tmp_path / "m.csv", "--out", tmp_path / "o.csv",
+                              "--scheduler", f"tcp://127.0.0.1:{port}"])
+    finally:
+        srv.close()
+    err = capsys.readouterr().err
+    assert code == 2, err
+    assert "does not answer as a dask scheduler" in err and "out of memory" not in err
+    assert not (tmp_path / "o.csv").exists()
