@@ -435,17 +435,22 @@ def resample(x: np.ndarray, fs_in: int, fs_out: int) -> np.ndarray:
 THREAD_LIMIT_VARS: tuple[str, ...] = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 
 
+def usable_cores() -> int:
+    """Cores this process may run on."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
+
+
 def usable_threads() -> int:
     """Cores this process may use, at most the first thread limit set in the environment."""
-    try:
-        n = len(os.sched_getaffinity(0))
-    except (AttributeError, OSError):
-        n = os.cpu_count() or 1
+    n = usable_cores()
     for var in THREAD_LIMIT_VARS:
         value = os.environ.get(var, "").strip()
         if value.isdigit() and int(value) > 0:
-            return max(1, min(n, int(value)))
-    return max(1, n)
+            return min(n, int(value))
+    return n
 
 
 def in_parallel(tasks: list) -> list:

@@ -80,6 +80,7 @@ from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator, Sequence
 
 from . import standards as std
+from .audio import THREAD_LIMIT_VARS, usable_cores
 from .exceptions import ComputationError, EnvpredictError, InputError
 
 from .tables import (  # noqa: F401  (the column vocabulary, re-exported for batch users)
@@ -126,8 +127,7 @@ MIN_DASK_IN_FLIGHT: int = 8
 #: processes (unless the user set them): N single-threaded processes on N cores
 #: instead of N processes each starting a thread per core, which oversubscribes the
 #: cores and made the pair scoring no faster with 2 workers than with 1.
-THREAD_ENV_VARS: tuple[str, ...] = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
-                                    "VECLIB_MAXIMUM_THREADS", "NUMEXPR_NUM_THREADS")
+THREAD_ENV_VARS: tuple[str, ...] = THREAD_LIMIT_VARS + ("VECLIB_MAXIMUM_THREADS", "NUMEXPR_NUM_THREADS")
 
 #: Modules every pool worker needs for its first row: imported once, in the fork server
 #: the workers are forked from (see :func:`_pool_context`), not once per worker.
@@ -615,14 +615,6 @@ class ResultWriter:
 # ---------------------------------------------------------------------------
 # Executors
 # ---------------------------------------------------------------------------
-
-
-def usable_cores() -> int:
-    """Cores this process may run on."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except (AttributeError, OSError):
-        return max(1, os.cpu_count() or 1)
 
 
 def _worker_init(batch_pid: int | None = None) -> None:

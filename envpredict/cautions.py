@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from . import standards as std
+from .sti import format_index
 
 LIFE_SAFETY = (
     "This STI is a prediction from the measurement and settings given, not a certification. "
@@ -26,8 +27,6 @@ NO_AUDITORY = (
 def below_target(sti: float) -> str | None:
     """The caution for an STI below the common voice-alarm requirement, judged on the
     unrounded value and shown with the decimals that keep the two consistent."""
-    from .sti import format_index
-
     if sti < std.VOICE_ALARM_TARGET_STI:
         return (f"STI {format_index(sti)} is below {std.VOICE_ALARM_TARGET_STI:.2f}, the value commonly "
                 "required of voice-alarm systems.")

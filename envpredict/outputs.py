@@ -66,21 +66,14 @@ def current_umask() -> int:
     return mask
 
 
-def _file_mode(target: Path) -> int:
-    """Mode for a file written at ``target``: that of the file it replaces, or 0666 & ~umask."""
+def _mode(target: Path, folder: bool) -> int:
+    """Mode for a file (or folder) written at ``target``: that of the file (folder) it
+    replaces, or 0666 (0777) & ~umask."""
     with contextlib.suppress(OSError):
         st = os.stat(target)
-        if stat.S_ISREG(st.st_mode):
+        if (stat.S_ISDIR if folder else stat.S_ISREG)(st.st_mode):
             return stat.S_IMODE(st.st_mode) & 0o777
-    return 0o666 & ~current_umask()
-
-
-def _folder_mode(target: Path) -> int:
-    with contextlib.suppress(OSError):
-        st = os.stat(target)
-        if stat.S_ISDIR(st.st_mode):
-            return stat.S_IMODE(st.st_mode) & 0o777
-    return 0o777 & ~current_umask()
+    return (0o777 if folder else 0o666) & ~current_umask()
 
 
 # ---------------------------------------------------------------------------
@@ -397,7 +390,7 @@ def atomic_write_bytes(path: _PathLike, data: bytes) -> Path:
     target = check_output_file(p)
     parent = _parent(target)
     remove_stale_temporaries(target)
-    mode = _file_mode(target)
+    mode = _mode(target, folder=False)
     try:
         fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.{os.getpid()}.", suffix=".part", dir=str(parent))
     except OSError as e:
@@ -445,7 +438,7 @@ def atomic_directory(path: _PathLike, *, replaceable: Callable[[Path], None] | N
     target = check_output_folder(p, option="folder")
     parent = _parent(target)
     remove_stale_temporaries(target)
-    mode = _folder_mode(target)
+    mode = _mode(target, folder=True)
     try:
         tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.{os.getpid()}.", suffix=".part", dir=str(parent)))
         os.chmod(tmp, mode)
