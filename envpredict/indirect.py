@@ -129,6 +129,12 @@ def sti_from_ir(
 def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_dba: float, talker: str,
              auditory: bool, progress: Callable[[int, int], None] | None, label: str) -> IrResult:
     """The indirect method on a validated response (options already checked)."""
+    if x.size / fs < MIN_IR_SECONDS:  # too short to judge its shape, and for any figure
+        raise InputError(
+            f"impulse response is {x.size / fs:.3f} s long; at least {MIN_IR_SECONDS:.2f} s is needed for the "
+            "0.63 Hz modulation frequency",
+            "measure or export a longer impulse response",
+        )
     check_impulse_response(x, fs, label)
     t0 = onset_index(x)
     after = (x.size - t0) / fs

@@ -36,6 +36,7 @@ def files(tmp_path_factory):
     f["nan"] = w("nan.wav", nan, FS_SP, "FLOAT")
     f["clipped"] = w("clipped.wav", np.clip(6 * harmonic_syllables(fs=48000), -1, 1), 48000)
     f["short_ir"] = w("short_ir.wav", noise_decay(0.1, seconds=0.3), FS_IR)
+    f["click"] = w("click.wav", np.r_[0.5, np.zeros(200)], FS_IR, "FLOAT")  # a 4 ms file
     f["short_pair"] = w("short.wav", harmonic_syllables(seconds=0.2), FS_SP)
     f["low_rate"] = w("low_rate.wav", harmonic_syllables(fs=8000), 8000)
     f["stereo"] = w("stereo.wav", np.stack([noise_decay(0.8, seconds=2.0, seed=s) for s in (1, 2)], axis=1), FS_IR)
@@ -63,6 +64,7 @@ CASES = [
     ("NaN samples", lambda f, o: ["pair", f["clean"], f["nan"], "--out", o], 2, "NaN"),
     ("clipped", lambda f, o: ["stipa", f["clipped"], "--out", o], 2, "clipped"),
     ("IR too short", lambda f, o: ["ir", f["short_ir"], "--out", o], 2, "0.63 Hz"),
+    ("IR of a few ms", lambda f, o: ["ir", f["click"], "--out", o], 2, "0.004 s long; at least 0.79 s"),
     ("pair too short", lambda f, o: ["pair", f["short_pair"], f["short_pair"], "--out", o], 2, "short"),
     ("too long for the excerpt limit", lambda f, o: ["inspect", f["clean"], "--duration", "100000", "--out", o], 2,
      "duration"),
