@@ -27,6 +27,7 @@ import math
 import os
 from collections.abc import Iterator
 from fractions import Fraction
+from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
@@ -420,13 +421,78 @@ def is_clipped(x: np.ndarray) -> bool:
 
 
 def resample(x: np.ndarray, fs_in: int, fs_out: int) -> np.ndarray:
-    """Resample with a polyphase FIR (scipy.signal.resample_poly)."""
+    """Resample with a polyphase FIR: ``scipy.signal.resample_poly`` (see :func:`polyphase`)."""
     if int(fs_in) == int(fs_out):
         return np.asarray(x, dtype=np.float64)
-    from scipy.signal import resample_poly
-
     up, down = resample_ratio(fs_in, fs_out)
-    return resample_poly(np.asarray(x, dtype=np.float64), up, down)
+    return polyphase(np.asarray(x, dtype=np.float64), up, down)
+
+
+#: Largest polyphase matrix (entries) :func:`polyphase` builds; above it (ratios with large
+#: factors on both sides) scipy's filter runs instead. 2**20 doubles = 8 MiB, cached once.
+POLYPHASE_MATRIX_MAX: int = 1 << 20
+#: Output periods (``up`` samples each) computed per matrix product: keeps the strided
+#: input copy of one product (periods x taps doubles) small enough for the cache.
+POLYPHASE_BLOCK: int = 2048
+
+
+@lru_cache(maxsize=8)
+def _polyphase_matrix(up: int, down: int) -> tuple[np.ndarray, int]:
+    """scipy's default ``resample_poly`` filter rearranged as a (taps, up) matrix.
+
+    ``resample_poly(x, up, down)`` is ``y[k] = sum_m x[m] h[k down - m up + half]`` with
+    ``h`` the Kaiser-windowed (beta 5) sinc of ``2 half + 1`` taps, ``half = 10
+    max(up, down)``, cut-off ``1 / max(up, down)``, gain ``up``. Writing ``k = p up + r``
+    and ``m = p down + q`` makes ``y[p up + r] = sum_q x[p down + q] M[q - q0, r]`` with
+    ``M[q - q0, r] = h[r down - q up + half]``: one matrix product per block of output
+    periods. Returns ``(M, q0)``.
+    """
+    from scipy.signal import firwin
+
+    rate = max(up, down)
+    half = 10 * rate
+    h = firwin(2 * half + 1, 1.0 / rate, window=("kaiser", 5.0)) * up
+    q0 = -((h.size - 1 - half) // up) - 1
+    q1 = ((up - 1) * down + half) // up + 1
+    q = np.arange(q0, q1 + 1)[:, None]
+    idx = np.arange(up)[None, :] * down - q * up + half
+    ok = (idx >= 0) & (idx < h.size)
+    m = np.where(ok, h[np.clip(idx, 0, h.size - 1)], 0.0)
+    m.flags.writeable = False
+    return m, int(q0)
+
+
+def polyphase(x: np.ndarray, up: int, down: int) -> np.ndarray:
+    """``scipy.signal.resample_poly(x, up, down)`` (default filter, zero padding) of a 1-D
+    float array, equal to it within float rounding.
+
+    Where ``up > 1`` the filter runs as blocks of matrix products (see
+    :func:`_polyphase_matrix`), which uses the CPU's vector units and is about twice as
+    fast as scipy's tap-by-tap loop for ratios such as 16 kHz to 10 kHz; otherwise (pure
+    decimation, or a matrix above :data:`POLYPHASE_MATRIX_MAX`) scipy's filter runs.
+    """
+    from numpy.lib.stride_tricks import as_strided
+
+    x = np.ascontiguousarray(x, dtype=np.float64)
+    rate = max(up, down)
+    taps = -(-(20 * rate + 1) // up) + down + 2
+    if up < 2 or taps * up > POLYPHASE_MATRIX_MAX or x.size == 0:
+        from scipy.signal import resample_poly
+
+        return resample_poly(x, up, down)
+    m, q0 = _polyphase_matrix(up, down)
+    n_out = -(-x.size * up // down)
+    periods = -(-n_out // up)
+    width = m.shape[0]
+    padded = np.zeros((periods - 1) * down + width)
+    padded[-q0 : -q0 + x.size] = x[: padded.size + q0]
+    step = padded.strides[0]
+    windows = as_strided(padded, shape=(periods, width), strides=(step * down, step), writeable=False)
+    out = np.empty(periods * up)
+    for p0 in range(0, periods, POLYPHASE_BLOCK):
+        p1 = min(periods, p0 + POLYPHASE_BLOCK)
+        np.matmul(windows[p0:p1], m, out=out[p0 * up : p1 * up].reshape(p1 - p0, up))
+    return out[:n_out]
 
 
 
@@ -684,11 +750,9 @@ class Resampled(Source):
         self.margin = half_len // self.up + 4 + self.down
 
     def _read(self, a: int, b: int) -> np.ndarray:
-        from scipy.signal import resample_poly
-
         i0 = max(0, ((a * self.down) // self.up - self.margin) // self.down * self.down)
         i1 = min(self.src.n, -(-(b * self.down) // self.up) + self.margin)
-        seg = resample_poly(self.src.read(i0, i1), self.up, self.down)
+        seg = polyphase(self.src.read(i0, i1), self.up, self.down)
         off = i0 * self.up // self.down
         return seg[a - off: b - off]
 

@@ -40,9 +40,18 @@ from .results import jsonable
 #: Guard against division by zero in normalisations (double-precision machine epsilon).
 EPS: float = float(np.finfo(np.float64).eps)
 
-#: Segments processed at once in the vectorised segment statistics (bounds memory:
-#: 15 bands x 2048 segments x 8 bytes = 0.25 MB per array, which stays in cache).
-SEGMENT_BLOCK: int = 2048
+#: Segments processed at once in the vectorised segment statistics (bounds memory: a
+#: STOI block's temporaries are 15 bands x 256 segments x 30 frames x 8 bytes = 0.9 MB,
+#: which stays in cache; the result does not depend on it).
+SEGMENT_BLOCK: int = 256
+
+#: The same for the ESTOI statistics, which loop over a segment's 30 frames as (15,
+#: segments) views: 15 x 2048 x 8 bytes = 0.25 MB per array.
+ESTOI_SEGMENT_BLOCK: int = 2048
+
+#: Fewest segments per half before :func:`segment_scores` splits the work over two
+#: threads (below it, about 5 s of speech, the thread start costs more than it saves).
+PARALLEL_MIN_SEGMENTS: int = 400
 
 #: Frames per chunk of the streamed passes (about 52 s of signal at 10 kHz).
 DEFAULT_CHUNK_FRAMES: int = 4096
@@ -152,12 +161,15 @@ def _chunk_samples(x_read: Reader, f0: int, f1: int) -> np.ndarray:
 def frame_energies_db(x_read: Reader, n_samples: int, chunk_frames: int = DEFAULT_CHUNK_FRAMES) -> np.ndarray:
     """Energy of each windowed frame of the clean signal, dB (20 log10 of the frame norm)."""
     w = analysis_window()
+    w2 = w * w
     total = frame_count(n_samples)
     out = np.empty(total)
     for f0 in range(0, total, chunk_frames):
         f1 = min(total, f0 + chunk_frames)
-        fr = _frames(_chunk_samples(x_read, f0, f1), f1 - f0)
-        out[f0:f1] = 20.0 * np.log10(np.sqrt(np.einsum("ij,ij->i", fr, fr * (w * w))) + EPS)
+        # sum over a frame of (w x)**2 = (frames of x**2) . w**2: one pass, no frame copy
+        chunk = _chunk_samples(x_read, f0, f1)
+        fr = _frames(chunk * chunk, f1 - f0)
+        out[f0:f1] = 20.0 * np.log10(np.sqrt(np.einsum("ij,j->i", fr, w2)) + EPS)
     return out
 
 
@@ -215,6 +227,8 @@ def tf_envelopes(
     is relative to the loudest frame of the whole signal), then the spectra of the
     kept frames. Returns ``(X, Y, kept_frame_indices, total_frames)``.
     """
+    from .audio import in_parallel
+
     total = frame_count(n_samples)
     n_chunks = max(1, -(-total // chunk_frames))
     energy = frame_energies_db(clean_read, n_samples, chunk_frames)
@@ -230,9 +244,13 @@ def tf_envelopes(
             fx = _frames(_chunk_samples(clean_read, f0, f1), f1 - f0)
             fy = _frames(_chunk_samples(degraded_read, f0, f1), f1 - f0)
 
-            for k0 in range(0, sel.size, SPECTRUM_BLOCK):
-                bx.add(fx[sel[k0 : k0 + SPECTRUM_BLOCK]])
-                by.add(fy[sel[k0 : k0 + SPECTRUM_BLOCK]])
+            def spectra(frames: np.ndarray, builder: _EnvelopeBuilder) -> None:
+                for k0 in range(0, sel.size, SPECTRUM_BLOCK):
+                    builder.add(frames[sel[k0 : k0 + SPECTRUM_BLOCK]])
+
+            # clean and degraded at once where two cores are free (numpy's FFT and array
+            # arithmetic release the GIL); each builder sees its frames in order either way
+            in_parallel([lambda: spectra(fx, bx), lambda: spectra(fy, by)])
         if progress is not None:
             progress(i + 2, n_chunks + 1)
     return bx.result(), by.result(), kept_idx, total
@@ -267,42 +285,31 @@ def _row_stats(windows: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
     return mean, np.reciprocal(ss, out=ss)
 
 
-def _stoi_block(xw: list[np.ndarray], yw: list[np.ndarray], clip: float) -> np.ndarray:
+def _stoi_block(xw: np.ndarray, yw: np.ndarray, cxw: np.ndarray) -> np.ndarray:
     """Correlation of each band in each segment after normalisation and clipping (J, S).
 
     Taal 2011 eqs. (3)-(5): alpha = ||x|| / ||y|| over the segment's frames;
     y' = min(alpha y, clip x); d = sum((x - mean x)(y' - mean y')) / (norms of both).
+    ``xw``, ``yw`` are (J, S, 30) sliding-window views of the envelopes (segment s holds
+    frames s .. s+29) and ``cxw`` the same view of ``clip x``: every sum over a segment's
+    frames is one contiguous reduction along the last axis.
     """
-    sxx = np.zeros_like(xw[0])
-    syy = np.zeros_like(xw[0])
-    for x, y in zip(xw, yw):
-        sxx += x * x
-        syy += y * y
+    sxx = np.einsum("jsn,jsn->js", xw, xw)
+    syy = np.einsum("jsn,jsn->js", yw, yw)
     syy += EPS
     alpha = np.sqrt(sxx / syy)
-
-    def clipped(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-        yp = y * alpha
-        return np.minimum(yp, clip * x, out=yp)
-
-    mx, ix = _row_stats(xw)
-    myp = np.zeros_like(mx)
-    for x, y in zip(xw, yw):
-        myp += clipped(x, y)
-    myp /= len(xw)
-    cxy = np.zeros_like(mx)
-    cyy = np.zeros_like(mx)
-    for x, y in zip(xw, yw):
-        yp = clipped(x, y)
-        yp -= myp
-        cxy += (x - mx) * yp
-        yp *= yp
-        cyy += yp
-    np.sqrt(cyy, out=cyy)
-    cyy += EPS
-    cxy *= ix
-    cxy /= cyy
-    return cxy
+    yp = yw * alpha[..., None]
+    np.minimum(yp, cxw, out=yp)
+    yp -= yp.mean(axis=-1, keepdims=True)
+    xc = xw - xw.mean(axis=-1, keepdims=True)
+    num = np.einsum("jsn,jsn->js", xc, yp)
+    nx = np.sqrt(np.einsum("jsn,jsn->js", xc, xc))
+    nx += EPS
+    ny = np.sqrt(np.einsum("jsn,jsn->js", yp, yp))
+    ny += EPS
+    num /= nx
+    num /= ny
+    return num
 
 
 def _estoi_block(xw: list[np.ndarray], yw: list[np.ndarray]) -> np.ndarray:
@@ -355,17 +362,33 @@ def segment_scores(x_env: np.ndarray, y_env: np.ndarray, which: tuple[str, ...] 
             f"({n * std.STOI_HOP / std.STOI_FS * 1000:.0f} ms of speech)",
             "give a longer pair with more speech in it",
         )
+    from numpy.lib.stride_tricks import sliding_window_view
+
+    from .audio import in_parallel
+
     clip = 1.0 + 10.0 ** (-std.STOI_BETA_DB / 20.0)
     out = {k: np.empty((n_bands, n_seg)) for k in SCORES if k in which}
-    for s0 in range(0, n_seg, SEGMENT_BLOCK):
-        s1 = min(n_seg, s0 + SEGMENT_BLOCK)
-        # frame k of every segment s0..s1-1: a (15, s1 - s0) view of the envelopes
-        xw = [x_env[:, s0 + k : s1 + k] for k in range(n)]
-        yw = [y_env[:, s0 + k : s1 + k] for k in range(n)]
+    if SCORES[0] in out:
+        x_win = sliding_window_view(x_env, n, axis=1)  # (15, S, 30) views, no copy
+        y_win = sliding_window_view(y_env, n, axis=1)
+        cx_win = sliding_window_view(clip * x_env, n, axis=1)
+
+    def part(s0: int, s1: int) -> None:
         if SCORES[0] in out:
-            out[SCORES[0]][:, s0:s1] = _stoi_block(xw, yw, clip)
+            for b0 in range(s0, s1, SEGMENT_BLOCK):
+                b1 = min(s1, b0 + SEGMENT_BLOCK)
+                out[SCORES[0]][:, b0:b1] = _stoi_block(x_win[:, b0:b1], y_win[:, b0:b1], cx_win[:, b0:b1])
         if SCORES[1] in out:
-            out[SCORES[1]][:, s0:s1] = _estoi_block(xw, yw)
+            for b0 in range(s0, s1, ESTOI_SEGMENT_BLOCK):
+                b1 = min(s1, b0 + ESTOI_SEGMENT_BLOCK)
+                # frame k of every segment b0..b1-1: a (15, b1 - b0) view of the envelopes
+                xw = [x_env[:, b0 + k : b1 + k] for k in range(n)]
+                yw = [y_env[:, b0 + k : b1 + k] for k in range(n)]
+                out[SCORES[1]][:, b0:b1] = _estoi_block(xw, yw)
+
+    # two halves of the segments at once where two cores are free (numpy releases the GIL)
+    half = n_seg // 2 if n_seg >= 2 * PARALLEL_MIN_SEGMENTS else n_seg
+    in_parallel([lambda: part(0, half), lambda: part(half, n_seg)] if half < n_seg else [lambda: part(0, n_seg)])
     return out
 
 
@@ -477,21 +500,25 @@ def stoi_estoi_stream(
 def _prepare(clean: np.ndarray, degraded: np.ndarray, fs: int) -> tuple[np.ndarray, np.ndarray]:
     from .audio import in_parallel, resample, validate_signal
 
-    x = validate_signal(clean, fs, name="clean signal", allow_clipping=True)
-    y = validate_signal(degraded, fs, name="degraded signal", allow_clipping=True)
-    fs = int(fs)
-    if x.size != y.size:
+    def checked(a: np.ndarray, name: str) -> tuple[int, np.ndarray]:
+        v = validate_signal(a, fs, name=name, allow_clipping=True)
+        if int(fs) < std.STOI_FS:
+            raise InputError(
+                f"sample rate {int(fs)} Hz is below the {std.STOI_FS} Hz that STOI analyses",
+                f"give signals sampled at {std.STOI_FS} Hz or more (upsampling cannot restore the missing band)",
+            )
+        return v.size, resample(v, int(fs), std.STOI_FS)
+
+    # each signal checked and resampled in its own thread where two cores are free; an
+    # error of the clean signal is raised first, as if one after the other
+    (nx, x), (ny, y) = in_parallel(
+        [lambda: checked(clean, "clean signal"), lambda: checked(degraded, "degraded signal")]
+    )
+    if nx != ny:
         raise InputError(
-            f"clean ({x.size} samples) and degraded ({y.size} samples) differ in length",
+            f"clean ({nx} samples) and degraded ({ny} samples) differ in length",
             "pass time-aligned signals of equal length, or use envpredict.pair_indices to align them",
         )
-    if fs < std.STOI_FS:
-        raise InputError(
-            f"sample rate {fs} Hz is below the {std.STOI_FS} Hz that STOI analyses",
-            f"give signals sampled at {std.STOI_FS} Hz or more (upsampling cannot restore the missing band)",
-        )
-    if fs != std.STOI_FS:  # both signals at once where two cores are free
-        x, y = in_parallel([lambda: resample(x, fs, std.STOI_FS), lambda: resample(y, fs, std.STOI_FS)])
     return x, y
 
 
