@@ -565,3 +565,25 @@ def test_in_parallel_gives_the_serial_results_in_order(monkeypatch):
     monkeypatch.setenv("OMP_NUM_THREADS", "1")
     me = threading.get_ident()
     assert in_parallel([threading.get_ident, threading.get_ident]) == [me, me]
+
+
+@pytest.mark.parametrize(
+    "fs_in, fs_out",
+    [(16000, 10000), (48000, 10000), (44100, 10000), (22050, 16000), (96000, 44100), (20000, 10000), (8000, 44100)],
+)
+def test_polyphase_equals_scipy_resample_poly(fs_in, fs_out):
+    # reference: scipy.signal.resample_poly (default Kaiser filter, zero padding), which
+    # audio.polyphase restates as blocked matrix products; lengths from 1 sample to
+    # several blocks, including ones that end mid-period
+    from scipy.signal import resample_poly
+
+    from envpredict.audio import POLYPHASE_BLOCK, polyphase, resample_ratio
+
+    up, down = resample_ratio(fs_in, fs_out)
+    rng = np.random.default_rng(fs_in + fs_out)
+    for n in (1, 2, 5, 17, 999, POLYPHASE_BLOCK * down // max(1, up) * 3 + 7):
+        x = rng.standard_normal(n)
+        want = resample_poly(x, up, down)
+        got = polyphase(x, up, down)
+        assert got.shape == want.shape
+        np.testing.assert_allclose(got, want, rtol=0, atol=1e-12)
