@@ -961,11 +961,14 @@ class ScoreData:
     Attributes
     ----------
     index_values, correct, trials : one value per row (counts are whole numbers).
+    fitted_percent : the fitted mapping's percent correct at each row's index value
+        (set by :func:`fit_mapping_file`).
     """
 
     index_values: np.ndarray
     correct: np.ndarray
     trials: np.ndarray
+    fitted_percent: np.ndarray | None = None
 
     @property
     def observed_percent(self) -> np.ndarray:
@@ -1009,7 +1012,7 @@ def fit_mapping_file(
     m = fit_mapping(x, k, n, index=index, shape=shape, guess=guess, lapse=lapse,
                     source=f"binomial maximum-likelihood fit to {len(rows)} rows of '{Path(path).name}' "
                            f"(columns {index}, {correct}, {trials})")
-    return m, ScoreData(index_values=x, correct=k, trials=n)
+    return m, ScoreData(index_values=x, correct=k, trials=n, fitted_percent=m.percent(x))
 
 
 def predict_file(

@@ -76,10 +76,9 @@ def fitmap_command(
     d = m.to_dict()
     d["inputs"] = {"scores": str(scores), "index": index, "correct": correct, "trials": trials, "shape": shape,
                    "guess": guess, "lapse": lapse}
-    fitted = m.percent(data.index_values)
     trows = [[f"{xi:.4g}", f"{ki:g}", f"{ni:g}", f"{oi:.1f}", f"{fi:.1f}"]
              for xi, ki, ni, oi, fi in zip(data.index_values, data.correct, data.trials, data.observed_percent,
-                                           fitted)]
+                                           data.fitted_percent)]
     emit(d, lambda: render_fit(d, trows), as_json, out)
     if out is not None and not as_json:
         note(f"mapping written to {out}")
