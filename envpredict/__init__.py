@@ -25,7 +25,8 @@ Impulse response (indirect STI, ISO 3382-1 decay figures)
     qualification_band, decay_figures, reverberation_time, mid_frequency,
     mtf_from_ir, octave_bands
 Audio
-    load_audio, validate_signal, resolve_calibration, write_wav
+    load_audio, validate_signal, resolve_calibration, write_wav,
+    octave_band_levels, octave_band_levels_file
 Direct method (test signals and their recordings)
     stipa_signal, full_sti_signals, full_sti_plan, write_stipa_signal,
     StipaSignalResult, write_full_sti_signals, FullStiSignalsResult,
@@ -74,6 +75,8 @@ _API: dict[str, str] = {
     "octave_bands": "envpredict.bands",
     # audio
     "load_audio": "envpredict.audio",
+    "octave_band_levels": "envpredict.audio",
+    "octave_band_levels_file": "envpredict.audio",
     "validate_signal": "envpredict.audio",
     "resolve_calibration": "envpredict.audio",
     "write_wav": "envpredict.audio",

@@ -17,7 +17,15 @@ from .decay import DecayResult, check_impulse_response, decay_figures, onset_ind
 from .exceptions import InputError
 from .modulation import mtf_from_ir
 from .results import jsonable
-from .sti import StiResult, check_speech_level, check_talker, parse_noise_levels, sti_from_mtf
+from .sti import (
+    StiResult,
+    a_weighted_level,
+    check_speech_level,
+    check_talker,
+    parse_noise_levels,
+    parse_speech_levels,
+    sti_from_mtf,
+)
 
 #: Shortest usable impulse response after its onset: half a period of the lowest
 #: modulation frequency, so that the Fourier kernel at 0.63 Hz changes sign within
@@ -55,6 +63,7 @@ class IrResult:
     speech_level_dba: float
     cautions: tuple[str, ...]
     ir_range_db: np.ndarray  # decay range of the IR itself per band, dB
+    notes: tuple[str, ...] = ()  # where the speech and noise levels came from
 
     def to_dict(self) -> dict:
         d = self.sti.to_dict()
@@ -66,7 +75,7 @@ class IrResult:
                 "speech_level_dba": self.speech_level_dba,
                 "decay": self.decay.to_dict(),
                 "cautions": list(self.cautions),
-                "notes": [],
+                "notes": list(self.notes),
             }
         )
         return jsonable(d)
@@ -77,10 +86,11 @@ def sti_from_ir(
     fs: int,
     *,
     noise_db: Sequence[float] | str | None = None,
-    speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
+    speech_level_dba: float | None = None,
     talker: str = std.DEFAULT_TALKER,
     auditory: bool = True,
     progress: Callable[[int, int], None] | None = None,
+    speech_db: Sequence[float] | str | None = None,
 ) -> IrResult:
     """STI (indirect method) and ISO 3382-1 decay figures from an impulse response.
 
@@ -97,10 +107,13 @@ def sti_from_ir(
     ir : 1-D impulse response.
     fs : sample rate, Hz (above 22.6 kHz so the 8 kHz band fits).
     noise_db : seven octave-band background-noise levels at the listener, dB SPL.
-    speech_level_dba : A-weighted speech level at the listener, dB(A) (default 60, a
-        normal voice at 1 m).
+    speech_level_dba : A-weighted speech level at the listener, dB(A), with the standard
+        speech spectrum of ``talker`` (default 60, a normal voice at 1 m).
     talker : "male" or "female".
     auditory : apply masking and reception threshold (IEC 60268-16 Ed.4).
+    speech_db : instead of ``speech_level_dba``, seven measured octave-band speech levels
+        at the listener, dB SPL, 125 Hz ... 8 kHz (e.g. of the test signal played at the
+        system's speech level, measured with a band level meter).
 
     Valid input: at least 0.79 s of response after its onset; the response should
     decay to its noise floor within the file.
@@ -117,17 +130,39 @@ def sti_from_ir(
     True
     """
     talker = check_talker(talker)
-    speech_level_dba = check_speech_level(speech_level_dba)
+    speech, speech_level_dba = _speech_levels(speech_level_dba, speech_db)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
     x = validate_signal(ir, fs, name="impulse response")
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
     return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
-                    progress=progress, label="the signal")
+                    progress=progress, label="the signal", speech_db=speech,
+                    notes=_speech_note(speech, speech_level_dba))
+
+
+def _speech_levels(speech_level_dba: float | None, speech_db) -> tuple[np.ndarray | None, float]:
+    """The checked speech level: ``(None, dB(A))`` for the standard spectrum, or the seven
+    measured band levels with their A-weighted sum."""
+    if speech_db is None:
+        return None, check_speech_level(std.DEFAULT_SPEECH_LEVEL_DBA if speech_level_dba is None
+                                        else speech_level_dba)
+    if speech_level_dba is not None:
+        raise InputError("both a speech level in dB(A) and octave-band speech levels were given",
+                         "give one of them (--speech-level or --speech-levels)")
+    levels = parse_speech_levels(speech_db)
+    return levels, a_weighted_level(levels)
+
+
+def _speech_note(speech: np.ndarray | None, level_dba: float) -> tuple[str, ...]:
+    if speech is None:
+        return ()
+    return (f"Speech: measured octave-band levels at the listener ({level_dba:.1f} dB(A) A-weighted sum), "
+            "in place of the standard speech spectrum.",)
 
 
 def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_dba: float, talker: str,
-             auditory: bool, progress: Callable[[int, int], None] | None, label: str) -> IrResult:
+             auditory: bool, progress: Callable[[int, int], None] | None, label: str,
+             speech_db: np.ndarray | None = None, notes: tuple[str, ...] = ()) -> IrResult:
     """The indirect method on a validated response (options already checked)."""
     if x.size / fs < MIN_IR_SECONDS:  # too short to judge its shape, and for any figure
         raise InputError(
@@ -163,7 +198,8 @@ def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_d
         progress(2, 3)
     lengths = t0 + np.round(decay.crossing_s * fs).astype(int)
     mtf = mtf_from_ir(bands, fs, std.MODULATION_FREQUENCIES_HZ, lengths=lengths)
-    res = sti_from_mtf(mtf, noise_db=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory)
+    res = sti_from_mtf(mtf, noise_db=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
+                       speech_db=speech_db)
     if progress:
         progress(3, 3)
 
@@ -193,7 +229,7 @@ def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_d
     cautions.extend(_decay_shape_cautions(decay))
     return IrResult(
         sti=res, decay=decay, fs=fs, duration_s=x.size / fs, speech_level_dba=speech_level_dba,
-        cautions=tuple(cautions), ir_range_db=decay.range_db,
+        cautions=tuple(cautions), ir_range_db=decay.range_db, notes=notes,
     )
 
 
@@ -228,10 +264,17 @@ def sti_from_ir_file(
     *,
     channel: int | None = None,
     noise_db: Sequence[float] | str | None = None,
-    speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
+    speech_level_dba: float | None = None,
     talker: str = std.DEFAULT_TALKER,
     auditory: bool = True,
     progress: Callable[[int, int], None] | None = None,
+    speech_db: Sequence[float] | str | None = None,
+    noise_recording: str | os.PathLike | None = None,
+    noise_channel: int | None = None,
+    calibration_db: float | None = None,
+    calibrator: str | os.PathLike | None = None,
+    calibrator_level: float | None = None,
+    calibrator_channel: int | None = None,
 ) -> IrResult:
     """STI (indirect method) and ISO 3382-1 decay figures of an impulse-response file.
 
@@ -243,7 +286,16 @@ def sti_from_ir_file(
     ----------
     path : WAV, FLAC or OGG file holding the impulse response.
     channel : channel of a multi-channel file (0 = first); ``None`` requires a mono file.
-    noise_db, speech_level_dba, talker, auditory, progress : as for :func:`sti_from_ir`.
+    noise_db, speech_level_dba, talker, auditory, progress, speech_db : as for
+        :func:`sti_from_ir`.
+    noise_recording : instead of ``noise_db``, a calibrated recording of the site's
+        background noise at the listener; its octave-band levels (Leq over the whole
+        file, :func:`envpredict.audio.octave_band_levels`) are the noise levels.
+    noise_channel : channel of a multi-channel noise recording.
+    calibration_db, calibrator, calibrator_level, calibrator_channel : the noise
+        recording's calibration, as for the direct method
+        (:func:`envpredict.audio.resolve_calibration`); the calibrator channel defaults
+        to ``noise_channel``.
 
     Returns
     -------
@@ -255,15 +307,40 @@ def sti_from_ir_file(
         A bad option, or a missing, unreadable, clipped or silent file, or one that is not
         an impulse response (:func:`envpredict.decay.impulse_shape`).
     """
-    from .audio import load_audio
+    from .audio import load_audio, octave_band_levels_file, resolve_calibration
 
     talker = check_talker(talker)
-    speech_level_dba = check_speech_level(speech_level_dba)
+    speech, speech_level_dba = _speech_levels(speech_level_dba, speech_db)
+    notes = _speech_note(speech, speech_level_dba)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
+    calibrated = calibration_db is not None or calibrator is not None or calibrator_level is not None
+    if noise_recording is None and (calibrated or noise_channel is not None or calibrator_channel is not None):
+        raise InputError("a calibration or noise channel was given without a noise recording",
+                         "give the noise recording (--noise-recording), or leave the calibration out")
+    if noise_recording is not None:
+        if noise is not None:
+            raise InputError("both noise levels and a noise recording were given",
+                             "give one of them (--noise or --noise-recording)")
+        if not calibrated:
+            raise InputError("the noise recording has no calibration",
+                             "give --calibration-db (dB SPL of a full-scale RMS signal) or --calibrator with "
+                             "--calibrator-level")
+        cal, how = resolve_calibration(calibration_db, calibrator, calibrator_level,
+                                       noise_channel if calibrator_channel is None else calibrator_channel)
+        noise = octave_band_levels_file(noise_recording, noise_channel, calibration_db=cal)
+        noise_name = os.path.basename(os.fsdecode(noise_recording))
+        notes += (f"Noise: octave-band Leq of the recording '{_printable(noise_name)}' "
+                  f"(calibration {cal:.1f} dB SPL for a full-scale RMS signal, from "
+                  f"{'a calibrator recording' if how == 'calibrator' else 'the given offset'}).",)
     x, fs = load_audio(path, channel, name="impulse response")
     x = validate_signal(x, fs, name="impulse response")
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
-    name = os.path.basename(os.fsdecode(path)).encode("utf-8", "surrogateescape").decode("utf-8", "replace")
+    name = _printable(os.path.basename(os.fsdecode(path)))
     return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
-                    progress=progress, label=f"'{name}'")
+                    progress=progress, label=f"'{name}'", speech_db=speech, notes=notes)
+
+
+def _printable(name: str) -> str:
+    """A file name as text (undecodable bytes shown as replacement characters)."""
+    return name.encode("utf-8", "surrogateescape").decode("utf-8", "replace")

@@ -46,6 +46,39 @@ def check_speech_level(level_dba: float) -> float:
     return v
 
 
+def _parse_band_levels(text: str | Sequence[float], what: str, example: str) -> np.ndarray:
+    """Seven octave-band levels (dB SPL, 125 Hz ... 8 kHz) from a comma-separated string
+    or a sequence, each within :data:`~envpredict.standards.NOISE_LEVEL_RANGE_DB`."""
+    if isinstance(text, str):
+        parts = [p.strip() for p in text.replace(";", ",").split(",") if p.strip()]
+        try:
+            vals = [float(p) for p in parts]
+        except ValueError:
+            raise InputError(
+                f"{what} levels '{text}' are not all numbers",
+                f"give seven comma-separated dB values, 125 Hz to 8 kHz, e.g. {example}",
+            ) from None
+    else:
+        try:
+            vals = [float(v) for v in text]
+        except (TypeError, ValueError):
+            raise InputError(f"{what} levels are not all numbers", "give seven dB values, 125 Hz to 8 kHz") from None
+    n = len(std.OCTAVE_BANDS_HZ)
+    if len(vals) != n:
+        raise InputError(
+            f"{len(vals)} {what} level(s) given; {n} are needed",
+            "give one dB SPL value per octave band, 125 Hz to 8 kHz, comma-separated",
+        )
+    a = np.array(vals, dtype=float)
+    lo, hi = std.NOISE_LEVEL_RANGE_DB
+    if not np.all(np.isfinite(a)) or np.any(a < lo) or np.any(a > hi):
+        raise InputError(
+            f"a {what} level is outside the plausible range",
+            f"give octave-band levels between {lo:.0f} and {hi:.0f} dB SPL",
+        )
+    return a
+
+
 def parse_noise_levels(text: str | Sequence[float] | None) -> np.ndarray | None:
     """Parse seven octave-band noise levels (dB SPL, 125 Hz ... 8 kHz).
 
@@ -53,34 +86,25 @@ def parse_noise_levels(text: str | Sequence[float] | None) -> np.ndarray | None:
     """
     if text is None:
         return None
-    if isinstance(text, str):
-        parts = [p.strip() for p in text.replace(";", ",").split(",") if p.strip()]
-        try:
-            vals = [float(p) for p in parts]
-        except ValueError:
-            raise InputError(
-                f"noise levels '{text}' are not all numbers",
-                "give seven comma-separated dB values, 125 Hz to 8 kHz, e.g. 45,42,40,38,35,30,25",
-            ) from None
-    else:
-        try:
-            vals = [float(v) for v in text]
-        except (TypeError, ValueError):
-            raise InputError("noise levels are not all numbers", "give seven dB values, 125 Hz to 8 kHz") from None
-    n = len(std.OCTAVE_BANDS_HZ)
-    if len(vals) != n:
-        raise InputError(
-            f"{len(vals)} noise level(s) given; {n} are needed",
-            "give one dB SPL value per octave band, 125 Hz to 8 kHz, comma-separated",
-        )
-    a = np.array(vals, dtype=float)
-    lo, hi = std.NOISE_LEVEL_RANGE_DB
-    if not np.all(np.isfinite(a)) or np.any(a < lo) or np.any(a > hi):
-        raise InputError(
-            "a noise level is outside the plausible range",
-            f"give octave-band levels between {lo:.0f} and {hi:.0f} dB SPL",
-        )
-    return a
+    return _parse_band_levels(text, "noise", "45,42,40,38,35,30,25")
+
+
+def parse_speech_levels(text: str | Sequence[float] | None) -> np.ndarray | None:
+    """Parse seven measured octave-band speech levels at the listener (dB SPL, 125 Hz ...
+    8 kHz), e.g. of the test signal played at speech level; ``None``: not given.
+
+    Accepts a comma-separated string or a sequence.
+    """
+    if text is None:
+        return None
+    return _parse_band_levels(text, "speech", "60,63,61,55,49,43,37")
+
+
+def a_weighted_level(band_db: Sequence[float] | np.ndarray) -> float:
+    """A-weighted sum, dB(A), of seven octave-band levels (125 Hz ... 8 kHz), with the
+    octave-band A-weighting of :data:`~envpredict.standards.A_WEIGHTING_OCTAVE_DB`."""
+    lk = np.asarray(band_db, dtype=float)
+    return float(10.0 * np.log10(np.sum(10.0 ** ((lk + np.asarray(std.A_WEIGHTING_OCTAVE_DB)) / 10.0))))
 
 
 def speech_band_levels(level_dba: float, talker: str = "male") -> np.ndarray:

@@ -16,8 +16,19 @@ from ._common import (
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
               "comma-separated, e.g. 48,45,42,40,36,32,28. Default: no noise.")
-LEVEL_HELP = (f"A-weighted speech level at the listener, dB(A). Default {std.DEFAULT_SPEECH_LEVEL_DBA:g} "
-              "(normal voice at 1 m).")
+LEVEL_HELP = (f"A-weighted speech level at the listener, dB(A), with the standard speech spectrum. Default "
+              f"{std.DEFAULT_SPEECH_LEVEL_DBA:g} (normal voice at 1 m).")
+LEVELS_HELP = ("Measured speech levels at the listener instead of --speech-level: seven octave-band levels in "
+               "dB SPL, 125 Hz to 8 kHz, comma-separated (e.g. of the test signal played at the system's "
+               "speech level).")
+NOISE_REC_HELP = ("Background noise as a calibrated recording at the listener instead of --noise: its "
+                  "octave-band levels (Leq over the file) are used. Needs --calibration-db or --calibrator.")
+NOISE_CHANNEL_HELP = "Channel of the noise recording (0 = first). Required for multi-channel files."
+CAL_HELP = "Calibration of the noise recording: the dB SPL that a full-scale RMS signal (0 dBFS RMS) corresponds to."
+CALIBRATOR_HELP = ("Recording of a 1 kHz acoustic calibrator made with the same gain as the noise recording "
+                   "(instead of --calibration-db).")
+CAL_LEVEL_HELP = "Level of the calibrator in --calibrator, dB SPL (as printed on it, e.g. 94)."
+CAL_CHANNEL_HELP = "Channel of the calibrator recording (default: same as --noise-channel)."
 TALKER_HELP = "Speech spectrum and band weights: male or female (IEC 60268-16)."
 AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textbook form, for "
                  "comparison with published formulas; not for compliance work).")
@@ -55,6 +66,10 @@ def render_ir(d: dict, source: str) -> str:
         lines.append("")
         lines.append("Decay figures not computed:")
         lines.extend(f"  - {n}" for n in dec["notes"])
+    if d["notes"]:
+        lines.append("")
+        lines.append("Levels used:")
+        lines.extend(f"  - {n}" for n in d["notes"])
     lines.append("")
     lines.append("Cautions:")
     lines.extend(f"  - {c}" for c in d["cautions"])
@@ -65,7 +80,14 @@ def render_ir(d: dict, source: str) -> str:
 def ir_command(
     ir_file: Path = typer.Argument(..., help="Impulse response (WAV, FLAC or OGG).", show_default=False),
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
-    speech_level: float = typer.Option(std.DEFAULT_SPEECH_LEVEL_DBA, "--speech-level", help=LEVEL_HELP),
+    speech_level: Optional[float] = typer.Option(None, "--speech-level", help=LEVEL_HELP, show_default=False),
+    speech_levels: Optional[str] = typer.Option(None, "--speech-levels", help=LEVELS_HELP),
+    noise_recording: Optional[Path] = typer.Option(None, "--noise-recording", help=NOISE_REC_HELP),
+    noise_channel: Optional[int] = typer.Option(None, "--noise-channel", help=NOISE_CHANNEL_HELP),
+    calibration_db: Optional[float] = typer.Option(None, "--calibration-db", help=CAL_HELP),
+    calibrator: Optional[Path] = typer.Option(None, "--calibrator", help=CALIBRATOR_HELP),
+    calibrator_level: Optional[float] = typer.Option(None, "--calibrator-level", help=CAL_LEVEL_HELP),
+    calibrator_channel: Optional[int] = typer.Option(None, "--calibrator-channel", help=CAL_CHANNEL_HELP),
     talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP),
     no_auditory: bool = typer.Option(False, "--no-auditory-corrections", help=AUDITORY_HELP),
     channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
@@ -76,13 +98,20 @@ def ir_command(
     """STI (IEC 60268-16 indirect method) and ISO 3382-1 decay figures from an impulse response."""
     from envpredict.indirect import sti_from_ir_file
 
-    check_outputs(out=out, report=report, inputs=[ir_file])
+    check_outputs(out=out, report=report, inputs=[p for p in (ir_file, noise_recording, calibrator) if p])
     with Progress("analysing impulse response", None, quiet=as_json) as prog:
         result = sti_from_ir_file(ir_file, channel=channel, noise_db=noise, speech_level_dba=speech_level,
-                                  talker=talker, auditory=not no_auditory, progress=prog)
+                                  talker=talker, auditory=not no_auditory, progress=prog, speech_db=speech_levels,
+                                  noise_recording=noise_recording, noise_channel=noise_channel,
+                                  calibration_db=calibration_db, calibrator=calibrator,
+                                  calibrator_level=calibrator_level, calibrator_channel=calibrator_channel)
     d = result.to_dict()
     d["inputs"] = {"impulse_response": str(ir_file), "channel": channel,
-                   "noise": noise,
-                   "speech_level_dba": speech_level, "talker": talker, "auditory_corrections": not no_auditory}
+                   "noise": noise, "noise_recording": None if noise_recording is None else str(noise_recording),
+                   "noise_channel": noise_channel,
+                   "calibration": ("calibrator" if calibrator else "offset" if calibration_db is not None else None),
+                   "calibrator": None if calibrator is None else str(calibrator),
+                   "speech_level_dba": result.speech_level_dba, "speech_levels": speech_levels,
+                   "talker": talker, "auditory_corrections": not no_auditory}
     write_report_if(report, "ir", d, as_json=as_json, title=f"STI and decay figures of {ir_file.name}")
     emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)
