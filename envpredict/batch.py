@@ -7,17 +7,26 @@ A *manifest* is a CSV file with one row per item to score:
   speech-based STI (``envpredict.pair``);
 * **IR rows** have the column ``ir`` (path of an impulse response) and are scored
   with the STI by the indirect method and the ISO 3382-1 mid-frequency decay
-  figures (:func:`envpredict.indirect.sti_from_ir`).
+  figures (:func:`envpredict.indirect.sti_from_ir_file`);
+* **STIPA rows** have the column ``stipa`` (path of a recording of the STIPA test
+  signal) and are scored with the STI by the direct method
+  (:func:`envpredict.direct.stipa_from_file`).
 
-Relative paths are taken relative to the folder of the manifest. Both kinds may be
-mixed in one manifest (a row is an IR row when its ``ir`` cell is filled). Optional
-columns that feed the scoring (empty cell = the batch default):
+Relative paths are taken relative to the folder of the manifest. The kinds may be
+mixed in one manifest (a row's kind is the input column it fills; one per row).
+Optional columns that feed the scoring (empty cell = the batch default):
 
 * ``channel`` -- channel of multi-channel files (0 = first; all rows);
 * ``noise`` -- seven octave-band background-noise levels at the listener, dB SPL,
   125 Hz to 8 kHz, separated by ``;`` or by ``,`` inside a quoted cell (IR rows);
+* ``noise_recording`` -- instead of ``noise``, a calibrated recording of the site
+  noise (IR rows; needs ``calibration_db``);
 * ``speech_level`` -- A-weighted speech level at the listener, dB(A) (IR rows);
-* ``sti_talker`` -- ``male`` or ``female`` speech spectrum and weights (IR rows).
+* ``speech_levels`` -- instead of ``speech_level``, seven measured octave-band speech
+  levels at the listener, dB SPL, separated like ``noise`` (IR rows);
+* ``calibration_db`` -- dB SPL of a full-scale RMS signal in the row's recording
+  (STIPA rows, optional) or noise recording (IR rows);
+* ``sti_talker`` -- ``male`` or ``female`` speech spectrum and weights (IR and STIPA rows).
   (A column named ``talker`` is *not* read: in speech corpora it names the speaker,
   and it is carried through like any other column.)
 
@@ -26,6 +35,7 @@ Every other column (condition, talker, SNR, ...) is carried through unchanged.
 The results file has the columns ``row`` (1-based number of the data row in the
 manifest: the key that ``resume`` uses), the manifest's own columns unchanged, the
 index columns (:data:`IR_INDEX_COLUMNS` when the manifest has an ``ir`` column,
+else :data:`STIPA_INDEX_COLUMNS` when it has a ``stipa`` column, and
 :data:`PAIR_INDEX_COLUMNS` when it has ``clean``/``degraded``), ``notes`` (why a
 figure of a scored row is empty, e.g. a pair too short for the speech-based STI or a
 decay range too small for T30) and ``error`` (empty when the row was scored;
@@ -84,6 +94,7 @@ from .audio import THREAD_LIMIT_VARS, usable_cores
 from .exceptions import ComputationError, EnvpredictError, InputError
 
 from .tables import (  # noqa: F401  (the column vocabulary, re-exported for batch users)
+    CALIBRATION_COLUMN,
     CHANNEL_COLUMN,
     CLEAN_COLUMN,
     DEGRADED_COLUMN,
@@ -91,6 +102,7 @@ from .tables import (  # noqa: F401  (the column vocabulary, re-exported for bat
     IR_COLUMN,
     IR_INDEX_COLUMNS,
     NOISE_COLUMN,
+    NOISE_RECORDING_COLUMN,
     NOTES_COLUMN,
     NUMERIC_INDEX_COLUMNS,
     OPTION_COLUMNS,
@@ -99,7 +111,10 @@ from .tables import (  # noqa: F401  (the column vocabulary, re-exported for bat
     RESULT_COLUMNS,
     ROW_COLUMN,
     SPEECH_LEVEL_COLUMN,
+    SPEECH_LEVELS_COLUMN,
     STI_TALKER_COLUMN,
+    STIPA_COLUMN,
+    STIPA_INDEX_COLUMNS,
     csv_line,
     format_cell,
     iter_records,
@@ -191,16 +206,28 @@ def _where(path: Path, row: int | None = None, line: int | None = None, column: 
     return s
 
 
+#: Manifest option columns and the job keys they fill.
+_OPTION_KEYS: dict[str, str] = {CHANNEL_COLUMN: "channel", NOISE_COLUMN: "noise", SPEECH_LEVEL_COLUMN: "speech_level",
+                                SPEECH_LEVELS_COLUMN: "speech_levels", CALIBRATION_COLUMN: "calibration_db",
+                                STI_TALKER_COLUMN: "talker"}
+
+
 def _option_value(path: Path, row: int, line: int, column: str, text: str, defaults: dict) -> Any:
     """Parse one option cell (empty: the batch default); errors name file, row and column."""
     from .sti import check_speech_level, check_talker, parse_noise_levels
 
     text = text.strip()
-    key = {CHANNEL_COLUMN: "channel", NOISE_COLUMN: "noise", SPEECH_LEVEL_COLUMN: "speech_level",
-           STI_TALKER_COLUMN: "talker"}[column]
+    from .audio import check_calibration_db
+    from .sti import parse_speech_levels
+
+    key = _OPTION_KEYS[column]
     if not text:
         return defaults[key]
     try:
+        if column == SPEECH_LEVELS_COLUMN:
+            return [float(v) for v in parse_speech_levels(text.replace(";", ","))]
+        if column == CALIBRATION_COLUMN:
+            return check_calibration_db(text)
         if column == CHANNEL_COLUMN:
             try:
                 ch = int(text)
@@ -249,6 +276,8 @@ def read_manifest(
         "channel": None,
         "noise": None if noise is None else [float(v) for v in noise],
         "speech_level": check_speech_level(speech_level_dba),
+        "speech_levels": None,
+        "calibration_db": None,
         "talker": check_talker(talker),
     }
     def bad(line: int, e: Exception) -> InputError:
@@ -271,20 +300,20 @@ def read_manifest(
                 f"{_where(p, column=c)} has the name of a result column",
                 f"rename it (reserved: {', '.join(sorted(RESULT_COLUMNS))})",
             )
-    has_ir = IR_COLUMN in seen
+    has_ir, has_stipa = IR_COLUMN in seen, STIPA_COLUMN in seen
     has_clean, has_deg = CLEAN_COLUMN in seen, DEGRADED_COLUMN in seen
     if has_clean != has_deg:
         missing = DEGRADED_COLUMN if has_clean else CLEAN_COLUMN
         raise InputError(f"{_where(p)} has no '{missing}' column", "pair rows need both 'clean' and 'degraded'")
     has_pair = has_clean and has_deg
-    if not (has_ir or has_pair):
+    if not (has_ir or has_stipa or has_pair):
         hint = ""
         if len(columns) == 1 and (";" in columns[0] or "\t" in columns[0]):
             hint = " (it looks separated by ';' or tabs: use commas)"
         raise InputError(
-            f"{_where(p)} has neither an 'ir' column nor 'clean' and 'degraded' columns{hint}; "
+            f"{_where(p)} has neither an 'ir' or 'stipa' column nor 'clean' and 'degraded' columns{hint}; "
             f"found: {', '.join(columns)}",
-            "name the input columns ir, or clean and degraded",
+            "name the input columns ir, stipa, or clean and degraded",
         )
     col = {c: i for i, c in enumerate(columns)}
     base = p.resolve().parent
@@ -304,23 +333,29 @@ def read_manifest(
                 raise InputError(f"{_where(p, row, line, c)} contains a line break", "remove it")
         get = {c: rec[i] for c, i in col.items()}
         ir = get.get(IR_COLUMN, "").strip()
+        stipa = get.get(STIPA_COLUMN, "").strip()
         clean = get.get(CLEAN_COLUMN, "").strip()
         deg = get.get(DEGRADED_COLUMN, "").strip()
-        if ir and (clean or deg):
+        filled = [name for name, v in ((IR_COLUMN, ir), (STIPA_COLUMN, stipa), ("clean'/'degraded", clean or deg))
+                  if v]
+        if len(filled) > 1:
             raise InputError(
-                f"{_where(p, row, line)} fills both 'ir' and 'clean'/'degraded'",
-                "give either an impulse response or a clean/degraded pair on each row",
+                f"{_where(p, row, line)} fills both '{filled[0]}' and '{filled[1]}'",
+                "give one input on each row: an impulse response, a STIPA recording or a clean/degraded pair",
             )
-        if not ir and not (clean or deg):
-            need = "'ir'" if not has_pair else ("'clean' and 'degraded'" if not has_ir else
-                                               "'ir', or 'clean' and 'degraded'")
-            raise InputError(f"{_where(p, row, line)} names no input file", f"fill {need}")
-        if not ir and not (clean and deg):
+        if not filled:
+            kinds = [k for k, has in (("'ir'", has_ir), ("'stipa'", has_stipa), ("'clean' and 'degraded'", has_pair))
+                     if has]
+            raise InputError(f"{_where(p, row, line)} names no input file", f"fill {', or '.join(kinds)}")
+        if (clean or deg) and not (clean and deg):
             empty = CLEAN_COLUMN if not clean else DEGRADED_COLUMN
             raise InputError(f"{_where(p, row, line, empty)} is empty", "a pair row needs both files")
         opts = {key: _option_value(p, row, line, c, get[c], defaults) if c in get else defaults[key]
-                for c, key in ((CHANNEL_COLUMN, "channel"), (NOISE_COLUMN, "noise"),
-                               (SPEECH_LEVEL_COLUMN, "speech_level"), (STI_TALKER_COLUMN, "talker"))}
+                for c, key in _OPTION_KEYS.items()}
+        noise_rec = get.get(NOISE_RECORDING_COLUMN, "").strip()
+        if noise_rec and not ir:
+            raise InputError(f"{_where(p, row, line, NOISE_RECORDING_COLUMN)} is filled on a row without 'ir'",
+                             "a noise recording goes with an impulse response (a STIPA recording holds its noise)")
 
         def full(s: str) -> str:
             q = Path(s).expanduser()
@@ -329,14 +364,20 @@ def read_manifest(
         job: dict[str, Any] = {"row": row, "channel": opts["channel"]}
         if ir:
             job.update(kind="ir", ir=full(ir), noise=opts["noise"], speech_level=opts["speech_level"],
-                       talker=opts["talker"])
+                       talker=opts["talker"], speech_levels=opts["speech_levels"],
+                       noise_recording=full(noise_rec) if noise_rec else None,
+                       calibration_db=opts["calibration_db"])
+        elif stipa:
+            job.update(kind="stipa", stipa=full(stipa), talker=opts["talker"],
+                       calibration_db=opts["calibration_db"])
         else:
             job.update(kind="pair", clean=full(clean), degraded=full(deg))
         cells.append(tuple(rec))
         jobs.append(job)
     if not cells:
         raise InputError(f"{_where(p)} has a header but no rows", "add one row per item to score")
-    index_columns = (IR_INDEX_COLUMNS if has_ir else ()) + (PAIR_INDEX_COLUMNS if has_pair else ())
+    sti_columns = IR_INDEX_COLUMNS if has_ir else STIPA_INDEX_COLUMNS if has_stipa else ()
+    index_columns = sti_columns + (PAIR_INDEX_COLUMNS if has_pair else ())
     return Manifest(path=p, columns=columns, cells=tuple(cells), jobs=tuple(jobs), index_columns=index_columns)
 
 
@@ -349,9 +390,13 @@ def _score_ir(job: dict) -> dict:
     from .decay import mid_frequency, mid_frequency_notes
     from .indirect import sti_from_ir_file
 
-    r = sti_from_ir_file(job["ir"], channel=job.get("channel"), noise_db=job.get("noise"),
-                         speech_level_dba=job.get("speech_level", std.DEFAULT_SPEECH_LEVEL_DBA),
-                         talker=job.get("talker", std.DEFAULT_TALKER))
+    levels = job.get("speech_levels")
+    noise_rec = job.get("noise_recording")
+    r = sti_from_ir_file(job["ir"], channel=job.get("channel"),
+                         noise_db=None if noise_rec else job.get("noise"),
+                         speech_level_dba=None if levels else job.get("speech_level", std.DEFAULT_SPEECH_LEVEL_DBA),
+                         talker=job.get("talker", std.DEFAULT_TALKER), speech_db=levels,
+                         noise_recording=noise_rec, calibration_db=job.get("calibration_db") if noise_rec else None)
     values = {
         "sti": float(r.sti.sti),
         "rating": r.sti.rating,
@@ -375,6 +420,14 @@ def _specific_cautions(r: Any) -> tuple[str, ...]:
 
     generic = {cau.LIFE_SAFETY, cau.NO_NOISE, cau.NO_AUDITORY, cau.below_target(r.sti.sti)}
     return tuple(c for c in r.cautions if c not in generic)
+
+
+def _score_stipa(job: dict) -> dict:
+    from .direct import stipa_from_file
+
+    r = stipa_from_file(job["stipa"], channel=job.get("channel"), calibration_db=job.get("calibration_db"),
+                        talker=job.get("talker", std.DEFAULT_TALKER))
+    return {"sti": float(r.sti.sti), "rating": r.sti.rating, NOTES_COLUMN: "; ".join(_specific_cautions(r))}
 
 
 def _score_pair(job: dict) -> dict:
@@ -401,7 +454,8 @@ def score_row(job: dict) -> dict:
     """
     row = job.get("row")
     try:
-        values = _score_ir(job) if job.get("kind") == "ir" else _score_pair(job)
+        kind = job.get("kind")
+        values = _score_ir(job) if kind == "ir" else _score_stipa(job) if kind == "stipa" else _score_pair(job)
         return {"row": row, "values": values, "error": ""}
     except EnvpredictError as e:
         return {"row": row, "values": {}, "error": e.one_line()}
@@ -1001,10 +1055,10 @@ def _batch_cautions(m: Manifest) -> tuple[str, ...]:
     from . import cautions as cau
 
     ir_jobs = [j for j in m.jobs if j["kind"] == "ir"]
-    if not ir_jobs:
+    if not ir_jobs and not any(j["kind"] == "stipa" for j in m.jobs):
         return ()
     out = [cau.LIFE_SAFETY]
-    if any(j.get("noise") is None for j in ir_jobs):
+    if any(j.get("noise") is None and j.get("noise_recording") is None for j in ir_jobs):
         out.append("Rows without noise levels hold only for a noise-free site: give the octave-band noise "
                    "at the listener in a 'noise' column or with --noise.")
     return tuple(out)

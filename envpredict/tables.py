@@ -34,18 +34,25 @@ from .exceptions import InputError
 # Column vocabulary of manifests and results files
 # ---------------------------------------------------------------------------
 
-#: Manifest columns naming the input files.
+#: Manifest columns naming the input files: an impulse response, a recording of the
+#: STIPA test signal, or a clean/degraded pair (one kind per row).
 IR_COLUMN = "ir"
+STIPA_COLUMN = "stipa"
 CLEAN_COLUMN = "clean"
 DEGRADED_COLUMN = "degraded"
-PATH_COLUMNS: tuple[str, ...] = (IR_COLUMN, CLEAN_COLUMN, DEGRADED_COLUMN)
+#: IR rows: a calibrated recording of the site noise (instead of ``noise``).
+NOISE_RECORDING_COLUMN = "noise_recording"
+PATH_COLUMNS: tuple[str, ...] = (IR_COLUMN, STIPA_COLUMN, CLEAN_COLUMN, DEGRADED_COLUMN, NOISE_RECORDING_COLUMN)
 
 #: Optional manifest columns that feed the scoring (see :mod:`envpredict.batch`).
 CHANNEL_COLUMN = "channel"
 NOISE_COLUMN = "noise"
 SPEECH_LEVEL_COLUMN = "speech_level"
+SPEECH_LEVELS_COLUMN = "speech_levels"
+CALIBRATION_COLUMN = "calibration_db"
 STI_TALKER_COLUMN = "sti_talker"
-OPTION_COLUMNS: tuple[str, ...] = (CHANNEL_COLUMN, NOISE_COLUMN, SPEECH_LEVEL_COLUMN, STI_TALKER_COLUMN)
+OPTION_COLUMNS: tuple[str, ...] = (CHANNEL_COLUMN, NOISE_COLUMN, SPEECH_LEVEL_COLUMN, SPEECH_LEVELS_COLUMN,
+                                   CALIBRATION_COLUMN, STI_TALKER_COLUMN)
 
 #: Result columns added to the manifest's own.
 ROW_COLUMN = "row"
@@ -55,6 +62,8 @@ NOTES_COLUMN = "notes"
 #: IR rows: STI, its qualification band, and the ISO 3382-1 mid-frequency T30 and EDT
 #: (mean of the 500 Hz and 1 kHz octave bands, seconds; :func:`envpredict.decay.mid_frequency`).
 IR_INDEX_COLUMNS: tuple[str, ...] = ("sti", "rating", "t30_mid", "edt_mid")
+#: STIPA rows: the STI (direct method) and its qualification band.
+STIPA_INDEX_COLUMNS: tuple[str, ...] = ("sti", "rating")
 #: Pair rows: STOI, ESTOI, speech-based STI and the delay of the degraded signal, ms.
 PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression", "delay_ms")
 #: Index columns holding numbers (all except the rating letter).

@@ -446,7 +446,7 @@ def test_ir_option_columns_feed_the_scoring(tmp_path):
     "text, pattern",
     [
         ("", r"is empty"),
-        ("condition,talker\nA,1\n", r"neither an 'ir' column nor 'clean' and 'degraded'"),
+        ("condition,talker\nA,1\n", r"neither an 'ir' or 'stipa' column nor 'clean' and 'degraded'"),
         ("ir;condition\na.wav;A\n", r"use commas"),
         ("clean,condition\na.wav,A\n", r"no 'degraded' column"),
         ("ir,cond,cond\na.wav,A,B\n", r"column 'cond' appears twice"),

@@ -103,3 +103,31 @@ def test_bad_level_options_are_refused_in_one_line(site, capsys, extra, message)
     assert code == 2 and out == ""
     assert err.startswith("error: ") and message in err and err.count("\n") == 1, err
     assert {p.name: p.stat().st_mtime_ns for p in d.iterdir()} == before
+
+
+def test_batch_rows_with_site_levels_and_stipa_recordings_equal_the_single_commands(site, capsys, tmp_path):
+    # the same files through a manifest (IR row with measured levels and a noise recording,
+    # STIPA row with its calibration, and a row whose noise recording lacks a calibration)
+    # give the numbers of the single-file commands; the bad row is a row error, the rest go on
+    d, speech = site
+    manifest = tmp_path / "site.csv"
+    manifest.write_text(
+        "zone,ir,stipa,speech_levels,noise_recording,calibration_db\n"
+        f'hall,{d / "ir.wav"},,"{speech}",{d / "noise.wav"},{CAL_DB}\n'
+        f"hall,,{d / 'recording.wav'},,,{CAL_DB}\n"
+        f'hall,{d / "ir.wav"},,"{speech}",{d / "noise.wav"},\n',
+        encoding="utf-8",
+    )
+    out = tmp_path / "rows.csv"
+    code, _, err = run_cli(["batch", manifest, "--out", out, "--workers", "1"], capsys)
+    assert code == 1, err  # one row failed
+    from envpredict.tables import read_results
+
+    _, rows = read_results(out)
+    code, o1, _ = run_cli(["ir", d / "ir.wav", "--speech-levels", speech, "--noise-recording", d / "noise.wav",
+                           "--calibration-db", CAL_DB, "--json"], capsys)
+    code, o2, _ = run_cli(["stipa", d / "recording.wav", "--calibration-db", CAL_DB, "--json"], capsys)
+    assert float(rows[0]["sti"]) == pytest.approx(json.loads(o1)["sti"], abs=5e-5)
+    assert float(rows[1]["sti"]) == pytest.approx(json.loads(o2)["sti"], abs=5e-5)
+    assert rows[1]["t30_mid"] == ""  # a STIPA row has no decay figures
+    assert "no calibration" in rows[2]["error"] and rows[2]["sti"] == ""
