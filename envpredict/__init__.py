@@ -44,6 +44,8 @@ SNR sweeps and the SRT
     snr_sweep, snr_sweep_files, SweepResult
 Corpora
     run_batch, read_results, compare_conditions, compare_conditions_file
+Site surveys
+    run_survey, SurveyResult, summarise_survey, parse_requirement
 Reports
     write_report
 Demo
@@ -123,6 +125,10 @@ _API: dict[str, str] = {
     "SweepResult": "envpredict.sweep",
     # corpora: batches, result tables, comparisons
     "run_batch": "envpredict.batch",
+    "run_survey": "envpredict.survey",
+    "SurveyResult": "envpredict.survey",
+    "summarise_survey": "envpredict.survey",
+    "parse_requirement": "envpredict.survey",
     "read_results": "envpredict.tables",
     "compare_conditions": "envpredict.stats",
     "compare_conditions_file": "envpredict.stats",

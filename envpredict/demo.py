@@ -90,3 +90,44 @@ def rate_demo_site(progress: Callable[[int, int], None] | None = None) -> DemoRe
         edt_mid_s=mid_frequency(ir.decay.edt, ir.decay.bands_hz),
         cautions=tuple(ir.cautions),
     )
+
+
+#: The demo survey's file, inside the demo folder (see tools/make_demo_survey.py).
+SURVEY_FILE = "survey/survey.csv"
+
+
+def demo_survey_path() -> Path:
+    """The installed demo survey (three zones of the demo site, two repeats per position)."""
+    return demo_dir() / SURVEY_FILE
+
+
+def copy_demo(folder: str | Path) -> list[str]:
+    """Copy the demo material (impulse responses, recordings, the survey) into a new
+    folder, to try the commands on files of one's own.
+
+    Parameters
+    ----------
+    folder : a folder that does not exist yet, or an empty one (written atomically).
+
+    Returns
+    -------
+    The copied files, relative to ``folder``.
+
+    Raises
+    ------
+    InputError
+        The folder exists and is not empty, or cannot be written.
+    """
+    import shutil
+
+    from .outputs import atomic_directory
+
+    src = demo_dir()
+    files = sorted(p.relative_to(src) for p in src.rglob("*")
+                   if p.is_file() and p.suffix in (".wav", ".flac", ".csv", ".json"))
+    with atomic_directory(folder) as tmp:
+        for rel in files:
+            (tmp / rel).parent.mkdir(parents=True, exist_ok=True)
+            shutil.copyfile(src / rel, tmp / rel)
+    return [str(r) for r in files]
+

@@ -41,7 +41,7 @@ import numpy as np
 from . import standards as std
 from .exceptions import InputError
 
-KINDS: tuple[str, ...] = ("ir", "stipa", "pair", "compare", "sweep", "inspect")
+KINDS: tuple[str, ...] = ("ir", "stipa", "pair", "compare", "sweep", "inspect", "survey")
 
 KIND_TITLES: dict[str, str] = {
     "ir": "STI and decay figures from an impulse response",
@@ -50,6 +50,7 @@ KIND_TITLES: dict[str, str] = {
     "compare": "Comparison of conditions",
     "sweep": "Predicted score against SNR",
     "inspect": "Envelope, periodicity and fine structure of a recording",
+    "survey": "Site survey: STI per position and zone",
 }
 
 # ---------------------------------------------------------------------------
@@ -994,11 +995,258 @@ def _page_inspect(d: Mapping) -> Page:
     return p
 
 
+# ---------------------------------------------------------------------------
+# survey
+# ---------------------------------------------------------------------------
+
+def _rule_value(rule: str) -> float:
+    return float(str(rule).split()[-1])
+
+
+def _survey_chart(d: Mapping) -> Figure:
+    """STI of every position (mean of its repeats, the repeats as small marks), grouped
+    by zone, over the qualification bands, with each required value as a line."""
+    from .sti import format_index
+
+    new = _mpl()
+    positions = list(d["positions"])
+    zones = list(dict.fromkeys(p["zone"] for p in positions))
+    n = len(positions)
+    fig = new(max(8.0, min(11.0, 2.0 + 0.9 * n)), 5.0)
+    ax = fig.add_subplot(111)
+    ax.grid(axis="x", visible=False)
+    lo_y = min([v for p in positions for v in p["sti_values"]] + [0.40]) - 0.04
+    hi_y = max([v for p in positions for v in p["sti_values"]] + [0.70]) + 0.04
+    # qualification bands as pale stripes, labelled at the right
+    top = 1.0
+    for k, (lab, lo, _nom) in enumerate(std.QUALIFICATION_BANDS):
+        ax.axhspan(lo, top, color=GRID if k % 2 else PAPER, alpha=0.9, zorder=0, lw=0)
+        mid = (max(lo, lo_y) + min(top, hi_y)) / 2
+        if lo_y < mid < hi_y and min(top, hi_y) - max(lo, lo_y) > 0.012:
+            ax.text(1.005, mid, lab, transform=ax.get_yaxis_transform(), fontsize=8.5, color=MUTED,
+                    va="center", ha="left")
+        top = lo
+    x = np.arange(n)
+    colours = {z: BAND_COLOURS[(2 * i + 4) % 7] for i, z in enumerate(zones)}
+    for i, p in enumerate(positions):
+        c = colours[p["zone"]]
+        if p["sti_values"]:
+            ax.plot([i] * len(p["sti_values"]), p["sti_values"], "_", color=c, ms=14, mew=1.6, zorder=3)
+        if p["sti_mean"] is not None:
+            ax.plot([i], [p["sti_mean"]], "o", color=c, ms=9, zorder=4, mec="white", mew=1.2)
+        else:
+            ax.text(i, lo_y + 0.01, "not\nscored", ha="center", va="bottom", fontsize=8, color=BRICK)
+    reqs = list(d.get("requirements") or [])
+    styles = ["--", ":", "-.", (0, (5, 1, 1, 1))]
+    for k, r in enumerate(reqs):
+        v = _rule_value(r)
+        ax.axhline(v, color=BRICK if k == 0 else INK, lw=1.5, ls=styles[k % len(styles)], zorder=2,
+                   label=f"required: {r}")
+    # zone separators and names
+    start = 0
+    for z in zones:
+        count = sum(1 for p in positions if p["zone"] == z)
+        if start:
+            ax.axvline(start - 0.5, color=MUTED, lw=0.8, zorder=1)
+        zd = next((zz for zz in d["zones"] if zz["zone"] == z), {})
+        verdict = (zd.get("verdict") or "").upper()
+        ax.text(start + (count - 1) / 2, 1.01, f"{z}" + (f"\n{verdict}" if verdict else ""),
+                transform=ax.get_xaxis_transform(), ha="center", va="bottom", fontsize=9.5 if count > 1 else 8.5,
+                fontweight="bold", color=colours[z], linespacing=1.15)
+        start += count
+    ax.set_xticks(x, [p["position"] for p in positions], rotation=30 if n > 6 else 0,
+                  ha="right" if n > 6 else "center")
+    ax.set_xlim(-0.6, n - 0.4)
+    ax.set_ylim(lo_y, hi_y)
+    ax.set_ylabel("STI (dot: mean of repeats; dashes: repeats)")
+    if reqs:
+        ax.legend(loc="lower right", fontsize=9, framealpha=0.95)
+    worst = [p for p in positions if p["sti_mean"] is not None]
+    cap = ("STI at every position, grouped by zone (with its verdict), over the qualification bands of "
+           "IEC 60268-16 Annex F (labels at the right)")
+    if reqs:
+        cap += "; the lines are the required values"
+    if worst:
+        w = min(worst, key=lambda p: p["sti_mean"])
+        ref = _rule_value(reqs[0]) if reqs else std.VOICE_ALARM_TARGET_STI
+        cap += f". Lowest position: {w['zone']}, {w['position']} ({format_index(w['sti_mean'], ref)})"
+    return Figure("positions", cap + ".", _png(fig))
+
+
+def _page_survey(d: Mapping) -> Page:
+    from .sti import format_index
+
+    reqs = list(d.get("requirements") or [])
+    ref = max((_rule_value(r) for r in reqs), default=std.VOICE_ALARM_TARGET_STI)
+    zones = list(d.get("zones") or [])
+    p = Page()
+    for z in zones:
+        verdict = z.get("verdict")
+        p.headline.append((z["zone"], Cell(html.escape((verdict or "no requirement").upper()),
+                                           cls={"pass": "pass", "fail": "fail"}.get(verdict or "", ""))))
+    p.figures.append(_survey_chart(d))
+
+    def sti_cell(path: str, value, req: float = ref) -> Cell:
+        if value is None:
+            return Cell("—", path, "na")
+        return Cell(format_index(value, req), path)
+
+    rows = []
+    for i, z in enumerate(zones):
+        checks = "; ".join(
+            f"{c['rule']}: {'—' if c['value'] is None else format_index(c['value'], _rule_value(c['rule']))} "
+            f"{'holds' if c['holds'] else 'fails' if c['holds'] is False else '(not judged: ' + c['reason'] + ')'}"
+            for c in z.get("checks", []))
+        below = "; ".join(f"below {b['rule'].split()[-1]}: {', '.join(b['positions'])}"
+                          for b in z.get("below", []) if b["positions"])
+        rows.append([txt(z["zone"]), Cell(str(z["positions"])), sti_cell(f"zones.{i}.sti_mean", z["sti_mean"]),
+                     num(d, f"zones.{i}.sti_sd", ".3f"), sti_cell(f"zones.{i}.sti_min", z["sti_min"]),
+                     sti_cell(f"zones.{i}.sti_max", z["sti_max"]),
+                     Cell(html.escape((z.get("verdict") or "—").upper()),
+                          cls={"pass": "pass", "fail": "fail"}.get(z.get("verdict") or "", "")),
+                     txt(z.get("decided_by")), txt(checks or "—"), txt(below or "none")])
+    p.tables.append(Table("Zones", ["zone", "positions", "mean", "sd", "min", "max", "verdict", "decided by",
+                                    "requirements", "positions below"], rows,
+                          "Statistics of the position means (each position counts once); sd: sample standard "
+                          "deviation. Verdicts are taken on unrounded values."))
+    rows = []
+    for i, q in enumerate(d.get("positions") or []):
+        rows.append([txt(q["zone"]), txt(q["position"]), Cell(str(q["repeats"])),
+                     sti_cell(f"positions.{i}.sti_mean", q["sti_mean"]), num(d, f"positions.{i}.sti_sd", ".3f"),
+                     num(d, f"positions.{i}.sti_spread", ".3f"), txt(q.get("rating")),
+                     txt(", ".join(format_index(v, ref) for v in q["sti_values"]) or "—"),
+                     txt(", ".join(str(r) for r in q["failed_rows"]) or "")])
+    p.tables.append(Table("Positions", ["zone", "position", "repeats", "STI mean", "sd", "spread", "band",
+                                        "repeats' STI", "rows not scored"], rows))
+    for f in d.get("failures") or []:
+        p.notes.append(f"Row {f['row']} could not be scored: {f['error']}")
+    p.notes += [str(n) for n in d.get("notes") or []]
+    return p
+
+
+
 _PAGES: dict[str, Callable[[Mapping], Page]] = {
     "ir": _page_ir, "stipa": _page_stipa, "pair": _page_pair, "compare": _page_compare,
-    "sweep": _page_sweep, "inspect": _page_inspect,
+    "sweep": _page_sweep, "inspect": _page_inspect, "survey": _page_survey,
 }
 
+
+
+# ---------------------------------------------------------------------------
+# The measurement record (who, where, with what) shown at the top of a report
+# ---------------------------------------------------------------------------
+
+#: Fields of the measurement record, in the order shown, with their labels.
+ABOUT_FIELDS: dict[str, str] = {
+    "project": "Project", "site": "Site", "zone": "Zone", "position": "Position", "operator": "Measured by",
+    "instrument": "Instrument", "serial": "Serial number", "calibration_date": "Calibration date",
+    "measurement_date": "Measurement date", "notes": "Notes",
+}
+
+#: Longest text of one field, characters (a record is a few lines, not a document).
+ABOUT_MAX_CHARS: int = 2000
+
+
+def read_about(path: str | os.PathLike | None = None, items: Sequence[str] = ()) -> dict[str, str]:
+    """The measurement record of a report from a small file and/or ``KEY=VALUE`` items
+    (items override the file).
+
+    The file holds one ``key: value`` line per field (blank lines and lines starting
+    with ``#`` are skipped), or a JSON object. Keys are those of :data:`ABOUT_FIELDS`.
+
+    Raises
+    ------
+    InputError
+        An unreadable file, a line or item without a value, an unknown key, or a value
+        longer than :data:`ABOUT_MAX_CHARS`.
+
+    Examples
+    --------
+    >>> read_about(items=["project=Pier 4 PA", "operator=K. Lind"])
+    {'project': 'Pier 4 PA', 'operator': 'K. Lind'}
+    """
+    pairs: list[tuple[str, str, str]] = []
+    if path is not None:
+        from .tables import read_text
+
+        text = read_text(Path(os.fspath(path)), "record file")
+        where = f"record file '{path}'"
+        if text.lstrip().startswith("{"):
+            try:
+                obj = json.loads(text)
+            except ValueError as e:
+                raise InputError(f"{where} is not valid JSON ({e.args[0] if e.args else e})",
+                                 "write one 'key: value' line per field, or a JSON object") from None
+            if not isinstance(obj, dict):
+                raise InputError(f"{where} holds JSON that is not an object", "write a JSON object of fields")
+            pairs += [(str(k), "" if v is None else str(v), where) for k, v in obj.items()]
+        else:
+            for i, line in enumerate(text.splitlines(), start=1):
+                if not line.strip() or line.lstrip().startswith("#"):
+                    continue
+                if ":" not in line:
+                    raise InputError(f"{where}, line {i} has no ':'", "write one 'key: value' line per field")
+                k, v = line.split(":", 1)
+                pairs.append((k, v, f"{where}, line {i}"))
+    for item in items:
+        if "=" not in str(item):
+            raise InputError(f"record item '{item}' has no '='", "write KEY=VALUE, e.g. operator=K. Lind")
+        k, v = str(item).split("=", 1)
+        pairs.append((k, v, f"record item '{item}'"))
+    out: dict[str, str] = {}
+    for k, v, where in pairs:
+        key = k.strip().lower().replace(" ", "_").replace("-", "_")
+        if key not in ABOUT_FIELDS:
+            raise InputError(f"{where}: unknown field '{k.strip()}'", f"use one of {', '.join(ABOUT_FIELDS)}")
+        value = " ".join(v.split())
+        if len(value) > ABOUT_MAX_CHARS:
+            raise InputError(f"{where}: the {key} is {len(value)} characters long",
+                             f"keep each field under {ABOUT_MAX_CHARS} characters")
+        if value:
+            out[key] = value
+    return out
+
+
+def _about_html(about: Mapping[str, Any]) -> str:
+    rows = [(ABOUT_FIELDS[k], str(about[k])) for k in ABOUT_FIELDS if about.get(k)]
+    if not rows:
+        return ""
+    body = "".join(f"<tr><th>{html.escape(k)}</th><td>{html.escape(v)}</td></tr>" for k, v in rows)
+    return f'<section class="record"><h2>Measurement record</h2><table><tbody>{body}</tbody></table></section>'
+
+
+_SIGN_OFF = (
+    '<section class="signoff"><h2>Review and sign-off</h2>'
+    "<p class=\"note\">The figures above are computed from the measurements and settings listed in this "
+    "report. Whether they meet a requirement is for a qualified person to decide under the local codes and "
+    "standards.</p><table><tbody>"
+    "<tr><th>Reviewed by</th><td></td></tr><tr><th>Date</th><td></td></tr><tr><th>Signature</th><td></td></tr>"
+    "</tbody></table></section>"
+)
+
+
+def _file_name(v: str) -> str:
+    """A path as its file name (a report shows names, never folders)."""
+    return Path(v).name or v
+
+
+def names_only(d: Any, *, _key: str = "") -> Any:
+    """A copy of a result with every path among its inputs (and the survey's file
+    entries) cut to its file name: a report handed to a client shows no folders."""
+    if isinstance(d, Mapping):
+        return {k: names_only(v, _key=str(k)) for k, v in d.items()}
+    if isinstance(d, list):
+        return [names_only(v, _key=_key) for v in d]
+    if isinstance(d, str) and (os.sep in d or (os.altsep and os.altsep in d)) and "\n" not in d:
+        if _key in _PATH_KEYS or os.path.isabs(d):
+            return _file_name(d)
+    return d
+
+
+#: Result keys that hold paths (beside the ``inputs`` object, whose path values are cut too).
+_PATH_KEYS: frozenset[str] = frozenset(
+    {"survey", "results", "folder", "manifest", "out", "impulse_response", "recording", "noise_recording",
+     "calibrator", "clean", "degraded", "scores", "map", "file", "path"})
 
 # ---------------------------------------------------------------------------
 # HTML
@@ -1039,7 +1287,26 @@ ul.notes{color:var(--ink);font-size:14px}
 details{margin:12px 0}
 pre{background:white;border:1px solid var(--grid);padding:10px;overflow-x:auto;font-size:12.5px}
 footer{margin-top:34px;color:var(--muted);font-size:13px;border-top:1px solid var(--grid);padding-top:8px}
-@media print{body{background:white}figure,table{break-inside:avoid}}
+td.pass,.stat .value.pass{color:var(--teal);font-weight:700}
+td.fail,.stat .value.fail{color:#a8443a;font-weight:700}
+.record table,.signoff table{min-width:60%}
+.record th,.signoff th{width:14em}
+.signoff td{height:2.6em}
+@page{size:A4 portrait;margin:14mm 12mm 16mm}
+@media print{
+body{background:white;font-size:11pt}
+main{max-width:none;padding:0}
+h2{break-before:page;break-after:avoid}
+header+section h2,.record h2,.cautions h2,.signoff h2{break-before:auto}
+h3{break-after:avoid}
+figure,table,.stat,.cautions,.record,.signoff{break-inside:avoid}
+figure{border:none;padding:0}
+figure img{max-width:100%;max-height:150mm;width:auto}
+.scroll{overflow:visible}
+table{font-size:9pt}
+th,td{padding:2px 5px}
+details{display:none}
+}
 """
 CSS = _CSS_TEMPLATE
 for _name, _value in (("INK", INK), ("MUTED", MUTED), ("GRID", GRID), ("PAPER", PAPER), ("TEAL", TEAL),
@@ -1066,6 +1333,8 @@ def _table_html(t: Table) -> str:
 def _settings_rows(settings: Mapping[str, Any]) -> str:
     rows = []
     for k, v in settings.items():
+        if k == "about":
+            continue
         if isinstance(v, (list, tuple)):
             v = ", ".join(str(x) for x in v)
         elif v is None:
@@ -1104,6 +1373,10 @@ def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str
         + "".join(f"{html.escape(str(k))}: {html.escape(str(v))} · " for k, v in _input_files(result).items())
         + f"envpredict {html.escape(version)} · {html.escape(created)}</div></header>",
     ]
+    inputs = result.get("inputs")
+    about = inputs.get("about") if isinstance(inputs, Mapping) else None
+    if isinstance(about, Mapping):
+        parts.append(_about_html(about))
     if page.headline:
         parts.append('<section class="headline">')
         for label, c in page.headline:
@@ -1136,6 +1409,7 @@ def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str
     if method:
         base["method"] = method
     parts.append(_settings_rows({**base, **dict(settings)}))
+    parts.append(_SIGN_OFF)
     parts.append("<details><summary>The full result as JSON</summary><pre>"
                  + html.escape(json.dumps(result, indent=1, allow_nan=False)) + "</pre></details>")
     parts.append(f'<script type="application/json" id="result">{_json_for_script(result)}</script>')
@@ -1202,9 +1476,12 @@ def write_report(
     except (TypeError, ValueError) as e:
         raise InputError(f"the result is not plain JSON ({e})",
                          "pass result.to_dict(), not the result object") from None
+    result = names_only(result)
     if settings is None:
         inputs = result.get("inputs")
         settings = inputs if isinstance(inputs, Mapping) else {}
+    else:
+        settings = names_only(dict(settings))
     with _style():
         page = _PAGES[kind](result)
     created = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")

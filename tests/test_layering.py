@@ -14,7 +14,7 @@ LAYERS: tuple[str, ...] = (
     "standards", "exceptions", "results", "outputs", "_data",
     "bands", "audio", "modulation", "sti", "cautions", "decay", "correlation", "pitch", "signals",
     "tables", "mapping",
-    "indirect", "direct", "pair", "timescales", "sweep", "stats", "batch", "refcases", "demo",
+    "indirect", "direct", "pair", "timescales", "sweep", "stats", "batch", "survey", "refcases", "demo",
     "report", "predict",
 )
 

@@ -32,7 +32,7 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 #: Results a command prints as a whole: each carries both lists.
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
              "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track", "DemoResult",
-             "StipaSignalResult", "FullStiSignalsResult"}
+             "StipaSignalResult", "FullStiSignalsResult", "SurveyResult"}
 
 
 # ---------------------------------------------------------------------------
@@ -68,7 +68,18 @@ def batch_summary(tmp_path_factory):
     return envpredict.run_batch(d / "m.csv", d / "out.csv", workers=1)
 
 
-def _factories(speech, batch_summary) -> dict:
+@pytest.fixture(scope="module")
+def survey_result(tmp_path_factory):
+    import soundfile as sf
+
+    d = tmp_path_factory.mktemp("vocab_survey")
+    sf.write(d / "a.wav", noise_decay(0.6, seed=2), 48000, subtype="FLOAT")
+    sf.write(d / "b.wav", noise_decay(0.9, seed=3), 48000, subtype="FLOAT")
+    (d / "s.csv").write_text("zone,position,ir\nhall,front,a.wav\nhall,back,b.wav\n")
+    return envpredict.run_survey(d / "s.csv", d / "rows.csv", requirements=["mean>=0.5"], workers=1)
+
+
+def _factories(speech, batch_summary, survey_result=None) -> dict:
     clean, degraded, fs = speech
     ir = noise_decay(0.8, seed=1)
 
@@ -112,6 +123,7 @@ def _factories(speech, batch_summary) -> dict:
         "StipaSignalResult": lambda: _in_tmp(lambda d: envpredict.write_stipa_signal(d / "s.wav", 15.0, 24000)),
         "FullStiSignalsResult": lambda: _in_tmp(lambda d: envpredict.write_full_sti_signals(d / "full", 24000)),
         "ReferenceRun": lambda: run_cases(id_contains="decay_T0.3"),
+        "SurveyResult": lambda: survey_result,
     }
 
 
@@ -140,7 +152,7 @@ def _result_types() -> dict[str, type]:
 
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
-         "CaseOutcome", "Check"}
+         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):
@@ -169,8 +181,8 @@ def _walk(d, path=""):
 
 
 @pytest.mark.parametrize("name", sorted(TOP_LEVEL | {"StiResult", "DecayResult"}))
-def test_result_follows_the_vocabulary(name, speech, batch_summary):
-    d = _factories(speech, batch_summary)[name]().to_dict()
+def test_result_follows_the_vocabulary(name, speech, batch_summary, survey_result):
+    d = _factories(speech, batch_summary, survey_result)[name]().to_dict()
     json.dumps(d, allow_nan=False)  # plain JSON: no NaN, no numpy types
     for path, key, value, parent in _walk(d):
         assert key not in SYNONYMS, f"{name}: '{path}' uses a synonym"

@@ -22,6 +22,7 @@ _COMMAND_MODULES = [
     "cmd_direct",
     "cmd_pair",
     "cmd_batch",
+    "cmd_survey",
     "cmd_predict",
     "cmd_demo",
     "cmd_check",

@@ -18,6 +18,9 @@ OUT_HELP = "Also write the JSON result to this file (written atomically)."
 CHANNEL_HELP = "Channel to use from a multi-channel file (0 = first). Required for multi-channel files."
 REPORT_HELP = ("Also write a report folder: PNG figures and a self-contained report.html "
                "(opens offline in a browser). A new folder, or an earlier report folder (replaced as a whole).")
+RECORD_HELP = ("Measurement record for the report's top: a small file of 'key: value' lines (project, site, "
+               "zone, position, operator, instrument, serial, calibration_date, measurement_date, notes).")
+RECORD_FIELD_HELP = "One field of the measurement record, KEY=VALUE (e.g. operator='K. Lind'); repeatable."
 
 
 def check_outputs(*, out: Path | None = None, report: Path | None = None,
@@ -225,13 +228,16 @@ class Progress:
             self._bar.__exit__(*exc)
 
 
-def table(rows: list[list[str]], header: list[str] | None = None) -> str:
-    """A plain aligned text table."""
+def table(rows: list[list[str]], header: list[str] | None = None, *, align: str | None = None) -> str:
+    """A plain aligned text table. ``align`` has one letter per column, ``l`` (names) or
+    ``r`` (numbers); default: the first column left, the others right."""
     allrows = ([header] if header else []) + rows
     widths = [max(len(str(r[i])) for r in allrows) for i in range(len(allrows[0]))]
+    align = align or "l" + "r" * (len(widths) - 1)
     lines = []
     for j, r in enumerate(allrows):
-        lines.append("  ".join(str(c).rjust(w) if i else str(c).ljust(w) for i, (c, w) in enumerate(zip(r, widths))))
+        lines.append("  ".join(str(c).ljust(w) if a == "l" else str(c).rjust(w)
+                               for c, w, a in zip(r, widths, align)).rstrip())
         if header and j == 0:
             lines.append("  ".join("-" * w for w in widths))
     return "\n".join(lines)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Optional
 
 import typer
 
@@ -54,11 +55,27 @@ def render_demo(out: dict) -> str:
 
 
 @app.command("demo")
-def demo_command(as_json: bool = typer.Option(False, "--json", help=JSON_HELP)) -> None:
+def demo_command(
+    as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
+    copy_to: Optional[Path] = typer.Option(
+        None, "--copy-to", help="Instead of rating the demo site, copy its material (impulse responses, "
+        "recordings, the survey of three zones) into this new folder, to try the other commands on."),
+) -> None:
     """Rate the bundled demo site (an invented ferry-terminal waiting hall): STI and decay
     figures from its impulse response and site noise, and the indices of a recorded
     announcement against its clean original."""
-    from envpredict.demo import rate_demo_site
+    from envpredict.demo import copy_demo, rate_demo_site
+
+    if copy_to is not None:
+        files = copy_demo(copy_to)
+        d = {"folder": str(copy_to), "files": files, "cautions": [], "notes": [], "inputs": {"copy_to": str(copy_to)}}
+        typer.echo(dumps(d) if as_json else
+                   f"Copied {len(files)} demo files to {copy_to}. Try:\n"
+                   f"  envpredict ir {copy_to / 'waiting_hall_ir.wav'} --noise 58,55,52,49,45,40,33 "
+                   "--speech-level 68\n"
+                   f"  envpredict survey {copy_to / 'survey' / 'survey.csv'} --out rows.csv "
+                   "--require 'mean>=0.50' --require 'min>=0.45' --report survey-report")
+        return
 
     with Progress("rating the demo hall", None, quiet=as_json) as prog:
         d = rate_demo_site(progress=prog).to_dict()

@@ -11,7 +11,10 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if
+from ._common import (
+    JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table,
+    write_report_if,
+)
 
 testsignal_app = typer.Typer(
     help="Generate the test signals of the direct STI method (IEC 60268-16): STIPA or the full-STI set.",
@@ -151,12 +154,16 @@ def stipa_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
+    record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
+    record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
 ) -> None:
     """STI from a recording of the STIPA test signal (IEC 60268-16 direct method, Annex B).
     The file is read in blocks, so recordings of an hour or more (up to 2 h) are analysed in
     bounded memory."""
     from envpredict.direct import stipa_from_file
+    from envpredict.report import read_about
 
+    about = read_about(record, record_field or ())
     check_report(report)
     # steps: the blocks of both passes over the file, then the modulation depths
     with Progress("analysing STIPA recording", None, quiet=as_json) as prog:
@@ -165,7 +172,8 @@ def stipa_command(
                                  noise_db=noise, talker=talker, progress=prog)
     d = result.to_dict()
     d["inputs"] = {"recording": str(recording), "channel": channel, **_calibration_inputs(
-        calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker}
+        calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker,
+        "about": about}
     write_report_if(report, "stipa", d, as_json=as_json, title=f"STIPA: {recording.name}")
     emit(d, lambda: render_direct(d), as_json, out)
 
@@ -189,10 +197,14 @@ def fullsti_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
+    record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
+    record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
 ) -> None:
     """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16 direct method)."""
     from envpredict.direct import full_sti_from_files
+    from envpredict.report import read_about
 
+    about = read_about(record, record_field or ())
     check_report(report)
     with Progress("analysing full-STI recordings", None, quiet=as_json) as prog:
         result = full_sti_from_files(recordings, channel, calibration_db=calibration_db, calibrator=calibrator,
@@ -200,6 +212,7 @@ def fullsti_command(
                                      noise_db=noise, talker=talker, progress=prog)
     d = result.to_dict()
     d["inputs"] = {"recordings": [str(f) for f in recordings], "channel": channel, **_calibration_inputs(
-        calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker}
+        calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker,
+        "about": about}
     write_report_if(report, "stipa", d, as_json=as_json, title="Full STI from 14 recordings")
     emit(d, lambda: render_direct(d), as_json, out)

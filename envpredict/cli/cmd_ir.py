@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Optional
+from typing import List, Optional
 
 import typer
 
@@ -11,7 +11,8 @@ from envpredict import standards as std
 
 from ._app import app
 from ._common import (
-    CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, table, write_report_if,
+    CHANNEL_HELP, JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, Progress, check_outputs, emit,
+    fmt, table, write_report_if,
 )
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
@@ -94,10 +95,14 @@ def ir_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
+    record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
+    record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
 ) -> None:
     """STI (IEC 60268-16 indirect method) and ISO 3382-1 decay figures from an impulse response."""
     from envpredict.indirect import sti_from_ir_file
+    from envpredict.report import read_about
 
+    about = read_about(record, record_field or ())
     check_outputs(out=out, report=report, inputs=[p for p in (ir_file, noise_recording, calibrator) if p])
     with Progress("analysing impulse response", None, quiet=as_json) as prog:
         result = sti_from_ir_file(ir_file, channel=channel, noise_db=noise, speech_level_dba=speech_level,
@@ -112,6 +117,6 @@ def ir_command(
                    "calibration": ("calibrator" if calibrator else "offset" if calibration_db is not None else None),
                    "calibrator": None if calibrator is None else str(calibrator),
                    "speech_level_dba": result.speech_level_dba, "speech_levels": speech_levels,
-                   "talker": talker, "auditory_corrections": not no_auditory}
+                   "talker": talker, "auditory_corrections": not no_auditory, "about": about}
     write_report_if(report, "ir", d, as_json=as_json, title=f"STI and decay figures of {ir_file.name}")
     emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)
