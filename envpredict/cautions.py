@@ -24,9 +24,14 @@ NO_AUDITORY = (
 )
 
 
-def below_target(sti: float) -> str | None:
-    """The caution for an STI below the common voice-alarm requirement, judged on the
-    unrounded value and shown with the decimals that keep the two consistent."""
+def below_target(sti: float, requirement: float | None = None) -> str | None:
+    """The caution for an STI below the user's requirement (or, without one, the common
+    voice-alarm requirement), judged on the unrounded value and shown with the decimals
+    that keep the two consistent."""
+    if requirement is not None:
+        if sti < requirement:
+            return f"STI {format_index(sti, requirement)} is below the required {requirement:g}."
+        return None
     if sti < std.VOICE_ALARM_TARGET_STI:
         return (f"STI {format_index(sti)} is below {std.VOICE_ALARM_TARGET_STI:.2f}, the value commonly "
                 "required of voice-alarm systems.")

@@ -3,7 +3,7 @@ with the ISO 3382-1 decay figures of the same response."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 import os
 from typing import Callable, Sequence
 
@@ -20,6 +20,7 @@ from .results import jsonable
 from .sti import (
     StiResult,
     a_weighted_level,
+    check_requirement,
     check_speech_level,
     check_talker,
     parse_noise_levels,
@@ -91,6 +92,7 @@ def sti_from_ir(
     auditory: bool = True,
     progress: Callable[[int, int], None] | None = None,
     speech_db: Sequence[float] | str | None = None,
+    requirement: float | None = None,
 ) -> IrResult:
     """STI (indirect method) and ISO 3382-1 decay figures from an impulse response.
 
@@ -114,6 +116,8 @@ def sti_from_ir(
     speech_db : instead of ``speech_level_dba``, seven measured octave-band speech levels
         at the listener, dB SPL, 125 Hz ... 8 kHz (e.g. of the test signal played at the
         system's speech level, measured with a band level meter).
+    requirement : the STI the system must reach (e.g. a local code's 0.50); the result
+        then states whether it is met, judged on the unrounded value.
 
     Valid input: at least 0.79 s of response after its onset; the response should
     decay to its noise floor within the file.
@@ -131,13 +135,14 @@ def sti_from_ir(
     """
     talker = check_talker(talker)
     speech, speech_level_dba = _speech_levels(speech_level_dba, speech_db)
+    requirement = check_requirement(requirement)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
     x = validate_signal(ir, fs, name="impulse response")
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
     return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
                     progress=progress, label="the signal", speech_db=speech,
-                    notes=_speech_note(speech, speech_level_dba))
+                    notes=_speech_note(speech, speech_level_dba), requirement=requirement)
 
 
 def _speech_levels(speech_level_dba: float | None, speech_db) -> tuple[np.ndarray | None, float]:
@@ -162,7 +167,8 @@ def _speech_note(speech: np.ndarray | None, level_dba: float) -> tuple[str, ...]
 
 def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_dba: float, talker: str,
              auditory: bool, progress: Callable[[int, int], None] | None, label: str,
-             speech_db: np.ndarray | None = None, notes: tuple[str, ...] = ()) -> IrResult:
+             speech_db: np.ndarray | None = None, notes: tuple[str, ...] = (),
+             requirement: float | None = None) -> IrResult:
     """The indirect method on a validated response (options already checked)."""
     if x.size / fs < MIN_IR_SECONDS:  # too short to judge its shape, and for any figure
         raise InputError(
@@ -198,13 +204,13 @@ def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_d
         progress(2, 3)
     lengths = t0 + np.round(decay.crossing_s * fs).astype(int)
     mtf = mtf_from_ir(bands, fs, std.MODULATION_FREQUENCIES_HZ, lengths=lengths)
-    res = sti_from_mtf(mtf, noise_db=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
-                       speech_db=speech_db)
+    res = replace(sti_from_mtf(mtf, noise_db=noise, speech_level_dba=speech_level_dba, talker=talker,
+                               auditory=auditory, speech_db=speech_db), requirement=requirement)
     if progress:
         progress(3, 3)
 
     cautions = [cau.LIFE_SAFETY]
-    low = cau.below_target(res.sti)
+    low = cau.below_target(res.sti, requirement)
     if low:
         cautions.append(low)
     if noise is None:
@@ -275,6 +281,7 @@ def sti_from_ir_file(
     calibrator: str | os.PathLike | None = None,
     calibrator_level: float | None = None,
     calibrator_channel: int | None = None,
+    requirement: float | None = None,
 ) -> IrResult:
     """STI (indirect method) and ISO 3382-1 decay figures of an impulse-response file.
 
@@ -286,7 +293,7 @@ def sti_from_ir_file(
     ----------
     path : WAV, FLAC or OGG file holding the impulse response.
     channel : channel of a multi-channel file (0 = first); ``None`` requires a mono file.
-    noise_db, speech_level_dba, talker, auditory, progress, speech_db : as for
+    noise_db, speech_level_dba, talker, auditory, progress, speech_db, requirement : as for
         :func:`sti_from_ir`.
     noise_recording : instead of ``noise_db``, a calibrated recording of the site's
         background noise at the listener; its octave-band levels (Leq over the whole
@@ -311,6 +318,7 @@ def sti_from_ir_file(
 
     talker = check_talker(talker)
     speech, speech_level_dba = _speech_levels(speech_level_dba, speech_db)
+    requirement = check_requirement(requirement)
     notes = _speech_note(speech, speech_level_dba)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
     calibrated = calibration_db is not None or calibrator is not None or calibrator_level is not None
@@ -338,7 +346,7 @@ def sti_from_ir_file(
     check_rate_for_octaves(fs, "impulse response")
     name = _printable(os.path.basename(os.fsdecode(path)))
     return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
-                    progress=progress, label=f"'{name}'", speech_db=speech, notes=notes)
+                    progress=progress, label=f"'{name}'", speech_db=speech, notes=notes, requirement=requirement)
 
 
 def _printable(name: str) -> str:

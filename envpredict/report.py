@@ -276,6 +276,10 @@ def _ti_figure(d: Mapping) -> Figure:
     ax.grid(axis="x", visible=False)
     if sti is not None:
         ax.axhline(sti, color=INK, lw=1.4, ls="--", label=f"STI {sti:.2f} (weighted over the bands)")
+    req = d.get("requirement")
+    if isinstance(req, (int, float)):
+        ax.axhline(req, color=BRICK, lw=1.6, ls=":", label=f"required STI {req:g}")
+    if sti is not None or isinstance(req, (int, float)):
         ax.legend(loc="upper right", fontsize=10)
     ax.set_title("Transmission index per octave band")
     # qualification band scale
@@ -301,6 +305,8 @@ def _ti_figure(d: Mapping) -> Figure:
     sc.set_ylabel("STI")
     sc.spines["left"].set_visible(False)
     sc.spines["right"].set_visible(True)
+    if isinstance(req, (int, float)):
+        sc.axhline(min(max(req, 0.205), 0.835), color=BRICK, lw=1.6, ls=":")
     if sti is not None:
         y = min(max(sti, 0.205), 0.835)
         sc.axhline(y, color=INK, lw=2.4)
@@ -439,10 +445,16 @@ def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
 def _sti_headline(d: Mapping) -> list[tuple[str, Cell]]:
     from .sti import verdict_decimals
 
+    req = d.get("requirement")
+    ref = std.VOICE_ALARM_TARGET_STI if not isinstance(req, (int, float)) else float(req)
     # two decimals, or more where rounding would contradict the verdict (0.498, not "0.50")
-    spec = f".{verdict_decimals(d['sti'])}f" if isinstance(d.get("sti"), (int, float)) else ".2f"
-    return [("STI", num(d, "sti", spec)), ("qualification band", txt(d.get("rating"))),
-            ("rating", txt(d.get("subjective"))), ("talker", txt(d.get("talker")))]
+    spec = f".{verdict_decimals(d['sti'], ref)}f" if isinstance(d.get("sti"), (int, float)) else ".2f"
+    out = [("STI", num(d, "sti", spec)), ("qualification band", txt(d.get("rating"))),
+           ("rating", txt(d.get("subjective"))), ("talker", txt(d.get("talker")))]
+    if isinstance(req, (int, float)) and d.get("meets_requirement") is not None:
+        met = bool(d["meets_requirement"])
+        out.insert(1, (f"required: {req:g}", Cell("MET" if met else "NOT MET", cls="pass" if met else "fail")))
+    return out
 
 
 def _page_ir(d: Mapping) -> Page:

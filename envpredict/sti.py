@@ -107,6 +107,19 @@ def a_weighted_level(band_db: Sequence[float] | np.ndarray) -> float:
     return float(10.0 * np.log10(np.sum(10.0 ** ((lk + np.asarray(std.A_WEIGHTING_OCTAVE_DB)) / 10.0))))
 
 
+def check_requirement(value: float | None) -> float | None:
+    """Refuse a required STI that is not a number in (0, 1]; ``None`` (no requirement) passes."""
+    if value is None:
+        return None
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"required STI '{value}' is not a number", "give a value such as 0.50") from None
+    if not (math.isfinite(v) and 0.0 < v <= 1.0):
+        raise InputError(f"required STI {value} is outside 0..1", "give a value such as 0.50")
+    return v
+
+
 def speech_band_levels(level_dba: float, talker: str = "male") -> np.ndarray:
     """Octave-band speech levels for an A-weighted speech level (NaN: band unused).
 
@@ -248,6 +261,8 @@ class StiResult:
     mti : modulation transmission index per band (mean of ti over modulations).
     speech_db, noise_db, masking_db, threshold_db : octave-band levels used, dB.
     auditory : whether masking and reception threshold were applied.
+    requirement : the STI the user requires (``--require``), or None; the verdict
+        ``meets_requirement`` is taken on the unrounded ``sti``.
     """
 
     sti: float
@@ -266,12 +281,21 @@ class StiResult:
     threshold_db: np.ndarray | None
     auditory: bool
     bands_hz: tuple[float, ...] = field(default=std.OCTAVE_BANDS_HZ)
+    requirement: float | None = None
+
+    @property
+    def meets_requirement(self) -> bool | None:
+        """``sti >= requirement`` on the unrounded value (None without a requirement)."""
+        return None if self.requirement is None else bool(self.sti >= self.requirement)
 
     def to_dict(self) -> dict:
+        req = std.VOICE_ALARM_TARGET_STI if self.requirement is None else self.requirement
         return jsonable(
             {
                 "index": "sti",
-                "sti": float(format_index(self.sti, minimum=JSON_DECIMALS)),
+                "sti": float(format_index(self.sti, req, minimum=JSON_DECIMALS)),
+                "requirement": self.requirement,
+                "meets_requirement": self.meets_requirement,
                 "rating": self.rating,
                 "subjective": self.subjective,
                 "talker": self.talker,

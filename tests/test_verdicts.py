@@ -31,3 +31,29 @@ def test_ir_headline_caution_json_and_report_agree_just_below_the_requirement(tm
     assert f"STI {shown} is below 0.50" in text
     page = (tmp_path / "rep" / "report.html").read_text()
     assert f'data-key="sti">{shown}<' in page
+
+
+def test_a_users_requirement_decides_the_verdict_everywhere(tmp_path, capsys):
+    # the same hall at 68 dB(A) reads STI 0.4846 (unrounded): a required 0.485 is not met
+    # although two decimals would show 0.48 "or 0.49"; 0.483 is met and shown as 0.485
+    ir = demo_dir() / "waiting_hall_ir.wav"
+    for require, met in (("0.485", False), ("0.483", True)):
+        args = ["ir", ir, "--noise", NOISE, "--speech-level", "68", "--require", require]
+        code, text, _ = run_cli(args, capsys)
+        assert code == 0
+        code, out, _ = run_cli(args + ["--json", "--report", tmp_path / require], capsys)
+        d = json.loads(out)
+        assert d["requirement"] == float(require) and d["meets_requirement"] is met
+        assert (d["sti"] >= float(require)) is met  # the JSON number is on the verdict's side
+        shown = re.search(r"^STI = (\S+)", text, re.M).group(1)
+        assert (float(shown) >= float(require)) is met, shown
+        assert f"— {'met' if met else 'NOT met'}" in text
+        below = [c for c in d["cautions"] if "below the required" in c]
+        assert bool(below) is not met
+        page = (tmp_path / require / "report.html").read_text()
+        assert ("MET" if met else "NOT MET") in page and f"required: {float(require):g}" in page
+
+
+def test_a_requirement_outside_0_1_is_refused(capsys):
+    code, out, err = run_cli(["ir", demo_dir() / "waiting_hall_ir.wav", "--require", "1.5"], capsys)
+    assert code == 2 and out == "" and err == "error: required STI 1.5 is outside 0..1 — give a value such as 0.50\n"

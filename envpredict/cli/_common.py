@@ -243,6 +243,16 @@ def table(rows: list[list[str]], header: list[str] | None = None, *, align: str 
     return "\n".join(lines)
 
 
+def format_sti(d: dict) -> str:
+    """The STI of a result dictionary with the decimals that keep it on its side of the
+    requirement (the user's, else the common 0.50)."""
+    from envpredict import standards as std
+    from envpredict.sti import format_index
+
+    req = d.get("requirement")
+    return format_index(d["sti"], std.VOICE_ALARM_TARGET_STI if req is None else req)
+
+
 def fmt(v: Any, spec: str = ".2f", none: str = "—") -> str:
     """Format a number, or a dash where it could not be computed."""
     if v is None:

@@ -12,7 +12,7 @@ from envpredict import standards as std
 from ._app import app
 from ._common import (
     CHANNEL_HELP, JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, Progress, check_outputs, emit,
-    fmt, table, write_report_if,
+    fmt, format_sti, table, write_report_if,
 )
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
@@ -37,16 +37,17 @@ AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textb
 
 def render_ir(d: dict, source: str) -> str:
     """Readable text for an ``ir`` result dictionary."""
-    from envpredict.sti import format_index
-
     lines = [
         f"Impulse response: {source}  ({d['fs']} Hz, {d['duration_s']:.2f} s)",
         f"Talker: {d['talker']}   speech level: {d['speech_level_dba']:.1f} dB(A)   "
         f"auditory corrections: {'on' if d['auditory_corrections'] else 'off'}",
         "",
-        f"STI = {format_index(d['sti'])}   qualification band {d['rating']}   ({d['subjective']})",
+        f"STI = {format_sti(d)}   qualification band {d['rating']}   ({d['subjective']})",
         "",
     ]
+    if d.get("requirement") is not None:
+        lines[-1:-1] = [f"Required: STI {d['requirement']:g} or more — "
+                        f"{'met' if d['meets_requirement'] else 'NOT met'}"]
     dec = d["decay"]
     rows = []
     for k, fc in enumerate(d["bands_hz"]):
@@ -95,6 +96,9 @@ def ir_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
+    require: Optional[float] = typer.Option(
+        None, "--require", help="The STI the system must reach (set by the local code, e.g. 0.50): the result "
+        "states whether it is met, judged on the unrounded value.", show_default=False),
     record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
     record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
 ) -> None:
@@ -109,7 +113,8 @@ def ir_command(
                                   talker=talker, auditory=not no_auditory, progress=prog, speech_db=speech_levels,
                                   noise_recording=noise_recording, noise_channel=noise_channel,
                                   calibration_db=calibration_db, calibrator=calibrator,
-                                  calibrator_level=calibrator_level, calibrator_channel=calibrator_channel)
+                                  calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
+                                  requirement=require)
     d = result.to_dict()
     d["inputs"] = {"impulse_response": str(ir_file), "channel": channel,
                    "noise": noise, "noise_recording": None if noise_recording is None else str(noise_recording),
@@ -117,6 +122,7 @@ def ir_command(
                    "calibration": ("calibrator" if calibrator else "offset" if calibration_db is not None else None),
                    "calibrator": None if calibrator is None else str(calibrator),
                    "speech_level_dba": result.speech_level_dba, "speech_levels": speech_levels,
-                   "talker": talker, "auditory_corrections": not no_auditory, "about": about}
+                   "talker": talker, "auditory_corrections": not no_auditory, "require": require,
+                   "about": about}
     write_report_if(report, "ir", d, as_json=as_json, title=f"STI and decay figures of {ir_file.name}")
     emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)
