@@ -10,7 +10,10 @@ app = typer.Typer(
         "Predict speech intelligibility from envelope modulation: STI (IEC 60268-16) "
         "from impulse responses and test-signal recordings, STOI/ESTOI and speech-based "
         "STI from clean/degraded pairs, decay figures (ISO 3382-1), and predicted "
-        "listening-test scores."
+        "listening-test scores.\n\n"
+        "Exit codes: 0 done; 1 a computation failed (or, for batch and survey, some rows "
+        "could not be scored); 2 bad input or options (one line 'error: WHAT — FIX'); "
+        "130 interrupted."
     ),
     add_completion=False,
     no_args_is_help=True,
@@ -22,8 +25,18 @@ app = typer.Typer(
 STATE = {"debug": False}
 
 
+def _print_version(value: bool) -> None:
+    if value:
+        from envpredict import __version__
+
+        typer.echo(f"envpredict {__version__}")
+        raise typer.Exit(0)
+
+
 @app.callback()
 def _main_options(
     debug: bool = typer.Option(False, "--debug", help="Show a full traceback on errors (for bug reports)."),
+    version: bool = typer.Option(False, "--version", help="Print the version and exit.", callback=_print_version,
+                                 is_eager=True),
 ) -> None:
     STATE["debug"] = debug

@@ -66,7 +66,7 @@ def batch_command(
     overwrite: bool = typer.Option(False, "--overwrite", help=OVERWRITE_HELP),
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
     speech_level: float = typer.Option(std.DEFAULT_SPEECH_LEVEL_DBA, "--speech-level", help=LEVEL_HELP),
-    talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP),
+    talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP, metavar="[male|female]"),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
 ) -> None:
     """Score every row of a manifest (STOI/ESTOI/speech-based STI for pairs, STI and T30/EDT for IRs).

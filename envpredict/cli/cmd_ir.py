@@ -90,7 +90,7 @@ def ir_command(
     calibrator: Optional[Path] = typer.Option(None, "--calibrator", help=CALIBRATOR_HELP),
     calibrator_level: Optional[float] = typer.Option(None, "--calibrator-level", help=CAL_LEVEL_HELP),
     calibrator_channel: Optional[int] = typer.Option(None, "--calibrator-channel", help=CAL_CHANNEL_HELP),
-    talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP),
+    talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP, metavar="[male|female]"),
     no_auditory: bool = typer.Option(False, "--no-auditory-corrections", help=AUDITORY_HELP),
     channel: Optional[int] = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),

@@ -58,7 +58,7 @@ def fitmap_command(
                                                    "also the name stored in the mapping.", show_default=False),
     correct: str = typer.Option(CORRECT_COLUMN, "--correct", help="Column holding the number of items correct."),
     trials: str = typer.Option(TRIALS_COLUMN, "--trials", help="Column holding the number of items presented."),
-    shape: str = typer.Option(std.MAPPING_SHAPE, "--shape",
+    shape: str = typer.Option(std.MAPPING_SHAPE, "--shape", metavar="[logistic|normal]",
                               help="Curve shape: logistic or normal (cumulative normal)."),
     guess: float = typer.Option(std.MAPPING_GUESS, "--guess", help="Fixed guess rate, e.g. 0.25 for a 4-alternative "
                                                      "closed-set test (0 for open-set tests)."),
@@ -143,7 +143,8 @@ def sweep_command(
                                               f"several (default: {std.SRT_PERCENT:g}, the SRT)."),
     segments: int = typer.Option(std.SWEEP_SEGMENTS, "--segments",
                                  help="Noise segments per SNR (the interval comes from their spread)."),
-    level: str = typer.Option(std.SWEEP_LEVEL, "--level", help="Level convention: speech (speech fixed, noise "
+    level: str = typer.Option(std.SWEEP_LEVEL, "--level", metavar="[speech|mixture]",
+                              help="Level convention: speech (speech fixed, noise "
                                                                "scaled) or mixture (mixture rescaled to the speech "
                                                                "level)."),
     channel: int | None = typer.Option(None, "--channel", help=CHANNEL_HELP),
