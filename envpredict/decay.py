@@ -432,6 +432,9 @@ class DecayResult:
                 "decay_range_db": np.round(self.range_db, 1),
                 "noise_floor_db": np.round(self.noise_floor_db, 1),
                 "crossing_s": np.round(self.crossing_s, 3),
+                # ISO 3382-1 single numbers (mean of 500 Hz and 1 kHz; null when either is missing)
+                "t30_mid": round(mid_frequency(self.t30, self.bands_hz), 3),
+                "edt_mid": round(mid_frequency(self.edt, self.bands_hz), 3),
                 "notes": list(self.notes),
                 **self._curves_for_figures(),
             }

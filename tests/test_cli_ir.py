@@ -145,3 +145,19 @@ def test_report_refuses_a_busy_folder(ir_file, capsys, tmp_path):
     code, _, err = run_cli(["ir", ir_file, "--report", tmp_path], capsys)
     assert code == 2 and err.startswith("error: ")
     assert (tmp_path / "keep.txt").read_text() == "mine"
+
+
+def test_ir_gives_the_mid_frequency_decay_figures(capsys):
+    # ISO 3382-1 Annex A: the single number is the mean of the 500 Hz and 1 kHz octave values
+    import json
+
+    from cli_for_tests import run_cli
+
+    from envpredict._data import demo_dir
+
+    code, out, _ = run_cli(["ir", demo_dir() / "waiting_hall_ir.wav", "--json"], capsys)
+    dec = json.loads(out)["decay"]
+    assert dec["t30_mid"] == pytest.approx((dec["t30"][2] + dec["t30"][3]) / 2, abs=1e-3)
+    assert dec["edt_mid"] == pytest.approx((dec["edt"][2] + dec["edt"][3]) / 2, abs=1e-3)
+    code, text, _ = run_cli(["ir", demo_dir() / "waiting_hall_ir.wav"], capsys)
+    assert f"T30 {dec['t30_mid']:.2f} s, EDT {dec['edt_mid']:.2f} s" in text

@@ -60,6 +60,8 @@ def render_ir(d: dict, source: str) -> str:
         ])
     lines.append(table(rows, ["band Hz", "MTI", "speech dB", "noise dB", "EDT s", "T20 s", "T30 s",
                               "C50 dB", "C80 dB", "D50", "range dB"]))
+    lines.append(f"Mid-frequency (mean of 500 Hz and 1 kHz, ISO 3382-1): T30 {fmt(dec['t30_mid'])} s, "
+                 f"EDT {fmt(dec['edt_mid'])} s")
     lines.append("")
     lines.append("MTF used for the index (rows: octave bands; columns: modulation frequency, Hz)")
     head = ["band Hz"] + [f"{f:g}" for f in d["modulation_hz"][0]]
