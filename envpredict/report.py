@@ -257,14 +257,19 @@ def _ti_figure(d: Mapping) -> Figure:
     new = _mpl()
     bands = list(d.get("bands_hz", std.OCTAVE_BANDS_HZ))
     mti = _arr(d["mti"])
+    used = list(d.get("bands_used") or [True] * len(mti))
+    mti = np.where(used, mti, np.nan)  # an unused band (female 125 Hz) gets no bar
     sti = d.get("sti")
     fig = new(10.0, 4.4)
     gs = fig.add_gridspec(1, 2, width_ratios=[5.2, 1.0], wspace=0.08)
     ax = fig.add_subplot(gs[0])
     x = np.arange(len(bands))
     bars = ax.bar(x, np.nan_to_num(mti), color=[BAND_COLOURS[i % 7] for i in x], width=0.66)
-    for b, v in zip(bars, mti):
-        if np.isfinite(v):
+    for b, v, u in zip(bars, mti, used):
+        if not u:
+            ax.text(b.get_x() + b.get_width() / 2, 0.02, "not\nused", ha="center", va="bottom", fontsize=9,
+                    color=MUTED)
+        elif np.isfinite(v):
             inside = v > 0.12
             ax.text(b.get_x() + b.get_width() / 2, v - 0.025 if inside else v + 0.02, f"{v:.2f}",
                     ha="center", va="top" if inside else "bottom", fontsize=10.5, fontweight="bold",
@@ -289,16 +294,16 @@ def _ti_figure(d: Mapping) -> Figure:
     from matplotlib.colors import LinearSegmentedColormap
 
     ramp = LinearSegmentedColormap.from_list("qb", [BRICK, OCHRE, TEAL])
+    # the ladder shares the bar chart's vertical scale, so the STI line and the arrow meet
     top = 1.0
     for lab, lo in qb:
-        lo_show = max(lo, 0.20)
-        frac = (lo_show - 0.20) / (0.80 - 0.20)
-        sc.add_patch(_rect((0, lo_show), 1, top - lo_show, ramp(min(1, max(0, frac))), alpha=0.9))
-        sc.text(0.5, (lo_show + min(top, lo_show + 0.04 if lab != "A+" else 0.80)) / 2 if lab != "U" else 0.28,
-                lab, ha="center", va="center", fontsize=9, color="white", fontweight="bold")
-        top = lo_show
+        frac = (max(lo, 0.20) - 0.20) / (0.80 - 0.20)
+        sc.add_patch(_rect((0, lo), 1, top - lo, ramp(min(1, max(0, frac))), alpha=0.9))
+        sc.text(0.5, (lo + top) / 2, lab, ha="center", va="center", fontsize=8.5 if top - lo < 0.05 else 9.5,
+                color="white", fontweight="bold")
+        top = lo
     sc.set_xlim(0, 1)
-    sc.set_ylim(0.20, 0.84)
+    sc.set_ylim(*ax.get_ylim())
     sc.set_xticks([])
     sc.yaxis.tick_right()
     sc.yaxis.set_label_position("right")
@@ -306,9 +311,9 @@ def _ti_figure(d: Mapping) -> Figure:
     sc.spines["left"].set_visible(False)
     sc.spines["right"].set_visible(True)
     if isinstance(req, (int, float)):
-        sc.axhline(min(max(req, 0.205), 0.835), color=BRICK, lw=1.6, ls=":")
+        sc.axhline(req, color=BRICK, lw=1.6, ls=":")
     if sti is not None:
-        y = min(max(sti, 0.205), 0.835)
+        y = sti
         sc.axhline(y, color=INK, lw=2.4)
         sc.plot([0.0], [y], marker=">", ms=11, color=INK, clip_on=False, zorder=5)
     sc.set_title(f"band {d.get('rating', '?')}", loc="center")
@@ -412,7 +417,9 @@ def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
     noise = d.get("noise_db")
     for k, fc in enumerate(bands):
         rows.append([
-            Cell(_band_label(fc)), num(d, f"mti.{k}", ".3f"), num(d, f"speech_db.{k}", ".1f"),
+            Cell(_band_label(fc)),
+            num(d, f"mti.{k}", ".3f") if (d.get("bands_used") or [True] * 7)[k] else Cell("not used", cls="na"),
+            num(d, f"speech_db.{k}", ".1f"),
             num(d, f"noise_db.{k}", ".1f") if noise else Cell("—"),
             num(d, f"masking_db.{k}", ".1f") if d.get("masking_db") else Cell("—"),
             num(d, f"threshold_db.{k}", ".1f") if d.get("threshold_db") else Cell("—"),

@@ -311,6 +311,8 @@ class StiResult:
                 "masking_db": None if self.masking_db is None else np.round(self.masking_db, 1),
                 "threshold_db": self.threshold_db,
                 "auditory_corrections": self.auditory,
+                # a band without speech (the female talker's 125 Hz band) carries no weight
+                "bands_used": [bool(u) for u in np.isfinite(self.speech_db)],
             }
         )
 

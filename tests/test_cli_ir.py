@@ -161,3 +161,23 @@ def test_ir_gives_the_mid_frequency_decay_figures(capsys):
     assert dec["edt_mid"] == pytest.approx((dec["edt"][2] + dec["edt"][3]) / 2, abs=1e-3)
     code, text, _ = run_cli(["ir", demo_dir() / "waiting_hall_ir.wav"], capsys)
     assert f"T30 {dec['t30_mid']:.2f} s, EDT {dec['edt_mid']:.2f} s" in text
+
+
+def test_female_talkers_125_hz_band_is_shown_as_not_used(capsys, tmp_path):
+    # IEC 60268-16 Table A.3: the female weights give the 125 Hz band no weight (no speech
+    # there), so the band is "not used", not an MTI of 0.00 that reads as total loss
+    import json
+
+    from cli_for_tests import run_cli
+
+    from envpredict._data import demo_dir
+
+    ir = demo_dir() / "waiting_hall_ir.wav"
+    code, out, _ = run_cli(["ir", ir, "--talker", "female", "--json", "--report", tmp_path / "rep"], capsys)
+    d = json.loads(out)
+    assert d["bands_used"] == [False] + [True] * 6
+    code, text, _ = run_cli(["ir", ir, "--talker", "female"], capsys)
+    assert any(line.split()[:3] == ["125", "not", "used"] for line in text.splitlines())
+    assert "not used" in (tmp_path / "rep" / "report.html").read_text()
+    code, out, _ = run_cli(["ir", ir, "--json"], capsys)
+    assert json.loads(out)["bands_used"] == [True] * 7

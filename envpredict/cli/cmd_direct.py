@@ -123,7 +123,8 @@ def render_direct(d: dict) -> str:
         nd = d["envelope_noise_depth"][k]
         if isinstance(nd, list):  # full STI: one per recording; show the median
             nd = float(np.median([v for v in nd if v is not None])) if any(v is not None for v in nd) else None
-        row = [f"{fc:g}", fmt(d["mti"][k]), fmt(d["band_levels_db"][k], ".1f"), fmt(nd, ".3f")]
+        row = [f"{fc:g}", fmt(d["mti"][k]) if d["bands_used"][k] else "not used", fmt(d["band_levels_db"][k], ".1f"),
+               fmt(nd, ".3f")]
         if nmod == 2:
             for f, m in zip(d["modulation_hz"][k], d["mtf"][k]):
                 row += [f"{f:g}", fmt(m)]

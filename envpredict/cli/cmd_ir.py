@@ -52,7 +52,7 @@ def render_ir(d: dict, source: str) -> str:
     rows = []
     for k, fc in enumerate(d["bands_hz"]):
         rows.append([
-            f"{fc:g}", fmt(d["mti"][k]), fmt(d["speech_db"][k], ".1f"),
+            f"{fc:g}", fmt(d["mti"][k]) if d["bands_used"][k] else "not used", fmt(d["speech_db"][k], ".1f"),
             fmt(d["noise_db"][k] if d["noise_db"] else None, ".1f"),
             fmt(dec["edt"][k]), fmt(dec["t20"][k]), fmt(dec["t30"][k]),
             fmt(dec["c50"][k], ".1f"), fmt(dec["c80"][k], ".1f"), fmt(dec["d50"][k]),
