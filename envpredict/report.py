@@ -41,11 +41,12 @@ import numpy as np
 from . import standards as std
 from .exceptions import InputError
 
-KINDS: tuple[str, ...] = ("ir", "stipa", "pair", "compare", "sweep", "inspect", "survey")
+KINDS: tuple[str, ...] = ("ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey")
 
 KIND_TITLES: dict[str, str] = {
     "ir": "STI and decay figures from an impulse response",
     "stipa": "STIPA from a test-signal recording",
+    "fullsti": "Full STI from test-signal recordings",
     "pair": "Intelligibility of a clean/degraded pair",
     "compare": "Comparison of conditions",
     "sweep": "Predicted score against SNR",
@@ -1145,7 +1146,7 @@ def _page_survey(d: Mapping) -> Page:
 
 
 _PAGES: dict[str, Callable[[Mapping], Page]] = {
-    "ir": _page_ir, "stipa": _page_stipa, "pair": _page_pair, "compare": _page_compare,
+    "ir": _page_ir, "stipa": _page_stipa, "fullsti": _page_stipa, "pair": _page_pair, "compare": _page_compare,
     "sweep": _page_sweep, "inspect": _page_inspect, "survey": _page_survey,
 }
 

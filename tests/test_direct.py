@@ -514,6 +514,12 @@ def test_cli_fullsti_folder(full_set, tmp_path, capsys):
                                "noise": None, "talker": "male", "about": {}}
     assert d == as_json(full_sti_from_files(tmp_path).to_dict())
     assert [p.name for p in recording_paths(tmp_path)] == sorted(name for _, _, name in full_set)
+    # its report is a full-STI report, not a STIPA one
+    rep = tmp_path.parent / f"{tmp_path.name}-report"
+    code, _, _ = run_cli(["fullsti", str(tmp_path), "--report", str(rep)], capsys)
+    page = (rep / "report.html").read_text()
+    assert code == 0 and "<h1>Full STI from test-signal recordings</h1>" in page
+    assert "<th>report kind</th><td>fullsti</td>" in page and "STIPA" not in page.split("<h1>")[1].split("</h1>")[0]
     (tmp_path / full_set[0][2]).unlink()
     code, _, err = run_cli(["fullsti", str(tmp_path)], capsys)
     assert code == 2 and "13 recording(s)" in err and len(err.strip().splitlines()) == 1

@@ -215,5 +215,5 @@ def fullsti_command(
     d["inputs"] = {"recordings": [str(f) for f in recordings], "channel": channel, **_calibration_inputs(
         calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker,
         "about": about}
-    write_report_if(report, "stipa", d, as_json=as_json, title="Full STI from 14 recordings")
+    write_report_if(report, "fullsti", d, as_json=as_json)
     emit(d, lambda: render_direct(d), as_json, out)
