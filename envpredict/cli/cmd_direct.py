@@ -108,7 +108,8 @@ def render_direct(d: dict) -> str:
         "",
         f"STI = {format_index(d['sti'])} ± {fmt(d['uncertainty'], unc_spec)}   qualification band {d['rating']}   "
         f"({d['subjective']})",
-        f"(± is the standard uncertainty from {len(d['window_sti'])} analysis windows)",
+        "(± is the standard uncertainty: envelope noise or window spread, and the expected offset "
+        f"{fmt(d.get('expected_offset'), '+.3f')})",
         "",
     ]
     head = ["band Hz", "MTI", f"level {d['band_levels_unit']}", "noise depth"]
