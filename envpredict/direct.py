@@ -161,6 +161,10 @@ UNSTEADY = (
 #: -0.041 at 12 s, -0.031 at 14 s, pooled -0.035; for comparison -0.019 at 15 and 20 s).
 SHORT_RECORDING_BIAS: float = 0.035
 
+#: A recording this much shorter than the minimum still counts as long enough: the energy
+#: detector places the ends of the test signal within a few of its 50 ms frames.
+SHORT_TOLERANCE_S: float = 0.25
+
 SHORT = (
     "The test signal lasts only {have:.1f} s, less than the {need:g} s IEC 60268-16 asks for a {method} "
     "measurement: the value reads low (about {bias:.3f} for an undistorted channel recorded for 10-15 s; "
@@ -175,7 +179,8 @@ CLOCK_FIXED = (
 )
 CLOCK_NOT_FIXED = (
     "The modulation frequencies look {ppm:+.0f} ppm off (more than the {limit:g} ppm of usual audio clocks), "
-    "but too uncertain to correct: the value may read low. Check the sample rates of the player and the recorder."
+    "seen in too few modulations to correct: the value may read low. Check the sample rates of the player and "
+    "the recorder."
 )
 
 UNCERTAINTY_METHOD = (
@@ -191,7 +196,8 @@ NOTE_UNCERTAINTY = (
 NOTE_CLOCK = (
     "clock_offset_ppm: the modulation frequencies found in the recording relative to the nominal ones (player "
     "clock faster than the recorder's: positive), from the phase drift of the modulations; corrected (the depths "
-    "taken at the shifted frequencies) where it would cost more than 0.1 % of a depth."
+    "taken at the shifted frequencies) where it would cost more than 0.1 % of a depth. Full STI: one mismatch "
+    "pooled from all recordings (one player, one recorder); each recording's own estimate is listed with it."
 )
 
 #: Simulated repeats of the measurement for the uncertainty (:func:`_noise_draws`) and
@@ -647,13 +653,16 @@ def _finish(
         cautions.append(UNSTEADY.format(u=unc_win))
     need = std.STIPA_MIN_SECONDS if method == "STIPA" else std.FULL_STI_ANALYSIS_SECONDS + 2 * SETTLE_S
     shortest = float(min(signal_s))
-    if shortest < need - 0.05:  # a 15 s recording cut at a frame edge is still 15 s
+    if shortest < need - SHORT_TOLERANCE_S:
         cautions.append(SHORT.format(have=shortest, need=need, method=method, bias=SHORT_RECORDING_BIAS,
                                      offset=-bias))
     ppm = [c.ppm for c, _ in clock]
-    worst = int(np.argmax(np.abs(ppm)))
-    if abs(ppm[worst]) > CLOCK_CAUTION_PPM:
-        c, scale = clock[worst]
+    # a mismatch beyond the usual clocks, and beyond its own uncertainty (an estimate from a
+    # noisy or slow modulation is not a finding)
+    found = [(c, scale) for c, scale in clock
+             if abs(c.ppm) > CLOCK_CAUTION_PPM and abs(c.ppm) > CLOCK_SIGNIFICANCE * c.sigma_ppm]
+    if found:
+        c, scale = max(found, key=lambda cs: abs(cs[0].ppm))
         cautions.append((CLOCK_FIXED if scale != 1.0 else CLOCK_NOT_FIXED).format(ppm=c.ppm, limit=CLOCK_CAUTION_PPM))
     return DirectResult(
         method=method, sti=res, depth=depth, nominal_depth=nominal, noise_floor=floor,
@@ -662,7 +671,7 @@ def _finish(
         recordings=tuple(recordings), cautions=tuple(cautions),
         calibration_source=(calibration_source or "offset") if calibrated else None,
         uncertainty_windows=unc_win, uncertainty_noise=unc_noise, noise_bias=bias,
-        clock_offset_ppm=float(np.median(ppm)),
+        clock_offset_ppm=float(ppm[0]) if len(ppm) == 1 else float(np.median(ppm)),
     )
 
 
@@ -710,11 +719,31 @@ def _clock(rec: _Analysed, freqs: np.ndarray) -> tuple[ClockOffset, float]:
     :data:`CLOCK_DEPTH_LOSS` of the highest modulation depth over the analysed length, else 1
     (a recording within the clocks' usual tolerance keeps its numbers exactly)."""
     c = clock_offset(rec.env, rec.fs_env, freqs)
+    return c, _clock_scale(c, rec, freqs)
+
+
+def _clock_scale(c: ClockOffset, rec: _Analysed, freqs: np.ndarray) -> float:
+    """The factor of :func:`_clock` for a mismatch ``c`` (estimated from ``rec`` or pooled)."""
     eps = c.ppm * 1e-6
     x = np.pi * float(np.max(freqs)) * abs(eps) * rec.env.shape[1] / rec.fs_env
     loss = 1.0 - np.sin(x) / x if x > 0 else 0.0
     fix = c.used >= CLOCK_MIN_COMPONENTS and abs(c.ppm) > CLOCK_SIGNIFICANCE * c.sigma_ppm and loss > CLOCK_DEPTH_LOSS
-    return c, (1.0 + eps) if fix else 1.0
+    return (1.0 + eps) if fix else 1.0
+
+
+def _pooled_clock(clocks: Sequence[ClockOffset]) -> ClockOffset:
+    """One mismatch for a set of recordings made with the same player and recorder (full STI):
+    the inverse-variance mean of the recordings' estimates; its uncertainty the larger of the
+    formal one and the weighted scatter of the estimates (a single recording's stated
+    uncertainty can be optimistic: few sub-windows, one frequency)."""
+    ok = [c for c in clocks if c.used > 0 and np.isfinite(c.sigma_ppm) and c.sigma_ppm > 0]
+    if not ok:
+        return ClockOffset(0.0, float("inf"), 0)
+    p = np.array([c.ppm for c in ok])
+    w = 1.0 / np.array([c.sigma_ppm for c in ok]) ** 2
+    mean = float(np.sum(w * p) / np.sum(w))
+    scatter = float(np.sum(w * (p - mean) ** 2) / np.sum(w)) / max(1, p.size - 1) if p.size > 1 else float("inf")
+    return ClockOffset(mean, float(np.sqrt(max(1.0 / np.sum(w), scatter))), int(sum(c.used for c in ok)))
 
 
 def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_db, talker, name: str,
@@ -853,7 +882,7 @@ def _full_sti(
     band_ms = np.zeros(nb)
     infos: list[dict] = []
     scales: dict[int, float] = {}
-    clocks: list[tuple[ClockOffset, float]] = []
+    clocks: dict[int, ClockOffset] = {}
     signal_s: list[float] = []
     if progress:
         progress(0, nf + 1)
@@ -891,18 +920,21 @@ def _full_sti(
                 f"signal; at least {_ceil1(need + 2 * GUARD_S):.1f} s of test signal is needed for {freqs[j]:g} Hz",
                 "record the whole generated signal",
             )
-        clock, scale = _clock(rec, freqs[j] * np.ones((nb, 1)))
-        d, _, f, lo = modulation_depths(rec.env, rec.fs_env, scale * freqs[j] * np.ones((nb, 1)), scale * freqs)
-        depth[:, j], floor[:, j], local[:, j] = d[:, 0], f, lo[:, 0]
+        clocks[j] = clock_offset(rec.env, rec.fs_env, freqs[j] * np.ones((nb, 1)))
         band_ms += rec.band_ms / nf
         assigned[j] = (name, rec)
-        scales[j] = scale
-        clocks.append((clock, scale))
         signal_s.append((rec.part.signal_stop - rec.part.signal_start) / rec.fs)
-        infos.append({"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3),
-                      "modulation_hz": float(freqs[j]), **rec.part.to_dict(), **_clock_info(clock, scale)})
         if progress:
             progress(i + 1, nf + 1)
+    # the same player and recorder for the whole set: one mismatch, from all recordings
+    pooled = _pooled_clock(list(clocks.values()))
+    for j, (name, rec) in assigned.items():
+        scales[j] = _clock_scale(pooled, rec, freqs[j] * np.ones((nb, 1)))
+        d, _, f, lo = modulation_depths(rec.env, rec.fs_env, scales[j] * freqs[j] * np.ones((nb, 1)),
+                                        scales[j] * freqs)
+        depth[:, j], floor[:, j], local[:, j] = d[:, 0], f, lo[:, 0]
+        infos.append({"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3),
+                      "modulation_hz": float(freqs[j]), **rec.part.to_dict(), **_clock_info(clocks[j], scales[j])})
     nwin = min(_window_count(r.env.shape[1], r.fs_env, freqs[j]) for j, (_, r) in assigned.items())
     mtf_w = []
     for w in range(nwin):
@@ -916,7 +948,7 @@ def _full_sti(
     infos.sort(key=lambda d: d["modulation_hz"])
     out = _finish("full STI", depth / nom, mtf_w, std.MODULATION_FREQUENCIES_HZ, depth, nom,
                   floor, band_ms, cal, noise, talker, infos, calibration_source,
-                  local=local, signal_s=signal_s, clock=clocks)
+                  local=local, signal_s=signal_s, clock=[(pooled, max(scales.values(), key=lambda v: abs(v - 1)))])
     if progress:
         progress(nf + 1, nf + 1)
     return out
