@@ -173,14 +173,14 @@ SHORT = (
 )
 
 CLOCK_FIXED = (
-    "The player's and the recorder's clocks differ by {ppm:+.0f} ppm (more than the {limit:g} ppm of usual "
-    "audio clocks): the modulation frequencies were analysed where they are in the recording, but check the "
-    "sample rates of the player and the recorder."
+    "The player's and the recorder's clocks differ by {ppm:+.0f} ppm (more than {limit:g} ppm; audio clocks "
+    "usually agree within about 100 ppm): the modulation frequencies were analysed where they are in the "
+    "recording, but check the sample rates of the player and the recorder."
 )
 CLOCK_NOT_FIXED = (
-    "The modulation frequencies look {ppm:+.0f} ppm off (more than the {limit:g} ppm of usual audio clocks), "
-    "seen in too few modulations to correct: the value may read low. Check the sample rates of the player and "
-    "the recorder."
+    "The modulation frequencies look {ppm:+.0f} ppm off (more than {limit:g} ppm; audio clocks usually agree "
+    "within about 100 ppm), seen in too few modulations to correct: the value may read low. Check the sample "
+    "rates of the player and the recorder."
 )
 
 UNCERTAINTY_METHOD = (
@@ -216,9 +216,10 @@ CLOCK_MIN_COMPONENTS: int = 3
 CLOCK_DEPTH_LOSS: float = 0.001
 
 #: Above this mismatch (ppm) the result says so among its cautions: audio clocks agree
-#: within about +-100 ppm (crystal tolerance; judgement), so more means a player and a
-#: recorder at different nominal rates or a file whose stated rate is wrong.
-CLOCK_CAUTION_PPM: float = 500.0
+#: within about +-100 ppm (crystal tolerance; judgement), so ten times that means a player
+#: and a recorder at different nominal rates or a file whose stated rate is wrong. Below
+#: it the mismatch is corrected (where it matters) and reported in ``clock_offset_ppm``.
+CLOCK_CAUTION_PPM: float = 1000.0
 
 
 def _clock_info(clock: ClockOffset, scale: float) -> dict:
