@@ -100,7 +100,8 @@ def render_direct(d: dict) -> str:
         mod = f", {r['modulation_hz']:g} Hz signal" if "modulation_hz" in r else ""
         lines.append(f"  {r['name']}: {r['fs']} Hz, {r['duration_s']:.1f} s; test signal "
                      f"{r['signal_start_s']:.2f}-{r['signal_end_s']:.2f} s, analysed "
-                     f"{r['analysed_start_s']:.2f}-{r['analysed_end_s']:.2f} s{mod}")
+                     f"{r['analysed_start_s']:.2f}-{r['analysed_end_s']:.2f} s{mod}"
+                     + (f"; clock {r['clock_offset_ppm']:+.0f} ppm, corrected" if r.get("clock_corrected") else ""))
     cal = (f"calibrated ({d['calibration_source']}, {d['calibration_db']:.1f} dB), level "
            f"{d['level_dba']:.1f} dB(A)" if d["calibrated"] else "NOT calibrated (no auditory corrections)")
     lines += [
