@@ -63,7 +63,7 @@ from .audio import (
 )
 from .bands import EnvelopeStream, check_rate_for_octaves, envelope_delays
 from .exceptions import InputError
-from .modulation import modulation_depths, mtf_from_test_signal
+from .modulation import ClockOffset, clock_offset, modulation_depths, mtf_from_test_signal
 from .results import jsonable
 from .signals import SETTLE_S
 from .sti import StiResult, check_talker, parse_noise_levels, sti_from_mtf
@@ -153,6 +153,80 @@ UNSTEADY = (
     "played in a loop whose length is not a whole number of modulation periods (use the "
     "100 s STIPA signal to loop). Repeat the measurement."
 )
+
+#: Mean amount by which an undistorted STIPA test signal recorded for 10-15 s reads low
+#: (STI), the offset of a recording shorter than the standard's minimum. Source: measured
+#: in tests/test_direct_honesty.py::test_short_recordings_read_low_by_the_stated_bias
+#: (6 carriers and start points per length, channel of exact MTF 1: mean -0.032 at 10 s,
+#: -0.041 at 12 s, -0.031 at 14 s, pooled -0.035; for comparison -0.019 at 15 and 20 s).
+SHORT_RECORDING_BIAS: float = 0.035
+
+#: A recording this much shorter than the minimum still counts as long enough: the energy
+#: detector places the ends of the test signal within a few of its 50 ms frames.
+SHORT_TOLERANCE_S: float = 0.25
+
+SHORT = (
+    "The test signal lasts only {have:.1f} s, less than the {need:g} s IEC 60268-16 asks for a {method} "
+    "measurement: the value reads low (about {bias:.3f} for an undistorted channel recorded for 10-15 s; "
+    "{offset:.3f} expected here from the envelope noise) and scatters more. Record at least {need:g} s "
+    "(15-25 s for STIPA)."
+)
+
+CLOCK_FIXED = (
+    "The player's and the recorder's clocks differ by {ppm:+.0f} ppm (more than {limit:g} ppm; audio clocks "
+    "usually agree within about 100 ppm): the modulation frequencies were analysed where they are in the "
+    "recording, but check the sample rates of the player and the recorder."
+)
+CLOCK_NOT_FIXED = (
+    "The modulation frequencies look {ppm:+.0f} ppm off (more than {limit:g} ppm; audio clocks usually agree "
+    "within about 100 ppm), seen in too few modulations to correct: the value may read low. Check the sample "
+    "rates of the player and the recorder."
+)
+
+UNCERTAINTY_METHOD = (
+    "standard uncertainty: the spread of the STI over {n} simulated repeats of the measurement (each depth plus a "
+    "fresh phasor of the measured envelope noise), or of {w} consecutive analysis windows / sqrt({w}) where "
+    "larger, combined in quadrature with the expected offset (mean of the repeats minus the value)"
+)
+NOTE_UNCERTAINTY = (
+    "The STI is computed from the measured depths as IEC 60268-16 prescribes; the random envelope noise of the "
+    "test signal's carrier makes it read slightly low (expected_offset), most for short recordings and near "
+    "STI 1. The uncertainty includes that offset."
+)
+NOTE_CLOCK = (
+    "clock_offset_ppm: the modulation frequencies found in the recording relative to the nominal ones (player "
+    "clock faster than the recorder's: positive), from the phase drift of the modulations; corrected (the depths "
+    "taken at the shifted frequencies) where it would cost more than 0.1 % of a depth. Full STI: one mismatch "
+    "pooled from all recordings (one player, one recorder); each recording's own estimate is listed with it."
+)
+
+#: Simulated repeats of the measurement for the uncertainty (:func:`_noise_draws`) and
+#: their seed: 200 give the standard deviation within about 5 % and the expected offset
+#: within a fourteenth of the uncertainty (about 0.1 s of work per result).
+NOISE_DRAWS: int = 200
+NOISE_SEED: int = 20268
+
+#: Clock-rate mismatch (:func:`envpredict.modulation.clock_offset`): corrected where it is
+#: larger than CLOCK_SIGNIFICANCE of its standard uncertainties, estimated from at least
+#: CLOCK_MIN_COMPONENTS (band, frequency) components, and would lower the highest
+#: modulation's depth by more than CLOCK_DEPTH_LOSS over the analysed length (0.1 %:
+#: 1 - sinc of the phase turn; about 80 ppm for 25 s of STIPA).
+CLOCK_SIGNIFICANCE: float = 4.0
+CLOCK_MIN_COMPONENTS: int = 3
+CLOCK_DEPTH_LOSS: float = 0.001
+
+#: Above this mismatch (ppm) the result says so among its cautions: audio clocks agree
+#: within about +-100 ppm (crystal tolerance; judgement), so ten times that means a player
+#: and a recorder at different nominal rates or a file whose stated rate is wrong. Below
+#: it the mismatch is corrected (where it matters) and reported in ``clock_offset_ppm``.
+CLOCK_CAUTION_PPM: float = 1000.0
+
+
+def _clock_info(clock: ClockOffset, scale: float) -> dict:
+    return {"clock_offset_ppm": round(clock.ppm, 1),
+            "clock_offset_uncertainty_ppm": None if not np.isfinite(clock.sigma_ppm) else round(clock.sigma_ppm, 1),
+            "clock_corrected": bool(scale != 1.0)}
+
 
 @dataclass(frozen=True)
 class UsablePart:
@@ -482,6 +556,10 @@ class DirectResult:
     recordings: tuple[dict, ...]
     cautions: tuple[str, ...] = field(default=())
     calibration_source: str | None = None
+    uncertainty_windows: float = float("nan")
+    uncertainty_noise: float = float("nan")
+    noise_bias: float = 0.0
+    clock_offset_ppm: float = 0.0
 
     def to_dict(self) -> dict:
         d = self.sti.to_dict()
@@ -491,8 +569,11 @@ class DirectResult:
             {
                 "method": f"direct ({self.method} recording), IEC 60268-16:2011",
                 "uncertainty": round(self.uncertainty, 4),
-                "uncertainty_method": (f"standard deviation of the STI of {len(self.window_sti)} consecutive "
-                                       "analysis windows / sqrt(number of windows)"),
+                "uncertainty_method": UNCERTAINTY_METHOD.format(n=NOISE_DRAWS, w=len(self.window_sti)),
+                "uncertainty_noise": _r4(self.uncertainty_noise),
+                "uncertainty_windows": _r4(self.uncertainty_windows),
+                "expected_offset": _r4(self.noise_bias),
+                "clock_offset_ppm": round(self.clock_offset_ppm, 1),
                 "window_sti": [round(v, 4) for v in self.window_sti],
                 "modulation_depth": np.round(self.depth, 4),
                 "nominal_depth": self.nominal_depth,
@@ -505,10 +586,14 @@ class DirectResult:
                 "level_dba": None if self.level_dba is None else round(self.level_dba, 1),
                 "recordings": list(self.recordings),
                 "cautions": list(self.cautions),
-                "notes": [],
+                "notes": [NOTE_UNCERTAINTY, NOTE_CLOCK],
             }
         )
         return jsonable(d)
+
+
+def _r4(v: float) -> float | None:
+    return round(float(v), 4) if np.isfinite(v) else None
 
 
 def _finish(
@@ -525,6 +610,10 @@ def _finish(
     talker: str,
     recordings: list[dict],
     calibration_source: str | None = None,
+    *,
+    local: np.ndarray,
+    signal_s: Sequence[float],
+    clock: Sequence[tuple[ClockOffset, float]],
 ) -> DirectResult:
     calibrated = calibration_db is not None
     if calibrated:
@@ -544,7 +633,14 @@ def _finish(
               speech_db=band_db if calibrated else None)
     res = sti_from_mtf(mtf_full, **kw)
     win = [sti_from_mtf(m, **kw).sti for m in mtf_windows]
-    unc = float(np.std(win, ddof=1) / np.sqrt(len(win))) if len(win) > 1 else float("nan")
+    unc_win = float(np.std(win, ddof=1) / np.sqrt(len(win))) if len(win) > 1 else float("nan")
+    draws = np.array([sti_from_mtf(m, **kw).sti for m in _noise_draws(depth, floor, local, nominal)])
+    unc_noise = float(np.std(draws, ddof=1))
+    bias = float(np.mean(draws) - res.sti)
+    # the random part: the envelope noise, or the windows' spread where conditions changed
+    # more than the noise explains; the expected offset added in quadrature, so that the
+    # stated uncertainty covers the error of a short recording (tests/test_direct_honesty.py)
+    unc = float(np.hypot(max(unc_noise, unc_win if np.isfinite(unc_win) else 0.0), bias))
 
     cautions = [cau.LIFE_SAFETY]
     low = cau.below_target(res.sti)
@@ -554,15 +650,50 @@ def _finish(
         cautions.append(NO_CALIBRATION)
     if noise_db is not None:
         cautions.append(ADDED_NOISE)
-    if np.isfinite(unc) and unc > UNCERTAIN_STI:
-        cautions.append(UNSTEADY.format(u=unc))
+    if np.isfinite(unc_win) and unc_win > UNCERTAIN_STI:
+        cautions.append(UNSTEADY.format(u=unc_win))
+    need = std.STIPA_MIN_SECONDS if method == "STIPA" else std.FULL_STI_ANALYSIS_SECONDS + 2 * SETTLE_S
+    shortest = float(min(signal_s))
+    if shortest < need - SHORT_TOLERANCE_S:
+        cautions.append(SHORT.format(have=shortest, need=need, method=method, bias=SHORT_RECORDING_BIAS,
+                                     offset=-bias))
+    ppm = [c.ppm for c, _ in clock]
+    # a mismatch beyond the usual clocks, and beyond its own uncertainty (an estimate from a
+    # noisy or slow modulation is not a finding)
+    found = [(c, scale) for c, scale in clock
+             if abs(c.ppm) > CLOCK_CAUTION_PPM and abs(c.ppm) > CLOCK_SIGNIFICANCE * c.sigma_ppm]
+    if found:
+        c, scale = max(found, key=lambda cs: abs(cs[0].ppm))
+        cautions.append((CLOCK_FIXED if scale != 1.0 else CLOCK_NOT_FIXED).format(ppm=c.ppm, limit=CLOCK_CAUTION_PPM))
     return DirectResult(
         method=method, sti=res, depth=depth, nominal_depth=nominal, noise_floor=floor,
         uncertainty=unc, window_sti=tuple(float(v) for v in win), calibrated=calibrated,
         calibration_db=calibration_db, band_levels_db=band_db, level_dba=la,
         recordings=tuple(recordings), cautions=tuple(cautions),
         calibration_source=(calibration_source or "offset") if calibrated else None,
+        uncertainty_windows=unc_win, uncertainty_noise=unc_noise, noise_bias=bias,
+        clock_offset_ppm=float(ppm[0]) if len(ppm) == 1 else float(np.median(ppm)),
     )
+
+
+def _noise_draws(depth: np.ndarray, floor: np.ndarray, local: np.ndarray, nominal: float) -> np.ndarray:
+    """MTFs of :data:`NOISE_DRAWS` simulated repeats of the measurement (parametric bootstrap).
+
+    Each measured depth is the signal's modulation plus the random phasor of the envelope
+    noise, of mean power ``local^2`` (:func:`envelope_noise_floor`, the unused bins nearest to
+    the frequency): a repeat adds a fresh complex Gaussian phasor of that power to the
+    corrected depth and takes the same floor ``floor`` off again
+    (:func:`envpredict.modulation.noise_corrected_depth`). Fixed seed: the same recording
+    always gets the same uncertainty.
+    """
+    d = np.nan_to_num(np.asarray(depth, dtype=float))
+    fl = np.broadcast_to(np.asarray(floor, dtype=float).reshape(d.shape[0], -1), d.shape)
+    fl = np.where(np.isfinite(fl), fl, 0.0)
+    lo = np.where(np.isfinite(local), local, fl)
+    rng = np.random.default_rng(NOISE_SEED)
+    z = rng.standard_normal((NOISE_DRAWS, *d.shape)) + 1j * rng.standard_normal((NOISE_DRAWS, *d.shape))
+    raw = np.abs(d + z * lo / np.sqrt(2.0))
+    return np.sqrt(np.clip(raw ** 2 - fl ** 2, 0.0, None)) / float(nominal)
 
 
 def _check_options(calibration_db, noise_db, talker):
@@ -582,26 +713,65 @@ def _check_talker_and_noise(talker, noise_db):
     parse_noise_levels(noise_db)
 
 
+def _clock(rec: _Analysed, freqs: np.ndarray) -> tuple[ClockOffset, float]:
+    """The clock-rate mismatch of a recording and the factor its modulation frequencies are
+    projected at: ``1 + ppm 1e-6`` where the mismatch is significant (more than
+    :data:`CLOCK_SIGNIFICANCE` standard uncertainties) and would cost more than
+    :data:`CLOCK_DEPTH_LOSS` of the highest modulation depth over the analysed length, else 1
+    (a recording within the clocks' usual tolerance keeps its numbers exactly)."""
+    c = clock_offset(rec.env, rec.fs_env, freqs)
+    return c, _clock_scale(c, rec, freqs)
+
+
+def _clock_scale(c: ClockOffset, rec: _Analysed, freqs: np.ndarray) -> float:
+    """The factor of :func:`_clock` for a mismatch ``c`` (estimated from ``rec`` or pooled)."""
+    eps = c.ppm * 1e-6
+    x = np.pi * float(np.max(freqs)) * abs(eps) * rec.env.shape[1] / rec.fs_env
+    loss = 1.0 - np.sin(x) / x if x > 0 else 0.0
+    fix = c.used >= CLOCK_MIN_COMPONENTS and abs(c.ppm) > CLOCK_SIGNIFICANCE * c.sigma_ppm and loss > CLOCK_DEPTH_LOSS
+    return (1.0 + eps) if fix else 1.0
+
+
+def _pooled_clock(clocks: Sequence[ClockOffset]) -> ClockOffset:
+    """One mismatch for a set of recordings made with the same player and recorder (full STI):
+    the inverse-variance mean of the recordings' estimates; its uncertainty the larger of the
+    formal one and the weighted scatter of the estimates (a single recording's stated
+    uncertainty can be optimistic: few sub-windows, one frequency)."""
+    ok = [c for c in clocks if c.used > 0 and np.isfinite(c.sigma_ppm) and c.sigma_ppm > 0]
+    if not ok:
+        return ClockOffset(0.0, float("inf"), 0)
+    p = np.array([c.ppm for c in ok])
+    w = 1.0 / np.array([c.sigma_ppm for c in ok]) ** 2
+    mean = float(np.sum(w * p) / np.sum(w))
+    scatter = float(np.sum(w * (p - mean) ** 2) / np.sum(w)) / max(1, p.size - 1) if p.size > 1 else float("inf")
+    return ClockOffset(mean, float(np.sqrt(max(1.0 / np.sum(w), scatter))), int(sum(c.used for c in ok)))
+
+
 def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_db, talker, name: str,
            progress, calibration_source: str | None = None) -> DirectResult:
     cal, noise, talker = _check_options(calibration_db, noise_db, talker)
-    pairs = np.asarray(std.STIPA_MODULATION_HZ, dtype=float)
-    f_low = float(pairs.min())
+    nominal = np.asarray(std.STIPA_MODULATION_HZ, dtype=float)
+    f_low = float(nominal.min())
     min_s = MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / f_low
     ticks = _Ticks(progress, 1)  # the depths; the analysis adds the blocks of both passes
     ticks.retotal(1)  # reports (0, 1): started
     rec = analyse(min_s, ticks)
+    clock, scale = _clock(rec, nominal)
+    pairs = nominal * scale  # where the modulations are in the recording's own time
     exclude = sorted(set(pairs.ravel()))
     depth, raw, floor, local = modulation_depths(rec.env, rec.fs_env, pairs, exclude)
     _check_found(raw, local, "STIPA", name)
     nom = std.STIPA_MODULATION_DEPTH
-    nwin = _window_count(rec.env.shape[1], rec.fs_env, f_low)
+    nwin = _window_count(rec.env.shape[1], rec.fs_env, f_low * scale)
     edges = np.linspace(0, rec.env.shape[1], nwin + 1).astype(int)
     mtf_w = [mtf_from_test_signal(rec.env[:, a:b], rec.fs_env, pairs, nom, exclude)
              for a, b in zip(edges[:-1], edges[1:])]
-    info = {"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3), **rec.part.to_dict()}
+    info = {"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3), **rec.part.to_dict(),
+            **_clock_info(clock, scale)}
     out = _finish("STIPA", depth / nom, mtf_w, std.STIPA_MODULATION_HZ, depth, nom, floor,
-                  rec.band_ms, cal, noise, talker, [info], calibration_source)
+                  rec.band_ms, cal, noise, talker, [info], calibration_source,
+                  local=local, signal_s=[(rec.part.signal_stop - rec.part.signal_start) / rec.fs],
+                  clock=[(clock, scale)])
     ticks.finish()
     return out
 
@@ -709,8 +879,12 @@ def _full_sti(
     assigned: dict[int, tuple[str, _Analysed]] = {}
     depth = np.zeros((nb, nf))
     floor = np.zeros((nb, nf))
+    local = np.zeros((nb, nf))
     band_ms = np.zeros(nb)
     infos: list[dict] = []
+    scales: dict[int, float] = {}
+    clocks: dict[int, ClockOffset] = {}
+    signal_s: list[float] = []
     if progress:
         progress(0, nf + 1)
     for i, (name, analyse) in enumerate(sources):
@@ -747,14 +921,21 @@ def _full_sti(
                 f"signal; at least {_ceil1(need + 2 * GUARD_S):.1f} s of test signal is needed for {freqs[j]:g} Hz",
                 "record the whole generated signal",
             )
-        d, _, f, _ = modulation_depths(rec.env, rec.fs_env, freqs[j] * np.ones((nb, 1)), freqs)
-        depth[:, j], floor[:, j] = d[:, 0], f
+        clocks[j] = clock_offset(rec.env, rec.fs_env, freqs[j] * np.ones((nb, 1)))
         band_ms += rec.band_ms / nf
         assigned[j] = (name, rec)
-        infos.append({"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3),
-                      "modulation_hz": float(freqs[j]), **rec.part.to_dict()})
+        signal_s.append((rec.part.signal_stop - rec.part.signal_start) / rec.fs)
         if progress:
             progress(i + 1, nf + 1)
+    # the same player and recorder for the whole set: one mismatch, from all recordings
+    pooled = _pooled_clock(list(clocks.values()))
+    for j, (name, rec) in assigned.items():
+        scales[j] = _clock_scale(pooled, rec, freqs[j] * np.ones((nb, 1)))
+        d, _, f, lo = modulation_depths(rec.env, rec.fs_env, scales[j] * freqs[j] * np.ones((nb, 1)),
+                                        scales[j] * freqs)
+        depth[:, j], floor[:, j], local[:, j] = d[:, 0], f, lo[:, 0]
+        infos.append({"name": name, "fs": rec.fs, "duration_s": round(rec.duration_s, 3),
+                      "modulation_hz": float(freqs[j]), **rec.part.to_dict(), **_clock_info(clocks[j], scales[j])})
     nwin = min(_window_count(r.env.shape[1], r.fs_env, freqs[j]) for j, (_, r) in assigned.items())
     mtf_w = []
     for w in range(nwin):
@@ -762,11 +943,13 @@ def _full_sti(
         for j, (_, r) in assigned.items():
             edges = np.linspace(0, r.env.shape[1], nwin + 1).astype(int)
             seg = r.env[:, edges[w]: edges[w + 1]]
-            m[:, j] = mtf_from_test_signal(seg, r.fs_env, freqs[j] * np.ones((nb, 1)), nom, freqs)[:, 0]
+            m[:, j] = mtf_from_test_signal(seg, r.fs_env, scales[j] * freqs[j] * np.ones((nb, 1)), nom,
+                                           scales[j] * freqs)[:, 0]
         mtf_w.append(m)
     infos.sort(key=lambda d: d["modulation_hz"])
     out = _finish("full STI", depth / nom, mtf_w, std.MODULATION_FREQUENCIES_HZ, depth, nom,
-                  floor, band_ms, cal, noise, talker, infos, calibration_source)
+                  floor, band_ms, cal, noise, talker, infos, calibration_source,
+                  local=local, signal_s=signal_s, clock=[(pooled, max(scales.values(), key=lambda v: abs(v - 1)))])
     if progress:
         progress(nf + 1, nf + 1)
     return out

@@ -516,7 +516,8 @@ def _page_stipa(d: Mapping) -> Page:
         cap = "STI of consecutive analysis windows of the recording: a wide scatter points to a changing noise or a "\
               "disturbed measurement."
         if unc is not None:
-            cap += f" Their standard error, {unc:.3f}, is the uncertainty given above."
+            cap += (f" The uncertainty given above, {unc:.3f}, is the larger of their standard error and the spread "
+                    "from the envelope noise, combined with the expected offset.")
         p.figures.append(Figure("window_sti", cap, _png(fig)))
     p.tables += _sti_tables(d, True)
     if win.size:

@@ -396,9 +396,12 @@ STIPA_MODULATION_SIGN: float = -1.0
 #: then never negative.
 FULL_STI_MODULATION_DEPTH: float = 1.0
 
-#: Default length of a generated STIPA signal, s, and the shortest one generated.
-#: IEC 60268-16:2011, Annex B (from memory) asks for a STIPA measurement of at least
-#: about 15 s, repeated. 100 s is the common period of the seven STIPA frequency pairs
+#: Default length of a generated STIPA signal, s, and the shortest one generated; the
+#: shortest STIPA measurement the direct method accepts without a caution. IEC 60268-16
+#: asks for a STIPA measurement of about 18 s, 15 s to 25 s recommended (Annex B of the
+#: 2011 edition from memory; the same figures are quoted from the 2020 edition by the
+#: documentation of an open STIPA implementation, github.com/zawi01/stipa), repeated.
+#: 100 s is the common period of the seven STIPA frequency pairs
 #: of Table B.1 (0.63 Hz: 63 periods, 1.6 Hz: 160 ...), so a 100 s signal loops without
 #: a seam and a recording may start anywhere in the loop (choice of this tool).
 STIPA_DEFAULT_SECONDS: float = 100.0
@@ -406,7 +409,9 @@ STIPA_MIN_SECONDS: float = 15.0
 
 #: Analysed length of each full-STI signal, s; with a settling margin at each end the
 #: total is rounded up to whole modulation periods. Choice of this tool (common
-#: practice, no source: 10 s gives at least 6 periods of the lowest frequency).
+#: practice, no source: 10 s gives at least 6 periods of the lowest frequency). A
+#: full-STI recording shorter than this plus the margins gets the short-recording caution
+#: of the direct method.
 FULL_STI_ANALYSIS_SECONDS: float = 10.0
 
 #: Peak level of generated test signals, dB re full scale: 3 dB headroom so that no

@@ -126,7 +126,10 @@ def test_generated_signal_reads_near_perfect(direct24, stipa48):
         assert r.sti.sti >= 0.97
         assert r.sti.rating == "A+"
         assert np.all(r.sti.mtf_measured > 0.75)  # no band lost (the 125 Hz band is the noisiest)
-        assert 0 < r.uncertainty < 0.02
+        # the uncertainty counts the envelope noise and its expected offset (about -0.016 at
+        # 25 s); its coverage is checked in tests/test_direct_honesty.py
+        assert 0 < r.uncertainty < 0.03
+        assert -0.03 < r.noise_bias < 0
 
 
 def test_json_keys_and_shapes(direct24):

@@ -103,7 +103,8 @@ def render_direct(d: dict) -> str:
         mod = f", {r['modulation_hz']:g} Hz signal" if "modulation_hz" in r else ""
         lines.append(f"  {r['name']}: {r['fs']} Hz, {r['duration_s']:.1f} s; test signal "
                      f"{r['signal_start_s']:.2f}-{r['signal_end_s']:.2f} s, analysed "
-                     f"{r['analysed_start_s']:.2f}-{r['analysed_end_s']:.2f} s{mod}")
+                     f"{r['analysed_start_s']:.2f}-{r['analysed_end_s']:.2f} s{mod}"
+                     + (f"; clock {r['clock_offset_ppm']:+.0f} ppm, corrected" if r.get("clock_corrected") else ""))
     cal = (f"calibrated ({d['calibration_source']}, {d['calibration_db']:.1f} dB), level "
            f"{d['level_dba']:.1f} dB(A)" if d["calibrated"] else "NOT calibrated (no auditory corrections)")
     lines += [
@@ -111,7 +112,8 @@ def render_direct(d: dict) -> str:
         "",
         f"STI = {format_index(d['sti'])} ± {fmt(d['uncertainty'], unc_spec)}   qualification band {d['rating']}   "
         f"({d['subjective']})",
-        f"(± is the standard uncertainty from {len(d['window_sti'])} analysis windows)",
+        "(± is the standard uncertainty: envelope noise or window spread, and the expected offset "
+        f"{fmt(d.get('expected_offset'), '+.3f')})",
         "",
     ]
     head = ["band Hz", "MTI", f"level {d['band_levels_unit']}", "noise depth"]
