@@ -615,14 +615,20 @@ def pair_from_files(
     max_delay_s: float = std.PAIR_MAX_DELAY_S,
     chunk_s: float = DEFAULT_CHUNK_S,
     progress: Callable[[int, int], None] | None = None,
+    clean_channel: int | None = None,
+    degraded_channel: int | None = None,
 ) -> PairResult:
     """:func:`pair_indices` of two audio files, read block by block (bounded memory).
 
     ``channel`` selects the channel of any multi-channel file (mono files use their
-    only channel); a multi-channel file without ``channel`` is refused.
+    only channel); a multi-channel file without a channel is refused. ``clean_channel``
+    and ``degraded_channel`` select the channel of one file each (overriding
+    ``channel``): the clean and degraded signals may be two channels of one file.
     """
-    with (FileSource(clean_path, channel if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
-          FileSource(degraded_path, channel if _channels(degraded_path, "degraded") > 1 else None,
+    cc = channel if clean_channel is None else clean_channel
+    dc = channel if degraded_channel is None else degraded_channel
+    with (FileSource(clean_path, cc if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
+          FileSource(degraded_path, dc if _channels(degraded_path, "degraded") > 1 else None,
                      name="degraded") as d):
         return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
 

@@ -382,3 +382,31 @@ def test_speech_sti_computes_only_the_speech_based_sti(monkeypatch):
 
     monkeypatch.setattr(pair, "stoi_estoi_stream", no_stoi)
     assert speech_sti(x, y, fs) == want
+
+
+def test_clean_and_degraded_as_two_channels_of_one_file(tmp_path, capsys):
+    # the same signals as two mono files and as the two channels of one file give the
+    # same result; --channel alone would take one channel for both
+    import json
+
+    import soundfile as sf
+    from cli_for_tests import run_cli
+    from signals_for_tests import at_snr, speech_like, speech_shaped_noise
+
+    fs = 16000
+    x = speech_like(6.0, fs, seed=4)
+    y = at_snr(x, speech_shaped_noise(x, seed=5), 3.0)
+    sf.write(tmp_path / "c.wav", x, fs, subtype="FLOAT")
+    sf.write(tmp_path / "d.wav", y, fs, subtype="FLOAT")
+    sf.write(tmp_path / "both.wav", np.stack([x, y], axis=1), fs, subtype="FLOAT")
+    code, out, err = run_cli(["pair", tmp_path / "c.wav", tmp_path / "d.wav", "--json"], capsys)
+    assert code == 0, err
+    mono = json.loads(out)
+    both = tmp_path / "both.wav"
+    code, out, err = run_cli(["pair", both, both, "--clean-channel", "0", "--degraded-channel", "1", "--json"], capsys)
+    assert code == 0, err
+    two = json.loads(out)
+    for k in ("stoi", "estoi", "ssti", "delay_ms"):
+        assert two[k] == mono[k], k
+    code, out, _ = run_cli(["pair", both, both, "--channel", "0", "--json"], capsys)
+    assert json.loads(out)["stoi"] > 0.99 > mono["stoi"]  # one channel against itself

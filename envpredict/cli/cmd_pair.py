@@ -72,6 +72,10 @@ def pair_command(
     degraded: Path = typer.Argument(..., help="The same utterance after processing or transmission.",
                                     show_default=False),
     channel: int | None = typer.Option(None, "--channel", help=CHANNEL_HELP),
+    clean_channel: int | None = typer.Option(None, "--clean-channel", help="Channel of the clean file only "
+                                             "(overrides --channel), e.g. when both signals are in one file."),
+    degraded_channel: int | None = typer.Option(None, "--degraded-channel", help="Channel of the degraded file "
+                                                "only (overrides --channel)."),
     no_align: bool = typer.Option(False, "--no-align", help=NO_ALIGN_HELP),
     max_delay: float = typer.Option(std.PAIR_MAX_DELAY_S, "--max-delay", help=MAX_DELAY_HELP),
     chunk: float = typer.Option(std.PAIR_CHUNK_S, "--chunk", help=CHUNK_HELP),
@@ -84,10 +88,12 @@ def pair_command(
 
     check_outputs(out=out, report=report, inputs=[clean, degraded])  # before the (slower) audio work
     with Progress("analysing pair", None, quiet=as_json) as prog:
-        result = pair_from_files(clean, degraded, channel=channel, align=not no_align, max_delay_s=max_delay,
+        result = pair_from_files(clean, degraded, channel=channel, clean_channel=clean_channel,
+                                 degraded_channel=degraded_channel, align=not no_align, max_delay_s=max_delay,
                                  chunk_s=chunk, progress=prog)
     d = result.to_dict()
-    d["inputs"] = {"clean": str(clean), "degraded": str(degraded), "channel": channel, "align": not no_align,
+    d["inputs"] = {"clean": str(clean), "degraded": str(degraded), "channel": channel,
+                   "clean_channel": clean_channel, "degraded_channel": degraded_channel, "align": not no_align,
                    "max_delay_s": max_delay}
     write_report_if(report, "pair", d, as_json=as_json, title=f"{degraded.name} against {clean.name}")
     emit(d, lambda: render_pair(d, str(clean), str(degraded)), as_json, out)
