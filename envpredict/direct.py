@@ -49,7 +49,7 @@ index is computed without those corrections and the result says so.
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Callable, Sequence
 
@@ -66,7 +66,7 @@ from .exceptions import InputError
 from .modulation import ClockOffset, clock_offset, modulation_depths, mtf_from_test_signal
 from .results import jsonable
 from .signals import SETTLE_S
-from .sti import StiResult, check_talker, parse_noise_levels, sti_from_mtf
+from .sti import StiResult, check_requirement, check_talker, parse_noise_levels, sti_from_mtf
 
 #: Frame length and smoothing of the energy detector of the usable part, s.
 FRAME_S: float = 0.050
@@ -614,6 +614,7 @@ def _finish(
     local: np.ndarray,
     signal_s: Sequence[float],
     clock: Sequence[tuple[ClockOffset, float]],
+    requirement: float | None = None,
 ) -> DirectResult:
     calibrated = calibration_db is not None
     if calibrated:
@@ -631,7 +632,7 @@ def _finish(
     kw = dict(modulation_hz=modulation_hz, talker=talker, noise_db=noise_db,
               speech_level_dba=la if calibrated else std.DEFAULT_SPEECH_LEVEL_DBA, auditory=calibrated,
               speech_db=band_db if calibrated else None)
-    res = sti_from_mtf(mtf_full, **kw)
+    res = replace(sti_from_mtf(mtf_full, **kw), requirement=requirement)
     win = [sti_from_mtf(m, **kw).sti for m in mtf_windows]
     unc_win = float(np.std(win, ddof=1) / np.sqrt(len(win))) if len(win) > 1 else float("nan")
     draws = np.array([sti_from_mtf(m, **kw).sti for m in _noise_draws(depth, floor, local, nominal)])
@@ -643,7 +644,7 @@ def _finish(
     unc = float(np.hypot(max(unc_noise, unc_win if np.isfinite(unc_win) else 0.0), bias))
 
     cautions = [cau.LIFE_SAFETY]
-    low = cau.below_target(res.sti)
+    low = cau.below_target(res.sti, requirement)
     if low:
         cautions.append(low)
     if not calibrated:
@@ -748,8 +749,9 @@ def _pooled_clock(clocks: Sequence[ClockOffset]) -> ClockOffset:
 
 
 def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_db, talker, name: str,
-           progress, calibration_source: str | None = None) -> DirectResult:
+           progress, calibration_source: str | None = None, requirement: float | None = None) -> DirectResult:
     cal, noise, talker = _check_options(calibration_db, noise_db, talker)
+    requirement = check_requirement(requirement)
     nominal = np.asarray(std.STIPA_MODULATION_HZ, dtype=float)
     f_low = float(nominal.min())
     min_s = MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / f_low
@@ -771,7 +773,7 @@ def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_
     out = _finish("STIPA", depth / nom, mtf_w, std.STIPA_MODULATION_HZ, depth, nom, floor,
                   rec.band_ms, cal, noise, talker, [info], calibration_source,
                   local=local, signal_s=[(rec.part.signal_stop - rec.part.signal_start) / rec.fs],
-                  clock=[(clock, scale)])
+                  clock=[(clock, scale)], requirement=requirement)
     ticks.finish()
     return out
 
@@ -786,6 +788,7 @@ def stipa_from_recording(
     name: str = "recording",
     block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
+    requirement: float | None = None,
 ) -> DirectResult:
     """STI from a recording of the STIPA test signal (IEC 60268-16:2011, Annex B).
 
@@ -802,6 +805,8 @@ def stipa_from_recording(
     block_seconds : the array is processed in blocks of this length, exactly as a file
         by :func:`stipa_from_file` (the block length does not change the result).
     progress : optional ``progress(done, total)`` callback.
+    requirement : the STI the system must reach; the result states whether it is met
+        (on the unrounded value).
 
     Valid input: at least 2 x 2 periods of 0.63 Hz (6.3 s) of test signal plus 1.25 s at
     each end (8.9 s); 15-30 s is usual; at most :data:`MAX_RECORDING_S` (2 h). Not
@@ -816,7 +821,7 @@ def stipa_from_recording(
     """
     return _stipa(lambda min_s, ticks: _analyse_recording(x, fs, min_s, name, block_seconds=block_seconds,
                                                           ticks=ticks),
-                  calibration_db, noise_db, talker, name, progress)
+                  calibration_db, noise_db, talker, name, progress, requirement=requirement)
 
 
 def stipa_from_file(
@@ -832,6 +837,7 @@ def stipa_from_file(
     name: str | None = None,
     block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
+    requirement: float | None = None,
 ) -> DirectResult:
     """STI from a recording file of the STIPA test signal (IEC 60268-16:2011, Annex B).
 
@@ -847,7 +853,7 @@ def stipa_from_file(
     channel : channel of a multi-channel file (``None``: the file must be mono).
     name : what the recording is called in the result (default: the file name).
     block_seconds : length of the blocks read, s.
-    calibration_db, noise_db, talker, progress : as for :func:`stipa_from_recording`.
+    calibration_db, noise_db, talker, progress, requirement : as for :func:`stipa_from_recording`.
     calibrator, calibrator_level : instead of ``calibration_db``, a recording of a 1 kHz
         acoustic calibrator made with the same gain and its level in dB SPL
         (:func:`envpredict.audio.resolve_calibration`).
@@ -862,14 +868,16 @@ def stipa_from_file(
     name = Path(path).name if name is None else name
     return _stipa(lambda min_s, ticks: _analyse_file(path, channel, min_s, name, block_seconds=block_seconds,
                                                      ticks=ticks),
-                  cal, noise_db, talker, name, progress, source)
+                  cal, noise_db, talker, name, progress, source, requirement=requirement)
 
 
 def _full_sti(
     sources: Sequence[tuple[str, Callable[[float, str], _Analysed]]],
     calibration_db, noise_db, talker, progress, calibration_source: str | None = None,
+    requirement: float | None = None,
 ) -> DirectResult:
     cal, noise, talker = _check_options(calibration_db, noise_db, talker)
+    requirement = check_requirement(requirement)
     freqs = np.asarray(std.MODULATION_FREQUENCIES_HZ, dtype=float)
     nb, nf = len(std.OCTAVE_BANDS_HZ), freqs.size
     if len(sources) != nf:
@@ -949,7 +957,8 @@ def _full_sti(
     infos.sort(key=lambda d: d["modulation_hz"])
     out = _finish("full STI", depth / nom, mtf_w, std.MODULATION_FREQUENCIES_HZ, depth, nom,
                   floor, band_ms, cal, noise, talker, infos, calibration_source,
-                  local=local, signal_s=signal_s, clock=[(pooled, max(scales.values(), key=lambda v: abs(v - 1)))])
+                  local=local, signal_s=signal_s, clock=[(pooled, max(scales.values(), key=lambda v: abs(v - 1)))],
+                  requirement=requirement)
     if progress:
         progress(nf + 1, nf + 1)
     return out
@@ -963,6 +972,7 @@ def full_sti_from_recordings(
     talker: str = "male",
     block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
+    requirement: float | None = None,
 ) -> DirectResult:
     """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16:2011, 6.1).
 
@@ -990,7 +1000,7 @@ def full_sti_from_recordings(
                                                               block_seconds=block_seconds)
 
     return _full_sti([source(x, fs, name) for x, fs, name in recordings], calibration_db, noise_db, talker,
-                     progress)
+                     progress, requirement=requirement)
 
 
 def recording_paths(paths: str | os.PathLike | Sequence[str | os.PathLike]) -> list[Path]:
@@ -1022,6 +1032,7 @@ def full_sti_from_files(
     talker: str = "male",
     block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
+    requirement: float | None = None,
 ) -> DirectResult:
     """Full STI from the 14 recording files of the full-STI test signals (IEC 60268-16:2011, 6.1).
 
@@ -1052,4 +1063,5 @@ def full_sti_from_files(
         return name, lambda min_s, advice: _analyse_file(path, channel, min_s, name, advice,
                                                          block_seconds=block_seconds)
 
-    return _full_sti([source(p) for p in files], cal, noise_db, talker, progress, cal_source)
+    return _full_sti([source(p) for p in files], cal, noise_db, talker, progress, cal_source,
+                     requirement=requirement)

@@ -57,3 +57,17 @@ def test_a_users_requirement_decides_the_verdict_everywhere(tmp_path, capsys):
 def test_a_requirement_outside_0_1_is_refused(capsys):
     code, out, err = run_cli(["ir", demo_dir() / "waiting_hall_ir.wav", "--require", "1.5"], capsys)
     assert code == 2 and out == "" and err == "error: required STI 1.5 is outside 0..1 — give a value such as 0.50\n"
+
+
+def test_direct_method_takes_the_users_requirement_too():
+    # the undistorted STIPA signal reads about 0.97-0.99: a required 0.999 is not met, 0.9 is
+    from envpredict.direct import stipa_from_recording
+    from envpredict.signals import stipa_signal
+
+    x = stipa_signal(16.0, 24000, seed=2)
+    low = stipa_from_recording(x, 24000, requirement=0.999)
+    assert low.sti.meets_requirement is False and low.sti.sti < 0.999
+    assert any("below the required 0.999" in c for c in low.cautions)
+    high = stipa_from_recording(x, 24000, requirement=0.9)
+    assert high.sti.meets_requirement is True and not any("below the required" in c for c in high.cautions)
+    assert high.to_dict()["requirement"] == 0.9

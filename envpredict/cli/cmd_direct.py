@@ -12,8 +12,8 @@ from envpredict import standards as std
 
 from ._app import app
 from ._common import (
-    JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table,
-    write_report_if,
+    JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, Progress, check_report, emit, fmt, format_sti,
+    table, write_report_if,
 )
 
 testsignal_app = typer.Typer(
@@ -94,9 +94,11 @@ def render_direct(d: dict) -> str:
     """Readable text for a direct-method result dictionary."""
     import numpy as np
 
-    from envpredict.sti import format_index, verdict_decimals
+    from envpredict import standards as std
+    from envpredict.sti import verdict_decimals
 
-    unc_spec = f".{verdict_decimals(d['sti'])}f"  # the uncertainty with as many decimals as the STI
+    req = std.VOICE_ALARM_TARGET_STI if d.get("requirement") is None else d["requirement"]
+    unc_spec = f".{verdict_decimals(d['sti'], req)}f"  # the uncertainty with as many decimals as the STI
 
     lines = [f"Method: {d['method']}"]
     for r in d["recordings"]:
@@ -110,12 +112,15 @@ def render_direct(d: dict) -> str:
     lines += [
         f"Talker weights: {d['talker']}   {cal}",
         "",
-        f"STI = {format_index(d['sti'])} ± {fmt(d['uncertainty'], unc_spec)}   qualification band {d['rating']}   "
+        f"STI = {format_sti(d)} ± {fmt(d['uncertainty'], unc_spec)}   qualification band {d['rating']}   "
         f"({d['subjective']})",
         "(± is the standard uncertainty: envelope noise or window spread, and the expected offset "
         f"{fmt(d.get('expected_offset'), '+.3f')})",
         "",
     ]
+    if d.get("requirement") is not None:
+        lines[-1:-1] = [f"Required: STI {d['requirement']:g} or more — "
+                        f"{'met' if d['meets_requirement'] else 'NOT met'}"]
     head = ["band Hz", "MTI", f"level {d['band_levels_unit']}", "noise depth"]
     nmod = len(d["mtf"][0])
     if nmod == 2:
@@ -157,6 +162,9 @@ def stipa_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
+    require: Optional[float] = typer.Option(
+        None, "--require", help="The STI the system must reach (set by the local code, e.g. 0.50): the result "
+        "states whether it is met, judged on the unrounded value.", show_default=False),
     record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
     record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
 ) -> None:
@@ -172,11 +180,11 @@ def stipa_command(
     with Progress("analysing STIPA recording", None, quiet=as_json) as prog:
         result = stipa_from_file(recording, channel, calibration_db=calibration_db, calibrator=calibrator,
                                  calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
-                                 noise_db=noise, talker=talker, progress=prog)
+                                 noise_db=noise, talker=talker, progress=prog, requirement=require)
     d = result.to_dict()
     d["inputs"] = {"recording": str(recording), "channel": channel, **_calibration_inputs(
         calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker,
-        "about": about}
+        "require": require, "about": about}
     write_report_if(report, "stipa", d, as_json=as_json, title=f"STIPA: {recording.name}")
     emit(d, lambda: render_direct(d), as_json, out)
 
@@ -200,6 +208,9 @@ def fullsti_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
+    require: Optional[float] = typer.Option(
+        None, "--require", help="The STI the system must reach (set by the local code, e.g. 0.50): the result "
+        "states whether it is met, judged on the unrounded value.", show_default=False),
     record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
     record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
 ) -> None:
@@ -212,10 +223,10 @@ def fullsti_command(
     with Progress("analysing full-STI recordings", None, quiet=as_json) as prog:
         result = full_sti_from_files(recordings, channel, calibration_db=calibration_db, calibrator=calibrator,
                                      calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
-                                     noise_db=noise, talker=talker, progress=prog)
+                                     noise_db=noise, talker=talker, progress=prog, requirement=require)
     d = result.to_dict()
     d["inputs"] = {"recordings": [str(f) for f in recordings], "channel": channel, **_calibration_inputs(
         calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker,
-        "about": about}
+        "require": require, "about": about}
     write_report_if(report, "fullsti", d, as_json=as_json)
     emit(d, lambda: render_direct(d), as_json, out)
