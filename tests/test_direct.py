@@ -445,7 +445,7 @@ def test_cli_stipa_with_calibrator(stipa_wav, tmp_path, capsys):
     inputs = d.pop("inputs")
     assert inputs == {"recording": str(stipa_wav), "channel": None, "calibration_db": None, "calibrator": str(cal),
                       "calibrator_level": 94.0, "calibrator_channel": None, "noise": None, "talker": "male",
-                      "about": {}}
+                      "require": None, "about": {}}
     api = stipa_from_file(stipa_wav, calibrator=cal, calibrator_level=94.0)
     assert d == as_json(api.to_dict())
     code, stdout, _ = run_cli(["stipa", str(stipa_wav), "--calibrator", str(cal), "--calibrator-level", "94"],
@@ -514,7 +514,7 @@ def test_cli_fullsti_folder(full_set, tmp_path, capsys):
     # the CLI's JSON is the API's result plus the inputs as given; the API takes the folder itself
     assert d.pop("inputs") == {"recordings": [str(tmp_path)], "channel": None, "calibration_db": None,
                                "calibrator": None, "calibrator_level": None, "calibrator_channel": None,
-                               "noise": None, "talker": "male", "about": {}}
+                               "noise": None, "talker": "male", "require": None, "about": {}}
     assert d == as_json(full_sti_from_files(tmp_path).to_dict())
     assert [p.name for p in recording_paths(tmp_path)] == sorted(name for _, _, name in full_set)
     # its report is a full-STI report, not a STIPA one
