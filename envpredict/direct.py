@@ -880,7 +880,7 @@ def _full_sti(
     requirement = check_requirement(requirement)
     freqs = np.asarray(std.MODULATION_FREQUENCIES_HZ, dtype=float)
     nb, nf = len(std.OCTAVE_BANDS_HZ), freqs.size
-    if len(sources) != nf:
+    if len(sources) > nf or not sources:
         raise InputError(f"{len(sources)} recording(s) given; the full STI needs {nf}, one per modulation "
                          "frequency", "give the recordings of all 14 full-STI test signals")
     nom = std.FULL_STI_MODULATION_DEPTH
@@ -935,6 +935,11 @@ def _full_sti(
         signal_s.append((rec.part.signal_stop - rec.part.signal_start) / rec.fs)
         if progress:
             progress(i + 1, nf + 1)
+    if len(assigned) < nf:  # each recording is known by its content: name the ones missing
+        missing = ", ".join(f"{freqs[j]:g} Hz" for j in range(nf) if j not in assigned)
+        raise InputError(f"{len(sources)} recording(s) found; the full STI needs {nf}, one per modulation "
+                         f"frequency: the recording of the {missing} signal is missing",
+                         "record and add the missing full-STI test signal(s)")
     # the same player and recorder for the whole set: one mismatch, from all recordings
     pooled = _pooled_clock(list(clocks.values()))
     for j, (name, rec) in assigned.items():
@@ -1054,9 +1059,10 @@ def full_sti_from_files(
                                           channel if calibrator_channel is None else calibrator_channel)
     files = recording_paths(paths)
     nf = len(std.MODULATION_FREQUENCIES_HZ)
-    if len(files) != nf:
+    if len(files) > nf:
         raise InputError(f"{len(files)} recording(s) found; the full STI needs {nf} (one per modulation frequency)",
                          f"give the recordings of all {nf} full-STI signals, or a folder holding only them")
+    # fewer: each recording is identified by its content, and the error names the missing ones
 
     def source(path):
         name = Path(path).name

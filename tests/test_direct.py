@@ -526,6 +526,11 @@ def test_cli_fullsti_folder(full_set, tmp_path, capsys):
     (tmp_path / full_set[0][2]).unlink()
     code, _, err = run_cli(["fullsti", str(tmp_path)], capsys)
     assert code == 2 and "13 recording(s)" in err and len(err.strip().splitlines()) == 1
+    # the recordings are known by their content: the message names the one missing
+    from envpredict.signals import full_sti_plan
+
+    missing = next(p.modulation_hz for p in full_sti_plan() if p.filename == full_set[0][2])
+    assert f"the recording of the {missing:g} Hz signal is missing" in err, err
     with pytest.raises(InputError, match=r"13 recording\(s\) found; the full STI needs 14"):
         full_sti_from_files(tmp_path)
     empty = tmp_path / "empty"
