@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 import os
-from typing import Callable, Sequence
+from typing import TYPE_CHECKING, Callable, Sequence
 
 import numpy as np
 
@@ -18,6 +18,9 @@ from .exceptions import InputError
 from .modulation import mtf_from_ir
 from .results import jsonable
 from .sti import StiResult, check_speech_level, check_talker, parse_noise_levels, sti_from_mtf
+
+if TYPE_CHECKING:
+    from .deconvolve import DeconvolutionResult
 
 #: Shortest usable impulse response after its onset: half a period of the lowest
 #: modulation frequency, so that the Fourier kernel at 0.63 Hz changes sign within
@@ -55,6 +58,7 @@ class IrResult:
     speech_level_dba: float
     cautions: tuple[str, ...]
     ir_range_db: np.ndarray  # decay range of the IR itself per band, dB
+    deconvolution: "DeconvolutionResult | None" = None  # how the IR was recovered from a sweep recording
 
     def to_dict(self) -> dict:
         d = self.sti.to_dict()
@@ -69,6 +73,8 @@ class IrResult:
                 "notes": [],
             }
         )
+        if self.deconvolution is not None:
+            d["deconvolution"] = self.deconvolution.to_dict()
         return jsonable(d)
 
 
@@ -232,6 +238,8 @@ def sti_from_ir_file(
     talker: str = std.DEFAULT_TALKER,
     auditory: bool = True,
     progress: Callable[[int, int], None] | None = None,
+    sweep: str | os.PathLike | None = None,
+    sweep_rate: int | None = None,
 ) -> IrResult:
     """STI (indirect method) and ISO 3382-1 decay figures of an impulse-response file.
 
@@ -244,6 +252,11 @@ def sti_from_ir_file(
     path : WAV, FLAC or OGG file holding the impulse response.
     channel : channel of a multi-channel file (0 = first); ``None`` requires a mono file.
     noise_db, speech_level_dba, talker, auditory, progress : as for :func:`sti_from_ir`.
+    sweep : the exponential sweep file that was played, when ``path`` is a recording of it
+        rather than an impulse response: the response is first recovered by
+        :func:`envpredict.deconvolve.deconvolve_sweep_file` (its report in ``deconvolution``,
+        its cautions added to the result's).
+    sweep_rate : the rate the sweep was played at, if not its file's (with ``sweep``).
 
     Returns
     -------
@@ -260,10 +273,21 @@ def sti_from_ir_file(
     talker = check_talker(talker)
     speech_level_dba = check_speech_level(speech_level_dba)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
+    name = os.path.basename(os.fsdecode(path)).encode("utf-8", "surrogateescape").decode("utf-8", "replace")
+    if sweep is not None:
+        from dataclasses import replace
+
+        from .deconvolve import deconvolve_sweep_file
+
+        dec = deconvolve_sweep_file(path, sweep, channel=channel, sweep_rate=sweep_rate)
+        res = _analyse(dec.ir, dec.fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker,
+                       auditory=auditory, progress=progress, label=f"the response recovered from '{name}'")
+        return replace(res, cautions=res.cautions + dec.cautions, deconvolution=dec)
+    if sweep_rate is not None:
+        raise InputError("--sweep-rate was given without --sweep", "give the sweep file that was played too")
     x, fs = load_audio(path, channel, name="impulse response")
     x = validate_signal(x, fs, name="impulse response")
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
-    name = os.path.basename(os.fsdecode(path)).encode("utf-8", "surrogateescape").decode("utf-8", "replace")
     return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
                     progress=progress, label=f"'{name}'")

@@ -19,6 +19,9 @@ NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB 
 LEVEL_HELP = (f"A-weighted speech level at the listener, dB(A). Default {std.DEFAULT_SPEECH_LEVEL_DBA:g} "
               "(normal voice at 1 m).")
 TALKER_HELP = "Speech spectrum and band weights: male or female (IEC 60268-16)."
+SWEEP_HELP = ("The exponential sweep file that was played (from 'envpredict testsignal sweep', with its .json "
+              "beside it): IR_FILE is then a recording of it, deconvolved first (see 'envpredict deconvolve').")
+SWEEP_RATE_HELP = "With --sweep: the rate the sweep was played at, Hz, if not the rate in its file."
 AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textbook form, for "
                  "comparison with published formulas; not for compliance work).")
 
@@ -31,6 +34,14 @@ def render_ir(d: dict, source: str) -> str:
         f"Impulse response: {source}  ({d['fs']} Hz, {d['duration_s']:.2f} s)",
         f"Talker: {d['talker']}   speech level: {d['speech_level_dba']:.1f} dB(A)   "
         f"auditory corrections: {'on' if d['auditory_corrections'] else 'off'}",
+    ]
+    dec = d.get("deconvolution")
+    if dec:
+        pnr = ", ".join(fmt(v, ".0f") for v in dec["peak_to_noise_db"])
+        lines.append(f"Recovered from a sweep recording: sweep found at {dec['offset_s']:.3f} s, "
+                     f"{dec['repeats_used']} of {dec['repeats_played']} repeat(s) averaged; peak-to-noise dB "
+                     f"per band {pnr}")
+    lines += [
         "",
         f"STI = {format_index(d['sti'])}   qualification band {d['rating']}   ({d['subjective']})",
         "",
@@ -63,7 +74,8 @@ def render_ir(d: dict, source: str) -> str:
 
 @app.command("ir")
 def ir_command(
-    ir_file: Path = typer.Argument(..., help="Impulse response (WAV, FLAC or OGG).", show_default=False),
+    ir_file: Path = typer.Argument(..., help="Impulse response (WAV, FLAC or OGG); with --sweep, a recording of the "
+                                   "played sweep.", show_default=False),
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
     speech_level: float = typer.Option(std.DEFAULT_SPEECH_LEVEL_DBA, "--speech-level", help=LEVEL_HELP),
     talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP),
@@ -72,17 +84,22 @@ def ir_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
+    sweep: Optional[Path] = typer.Option(None, "--sweep", help=SWEEP_HELP),
+    sweep_rate: Optional[int] = typer.Option(None, "--sweep-rate", help=SWEEP_RATE_HELP),
 ) -> None:
     """STI (IEC 60268-16 indirect method) and ISO 3382-1 decay figures from an impulse response."""
     from envpredict.indirect import sti_from_ir_file
 
-    check_outputs(out=out, report=report, inputs=[ir_file])
+    check_outputs(out=out, report=report, inputs=[ir_file, sweep])
     with Progress("analysing impulse response", None, quiet=as_json) as prog:
         result = sti_from_ir_file(ir_file, channel=channel, noise_db=noise, speech_level_dba=speech_level,
-                                  talker=talker, auditory=not no_auditory, progress=prog)
+                                  talker=talker, auditory=not no_auditory, progress=prog, sweep=sweep,
+                                  sweep_rate=sweep_rate)
     d = result.to_dict()
     d["inputs"] = {"impulse_response": str(ir_file), "channel": channel,
                    "noise": noise,
                    "speech_level_dba": speech_level, "talker": talker, "auditory_corrections": not no_auditory}
+    if sweep is not None:
+        d["inputs"].update({"sweep": str(sweep), "sweep_rate": sweep_rate})
     write_report_if(report, "ir", d, as_json=as_json, title=f"STI and decay figures of {ir_file.name}")
     emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)
