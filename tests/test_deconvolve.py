@@ -232,7 +232,8 @@ def _files(tmp_path, spec, rec, fs_rec):
 def test_rate_mismatch_from_the_files_own_rates(tmp_path):
     """Sweep file at 44.1 kHz, recorder at 48 kHz: the sweep reaches the recorder as the
     analogue signal resampled (here by the Fourier method, scipy.signal.resample)."""
-    spec44 = sweep_spec(44100, 40, 16000, 8.0, repeats=2, tail_s=1.01)  # 1.01 s: repeats at fractional samples
+    # a tail of 44230 samples: the second repeat starts 0.497 samples off the 48 kHz grid
+    spec44 = sweep_spec(44100, 40, 16000, 8.0, repeats=2, tail_s=1 + 130 / 44100)
     analogue48 = analogue_at_48k(sweep_signal(spec44))
     h = synthetic_decay(48000, seed=11)
     rec, g = record(analogue48, h, offset_s=1.1, fs=48000, seed=4)

@@ -54,9 +54,11 @@ def test_level_fades_and_repeats(spec):
     x = exponential_sweep(spec)
     assert x.size == 8 * FS
     assert abs(np.max(np.abs(x)) - 10 ** (-3 / 20)) < 2e-3  # peak -3 dBFS
-    # half-Hann fade-in over 0.1 s: the envelope at 0.05 s is sin^2(pi/4) = 0.5 of the peak
-    env = np.abs(__import__("scipy.signal", fromlist=["hilbert"]).hilbert(x))
-    assert abs(env[int(0.05 * FS)] / 10 ** (-3 / 20) - 0.5) < 0.03
+    # half-Hann fade-in over 0.1 s: the envelope at 0.025 s is sin^2(pi/8) = 0.146 of the peak
+    from scipy.signal import hilbert
+
+    env = np.abs(hilbert(x))
+    assert abs(env[int(0.025 * FS)] / 10 ** (-3 / 20) - np.sin(np.pi / 8) ** 2) < 0.03
     assert abs(x[0]) < 1e-4 and abs(x[-1]) < 1e-3
     played = sweep_signal(spec)
     assert played.size == 2 * 9 * FS
@@ -131,6 +133,10 @@ def test_bad_sweeps_are_refused_in_one_line(tmp_path, capsys, opts, message):
     assert list(tmp_path.iterdir()) == []  # nothing written
 
 
-def test_api_refuses_a_sweep_too_short_for_the_lowest_band():
+def test_shortest_sweep_follows_the_harmonic_spacing():
+    """The second harmonic's response lies T ln 2 / ln(f2/f1) before the linear one; with
+    0.79 s + 25 ms to keep, 40 Hz - 20 kHz needs T >= 0.819 x ln 500 / ln 2 = 7.34 s."""
+    t_min = (1 / (2 * 0.63) + 0.025) * np.log(20000 / 40) / np.log(2)
+    sweep_spec(48000, 40, 20000, t_min + 0.01)
     with pytest.raises(InputError, match="too short for the lowest band"):
-        sweep_spec(48000, 20, 20000, 6.0)
+        sweep_spec(48000, 40, 20000, t_min - 0.01)
