@@ -142,7 +142,8 @@ class DeconvolutionResult:
     peak_to_noise_db : (7,) per octave band, peak of the band's squared response over its
         noise floor, dB (NaN where the response has no noise floor within it).
     distortion_db : (7,) per band, the energy of the harmonic distortion products (orders
-        2..:data:`HARMONIC_ORDERS`, with the noise in their window) relative to the linear
+        2..:data:`HARMONIC_ORDERS`, with the noise in their window, over the first half of the
+        gap between the second harmonic's response and the linear one) relative to the linear
         response's, dB: what they would have added had they not been cut away.
     sweep : the sweep's parameters as played (at the sweep file's or the declared rate).
     ir_file : the WAV file written, if any.
@@ -296,10 +297,14 @@ def deconvolve_sweep(
     onset = onset_index(h[: peak + 1])
     i_ir = onset - pre
     ir = np.take(h, np.arange(i_ir, i_ir + pre + n_ir), mode="wrap")
-    reach = int(math.ceil(spec.harmonic_advance_s(HARMONIC_ORDERS) * fs))
-    harm = np.take(h, np.arange(onset - reach, i_ir), mode="wrap")
+    # the products from the K-th harmonic's arrival (less the part before an arrival) to half-way
+    # between the second harmonic's arrival and the linear one: the last half of that gap holds
+    # the pre-echo of the band limit's taper near the sweep's start frequency, not distortion
+    reach = int(math.ceil(spec.harmonic_advance_s(HARMONIC_ORDERS) * fs)) + pre
+    half_gap = int(round(spec.harmonic_advance_s(2) * fs / 2))
+    stretch = np.take(h, np.arange(onset - reach, i_ir + pre + n_ir), mode="wrap")  # filtered as one piece
     # 5. figures per octave band
-    pnr, dist = _band_figures(ir, harm, fs)
+    pnr, dist = _band_figures(stretch, reach - half_gap, reach - pre, fs)
     cautions, notes = _messages(pnr, dist, used, spec, fs, sweep_fs)
     peak_amp = float(np.max(np.abs(ir)))
     return DeconvolutionResult(
@@ -318,18 +323,20 @@ LOW_PNR_DB: float = std.T30_NEEDED_RANGE_DB
 HIGH_DISTORTION_DB: float = -20.0
 
 
-def _band_figures(ir: np.ndarray, harm: np.ndarray, fs: int) -> tuple[np.ndarray, np.ndarray]:
-    """Peak-to-noise ratio of the response and level of the distortion products, per octave band."""
+def _band_figures(stretch: np.ndarray, harm_end: int, lin_start: int, fs: int) -> tuple[np.ndarray, np.ndarray]:
+    """Peak-to-noise ratio of the response and level of the distortion products, per octave band,
+    from one stretch of the deconvolved output: the products in ``stretch[:harm_end]``, the
+    linear response in ``stretch[lin_start:]`` (filtered as one piece, so that no band filter
+    sees an edge between them)."""
     from .bands import octave_filterbank
     from .decay import find_noise_floor, noise_energy
 
     bank = octave_filterbank(int(fs))
     nb = len(std.OCTAVE_BANDS_HZ)
     pnr, dist = np.full(nb, np.nan), np.full(nb, np.nan)
-    both = np.concatenate([harm, ir])
     for b, fc in enumerate(std.OCTAVE_BANDS_HZ):
-        y = bank.apply(both, b, zero_phase=True)
-        e_h, e_lin = y[: harm.size] ** 2, y[harm.size:] ** 2
+        y = bank.apply(stretch, b, zero_phase=True)
+        e_h, e_lin = y[:harm_end] ** 2, y[lin_start:] ** 2
         lin_total = float(e_lin.sum())
         if lin_total <= 0:
             continue

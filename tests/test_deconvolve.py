@@ -194,11 +194,11 @@ def test_distortion_products_are_cut_away_and_reported(spec, played):
     rec, g = record(played, h, nl=0.1, seed=2, noise=2e-5)  # little noise: the window holds the products alone
     res = deconvolve_sweep(rec, FS, played, FS, spec)
     expected = 20 * np.log10(0.1 * 10 ** (spec.peak_dbfs / 20) / 2)
-    assert np.all(np.abs(res.distortion_db[1:6] - expected) < 1.5), (np.round(res.distortion_db, 1), expected)
+    assert np.all(np.abs(res.distortion_db - expected) < 1.5), (np.round(res.distortion_db, 1), expected)
     err = band_errors_db(in_recording_units(res) / g, h, FS)
     assert np.all(err < -40) and np.all(err < res.distortion_db - 10), np.round(err, 1)
     clean = deconvolve_sweep(record(played, h, nl=0.0, seed=2, noise=2e-5)[0], FS, played, FS, spec)
-    assert np.all(clean.distortion_db[1:6] < expected - 20)  # without the nonlinearity: only noise there
+    assert np.all(clean.distortion_db < expected - 30), clean.distortion_db  # without it: only noise there
 
 
 @pytest.mark.parametrize("offset_s", [0.0, 2.0])
