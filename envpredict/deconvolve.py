@@ -22,8 +22,9 @@ impulse response of the chain a sweep (:mod:`envpredict.sinesweep`) was played t
    (:func:`envpredict.bands.octave_filterbank`, noise floor by
    :func:`envpredict.decay.find_noise_floor`).
 
-Memory: the recording is read whole (a sweep measurement lasts a minute or two; longer
-files are refused, :data:`MAX_RECORDING_S`).
+Memory: :func:`deconvolve_sweep_file` reads only the part of the recording that can hold the
+sweep (its offset of at most ``max_offset_s`` plus the sweep signal and the response); an
+array longer than :data:`MAX_RECORDING_S` is refused.
 """
 
 from __future__ import annotations
@@ -421,12 +422,16 @@ def deconvolve_sweep_file(
         sweep_rate = check_rate(sweep_rate, "the sweep (--sweep-rate)")
         spec = spec.at_rate(sweep_rate)
         check_sweep(spec, f"sweep '{sweep}' at {sweep_rate} Hz")
-    r_fs, _, _ = audio_info(recording, "recording")
+    from .audio import FileSource
     from .bands import check_rate_for_octaves
 
+    r_fs, _, _ = audio_info(recording, "recording")
     check_rate_for_octaves(r_fs, f"recording '{recording}'")
     s, _ = load_audio(sweep, name="sweep", check=False)
-    x, fs = load_audio(recording, channel, name="recording", check=False)
+    # only the part of the recording that can hold the sweep: memory bounded by the sweep's length
+    needed_s = max_offset_s + spec.repeats * spec.period_samples / spec.fs + spec.ir_seconds + 2 * SEARCH_S + 1.0
+    with FileSource(recording, channel, name="recording") as src:
+        x, fs = src.read(0, min(src.n, int(math.ceil(needed_s * src.fs)))), src.fs
     res = deconvolve_sweep(x, fs, s, spec.fs, spec, max_offset_s=max_offset_s, name=f"recording '{recording}'",
                            sweep_name=f"sweep '{sweep}'")
     if out is None:

@@ -70,7 +70,7 @@ NYQUIST_SHARE: float = 0.95
 
 #: Limits of the parameters (judgement: beyond them the request is a mistake).
 MAX_REPEATS: int = 32
-MAX_TOTAL_SECONDS: float = 600.0
+MAX_TOTAL_SECONDS: float = 300.0
 MAX_TAIL_S: float = 60.0
 
 #: Suffix of the parameter file written beside a sweep's WAV file.
