@@ -299,8 +299,8 @@ def deconvolve_sweep(
     i_ir = onset - pre
     ir = np.take(h, np.arange(i_ir, i_ir + pre + n_ir), mode="wrap")
     # the products from the K-th harmonic's arrival (less the part before an arrival) to half-way
-    # between the second harmonic's arrival and the linear one: the last half of that gap holds
-    # the pre-echo of the band limit's taper near the sweep's start frequency, not distortion
+    # between the second harmonic's arrival and the linear one: the rest of the gap is a margin
+    # against the band filters' backward spread of the linear response (judgement)
     reach = int(math.ceil(spec.harmonic_advance_s(HARMONIC_ORDERS) * fs)) + pre
     half_gap = int(round(spec.harmonic_advance_s(2) * fs / 2))
     stretch = np.take(h, np.arange(onset - reach, i_ir + pre + n_ir), mode="wrap")  # filtered as one piece
