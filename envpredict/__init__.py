@@ -32,6 +32,9 @@ Direct method (test signals and their recordings)
     StipaSignalResult, write_full_sti_signals, FullStiSignalsResult,
     stipa_from_recording, stipa_from_file, full_sti_from_recordings,
     full_sti_from_files, DirectResult
+Impulse response by swept sine
+    sweep_spec, exponential_sweep, sweep_signal, write_sweep_signal,
+    SweepSignalResult, deconvolve_sweep, deconvolve_sweep_file, DeconvolutionResult
 Clean/degraded pairs
     stoi, estoi, correlation_indices, CorrelationResult, pair_indices,
     pair_from_files, PairResult, speech_sti
@@ -90,6 +93,15 @@ _API: dict[str, str] = {
     "StipaSignalResult": "envpredict.signals",
     "write_full_sti_signals": "envpredict.signals",
     "FullStiSignalsResult": "envpredict.signals",
+    # impulse response by swept sine
+    "sweep_spec": "envpredict.sinesweep",
+    "exponential_sweep": "envpredict.sinesweep",
+    "sweep_signal": "envpredict.sinesweep",
+    "write_sweep_signal": "envpredict.sinesweep",
+    "SweepSignalResult": "envpredict.sinesweep",
+    "deconvolve_sweep": "envpredict.deconvolve",
+    "deconvolve_sweep_file": "envpredict.deconvolve",
+    "DeconvolutionResult": "envpredict.deconvolve",
     "stipa_from_recording": "envpredict.direct",
     "full_sti_from_recordings": "envpredict.direct",
     "DirectResult": "envpredict.direct",

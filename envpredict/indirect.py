@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 import os
-from typing import Callable, Sequence
+from typing import TYPE_CHECKING, Callable, Sequence
 
 import numpy as np
 
@@ -27,6 +27,9 @@ from .sti import (
     parse_speech_levels,
     sti_from_mtf,
 )
+
+if TYPE_CHECKING:
+    from .deconvolve import DeconvolutionResult
 
 #: Shortest usable impulse response after its onset: half a period of the lowest
 #: modulation frequency, so that the Fourier kernel at 0.63 Hz changes sign within
@@ -65,6 +68,7 @@ class IrResult:
     cautions: tuple[str, ...]
     ir_range_db: np.ndarray  # decay range of the IR itself per band, dB
     notes: tuple[str, ...] = ()  # where the speech and noise levels came from
+    deconvolution: "DeconvolutionResult | None" = None  # how the IR was recovered from a sweep recording
 
     def to_dict(self) -> dict:
         d = self.sti.to_dict()
@@ -79,6 +83,8 @@ class IrResult:
                 "notes": list(self.notes),
             }
         )
+        if self.deconvolution is not None:
+            d["deconvolution"] = self.deconvolution.to_dict()
         return jsonable(d)
 
 
@@ -282,6 +288,8 @@ def sti_from_ir_file(
     calibrator_level: float | None = None,
     calibrator_channel: int | None = None,
     requirement: float | None = None,
+    sweep: str | os.PathLike | None = None,
+    sweep_rate: int | None = None,
 ) -> IrResult:
     """STI (indirect method) and ISO 3382-1 decay figures of an impulse-response file.
 
@@ -303,6 +311,11 @@ def sti_from_ir_file(
         recording's calibration, as for the direct method
         (:func:`envpredict.audio.resolve_calibration`); the calibrator channel defaults
         to ``noise_channel``.
+    sweep : the exponential sweep file that was played, when ``path`` is a recording of it
+        rather than an impulse response: the response is first recovered by
+        :func:`envpredict.deconvolve.deconvolve_sweep_file` (its report in ``deconvolution``,
+        its cautions added to the result's).
+    sweep_rate : the rate the sweep was played at, if not its file's (with ``sweep``).
 
     Returns
     -------
@@ -325,6 +338,8 @@ def sti_from_ir_file(
     if noise_recording is None and (calibrated or noise_channel is not None or calibrator_channel is not None):
         raise InputError("a calibration or noise channel was given without a noise recording",
                          "give the noise recording (--noise-recording), or leave the calibration out")
+    if sweep_rate is not None and sweep is None:
+        raise InputError("--sweep-rate was given without --sweep", "give the sweep file that was played too")
     if noise_recording is not None:
         if noise is not None:
             raise InputError("both noise levels and a noise recording were given",
@@ -340,11 +355,19 @@ def sti_from_ir_file(
         notes += (f"Noise: octave-band Leq of the recording '{_printable(noise_name)}' "
                   f"(calibration {cal:.1f} dB SPL for a full-scale RMS signal, from "
                   f"{'a calibrator recording' if how == 'calibrator' else 'the given offset'}).",)
+    name = _printable(os.path.basename(os.fsdecode(path)))
+    if sweep is not None:
+        from .deconvolve import deconvolve_sweep_file
+
+        dec = deconvolve_sweep_file(path, sweep, channel=channel, sweep_rate=sweep_rate)
+        res = _analyse(dec.ir, dec.fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker,
+                       auditory=auditory, progress=progress, label=f"the response recovered from '{name}'",
+                       speech_db=speech, notes=notes, requirement=requirement)
+        return replace(res, cautions=res.cautions + dec.cautions, deconvolution=dec)
     x, fs = load_audio(path, channel, name="impulse response")
     x = validate_signal(x, fs, name="impulse response")
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
-    name = _printable(os.path.basename(os.fsdecode(path)))
     return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
                     progress=progress, label=f"'{name}'", speech_db=speech, notes=notes, requirement=requirement)
 

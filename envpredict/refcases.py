@@ -8,7 +8,8 @@ Case file format
 ----------------
 ``id``          short unique name
 ``method``      what the case checks: ``"ir"`` (STI and decay figures from an impulse
-                response), ``"stipa"``, ``"fullsti"`` (direct method), ``"stoi"``,
+                response), ``"sweep"`` (the same figures of the impulse response recovered
+                from a recorded exponential sweep), ``"stipa"``, ``"fullsti"`` (direct method), ``"stoi"``,
                 ``"estoi"``, ``"ssti"`` (speech-based STI of a pair) or ``"mapping"``
                 (score-mapping fit); a file without it is an ``"ir"`` case
 ``title``       one line for people
@@ -21,16 +22,17 @@ Case file format
                   stationary noise floor in dB re the initial envelope level; or
                   ``{"synth": "impulse", "fs", "seconds"}`` (a unit impulse: an ideal channel);
                   or ``{"file": "name.wav"}``;
-                * ``stipa``, ``fullsti``, ``stoi``, ``estoi``, ``ssti``: a signal recipe
+                * ``sweep``, ``stipa``, ``fullsti``, ``stoi``, ``estoi``, ``ssti``: a signal recipe
                   (``reference_cases/recipes.py``: plain numpy/scipy, not the product's
                   generator ``envpredict.signals``);
                 * ``mapping``: the data rows ``{"index", "correct", "trials", "shape"}``.
-``settings``    ``ir``: ``noise_db`` (7 values or null), ``speech_level_dba``, ``talker``,
+``settings``    ``ir``, ``sweep``: ``noise_db`` (7 values or null), ``speech_level_dba``, ``talker``,
                 ``auditory``; ``stipa``/``fullsti``: ``talker``
 ``expected``    per quantity ``{"value": number or list, "abs_tol" or "rel_tol"}``;
                 ``ir`` quantities: ``sti``, ``rating``, ``mti``, ``t30``, ``t20``, ``edt``,
                 ``c50``, ``c80``, ``d50``, ``mtf_500_1k`` (mean MTF of the 500 Hz and 1 kHz
-                bands at the 14 frequencies, before noise corrections); ``stipa``,
+                bands at the 14 frequencies, before noise corrections); ``sweep``: those
+                and ``distortion_db`` (7 values); ``stipa``,
                 ``fullsti``: ``sti``; ``stoi``: ``stoi``; ``estoi``: ``estoi``; ``ssti``:
                 ``ssti_regression``; ``mapping``: ``a``, ``b``, ``se_a``, ``se_b``.
 """
@@ -95,6 +97,8 @@ def load_cases(folder: Path | None = None) -> list[dict]:
 def synthesize(spec: dict, folder: Path | None = None) -> tuple[np.ndarray, int]:
     """Build the impulse response a case describes."""
     fs = int(spec.get("fs", 48000))
+    if "array" in spec:  # a response computed by the case's method (the sweep cases)
+        return np.asarray(spec["array"], dtype=np.float64), fs
     if "file" in spec:
         from .audio import load_audio
 
@@ -208,6 +212,20 @@ def _fullsti_quantities(case: dict, folder: Path | None) -> dict:
     return {"sti": r.sti.sti}
 
 
+def _sweep_quantities(case: dict, folder: Path | None) -> dict:
+    import envpredict
+
+    spec = case["input"]
+    played, rec, fs = _recipes().sweep(spec)
+    sweep = envpredict.sweep_spec(fs, spec["f1_hz"], spec["f2_hz"], spec["seconds"], fade_in_s=spec["fade_in_s"],
+                                  fade_out_s=spec["fade_out_s"], repeats=spec["repeats"], tail_s=spec["tail_s"],
+                                  peak_dbfs=spec["peak_dbfs"])
+    d = envpredict.deconvolve_sweep(rec, fs, played, fs, sweep)
+    q = _ir_quantities({**case, "input": {"array": d.ir, "fs": d.fs}}, folder)
+    q["distortion_db"] = d.distortion_db
+    return q
+
+
 def _stoi_quantities(case: dict, folder: Path | None) -> dict:
     import envpredict
 
@@ -245,6 +263,7 @@ METHODS = {
     "ir": _ir_quantities,
     "stipa": _stipa_quantities,
     "fullsti": _fullsti_quantities,
+    "sweep": _sweep_quantities,
     "stoi": _stoi_quantities,
     "estoi": _estoi_quantities,
     "ssti": _ssti_quantities,

@@ -269,6 +269,7 @@ def main():
     })
 
     direct_method_cases()
+    sweep_cases()
     pair_cases()
     mapping_cases()
 
@@ -312,6 +313,44 @@ SRC_STIPA = ("IEC 60268-16:2011 Annex B (STIPA signal: half-octave noise carrier
              "signal built by reference_cases/recipes.py")
 SRC_FULLSTI = ("IEC 60268-16:2011 6.1 (full STI: 14 signals, all bands modulated at one F, depth 1), "
                "signal built by reference_cases/recipes.py")
+
+
+SRC_SWEEP = ("Farina (2000), AES 108th Convention, preprint 5093: exponential sweep, its inverse filter and the "
+             "harmonic products T ln k / ln(f2/f1) before the linear response; Mueller & Massarani (2001), JAES "
+             "49(6); sweep and recording built by reference_cases/recipes.py")
+
+
+def sweep_cases():
+    """The impulse response recovered from a recorded sweep: the STI and T30 of the exponential
+    decay it was recorded through (the decay formulas), and the level of the second harmonic of
+    x + a x^2 at x = A sin: 20 log10(a A / 2)."""
+    for i, (T, share, offset) in enumerate([(0.5, 0.0, 1.3), (0.8, 0.1, 0.4)]):
+        m = mtf_decay(T)
+        sti = sti_of([float(ti_of(m).mean())] * 7)
+        hi = [None, None, None, T, T, T, T]
+        peak_dbfs = -3.0
+        expected = {
+            "sti": {"value": round(sti, 4), "abs_tol": TOL_STI},
+            "mtf_500_1k": {"value": np.round(m, 4).tolist(), "abs_tol": 0.10},
+            "t30": {"value": hi, "rel_tol": 0.08},
+        }
+        if share:
+            level = 20 * math.log10(share * 10 ** (peak_dbfs / 20) / 2)
+            expected["distortion_db"] = {"value": [round(level, 2)] * 7, "abs_tol": 1.5}
+        write({
+            "id": f"sweep_T{T:.1f}s" + ("_distorted" if share else ""),
+            "method": "sweep",
+            "title": (f"Exponential sweep 40 Hz-15 kHz, 2 x 12 s, recorded through an exponential decay T = {T} s "
+                      f"{offset} s after the recorder started" + (f", with x + {share} x^2 before it" if share
+                                                                  else "") + " (auditory corrections off)"),
+            "source": SRC_SWEEP + "; " + SRC_DECAY + "; " + SRC_DECAYTIME,
+            "input": {"signal": "sweep", "fs": 32000, "f1_hz": 40.0, "f2_hz": 15000.0, "seconds": 12.0,
+                      "fade_in_s": 0.1, "fade_out_s": 0.02, "repeats": 2, "tail_s": 1.5, "peak_dbfs": peak_dbfs,
+                      "channel": {"t60_s": T, "ir_seed": 701 + i}, "offset_s": offset, "square_share": share,
+                      "noise_db": -60.0, "noise_seed": 710 + i},
+            "settings": {"noise_db": None, "speech_level_dba": 60.0, "talker": "male", "auditory": False},
+            "expected": expected,
+        })
 
 
 def channel_text(T, snr):

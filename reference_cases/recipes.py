@@ -20,6 +20,14 @@ Recipes (keys of the case file's ``input``):
     Convolution with an exponentially decaying Gaussian noise (energy falls 60 dB in
     ``t60_s``; omitted or null: no reverberation), then stationary noise in each
     carrier band at ``snr_db`` below the received band power (omitted or null: none).
+``{"signal": "sweep", "fs", "f1_hz", "f2_hz", "seconds", "fade_in_s", "fade_out_s", "repeats", "tail_s",
+"peak_dbfs", "channel": {"t60_s", "ir_seed"}, "offset_s", "square_share", "noise_db", "noise_seed"}``
+    An exponential sine sweep (Farina 2000, eq. 4: sin(2 pi f1 T/ln(f2/f1) (exp(t ln(f2/f1)/T) - 1)),
+    half-Hann fades, peak ``peak_dbfs``) repeated ``repeats`` times with ``tail_s`` of silence
+    after each: the played signal. Its recording: the nonlinearity x + ``square_share`` x^2
+    (computed at twice the rate, as an analogue chain before the recorder's anti-alias filter),
+    convolution with the exponential decay, ``offset_s`` of silence before it and white noise at
+    ``noise_db`` re the recording's peak.
 ``{"signal": "speechlike", "fs", "seconds", "seed", "f0_hz", "top_hz", "syllable_hz",
 "pause_share", "noise": {"kind", "snr_db", "seed", "gate_hz"}}``
     A harmonic complex (F0 ``f0_hz``, harmonics up to ``top_hz`` with amplitudes
@@ -125,6 +133,34 @@ def full_sti(spec: dict) -> list[tuple[np.ndarray, int, str]]:
         y = apply_channel(x, spec, ir, int(channel.get("noise_seed", seed + 1)) + 100 * i)
         out.append((_peak(y), fs, f"F = {F:g} Hz"))
     return out
+
+
+def sweep(spec: dict) -> tuple[np.ndarray, np.ndarray, int]:
+    """The played sweep signal of a case and its recording (see the module docstring), at ``fs``."""
+    from scipy.signal import resample_poly
+
+    fs = int(spec["fs"])
+    f1, f2, T = float(spec["f1_hz"]), float(spec["f2_hz"]), float(spec["seconds"])
+    n = int(round(T * fs))
+    t = np.arange(n) / fs
+    L = np.log(f2 / f1)
+    x = np.sin(2 * np.pi * f1 * T / L * (np.exp(t * L / T) - 1.0))
+    for key, at_start in (("fade_in_s", True), ("fade_out_s", False)):
+        m = int(round(float(spec[key]) * fs))
+        ramp = np.sin(0.5 * np.pi * (np.arange(m) + 0.5) / m) ** 2  # half Hann, 0 -> 1
+        if at_start:
+            x[:m] *= ramp
+        elif m:
+            x[-m:] *= ramp[::-1]
+    x *= 10 ** (float(spec["peak_dbfs"]) / 20)
+    one = np.r_[x, np.zeros(int(round(float(spec["tail_s"]) * fs)))]
+    played = np.tile(one, int(spec["repeats"]))
+    up = resample_poly(played, 2, 1)
+    driven = played + resample_poly(float(spec.get("square_share", 0.0)) * up ** 2, 1, 2)[: played.size]
+    wet = fftconvolve(driven, _channel_ir(spec))
+    rec = np.r_[np.zeros(int(round(float(spec["offset_s"]) * fs))), _peak(wet)]
+    noise = np.random.default_rng(int(spec["noise_seed"])).standard_normal(rec.size)
+    return played, rec + 0.5 * 10 ** (float(spec["noise_db"]) / 20) * noise, fs
 
 
 def speechlike(spec: dict) -> tuple[np.ndarray, np.ndarray, int]:

@@ -13,7 +13,7 @@ import envpredict
 LAYERS: tuple[str, ...] = (
     "standards", "exceptions", "results", "outputs", "_data",
     "bands", "audio", "modulation", "sti", "cautions", "decay", "correlation", "pitch", "signals",
-    "tables", "mapping",
+    "sinesweep", "deconvolve", "tables", "mapping",
     "indirect", "direct", "pair", "timescales", "sweep", "stats", "batch", "survey", "refcases", "demo",
     "report", "predict",
 )

@@ -32,7 +32,8 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 #: Results a command prints as a whole: each carries both lists.
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
              "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track", "DemoResult",
-             "StipaSignalResult", "FullStiSignalsResult", "SurveyResult"}
+             "StipaSignalResult", "FullStiSignalsResult", "SurveyResult", "SweepSignalResult",
+             "DeconvolutionResult"}
 
 
 # ---------------------------------------------------------------------------
@@ -101,6 +102,15 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         rows = [(line, {"stoi": v}) for line, v in ((2, "0.6"), (3, "0.7"))]  # (line number, row)
         return envpredict.add_predictions(rows, ["stoi"], mapping())
 
+    def sweep_spec():
+        return envpredict.sweep_spec(32000, 40, 15000, 8.0, repeats=1, tail_s=1.0)
+
+    def deconvolution():
+        played = envpredict.sweep_signal(sweep_spec())
+        rec = np.convolve(played, noise_decay(0.3, fs=32000, seconds=0.5, seed=6))
+        rec = 0.5 * rec / np.max(np.abs(rec)) + 1e-5 * np.random.default_rng(6).standard_normal(rec.size)
+        return envpredict.deconvolve_sweep(rec, 32000, played, 32000, sweep_spec())
+
     from envpredict.bands import octave_bands
     from envpredict.refcases import run_cases
 
@@ -124,6 +134,8 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "FullStiSignalsResult": lambda: _in_tmp(lambda d: envpredict.write_full_sti_signals(d / "full", 24000)),
         "ReferenceRun": lambda: run_cases(id_contains="decay_T0.3"),
         "SurveyResult": lambda: survey_result,
+        "SweepSignalResult": lambda: _in_tmp(lambda d: envpredict.write_sweep_signal(d / "sweep.wav", sweep_spec())),
+        "DeconvolutionResult": deconvolution,
     }
 
 
@@ -152,7 +164,7 @@ def _result_types() -> dict[str, type]:
 
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
-         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck"}
+         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):

@@ -20,6 +20,7 @@ import importlib
 _COMMAND_MODULES = [
     "cmd_ir",
     "cmd_direct",
+    "cmd_sinesweep",
     "cmd_pair",
     "cmd_batch",
     "cmd_survey",

@@ -13,7 +13,7 @@ from ._common import JSON_HELP, Progress, dumps
 @app.command("check")
 def check_command(
     case: Optional[str] = typer.Option(None, "--case", help="Run only the cases whose id contains this text."),
-    method: Optional[str] = typer.Option(None, "--method", help="Run only the cases of this method (ir, stipa, "
+    method: Optional[str] = typer.Option(None, "--method", help="Run only the cases of this method (ir, sweep, stipa, "
                                          "fullsti, stoi, estoi, ssti, mapping)."),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     verbose: bool = typer.Option(False, "--verbose", "-v", help="Show every compared quantity."),

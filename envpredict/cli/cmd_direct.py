@@ -17,7 +17,7 @@ from ._common import (
 )
 
 testsignal_app = typer.Typer(
-    help="Generate the test signals of the direct STI method (IEC 60268-16): STIPA or the full-STI set.",
+    help="Generate test signals: STIPA or the full-STI set (direct method, IEC 60268-16), or a sweep (for an IR).",
     no_args_is_help=True,
     add_completion=False,
     rich_markup_mode=None,

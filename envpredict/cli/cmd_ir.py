@@ -31,6 +31,9 @@ CALIBRATOR_HELP = ("Recording of a 1 kHz acoustic calibrator made with the same 
 CAL_LEVEL_HELP = "Level of the calibrator in --calibrator, dB SPL (as printed on it, e.g. 94)."
 CAL_CHANNEL_HELP = "Channel of the calibrator recording (default: same as --noise-channel)."
 TALKER_HELP = "Speech spectrum and band weights: male or female (IEC 60268-16)."
+SWEEP_HELP = ("The exponential sweep file that was played (from 'envpredict testsignal sweep', with its .json "
+              "beside it): IR_FILE is then a recording of it, deconvolved first (see 'envpredict deconvolve').")
+SWEEP_RATE_HELP = "With --sweep: the rate the sweep was played at, Hz, if not the rate in its file."
 AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textbook form, for "
                  "comparison with published formulas; not for compliance work).")
 
@@ -41,6 +44,14 @@ def render_ir(d: dict, source: str) -> str:
         f"Impulse response: {source}  ({d['fs']} Hz, {d['duration_s']:.2f} s)",
         f"Talker: {d['talker']}   speech level: {d['speech_level_dba']:.1f} dB(A)   "
         f"auditory corrections: {'on' if d['auditory_corrections'] else 'off'}",
+    ]
+    dec = d.get("deconvolution")
+    if dec:
+        pnr = ", ".join(fmt(v, ".0f") for v in dec["peak_to_noise_db"])
+        lines.append(f"Recovered from a sweep recording: sweep found at {dec['offset_s']:.3f} s, "
+                     f"{dec['repeats_used']} of {dec['repeats_played']} repeat(s) averaged; peak-to-noise dB "
+                     f"per band {pnr}")
+    lines += [
         "",
         f"STI = {format_sti(d)}   qualification band {d['rating']}   ({d['subjective']})",
         "",
@@ -82,7 +93,8 @@ def render_ir(d: dict, source: str) -> str:
 
 @app.command("ir")
 def ir_command(
-    ir_file: Path = typer.Argument(..., help="Impulse response (WAV, FLAC or OGG).", show_default=False),
+    ir_file: Path = typer.Argument(..., help="Impulse response (WAV, FLAC or OGG); with --sweep, a recording of the "
+                                   "played sweep.", show_default=False),
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
     speech_level: Optional[float] = typer.Option(None, "--speech-level", help=LEVEL_HELP, show_default=False),
     speech_levels: Optional[str] = typer.Option(None, "--speech-levels", help=LEVELS_HELP),
@@ -103,20 +115,22 @@ def ir_command(
         "states whether it is met, judged on the unrounded value.", show_default=False),
     record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
     record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
+    sweep: Optional[Path] = typer.Option(None, "--sweep", help=SWEEP_HELP),
+    sweep_rate: Optional[int] = typer.Option(None, "--sweep-rate", help=SWEEP_RATE_HELP),
 ) -> None:
     """STI (IEC 60268-16 indirect method) and ISO 3382-1 decay figures from an impulse response."""
     from envpredict.indirect import sti_from_ir_file
     from envpredict.report import read_about
 
     about = read_about(record, record_field or ())
-    check_outputs(out=out, report=report, inputs=[p for p in (ir_file, noise_recording, calibrator) if p])
+    check_outputs(out=out, report=report, inputs=[p for p in (ir_file, noise_recording, calibrator, sweep) if p])
     with Progress("analysing impulse response", None, quiet=as_json) as prog:
         result = sti_from_ir_file(ir_file, channel=channel, noise_db=noise, speech_level_dba=speech_level,
                                   talker=talker, auditory=not no_auditory, progress=prog, speech_db=speech_levels,
                                   noise_recording=noise_recording, noise_channel=noise_channel,
                                   calibration_db=calibration_db, calibrator=calibrator,
                                   calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
-                                  requirement=require)
+                                  requirement=require, sweep=sweep, sweep_rate=sweep_rate)
     d = result.to_dict()
     d["inputs"] = {"impulse_response": str(ir_file), "channel": channel,
                    "noise": noise, "noise_recording": None if noise_recording is None else str(noise_recording),
@@ -126,5 +140,7 @@ def ir_command(
                    "speech_level_dba": result.speech_level_dba, "speech_levels": speech_levels,
                    "talker": talker, "auditory_corrections": not no_auditory, "require": require,
                    "about": about}
+    if sweep is not None:
+        d["inputs"].update({"sweep": str(sweep), "sweep_rate": sweep_rate})
     write_report_if(report, "ir", d, as_json=as_json, title=f"STI and decay figures of {ir_file.name}")
     emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)
