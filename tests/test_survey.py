@@ -201,3 +201,22 @@ def test_positions_chart_values_follow_the_result(tmp_path):
     assert t1 == t2
     assert "0.4996" in t1 and ">0.50<" not in t1  # shown with the decimals its verdict needs
     assert np.isclose(again["zones"][0]["sti_mean"], 0.5548)
+
+
+def test_demo_sweep_recording_gives_the_halls_sti(tmp_path, capsys):
+    # the demo's sweep recording at row F, deconvolved with the sweep the README's command
+    # writes, rates as the hall's own impulse response does (the recording was made from it)
+    import json as _json
+
+    from envpredict._data import demo_dir
+
+    sweep = tmp_path / "sweep.wav"
+    code, _, err = run_cli(["testsignal", "sweep", sweep, "--repeats", "1", "--rate", "32000", "--f2", "14000"],
+                           capsys)
+    assert code == 0, err
+    levels = ["--noise", "58,55,52,49,45,40,33", "--speech-level", "68", "--json"]
+    code, out, err = run_cli(["ir", demo_dir() / "survey" / "row_F_sweep.flac", "--sweep", sweep, *levels], capsys)
+    assert code == 0, err
+    via_sweep = _json.loads(out)["sti"]
+    code, out, _ = run_cli(["ir", demo_dir() / "waiting_hall_ir.wav", *levels], capsys)
+    assert abs(via_sweep - _json.loads(out)["sti"]) < 0.01

@@ -95,3 +95,32 @@ def main():
 
 if __name__ == "__main__":
     main()
+
+
+#: The sweep of the demo recording: ``envpredict testsignal sweep sweep.wav --seconds 15
+#: --repeats 1 --rate 32000 --f2 14000`` writes the same signal (the generator has no
+#: random part).
+SWEEP_ARGS = dict(f1_hz=40.0, f2_hz=14000.0, seconds=15.0, repeats=1, fs=32000)
+
+
+def sweep_recording():
+    """The demo sweep played in the waiting hall and recorded at row F (32 kHz): the
+    hall's impulse response (demo_pairs/waiting_hall_ir.wav) plus steady noise 60 dB
+    below the recording's peak."""
+    from scipy.signal import fftconvolve, resample_poly
+
+    from envpredict.sinesweep import sweep_signal, sweep_spec
+
+    spec = sweep_spec(**SWEEP_ARGS)
+    x = sweep_signal(spec)
+    ir, fs_ir = sf.read(OUT.parent / "waiting_hall_ir.wav")
+    ir = resample_poly(ir, 2, 3)  # 48 kHz -> 32 kHz
+    lead = np.zeros(int(0.4 * SWEEP_ARGS["fs"]))  # the recorder started before the player
+    y = fftconvolve(np.concatenate([lead, x]), ir)[: lead.size + x.size]
+    y *= 0.5 / np.max(np.abs(y))
+    y += 10 ** (-60 / 20) * 0.5 * np.random.default_rng(77).standard_normal(y.size)
+    sf.write(OUT / "row_F_sweep.flac", y, SWEEP_ARGS["fs"], subtype="PCM_16")
+
+
+if __name__ == "__main__" and "--sweep" in __import__("sys").argv:
+    sweep_recording()
