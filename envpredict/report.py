@@ -128,8 +128,9 @@ def _text_colour(rgba) -> str:
 
 
 def _band_label(fc: float) -> str:
-    fc = float(fc)
-    return f"{fc / 1000:.3g} kHz" if fc >= 1000 else f"{fc:.0f} Hz"
+    from .labels import band_label
+
+    return band_label(fc)
 
 
 def _arr(v: Any) -> np.ndarray:
@@ -610,7 +611,9 @@ def _page_pair(d: Mapping) -> Page:
             ax.bar(x - w / 2, _arr(third["stoi"]), w, color=TEAL, label="STOI: mean envelope correlation")
         if third.get("estoi") is not None:
             ax.bar(x + w / 2, _arr(third["estoi"]), w, color=PLUM, label="ESTOI: band share x 15")
-        ax.set_xticks(x, [f"{f / 1000:.2g}k" if f >= 1000 else f"{f:.0f}" for f in cfl])
+        from .labels import band_label
+
+        ax.set_xticks(x, [band_label(f, unit=False) for f in cfl])
         ax.set_xlabel("one-third-octave band centre, Hz")
         ax.set_ylabel("per-band value")
         vals = np.concatenate([_arr(third.get("stoi") or []), _arr(third.get("estoi") or [])])

@@ -34,10 +34,12 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
         f"speech-based STI = {fmt(d['ssti'], '.3f')} (normalised covariance), "
         f"{fmt(d.get('ssti_regression'), '.3f')} (envelope regression)",
         "",
-        "One-third-octave bands (mean per-band correlation; low values: envelope lost)",
+        "One-third-octave bands, nominal frequency (mean per-band correlation; low values: envelope lost)",
     ]
     third = d["bands"]["third_octave"]
-    rows = [[f"{fc:g}", fmt(s, ".3f"), fmt(e, ".3f")]
+    from envpredict.labels import band_label
+
+    rows = [[band_label(fc, unit=False), fmt(s, ".3f"), fmt(e, ".3f")]
             for fc, s, e in zip(third["bands_hz"], third["stoi"], third["estoi"])]
     lines.append(table(rows, ["band Hz", "STOI", "ESTOI"]))
     octv = d["bands"]["octave"]
