@@ -103,7 +103,9 @@ def sti_from_ir(
     auditory : apply masking and reception threshold (IEC 60268-16 Ed.4).
 
     Valid input: at least 0.79 s of response after its onset; the response should
-    decay to its noise floor within the file.
+    decay to its noise floor within the file. The array is taken as floating-point
+    samples: peaks above 1.0 are accepted, flat tops at the peak are refused as clipping
+    (:class:`envpredict.audio.SignalCheck`).
 
     Examples
     --------
@@ -237,7 +239,8 @@ def sti_from_ir_file(
 
     The options are checked before the file is read (a bad option is refused without
     touching the audio); then one channel of the file is loaded and validated
-    (:func:`envpredict.audio.load_audio`) and passed to :func:`sti_from_ir`.
+    (:func:`envpredict.audio.load_audio`, by the clipping rule of the file's sample
+    format: a floating-point file may peak above 1.0) and analysed as by :func:`sti_from_ir`.
 
     Parameters
     ----------
@@ -260,8 +263,9 @@ def sti_from_ir_file(
     talker = check_talker(talker)
     speech_level_dba = check_speech_level(speech_level_dba)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
+    # validated once, as it is read, by the clipping rule of the file's sample format
+    # (floating-point files may peak above 1.0; see envpredict.audio.SignalCheck)
     x, fs = load_audio(path, channel, name="impulse response")
-    x = validate_signal(x, fs, name="impulse response")
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
     name = os.path.basename(os.fsdecode(path)).encode("utf-8", "surrogateescape").decode("utf-8", "replace")
