@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import math
 import os
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 from fractions import Fraction
 from pathlib import Path
 
@@ -98,26 +98,31 @@ def check_wav_path(path: str | os.PathLike) -> Path:
     return out
 
 
-def write_wav(path: str | os.PathLike, x: np.ndarray, fs: int, *, subtype: str = "PCM_24") -> Path:
-    """Write a mono signal to a WAV file, atomically (through a temporary file and a rename).
+def write_wav(path: str | os.PathLike, x: "np.ndarray | Iterable[np.ndarray]", fs: int, *,
+              subtype: str = "PCM_24") -> Path:
+    """Write a mono signal to a WAV file, atomically (through a temporary ``.part`` file
+    and a rename: :func:`envpredict.outputs.atomic_file`).
 
     Parameters
     ----------
     path : file to write, ending in .wav (checked by :func:`check_wav_path`).
-    x : samples, full scale +-1.
+    x : samples, full scale +-1: one array, or an iterable of consecutive 1-D blocks (a
+        long signal written block by block: memory is bounded by one block). The file
+        is the same either way.
     fs : sample rate, Hz.
     subtype : sample format of libsndfile (default 24-bit PCM).
     """
-    import io
-
     import soundfile as sf
 
-    from .outputs import atomic_write_bytes
+    from .outputs import atomic_file
 
     out = check_wav_path(path)
-    buf = io.BytesIO()
-    sf.write(buf, x, fs, format="WAV", subtype=subtype)
-    return atomic_write_bytes(out, buf.getvalue())
+    blocks = [x] if isinstance(x, np.ndarray) else x
+    with atomic_file(out) as fh:
+        with sf.SoundFile(fh, "w", samplerate=int(fs), channels=1, format="WAV", subtype=subtype) as f:
+            for block in blocks:
+                f.write(np.asarray(block))
+    return out
 
 
 def _check_path(path: str | os.PathLike, name: str) -> Path:
