@@ -28,7 +28,7 @@ recording across the seam reads a lower MTF). The generators return arrays;
 :func:`write_stipa_signal` and :func:`write_full_sti_signals` write them to WAV files
 through the one writer, :func:`envpredict.audio.write_wav`.
 
-**Generated in blocks.** A signal is made block by block (:class:`TestSignal`), so that
+**Generated in blocks.** A signal is made block by block (:class:`BlockSignal`), so that
 writing it needs memory for one block and one period of the noise, however long it is:
 the seven band noises are made whole (they are circular) and kept, outside memory, in an
 anonymous temporary file; the modulation, the per-band level, the fades and the peak
@@ -168,7 +168,7 @@ def is_loopable(n: int, fs: int, freqs) -> bool:
     return bool(np.all(err_s <= 1.0 / fs + 1e-12) and np.all(np.round(secs * f) >= 1))
 
 
-class TestSignal:
+class BlockSignal:
     """A test signal made block by block: band noises (period at most
     :data:`NOISE_PERIOD_S`), each modulated by its envelope, brought to its
     speech-spectrum level, summed, faded (unless loopable) and normalised to a peak of
@@ -294,8 +294,8 @@ class TestSignal:
 
 
 def stipa_test_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_RATE_HZ, *,
-                      seed: int = 0) -> TestSignal:
-    """The STIPA test signal of :func:`stipa_signal` as a :class:`TestSignal` (to be read
+                      seed: int = 0) -> BlockSignal:
+    """The STIPA test signal of :func:`stipa_signal` as a :class:`BlockSignal` (to be read
     in blocks); the options are checked here."""
     fs = check_generation(fs, seconds)
     seed = check_seed(seed)
@@ -305,17 +305,17 @@ def stipa_test_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFA
     def envelope(t: np.ndarray) -> np.ndarray:
         return np.stack([stipa_envelope(t, f1, f2) for f1, f2 in pairs])
 
-    return TestSignal(n, fs, seed, envelope, is_loopable(n, fs, np.ravel(pairs)))
+    return BlockSignal(n, fs, seed, envelope, is_loopable(n, fs, np.ravel(pairs)))
 
 
 def full_sti_test_signal(modulation_hz: float, seconds: float, fs: int = DEFAULT_RATE_HZ, *,
-                         seed: int = 0) -> TestSignal:
-    """One full-STI test signal of :func:`full_sti_signal` as a :class:`TestSignal`."""
+                         seed: int = 0) -> BlockSignal:
+    """One full-STI test signal of :func:`full_sti_signal` as a :class:`BlockSignal`."""
     fs = check_generation(fs)
     seed = check_seed(seed)
     n = int(round(float(seconds) * fs))
     f = float(modulation_hz)
-    return TestSignal(n, fs, seed, lambda t: full_sti_envelope(t, f), is_loopable(n, fs, [f]))
+    return BlockSignal(n, fs, seed, lambda t: full_sti_envelope(t, f), is_loopable(n, fs, [f]))
 
 
 def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0) -> np.ndarray:
@@ -329,12 +329,16 @@ def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_R
     Parameters
     ----------
     seconds : length, s (15 s ... 1 h; default 100 s, which loops without a seam).
+        Beyond :data:`NOISE_PERIOD_S` (100 s) the noise carriers repeat with that
+        period; the modulation runs on.
     fs : sample rate, Hz (above 22.6 kHz so the 8 kHz octave fits; default 48000).
     seed : seed of the noise generator (same seed, same signal).
 
     Returns
     -------
-    ndarray (round(seconds * fs),), peak at -3 dBFS.
+    ndarray (round(seconds * fs),), peak at -3 dBFS. Made in blocks
+    (:class:`BlockSignal`); to write a long signal without holding it, use
+    :func:`write_stipa_signal`.
 
     Examples
     --------
@@ -425,7 +429,7 @@ def write_stipa_signal(
     path: str | os.PathLike, seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0,
 ) -> StipaSignalResult:
     """Write the STIPA test signal (:func:`stipa_signal`) to a 24-bit WAV file, atomically,
-    block by block (memory does not grow with ``seconds``; see :class:`TestSignal`).
+    block by block (memory does not grow with ``seconds``; see :class:`BlockSignal`).
 
     Parameters
     ----------

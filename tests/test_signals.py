@@ -359,26 +359,28 @@ def test_a_signal_longer_than_the_noise_period_repeats_its_noise_under_running_m
     assert np.corrcoef(a, b)[0, 1] > 0.9
 
 
-def test_writing_a_long_signal_needs_memory_for_a_noise_period_not_for_its_length(tmp_path, monkeypatch):
-    # Python's allocation tracer (tracemalloc, which sees numpy's buffers): a 60 s signal
-    # whose noise period is 5 s is written with the memory of about 5 s of signal. The
-    # former whole-array generator held seven bands of the whole length several times over
-    # (about 13.6 MB per second at 48 kHz, 6.8 MB per second at 24 kHz: 400 MB here).
+def test_the_memory_of_writing_a_signal_does_not_grow_with_its_length(tmp_path, monkeypatch):
+    # Python's allocation tracer (tracemalloc, which sees numpy's buffers): writing 90 s
+    # takes no more memory than writing 30 s (here with a noise period of 10 s). The former
+    # whole-array generator held seven bands of the whole length several times over (about
+    # 13.6 MB per second at 48 kHz, 6.8 MB per second at 24 kHz: 600 MB for 90 s); even
+    # holding just the finished signal would add 8 bytes per sample (0.7 MB per second here).
     import tracemalloc
 
     from envpredict import signals
 
-    monkeypatch.setattr(signals, "NOISE_PERIOD_S", 5.0)
-    tracemalloc.start()
-    try:
-        r = signals.write_stipa_signal(tmp_path / "long.wav", 60, FS, seed=1)
-        _, peak = tracemalloc.get_traced_memory()
-    finally:
-        tracemalloc.stop()
-    assert r.seconds == 60.0 and sf.info(str(tmp_path / "long.wav")).frames == 60 * FS
-    per_second = 7 * 8 * FS  # one second of the seven band noises, float64
-    assert peak < 4 * 5 * per_second, peak / 1e6  # a few copies of one noise period
-    assert peak < 60 * per_second / 4
+    monkeypatch.setattr(signals, "NOISE_PERIOD_S", 10.0)
+    peaks = {}
+    for seconds in (30, 90):
+        tracemalloc.start()
+        try:
+            r = signals.write_stipa_signal(tmp_path / f"s{seconds}.wav", seconds, FS, seed=1)
+            peaks[seconds] = tracemalloc.get_traced_memory()[1]
+        finally:
+            tracemalloc.stop()
+        assert r.seconds == seconds and sf.info(str(tmp_path / f"s{seconds}.wav")).frames == seconds * FS
+    assert peaks[90] < peaks[30] + 8 * 10 * FS, peaks  # less than 10 s of float64 more for 60 s more
+    assert peaks[90] < 90 * 8 * FS, peaks  # less than the finished signal alone
 
 
 def test_a_failure_while_writing_in_blocks_leaves_no_file(tmp_path, monkeypatch):
