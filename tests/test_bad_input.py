@@ -327,3 +327,25 @@ def test_full_scale_samples_are_clipping_in_a_pcm_file_only(loud, tmp_path, caps
     _refused_as_clipped([command, pcm], tmp_path, capsys)
     code, _, err = run_cli([command, flt], capsys)
     assert code == 0, err
+
+
+def test_an_impulse_response_file_is_checked_once_by_the_rule_of_its_format(loud, tmp_path, monkeypatch):
+    # sti_from_ir_file read the file (checked by the full-scale rule of any format) and checked
+    # the array a second time; now one check, fed the file's sample format
+    from envpredict import audio
+    from envpredict.indirect import sti_from_ir_file
+
+    seen = []
+    real = audio.SignalCheck.finish
+
+    def finish(self):
+        seen.append(self.subtype)
+        return real(self)
+
+    monkeypatch.setattr(audio.SignalCheck, "finish", finish)
+    for subtype in ("FLOAT", "PCM_24"):
+        p = tmp_path / f"ir_{subtype}.wav"
+        sf.write(p, 0.5 * loud["ir"], FS_IR, subtype=subtype)
+        seen.clear()
+        sti_from_ir_file(p)
+        assert seen == [subtype]
