@@ -909,7 +909,11 @@ def _run_dask(jobs: Sequence[dict], client: Any, threads: int, address: str = "t
             for fut in finished:
                 job = futures.pop(fut)
                 try:
-                    res = fut.result()
+                    res = fut.result(timeout=DASK_POLL_S)
+                except (TimeoutError, asyncio.TimeoutError):
+                    # finished, then lost with the worker that held it: dask computes it again
+                    futures[fut] = job
+                    continue
                 except Exception as e:
                     # score_row never raises: this is the cluster failing
                     if client.status != "running" or "scheduler-connection-lost" in str(e):
