@@ -7,7 +7,8 @@ Run by hand:  python benchmarks/run_all.py [--long]
 (c) batch throughput, 2 workers vs 1, 400 IR rows               goal >= 1.8x
 (d) `envpredict --help` CPU time                                goal <= 1 s
 --long adds the peak-memory runs: a 30-minute 16 kHz pair and a 60-minute 48 kHz
-STIPA recording (goal <= 600 MB each; several minutes).
+STIPA recording (goal <= 600 MB each), and writing the one-hour 48 kHz STIPA test
+signal (goal < 300 MB); several minutes each.
 """
 
 from __future__ import annotations
@@ -27,6 +28,7 @@ RUNS = [
 LONG = [
     ("long pair memory", ["bench_long_pair.py", "--minutes", "30"]),
     ("long STIPA memory", ["bench_long_stipa.py", "--minutes", "60"]),
+    ("one-hour test signal memory", ["bench_testsignal_memory.py", "--seconds", "3600"]),
 ]
 
 

@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import math
 import os
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 from fractions import Fraction
 from functools import lru_cache
 from pathlib import Path
@@ -44,14 +44,19 @@ MAX_RATE_HZ: int = 384000
 #: below the noise of any 24-bit converter (common practice, no source).
 SILENCE_RMS: float = 1e-7
 
-#: Digital clipping: this many samples at full scale (|x| >= 0.999) ...
+#: Digital clipping of integer (PCM) samples: this many samples at full scale (|x| >= 0.999) ...
 CLIP_FULL_SCALE: float = 0.999
 CLIP_MIN_FULL_SCALE_SAMPLES: int = 3
-#: ... or flat tops of at least this many equal samples at the peak, in at least this
-#: many places (clipped, then scaled down). Judgement: honest audio almost never
-#: repeats its exact peak value four times running in several places.
+#: ... or, for every format, flat tops of at least this many equal samples at the peak, in
+#: at least this many places (clipped, then scaled down). Judgement: honest audio almost
+#: never repeats its exact peak value four times running in several places.
 CLIP_RUN: int = 4
 CLIP_MIN_RUNS: int = 5
+
+#: libsndfile sample formats (subtypes) that hold floating-point samples: they have no
+#: full scale (peaks above 1.0 are legitimate), so only flat tops at the peak count as
+#: clipping. Arrays given through the API are judged the same way.
+FLOAT_SUBTYPES: frozenset[str] = frozenset({"FLOAT", "DOUBLE"})
 
 #: Longest excerpt of the reference used to find a delay, s: enough for a stable
 #: cross-correlation peak, small enough to bound memory on long inputs (judgement).
@@ -94,26 +99,31 @@ def check_wav_path(path: str | os.PathLike) -> Path:
     return out
 
 
-def write_wav(path: str | os.PathLike, x: np.ndarray, fs: int, *, subtype: str = "PCM_24") -> Path:
-    """Write a mono signal to a WAV file, atomically (through a temporary file and a rename).
+def write_wav(path: str | os.PathLike, x: "np.ndarray | Iterable[np.ndarray]", fs: int, *,
+              subtype: str = "PCM_24") -> Path:
+    """Write a mono signal to a WAV file, atomically (through a temporary ``.part`` file
+    and a rename: :func:`envpredict.outputs.atomic_file`).
 
     Parameters
     ----------
     path : file to write, ending in .wav (checked by :func:`check_wav_path`).
-    x : samples, full scale +-1.
+    x : samples, full scale +-1: one array, or an iterable of consecutive 1-D blocks (a
+        long signal written block by block: memory is bounded by one block). The file
+        is the same either way.
     fs : sample rate, Hz.
     subtype : sample format of libsndfile (default 24-bit PCM).
     """
-    import io
-
     import soundfile as sf
 
-    from .outputs import atomic_write_bytes
+    from .outputs import atomic_file
 
     out = check_wav_path(path)
-    buf = io.BytesIO()
-    sf.write(buf, x, fs, format="WAV", subtype=subtype)
-    return atomic_write_bytes(out, buf.getvalue())
+    blocks = [x] if isinstance(x, np.ndarray) else x
+    with atomic_file(out) as fh:
+        with sf.SoundFile(fh, "w", samplerate=int(fs), channels=1, format="WAV", subtype=subtype) as f:
+            for block in blocks:
+                f.write(np.asarray(block))
+    return out
 
 
 def _check_path(path: str | os.PathLike, name: str) -> Path:
@@ -176,17 +186,18 @@ def load_audio(
     path : path to a WAV, FLAC, OGG (or other libsndfile-readable) file.
     channel : channel index for multi-channel files; ``None`` requires a mono file.
     name : what the file is, for error messages ("impulse response", "clean"...).
-    check : run :func:`validate_signal` (finite, not silent, not clipped, rate).
+    check : run :func:`validate_signal` (finite, not silent, not clipped, rate), by the
+        clipping rule of the file's sample format (:attr:`FileSource.subtype`).
 
     Returns
     -------
-    x : ndarray, shape (n,), float64 in [-1, 1] full scale.
+    x : ndarray, shape (n,), float64, full scale +-1 (floating-point files may exceed it).
     fs : int sample rate, Hz.
     """
     with FileSource(path, channel, name=name) as src:
         x = src.read(0, src.n)
     if check:
-        validate_signal(x, src.fs, name=src.name)
+        validate_signal(x, src.fs, name=src.name, subtype=src.subtype)
     return x, src.fs
 
 
@@ -244,18 +255,31 @@ class SignalCheck:
     * NaN or infinite samples (refused at the first block that holds one);
     * empty, shorter than ``min_seconds``;
     * silent (RMS below :data:`SILENCE_RMS`) or constant (standard deviation below it);
-    * clipped: at least :data:`CLIP_MIN_FULL_SCALE_SAMPLES` samples at full scale
-      (``|x| >= CLIP_FULL_SCALE``), or at least :data:`CLIP_MIN_RUNS` flat tops of at
-      least :data:`CLIP_RUN` consecutive samples whose magnitude equals the *global* peak
-      of the signal (clipped, then scaled down). When a later block has a higher peak the
-      runs counted so far no longer apply; a run crossing a block boundary is counted
-      once. A stretch of digital silence is never "at the peak" of a signal that is not
-      silent, so it is not clipping. "At the peak" means exactly equal: a tolerance
-      relative to a peak that may still rise could not be applied to blocks already
-      passed (clipped tops are equal samples anyway).
+    * clipped: at least :data:`CLIP_MIN_RUNS` flat tops of at least :data:`CLIP_RUN`
+      consecutive samples whose magnitude equals the *global* peak of the signal (clipped,
+      then scaled down); for integer (PCM) formats also at least
+      :data:`CLIP_MIN_FULL_SCALE_SAMPLES` samples at full scale (``|x| >= CLIP_FULL_SCALE``).
+      Floating-point samples (``subtype`` in :data:`FLOAT_SUBTYPES`, or ``None`` for an
+      array given through the API) have no full scale: peaks above 1.0 are not clipping.
+      When a later block has a higher peak the runs counted so far no longer apply; a run
+      crossing a block boundary is counted once. A stretch of digital silence is never
+      "at the peak" of a signal that is not silent, so it is not clipping. "At the peak"
+      means exactly equal: a tolerance relative to a peak that may still rise could not be
+      applied to blocks already passed (clipped tops are equal samples anyway).
 
     Call :meth:`update` on every block and :meth:`finish` after the last; the errors are
     one-line ``InputError`` messages.
+
+    Parameters
+    ----------
+    name : what the signal is, for the messages.
+    allow_clipping : count clipping (:attr:`clipped`) but do not refuse it.
+    min_seconds : shortest accepted length, s (needs ``fs``).
+    fs : sample rate, Hz.
+    subtype : libsndfile sample format of the file the samples come from
+        (:attr:`Source.subtype`, e.g. "PCM_16", "FLOAT"); ``None`` (an array) and the
+        :data:`FLOAT_SUBTYPES` are judged by flat tops only, every other format also by
+        samples at full scale.
 
     Examples
     --------
@@ -269,8 +293,11 @@ class SignalCheck:
     """
 
     def __init__(self, name: str = "input", *, allow_clipping: bool = False, min_seconds: float = 0.0,
-                 fs: float | None = None) -> None:
+                 fs: float | None = None, subtype: str | None = None) -> None:
         self.name = name
+        self.subtype = subtype
+        #: samples at full scale count as clipping (integer formats only)
+        self.full_scale_rule = subtype is not None and str(subtype).upper() not in FLOAT_SUBTYPES
         self.allow_clipping = allow_clipping
         self.min_seconds = float(min_seconds)
         self.fs = fs
@@ -347,7 +374,8 @@ class SignalCheck:
     @property
     def clipped(self) -> bool:
         """The clipping verdict for the samples so far."""
-        return self.full_scale >= CLIP_MIN_FULL_SCALE_SAMPLES or self.flat_runs >= CLIP_MIN_RUNS
+        return ((self.full_scale_rule and self.full_scale >= CLIP_MIN_FULL_SCALE_SAMPLES)
+                or self.flat_runs >= CLIP_MIN_RUNS)
 
     @property
     def rms(self) -> float:
@@ -383,6 +411,7 @@ def validate_signal(
     name: str = "input",
     allow_clipping: bool = False,
     min_seconds: float = 0.0,
+    subtype: str | None = None,
 ) -> np.ndarray:
     """Check a signal once, at the boundary, and return it as a 1-D float64 array.
 
@@ -399,6 +428,8 @@ def validate_signal(
     name : what the signal is, for error messages.
     allow_clipping : accept clipped signals (a degraded signal may be clipped).
     min_seconds : shortest accepted length, s.
+    subtype : sample format of the file the samples were read from (see
+        :class:`SignalCheck`); ``None`` for an array, judged as floating point.
 
     Returns
     -------
@@ -406,16 +437,16 @@ def validate_signal(
     """
     a, fs = as_mono_array(x, fs, name)
     a = a.astype(np.float64, copy=False)
-    check = SignalCheck(name, allow_clipping=allow_clipping, min_seconds=min_seconds, fs=fs)
+    check = SignalCheck(name, allow_clipping=allow_clipping, min_seconds=min_seconds, fs=fs, subtype=subtype)
     check.update(a)
     check.finish()
     return a
 
 
-def is_clipped(x: np.ndarray) -> bool:
-    """Digital clipping by the rule of :class:`SignalCheck` (samples at full scale, or
-    repeated flat tops at the global peak)."""
-    check = SignalCheck(allow_clipping=True)
+def is_clipped(x: np.ndarray, subtype: str | None = None) -> bool:
+    """Digital clipping by the rule of :class:`SignalCheck` (repeated flat tops at the
+    global peak, or for an integer ``subtype`` samples at full scale)."""
+    check = SignalCheck(allow_clipping=True, subtype=subtype)
     check.update(x)
     return check.clipped
 
@@ -644,6 +675,9 @@ class Source:
     n: int
     fs: int
     name: str
+    #: libsndfile sample format of the file behind the source ("PCM_16", "FLOAT", ...);
+    #: ``None`` for an array (judged as floating point by :class:`SignalCheck`).
+    subtype: str | None = None
 
     def _read(self, start: int, stop: int) -> np.ndarray:  # pragma: no cover - interface
         raise NotImplementedError
@@ -711,6 +745,7 @@ class FileSource(Source):
         except Exception:
             raise InputError(f"{name} '{path}' is not a readable audio file",
                              "give a WAV, FLAC or OGG file (other formats: convert first)") from None
+        self.subtype = str(self._f.subtype)
         self._pos = 0
 
     def _read(self, start: int, stop: int) -> np.ndarray:
@@ -744,7 +779,7 @@ class Resampled(Source):
     def __init__(self, src: Source, fs_out: int) -> None:
         self.src = src
         self.up, self.down = resample_ratio(src.fs, fs_out)
-        self.fs, self.name = int(fs_out), src.name
+        self.fs, self.name, self.subtype = int(fs_out), src.name, src.subtype
         self.n = -(-src.n * self.up // self.down)
         half_len = 10 * max(self.up, self.down)  # scipy's default filter half-length
         self.margin = half_len // self.up + 4 + self.down
@@ -762,6 +797,7 @@ class Window(Source):
 
     def __init__(self, src: Source, offset: int, n: int) -> None:
         self.src, self.offset, self.n, self.fs, self.name = src, int(offset), int(n), src.fs, src.name
+        self.subtype = src.subtype
 
     def _read(self, a: int, b: int) -> np.ndarray:
         return self.src.read(a + self.offset, b + self.offset)

@@ -70,7 +70,11 @@ Backends
   optional extra ``pip install 'envpredict[cluster]'``). The workers must have
   envpredict installed and must see the audio files at the same absolute paths
   (a shared filesystem): the tasks carry paths, not audio. (dask's nanny already
-  starts its workers with single-threaded numeric libraries.)
+  starts its workers with single-threaded numeric libraries.) A cluster that fails
+  mid-run (a lost scheduler, no worker left for :data:`NO_WORKER_TIMEOUT_S`) stops the
+  batch with one :class:`~envpredict.exceptions.ComputationError` line instead of
+  dask's own log (silenced while the batch talks to the cluster); the rows finished so
+  far stay in the results file for ``resume``.
 
 The job function :func:`score_row` is a plain top-level function of a plain dict,
 so any executor can pickle it; it never raises: a row whose input is bad comes
@@ -157,6 +161,15 @@ PARENT_CHECK_S: float = 1.0
 
 #: Seconds to wait for a dask scheduler to answer (judgement).
 CONNECT_TIMEOUT_S: float = 10.0
+
+#: Seconds between checks that the dask cluster still runs while the batch waits for rows
+#: (judgement).
+DASK_POLL_S: float = 1.0
+
+#: Seconds a dask cluster may go without any worker before the batch stops with an error
+#: instead of waiting for ever (judgement: time for a nanny or an operator to restart a
+#: worker, short enough not to stall an unattended run for long).
+NO_WORKER_TIMEOUT_S: float = 60.0
 
 #: Failures listed in the summary (all of them are in the results file).
 SUMMARY_FAILURES: int = 20
@@ -824,6 +837,27 @@ def _run_pool(jobs: Sequence[dict], workers: int) -> Iterator[dict]:
 SCHEDULER_SCHEMES: tuple[str, ...] = ("tcp://", "tls://")
 
 
+@contextlib.contextmanager
+def _quiet_dask() -> Iterator[None]:
+    """Silence dask.distributed's own log records (a lost scheduler makes its client log
+    a 38-line traceback on stderr) while the batch talks to a cluster; the batch reports
+    a cluster failure itself, in one line. The loggers' states are restored afterwards."""
+    import logging
+
+    with contextlib.suppress(ImportError):
+        import distributed  # noqa: F401  (creates its loggers)
+    names = [n for n in list(logging.root.manager.loggerDict) if n == "distributed" or n.startswith("distributed.")]
+    loggers = [logging.getLogger(n) for n in {"distributed", "distributed.client", *names}]
+    before = [lg.disabled for lg in loggers]
+    for lg in loggers:
+        lg.disabled = True
+    try:
+        yield
+    finally:
+        for lg, was in zip(loggers, before):
+            lg.disabled = was
+
+
 def _connect(address: str):
     try:
         from distributed import Client
@@ -835,7 +869,7 @@ def _connect(address: str):
     try:
         client = Client(address, timeout=f"{CONNECT_TIMEOUT_S}s")
     except (OSError, TimeoutError, ValueError) as e:
-        raise InputError(f"cannot reach the dask scheduler at '{address}' ({type(e).__name__}: {e})",
+        raise InputError(f"cannot reach the dask scheduler at '{address}' ({type(e).__name__}: {_one_line(e)})",
                          "check the address (tcp://HOST:PORT) and that the scheduler is running") from None
     except Exception as e:  # a service that is not a dask scheduler: its bytes read as a message of
         # absurd length (MemoryError) or a malformed one
@@ -848,46 +882,108 @@ def _connect(address: str):
     return client, threads
 
 
-def _run_dask(jobs: Sequence[dict], client: Any, threads: int) -> Iterator[dict]:
+def _one_line(e: BaseException) -> str:
+    """An exception's message on one line (dask's messages span several)."""
+    return " ".join(str(e).split())
+
+
+#: What to do when the cluster fails mid-batch: the rows finished so far are in the file.
+_RESUME_FIX = "the finished rows are saved in the results file: rerun with --resume"
+
+
+def _cluster_lost(address: str, done: int, total: int) -> ComputationError:
+    return ComputationError(
+        f"the dask scheduler at '{address}' stopped answering after {done} of {total} rows (it was stopped, "
+        "crashed or the network failed)",
+        f"restart the cluster; {_RESUME_FIX}",
+    )
+
+
+def _run_dask(jobs: Sequence[dict], client: Any, threads: int, address: str = "the dask cluster") -> Iterator[dict]:
+    """Score ``jobs`` on a dask cluster, yielding results in completion order.
+
+    A cluster failure mid-run stops the batch with one :class:`ComputationError` (the
+    rows yielded so far are written by the caller, so ``--resume`` continues): a lost
+    scheduler, a cluster without workers for :data:`NO_WORKER_TIMEOUT_S`, or a row
+    whose task failed on the cluster (e.g. workers that cannot import envpredict, or a
+    row that killed its worker again and again).
+    """
+    import asyncio
     import uuid
 
-    from distributed import as_completed
+    from distributed import wait
 
     futures: dict = {}
+    done = 0
+    total = len(jobs)
     try:
         run = uuid.uuid4().hex[:12]
         todo = iter(jobs)
         window = max(threads * IN_FLIGHT_PER_WORKER, MIN_DASK_IN_FLIGHT)
 
         def submit(job):
-            return client.submit(score_row, job, pure=False, key=f"envpredict-row-{run}-{job['row']}")
+            try:
+                futures[client.submit(score_row, job, pure=False, key=f"envpredict-row-{run}-{job['row']}")] = job
+            except Exception:  # the client cannot send: the scheduler is gone
+                raise _cluster_lost(address, done, total) from None
 
         for job in todo:
-            futures[submit(job)] = job
+            submit(job)
             if len(futures) >= window:
                 break
-        ac = as_completed(list(futures))
-        for fut in ac:
-            job = futures.pop(fut)
+        no_workers_since: float | None = None
+        while futures:
             try:
-                res = fut.result()
-            except Exception as e:
-                # score_row never raises: this is the cluster failing (e.g. a worker that
-                # cannot import envpredict, or a lost worker after retries)
-                raise ComputationError(
-                    f"the dask cluster failed on row {job['row']} ({type(e).__name__}: {e})",
-                    "install envpredict on every worker and check the worker logs; the finished rows "
-                    "are saved: rerun with --resume",
-                ) from None
-            yield res
-            nxt = next(todo, None)
-            if nxt is not None:
-                f = submit(nxt)
-                futures[f] = nxt
-                ac.add(f)
+                finished, _ = wait(list(futures), timeout=DASK_POLL_S, return_when="FIRST_COMPLETED")
+            except (TimeoutError, asyncio.TimeoutError):
+                finished = set()
+            except Exception as e:  # futures cancelled under it (FuturesCancelledError)
+                if client.status != "running" or "scheduler-connection-lost" in str(e):
+                    raise _cluster_lost(address, done, total) from None
+                raise ComputationError(f"the dask cluster failed ({type(e).__name__}: {_one_line(e)})",
+                                       f"check the scheduler and worker logs; {_RESUME_FIX}") from None
+            if not finished:  # nothing came back for a while: is the cluster still there?
+                if client.status != "running":
+                    raise _cluster_lost(address, done, total)
+                try:
+                    workers = len(client.nthreads())
+                except Exception:
+                    raise _cluster_lost(address, done, total) from None
+                if workers:
+                    no_workers_since = None
+                elif no_workers_since is None:
+                    no_workers_since = time.monotonic()
+                elif time.monotonic() - no_workers_since > NO_WORKER_TIMEOUT_S:
+                    raise ComputationError(
+                        f"the dask cluster at '{address}' has had no workers for {NO_WORKER_TIMEOUT_S:.0f} s "
+                        f"after {done} of {total} rows (they were stopped or crashed)",
+                        f"start workers; {_RESUME_FIX}",
+                    )
+                continue
+            for fut in finished:
+                job = futures.pop(fut)
+                try:
+                    res = fut.result(timeout=DASK_POLL_S)
+                except (TimeoutError, asyncio.TimeoutError):
+                    # finished, then lost with the worker that held it: dask computes it again
+                    futures[fut] = job
+                    continue
+                except Exception as e:
+                    # score_row never raises: this is the cluster failing
+                    if client.status != "running" or "scheduler-connection-lost" in str(e):
+                        raise _cluster_lost(address, done, total) from None
+                    raise ComputationError(
+                        f"the dask cluster failed on row {job['row']} ({type(e).__name__}: {_one_line(e)})",
+                        f"install envpredict on every worker and check the worker logs; {_RESUME_FIX}",
+                    ) from None
+                done += 1
+                yield res
+                nxt = next(todo, None)
+                if nxt is not None:
+                    submit(nxt)
     finally:
-        with contextlib.suppress(Exception):
-            if futures:
+        if futures and client.status == "running":
+            with contextlib.suppress(Exception):
                 client.cancel(list(futures))
 
 
@@ -991,6 +1087,14 @@ def run_batch(
         start_workers_early()  # the pool's imports run while the manifest is read
     m = manifest if isinstance(manifest, Manifest) else read_manifest(
         manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker)
+    with _quiet_dask() if scheduler is not None else contextlib.nullcontext():
+        return _run_manifest(m, out, workers=workers, scheduler=scheduler, resume=resume, overwrite=overwrite,
+                             retry_failed=retry_failed, progress=progress)
+
+
+def _run_manifest(m: Manifest, out: str | os.PathLike, *, workers: int | None, scheduler: str | None, resume: bool,
+                  overwrite: bool, retry_failed: bool, progress: Callable[[int, int], None] | None) -> BatchSummary:
+    """The batch proper, on a read manifest with checked options (see :func:`run_batch`)."""
     client = threads = None
     if scheduler is not None:  # reach the cluster before any output is created
         client, threads = _connect(str(scheduler).strip())
@@ -1009,7 +1113,7 @@ def run_batch(
         skipped = len(m) - len(jobs)
         if client is not None:
             backend, n_workers = "dask", int(threads)
-            results: Iterable[dict] = _run_dask(jobs, client, int(threads))
+            results: Iterable[dict] = _run_dask(jobs, client, int(threads), str(scheduler).strip())
         else:
             n_workers = workers or usable_cores()
             n_workers = max(1, min(n_workers, len(jobs))) if jobs else 1

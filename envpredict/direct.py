@@ -491,7 +491,8 @@ def _analyse_file(path: str | os.PathLike, channel: int | None, min_seconds: flo
         check_rate_for_octaves(fs, src.name)
         _check_length(src.n, fs, name)
         block = max(1, int(block_seconds * fs))
-        return _analyse_source(src, block, min_seconds, name, advice, SignalCheck(src.name), ticks)
+        return _analyse_source(src, block, min_seconds, name, advice, SignalCheck(src.name, subtype=src.subtype),
+                               ticks)
 
 
 def _window_count(n: int, fs_env: float, f_low: float) -> int:

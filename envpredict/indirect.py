@@ -126,7 +126,9 @@ def sti_from_ir(
         then states whether it is met, judged on the unrounded value.
 
     Valid input: at least 0.79 s of response after its onset; the response should
-    decay to its noise floor within the file.
+    decay to its noise floor within the file. The array is taken as floating-point
+    samples: peaks above 1.0 are accepted, flat tops at the peak are refused as clipping
+    (:class:`envpredict.audio.SignalCheck`).
 
     Examples
     --------
@@ -295,7 +297,8 @@ def sti_from_ir_file(
 
     The options are checked before the file is read (a bad option is refused without
     touching the audio); then one channel of the file is loaded and validated
-    (:func:`envpredict.audio.load_audio`) and passed to :func:`sti_from_ir`.
+    (:func:`envpredict.audio.load_audio`, by the clipping rule of the file's sample
+    format: a floating-point file may peak above 1.0) and analysed as by :func:`sti_from_ir`.
 
     Parameters
     ----------
@@ -364,8 +367,9 @@ def sti_from_ir_file(
                        auditory=auditory, progress=progress, label=f"the response recovered from '{name}'",
                        speech_db=speech, notes=notes, requirement=requirement)
         return replace(res, cautions=res.cautions + dec.cautions, deconvolution=dec)
+    # validated once, as it is read, by the clipping rule of the file's sample format
+    # (floating-point files may peak above 1.0; see envpredict.audio.SignalCheck)
     x, fs = load_audio(path, channel, name="impulse response")
-    x = validate_signal(x, fs, name="impulse response")
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
     return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,

@@ -35,6 +35,7 @@ import tempfile
 import time
 from collections.abc import Callable, Iterable, Iterator
 from pathlib import Path
+from typing import BinaryIO
 
 from .exceptions import ComputationError, InputError
 
@@ -374,17 +375,15 @@ def _fsync_folder(folder: Path) -> None:
 # ---------------------------------------------------------------------------
 
 
-def atomic_write_bytes(path: _PathLike, data: bytes) -> Path:
-    """Write ``data`` to ``path`` through a temporary file and an atomic rename.
+@contextlib.contextmanager
+def atomic_file(path: _PathLike) -> Iterator[BinaryIO]:
+    """Yield a binary file open for writing; on success it replaces ``path``.
 
-    A symbolic link is written through (its target is replaced); a new file gets the
-    mode ``0666 & ~umask``, a replaced file keeps its mode. Raises :class:`InputError`
-    for a path that cannot be written and :class:`ComputationError` for a full disk;
-    in both cases nothing is left under the final name or beside it.
-
-    Returns
-    -------
-    ``path`` as given.
+    The rules of :func:`atomic_write_bytes`, for output written piece by piece (e.g. a
+    long signal in blocks): the data goes to a hidden ``.NAME.PID.XXXXXXXX.part`` file
+    beside ``path``, flushed to disk and renamed over ``path`` when the ``with`` block
+    ends without an exception; on any exception (or a kill) the final name is left as
+    it was and the temporary is removed (by the next run, after a kill).
     """
     p = Path(os.fspath(path))
     target = check_output_file(p)
@@ -396,12 +395,12 @@ def atomic_write_bytes(path: _PathLike, data: bytes) -> Path:
     except OSError as e:
         raise output_error(e, p) from None
     try:
-        with os.fdopen(fd, "wb") as fh:
+        with os.fdopen(fd, "w+b") as fh:
             if hasattr(os, "fchmod"):
                 os.fchmod(fh.fileno(), mode)
             else:  # Windows before Python 3.13
                 os.chmod(tmp, mode)
-            fh.write(data)
+            yield fh
             fh.flush()
             os.fsync(fh.fileno())
         os.replace(tmp, target)
@@ -412,7 +411,24 @@ def atomic_write_bytes(path: _PathLike, data: bytes) -> Path:
             raise output_error(e, p) from None
         raise
     _fsync_folder(parent)
-    return p
+
+
+def atomic_write_bytes(path: _PathLike, data: bytes) -> Path:
+    """Write ``data`` to ``path`` through a temporary file and an atomic rename
+    (:func:`atomic_file`).
+
+    A symbolic link is written through (its target is replaced); a new file gets the
+    mode ``0666 & ~umask``, a replaced file keeps its mode. Raises :class:`InputError`
+    for a path that cannot be written and :class:`ComputationError` for a full disk;
+    in both cases nothing is left under the final name or beside it.
+
+    Returns
+    -------
+    ``path`` as given.
+    """
+    with atomic_file(path) as fh:
+        fh.write(data)
+    return Path(os.fspath(path))
 
 
 def atomic_write_text(path: _PathLike, text: str) -> Path:
@@ -477,8 +493,8 @@ def atomic_directory(path: _PathLike, *, replaceable: Callable[[Path], None] | N
 
 
 __all__ = [
-    "atomic_directory", "atomic_write_bytes", "atomic_write_text", "check_distinct", "check_inputs_outside",
-    "check_output_file",
+    "atomic_directory", "atomic_file", "atomic_write_bytes", "atomic_write_text", "check_distinct",
+    "check_inputs_outside", "check_output_file",
     "check_output_folder", "current_umask", "output_error", "remove_stale_temporaries", "resolve_output",
     "same_path", "stale_temporaries",
 ]

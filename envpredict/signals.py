@@ -27,20 +27,34 @@ lengths get 10 ms raised-cosine fades at both ends and should not be looped (a
 recording across the seam reads a lower MTF). The generators return arrays;
 :func:`write_stipa_signal` and :func:`write_full_sti_signals` write them to WAV files
 through the one writer, :func:`envpredict.audio.write_wav`.
+
+**Generated in blocks.** A signal is made block by block (:class:`BlockSignal`), so that
+writing it needs memory for one block and one period of the noise, however long it is:
+the seven band noises are made whole (they are circular) and kept, outside memory, in an
+anonymous temporary file; the modulation, the per-band level, the fades and the peak
+normalisation are applied block by block, in three passes (the per-band RMS and the
+peak are figures of the whole signal). A signal up to :data:`NOISE_PERIOD_S` long is
+the same as when it was made as one array (to the last bit when made as one block;
+within float rounding, about 1e-16 relative, in shorter blocks: the sums of squares are
+added in another order). A longer one uses noise of period :data:`NOISE_PERIOD_S`
+(the first :data:`NOISE_PERIOD_S` of noise, repeated: seamless, since the noise is
+circular), under a modulation that runs on without repeating its phase error; it is
+the :data:`NOISE_PERIOD_S` signal played in a loop when its length is a multiple of it.
 """
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
+from typing import Callable, Iterator
 
 import numpy as np
 
 from . import standards as std
-from .audio import check_rate, check_wav_path, rms_dbfs, write_wav
+from .audio import check_rate, check_wav_path, write_wav
 from .bands import check_rate_for_octaves
 from .exceptions import InputError
 
@@ -52,9 +66,19 @@ SETTLE_S: float = 1.0
 #: Fade-in / fade-out length, s (only to avoid clicks at the file ends).
 FADE_S: float = 0.010
 
-#: Longest signal generated, s (1 hour; beyond that the memory use is unreasonable and
-#: the request is almost certainly a mistake).
+#: Longest signal generated, s (1 hour; beyond that the request is almost certainly a
+#: mistake: a recording needs 15 s to a few minutes).
 MAX_SECONDS: float = 3600.0
+
+#: Period of the noise carriers, s: a signal longer than this repeats its first
+#: NOISE_PERIOD_S of noise (memory and temporary storage stay those of this length).
+#: 100 s is the common period of the STIPA modulation frequencies (IEC 60268-16:2011
+#: Table B.1: every f1, f2 is a multiple of 0.01 Hz), so a signal whose length is a
+#: multiple of it still loops without a seam.
+NOISE_PERIOD_S: float = 100.0
+
+#: Block length of generation, s (memory: a few arrays of 7 x BLOCK_S x fs samples).
+BLOCK_S: float = 2.0
 
 #: Default sample rate of generated signals, Hz.
 DEFAULT_RATE_HZ: int = std.TEST_SIGNAL_RATE_HZ
@@ -103,16 +127,25 @@ def octave_band_noise(
     -------
     ndarray (7, n).
     """
-    freqs = np.fft.rfftfreq(n, 1.0 / fs)
     out = np.empty((len(std.OCTAVE_BANDS_HZ), n))
-    for k, fc in enumerate(std.OCTAVE_BANDS_HZ):
+    for k, b in enumerate(_band_noises(n, fs, rng, width_octaves)):
+        out[k] = b
+    return out
+
+
+def _band_noises(n: int, fs: int, rng: np.random.Generator,
+                 width_octaves: float = std.TEST_SIGNAL_CARRIER_OCTAVES) -> Iterator[np.ndarray]:
+    """The bands of :func:`octave_band_noise`, one at a time (the same draws, in order)."""
+    freqs = np.fft.rfftfreq(n, 1.0 / fs)
+    half = 2.0 ** (float(width_octaves) / 2.0)
+    for fc in std.OCTAVE_BANDS_HZ:
         spec = np.fft.rfft(rng.standard_normal(n))
-        half = 2.0 ** (float(width_octaves) / 2.0)
         keep = (freqs >= fc / half) & (freqs < fc * half)
         spec[~keep] = 0.0
         b = np.fft.irfft(spec, n)
-        out[k] = b / np.sqrt(np.mean(b * b))
-    return out
+        del spec
+        b /= np.sqrt(np.mean(b * b))
+        yield b
 
 
 def stipa_envelope(t: np.ndarray, f1: float, f2: float, depth: float = std.STIPA_MODULATION_DEPTH) -> np.ndarray:
@@ -135,26 +168,154 @@ def is_loopable(n: int, fs: int, freqs) -> bool:
     return bool(np.all(err_s <= 1.0 / fs + 1e-12) and np.all(np.round(secs * f) >= 1))
 
 
-def _finish(bands: np.ndarray, envelopes: np.ndarray, fs: int, loopable: bool) -> np.ndarray:
-    """Modulate, weight to the speech spectrum, sum, fade and normalise to -3 dBFS.
+class BlockSignal:
+    """A test signal made block by block: band noises (period at most
+    :data:`NOISE_PERIOD_S`), each modulated by its envelope, brought to its
+    speech-spectrum level, summed, faded (unless loopable) and normalised to a peak of
+    ``TEST_SIGNAL_PEAK_DBFS``.
 
-    A loopable signal (whole periods of every modulation; the FFT-made noise is
-    circular anyway) gets no fades, so that playing it in a loop has no seam.
+    The per-band RMS and the peak are figures of the whole signal: :meth:`blocks`
+    computes them in two passes over the blocks before it yields the final samples in a
+    third (memory: a few blocks; the band noises are kept in an anonymous temporary file,
+    8 bytes per sample and band of one noise period).
+
+    Parameters
+    ----------
+    n, fs : length (samples) and rate, Hz (checked by the callers).
+    seed : seed of the noise generator.
+    envelope : ``envelope(t)`` for times ``t`` (s) of a block: the intensity envelopes,
+        shape (7, len(t)) (one per band) or (len(t),) (the same for every band).
+    loopable : no fades (the signal loops without a seam).
     """
-    gains = 10.0 ** (np.asarray(std.STIPA_BAND_LEVELS_DB) / 20.0)
-    amp = np.sqrt(np.clip(envelopes, 0.0, None))
-    mod = bands * (amp if amp.ndim == 2 else amp[None, :])
-    # each modulated band at exactly its speech-spectrum level (the random correlation
-    # of carrier and envelope would otherwise move it by up to a few tenths of a dB)
-    mod /= np.sqrt(np.mean(mod * mod, axis=1, keepdims=True))
-    x = gains @ mod
-    if not loopable:
-        nf = max(1, int(round(FADE_S * fs)))
+
+    def __init__(self, n: int, fs: int, seed: int, envelope: Callable[[np.ndarray], np.ndarray],
+                 loopable: bool) -> None:
+        self.n, self.fs, self.seed, self.envelope, self.loopable = int(n), int(fs), int(seed), envelope, loopable
+        self.period = min(self.n, int(round(NOISE_PERIOD_S * self.fs)))
+        self.rms_dbfs: float | None = None  # of the final signal, after a complete pass of blocks()
+
+    def _noise_block(self, store, a: int, b: int) -> np.ndarray:
+        """Band noises of samples a .. b-1, shape (7, b - a) (the noise repeats with its period)."""
+        out = np.empty((len(std.OCTAVE_BANDS_HZ), b - a))
+        if isinstance(store, np.ndarray):
+            for i0 in range(a, b, self.period):  # at most 2 pieces unless a block spans periods
+                j = i0 % self.period
+                m = min(b - i0, self.period - j)
+                out[:, i0 - a: i0 - a + m] = store[:, j: j + m]
+            return out
+        pos = a
+        while pos < b:
+            j = pos % self.period
+            m = min(b - pos, self.period - j)
+            for k in range(out.shape[0]):
+                store.seek((k * self.period + j) * 8)
+                if store.readinto(memoryview(out[k, pos - a: pos - a + m]).cast("B")) != 8 * m:
+                    raise OSError(f"the temporary file of the test signal's noise is short ({store.name})")
+            pos += m
+        return out
+
+    def _modulated(self, store, a: int, b: int) -> np.ndarray:
+        """Modulated band noises (before the per-band level), shape (7, b - a)."""
+        env = self.envelope(np.arange(a, b) / self.fs)
+        amp = np.sqrt(np.clip(env, 0.0, None))
+        return self._noise_block(store, a, b) * (amp if amp.ndim == 2 else amp[None, :])
+
+    def _fade(self, x: np.ndarray, a: int) -> None:
+        """Raised-cosine fades of the signal's ends, on the block starting at sample ``a``."""
+        nf = max(1, int(round(FADE_S * self.fs)))
         ramp = 0.5 - 0.5 * np.cos(np.pi * np.arange(nf) / nf)
-        x[:nf] *= ramp
-        x[-nf:] *= ramp[::-1]
-    peak = float(np.max(np.abs(x)))
-    return x * (10.0 ** (std.TEST_SIGNAL_PEAK_DBFS / 20.0) / peak)
+        b = a + x.size
+        if a < nf:
+            x[: min(b, nf) - a] *= ramp[a: min(b, nf)]
+        if b > self.n - nf:
+            s0 = max(a, self.n - nf)
+            x[s0 - a:] *= ramp[::-1][s0 - (self.n - nf): b - (self.n - nf)]
+
+    def _summed(self, store, a: int, b: int, rms: np.ndarray) -> np.ndarray:
+        gains = 10.0 ** (np.asarray(std.STIPA_BAND_LEVELS_DB) / 20.0)
+        mod = self._modulated(store, a, b)
+        # each modulated band at exactly its speech-spectrum level (the random correlation
+        # of carrier and envelope would otherwise move it by up to a few tenths of a dB)
+        mod /= rms
+        x = gains @ mod
+        if not self.loopable:
+            self._fade(x, a)
+        return x
+
+    def blocks(self, block: int | None = None, *, in_memory: bool = False,
+               spill_dir: str | os.PathLike | None = None) -> Iterator[np.ndarray]:
+        """The signal's samples in consecutive blocks of ``block`` samples (default
+        :data:`BLOCK_S`; ``block >= n``: one block, the whole signal as one array).
+
+        ``in_memory`` keeps the band noises in memory instead of an anonymous temporary
+        file in ``spill_dir`` (default: the system's temporary folder; the file has no
+        name, so nothing is left behind, even after a kill).
+        """
+        import tempfile
+
+        block = max(1, int(block if block is not None else round(BLOCK_S * self.fs)))
+        edges = [(a, min(self.n, a + block)) for a in range(0, self.n, block)]
+        rng = np.random.default_rng(self.seed)
+        noises = _band_noises(self.period, self.fs, rng)
+        with contextlib.ExitStack() as stack:
+            if in_memory:
+                store = np.empty((len(std.OCTAVE_BANDS_HZ), self.period))
+                for k, b in enumerate(noises):
+                    store[k] = b
+            else:
+                store = stack.enter_context(tempfile.TemporaryFile(dir=spill_dir))
+                for noise in noises:
+                    store.write(memoryview(noise))
+                    del noise
+            sumsq = np.zeros(len(std.OCTAVE_BANDS_HZ))
+            for a, b in edges:  # pass 1: the RMS of every modulated band
+                mod = self._modulated(store, a, b)
+                sumsq += np.sum(mod * mod, axis=1)
+            rms = np.sqrt(sumsq / self.n)[:, None]
+            peak = 0.0
+            for a, b in edges:  # pass 2: the peak of the sum
+                peak = max(peak, float(np.max(np.abs(self._summed(store, a, b, rms)))))
+            scale = 10.0 ** (std.TEST_SIGNAL_PEAK_DBFS / 20.0) / peak
+            total = 0.0
+            for a, b in edges:  # pass 3: the samples
+                x = self._summed(store, a, b, rms) * scale
+                total += float(np.dot(x, x))
+                yield x
+            self.rms_dbfs = 10.0 * np.log10(total / self.n) if total > 0 else -np.inf
+
+    def array(self) -> np.ndarray:
+        """The whole signal as one array (made in blocks, noises kept in memory)."""
+        out = np.empty(self.n)
+        pos = 0
+        for x in self.blocks(in_memory=True):
+            out[pos: pos + x.size] = x
+            pos += x.size
+        return out
+
+
+def stipa_test_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_RATE_HZ, *,
+                      seed: int = 0) -> BlockSignal:
+    """The STIPA test signal of :func:`stipa_signal` as a :class:`BlockSignal` (to be read
+    in blocks); the options are checked here."""
+    fs = check_generation(fs, seconds)
+    seed = check_seed(seed)
+    n = int(round(float(seconds) * fs))
+    pairs = tuple(std.STIPA_MODULATION_HZ)
+
+    def envelope(t: np.ndarray) -> np.ndarray:
+        return np.stack([stipa_envelope(t, f1, f2) for f1, f2 in pairs])
+
+    return BlockSignal(n, fs, seed, envelope, is_loopable(n, fs, np.ravel(pairs)))
+
+
+def full_sti_test_signal(modulation_hz: float, seconds: float, fs: int = DEFAULT_RATE_HZ, *,
+                         seed: int = 0) -> BlockSignal:
+    """One full-STI test signal of :func:`full_sti_signal` as a :class:`BlockSignal`."""
+    fs = check_generation(fs)
+    seed = check_seed(seed)
+    n = int(round(float(seconds) * fs))
+    f = float(modulation_hz)
+    return BlockSignal(n, fs, seed, lambda t: full_sti_envelope(t, f), is_loopable(n, fs, [f]))
 
 
 def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0) -> np.ndarray:
@@ -168,12 +329,16 @@ def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_R
     Parameters
     ----------
     seconds : length, s (15 s ... 1 h; default 100 s, which loops without a seam).
+        Beyond :data:`NOISE_PERIOD_S` (100 s) the noise carriers repeat with that
+        period; the modulation runs on.
     fs : sample rate, Hz (above 22.6 kHz so the 8 kHz octave fits; default 48000).
     seed : seed of the noise generator (same seed, same signal).
 
     Returns
     -------
-    ndarray (round(seconds * fs),), peak at -3 dBFS.
+    ndarray (round(seconds * fs),), peak at -3 dBFS. Made in blocks
+    (:class:`BlockSignal`); to write a long signal without holding it, use
+    :func:`write_stipa_signal`.
 
     Examples
     --------
@@ -181,14 +346,7 @@ def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_R
     >>> x.size, round(float(abs(x).max()), 3)
     (360000, 0.708)
     """
-    fs = check_generation(fs, seconds)
-    seed = check_seed(seed)
-    n = int(round(float(seconds) * fs))
-    rng = np.random.default_rng(seed)
-    bands = octave_band_noise(n, fs, rng)
-    t = np.arange(n) / fs
-    env = np.stack([stipa_envelope(t, f1, f2) for f1, f2 in std.STIPA_MODULATION_HZ])
-    return _finish(bands, env, fs, is_loopable(n, fs, np.ravel(std.STIPA_MODULATION_HZ)))
+    return stipa_test_signal(seconds, fs, seed=seed).array()
 
 
 @dataclass(frozen=True)
@@ -224,13 +382,7 @@ def full_sti_plan() -> tuple[FullStiSignalSpec, ...]:
 def full_sti_signal(modulation_hz: float, seconds: float, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0) -> np.ndarray:
     """One full-STI test signal: all seven speech-shaped octave noise bands modulated
     in phase by ``1 + cos 2 pi F t`` (IEC 60268-16:2011, 6.1; m = 1)."""
-    fs = check_generation(fs)
-    seed = check_seed(seed)
-    n = int(round(float(seconds) * fs))
-    rng = np.random.default_rng(seed)
-    bands = octave_band_noise(n, fs, rng)
-    env = full_sti_envelope(np.arange(n) / fs, float(modulation_hz))
-    return _finish(bands, env, fs, is_loopable(n, fs, [modulation_hz]))
+    return full_sti_test_signal(modulation_hz, seconds, fs, seed=seed).array()
 
 
 def full_sti_signals(fs: int = DEFAULT_RATE_HZ, *, seed: int = 0):
@@ -276,7 +428,8 @@ class StipaSignalResult:
 def write_stipa_signal(
     path: str | os.PathLike, seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0,
 ) -> StipaSignalResult:
-    """Write the STIPA test signal (:func:`stipa_signal`) to a 24-bit WAV file, atomically.
+    """Write the STIPA test signal (:func:`stipa_signal`) to a 24-bit WAV file, atomically,
+    block by block (memory does not grow with ``seconds``; see :class:`BlockSignal`).
 
     Parameters
     ----------
@@ -288,13 +441,12 @@ def write_stipa_signal(
     StipaSignalResult : the file, rate, length, seed, RMS level and whether it loops.
     """
     check_wav_path(path)
-    fs = check_generation(fs, seconds)
-    seed = check_seed(seed)
-    x = stipa_signal(seconds, fs, seed=seed)
-    write_wav(path, x, fs)
+    sig = stipa_test_signal(seconds, fs, seed=seed)
+    # block by block: memory does not grow with the length
+    write_wav(path, sig.blocks(spill_dir=Path(path).parent), sig.fs)
     return StipaSignalResult(
-        file=str(path), fs=fs, seconds=round(x.size / fs, 6), seed=seed, rms_dbfs=round(rms_dbfs(x), 2),
-        loopable=is_loopable(x.size, fs, [f for p in std.STIPA_MODULATION_HZ for f in p]),
+        file=str(path), fs=sig.fs, seconds=round(sig.n / sig.fs, 6), seed=sig.seed, rms_dbfs=round(sig.rms_dbfs, 2),
+        loopable=sig.loopable,
     )
 
 
@@ -357,8 +509,9 @@ def write_full_sti_signals(
     plan = full_sti_plan()
     result = FullStiSignalsResult(folder=str(folder), fs=fs, seed=seed, signals=plan)
     with atomic_directory(out) as tmp:
-        for i, (spec, x) in enumerate(full_sti_signals(fs, seed=seed), start=1):
-            write_wav(tmp / spec.filename, x, fs)
+        for i, spec in enumerate(plan, start=1):  # block by block, one file after the other
+            sig = full_sti_test_signal(spec.modulation_hz, spec.seconds, fs, seed=seed + spec.index - 1)
+            write_wav(tmp / spec.filename, sig.blocks(spill_dir=tmp), fs)
             if progress:
                 progress(i, len(plan))
         (tmp / FULL_STI_LISTING).write_text(json.dumps(result.listing(), indent=2) + "\n")

@@ -732,4 +732,5 @@ def _inspect_file(src: FileSource, path, start_s, duration_s, f0_min_hz, f0_max_
             "choose an excerpt with --start and --duration (e.g. --duration 3600)",
         )
     return _inspect_stream(Window(src, i0, n).read, n, fs, f0_min_hz=f0_min_hz, f0_max_hz=f0_max_hz,
-                           block_s=block_seconds, progress=progress, check=SignalCheck(src.name))
+                           block_s=block_seconds, progress=progress,
+                           check=SignalCheck(src.name, subtype=src.subtype))

@@ -587,3 +587,58 @@ def test_polyphase_equals_scipy_resample_poly(fs_in, fs_out):
         got = polyphase(x, up, down)
         assert got.shape == want.shape
         np.testing.assert_allclose(got, want, rtol=0, atol=1e-12)
+
+
+# --- the clipping rule follows the sample format ----------------------------------------------
+
+
+def _isolated_full_scale(peak):
+    """Noise with five isolated samples at +-peak (no flat top anywhere)."""
+    x = 0.1 * np.random.default_rng(8).standard_normal(FS)
+    x[1000:6000:1000] = peak * np.array([1, -1, 1, -1, 1])
+    return x
+
+
+@pytest.mark.parametrize("subtype", [None, "FLOAT", "DOUBLE", "float"])
+@pytest.mark.parametrize("peak", [1.0, 1.5, 4.0])
+def test_floating_point_samples_above_full_scale_are_not_clipping(subtype, peak):
+    # floating-point data has no full scale: only flat tops at the peak are clipping
+    x = _isolated_full_scale(peak)
+    assert not is_clipped(x, subtype)
+    assert validate_signal(x, FS, subtype=subtype) is x
+    flat = x.copy()
+    for k in range(5):  # five flat tops of four samples at the peak: clipped, whatever the format
+        flat[9000 + 1000 * k: 9004 + 1000 * k] = peak
+    assert is_clipped(flat, subtype)
+    with pytest.raises(InputError, match="clipped"):
+        validate_signal(flat, FS, subtype=subtype)
+
+
+@pytest.mark.parametrize("subtype", ["PCM_16", "PCM_24", "PCM_32", "PCM_U8"])
+def test_integer_samples_at_full_scale_are_clipping(subtype):
+    x = _isolated_full_scale(1.0)
+    assert is_clipped(x, subtype)
+    with pytest.raises(InputError, match="clipped"):
+        validate_signal(x, FS, subtype=subtype)
+    x[1000:6000:1000] *= 0.99  # below CLIP_FULL_SCALE: not clipped
+    assert not is_clipped(x, subtype)
+
+
+@pytest.mark.parametrize("subtype", ["PCM_16", "PCM_24", "FLOAT", "DOUBLE"])
+def test_file_sources_carry_the_sample_format_into_the_check(tmp_path, subtype):
+    p = tmp_path / "x.wav"
+    x = 0.5 * _isolated_full_scale(1.0)
+    x[1000:6000:1000] = [1.0, -1.0, 1.0, -1.0, 1.0]  # at full scale (PCM_16 stores 32767 / 32768)
+    sf.write(p, x, FS, subtype=subtype)
+    with FileSource(p) as src:
+        assert src.subtype == subtype
+        assert Window(src, 10, 100).subtype == subtype and Resampled(src, 16000).subtype == subtype
+    assert ArraySource(x, FS).subtype is None
+    if subtype.startswith("PCM"):
+        with pytest.raises(InputError, match="clipped"):
+            load_audio(p)
+    else:
+        y, _ = load_audio(p)
+        assert np.abs(y).max() == 1.0
+        sf.write(p, 4.0 * x, FS, subtype=subtype)  # peak 4.0 with no flat top: valid float data
+        assert np.abs(load_audio(p)[0]).max() == 4.0

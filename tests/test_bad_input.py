@@ -212,3 +212,140 @@ def test_a_pair_after_30_s_of_digital_silence_and_a_pair_with_dc_are_aligned(tmp
     offset = envpredict.pair_indices(c, d + 0.05, fs)
     assert offset.delay_samples == plain.delay_samples
     assert abs(offset.match_correlation - plain.match_correlation) < 1e-3
+
+
+# --- floating-point WAVs peaking above 1.0 are valid data, not clipping ------------------------
+# A FLOAT or DOUBLE file has no full scale; only flat tops at the peak mean clipping. Integer
+# (PCM) files keep the full-scale rule. External check: every index here is scale-invariant
+# (STI, STOI and the decay figures depend on ratios of intensities), so a file and the same
+# samples scaled by a power of two (exact in floating point) give the same numbers; band
+# levels move by exactly 20 log10 of the gain.
+
+def _flat(d, pre=""):
+    if isinstance(d, dict):
+        return {k: v for key, val in d.items() for k, v in _flat(val, f"{pre}/{key}").items()}
+    if isinstance(d, list):
+        return {k: v for i, val in enumerate(d) for k, v in _flat(val, f"{pre}[{i}]").items()}
+    return {pre: d}
+
+
+def _unit(x):
+    """Peak exactly 1.0 and every sample representable in float32 (so that scaling by a
+    power of two and storing as FLOAT or DOUBLE is exact)."""
+    return (x / np.abs(x).max()).astype(np.float32).astype(np.float64)
+
+
+@pytest.fixture(scope="module")
+def loud(tmp_path_factory):
+    from scipy.signal import butter, fftconvolve, sosfilt
+
+    from envpredict.signals import stipa_signal
+
+    d = tmp_path_factory.mktemp("loud")
+    ir = _unit(noise_decay(0.8, seconds=2.0, seed=1, floor_db=-70))
+    clean = stipa_signal(20, FS_IR, seed=4)
+    rec = _unit(fftconvolve(clean, ir[:FS_IR])[: clean.size])
+    f = {"dir": d, "ir": ir, "rec": rec, "clean": d / "clean.wav"}
+    sf.write(f["clean"], clean, FS_IR, subtype="FLOAT")
+    # a smooth (low-passed) response, driven into a limiter: flat tops at its peak
+    smooth = _unit(sosfilt(butter(4, 2000, fs=FS_IR, output="sos"), ir))
+    f["ir_flat"] = np.clip(3.0 * smooth, -1.5, 1.5)
+    f["rec_flat"] = np.clip(3.0 * rec, -1.5, 1.5)
+    return f
+
+
+def _loud_file(f, kind, peak, subtype):
+    p = f["dir"] / f"{kind}_{peak:g}_{subtype}.wav"
+    if not p.exists():
+        sf.write(p, f[kind] * peak, FS_IR, subtype=subtype)
+    return p
+
+
+LOUD_COMMANDS = {
+    "ir": lambda f, p, s: ["ir", _loud_file(f, "ir", p, s)],
+    "stipa": lambda f, p, s: ["stipa", _loud_file(f, "rec", p, s)],
+    "pair": lambda f, p, s: ["pair", f["clean"], _loud_file(f, "rec", p, s)],
+    "inspect": lambda f, p, s: ["inspect", _loud_file(f, "rec", p, s)],
+}
+
+
+@pytest.mark.parametrize("command", list(LOUD_COMMANDS))
+@pytest.mark.parametrize("peak,below", [(1.5, 0.75), (4.0, 0.5)])
+@pytest.mark.parametrize("subtype", ["FLOAT", "DOUBLE"])
+def test_a_float_wav_peaking_above_one_is_accepted_with_the_numbers_of_the_same_data_below_one(
+        loud, capsys, command, peak, below, subtype):
+    # before: 'ir' and 'stipa' refused these files as "clipped — record again with less gain"
+    code, out, err = run_cli(LOUD_COMMANDS[command](loud, peak, subtype) + ["--json"], capsys)
+    assert code == 0, err
+    code_ref, out_ref, err_ref = run_cli(LOUD_COMMANDS[command](loud, below, "FLOAT") + ["--json"], capsys)
+    assert code_ref == 0, err_ref
+    got, ref = _flat(json.loads(out)), _flat(json.loads(out_ref))
+    assert got.keys() == ref.keys()
+    skip = ("/inputs/", "name", "figure_data", "band_levels_db")
+    compared = [k for k in got if not any(s in k for s in skip)]
+    assert len(compared) > 10
+    assert {k: got[k] for k in compared} == {k: ref[k] for k in compared}
+    for k in got:
+        if "band_levels_db" in k:  # levels follow the gain: 20 log10(peak / below), each printed to 0.1 dB
+            assert got[k] - ref[k] == pytest.approx(20 * np.log10(peak / below), abs=0.1 + 1e-9), k
+
+
+def _refused_as_clipped(argv, tmp_path, capsys):
+    out = tmp_path / "r.json"
+    code, stdout, stderr = run_cli(argv + ["--out", out], capsys)
+    lines = [ln for ln in stderr.strip().splitlines() if ln.strip()]
+    assert code == 2 and len(lines) == 1 and "clipped" in lines[0] and " — " in lines[0], stderr
+    assert "Traceback" not in stdout + stderr and not out.exists()
+
+
+@pytest.mark.parametrize("subtype", ["FLOAT", "DOUBLE"])
+@pytest.mark.parametrize("command,kind", [("ir", "ir_flat"), ("stipa", "rec_flat")])
+def test_a_float_wav_with_flat_tops_at_its_peak_is_still_refused(loud, tmp_path, capsys, subtype, command, kind):
+    p = tmp_path / f"{kind}.wav"
+    sf.write(p, loud[kind], FS_IR, subtype=subtype)  # peak 1.5, flat tops there
+    _refused_as_clipped([command, p], tmp_path, capsys)
+
+
+@pytest.mark.parametrize("command,kind", [("ir", "ir_flat"), ("stipa", "rec_flat")])
+def test_a_pcm16_wav_at_full_scale_with_flat_tops_is_still_refused(loud, tmp_path, capsys, command, kind):
+    p = tmp_path / f"{kind}.wav"
+    sf.write(p, loud[kind] / 1.5, FS_IR, subtype="PCM_16")  # flat tops at full scale
+    _refused_as_clipped([command, p], tmp_path, capsys)
+
+
+@pytest.mark.parametrize("command,kind", [("ir", "ir"), ("stipa", "rec")])
+def test_full_scale_samples_are_clipping_in_a_pcm_file_only(loud, tmp_path, capsys, command, kind):
+    # five isolated samples at full scale (no flat top): the full-scale rule of integer formats
+    # refuses the PCM_16 file; the same samples as FLOAT are floating-point data and accepted.
+    # This needs the file's format to reach the check (an array-only rule would pass both).
+    x = 0.5 * loud[kind]
+    for k in range(5):
+        x[FS_IR // 10 + 997 * k] = 1.0 if k % 2 else -1.0
+    pcm, flt = tmp_path / "pcm.wav", tmp_path / "float.wav"
+    sf.write(pcm, x, FS_IR, subtype="PCM_16")
+    sf.write(flt, x, FS_IR, subtype="FLOAT")
+    _refused_as_clipped([command, pcm], tmp_path, capsys)
+    code, _, err = run_cli([command, flt], capsys)
+    assert code == 0, err
+
+
+def test_an_impulse_response_file_is_checked_once_by_the_rule_of_its_format(loud, tmp_path, monkeypatch):
+    # sti_from_ir_file read the file (checked by the full-scale rule of any format) and checked
+    # the array a second time; now one check, fed the file's sample format
+    from envpredict import audio
+    from envpredict.indirect import sti_from_ir_file
+
+    seen = []
+    real = audio.SignalCheck.finish
+
+    def finish(self):
+        seen.append(self.subtype)
+        return real(self)
+
+    monkeypatch.setattr(audio.SignalCheck, "finish", finish)
+    for subtype in ("FLOAT", "PCM_24"):
+        p = tmp_path / f"ir_{subtype}.wav"
+        sf.write(p, 0.5 * loud["ir"], FS_IR, subtype=subtype)
+        seen.clear()
+        sti_from_ir_file(p)
+        assert seen == [subtype]

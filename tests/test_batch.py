@@ -608,3 +608,109 @@ def test_a_scheduler_address_that_is_not_dask_is_refused_in_one_line(tmp_path, c
     assert code == 2, err
     assert "does not answer as a dask scheduler" in err and "out of memory" not in err
     assert not (tmp_path / "o.csv").exists()
+
+
+# ---------------------------------------------------------------------------
+# A dask cluster that dies mid-batch
+# ---------------------------------------------------------------------------
+
+
+def _free_port() -> int:
+    import socket
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@contextlib.contextmanager
+def _dask_cluster():
+    """A real dask cluster in subprocesses (a scheduler and one worker without a nanny, on
+    loopback), each in its own process group so that a test can kill it; yields
+    ``(address, scheduler_process, worker_process)``."""
+    distributed = pytest.importorskip("distributed")
+    port = _free_port()
+    address = f"tcp://127.0.0.1:{port}"
+    quiet = {"stdout": subprocess.DEVNULL, "stderr": subprocess.DEVNULL, "start_new_session": True}
+    procs = [subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_scheduler", "--host", "127.0.0.1",
+                               "--port", str(port), "--no-dashboard"], **quiet)]
+    try:
+        procs.append(subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_worker", address, "--nthreads", "1",
+                                       "--no-nanny", "--no-dashboard"], **quiet))
+        with distributed.Client(address, timeout="60s") as c:
+            c.wait_for_workers(1, timeout=60)
+        yield address, procs[0], procs[1]
+    finally:
+        for p in procs:
+            with contextlib.suppress(ProcessLookupError):
+                os.killpg(p.pid, signal.SIGKILL)
+            p.wait()
+
+
+@pytest.fixture(scope="module")
+def long_ir_manifest(ir_corpus, tmp_path_factory):
+    """The IR corpus three times over (90 rows, absolute paths) and its one-worker results."""
+    d = tmp_path_factory.mktemp("long_ir")
+    _, rows = read_results(ir_corpus["reference"])
+    files = [str(ir_corpus["dir"] / f"irs/pos{i // 3:02d}_{i % 3}.wav") for i in range(N_IR_ROWS)]
+    manifest = _write_csv(d / "manifest.csv", ["ir", "condition"],
+                          [[f, f"c{k}"] for k in range(3) for f in files])
+    ref = d / "reference.csv"
+    run_batch(manifest, ref, workers=1)
+    return {"manifest": manifest, "reference": ref, "rows": 3 * N_IR_ROWS}
+
+
+def test_a_dask_scheduler_killed_mid_batch_gives_one_line_and_keeps_the_finished_rows(long_ir_manifest, tmp_path):
+    # before: dask's client logged a 38-line traceback on stderr ahead of the error line
+    out = tmp_path / "dask.csv"
+    with _dask_cluster() as (address, scheduler, _worker):
+        cmd = [sys.executable, "-c", "from envpredict.cli import main; main()", "batch",
+               str(long_ir_manifest["manifest"]), "--out", str(out), "--scheduler", address]
+        proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, start_new_session=True)
+        try:
+            deadline = time.monotonic() + 120
+            while _data_lines(out) < 3 and proc.poll() is None and time.monotonic() < deadline:
+                time.sleep(0.005)
+            assert proc.poll() is None, "the batch ended before the scheduler could be killed"
+            os.killpg(scheduler.pid, signal.SIGKILL)
+            _, err = proc.communicate(timeout=120)
+        finally:
+            with contextlib.suppress(ProcessLookupError):
+                os.killpg(proc.pid, signal.SIGKILL)
+    err = err.decode()
+    lines = [ln for ln in err.splitlines() if ln.strip()]
+    assert proc.returncode == 1, err
+    assert len(lines) == 1 and lines[0].startswith("error: ") and " — " in lines[0], err
+    assert "Traceback" not in err and "stopped answering" in err and "--resume" in err, err
+    kept = _data_lines(out)
+    assert 3 <= kept < long_ir_manifest["rows"], "the batch finished before the scheduler was killed"
+    _, rows = read_results(out)
+    assert len(rows) == kept and all(not r["error"] for r in rows) and len({r["row"] for r in rows}) == kept
+    assert f"after {kept} of {long_ir_manifest['rows']} rows" in err
+    # the finished rows are kept: --resume (here on the local backend) scores only the rest
+    s = run_batch(long_ir_manifest["manifest"], out, workers=1, resume=True)
+    assert (s.skipped, s.scored, s.failed) == (kept, long_ir_manifest["rows"] - kept, 0)
+    _numeric_equal(out, long_ir_manifest["reference"])
+
+
+def test_a_dask_cluster_that_loses_its_only_worker_stops_instead_of_waiting_for_ever(long_ir_manifest, tmp_path,
+                                                                                       monkeypatch):
+    from envpredict.exceptions import ComputationError
+
+    monkeypatch.setattr(batch, "NO_WORKER_TIMEOUT_S", 2.0)
+    out = tmp_path / "dask.csv"
+    with _dask_cluster() as (address, _scheduler, worker):
+        def kill_worker_after_three(done, total):
+            if done == 3:
+                os.killpg(worker.pid, signal.SIGKILL)
+
+        t0 = time.monotonic()
+        with pytest.raises(ComputationError, match="has had no workers for 2 s") as e:
+            run_batch(long_ir_manifest["manifest"], out, scheduler=address, progress=kill_worker_after_three)
+        assert time.monotonic() - t0 < 60
+    assert "\n" not in str(e.value) and "--resume" in str(e.value)
+    kept = _data_lines(out)
+    assert 3 <= kept < long_ir_manifest["rows"] and f"after {kept} of" in str(e.value)
+    s = run_batch(long_ir_manifest["manifest"], out, workers=1, resume=True)
+    assert (s.skipped, s.scored, s.failed) == (kept, long_ir_manifest["rows"] - kept, 0)
+    _numeric_equal(out, long_ir_manifest["reference"])

@@ -301,3 +301,101 @@ def test_write_full_sti_signals_is_what_the_cli_prints(tmp_path, capsys):
     with pytest.raises(InputError, match="8 kHz octave"):
         write_full_sti_signals(tmp_path / "new", 16000)
     assert not (tmp_path / "new").exists()
+
+
+# --- generation in blocks ---------------------------------------------------------------------
+
+
+def _joined(sig, **kw):
+    return np.concatenate(list(sig.blocks(**kw)))
+
+
+@pytest.mark.parametrize("make", ["stipa", "full"])
+def test_a_signal_made_in_blocks_is_the_whole_array_signal(make, tmp_path):
+    # 20 s of STIPA (and one 12.7 s full-STI signal) in blocks of 1.3 s, the band noises in a
+    # temporary file, against the same signal made as ONE block (the arithmetic of the former
+    # whole-array generator, element by element): equal to float rounding (the sums of
+    # squares are added block by block); the 24-bit files are byte-identical
+    from envpredict.audio import write_wav
+    from envpredict.signals import full_sti_test_signal, stipa_test_signal
+
+    fs = 48000
+    sig = stipa_test_signal(20, fs, seed=5) if make == "stipa" else full_sti_test_signal(1.6, 12.5, fs, seed=5)
+    whole = _joined(sig, block=sig.n, in_memory=True)
+    assert whole.size == sig.n and np.abs(whole).max() == pytest.approx(10 ** (std.TEST_SIGNAL_PEAK_DBFS / 20))
+    blocks = _joined(sig, block=round(1.3 * fs), spill_dir=tmp_path)
+    np.testing.assert_allclose(blocks, whole, rtol=0, atol=1e-15)
+    assert sig.rms_dbfs == pytest.approx(10 * np.log10(np.mean(whole ** 2)), abs=1e-9)
+    write_wav(tmp_path / "whole.wav", whole, fs)
+    write_wav(tmp_path / "blocks.wav", sig.blocks(block=round(0.7 * fs), spill_dir=tmp_path), fs)
+    assert (tmp_path / "blocks.wav").read_bytes() == (tmp_path / "whole.wav").read_bytes()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["blocks.wav", "whole.wav"]  # no temporary left
+
+
+def test_a_signal_longer_than_the_noise_period_repeats_its_noise_under_running_modulation(monkeypatch):
+    # beyond NOISE_PERIOD_S the band noises repeat (here a period of 16 s, so the test is
+    # quick): the band levels still follow the speech spectrum (Table A.2) and the bands
+    # still carry their Table B.1 modulation, read by the direct method as a near-perfect
+    # STI on the undistorted signal (IEC 60268-16: an undistorted path reads STI 1)
+    from envpredict import signals
+    from envpredict.direct import stipa_from_recording
+
+    monkeypatch.setattr(signals, "NOISE_PERIOD_S", 16.0)
+    x = stipa_signal(40, FS, seed=3)
+    period = 16 * FS
+    assert x.size == 40 * FS
+    spec = np.abs(np.fft.rfft(x)) ** 2
+    f = np.fft.rfftfreq(x.size, 1 / FS)
+    lev = np.array([10 * np.log10(spec[carrier_mask(f, fc, 15.0)].sum()) for fc in std.OCTAVE_BANDS_HZ])
+    want = np.array(std.SPEECH_SPECTRUM_MALE_DB)
+    np.testing.assert_allclose(lev - lev[3], want - want[3], atol=0.1)
+    r = stipa_from_recording(x, FS)
+    assert r.sti.sti >= 0.97
+    # the noise does repeat: the 8 kHz carrier (whose 12.5 Hz envelope has whole periods in
+    # 16 s) is the same one period later, up to the envelope's ratio
+    X = np.fft.rfft(x)
+    band = np.fft.irfft(np.where(carrier_mask(f, 8000.0), X, 0), x.size)
+    a, b = band[2 * FS: 6 * FS], band[period + 2 * FS: period + 6 * FS]
+    assert np.corrcoef(a, b)[0, 1] > 0.9
+
+
+def test_the_memory_of_writing_a_signal_does_not_grow_with_its_length(tmp_path, monkeypatch):
+    # Python's allocation tracer (tracemalloc, which sees numpy's buffers): writing 90 s
+    # takes no more memory than writing 30 s (here with a noise period of 10 s). The former
+    # whole-array generator held seven bands of the whole length several times over (about
+    # 13.6 MB per second at 48 kHz, 6.8 MB per second at 24 kHz: 600 MB for 90 s); even
+    # holding just the finished signal would add 8 bytes per sample (0.7 MB per second here).
+    import tracemalloc
+
+    from envpredict import signals
+
+    monkeypatch.setattr(signals, "NOISE_PERIOD_S", 10.0)
+    peaks = {}
+    for seconds in (30, 90):
+        tracemalloc.start()
+        try:
+            r = signals.write_stipa_signal(tmp_path / f"s{seconds}.wav", seconds, FS, seed=1)
+            peaks[seconds] = tracemalloc.get_traced_memory()[1]
+        finally:
+            tracemalloc.stop()
+        assert r.seconds == seconds and sf.info(str(tmp_path / f"s{seconds}.wav")).frames == seconds * FS
+    assert peaks[90] < peaks[30] + 8 * 10 * FS, peaks  # less than 10 s of float64 more for 60 s more
+    assert peaks[90] < 90 * 8 * FS, peaks  # less than the finished signal alone
+
+
+def test_a_failure_while_writing_in_blocks_leaves_no_file(tmp_path, monkeypatch):
+    from envpredict import signals
+
+    calls = {"n": 0}
+    real = signals.stipa_envelope
+
+    def failing(t, f1, f2, *a, **k):
+        calls["n"] += 1
+        if calls["n"] > 7 * 12:  # fails in the second pass over the blocks
+            raise RuntimeError("simulated failure")
+        return real(t, f1, f2, *a, **k)
+
+    monkeypatch.setattr(signals, "stipa_envelope", failing)
+    with pytest.raises(RuntimeError, match="simulated"):
+        signals.write_stipa_signal(tmp_path / "s.wav", 20, FS)
+    assert list(tmp_path.iterdir()) == []  # no output, no .part, no noise file
