@@ -31,13 +31,9 @@ from pathlib import Path
 
 import numpy as np
 
+from . import checks
+from .checks import MAX_RATE_HZ, MIN_RATE_HZ  # noqa: F401 (the rate limits, read from here too)
 from .exceptions import InputError
-
-#: Sample rates accepted at all, Hz. Below 8 kHz no index in this tool has bandwidth
-#: to work with; above 384 kHz the input is almost certainly mislabelled (common
-#: practice, no source).
-MIN_RATE_HZ: int = 8000
-MAX_RATE_HZ: int = 384000
 
 #: A signal whose RMS is below this (about -140 dBFS) is treated as silence: it is
 #: below the noise of any 24-bit converter (common practice, no source).
@@ -56,6 +52,10 @@ CLIP_MIN_RUNS: int = 5
 #: cross-correlation peak, small enough to bound memory on long inputs (judgement).
 ALIGN_EXCERPT_S: float = 30.0
 
+#: Largest delay :func:`estimate_delay` searches, s: the search reads 2 x this much of
+#: the signal; no alignment of a recording needs more (judgement).
+MAX_DELAY_S: float = 60.0
+
 #: Plausible calibrator levels, dB SPL (IEC 60942 calibrators: 94, 104, 114 dB typical).
 CALIBRATOR_LEVEL_RANGE_DB: tuple[float, float] = (60.0, 150.0)
 
@@ -73,7 +73,16 @@ AUDIO_SUFFIXES = {".wav", ".flac", ".ogg", ".oga", ".aif", ".aiff", ".caf", ".w6
 
 def audio_files_in(folder: str | os.PathLike) -> list[Path]:
     """The audio files of a folder (by suffix, :data:`AUDIO_SUFFIXES`), sorted by name;
-    hidden files (names starting with a dot) are skipped. Not recursive."""
+    hidden files (names starting with a dot) are skipped. Not recursive.
+
+    Raises
+    ------
+    InputError
+        If ``folder`` is not a path of an existing folder.
+    """
+    folder = checks.path(folder, "folder")
+    if not folder.is_dir():
+        raise InputError(f"'{folder}' is not a folder", "give the path of a folder of audio files")
     return sorted(q for q in Path(folder).iterdir()
                   if q.suffix.lower() in AUDIO_SUFFIXES and not q.name.startswith("."))
 
@@ -81,8 +90,14 @@ def audio_files_in(folder: str | os.PathLike) -> list[Path]:
 def check_wav_path(path: str | os.PathLike) -> Path:
     """Refuse an output path that :func:`write_wav` cannot write: not ending in .wav, a
     folder, or in a folder that does not exist (so that a caller can refuse it before
-    its slow work)."""
-    out = Path(path)
+    its slow work).
+
+    Raises
+    ------
+    InputError
+        For any of these.
+    """
+    out = checks.path(path, "output")
     if out.suffix.lower() != ".wav":
         raise InputError(f"output '{out}' does not end in .wav", "give a file name ending in .wav")
     if out.exists() and out.is_dir():
@@ -102,6 +117,15 @@ def write_wav(path: str | os.PathLike, x: np.ndarray, fs: int, *, subtype: str =
     x : samples, full scale +-1.
     fs : sample rate, Hz.
     subtype : sample format of libsndfile (default 24-bit PCM).
+
+    Raises
+    ------
+    InputError
+        For a path :func:`check_wav_path` refuses, samples that are not a 1-D or 2-D
+        (frames, channels) array of finite numbers, a rate outside the supported range
+        or an unknown ``subtype``.
+    ComputationError
+        If the file cannot be written (see :func:`envpredict.outputs.atomic_write_bytes`).
     """
     import io
 
@@ -110,13 +134,17 @@ def write_wav(path: str | os.PathLike, x: np.ndarray, fs: int, *, subtype: str =
     from .outputs import atomic_write_bytes
 
     out = check_wav_path(path)
+    x = checks.array(x, "signal to write", ndim=(1, 2))
+    fs = check_rate(fs, "signal to write")
+    if not isinstance(subtype, str) or not sf.check_format("WAV", subtype):
+        raise InputError(f"sample format {subtype!r:.40} cannot be written to WAV", "give e.g. PCM_16, PCM_24 or FLOAT")
     buf = io.BytesIO()
     sf.write(buf, x, fs, format="WAV", subtype=subtype)
     return atomic_write_bytes(out, buf.getvalue())
 
 
 def _check_path(path: str | os.PathLike, name: str) -> Path:
-    p = Path(path)
+    p = checks.path(path, name)
     if not p.exists():
         raise InputError(f"{name} '{p}' does not exist", "check the path")
     if p.is_dir():
@@ -142,7 +170,17 @@ def audio_info(path: str | os.PathLike, name: str = "input") -> tuple[int, int, 
 
 
 def pick_channel(data: np.ndarray, channel: int | None, name: str, source: str) -> np.ndarray:
-    """Reduce a (frames, channels) array to one channel, refusing ambiguity."""
+    """Reduce a (frames, channels) array to one channel, refusing ambiguity.
+
+    Raises
+    ------
+    InputError
+        For data that is not a 1-D or 2-D array, a missing ``channel`` of several, or a
+        channel that does not exist.
+    """
+    data = checks.array(data, f"{name} '{source}'", ndim=(1, 2), min_size=0, finite=False)
+    if channel is not None:
+        channel = checks.number(channel, "channel", integer=True, fix="give a channel number 0, 1, ...")
     if data.ndim == 1:
         data = data[:, None]
     n_ch = data.shape[1]
@@ -190,19 +228,15 @@ def load_audio(
 
 
 def check_rate(fs: float, name: str = "input") -> int:
-    """Refuse sample rates that are not a positive whole number in the supported range."""
-    try:
-        fsf = float(fs)
-    except (TypeError, ValueError):
-        raise InputError(f"sample rate of {name} is not a number ({fs!r})", "give the rate in Hz") from None
-    if not np.isfinite(fsf) or fsf != round(fsf) or fsf <= 0:
-        raise InputError(f"sample rate of {name} is {fs!r}", "give a whole, positive rate in Hz")
-    if not MIN_RATE_HZ <= fsf <= MAX_RATE_HZ:
-        raise InputError(
-            f"sample rate of {name} is {int(fsf)} Hz, outside {MIN_RATE_HZ}..{MAX_RATE_HZ} Hz",
-            "resample the recording to a common rate such as 48000 Hz",
-        )
-    return int(fsf)
+    """Refuse sample rates that are not a positive whole number in the supported range
+    (the rule is :func:`envpredict.checks.sample_rate`).
+
+    Raises
+    ------
+    InputError
+        For any other rate.
+    """
+    return checks.sample_rate(fs, name)
 
 
 def as_mono_array(x, fs: float, name: str = "input", *, hint: str = "") -> tuple[np.ndarray, int]:
@@ -402,7 +436,14 @@ def validate_signal(
     Returns
     -------
     ndarray, shape (n,), float64 (the input itself when it already is).
+
+    Raises
+    ------
+    InputError
+        For any of the inputs refused above, or a ``min_seconds`` that is not a number of 0 or more.
     """
+    min_seconds = checks.number(min_seconds, "shortest length", lo=0.0)
+    allow_clipping = checks.flag(allow_clipping, "allow_clipping")
     a, fs = as_mono_array(x, fs, name)
     a = a.astype(np.float64, copy=False)
     check = SignalCheck(name, allow_clipping=allow_clipping, min_seconds=min_seconds, fs=fs)
@@ -413,14 +454,29 @@ def validate_signal(
 
 def is_clipped(x: np.ndarray) -> bool:
     """Digital clipping by the rule of :class:`SignalCheck` (samples at full scale, or
-    repeated flat tops at the global peak)."""
+    repeated flat tops at the global peak).
+
+    Raises
+    ------
+    InputError
+        If ``x`` is not an array of numbers.
+    """
     check = SignalCheck(allow_clipping=True)
-    check.update(x)
+    check.update(checks.array(x, "signal", ndim=(1, 2), min_size=0, finite=False))
     return check.clipped
 
 
 def resample(x: np.ndarray, fs_in: int, fs_out: int) -> np.ndarray:
-    """Resample with a polyphase FIR (scipy.signal.resample_poly)."""
+    """Resample with a polyphase FIR (scipy.signal.resample_poly).
+
+    Raises
+    ------
+    InputError
+        For a signal that is not a 1-D array of finite numbers or a rate outside the
+        supported range.
+    """
+    fs_in, fs_out = check_rate(fs_in, "input"), check_rate(fs_out, "output")
+    x = checks.array(x, "signal", min_size=0)
     if int(fs_in) == int(fs_out):
         return np.asarray(x, dtype=np.float64)
     from scipy.signal import resample_poly
@@ -459,7 +515,14 @@ def in_parallel(tasks: list) -> list:
 
     For work that releases the GIL (scipy's polyphase filter, numpy's FFT and array
     arithmetic on long arrays); the results are the same either way.
+
+    Raises
+    ------
+    InputError
+        If ``tasks`` is not a list (or tuple) of callables.
     """
+    if not isinstance(tasks, (list, tuple)) or not all(callable(t) for t in tasks):
+        raise InputError("tasks are not a list of callables", "pass a list of functions without arguments")
     threads = min(len(tasks), usable_threads())
     if threads < 2:
         return [task() for task in tasks]
@@ -471,7 +534,14 @@ def in_parallel(tasks: list) -> list:
 
 def resample_ratio(fs_in: int, fs_out: int) -> tuple[int, int]:
     """``(up, down)`` factors of the polyphase resampling from ``fs_in`` to ``fs_out``
-    (the ratio in lowest terms, denominator at most 2000)."""
+    (the ratio in lowest terms, denominator at most 2000).
+
+    Raises
+    ------
+    InputError
+        For a rate outside the supported range (:func:`check_rate`).
+    """
+    fs_in, fs_out = check_rate(fs_in, "input"), check_rate(fs_out, "output")
     r = Fraction(int(fs_out), int(fs_in)).limit_denominator(2000)
     return r.numerator, r.denominator
 
@@ -511,6 +581,12 @@ def estimate_delay(
         with (1 for an exact delayed copy, near 0 for unrelated signals; negative for
         inverted polarity).
 
+    Raises
+    ------
+    InputError
+        For signals refused by :func:`as_source`, a ``max_delay_s`` outside
+        0..:data:`MAX_DELAY_S`, a negative ``near`` or an ``excerpt_s`` that is not positive.
+
     Examples
     --------
     >>> import numpy as np
@@ -521,6 +597,9 @@ def estimate_delay(
     """
     from scipy.signal import fftconvolve
 
+    max_delay_s = checks.number(max_delay_s, "maximum delay", lo=0.0, hi=MAX_DELAY_S)
+    near = checks.number(near, "start of the excerpt", lo=0, hi=checks.MAX_SAMPLES, integer=True)
+    excerpt_s = checks.optional_number(excerpt_s, "excerpt length", lo=0.0, lo_open=True, hi=ALIGN_EXCERPT_S)
     ref_src, x_src = _as_source(reference, fs, "reference"), _as_source(x, fs, "signal")
     rate = ref_src.fs
     d = round(max_delay_s * rate)
@@ -545,7 +624,14 @@ def estimate_delay(
 def zero_lag_correlation(reference: "Source | np.ndarray", x: "Source | np.ndarray", fs: int | None = None, *,
                          excerpt_s: float | None = None) -> float:
     """Normalised correlation of two signals taken as aligned (lag 0), over their common
-    start of at most ``excerpt_s`` (default :data:`ALIGN_EXCERPT_S`)."""
+    start of at most ``excerpt_s`` (default :data:`ALIGN_EXCERPT_S`).
+
+    Raises
+    ------
+    InputError
+        For signals refused by :func:`as_source` or an ``excerpt_s`` that is not positive.
+    """
+    excerpt_s = checks.optional_number(excerpt_s, "excerpt length", lo=0.0, lo_open=True, hi=ALIGN_EXCERPT_S)
     ref_src, x_src = _as_source(reference, fs, "reference"), _as_source(x, fs, "signal")
     w = min(ref_src.n, x_src.n, int((ALIGN_EXCERPT_S if excerpt_s is None else excerpt_s) * ref_src.fs))
     a, b = ref_src.read(0, w), x_src.read(0, w)
@@ -554,7 +640,14 @@ def zero_lag_correlation(reference: "Source | np.ndarray", x: "Source | np.ndarr
 
 
 def rms_dbfs(x: np.ndarray) -> float:
-    """RMS level in dB re full scale (a full-scale sine reads -3.01 dBFS)."""
+    """RMS level in dB re full scale (a full-scale sine reads -3.01 dBFS).
+
+    Raises
+    ------
+    InputError
+        If ``x`` is not a non-empty array of finite numbers.
+    """
+    x = checks.array(x, "signal", ndim=(1, 2))
     r = float(np.sqrt(np.mean(np.square(x, dtype=np.float64))))
     return 20.0 * np.log10(r) if r > 0 else -np.inf
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from . import checks
 from . import standards as std
 from .sti import format_index
 
@@ -26,7 +27,14 @@ NO_AUDITORY = (
 
 def below_target(sti: float) -> str | None:
     """The caution for an STI below the common voice-alarm requirement, judged on the
-    unrounded value and shown with the decimals that keep the two consistent."""
+    unrounded value and shown with the decimals that keep the two consistent.
+
+    Raises
+    ------
+    InputError
+        If ``sti`` is not a finite number.
+    """
+    sti = checks.number(sti, "STI")
     if sti < std.VOICE_ALARM_TARGET_STI:
         return (f"STI {format_index(sti)} is below {std.VOICE_ALARM_TARGET_STI:.2f}, the value commonly "
                 "required of voice-alarm systems.")

@@ -13,6 +13,7 @@ from typing import Sequence
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import InputError
 from .results import jsonable
@@ -21,8 +22,19 @@ TALKERS = tuple(std.WEIGHTS)
 
 
 def table_array(values: tuple) -> np.ndarray:
-    """A table of :mod:`envpredict.standards` as a float array, ``None`` entries as NaN."""
-    return np.array([np.nan if v is None else v for v in values], dtype=float)
+    """A table of :mod:`envpredict.standards` as a float array, ``None`` entries as NaN.
+
+    Raises
+    ------
+    InputError
+        If ``values`` is not a sequence of numbers (and None).
+    """
+    if isinstance(values, (str, bytes)) or not isinstance(values, (tuple, list, np.ndarray)):
+        raise InputError(f"table {values!r:.40} is not a sequence of numbers", "pass a tuple of numbers (or None)")
+    try:
+        return np.array([np.nan if v is None else v for v in values], dtype=float)
+    except (TypeError, ValueError):
+        raise InputError("table holds entries that are not numbers", "pass a tuple of numbers (or None)") from None
 
 
 def check_talker(talker: str) -> str:
@@ -164,7 +176,16 @@ def verdict_decimals(value: float, requirement: float = std.VOICE_ALARM_TARGET_S
 
     >>> verdict_decimals(0.498), verdict_decimals(0.4996), verdict_decimals(0.62)
     (3, 4, 2)
+
+    Raises
+    ------
+    InputError
+        For a value or requirement that is not a finite number, or ``minimum`` outside
+        0..:data:`MAX_VERDICT_DECIMALS`.
     """
+    value = checks.number(value, "index value")
+    requirement = checks.number(requirement, "requirement")
+    minimum = checks.number(minimum, "decimals", lo=0, hi=MAX_VERDICT_DECIMALS, integer=True)
     v, req = float(value), float(requirement)
     for d in range(int(minimum), MAX_VERDICT_DECIMALS + 1):
         if (round(v, d) >= req) == (v >= req):
@@ -174,7 +195,16 @@ def verdict_decimals(value: float, requirement: float = std.VOICE_ALARM_TARGET_S
 
 def format_index(value: float, requirement: float = std.VOICE_ALARM_TARGET_STI, minimum: int = 2) -> str:
     """``value`` as text with :func:`verdict_decimals` decimals ("0.48", "0.498"); a value
-    within 1e-6 below the requirement is cut (not rounded) to stay below it ("0.499999")."""
+    within 1e-6 below the requirement is cut (not rounded) to stay below it ("0.499999").
+
+    Raises
+    ------
+    InputError
+        As :func:`verdict_decimals`.
+    """
+    value = checks.number(value, "index value")
+    requirement = checks.number(requirement, "requirement")
+    minimum = checks.number(minimum, "decimals", lo=0, hi=MAX_VERDICT_DECIMALS, integer=True)
     v = float(value)
     d = verdict_decimals(v, requirement, minimum)
     if (round(v, d) >= requirement) != (v >= requirement):
