@@ -33,6 +33,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import InputError
 from .results import jsonable
@@ -123,7 +124,16 @@ def band_envelopes(dft_frames: np.ndarray) -> np.ndarray:
     spares the FFT a copy). Each value is the root of the summed 512-point DFT power of the
     band's bins (Taal 2011, eq. 1): ``sqrt(A @ |X|**2)`` with ``A`` from
     :func:`third_octave_matrix`.
+
+    Raises
+    ------
+    InputError
+        For frames that are not a (K, 256) or (K, 512) array of finite numbers.
     """
+    dft_frames = checks.array(dft_frames, "DFT frames", ndim=2, min_size=0)
+    if dft_frames.shape[1] not in (std.STOI_FRAME_LEN, std.STOI_NFFT):
+        raise InputError(f"DFT frames have {dft_frames.shape[1]} values each",
+                         f"pass (K, {std.STOI_FRAME_LEN}) or (K, {std.STOI_NFFT}) frames")
     edges = _band_bin_edges()
     spec = np.fft.rfft(dft_frames, n=std.STOI_NFFT, axis=1)
     sq = spec[:, edges[0] : edges[-1]].view(np.float64)  # real and imaginary parts side by side
@@ -133,7 +143,14 @@ def band_envelopes(dft_frames: np.ndarray) -> np.ndarray:
 
 
 def frame_count(n_samples: int) -> int:
-    """Number of analysis frames of a signal: starts 0, 128, ... below n - 256."""
+    """Number of analysis frames of a signal: starts 0, 128, ... below n - 256.
+
+    Raises
+    ------
+    InputError
+        If ``n_samples`` is not a whole number of samples.
+    """
+    n_samples = checks.samples(n_samples, "signal length")
     return len(range(0, max(0, n_samples - std.STOI_FRAME_LEN), std.STOI_HOP))
 
 
@@ -150,7 +167,17 @@ def _chunk_samples(x_read: Reader, f0: int, f1: int) -> np.ndarray:
 
 
 def frame_energies_db(x_read: Reader, n_samples: int, chunk_frames: int = DEFAULT_CHUNK_FRAMES) -> np.ndarray:
-    """Energy of each windowed frame of the clean signal, dB (20 log10 of the frame norm)."""
+    """Energy of each windowed frame of the clean signal, dB (20 log10 of the frame norm).
+
+    Raises
+    ------
+    InputError
+        For a reader that is not callable, or a length or chunk that is not a whole number.
+    """
+    if not callable(x_read):
+        raise InputError("x_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    n_samples = checks.samples(n_samples, "signal length")
+    chunk_frames = checks.number(chunk_frames, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
     w = analysis_window()
     total = frame_count(n_samples)
     out = np.empty(total)
@@ -214,7 +241,20 @@ def tf_envelopes(
     Two passes over the 10 kHz signals: clean frame energies first (the 40 dB range
     is relative to the loudest frame of the whole signal), then the spectra of the
     kept frames. Returns ``(X, Y, kept_frame_indices, total_frames)``.
+
+    Raises
+    ------
+    InputError
+        For readers or ``progress`` that are not callable, or a length or chunk that is not a whole number.
     """
+    if not callable(clean_read):
+        raise InputError("clean_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    if not callable(degraded_read):
+        raise InputError("degraded_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    n_samples = checks.samples(n_samples, "signal length")
+    chunk_frames = checks.number(chunk_frames, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
+    if progress is not None and not callable(progress):
+        raise InputError("progress is not a function", "pass a function (done, total) or None")
     total = frame_count(n_samples)
     n_chunks = max(1, -(-total // chunk_frames))
     energy = frame_energies_db(clean_read, n_samples, chunk_frames)
@@ -342,10 +382,21 @@ def segment_scores(x_env: np.ndarray, y_env: np.ndarray, which: tuple[str, ...] 
     All segments are processed at once (blocks of :data:`SEGMENT_BLOCK`): the sums over
     a segment's 30 frames run as 30 vector operations over all segments, on views of the
     envelopes, so the working set stays small (no 30-fold copy of the envelopes).
+
+    Raises
+    ------
+    InputError
+        For envelopes that are not arrays of finite numbers of the same shape, or unknown names in ``which``.
     """
+    x_env = checks.array(x_env, "clean envelopes", ndim=2, min_size=0)
+    y_env = checks.array(y_env, "degraded envelopes", ndim=2, min_size=0)
+    if x_env.shape != y_env.shape:
+        raise InputError(f"envelope shapes differ: {x_env.shape} and {y_env.shape}", "pass the envelopes of one pair")
+    if isinstance(which, str) or not all(isinstance(w, str) for w in which):
+        raise InputError(f"which {which!r:.40} is not a tuple of names", f"choose from {SCORES}")
     unknown = set(which) - set(SCORES)
     if unknown:
-        raise ValueError(f"unknown segment statistics {sorted(unknown)}; choose from {SCORES}")
+        raise InputError(f"unknown segment statistics {sorted(unknown)}", f"choose from {', '.join(SCORES)}")
     n = std.STOI_SEGMENT_FRAMES
     n_bands, m_frames = x_env.shape
     n_seg = m_frames - n + 1
@@ -419,7 +470,22 @@ class CorrelationResult:
 def correlation_from_envelopes(
     x_env: np.ndarray, y_env: np.ndarray, kept_idx: np.ndarray, frames_total: int
 ) -> CorrelationResult:
-    """STOI, ESTOI and their diagnostics from the TF envelopes of a pair."""
+    """STOI, ESTOI and their diagnostics from the TF envelopes of a pair.
+
+    Raises
+    ------
+    InputError
+        For envelopes that are not (15, M) arrays of finite numbers of the same shape, frame
+        indices that are not numbers, or a frame count that is not a whole number.
+    """
+    x_env = checks.array(x_env, "clean envelopes", ndim=2, min_size=0)
+    y_env = checks.array(y_env, "degraded envelopes", ndim=2, min_size=0)
+    if x_env.shape != y_env.shape:
+        raise InputError(f"envelope shapes differ: {x_env.shape} and {y_env.shape}", "pass the envelopes of one pair")
+    kept_idx = checks.array(kept_idx, "kept frames", min_size=0)
+    frames_total = checks.samples(frames_total, "number of frames")
+    if x_env.shape[0] != std.STOI_NUM_BANDS:
+        raise InputError(f"envelopes have {x_env.shape[0]} bands", f"pass {std.STOI_NUM_BANDS} one-third-octave bands")
     sc = segment_scores(x_env, y_env)
     rho, share = sc["stoi_band_segment"], sc["estoi_band_segment"]
     n_bands = rho.shape[0]
@@ -462,7 +528,20 @@ def stoi_estoi_stream(
     n_samples : length of both signals.
     chunk_frames : frames per chunk; memory grows with it, the result does not change.
     progress : optional ``progress(done, total)`` callback.
+
+    Raises
+    ------
+    InputError
+        For readers or ``progress`` that are not callable, or a length or chunk that is not a whole number.
     """
+    if not callable(clean_read):
+        raise InputError("clean_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    if not callable(degraded_read):
+        raise InputError("degraded_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    n_samples = checks.samples(n_samples, "signal length")
+    chunk_frames = checks.number(chunk_frames, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
+    if progress is not None and not callable(progress):
+        raise InputError("progress is not a function", "pass a function (done, total) or None")
     x_env, y_env, kept, total = tf_envelopes(
         clean_read, degraded_read, n_samples, chunk_frames=chunk_frames, progress=progress
     )
