@@ -799,7 +799,16 @@ def full_sti_from_recordings(
 
     Valid input: each recording with at least 4 periods of its modulation frequency
     plus 1.25 s at each end (the 0.63 Hz signal: 8.9 s).
+
+    Raises
+    ------
+    InputError
+        For recordings that are not (samples, rate, name) triples, a recording refused by
+        the input rule or too short, or an option out of range.
     """
+    if isinstance(recordings, (str, bytes)) or not isinstance(recordings, Sequence) or not all(
+            isinstance(r, tuple) and len(r) == 3 for r in recordings):
+        raise InputError("recordings are not (samples, rate, name) triples", "pass one triple per recording")
     check_block_seconds(block_seconds)
 
     def source(x, fs, name):

@@ -58,6 +58,7 @@ from typing import Any
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import ComputationError, InputError
 from .results import jsonable
@@ -796,7 +797,16 @@ def scores_from_rows(
 
     ``rows`` are ``(line_number, {column: text})`` pairs as read from a CSV file;
     errors name ``source``, the line and the column. Counts must be whole numbers.
+
+    Raises
+    ------
+    InputError
+        For rows that are not (line, mapping) pairs, a missing column, or cells that are
+        not numbers or whole counts.
     """
+    if isinstance(rows, (str, bytes)) or not isinstance(rows, Sequence) or not all(
+            isinstance(r, tuple) and len(r) == 2 and isinstance(r[1], MappingType) for r in rows):
+        raise InputError("rows are not (line, row) pairs", "pass rows as read by envpredict.tables.read_table")
     index, correct, trials = (resolve_column(header, c, source) for c in (index, correct, trials))
     if not rows:
         raise InputError(f"{source} has a header but no rows", "add one row per tested condition")
@@ -887,7 +897,21 @@ def add_predictions(
     prediction; text that is not a number is refused with the row and column. Index
     values outside the range of the data the mapping was fitted on are marked
     ``extrapolated`` in ``column + "_note"``.
+
+    Raises
+    ------
+    InputError
+        For rows that are not (line, mapping) pairs, a ``mapping`` that is not a
+        :class:`ScoreMapping`, a missing or existing column, or index cells that are not numbers.
     """
+    if isinstance(rows, (str, bytes)) or not isinstance(rows, Sequence) or not all(
+            isinstance(r, tuple) and len(r) == 2 and isinstance(r[1], MappingType) for r in rows):
+        raise InputError("rows are not (line, row) pairs", "pass rows as read by envpredict.tables.read_table")
+    if not isinstance(mapping, ScoreMapping):
+        raise InputError("mapping is not a ScoreMapping", "pass the result of fit_mapping or read_mapping")
+    if index_column is not None:
+        index_column = checks.text(index_column, "index column")
+    digits = checks.number(digits, "decimals", lo=0, hi=17, integer=True)
     col = resolve_column(header, index_column or mapping.index, source)
     flag = f"{column}_note"
     for c in (column, flag):
@@ -934,9 +958,8 @@ def read_mapping(path: str | os.PathLike) -> ScoreMapping:
         A missing file, a folder, invalid JSON or content that is not a mapping.
     """
     import json
-    from pathlib import Path
 
-    p = Path(path)
+    p = checks.path(path, "mapping")
     if not p.exists():
         raise InputError(f"mapping '{p}' does not exist", "check the path, or write one with 'envpredict fitmap'")
     if p.is_dir():
@@ -1034,12 +1057,21 @@ def predict_file(
     Returns
     -------
     PredictedTable
+
+    Raises
+    ------
+    InputError
+        For a results file or mapping that cannot be read or is malformed, a missing index
+        column, an existing or empty ``column``, or an ``out`` that cannot be written.
+    ComputationError
+        If ``out`` cannot be written (a full disk).
     """
     from .tables import write_table
 
     if not str(column).strip():
         raise InputError("--name is empty", "give a column name")
     m = mapping if isinstance(mapping, ScoreMapping) else read_mapping(mapping)
+    path = checks.path(path, "results file")
     header, rows = read_table(path, "results file")
     tab = add_predictions(rows, header, m, index_column=index_column, column=str(column).strip(),
                           source=f"results file '{path}'")

@@ -28,6 +28,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .audio import (
     CLIP_MIN_FULL_SCALE_SAMPLES,
@@ -600,7 +601,14 @@ def pair_indices(
     Returns
     -------
     PairResult
+
+    Raises
+    ------
+    InputError
+        For files or signals refused by the input rule, a pair that does not match, or an
+        option out of range (``align`` not True or False, ``max_delay_s``, ``chunk_s``).
     """
+    align = checks.flag(align, "align")
     c = _as_pair_source(clean, fs, "clean signal")
     d = _as_pair_source(degraded, fs if fs_degraded is None else fs_degraded, "degraded signal")
     return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
@@ -620,7 +628,14 @@ def pair_from_files(
 
     ``channel`` selects the channel of any multi-channel file (mono files use their
     only channel); a multi-channel file without ``channel`` is refused.
+
+    Raises
+    ------
+    InputError
+        For files that are missing, unreadable or refused by the input rule, a pair that does
+        not match, or an option out of range.
     """
+    align = checks.flag(align, "align")
     with (FileSource(clean_path, channel if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
           FileSource(degraded_path, channel if _channels(degraded_path, "degraded") > 1 else None,
                      name="degraded") as d):

@@ -305,6 +305,7 @@ def resolve_column(header: Sequence[str], name: str, source: str) -> str:
         If ``name`` is not in ``header`` (or matches several columns), or ``header`` is not a
         list of names.
     """
+    name = checks.text(name, "column name")
     _check_header(header)
     if name in header:
         return name
