@@ -43,7 +43,9 @@ from pathlib import Path
 
 import numpy as np
 
+from . import checks
 from ._data import reference_dir
+from .exceptions import InputError
 
 
 @dataclass(frozen=True)
@@ -77,23 +79,52 @@ class CaseOutcome:
 
 
 def case_files(folder: Path | None = None) -> list[Path]:
-    folder = Path(folder) if folder else reference_dir()
+    """The case files (``*.json``) of ``folder`` (default: the installed library), sorted.
+
+    Raises
+    ------
+    InputError
+        If ``folder`` is not a folder.
+    """
+    folder = checks.path(folder, "case folder") if folder is not None else reference_dir()
+    if not folder.is_dir():
+        raise InputError(f"case folder '{folder}' is not a folder", "give the folder of the reference cases")
     return sorted(p for p in folder.glob("*.json"))
 
 
 def load_cases(folder: Path | None = None) -> list[dict]:
-    """All cases, sorted by file name."""
+    """All cases, sorted by file name.
+
+    Raises
+    ------
+    InputError
+        If ``folder`` is not a folder, or a case file is not readable JSON.
+    """
     cases = []
     for p in case_files(folder):
-        with open(p, encoding="utf-8") as fh:
-            case = json.load(fh)
+        try:
+            with open(p, encoding="utf-8") as fh:
+                case = json.load(fh)
+        except (OSError, UnicodeDecodeError, ValueError, RecursionError) as e:
+            raise InputError(f"reference case '{p}' is not readable JSON ({type(e).__name__})",
+                             "fix the file or remove it from the case folder") from None
+        if not isinstance(case, dict):
+            raise InputError(f"reference case '{p}' is not a JSON object", "fix the file")
         case["_path"] = str(p)
         cases.append(case)
     return cases
 
 
 def synthesize(spec: dict, folder: Path | None = None) -> tuple[np.ndarray, int]:
-    """Build the impulse response a case describes."""
+    """Build the impulse response a case describes.
+
+    Raises
+    ------
+    InputError
+        For a spec that is not a dictionary or an unknown synthesis.
+    """
+    if not isinstance(spec, dict):
+        raise InputError("the case input is not a JSON object", "fix the case file")
     fs = int(spec.get("fs", 48000))
     if "file" in spec:
         from .audio import load_audio
@@ -116,7 +147,7 @@ def synthesize(spec: dict, folder: Path | None = None) -> tuple[np.ndarray, int]
         if spec.get("noise_floor_db") is not None:
             x += float(spec.get("amplitude", 0.2)) * 10 ** (float(spec["noise_floor_db"]) / 20) * rng.standard_normal(n)
         return x, fs
-    raise ValueError(f"unknown synthesis '{kind}'")
+    raise InputError(f"unknown synthesis '{kind}'", "use 'impulse' or 'exponential_decay', or give a file")
 
 
 def _compare(name: str, exp: dict, got) -> Check:
@@ -299,7 +330,16 @@ def select_cases(id_contains: str | None = None, method: str | None = None,
 
 
 def summary(outcomes: list[CaseOutcome]) -> dict:
-    """Passed and failed counts, in all and per method (methods in the order of :data:`METHODS`)."""
+    """Passed and failed counts, in all and per method (methods in the order of :data:`METHODS`).
+
+    Raises
+    ------
+    InputError
+        If ``outcomes`` is not a list of :class:`CaseOutcome`.
+    """
+    if isinstance(outcomes, (str, bytes)) or not hasattr(outcomes, "__iter__") or not all(
+            isinstance(o, CaseOutcome) for o in outcomes):
+        raise InputError("outcomes are not a list of CaseOutcome", "pass the outcomes of run_case")
     per = {m: {"passed": 0, "failed": 0} for m in METHODS if any(o.method == m for o in outcomes)}
     for o in outcomes:
         per.setdefault(o.method, {"passed": 0, "failed": 0})["passed" if o.passed else "failed"] += 1

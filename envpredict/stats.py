@@ -40,6 +40,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from . import checks
 from .exceptions import InputError
 from .results import jsonable
 from .tables import DEGRADED_COLUMN, ERROR_COLUMN, IR_COLUMN, RESULT_COLUMNS, cell_number
@@ -179,7 +180,13 @@ def wilcoxon_p(d: Sequence[float] | np.ndarray) -> float | None:
     """Two-sided Wilcoxon signed-rank p-value of paired differences (scipy.stats.wilcoxon).
 
     ``None`` when it is undefined (no non-zero difference).
+
+    Raises
+    ------
+    InputError
+        If ``d`` is not a 1-D array of numbers.
     """
+    d = checks.array(d, "differences", min_size=0, finite=False)
     from scipy import stats
 
     x = np.asarray(d, dtype=float).ravel()
@@ -251,7 +258,16 @@ class Comparison:
 
 
 def default_pair_on(columns: Sequence[str], by: str, index: str) -> tuple[str, ...]:
-    """Item columns used when ``pair_on`` is not given (see the module docstring)."""
+    """Item columns used when ``pair_on`` is not given (see the module docstring).
+
+    Raises
+    ------
+    InputError
+        If ``columns`` is not a list of names.
+    """
+    if isinstance(columns, (str, bytes)) or not isinstance(columns, Sequence) or not all(
+            isinstance(c, str) for c in columns):
+        raise InputError("columns are not a list of names", "pass the table's header")
     skip = set(RESULT_COLUMNS) | {by, index, DEGRADED_COLUMN, IR_COLUMN}
     return tuple(c for c in columns if c not in skip)
 
@@ -445,7 +461,14 @@ def compare_conditions_file(
     Returns
     -------
     Comparison
+
+    Raises
+    ------
+    InputError
+        For a results file that cannot be read or is malformed, or options refused by
+        :func:`compare_conditions`.
     """
+    path = checks.path(path, "results file")
     from .tables import read_results
 
     columns, rows = read_results(path)
