@@ -219,7 +219,14 @@ def load_audio(
     -------
     x : ndarray, shape (n,), float64 in [-1, 1] full scale.
     fs : int sample rate, Hz.
+
+    Raises
+    ------
+    InputError
+        For a path that is not usable, a missing, empty or unreadable file, a missing or
+        wrong ``channel``, or (with ``check``) samples refused by :func:`validate_signal`.
     """
+    check = checks.flag(check, "check")
     with FileSource(path, channel, name=name) as src:
         x = src.read(0, src.n)
     if check:

@@ -243,7 +243,7 @@ def read_manifest(
     """
     from .sti import check_speech_level, check_talker, parse_noise_levels
 
-    p = Path(path)
+    p = checks.path(path, "manifest")
     text = read_text(p, "manifest")
     noise = parse_noise_levels(noise_db)
     defaults = {

@@ -151,7 +151,14 @@ def impulse_shape(x: np.ndarray, fs: float) -> ImpulseShape:
     True
     >>> impulse_shape(rng.standard_normal(t.size), 48000).is_impulse_response
     False
+
+    Raises
+    ------
+    InputError
+        For a response that is not a non-empty 1-D array of finite numbers, or a rate that is not positive.
     """
+    x = checks.array(x, "impulse response")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
     a = np.asarray(x, dtype=np.float64)
     win = max(1, int(round(std.IR_ENVELOPE_BLOCK_S * fs)))
     n = (a.size // win) * win
@@ -185,6 +192,7 @@ def check_impulse_response(x: np.ndarray, fs: float, label: str = "the input") -
     InputError
         One line saying what the signal looks like and what to do instead.
     """
+    x = checks.array(x, "impulse response")
     fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
     shape = impulse_shape(x, fs)
     if shape.is_impulse_response:

@@ -56,6 +56,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from . import cautions as cau
+from . import checks
 from . import standards as std
 from .audio import (
     ArraySource, FileSource, SignalCheck, Source, audio_files_in, check_calibration_db, check_rate, resolve_calibration,
@@ -197,8 +198,13 @@ def find_usable_part(
 
     Raises
     ------
-    InputError if the test signal part is shorter than ``min_seconds`` + 2 margins.
+    InputError if the test signal part is shorter than ``min_seconds`` + 2 margins, the
+    recording is not a non-empty 1-D array of finite numbers, or the rate is outside the
+    supported range.
     """
+    x = checks.array(x, name)
+    fs = checks.sample_rate(fs, name)
+    min_seconds = checks.number(min_seconds, "shortest length", lo=0.0, hi=MAX_RECORDING_S)
     frame = _frame_length(fs)
     fe = _FrameEnergies(frame)
     fe.update(np.asarray(x, dtype=np.float64))

@@ -370,6 +370,7 @@ def write_stipa_signal(
     ComputationError
         If the file cannot be written (a full disk).
     """
+    checks.number(seconds, "signal length", fix="give it in seconds, e.g. 30")
     check_wav_path(path)
     fs = check_generation(fs, seconds)
     seed = check_seed(seed)

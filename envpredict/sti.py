@@ -138,7 +138,15 @@ def combine_bands(mti: np.ndarray, talker: str = "male") -> float:
 
     STI = sum_k alpha_k MTI_k - sum_k beta_k sqrt(MTI_k MTI_{k+1}).
     Source: IEC 60268-16:2011, A.2.6, weights Table A.1.
+
+    Raises
+    ------
+    InputError
+        For indices that are not seven finite numbers, or an unknown talker.
     """
+    mti = checks.array(mti, "modulation transmission indices")
+    if mti.size != len(std.OCTAVE_BANDS_HZ):
+        raise InputError(f"{mti.size} modulation transmission indices", "give one per octave band (7)")
     alpha, beta = (np.array(w) for w in std.WEIGHTS[check_talker(talker)])
     mti = np.clip(np.asarray(mti, dtype=float), 0.0, 1.0)
     sti = float(np.dot(alpha, mti) - np.dot(beta, np.sqrt(mti[:-1] * mti[1:])))

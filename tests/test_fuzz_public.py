@@ -362,6 +362,8 @@ def _filterbank(fn, kw):
 
 
 case("bands.check_filterbank", fs=S(24000, 44100, 48000, 96000), call_=_filterbank, examples_=4)
+case("bands.octave_filterbank", fs=S(16000, 24000, 48000, 96000), order=S(2, 3), passes=S(1, 2),
+     beyond_nyquist=S("highpass", "omit", "refuse"), share_=0.4)
 case("bands.octave_sos", fs=S(24000, 44100, 48000, 96000), order=S(2, 3, 4))
 case("bands.octave_bands", x=scaled(IR), fs=J(48000), zero_phase=st.booleans())
 
@@ -716,7 +718,7 @@ def _mod_idx(fn, kw):
     return fn(f if kw["ok"] else kw["env"], p)
 
 
-case("timescales.modulation_indices", env=_ENV1, ok=st.booleans(), call_=_mod_idx, bad_={"ok": None})
+case("timescales.modulation_indices", env=_ENV1, ok=S(True, True, True, False), call_=_mod_idx, bad_={"ok": None})
 case("timescales.spectral_peak", freqs=J(np.linspace(0, 50, 101)),
      psd=st.builds(lambda s: np.random.default_rng(s).random(101), st.integers(0, 5)), lo=S(1.0, 2.0), hi=S(8.0, 20.0))
 case("timescales.inspect_signal", x=scaled(st.builds(speech, J(16000), S(2.0, 3.0), st.integers(0, 2))), fs=J(16000),
@@ -896,3 +898,20 @@ def test_only_documented_errors(name):
     run()
     assert seen["reached"] >= c.share * seen["run"], (
         f"{name}: only {seen['reached']} of {seen['run']} examples reached the computation")
+
+
+@pytest.mark.parametrize("value", [NAN, 1.5, -0.1, INF, "x", None])
+@pytest.mark.parametrize("fn", ["qualification_band", "subjective_rating"])
+def test_an_index_outside_0_1_has_no_rating(fn, value):
+    # IEC 60268-16:2011 Table F.1 rates an STI of 0..1; NaN once read 'U' and 1.5 'A+'
+    with pytest.raises(envpredict.InputError):
+        getattr(envpredict.sti, fn)(value)
+
+
+def test_a_huge_resampling_is_refused_before_it_allocates():
+    # fs_in = True (1 Hz) once asked scipy for a 5.7 GiB array; a 2**63 Hz rate for more
+    from envpredict.audio import resample
+
+    for fs_in, fs_out in ((True, 48000), (16000, 2**63), (16000, 1e12)):
+        with memory_cap(), pytest.raises(envpredict.InputError):
+            resample(np.zeros(16000), fs_in, fs_out)
