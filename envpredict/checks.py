@@ -14,11 +14,12 @@ import numbers
 import os
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
-
-import numpy as np
+from typing import TYPE_CHECKING, Any
 
 from .exceptions import InputError
+
+if TYPE_CHECKING:  # numpy is imported inside the checks that need it: --help stays fast
+    import numpy as np
 
 #: Sample rates accepted at all, Hz. Below 8 kHz no index in this tool has bandwidth
 #: to work with; above 384 kHz the input is almost certainly mislabelled (common
@@ -58,6 +59,8 @@ def number(value: Any, what: str, *, lo: float = -math.inf, hi: float = math.inf
            hi_open: bool = False, integer: bool = False, fix: str = "") -> float:
     """``value`` as a finite float (``int`` with ``integer``) within ``lo``..``hi``
     (open ends with ``lo_open``/``hi_open``); refuses text, bools, NaN and infinity."""
+    import numpy as np
+
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
         raise InputError(f"{what} is not a number ({value!r:.40})", fix or "give a number")
     v = float(value)
@@ -78,6 +81,8 @@ def optional_number(value: Any, what: str, **kw) -> float | None:
 
 def flag(value: Any, what: str) -> bool:
     """A yes/no argument (``True``/``False``, numpy bools included)."""
+    import numpy as np
+
     if not isinstance(value, (bool, np.bool_)):
         raise InputError(f"{what} is {value!r:.40}, not True or False", "give True or False")
     return bool(value)
@@ -100,6 +105,8 @@ def choice(value: Any, what: str, options: Sequence[str]) -> str:
 
 def sample_rate(fs: Any, name: str = "input") -> int:
     """The one rate rule: a whole number of Hz within :data:`MIN_RATE_HZ`..:data:`MAX_RATE_HZ`."""
+    import numpy as np
+
     if isinstance(fs, (bool, np.bool_)) or not isinstance(fs, numbers.Real):
         try:  # numeric text and 0-d arrays are read as numbers, as before
             fs = float(fs)
@@ -120,6 +127,8 @@ def array(x: Any, what: str, *, ndim: int | tuple[int, ...] = 1, min_size: int =
           fix: str = "") -> np.ndarray:
     """``x`` as a float64 array of ``ndim`` dimensions (one of them, for a tuple) with at
     least ``min_size`` values (along the last axis), finite unless ``finite=False``."""
+    import numpy as np
+
     fix = fix or f"pass a {ndim if isinstance(ndim, int) else ' or '.join(map(str, ndim))}-D array of numbers"
     try:
         a = np.asarray(x)
