@@ -78,8 +78,12 @@ def _bootstrap_options(confidence: float, n_resamples: int, seed: int, method: s
     """
     confidence = checks.number(confidence, "confidence", lo=0.0, hi=1.0, lo_open=True, hi_open=True,
                                fix="give e.g. 0.95")
-    n_resamples = checks.number(n_resamples, "bootstrap resamples", lo=MIN_RESAMPLES, hi=MAX_RESAMPLES, integer=True,
-                                fix=f"give {MIN_RESAMPLES} to {MAX_RESAMPLES} (default {BOOTSTRAP_RESAMPLES})")
+    n_resamples = checks.number(n_resamples, "bootstrap resamples", integer=True, fix="use 1000 or more")
+    if n_resamples < MIN_RESAMPLES:
+        raise InputError(f"{n_resamples} bootstrap resamples are too few", "use 1000 or more")
+    if n_resamples > MAX_RESAMPLES:
+        raise InputError(f"{n_resamples} bootstrap resamples are too many (at most {MAX_RESAMPLES})",
+                         f"use {BOOTSTRAP_RESAMPLES} (the default)")
     seed = checks.number(seed, "seed", lo=0, hi=2**63 - 1, integer=True)
     method = checks.text(method, "bootstrap method", fix="use BCa or percentile")
     return confidence, n_resamples, seed, method
