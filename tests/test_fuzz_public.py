@@ -915,3 +915,41 @@ def test_a_huge_resampling_is_refused_before_it_allocates():
     for fs_in, fs_out in ((True, 48000), (16000, 2**63), (16000, 1e12)):
         with memory_cap(), pytest.raises(envpredict.InputError):
             resample(np.zeros(16000), fs_in, fs_out)
+
+
+def _huge_calls():
+    """Calls whose arguments ask for hundreds of GiB (or run for days): each must be
+    refused at the boundary, before any allocation."""
+    from envpredict import audio, correlation, modulation, signals, stats, timescales
+
+    x = speech(16000, 1.0, 1)
+    rows = [{"item": f"u{i}", "c": c, "sti": 0.5 + 0.01 * i + (0.02 if c == "b" else 0)}
+            for i in range(4) for c in ("a", "b")]
+    return {
+        "stipa_signal(seconds=1e9)": lambda: signals.stipa_signal(1e9, 48000),
+        "stipa_signal(fs=1e12)": lambda: signals.stipa_signal(20.0, 1e12),
+        "write_stipa_signal(seconds=1e9)": lambda: signals.write_stipa_signal(
+            str(_FOLDER[0] / "out" / "huge.wav"), 1e9, 48000),
+        "full_sti_signal(seconds=1e9)": lambda: signals.full_sti_signal(4.0, 1e9, 48000),
+        "octave_band_noise(n=2**40)": lambda: signals.octave_band_noise(2**40, 48000, np.random.default_rng(0)),
+        "resample(fs_out=2**63)": lambda: audio.resample(x, 16000, 2**63),
+        "estimate_delay(max_delay_s=1e9)": lambda: audio.estimate_delay(x, x, 16000, 1e9),
+        "bootstrap_mean_ci(n_resamples=2**40)": lambda: stats.bootstrap_mean_ci([0.1, 0.2, 0.3], n_resamples=2**40),
+        "compare_conditions(n_resamples=2**40)": lambda: stats.compare_conditions(
+            rows, by="c", baseline="a", n_resamples=2**40),
+        "envelope_spectrum(segment_s=1e9)": lambda: timescales.envelope_spectrum(np.ones(1000), 100.0, 1e9),
+        "frame_energies_db(n_samples=2**62)": lambda: correlation.frame_energies_db(lambda a, b: x[a:b], 2**62),
+        "project(chunk=2**62)": lambda: modulation.project(np.ones(100), np.array([1.0]), 100.0, chunk=2**62),
+    }
+
+
+@pytest.mark.parametrize("name", sorted(_huge_calls()))
+def test_huge_sizes_are_refused_before_they_allocate(name):
+    old = signal.signal(signal.SIGALRM, _alarm)
+    signal.alarm(EXAMPLE_SECONDS)
+    try:
+        with memory_cap(), pytest.raises(envpredict.InputError):
+            _huge_calls()[name]()
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)
