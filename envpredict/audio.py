@@ -155,7 +155,13 @@ def _check_path(path: str | os.PathLike, name: str) -> Path:
 
 
 def audio_info(path: str | os.PathLike, name: str = "input") -> tuple[int, int, int]:
-    """Return ``(sample_rate, frames, channels)`` of an audio file without reading it."""
+    """Return ``(sample_rate, frames, channels)`` of an audio file without reading it.
+
+    Raises
+    ------
+    InputError
+        For a path that is not usable, or a missing, empty or unreadable file.
+    """
     import soundfile as sf
 
     p = _check_path(path, name)
@@ -248,7 +254,14 @@ def check_rate(fs: float, name: str = "input") -> int:
 
 def as_mono_array(x, fs: float, name: str = "input", *, hint: str = "") -> tuple[np.ndarray, int]:
     """The shape checks of every array input: a supported rate, numeric samples, one
-    channel, not empty. Returns ``(array, fs)`` without copying where possible."""
+    channel, not empty. Returns ``(array, fs)`` without copying where possible.
+
+    Raises
+    ------
+    InputError
+        For a rate outside the supported range, or samples that are not a non-empty
+        one-channel array of numbers.
+    """
     fs = check_rate(fs, name)
     try:
         a = np.asarray(x)
@@ -804,7 +817,13 @@ class Window(Source):
 
 
 def as_source(x, fs: float, name: str = "input", *, hint: str = "") -> ArraySource:
-    """An array input as a source, after the shape checks of :func:`as_mono_array`."""
+    """An array input as a source, after the shape checks of :func:`as_mono_array`.
+
+    Raises
+    ------
+    InputError
+        As :func:`as_mono_array`.
+    """
     a, fs = as_mono_array(x, fs, name, hint=hint)
     return ArraySource(a, fs, name)
 
@@ -839,6 +858,12 @@ def calibration_from_tone(x: np.ndarray, fs: int, level_db: float, *, name: str 
     Returns
     -------
     float, dB SPL of a full-scale RMS signal.
+
+    Raises
+    ------
+    InputError
+        For a recording that is not a steady 1 kHz calibrator tone, or a level outside
+        :data:`CALIBRATOR_LEVEL_RANGE_DB`.
     """
     from . import standards as std
     from .bands import check_rate_for_octaves, octave_bands
@@ -871,7 +896,13 @@ def calibration_from_tone(x: np.ndarray, fs: int, level_db: float, *, name: str 
 
 def check_calibration_db(value: float | None) -> float | None:
     """Refuse a calibration offset (dB SPL of a full-scale RMS signal) that is not a
-    plausible number; ``None`` (no calibration) passes."""
+    plausible number; ``None`` (no calibration) passes.
+
+    Raises
+    ------
+    InputError
+        For an offset that is not a finite number in the plausible range.
+    """
     if value is None:
         return None
     try:
@@ -906,6 +937,12 @@ def resolve_calibration(
     -------
     (calibration_db, source) : the offset, or ``None`` without a calibration; ``source``
         is "offset", "calibrator" or ``None``.
+
+    Raises
+    ------
+    InputError
+        For an offset together with a calibrator, a calibrator without its level, a
+        calibrator recording that cannot be read or is not a 1 kHz tone, or a value out of range.
     """
     if calibration_db is not None and calibrator is not None:
         raise InputError("both --calibration-db and --calibrator were given", "give one of them")

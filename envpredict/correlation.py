@@ -592,6 +592,14 @@ def correlation_indices(clean: np.ndarray, degraded: np.ndarray, fs: int) -> Cor
     """STOI and ESTOI with per-band and per-segment diagnostics (arrays of equal length).
 
     See :func:`stoi` for the method and the valid range.
+
+    Raises
+    ------
+    InputError
+        For signals refused by the input rule (not numeric, not one channel, empty, NaN/inf,
+        silent, clipped, a rate outside the supported range), of different lengths, or too short or
+        silent for one
+        30-frame segment after silent-frame removal.
     """
     return correlation_from_envelopes(*_array_envelopes(clean, degraded, fs))
 
@@ -642,6 +650,11 @@ def stoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
     >>> x = rng.standard_normal(t.size) * (1 + np.sin(2 * np.pi * 4 * t))
     >>> round(stoi(x, x, 10000), 6)
     1.0
+
+    Raises
+    ------
+    InputError
+        As :func:`correlation_indices`.
     """
     return _one_index(clean, degraded, fs, "stoi_band_segment")
 
@@ -672,5 +685,10 @@ def estoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
     1.0
     >>> bool(estoi(x, x + 3 * rng.standard_normal(t.size), 10000) < 0.5)
     True
+
+    Raises
+    ------
+    InputError
+        As :func:`correlation_indices`.
     """
     return _one_index(clean, degraded, fs, "estoi_band_segment")

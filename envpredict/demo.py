@@ -87,6 +87,11 @@ def rate_demo_site(progress: Callable[[int, int], None] | None = None) -> DemoRe
     Returns
     -------
     DemoResult
+
+    Raises
+    ------
+    InputError
+        If the installed demo material cannot be read.
     """
     from .indirect import sti_from_ir_file
     from .pair import pair_from_files

@@ -324,7 +324,13 @@ class _Ticks:
 
 
 def check_block_seconds(value: float) -> float:
-    """Refuse a block length that is not a positive number of seconds."""
+    """Refuse a block length that is not a positive number of seconds.
+
+    Raises
+    ------
+    InputError
+        For a block length that is not a number in the accepted range.
+    """
     try:
         v = float(value)
     except (TypeError, ValueError):
@@ -649,6 +655,14 @@ def stipa_from_recording(
     >>> r = stipa_from_recording(stipa_signal(15, 24000), 24000)
     >>> r.sti.sti > 0.97
     True
+
+    Raises
+    ------
+    InputError
+        For a recording refused by the input rule (not numeric, not one channel, empty, NaN/inf,
+        silent, clipped, a rate outside the supported range), too short or without a STIPA test
+        signal, or an
+        option out of range (calibration, noise levels, talker, block length).
     """
     return _stipa(lambda min_s, ticks: _analyse_recording(x, fs, min_s, name, block_seconds=block_seconds,
                                                           ticks=ticks),
@@ -691,6 +705,11 @@ def stipa_from_file(
 
     Valid input: as for :func:`stipa_from_recording`; at most :data:`MAX_RECORDING_S` (2 h).
     The result's ``calibration_source`` says where the calibration came from.
+
+    Raises
+    ------
+    InputError
+        For a file that cannot be read, or as :func:`stipa_from_recording`.
     """
     _check_talker_and_noise(talker, noise_db)
     cal, source = resolve_calibration(calibration_db, calibrator, calibrator_level,
@@ -827,7 +846,13 @@ def full_sti_from_recordings(
 
 def recording_paths(paths: str | os.PathLike | Sequence[str | os.PathLike]) -> list[Path]:
     """The recording files of ``paths``: each folder replaced by its audio files
-    (:func:`envpredict.audio.audio_files_in`), files kept as given, in order."""
+    (:func:`envpredict.audio.audio_files_in`), files kept as given, in order.
+
+    Raises
+    ------
+    InputError
+        For a path that is not usable or a folder without audio files.
+    """
     if isinstance(paths, (str, os.PathLike)):
         paths = [paths]
     files: list[Path] = []
@@ -868,6 +893,11 @@ def full_sti_from_files(
     calibration_db, noise_db, talker, block_seconds, progress : as for
         :func:`full_sti_from_recordings`.
     calibrator, calibrator_level, calibrator_channel : as for :func:`stipa_from_file`.
+
+    Raises
+    ------
+    InputError
+        For files that cannot be read, or as :func:`full_sti_from_recordings`.
     """
     check_block_seconds(block_seconds)
     _check_talker_and_noise(talker, noise_db)

@@ -171,7 +171,13 @@ def _pdf0(shape: str) -> float:
 
 
 def check_shape(shape: str) -> str:
-    """Refuse unknown psychometric shapes."""
+    """Refuse unknown psychometric shapes.
+
+    Raises
+    ------
+    InputError
+        For a shape other than those of :data:`SHAPES`.
+    """
     s = str(shape).strip().lower()
     if s not in SHAPES:
         raise InputError(f"unknown mapping shape '{shape}'", f"use one of {', '.join(SHAPES)}")
@@ -179,7 +185,13 @@ def check_shape(shape: str) -> str:
 
 
 def check_guess_lapse(guess: float, lapse: float) -> tuple[float, float]:
-    """Refuse guess and lapse rates outside [0, 1) or leaving no room for a curve."""
+    """Refuse guess and lapse rates outside [0, 1) or leaving no room for a curve.
+
+    Raises
+    ------
+    InputError
+        For a guess or lapse rate outside [0, 1) or summing to 1 or more.
+    """
     out = []
     for name, v in (("guess rate", guess), ("lapse rate", lapse)):
         try:
@@ -423,6 +435,11 @@ def mapping_from_dict(d: Any, source: str = "(dict)") -> ScoreMapping:
     Only ``index``, ``shape``, ``params.a``, ``params.b``, ``guess`` and ``lapse`` are
     needed; ``cov_ab``, ``n_points``, ``index_range``, ``source`` and ``notes`` are read
     when present. Malformed content raises :class:`InputError` naming ``source``.
+
+    Raises
+    ------
+    InputError
+        For content that is not a mapping (missing or malformed fields).
     """
     fix = "give a MAP.json written by 'envpredict fitmap'"
     if not isinstance(d, dict):
@@ -831,7 +848,13 @@ def scores_from_rows(
 
 
 def predict_scores(values: Any, mapping: ScoreMapping) -> np.ndarray:
-    """Predicted percent correct for index value(s) ``values`` (NaN where a value is NaN)."""
+    """Predicted percent correct for index value(s) ``values`` (NaN where a value is NaN).
+
+    Raises
+    ------
+    InputError
+        For values that are not numbers.
+    """
     if not isinstance(mapping, ScoreMapping):
         raise InputError("mapping is not a ScoreMapping", "fit one with fit_mapping or load a MAP.json")
     try:
@@ -1021,6 +1044,14 @@ def fit_mapping_file(
     -------
     mapping : the fitted :class:`ScoreMapping` (its ``source`` names the file and columns).
     data : the fitted rows (:class:`ScoreData`).
+
+    Raises
+    ------
+    InputError
+        For a scores file that cannot be read or is malformed, a missing column, or counts
+        that are not whole numbers.
+    ComputationError
+        If the fit does not converge.
     """
     from pathlib import Path
 

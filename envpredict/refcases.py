@@ -284,7 +284,15 @@ METHODS = {
 
 
 def run_case(case: dict) -> CaseOutcome:
-    """Run one case and compare every expected quantity."""
+    """Run one case and compare every expected quantity.
+
+    Raises
+    ------
+    InputError
+        For a case that is not a dictionary with an ``id``.
+    """
+    if not isinstance(case, dict) or "id" not in case:
+        raise InputError("the case is not a dictionary with an id", "pass a case from load_cases")
     folder = Path(case["_path"]).parent if "_path" in case else None
     method = case.get("method", "ir")
     head = (case["id"], method, case.get("title", ""), case.get("source", ""))
@@ -369,6 +377,11 @@ def run_cases(id_contains: str | None = None, method: str | None = None, *, fold
     ----------
     id_contains, method, folder : as for :func:`select_cases`.
     progress : optional ``progress(done, total)`` callback, one step per case.
+
+    Raises
+    ------
+    InputError
+        For a case folder or case file that cannot be read.
     """
     cases = select_cases(id_contains=id_contains, method=method, folder=folder)
     out = []

@@ -201,7 +201,16 @@ def holm(p_values: Sequence[float | None]) -> list[float | None]:
     --------
     >>> holm([0.01, 0.04, 0.03])
     [0.03, 0.06, 0.06]
+
+    Raises
+    ------
+    InputError
+        For p-values that are not numbers in [0, 1] (or None).
     """
+    if isinstance(p_values, (str, bytes)) or not isinstance(p_values, Sequence) or not all(
+            p is None or isinstance(p, (int, float)) and not isinstance(p, bool) and (0.0 <= p <= 1.0 or p != p)
+            for p in p_values):
+        raise InputError("p-values are not a list of numbers in [0, 1] (or None)", "pass the p-values of the tests")
     idx = [i for i, p in enumerate(p_values) if p is not None and math.isfinite(p)]
     out: list[float | None] = [None] * len(p_values)
     m = len(idx)
@@ -357,6 +366,12 @@ def compare_conditions(
     ('denoised', 8, 0.0387, 0.026, 0.049, 0.0078)
     >>> c.verdict
     'higher'
+
+    Raises
+    ------
+    InputError
+        For a missing or unknown column, a baseline that is not a condition, index cells
+        that are not numbers, or bootstrap options out of range.
     """
     confidence, n_resamples, seed, ci_method = _bootstrap_options(confidence, n_resamples, seed, ci_method)
     if not rows:

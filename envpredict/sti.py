@@ -62,6 +62,11 @@ def parse_noise_levels(text: str | Sequence[float] | None) -> np.ndarray | None:
     """Parse seven octave-band noise levels (dB SPL, 125 Hz ... 8 kHz).
 
     Accepts a comma-separated string or a sequence; ``None`` means no noise.
+
+    Raises
+    ------
+    InputError
+        For text or values that are not seven levels in dB.
     """
     if text is None:
         return None
@@ -99,6 +104,11 @@ def speech_band_levels(level_dba: float, talker: str = "male") -> np.ndarray:
     """Octave-band speech levels for an A-weighted speech level (NaN: band unused).
 
     Source: IEC 60268-16:2011, Table A.2 (see :mod:`envpredict.standards`).
+
+    Raises
+    ------
+    InputError
+        For a level or talker refused by :func:`check_speech_level` and :func:`check_talker`.
     """
     return float(level_dba) + table_array(std.SPEECH_SPECTRA_DB[check_talker(talker)])
 
@@ -108,7 +118,13 @@ def masking_factor(level_db: np.ndarray) -> np.ndarray:
 
     Source: IEC 60268-16:2011, Table A.3 (piecewise linear amdB in the level of the
     masking band); amf = 10**(amdB/10).
+
+    Raises
+    ------
+    InputError
+        For levels that are not numbers.
     """
+    level_db = checks.array(level_db, "band levels", ndim=(0, 1), min_size=0, finite=False)
     L = np.asarray(level_db, dtype=float)
     amdb = np.full(L.shape, np.nan)
     lower = -np.inf
@@ -125,7 +141,13 @@ def transmission_index(m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
     SNR_eff = 10 log10(m / (1 - m)), limited to +-15 dB; TI = (SNR_eff + 15) / 30.
     Source: IEC 60268-16:2011, A.2.4 - A.2.5.
+
+    Raises
+    ------
+    InputError
+        For modulation transfer values that are not numbers.
     """
+    m = checks.array(m, "modulation transfer values", ndim=(0, 1, 2), min_size=0, finite=False)
     m = np.clip(np.asarray(m, dtype=float), 0.0, std.MTF_MAX)
     with np.errstate(divide="ignore"):
         snr = 10.0 * np.log10(m) - 10.0 * np.log10(1.0 - m)
@@ -345,6 +367,12 @@ def sti_from_mtf(
         spectrum at ``speech_level_dba``.
 
     Valid range: speech levels 20-120 dB(A); noise levels -20-140 dB SPL.
+
+    Raises
+    ------
+    InputError
+        For an MTF that is not seven bands of modulation transfer values, or an option out of
+        range (noise or speech levels, talker).
     """
     talker = check_talker(talker)
     speech_level_dba = check_speech_level(speech_level_dba)

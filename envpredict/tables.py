@@ -89,6 +89,11 @@ def read_text(path: str | os.PathLike, what: str) -> str:
     ----------
     path : the file.
     what : what it is, for the error message (e.g. ``"manifest"``).
+
+    Raises
+    ------
+    InputError
+        For a path that is not usable, a missing file or a folder, or text that is not UTF-8.
     """
     p = Path(path)
     if not p.exists():
@@ -114,6 +119,11 @@ def iter_records(text: str, on_error: Callable[[int, csv.Error], InputError], *,
 
     A malformed record raises the :class:`InputError` that ``on_error(line, error)``
     builds, so each caller names its own file in the message.
+
+    Raises
+    ------
+    InputError
+        The one that ``on_error`` builds, for a malformed record.
     """
     reader = csv.reader(io.StringIO(text, newline=""), strict=strict)
     while True:
@@ -166,6 +176,11 @@ def read_results(path: str | os.PathLike) -> tuple[tuple[str, ...], list[dict[st
     -------
     columns : the header.
     rows : one dict per row, column -> cell text.
+
+    Raises
+    ------
+    InputError
+        For a file that cannot be read or is not a results table.
     """
     p = Path(path)
     text = read_text(p, "results file")
@@ -192,6 +207,11 @@ def read_table(path: str | os.PathLike, what: str) -> tuple[list[str], Rows]:
     ----------
     path : the CSV file.
     what : what it is, for the error messages (e.g. ``"scores file"``).
+
+    Raises
+    ------
+    InputError
+        For a file that cannot be read or is not a CSV table with a header.
     """
     p = Path(path)
     text = read_text(p, what)

@@ -694,6 +694,14 @@ def inspect_signal(
     >>> r = inspect_signal(0.1 * x, fs)
     >>> abs(r.f0_median_hz - 150) < 3
     True
+
+    Raises
+    ------
+    InputError
+        For a signal refused by the input rule (not numeric, not one channel, empty, NaN/inf,
+        silent, clipped, a rate outside the supported range), shorter than 1 s or longer than
+        :data:`MAX_SECONDS`, or
+        an F0 range or block length out of range.
     """
     x = validate_signal(x, fs, name="recording", min_seconds=MIN_SECONDS)
     fs = int(fs)
