@@ -393,6 +393,13 @@ def run_cases(id_contains: str | None = None, method: str | None = None, *, fold
 
 
 def run_all(folder: Path | None = None, progress=None) -> list[CaseOutcome]:
+    """Run every case of ``folder`` (default: the installed library), in file-name order.
+
+    Raises
+    ------
+    InputError
+        For a case folder or case file that cannot be read.
+    """
     cases = load_cases(folder)
     out = []
     for i, c in enumerate(cases):

@@ -38,6 +38,13 @@ def table_array(values: tuple) -> np.ndarray:
 
 
 def check_talker(talker: str) -> str:
+    """``talker`` as "male" or "female" (case and spaces ignored).
+
+    Raises
+    ------
+    InputError
+        For any other talker.
+    """
     t = str(talker).strip().lower()
     if t not in std.WEIGHTS:
         raise InputError(f"unknown talker '{talker}'", f"use one of: {', '.join(TALKERS)}")
@@ -45,6 +52,13 @@ def check_talker(talker: str) -> str:
 
 
 def check_speech_level(level_dba: float) -> float:
+    """An A-weighted speech level at the listener, dB(A), within ``standards.SPEECH_LEVEL_RANGE_DBA``.
+
+    Raises
+    ------
+    InputError
+        For a level that is not a number in that range.
+    """
     lo, hi = std.SPEECH_LEVEL_RANGE_DBA
     try:
         v = float(level_dba)
@@ -258,7 +272,13 @@ def qualification_band(sti: float) -> str:
 
 def subjective_rating(sti: float) -> str:
     """Five-step subjective scale (bad ... excellent) of an STI in 0..1. Source: see
-    standards.SUBJECTIVE_SCALE."""
+    standards.SUBJECTIVE_SCALE.
+
+    Raises
+    ------
+    InputError
+        For a value that is not a number in 0..1.
+    """
     v = _check_index_value(sti)
     for label, lower in std.SUBJECTIVE_SCALE:
         if v >= lower:

@@ -844,6 +844,23 @@ def test_every_public_function_has_a_strategy():
     assert not stale, f"strategies for functions that are gone: {stale}"
 
 
+#: Public functions that raise nothing: no argument, or any value is taken (score_row
+#: turns every failure of a row into the row's error text).
+NEVER_RAISES = frozenset({
+    "audio.usable_cores", "audio.usable_threads", "batch.score_row", "batch.score_rows", "batch.start_workers_early",
+    "correlation.analysis_window", "correlation.third_octave_matrix", "outputs.current_umask", "report.num",
+    "report.txt", "signals.full_sti_plan", "sweep.default_index_functions", "tables.cell_number", "tables.format_cell",
+    "timescales.modulation_band_edges",
+})
+
+
+def test_every_public_function_documents_its_errors():
+    # numpydoc: a "Raises" section names the documented errors a function can raise
+    undocumented = sorted(n for n, f in public_functions().items()
+                          if n not in NEVER_RAISES and "Raises" not in (inspect.getdoc(f) or ""))
+    assert not undocumented, f"public functions without a Raises section: {undocumented}"
+
+
 @contextlib.contextmanager
 def memory_cap():
     """Cap the address space a few GiB above its size now (a huge allocation then fails
