@@ -172,7 +172,7 @@ def _input_list(inputs: Iterable[_PathLike | None] | None) -> list[str]:
                                or not isinstance(inputs, Iterable)):
         raise InputError("the inputs are not a list of paths", "pass a list (or None)")
     out = []
-    for i in inputs or ():
+    for i in () if inputs is None else inputs:
         if i is None:
             continue
         with contextlib.suppress(TypeError):
