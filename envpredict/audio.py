@@ -32,13 +32,9 @@ from pathlib import Path
 
 import numpy as np
 
+from . import checks
+from .checks import MAX_RATE_HZ, MIN_RATE_HZ  # noqa: F401 (the rate limits, read from here too)
 from .exceptions import InputError
-
-#: Sample rates accepted at all, Hz. Below 8 kHz no index in this tool has bandwidth
-#: to work with; above 384 kHz the input is almost certainly mislabelled (common
-#: practice, no source).
-MIN_RATE_HZ: int = 8000
-MAX_RATE_HZ: int = 384000
 
 #: A signal whose RMS is below this (about -140 dBFS) is treated as silence: it is
 #: below the noise of any 24-bit converter (common practice, no source).
@@ -62,6 +58,10 @@ FLOAT_SUBTYPES: frozenset[str] = frozenset({"FLOAT", "DOUBLE"})
 #: cross-correlation peak, small enough to bound memory on long inputs (judgement).
 ALIGN_EXCERPT_S: float = 30.0
 
+#: Largest delay :func:`estimate_delay` searches, s: the search reads 2 x this much of
+#: the signal; no alignment of a recording needs more (judgement).
+MAX_DELAY_S: float = 60.0
+
 #: Plausible calibrator levels, dB SPL (IEC 60942 calibrators: 94, 104, 114 dB typical).
 CALIBRATOR_LEVEL_RANGE_DB: tuple[float, float] = (60.0, 150.0)
 
@@ -79,7 +79,16 @@ AUDIO_SUFFIXES = {".wav", ".flac", ".ogg", ".oga", ".aif", ".aiff", ".caf", ".w6
 
 def audio_files_in(folder: str | os.PathLike) -> list[Path]:
     """The audio files of a folder (by suffix, :data:`AUDIO_SUFFIXES`), sorted by name;
-    hidden files (names starting with a dot) are skipped. Not recursive."""
+    hidden files (names starting with a dot) are skipped. Not recursive.
+
+    Raises
+    ------
+    InputError
+        If ``folder`` is not a path of an existing folder.
+    """
+    folder = checks.path(folder, "folder")
+    if not folder.is_dir():
+        raise InputError(f"'{folder}' is not a folder", "give the path of a folder of audio files")
     return sorted(q for q in Path(folder).iterdir()
                   if q.suffix.lower() in AUDIO_SUFFIXES and not q.name.startswith("."))
 
@@ -87,8 +96,14 @@ def audio_files_in(folder: str | os.PathLike) -> list[Path]:
 def check_wav_path(path: str | os.PathLike) -> Path:
     """Refuse an output path that :func:`write_wav` cannot write: not ending in .wav, a
     folder, or in a folder that does not exist (so that a caller can refuse it before
-    its slow work)."""
-    out = Path(path)
+    its slow work).
+
+    Raises
+    ------
+    InputError
+        For any of these.
+    """
+    out = checks.path(path, "output")
     if out.suffix.lower() != ".wav":
         raise InputError(f"output '{out}' does not end in .wav", "give a file name ending in .wav")
     if out.exists() and out.is_dir():
@@ -112,22 +127,38 @@ def write_wav(path: str | os.PathLike, x: "np.ndarray | Iterable[np.ndarray]", f
         is the same either way.
     fs : sample rate, Hz.
     subtype : sample format of libsndfile (default 24-bit PCM).
+
+    Raises
+    ------
+    InputError
+        For a path :func:`check_wav_path` refuses, samples that are not a 1-D or 2-D
+        (frames, channels) array of finite numbers, a rate outside the supported range
+        or an unknown ``subtype``.
+    ComputationError
+        If the file cannot be written (see :func:`envpredict.outputs.atomic_write_bytes`).
     """
     import soundfile as sf
 
     from .outputs import atomic_file
 
     out = check_wav_path(path)
-    blocks = [x] if isinstance(x, np.ndarray) else x
+    fs = check_rate(fs, "signal to write")
+    if not isinstance(subtype, str) or not sf.check_format("WAV", subtype):
+        raise InputError(f"sample format {subtype!r:.40} cannot be written to WAV", "give e.g. PCM_16, PCM_24 or FLOAT")
+    if isinstance(x, (np.ndarray, list, tuple)) or not hasattr(x, "__iter__"):
+        x = checks.array(x, "signal to write", ndim=(1, 2))
+        blocks, channels = [x], 1 if x.ndim == 1 else x.shape[1]
+    else:  # consecutive mono blocks (a long signal written in bounded memory)
+        blocks, channels = x, 1
     with atomic_file(out) as fh:
-        with sf.SoundFile(fh, "w", samplerate=int(fs), channels=1, format="WAV", subtype=subtype) as f:
+        with sf.SoundFile(fh, "w", samplerate=fs, channels=channels, format="WAV", subtype=subtype) as f:
             for block in blocks:
                 f.write(np.asarray(block))
     return out
 
 
 def _check_path(path: str | os.PathLike, name: str) -> Path:
-    p = Path(path)
+    p = checks.path(path, name)
     if not p.exists():
         raise InputError(f"{name} '{p}' does not exist", "check the path")
     if p.is_dir():
@@ -138,7 +169,13 @@ def _check_path(path: str | os.PathLike, name: str) -> Path:
 
 
 def audio_info(path: str | os.PathLike, name: str = "input") -> tuple[int, int, int]:
-    """Return ``(sample_rate, frames, channels)`` of an audio file without reading it."""
+    """Return ``(sample_rate, frames, channels)`` of an audio file without reading it.
+
+    Raises
+    ------
+    InputError
+        For a path that is not usable, or a missing, empty or unreadable file.
+    """
     import soundfile as sf
 
     p = _check_path(path, name)
@@ -153,7 +190,17 @@ def audio_info(path: str | os.PathLike, name: str = "input") -> tuple[int, int, 
 
 
 def pick_channel(data: np.ndarray, channel: int | None, name: str, source: str) -> np.ndarray:
-    """Reduce a (frames, channels) array to one channel, refusing ambiguity."""
+    """Reduce a (frames, channels) array to one channel, refusing ambiguity.
+
+    Raises
+    ------
+    InputError
+        For data that is not a 1-D or 2-D array, a missing ``channel`` of several, or a
+        channel that does not exist.
+    """
+    data = checks.array(data, f"{name} '{source}'", ndim=(1, 2), min_size=0, finite=False)
+    if channel is not None:
+        channel = checks.number(channel, "channel", integer=True, fix="give a channel number 0, 1, ...")
     if data.ndim == 1:
         data = data[:, None]
     n_ch = data.shape[1]
@@ -193,7 +240,14 @@ def load_audio(
     -------
     x : ndarray, shape (n,), float64, full scale +-1 (floating-point files may exceed it).
     fs : int sample rate, Hz.
+
+    Raises
+    ------
+    InputError
+        For a path that is not usable, a missing, empty or unreadable file, a missing or
+        wrong ``channel``, or (with ``check``) samples refused by :func:`validate_signal`.
     """
+    check = checks.flag(check, "check")
     with FileSource(path, channel, name=name) as src:
         x = src.read(0, src.n)
     if check:
@@ -202,24 +256,27 @@ def load_audio(
 
 
 def check_rate(fs: float, name: str = "input") -> int:
-    """Refuse sample rates that are not a positive whole number in the supported range."""
-    try:
-        fsf = float(fs)
-    except (TypeError, ValueError):
-        raise InputError(f"sample rate of {name} is not a number ({fs!r})", "give the rate in Hz") from None
-    if not np.isfinite(fsf) or fsf != round(fsf) or fsf <= 0:
-        raise InputError(f"sample rate of {name} is {fs!r}", "give a whole, positive rate in Hz")
-    if not MIN_RATE_HZ <= fsf <= MAX_RATE_HZ:
-        raise InputError(
-            f"sample rate of {name} is {int(fsf)} Hz, outside {MIN_RATE_HZ}..{MAX_RATE_HZ} Hz",
-            "resample the recording to a common rate such as 48000 Hz",
-        )
-    return int(fsf)
+    """Refuse sample rates that are not a positive whole number in the supported range
+    (the rule is :func:`envpredict.checks.sample_rate`).
+
+    Raises
+    ------
+    InputError
+        For any other rate.
+    """
+    return checks.sample_rate(fs, name)
 
 
 def as_mono_array(x, fs: float, name: str = "input", *, hint: str = "") -> tuple[np.ndarray, int]:
     """The shape checks of every array input: a supported rate, numeric samples, one
-    channel, not empty. Returns ``(array, fs)`` without copying where possible."""
+    channel, not empty. Returns ``(array, fs)`` without copying where possible.
+
+    Raises
+    ------
+    InputError
+        For a rate outside the supported range, or samples that are not a non-empty
+        one-channel array of numbers.
+    """
     fs = check_rate(fs, name)
     try:
         a = np.asarray(x)
@@ -434,7 +491,14 @@ def validate_signal(
     Returns
     -------
     ndarray, shape (n,), float64 (the input itself when it already is).
+
+    Raises
+    ------
+    InputError
+        For any of the inputs refused above, or a ``min_seconds`` that is not a number of 0 or more.
     """
+    min_seconds = checks.number(min_seconds, "shortest length", lo=0.0)
+    allow_clipping = checks.flag(allow_clipping, "allow_clipping")
     a, fs = as_mono_array(x, fs, name)
     a = a.astype(np.float64, copy=False)
     check = SignalCheck(name, allow_clipping=allow_clipping, min_seconds=min_seconds, fs=fs, subtype=subtype)
@@ -445,14 +509,29 @@ def validate_signal(
 
 def is_clipped(x: np.ndarray, subtype: str | None = None) -> bool:
     """Digital clipping by the rule of :class:`SignalCheck` (repeated flat tops at the
-    global peak, or for an integer ``subtype`` samples at full scale)."""
+    global peak, or for an integer ``subtype`` samples at full scale).
+
+    Raises
+    ------
+    InputError
+        If ``x`` is not an array of numbers.
+    """
     check = SignalCheck(allow_clipping=True, subtype=subtype)
-    check.update(x)
+    check.update(checks.array(x, "signal", ndim=(1, 2), min_size=0, finite=False))
     return check.clipped
 
 
 def resample(x: np.ndarray, fs_in: int, fs_out: int) -> np.ndarray:
-    """Resample with a polyphase FIR: ``scipy.signal.resample_poly`` (see :func:`polyphase`)."""
+    """Resample with a polyphase FIR: ``scipy.signal.resample_poly`` (see :func:`polyphase`).
+
+    Raises
+    ------
+    InputError
+        For a signal that is not a 1-D array of finite numbers or a rate outside the
+        supported range.
+    """
+    fs_in, fs_out = check_rate(fs_in, "input"), check_rate(fs_out, "output")
+    x = checks.array(x, "signal", min_size=0)
     if int(fs_in) == int(fs_out):
         return np.asarray(x, dtype=np.float64)
     up, down = resample_ratio(fs_in, fs_out)
@@ -556,7 +635,14 @@ def in_parallel(tasks: list) -> list:
 
     For work that releases the GIL (scipy's polyphase filter, numpy's FFT and array
     arithmetic on long arrays); the results are the same either way.
+
+    Raises
+    ------
+    InputError
+        If ``tasks`` is not a list (or tuple) of callables.
     """
+    if not isinstance(tasks, (list, tuple)) or not all(callable(t) for t in tasks):
+        raise InputError("tasks are not a list of callables", "pass a list of functions without arguments")
     threads = min(len(tasks), usable_threads())
     if threads < 2:
         return [task() for task in tasks]
@@ -568,7 +654,14 @@ def in_parallel(tasks: list) -> list:
 
 def resample_ratio(fs_in: int, fs_out: int) -> tuple[int, int]:
     """``(up, down)`` factors of the polyphase resampling from ``fs_in`` to ``fs_out``
-    (the ratio in lowest terms, denominator at most 2000)."""
+    (the ratio in lowest terms, denominator at most 2000).
+
+    Raises
+    ------
+    InputError
+        For a rate outside the supported range (:func:`check_rate`).
+    """
+    fs_in, fs_out = check_rate(fs_in, "input"), check_rate(fs_out, "output")
     r = Fraction(int(fs_out), int(fs_in)).limit_denominator(2000)
     return r.numerator, r.denominator
 
@@ -608,6 +701,12 @@ def estimate_delay(
         with (1 for an exact delayed copy, near 0 for unrelated signals; negative for
         inverted polarity).
 
+    Raises
+    ------
+    InputError
+        For signals refused by :func:`as_source`, a ``max_delay_s`` outside
+        0..:data:`MAX_DELAY_S`, a negative ``near`` or an ``excerpt_s`` that is not positive.
+
     Examples
     --------
     >>> import numpy as np
@@ -618,6 +717,9 @@ def estimate_delay(
     """
     from scipy.signal import fftconvolve
 
+    max_delay_s = checks.number(max_delay_s, "maximum delay", lo=0.0, hi=MAX_DELAY_S)
+    near = checks.number(near, "start of the excerpt", lo=0, hi=checks.MAX_SAMPLES, integer=True)
+    excerpt_s = checks.optional_number(excerpt_s, "excerpt length", lo=0.0, lo_open=True, hi=ALIGN_EXCERPT_S)
     ref_src, x_src = _as_source(reference, fs, "reference"), _as_source(x, fs, "signal")
     rate = ref_src.fs
     d = round(max_delay_s * rate)
@@ -642,7 +744,14 @@ def estimate_delay(
 def zero_lag_correlation(reference: "Source | np.ndarray", x: "Source | np.ndarray", fs: int | None = None, *,
                          excerpt_s: float | None = None) -> float:
     """Normalised correlation of two signals taken as aligned (lag 0), over their common
-    start of at most ``excerpt_s`` (default :data:`ALIGN_EXCERPT_S`)."""
+    start of at most ``excerpt_s`` (default :data:`ALIGN_EXCERPT_S`).
+
+    Raises
+    ------
+    InputError
+        For signals refused by :func:`as_source` or an ``excerpt_s`` that is not positive.
+    """
+    excerpt_s = checks.optional_number(excerpt_s, "excerpt length", lo=0.0, lo_open=True, hi=ALIGN_EXCERPT_S)
     ref_src, x_src = _as_source(reference, fs, "reference"), _as_source(x, fs, "signal")
     w = min(ref_src.n, x_src.n, int((ALIGN_EXCERPT_S if excerpt_s is None else excerpt_s) * ref_src.fs))
     a, b = ref_src.read(0, w), x_src.read(0, w)
@@ -651,7 +760,14 @@ def zero_lag_correlation(reference: "Source | np.ndarray", x: "Source | np.ndarr
 
 
 def rms_dbfs(x: np.ndarray) -> float:
-    """RMS level in dB re full scale (a full-scale sine reads -3.01 dBFS)."""
+    """RMS level in dB re full scale (a full-scale sine reads -3.01 dBFS).
+
+    Raises
+    ------
+    InputError
+        If ``x`` is not a non-empty array of finite numbers.
+    """
+    x = checks.array(x, "signal", ndim=(1, 2))
     r = float(np.sqrt(np.mean(np.square(x, dtype=np.float64))))
     return 20.0 * np.log10(r) if r > 0 else -np.inf
 
@@ -804,7 +920,13 @@ class Window(Source):
 
 
 def as_source(x, fs: float, name: str = "input", *, hint: str = "") -> ArraySource:
-    """An array input as a source, after the shape checks of :func:`as_mono_array`."""
+    """An array input as a source, after the shape checks of :func:`as_mono_array`.
+
+    Raises
+    ------
+    InputError
+        As :func:`as_mono_array`.
+    """
     a, fs = as_mono_array(x, fs, name, hint=hint)
     return ArraySource(a, fs, name)
 
@@ -839,6 +961,12 @@ def calibration_from_tone(x: np.ndarray, fs: int, level_db: float, *, name: str 
     Returns
     -------
     float, dB SPL of a full-scale RMS signal.
+
+    Raises
+    ------
+    InputError
+        For a recording that is not a steady 1 kHz calibrator tone, or a level outside
+        :data:`CALIBRATOR_LEVEL_RANGE_DB`.
     """
     from . import standards as std
     from .bands import check_rate_for_octaves, octave_bands
@@ -871,7 +999,13 @@ def calibration_from_tone(x: np.ndarray, fs: int, level_db: float, *, name: str 
 
 def check_calibration_db(value: float | None) -> float | None:
     """Refuse a calibration offset (dB SPL of a full-scale RMS signal) that is not a
-    plausible number; ``None`` (no calibration) passes."""
+    plausible number; ``None`` (no calibration) passes.
+
+    Raises
+    ------
+    InputError
+        For an offset that is not a finite number in the plausible range.
+    """
     if value is None:
         return None
     try:
@@ -906,6 +1040,12 @@ def resolve_calibration(
     -------
     (calibration_db, source) : the offset, or ``None`` without a calibration; ``source``
         is "offset", "calibrator" or ``None``.
+
+    Raises
+    ------
+    InputError
+        For an offset together with a calibrator, a calibrator without its level, a
+        calibrator recording that cannot be read or is not a 1 kHz tone, or a value out of range.
     """
     if calibration_db is not None and calibrator is not None:
         raise InputError("both --calibration-db and --calibrator were given", "give one of them")

@@ -26,6 +26,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import ComputationError, InputError
 
@@ -60,12 +61,28 @@ ENVELOPE_LOWPASS_ORDER: int = 4
 
 
 def min_rate_for_octaves(centres: tuple[float, ...] = std.OCTAVE_BANDS_HZ) -> float:
-    """Lowest sample rate whose Nyquist frequency lies above the top band edge, Hz."""
-    return 2.0 * max(centres) * std.OCTAVE_EDGE_FACTOR
+    """Lowest sample rate whose Nyquist frequency lies above the top band edge, Hz.
+
+    Raises
+    ------
+    InputError
+        If ``centres`` is not a non-empty sequence of positive frequencies.
+    """
+    centres = checks.array(centres, "band centres", finite=True)
+    if np.any(centres <= 0):
+        raise InputError("a band centre is not a positive frequency", "give centre frequencies in Hz")
+    return 2.0 * float(np.max(centres)) * std.OCTAVE_EDGE_FACTOR
 
 
 def check_rate_for_octaves(fs: int, name: str = "input") -> None:
-    """Refuse a rate too low for the 8 kHz octave band."""
+    """Refuse a rate too low for the 8 kHz octave band.
+
+    Raises
+    ------
+    InputError
+        For such a rate, or one outside the supported range (:func:`envpredict.checks.sample_rate`).
+    """
+    fs = checks.sample_rate(fs, name)
     need = min_rate_for_octaves()
     if fs <= need:
         raise InputError(
@@ -116,7 +133,6 @@ class OctaveFilterbank:
         return sosfilt(np.array(sos), x)
 
 
-@lru_cache(maxsize=64)
 def octave_filterbank(
     fs: int,
     *,
@@ -129,24 +145,49 @@ def octave_filterbank(
     Parameters
     ----------
     fs : sample rate, Hz.
-    order : Butterworth prototype order (a band-pass has twice this order).
+    order : Butterworth prototype order (a band-pass has twice this order), 1..:data:`MAX_ORDER`.
     beyond_nyquist : a band whose upper edge reaches :data:`NYQUIST_SHARE` x Nyquist is
         refused ("refuse": the rate must exceed :func:`min_rate_for_octaves`, then every
         band is a band-pass), realised as a high-pass at its lower edge ("highpass"; a
         band whose lower edge is beyond as well is absent), or left out ("omit").
-    passes : each band's SOS repeated this many times in cascade. Two causal passes have
-        the magnitude response |H|^2 of one zero-phase (forward-backward) pass, at twice
-        the group delay.
+    passes : each band's SOS repeated this many times in cascade (1..:data:`MAX_ORDER`). Two
+        causal passes have the magnitude response |H|^2 of one zero-phase (forward-backward)
+        pass, at twice the group delay.
 
     Returns
     -------
     OctaveFilterbank with read-only arrays (the same object for the same arguments).
+
+    Raises
+    ------
+    InputError
+        For a rate outside the supported range (or too low for the 8 kHz band with
+        "refuse"), an order or a number of passes out of range, or an unknown
+        ``beyond_nyquist``.
+    ComputationError
+        If a band misses its definition (:func:`check_filterbank`).
 
     References
     ----------
     IEC 61260-1:2014, Electroacoustics -- Octave-band and fractional-octave-band filters,
     5.4 (base-2 band edges).
     """
+    fs = checks.sample_rate(fs)
+    order = checks.number(order, "filter order", lo=1, hi=MAX_ORDER, integer=True)
+    passes = checks.number(passes, "filter passes", lo=1, hi=MAX_ORDER, integer=True)
+    beyond_nyquist = checks.choice(beyond_nyquist, "beyond_nyquist", BEYOND_NYQUIST)
+    return _octave_filterbank(fs, order=order, beyond_nyquist=beyond_nyquist, passes=passes)
+
+
+@lru_cache(maxsize=64)
+def _octave_filterbank(
+    fs: int,
+    *,
+    order: int = std.OCTAVE_FILTER_ORDER,
+    beyond_nyquist: str = "refuse",
+    passes: int = 1,
+) -> OctaveFilterbank:
+    """:func:`octave_filterbank` on checked arguments (cached)."""
     from scipy.signal import butter
 
     fs, order, passes = int(fs), int(order), int(passes)
@@ -224,8 +265,13 @@ def octave_sos(fs: int, order: int = std.OCTAVE_FILTER_ORDER) -> tuple[np.ndarra
     Returns
     -------
     tuple of seven SOS arrays, 125 Hz ... 8 kHz (:func:`octave_filterbank` with its defaults).
+
+    Raises
+    ------
+    InputError
+        As :func:`octave_filterbank`.
     """
-    return octave_filterbank(int(fs), order=int(order)).sos
+    return octave_filterbank(fs, order=order).sos
 
 
 def octave_bands(x: np.ndarray, fs: int, *, zero_phase: bool = True) -> np.ndarray:
@@ -240,22 +286,52 @@ def octave_bands(x: np.ndarray, fs: int, *, zero_phase: bool = True) -> np.ndarr
     Returns
     -------
     ndarray, shape (7, len(x)).
+
+    Raises
+    ------
+    InputError
+        For a signal that is not a non-empty 1-D array of finite numbers, or a rate
+        refused by :func:`octave_filterbank`.
     """
-    x = np.asarray(x, dtype=np.float64)
-    bank = octave_filterbank(int(fs))
+    x = checks.array(x, "signal")
+    zero_phase = checks.flag(zero_phase, "zero_phase")
+    bank = octave_filterbank(fs)
     out = np.empty((len(std.OCTAVE_BANDS_HZ), x.size))
     for k in range(len(bank.sos)):
         out[k] = bank.apply(x, k, zero_phase=zero_phase)
     return out
 
 
-@lru_cache(maxsize=32)
+def _filter_args(fs, edges, order) -> tuple[int, tuple[float, ...], int]:
+    """Checked rate, cut-offs (0 < f < fs/2, ascending) and order of a Butterworth design."""
+    fs = checks.number(fs, "sample rate", lo=1.0, hi=checks.MAX_RATE_HZ)
+    out = tuple(checks.number(f, "cut-off frequency", lo=0.0, lo_open=True, hi=int(fs) / 2, hi_open=True)
+                for f in edges)
+    if list(out) != sorted(set(out)):
+        raise InputError(f"band edges {edges} are not ascending", "give the lower edge first")
+    return int(fs), out, checks.number(order, "filter order", lo=1, hi=MAX_ORDER, integer=True)
+
+
 def lowpass_sos(fs: int, cutoff_hz: float, order: int = ENVELOPE_LOWPASS_ORDER) -> np.ndarray:
     """Butterworth low-pass SOS of the intensity envelopes (read-only, cached).
 
     Checked against its definition by :func:`check_butterworth`. Pass a copy
     (``np.array(sos)``) to :mod:`scipy.signal`, whose filters need writable arrays.
+
+    Raises
+    ------
+    InputError
+        For a rate that is not a positive number of Hz, a cut-off that is not between 0
+        and the Nyquist frequency, or an order outside 1..:data:`MAX_ORDER`.
+    ComputationError
+        If the design misses its definition (:func:`check_butterworth`).
     """
+    fs, (cutoff_hz,), order = _filter_args(fs, (cutoff_hz,), order)
+    return _lowpass_sos(fs, cutoff_hz, order)
+
+
+@lru_cache(maxsize=32)
+def _lowpass_sos(fs: int, cutoff_hz: float, order: int) -> np.ndarray:
     from scipy.signal import butter
 
     sos = _frozen(butter(int(order), float(cutoff_hz), btype="lowpass", fs=int(fs), output="sos"))
@@ -263,7 +339,6 @@ def lowpass_sos(fs: int, cutoff_hz: float, order: int = ENVELOPE_LOWPASS_ORDER) 
     return sos
 
 
-@lru_cache(maxsize=32)
 def bandpass_sos(fs: int, low_hz: float, high_hz: float, order: int = ENVELOPE_LOWPASS_ORDER) -> np.ndarray:
     """Butterworth band-pass SOS from ``low_hz`` to ``high_hz`` (read-only, cached).
 
@@ -271,7 +346,20 @@ def bandpass_sos(fs: int, low_hz: float, high_hz: float, order: int = ENVELOPE_L
     come from :func:`octave_filterbank`). ``order`` is the prototype order (the band-pass
     has twice this order). Checked against its definition by :func:`check_butterworth`.
     Pass a copy (``np.array(sos)``) to :mod:`scipy.signal`.
+
+    Raises
+    ------
+    InputError
+        As :func:`lowpass_sos`, or for edges that are not ascending.
+    ComputationError
+        If the design misses its definition (:func:`check_butterworth`).
     """
+    fs, (low_hz, high_hz), order = _filter_args(fs, (low_hz, high_hz), order)
+    return _bandpass_sos(fs, low_hz, high_hz, order)
+
+
+@lru_cache(maxsize=32)
+def _bandpass_sos(fs: int, low_hz: float, high_hz: float, order: int) -> np.ndarray:
     from scipy.signal import butter
 
     edges = (float(low_hz), float(high_hz))
@@ -304,8 +392,26 @@ def check_butterworth(sos: np.ndarray, fs: int, edges_hz: tuple[float, ...], wha
         )
 
 
+#: Fewest samples :func:`intensity_envelopes` filters: the zero-phase low-pass pads
+#: each end with 3 x (2 x sections + 1) samples (scipy's sosfiltfilt default padlen).
+ENVELOPE_MIN_SAMPLES: int = 3 * (2 * ((ENVELOPE_LOWPASS_ORDER + 1) // 2) + 1) + 1
+
+#: Highest Butterworth prototype order and number of cascaded passes of a filterbank
+#: (beyond it the design is numerically useless; judgement).
+MAX_ORDER: int = 8
+
+
 def envelope_rate(fs: int, target_hz: float = 200.0) -> tuple[int, float]:
-    """Integer decimation factor to bring ``fs`` near ``target_hz`` and the resulting rate."""
+    """Integer decimation factor to bring ``fs`` near ``target_hz`` and the resulting rate.
+
+    Raises
+    ------
+    InputError
+        If ``fs`` or ``target_hz`` is not a positive number (``fs`` at most
+        :data:`envpredict.checks.MAX_RATE_HZ`).
+    """
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    target_hz = checks.number(target_hz, "envelope rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
     q = max(1, int(fs // target_hz))
     return q, fs / q
 
@@ -324,10 +430,20 @@ def intensity_envelopes(
     attenuation at 12.5 Hz is below 0.01 dB for the 50 Hz default).
 
     Returns ``(envelopes, envelope_rate)`` with envelopes of shape (bands, m).
+
+    Raises
+    ------
+    InputError
+        For band signals that are not a 1-D or 2-D array of finite numbers longer than
+        :data:`ENVELOPE_MIN_SAMPLES`, a rate outside the supported range, or a cut-off
+        that is not between 0 and the Nyquist frequency.
     """
     from scipy.signal import sosfiltfilt
 
-    q, fs_env = envelope_rate(int(fs), target_hz)
+    band_signals = checks.array(band_signals, "band signals", ndim=(1, 2), min_size=ENVELOPE_MIN_SAMPLES)
+    fs = checks.sample_rate(fs, "band signals")
+    cutoff_hz = checks.number(cutoff_hz, "envelope cut-off", lo=0.0, lo_open=True, hi=fs / 2, hi_open=True)
+    q, fs_env = envelope_rate(fs, target_hz)
     sq = np.square(np.atleast_2d(band_signals))
     env = sosfiltfilt(np.array(lowpass_sos(int(fs), cutoff_hz)), sq, axis=-1)[:, ::q]
     return np.maximum(env, 0.0), fs_env
@@ -364,8 +480,8 @@ class EnvelopeStream:
     def __init__(self, fs: int, *, cutoff_hz: float = 50.0, target_hz: float = 200.0,
                  order: int = ENVELOPE_LOWPASS_ORDER, band_passes: int = 1, beyond_nyquist: str = "refuse",
                  clip_negative: bool = True) -> None:
-        self.fs = int(fs)
-        self.bank = octave_filterbank(self.fs, beyond_nyquist=beyond_nyquist, passes=int(band_passes))
+        self.fs = checks.sample_rate(fs)
+        self.bank = octave_filterbank(self.fs, beyond_nyquist=beyond_nyquist, passes=band_passes)
         # private writable copies: scipy's sosfilt refuses read-only arrays
         self.sos = tuple(None if s is None else np.array(s) for s in self.bank.sos)
         self.lp = np.array(lowpass_sos(self.fs, cutoff_hz, order))
@@ -407,7 +523,6 @@ def _group_delay(sos: np.ndarray, f: float, fs: int) -> float:
 DELAY_MODULATION_HZ: float = 2.0
 
 
-@lru_cache(maxsize=16)
 def envelope_delays(fs: int, *, band_passes: int = 1, cutoff_hz: float = 50.0, target_hz: float = 200.0,
                     order: int = ENVELOPE_LOWPASS_ORDER) -> tuple[int, ...]:
     """Delay of each band's causal envelope (:class:`EnvelopeStream`) behind the signal,
@@ -417,7 +532,23 @@ def envelope_delays(fs: int, *, band_passes: int = 1, cutoff_hz: float = 50.0, t
     narrow-band signal travels at the group delay) plus that of the low-pass at the
     modulation frequencies (:data:`DELAY_MODULATION_HZ`), rounded to envelope samples.
     The seven bands must all be present (``beyond_nyquist="refuse"``).
+
+    Raises
+    ------
+    InputError
+        As :class:`EnvelopeStream` (a rate, cut-off, envelope rate, order or number of
+        passes out of range).
     """
+    fs = checks.sample_rate(fs)
+    band_passes = checks.number(band_passes, "filter passes", lo=1, hi=MAX_ORDER, integer=True)
+    cutoff_hz = checks.number(cutoff_hz, "envelope cut-off", lo=0.0, lo_open=True, hi=fs / 2, hi_open=True)
+    target_hz = checks.number(target_hz, "envelope rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    order = checks.number(order, "filter order", lo=1, hi=MAX_ORDER, integer=True)
+    return _envelope_delays(fs, band_passes, cutoff_hz, target_hz, order)
+
+
+@lru_cache(maxsize=32)
+def _envelope_delays(fs: int, band_passes: int, cutoff_hz: float, target_hz: float, order: int) -> tuple[int, ...]:
     st = EnvelopeStream(fs, cutoff_hz=cutoff_hz, target_hz=target_hz, order=order, band_passes=band_passes)
     lp = _group_delay(st.lp, DELAY_MODULATION_HZ, st.fs)
     return tuple(int(round((_group_delay(sos, fc, st.fs) + lp) * st.rate))

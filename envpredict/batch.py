@@ -93,6 +93,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable, Iterable, Iterator, Sequence
 
+from . import checks
 from . import standards as std
 from .audio import THREAD_LIMIT_VARS, usable_cores
 from .exceptions import ComputationError, EnvpredictError, InputError
@@ -282,7 +283,7 @@ def read_manifest(
     """
     from .sti import check_speech_level, check_talker, parse_noise_levels
 
-    p = Path(path)
+    p = checks.path(path, "manifest")
     text = read_text(p, "manifest")
     noise = parse_noise_levels(noise_db)
     defaults = {
@@ -1061,11 +1062,22 @@ def run_batch(
     -------
     BatchSummary (``failed > 0`` when any row of the results file has an error).
 
+    Raises
+    ------
+    InputError
+        For a manifest that is not a path or a :class:`Manifest`, a malformed manifest,
+        an output that cannot be written or does not match the manifest on ``resume``,
+        or an option out of range.
+    ComputationError
+        If the output cannot be written (a full disk) or the backend fails.
+
     Notes
     -----
     Results do not depend on the backend or on the number of workers: every row is
     scored by the same deterministic function of its files.
     """
+    if not isinstance(manifest, Manifest):
+        manifest = checks.path(manifest, "manifest")
     if workers is not None:
         try:
             w = int(workers)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from . import checks
 from . import standards as std
 from .sti import format_index
 
@@ -27,7 +28,14 @@ NO_AUDITORY = (
 def below_target(sti: float, requirement: float | None = None) -> str | None:
     """The caution for an STI below the user's requirement (or, without one, the common
     voice-alarm requirement), judged on the unrounded value and shown with the decimals
-    that keep the two consistent."""
+    that keep the two consistent.
+
+    Raises
+    ------
+    InputError
+        If ``sti`` is not a finite number.
+    """
+    sti = checks.number(sti, "STI")
     if requirement is not None:
         if sti < requirement:
             return f"STI {format_index(sti, requirement)} is below the required {requirement:g}."

@@ -33,6 +33,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import InputError
 from .results import jsonable
@@ -132,7 +133,16 @@ def band_envelopes(dft_frames: np.ndarray) -> np.ndarray:
     spares the FFT a copy). Each value is the root of the summed 512-point DFT power of the
     band's bins (Taal 2011, eq. 1): ``sqrt(A @ |X|**2)`` with ``A`` from
     :func:`third_octave_matrix`.
+
+    Raises
+    ------
+    InputError
+        For frames that are not a (K, 256) or (K, 512) array of finite numbers.
     """
+    dft_frames = checks.array(dft_frames, "DFT frames", ndim=2, min_size=0)
+    if dft_frames.shape[1] not in (std.STOI_FRAME_LEN, std.STOI_NFFT):
+        raise InputError(f"DFT frames have {dft_frames.shape[1]} values each",
+                         f"pass (K, {std.STOI_FRAME_LEN}) or (K, {std.STOI_NFFT}) frames")
     edges = _band_bin_edges()
     spec = np.fft.rfft(dft_frames, n=std.STOI_NFFT, axis=1)
     sq = spec[:, edges[0] : edges[-1]].view(np.float64)  # real and imaginary parts side by side
@@ -142,7 +152,14 @@ def band_envelopes(dft_frames: np.ndarray) -> np.ndarray:
 
 
 def frame_count(n_samples: int) -> int:
-    """Number of analysis frames of a signal: starts 0, 128, ... below n - 256."""
+    """Number of analysis frames of a signal: starts 0, 128, ... below n - 256.
+
+    Raises
+    ------
+    InputError
+        If ``n_samples`` is not a whole number of samples.
+    """
+    n_samples = checks.samples(n_samples, "signal length")
     return len(range(0, max(0, n_samples - std.STOI_FRAME_LEN), std.STOI_HOP))
 
 
@@ -159,7 +176,17 @@ def _chunk_samples(x_read: Reader, f0: int, f1: int) -> np.ndarray:
 
 
 def frame_energies_db(x_read: Reader, n_samples: int, chunk_frames: int = DEFAULT_CHUNK_FRAMES) -> np.ndarray:
-    """Energy of each windowed frame of the clean signal, dB (20 log10 of the frame norm)."""
+    """Energy of each windowed frame of the clean signal, dB (20 log10 of the frame norm).
+
+    Raises
+    ------
+    InputError
+        For a reader that is not callable, or a length or chunk that is not a whole number.
+    """
+    if not callable(x_read):
+        raise InputError("x_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    n_samples = checks.samples(n_samples, "signal length")
+    chunk_frames = checks.number(chunk_frames, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
     w = analysis_window()
     w2 = w * w
     total = frame_count(n_samples)
@@ -226,9 +253,22 @@ def tf_envelopes(
     Two passes over the 10 kHz signals: clean frame energies first (the 40 dB range
     is relative to the loudest frame of the whole signal), then the spectra of the
     kept frames. Returns ``(X, Y, kept_frame_indices, total_frames)``.
+
+    Raises
+    ------
+    InputError
+        For readers or ``progress`` that are not callable, or a length or chunk that is not a whole number.
     """
     from .audio import in_parallel
 
+    if not callable(clean_read):
+        raise InputError("clean_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    if not callable(degraded_read):
+        raise InputError("degraded_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    n_samples = checks.samples(n_samples, "signal length")
+    chunk_frames = checks.number(chunk_frames, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
+    if progress is not None and not callable(progress):
+        raise InputError("progress is not a function", "pass a function (done, total) or None")
     total = frame_count(n_samples)
     n_chunks = max(1, -(-total // chunk_frames))
     energy = frame_energies_db(clean_read, n_samples, chunk_frames)
@@ -349,10 +389,21 @@ def segment_scores(x_env: np.ndarray, y_env: np.ndarray, which: tuple[str, ...] 
     All segments are processed at once (blocks of :data:`SEGMENT_BLOCK`): the sums over
     a segment's 30 frames run as 30 vector operations over all segments, on views of the
     envelopes, so the working set stays small (no 30-fold copy of the envelopes).
+
+    Raises
+    ------
+    InputError
+        For envelopes that are not arrays of finite numbers of the same shape, or unknown names in ``which``.
     """
+    x_env = checks.array(x_env, "clean envelopes", ndim=2, min_size=0)
+    y_env = checks.array(y_env, "degraded envelopes", ndim=2, min_size=0)
+    if x_env.shape != y_env.shape:
+        raise InputError(f"envelope shapes differ: {x_env.shape} and {y_env.shape}", "pass the envelopes of one pair")
+    if isinstance(which, str) or not all(isinstance(w, str) for w in which):
+        raise InputError(f"which {which!r:.40} is not a tuple of names", f"choose from {SCORES}")
     unknown = set(which) - set(SCORES)
     if unknown:
-        raise ValueError(f"unknown segment statistics {sorted(unknown)}; choose from {SCORES}")
+        raise InputError(f"unknown segment statistics {sorted(unknown)}", f"choose from {', '.join(SCORES)}")
     n = std.STOI_SEGMENT_FRAMES
     n_bands, m_frames = x_env.shape
     n_seg = m_frames - n + 1
@@ -442,7 +493,22 @@ class CorrelationResult:
 def correlation_from_envelopes(
     x_env: np.ndarray, y_env: np.ndarray, kept_idx: np.ndarray, frames_total: int
 ) -> CorrelationResult:
-    """STOI, ESTOI and their diagnostics from the TF envelopes of a pair."""
+    """STOI, ESTOI and their diagnostics from the TF envelopes of a pair.
+
+    Raises
+    ------
+    InputError
+        For envelopes that are not (15, M) arrays of finite numbers of the same shape, frame
+        indices that are not numbers, or a frame count that is not a whole number.
+    """
+    x_env = checks.array(x_env, "clean envelopes", ndim=2, min_size=0)
+    y_env = checks.array(y_env, "degraded envelopes", ndim=2, min_size=0)
+    if x_env.shape != y_env.shape:
+        raise InputError(f"envelope shapes differ: {x_env.shape} and {y_env.shape}", "pass the envelopes of one pair")
+    kept_idx = checks.array(kept_idx, "kept frames", min_size=0)
+    frames_total = checks.samples(frames_total, "number of frames")
+    if x_env.shape[0] != std.STOI_NUM_BANDS:
+        raise InputError(f"envelopes have {x_env.shape[0]} bands", f"pass {std.STOI_NUM_BANDS} one-third-octave bands")
     sc = segment_scores(x_env, y_env)
     rho, share = sc["stoi_band_segment"], sc["estoi_band_segment"]
     n_bands = rho.shape[0]
@@ -485,7 +551,20 @@ def stoi_estoi_stream(
     n_samples : length of both signals.
     chunk_frames : frames per chunk; memory grows with it, the result does not change.
     progress : optional ``progress(done, total)`` callback.
+
+    Raises
+    ------
+    InputError
+        For readers or ``progress`` that are not callable, or a length or chunk that is not a whole number.
     """
+    if not callable(clean_read):
+        raise InputError("clean_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    if not callable(degraded_read):
+        raise InputError("degraded_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    n_samples = checks.samples(n_samples, "signal length")
+    chunk_frames = checks.number(chunk_frames, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
+    if progress is not None and not callable(progress):
+        raise InputError("progress is not a function", "pass a function (done, total) or None")
     x_env, y_env, kept, total = tf_envelopes(
         clean_read, degraded_read, n_samples, chunk_frames=chunk_frames, progress=progress
     )
@@ -498,7 +577,7 @@ def stoi_estoi_stream(
 
 
 def _prepare(clean: np.ndarray, degraded: np.ndarray, fs: int) -> tuple[np.ndarray, np.ndarray]:
-    from .audio import in_parallel, resample, validate_signal
+    from .audio import in_parallel, polyphase, resample_ratio, validate_signal
 
     def checked(a: np.ndarray, name: str) -> tuple[int, np.ndarray]:
         v = validate_signal(a, fs, name=name, allow_clipping=True)
@@ -507,7 +586,10 @@ def _prepare(clean: np.ndarray, degraded: np.ndarray, fs: int) -> tuple[np.ndarr
                 f"sample rate {int(fs)} Hz is below the {std.STOI_FS} Hz that STOI analyses",
                 f"give signals sampled at {std.STOI_FS} Hz or more (upsampling cannot restore the missing band)",
             )
-        return v.size, resample(v, int(fs), std.STOI_FS)
+        if int(fs) == std.STOI_FS:
+            return v.size, v
+        # validated above: the polyphase filter itself (audio.resample would check again)
+        return v.size, polyphase(v, *resample_ratio(int(fs), std.STOI_FS))
 
     # each signal checked and resampled in its own thread where two cores are free; an
     # error of the clean signal is raised first, as if one after the other
@@ -540,6 +622,14 @@ def correlation_indices(clean: np.ndarray, degraded: np.ndarray, fs: int) -> Cor
     """STOI and ESTOI with per-band and per-segment diagnostics (arrays of equal length).
 
     See :func:`stoi` for the method and the valid range.
+
+    Raises
+    ------
+    InputError
+        For signals refused by the input rule (not numeric, not one channel, empty, NaN/inf,
+        silent, clipped, a rate outside the supported range), of different lengths, or too short or
+        silent for one
+        30-frame segment after silent-frame removal.
     """
     return correlation_from_envelopes(*_array_envelopes(clean, degraded, fs))
 
@@ -590,6 +680,11 @@ def stoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
     >>> x = rng.standard_normal(t.size) * (1 + np.sin(2 * np.pi * 4 * t))
     >>> round(stoi(x, x, 10000), 6)
     1.0
+
+    Raises
+    ------
+    InputError
+        As :func:`correlation_indices`.
     """
     return _one_index(clean, degraded, fs, "stoi_band_segment")
 
@@ -620,5 +715,10 @@ def estoi(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float:
     1.0
     >>> bool(estoi(x, x + 3 * rng.standard_normal(t.size), 10000) < 0.5)
     True
+
+    Raises
+    ------
+    InputError
+        As :func:`correlation_indices`.
     """
     return _one_index(clean, degraded, fs, "estoi_band_segment")

@@ -20,6 +20,7 @@ from typing import Sequence
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import InputError
 from .results import jsonable
@@ -63,7 +64,14 @@ FILTER_SPREAD_BANDWIDTHS: float = 2.0
 
 def onset_index(x: np.ndarray) -> int:
     """Start of the impulse response: first sample whose energy is within 20 dB of the
-    maximum. Source: ISO 3382-1:2009, A.3.2."""
+    maximum. Source: ISO 3382-1:2009, A.3.2.
+
+    Raises
+    ------
+    InputError
+        If ``x`` is not a non-empty 1-D array of finite numbers.
+    """
+    x = checks.array(x, "impulse response")
     e = np.square(np.asarray(x, dtype=np.float64))
     thr = e.max() * 10.0 ** (-std.ONSET_THRESHOLD_DB / 10.0)
     return int(np.argmax(e >= thr))
@@ -143,7 +151,14 @@ def impulse_shape(x: np.ndarray, fs: float) -> ImpulseShape:
     True
     >>> impulse_shape(rng.standard_normal(t.size), 48000).is_impulse_response
     False
+
+    Raises
+    ------
+    InputError
+        For a response that is not a non-empty 1-D array of finite numbers, or a rate that is not positive.
     """
+    x = checks.array(x, "impulse response")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
     a = np.asarray(x, dtype=np.float64)
     win = max(1, int(round(std.IR_ENVELOPE_BLOCK_S * fs)))
     n = (a.size // win) * win
@@ -177,6 +192,8 @@ def check_impulse_response(x: np.ndarray, fs: float, label: str = "the input") -
     InputError
         One line saying what the signal looks like and what to do instead.
     """
+    x = checks.array(x, "impulse response")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
     shape = impulse_shape(x, fs)
     if shape.is_impulse_response:
         return shape
@@ -244,7 +261,16 @@ def find_noise_floor(e: np.ndarray, fs: float, fc: float | None = None) -> Noise
     """Iterative noise-floor and crossing-point estimate (Lundeby et al. 1995).
 
     ``e`` is the squared response from the onset on.
+
+    Raises
+    ------
+    InputError
+        For a squared response that is not a non-empty 1-D array of finite numbers,
+        a rate that is not positive or a band centre that is not positive.
     """
+    e = checks.array(e, "squared response")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    fc = checks.optional_number(fc, "band centre", lo=0.0, lo_open=True)
     n = e.size
     win0 = _initial_window(fs, fc)
     tail = max(1, int(n * NOISE_TAIL_FRACTION))
@@ -310,7 +336,19 @@ def schroeder_curve(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | Non
 
     The integral is taken at the full rate; the curve is returned at every ``step``-th
     sample (it is smooth, so a decimated copy loses nothing for fitting or plotting).
-    Samples after the crossing are NaN."""
+    Samples after the crossing are NaN.
+
+    Raises
+    ------
+    InputError
+        As :func:`find_noise_floor`, or for a ``floor`` that is not a :class:`NoiseFloor`.
+    """
+    e = checks.array(e, "squared response")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    fc = checks.optional_number(fc, "band centre", lo=0.0, lo_open=True)
+    if not isinstance(floor, NoiseFloor):
+        raise InputError("floor is not a NoiseFloor", "pass the result of find_noise_floor")
+    step = checks.number(step, "step", lo=1, hi=checks.MAX_SAMPLES, integer=True)
     tc = floor.crossing
     ee = e[:tc]
     s = (np.cumsum(ee[::-1])[::-1] + tail_energy(e, fs, floor, fc))[::step]
@@ -326,14 +364,36 @@ def _peak_energy(e: np.ndarray, fs: float, fc: float | None = None) -> float:
 
 
 def noise_energy(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = None) -> float:
-    """Mean noise energy per sample (0 where the response has no noise floor)."""
+    """Mean noise energy per sample (0 where the response has no noise floor).
+
+    Raises
+    ------
+    InputError
+        As :func:`find_noise_floor`, or for a ``floor`` that is not a :class:`NoiseFloor`.
+    """
+    e = checks.array(e, "squared response")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    fc = checks.optional_number(fc, "band centre", lo=0.0, lo_open=True)
+    if not isinstance(floor, NoiseFloor):
+        raise InputError("floor is not a NoiseFloor", "pass the result of find_noise_floor")
     return 10 ** (floor.noise_db / 10.0) * _peak_energy(e, fs, fc) if floor.has_noise else 0.0
 
 
 def tail_energy(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = None) -> float:
     """Energy beyond the crossing point, as a sum of samples: the decay line's energy at
     the crossing (the noise level there, or the last 5 ms where there is no noise) times
-    T/13.8 (the integral of the exponential tail). Source: ISO 3382-1:2009, 5.3.3."""
+    T/13.8 (the integral of the exponential tail). Source: ISO 3382-1:2009, 5.3.3.
+
+    Raises
+    ------
+    InputError
+        As :func:`find_noise_floor`, or for a ``floor`` that is not a :class:`NoiseFloor`.
+    """
+    e = checks.array(e, "squared response")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    fc = checks.optional_number(fc, "band centre", lo=0.0, lo_open=True)
+    if not isinstance(floor, NoiseFloor):
+        raise InputError("floor is not a NoiseFloor", "pass the result of find_noise_floor")
     if floor.has_noise:
         e_tc = noise_energy(e, fs, floor, fc)
     else:
@@ -362,7 +422,17 @@ _NO_FIT = DecayFit(float("nan"), float("nan"), float("nan"))
 
 def fit_decay_range(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) -> DecayFit:
     """Fit a line to the curve between ``hi_db`` and ``lo_db`` (first passages) and measure
-    how straight the curve is there (ISO 3382-2:2008, Annex B, from memory: xi = 1000 (1 - r^2))."""
+    how straight the curve is there (ISO 3382-2:2008, Annex B, from memory: xi = 1000 (1 - r^2)).
+
+    Raises
+    ------
+    InputError
+        For a curve that is not a 1-D array of numbers, a rate that is not positive or levels that are
+        not finite numbers.
+    """
+    curve_db = checks.array(curve_db, "decay curve", min_size=0, finite=False)
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    hi_db, lo_db = checks.number(hi_db, "upper level"), checks.number(lo_db, "lower level")
     c = curve_db
     finite = np.isfinite(c)
     below_lo = np.flatnonzero(finite & (c <= lo_db))
@@ -385,7 +455,17 @@ def fit_decay_range(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float)
 
 def fit_decay_time(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) -> float:
     """Decay time (s, extrapolated to 60 dB) from a least-squares fit of the curve between
-    ``hi_db`` and ``lo_db`` (first passages). NaN if the curve does not reach ``lo_db``."""
+    ``hi_db`` and ``lo_db`` (first passages). NaN if the curve does not reach ``lo_db``.
+
+    Raises
+    ------
+    InputError
+        For a curve that is not a 1-D array of numbers, a rate that is not positive or levels that are
+        not finite numbers.
+    """
+    curve_db = checks.array(curve_db, "decay curve", min_size=0, finite=False)
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    hi_db, lo_db = checks.number(hi_db, "upper level"), checks.number(lo_db, "lower level")
     return fit_decay_range(curve_db, fs, hi_db, lo_db).time_s
 
 
@@ -459,7 +539,18 @@ def _needed_range(name: str) -> float:
 
 
 def band_decay(band: np.ndarray, fs: float, t0: int, fc: float | None = None) -> dict:
-    """All decay figures of one band-filtered response (``t0``: onset sample)."""
+    """All decay figures of one band-filtered response (``t0``: onset sample).
+
+    Raises
+    ------
+    InputError
+        For a response that is not a non-empty 1-D array of finite numbers, a rate that is not positive, an
+        onset outside the response or a band centre that is not positive.
+    """
+    band = checks.array(band, "band response")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    fc = checks.optional_number(fc, "band centre", lo=0.0, lo_open=True)
+    t0 = checks.number(t0, "onset sample", lo=0, hi=band.size - 1, integer=True)
     x = np.asarray(band, dtype=np.float64)
     e_all = np.square(x)
     e = e_all[t0:]
@@ -538,7 +629,19 @@ def decay_figures(band_irs: np.ndarray, fs: float, t0: int, *, keep_curves: bool
     band_irs : (7, n) band-filtered impulse responses (zero-phase filtered).
     fs : sample rate, Hz.
     t0 : onset sample (ISO 3382-1 A.3.2), usually from the broadband response.
+
+    Raises
+    ------
+    InputError
+        For responses that are not a (7, n) array of finite numbers, a rate that is not positive or an onset
+        outside the responses.
     """
+    band_irs = checks.array(band_irs, "band impulse responses", ndim=2)
+    if band_irs.shape[0] != len(std.OCTAVE_BANDS_HZ):
+        raise InputError(f"{band_irs.shape[0]} band responses", "pass the seven octave bands, 125 Hz to 8 kHz")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    t0 = checks.number(t0, "onset sample", lo=0, hi=band_irs.shape[1] - 1, integer=True)
+    keep_curves = checks.flag(keep_curves, "keep_curves")
     per = [band_decay(b, fs, t0, fc) for b, fc in zip(band_irs, std.OCTAVE_BANDS_HZ)]
     notes = tuple(n for p in per for n in p["notes"])
     curves = None
@@ -563,8 +666,15 @@ def decay_figures(band_irs: np.ndarray, fs: float, t0: int, *, keep_curves: bool
 
 
 def reverberation_time(x: np.ndarray, fs: float, kind: str = "t30") -> float:
-    """Broadband EDT/T20/T30 of an impulse response (NaN if the range is too small)."""
-    x = np.asarray(x, dtype=np.float64)
+    """Broadband EDT/T20/T30 of an impulse response (NaN if the range is too small).
+
+    Raises
+    ------
+    InputError
+        For a response refused by :func:`onset_index`, a rate that is not positive or an unknown ``kind``.
+    """
+    kind = checks.choice(kind, "decay figure", tuple(std.DECAY_RANGES_DB))
+    x = checks.array(x, "impulse response")
     return float(band_decay(x, fs, onset_index(x), None)[kind])
 
 
@@ -599,23 +709,39 @@ def mid_frequency(values: Sequence[float | None] | np.ndarray,
     >>> import math
     >>> math.isnan(mid_frequency([1.9, 1.8, None, 1.5, 1.3, 1.1, 0.9]))
     True
+
+    Raises
+    ------
+    InputError
+        If ``values`` is not one value per band or a value is not a number (or None).
     """
-    bands = [float(b) for b in bands_hz]
-    if len(values) != len(bands):
-        raise ValueError(f"{len(values)} values for {len(bands)} bands")
+    bands = checks.array(bands_hz, "band centres").tolist()
+    if isinstance(values, (str, bytes)) or not hasattr(values, "__len__") or len(values) != len(bands):
+        raise InputError(f"{values!r:.40} is not one value per band of {len(bands)}",
+                         "give one value (or None) per octave band")
     vals = []
     for fc in std.MID_FREQUENCY_BANDS_HZ:
         if fc not in bands:
             return float("nan")
         v = values[bands.index(fc)]
-        vals.append(float("nan") if v is None else float(v))
+        missing = v is None or isinstance(v, float) and math.isnan(v)  # np.float64 NaN too
+        vals.append(float("nan") if missing else checks.number(v, "value"))
     return math.fsum(vals) / len(vals) if all(math.isfinite(v) for v in vals) else float("nan")
 
 
 def mid_frequency_notes(decay: DecayResult, name: str) -> tuple[str, ...]:
     """The notes of :func:`decay_figures` that explain a missing 500 Hz or 1 kHz value of
     figure ``name`` ("t30", "edt", ...): "not computed" and "not given" notes, not the
-    cautions about a value that was kept; empty when there is none."""
+    cautions about a value that was kept; empty when there is none.
+
+    Raises
+    ------
+    InputError
+        For a ``decay`` that is not a :class:`DecayResult` or a ``name`` that is not text.
+    """
+    if not isinstance(decay, DecayResult):
+        raise InputError("decay is not a DecayResult", "pass the result of decay_figures")
+    name = checks.text(name, "figure name")
     fig = name.upper()
     return tuple(n for n in decay.notes if n.startswith(f"{fig} not ") and any(f" at {b:g} Hz" in n for b in
                                                                               std.MID_FREQUENCY_BANDS_HZ))

@@ -14,6 +14,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
+from .exceptions import InputError
+from . import checks
 from ._data import demo_dir
 from .decay import mid_frequency
 from .indirect import IrResult
@@ -25,10 +27,20 @@ SCENARIO_FILE = "scenario.json"
 
 
 def read_scenario(folder: Path | None = None) -> dict:
-    """The demo scenario (title, description, levels, file names) from ``scenario.json``."""
-    folder = demo_dir() if folder is None else Path(folder)
-    with open(folder / SCENARIO_FILE, encoding="utf-8") as fh:
-        return json.load(fh)
+    """The demo scenario (title, description, levels, file names) from ``scenario.json``.
+
+    Raises
+    ------
+    InputError
+        If ``folder`` is not a folder holding a readable ``scenario.json``.
+    """
+    folder = demo_dir() if folder is None else checks.path(folder, "demo folder")
+    try:
+        with open(folder / SCENARIO_FILE, encoding="utf-8") as fh:
+            return json.load(fh)
+    except (OSError, UnicodeDecodeError, ValueError) as e:
+        raise InputError(f"demo scenario '{folder / SCENARIO_FILE}' cannot be read ({type(e).__name__})",
+                         "give the folder of a demo site with its scenario.json") from None
 
 
 @dataclass(frozen=True)
@@ -75,6 +87,11 @@ def rate_demo_site(progress: Callable[[int, int], None] | None = None) -> DemoRe
     Returns
     -------
     DemoResult
+
+    Raises
+    ------
+    InputError
+        If the installed demo material cannot be read.
     """
     from .indirect import sti_from_ir_file
     from .pair import pair_from_files

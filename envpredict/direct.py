@@ -56,6 +56,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from . import cautions as cau
+from . import checks
 from . import standards as std
 from .audio import (
     ArraySource, FileSource, SignalCheck, Source, audio_files_in, check_calibration_db, check_rate, resolve_calibration,
@@ -271,8 +272,13 @@ def find_usable_part(
 
     Raises
     ------
-    InputError if the test signal part is shorter than ``min_seconds`` + 2 margins.
+    InputError if the test signal part is shorter than ``min_seconds`` + 2 margins, the
+    recording is not a non-empty 1-D array of finite numbers, or the rate is outside the
+    supported range.
     """
+    x = checks.array(x, name)
+    fs = checks.sample_rate(fs, name)
+    min_seconds = checks.number(min_seconds, "shortest length", lo=0.0, hi=MAX_RECORDING_S)
     frame = _frame_length(fs)
     fe = _FrameEnergies(frame)
     fe.update(np.asarray(x, dtype=np.float64))
@@ -392,7 +398,13 @@ class _Ticks:
 
 
 def check_block_seconds(value: float) -> float:
-    """Refuse a block length that is not a positive number of seconds."""
+    """Refuse a block length that is not a positive number of seconds.
+
+    Raises
+    ------
+    InputError
+        For a block length that is not a number in the accepted range.
+    """
     try:
         v = float(value)
     except (TypeError, ValueError):
@@ -819,6 +831,14 @@ def stipa_from_recording(
     >>> r = stipa_from_recording(stipa_signal(15, 24000), 24000)
     >>> r.sti.sti > 0.97
     True
+
+    Raises
+    ------
+    InputError
+        For a recording refused by the input rule (not numeric, not one channel, empty, NaN/inf,
+        silent, clipped, a rate outside the supported range), too short or without a STIPA test
+        signal, or an
+        option out of range (calibration, noise levels, talker, block length).
     """
     return _stipa(lambda min_s, ticks: _analyse_recording(x, fs, min_s, name, block_seconds=block_seconds,
                                                           ticks=ticks),
@@ -862,6 +882,11 @@ def stipa_from_file(
 
     Valid input: as for :func:`stipa_from_recording`; at most :data:`MAX_RECORDING_S` (2 h).
     The result's ``calibration_source`` says where the calibration came from.
+
+    Raises
+    ------
+    InputError
+        For a file that cannot be read, or as :func:`stipa_from_recording`.
     """
     _check_talker_and_noise(talker, noise_db)
     cal, source = resolve_calibration(calibration_db, calibrator, calibrator_level,
@@ -998,7 +1023,16 @@ def full_sti_from_recordings(
 
     Valid input: each recording with at least 4 periods of its modulation frequency
     plus 1.25 s at each end (the 0.63 Hz signal: 8.9 s).
+
+    Raises
+    ------
+    InputError
+        For recordings that are not (samples, rate, name) triples, a recording refused by
+        the input rule or too short, or an option out of range.
     """
+    if isinstance(recordings, (str, bytes)) or not isinstance(recordings, Sequence) or not all(
+            isinstance(r, tuple) and len(r) == 3 for r in recordings):
+        raise InputError("recordings are not (samples, rate, name) triples", "pass one triple per recording")
     check_block_seconds(block_seconds)
 
     def source(x, fs, name):
@@ -1011,7 +1045,13 @@ def full_sti_from_recordings(
 
 def recording_paths(paths: str | os.PathLike | Sequence[str | os.PathLike]) -> list[Path]:
     """The recording files of ``paths``: each folder replaced by its audio files
-    (:func:`envpredict.audio.audio_files_in`), files kept as given, in order."""
+    (:func:`envpredict.audio.audio_files_in`), files kept as given, in order.
+
+    Raises
+    ------
+    InputError
+        For a path that is not usable or a folder without audio files.
+    """
     if isinstance(paths, (str, os.PathLike)):
         paths = [paths]
     files: list[Path] = []
@@ -1053,6 +1093,11 @@ def full_sti_from_files(
     calibration_db, noise_db, talker, block_seconds, progress : as for
         :func:`full_sti_from_recordings`.
     calibrator, calibrator_level, calibrator_channel : as for :func:`stipa_from_file`.
+
+    Raises
+    ------
+    InputError
+        For files that cannot be read, or as :func:`full_sti_from_recordings`.
     """
     check_block_seconds(block_seconds)
     _check_talker_and_noise(talker, noise_db)

@@ -140,6 +140,14 @@ def sti_from_ir(
     >>> r = sti_from_ir(ir * 0.1, fs, auditory=False)
     >>> 0.5 < r.sti.sti < 0.7
     True
+
+    Raises
+    ------
+    InputError
+        For an impulse response refused by the input rule (not numeric, not one channel, empty,
+        NaN/inf, silent, clipped, a rate outside the supported range), too short, or not an impulse
+        response, or an
+        option out of range (noise levels, speech level, talker).
     """
     talker = check_talker(talker)
     speech, speech_level_dba = _speech_levels(speech_level_dba, speech_db)

@@ -58,6 +58,7 @@ from typing import Any
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import ComputationError, InputError
 from .results import jsonable
@@ -170,7 +171,13 @@ def _pdf0(shape: str) -> float:
 
 
 def check_shape(shape: str) -> str:
-    """Refuse unknown psychometric shapes."""
+    """Refuse unknown psychometric shapes.
+
+    Raises
+    ------
+    InputError
+        For a shape other than those of :data:`SHAPES`.
+    """
     s = str(shape).strip().lower()
     if s not in SHAPES:
         raise InputError(f"unknown mapping shape '{shape}'", f"use one of {', '.join(SHAPES)}")
@@ -178,7 +185,13 @@ def check_shape(shape: str) -> str:
 
 
 def check_guess_lapse(guess: float, lapse: float) -> tuple[float, float]:
-    """Refuse guess and lapse rates outside [0, 1) or leaving no room for a curve."""
+    """Refuse guess and lapse rates outside [0, 1) or leaving no room for a curve.
+
+    Raises
+    ------
+    InputError
+        For a guess or lapse rate outside [0, 1) or summing to 1 or more.
+    """
     out = []
     for name, v in (("guess rate", guess), ("lapse rate", lapse)):
         try:
@@ -422,6 +435,11 @@ def mapping_from_dict(d: Any, source: str = "(dict)") -> ScoreMapping:
     Only ``index``, ``shape``, ``params.a``, ``params.b``, ``guess`` and ``lapse`` are
     needed; ``cov_ab``, ``n_points``, ``index_range``, ``source`` and ``notes`` are read
     when present. Malformed content raises :class:`InputError` naming ``source``.
+
+    Raises
+    ------
+    InputError
+        For content that is not a mapping (missing or malformed fields).
     """
     fix = "give a MAP.json written by 'envpredict fitmap'"
     if not isinstance(d, dict):
@@ -796,7 +814,16 @@ def scores_from_rows(
 
     ``rows`` are ``(line_number, {column: text})`` pairs as read from a CSV file;
     errors name ``source``, the line and the column. Counts must be whole numbers.
+
+    Raises
+    ------
+    InputError
+        For rows that are not (line, mapping) pairs, a missing column, or cells that are
+        not numbers or whole counts.
     """
+    if isinstance(rows, (str, bytes)) or not isinstance(rows, Sequence) or not all(
+            isinstance(r, tuple) and len(r) == 2 and isinstance(r[1], MappingType) for r in rows):
+        raise InputError("rows are not (line, row) pairs", "pass rows as read by envpredict.tables.read_table")
     index, correct, trials = (resolve_column(header, c, source) for c in (index, correct, trials))
     if not rows:
         raise InputError(f"{source} has a header but no rows", "add one row per tested condition")
@@ -821,7 +848,13 @@ def scores_from_rows(
 
 
 def predict_scores(values: Any, mapping: ScoreMapping) -> np.ndarray:
-    """Predicted percent correct for index value(s) ``values`` (NaN where a value is NaN)."""
+    """Predicted percent correct for index value(s) ``values`` (NaN where a value is NaN).
+
+    Raises
+    ------
+    InputError
+        For values that are not numbers.
+    """
     if not isinstance(mapping, ScoreMapping):
         raise InputError("mapping is not a ScoreMapping", "fit one with fit_mapping or load a MAP.json")
     try:
@@ -887,7 +920,21 @@ def add_predictions(
     prediction; text that is not a number is refused with the row and column. Index
     values outside the range of the data the mapping was fitted on are marked
     ``extrapolated`` in ``column + "_note"``.
+
+    Raises
+    ------
+    InputError
+        For rows that are not (line, mapping) pairs, a ``mapping`` that is not a
+        :class:`ScoreMapping`, a missing or existing column, or index cells that are not numbers.
     """
+    if isinstance(rows, (str, bytes)) or not isinstance(rows, Sequence) or not all(
+            isinstance(r, tuple) and len(r) == 2 and isinstance(r[1], MappingType) for r in rows):
+        raise InputError("rows are not (line, row) pairs", "pass rows as read by envpredict.tables.read_table")
+    if not isinstance(mapping, ScoreMapping):
+        raise InputError("mapping is not a ScoreMapping", "pass the result of fit_mapping or read_mapping")
+    if index_column is not None:
+        index_column = checks.text(index_column, "index column")
+    digits = checks.number(digits, "decimals", lo=0, hi=17, integer=True)
     col = resolve_column(header, index_column or mapping.index, source)
     flag = f"{column}_note"
     for c in (column, flag):
@@ -934,9 +981,8 @@ def read_mapping(path: str | os.PathLike) -> ScoreMapping:
         A missing file, a folder, invalid JSON or content that is not a mapping.
     """
     import json
-    from pathlib import Path
 
-    p = Path(path)
+    p = checks.path(path, "mapping")
     if not p.exists():
         raise InputError(f"mapping '{p}' does not exist", "check the path, or write one with 'envpredict fitmap'")
     if p.is_dir():
@@ -1001,6 +1047,14 @@ def fit_mapping_file(
     -------
     mapping : the fitted :class:`ScoreMapping` (its ``source`` names the file and columns).
     data : the fitted rows (:class:`ScoreData`).
+
+    Raises
+    ------
+    InputError
+        For a scores file that cannot be read or is malformed, a missing column, or counts
+        that are not whole numbers.
+    ComputationError
+        If the fit does not converge.
     """
     from pathlib import Path
 
@@ -1037,12 +1091,21 @@ def predict_file(
     Returns
     -------
     PredictedTable
+
+    Raises
+    ------
+    InputError
+        For a results file or mapping that cannot be read or is malformed, a missing index
+        column, an existing or empty ``column``, or an ``out`` that cannot be written.
+    ComputationError
+        If ``out`` cannot be written (a full disk).
     """
     from .tables import write_table
 
     if not str(column).strip():
         raise InputError("--name is empty", "give a column name")
     m = mapping if isinstance(mapping, ScoreMapping) else read_mapping(mapping)
+    path = checks.path(path, "results file")
     header, rows = read_table(path, "results file")
     tab = add_predictions(rows, header, m, index_column=index_column, column=str(column).strip(),
                           source=f"results file '{path}'")

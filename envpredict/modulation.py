@@ -19,6 +19,8 @@ from typing import NamedTuple
 
 import numpy as np
 
+from .exceptions import InputError
+from . import checks
 from . import standards as std
 
 #: Block length for summing the squared response before the Fourier sum, s (see below).
@@ -81,7 +83,21 @@ def project(
     >>> z = project(1 + 0.5 * np.cos(2 * np.pi * 2.0 * t), np.array([0.0, 2.0]), 100.0)
     >>> np.round(np.abs(z), 6).tolist()
     [1000.0, 250.0]
+
+    Raises
+    ------
+    InputError
+        For envelopes or frequencies that are not 1-D or 2-D arrays of numbers, a rate that is
+        not positive, or a stride or chunk that is not a positive whole number.
     """
+    x = checks.array(x, "envelopes", ndim=(1, 2), finite=False)
+    freqs = checks.array(freqs, "modulation frequencies", ndim=(1, 2))
+    fs = checks.number(fs, "envelope rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    stride = checks.number(stride, "stride", lo=1, hi=checks.MAX_SAMPLES, integer=True)
+    offset = checks.number(offset, "offset")
+    chunk = checks.number(chunk, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
+    if freqs.ndim == 2 and x.ndim == 2 and freqs.shape[0] != x.shape[0]:
+        raise InputError(f"{freqs.shape[0]} rows of frequencies for {x.shape[0]} bands", "give one row per band")
     x = np.asarray(x, dtype=np.float64)
     one = x.ndim == 1
     x = np.atleast_2d(x)
@@ -140,7 +156,20 @@ def mtf_from_ir(
     >>> m = mtf_from_ir(h, fs, (1.0,))
     >>> bool(abs(m[0, 0] - (1 + (2 * np.pi * T / 13.8) ** 2) ** -0.5) < 1e-3)
     True
+
+    Raises
+    ------
+    InputError
+        For responses that are not a 1-D or 2-D array of finite numbers, a rate that is not
+        positive, negative modulation frequencies, or ``lengths`` that are
+        not one number per band.
     """
+    band_irs = checks.array(band_irs, "band impulse responses", ndim=(1, 2))
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    if not np.all(checks.array(modulation_hz, "modulation frequencies", ndim=(1, 2)) >= 0):
+        raise InputError("a modulation frequency is negative", "give modulation frequencies in Hz")
+    if lengths is not None and checks.array(lengths, "lengths").size != np.atleast_2d(band_irs).shape[0]:
+        raise InputError("lengths do not give one length per band", "give one number of samples per band")
     h2 = np.square(np.atleast_2d(np.asarray(band_irs, dtype=np.float64)))
     if lengths is not None:
         for k, n_k in enumerate(np.asarray(lengths, dtype=int)):
@@ -161,7 +190,17 @@ def mtf_from_ir(
 
 
 def whole_periods(n: int, fs_env: float, f: float) -> int:
-    """Samples of the longest window of whole periods of ``f`` within ``n`` samples."""
+    """Samples of the longest window of whole periods of ``f`` within ``n`` samples.
+
+    Raises
+    ------
+    InputError
+        For a length that is not a whole number of samples, a rate that is not positive or a
+        frequency outside (0, fs_env/2].
+    """
+    n = checks.samples(n, "envelope length")
+    fs_env = checks.number(fs_env, "envelope rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    f = checks.number(f, "modulation frequency", lo=0.0, lo_open=True, hi=fs_env / 2)
     periods = int(np.floor(n / fs_env * f + 1e-9))
     return int(round(periods / f * fs_env)) if periods > 0 else 0
 
@@ -201,7 +240,17 @@ def envelope_noise_floor(
     floor : RMS noise depth over all unused bins (NaN if there are none).
     local : (F,) the same from the :data:`LOCAL_FLOOR_BINS` unused bins nearest to each
         frequency (for telling a line from a continuous modulation spectrum).
+
+    Raises
+    ------
+    InputError
+        For an envelope or frequencies that are not 1-D arrays of finite numbers, or a rate
+        that is not positive.
     """
+    e = checks.array(e, "envelope")
+    freqs = checks.array(freqs, "modulation frequencies")
+    exclude_hz = checks.array(exclude_hz, "modulation frequencies of the signal", min_size=0)
+    fs_env = checks.number(fs_env, "envelope rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
     e = np.asarray(e, dtype=np.float64)
     n = e.size
     local = np.full(len(freqs), np.nan)
@@ -233,7 +282,16 @@ def noise_corrected_depth(raw: np.ndarray, floor: np.ndarray) -> np.ndarray:
     ----------
     raw : (bands, F) measured depths.
     floor : (bands,) RMS noise depth per band.
+
+    Raises
+    ------
+    InputError
+        For depths that are not a (bands, F) array or floors that are not one number per band.
     """
+    raw = checks.array(raw, "depths", ndim=2, min_size=0, finite=False)
+    floor = checks.array(floor, "noise floors", min_size=0, finite=False)
+    if floor.size != raw.shape[0]:
+        raise InputError(f"{floor.size} noise floors for {raw.shape[0]} bands", "give one floor per band")
     fl = np.where(np.isfinite(floor), floor, 0.0)
     return np.sqrt(np.clip(np.asarray(raw) ** 2 - fl[:, None] ** 2, 0.0, None))
 
@@ -280,7 +338,19 @@ def modulation_depths(
     >>> d = modulation_depths((1 + 0.5 * np.cos(2 * np.pi * 2 * t))[None, :], 100.0, np.array([[2.0]]), [2.0])
     >>> round(float(d.depth[0, 0]), 6)
     0.5
+
+    Raises
+    ------
+    InputError
+        For envelopes that are not a (bands, n) array, frequencies that are not positive and
+        given per band, or a rate that is not positive.
     """
+    env = checks.array(env, "envelopes", ndim=2, finite=False)
+    freqs = checks.array(freqs, "modulation frequencies", ndim=(1, 2))
+    if np.atleast_2d(freqs).shape[0] != env.shape[0] or not np.all(freqs > 0):
+        raise InputError("modulation frequencies are not positive, per band", "give a (bands, F) array in Hz")
+    fs_env = checks.number(fs_env, "envelope rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    exclude_hz = checks.array(exclude_hz, "modulation frequencies of the signal", min_size=0)
     freqs = np.atleast_2d(np.asarray(freqs, dtype=np.float64))
     nb, nf = freqs.shape
     raw = np.full((nb, nf), np.nan)
@@ -319,7 +389,20 @@ def mtf_from_test_signal(
     Returns
     -------
     array (bands, F).
+
+    Raises
+    ------
+    InputError
+        As :func:`modulation_depths`, or for a nominal depth outside (0, 1].
     """
+    env = checks.array(env, "envelopes", ndim=2, finite=False)
+    freqs = checks.array(freqs, "modulation frequencies", ndim=(1, 2))
+    if np.atleast_2d(freqs).shape[0] != env.shape[0] or not np.all(freqs > 0):
+        raise InputError("modulation frequencies are not positive, per band", "give a (bands, F) array in Hz")
+    fs_env = checks.number(fs_env, "envelope rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    nominal_depth = checks.number(nominal_depth, "nominal modulation depth", lo=0.0, lo_open=True, hi=1.0)
+    if exclude_hz is not None:
+        exclude_hz = checks.array(exclude_hz, "modulation frequencies of the signal", min_size=0)
     if exclude_hz is None:
         exclude_hz = sorted(set(np.asarray(freqs, dtype=np.float64).ravel()))
     return modulation_depths(env, fs_env, freqs, exclude_hz).depth / float(nominal_depth)
@@ -368,11 +451,22 @@ def mtf_from_pair_ncm(
     >>> m = mtf_from_pair_ncm(x, x + rng.standard_normal((1, 200000)))
     >>> bool(abs(m[0] - 0.5) < 0.01)
     True
+
+    Raises
+    ------
+    InputError
+        For envelopes that are not arrays of finite numbers of the same shape.
     """
+    clean_envelopes = checks.array(clean_envelopes, "clean envelopes", ndim=(1, 2))
+    degraded_envelopes = checks.array(degraded_envelopes, "degraded envelopes", ndim=(1, 2))
+    if np.shape(clean_envelopes) != np.shape(degraded_envelopes):
+        raise InputError(f"envelope shapes differ: {np.shape(clean_envelopes)} and {np.shape(degraded_envelopes)}",
+                         "pass the envelopes of a time-aligned pair")
+    return_correlation = checks.flag(return_correlation, "return_correlation")
     x = np.atleast_2d(np.asarray(clean_envelopes, dtype=np.float64))
     y = np.atleast_2d(np.asarray(degraded_envelopes, dtype=np.float64))
     if x.shape != y.shape:
-        raise ValueError(f"envelope shapes differ: {x.shape} and {y.shape}")
+        raise InputError(f"envelope shapes differ: {x.shape} and {y.shape}", "pass an aligned pair")
     xc = x - x.mean(axis=1, keepdims=True)
     yc = y - y.mean(axis=1, keepdims=True)
     den = np.sqrt(np.sum(xc * xc, axis=1) * np.sum(yc * yc, axis=1))
@@ -409,11 +503,21 @@ def mtf_from_pair_regression(clean_envelopes: np.ndarray, degraded_envelopes: np
     >>> x = 1.0 + np.sin(2 * np.pi * 10 * np.arange(6000) / 6000)[None, :]
     >>> float(np.round(mtf_from_pair_regression(x, x + 1.0)[0], 6))
     0.5
+
+    Raises
+    ------
+    InputError
+        For envelopes that are not arrays of finite numbers of the same shape.
     """
+    clean_envelopes = checks.array(clean_envelopes, "clean envelopes", ndim=(1, 2))
+    degraded_envelopes = checks.array(degraded_envelopes, "degraded envelopes", ndim=(1, 2))
+    if np.shape(clean_envelopes) != np.shape(degraded_envelopes):
+        raise InputError(f"envelope shapes differ: {np.shape(clean_envelopes)} and {np.shape(degraded_envelopes)}",
+                         "pass the envelopes of a time-aligned pair")
     x = np.atleast_2d(np.asarray(clean_envelopes, dtype=np.float64))
     y = np.atleast_2d(np.asarray(degraded_envelopes, dtype=np.float64))
     if x.shape != y.shape:
-        raise ValueError(f"envelope shapes differ: {x.shape} and {y.shape}")
+        raise InputError(f"envelope shapes differ: {x.shape} and {y.shape}", "pass an aligned pair")
     mx, my = x.mean(axis=1), y.mean(axis=1)
     xc = x - mx[:, None]
     var = np.sum(xc * xc, axis=1)

@@ -37,6 +37,7 @@ from collections.abc import Callable, Iterable, Iterator
 from pathlib import Path
 from typing import BinaryIO
 
+from . import checks
 from .exceptions import ComputationError, InputError
 
 #: Time this module was first imported: a temporary older than this cannot be one this
@@ -97,8 +98,14 @@ def _kind(mode: int) -> str | None:
 
 def resolve_output(path: _PathLike) -> Path:
     """The path a write to ``path`` lands on: the target of a symbolic link (followed to
-    the end, also a link to a file that does not exist yet), else ``path`` itself."""
-    p = Path(os.fspath(path))
+    the end, also a link to a file that does not exist yet), else ``path`` itself.
+
+    Raises
+    ------
+    InputError
+        If ``path`` is not a usable path (:func:`envpredict.checks.path`).
+    """
+    p = checks.path(path, "output")
     if p.is_symlink():
         return Path(os.path.realpath(p))
     return p
@@ -133,7 +140,14 @@ def _read_only_fs(folder: Path) -> bool:
 
 def same_path(a: _PathLike, b: _PathLike) -> bool:
     """Whether two paths name the same file: the same resolved path, or the same inode
-    (a hard link, another spelling through a link or a bind mount)."""
+    (a hard link, another spelling through a link or a bind mount).
+
+    Raises
+    ------
+    InputError
+        If ``a`` or ``b`` is not a usable path (:func:`envpredict.checks.path`).
+    """
+    a, b = checks.path(a, "path"), checks.path(b, "path")
     try:
         if os.path.samefile(a, b):
             return True
@@ -155,8 +169,11 @@ def _inside(path: _PathLike, folder: _PathLike) -> bool:
 
 
 def _input_list(inputs: Iterable[_PathLike | None] | None) -> list[str]:
+    if inputs is not None and (isinstance(inputs, (str, bytes, os.PathLike))
+                               or not isinstance(inputs, Iterable)):
+        raise InputError("the inputs are not a list of paths", "pass a list (or None)")
     out = []
-    for i in inputs or ():
+    for i in () if inputs is None else inputs:
         if i is None:
             continue
         with contextlib.suppress(TypeError):
@@ -184,9 +201,10 @@ def check_output_file(path: _PathLike, *, inputs: Iterable[_PathLike | None] | N
     ------
     InputError
         The output is an input, a folder, a named pipe, device or socket; its folder is
-        missing, a file, read-only or not writable.
+        missing, a file, read-only or not writable; ``path`` is not a usable path or
+        ``inputs`` not a list of paths.
     """
-    p = Path(os.fspath(path))
+    p = checks.path(path, option)
     target = resolve_output(p)
     try:
         st = os.stat(target)
@@ -228,8 +246,14 @@ def check_output_folder(path: _PathLike, *, inputs: Iterable[_PathLike | None] |
     Returns
     -------
     The folder that will be written (the target of a link, else ``path``).
+
+    Raises
+    ------
+    InputError
+        The folder holds (or is) an input or is not a folder; its parent is missing, a
+        file, read-only or not writable; ``path`` is not a usable path.
     """
-    p = Path(os.fspath(path))
+    p = checks.path(path, option)
     target = resolve_output(p)
     check_inputs_outside(p, inputs, option=option)
     try:
@@ -248,7 +272,15 @@ def check_output_folder(path: _PathLike, *, inputs: Iterable[_PathLike | None] |
 
 def check_inputs_outside(folder: _PathLike, inputs: Iterable[_PathLike | None] | None, *,
                          option: str = "output folder") -> None:
-    """Refuse an output folder that is one of the ``inputs`` or holds one (resolved paths)."""
+    """Refuse an output folder that is one of the ``inputs`` or holds one (resolved paths).
+
+    Raises
+    ------
+    InputError
+        If ``folder`` is not a usable path (:func:`envpredict.checks.path`).
+    """
+    folder = checks.path(folder, option)
+    inputs = _input_list(inputs)
     if not os.path.lexists(folder):
         return
     for inp in _input_list(inputs):
@@ -260,10 +292,16 @@ def check_inputs_outside(folder: _PathLike, inputs: Iterable[_PathLike | None] |
 def check_distinct(out: _PathLike | None, folder: _PathLike | None, *, out_option: str = "--out",
                    folder_option: str = "--report") -> None:
     """Refuse an output file that is, or lies inside, an output folder of the same run
-    (``--out X --report X``: the second write would fail or be replaced by the first)."""
+    (``--out X --report X``: the second write would fail or be replaced by the first).
+
+    Raises
+    ------
+    InputError
+        For such a pair, or a path that is not usable (:func:`envpredict.checks.path`).
+    """
     if out is None or folder is None:
         return
-    o, f = resolve_output(Path(os.fspath(out))), resolve_output(Path(os.fspath(folder)))
+    o, f = resolve_output(checks.path(out, out_option)), resolve_output(checks.path(folder, folder_option))
     if same_path(o, f):
         raise InputError(f"{out_option} '{out}' and {folder_option} '{folder}' name the same path",
                          f"give {out_option} a file outside the {folder_option} folder")
@@ -294,8 +332,14 @@ def _pid_alive(pid: int) -> bool:
 def stale_temporaries(target: _PathLike) -> list[Path]:
     """Temporaries of earlier runs for the output ``target``: ``.NAME.*.part`` files or
     folders and ``.NAME.*.old`` folders next to it, made before this process started
-    and not by a process still running."""
-    t = Path(os.fspath(target))
+    and not by a process still running.
+
+    Raises
+    ------
+    InputError
+        If ``target`` is not a usable path (:func:`envpredict.checks.path`).
+    """
+    t = checks.path(target, "output")
     parent, head = _parent(t), f".{t.name}."
     found = []
     try:
@@ -322,7 +366,13 @@ def stale_temporaries(target: _PathLike) -> list[Path]:
 
 
 def remove_stale_temporaries(target: _PathLike) -> None:
-    """Remove what :func:`stale_temporaries` finds (errors are ignored)."""
+    """Remove what :func:`stale_temporaries` finds (errors are ignored).
+
+    Raises
+    ------
+    InputError
+        If ``target`` is not a usable path (:func:`envpredict.checks.path`).
+    """
     for s in stale_temporaries(target):
         if s.is_dir() and not s.is_symlink():
             shutil.rmtree(s, ignore_errors=True)
@@ -339,7 +389,15 @@ _FULL = {errno.ENOSPC, getattr(errno, "EDQUOT", errno.ENOSPC), errno.EFBIG}
 
 
 def output_error(e: OSError, path: _PathLike) -> InputError | ComputationError:
-    """The one-line error for an operating-system error met while writing ``path``."""
+    """The one-line error for an operating-system error met while writing ``path``.
+
+    Raises
+    ------
+    InputError
+        If ``e`` is not an :class:`OSError`.
+    """
+    if not isinstance(e, OSError):
+        raise InputError(f"{e!r:.40} is not an operating-system error", "pass the OSError that was caught")
     code = e.errno
     why = e.strerror or str(e)
     if code in _FULL:
@@ -385,7 +443,7 @@ def atomic_file(path: _PathLike) -> Iterator[BinaryIO]:
     ends without an exception; on any exception (or a kill) the final name is left as
     it was and the temporary is removed (by the next run, after a kill).
     """
-    p = Path(os.fspath(path))
+    p = checks.path(path, "output")
     target = check_output_file(p)
     parent = _parent(target)
     remove_stale_temporaries(target)
@@ -426,6 +484,8 @@ def atomic_write_bytes(path: _PathLike, data: bytes) -> Path:
     -------
     ``path`` as given.
     """
+    if not isinstance(data, (bytes, bytearray, memoryview)):
+        raise InputError(f"data to write are not bytes ({type(data).__name__})", "pass bytes")
     with atomic_file(path) as fh:
         fh.write(data)
     return Path(os.fspath(path))
@@ -433,7 +493,16 @@ def atomic_write_bytes(path: _PathLike, data: bytes) -> Path:
 
 def atomic_write_text(path: _PathLike, text: str) -> Path:
     """:func:`atomic_write_bytes` of ``text`` encoded as UTF-8 (a file name's undecodable
-    bytes, kept as surrogates, are written back as they were)."""
+    bytes, kept as surrogates, are written back as they were).
+
+    Raises
+    ------
+    InputError
+        For ``text`` that is not text, or as :func:`atomic_write_bytes`.
+    ComputationError
+        As :func:`atomic_write_bytes`.
+    """
+    checks.text(text, "text to write")
     return atomic_write_bytes(path, text.encode("utf-8", "surrogateescape"))
 
 
@@ -449,8 +518,17 @@ def atomic_directory(path: _PathLike, *, replaceable: Callable[[Path], None] | N
     replaceable : called with the old folder (already moved aside, so that nothing can
         be added to it meanwhile) when ``path`` exists; it raises to keep the old folder,
         which is then put back. Without it, only an empty folder is replaced.
+
+    Raises
+    ------
+    InputError
+        For a path that is not usable or cannot be written; what ``replaceable`` raises.
+    ComputationError
+        For a full disk.
     """
-    p = Path(os.fspath(path))
+    p = checks.path(path, "output")
+    if replaceable is not None and not callable(replaceable):
+        raise InputError("replaceable is not a function", "pass a function of the old folder, or None")
     target = check_output_folder(p, option="folder")
     parent = _parent(target)
     remove_stale_temporaries(target)

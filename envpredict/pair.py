@@ -28,6 +28,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .audio import (
     CLIP_MIN_FULL_SCALE_SAMPLES,
@@ -600,7 +601,14 @@ def pair_indices(
     Returns
     -------
     PairResult
+
+    Raises
+    ------
+    InputError
+        For files or signals refused by the input rule, a pair that does not match, or an
+        option out of range (``align`` not True or False, ``max_delay_s``, ``chunk_s``).
     """
+    align = checks.flag(align, "align")
     c = _as_pair_source(clean, fs, "clean signal")
     d = _as_pair_source(degraded, fs if fs_degraded is None else fs_degraded, "degraded signal")
     return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
@@ -624,7 +632,14 @@ def pair_from_files(
     only channel); a multi-channel file without a channel is refused. ``clean_channel``
     and ``degraded_channel`` select the channel of one file each (overriding
     ``channel``): the clean and degraded signals may be two channels of one file.
+
+    Raises
+    ------
+    InputError
+        For files that are missing, unreadable or refused by the input rule, a pair that does
+        not match, or an option out of range.
     """
+    align = checks.flag(align, "align")
     cc = channel if clean_channel is None else clean_channel
     dc = channel if degraded_channel is None else degraded_channel
     with (FileSource(clean_path, cc if _channels(clean_path, "clean") > 1 else None, name="clean") as c,

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .audio import resample
 from .exceptions import InputError
@@ -95,7 +96,15 @@ class _YinSetup:
 
 
 def check_f0_range(f0_min_hz: float, f0_max_hz: float) -> tuple[float, float]:
-    """Refuse an empty F0 search range or one outside :data:`F0_SEARCH_LIMITS_HZ`."""
+    """Refuse an empty F0 search range or one outside :data:`F0_SEARCH_LIMITS_HZ`.
+
+    Raises
+    ------
+    InputError
+        For an empty range, one outside :data:`F0_SEARCH_LIMITS_HZ`, or bounds that are not numbers.
+    """
+    f0_min_hz = checks.number(f0_min_hz, "lowest F0")
+    f0_max_hz = checks.number(f0_max_hz, "highest F0")
     lo, hi = F0_SEARCH_LIMITS_HZ
     if not 0 < f0_min_hz < f0_max_hz:
         raise InputError(f"F0 search range {f0_min_hz:g}-{f0_max_hz:g} Hz is empty or negative",
@@ -234,7 +243,15 @@ def yin_f0(
     Returns
     -------
     F0Track with one frame per ``hop_s``; frame times are window centres.
+
+    Raises
+    ------
+    InputError
+        For a signal that is not a non-empty 1-D array of finite numbers, a rate outside the
+        supported range, or a search range or window refused by :func:`check_f0_range` and the setup.
     """
+    x = checks.array(x, "signal")
+    fs = checks.sample_rate(fs)
     p = _yin_setup(fs, f0_min_hz, f0_max_hz, threshold, voicing_threshold, window_s, hop_s)
     x = np.asarray(x, dtype=np.float64)
     if fs > YIN_RATE_HZ:

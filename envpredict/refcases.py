@@ -45,7 +45,9 @@ from pathlib import Path
 
 import numpy as np
 
+from . import checks
 from ._data import reference_dir
+from .exceptions import InputError
 
 
 @dataclass(frozen=True)
@@ -79,23 +81,52 @@ class CaseOutcome:
 
 
 def case_files(folder: Path | None = None) -> list[Path]:
-    folder = Path(folder) if folder else reference_dir()
+    """The case files (``*.json``) of ``folder`` (default: the installed library), sorted.
+
+    Raises
+    ------
+    InputError
+        If ``folder`` is not a folder.
+    """
+    folder = checks.path(folder, "case folder") if folder is not None else reference_dir()
+    if not folder.is_dir():
+        raise InputError(f"case folder '{folder}' is not a folder", "give the folder of the reference cases")
     return sorted(p for p in folder.glob("*.json"))
 
 
 def load_cases(folder: Path | None = None) -> list[dict]:
-    """All cases, sorted by file name."""
+    """All cases, sorted by file name.
+
+    Raises
+    ------
+    InputError
+        If ``folder`` is not a folder, or a case file is not readable JSON.
+    """
     cases = []
     for p in case_files(folder):
-        with open(p, encoding="utf-8") as fh:
-            case = json.load(fh)
+        try:
+            with open(p, encoding="utf-8") as fh:
+                case = json.load(fh)
+        except (OSError, UnicodeDecodeError, ValueError, RecursionError) as e:
+            raise InputError(f"reference case '{p}' is not readable JSON ({type(e).__name__})",
+                             "fix the file or remove it from the case folder") from None
+        if not isinstance(case, dict):
+            raise InputError(f"reference case '{p}' is not a JSON object", "fix the file")
         case["_path"] = str(p)
         cases.append(case)
     return cases
 
 
 def synthesize(spec: dict, folder: Path | None = None) -> tuple[np.ndarray, int]:
-    """Build the impulse response a case describes."""
+    """Build the impulse response a case describes.
+
+    Raises
+    ------
+    InputError
+        For a spec that is not a dictionary or an unknown synthesis.
+    """
+    if not isinstance(spec, dict):
+        raise InputError("the case input is not a JSON object", "fix the case file")
     fs = int(spec.get("fs", 48000))
     if "array" in spec:  # a response computed by the case's method (the sweep cases)
         return np.asarray(spec["array"], dtype=np.float64), fs
@@ -120,7 +151,7 @@ def synthesize(spec: dict, folder: Path | None = None) -> tuple[np.ndarray, int]
         if spec.get("noise_floor_db") is not None:
             x += float(spec.get("amplitude", 0.2)) * 10 ** (float(spec["noise_floor_db"]) / 20) * rng.standard_normal(n)
         return x, fs
-    raise ValueError(f"unknown synthesis '{kind}'")
+    raise InputError(f"unknown synthesis '{kind}'", "use 'impulse' or 'exponential_decay', or give a file")
 
 
 def _compare(name: str, exp: dict, got) -> Check:
@@ -272,7 +303,15 @@ METHODS = {
 
 
 def run_case(case: dict) -> CaseOutcome:
-    """Run one case and compare every expected quantity."""
+    """Run one case and compare every expected quantity.
+
+    Raises
+    ------
+    InputError
+        For a case that is not a dictionary with an ``id``.
+    """
+    if not isinstance(case, dict) or "id" not in case:
+        raise InputError("the case is not a dictionary with an id", "pass a case from load_cases")
     folder = Path(case["_path"]).parent if "_path" in case else None
     method = case.get("method", "ir")
     head = (case["id"], method, case.get("title", ""), case.get("source", ""))
@@ -318,7 +357,16 @@ def select_cases(id_contains: str | None = None, method: str | None = None,
 
 
 def summary(outcomes: list[CaseOutcome]) -> dict:
-    """Passed and failed counts, in all and per method (methods in the order of :data:`METHODS`)."""
+    """Passed and failed counts, in all and per method (methods in the order of :data:`METHODS`).
+
+    Raises
+    ------
+    InputError
+        If ``outcomes`` is not a list of :class:`CaseOutcome`.
+    """
+    if isinstance(outcomes, (str, bytes)) or not hasattr(outcomes, "__iter__") or not all(
+            isinstance(o, CaseOutcome) for o in outcomes):
+        raise InputError("outcomes are not a list of CaseOutcome", "pass the outcomes of run_case")
     per = {m: {"passed": 0, "failed": 0} for m in METHODS if any(o.method == m for o in outcomes)}
     for o in outcomes:
         per.setdefault(o.method, {"passed": 0, "failed": 0})["passed" if o.passed else "failed"] += 1
@@ -348,6 +396,11 @@ def run_cases(id_contains: str | None = None, method: str | None = None, *, fold
     ----------
     id_contains, method, folder : as for :func:`select_cases`.
     progress : optional ``progress(done, total)`` callback, one step per case.
+
+    Raises
+    ------
+    InputError
+        For a case folder or case file that cannot be read.
     """
     cases = select_cases(id_contains=id_contains, method=method, folder=folder)
     out = []
@@ -359,6 +412,13 @@ def run_cases(id_contains: str | None = None, method: str | None = None, *, fold
 
 
 def run_all(folder: Path | None = None, progress=None) -> list[CaseOutcome]:
+    """Run every case of ``folder`` (default: the installed library), in file-name order.
+
+    Raises
+    ------
+    InputError
+        For a case folder or case file that cannot be read.
+    """
     cases = load_cases(folder)
     out = []
     for i, c in enumerate(cases):

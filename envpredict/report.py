@@ -38,6 +38,7 @@ from typing import Any
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import InputError
 
@@ -1385,9 +1386,37 @@ def _input_files(result: Mapping) -> dict[str, str]:
     return out
 
 
+def _check_result(kind: str, result: Any) -> None:
+    """Refuse an unknown kind and a result that is not a plain JSON dictionary."""
+    if not isinstance(kind, str) or kind not in KINDS:
+        raise InputError(f"unknown report kind {kind!r:.40}", f"use one of {', '.join(KINDS)}")
+    if not isinstance(result, Mapping):
+        raise InputError("the report needs the result as a dictionary", "pass result.to_dict()")
+    try:
+        json.dumps(result, allow_nan=False)
+    except (TypeError, ValueError, RecursionError) as e:
+        raise InputError(f"the result is not plain JSON ({str(e)[:80]})",
+                         "pass result.to_dict(), not the result object") from None
+
+
 def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str, Any], title: str,
                 version: str, created: str) -> str:
-    """The report page as one HTML string (no external references)."""
+    """The report page as one HTML string (no external references).
+
+    Raises
+    ------
+    InputError
+        For an unknown ``kind``, a result that is not a plain JSON dictionary, a ``page``
+        that is not a :class:`Page`, settings that are not a dictionary or a title,
+        version or date that is not text.
+    """
+    _check_result(kind, result)
+    if not isinstance(page, Page):
+        raise InputError("page is not a Page", "pass the page built for the result")
+    if not isinstance(settings, Mapping):
+        raise InputError("settings are not a dictionary", "pass a dict of the inputs and options")
+    title, version, created = (checks.text(v, n) for v, n in ((title, "title"), (version, "version"),
+                                                              (created, "date")))
     parts = [
         "<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
         '<meta name="viewport" content="width=device-width, initial-scale=1">',
@@ -1472,6 +1501,16 @@ def write_report(
     -------
     Path of ``report.html`` inside ``folder``.
 
+    Raises
+    ------
+    InputError
+        For an unknown ``kind``; a result that is not a plain JSON dictionary, or not a
+        complete result of ``kind`` (a field missing or of another shape); a title that
+        is not text; a folder that is not a usable path, cannot be written, holds files
+        envpredict did not write there, or holds an input.
+    ComputationError
+        If the folder cannot be written (a full disk).
+
     Examples
     --------
     In a command, after ``d = result.to_dict()`` and ``d["inputs"] = {...}`` (so the page
@@ -1491,23 +1530,26 @@ def write_report(
     from . import __version__
     from .outputs import atomic_directory
 
-    if kind not in KINDS:
-        raise InputError(f"unknown report kind '{kind}'", f"use one of {', '.join(KINDS)}")
-    if not isinstance(result, Mapping):
-        raise InputError("the report needs the result as a dictionary", "pass result.to_dict()")
-    try:
-        json.dumps(result, allow_nan=False)
-    except (TypeError, ValueError) as e:
-        raise InputError(f"the result is not plain JSON ({e})",
-                         "pass result.to_dict(), not the result object") from None
+    _check_result(kind, result)
+    folder = checks.path(folder, "report folder")
+    if title is not None:
+        title = checks.text(title, "report title")
     result = names_only(result)
     if settings is None:
         inputs = result.get("inputs")
         settings = inputs if isinstance(inputs, Mapping) else {}
-    else:
-        settings = names_only(dict(settings))
+    if not isinstance(settings, Mapping):
+        raise InputError("settings are not a dictionary", "pass a dict of the inputs and options, or None")
+    settings = names_only(dict(settings))
     with _style():
-        page = _PAGES[kind](result)
+        try:
+            page = _PAGES[kind](result)
+        except (KeyError, IndexError, TypeError, ValueError, AttributeError) as e:
+            # the page reads the result's fields by name and shape: a dictionary that lacks
+            # one, or holds one of another shape, is not a result of this kind
+            raise InputError(f"the result is not a complete '{kind}' result ({type(e).__name__}: {str(e)[:80]})",
+                             f"pass the dictionary of a '{kind}' result (result.to_dict() plus its inputs) "
+                             "unchanged") from None
     created = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     doc = render_html(kind, result, page, settings=dict(settings), title=title or KIND_TITLES[kind],
                       version=__version__, created=created)
@@ -1618,7 +1660,14 @@ def _write_folder(tmp: Path, page: Page, doc: str, result: Mapping[str, Any]) ->
 
 
 def figure_names(folder: str | Path) -> list[str]:
-    """PNG files of a report folder, sorted (for listing after a run)."""
+    """PNG files of a report folder, sorted (for listing after a run).
+
+    Raises
+    ------
+    InputError
+        If ``folder`` is not a usable path.
+    """
+    folder = checks.path(folder, "report folder")
     return sorted(p.name for p in Path(folder).glob("*.png"))
 
 

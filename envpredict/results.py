@@ -8,13 +8,27 @@ from typing import Any
 
 import numpy as np
 
+from . import checks
+from .exceptions import InputError
+
+#: Most decimals or significant digits asked for (a float64 holds 17).
+MAX_DIGITS: int = 17
+
 
 def jsonable(value: Any, digits: int | None = None) -> Any:
     """Convert numpy arrays/scalars, tuples and dataclasses to plain JSON values.
 
     Non-finite floats become ``None`` (JSON ``null``): a figure that could not be
     computed is absent, never a made-up number.
+
+    Raises
+    ------
+    InputError
+        If ``digits`` is not None or a whole number 0..:data:`MAX_DIGITS`.
     """
+    if digits is not None and (isinstance(digits, (bool, np.bool_)) or not isinstance(digits, (int, np.integer))
+                               or not 0 <= digits <= MAX_DIGITS):
+        raise InputError(f"digits {digits!r:.40} is not a whole number 0..{MAX_DIGITS}", "give e.g. 4, or None")
     if dataclasses.is_dataclass(value) and not isinstance(value, type):
         if hasattr(value, "to_dict"):
             return value.to_dict()
@@ -43,8 +57,14 @@ def round_significant(x, digits: int = 4) -> np.ndarray:
 
     >>> round_significant([123456.0, 0.000123456, 0.0, float("nan")], 3).tolist()[:3]
     [123000.0, 0.000123, 0.0]
+
+    Raises
+    ------
+    InputError
+        For ``x`` that is not numbers, or ``digits`` that is not a whole number 1..:data:`MAX_DIGITS`.
     """
-    a = np.asarray(x, dtype=np.float64)
+    digits = checks.number(digits, "significant digits", lo=1, hi=MAX_DIGITS, integer=True)
+    a = checks.array(x, "values", ndim=tuple(range(33)), min_size=0, finite=False, fix="pass numbers")
     with np.errstate(divide="ignore", invalid="ignore"):
         mag = np.where(np.isfinite(a) & (a != 0), np.floor(np.log10(np.abs(a))), 0.0)
         scale = 10.0 ** (digits - 1 - mag)

@@ -53,6 +53,7 @@ from typing import Callable, Iterator
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .audio import check_rate, check_wav_path, write_wav
 from .bands import check_rate_for_octaves
@@ -85,7 +86,13 @@ DEFAULT_RATE_HZ: int = std.TEST_SIGNAL_RATE_HZ
 
 
 def check_seed(seed: int) -> int:
-    """A seed of the noise generator: a whole number from 0 (numpy's SeedSequence rule)."""
+    """A seed of the noise generator: a whole number from 0 (numpy's SeedSequence rule).
+
+    Raises
+    ------
+    InputError
+        For a seed that is not a whole number from 0.
+    """
     try:
         s = int(seed)
     except (TypeError, ValueError):
@@ -96,6 +103,14 @@ def check_seed(seed: int) -> int:
 
 
 def check_generation(fs: int, seconds: float | None = None) -> int:
+    """The rate (and length) of a test signal to generate.
+
+    Raises
+    ------
+    InputError
+        For a rate outside the supported range or too low for the 8 kHz band, or a length
+        outside 15 s .. :data:`MAX_SECONDS`.
+    """
     fs = check_rate(fs, "test signal")
     check_rate_for_octaves(fs, "test signal")
     if seconds is not None:
@@ -126,7 +141,18 @@ def octave_band_noise(
     Returns
     -------
     ndarray (7, n).
+
+    Raises
+    ------
+    InputError
+        For a length that is not a positive whole number (at most :data:`envpredict.checks.MAX_SAMPLES`),
+        a rate outside the supported range, an ``rng`` that is not a Generator or a width outside (0, 2] octaves.
     """
+    n = checks.samples(n, "signal length", lo=1)
+    fs = check_rate(fs, "test signal")
+    if not isinstance(rng, np.random.Generator):
+        raise InputError("rng is not a numpy Generator", "pass numpy.random.default_rng(seed)")
+    width_octaves = checks.number(width_octaves, "carrier width", lo=0.0, lo_open=True, hi=2.0)
     out = np.empty((len(std.OCTAVE_BANDS_HZ), n))
     for k, b in enumerate(_band_noises(n, fs, rng, width_octaves)):
         out[k] = b
@@ -149,19 +175,49 @@ def _band_noises(n: int, fs: int, rng: np.random.Generator,
 
 
 def stipa_envelope(t: np.ndarray, f1: float, f2: float, depth: float = std.STIPA_MODULATION_DEPTH) -> np.ndarray:
-    """STIPA intensity envelope 1 + m (sin 2 pi f1 t - sin 2 pi f2 t), IEC 60268-16:2011 Annex B."""
+    """STIPA intensity envelope 1 + m (sin 2 pi f1 t - sin 2 pi f2 t), IEC 60268-16:2011 Annex B.
+
+    Raises
+    ------
+    InputError
+        For times that are not a 1-D array of finite numbers, frequencies that are not
+        numbers or a depth outside 0..1.
+    """
+    t = checks.array(t, "times", min_size=0)
+    depth = checks.number(depth, "modulation depth", lo=0.0, hi=1.0)
+    f1, f2 = checks.number(f1, "modulation frequency"), checks.number(f2, "modulation frequency")
     return 1.0 + depth * (np.sin(2 * np.pi * f1 * t) + std.STIPA_MODULATION_SIGN * np.sin(2 * np.pi * f2 * t))
 
 
 def full_sti_envelope(t: np.ndarray, f: float, depth: float = std.FULL_STI_MODULATION_DEPTH) -> np.ndarray:
-    """Full-STI intensity envelope 1 + m cos 2 pi F t (IEC 60268-16:2011, 6.1)."""
+    """Full-STI intensity envelope 1 + m cos 2 pi F t (IEC 60268-16:2011, 6.1).
+
+    Raises
+    ------
+    InputError
+        As :func:`stipa_envelope`.
+    """
+    t = checks.array(t, "times", min_size=0)
+    depth = checks.number(depth, "modulation depth", lo=0.0, hi=1.0)
+    f = checks.number(f, "modulation frequency")
     return 1.0 + depth * np.cos(2 * np.pi * f * t)
 
 
 def is_loopable(n: int, fs: int, freqs) -> bool:
     """True if ``n`` samples at ``fs`` hold whole periods of every frequency in ``freqs``
     to within one sample (the seam of a loop then shifts no modulation phase by more
-    than 2 pi F / fs)."""
+    than 2 pi F / fs).
+
+    Raises
+    ------
+    InputError
+        For a length that is not a whole number, a rate that is not positive or frequencies that
+        are not positive numbers.
+    """
+    n = checks.samples(n, "signal length")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    if not np.all(checks.array(freqs, "modulation frequencies", min_size=0) > 0):
+        raise InputError("a modulation frequency is not positive", "give frequencies in Hz")
     f = np.asarray(freqs, dtype=float)
     secs = n / float(fs)
     err_s = np.abs(secs - np.round(secs * f) / f)
@@ -310,7 +366,16 @@ def stipa_test_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFA
 
 def full_sti_test_signal(modulation_hz: float, seconds: float, fs: int = DEFAULT_RATE_HZ, *,
                          seed: int = 0) -> BlockSignal:
-    """One full-STI test signal of :func:`full_sti_signal` as a :class:`BlockSignal`."""
+    """One full-STI test signal of :func:`full_sti_signal` as a :class:`BlockSignal`.
+
+    Raises
+    ------
+    InputError
+        As :func:`full_sti_signal`.
+    """
+    modulation_hz = checks.number(modulation_hz, "modulation frequency", lo=0.0, lo_open=True,
+                                  hi=max(std.MODULATION_FREQUENCIES_HZ))
+    seconds = checks.number(seconds, "signal length", lo=0.0, lo_open=True, hi=MAX_SECONDS)
     fs = check_generation(fs)
     seed = check_seed(seed)
     n = int(round(float(seconds) * fs))
@@ -345,6 +410,12 @@ def stipa_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_R
     >>> x = stipa_signal(15, 24000)
     >>> x.size, round(float(abs(x).max()), 3)
     (360000, 0.708)
+
+    Raises
+    ------
+    InputError
+        For a length outside 15 s .. :data:`MAX_SECONDS`, a rate outside the supported range
+        or too low for the 8 kHz band, or a seed that is not a whole number from 0.
     """
     return stipa_test_signal(seconds, fs, seed=seed).array()
 
@@ -381,7 +452,14 @@ def full_sti_plan() -> tuple[FullStiSignalSpec, ...]:
 
 def full_sti_signal(modulation_hz: float, seconds: float, fs: int = DEFAULT_RATE_HZ, *, seed: int = 0) -> np.ndarray:
     """One full-STI test signal: all seven speech-shaped octave noise bands modulated
-    in phase by ``1 + cos 2 pi F t`` (IEC 60268-16:2011, 6.1; m = 1)."""
+    in phase by ``1 + cos 2 pi F t`` (IEC 60268-16:2011, 6.1; m = 1).
+
+    Raises
+    ------
+    InputError
+        For a modulation frequency outside (0, 12.5] Hz, a length outside (0, :data:`MAX_SECONDS`] s,
+        or a rate or seed refused by :func:`check_generation` and :func:`check_seed`.
+    """
     return full_sti_test_signal(modulation_hz, seconds, fs, seed=seed).array()
 
 
@@ -392,6 +470,11 @@ def full_sti_signals(fs: int = DEFAULT_RATE_HZ, *, seed: int = 0):
     at once). The signals use seeds ``seed``, ``seed + 1``, ... so their noises differ.
 
     See :func:`full_sti_plan` for the order and lengths.
+
+    Raises
+    ------
+    InputError
+        As :func:`full_sti_signal` (raised when the generator is started).
     """
     fs = check_generation(fs)
     seed = check_seed(seed)
@@ -439,7 +522,15 @@ def write_stipa_signal(
     Returns
     -------
     StipaSignalResult : the file, rate, length, seed, RMS level and whether it loops.
+
+    Raises
+    ------
+    InputError
+        As :func:`stipa_signal`, or for an output path that cannot be written.
+    ComputationError
+        If the file cannot be written (a full disk).
     """
+    checks.number(seconds, "signal length", fix="give it in seconds, e.g. 30")
     check_wav_path(path)
     sig = stipa_test_signal(seconds, fs, seed=seed)
     # block by block: memory does not grow with the length
@@ -497,10 +588,17 @@ def write_full_sti_signals(
     folder : a new folder (or an empty one); nothing is overwritten.
     fs, seed : as for :func:`full_sti_signals`.
     progress : optional ``progress(done, total)`` callback, one step per file.
+
+    Raises
+    ------
+    InputError
+        As :func:`full_sti_signals`, or for an output folder that cannot be written.
+    ComputationError
+        If a file cannot be written (a full disk).
     """
     from .outputs import atomic_directory
 
-    out = Path(folder)
+    out = checks.path(folder, "output folder")
     if out.exists() and (not out.is_dir() or any(out.iterdir())):
         raise InputError(f"'{out}' already exists and is not an empty folder",
                          "give the name of a new folder (nothing is overwritten)")

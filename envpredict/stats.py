@@ -40,6 +40,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from . import checks
 from .exceptions import InputError
 from .results import jsonable
 from .tables import DEGRADED_COLUMN, ERROR_COLUMN, IR_COLUMN, RESULT_COLUMNS, cell_number
@@ -59,6 +60,33 @@ DEFAULT_INDICES: tuple[str, ...] = ("sti", "stoi")
 #: Fewest bootstrap resamples accepted (judgement: below this even the percentile
 #: interval's ends are mostly Monte-Carlo noise; Efron & Tibshirani 1993 advise 1000).
 MIN_RESAMPLES: int = 100
+
+#: Most bootstrap resamples: 100 times the default, 8 MB of resampled means; more
+#: changes no printed digit and only costs time and memory (judgement).
+MAX_RESAMPLES: int = 1_000_000
+
+
+def _bootstrap_options(confidence: float, n_resamples: int, seed: int, method: str) -> tuple[float, int, int, str]:
+    """Checked ``(confidence, n_resamples, seed, method)`` of :func:`bootstrap_mean_ci`.
+
+    Raises
+    ------
+    InputError
+        For a confidence outside (0, 1), a number of resamples outside
+        :data:`MIN_RESAMPLES`..:data:`MAX_RESAMPLES`, a seed that is not a whole number
+        from 0, or a method other than "BCa" and "percentile".
+    """
+    confidence = checks.number(confidence, "confidence", lo=0.0, hi=1.0, lo_open=True, hi_open=True,
+                               fix="give e.g. 0.95")
+    n_resamples = checks.number(n_resamples, "bootstrap resamples", integer=True, fix="use 1000 or more")
+    if n_resamples < MIN_RESAMPLES:
+        raise InputError(f"{n_resamples} bootstrap resamples are too few", "use 1000 or more")
+    if n_resamples > MAX_RESAMPLES:
+        raise InputError(f"{n_resamples} bootstrap resamples are too many (at most {MAX_RESAMPLES})",
+                         f"use {BOOTSTRAP_RESAMPLES} (the default)")
+    seed = checks.number(seed, "seed", lo=0, hi=2**63 - 1, integer=True)
+    method = checks.text(method, "bootstrap method", fix="use BCa or percentile")
+    return confidence, n_resamples, seed, method
 #: Fewer matched items than this get a note that the interval and p-value are rough
 #: (judgement).
 FEW_ITEMS: int = 10
@@ -113,7 +141,16 @@ def bootstrap_mean_ci(
     >>> lo, hi = bootstrap_mean_ci([0.05, 0.02, 0.06, 0.03, 0.04, 0.01, 0.05, 0.05])
     >>> round(lo, 3), round(hi, 3)
     (0.026, 0.049)
+
+    Raises
+    ------
+    InputError
+        For a sample that is not numbers, fewer than 2 finite values, or options refused
+        (a confidence outside (0, 1), resamples outside :data:`MIN_RESAMPLES`..:data:`MAX_RESAMPLES`,
+        an unknown method).
     """
+    confidence, n_resamples, seed, method = _bootstrap_options(confidence, n_resamples, seed, method)
+    d = checks.array(d, "sample", ndim=(0, 1), min_size=0, finite=False)
     x = np.asarray(d, dtype=float).ravel()
     if x.size < 2 or not np.all(np.isfinite(x)):
         raise InputError(f"a bootstrap interval needs at least 2 finite values ({x.size} given)",
@@ -164,7 +201,16 @@ def holm(p_values: Sequence[float | None]) -> list[float | None]:
     --------
     >>> holm([0.01, 0.04, 0.03])
     [0.03, 0.06, 0.06]
+
+    Raises
+    ------
+    InputError
+        For p-values that are not numbers in [0, 1] (or None).
     """
+    if isinstance(p_values, (str, bytes)) or not isinstance(p_values, Sequence) or not all(
+            p is None or isinstance(p, (int, float)) and not isinstance(p, bool) and (0.0 <= p <= 1.0 or p != p)
+            for p in p_values):
+        raise InputError("p-values are not a list of numbers in [0, 1] (or None)", "pass the p-values of the tests")
     idx = [i for i, p in enumerate(p_values) if p is not None and math.isfinite(p)]
     out: list[float | None] = [None] * len(p_values)
     m = len(idx)
@@ -179,7 +225,13 @@ def wilcoxon_p(d: Sequence[float] | np.ndarray) -> float | None:
     """Two-sided Wilcoxon signed-rank p-value of paired differences (scipy.stats.wilcoxon).
 
     ``None`` when it is undefined (no non-zero difference).
+
+    Raises
+    ------
+    InputError
+        If ``d`` is not a 1-D array of numbers.
     """
+    d = checks.array(d, "differences", min_size=0, finite=False)
     from scipy import stats
 
     x = np.asarray(d, dtype=float).ravel()
@@ -251,7 +303,16 @@ class Comparison:
 
 
 def default_pair_on(columns: Sequence[str], by: str, index: str) -> tuple[str, ...]:
-    """Item columns used when ``pair_on`` is not given (see the module docstring)."""
+    """Item columns used when ``pair_on`` is not given (see the module docstring).
+
+    Raises
+    ------
+    InputError
+        If ``columns`` is not a list of names.
+    """
+    if isinstance(columns, (str, bytes)) or not isinstance(columns, Sequence) or not all(
+            isinstance(c, str) for c in columns):
+        raise InputError("columns are not a list of names", "pass the table's header")
     skip = set(RESULT_COLUMNS) | {by, index, DEGRADED_COLUMN, IR_COLUMN}
     return tuple(c for c in columns if c not in skip)
 
@@ -305,7 +366,14 @@ def compare_conditions(
     ('denoised', 8, 0.0387, 0.026, 0.049, 0.0078)
     >>> c.verdict
     'higher'
+
+    Raises
+    ------
+    InputError
+        For a missing or unknown column, a baseline that is not a condition, index cells
+        that are not numbers, or bootstrap options out of range.
     """
+    confidence, n_resamples, seed, ci_method = _bootstrap_options(confidence, n_resamples, seed, ci_method)
     if not rows:
         raise InputError("the results table has no rows", "score a manifest with 'envpredict batch' first")
     cols = list(columns) if columns is not None else list(rows[0].keys())
@@ -445,7 +513,14 @@ def compare_conditions_file(
     Returns
     -------
     Comparison
+
+    Raises
+    ------
+    InputError
+        For a results file that cannot be read or is malformed, or options refused by
+        :func:`compare_conditions`.
     """
+    path = checks.path(path, "results file")
     from .tables import read_results
 
     columns, rows = read_results(path)

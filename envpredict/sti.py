@@ -13,6 +13,7 @@ from typing import Sequence
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import InputError
 from .results import jsonable
@@ -21,11 +22,29 @@ TALKERS = tuple(std.WEIGHTS)
 
 
 def table_array(values: tuple) -> np.ndarray:
-    """A table of :mod:`envpredict.standards` as a float array, ``None`` entries as NaN."""
-    return np.array([np.nan if v is None else v for v in values], dtype=float)
+    """A table of :mod:`envpredict.standards` as a float array, ``None`` entries as NaN.
+
+    Raises
+    ------
+    InputError
+        If ``values`` is not a sequence of numbers (and None).
+    """
+    if isinstance(values, (str, bytes)) or not isinstance(values, (tuple, list, np.ndarray)):
+        raise InputError(f"table {values!r:.40} is not a sequence of numbers", "pass a tuple of numbers (or None)")
+    try:
+        return np.array([np.nan if v is None else v for v in values], dtype=float)
+    except (TypeError, ValueError):
+        raise InputError("table holds entries that are not numbers", "pass a tuple of numbers (or None)") from None
 
 
 def check_talker(talker: str) -> str:
+    """``talker`` as "male" or "female" (case and spaces ignored).
+
+    Raises
+    ------
+    InputError
+        For any other talker.
+    """
     t = str(talker).strip().lower()
     if t not in std.WEIGHTS:
         raise InputError(f"unknown talker '{talker}'", f"use one of: {', '.join(TALKERS)}")
@@ -33,6 +52,13 @@ def check_talker(talker: str) -> str:
 
 
 def check_speech_level(level_dba: float) -> float:
+    """An A-weighted speech level at the listener, dB(A), within ``standards.SPEECH_LEVEL_RANGE_DBA``.
+
+    Raises
+    ------
+    InputError
+        For a level that is not a number in that range.
+    """
     lo, hi = std.SPEECH_LEVEL_RANGE_DBA
     try:
         v = float(level_dba)
@@ -83,6 +109,11 @@ def parse_noise_levels(text: str | Sequence[float] | None) -> np.ndarray | None:
     """Parse seven octave-band noise levels (dB SPL, 125 Hz ... 8 kHz).
 
     Accepts a comma-separated string or a sequence; ``None`` means no noise.
+
+    Raises
+    ------
+    InputError
+        For text or values that are not seven levels in dB.
     """
     if text is None:
         return None
@@ -124,6 +155,11 @@ def speech_band_levels(level_dba: float, talker: str = "male") -> np.ndarray:
     """Octave-band speech levels for an A-weighted speech level (NaN: band unused).
 
     Source: IEC 60268-16:2011, Table A.2 (see :mod:`envpredict.standards`).
+
+    Raises
+    ------
+    InputError
+        For a level or talker refused by :func:`check_speech_level` and :func:`check_talker`.
     """
     return float(level_dba) + table_array(std.SPEECH_SPECTRA_DB[check_talker(talker)])
 
@@ -133,7 +169,13 @@ def masking_factor(level_db: np.ndarray) -> np.ndarray:
 
     Source: IEC 60268-16:2011, Table A.3 (piecewise linear amdB in the level of the
     masking band); amf = 10**(amdB/10).
+
+    Raises
+    ------
+    InputError
+        For levels that are not numbers.
     """
+    level_db = checks.array(level_db, "band levels", ndim=(0, 1), min_size=0, finite=False)
     L = np.asarray(level_db, dtype=float)
     amdb = np.full(L.shape, np.nan)
     lower = -np.inf
@@ -150,7 +192,13 @@ def transmission_index(m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
     SNR_eff = 10 log10(m / (1 - m)), limited to +-15 dB; TI = (SNR_eff + 15) / 30.
     Source: IEC 60268-16:2011, A.2.4 - A.2.5.
+
+    Raises
+    ------
+    InputError
+        For modulation transfer values that are not numbers.
     """
+    m = checks.array(m, "modulation transfer values", ndim=(0, 1, 2), min_size=0, finite=False)
     m = np.clip(np.asarray(m, dtype=float), 0.0, std.MTF_MAX)
     with np.errstate(divide="ignore"):
         snr = 10.0 * np.log10(m) - 10.0 * np.log10(1.0 - m)
@@ -163,7 +211,15 @@ def combine_bands(mti: np.ndarray, talker: str = "male") -> float:
 
     STI = sum_k alpha_k MTI_k - sum_k beta_k sqrt(MTI_k MTI_{k+1}).
     Source: IEC 60268-16:2011, A.2.6, weights Table A.1.
+
+    Raises
+    ------
+    InputError
+        For indices that are not seven finite numbers, or an unknown talker.
     """
+    mti = checks.array(mti, "modulation transmission indices")
+    if mti.size != len(std.OCTAVE_BANDS_HZ):
+        raise InputError(f"{mti.size} modulation transmission indices", "give one per octave band (7)")
     alpha, beta = (np.array(w) for w in std.WEIGHTS[check_talker(talker)])
     mti = np.clip(np.asarray(mti, dtype=float), 0.0, 1.0)
     sti = float(np.dot(alpha, mti) - np.dot(beta, np.sqrt(mti[:-1] * mti[1:])))
@@ -201,7 +257,16 @@ def verdict_decimals(value: float, requirement: float = std.VOICE_ALARM_TARGET_S
 
     >>> verdict_decimals(0.498), verdict_decimals(0.4996), verdict_decimals(0.62)
     (3, 4, 2)
+
+    Raises
+    ------
+    InputError
+        For a value or requirement that is not a finite number, or ``minimum`` outside
+        0..:data:`MAX_VERDICT_DECIMALS`.
     """
+    value = checks.number(value, "index value")
+    requirement = checks.number(requirement, "requirement")
+    minimum = checks.number(minimum, "decimals", lo=0, hi=MAX_VERDICT_DECIMALS, integer=True)
     v, req = float(value), float(requirement)
     for d in range(int(minimum), MAX_VERDICT_DECIMALS + 1):
         if (round(v, d) >= req) == (v >= req):
@@ -211,7 +276,16 @@ def verdict_decimals(value: float, requirement: float = std.VOICE_ALARM_TARGET_S
 
 def format_index(value: float, requirement: float = std.VOICE_ALARM_TARGET_STI, minimum: int = 2) -> str:
     """``value`` as text with :func:`verdict_decimals` decimals ("0.48", "0.498"); a value
-    within 1e-6 below the requirement is cut (not rounded) to stay below it ("0.499999")."""
+    within 1e-6 below the requirement is cut (not rounded) to stay below it ("0.499999").
+
+    Raises
+    ------
+    InputError
+        As :func:`verdict_decimals`.
+    """
+    value = checks.number(value, "index value")
+    requirement = checks.number(requirement, "requirement")
+    minimum = checks.number(minimum, "decimals", lo=0, hi=MAX_VERDICT_DECIMALS, integer=True)
     v = float(value)
     d = verdict_decimals(v, requirement, minimum)
     if (round(v, d) >= requirement) != (v >= requirement):
@@ -235,7 +309,13 @@ def qualification_band(sti: float) -> str:
 
 def subjective_rating(sti: float) -> str:
     """Five-step subjective scale (bad ... excellent) of an STI in 0..1. Source: see
-    standards.SUBJECTIVE_SCALE."""
+    standards.SUBJECTIVE_SCALE.
+
+    Raises
+    ------
+    InputError
+        For a value that is not a number in 0..1.
+    """
     v = _check_index_value(sti)
     for label, lower in std.SUBJECTIVE_SCALE:
         if v >= lower:
@@ -357,6 +437,12 @@ def sti_from_mtf(
         spectrum at ``speech_level_dba``.
 
     Valid range: speech levels 20-120 dB(A); noise levels -20-140 dB SPL.
+
+    Raises
+    ------
+    InputError
+        For an MTF that is not seven bands of modulation transfer values, or an option out of
+        range (noise or speech levels, talker).
     """
     talker = check_talker(talker)
     speech_level_dba = check_speech_level(speech_level_dba)

@@ -62,7 +62,13 @@ MONOTONE_TOLERANCE: float = 1e-6
 # ---------------------------------------------------------------------------
 
 def parse_snr_range(text: str) -> np.ndarray:
-    """``"FROM:TO:STEP"`` in dB -> increasing array of SNRs including TO when on the grid."""
+    """``"FROM:TO:STEP"`` in dB -> increasing array of SNRs including TO when on the grid.
+
+    Raises
+    ------
+    InputError
+        For text that is not a range ``start:stop:step`` or a list of numbers.
+    """
     parts = str(text).split(":")
     fix = "give --snr FROM:TO:STEP in dB, e.g. --snr=-15:15:3"
     if len(parts) != 3:
@@ -361,6 +367,16 @@ def snr_sweep(
     Returns
     -------
     SweepResult
+
+    Raises
+    ------
+    InputError
+        For signals refused by the input rule (not numeric, not one channel, empty, NaN/inf,
+        silent, clipped, a rate outside the supported range), a noise too short for the segments,
+        an unknown index or level,
+        or an option out of range.
+    ComputationError
+        If no level of the sweep gives a number for the index.
     """
     from scipy.signal import fftconvolve
     from scipy.stats import t as student_t
@@ -524,6 +540,13 @@ def snr_sweep_files(
     Returns
     -------
     SweepResult
+
+    Raises
+    ------
+    InputError
+        For files that cannot be read, or as :func:`snr_sweep`.
+    ComputationError
+        As :func:`snr_sweep`.
     """
     from .audio import load_audio, resample
     from .mapping import read_mapping

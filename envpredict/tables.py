@@ -28,6 +28,7 @@ import os
 from pathlib import Path
 from typing import Any, Callable, Iterator, Mapping, Sequence
 
+from . import checks
 from .exceptions import InputError
 
 # ---------------------------------------------------------------------------
@@ -97,6 +98,11 @@ def read_text(path: str | os.PathLike, what: str) -> str:
     ----------
     path : the file.
     what : what it is, for the error message (e.g. ``"manifest"``).
+
+    Raises
+    ------
+    InputError
+        For a path that is not usable, a missing file or a folder, or text that is not UTF-8.
     """
     p = Path(path)
     if not p.exists():
@@ -122,6 +128,11 @@ def iter_records(text: str, on_error: Callable[[int, csv.Error], InputError], *,
 
     A malformed record raises the :class:`InputError` that ``on_error(line, error)``
     builds, so each caller names its own file in the message.
+
+    Raises
+    ------
+    InputError
+        The one that ``on_error`` builds, for a malformed record.
     """
     reader = csv.reader(io.StringIO(text, newline=""), strict=strict)
     while True:
@@ -139,7 +150,13 @@ def parse_lines(text: str, path: str | os.PathLike) -> tuple[list[str] | None, l
 
     A final line without its newline is a write cut short (a kill, a power cut, a full
     disk): it is dropped, so a file still being written can be read at any time.
+
+    Raises
+    ------
+    InputError
+        For ``text`` that is not text, or a malformed record.
     """
+    text = checks.text(text, "table text")
     torn = bool(text) and not text.endswith("\n")
     if torn:
         text = text[: text.rfind("\n") + 1]
@@ -168,6 +185,11 @@ def read_results(path: str | os.PathLike) -> tuple[tuple[str, ...], list[dict[st
     -------
     columns : the header.
     rows : one dict per row, column -> cell text.
+
+    Raises
+    ------
+    InputError
+        For a file that cannot be read or is not a results table.
     """
     p = Path(path)
     text = read_text(p, "results file")
@@ -194,6 +216,11 @@ def read_table(path: str | os.PathLike, what: str) -> tuple[list[str], Rows]:
     ----------
     path : the CSV file.
     what : what it is, for the error messages (e.g. ``"scores file"``).
+
+    Raises
+    ------
+    InputError
+        For a file that cannot be read or is not a CSV table with a header.
     """
     p = Path(path)
     text = read_text(p, what)
@@ -259,7 +286,14 @@ def cell_float(row: Mapping[str, Any], column: str, line: int, source: str, *, b
 
     With ``blank_ok`` an empty or non-finite cell gives NaN (e.g. a row whose
     computation failed). Errors name ``source``, the row ``line`` and the column.
+
+    Raises
+    ------
+    InputError
+        For text, a blank (unless ``blank_ok``), or a ``row`` that is not a mapping.
     """
+    if not isinstance(row, Mapping):
+        raise InputError(f"row {row!r:.40} is not a mapping of cells", "pass a dict column -> cell")
     v = row.get(column)
     text = "" if v is None else str(v).strip()
     if text == "":
@@ -278,8 +312,30 @@ def cell_float(row: Mapping[str, Any], column: str, line: int, source: str, *, b
     return f
 
 
+def _check_header(header: Any) -> None:
+    if isinstance(header, (str, bytes)) or not isinstance(header, Sequence) or not all(
+            isinstance(h, str) for h in header):
+        raise InputError(f"header {header!r:.40} is not a list of column names", "pass a list of strings")
+
+
+def _check_rows(header: Any, rows: Any) -> None:
+    _check_header(header)
+    if isinstance(rows, (str, bytes)) or not isinstance(rows, Sequence) or not all(
+            isinstance(r, Mapping) and set(r) <= set(header) for r in rows):
+        raise InputError("rows are not mappings of the header's columns", "pass one dict per row, keys from the header")
+
+
 def resolve_column(header: Sequence[str], name: str, source: str) -> str:
-    """The header entry called ``name`` (exact, else the one case-insensitive match)."""
+    """The header entry called ``name`` (exact, else the one case-insensitive match).
+
+    Raises
+    ------
+    InputError
+        If ``name`` is not in ``header`` (or matches several columns), or ``header`` is not a
+        list of names.
+    """
+    name = checks.text(name, "column name")
+    _check_header(header)
     if name in header:
         return name
     near = [h for h in header if h.lower() == name.lower()]
@@ -310,14 +366,29 @@ def format_cell(v: Any) -> str:
 
 
 def csv_line(cells: Sequence[str]) -> str:
-    """One CSV record with its newline (quoting as needed)."""
+    """One CSV record with its newline (quoting as needed).
+
+    Raises
+    ------
+    InputError
+        If ``cells`` is not a list.
+    """
+    if isinstance(cells, (str, bytes)) or not isinstance(cells, Sequence):
+        raise InputError(f"cells {cells!r:.40} are not a list", "pass a list of cell texts")
     buf = io.StringIO()
     csv.writer(buf, lineterminator="\n").writerow(cells)
     return buf.getvalue()
 
 
 def table_text(header: Sequence[str], rows: Sequence[Mapping[str, str]]) -> str:
-    """A whole table as CSV text: the header line and one line per row dict."""
+    """A whole table as CSV text: the header line and one line per row dict.
+
+    Raises
+    ------
+    InputError
+        For a header that is not a list of names, or rows that are not mappings of its columns.
+    """
+    _check_rows(header, rows)
     buf = io.StringIO()
     w = csv.DictWriter(buf, fieldnames=list(header), lineterminator="\n")
     w.writeheader()
@@ -326,7 +397,16 @@ def table_text(header: Sequence[str], rows: Sequence[Mapping[str, str]]) -> str:
 
 
 def write_table(path: str | os.PathLike, header: Sequence[str], rows: Sequence[Mapping[str, str]]) -> Path:
-    """Write a table as CSV atomically (it appears whole or not at all); may replace its input."""
+    """Write a table as CSV atomically (it appears whole or not at all); may replace its input.
+
+    Raises
+    ------
+    InputError
+        For a header or rows refused by :func:`table_text`, or a path that cannot be written.
+    ComputationError
+        If the file cannot be written (a full disk).
+    """
+    _check_rows(header, rows)
     from .outputs import atomic_write_text
 
     return atomic_write_text(path, table_text(header, rows))

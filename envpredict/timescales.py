@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .audio import ArraySource, FileSource, SignalCheck, Window, check_rate, resample, resample_ratio, validate_signal
 from .bands import bandpass_sos, envelope_rate, intensity_envelopes, lowpass_sos, octave_filterbank
@@ -102,7 +103,13 @@ def _bank(fs: int):
 
 
 def usable_bands(fs: int) -> tuple[float, ...]:
-    """The STI octave bands whose upper edge lies below the Nyquist frequency."""
+    """The STI octave bands whose upper edge lies below the Nyquist frequency.
+
+    Raises
+    ------
+    InputError
+        For a rate outside the supported range.
+    """
     bank = _bank(fs)
     return tuple(fc for fc, ok in zip(bank.bands_hz, bank.present) if ok)
 
@@ -126,7 +133,18 @@ def envelope_spectrum(
     With this normalisation the power of a sinusoidal modulation of index m,
     ``I0 (1 + m cos 2 pi F t)``, integrates to m^2/2 (Welch, Hann window).
     Returns ``(freqs_hz, psd)``.
+
+    Raises
+    ------
+    InputError
+        For an envelope that is not a non-empty 1-D array of finite numbers, a rate that is not
+        positive, or a segment length outside (0, :data:`MAX_SECONDS`] s.
     """
+    env = checks.array(env, "envelope")
+    fs_env = checks.number(fs_env, "envelope rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    segment_s = checks.number(segment_s, "segment length", lo=0.0, lo_open=True, hi=MAX_SECONDS)
+    if int(segment_s * fs_env) < 1:
+        raise InputError(f"segment of {segment_s:g} s holds no envelope sample", "give a longer segment")
     from scipy.signal import welch
 
     e = np.asarray(env, dtype=np.float64)
@@ -143,7 +161,16 @@ def modulation_indices(freqs: np.ndarray, psd: np.ndarray) -> np.ndarray:
     """Modulation index per one-third-octave modulation band: sqrt(2 * band power).
 
     NaN for bands that hold no spectral line (recording too short to resolve them).
+
+    Raises
+    ------
+    InputError
+        For frequencies and densities that are not 1-D arrays of finite numbers of one length.
     """
+    freqs = checks.array(freqs, "frequencies")
+    psd = checks.array(psd, "power spectral density")
+    if freqs.shape != psd.shape:
+        raise InputError(f"{freqs.size} frequencies for {psd.size} densities", "pass the output of envelope_spectrum")
     df = float(freqs[1] - freqs[0]) if freqs.size > 1 else np.inf
     out = np.full(len(std.MODULATION_BANDS_HZ), np.nan)
     for i, (lo, hi) in enumerate(modulation_band_edges()):
@@ -160,7 +187,17 @@ def spectral_peak(freqs: np.ndarray, psd: np.ndarray, lo: float, hi: float) -> f
     Weighting by f shows the spectrum as it appears on a logarithmic frequency axis
     (equal power in equal proportional bands), where speech envelopes peak at the
     syllable rate; the linear density of speech envelopes keeps rising towards 0 Hz.
+
+    Raises
+    ------
+    InputError
+        As :func:`modulation_indices`, or for limits that are not numbers.
     """
+    freqs = checks.array(freqs, "frequencies")
+    psd = checks.array(psd, "power spectral density")
+    if freqs.shape != psd.shape:
+        raise InputError(f"{freqs.size} frequencies for {psd.size} densities", "pass the output of envelope_spectrum")
+    lo, hi = checks.number(lo, "lower frequency"), checks.number(hi, "upper frequency")
     sel = np.flatnonzero((freqs >= lo) & (freqs <= hi))
     if sel.size == 0:
         return float("nan")
@@ -657,6 +694,14 @@ def inspect_signal(
     >>> r = inspect_signal(0.1 * x, fs)
     >>> abs(r.f0_median_hz - 150) < 3
     True
+
+    Raises
+    ------
+    InputError
+        For a signal refused by the input rule (not numeric, not one channel, empty, NaN/inf,
+        silent, clipped, a rate outside the supported range), shorter than 1 s or longer than
+        :data:`MAX_SECONDS`, or
+        an F0 range or block length out of range.
     """
     x = validate_signal(x, fs, name="recording", min_seconds=MIN_SECONDS)
     fs = int(fs)
@@ -702,7 +747,15 @@ def inspect_file(
     block_seconds : block length, s (memory bound; the result does not depend on it
         beyond the filters' ringing past the 1 s margins, below 1e-4 of any figure).
     progress : called as ``progress(done, total)`` after every block.
+
+    Raises
+    ------
+    InputError
+        For a file that cannot be read, an excerpt outside the recording or shorter than
+        1 s, or an option out of range.
     """
+    start_s = checks.number(start_s, "--start", lo=0.0)
+    duration_s = checks.optional_number(duration_s, "--duration", lo=0.0)
     name = "recording"
     with FileSource(path, channel, name=name) as src:
         return _inspect_file(src, path, start_s, duration_s, f0_min_hz, f0_max_hz, block_seconds, progress)

@@ -1,0 +1,972 @@
+"""Every public function raises only the documented errors (issue 12, item 5).
+
+The contract (``envpredict.exceptions``): a public function returns a result or raises
+:class:`~envpredict.exceptions.InputError` (bad input) or
+:class:`~envpredict.exceptions.ComputationError` (no trustworthy number), each with a
+one-line ``what`` -- never a ``ValueError``, ``TypeError``, ``IndexError``,
+``ZeroDivisionError``, ``MemoryError``, ``LinAlgError`` or a soundfile error, and never a
+huge allocation.
+
+"Public" is every name in ``envpredict.__all__`` and every function without a leading
+underscore in the modules listed in README "How the code is organised"
+(:data:`MODULES`); ``test_every_public_function_has_a_strategy`` fails when one is added
+without a strategy here, so the suite stays complete.
+
+Each function gets a strategy that mostly draws valid, varied input (plausible lengths,
+rates, levels, DC, noise) and, in a share of the examples, spoils one argument with a
+hostile value: empty, NaN/inf, the wrong number of dimensions, the wrong type, negative,
+and huge sizes (fs = 1e12, seconds = 1e9) that would allocate hundreds of GiB. While the
+examples run, the process's address space is capped a few GiB above its current size
+(:func:`memory_cap`), so a huge allocation fails at once as a ``MemoryError`` (counted as
+a leak) instead of swapping the machine; an example that runs longer than
+:data:`EXAMPLE_SECONDS` fails too. After the run, each test checks that at least
+``share`` of its examples reached the computation (returned a result), so a strategy
+that is refused most of the time is noticed.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import errno
+import importlib
+import inspect
+import json
+import math
+import os
+import resource
+import signal
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, event, given, settings
+from hypothesis import strategies as st
+from signals_for_tests import harmonic_syllables, noise_decay
+
+import envpredict
+from envpredict.exceptions import EnvpredictError
+
+# README "How the code is organised" (the cli/ package is not an API: it calls these)
+MODULES = (
+    "standards", "exceptions", "results", "outputs", "bands", "audio", "modulation", "sti", "cautions",
+    "decay", "correlation", "pitch", "signals", "tables", "mapping", "indirect", "direct", "pair",
+    "timescales", "sweep", "stats", "batch", "refcases", "demo", "report",
+)
+
+EXAMPLE_SECONDS = 30  # one example longer than this is a hang (a huge length accepted)
+MEMORY_HEADROOM = 3 * 2**30  # address space allowed above the size at the start of a test
+
+NAN, INF = float("nan"), float("inf")
+
+
+def public_functions() -> dict[str, object]:
+    """``module.name`` -> function, for every public function of :data:`MODULES` and of
+    ``envpredict.__all__``."""
+    out = {}
+    for m in MODULES:
+        mod = importlib.import_module(f"envpredict.{m}")
+        for name, obj in vars(mod).items():
+            fn = inspect.unwrap(obj) if callable(obj) else None  # functools.lru_cache etc. included
+            if not name.startswith("_") and inspect.isfunction(fn) and fn.__module__ == mod.__name__:
+                out[f"{m}.{name}"] = obj
+    for name in envpredict.__all__:
+        obj = getattr(envpredict, name)
+        if inspect.isfunction(obj):
+            out[f"{obj.__module__.split('.')[-1]}.{name}"] = obj
+    return out
+
+
+# ---------------------------------------------------------------------------
+# Files: markers resolved against one folder of fixture files per module
+# ---------------------------------------------------------------------------
+
+
+class P(str):
+    """A file of the fixture folder (resolved by :func:`materialize`)."""
+
+
+class Out(str):
+    """A fresh output path in the fixture folder's ``out`` folder."""
+
+
+_FOLDER: list[Path] = []
+_COUNTER = [0]
+
+
+def materialize(v):
+    if isinstance(v, Out):
+        _COUNTER[0] += 1
+        return str(_FOLDER[0] / "out" / f"{_COUNTER[0]}_{v}")
+    if isinstance(v, P):
+        return str(_FOLDER[0] / v) if str(v) else ""
+    if isinstance(v, list):
+        return [materialize(a) for a in v]
+    if isinstance(v, tuple):
+        return tuple(materialize(a) for a in v)
+    if isinstance(v, dict):
+        return {k: materialize(a) for k, a in v.items()}
+    if isinstance(v, np.ndarray):
+        return v.copy()
+    return v
+
+
+def _write_wav(path: Path, x, fs, subtype="PCM_24"):
+    import soundfile as sf
+
+    sf.write(path, x, fs, subtype=subtype)
+
+
+@pytest.fixture(scope="module", autouse=True)
+def fixture_folder(tmp_path_factory):
+    return build_fixture_folder(tmp_path_factory.mktemp("fuzz"))
+
+
+def build_fixture_folder(d: Path) -> Path:
+    """Write the input files the strategies name (:class:`P`) into ``d``."""
+    (d / "out").mkdir()
+    _write_wav(d / "ir.wav", ir_array(48000, 1.2, 0.6, 1), 48000)
+    _write_wav(d / "ir_stereo.wav", np.stack([ir_array(48000, 1.2, 0.6, 1)] * 2, axis=1), 48000)
+    _write_wav(d / "stipa.wav", stipa_recording(24000, 16.0), 24000)
+    _write_wav(d / "clean.wav", speech(16000, 2.0, 1), 16000)
+    _write_wav(d / "degraded.wav", speech(16000, 2.0, 1) + 0.003 * np.random.default_rng(2).standard_normal(32000),
+               16000)
+    _write_wav(d / "speech.wav", speech(16000, 3.0, 2), 16000)
+    _write_wav(d / "noise.wav", 0.05 * np.random.default_rng(3).standard_normal(16000 * 12), 16000)
+    _write_wav(d / "calibrator.wav", 0.5 * np.sin(2 * np.pi * 1000 * np.arange(96000) / 48000), 48000)
+    _write_wav(d / "silent.wav", np.zeros(48000), 48000)
+    (d / "garbage.wav").write_bytes(bytes(range(256)) * 40)
+    (d / "empty.wav").write_bytes(b"")
+    (d / "folder").mkdir()
+    (d / "text.txt").write_text("not a table\n\x00\x01", encoding="latin-1")
+    rng = np.random.default_rng(4)
+    lines = ["index,correct,trials"] + [f"{v:.3f},{int(round(20 / (1 + math.exp(-12 * (v - 0.5)))))},20"
+                                        for v in np.linspace(0.2, 0.8, 9)]
+    (d / "scores.csv").write_text("\n".join(lines) + "\n")
+    rows = ["item,condition,sti"] + [f"u{i},{c},{0.5 + 0.02 * i + (0.05 if c == 'b' else 0) + 0.01 * rng.random():.4f}"
+                                     for i in range(8) for c in ("a", "b")]
+    (d / "results.csv").write_text("\n".join(rows) + "\n")
+    from envpredict.mapping import fit_mapping
+
+    m = fit_mapping(np.linspace(0.2, 0.8, 9), [1, 2, 4, 7, 10, 13, 16, 18, 19], [20] * 9, index="sti")
+    (d / "mapping.json").write_text(json.dumps(m.to_dict()))
+    (d / "manifest.csv").write_text("ir,condition\nir.wav,a\nmissing.wav,b\n")
+    (d / "pairs.csv").write_text("clean,degraded\nclean.wav,degraded.wav\n")
+    (d / "recordings").mkdir()
+    _write_wav(d / "recordings" / "r.wav", stipa_recording(24000, 16.0), 24000)
+    _FOLDER[:] = [d]
+    return d
+
+
+# ---------------------------------------------------------------------------
+# Valid material (cached; every example gets a copy)
+# ---------------------------------------------------------------------------
+
+
+@lru_cache(maxsize=32)
+def ir_array(fs: int, seconds: float, T: float, seed: int) -> np.ndarray:
+    return noise_decay(T, fs=fs, seconds=seconds, seed=seed)
+
+
+@lru_cache(maxsize=32)
+def speech(fs: int, seconds: float, seed: int) -> np.ndarray:
+    return harmonic_syllables(seconds, fs, seed)
+
+
+@lru_cache(maxsize=4)
+def stipa_recording(fs: int, seconds: float) -> np.ndarray:
+    from envpredict.signals import stipa_signal
+
+    return 0.3 * stipa_signal(seconds, fs, seed=5)
+
+
+@lru_cache(maxsize=8)
+def band_irs(fs: int, T: float) -> np.ndarray:
+    from envpredict.bands import octave_bands
+
+    return octave_bands(ir_array(fs, 1.2, T, 1), fs)
+
+
+@lru_cache(maxsize=4)
+def ir_result(fs: int = 48000):
+    from envpredict.indirect import sti_from_ir
+
+    return sti_from_ir(ir_array(fs, 1.2, 0.6, 1), fs)
+
+
+@lru_cache(maxsize=2)
+def env_pair():
+    from envpredict.correlation import tf_envelopes
+
+    x = speech(10000, 2.0, 1)
+    y = x + 0.01 * np.random.default_rng(1).standard_normal(x.size)
+    return tf_envelopes(lambda a, b: x[a:b], lambda a, b: y[a:b], x.size)
+
+
+def scaled(base, *, level=(1e-4, 0.9), dc=(-0.05, 0.05)):
+    """An array strategy from ``base`` (a strategy of arrays) with a random level and DC."""
+    return st.tuples(base, st.floats(*level), st.floats(*dc)).map(lambda t: t[1] * (t[0] / np.max(np.abs(t[0]))) + t[2]
+                                                                   if t[0].size and np.max(np.abs(t[0])) > 0 else t[0])
+
+
+IR = st.builds(ir_array, st.just(48000), st.sampled_from([0.9, 1.2]), st.sampled_from([0.3, 0.6, 1.5]),
+               st.integers(0, 3))
+SPEECH_FS = st.sampled_from([10000, 16000, 22050])
+
+# ---------------------------------------------------------------------------
+# Hostile values, by kind of argument
+# ---------------------------------------------------------------------------
+
+
+def _bad_arrays():
+    return st.sampled_from([
+        np.zeros(0), np.full(4800, NAN), np.full(4800, INF), np.zeros((3, 4, 5)), np.zeros(3), np.zeros((0, 7)),
+        np.array(["a", "b"]), np.ones(4800, dtype=complex), np.ones(4800, dtype=bool), "abc", None, 3.0,
+        [0.1, 0.2], np.ones((2, 4800)), np.zeros(4800), np.full(4800, 1e300),
+    ])
+
+
+BAD_ARRAY = _bad_arrays()
+BAD_RATE = st.sampled_from([0, -48000, NAN, INF, 1e12, 0.5, 1.0, "48000", None, True, 2**63, 47999.5, 100])
+BAD_REAL = st.sampled_from([NAN, INF, -INF, -1.0, 0.0, 1e300, -1e300, 1e9, "1", None, [1.0]])
+BAD_INT = st.sampled_from([-1, 0, 2**40, 1.5, NAN, "3", None, True, 10**30])
+BAD_TEXT = st.sampled_from(["", "x" * 300, "no such", 3, None, b"bytes", "\x00", "$\\frac$", "<!--"])
+BAD_PATH = st.sampled_from([P("missing.wav"), P(""), P("folder"), P("garbage.wav"), P("empty.wav"),
+                            P("text.txt"), "a\x00b", P("x" * 300), 3, None, P("folder/missing/x.wav")])
+BAD_ANY = st.sampled_from([None, NAN, -1, "x", [], {}, 1e300, np.zeros(0)])
+
+BAD_BY_NAME = {
+    **dict.fromkeys(["x", "ir", "clean", "degraded", "noise", "band", "e", "env", "band_irs", "band_signals",
+                     "reference", "data", "curve_db", "t", "mtf", "m", "mti", "raw", "floor", "values", "d", "psd",
+                     "freqs", "x_env", "y_env", "kept_idx", "dft_frames", "level_db", "index_values", "correct",
+                     "trials", "sos"], BAD_ARRAY),
+    **dict.fromkeys(["fs", "fs_in", "fs_out", "fs_env", "fs_degraded"], BAD_RATE),
+    **dict.fromkeys(["seconds", "level_dba", "speech_level_dba", "max_delay_s", "chunk_s", "block_seconds",
+                     "calibration_db", "calibrator_level", "segment_s", "excerpt_s", "target_hz", "cutoff_hz",
+                     "f0_min_hz", "f0_max_hz", "threshold", "voicing_threshold", "window_s", "hop_s", "lo", "hi",
+                     "hi_db", "lo_db", "nominal_depth", "guess", "lapse", "confidence", "sti", "value",
+                     "requirement", "start_s", "duration_s", "width_octaves", "depth", "f", "f1", "f2",
+                     "modulation_hz_value"], BAD_REAL),
+    **dict.fromkeys(["n", "t0", "seed", "channel", "digits", "n_samples", "chunk_frames", "n_segments", "order",
+                     "n_resamples", "stride", "chunk", "frames_total", "minimum", "step", "workers", "near",
+                     "line", "calibrator_channel"], BAD_INT),
+    **dict.fromkeys(["talker", "kind", "shape", "index", "method", "by", "baseline", "name", "text", "column",
+                     "level", "what", "source", "ci_method", "id_contains", "title", "spec", "option"], BAD_TEXT),
+    **dict.fromkeys(["path", "folder", "clean_path", "degraded_path", "calibrator", "paths", "manifest", "out",
+                     "target", "a", "b"], BAD_PATH),
+    "noise_db": st.sampled_from(["1;2;3", "a;b;c;d;e;f;g", [NAN] * 7, [1e300] * 7, [40.0] * 3, "", 3, "1e309;" * 7]),
+    "modulation_hz": st.sampled_from([(), (NAN,), (-1.0,), (0.0,), (1e12,), "abc", None, ((1.0,),)]),
+}
+
+
+# ---------------------------------------------------------------------------
+# The registry
+# ---------------------------------------------------------------------------
+
+
+@dataclass
+class Case:
+    valid: dict  # argument -> strategy of valid values
+    examples: int = 12
+    share: float = 0.5  # share of examples that must reach the computation
+    bad: dict = field(default_factory=dict)  # argument -> hostile strategy (None: never spoiled)
+    call: object = None  # callable(fn, kwargs) when a plain call is not the way to use it
+    check: object = None  # callable(result) -> an extra assertion on a result
+
+
+CASES: dict[str, Case] = {}
+
+
+def case(fname: str, /, examples_: int = 12, share_: float = 0.5, bad_: dict | None = None, call_=None,
+         check_=None, **valid) -> None:
+    """Register the strategy of function ``fname`` ("module.name"): ``valid`` maps each
+    argument to a strategy of valid values; the options end in ``_`` (see :class:`Case`)."""
+    CASES[fname] = Case(valid, examples_, share_, bad_ or {}, call_, check_)
+
+
+@st.composite
+def arguments(draw, c: Case):
+    spoilable = [k for k in c.valid if c.bad.get(k, BAD_BY_NAME.get(k, BAD_ANY)) is not None]
+    # one argument in about 1 + 3 x (number of arguments) examples is spoiled
+    which = draw(st.sampled_from([None] * (3 * len(spoilable) + 2) + spoilable)) if spoilable else None
+    # a draw that changes nothing: hypothesis runs each distinct example once, so without
+    # it a function with few valid inputs would be tried mostly with spoiled ones
+    draw(st.integers(0, 2**16))
+    out = {}
+    for k, s in c.valid.items():
+        out[k] = draw(c.bad.get(k, BAD_BY_NAME.get(k, BAD_ANY)) if k == which else s)
+    return out
+
+
+def J(v):
+    return st.just(v)
+
+
+def S(*v):
+    return st.sampled_from(v)
+
+
+# --- results, outputs ----------------------------------------------------------
+
+JSONISH = st.recursive(
+    st.one_of(st.none(), st.booleans(), st.integers(-10**6, 10**6), st.floats(allow_nan=True), st.text(max_size=8),
+              st.builds(np.float64, st.floats()), st.builds(np.int64, st.integers(-10, 10)),
+              st.lists(st.floats(), max_size=4).map(np.array)),
+    lambda c: st.one_of(st.lists(c, max_size=4), st.dictionaries(st.text(max_size=4), c, max_size=4),
+                        st.tuples(c, c)),
+    max_leaves=12,
+)
+case("results.jsonable", value=JSONISH, digits=st.one_of(st.none(), st.integers(1, 8)), bad_={"value": None})
+case("results.round_significant", x=st.one_of(st.floats(), st.lists(st.floats(), max_size=5).map(np.array)),
+     digits=st.integers(1, 10))
+case("outputs.current_umask")
+OUTPATH = S(Out("a.json"), Out("b.wav"), Out("c.csv"))
+case("outputs.resolve_output", path=OUTPATH)
+case("outputs.same_path", a=S(P("ir.wav"), P("clean.wav"), Out("x")), b=S(P("ir.wav"), P("speech.wav")))
+case("outputs.check_output_file", path=OUTPATH, inputs=S(None, [P("ir.wav")], [None, P("clean.wav")]),
+     option=S("--out", "output"))
+case("outputs.check_output_folder", path=S(Out("rep"), Out("r2")), inputs=S(None, [P("ir.wav")]))
+case("outputs.check_inputs_outside", folder=S(Out("rep"), P("out")), inputs=S(None, [P("ir.wav")], []))
+case("outputs.check_distinct", out=S(None, Out("a.json")), folder=S(None, Out("rep")))
+case("outputs.stale_temporaries", target=OUTPATH)
+case("outputs.remove_stale_temporaries", target=OUTPATH)
+case("outputs.output_error", e=st.builds(OSError, S(errno.ENOSPC, errno.EACCES, errno.EROFS, errno.ENOTDIR,
+                                                   errno.EISDIR, errno.EIO, 0), S("x", "")),
+     path=OUTPATH, bad_={"e": BAD_ANY})
+case("outputs.atomic_write_bytes", path=OUTPATH, data=st.binary(max_size=64))
+case("outputs.atomic_write_text", path=OUTPATH, text=st.text(max_size=64))
+
+
+def _enter(fn, kw):
+    with fn(**kw) as tmp:
+        (Path(tmp) / "f.txt").write_text("x")
+    return True
+
+
+case("outputs.atomic_directory", path=S(Out("d1"), Out("d2")), replaceable=S(None, lambda p: None), call_=_enter)
+
+# --- bands -----------------------------------------------------------------------
+
+CENTRES = st.lists(st.sampled_from([63.0, 125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0, 8000.0]), min_size=1,
+                   max_size=7, unique=True).map(lambda v: tuple(sorted(v)))
+case("bands.min_rate_for_octaves", centres=CENTRES,
+     bad_={"centres": S((), (NAN,), (-1.0,), (0.0,), "abc", None, (1e300,))})
+case("bands.check_rate_for_octaves", fs=S(22050, 24000, 44100, 48000, 96000), name=S("input", "ir"))
+
+
+def _filterbank(fn, kw):
+    from envpredict.bands import octave_filterbank
+
+    return fn(octave_filterbank(kw["fs"]))
+
+
+case("bands.check_filterbank", fs=S(24000, 44100, 48000, 96000), call_=_filterbank, examples_=4)
+case("bands.octave_filterbank", fs=S(16000, 24000, 48000, 96000), order=S(2, 3), passes=S(1, 2),
+     beyond_nyquist=S("highpass", "omit", "refuse"), share_=0.4)
+case("bands.octave_sos", fs=S(24000, 44100, 48000, 96000), order=S(2, 3, 4))
+case("bands.octave_bands", x=scaled(IR), fs=J(48000), zero_phase=st.booleans())
+
+
+def _butterworth(fn, kw):
+    from scipy.signal import butter
+
+    fs, lo, hi = kw["fs"], kw["lo"], kw["hi"]
+    sos = butter(3, [lo, hi], "bandpass", fs=fs, output="sos")
+    return fn(sos, fs, (lo, hi), "band")
+
+
+case("bands.check_butterworth", fs=S(16000, 48000), lo=S(100.0, 500.0), hi=S(1000.0, 4000.0), call_=_butterworth,
+     bad_={"fs": None, "lo": None, "hi": None})
+case("bands.lowpass_sos", fs=S(16000, 48000), cutoff_hz=S(50.0, 100.0), order=S(2, 4))
+case("bands.bandpass_sos", fs=S(16000, 48000), low_hz=S(100.0, 500.0), high_hz=S(1000.0, 4000.0), order=S(2, 4),
+     bad_={"low_hz": BAD_REAL, "high_hz": S(1e9, -1.0, NAN, None, 50.0)})
+case("bands.envelope_delays", fs=S(24000, 48000), band_passes=S(1, 2), cutoff_hz=S(50.0, 100.0),
+     target_hz=S(200.0, 400.0), bad_={"band_passes": BAD_INT})
+case("bands.envelope_rate", fs=S(8000, 16000, 44100, 48000, 96000), target_hz=st.floats(100.0, 1000.0))
+case("bands.intensity_envelopes", band_signals=st.builds(band_irs, S(24000, 48000), S(0.3, 1.0)).map(lambda a: a),
+     fs=J(48000), cutoff_hz=st.floats(20.0, 100.0), target_hz=st.floats(150.0, 400.0),
+     bad_={"fs": S(0, -1, NAN, 1e12, "x")})
+
+# --- audio -------------------------------------------------------------------------
+
+case("audio.audio_files_in", folder=S(P("recordings"), P(".")))
+case("audio.check_wav_path", path=S(Out("a.wav"), Out("b.WAV")), bad_={"path": S(Out("a.mp3"), P("folder"), 3, None,
+                                                                               "a\x00b.wav", P("text.txt"))})
+case("audio.write_wav", path=S(Out("w.wav")), x=scaled(IR), fs=S(16000, 48000), subtype=S("PCM_16", "PCM_24", "FLOAT"),
+     bad_={"subtype": S("MP3", "", None, 3)})
+WAV_IN = S(P("ir.wav"), P("clean.wav"), P("speech.wav"), P("ir_stereo.wav"))
+case("audio.audio_info", path=WAV_IN, name=S("input", "ir"))
+case("audio.pick_channel", data=st.builds(lambda n, c: np.ones((100, c)) if c else np.ones(100), S(1, 2), S(0, 1, 2)),
+     channel=S(None, 0), name=S("x"), source=S("file.wav"))
+case("audio.load_audio", path=S(P("ir.wav"), P("clean.wav"), P("speech.wav")), channel=S(None, 0),
+     check=st.booleans(), bad_={"channel": S(-1, 5, 1.5, "0", 2**40)})
+case("audio.check_rate", fs=S(8000, 16000, 44100, 48000, 48000.0, np.int64(16000)), name=S("input"))
+case("audio.as_mono_array", x=scaled(IR), fs=S(24000, 48000))
+case("audio.validate_signal", x=scaled(IR), fs=S(24000, 48000), allow_clipping=st.booleans(),
+     min_seconds=S(0.0, 0.5))
+case("audio.is_clipped", x=scaled(IR))
+RES_FS = S(8000, 16000, 22050, 44100, 48000)
+case("audio.resample", x=st.builds(speech, S(16000), S(1.0), S(1)), fs_in=J(16000), fs_out=RES_FS)
+case("audio.usable_cores")
+case("audio.usable_threads")
+case("audio.in_parallel", tasks=st.lists(st.sampled_from([lambda: 1, lambda: np.ones(3).sum()]), max_size=4),
+     bad_={"tasks": S(None, 3, "x")})
+case("audio.resample_ratio", fs_in=RES_FS, fs_out=RES_FS)
+_DELAYED = st.builds(lambda d: np.concatenate([np.zeros(d), speech(16000, 1.0, 1)])[:16000], st.integers(0, 800))
+case("audio.estimate_delay", reference=st.builds(speech, J(16000), J(1.0), J(1)), x=_DELAYED, fs=J(16000),
+     max_delay_s=st.floats(0.05, 1.0), near=S(0, 100), excerpt_s=S(None, 0.5, 2.0))
+case("audio.zero_lag_correlation", reference=st.builds(speech, J(16000), J(1.0), J(1)), x=_DELAYED, fs=J(16000),
+     excerpt_s=S(None, 0.5))
+case("audio.rms_dbfs", x=scaled(IR))
+case("audio.as_source", x=scaled(IR), fs=S(24000, 48000))
+case("audio.calibration_from_tone",
+     x=st.builds(lambda a, f: a * np.sin(2 * np.pi * f * np.arange(48000) / 48000), st.floats(0.01, 0.9),
+                 S(1000.0, 1003.0, 997.0)),
+     fs=J(48000), level_db=st.floats(80.0, 124.0), bad_={"level_db": BAD_REAL})
+case("audio.check_calibration_db", value=st.one_of(st.none(), st.floats(60.0, 140.0)))
+
+
+def _calibration(fn, kw):
+    how = kw.pop("how")
+    if how == "offset":
+        return fn(calibration_db=kw["calibration_db"])
+    if how == "calibrator":
+        return fn(calibrator=kw["calibrator"], calibrator_level=kw["calibrator_level"], channel=kw["channel"])
+    return fn()
+
+
+case("audio.resolve_calibration", how=S("offset", "calibrator", "none"), calibration_db=st.floats(60.0, 140.0),
+     calibrator=S(P("calibrator.wav")), calibrator_level=st.floats(90.0, 124.0), channel=S(None, 0),
+     call_=_calibration, bad_={"how": None, "channel": S(-1, 3, 1.5, "0")})
+
+# --- modulation ----------------------------------------------------------------------
+
+MOD_F = np.array([0.63, 1.0, 1.6, 2.5, 4.0, 6.3, 10.0, 12.5])
+case("modulation.project", x=st.builds(lambda n, b: np.abs(np.random.default_rng(n).standard_normal((b, n))),
+                                       S(200, 2000), S(1, 7)),
+     freqs=J(MOD_F), fs=S(100.0, 200.0), stride=S(1, 2), offset=S(0.0, 0.5), chunk=S(64, 65536))
+case("modulation.mtf_from_ir", band_irs=st.builds(band_irs, J(48000), S(0.3, 0.6, 1.5)), fs=J(48000),
+     modulation_hz=S((0.63, 1.0, 2.0, 4.0, 8.0, 12.5), (1.0,)), lengths=J(None), examples_=8)
+case("modulation.whole_periods", n=st.integers(100, 10**6), fs_env=S(100.0, 200.0, 250.0), f=S(0.63, 1.0, 12.5))
+_ENV = st.builds(lambda s: 1 + 0.5 * np.cos(2 * np.pi * 1.6 * np.arange(int(40 * 200)) / 200)
+                 + 0.05 * np.abs(np.random.default_rng(s).standard_normal(8000)), st.integers(0, 5))
+case("modulation.envelope_noise_floor", e=_ENV, fs_env=J(200.0), freqs=J((1.6,)), exclude_hz=J((1.6, 3.2)))
+case("modulation.noise_corrected_depth", raw=st.lists(st.floats(0, 1), min_size=2, max_size=28)
+     .map(lambda v: np.array(v[: len(v) // 2 * 2]).reshape(2, -1)),
+     floor=st.lists(st.floats(0, 0.2), min_size=2, max_size=2).map(np.array))
+_ENVS = st.builds(lambda s: np.stack([1 + 0.5 * np.cos(2 * np.pi * 1.6 * np.arange(8000) / 200)] * 2)
+                  + 0.05 * np.abs(np.random.default_rng(s).standard_normal((2, 8000))), st.integers(0, 5))
+case("modulation.modulation_depths", env=_ENVS, fs_env=J(200.0), freqs=J(np.array([[1.6, 3.2], [1.6, 3.2]])),
+     exclude_hz=J((1.6, 3.2)))
+case("modulation.mtf_from_test_signal", env=_ENVS, fs_env=J(200.0), freqs=J(np.array([[1.6, 3.2], [1.6, 3.2]])),
+     nominal_depth=S(0.55, 1.0), exclude_hz=S(None, (1.6, 3.2)))
+case("modulation.mtf_from_pair_ncm", clean_envelopes=st.builds(lambda: env_pair()[0]),
+     degraded_envelopes=st.builds(lambda: env_pair()[1]), return_correlation=st.booleans())
+case("modulation.mtf_from_pair_regression", clean_envelopes=st.builds(lambda: env_pair()[0]),
+     degraded_envelopes=st.builds(lambda: env_pair()[1]))
+
+# --- sti, cautions -------------------------------------------------------------------
+
+STI_VALUE = st.floats(0.0, 1.0)
+case("sti.table_array", values=S((1.0, 2.0), ((1.0, 2.0), (3.0, 4.0)), (0.5,)))
+case("sti.check_talker", talker=S("male", "female"))
+case("sti.check_speech_level", level_dba=st.floats(30.0, 110.0))
+case("sti.parse_noise_levels", text=S(None, "40;40;40;40;40;40;40", "30,35,40,45,40,35,30", [40.0] * 7,
+                                       (20.0, 25, 30, 35, 30, 25, 20)))
+case("sti.speech_band_levels", level_dba=st.floats(30.0, 110.0), talker=S("male", "female"))
+case("sti.masking_factor", level_db=st.lists(st.floats(-20, 140), min_size=7, max_size=7).map(np.array))
+case("sti.transmission_index", m=st.lists(st.floats(0, 1), min_size=1, max_size=14).map(np.array))
+case("sti.combine_bands", mti=st.lists(st.floats(0, 1), min_size=7, max_size=7).map(np.array),
+     talker=S("male", "female"))
+case("sti.verdict_decimals", value=STI_VALUE, requirement=S(0.5, 0.45, 0.62), minimum=S(2, 3))
+case("sti.format_index", value=STI_VALUE, requirement=S(0.5, 0.45), minimum=S(2, 3))
+case("sti.qualification_band", sti=STI_VALUE, check_=lambda r: isinstance(r, str))
+case("sti.subjective_rating", sti=STI_VALUE)
+case("sti.sti_from_mtf", mtf=st.builds(lambda s: np.random.default_rng(s).uniform(0.05, 1.0, (7, 14)),
+                                       st.integers(0, 20)),
+     noise_db=S(None, [40.0] * 7, np.linspace(50, 20, 7)), speech_level_dba=st.floats(40, 90),
+     talker=S("male", "female"), auditory=st.booleans(), bad_={"auditory": None})
+case("cautions.below_target", sti=STI_VALUE)
+
+# --- decay -----------------------------------------------------------------------------
+
+_E = st.builds(lambda fs, T: (band_irs(fs, T)[3] ** 2), J(48000), S(0.3, 0.6, 1.5))
+
+
+def _floor(fn, kw):
+    """``fn(e, fs, floor, ...)`` with the floor of a valid ``e`` (None for a spoiled one)."""
+    from envpredict.decay import find_noise_floor
+
+    e = kw.pop("e")
+    fl = find_noise_floor(e, 48000) if isinstance(e, np.ndarray) and e.ndim == 1 and e.size > 100 else None
+    return fn(e, floor=fl, **kw)
+
+
+case("decay.onset_index", x=scaled(IR))
+case("decay.impulse_shape", x=scaled(IR), fs=J(48000))
+case("decay.check_impulse_response", x=scaled(IR), fs=J(48000), label=S("the input"))
+case("decay.find_noise_floor", e=_E, fs=J(48000), fc=S(None, 1000.0))
+case("decay.schroeder_curve", e=_E, fs=J(48000), fc=S(None, 1000.0), step=S(1, 4), call_=_floor)
+case("decay.noise_energy", e=_E, fs=J(48000), fc=S(None, 1000.0), call_=_floor)
+case("decay.tail_energy", e=_E, fs=J(48000), fc=S(None, 1000.0), call_=_floor)
+_CURVE = st.builds(lambda T, n: -60 / T * np.arange(n) / 1000.0, S(0.3, 1.0, 2.0), S(1000, 3000))
+case("decay.fit_decay_range", curve_db=_CURVE, fs=J(1000.0), hi_db=S(-5.0, 0.0), lo_db=S(-25.0, -35.0))
+case("decay.fit_decay_time", curve_db=_CURVE, fs=J(1000.0), hi_db=S(-5.0, 0.0), lo_db=S(-25.0, -35.0))
+case("decay.band_decay", band=st.builds(lambda T: band_irs(48000, T)[3], S(0.3, 0.6, 1.5)), fs=J(48000), t0=S(0, 10),
+     fc=S(None, 1000.0))
+case("decay.decay_figures", band_irs=st.builds(band_irs, J(48000), S(0.3, 0.6, 1.5)), fs=J(48000), t0=S(0, 10),
+     keep_curves=st.booleans(), examples_=8)
+case("decay.reverberation_time", x=scaled(IR), fs=J(48000), kind=S("t30", "t20", "edt"), examples_=10)
+case("decay.mid_frequency", values=st.lists(st.one_of(st.none(), st.floats(0.1, 3.0)), min_size=7, max_size=7),
+     share_=0.3)
+
+
+def _notes(fn, kw):
+    return fn(ir_result().decay, kw["name"])
+
+
+case("decay.mid_frequency_notes", name=S("t30", "t20", "edt", "c50"), call_=_notes)
+
+# --- correlation ------------------------------------------------------------------------
+
+
+def _reader(arr):
+    return lambda a, b: arr[a:b]
+
+
+_SPEECH10K = st.builds(speech, J(10000), S(1.0, 2.0), st.integers(0, 3))
+case("correlation.analysis_window")
+case("correlation.third_octave_matrix")
+case("correlation.band_envelopes", dft_frames=st.builds(lambda k, n: np.abs(np.random.default_rng(k).standard_normal(
+    (k, n))), st.integers(1, 50), S(256, 512)))
+case("correlation.frame_count", n_samples=st.integers(0, 10**7))
+case("correlation.frame_energies_db", x_read=_SPEECH10K.map(_reader), n_samples=S(10000, 5000),
+     chunk_frames=S(16, 4096), bad_={"x_read": S(None, 3), "n_samples": BAD_INT})
+case("correlation.tf_envelopes", clean_read=_SPEECH10K.map(_reader), degraded_read=_SPEECH10K.map(_reader),
+     n_samples=S(10000), chunk_frames=S(16, 4096), bad_={"clean_read": S(None, 3), "degraded_read": S(None, 3)})
+case("correlation.segment_scores", x_env=st.builds(lambda: env_pair()[0]), y_env=st.builds(lambda: env_pair()[1]),
+     which=S(("stoi_band_segment",), ("stoi_band_segment", "estoi_band_segment")),
+     bad_={"which": S(("nope",), (), None)})
+case("correlation.correlation_from_envelopes", x_env=st.builds(lambda: env_pair()[0]),
+     y_env=st.builds(lambda: env_pair()[1]), kept_idx=st.builds(lambda: env_pair()[2]),
+     frames_total=st.builds(lambda: env_pair()[3]))
+case("correlation.stoi_estoi_stream", clean_read=_SPEECH10K.map(_reader), degraded_read=_SPEECH10K.map(_reader),
+     n_samples=S(10000), bad_={"clean_read": S(None, 3), "degraded_read": S(None, 3)})
+_PAIR = st.builds(lambda fs, s, seed, n: (speech(fs, s, seed), speech(fs, s, seed)
+                                          + n * np.random.default_rng(seed).standard_normal(int(s * fs)), fs),
+                  SPEECH_FS, S(1.0, 1.5), st.integers(0, 3), st.floats(0.0, 0.05))
+
+
+def _pair_call(fn, kw):
+    """``fn(clean, degraded, fs, ...)`` from a drawn pair; a spoiled ``pair`` is used as
+    both signals, a spoiled ``fs`` replaces the pair's rate."""
+    p, fs = kw.pop("pair"), kw.pop("fs")
+    if isinstance(p, tuple):
+        return fn(p[0], p[1], p[2] if fs == "ok" else fs, **kw)
+    return fn(p, p, 16000 if fs == "ok" else fs, **kw)
+
+
+for _n in ("correlation.correlation_indices", "correlation.stoi", "correlation.estoi"):
+    case(_n, pair=_PAIR, fs=J("ok"), call_=_pair_call, bad_={"pair": BAD_ARRAY, "fs": BAD_RATE})
+# the speech-based STI needs a common part of at least 3 s
+case("pair.speech_sti", pair=st.builds(lambda fs, seed, n: (speech(fs, 3.2, seed), speech(fs, 3.2, seed)
+                                                            + n * np.random.default_rng(seed).standard_normal(
+                                                                int(3.2 * fs)), fs),
+                                       SPEECH_FS, st.integers(0, 2), st.floats(0.0, 0.05)),
+     fs=J("ok"), call_=_pair_call, bad_={"pair": BAD_ARRAY, "fs": BAD_RATE}, examples_=8)
+
+# --- pitch --------------------------------------------------------------------------------
+
+case("pitch.check_f0_range", f0_min_hz=st.floats(40, 100), f0_max_hz=st.floats(200, 600))
+case("pitch.yin_f0", x=st.builds(speech, J(16000), S(0.5, 1.0), st.integers(0, 3)), fs=J(16000),
+     f0_min_hz=st.floats(50, 90), f0_max_hz=st.floats(250, 500), threshold=st.floats(0.05, 0.3),
+     window_s=S(0.03, 0.04), hop_s=S(0.01, 0.005))
+
+# --- signals --------------------------------------------------------------------------------
+
+case("signals.check_seed", seed=st.integers(0, 2**31))
+case("signals.check_generation", fs=S(24000, 44100, 48000), seconds=S(None, 1.0, 30.0, 3600.0))
+case("signals.octave_band_noise", n=S(1000, 24000), fs=S(24000, 48000),
+     rng=st.integers(0, 5).map(np.random.default_rng), width_octaves=st.floats(0.1, 1.0), bad_={"rng": S(None, 3)})
+_T = st.builds(lambda n: np.arange(n) / 1000.0, S(10, 1000))
+case("signals.stipa_envelope", t=_T, f1=S(1.6, 1.0), f2=S(8.0, 5.0), depth=st.floats(0.0, 1.0))
+case("signals.full_sti_envelope", t=_T, f=S(0.63, 12.5), depth=st.floats(0.0, 1.0))
+case("signals.is_loopable", n=st.integers(1, 10**6), fs=S(24000, 48000), freqs=S((1.6, 8.0), (0.63,), ()),
+     bad_={"freqs": S(None, (0.0,), (NAN,), "x")})
+case("signals.stipa_signal", seconds=st.floats(15.0, 16.0), fs=S(24000, 32000), seed=st.integers(0, 100),
+     bad_={"seconds": S(1e9, 1e6, 0.0, -1.0, NAN, INF, "1", None, 1e-6)}, examples_=4)
+case("signals.full_sti_plan")
+case("signals.full_sti_signal", modulation_hz=S(0.63, 4.0, 12.5), seconds=st.floats(0.5, 2.0), fs=S(24000, 48000),
+     seed=st.integers(0, 10), bad_={"modulation_hz": BAD_REAL, "seconds": S(1e9, 0.0, -1.0, NAN, INF, None)})
+
+
+def _first_signal(fn, kw):
+    return next(iter(fn(**kw)))
+
+
+case("signals.full_sti_signals", fs=S(24000), seed=st.integers(0, 10), call_=_first_signal, examples_=2)
+case("signals.write_stipa_signal", path=S(Out("s.wav")), seconds=st.floats(15.0, 16.0), fs=S(24000),
+     seed=st.integers(0, 5), bad_={"seconds": S(1e9, 1e6, 0.0, -1.0, NAN, INF, None), "path": BAD_PATH}, examples_=4)
+# Writing the 14 signals takes about 20 s: only refusals here (test_signals writes the set).
+case("signals.write_full_sti_signals", folder=BAD_PATH, fs=S(1e12, 0, NAN, "x", 8000), seed=S(0, -1), share_=0.0,
+     bad_={"folder": None, "fs": None, "seed": None}, examples_=8)
+
+# --- tables ---------------------------------------------------------------------------------
+
+CSVS = S(P("scores.csv"), P("results.csv"), P("manifest.csv"))
+case("tables.read_text", path=CSVS, what=S("scores", "results"))
+CSV_TEXT = st.one_of(S("a,b\n1,2\n", "a,b\n1,2", "x\n\"q\n", ""), st.text(max_size=40))
+
+
+def _on_error(line, e):
+    from envpredict.exceptions import InputError
+
+    return InputError(f"line {line}: {e}", "fix it")
+
+
+case("tables.iter_records", text=CSV_TEXT, on_error=J(_on_error), strict=st.booleans(), bad_={"on_error": None},
+     call_=lambda fn, kw: list(fn(**kw)))
+case("tables.parse_lines", text=CSV_TEXT, path=S(P("results.csv")))
+case("tables.read_results", path=CSVS)
+case("tables.read_table", path=CSVS, what=S("scores"))
+case("tables.cell_number", v=st.one_of(st.text(max_size=10), st.floats(), st.none(), S("1e309", "nan", "-0")),
+     bad_={"v": None})
+case("tables.cell_float", row=st.fixed_dictionaries({"a": st.one_of(S("1.5", "0", ""), st.text(max_size=5))}),
+     column=S("a"), line=S(2), source=S("f.csv"), blank_ok=st.booleans(), share_=0.3)
+case("tables.resolve_column", header=S(["a", "B", "c"]), name=S("a", "b", "C"), source=S("f.csv"), share_=0.3)
+case("tables.format_cell", v=st.one_of(st.floats(), st.text(max_size=5), st.none(), st.integers()), bad_={"v": None})
+case("tables.csv_line", cells=st.lists(st.text(max_size=5), max_size=4))
+case("tables.table_text", header=S(["a", "b"]), rows=st.lists(st.fixed_dictionaries({"a": st.text(max_size=4),
+                                                                                        "b": S("1", "")}),
+                                                                  max_size=3))
+case("tables.write_table", path=S(Out("t.csv")), header=S(["a", "b"]),
+     rows=st.lists(st.fixed_dictionaries({"a": S("x", "y"), "b": S("1", "")}), max_size=3))
+
+# --- mapping --------------------------------------------------------------------------------
+
+_X9 = np.linspace(0.2, 0.8, 9)
+_C9 = np.array([1, 2, 4, 7, 10, 13, 16, 18, 19])
+
+
+@lru_cache(maxsize=2)
+def score_mapping():
+    from envpredict.mapping import fit_mapping
+
+    return fit_mapping(_X9, _C9, [20] * 9, index="sti")
+
+
+case("mapping.check_shape", shape=S("logistic", "normal"))
+case("mapping.check_guess_lapse", guess=st.floats(0, 0.4), lapse=st.floats(0, 0.1))
+case("mapping.mapping_from_dict", d=st.builds(lambda: score_mapping().to_dict()), source=S("(dict)"),
+     bad_={"d": st.one_of(BAD_ANY, S({"index": "sti"}, {"shape": "x", "params": {"a": 1e308, "b": NAN}}))})
+case("mapping.fit_mapping", index_values=st.builds(lambda s: _X9 + 0.01 * s, st.integers(0, 3)), correct=J(_C9),
+     trials=J(np.full(9, 20)), shape=S("logistic", "normal"), guess=S(0.0, 0.1), lapse=S(0.0, 0.02))
+_ROWS = st.builds(lambda: [(i + 2, {"index": f"{v:.3f}", "correct": str(c), "trials": "20"})
+                           for i, (v, c) in enumerate(zip(_X9, _C9))])
+case("mapping.scores_from_rows", rows=_ROWS, header=J(["index", "correct", "trials"]), index=S("index"))
+case("mapping.predict_scores", values=st.lists(st.floats(0, 1), max_size=5), mapping=st.builds(score_mapping),
+     bad_={"mapping": S(None, 3)})
+case("mapping.add_predictions", rows=_ROWS, header=J(["index", "correct", "trials"]), mapping=st.builds(score_mapping),
+     index_column=S("index", "INDEX"), bad_={"mapping": S(None, 3)})
+case("mapping.read_mapping", path=S(P("mapping.json")))
+case("mapping.fit_mapping_file", path=S(P("scores.csv")), index=S("index"), shape=S("logistic", "normal"))
+case("mapping.predict_file", path=S(P("scores.csv")), mapping=S(P("mapping.json")), index_column=S("index", "Index"),
+     out=S(None, Out("pred.csv")))
+
+# --- indirect, direct, pair, timescales -----------------------------------------------------
+
+case("indirect.sti_from_ir", ir=scaled(IR), fs=J(48000), noise_db=S(None, [40.0] * 7, "30;30;30;30;30;30;30"),
+     speech_level_dba=st.floats(50, 80), talker=S("male", "female"), examples_=10,
+     bad_={"fs": S(0, -1, NAN, 1e12, "x", None, 16000)})
+case("indirect.sti_from_ir_file", path=S(P("ir.wav"), P("ir_stereo.wav")), channel=S(None, 0),
+     speech_level_dba=st.floats(50, 80), examples_=8)
+case("direct.find_usable_part", x=scaled(st.builds(stipa_recording, J(24000), J(16.0))), fs=J(24000),
+     min_seconds=S(1.0, 8.0))
+case("direct.check_block_seconds", value=st.floats(5.0, 60.0))
+case("direct.stipa_from_recording", x=scaled(st.builds(stipa_recording, J(24000), J(16.0)), dc=(-0.01, 0.01)),
+     fs=J(24000), calibration_db=S(None, 120.0), noise_db=J(None), talker=S("male", "female"),
+     examples_=6, bad_={"fs": S(0, NAN, 1e12, "x", None)})
+case("direct.stipa_from_file", path=S(P("stipa.wav")), calibration_db=S(None, 100.0), examples_=5)
+
+
+def _full(fn, kw):
+    rec = kw.pop("recordings")
+    return fn(rec, **kw)
+
+
+case("direct.full_sti_from_recordings",
+     recordings=S([(stipa_recording(24000, 16.0), 24000, "r.wav")], [], [(np.zeros(10), 24000, "z")]),
+     talker=S("male"), share_=0.0, examples_=3, bad_={"recordings": S(None, 3, [(None, None, None)])})
+case("direct.recording_paths", paths=S(P("recordings"), [P("stipa.wav")], P("stipa.wav")))
+case("direct.full_sti_from_files", paths=S(P("recordings"), [P("stipa.wav")]), share_=0.0, examples_=3)
+case("pair.pair_indices", pair=_PAIR, fs=J("ok"), align=st.booleans(), max_delay_s=S(0.2, 1.0), call_=_pair_call,
+     bad_={"pair": BAD_ARRAY, "fs": BAD_RATE}, examples_=8)
+case("pair.pair_from_files", clean_path=S(P("clean.wav")), degraded_path=S(P("degraded.wav"), P("clean.wav")),
+     align=st.booleans(), examples_=6)
+case("timescales.usable_bands", fs=S(8000, 16000, 44100, 48000))
+case("timescales.modulation_band_edges")
+_ENV1 = st.builds(lambda s, n: 1 + 0.5 * np.cos(2 * np.pi * 4 * np.arange(n) / 100.0)
+                  + 0.1 * np.random.default_rng(s).random(n), st.integers(0, 3), S(1000, 3000))
+case("timescales.envelope_spectrum", env=_ENV1, fs_env=J(100.0), segment_s=S(8.0, 4.0))
+
+
+def _mod_idx(fn, kw):
+    from envpredict.timescales import envelope_spectrum
+
+    f, p = envelope_spectrum(kw["env"], 100.0)
+    return fn(f if kw["ok"] else kw["env"], p)
+
+
+case("timescales.modulation_indices", env=_ENV1, ok=S(True, True, True, False), call_=_mod_idx, bad_={"ok": None})
+case("timescales.spectral_peak", freqs=J(np.linspace(0, 50, 101)),
+     psd=st.builds(lambda s: np.random.default_rng(s).random(101), st.integers(0, 5)), lo=S(1.0, 2.0), hi=S(8.0, 20.0))
+case("timescales.inspect_signal", x=scaled(st.builds(speech, J(16000), S(2.0, 3.0), st.integers(0, 2))), fs=J(16000),
+     f0_min_hz=S(50.0, 70.0), f0_max_hz=S(300.0, 500.0), examples_=8)
+case("timescales.inspect_file", path=S(P("speech.wav")), start_s=S(0.0, 0.5), duration_s=S(None, 2.0), examples_=6)
+
+# --- sweep, stats, batch --------------------------------------------------------------------
+
+case("sweep.parse_snr_range", text=S("-15:15:3", "0:10:5", "-5,0,5", "3"), share_=0.3)
+case("sweep.default_index_functions")
+case("sweep.snr_sweep", clean=st.builds(speech, J(10000), J(1.5), st.integers(0, 2)),
+     noise=st.builds(lambda s: 0.05 * np.random.default_rng(s).standard_normal(10000 * 10), st.integers(0, 2)),
+     fs=J(10000), snr_db=S((-5.0, 0.0, 5.0), (0.0, 10.0)), index=S("stoi", "estoi"), n_segments=S(1, 2), examples_=6)
+case("sweep.snr_sweep_files", clean=S(P("clean.wav")), noise=S(P("noise.wav")), snr_db=S("-5:5:5", [0.0, 5.0]),
+     n_segments=S(1, 2), examples_=5)
+case("stats.bootstrap_mean_ci", d=st.lists(st.floats(-1, 1), min_size=3, max_size=12).map(np.array),
+     confidence=S(0.9, 0.95), n_resamples=S(200, 500), method=S("BCa", "percentile"))
+case("stats.holm", p_values=st.lists(st.one_of(st.none(), st.floats(0, 1)), max_size=6),
+     bad_={"p_values": S(None, [NAN], [2.0], "x", [-1.0])})
+case("stats.wilcoxon_p", d=st.lists(st.floats(-1, 1), min_size=0, max_size=12).map(np.array))
+case("stats.default_pair_on", columns=S(("item", "condition", "sti"), ("clean", "condition", "stoi")),
+     by=S("condition"), index=S("sti", "stoi"))
+_CROWS = st.builds(lambda s: [{"item": f"u{i}", "condition": c,
+                               "sti": 0.5 + 0.03 * i + (0.04 if c == "b" else 0) + 0.01 * ((i * 7 + s) % 5)}
+                              for i in range(8) for c in ("a", "b")], st.integers(0, 5))
+case("stats.compare_conditions", rows=_CROWS, by=S("condition"), baseline=S("a", "b"), index=S(None, "sti"),
+     pair_on=S(None, "item"), n_resamples=S(200, 500))
+case("stats.compare_conditions_file", path=S(P("results.csv")), by=S("condition"), baseline=S("a", "b"),
+     n_resamples=S(200, 500))
+case("batch.read_manifest", path=S(P("manifest.csv"), P("pairs.csv")), speech_level_dba=st.floats(50, 80))
+
+
+def _job(fn, kw):
+    from envpredict.batch import read_manifest
+
+    m = read_manifest(_FOLDER[0] / kw["which"])
+    job = dict(m.jobs[0])
+    job.update(kw["extra"])
+    out = fn(job) if fn.__name__ == "score_row" else fn([job])[0]
+    assert "internal failure" not in out["error"], out["error"]
+    return out
+
+
+for _n in ("batch.score_row", "batch.score_rows"):
+    case(_n, which=S("manifest.csv", "pairs.csv"), extra=S({}, {"channel": 0}, {"talker": "female"}), call_=_job,
+         bad_={"which": None, "extra": S({"channel": 5}, {"noise_db": "x"}, {"speech_level_dba": NAN},
+                                        {"ir": "garbage.wav"})}, examples_=6)
+case("batch.start_workers_early", examples_=1)
+case("batch.run_batch", manifest=S(P("manifest.csv"), P("pairs.csv")), out=S(Out("res.csv")), workers=J(1),
+     examples_=4, bad_={"workers": S(0, -1, 1.5, "x", 10**9)})
+
+# --- refcases, demo, report -------------------------------------------------------------------
+
+case("refcases.case_files", folder=S(None))
+case("refcases.load_cases", folder=S(None))
+
+
+def _first_case(fn, kw):
+    from envpredict.refcases import load_cases
+
+    c = next(c for c in load_cases() if c["method"] == kw["method"])
+    return fn(c["input"]) if fn.__name__ == "synthesize" else fn(c)
+
+
+case("refcases.synthesize", method=S("ir"), call_=_first_case, bad_={"method": None}, examples_=2)
+case("refcases.run_case", method=S("ir"), call_=_first_case, bad_={"method": None}, examples_=2)
+case("refcases.select_cases", id_contains=S(None, "decay", "T0.5"), method=S(None, "ir"))
+case("refcases.summary", outcomes=S([]), bad_={"outcomes": S(None, 3, [None])})
+case("refcases.run_cases", id_contains=S("decay_T0.5"), method=S("ir"), examples_=2)
+
+
+def _run_all(fn, kw):
+    d = _FOLDER[0] / "cases"
+    d.mkdir(exist_ok=True)
+    src = Path(envpredict.__file__).parent.parent / "reference_cases" / "decay_T0.5s.json"
+    (d / "decay_T0.5s.json").write_text(src.read_text() if kw["ok"] else "{")
+    return fn(d)
+
+
+case("refcases.run_all", ok=st.booleans(), call_=_run_all, bad_={"ok": None}, examples_=2, share_=0.3)
+case("demo.read_scenario", folder=S(None))
+case("demo.rate_demo_site", examples_=1)
+case("report.num", d=S({"a": {"b": 1.25}}, {"a": {"b": None}}, {"a": 1}), path=S("a.b"), spec=S(".2f", ".3f"),
+     unit=S("", " s"), share_=0.3)
+case("report.txt", v=st.one_of(st.text(max_size=8), st.none(), st.floats()), bad_={"v": None})
+
+
+def _render(fn, kw):
+    from envpredict.report import Page
+
+    d = ir_result().to_dict()
+    d.update(kw["extra"])
+    return fn("ir", d, Page(()), settings={}, title=kw["title"], version="0", created="now")
+
+
+case("report.render_html", extra=S({}, {"sti": {"sti": NAN}}), title=S("T", "<!--", "$\\frac$"), call_=_render,
+     bad_={"extra": None}, examples_=3, share_=0.3)
+
+
+def _report(fn, kw):
+    d = ir_result().to_dict()
+    d.update(kw["extra"])
+    return fn(kw["kind"], d, kw["folder"], title=kw["title"])
+
+
+case("report.write_report", kind=S("ir"), extra=S({}, {"inputs": {"a": "<!--"}}), folder=S(Out("rep")),
+     title=S(None, "T", "$x$"), call_=_report, bad_={"extra": S({"sti": "x"}, {"decay": None}, {"bands_hz": [1]})},
+     examples_=4)
+case("report.check_report_folder", folder=S(Out("rep"), P("out")), inputs=S(None, [P("ir.wav")]),
+     out=S(None, Out("x.json")))
+case("report.figure_names", folder=S(P("out"), P(".")))
+
+
+# ---------------------------------------------------------------------------
+# The tests
+# ---------------------------------------------------------------------------
+
+
+def test_every_public_function_has_a_strategy():
+    names = set(public_functions())
+    missing, stale = sorted(names - set(CASES)), sorted(set(CASES) - names)
+    assert not missing, f"public functions without a strategy in {__name__}: {missing}"
+    assert not stale, f"strategies for functions that are gone: {stale}"
+
+
+#: Public functions that raise nothing: no argument, or any value is taken (score_row
+#: turns every failure of a row into the row's error text).
+NEVER_RAISES = frozenset({
+    "audio.usable_cores", "audio.usable_threads", "batch.score_row", "batch.score_rows", "batch.start_workers_early",
+    "correlation.analysis_window", "correlation.third_octave_matrix", "outputs.current_umask", "report.num",
+    "report.txt", "signals.full_sti_plan", "sweep.default_index_functions", "tables.cell_number", "tables.format_cell",
+    "timescales.modulation_band_edges",
+})
+
+
+def test_every_public_function_documents_its_errors():
+    # numpydoc: a "Raises" section names the documented errors a function can raise
+    undocumented = sorted(n for n, f in public_functions().items()
+                          if n not in NEVER_RAISES and "Raises" not in (inspect.getdoc(f) or ""))
+    assert not undocumented, f"public functions without a Raises section: {undocumented}"
+
+
+@contextlib.contextmanager
+def memory_cap():
+    """Cap the address space a few GiB above its size now (a huge allocation then fails
+    at once); restore the previous limit after."""
+    soft, hard = resource.getrlimit(resource.RLIMIT_AS)
+    with open("/proc/self/statm") as f:
+        size = int(f.read().split()[0]) * os.sysconf("SC_PAGE_SIZE")
+    cap = size + MEMORY_HEADROOM
+    resource.setrlimit(resource.RLIMIT_AS, (cap if hard == resource.RLIM_INFINITY else min(cap, hard), hard))
+    try:
+        yield
+    finally:
+        resource.setrlimit(resource.RLIMIT_AS, (soft, hard))
+
+
+class Hang(Exception):
+    pass
+
+
+def _alarm(signum, frame):
+    raise Hang(f"one example ran longer than {EXAMPLE_SECONDS} s")
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_only_documented_errors(name):
+    fn = public_functions()[name]
+    c = CASES[name]
+    seen = {"run": 0, "reached": 0}
+
+    @settings(max_examples=c.examples, deadline=None, suppress_health_check=list(HealthCheck))
+    @given(arguments(c))
+    def run(kw):
+        kw = materialize(kw)
+        seen["run"] += 1
+        old = signal.signal(signal.SIGALRM, _alarm)
+        signal.alarm(EXAMPLE_SECONDS)
+        try:
+            with memory_cap():
+                out = c.call(fn, kw) if c.call else fn(**kw)
+        except EnvpredictError as e:
+            assert e.what and "\n" not in e.one_line(), f"not one line: {e.one_line()!r}"
+            event("refused")
+            return
+        finally:
+            signal.alarm(0)
+            signal.signal(signal.SIGALRM, old)
+        event("reached the computation")
+        seen["reached"] += 1
+        if c.check:
+            assert c.check(out)
+
+    run()
+    assert seen["reached"] >= c.share * seen["run"], (
+        f"{name}: only {seen['reached']} of {seen['run']} examples reached the computation")
+
+
+@pytest.mark.parametrize("value", [NAN, 1.5, -0.1, INF, "x", None])
+@pytest.mark.parametrize("fn", ["qualification_band", "subjective_rating"])
+def test_an_index_outside_0_1_has_no_rating(fn, value):
+    # IEC 60268-16:2011 Table F.1 rates an STI of 0..1; NaN once read 'U' and 1.5 'A+'
+    with pytest.raises(envpredict.InputError):
+        getattr(importlib.import_module("envpredict.sti"), fn)(value)
+
+
+def test_a_huge_resampling_is_refused_before_it_allocates():
+    # fs_in = True (1 Hz) once asked scipy for a 5.7 GiB array; a 2**63 Hz rate for more
+    from envpredict.audio import resample
+
+    for fs_in, fs_out in ((True, 48000), (16000, 2**63), (16000, 1e12)):
+        with memory_cap(), pytest.raises(envpredict.InputError):
+            resample(np.zeros(16000), fs_in, fs_out)
+
+
+def _huge_calls():
+    """Calls whose arguments ask for hundreds of GiB (or run for days): each must be
+    refused at the boundary, before any allocation."""
+    from envpredict import audio, correlation, modulation, signals, stats, timescales
+
+    x = speech(16000, 1.0, 1)
+    rows = [{"item": f"u{i}", "c": c, "sti": 0.5 + 0.01 * i + (0.02 if c == "b" else 0)}
+            for i in range(4) for c in ("a", "b")]
+    return {
+        "stipa_signal(seconds=1e9)": lambda: signals.stipa_signal(1e9, 48000),
+        "stipa_signal(fs=1e12)": lambda: signals.stipa_signal(20.0, 1e12),
+        "write_stipa_signal(seconds=1e9)": lambda: signals.write_stipa_signal(
+            str(_FOLDER[0] / "out" / "huge.wav"), 1e9, 48000),
+        "full_sti_signal(seconds=1e9)": lambda: signals.full_sti_signal(4.0, 1e9, 48000),
+        "octave_band_noise(n=2**40)": lambda: signals.octave_band_noise(2**40, 48000, np.random.default_rng(0)),
+        "resample(fs_out=2**63)": lambda: audio.resample(x, 16000, 2**63),
+        "estimate_delay(max_delay_s=1e9)": lambda: audio.estimate_delay(x, x, 16000, 1e9),
+        "bootstrap_mean_ci(n_resamples=2**40)": lambda: stats.bootstrap_mean_ci([0.1, 0.2, 0.3], n_resamples=2**40),
+        "compare_conditions(n_resamples=2**40)": lambda: stats.compare_conditions(
+            rows, by="c", baseline="a", n_resamples=2**40),
+        "envelope_spectrum(segment_s=1e9)": lambda: timescales.envelope_spectrum(np.ones(1000), 100.0, 1e9),
+        "frame_energies_db(n_samples=2**62)": lambda: correlation.frame_energies_db(lambda a, b: x[a:b], 2**62),
+        "project(chunk=2**62)": lambda: modulation.project(np.ones(100), np.array([1.0]), 100.0, chunk=2**62),
+    }
+
+
+@pytest.mark.parametrize("name", sorted(_huge_calls()))
+def test_huge_sizes_are_refused_before_they_allocate(name):
+    old = signal.signal(signal.SIGALRM, _alarm)
+    signal.alarm(EXAMPLE_SECONDS)
+    try:
+        with memory_cap(), pytest.raises(envpredict.InputError):
+            _huge_calls()[name]()
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)
