@@ -427,7 +427,9 @@ def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
             num(d, f"masking_db.{k}", ".1f") if d.get("masking_db") else Cell("—"),
             num(d, f"threshold_db.{k}", ".1f") if d.get("threshold_db") else Cell("—"),
         ])
-    head = ["band", "MTI", "speech level, dB", "noise level, dB", "masking level, dB", "reception threshold, dB"]
+    # the direct method's band levels are of the whole recording: test signal and noise
+    level = "band level (signal + noise), dB" if stipa else "speech level, dB"
+    head = ["band", "MTI", level, "noise level, dB", "masking level, dB", "reception threshold, dB"]
     # leave out the level columns the result has no values for (e.g. an uncalibrated recording)
     keep = [j for j in range(len(head)) if j < 2 or any(r[j].text != "—" for r in rows)]
     tables = [Table("Per octave band", [head[j] for j in keep], [[r[j] for j in keep] for r in rows])]
@@ -495,7 +497,12 @@ def _page_ir(d: Mapping) -> Page:
 def _page_stipa(d: Mapping) -> Page:
     p = Page(headline=_sti_headline(d))
     if d.get("uncertainty") is not None:
-        p.headline.insert(1, ("uncertainty (±)", num(d, "uncertainty", ".3f")))
+        from .sti import verdict_decimals
+
+        # with as many decimals as the STI beside it, as in the terminal
+        req = d.get("requirement") if isinstance(d.get("requirement"), (int, float)) else std.VOICE_ALARM_TARGET_STI
+        dec = verdict_decimals(d["sti"], req) if isinstance(d.get("sti"), (int, float)) else 2
+        p.headline.insert(1, ("standard uncertainty (±)", num(d, "uncertainty", f".{dec}f")))
     p.figures += [_mtf_heatmap(d, True), _ti_figure(d)]
     win = _arr(d.get("window_sti")) if d.get("window_sti") else np.array([])
     if win.size >= 2:

@@ -121,7 +121,7 @@ def render_direct(d: dict) -> str:
     if d.get("requirement") is not None:
         lines[-1:-1] = [f"Required: STI {d['requirement']:g} or more — "
                         f"{'met' if d['meets_requirement'] else 'NOT met'}"]
-    head = ["band Hz", "MTI", f"level {d['band_levels_unit']}", "noise depth"]
+    head = ["band Hz", "MTI", f"level (signal+noise) {d['band_levels_unit']}", "envelope noise depth"]
     nmod = len(d["mtf"][0])
     if nmod == 2:
         head += ["F1 Hz", "MTF1", "F2 Hz", "MTF2"]
