@@ -317,9 +317,10 @@ def _cautions(scene: Scene, listeners, grid: DesignGrid | None, req: float, req_
                    f"predicted STI is {format_index(grid.sti.flat[lo], req)} at x = {x:g} m, y = {y:g} m.")
     echoes = [li for li in listeners if li.echo]
     if echoes:
-        out.append("Likely echoes (" + ECHO_CRITERION + "): " + ", ".join(
-            f"{li.name} ({li.late_arrival[0]}, {li.late_arrival[1]:.0f} ms, {li.late_arrival[2]:+.1f} dB)"
-            for li in echoes) + ". Delay the nearer loudspeakers or reduce the distant ones.")
+        out.append("Likely echoes at " + ", ".join(
+            f"{li.name} ({li.late_arrival[0]} {li.late_arrival[1]:.0f} ms after the first arrival, "
+            f"{li.late_arrival[2]:+.1f} dB)" for li in echoes)
+            + ": delay the nearer loudspeakers or turn down the distant ones. Criterion: " + ECHO_CRITERION + ".")
     if scene.noise_db is None:
         out.append(NO_NOISE)
     if not auditory:

@@ -32,7 +32,7 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 #: Results a command prints as a whole: each carries both lists.
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
              "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track", "DemoResult",
-             "StipaSignalResult", "FullStiSignalsResult", "SurveyResult"}
+             "StipaSignalResult", "FullStiSignalsResult", "SurveyResult", "DesignResult"}
 
 
 # ---------------------------------------------------------------------------
@@ -124,6 +124,11 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "FullStiSignalsResult": lambda: _in_tmp(lambda d: envpredict.write_full_sti_signals(d / "full", 24000)),
         "ReferenceRun": lambda: run_cases(id_contains="decay_T0.3"),
         "SurveyResult": lambda: survey_result,
+        "DesignResult": lambda: envpredict.predict_design(
+            {"room": {"volume_m3": 800, "rt_s": 1.2}, "noise_db": [45] * 7,
+             "sources": [{"name": "LS1", "position_m": [1, 1, 3], "level_1m_dba": 80, "q": 2}],
+             "listeners": [{"name": "P1", "position_m": [6, 4, 1.2]}],
+             "grid": {"x_m": [0, 4], "y_m": [0, 3], "z_m": 1.2, "step_m": 1}}),
     }
 
 
@@ -152,7 +157,8 @@ def _result_types() -> dict[str, type]:
 
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
-         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck"}
+         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "DesignListener",
+         "DesignGrid"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):
