@@ -245,3 +245,17 @@ def test_report_is_rebuilt_from_result_json_and_shows_the_json_numbers(scene_fil
         100 * d["grid"]["share_meeting_requirement"], abs=0.05)
     again = write_report("design", d, tmp_path / "rep2")
     assert 'id="fig-map"' in again.read_text()
+
+
+def test_the_installed_demo_hall_scene(capsys):
+    from envpredict._data import demo_dir
+
+    path = demo_dir() / "design_hall.json"
+    r = predict_design_file(path)
+    assert [li.name for li in r.listeners] == ["row B", "row F", "row K", "kiosk"]
+    assert r.grid.sti.shape == (37, 73)
+    # the hall of the demo site: its reverberation times and noise
+    assert list(r.scene.room.rt_s) == [1.9, 1.8, 1.6, 1.45, 1.3, 1.1, 0.85]
+    assert list(r.scene.noise_db) == [58, 55, 52, 49, 45, 40, 33]
+    code, out, err = run_cli(["design", path], capsys)
+    assert code == 0 and "row F" in out
