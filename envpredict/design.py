@@ -18,14 +18,18 @@ import numpy as np
 from . import cautions as cau
 from . import standards as std
 from .results import jsonable
+from .exceptions import InputError
 from .roommodel import (
-    GridSpec, Room, Scene, Source, critical_distance, level_dba, modulation_transfer, parse_scene, read_scene,
-    source_terms,
+    IMAGE_FS, GridSpec, Room, Scene, Source, critical_distance, image_source_ir, level_dba, modulation_transfer,
+    parse_scene, read_scene, source_terms,
 )
 from .sti import StiResult, check_requirement, check_talker, format_index, sti_from_mtf, sti_many
 
 #: The decimals of grid STI values in the JSON (as for a single STI).
 GRID_DECIMALS: int = 4
+
+#: The engines: the statistical model, or image sources (pyroomacoustics) for the listeners.
+ENGINES: tuple[str, ...] = ("statistical", "image")
 
 METHOD = ("design-stage prediction: statistical model of the MTF (direct sound + diffuse reverberation per "
           "loudspeaker, complex sum with arrival times; Houtgast, Steeneken & Plomp 1980), STI per "
@@ -73,6 +77,7 @@ class DesignListener:
     sti: StiResult
     arrivals: tuple[tuple[str, float, float, float], ...]
     dominant_source: str
+    statistical_sti: float | None = None     # with the image engine: the statistical model's STI
 
     @property
     def late_arrival(self) -> tuple[str, float, float] | None:
@@ -103,6 +108,8 @@ class DesignListener:
                 "source": late[0], "delay_ms": round(late[1], 1), "level_db": round(late[2], 1), "echo": self.echo},
             "echo": self.echo,
         })
+        if self.statistical_sti is not None:
+            d["statistical_sti"] = round(self.statistical_sti, 4)
         return jsonable(d)
 
 
@@ -236,6 +243,7 @@ def predict_design(
     auditory: bool = True,
     requirement: float | None = None,
     progress: Callable[[int, int], None] | None = None,
+    engine: str = "statistical",
 ) -> DesignResult:
     """Predict the STI at the scene's listeners and over its grid.
 
@@ -247,6 +255,10 @@ def predict_design(
     auditory : apply auditory masking and the reception threshold (IEC 60268-16).
     requirement : the STI the system must reach; default
         :data:`~envpredict.standards.VOICE_ALARM_TARGET_STI` (with a caution).
+    engine : "statistical", or "image" to rate the listeners by the indirect method on
+        image-source impulse responses of the rectangular room (pyroomacoustics; needs
+        ``room.dimensions_m``); the grid stays statistical, and each listener also carries
+        the statistical STI for comparison.
 
     Returns
     -------
@@ -268,10 +280,15 @@ def predict_design(
     talker = check_talker(talker)
     req_given = requirement is not None
     req = check_requirement(requirement) if req_given else std.VOICE_ALARM_TARGET_STI
+    engine = _check_engine(engine)
     if not isinstance(scene, Scene):
         scene = parse_scene(scene, talker=talker)
     listeners = tuple(_listener(scene, n, p, talker=talker, auditory=auditory, requirement=req)
                       for n, p in scene.listeners)
+    image_cautions: tuple[str, ...] = ()
+    if engine == "image":
+        listeners, image_cautions = _image_listeners(scene, listeners, talker=talker, auditory=auditory,
+                                                     requirement=req)
     grid = None
     if scene.grid is not None:
         g = scene.grid
@@ -280,8 +297,8 @@ def predict_design(
                           requirement=req)
     return DesignResult(scene=scene, listeners=listeners, grid=grid, talker=talker, auditory=bool(auditory),
                         requirement=req, requirement_given=req_given,
-                        cautions=_cautions(scene, listeners, grid, req, req_given, auditory),
-                        notes=_notes(scene))
+                        cautions=_cautions(scene, listeners, grid, req, req_given, auditory) + image_cautions,
+                        notes=_notes(scene) + (IMAGE_NOTES if engine == "image" else ()), engine=engine)
 
 
 def predict_design_file(
@@ -291,14 +308,62 @@ def predict_design_file(
     auditory: bool = True,
     requirement: float | None = None,
     progress: Callable[[int, int], None] | None = None,
+    engine: str = "statistical",
 ) -> DesignResult:
     """:func:`predict_design` of a scene file (JSON, or TOML with the suffix ``.toml``);
     every option is checked before the file is read."""
     talker = check_talker(talker)
+    engine = _check_engine(engine)
     if requirement is not None:
         check_requirement(requirement)
     return predict_design(read_scene(path, talker=talker), talker=talker, auditory=auditory,
-                          requirement=requirement, progress=progress)
+                          requirement=requirement, progress=progress, engine=engine)
+
+
+def _check_engine(engine: str) -> str:
+    e = str(engine).strip().lower()
+    if e not in ENGINES:
+        raise InputError(f"unknown engine '{engine}'", f"use one of: {', '.join(ENGINES)}")
+    return e
+
+
+IMAGE_NOTES = (
+    "Image engine: each listener's impulse response is built by the image-source method of pyroomacoustics "
+    "(Allen & Berkley 1979) in the rectangular room of room.dimensions_m, with a uniform absorption coefficient "
+    "per band from Eyring's formula inverted, alpha = 1 - exp(-0.161 V / (S T)); loudspeakers are omnidirectional "
+    "point sources there (q and aim are not modelled); the response is rated by the indirect method (envpredict "
+    "ir) with the band speech levels it carries. The grid is the statistical model's.",
+)
+
+
+def _image_listeners(scene: Scene, listeners: tuple[DesignListener, ...], *, talker: str, auditory: bool,
+                     requirement: float) -> tuple[tuple[DesignListener, ...], tuple[str, ...]]:
+    """The listeners rated by the indirect method on image-source responses (the statistical
+    STI kept beside each), and the cautions of those responses."""
+    from . import cautions as cau_mod
+    from .indirect import sti_from_ir
+
+    lo = std.NOISE_LEVEL_RANGE_DB[0]
+    out, extra = [], []
+    generic = {cau_mod.LIFE_SAFETY, cau_mod.NO_NOISE, cau_mod.NO_AUDITORY}
+    for li in listeners:
+        ir, speech_db = image_source_ir(scene, li.position_m)
+        speech_db = np.where(np.isfinite(speech_db), np.maximum(speech_db, lo), lo)
+        res = sti_from_ir(0.5 * ir / np.max(np.abs(ir)), IMAGE_FS, noise_db=scene.noise_db, speech_db=speech_db,
+                          talker=talker, auditory=auditory, requirement=requirement)
+        for c in res.cautions:
+            if c not in generic and not c.startswith("STI ") and f"{li.name}: {c}" not in extra:
+                extra.append(f"{li.name}: {c}")
+        out.append(replace(li, sti=res.sti, statistical_sti=li.sti.sti))
+    diffs = [li.sti.sti - li.statistical_sti for li in out]
+    k = int(np.argmax(np.abs(diffs))) if diffs else 0
+    head = []
+    if diffs:
+        head.append(f"Image engine: the image-source STI differs from the statistical model's by {diffs[k]:+.3f} at "
+                    f"{out[k].name} (the largest difference of {len(out)} listener(s)). In a room with specular walls "
+                    "only, the late decay of the image sources is not diffuse (it lasts longer than Eyring's T in a "
+                    "shoebox), and the loudspeakers are omnidirectional there; see the README.")
+    return tuple(out), tuple(head + extra)
 
 
 def _cautions(scene: Scene, listeners, grid: DesignGrid | None, req: float, req_given: bool,

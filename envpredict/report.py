@@ -1249,10 +1249,15 @@ def _page_design(d: Mapping) -> Page:
                      txt("—" if late is None else f"{late['source']}: {late['delay_ms']:.0f} ms, "
                          f"{late['level_db']:+.1f} dB"),
                      Cell("ECHO", cls="fail") if li.get("echo") else txt("no")])
+    head = ["listener", "position, m", "STI", "band", f"meets {req:g}", "speech, dB(A)", "dominant source",
+            "strongest late arrival", "echo"]
+    if any(li.get("statistical_sti") is not None for li in lis):
+        head[2] = "STI (image engine)"
+        head.insert(3, "STI (statistical)")
+        for i, row in enumerate(rows):
+            row.insert(3, num(d, f"listeners.{i}.statistical_sti", ".2f"))
     if rows:
-        p.tables.append(Table("Listener positions", ["listener", "position, m", "STI", "band", f"meets {req:g}",
-                                                     "speech, dB(A)", "dominant source", "strongest late arrival",
-                                                     "echo"], rows, "Echo criterion: " + str(d.get("echo_criterion"))))
+        p.tables.append(Table("Listener positions", head, rows, "Echo criterion: " + str(d.get("echo_criterion"))))
     rows = []
     for i, s in enumerate(d["sources"]):
         rows.append([txt(s["name"]), txt(", ".join(f"{v:g}" for v in s["position_m"])),

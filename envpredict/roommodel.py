@@ -605,3 +605,86 @@ def level_dba(band_db: np.ndarray) -> float:
     """A-weighted sum of seven octave-band levels (-inf bands count as silent)."""
     b = np.asarray(band_db, dtype=float)
     return a_weighted_level(np.where(np.isfinite(b), b, -400.0))
+
+
+# ---------------------------------------------------------------------------
+# The image-source cross-check (pyroomacoustics, optional)
+# ---------------------------------------------------------------------------
+
+#: Sample rate of the image-source impulse responses, Hz (the 8 kHz octave needs more than
+#: 22.6 kHz; judgement).
+IMAGE_FS: int = 48000
+
+#: Highest reflection order of the image sources (judgement: 40 orders hold about 270 000
+#: image sources per loudspeaker, a few seconds; responses cut earlier get the ir path's
+#: truncation caution).
+MAX_IMAGE_ORDER: int = 40
+
+#: Decay the image-source response should cover, dB (the range T30 needs, see
+#: :data:`envpredict.standards.T30_NEEDED_RANGE_DB`).
+IMAGE_DECAY_DB: float = std.T30_NEEDED_RANGE_DB
+
+
+def image_absorption(room: Room) -> np.ndarray:
+    """Uniform energy absorption coefficient per band for the image sources: the mean
+    coefficient of the surfaces by inverting Eyring's formula, alpha = 1 - exp(-0.161 V / (S T)),
+    so that the image-source decay (reflections weakened by (1 - alpha) each) has the room's T."""
+    return 1.0 - np.exp(-std.SABINE_CONSTANT * room.volume_m3 / (room.surface_m2 * room.rt_s))
+
+
+def image_source_ir(scene: Scene, point: np.ndarray, fs: int = IMAGE_FS) -> tuple[np.ndarray, np.ndarray]:
+    """Impulse response at ``point`` of all loudspeakers in the rectangular room, by the image-
+    source method of pyroomacoustics, and the octave-band speech levels it carries (dB SPL).
+
+    Each loudspeaker is an omnidirectional point source (its ``q`` and aim are not modelled);
+    its response is split into octave bands (:func:`envpredict.bands.octave_bands`), scaled so
+    that its direct sound at 1 m has the loudspeaker's level and delayed by its electronic delay; the bands of all
+    loudspeakers are summed. Walls absorb uniformly (:func:`image_absorption`).
+
+    References
+    ----------
+    J. B. Allen, D. A. Berkley, "Image method for efficiently simulating small-room acoustics",
+    JASA 65 (1979) 943-950; R. Scheibler et al., "Pyroomacoustics", ICASSP 2018.
+    """
+    try:
+        import pyroomacoustics as pra
+    except ImportError:
+        raise InputError("the image engine needs pyroomacoustics", "install it: pip install '.[rooms]'") from None
+    from .bands import octave_bands
+
+    room = scene.room
+    if room.dimensions_m is None:
+        raise InputError("the image engine needs the room's dimensions", "give room.dimensions_m [L, W, H]")
+    alpha = image_absorption(room)
+    t_need = float(room.rt_s.max()) * IMAGE_DECAY_DB / 60.0
+    order = int(min(MAX_IMAGE_ORDER, math.ceil(std.SPEED_OF_SOUND_M_S * t_need / min(room.dimensions_m))))
+    mat = pra.Material({"description": "uniform", "coeffs": [float(a) for a in alpha],
+                        "center_freqs": [float(f) for f in std.OCTAVE_BANDS_HZ]})
+    shoebox = pra.ShoeBox(list(room.dimensions_m), fs=fs, materials=mat, max_order=order, air_absorption=False)
+    shoebox.set_sound_speed(std.SPEED_OF_SOUND_M_S)
+    for s in scene.sources:
+        shoebox.add_source(list(s.position_m))
+    shoebox.add_microphone(np.asarray(point, dtype=float).reshape(3, 1))
+    shoebox.compute_rir()
+    rirs = shoebox.rir[0]
+    n = max(len(h) + int(round(s.delay_ms * fs / 1000.0)) for h, s in zip(rirs, scene.sources))
+    bands = np.zeros((NB, n))
+    # an octave band passes only its share of a unit impulse's energy: scale each band so that
+    # the direct sound keeps its full level at 1 m in every band
+    unit = np.zeros(n)
+    unit[n // 2] = 1.0
+    share = np.sqrt(np.sum(octave_bands(unit, fs) ** 2, axis=1))
+    # pyroomacoustics' amplitude convention (1/r or 1/(4 pi r), by version): measured on its
+    # free-field response at 1 m, so that the direct sound at 1 m has the source's level
+    free = pra.ShoeBox([4.0, 4.0, 4.0], fs=fs, max_order=0)
+    free.add_source([1.5, 2.0, 2.0])
+    free.add_microphone(np.array([[2.5], [2.0], [2.0]]))
+    free.compute_rir()
+    unit_1m = 1.0 / np.sqrt(np.sum(np.asarray(free.rir[0][0], dtype=float) ** 2))
+    for h, s in zip(rirs, scene.sources):
+        k0 = int(round(s.delay_ms * fs / 1000.0))
+        gain = unit_1m * 10.0 ** (np.where(np.isfinite(s.level_1m_db), s.level_1m_db, -400.0) / 20.0) / share
+        bands[:, k0:k0 + len(h)] += gain[:, None] * octave_bands(np.asarray(h, dtype=float), fs)
+    with np.errstate(divide="ignore"):
+        speech_db = 10.0 * np.log10(np.sum(bands ** 2, axis=1))
+    return bands.sum(axis=0), speech_db

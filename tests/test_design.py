@@ -186,7 +186,7 @@ def test_cli_json_is_to_dict_plus_inputs(scene_file, capsys):
     assert code == 0, err
     d = json.loads(out)
     assert d.pop("inputs") == {"scene": str(scene_file), "talker": "male", "auditory_corrections": True,
-                               "require": 0.45}
+                               "require": 0.45, "engine": "statistical"}
     assert d == predict_design_file(scene_file, requirement=0.45).to_dict()
 
 
@@ -222,7 +222,7 @@ def test_cli_bad_scene_one_line_exit_2_nothing_written(tmp_path, capsys, change,
     assert out == "" and not (tmp_path / "o.json").exists() and not (tmp_path / "rep").exists()
 
 
-@pytest.mark.parametrize("args", [["--talker", "child"], ["--require", "1.5"]])
+@pytest.mark.parametrize("args", [["--talker", "child"], ["--require", "1.5"], ["--engine", "rays"]])
 def test_cli_bad_options(scene_file, capsys, args):
     code, out, err = run_cli(["design", scene_file, *args], capsys)
     assert code == 2 and err.startswith("error: ") and out == ""
@@ -259,3 +259,37 @@ def test_the_installed_demo_hall_scene(capsys):
     assert list(r.scene.noise_db) == [58, 55, 52, 49, 45, 40, 33]
     code, out, err = run_cli(["design", path], capsys)
     assert code == 0 and "row F" in out
+
+
+# ---------------------------------------------------------------------------
+# the image engine (pyroomacoustics) against the statistical model
+# ---------------------------------------------------------------------------
+
+#: How far the two engines may differ in a diffuse-ish shoebox with uniform absorption (stated in
+#: the README): the image sources' specular decay is not diffuse (its late part lasts longer than
+#: Eyring's T), so a few hundredths either way are expected.
+ENGINE_TOLERANCE = 0.05
+
+
+@pytest.mark.parametrize("T, listener", [(0.45, [7, 5, 1.2]), (1.0, [15, 9, 1.2]), (1.0, [5, 4, 1.2])])
+def test_image_engine_agrees_with_the_statistical_model_in_a_shoebox(T, listener):
+    pytest.importorskip("pyroomacoustics")
+    dims = [10, 7, 3.5] if T < 0.5 else [20, 12, 6]
+    d = {"room": {"dimensions_m": dims, "rt_s": T}, "noise_db": [45] * 7,
+         "sources": [{"position_m": [2, 2, 2] if T < 0.5 else [3, 3, 3], "level_1m_db": 80}],
+         "listeners": [{"name": "P", "position_m": listener}]}
+    r = predict_design(d, engine="image")
+    li = r.listeners[0]
+    assert r.engine == "image" and li.statistical_sti == pytest.approx(predict_design(d).listeners[0].sti.sti)
+    assert li.sti.sti == pytest.approx(li.statistical_sti, abs=ENGINE_TOLERANCE)
+    # the image response carries the same speech level (direct + reverberant energy) within 2 dB
+    assert li.sti.speech_db == pytest.approx(predict_design(d).listeners[0].sti.speech_db, abs=2.0)
+    assert any(c.startswith("Image engine:") for c in r.cautions)
+
+
+def test_image_engine_needs_the_rooms_dimensions():
+    pytest.importorskip("pyroomacoustics")
+    d = {"room": {"volume_m3": 500, "rt_s": 1.0}, "sources": [{"position_m": [0, 0, 3], "level_1m_db": 80}],
+         "listeners": [{"position_m": [4, 0, 1.2]}]}
+    with pytest.raises(envpredict.InputError, match="needs the room's dimensions"):
+        predict_design(d, engine="image")

@@ -18,6 +18,9 @@ SCENE_HELP = ("Scene file (JSON, or TOML with the suffix .toml): room (volume_m3
 TALKER_HELP = "Band weights, and the speech spectrum of sources given in dB(A): male or female (IEC 60268-16)."
 AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textbook form, for comparison with "
                  "published formulas; not for compliance work).")
+ENGINE_HELP = ("statistical (default), or image: rate the listeners by the indirect method on image-source impulse "
+               "responses of the rectangular room (pyroomacoustics, pip install '.[rooms]'; needs room.dimensions_m), "
+               "with the statistical STI beside each. The grid stays statistical.")
 REQUIRE_HELP = (f"The STI the system must reach (set by the local code). Default {std.VOICE_ALARM_TARGET_STI:.2f}, "
                 "the value commonly required of voice-alarm systems (with a caution).")
 
@@ -33,7 +36,7 @@ def render_design(d: dict, source: str) -> str:
         f"Room: {room['volume_m3']:g} m3, RT {', '.join(f'{v:g}' for v in room['rt_s'])} s "
         f"(125 Hz - 8 kHz, {room['rt_from']}); {len(d['sources'])} loudspeaker(s); talker {d['talker']}; "
         f"auditory corrections {'on' if d['auditory_corrections'] else 'off'}",
-        f"Requirement: STI {req:g}{'' if d['requirement_given'] else ' (default)'}",
+        f"Requirement: STI {req:g}{'' if d['requirement_given'] else ' (default)'}   engine: {d['engine']}",
         "",
     ]
     if d["listeners"]:
@@ -44,8 +47,13 @@ def render_design(d: dict, source: str) -> str:
                          li["rating"], "yes" if li["meets_requirement"] else "NO", fmt(li["speech_level_dba"], ".1f"),
                          li["dominant_source"],
                          _late(late)])
-        lines.append(table(rows, ["listener", "position m", "STI", "band", "meets", "speech dB(A)", "dominant",
-                                  "strongest late arrival"]))
+        head = ["listener", "position m", "STI", "band", "meets", "speech dB(A)", "dominant", "strongest late arrival"]
+        if d.get("engine") == "image":
+            head[2] = "STI (image)"
+            head.insert(3, "statistical")
+            for row, li in zip(rows, d["listeners"]):
+                row.insert(3, fmt(li.get("statistical_sti")))
+        lines.append(table(rows, head))
         lines.append("")
     g = d.get("grid")
     if g:
@@ -73,6 +81,7 @@ def design_command(
     talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP),
     no_auditory: bool = typer.Option(False, "--no-auditory-corrections", help=AUDITORY_HELP),
     require: Optional[float] = typer.Option(None, "--require", help=REQUIRE_HELP, show_default=False),
+    engine: str = typer.Option("statistical", "--engine", help=ENGINE_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
@@ -84,9 +93,9 @@ def design_command(
     check_outputs(out=out, report=report, inputs=[scene])
     with Progress("predicting the grid", None, quiet=as_json) as prog:
         result = predict_design_file(scene, talker=talker, auditory=not no_auditory, requirement=require,
-                                     progress=prog)
+                                     progress=prog, engine=engine)
     d = result.to_dict()
     d["inputs"] = {"scene": str(scene), "talker": talker, "auditory_corrections": not no_auditory,
-                   "require": require}
+                   "require": require, "engine": engine}
     write_report_if(report, "design", d, as_json=as_json, title=f"Design prediction: {d['title'] or scene.name}")
     emit(d, lambda: render_design(d, str(scene)), as_json, out)
