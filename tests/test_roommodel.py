@@ -18,6 +18,7 @@ import json
 
 import numpy as np
 import pytest
+from hypothesis import given, settings, strategies as st
 from scipy.integrate import quad
 
 from envpredict.exceptions import InputError
@@ -310,3 +311,41 @@ def test_scene_files(tmp_path):
     t.write_text('[room]\nvolume_m3 = 2000\nrt_s = 1.5\n[[sources]]\nposition_m = [0, 0, 3]\nlevel_1m_dba = 80\n'
                  '[[listeners]]\nposition_m = [5, 0, 1.2]\n')
     assert read_scene(t).room.rt_s[0] == 1.5
+
+
+# ---------------------------------------------------------------------------
+# invariants over random scenes (hypothesis)
+# ---------------------------------------------------------------------------
+
+coord = st.floats(-30, 30, allow_nan=False)
+source_st = st.fixed_dictionaries({
+    "position_m": st.tuples(coord, coord, st.floats(2, 8)).map(list),
+    "level_1m_db": st.lists(st.floats(60, 100), min_size=7, max_size=7),
+    "q": st.floats(1, 20), "delay_ms": st.floats(0, 200)})
+scene_st = st.fixed_dictionaries({
+    "room": st.fixed_dictionaries({"volume_m3": st.floats(100, 50000),
+                                   "rt_s": st.lists(st.floats(0.2, 5), min_size=7, max_size=7)}),
+    "sources": st.lists(source_st, min_size=1, max_size=4),
+    "listeners": st.just([{"position_m": [0.5, 0.5, 1.2]}])})
+
+
+@settings(max_examples=60, deadline=None)
+@given(scene_st)
+def test_mtf_lies_in_0_1_and_never_exceeds_the_reverberation_alone_of_one_source(d):
+    mtf, total = model_mtf(d)
+    assert np.all((mtf >= 0) & (mtf <= 1 + 1e-12)) and np.all(total > 0)
+    if len(d["sources"]) == 1:     # one arrival: at least the diffuse part's own m (the direct part only helps)
+        T = np.array(d["room"]["rt_s"])
+        floor = (1 + (2 * np.pi * F[None, :] * T[:, None] / 13.8) ** 2) ** -0.5
+        assert np.all(mtf[0] >= floor - 1e-12)
+
+
+@settings(max_examples=40, deadline=None)
+@given(scene_st, st.floats(-20, 20))
+def test_without_noise_a_common_gain_leaves_the_mtf_unchanged(d, gain_db):
+    mtf, total = model_mtf(d)
+    for s in d["sources"]:
+        s["level_1m_db"] = [v + gain_db for v in s["level_1m_db"]]
+    mtf2, total2 = model_mtf(d)
+    assert np.allclose(mtf2, mtf, atol=1e-12)
+    assert np.allclose(10 * np.log10(total2 / total), gain_db, atol=1e-9)
