@@ -49,6 +49,8 @@ Corpora
     run_batch, read_results, compare_conditions, compare_conditions_file
 Site surveys
     run_survey, SurveyResult, summarise_survey, parse_requirement
+Design stage (prediction from a room model)
+    predict_design, predict_design_file, DesignResult, read_scene
 Reports
     write_report
 Demo
@@ -144,6 +146,11 @@ _API: dict[str, str] = {
     "read_results": "envpredict.tables",
     "compare_conditions": "envpredict.stats",
     "compare_conditions_file": "envpredict.stats",
+    # design stage: prediction from a room model
+    "predict_design": "envpredict.design",
+    "predict_design_file": "envpredict.design",
+    "DesignResult": "envpredict.design",
+    "read_scene": "envpredict.roommodel",
     # reports
     "write_report": "envpredict.report",
     # the bundled demo site

@@ -11,7 +11,8 @@ Case file format
                 response), ``"sweep"`` (the same figures of the impulse response recovered
                 from a recorded exponential sweep), ``"stipa"``, ``"fullsti"`` (direct method), ``"stoi"``,
                 ``"estoi"``, ``"ssti"`` (speech-based STI of a pair) or ``"mapping"``
-                (score-mapping fit); a file without it is an ``"ir"`` case
+                (score-mapping fit) or ``"design"`` (design-stage prediction of a scene's
+                listeners); a file without it is an ``"ir"`` case
 ``title``       one line for people
 ``source``      where the expected values come from (formula, standard, library)
 ``input``       what to analyse:
@@ -25,16 +26,18 @@ Case file format
                 * ``sweep``, ``stipa``, ``fullsti``, ``stoi``, ``estoi``, ``ssti``: a signal recipe
                   (``reference_cases/recipes.py``: plain numpy/scipy, not the product's
                   generator ``envpredict.signals``);
-                * ``mapping``: the data rows ``{"index", "correct", "trials", "shape"}``.
+                * ``mapping``: the data rows ``{"index", "correct", "trials", "shape"}``;
+                * ``design``: the scene (as in a scene file).
 ``settings``    ``ir``, ``sweep``: ``noise_db`` (7 values or null), ``speech_level_dba``, ``talker``,
-                ``auditory``; ``stipa``/``fullsti``: ``talker``
+                ``auditory``; ``stipa``/``fullsti``: ``talker``; ``design``: ``talker``, ``auditory``
 ``expected``    per quantity ``{"value": number or list, "abs_tol" or "rel_tol"}``;
                 ``ir`` quantities: ``sti``, ``rating``, ``mti``, ``t30``, ``t20``, ``edt``,
                 ``c50``, ``c80``, ``d50``, ``mtf_500_1k`` (mean MTF of the 500 Hz and 1 kHz
                 bands at the 14 frequencies, before noise corrections); ``sweep``: those
                 and ``distortion_db`` (7 values); ``stipa``,
                 ``fullsti``: ``sti``; ``stoi``: ``stoi``; ``estoi``: ``estoi``; ``ssti``:
-                ``ssti_regression``; ``mapping``: ``a``, ``b``, ``se_a``, ``se_b``.
+                ``ssti_regression``; ``mapping``: ``a``, ``b``, ``se_a``, ``se_b``; ``design``:
+                ``sti`` (one value per listener, or one number for one listener).
 """
 
 from __future__ import annotations
@@ -288,6 +291,15 @@ def _mapping_quantities(case: dict, folder: Path | None) -> dict:
     return {"a": m.a, "b": m.b, "se_a": se[0], "se_b": se[1]}
 
 
+def _design_quantities(case: dict, folder: Path | None) -> dict:
+    import envpredict
+
+    s = case.get("settings", {})
+    r = envpredict.predict_design(case["input"], talker=s.get("talker", "male"), auditory=s.get("auditory", True))
+    sti = [li.sti.sti for li in r.listeners]
+    return {"sti": sti[0] if len(sti) == 1 else sti}
+
+
 #: method name -> function returning the computed quantities of a case (a value, or a
 #: callable for a quantity that is computed only when a case asks for it)
 METHODS = {
@@ -299,6 +311,7 @@ METHODS = {
     "estoi": _estoi_quantities,
     "ssti": _ssti_quantities,
     "mapping": _mapping_quantities,
+    "design": _design_quantities,
 }
 
 

@@ -42,7 +42,7 @@ from . import checks
 from . import standards as std
 from .exceptions import InputError
 
-KINDS: tuple[str, ...] = ("ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey")
+KINDS: tuple[str, ...] = ("ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey", "design")
 
 KIND_TITLES: dict[str, str] = {
     "ir": "STI and decay figures from an impulse response",
@@ -53,6 +53,7 @@ KIND_TITLES: dict[str, str] = {
     "sweep": "Predicted score against SNR",
     "inspect": "Envelope, periodicity and fine structure of a recording",
     "survey": "Site survey: STI per position and zone",
+    "design": "Design prediction: STI of a room and its loudspeakers",
 }
 
 # ---------------------------------------------------------------------------
@@ -1156,10 +1157,150 @@ def _page_survey(d: Mapping) -> Page:
     return p
 
 
+# ---------------------------------------------------------------------------
+# design
+# ---------------------------------------------------------------------------
+
+def _design_map(d: Mapping) -> Figure:
+    """The STI over the plan (raster of the grid in the colours of the qualification bands),
+    the requirement's contour, the loudspeakers (triangles, aim as a line) and the listeners."""
+    from matplotlib.colors import BoundaryNorm, ListedColormap
+
+    from .sti import format_index
+
+    new = _mpl()
+    req = float(d["requirement"])
+    g = d.get("grid")
+    edges = [0.0] + [lo for _lab, lo, _n in reversed(std.QUALIFICATION_BANDS) if lo > 0] + [1.0]
+    labels = [lab for lab, _lo, _n in reversed(std.QUALIFICATION_BANDS)]
+    ramp = _heat_cmap()
+    cmap = ListedColormap([ramp(0.08 + 0.9 * i / (len(labels) - 1)) for i in range(len(labels))])
+    norm = BoundaryNorm(edges, cmap.N)
+    room = d.get("room") or {}
+    dims = room.get("dimensions_m")
+    pts = [s["position_m"] for s in d["sources"]] + [li["position_m"] for li in d["listeners"]]
+    xs = [p[0] for p in pts] + ([g["x_m"][0], g["x_m"][-1]] if g else []) + ([0, dims[0]] if dims else [])
+    ys = [p[1] for p in pts] + ([g["y_m"][0], g["y_m"][-1]] if g else []) + ([0, dims[1]] if dims else [])
+    w, h = max(xs) - min(xs) or 1.0, max(ys) - min(ys) or 1.0
+    fig = new(10.0, max(3.6, min(9.0, 10.0 * h / w + 1.2)))
+    ax = fig.add_subplot(111)
+    ax.grid(False)
+    im = None
+    if g:
+        z = _arr(g["sti"])
+        x, y = _arr(g["x_m"]), _arr(g["y_m"])
+        step = float(g["step_m"])
+        im = ax.imshow(z, cmap=cmap, norm=norm, origin="lower", interpolation="nearest",
+                       extent=(x[0] - step / 2, x[-1] + step / 2, y[0] - step / 2, y[-1] + step / 2), zorder=1)
+        if z.shape[0] > 1 and z.shape[1] > 1 and np.nanmin(z) < req <= np.nanmax(z):
+            ax.contour(x, y, z, levels=[req], colors=[PAPER], linewidths=3.2, zorder=2)
+            ax.contour(x, y, z, levels=[req], colors=[INK], linewidths=1.5, linestyles="--", zorder=3)
+        lo = g["min_at_m"]
+        ax.plot([lo[0]], [lo[1]], "x", color=BRICK, ms=10, mew=2.2, zorder=5)
+        ax.annotate(f"min {format_index(g['min_sti'], req)}", (lo[0], lo[1]), xytext=(6, -12),
+                    textcoords="offset points", fontsize=8.5, color=BRICK, fontweight="bold", zorder=6)
+    if dims:
+        ax.add_patch(_rect((0, 0), dims[0], dims[1], "none"))
+        ax.patches[-1].set_edgecolor(INK)
+        ax.patches[-1].set_linewidth(1.4)
+        ax.patches[-1].set_zorder(4)
+    for s in d["sources"]:
+        px, py = s["position_m"][0], s["position_m"][1]
+        if s.get("aim_m"):
+            ax.plot([px, s["aim_m"][0]], [py, s["aim_m"][1]], color=INK, lw=1.0, zorder=5)
+        ax.plot([px], [py], "^", color=TEAL, mec="white", mew=1.2, ms=11, zorder=6)
+        ax.annotate(s["name"], (px, py), xytext=(7, 5), textcoords="offset points", fontsize=8.5, color=INK,
+                    fontweight="bold", zorder=7)
+    for li in d["listeners"]:
+        px, py = li["position_m"][0], li["position_m"][1]
+        ok = li["sti"] >= req
+        ax.plot([px], [py], "o", color=TEAL if ok else BRICK, mec=INK, mew=1.0, ms=9, zorder=6)
+        ax.annotate(f"{li['name']} {format_index(li['sti'], req)}", (px, py), xytext=(7, -11),
+                    textcoords="offset points", fontsize=8.5, color=INK, zorder=7,
+                    bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.8})
+    ax.set_aspect("equal")
+    pad = 0.03 * max(w, h)
+    ax.set_xlim(min(xs) - pad, max(xs) + pad)
+    ax.set_ylim(min(ys) - pad, max(ys) + pad)
+    ax.set_xlabel("x, m")
+    ax.set_ylabel("y, m")
+    if im is not None:
+        cb = fig.colorbar(im, ax=ax, fraction=0.035, pad=0.02, ticks=[(a + b) / 2 for a, b in zip(edges, edges[1:])],
+                          spacing="uniform")
+        cb.ax.set_yticklabels([f"{lab}  {a:.2f}" for lab, a in zip(labels, edges)], fontsize=8)
+        cb.ax.axhline(req, color=INK, lw=2.0, ls="--")
+        cb.set_label("predicted STI (qualification band and its lower edge)")
+        ax.set_title(f"Predicted STI at z = {g['z_m']:g} m: {100 * g['share_meeting_requirement']:.1f} % "
+                     f"at or above {req:g}")
+    else:
+        ax.set_title("Loudspeakers and listener positions")
+    cap = ("Plan of the predicted STI: grid cells coloured by qualification band (IEC 60268-16 Annex F), the dashed "
+           f"line is the requirement {req:g}, triangles are loudspeakers (line: aim), dots are listener positions "
+           "(teal: requirement met; brick: not met), the cross is the lowest grid value.")
+    return Figure("map", cap, _png(fig))
+
+
+def _page_design(d: Mapping) -> Page:
+    from .sti import format_index
+
+    req = float(d["requirement"])
+    p = Page()
+    g = d.get("grid")
+    if g:
+        p.headline.append((f"grid at or above {req:g}", Cell(f"{100 * g['share_meeting_requirement']:.1f} %",
+                                                             "grid.share_meeting_requirement")))
+        p.headline.append(("lowest grid STI", Cell(format_index(g["min_sti"], req), "grid.min_sti")))
+        p.headline.append(("mean grid STI", num(d, "grid.mean_sti", ".2f")))
+    lis = d.get("listeners") or []
+    if lis:
+        met = sum(1 for li in lis if li["sti"] >= req)
+        p.headline.append(("listeners meeting",
+                           Cell(f"{met} of {len(lis)}", cls="pass" if met == len(lis) else "fail")))
+    p.headline.append(("engine", txt(d.get("engine"))))
+    p.figures.append(_design_map(d))
+    rows = []
+    for i, li in enumerate(lis):
+        late = li.get("late_arrival")
+        ok = li["sti"] >= req
+        rows.append([txt(li["name"]), txt(", ".join(f"{v:g}" for v in li["position_m"])),
+                     Cell(format_index(li["sti"], req), f"listeners.{i}.sti"), txt(li["rating"]),
+                     Cell("yes" if ok else "NO", cls="pass" if ok else "fail"),
+                     num(d, f"listeners.{i}.speech_level_dba", ".1f"), txt(li["dominant_source"]),
+                     txt("—" if late is None else f"{late['source']}: {late['delay_ms']:.0f} ms, "
+                         f"{late['level_db']:+.1f} dB"),
+                     Cell("ECHO", cls="fail") if li.get("echo") else txt("no")])
+    head = ["listener", "position, m", "STI", "band", f"meets {req:g}", "speech, dB(A)", "dominant source",
+            "strongest late arrival", "echo"]
+    if any(li.get("statistical_sti") is not None for li in lis):
+        head[2] = "STI (image engine)"
+        head.insert(3, "STI (statistical)")
+        for i, row in enumerate(rows):
+            row.insert(3, num(d, f"listeners.{i}.statistical_sti", ".2f"))
+    if rows:
+        p.tables.append(Table("Listener positions", head, rows, "Echo criterion: " + str(d.get("echo_criterion"))))
+    rows = []
+    for i, s in enumerate(d["sources"]):
+        rows.append([txt(s["name"]), txt(", ".join(f"{v:g}" for v in s["position_m"])),
+                     txt("—" if not s.get("aim_m") else ", ".join(f"{v:g}" for v in s["aim_m"])),
+                     num(d, f"sources.{i}.level_1m_dba", ".1f"), num(d, f"sources.{i}.q.3", ".1f"),
+                     num(d, f"sources.{i}.critical_distance_m.3", ".1f"), num(d, f"sources.{i}.delay_ms", ".1f"),
+                     txt(s.get("pattern"))])
+    p.tables.append(Table("Loudspeakers", ["name", "position, m", "aim, m", "level at 1 m, dB(A)", "Q at 1 kHz",
+                                           "critical distance at 1 kHz, m", "delay, ms", "directivity"], rows))
+    room = d.get("room") or {}
+    bands = list(d.get("bands_hz", std.OCTAVE_BANDS_HZ))
+    rows = [[Cell(_band_label(fc)), num(d, f"room.rt_s.{k}", ".2f"), num(d, f"room.absorption_area_m2.{k}", ".0f"),
+             num(d, f"noise_db.{k}", ".1f") if d.get("noise_db") else Cell("—")] for k, fc in enumerate(bands)]
+    p.tables.append(Table(f"Room: {room.get('volume_m3', 0):g} m3 (reverberation time {room.get('rt_from')}, "
+                          f"{room.get('field')} reverberant field)",
+                          ["band", "RT, s", "absorption area, m2", "noise, dB SPL"], rows))
+    p.notes += [str(n) for n in d.get("notes") or []]
+    return p
+
 
 _PAGES: dict[str, Callable[[Mapping], Page]] = {
     "ir": _page_ir, "stipa": _page_stipa, "fullsti": _page_stipa, "pair": _page_pair, "compare": _page_compare,
-    "sweep": _page_sweep, "inspect": _page_inspect, "survey": _page_survey,
+    "sweep": _page_sweep, "inspect": _page_inspect, "survey": _page_survey, "design": _page_design,
 }
 
 

@@ -523,3 +523,49 @@ TEST_SIGNAL_SEED: int = 0
 PAIR_MAX_DELAY_S: float = 1.0
 #: Audio per processing chunk of the pair analysis, s (memory only; judgement).
 PAIR_CHUNK_S: float = 60.0
+
+# ---------------------------------------------------------------------------
+# Design-stage prediction: the statistical room model (envpredict.roommodel)
+# ---------------------------------------------------------------------------
+
+#: Sabine's constant, s/m: T = SABINE_CONSTANT * V / A with V in m3 and A in m2
+#: (24 ln 10 / c at c = 343 m/s is 0.1611; printed as 0.161). Source: W. C. Sabine,
+#: Collected Papers on Acoustics (1922); the metric value as in ISO 3382-2:2008 and
+#: every room-acoustics text (e.g. H. Kuttruff, Room Acoustics, 5th ed. 2009, eq. 5.24;
+#: from memory).
+SABINE_CONSTANT: float = 0.161
+
+#: Speed of sound used for arrival times, m/s (air at about 20 degC; common practice).
+SPEED_OF_SOUND_M_S: float = 343.0
+
+#: The divisor of the reverberant term of the MTF: an exponential decay with
+#: reverberation time T transfers m(F) = [1 + (2 pi F T / 13.8)^2]^(-1/2) (13.8 =
+#: 60 / (10 lg e), as printed). Source: T. Houtgast, H. J. M. Steeneken, R. Plomp,
+#: "Predicting speech intelligibility in rooms from the modulation transfer function.
+#: I. General room acoustics", Acustica 46 (1980) 60-72; IEC 60268-16:2011, Annex
+#: (prediction by statistical methods; from memory). Same constant as
+#: DECAY_TAIL_DIVISOR (ISO 3382-1), named apart for its own source.
+MTF_DECAY_DIVISOR: float = 13.8
+
+#: Revised theory of the reflected sound level: the reverberant energy of a source heard
+#: at distance r is the classic diffuse level times exp(-13.82 r / (c T)) (the decay has
+#: run for r/c before the direct sound arrives). Source: M. Barron, L.-J. Lee, "Energy
+#: relations in concert auditoriums. I", JASA 84 (1988) 618-628 (from memory).
+BARRON_DECAY_CONSTANT: float = 13.82
+
+#: An arrival later than this after the first arrival at a listener, and not more than
+#: ECHO_LEVEL_DB below it, is flagged as likely to be heard as an echo. A common design
+#: rule built on H. Haas, "Ueber den Einfluss eines Einfachechos auf die Hoersamkeit von
+#: Sprache", Acustica 1 (1951) 49-58 (delayed speech up to about 35 ms fuses with the
+#: first arrival even when 10 dB stronger; beyond about 50 ms a delayed sound within
+#: about 10 dB of it disturbs; from memory). Judgement, not a standard's limit.
+ECHO_DELAY_MS: float = 50.0
+ECHO_LEVEL_DB: float = -10.0
+
+#: Typical accuracy of statistical STI predictions: L. Galbrun, K. Kitapci, "Accuracy
+#: of speech transmission index predictions based on the reverberation time and
+#: signal-to-noise ratio", Applied Acoustics 81 (2014) 1-14: predictions from T and
+#: the signal-to-noise ratio underestimated the measured STI, by less than 0.1 in all
+#: 16 conditions and by less than 0.06 on average (abstract, checked).
+STATISTICAL_STI_MAX_ERROR: float = 0.10
+STATISTICAL_STI_MEAN_ERROR: float = 0.06

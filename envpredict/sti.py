@@ -226,6 +226,61 @@ def combine_bands(mti: np.ndarray, talker: str = "male") -> float:
     return float(np.clip(sti, 0.0, 1.0))
 
 
+def combine_bands_many(mti: np.ndarray, talker: str = "male") -> np.ndarray:
+    """:func:`combine_bands` of many sets of seven MTIs at once: ``mti`` has shape
+    (..., 7), the result the leading shape (the same formula, IEC 60268-16:2011, A.2.6)."""
+    alpha, beta = (np.array(w) for w in std.WEIGHTS[check_talker(talker)])
+    mti = np.clip(np.asarray(mti, dtype=float), 0.0, 1.0)
+    sti = mti @ alpha - np.sqrt(mti[..., :-1] * mti[..., 1:]) @ beta
+    return np.clip(sti, 0.0, 1.0)
+
+
+def band_factors(speech_db: np.ndarray, noise_db: np.ndarray | None, auditory: bool
+                 ) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None]:
+    """The factor I_k / (I_k + I_n,k + I_am,k + I_rt,k) that scales the MTF of each
+    octave band for noise, auditory masking and the reception threshold
+    (IEC 60268-16:2011, A.2.2 - A.2.3), with the masking and threshold levels, dB.
+
+    ``speech_db`` has shape (..., 7) (NaN or -inf: no speech in that band); ``noise_db``
+    seven levels or ``None``. Used by :func:`sti_from_mtf` for one MTF and by the room
+    model for many listener positions at once.
+    """
+    speech_db = np.asarray(speech_db, dtype=float)
+    nb = speech_db.shape[-1]
+    i_s = np.where(np.isfinite(speech_db), 10.0 ** (speech_db / 10.0), 0.0)
+    i_n = 10.0 ** (np.asarray(noise_db, dtype=float) / 10.0) if noise_db is not None else np.zeros(nb)
+    masking_db = threshold_db = None
+    i_am = np.zeros(i_s.shape)
+    i_rt = np.zeros(nb)
+    if auditory:
+        i_total = i_s + i_n
+        with np.errstate(divide="ignore"):
+            level_total = 10.0 * np.log10(i_total)
+        amf = masking_factor(level_total)
+        i_am[..., 1:] = i_total[..., :-1] * amf[..., :-1]
+        i_rt = 10.0 ** (table_array(std.RECEPTION_THRESHOLD_DB) / 10.0)
+        with np.errstate(divide="ignore"):
+            masking_db = 10.0 * np.log10(i_am)
+        threshold_db = table_array(std.RECEPTION_THRESHOLD_DB)
+    den = i_s + i_n + i_am + i_rt
+    with np.errstate(invalid="ignore", divide="ignore"):
+        factor = np.where(den > 0, i_s / den, 0.0)
+    return factor, masking_db, threshold_db
+
+
+def sti_many(mtf: np.ndarray, speech_db: np.ndarray, noise_db: np.ndarray | None = None, *,
+             talker: str = "male", auditory: bool = True) -> np.ndarray:
+    """STI of many modulation transfer matrices at once, by the steps of
+    :func:`sti_from_mtf` (same helpers): ``mtf`` (..., 7, F), ``speech_db`` (..., 7)
+    octave-band speech levels at each position, ``noise_db`` seven levels or ``None``.
+    Inputs are taken as checked (the caller validates them); returns shape (...).
+    """
+    factor, _, _ = band_factors(speech_db, noise_db, auditory)
+    m_eff = np.clip(np.clip(np.asarray(mtf, dtype=float), 0.0, None) * factor[..., None], 0.0, std.MTF_MAX)
+    _, ti = transmission_index(m_eff)
+    return combine_bands_many(ti.mean(axis=-1), talker)
+
+
 def _check_index_value(sti: float) -> float:
     """An STI to be rated: a number in 0..1 (a NaN or 1.5 has no band and no rating)."""
     try:
@@ -461,26 +516,7 @@ def sti_from_mtf(
         speech_db = np.asarray(speech_db, dtype=float)
         if speech_db.shape != (nb,) or np.any(np.isnan(speech_db)) or np.any(speech_db > 160):
             raise InputError("band speech levels must be seven numbers in dB SPL", "check the calibration")
-    i_s = np.where(np.isfinite(speech_db), 10.0 ** (speech_db / 10.0), 0.0)
-    i_n = 10.0 ** (noise / 10.0) if noise is not None else np.zeros(nb)
-
-    masking_db = threshold_db = None
-    i_am = np.zeros(nb)
-    i_rt = np.zeros(nb)
-    if auditory:
-        i_total = i_s + i_n
-        with np.errstate(divide="ignore"):
-            level_total = 10.0 * np.log10(i_total)
-        amf = masking_factor(level_total)
-        i_am[1:] = i_total[:-1] * amf[:-1]
-        i_rt = 10.0 ** (table_array(std.RECEPTION_THRESHOLD_DB) / 10.0)
-        with np.errstate(divide="ignore"):
-            masking_db = 10.0 * np.log10(i_am)
-        threshold_db = table_array(std.RECEPTION_THRESHOLD_DB)
-
-    den = i_s + i_n + i_am + i_rt
-    with np.errstate(invalid="ignore", divide="ignore"):
-        factor = np.where(den > 0, i_s / den, 0.0)
+    factor, masking_db, threshold_db = band_factors(speech_db, noise, auditory)
     m_eff = np.clip(m * factor[:, None], 0.0, std.MTF_MAX)
     snr, ti = transmission_index(m_eff)
     mti = ti.mean(axis=1)

@@ -272,6 +272,7 @@ def main():
     sweep_cases()
     pair_cases()
     mapping_cases()
+    design_cases()
 
     # 7. a shoebox room simulated by pyroomacoustics' image method
     try:
@@ -495,6 +496,62 @@ def mapping_cases():
             "expected": {q: {"value": round(float(v), 10), "abs_tol": TOL_MAPPING}
                          for q, v in zip(("a", "b", "se_a", "se_b"), [*res.params, *res.bse])},
         })
+
+
+SRC_DESIGN = ("Houtgast, Steeneken & Plomp (1980), Acustica 46: m(F) = |D + R/(1 + j 2 pi F T/13.8)| / (D + R) "
+              "for one loudspeaker, D/R = r_c^2/r^2 with r_c^2 = Q A/(16 pi) and Sabine's A = 0.161 V/T; "
+              "the complex sum over arrivals (two equal arrivals tau apart: m = |cos(pi F tau)|); index per "
+              "IEC 60268-16:2011 Annex A (textbook form, no auditory corrections)")
+#: The design cases are formulas evaluated by the same formula: only rounding and the model's
+#: tiny diffuse share in the 'dead' room (T = 10 ms in 10 000 m3: R/D = 3e-4) separate them.
+TOL_DESIGN = 0.002
+
+
+def design_cases():
+    """Design-stage prediction (envpredict design) of one-listener scenes, no auditory corrections."""
+    def one(volume, T, r, q=1.0, noise=None):
+        d = {"room": {"volume_m3": volume, "rt_s": T},
+             "sources": [{"name": "LS", "position_m": [0, 0, 0], "level_1m_db": 80, "q": q}],
+             "listeners": [{"name": "P", "position_m": [r, 0, 0]}]}
+        if noise is not None:
+            d["noise_db"] = [noise] * 7
+        return d
+
+    def direct_diffuse(V, T, Q, r):
+        rc2 = Q * 0.161 * V / T / (16 * np.pi)
+        dr = rc2 / r ** 2
+        return np.abs(dr + 1 / (1 + 1j * 2 * np.pi * F * T / 13.8)) / (dr + 1)
+
+    for T in (0.5, 2.0):       # far beyond the critical distance: the reverberation alone
+        write({"id": f"design_reverberation_T{T:g}s", "method": "design",
+               "title": f"One loudspeaker 3 km away in 2000 m3 (far beyond r_c), T = {T:g} s, no noise",
+               "source": SRC_DESIGN, "input": one(2000, T, 3000), "settings": {"auditory": False},
+               "expected": {"sti": {"value": round(sti_of([float(ti_of(mtf_decay(T)).mean())] * 7), 4),
+                                    "abs_tol": TOL_DESIGN}}})
+    for r in (1.0, 4.0, 16.0):     # direct + diffuse over distance
+        m = direct_diffuse(2000, 1.5, 2.0, r)
+        write({"id": f"design_direct_diffuse_r{r:g}m", "method": "design",
+               "title": f"One loudspeaker (Q = 2) in 2000 m3, T = 1.5 s, listener at {r:g} m",
+               "source": SRC_DESIGN, "input": one(2000, 1.5, r, q=2.0), "settings": {"auditory": False},
+               "expected": {"sti": {"value": round(sti_of([float(ti_of(m).mean())] * 7), 4),
+                                    "abs_tol": TOL_DESIGN}}})
+    tau = 0.040
+    echo = {"room": {"volume_m3": 10000, "rt_s": 0.01},
+            "sources": [{"name": "A", "position_m": [-1, 0, 0], "level_1m_db": 80},
+                        {"name": "B", "position_m": [1, 0, 0], "level_1m_db": 80, "delay_ms": 1000 * tau}],
+            "listeners": [{"name": "P", "position_m": [0, 0, 0]}]}
+    m = np.abs(np.cos(np.pi * F * tau))
+    write({"id": "design_echo_40ms", "method": "design",
+           "title": "Two equal arrivals 40 ms apart in a dead room (T = 10 ms in 10 000 m3)",
+           "source": SRC_DESIGN, "input": echo, "settings": {"auditory": False},
+           "expected": {"sti": {"value": round(sti_of([float(ti_of(m).mean())] * 7), 4), "abs_tol": 0.005}}})
+    # noise only: speech at the listener = direct + (tiny) diffuse, noise 6 dB below it in every band
+    speech = 80 + 10 * math.log10(1 + 16 * math.pi / (0.161 * 10000 / 0.01))
+    write({"id": "design_noise_snr6", "method": "design",
+           "title": "One loudspeaker 1 m away in a dead room, noise 6 dB below the speech in every band",
+           "source": SRC_NOISE, "input": one(10000, 0.01, 1.0, noise=round(speech - 6, 6)),
+           "settings": {"auditory": False},
+           "expected": {"sti": {"value": round((6 + 15) / 30, 4), "abs_tol": TOL_DESIGN}}})
 
 
 if __name__ == "__main__":

@@ -12,9 +12,9 @@ import envpredict
 #: The package's modules in pipeline order; each may import only modules before it.
 LAYERS: tuple[str, ...] = (
     "standards", "exceptions", "checks", "results", "labels", "outputs", "_data",
-    "bands", "audio", "modulation", "sti", "cautions", "decay", "correlation", "pitch", "signals",
+    "bands", "audio", "modulation", "sti", "roommodel", "cautions", "decay", "correlation", "pitch", "signals",
     "sinesweep", "deconvolve", "tables", "mapping",
-    "indirect", "direct", "pair", "timescales", "sweep", "stats", "batch", "survey", "refcases", "demo",
+    "indirect", "design", "direct", "pair", "timescales", "sweep", "stats", "batch", "survey", "refcases", "demo",
     "report", "predict",
 )
 

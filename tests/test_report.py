@@ -354,7 +354,7 @@ def test_inspect_report_without_figure_data(tmp_path, inspect_result):
 
 
 def test_every_kind_has_a_page():
-    assert set(KINDS) == {"ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey"}
+    assert set(KINDS) == {"ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey", "design"}
 
 
 def test_unknown_kind_refused(tmp_path):

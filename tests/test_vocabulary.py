@@ -33,7 +33,7 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
              "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track", "DemoResult",
              "StipaSignalResult", "FullStiSignalsResult", "SurveyResult", "SweepSignalResult",
-             "DeconvolutionResult"}
+             "DeconvolutionResult", "DesignResult"}
 
 
 # ---------------------------------------------------------------------------
@@ -136,6 +136,11 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "SurveyResult": lambda: survey_result,
         "SweepSignalResult": lambda: _in_tmp(lambda d: envpredict.write_sweep_signal(d / "sweep.wav", sweep_spec())),
         "DeconvolutionResult": deconvolution,
+        "DesignResult": lambda: envpredict.predict_design(
+            {"room": {"volume_m3": 800, "rt_s": 1.2}, "noise_db": [45] * 7,
+             "sources": [{"name": "LS1", "position_m": [1, 1, 3], "level_1m_dba": 80, "q": 2}],
+             "listeners": [{"name": "P1", "position_m": [6, 4, 1.2]}],
+             "grid": {"x_m": [0, 4], "y_m": [0, 3], "z_m": 1.2, "step_m": 1}}),
     }
 
 
@@ -164,7 +169,8 @@ def _result_types() -> dict[str, type]:
 
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
-         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec"}
+         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec", "DesignListener",
+         "DesignGrid"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):

@@ -24,6 +24,7 @@ _COMMAND_MODULES = [
     "cmd_pair",
     "cmd_batch",
     "cmd_survey",
+    "cmd_design",
     "cmd_predict",
     "cmd_demo",
     "cmd_check",

@@ -49,6 +49,7 @@ def render_demo(out: dict) -> str:
         f"  envpredict batch {folder / 'corpus.csv'} --out demo_results.csv",
         "  envpredict compare demo_results.csv --by condition --baseline unprocessed --pair-on sentence",
         f"  envpredict sweep {folder / sc['clean']} {folder / sc['noise']} --snr=-15:6:3",
+        f"  envpredict design {folder / 'design_hall.json'} --report hall_design   (design-stage prediction)",
         "  envpredict check        (the reference-case library)",
     ]
     return "\n".join(lines)
