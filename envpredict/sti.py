@@ -175,7 +175,7 @@ def masking_factor(level_db: np.ndarray) -> np.ndarray:
     InputError
         For levels that are not numbers.
     """
-    level_db = checks.array(level_db, "band levels", ndim=(0, 1), min_size=0, finite=False)
+    level_db = checks.array(level_db, "band levels", ndim=(0, 1, 2, 3), min_size=0, finite=False)
     L = np.asarray(level_db, dtype=float)
     amdb = np.full(L.shape, np.nan)
     lower = -np.inf
@@ -198,7 +198,7 @@ def transmission_index(m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     InputError
         For modulation transfer values that are not numbers.
     """
-    m = checks.array(m, "modulation transfer values", ndim=(0, 1, 2), min_size=0, finite=False)
+    m = checks.array(m, "modulation transfer values", ndim=(0, 1, 2, 3, 4), min_size=0, finite=False)
     m = np.clip(np.asarray(m, dtype=float), 0.0, std.MTF_MAX)
     with np.errstate(divide="ignore"):
         snr = 10.0 * np.log10(m) - 10.0 * np.log10(1.0 - m)
