@@ -264,6 +264,13 @@ def predict_design(
     -------
     DesignResult
 
+    Raises
+    ------
+    InputError
+        A scene that does not pass :func:`envpredict.roommodel.parse_scene` (unknown keys,
+        wrong lengths, impossible rooms, a listener at a loudspeaker, too large a grid), an
+        unknown talker or a requirement outside 0..1.
+
     References
     ----------
     T. Houtgast, H. J. M. Steeneken, R. Plomp, Acustica 46 (1980) 60-72; IEC 60268-16:2011
@@ -311,7 +318,14 @@ def predict_design_file(
     engine: str = "statistical",
 ) -> DesignResult:
     """:func:`predict_design` of a scene file (JSON, or TOML with the suffix ``.toml``);
-    every option is checked before the file is read."""
+    every option is checked before the file is read.
+
+    Raises
+    ------
+    InputError
+        As :func:`predict_design`, and for a scene file that is missing, unreadable or not
+        valid JSON/TOML.
+    """
     talker = check_talker(talker)
     engine = _check_engine(engine)
     if requirement is not None:

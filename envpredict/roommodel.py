@@ -476,7 +476,14 @@ def _check_grid_distance(grid: GridSpec, sources: Sequence[Source]) -> None:
 
 
 def read_scene(path: str | Path, *, talker: str = std.DEFAULT_TALKER) -> Scene:
-    """Read and check a scene file (JSON, or TOML with the suffix ``.toml``); see :func:`parse_scene`."""
+    """Read and check a scene file (JSON, or TOML with the suffix ``.toml``); see :func:`parse_scene`.
+
+    Raises
+    ------
+    InputError
+        For a file that is missing, a folder, unreadable or not valid JSON/TOML, and for
+        every scene :func:`parse_scene` refuses.
+    """
     p = Path(path)
     try:
         text = p.read_text(encoding="utf-8")

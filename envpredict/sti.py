@@ -228,7 +228,17 @@ def combine_bands(mti: np.ndarray, talker: str = "male") -> float:
 
 def combine_bands_many(mti: np.ndarray, talker: str = "male") -> np.ndarray:
     """:func:`combine_bands` of many sets of seven MTIs at once: ``mti`` has shape
-    (..., 7), the result the leading shape (the same formula, IEC 60268-16:2011, A.2.6)."""
+    (..., 7), the result the leading shape (the same formula, IEC 60268-16:2011, A.2.6).
+
+    Raises
+    ------
+    InputError
+        For indices that are not an array with seven values along its last axis, or an
+        unknown talker.
+    """
+    mti = checks.array(mti, "modulation transmission indices", ndim=(1, 2, 3, 4), finite=False)
+    if mti.shape[-1] != len(std.OCTAVE_BANDS_HZ):
+        raise InputError(f"{mti.shape[-1]} modulation transmission indices per set", "give one per octave band (7)")
     alpha, beta = (np.array(w) for w in std.WEIGHTS[check_talker(talker)])
     mti = np.clip(np.asarray(mti, dtype=float), 0.0, 1.0)
     sti = mti @ alpha - np.sqrt(mti[..., :-1] * mti[..., 1:]) @ beta
@@ -244,9 +254,23 @@ def band_factors(speech_db: np.ndarray, noise_db: np.ndarray | None, auditory: b
     ``speech_db`` has shape (..., 7) (NaN or -inf: no speech in that band); ``noise_db``
     seven levels or ``None``. Used by :func:`sti_from_mtf` for one MTF and by the room
     model for many listener positions at once.
+
+    Raises
+    ------
+    InputError
+        For speech levels that are not an array with seven values along its last axis,
+        noise levels that are not seven numbers, or an ``auditory`` that is not a flag.
     """
-    speech_db = np.asarray(speech_db, dtype=float)
-    nb = speech_db.shape[-1]
+    nb = len(std.OCTAVE_BANDS_HZ)
+    speech_db = checks.array(speech_db, "band speech levels", ndim=(1, 2, 3, 4), min_size=0, finite=False)
+    if speech_db.shape[-1] != nb:
+        raise InputError(f"band speech levels have {speech_db.shape[-1]} values per position",
+                         f"give {nb}, one per octave band")
+    if noise_db is not None:
+        noise_db = checks.array(noise_db, "band noise levels", min_size=nb)
+        if noise_db.size != nb:
+            raise InputError(f"{noise_db.size} band noise levels", f"give {nb}, one per octave band")
+    auditory = checks.flag(auditory, "auditory")
     i_s = np.where(np.isfinite(speech_db), 10.0 ** (speech_db / 10.0), 0.0)
     i_n = 10.0 ** (np.asarray(noise_db, dtype=float) / 10.0) if noise_db is not None else np.zeros(nb)
     masking_db = threshold_db = None
@@ -273,9 +297,20 @@ def sti_many(mtf: np.ndarray, speech_db: np.ndarray, noise_db: np.ndarray | None
     """STI of many modulation transfer matrices at once, by the steps of
     :func:`sti_from_mtf` (same helpers): ``mtf`` (..., 7, F), ``speech_db`` (..., 7)
     octave-band speech levels at each position, ``noise_db`` seven levels or ``None``.
-    Inputs are taken as checked (the caller validates them); returns shape (...).
+    Returns shape (...).
+
+    Raises
+    ------
+    InputError
+        As :func:`band_factors`, and for an ``mtf`` whose shape does not follow
+        ``speech_db``'s with a last axis of modulation frequencies, or an unknown talker.
     """
+    talker = check_talker(talker)
     factor, _, _ = band_factors(speech_db, noise_db, auditory)
+    mtf = checks.array(mtf, "modulation transfer", ndim=(2, 3, 4, 5), finite=False)
+    if mtf.shape[:-1] != factor.shape:
+        raise InputError(f"modulation transfer of shape {mtf.shape} does not follow band levels {factor.shape}",
+                         "give one (7, F) matrix per position of the band levels")
     m_eff = np.clip(np.clip(np.asarray(mtf, dtype=float), 0.0, None) * factor[..., None], 0.0, std.MTF_MAX)
     _, ti = transmission_index(m_eff)
     return combine_bands_many(ti.mean(axis=-1), talker)
