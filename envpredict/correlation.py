@@ -240,6 +240,19 @@ class _EnvelopeBuilder:
         return np.concatenate(self.parts, axis=1)
 
 
+def _check_stream(clean_read, degraded_read, n_samples, chunk_frames, progress) -> tuple[int, int]:
+    """The arguments of the streamed functions: two readers, a length, a chunk, a callback."""
+    if not callable(clean_read):
+        raise InputError("clean_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    if not callable(degraded_read):
+        raise InputError("degraded_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
+    n_samples = checks.samples(n_samples, "signal length")
+    chunk_frames = checks.number(chunk_frames, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
+    if progress is not None and not callable(progress):
+        raise InputError("progress is not a function", "pass a function (done, total) or None")
+    return n_samples, chunk_frames
+
+
 def tf_envelopes(
     clean_read: Reader,
     degraded_read: Reader,
@@ -261,14 +274,7 @@ def tf_envelopes(
     """
     from .audio import in_parallel
 
-    if not callable(clean_read):
-        raise InputError("clean_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
-    if not callable(degraded_read):
-        raise InputError("degraded_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
-    n_samples = checks.samples(n_samples, "signal length")
-    chunk_frames = checks.number(chunk_frames, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
-    if progress is not None and not callable(progress):
-        raise InputError("progress is not a function", "pass a function (done, total) or None")
+    n_samples, chunk_frames = _check_stream(clean_read, degraded_read, n_samples, chunk_frames, progress)
     total = frame_count(n_samples)
     n_chunks = max(1, -(-total // chunk_frames))
     energy = frame_energies_db(clean_read, n_samples, chunk_frames)
@@ -557,14 +563,7 @@ def stoi_estoi_stream(
     InputError
         For readers or ``progress`` that are not callable, or a length or chunk that is not a whole number.
     """
-    if not callable(clean_read):
-        raise InputError("clean_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
-    if not callable(degraded_read):
-        raise InputError("degraded_read is not a function read(start, stop)", "pass a reader of the 10 kHz signal")
-    n_samples = checks.samples(n_samples, "signal length")
-    chunk_frames = checks.number(chunk_frames, "chunk", lo=1, hi=checks.MAX_SAMPLES, integer=True)
-    if progress is not None and not callable(progress):
-        raise InputError("progress is not a function", "pass a function (done, total) or None")
+    n_samples, chunk_frames = _check_stream(clean_read, degraded_read, n_samples, chunk_frames, progress)
     x_env, y_env, kept, total = tf_envelopes(
         clean_read, degraded_read, n_samples, chunk_frames=chunk_frames, progress=progress
     )

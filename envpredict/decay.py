@@ -328,6 +328,16 @@ def find_noise_floor(e: np.ndarray, fs: float, fc: float | None = None) -> Noise
                       range_db=float(-noise_db), has_noise=True)
 
 
+def _check_band_energy(e, fs, fc, floor) -> tuple[np.ndarray, float, float | None]:
+    """The arguments shared by the functions of a band's squared response and its noise floor."""
+    e = checks.array(e, "squared response")
+    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
+    fc = checks.optional_number(fc, "band centre", lo=0.0, lo_open=True)
+    if not isinstance(floor, NoiseFloor):
+        raise InputError("floor is not a NoiseFloor", "pass the result of find_noise_floor")
+    return e, fs, fc
+
+
 def schroeder_curve(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = None,
                     step: int = 1) -> np.ndarray:
     """Backward-integrated decay curve in dB re its start, truncated at the crossing point
@@ -343,11 +353,7 @@ def schroeder_curve(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | Non
     InputError
         As :func:`find_noise_floor`, or for a ``floor`` that is not a :class:`NoiseFloor`.
     """
-    e = checks.array(e, "squared response")
-    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
-    fc = checks.optional_number(fc, "band centre", lo=0.0, lo_open=True)
-    if not isinstance(floor, NoiseFloor):
-        raise InputError("floor is not a NoiseFloor", "pass the result of find_noise_floor")
+    e, fs, fc = _check_band_energy(e, fs, fc, floor)
     step = checks.number(step, "step", lo=1, hi=checks.MAX_SAMPLES, integer=True)
     tc = floor.crossing
     ee = e[:tc]
@@ -371,11 +377,7 @@ def noise_energy(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None =
     InputError
         As :func:`find_noise_floor`, or for a ``floor`` that is not a :class:`NoiseFloor`.
     """
-    e = checks.array(e, "squared response")
-    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
-    fc = checks.optional_number(fc, "band centre", lo=0.0, lo_open=True)
-    if not isinstance(floor, NoiseFloor):
-        raise InputError("floor is not a NoiseFloor", "pass the result of find_noise_floor")
+    e, fs, fc = _check_band_energy(e, fs, fc, floor)
     return 10 ** (floor.noise_db / 10.0) * _peak_energy(e, fs, fc) if floor.has_noise else 0.0
 
 
@@ -389,11 +391,7 @@ def tail_energy(e: np.ndarray, fs: float, floor: NoiseFloor, fc: float | None = 
     InputError
         As :func:`find_noise_floor`, or for a ``floor`` that is not a :class:`NoiseFloor`.
     """
-    e = checks.array(e, "squared response")
-    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
-    fc = checks.optional_number(fc, "band centre", lo=0.0, lo_open=True)
-    if not isinstance(floor, NoiseFloor):
-        raise InputError("floor is not a NoiseFloor", "pass the result of find_noise_floor")
+    e, fs, fc = _check_band_energy(e, fs, fc, floor)
     if floor.has_noise:
         e_tc = noise_energy(e, fs, floor, fc)
     else:

@@ -408,6 +408,16 @@ def mtf_from_test_signal(
     return modulation_depths(env, fs_env, freqs, exclude_hz).depth / float(nominal_depth)
 
 
+def _envelope_pair(clean_envelopes, degraded_envelopes) -> tuple[np.ndarray, np.ndarray]:
+    """Checked envelopes of a pair as (bands, samples) arrays of the same shape."""
+    x = checks.array(clean_envelopes, "clean envelopes", ndim=(1, 2))
+    y = checks.array(degraded_envelopes, "degraded envelopes", ndim=(1, 2))
+    if x.shape != y.shape:
+        raise InputError(f"envelope shapes differ: {x.shape} and {y.shape}",
+                         "pass the envelopes of a time-aligned pair")
+    return np.atleast_2d(x), np.atleast_2d(y)
+
+
 def mtf_from_pair_ncm(
     clean_envelopes: np.ndarray,
     degraded_envelopes: np.ndarray,
@@ -457,16 +467,8 @@ def mtf_from_pair_ncm(
     InputError
         For envelopes that are not arrays of finite numbers of the same shape.
     """
-    clean_envelopes = checks.array(clean_envelopes, "clean envelopes", ndim=(1, 2))
-    degraded_envelopes = checks.array(degraded_envelopes, "degraded envelopes", ndim=(1, 2))
-    if np.shape(clean_envelopes) != np.shape(degraded_envelopes):
-        raise InputError(f"envelope shapes differ: {np.shape(clean_envelopes)} and {np.shape(degraded_envelopes)}",
-                         "pass the envelopes of a time-aligned pair")
+    x, y = _envelope_pair(clean_envelopes, degraded_envelopes)
     return_correlation = checks.flag(return_correlation, "return_correlation")
-    x = np.atleast_2d(np.asarray(clean_envelopes, dtype=np.float64))
-    y = np.atleast_2d(np.asarray(degraded_envelopes, dtype=np.float64))
-    if x.shape != y.shape:
-        raise InputError(f"envelope shapes differ: {x.shape} and {y.shape}", "pass an aligned pair")
     xc = x - x.mean(axis=1, keepdims=True)
     yc = y - y.mean(axis=1, keepdims=True)
     den = np.sqrt(np.sum(xc * xc, axis=1) * np.sum(yc * yc, axis=1))
@@ -509,15 +511,7 @@ def mtf_from_pair_regression(clean_envelopes: np.ndarray, degraded_envelopes: np
     InputError
         For envelopes that are not arrays of finite numbers of the same shape.
     """
-    clean_envelopes = checks.array(clean_envelopes, "clean envelopes", ndim=(1, 2))
-    degraded_envelopes = checks.array(degraded_envelopes, "degraded envelopes", ndim=(1, 2))
-    if np.shape(clean_envelopes) != np.shape(degraded_envelopes):
-        raise InputError(f"envelope shapes differ: {np.shape(clean_envelopes)} and {np.shape(degraded_envelopes)}",
-                         "pass the envelopes of a time-aligned pair")
-    x = np.atleast_2d(np.asarray(clean_envelopes, dtype=np.float64))
-    y = np.atleast_2d(np.asarray(degraded_envelopes, dtype=np.float64))
-    if x.shape != y.shape:
-        raise InputError(f"envelope shapes differ: {x.shape} and {y.shape}", "pass an aligned pair")
+    x, y = _envelope_pair(clean_envelopes, degraded_envelopes)
     mx, my = x.mean(axis=1), y.mean(axis=1)
     xc = x - mx[:, None]
     var = np.sum(xc * xc, axis=1)
