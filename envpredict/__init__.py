@@ -43,6 +43,8 @@ Inspection of a recording
 Index-to-score mappings
     fit_mapping, fit_mapping_file, ScoreMapping, mapping_from_dict, read_mapping,
     predict_scores, add_predictions, predict_file
+Active speech level (ITU-T P.56 method B)
+    active_speech_level, ActiveLevel
 SNR sweeps and the SRT
     snr_sweep, snr_sweep_files, SweepResult
 Corpora
@@ -131,6 +133,9 @@ _API: dict[str, str] = {
     "predict_scores": "envpredict.mapping",
     "add_predictions": "envpredict.mapping",
     "predict_file": "envpredict.mapping",
+    # active speech level
+    "active_speech_level": "envpredict.speechlevel",
+    "ActiveLevel": "envpredict.speechlevel",
     # SNR sweeps
     "snr_sweep": "envpredict.sweep",
     "snr_sweep_files": "envpredict.sweep",

@@ -523,3 +523,28 @@ TEST_SIGNAL_SEED: int = 0
 PAIR_MAX_DELAY_S: float = 1.0
 #: Audio per processing chunk of the pair analysis, s (memory only; judgement).
 PAIR_CHUNK_S: float = 60.0
+
+# ---------------------------------------------------------------------------
+# Active speech level (ITU-T P.56, method B) -- used by envpredict.speechlevel
+# ---------------------------------------------------------------------------
+# Source: ITU-T Rec. P.56 (12/2011), "Objective measurement of active speech level",
+# method B (from memory: the values below were not copied from the printed text; they
+# agree with the ITU-T Software Tool Library of ITU-T Rec. G.191, module sv-p56.c,
+# which defines T = 0.03 s, H = 0.20 s, M = 15.9 dB and 15 thresholds 2**-15 .. 2**-1
+# of full scale in 2:1 steps).
+
+#: Time constant of the two-stage exponential smoothing of the rectified signal (the
+#: envelope), s. Source: ITU-T P.56 (12/2011), method B (from memory; G.191 sv-p56.c: T).
+P56_TIME_CONSTANT_S: float = 0.03
+#: Hangover: a sample stays active this long after the envelope last reached the
+#: threshold, s (rounded up to whole samples). Source: ITU-T P.56 (12/2011), method B
+#: (from memory; G.191 sv-p56.c: H).
+P56_HANGOVER_S: float = 0.2
+#: Margin between the active level and the threshold at which it is measured, dB.
+#: Source: ITU-T P.56 (12/2011), method B (from memory; G.191 sv-p56.c: M).
+P56_MARGIN_DB: float = 15.9
+#: Ratio between neighbouring thresholds of the set (2:1, 6.02 dB) and their number.
+#: Source: ITU-T P.56 (12/2011), method B (from memory: "steps of not more than 2:1");
+#: G.191 sv-p56.c uses 15 thresholds 2**-15 .. 2**-1.
+P56_THRESHOLD_RATIO: float = 2.0
+P56_THRESHOLD_COUNT: int = 15

@@ -33,7 +33,7 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
              "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track", "DemoResult",
              "StipaSignalResult", "FullStiSignalsResult", "SurveyResult", "SweepSignalResult",
-             "DeconvolutionResult"}
+             "DeconvolutionResult", "ActiveLevel"}
 
 
 # ---------------------------------------------------------------------------
@@ -136,6 +136,7 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "SurveyResult": lambda: survey_result,
         "SweepSignalResult": lambda: _in_tmp(lambda d: envpredict.write_sweep_signal(d / "sweep.wav", sweep_spec())),
         "DeconvolutionResult": deconvolution,
+        "ActiveLevel": lambda: envpredict.active_speech_level(clean, fs),
     }
 
 
