@@ -503,6 +503,12 @@ SWEEP_SEGMENTS: int = 5
 #: Level convention of a sweep ("speech": the speech stays at its level and the noise
 #: is scaled; judgement, the usual convention of SRT tests).
 SWEEP_LEVEL: str = "speech"
+#: Speech level the SNR of a sweep is referred to: "active" (the active speech level of
+#: ITU-T P.56 method B, pauses excluded) or "long-term" (mean power over the whole
+#: speech, pauses included). Speech tests set and report levels as active speech levels
+#: (ITU-T P.56 (12/2011); judgement: the reference a researcher expects), so the
+#: predicted SNRs can be set on an audiometer or a mixing script the usual way.
+SWEEP_SNR_REFERENCE: str = "active"
 #: Target score of the speech reception threshold, percent correct. Source: R. Plomp,
 #: A. M. Mimpen, "Improving the reliability of testing the speech reception threshold
 #: for sentences", Audiology 18 (1979) 43-52 (SRT = SNR at 50 % sentences correct).

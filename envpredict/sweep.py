@@ -25,6 +25,7 @@ from . import standards as std
 from .exceptions import ComputationError, InputError
 from .mapping import CI_LEVEL, ScoreMapping
 from .results import jsonable
+from .speechlevel import ActiveLevel, active_speech_level
 
 #: Sweep limits: number of SNR points and noise segments (judgement: beyond these a
 #: sweep is a mistake in the options, not a plan).
@@ -179,6 +180,11 @@ class SweepResult:
     predicted_percent : mapping applied to the mean index, or ``None`` without a mapping.
     targets : one :class:`SweepTarget` per requested percent (empty without a mapping).
     level : ``"speech"`` or ``"mixture"`` (see :func:`snr_sweep`).
+    snr_reference : ``"active"`` or ``"long-term"``: the speech level the SNR is
+        referred to (see :data:`SNR_REFERENCES`).
+    speech_level : the active and long-term level of the speech (ITU-T P.56 method B)
+        and its activity factor, or ``None`` where P.56 finds no active level (only
+        with the long-term reference).
     segment_offsets_s : start of each noise segment in the noise signal, seconds.
     reverberant : whether the speech went through an impulse response.
     processed : whether the mixtures went through a processing chain.
@@ -203,6 +209,8 @@ class SweepResult:
     duration_s: float
     mapping: dict | None = None
     notes: tuple[str, ...] = field(default_factory=tuple)
+    snr_reference: str = std.SWEEP_SNR_REFERENCE
+    speech_level: ActiveLevel | None = None
 
     @property
     def srt_db(self) -> float | None:
@@ -215,6 +223,7 @@ class SweepResult:
 
     def to_dict(self) -> dict:
         srt = next((t for t in self.targets if abs(t.percent - std.SRT_PERCENT) < SAME_TARGET_PERCENT), None)
+        lev = self.speech_level
         return jsonable({
             "snr_db": self.snr_db,
             "index": self.index_name,
@@ -227,6 +236,11 @@ class SweepResult:
             "slope_at_srt_percent_per_db": None if srt is None else srt.slope_percent_per_db,
             "level_convention": self.level,
             "level_convention_text": LEVEL_CONVENTIONS[self.level],
+            "snr_reference": self.snr_reference,
+            "snr_reference_text": SNR_REFERENCES[self.snr_reference],
+            "activity_factor": None if lev is None else round(lev.activity_factor, 4),
+            "speech_active_level_db": None if lev is None else round(lev.active_level_db, 2),
+            "speech_long_term_level_db": None if lev is None else round(lev.long_term_level_db, 2),
             "n_segments": len(self.segment_offsets_s),
             "segment_offsets_s": self.segment_offsets_s,
             "reverberant": self.reverberant,
@@ -240,11 +254,21 @@ class SweepResult:
 
 
 LEVEL_CONVENTIONS: dict[str, str] = {
-    "speech": ("SNR = 10 log10(mean speech power / mean noise power) over the length of the speech; the "
-               "speech (after the impulse response, if any) stays at its level and each noise segment is "
+    "speech": ("the speech (after the impulse response, if any) stays at its level and each noise segment is "
                "scaled to give the SNR"),
-    "mixture": ("SNR defined as for 'speech', then each mixture is rescaled to the speech's RMS level, so "
+    "mixture": ("the noise is scaled as for 'speech', then each mixture is rescaled to the speech's RMS level, so "
                 "the presentation level stays constant as the SNR changes"),
+}
+
+#: What the SNR is referred to. The default (:data:`envpredict.standards.SWEEP_SNR_REFERENCE`)
+#: is the active speech level: speech tests set their levels that way (ITU-T P.56), and
+#: the SNR then does not fall when a sentence has longer pauses. The long-term reference
+#: is the convention of envpredict before it measured active levels.
+SNR_REFERENCES: dict[str, str] = {
+    "active": ("SNR = active speech level (ITU-T P.56 method B, pauses excluded) minus the noise segment's "
+               "long-term level, over the length of the speech"),
+    "long-term": ("SNR = 10 log10(mean speech power / mean noise power) over the length of the speech, "
+                  "pauses included"),
 }
 
 
@@ -269,6 +293,15 @@ def _processed(process: Callable[[np.ndarray, int], np.ndarray], mix: np.ndarray
             f"{mix.size}-sample mixture at {snr:g} dB SNR",
             "make it return a finite signal of the same length, time-aligned with its input")
     return out
+
+
+def check_snr_reference(snr_reference: Any) -> str:
+    """``"active"`` or ``"long-term"`` (``"long_term"`` and ``"longterm"`` accepted), or ``InputError``."""
+    ref = str(snr_reference).strip().lower().replace("_", "-")
+    ref = "long-term" if ref == "longterm" else ref
+    if ref not in SNR_REFERENCES:
+        raise InputError(f"unknown SNR reference '{snr_reference}'", "use --snr-reference active or long-term")
+    return ref
 
 
 def _check_options(snr_db: Any, index: str, funcs: MappingType, level: str, n_segments: Any,
@@ -317,6 +350,7 @@ def snr_sweep(
     ir: np.ndarray | None = None,
     n_segments: int = std.SWEEP_SEGMENTS,
     level: str = std.SWEEP_LEVEL,
+    snr_reference: str = std.SWEEP_SNR_REFERENCE,
     index_functions: MappingType[str, Callable[[np.ndarray, np.ndarray, int], float]] | None = None,
     process: Callable[[np.ndarray, int], np.ndarray] | None = None,
     progress: Callable[[int, int], None] | None = None,
@@ -327,8 +361,8 @@ def snr_sweep(
     ``noise``; the same segments at every SNR, so the curves differ only by the SNR),
     the speech -- ``clean``, or ``clean`` convolved with ``ir`` from its onset
     (ISO 3382-1 A.3.2 onset, so the speech is not delayed) and cut to the length of
-    ``clean`` -- is mixed with the segment at the SNR (see :data:`LEVEL_CONVENTIONS`)
-    and the index is computed between ``clean`` and the mixture. The mean index over
+    ``clean`` -- is mixed with the segment at the SNR (see :data:`SNR_REFERENCES` and
+    :data:`LEVEL_CONVENTIONS`) and the index is computed between ``clean`` and the mixture. The mean index over
     segments is mapped to a predicted score. For each target percent the mapping is
     inverted to an index value ``x_t`` and the SNR where the mean index curve, linear
     between the swept SNRs, first rises to ``x_t`` is reported; the same is done for
@@ -350,6 +384,14 @@ def snr_sweep(
     ir : impulse response at ``fs`` applied to the speech, or ``None``.
     n_segments : number of noise segments per SNR (1 gives no interval).
     level : ``"speech"`` or ``"mixture"`` level convention.
+    snr_reference : ``"active"`` (default) or ``"long-term"``: the speech level the SNR
+        is referred to. ``"active"`` is the active speech level of ITU-T P.56 method B
+        (:func:`envpredict.speechlevel.active_speech_level`), the level speech tests are
+        set by: a researcher who mixes sentences and noise at a predicted SNR with the
+        usual tools means this SNR. ``"long-term"`` (speech power over noise power with
+        the pauses counted, envpredict's earlier convention) reads
+        ``10 log10(1 / activity factor)`` dB higher for the same mixture. The noise's
+        level is always its long-term level over the segment.
     index_functions : ``name -> f(clean, degraded, fs) -> float``; defaults to
         :func:`default_index_functions`.
     process : optional processing chain ``process(mixture, fs) -> output`` applied to
@@ -373,6 +415,7 @@ def snr_sweep(
     nz = validate_signal(noise, fs, name="noise", allow_clipping=True)
     funcs = dict(index_functions) if index_functions is not None else default_index_functions()
     snrs, name, target_list, x_targets = _check_options(snr_db, index, funcs, level, n_segments, mapping, targets)
+    reference = check_snr_reference(snr_reference)
 
     notes: list[str] = []
     speech = x
@@ -397,6 +440,8 @@ def snr_sweep(
     p_speech = float(np.mean(speech * speech))
     if p_speech <= 0:
         raise InputError("the speech after the impulse response is silent", "check the impulse response")
+    speech_level = _speech_level(speech, fs, reference)
+    p_ref = speech_level.active_mean_square if reference == "active" else p_speech
 
     f = funcs[name]
     total = snrs.size * offsets.size
@@ -408,7 +453,7 @@ def snr_sweep(
         if p_noise <= 0:
             raise InputError(f"noise segment at {o / fs:.2f} s is silent", "give a noise without silent stretches")
         for i, s in enumerate(snrs):
-            g = math.sqrt(p_speech / (p_noise * 10.0 ** (s / 10.0)))
+            g = math.sqrt(p_ref / (p_noise * 10.0 ** (s / 10.0)))
             mix = speech + g * seg
             if level == "mixture":
                 mix = mix * math.sqrt(p_speech / float(np.mean(mix * mix)))
@@ -484,7 +529,20 @@ def snr_sweep(
         segment_offsets_s=tuple(float(o) / fs for o in offsets), reverberant=ir is not None,
         processed=process is not None, fs=fs,
         duration_s=L / fs, mapping=None if mapping is None else mapping.to_dict(), notes=tuple(notes),
+        snr_reference=reference, speech_level=speech_level,
     )
+
+
+def _speech_level(speech: np.ndarray, fs: int, reference: str) -> ActiveLevel | None:
+    """The speech's P.56 active level; ``None`` where it has none and the long-term
+    reference does not need it."""
+    try:
+        return active_speech_level(speech, fs)
+    except ComputationError as e:
+        if reference == "active":
+            raise ComputationError(f"the active speech level cannot be measured: {e.what}",
+                                   "use --snr-reference long-term, or speech with active stretches") from None
+        return None
 
 
 
@@ -499,6 +557,7 @@ def snr_sweep_files(
     targets: Sequence[float] | None = None,
     n_segments: int = std.SWEEP_SEGMENTS,
     level: str = std.SWEEP_LEVEL,
+    snr_reference: str = std.SWEEP_SNR_REFERENCE,
     channel: int | None = None,
     progress: Callable[[int, int], None] | None = None,
 ) -> SweepResult:
@@ -518,7 +577,7 @@ def snr_sweep_files(
         :data:`DEFAULT_INDEX` without a mapping.
     mapping : a :class:`~envpredict.mapping.ScoreMapping`, the path of a MAP.json, or ``None``.
     targets : target scores, percent (default: the SRT, 50 %); they need a mapping.
-    n_segments, level, progress : as for :func:`snr_sweep`.
+    n_segments, level, snr_reference, progress : as for :func:`snr_sweep`.
     channel : channel of multi-channel files (0 = first).
 
     Returns
@@ -531,6 +590,7 @@ def snr_sweep_files(
     snrs = parse_snr_range(snr_db) if isinstance(snr_db, str) else snr_db
     if level not in LEVEL_CONVENTIONS:
         raise InputError(f"unknown level convention '{level}'", "use --level speech or --level mixture")
+    reference = check_snr_reference(snr_reference)
     if not isinstance(n_segments, (int, np.integer)) or not 1 <= n_segments <= MAX_SEGMENTS:
         raise InputError(f"--segments {n_segments} is outside 1..{MAX_SEGMENTS}", "give e.g. --segments 5")
     m = mapping if mapping is None or isinstance(mapping, ScoreMapping) else read_mapping(mapping)
@@ -559,7 +619,7 @@ def snr_sweep_files(
             notes.append(f"the impulse response was resampled from {fs_h} Hz to {fs} Hz")
             h = resample(h, fs_h, fs)
     res = snr_sweep(x, nz, fs, snr_db=snrs, index=name, mapping=m, targets=target_list, ir=h,
-                    n_segments=n_segments, level=level, progress=progress)
+                    n_segments=n_segments, level=level, snr_reference=reference, progress=progress)
     if notes:
         from dataclasses import replace
 

@@ -63,8 +63,8 @@ def test_parse_snr_range():
 
 
 def test_sweep_mixes_at_the_stated_snr(signals):
-    # speech-level convention: 10 log10(sum clean^2 / sum noise part^2) equals the SNR
-    # asked for, and the noise part is a contiguous piece of the noise recording
+    # long-term reference, speech-level convention: 10 log10(sum clean^2 / sum noise part^2)
+    # equals the SNR asked for, and the noise part is a contiguous piece of the noise recording
     clean, noise = signals
     seen = []
 
@@ -73,7 +73,8 @@ def test_sweep_mixes_at_the_stated_snr(signals):
         return power_index(c, d, fs)
 
     res = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], index="probe", n_segments=3,
-                    index_functions={"probe": probe})
+                    index_functions={"probe": probe}, snr_reference="long-term")
+    assert res.to_dict()["snr_reference"] == "long-term"
     assert len(seen) == 9
     snrs = [10 * np.log10(np.sum(clean ** 2) / np.sum(e ** 2)) for e in seen]
     assert snrs == pytest.approx([-6, 0, 6] * 3, abs=1e-9)
@@ -85,9 +86,36 @@ def test_sweep_mixes_at_the_stated_snr(signals):
     # mixture convention: the mixture is rescaled to the speech level
     seen.clear()
     snr_sweep(clean, noise, FS, snr_db=[-6, 0], index="probe", n_segments=2, level="mixture",
-              index_functions={"probe": lambda c, d, fs: seen.append(d) or 0.5})
+              snr_reference="long-term", index_functions={"probe": lambda c, d, fs: seen.append(d) or 0.5})
     for d in seen:
         assert np.mean(d ** 2) == pytest.approx(np.mean(clean ** 2), rel=1e-12)
+
+
+def test_the_active_reference_scales_the_noise_to_the_active_speech_level():
+    # Tone bursts of 1 s every 4 s: ITU-T P.56 method B counts each burst and its 0.2 s
+    # hangover as active (the envelope's rise and fall, T = 0.03 s, move this by < 0.1 s),
+    # so the activity factor is 1.2 / 4 and the active SNR puts the noise
+    # 10 log10(4 / 1.2) dB above where the long-term SNR puts it, at every SNR.
+    t = np.arange(FS) / FS
+    clean = np.tile(np.concatenate([0.1 * np.sin(2 * np.pi * 500 * t), np.zeros(3 * FS)]), 3)
+    noise = np.random.default_rng(2).standard_normal(2 * clean.size) * 0.05
+    parts = {}
+    for ref in ("active", "long-term"):
+        seen = []
+        res = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], index="probe", n_segments=2, snr_reference=ref,
+                        index_functions={"probe": lambda c, d, fs: seen.append(d - c) or 0.5})
+        parts[ref] = np.array([np.mean(e ** 2) for e in seen])
+        d = res.to_dict()
+        assert d["snr_reference"] == ref and ref in ("active", "long-term")
+        assert d["activity_factor"] == pytest.approx(1.2 / 4, abs=0.1 / 4)
+        assert d["speech_active_level_db"] - d["speech_long_term_level_db"] == pytest.approx(
+            -10 * np.log10(d["activity_factor"]), abs=0.01)
+    ratio_db = 10 * np.log10(parts["active"] / parts["long-term"])
+    assert ratio_db == pytest.approx(np.full(6, 10 * np.log10(4 / 1.2)), abs=10 * np.log10(1.3 / 1.2))
+    assert np.ptp(ratio_db) < 1e-9  # one factor for every SNR and segment
+    with pytest.raises(InputError):
+        snr_sweep(clean, noise, FS, snr_db=[-6, 0], index="probe", n_segments=1, snr_reference="peak",
+                  index_functions={"probe": lambda c, d, fs: 0.5})
 
 
 def test_sweep_targets_and_interval_from_segments(signals):
@@ -166,10 +194,11 @@ def test_sweep_with_impulse_response(signals):
 def test_sweep_index_values_match_reference_stoi(signals):
     # the sweep's STOI at each SNR and segment equals pystoi (reference implementation
     # of Taal 2011) on the mixture rebuilt here by the stated speech-level convention
+    # (long-term SNR reference)
     from pystoi import stoi as reference_stoi
 
     clean, noise = signals
-    res = snr_sweep(clean, noise, FS, snr_db=[-10, 0], index="stoi", n_segments=2)
+    res = snr_sweep(clean, noise, FS, snr_db=[-10, 0], index="stoi", n_segments=2, snr_reference="long-term")
     for j, off in enumerate(res.segment_offsets_s):
         o = round(off * FS)
         seg = noise[o: o + clean.size]
@@ -183,7 +212,7 @@ def test_sweep_ssti_uses_speech_based_sti(signals):
     from envpredict.pair import speech_sti
 
     clean, noise = signals
-    res = snr_sweep(clean, noise, FS, snr_db=[-5, 5], index="ssti", n_segments=1)
+    res = snr_sweep(clean, noise, FS, snr_db=[-5, 5], index="ssti", n_segments=1, snr_reference="long-term")
     seg = noise[: clean.size]
     g = np.sqrt(np.sum(clean ** 2) / (np.sum(seg ** 2) * 10 ** 0.5))
     assert res.index[1] == pytest.approx(speech_sti(clean, clean + g * seg, FS), abs=1e-12)
@@ -293,9 +322,19 @@ def test_cli_sweep(tmp_path, capsys, signals):
     assert s["index"] == "stoi" and len(s["stoi"]) == len(s["predicted_percent"]) == 5
     assert [t["percent"] for t in s["targets"]] == [20, 50]
     assert s["srt_db"] == s["targets"][1]["snr_db"]
+    assert s["snr_reference"] == "active" and s["inputs"]["snr_reference"] == "active"
+    assert 0 < s["activity_factor"] <= 1
     code, out, err = run_cli(["sweep", str(cw), str(nw), "--snr", "-6:6:6", "--segments", "2"], capsys)
     assert code == 0, err
-    assert "no mapping" in out
+    assert "no mapping" in out and "activity factor" in out and "SNR reference: SNR = active" in out
+    # the earlier convention on request: the same mixtures as snr_sweep with the long-term reference
+    code, out, err = run_cli(["sweep", str(cw), str(nw), "--snr", "-6:6:6", "--segments", "2",
+                              "--snr-reference", "long-term", "--json"], capsys)
+    assert code == 0, err
+    lt = json.loads(out)
+    assert lt["snr_reference"] == "long-term"
+    api = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], n_segments=2, snr_reference="long-term")
+    assert lt["stoi"] == pytest.approx(api.to_dict()["stoi"], abs=2e-5)  # FLOAT files vs float64 arrays
 
 
 def test_cli_sweep_refusals(tmp_path, capsys):
@@ -303,6 +342,8 @@ def test_cli_sweep_refusals(tmp_path, capsys):
     assert code == 2 and "FROM < TO" in err
     code, _out, err = run_cli(["sweep", "a.wav", "b.wav", "--target", "50"], capsys)
     assert code == 2 and "needs a mapping" in err
+    code, _out, err = run_cli(["sweep", "a.wav", "b.wav", "--snr-reference", "peak"], capsys)
+    assert code == 2 and "SNR reference" in err
 
 # ---------------------------------------------------------------------------
 # File-level function sweep.snr_sweep_files
@@ -314,6 +355,7 @@ def test_cli_sweep_refusals(tmp_path, capsys):
     ({"index": "pesq"}, "unknown index"),
     ({"level": "loud"}, "level convention"),
     ({"n_segments": 0}, "--segments"),
+    ({"snr_reference": "peak"}, "SNR reference"),
 ])
 def test_snr_sweep_files_checks_options_before_reading(tmp_path, kw, what):
     from envpredict.sweep import snr_sweep_files

@@ -92,9 +92,14 @@ def render_sweep(d: dict) -> str:
     lines = [
         (f"SNR sweep: {d['index']} of {d['duration_s']:.2f} s of speech"
         f"{' through the impulse response' if d['reverberant'] else ''}, {d['n_segments']} noise segment(s) per SNR"),
+        f"SNR reference: {d['snr_reference_text']}",
         f"Level convention: {d['level_convention_text']}",
-        "",
     ]
+    if d.get("activity_factor") is not None:
+        lines.append(f"Speech: active level {d['speech_active_level_db']:.1f} dB, long-term "
+                     f"{d['speech_long_term_level_db']:.1f} dB re full scale, activity factor "
+                     f"{100 * d['activity_factor']:.1f} % (ITU-T P.56 method B)")
+    lines.append("")
     mapped = d["predicted_percent"] is not None
     head = ["SNR dB", d["index"], "sd"] + (["predicted %"] if mapped else [])
     rows = []
@@ -147,6 +152,10 @@ def sweep_command(
                               help="Level convention: speech (speech fixed, noise "
                                                                "scaled) or mixture (mixture rescaled to the speech "
                                                                "level)."),
+    snr_reference: str = typer.Option(std.SWEEP_SNR_REFERENCE, "--snr-reference", metavar="[active|long-term]",
+                                      help="Speech level the SNR is referred to: active (ITU-T P.56 active speech "
+                                           "level, pauses excluded, as speech tests set levels) or long-term "
+                                           "(pauses included; envpredict's earlier convention)."),
     channel: int | None = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help="Also write the JSON result to this file (atomically)."),
@@ -159,12 +168,13 @@ def sweep_command(
     shown = index or (None if map_file is not None else DEFAULT_INDEX)  # the mapping's index is read by the API
     with Progress(f"sweeping {shown}" if shown else "sweeping", None, quiet=as_json) as prog:
         res = snr_sweep_files(clean, noise, ir=ir, snr_db=snr, index=index, mapping=map_file, targets=target,
-                              n_segments=segments, level=level, channel=channel, progress=prog)
+                              n_segments=segments, level=level, snr_reference=snr_reference, channel=channel,
+                              progress=prog)
     name = res.index_name
     d = res.to_dict()
     d["inputs"] = {"clean": str(clean), "noise": str(noise), "ir": None if ir is None else str(ir),
                    "map": None if map_file is None else str(map_file), "index": name, "snr": snr,
-                   "segments": segments, "level": level}
+                   "segments": segments, "level": level, "snr_reference": res.snr_reference}
     write_report_if(report, "sweep", d, as_json=as_json,
                     title=f"Predicted scores against SNR: {clean.name} in {noise.name}")
     emit(d, lambda: render_sweep(d), as_json, out)
