@@ -42,7 +42,7 @@ Inspection of a recording
     inspect_signal, inspect_file, InspectResult, yin_f0, F0Track
 Index-to-score mappings
     fit_mapping, fit_mapping_file, ScoreMapping, mapping_from_dict, read_mapping,
-    predict_scores, add_predictions, predict_file
+    published_mapping, published_mapping_names, predict_scores, add_predictions, predict_file
 Active speech level (ITU-T P.56 method B)
     active_speech_level, ActiveLevel
 SNR sweeps and the SRT
@@ -130,6 +130,8 @@ _API: dict[str, str] = {
     "ScoreMapping": "envpredict.mapping",
     "mapping_from_dict": "envpredict.mapping",
     "read_mapping": "envpredict.mapping",
+    "published_mapping": "envpredict.mapping",
+    "published_mapping_names": "envpredict.mapping",
     "predict_scores": "envpredict.mapping",
     "add_predictions": "envpredict.mapping",
     "predict_file": "envpredict.mapping",

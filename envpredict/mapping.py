@@ -921,24 +921,85 @@ def add_predictions(
 # Files: MAP.json, scores tables, results tables
 # ---------------------------------------------------------------------------
 
-def read_mapping(path: str | os.PathLike) -> ScoreMapping:
-    """Read a mapping file (MAP.json, as written by ``envpredict fitmap``).
+#: Where the built-in mappings' parameters come from (the numbers live in standards).
+TAAL2011_SOURCE: str = (
+    "Taal, Hendriks, Heusdens, Jensen, 'An algorithm for intelligibility prediction of time-frequency weighted "
+    "noisy speech', IEEE Trans. ASLP 19(7), 2011: logistic f(d) = 100/(1 + exp(a d + b)) fitted to their "
+    "listening test; parameters read from a secondary transcription of the paper")
 
-    Parameters
-    ----------
-    path : the JSON file.
+
+def published_mapping_names() -> tuple[str, ...]:
+    """Names of the built-in published mappings (usable wherever a MAP.json is)."""
+    return tuple(sorted(std.TAAL2011_MAPPINGS))
+
+
+def published_mapping(name: str) -> ScoreMapping:
+    """A built-in published mapping by name (:func:`published_mapping_names`).
+
+    * ``taal2011-ieee``, ``taal2011-dantale``: STOI to % words correct, the logistics
+      Taal et al. (2011) fitted for IEEE and Dantale II sentences,
+      ``p = 1 / (1 + exp(a d + b))`` (:data:`envpredict.standards.TAAL2011_MAPPINGS`),
+      i.e. ``eta = -b - a d`` in this module's form. They carry no covariance (the
+      paper gives none): a sweep with them has no mapping interval.
 
     Raises
     ------
     InputError
-        A missing file, a folder, invalid JSON or content that is not a mapping.
+        For a name that is not built in (the error lists the known ones).
+
+    References
+    ----------
+    C. H. Taal, R. C. Hendriks, R. Heusdens, J. Jensen, "An algorithm for
+    intelligibility prediction of time-frequency weighted noisy speech", IEEE Trans.
+    ASLP 19(7) (2011) 2125-2136.
+    """
+    key = str(name).strip().lower()
+    if key not in std.TAAL2011_MAPPINGS:
+        raise InputError(f"no mapping file or built-in mapping named '{name}'",
+                         f"give a MAP.json or one of the built-in mappings: {', '.join(published_mapping_names())}")
+    index, a_paper, b_paper, material = std.TAAL2011_MAPPINGS[key]
+    return ScoreMapping(
+        index=index, shape="logistic", a=-b_paper, b=-a_paper, source=f"{key}: {material}; {TAAL2011_SOURCE}",
+        notes=(f"built-in published mapping '{key}' ({material}); its parameters were read from a secondary "
+               "transcription of Taal et al. 2011, not checked against the printed paper",
+               "a published mapping holds for its own test material, talkers and listeners: "
+               "a pilot with your material (fitmap) is the better mapping"),
+    )
+
+
+def _is_mapping_name(path: str | os.PathLike) -> bool:
+    """A bare word (no folder, no suffix) that is not an existing file names a built-in mapping."""
+    from pathlib import Path
+
+    p = Path(path)
+    return not p.exists() and p.parent == Path(".") and p.suffix == "" and bool(str(p).strip())
+
+
+def read_mapping(path: str | os.PathLike) -> ScoreMapping:
+    """Read a mapping file (MAP.json, as written by ``envpredict fitmap``), or a built-in
+    published mapping by name (:func:`published_mapping`).
+
+    Parameters
+    ----------
+    path : the JSON file, or the name of a built-in mapping (e.g. ``"taal2011-ieee"``);
+        an existing file of that name wins.
+
+    Raises
+    ------
+    InputError
+        A missing file, a folder, invalid JSON, content that is not a mapping, or a
+        bare name that is not built in (the error lists the known ones).
     """
     import json
     from pathlib import Path
 
+    if _is_mapping_name(path):
+        return published_mapping(str(path))
     p = Path(path)
     if not p.exists():
-        raise InputError(f"mapping '{p}' does not exist", "check the path, or write one with 'envpredict fitmap'")
+        raise InputError(f"mapping '{p}' does not exist",
+                         "check the path, write one with 'envpredict fitmap', or name a built-in mapping: "
+                         + ", ".join(published_mapping_names()))
     if p.is_dir():
         raise InputError(f"mapping '{p}' is a folder", "give the path of a MAP.json file")
     try:

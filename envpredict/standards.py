@@ -554,3 +554,18 @@ P56_MARGIN_DB: float = 15.9
 #: G.191 sv-p56.c uses 15 thresholds 2**-15 .. 2**-1.
 P56_THRESHOLD_RATIO: float = 2.0
 P56_THRESHOLD_COUNT: int = 15
+
+# ---------------------------------------------------------------------------
+# Published index-to-score mappings -- used by envpredict.mapping
+# ---------------------------------------------------------------------------
+
+#: Taal et al. 2011 (see the module docstring), Sec. IV: a logistic from STOI d to the
+#: percentage of words correct, f(d) = 100 / (1 + exp(a d + b)), fitted per corpus of
+#: their listening test. Written in the paper's own form (a, b). The values were read
+#: from a secondary transcription of the paper, not from the printed paper: verify them
+#: against the paper before relying on them.
+#: name -> (index, a, b, test material).
+TAAL2011_MAPPINGS: dict[str, tuple[str, float, float, str]] = {
+    "taal2011-ieee": ("stoi", -17.4906, 9.6921, "IEEE sentences, % words correct"),
+    "taal2011-dantale": ("stoi", -14.5435, 7.0792, "Dantale II sentences, % words correct"),
+}

@@ -523,6 +523,8 @@ def snr_sweep(
         if np.any((mean < lo_r) | (mean > hi_r)):
             notes.append(f"part of the curve lies outside the index range the mapping was fitted on "
                          f"({lo_r:.3g} to {hi_r:.3g}): those predictions are extrapolations")
+    if mapping is not None:
+        notes.extend(f"mapping: {n}" for n in mapping.notes)
     return SweepResult(
         snr_db=snrs, index_name=name, index=mean, index_segments=vals, index_sd=sd,
         predicted_percent=predicted, targets=tuple(out_targets), level=level,

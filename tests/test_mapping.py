@@ -429,3 +429,57 @@ def test_fit_mapping_file_checks_options_before_reading(tmp_path):
         fit_mapping_file(tmp_path / "missing.csv", index="stoi", shape="weibull")
     with pytest.raises(InputError, match="does not exist"):
         fit_mapping_file(tmp_path / "missing.csv", index="stoi")
+
+
+# ---------------------------------------------------------------------------
+# Built-in published mappings
+# ---------------------------------------------------------------------------
+
+# Taal et al. 2011 (IEEE Trans. ASLP 19(7)), the fitted logistic f(d) = 100 / (1 + exp(a d + b)),
+# written here from the transcription: IEEE sentences a = -17.4906, b = 9.6921;
+# Dantale II a = -14.5435, b = 7.0792.
+TAAL = {"taal2011-ieee": (-17.4906, 9.6921), "taal2011-dantale": (-14.5435, 7.0792)}
+
+
+@pytest.mark.parametrize("name", sorted(TAAL))
+def test_published_mapping_is_the_paper_logistic(name):
+    from envpredict.mapping import published_mapping, read_mapping
+
+    a, b = TAAL[name]
+    d = np.linspace(0.3, 1.0, 15)
+    expected = 100.0 / (1.0 + np.exp(a * d + b))
+    for m in (published_mapping(name), read_mapping(name), read_mapping(name.upper())):
+        assert m.index == "stoi"
+        np.testing.assert_allclose(m.percent(d), expected, rtol=1e-12)
+        assert "Taal" in m.source and "secondary transcription" in m.source
+        assert any("secondary transcription" in n for n in m.notes)
+    # 50 % at d = -b / a
+    assert published_mapping(name).index_at(50.0) == pytest.approx(-b / a, rel=1e-12)
+
+
+def test_an_unknown_mapping_name_lists_the_known_ones(tmp_path):
+    from envpredict.mapping import published_mapping, read_mapping
+
+    for bad in (lambda: published_mapping("taal2012"), lambda: read_mapping("taal2012")):
+        with pytest.raises(InputError) as e:
+            bad()
+        assert "taal2011-ieee" in str(e.value) and "taal2011-dantale" in str(e.value)
+    with pytest.raises(InputError, match="does not exist.*taal2011-ieee"):
+        read_mapping(tmp_path / "missing.json")
+
+
+def test_cli_takes_a_built_in_mapping_wherever_map_is(tmp_path, capsys):
+    from cli_for_tests import run_cli
+
+    res = tmp_path / "results.csv"
+    res.write_text("item,stoi\na,0.5\nb,0.7\n")
+    code, out, err = run_cli(["predict", str(res), "--map", "taal2011-ieee", "--json"], capsys)
+    assert code == 0, err
+    import json
+
+    rows = json.loads(out)
+    assert "inputs" in rows
+    code, _out, err = run_cli(["predict", str(res), "--map", "taal-ieee"], capsys)
+    assert code == 2 and "taal2011-ieee" in err and "taal2011-dantale" in err
+    code, _out, err = run_cli(["sweep", "a.wav", "b.wav", "--map", "nope"], capsys)
+    assert code == 2 and "taal2011-ieee" in err

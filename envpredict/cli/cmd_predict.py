@@ -15,6 +15,9 @@ from ._common import (
 )
 
 
+#: Names of the built-in published mappings, for --map's help (envpredict.mapping.published_mapping).
+_BUILTIN_MAPS = ", ".join(sorted(std.TAAL2011_MAPPINGS))
+
 # ---------------------------------------------------------------------------
 # fitmap
 # ---------------------------------------------------------------------------
@@ -142,7 +145,8 @@ def sweep_command(
                                                       "when FROM is negative)."),
     index: str | None = typer.Option(None, "--index", help="Index: stoi, estoi, ssti or ssti_regression. Default: the "
                                                               "mapping's index, or stoi without a mapping."),
-    map_file: Path | None = typer.Option(None, "--map", help="Mapping (MAP.json from fitmap) for predicted "
+    map_file: Path | None = typer.Option(None, "--map", help="Mapping (MAP.json from fitmap, or a built-in "
+                                                                f"published one: {_BUILTIN_MAPS}) for predicted "
                                                                 "scores and target SNRs."),
     target: list[float] | None = typer.Option(None, "--target", help="Target score in percent; repeat for "
                                               f"several (default: {std.SRT_PERCENT:g}, the SRT)."),
@@ -188,7 +192,8 @@ def sweep_command(
 def predict_command(
     results: Path = typer.Argument(..., help="Results CSV (e.g. from batch) with an index column.",
                                    show_default=False),
-    map_file: Path = typer.Option(..., "--map", help="Mapping (MAP.json from fitmap).", show_default=False),
+    map_file: Path = typer.Option(..., "--map", help="Mapping (MAP.json from fitmap, or a built-in published one: "
+                                                     f"{_BUILTIN_MAPS}).", show_default=False),
     column: str | None = typer.Option(None, "--column", help="Column holding the index (default: the "
                                                                 "mapping's index name)."),
     name: str = typer.Option(PREDICTED_COLUMN, "--name", help="Name of the added column."),
