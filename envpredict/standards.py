@@ -518,6 +518,10 @@ SRT_PERCENT: float = 50.0
 MAPPING_SHAPE: str = "logistic"
 MAPPING_GUESS: float = 0.0
 MAPPING_LAPSE: float = 0.0
+#: Intervals of a fitted mapping: "quasi" (widened by the estimated dispersion, Pearson
+#: chi-square / df, when it exceeds 1; McCullagh & Nelder 1989, sec. 4.5.2) or
+#: "binomial" (judgement: intervals never narrower than the pilot's own scatter).
+MAPPING_DISPERSION: str = "quasi"
 #: Sample rate of generated test signals, Hz (judgement: the common rate of
 #: measurement recorders; the 8 kHz octave band needs more than 22.6 kHz).
 TEST_SIGNAL_RATE_HZ: int = 48000

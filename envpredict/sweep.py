@@ -478,9 +478,7 @@ def snr_sweep(
     predicted = None if mapping is None else mapping.percent(mean)
     tq = float(student_t.ppf(0.5 + CI_LEVEL / 2.0, offsets.size - 1)) if offsets.size > 1 else math.nan
 
-    from scipy.stats import norm
-
-    z_map = float(norm.ppf(0.5 + CI_LEVEL / 2.0))
+    z_map = mapping.quantile() if mapping is not None else math.nan
     out_targets = []
     for pct, xt in zip(target_list, x_targets):
         srt, i = _crossing(snrs, mean, xt)

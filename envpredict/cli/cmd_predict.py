@@ -47,6 +47,13 @@ def render_fit(d: dict, rows: list[list[str]]) -> str:
         lines += ["", (f"Goodness of fit (df = {f['df']}): deviance {fmt(f['deviance'], '.2f')} "
                       f"(p = {fmt(f['deviance_p'], '.3g')}), Pearson chi-square {fmt(f['pearson_chi2'], '.2f')} "
                       f"(p = {fmt(f['pearson_p'], '.3g')})")]
+    est = d.get("dispersion_estimate")
+    if d.get("interval_method") == "quasi-binomial":
+        lines.append(f"Intervals: quasi-binomial, dispersion (Pearson chi-square / df) {d['dispersion']:.3g}: "
+                     f"covariance x {d['dispersion']:.3g}, Student t with {d['ci_df']} df")
+    elif est is not None:
+        lines.append(f"Intervals: binomial (dispersion, Pearson chi-square / df, {est:.3g}"
+                     + (": at most 1, none applied)" if est <= 1 else ": not applied, --dispersion binomial)"))
     lines += ["", table(rows, [d["index"], "correct", "trials", "observed %", "fitted %"])]
     if d["notes"]:
         lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
@@ -67,6 +74,10 @@ def fitmap_command(
                                                      "closed-set test (0 for open-set tests)."),
     lapse: float = typer.Option(std.MAPPING_LAPSE, "--lapse", help="Fixed lapse rate (proportion of errors at the best "
                                                      "condition that are not due to the signal)."),
+    dispersion: str = typer.Option(std.MAPPING_DISPERSION, "--dispersion", metavar="[quasi|binomial]",
+                                   help="Intervals: quasi (widened by the estimated dispersion, Pearson chi-square / "
+                                        "df, when the pilot scatters more than binomial sampling allows) or "
+                                        "binomial (never widened)."),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help="Write the mapping (MAP.json) to this file, atomically."),
 ) -> None:
@@ -75,10 +86,10 @@ def fitmap_command(
 
     check_outputs(out=out, inputs=[scores])
     m, data = fit_mapping_file(scores, index=index, correct=correct, trials=trials, shape=shape, guess=guess,
-                               lapse=lapse)
+                               lapse=lapse, dispersion=dispersion)
     d = m.to_dict()
     d["inputs"] = {"scores": str(scores), "index": index, "correct": correct, "trials": trials, "shape": shape,
-                   "guess": guess, "lapse": lapse}
+                   "guess": guess, "lapse": lapse, "dispersion": dispersion}
     trows = [[f"{xi:.4g}", f"{ki:g}", f"{ni:g}", f"{oi:.1f}", f"{fi:.1f}"]
              for xi, ki, ni, oi, fi in zip(data.index_values, data.correct, data.trials, data.observed_percent,
                                            data.fitted_percent)]
