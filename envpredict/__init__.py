@@ -47,6 +47,8 @@ Active speech level (ITU-T P.56 method B)
     active_speech_level, ActiveLevel
 SNR sweeps and the SRT
     snr_sweep, snr_sweep_files, SweepResult
+Stimuli of a listening test
+    write_stimuli, write_stimuli_files, StimuliResult
 Corpora
     run_batch, read_results, compare_conditions, compare_conditions_file
 Site surveys
@@ -142,6 +144,10 @@ _API: dict[str, str] = {
     "snr_sweep": "envpredict.sweep",
     "snr_sweep_files": "envpredict.sweep",
     "SweepResult": "envpredict.sweep",
+    # stimuli
+    "write_stimuli": "envpredict.stimuli",
+    "write_stimuli_files": "envpredict.stimuli",
+    "StimuliResult": "envpredict.stimuli",
     # corpora: batches, result tables, comparisons
     "run_batch": "envpredict.batch",
     "run_survey": "envpredict.survey",

@@ -513,6 +513,11 @@ SWEEP_SNR_REFERENCE: str = "active"
 #: A. M. Mimpen, "Improving the reliability of testing the speech reception threshold
 #: for sentences", Audiology 18 (1979) 43-52 (SRT = SNR at 50 % sentences correct).
 SRT_PERCENT: float = 50.0
+#: Presentation level of written stimuli, dB re full scale: the level the speech (or the
+#: mixture) is brought to. -26 dB is the level ITU-T practice normalises speech to
+#: (active speech level -26 dBov, ITU-T P.56 with the G.191 tools; from memory), leaving
+#: room for the noise at low SNRs.
+STIMULI_LEVEL_DB: float = -26.0
 #: Shape of a fitted mapping and its fixed guess and lapse rates (judgement: the
 #: logistic of an open-set test, no floor, no lapses).
 MAPPING_SHAPE: str = "logistic"

@@ -14,7 +14,7 @@ LAYERS: tuple[str, ...] = (
     "standards", "exceptions", "results", "outputs", "_data",
     "bands", "audio", "speechlevel", "modulation", "sti", "cautions", "decay", "correlation", "pitch", "signals",
     "sinesweep", "deconvolve", "tables", "mapping",
-    "indirect", "direct", "pair", "timescales", "sweep", "stats", "batch", "survey", "refcases", "demo",
+    "indirect", "direct", "pair", "timescales", "sweep", "stimuli", "stats", "batch", "survey", "refcases", "demo",
     "report", "predict",
 )
 

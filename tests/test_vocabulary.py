@@ -33,7 +33,7 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
              "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track", "DemoResult",
              "StipaSignalResult", "FullStiSignalsResult", "SurveyResult", "SweepSignalResult",
-             "DeconvolutionResult", "ActiveLevel"}
+             "DeconvolutionResult", "ActiveLevel", "StimuliResult"}
 
 
 # ---------------------------------------------------------------------------
@@ -137,6 +137,8 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "SweepSignalResult": lambda: _in_tmp(lambda d: envpredict.write_sweep_signal(d / "sweep.wav", sweep_spec())),
         "DeconvolutionResult": deconvolution,
         "ActiveLevel": lambda: envpredict.active_speech_level(clean, fs),
+        "StimuliResult": lambda: _in_tmp(lambda d: envpredict.write_stimuli(
+            d / "st", clean, np.random.default_rng(3).standard_normal(2 * clean.size) * 0.05, fs, [-3, 3])),
     }
 
 
@@ -165,7 +167,7 @@ def _result_types() -> dict[str, type]:
 
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
-         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec"}
+         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec", "Stimulus"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):

@@ -137,6 +137,15 @@ def render_sweep(d: dict) -> str:
         if d["srt_db"] is not None:
             lines += ["", (f"Predicted SRT (50 %): {d['srt_db']:.1f} dB SNR, slope "
                           f"{d['slope_at_srt_percent_per_db']:.1f} %/dB")]
+    st = d.get("stimuli")
+    if st:
+        lines += ["", (f"Stimuli: {len(st['stimuli'])} file(s) in {st['folder']} (with {st['manifest']}), "
+                       f"presentation level {st['presentation_level_db'] + st['common_gain_db']:g} dB re full scale "
+                       f"({d['level_convention']} level), noise segments from seed {st['seed']}")]
+        lines.append(table([[s["file"], f"{s['snr_db']:g}", f"{s['speech_active_level_db']:.1f}",
+                             f"{s['noise_level_db']:.1f}", f"{s['peak_db']:.1f}"] for s in st["stimuli"]],
+                           ["file", "SNR dB", "speech dB", "noise dB", "peak dB"]))
+        lines += [f"  caution: {c}" for c in st["cautions"]]
     if d["notes"]:
         lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
     return "\n".join(line.rstrip() for line in "\n".join(lines).split("\n"))
@@ -171,6 +180,20 @@ def sweep_command(
                                       help="Speech level the SNR is referred to: active (ITU-T P.56 active speech "
                                            "level, pauses excluded, as speech tests set levels) or long-term "
                                            "(pauses included; envpredict's earlier convention)."),
+    write_stimuli: Path | None = typer.Option(None, "--write-stimuli", metavar="DIR",
+                                              help="Also write the mixtures (WAV) and a manifest.csv to this new or "
+                                                   "empty folder: at --stimuli-snr, else at the target SNRs found, "
+                                                   "else at the swept SNRs."),
+    stimuli_snr: list[float] | None = typer.Option(None, "--stimuli-snr", help="SNR of a stimulus, dB; repeat "
+                                                   "for several (write --stimuli-snr=-6 when negative)."),
+    presentation_level: float = typer.Option(std.STIMULI_LEVEL_DB, "--presentation-level",
+                                             help="Level of the stimuli, dB re full scale: of the speech (--level "
+                                                  "speech, by the SNR reference) or of the mixture (--level "
+                                                  "mixture)."),
+    scale_to_fit: bool = typer.Option(False, "--scale-to-fit", help="When a stimulus would clip, scale all of "
+                                                                     "them by one common factor (else refuse)."),
+    seed: int = typer.Option(std.TEST_SIGNAL_SEED, "--seed", help="Seed of the noise segments of the stimuli "
+                                                                  "(the same seed gives the same files)."),
     channel: int | None = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help="Also write the JSON result to this file (atomically)."),
@@ -180,6 +203,10 @@ def sweep_command(
     from envpredict.sweep import DEFAULT_INDEX, snr_sweep_files
 
     check_outputs(out=out, report=report, inputs=[clean, noise, ir, map_file])
+    if write_stimuli is not None:
+        from envpredict.stimuli import check_stimuli_folder
+
+        check_stimuli_folder(write_stimuli)
     shown = index or (None if map_file is not None else DEFAULT_INDEX)  # the mapping's index is read by the API
     with Progress(f"sweeping {shown}" if shown else "sweeping", None, quiet=as_json) as prog:
         res = snr_sweep_files(clean, noise, ir=ir, snr_db=snr, index=index, mapping=map_file, targets=target,
@@ -189,7 +216,15 @@ def sweep_command(
     d = res.to_dict()
     d["inputs"] = {"clean": str(clean), "noise": str(noise), "ir": None if ir is None else str(ir),
                    "map": None if map_file is None else str(map_file), "index": name, "snr": snr,
-                   "segments": segments, "level": level, "snr_reference": res.snr_reference}
+                   "segments": segments, "level": level, "snr_reference": res.snr_reference,
+                   "write_stimuli": None if write_stimuli is None else str(write_stimuli)}
+    if write_stimuli is not None:
+        from envpredict.stimuli import stimulus_snrs, write_stimuli_files
+
+        stim = write_stimuli_files(write_stimuli, clean, noise, stimulus_snrs(res, stimuli_snr), ir=ir,
+                                   channel=channel, snr_reference=res.snr_reference, level=level,
+                                   presentation_level_db=presentation_level, scale_to_fit=scale_to_fit, seed=seed)
+        d["stimuli"] = stim.to_dict()
     write_report_if(report, "sweep", d, as_json=as_json,
                     title=f"Predicted scores against SNR: {clean.name} in {noise.name}")
     emit(d, lambda: render_sweep(d), as_json, out)
