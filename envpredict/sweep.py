@@ -141,7 +141,8 @@ class SweepTarget:
     mean index curve reaches ``index -+ z * se`` (``se`` of the inverse mapping by the
     delta method from the fitted covariance); ``None`` without a covariance or when an
     end falls outside the swept range. ``None`` where the target is not reached inside
-    the swept range.
+    the swept range. With a processing chain, ``unprocessed_snr_db`` is the same target's
+    SNR without the chain (when it was swept too) and ``benefit_db`` the difference.
     """
 
     percent: float
@@ -155,6 +156,7 @@ class SweepTarget:
     map_ci_low: float | None = None
     map_ci_high: float | None = None
     note: str = ""
+    unprocessed_snr_db: float | None = None
 
     def to_dict(self) -> dict:
         return jsonable({
@@ -163,7 +165,17 @@ class SweepTarget:
             "segment_snr_db": list(self.segment_snr_db),
             "slope_percent_per_db": self.slope_percent_per_db,
             "map_ci_low": self.map_ci_low, "map_ci_high": self.map_ci_high, "note": self.note or None,
+            "unprocessed_snr_db": self.unprocessed_snr_db, "benefit_db": self.benefit_db,
         })
+
+    @property
+    def benefit_db(self) -> float | None:
+        """Predicted benefit of the processing chain at this target, dB: the SNR the
+        unprocessed mixtures need minus the SNR the processed ones need (``None`` unless
+        both were found)."""
+        if self.unprocessed_snr_db is None or self.snr_db is None:
+            return None
+        return self.unprocessed_snr_db - self.snr_db
 
 
 @dataclass(frozen=True)
@@ -282,6 +294,59 @@ def _crossing(snr: np.ndarray, curve: np.ndarray, level: float) -> tuple[float |
             s = snr[i] + (level - c0) * (snr[i + 1] - snr[i]) / (c1 - c0)
             return float(s), i
     return None, None
+
+
+def load_process(spec: str) -> Callable[[np.ndarray, int], np.ndarray]:
+    """The processing chain named ``"MODULE:FUNCTION"`` (a module on the Python path or the
+    current folder, or a ``path/to/file.py``), wrapped so that an exception it raises
+    becomes one :class:`InputError` naming it.
+
+    The function is called as ``FUNCTION(mixture, fs)`` and must return the processed
+    mixture, of the same length and time-aligned (see :func:`snr_sweep`).
+    """
+    import importlib
+    import importlib.util
+    import sys
+    from pathlib import Path
+
+    fix = "give --process MODULE:FUNCTION, a function f(mixture, fs) -> processed mixture"
+    text = str(spec).strip()
+    mod_name, sep, func_name = text.rpartition(":")
+    if not sep or not mod_name or not func_name.isidentifier():
+        raise InputError(f"--process '{spec}' is not MODULE:FUNCTION", fix)
+    try:
+        if mod_name.endswith(".py") or "/" in mod_name or "\\" in mod_name:
+            path = Path(mod_name)
+            if not path.is_file():
+                raise InputError(f"--process '{spec}': file '{path}' does not exist", fix)
+            loader_spec = importlib.util.spec_from_file_location(f"envpredict_process_{path.stem}", path)
+            module = importlib.util.module_from_spec(loader_spec)
+            loader_spec.loader.exec_module(module)
+        else:
+            added = "" not in sys.path and os.getcwd() not in sys.path
+            if added:
+                sys.path.insert(0, os.getcwd())
+            try:
+                module = importlib.import_module(mod_name)
+            finally:
+                if added:
+                    sys.path.remove(os.getcwd())
+    except InputError:
+        raise
+    except Exception as e:  # noqa: BLE001 -- any failure of the user's module is reported in one line
+        raise InputError(f"--process '{spec}' cannot be imported ({type(e).__name__}: {e})", fix) from None
+    func = getattr(module, func_name, None)
+    if not callable(func):
+        raise InputError(f"--process '{spec}': '{func_name}' is not a function of '{mod_name}'", fix)
+
+    def chain(mix: np.ndarray, fs: int) -> np.ndarray:
+        try:
+            return func(mix, fs)
+        except Exception as e:  # noqa: BLE001 -- the user's chain failed: say so in one line
+            raise InputError(f"the processing chain '{spec}' raised {type(e).__name__}: {e}",
+                             "fix the function (it is called as FUNCTION(mixture, fs))") from None
+
+    return chain
 
 
 def _processed(process: Callable[[np.ndarray, int], np.ndarray], mix: np.ndarray, fs: int,
@@ -559,6 +624,7 @@ def snr_sweep_files(
     level: str = std.SWEEP_LEVEL,
     snr_reference: str = std.SWEEP_SNR_REFERENCE,
     channel: int | None = None,
+    process: Callable[[np.ndarray, int], np.ndarray] | str | None = None,
     progress: Callable[[int, int], None] | None = None,
 ) -> SweepResult:
     """:func:`snr_sweep` of audio files: clean speech, a noise recording and an optional IR.
@@ -579,11 +645,16 @@ def snr_sweep_files(
     targets : target scores, percent (default: the SRT, 50 %); they need a mapping.
     n_segments, level, snr_reference, progress : as for :func:`snr_sweep`.
     channel : channel of multi-channel files (0 = first).
+    process : a processing chain ``f(mixture, fs)`` or its ``"MODULE:FUNCTION"`` name
+        (:func:`load_process`). With a mapping, the sweep is also run without it, and
+        each target gets its unprocessed SNR and the chain's predicted benefit in dB.
 
     Returns
     -------
     SweepResult
     """
+    from dataclasses import replace
+
     from .audio import load_audio, resample
     from .mapping import read_mapping
 
@@ -591,6 +662,7 @@ def snr_sweep_files(
     if level not in LEVEL_CONVENTIONS:
         raise InputError(f"unknown level convention '{level}'", "use --level speech or --level mixture")
     reference = check_snr_reference(snr_reference)
+    chain = load_process(process) if isinstance(process, str) else process
     if not isinstance(n_segments, (int, np.integer)) or not 1 <= n_segments <= MAX_SEGMENTS:
         raise InputError(f"--segments {n_segments} is outside 1..{MAX_SEGMENTS}", "give e.g. --segments 5")
     m = mapping if mapping is None or isinstance(mapping, ScoreMapping) else read_mapping(mapping)
@@ -618,10 +690,26 @@ def snr_sweep_files(
         if fs_h != fs:
             notes.append(f"the impulse response was resampled from {fs_h} Hz to {fs} Hz")
             h = resample(h, fs_h, fs)
-    res = snr_sweep(x, nz, fs, snr_db=snrs, index=name, mapping=m, targets=target_list, ir=h,
-                    n_segments=n_segments, level=level, snr_reference=reference, progress=progress)
-    if notes:
-        from dataclasses import replace
+    kw = dict(snr_db=snrs, index=name, mapping=m, targets=target_list, ir=h, n_segments=n_segments, level=level,
+              snr_reference=reference)
+    if chain is not None and m is not None:
+        total = 2 * len(snrs) * n_segments
+        half = total // 2
 
+        def first(done, _total):
+            if progress is not None:
+                progress(done, total)
+
+        def second(done, _total):
+            if progress is not None:
+                progress(half + done, total)
+
+        plain = snr_sweep(x, nz, fs, progress=first, **kw)
+        res = snr_sweep(x, nz, fs, process=chain, progress=second, **kw)
+        res = replace(res, targets=tuple(replace(t, unprocessed_snr_db=u.snr_db)
+                                         for t, u in zip(res.targets, plain.targets)))
+    else:
+        res = snr_sweep(x, nz, fs, process=chain, progress=progress, **kw)
+    if notes:
         res = replace(res, notes=tuple(notes) + res.notes)
     return res

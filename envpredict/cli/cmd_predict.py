@@ -137,6 +137,11 @@ def render_sweep(d: dict) -> str:
         if d["srt_db"] is not None:
             lines += ["", (f"Predicted SRT (50 %): {d['srt_db']:.1f} dB SNR, slope "
                           f"{d['slope_at_srt_percent_per_db']:.1f} %/dB")]
+        if d.get("processed") and any(t.get("unprocessed_snr_db") is not None for t in d["targets"]):
+            lines += ["", "Predicted benefit of the processing chain (SNR without it minus SNR with it):"]
+            lines.append(table([[f"{t['percent']:g} %", fmt(t["unprocessed_snr_db"], ".1f"), fmt(t["snr_db"], ".1f"),
+                                 fmt(t["benefit_db"], "+.1f")] for t in d["targets"]],
+                               ["target", "unprocessed dB", "processed dB", "benefit dB"]))
     st = d.get("stimuli")
     if st:
         lines += ["", (f"Stimuli: {len(st['stimuli'])} file(s) in {st['folder']} (with {st['manifest']}), "
@@ -180,6 +185,11 @@ def sweep_command(
                                       help="Speech level the SNR is referred to: active (ITU-T P.56 active speech "
                                            "level, pauses excluded, as speech tests set levels) or long-term "
                                            "(pauses included; envpredict's earlier convention)."),
+    process: str | None = typer.Option(None, "--process", metavar="MODULE:FUNCTION",
+                                       help="Processing chain applied to each mixture before the index: a function "
+                                            "f(mixture, fs) -> processed mixture (module on the Python path or in "
+                                            "the current folder, or path/to/file.py:FUNCTION). With --map the "
+                                            "predicted benefit in dB is given per target."),
     write_stimuli: Path | None = typer.Option(None, "--write-stimuli", metavar="DIR",
                                               help="Also write the mixtures (WAV) and a manifest.csv to this new or "
                                                    "empty folder: at --stimuli-snr, else at the target SNRs found, "
@@ -207,17 +217,22 @@ def sweep_command(
         from envpredict.stimuli import check_stimuli_folder
 
         check_stimuli_folder(write_stimuli)
+    chain = None
+    if process is not None:
+        from envpredict.sweep import load_process
+
+        chain = load_process(process)
     shown = index or (None if map_file is not None else DEFAULT_INDEX)  # the mapping's index is read by the API
     with Progress(f"sweeping {shown}" if shown else "sweeping", None, quiet=as_json) as prog:
         res = snr_sweep_files(clean, noise, ir=ir, snr_db=snr, index=index, mapping=map_file, targets=target,
                               n_segments=segments, level=level, snr_reference=snr_reference, channel=channel,
-                              progress=prog)
+                              process=chain, progress=prog)
     name = res.index_name
     d = res.to_dict()
     d["inputs"] = {"clean": str(clean), "noise": str(noise), "ir": None if ir is None else str(ir),
                    "map": None if map_file is None else str(map_file), "index": name, "snr": snr,
                    "segments": segments, "level": level, "snr_reference": res.snr_reference,
-                   "write_stimuli": None if write_stimuli is None else str(write_stimuli)}
+                   "write_stimuli": None if write_stimuli is None else str(write_stimuli), "process": process}
     if write_stimuli is not None:
         from envpredict.stimuli import stimulus_snrs, write_stimuli_files
 
