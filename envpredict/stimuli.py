@@ -309,7 +309,12 @@ def write_stimuli_files(
 
     from .audio import load_audio, resample
 
+    from .sweep import sentence_files
+
     check_stimuli_folder(folder)
+    if len(sentence_files(clean)) > 1:
+        raise InputError("stimuli from several sentences are not written yet",
+                         "write them per sentence (one --write-stimuli folder per sentence file)")
     x, fs = load_audio(clean, channel, name="clean speech")
     nz, fs_n = load_audio(noise, channel, name="noise")
     notes = []

@@ -143,6 +143,11 @@ class SweepTarget:
     end falls outside the swept range. ``None`` where the target is not reached inside
     the swept range. With a processing chain, ``unprocessed_snr_db`` is the same target's
     SNR without the chain (when it was swept too) and ``benefit_db`` the difference.
+    With several sentences (:func:`snr_sweep_sentences`), ``sentence_ci_*`` is the
+    interval from the spread of the per-sentence crossings, ``combined_ci_*`` the one
+    from sentences and noise segments together (standard errors added in quadrature,
+    Welch-Satterthwaite degrees of freedom) and ``total_ci_*`` adds the mapping's
+    uncertainty.
     """
 
     percent: float
@@ -157,6 +162,13 @@ class SweepTarget:
     map_ci_high: float | None = None
     note: str = ""
     unprocessed_snr_db: float | None = None
+    sentence_sd_db: float | None = None
+    sentence_ci_low: float | None = None
+    sentence_ci_high: float | None = None
+    combined_ci_low: float | None = None
+    combined_ci_high: float | None = None
+    total_ci_low: float | None = None
+    total_ci_high: float | None = None
 
     def to_dict(self) -> dict:
         return jsonable({
@@ -166,6 +178,10 @@ class SweepTarget:
             "slope_percent_per_db": self.slope_percent_per_db,
             "map_ci_low": self.map_ci_low, "map_ci_high": self.map_ci_high, "note": self.note or None,
             "unprocessed_snr_db": self.unprocessed_snr_db, "benefit_db": self.benefit_db,
+            "sentence_sd_db": self.sentence_sd_db, "sentence_ci_low": self.sentence_ci_low,
+            "sentence_ci_high": self.sentence_ci_high, "combined_ci_low": self.combined_ci_low,
+            "combined_ci_high": self.combined_ci_high, "total_ci_low": self.total_ci_low,
+            "total_ci_high": self.total_ci_high,
         })
 
     @property
@@ -223,6 +239,9 @@ class SweepResult:
     notes: tuple[str, ...] = field(default_factory=tuple)
     snr_reference: str = std.SWEEP_SNR_REFERENCE
     speech_level: ActiveLevel | None = None
+    sentences: tuple[str, ...] = ()
+    sentence_sd: np.ndarray | None = None
+    sentence_activity: tuple[float | None, ...] = ()
 
     @property
     def srt_db(self) -> float | None:
@@ -253,6 +272,10 @@ class SweepResult:
             "activity_factor": None if lev is None else round(lev.activity_factor, 4),
             "speech_active_level_db": None if lev is None else round(lev.active_level_db, 2),
             "speech_long_term_level_db": None if lev is None else round(lev.long_term_level_db, 2),
+            "n_sentences": max(1, len(self.sentences)),
+            "sentences": list(self.sentences),
+            "sentence_sd": None if self.sentence_sd is None else np.round(self.sentence_sd, 5),
+            "sentence_activity_factors": [None if a is None else round(a, 4) for a in self.sentence_activity],
             "n_segments": len(self.segment_offsets_s),
             "segment_offsets_s": self.segment_offsets_s,
             "reverberant": self.reverberant,
@@ -598,6 +621,148 @@ def snr_sweep(
     )
 
 
+def _half(sd: float, n: int) -> tuple[float, float]:
+    """Standard error of a mean of ``n`` values with standard deviation ``sd``, and its df."""
+    return sd / math.sqrt(n), float(n - 1)
+
+
+def snr_sweep_sentences(
+    sentences: Sequence[np.ndarray],
+    noise: np.ndarray,
+    fs: int,
+    *,
+    names: Sequence[str] | None = None,
+    mapping: ScoreMapping | None = None,
+    targets: Sequence[float] = (std.SRT_PERCENT,),
+    progress: Callable[[int, int], None] | None = None,
+    **options,
+) -> SweepResult:
+    """:func:`snr_sweep` over several sentences: the spread over sentences as well as
+    over noise segments.
+
+    Each sentence is swept on its own (its own active level, its own noise segments, as
+    :func:`snr_sweep` with ``options``); the index per SNR is the mean over sentences and
+    segments. ``index_sd`` is the standard deviation over noise segments of the
+    sentence-averaged index, ``sentence_sd`` the standard deviation over sentences of
+    the segment-averaged index. For each target, the SNR is where the grand mean curve
+    reaches the target's index value; the per-sentence curves and the per-segment curves
+    give crossings whose spreads make the sentence and segment intervals (Student t);
+    their standard errors added in quadrature make the combined interval
+    (Welch-Satterthwaite df), and adding the mapping's own standard error (from its
+    interval in dB; infinite df, or the mapping's own with quasi-binomial intervals) the
+    total one. The segments of different sentences are
+    different stretches of the noise when the sentences differ in length: the segment
+    spread then also holds some sentence-to-sentence variation (a note says so).
+
+    Parameters
+    ----------
+    sentences : clean sentences, each 1-D at ``fs`` (at least two).
+    noise : noise at ``fs``, at least as long as the longest sentence.
+    fs : sample rate, Hz.
+    names : a name per sentence (e.g. its file name), for the result.
+    mapping, targets, progress : as for :func:`snr_sweep`.
+    options : the other options of :func:`snr_sweep` (``snr_db``, ``index``, ``ir``,
+        ``n_segments``, ``level``, ``snr_reference``, ``index_functions``, ``process``).
+
+    Returns
+    -------
+    SweepResult
+        with ``sentences``, ``sentence_sd`` and ``sentence_activity`` filled in, and the
+        sentence, combined and total intervals in each target.
+    """
+    from scipy.stats import norm
+    from scipy.stats import t as student_t
+
+    items = list(sentences)
+    if len(items) < 2:
+        raise InputError(f"{len(items)} sentence(s) given", "give at least two sentences (or sweep one with snr_sweep)")
+    labels = [str(n) for n in names] if names is not None else [f"sentence {i + 1}" for i in range(len(items))]
+    if len(labels) != len(items):
+        raise InputError("names and sentences differ in number", "give one name per sentence")
+    runs = []
+    for i, x in enumerate(items):
+        step = None if progress is None else (lambda done, total, i=i: progress(i * total + done, len(items) * total))
+        runs.append(snr_sweep(x, noise, fs, mapping=mapping, targets=targets, progress=step, **options))
+    first = runs[0]
+    if any(r.index_segments.shape != first.index_segments.shape for r in runs):
+        raise InputError("the sentences give different numbers of noise segments", "give a longer noise")
+    vals = np.stack([r.index_segments for r in runs])  # (sentence, snr, segment)
+    snrs, n_sent, n_seg = first.snr_db, vals.shape[0], vals.shape[2]
+    mean = vals.mean(axis=(0, 2))
+    seg_curves = vals.mean(axis=0)  # (snr, segment)
+    sent_curves = vals.mean(axis=2)  # (sentence, snr)
+    seg_sd = seg_curves.std(axis=1, ddof=1) if n_seg > 1 else np.zeros(snrs.size)
+    sent_sd = sent_curves.std(axis=0, ddof=1)
+    q = 0.5 + CI_LEVEL / 2.0
+    notes = [f"{n_sent} sentences, each at its own level and with its own noise segments"]
+    if len({r.duration_s for r in runs}) > 1 and n_seg > 1:
+        notes.append("the sentences differ in length, so their noise segments are different stretches of the "
+                     "noise: the segment spread also holds some of the sentence-to-sentence variation")
+    out_targets = []
+    for k, t0 in enumerate(first.targets):
+        xt = t0.index
+        srt, i = _crossing(snrs, mean, xt)
+        seg_x = [_crossing(snrs, seg_curves[:, j], xt)[0] for j in range(n_seg)]
+        sent_x = [_crossing(snrs, sent_curves[s_, :], xt)[0] for s_ in range(n_sent)]
+        note = ""
+        lo = hi = s_lo = s_hi = c_lo = c_hi = tot_lo = tot_hi = seg_sd_db = sent_sd_db = slope = None
+        m_lo = m_hi = None
+        if srt is None:
+            note = t0.note or f"{t0.percent:g} % is not reached inside the swept range"
+        else:
+            slope = float(100.0 * mapping.derivative(xt) * (mean[i + 1] - mean[i]) / (snrs[i + 1] - snrs[i]))
+            se2, dfs = [], []
+            if n_seg > 1 and all(v is not None for v in seg_x):
+                seg_sd_db = float(np.std(seg_x, ddof=1))
+                se, df = _half(seg_sd_db, n_seg)
+                h = float(student_t.ppf(q, df)) * se
+                lo, hi = srt - h, srt + h
+                se2.append(se * se)
+                dfs.append(df)
+            if all(v is not None for v in sent_x):
+                sent_sd_db = float(np.std(sent_x, ddof=1))
+                se, df = _half(sent_sd_db, n_sent)
+                h = float(student_t.ppf(q, df)) * se
+                s_lo, s_hi = srt - h, srt + h
+                se2.append(se * se)
+                dfs.append(df)
+            else:
+                note = "some sentences do not reach the target inside the swept range: no sentence interval"
+            if len(se2) == 2 or (se2 and n_seg == 1):
+                v = sum(se2)
+                df = v * v / sum(a * a / d for a, d in zip(se2, dfs)) if all(d > 0 for d in dfs) else math.inf
+                h = float(student_t.ppf(q, df)) * math.sqrt(v)
+                c_lo, c_hi = srt - h, srt + h
+                if mapping.cov is not None:
+                    half_x = mapping.quantile() * mapping.index_sd_at(t0.percent)
+                    m_lo = _crossing(snrs, mean, xt - half_x)[0]
+                    m_hi = _crossing(snrs, mean, xt + half_x)[0]
+                    if m_lo is not None and m_hi is not None:
+                        m2 = ((m_hi - m_lo) / (2.0 * mapping.quantile())) ** 2
+                        w = sum(a * a / d for a, d in zip(se2, dfs)) + (
+                            0.0 if mapping.ci_df is None else m2 * m2 / mapping.ci_df)
+                        df_t = (v + m2) ** 2 / w if w > 0 else math.inf
+                        ht = float(student_t.ppf(q, df_t) if math.isfinite(df_t) else norm.ppf(q)) * math.sqrt(v + m2)
+                        tot_lo, tot_hi = srt - ht, srt + ht
+                    else:
+                        m_lo = m_hi = None
+        out_targets.append(SweepTarget(
+            percent=t0.percent, index=xt, snr_db=srt, ci_low=lo, ci_high=hi, segment_sd_db=seg_sd_db,
+            segment_snr_db=tuple(seg_x), slope_percent_per_db=slope, map_ci_low=m_lo, map_ci_high=m_hi, note=note,
+            sentence_sd_db=sent_sd_db, sentence_ci_low=s_lo, sentence_ci_high=s_hi, combined_ci_low=c_lo,
+            combined_ci_high=c_hi, total_ci_low=tot_lo, total_ci_high=tot_hi))
+    carried = [n for n in first.notes if n.startswith("mapping: ") or "extrapolation" in n or "overlap" in n]
+    from dataclasses import replace
+
+    return replace(
+        first, index=mean, index_segments=seg_curves, index_sd=seg_sd,
+        predicted_percent=None if mapping is None else mapping.percent(mean), targets=tuple(out_targets),
+        duration_s=float(sum(r.duration_s for r in runs)), speech_level=None, sentences=tuple(labels),
+        sentence_sd=sent_sd, sentence_activity=tuple(None if r.speech_level is None
+                                                     else r.speech_level.activity_factor for r in runs),
+        notes=tuple(notes + carried))
+
+
 def _speech_level(speech: np.ndarray, fs: int, reference: str) -> ActiveLevel | None:
     """The speech's P.56 active level; ``None`` where it has none and the long-term
     reference does not need it."""
@@ -611,8 +776,40 @@ def _speech_level(speech: np.ndarray, fs: int, reference: str) -> ActiveLevel | 
 
 
 
+def sentence_files(clean: str | os.PathLike | Sequence[str | os.PathLike]) -> list:
+    """The clean-speech files of a sweep: a list of paths, the audio files of a folder
+    (sorted by name), the paths listed in a text file (``.txt``/``.lst``: one per line,
+    relative to the list's folder; blank lines and lines starting with ``#`` skipped), or
+    one audio file."""
+    from pathlib import Path
+
+    from .audio import audio_files_in
+
+    if isinstance(clean, (list, tuple)):
+        files = [Path(c) for c in clean]
+    else:
+        p = Path(clean)
+        if p.is_dir():
+            files = audio_files_in(p)
+            if not files:
+                raise InputError(f"folder '{p}' holds no audio files", "give a folder of WAV/FLAC/OGG sentences")
+        elif p.suffix.lower() in (".txt", ".lst") and p.is_file():
+            try:
+                lines = p.read_text(encoding="utf-8").splitlines()
+            except (OSError, UnicodeDecodeError) as e:
+                raise InputError(f"sentence list '{p}' cannot be read ({e})", "give a UTF-8 text file") from None
+            files = [p.parent / q.strip() for q in lines if q.strip() and not q.strip().startswith("#")]
+            if not files:
+                raise InputError(f"sentence list '{p}' names no files", "give one audio file per line")
+        else:
+            files = [p]
+    if not files:
+        raise InputError("no clean-speech files given", "give a file, a folder of sentences or a list")
+    return files
+
+
 def snr_sweep_files(
-    clean: str | os.PathLike,
+    clean: str | os.PathLike | Sequence[str | os.PathLike],
     noise: str | os.PathLike,
     *,
     ir: str | os.PathLike | None = None,
@@ -637,6 +834,10 @@ def snr_sweep_files(
     Parameters
     ----------
     clean, noise : audio files (WAV, FLAC, OGG); the noise at least as long as the speech.
+        ``clean`` may also name several sentences (:func:`sentence_files`: a folder, a
+        list file or a sequence of paths); they are swept by :func:`snr_sweep_sentences`,
+        each at its own level, and resampled to the first one's rate where theirs
+        differs (a note says so).
     ir : impulse-response file applied to the speech, or ``None``.
     snr_db : SNRs, dB: ``"FROM:TO:STEP"`` (:func:`parse_snr_range`) or a sequence.
     index : index to compute (:data:`SWEEP_INDICES`); default: the mapping's index, or
@@ -678,9 +879,17 @@ def snr_sweep_files(
     target_list = list(targets) if targets else [std.SRT_PERCENT]
     _check_options(snrs, name, default_index_functions(), level, n_segments, m, target_list)
 
-    x, fs = load_audio(clean, channel, name="clean speech")
-    nz, fs_n = load_audio(noise, channel, name="noise")
+    files = sentence_files(clean)
+    x, fs = load_audio(files[0], channel, name="clean speech" if len(files) == 1 else f"sentence '{files[0]}'")
     notes = []
+    xs = [x]
+    for f in files[1:]:
+        y, fs_y = load_audio(f, channel, name=f"sentence '{f}'")
+        if fs_y != fs:
+            notes.append(f"sentence '{f.name}' was resampled from {fs_y} Hz to {fs} Hz")
+            y = resample(y, fs_y, fs)
+        xs.append(y)
+    nz, fs_n = load_audio(noise, channel, name="noise")
     if fs_n != fs:
         notes.append(f"the noise was resampled from {fs_n} Hz to {fs} Hz")
         nz = resample(nz, fs_n, fs)
@@ -692,24 +901,30 @@ def snr_sweep_files(
             h = resample(h, fs_h, fs)
     kw = dict(snr_db=snrs, index=name, mapping=m, targets=target_list, ir=h, n_segments=n_segments, level=level,
               snr_reference=reference)
+    if len(xs) > 1:
+        names = [f.name for f in files]
+
+        def sweep(process, prog):
+            return snr_sweep_sentences(xs, nz, fs, names=names, process=process, progress=prog, **kw)
+    else:
+        def sweep(process, prog):
+            return snr_sweep(x, nz, fs, process=process, progress=prog, **kw)
+
     if chain is not None and m is not None:
-        total = 2 * len(snrs) * n_segments
-        half = total // 2
-
-        def first(done, _total):
+        def first(done, total):
             if progress is not None:
-                progress(done, total)
+                progress(done, 2 * total)
 
-        def second(done, _total):
+        def second(done, total):
             if progress is not None:
-                progress(half + done, total)
+                progress(total + done, 2 * total)
 
-        plain = snr_sweep(x, nz, fs, progress=first, **kw)
-        res = snr_sweep(x, nz, fs, process=chain, progress=second, **kw)
+        plain = sweep(None, first)
+        res = sweep(chain, second)
         res = replace(res, targets=tuple(replace(t, unprocessed_snr_db=u.snr_db)
                                          for t, u in zip(res.targets, plain.targets)))
     else:
-        res = snr_sweep(x, nz, fs, process=chain, progress=progress, **kw)
+        res = sweep(chain, progress)
     if notes:
         res = replace(res, notes=tuple(notes) + res.notes)
     return res

@@ -440,3 +440,79 @@ def test_cli_process_refusals(tmp_path, capsys, signals, spec, what):
                               spec.replace("CHAIN", str(tmp_path / "chain.py"))], capsys)
     assert code == 2 and what in err and out == ""
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
+
+
+# ---------------------------------------------------------------------------
+# Many sentences
+# ---------------------------------------------------------------------------
+
+def _sentences():
+    from signals_for_tests import speech_like
+
+    # different lengths and levels: each sentence is mixed at its own active level
+    return [speech_like(2.0 + 0.3 * i, FS, seed=20 + i) * (0.5 + 0.2 * i) for i in range(5)]
+
+
+def test_many_sentences_spread_and_intervals(signals):
+    from envpredict.sweep import snr_sweep_sentences
+
+    _clean, noise = signals
+    sents = _sentences()
+    m = ScoreMapping(index="probe", shape="logistic", a=-8.0, b=16.0, cov=np.array([[0.5, -0.8], [-0.8, 1.5]]))
+    kw = {"snr_db": np.arange(-12, 13, 3.0), "index": "probe", "n_segments": 3,
+          "index_functions": {"probe": power_index}}
+    res = snr_sweep_sentences(sents, noise, FS, mapping=m, names=[f"s{i}" for i in range(5)], **kw)
+    single = [snr_sweep(x, noise, FS, mapping=m, **kw) for x in sents]
+    per = np.stack([r.index_segments for r in single])  # (sentence, snr, segment)
+    np.testing.assert_allclose(res.index, per.mean(axis=(0, 2)), atol=1e-12)
+    np.testing.assert_allclose(res.sentence_sd, per.mean(axis=2).std(axis=0, ddof=1), atol=1e-12)
+    np.testing.assert_allclose(res.index_sd, per.mean(axis=0).std(axis=1, ddof=1), atol=1e-12)
+    d = res.to_dict()
+    assert d["n_sentences"] == 5 and d["sentences"] == ["s0", "s1", "s2", "s3", "s4"]
+    assert len(d["sentence_activity_factors"]) == 5
+    t = res.targets[0]
+    x_t = (logit(0.5) - m.a) / m.b  # the index at 50 %
+    snr = res.snr_db
+    # crossings by linear interpolation (np.interp on rising curves), interval by scipy.stats.t
+    sent_x = [np.interp(x_t, c, snr) for c in per.mean(axis=2)]
+    seg_x = [np.interp(x_t, c, snr) for c in per.mean(axis=0).T]
+    assert t.snr_db == pytest.approx(np.interp(x_t, res.index, snr), abs=1e-9)
+    se_sent = np.std(sent_x, ddof=1) / np.sqrt(5)
+    se_seg = np.std(seg_x, ddof=1) / np.sqrt(3)
+    assert t.sentence_sd_db == pytest.approx(np.std(sent_x, ddof=1), abs=1e-9)
+    assert t.sentence_ci_high - t.snr_db == pytest.approx(stats.t.ppf(0.975, 4) * se_sent, abs=1e-9)
+    assert t.ci_high - t.snr_db == pytest.approx(stats.t.ppf(0.975, 2) * se_seg, abs=1e-9)
+    v = se_sent ** 2 + se_seg ** 2
+    df = v ** 2 / (se_sent ** 4 / 4 + se_seg ** 4 / 2)  # Welch-Satterthwaite
+    assert t.combined_ci_high - t.snr_db == pytest.approx(stats.t.ppf(0.975, df) * np.sqrt(v), abs=1e-9)
+    assert t.total_ci_high - t.snr_db > t.combined_ci_high - t.snr_db
+    with pytest.raises(InputError):
+        snr_sweep_sentences(sents[:1], noise, FS, **kw)
+
+
+def test_sentence_folder_and_list_from_files(tmp_path, capsys, signals):
+    from envpredict.sweep import sentence_files, snr_sweep_files
+
+    _clean, noise = signals
+    folder = tmp_path / "sentences"
+    folder.mkdir()
+    sents = _sentences()[:3]
+    for i, x in enumerate(sents):
+        sf.write(folder / f"s{i}.wav", x, FS, subtype="DOUBLE")
+    sf.write(folder / "s9.wav", sents[0][::2], FS // 2, subtype="DOUBLE")  # another rate: resampled
+    (folder / "notes.txt").write_text("not audio")
+    nw = tmp_path / "noise.wav"
+    sf.write(nw, noise, FS, subtype="DOUBLE")
+    assert [p.name for p in sentence_files(folder)] == ["s0.wav", "s1.wav", "s2.wav", "s9.wav"]
+    lst = tmp_path / "list.txt"
+    lst.write_text("# my sentences\nsentences/s0.wav\n\nsentences/s2.wav\n")
+    assert sentence_files(lst) == [tmp_path / "sentences/s0.wav", tmp_path / "sentences/s2.wav"]
+    res = snr_sweep_files(folder, nw, snr_db="-6:6:6", n_segments=2)
+    assert res.to_dict()["n_sentences"] == 4
+    assert any("s9.wav" in n and "resampled from 8000 Hz" in n for n in res.notes)
+    code, out, err = run_cli(["sweep", str(lst), str(nw), "--snr=-6:6:6", "--segments", "2"], capsys)
+    assert code == 0, err
+    assert "2 sentences" in out and "sd sentences" in out
+    (folder / "s5.wav").write_bytes(b"RIFF broken")
+    code, out, err = run_cli(["sweep", str(folder), str(nw), "--snr=-6:6:6", "--segments", "2"], capsys)
+    assert code == 2 and "s5.wav" in err and len(err.strip().splitlines()) == 1

@@ -103,8 +103,10 @@ def fitmap_command(
 # ---------------------------------------------------------------------------
 
 def render_sweep(d: dict) -> str:
+    many = d.get("n_sentences", 1) > 1
+    what = f"{d['n_sentences']} sentences ({d['duration_s']:.2f} s)" if many else f"{d['duration_s']:.2f} s"
     lines = [
-        (f"SNR sweep: {d['index']} of {d['duration_s']:.2f} s of speech"
+        (f"SNR sweep: {d['index']} of {what} of speech"
         f"{' through the impulse response' if d['reverberant'] else ''}, {d['n_segments']} noise segment(s) per SNR"),
         f"SNR reference: {d['snr_reference_text']}",
         f"Level convention: {d['level_convention_text']}",
@@ -115,10 +117,12 @@ def render_sweep(d: dict) -> str:
                      f"{100 * d['activity_factor']:.1f} % (ITU-T P.56 method B)")
     lines.append("")
     mapped = d["predicted_percent"] is not None
-    head = ["SNR dB", d["index"], "sd"] + (["predicted %"] if mapped else [])
+    head = ["SNR dB", d["index"], "sd"] + (["sd sentences"] if many else []) + (["predicted %"] if mapped else [])
     rows = []
     for i, s in enumerate(d["snr_db"]):
         r = [f"{s:g}", fmt(d[d["index"]][i], ".3f"), fmt(d["index_sd"][i], ".3f")]
+        if many:
+            r.append(fmt(d["sentence_sd"][i], ".3f"))
         if mapped:
             r.append(fmt(d["predicted_percent"][i], ".1f"))
         rows.append(r)
@@ -134,6 +138,16 @@ def render_sweep(d: dict) -> str:
                           fmt(t["slope_percent_per_db"], ".1f"), t["note"] or ""])
         lines.append(table(trows, ["target", d["index"], "SNR dB", "noise segments", "mapping",
                                    "slope %/dB", ""]))
+        if many:
+            def iv(t, key):
+                lo, hi = t[f"{key}_ci_low"], t[f"{key}_ci_high"]
+                return "—" if lo is None else f"{lo:.1f} .. {hi:.1f}"
+
+            lines += ["", "With the spread over sentences (95 %): sentences alone, sentences and noise segments "
+                          "combined, and all three with the mapping:"]
+            lines.append(table([[f"{t['percent']:g} %", fmt(t["snr_db"], ".1f"), fmt(t["sentence_sd_db"], ".2f"),
+                                 iv(t, "sentence"), iv(t, "combined"), iv(t, "total")] for t in d["targets"]],
+                               ["target", "SNR dB", "sd sentences dB", "sentences", "combined", "total"]))
         if d["srt_db"] is not None:
             lines += ["", (f"Predicted SRT (50 %): {d['srt_db']:.1f} dB SNR, slope "
                           f"{d['slope_at_srt_percent_per_db']:.1f} %/dB")]
@@ -162,7 +176,8 @@ _SNR_RANGE = f"{std.SWEEP_SNR_FROM_DB:g}:{std.SWEEP_SNR_TO_DB:g}:{std.SWEEP_SNR_
 
 @app.command("sweep")
 def sweep_command(
-    clean: Path = typer.Argument(..., help="Clean speech (WAV, FLAC or OGG).", show_default=False),
+    clean: Path = typer.Argument(..., help="Clean speech (WAV, FLAC or OGG), or several sentences: a folder of "
+                                           "them or a .txt list (one file per line).", show_default=False),
     noise: Path = typer.Argument(..., help="Noise recording, at least as long as the speech.", show_default=False),
     ir: Path | None = typer.Option(None, "--ir", help="Impulse response to apply to the speech before the noise "
                                                          "is added (noise is taken as recorded at the listener)."),
