@@ -46,7 +46,7 @@ Index-to-score mappings
 Active speech level (ITU-T P.56 method B)
     active_speech_level, ActiveLevel
 SNR sweeps and the SRT
-    snr_sweep, snr_sweep_files, SweepResult
+    snr_sweep, snr_sweep_files, snr_sweep_sentences, SweepResult
 Stimuli of a listening test
     write_stimuli, write_stimuli_files, StimuliResult
 Corpora
@@ -143,6 +143,7 @@ _API: dict[str, str] = {
     # SNR sweeps
     "snr_sweep": "envpredict.sweep",
     "snr_sweep_files": "envpredict.sweep",
+    "snr_sweep_sentences": "envpredict.sweep",
     "SweepResult": "envpredict.sweep",
     # stimuli
     "write_stimuli": "envpredict.stimuli",
