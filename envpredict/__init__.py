@@ -42,9 +42,13 @@ Inspection of a recording
     inspect_signal, inspect_file, InspectResult, yin_f0, F0Track
 Index-to-score mappings
     fit_mapping, fit_mapping_file, ScoreMapping, mapping_from_dict, read_mapping,
-    predict_scores, add_predictions, predict_file
+    published_mapping, published_mapping_names, predict_scores, add_predictions, predict_file
+Active speech level (ITU-T P.56 method B)
+    active_speech_level, ActiveLevel
 SNR sweeps and the SRT
-    snr_sweep, snr_sweep_files, SweepResult
+    snr_sweep, snr_sweep_files, snr_sweep_sentences, SweepResult
+Stimuli of a listening test
+    write_stimuli, write_stimuli_files, StimuliResult
 Corpora
     run_batch, read_results, compare_conditions, compare_conditions_file
 Site surveys
@@ -130,13 +134,23 @@ _API: dict[str, str] = {
     "ScoreMapping": "envpredict.mapping",
     "mapping_from_dict": "envpredict.mapping",
     "read_mapping": "envpredict.mapping",
+    "published_mapping": "envpredict.mapping",
+    "published_mapping_names": "envpredict.mapping",
     "predict_scores": "envpredict.mapping",
     "add_predictions": "envpredict.mapping",
     "predict_file": "envpredict.mapping",
+    # active speech level
+    "active_speech_level": "envpredict.speechlevel",
+    "ActiveLevel": "envpredict.speechlevel",
     # SNR sweeps
     "snr_sweep": "envpredict.sweep",
     "snr_sweep_files": "envpredict.sweep",
+    "snr_sweep_sentences": "envpredict.sweep",
     "SweepResult": "envpredict.sweep",
+    # stimuli
+    "write_stimuli": "envpredict.stimuli",
+    "write_stimuli_files": "envpredict.stimuli",
+    "StimuliResult": "envpredict.stimuli",
     # corpora: batches, result tables, comparisons
     "run_batch": "envpredict.batch",
     "run_survey": "envpredict.survey",

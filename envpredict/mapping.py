@@ -67,6 +67,11 @@ from .tables import CORRECT_COLUMN, PREDICTED_COLUMN, TRIALS_COLUMN, cell_float,
 #: Shapes of the psychometric function: the name, F(eta), F'(eta) and F'(0).
 SHAPES: tuple[str, ...] = ("logistic", "normal")
 
+#: How the intervals of a fit treat overdispersion (see :func:`fit_mapping`); the first
+#: is the default (judgement: intervals never narrower than the scatter of the pilot).
+DISPERSIONS: tuple[str, ...] = ("quasi", "binomial")
+DEFAULT_DISPERSION: str = std.MAPPING_DISPERSION
+
 #: Format tag and version written into MAP.json files.
 MAP_FORMAT: str = "envpredict-score-mapping"
 MAP_VERSION: int = 1
@@ -184,6 +189,14 @@ def check_shape(shape: str) -> str:
     return s
 
 
+def check_dispersion(dispersion: str) -> str:
+    """``"quasi"`` or ``"binomial"`` (see :func:`fit_mapping`), or ``InputError``."""
+    d = str(dispersion).strip().lower()
+    if d not in DISPERSIONS:
+        raise InputError(f"unknown dispersion '{dispersion}'", "use --dispersion quasi or --dispersion binomial")
+    return d
+
+
 def check_guess_lapse(guess: float, lapse: float) -> tuple[float, float]:
     """Refuse guess and lapse rates outside [0, 1) or leaving no room for a curve.
 
@@ -269,6 +282,12 @@ class ScoreMapping:
         or ``None`` for a mapping not fitted here.
     source : where the mapping came from (file, rows, method).
     notes : cautions about the fit.
+    dispersion : factor the binomial covariance was multiplied by (1: binomial
+        intervals; the Pearson chi-square / df when the quasi-binomial intervals were
+        used). ``cov`` already includes it.
+    dispersion_estimate : the Pearson chi-square / df of the fit, or ``None``.
+    ci_df : degrees of freedom of the Student t quantile of the Wald intervals when the
+        dispersion was estimated (quasi-binomial); ``None`` for the normal quantile.
     """
 
     index: str
@@ -285,6 +304,14 @@ class ScoreMapping:
     profile_ci_x50: tuple[float | None, float | None] | None = None
     source: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
+    dispersion: float = 1.0
+    dispersion_estimate: float | None = None
+    ci_df: int | None = None
+
+    @property
+    def interval_method(self) -> str:
+        """``"quasi-binomial"`` when the intervals carry an estimated dispersion, else ``"binomial"``."""
+        return "quasi-binomial" if self.ci_df is not None else "binomial"
 
     # -- the curve --------------------------------------------------------
     @property
@@ -335,9 +362,16 @@ class ScoreMapping:
 
     # -- uncertainty ------------------------------------------------------
     def _z(self) -> float:
-        from scipy.stats import norm
+        return self.quantile()
 
-        return float(norm.ppf(0.5 + CI_LEVEL / 2.0))
+    def quantile(self) -> float:
+        """Two-sided quantile of the Wald intervals at :data:`CI_LEVEL`: standard normal,
+        or Student t with :attr:`ci_df` degrees of freedom when the dispersion was
+        estimated (McCullagh & Nelder 1989, sec. 4.5)."""
+        from scipy.stats import norm, t
+
+        q = 0.5 + CI_LEVEL / 2.0
+        return float(norm.ppf(q) if self.ci_df is None else t.ppf(q, self.ci_df))
 
     def param_se(self) -> dict[str, float]:
         """Standard errors of a, b, x50 and slope_at_x50 (delta method), NaN if no cov."""
@@ -400,6 +434,10 @@ class ScoreMapping:
             "n_trials": self.n_trials,
             "index_range": None if self.index_range is None else list(self.index_range),
             "fit": None if self.gof is None else self.gof.to_dict(),
+            "interval_method": self.interval_method,
+            "dispersion": self.dispersion,
+            "dispersion_estimate": self.dispersion_estimate,
+            "ci_df": self.ci_df,
             "source": self.source,
             "cautions": [],
             "notes": list(self.notes),
@@ -484,11 +522,17 @@ def mapping_from_dict(d: Any, source: str = "(dict)") -> ScoreMapping:
         except (TypeError, ValueError):
             raise InputError(f"mapping {source}: 'index_range' is not two numbers", fix) from None
     notes = d.get("notes") or []
+    dispersion = _num(d, "dispersion", source, required=False) or 1.0
+    disp_est = _num(d, "dispersion_estimate", source, required=False)
+    ci_df = _num(d, "ci_df", source, required=False)
+    if dispersion <= 0 or (ci_df is not None and (ci_df < 1 or ci_df != int(ci_df))):
+        raise InputError(f"mapping {source}: 'dispersion' or 'ci_df' is out of range", fix)
     return ScoreMapping(
         index=index.strip().lower(), shape=shape, a=float(a), b=float(b), guess=guess, lapse=lapse,
         cov=cov_arr, n_points=int(d.get("n_points") or 0), n_trials=int(d.get("n_trials") or 0),
         index_range=index_range, gof=None, profile_ci_x50=prof_x50, source=str(d.get("source") or source),
         notes=tuple(str(n) for n in notes) if isinstance(notes, list) else (),
+        dispersion=float(dispersion), dispersion_estimate=disp_est, ci_df=None if ci_df is None else int(ci_df),
     )
 
 
@@ -603,6 +647,7 @@ def fit_mapping(
     guess: float = std.MAPPING_GUESS,
     lapse: float = std.MAPPING_LAPSE,
     source: str = "",
+    dispersion: str = DEFAULT_DISPERSION,
 ) -> ScoreMapping:
     """Fit a psychometric mapping from index values to scores by binomial maximum likelihood.
 
@@ -615,6 +660,18 @@ def fit_mapping(
     intervals. Goodness of fit: deviance and Pearson chi-square against the saturated
     model with ``rows - 2`` degrees of freedom (McCullagh & Nelder 1989, sec. 4.4).
 
+    Overdispersion: keywords of one sentence, sentences of one list and listeners are
+    not independent trials, so pilot scores often scatter more than binomial sampling
+    allows, and binomial intervals are then too narrow. With ``dispersion="quasi"``
+    (the default) the dispersion is estimated as ``phi = Pearson chi-square / df``; when
+    ``phi > 1`` the covariance is multiplied by ``phi``, the Wald intervals use the
+    Student t quantile with ``df`` degrees of freedom and the profile-likelihood
+    interval of x50 the criterion ``phi * t_df^2`` (quasi-binomial; McCullagh & Nelder
+    1989, sec. 4.5.2 and 9.2.4; Williams 1982, Appl. Statist. 31(2)). ``phi <= 1`` leaves
+    the binomial intervals (never narrower than binomial). ``dispersion="binomial"``
+    keeps the binomial intervals whatever the scatter (a note then says they are too
+    narrow). The mapping's :attr:`ScoreMapping.interval_method` says which was used.
+
     Parameters
     ----------
     index_values : index value per row (any real scale; STOI/ESTOI/STI lie in 0..1).
@@ -623,6 +680,7 @@ def fit_mapping(
     shape : ``"logistic"`` or ``"normal"`` (cumulative normal).
     guess, lapse : fixed guess and lapse rates (proportions), guess + lapse <= 0.9.
     source : free text stored with the mapping (e.g. the file name).
+    dispersion : ``"quasi"`` (default) or ``"binomial"``, see above.
 
     Returns
     -------
@@ -641,9 +699,11 @@ def fit_mapping(
     from scipy.optimize import minimize
     from scipy.special import gammaln
     from scipy.stats import chi2
+    from scipy.stats import t as student_t
 
     shape = check_shape(shape)
     guess, lapse = check_guess_lapse(guess, lapse)
+    dispersion = check_dispersion(dispersion)
     x, k, n = _check_score_arrays(index_values, correct, trials)
     fix_more = "test more conditions, spread over the range from near-floor to near-ceiling scores"
 
@@ -727,18 +787,34 @@ def fit_mapping(
         pearson_p=float(chi2.sf(pearson, dof)) if dof > 0 else math.nan,
         approximate=approximate,
     )
+    phi_hat = pearson / dof if dof > 0 else None
+    quasi = dispersion == "quasi" and phi_hat is not None and phi_hat > 1.0
+    factor = float(phi_hat) if quasi else 1.0
     notes = []
     if dof > 0 and min(gof.deviance_p, gof.pearson_p) < 1.0 - CI_LEVEL:
-        notes.append(
-            f"the points scatter more than binomial sampling allows (Pearson p = {gof.pearson_p:.3g}): "
-            "listeners or items differ; the confidence intervals are too narrow")
+        if quasi:
+            notes.append(
+                f"the points scatter more than binomial sampling allows (Pearson p = {gof.pearson_p:.3g}): "
+                f"listeners or items differ; the intervals are widened by the estimated dispersion "
+                f"(Pearson chi-square / df = {factor:.3g}, quasi-binomial)")
+        else:
+            notes.append(
+                f"the points scatter more than binomial sampling allows (Pearson p = {gof.pearson_p:.3g}): "
+                "listeners or items differ; the confidence intervals are too narrow (binomial intervals were "
+                "asked for: the quasi-binomial ones widen them)")
     if approximate:
         notes.append("many expected counts are below 5: the chi-square p-values are approximate")
     if guess > 0 and np.any(prop < guess):
         notes.append(f"some scores lie below the guess rate ({100 * guess:g} %): check the guess rate")
     if not np.any(prop < 0.5 * (1 + guess - lapse)) or not np.any(prop > 0.5 * (1 + guess - lapse)):
         notes.append("all scores lie on one side of the curve's midpoint: x50 is an extrapolation")
-    prof = _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, float(nll), cov)
+    ci_df = dof if quasi else None
+    crit = None if not quasi else factor * float(student_t.ppf(0.5 + CI_LEVEL / 2.0, dof)) ** 2
+    cov = cov * factor
+    if quasi and b - float(student_t.ppf(0.5 + CI_LEVEL / 2.0, dof)) * math.sqrt(cov[1, 1]) <= 0:
+        notes.append("with the estimated dispersion the slope's interval includes zero: this pilot does not "
+                     "establish how the score rises with the index (test more items or listeners per condition)")
+    prof = _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, float(nll), cov, crit=crit)
     if prof[0] is None or prof[1] is None:
         notes.append("the profile-likelihood interval of x50 is open on one side: the data do not bound it")
     return ScoreMapping(
@@ -746,12 +822,14 @@ def fit_mapping(
         cov=cov, n_points=int(x.size), n_trials=int(np.sum(n)),
         index_range=(float(np.min(x)), float(np.max(x))), gof=gof,
         source=source or f"binomial maximum-likelihood fit to {x.size} rows",
-        notes=tuple(notes), profile_ci_x50=prof,
+        notes=tuple(notes), profile_ci_x50=prof, dispersion=factor, dispersion_estimate=phi_hat, ci_df=ci_df,
     )
 
 
-def _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, nll_min, cov) -> tuple[float | None, float | None]:
-    """Profile-likelihood interval of x50 at :data:`CI_LEVEL`.
+def _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, nll_min, cov,
+                          crit: float | None = None) -> tuple[float | None, float | None]:
+    """Profile-likelihood interval of x50 at :data:`CI_LEVEL` (``crit``: the criterion of
+    the likelihood-ratio statistic, default the chi-square(1) quantile).
 
     With eta = b (x - x50), the profile of x50 maximises the likelihood over b > 0 at
     each fixed x50; the interval holds the x50 whose likelihood-ratio statistic
@@ -761,7 +839,7 @@ def _profile_interval_x50(x, k, n, shape, guess, lapse, a, b, nll_min, cov) -> t
     from scipy.optimize import brentq, minimize_scalar
     from scipy.stats import chi2
 
-    crit = float(chi2.ppf(CI_LEVEL, 1))
+    crit = float(chi2.ppf(CI_LEVEL, 1)) if crit is None else float(crit)
     x50_hat = -a / b
     log_b = math.log(b)
 
@@ -968,23 +1046,84 @@ def add_predictions(
 # Files: MAP.json, scores tables, results tables
 # ---------------------------------------------------------------------------
 
-def read_mapping(path: str | os.PathLike) -> ScoreMapping:
-    """Read a mapping file (MAP.json, as written by ``envpredict fitmap``).
+#: Where the built-in mappings' parameters come from (the numbers live in standards).
+TAAL2011_SOURCE: str = (
+    "Taal, Hendriks, Heusdens, Jensen, 'An algorithm for intelligibility prediction of time-frequency weighted "
+    "noisy speech', IEEE Trans. ASLP 19(7), 2011: logistic f(d) = 100/(1 + exp(a d + b)) fitted to their "
+    "listening test; parameters read from a secondary transcription of the paper")
 
-    Parameters
-    ----------
-    path : the JSON file.
+
+def published_mapping_names() -> tuple[str, ...]:
+    """Names of the built-in published mappings (usable wherever a MAP.json is)."""
+    return tuple(sorted(std.TAAL2011_MAPPINGS))
+
+
+def published_mapping(name: str) -> ScoreMapping:
+    """A built-in published mapping by name (:func:`published_mapping_names`).
+
+    * ``taal2011-ieee``, ``taal2011-dantale``: STOI to % words correct, the logistics
+      Taal et al. (2011) fitted for IEEE and Dantale II sentences,
+      ``p = 1 / (1 + exp(a d + b))`` (:data:`envpredict.standards.TAAL2011_MAPPINGS`),
+      i.e. ``eta = -b - a d`` in this module's form. They carry no covariance (the
+      paper gives none): a sweep with them has no mapping interval.
 
     Raises
     ------
     InputError
-        A missing file, a folder, invalid JSON or content that is not a mapping.
+        For a name that is not built in (the error lists the known ones).
+
+    References
+    ----------
+    C. H. Taal, R. C. Hendriks, R. Heusdens, J. Jensen, "An algorithm for
+    intelligibility prediction of time-frequency weighted noisy speech", IEEE Trans.
+    ASLP 19(7) (2011) 2125-2136.
+    """
+    key = str(name).strip().lower()
+    if key not in std.TAAL2011_MAPPINGS:
+        raise InputError(f"no mapping file or built-in mapping named '{name}'",
+                         f"give a MAP.json or one of the built-in mappings: {', '.join(published_mapping_names())}")
+    index, a_paper, b_paper, material = std.TAAL2011_MAPPINGS[key]
+    return ScoreMapping(
+        index=index, shape="logistic", a=-b_paper, b=-a_paper, source=f"{key}: {material}; {TAAL2011_SOURCE}",
+        notes=(f"built-in published mapping '{key}' ({material}); its parameters were read from a secondary "
+               "transcription of Taal et al. 2011, not checked against the printed paper",
+               "a published mapping holds for its own test material, talkers and listeners: "
+               "a pilot with your material (fitmap) is the better mapping"),
+    )
+
+
+def _is_mapping_name(path: str | os.PathLike) -> bool:
+    """A bare word (no folder, no suffix) that is not an existing file names a built-in mapping."""
+    from pathlib import Path
+
+    p = Path(path)
+    return not p.exists() and p.parent == Path(".") and p.suffix == "" and bool(str(p).strip())
+
+
+def read_mapping(path: str | os.PathLike) -> ScoreMapping:
+    """Read a mapping file (MAP.json, as written by ``envpredict fitmap``), or a built-in
+    published mapping by name (:func:`published_mapping`).
+
+    Parameters
+    ----------
+    path : the JSON file, or the name of a built-in mapping (e.g. ``"taal2011-ieee"``);
+        an existing file of that name wins.
+
+    Raises
+    ------
+    InputError
+        A missing file, a folder, invalid JSON, content that is not a mapping, or a
+        bare name that is not built in (the error lists the known ones).
     """
     import json
 
+    if _is_mapping_name(path):
+        return published_mapping(str(path))
     p = checks.path(path, "mapping")
     if not p.exists():
-        raise InputError(f"mapping '{p}' does not exist", "check the path, or write one with 'envpredict fitmap'")
+        raise InputError(f"mapping '{p}' does not exist",
+                         "check the path, write one with 'envpredict fitmap', or name a built-in mapping: "
+                         + ", ".join(published_mapping_names()))
     if p.is_dir():
         raise InputError(f"mapping '{p}' is a folder", "give the path of a MAP.json file")
     try:
@@ -1031,6 +1170,7 @@ def fit_mapping_file(
     shape: str = std.MAPPING_SHAPE,
     guess: float = std.MAPPING_GUESS,
     lapse: float = std.MAPPING_LAPSE,
+    dispersion: str = DEFAULT_DISPERSION,
 ) -> tuple[ScoreMapping, ScoreData]:
     """Fit a mapping (:func:`fit_mapping`) to the columns of a scores table (CSV).
 
@@ -1041,7 +1181,7 @@ def fit_mapping_file(
     path : CSV file with one row per tested condition.
     index : column holding the index value; also the index name stored in the mapping.
     correct, trials : columns holding the number of items correct and presented.
-    shape, guess, lapse : as for :func:`fit_mapping`.
+    shape, guess, lapse, dispersion : as for :func:`fit_mapping`.
 
     Returns
     -------
@@ -1060,10 +1200,11 @@ def fit_mapping_file(
 
     shape = check_shape(shape)
     guess, lapse = check_guess_lapse(guess, lapse)
+    dispersion = check_dispersion(dispersion)
     header, rows = read_table(path, "scores file")
     x, k, n = scores_from_rows(rows, header, index=index, correct=correct, trials=trials,
                                source=f"scores file '{path}'")
-    m = fit_mapping(x, k, n, index=index, shape=shape, guess=guess, lapse=lapse,
+    m = fit_mapping(x, k, n, index=index, shape=shape, guess=guess, lapse=lapse, dispersion=dispersion,
                     source=f"binomial maximum-likelihood fit to {len(rows)} rows of '{Path(path).name}' "
                            f"(columns {index}, {correct}, {trials})")
     return m, ScoreData(index_values=x, correct=k, trials=n, fitted_percent=m.percent(x))

@@ -828,6 +828,10 @@ def _page_sweep(d: Mapping) -> Page:
         if mp.get("source"):
             rows.append([Cell("source"), txt(mp.get("source"))])
         p.tables.append(Table("Score mapping", ["quantity", "value"], rows))
+    if d.get("snr_reference_text"):
+        act = d.get("activity_factor")
+        p.notes.append(f"SNR reference ({d.get('snr_reference', '')}): {d['snr_reference_text']}"
+                       + ("." if act is None else f"; activity factor of the speech {100 * act:.1f} %."))
     if d.get("level_convention_text"):
         p.notes.append(f"Level convention ({d.get('level_convention', '')}): {d['level_convention_text']}.")
     for n in d.get("notes") or []:

@@ -503,15 +503,30 @@ SWEEP_SEGMENTS: int = 5
 #: Level convention of a sweep ("speech": the speech stays at its level and the noise
 #: is scaled; judgement, the usual convention of SRT tests).
 SWEEP_LEVEL: str = "speech"
+#: Speech level the SNR of a sweep is referred to: "active" (the active speech level of
+#: ITU-T P.56 method B, pauses excluded) or "long-term" (mean power over the whole
+#: speech, pauses included). Speech tests set and report levels as active speech levels
+#: (ITU-T P.56 (12/2011); judgement: the reference a researcher expects), so the
+#: predicted SNRs can be set on an audiometer or a mixing script the usual way.
+SWEEP_SNR_REFERENCE: str = "active"
 #: Target score of the speech reception threshold, percent correct. Source: R. Plomp,
 #: A. M. Mimpen, "Improving the reliability of testing the speech reception threshold
 #: for sentences", Audiology 18 (1979) 43-52 (SRT = SNR at 50 % sentences correct).
 SRT_PERCENT: float = 50.0
+#: Presentation level of written stimuli, dB re full scale: the level the speech (or the
+#: mixture) is brought to. -26 dB is the level ITU-T practice normalises speech to
+#: (active speech level -26 dBov, ITU-T P.56 with the G.191 tools; from memory), leaving
+#: room for the noise at low SNRs.
+STIMULI_LEVEL_DB: float = -26.0
 #: Shape of a fitted mapping and its fixed guess and lapse rates (judgement: the
 #: logistic of an open-set test, no floor, no lapses).
 MAPPING_SHAPE: str = "logistic"
 MAPPING_GUESS: float = 0.0
 MAPPING_LAPSE: float = 0.0
+#: Intervals of a fitted mapping: "quasi" (widened by the estimated dispersion, Pearson
+#: chi-square / df, when it exceeds 1; McCullagh & Nelder 1989, sec. 4.5.2) or
+#: "binomial" (judgement: intervals never narrower than the pilot's own scatter).
+MAPPING_DISPERSION: str = "quasi"
 #: Sample rate of generated test signals, Hz (judgement: the common rate of
 #: measurement recorders; the 8 kHz octave band needs more than 22.6 kHz).
 TEST_SIGNAL_RATE_HZ: int = 48000
@@ -569,3 +584,44 @@ ECHO_LEVEL_DB: float = -10.0
 #: 16 conditions and by less than 0.06 on average (abstract, checked).
 STATISTICAL_STI_MAX_ERROR: float = 0.10
 STATISTICAL_STI_MEAN_ERROR: float = 0.06
+
+
+# ---------------------------------------------------------------------------
+# Active speech level (ITU-T P.56, method B) -- used by envpredict.speechlevel
+# ---------------------------------------------------------------------------
+# Source: ITU-T Rec. P.56 (12/2011), "Objective measurement of active speech level",
+# method B (from memory: the values below were not copied from the printed text; they
+# agree with the ITU-T Software Tool Library of ITU-T Rec. G.191, module sv-p56.c,
+# which defines T = 0.03 s, H = 0.20 s, M = 15.9 dB and 15 thresholds 2**-15 .. 2**-1
+# of full scale in 2:1 steps).
+
+#: Time constant of the two-stage exponential smoothing of the rectified signal (the
+#: envelope), s. Source: ITU-T P.56 (12/2011), method B (from memory; G.191 sv-p56.c: T).
+P56_TIME_CONSTANT_S: float = 0.03
+#: Hangover: a sample stays active this long after the envelope last reached the
+#: threshold, s (rounded up to whole samples). Source: ITU-T P.56 (12/2011), method B
+#: (from memory; G.191 sv-p56.c: H).
+P56_HANGOVER_S: float = 0.2
+#: Margin between the active level and the threshold at which it is measured, dB.
+#: Source: ITU-T P.56 (12/2011), method B (from memory; G.191 sv-p56.c: M).
+P56_MARGIN_DB: float = 15.9
+#: Ratio between neighbouring thresholds of the set (2:1, 6.02 dB) and their number.
+#: Source: ITU-T P.56 (12/2011), method B (from memory: "steps of not more than 2:1");
+#: G.191 sv-p56.c uses 15 thresholds 2**-15 .. 2**-1.
+P56_THRESHOLD_RATIO: float = 2.0
+P56_THRESHOLD_COUNT: int = 15
+
+# ---------------------------------------------------------------------------
+# Published index-to-score mappings -- used by envpredict.mapping
+# ---------------------------------------------------------------------------
+
+#: Taal et al. 2011 (see the module docstring), Sec. IV: a logistic from STOI d to the
+#: percentage of words correct, f(d) = 100 / (1 + exp(a d + b)), fitted per corpus of
+#: their listening test. Written in the paper's own form (a, b). The values were read
+#: from a secondary transcription of the paper, not from the printed paper: verify them
+#: against the paper before relying on them.
+#: name -> (index, a, b, test material).
+TAAL2011_MAPPINGS: dict[str, tuple[str, float, float, str]] = {
+    "taal2011-ieee": ("stoi", -17.4906, 9.6921, "IEEE sentences, % words correct"),
+    "taal2011-dantale": ("stoi", -14.5435, 7.0792, "Dantale II sentences, % words correct"),
+}

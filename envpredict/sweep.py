@@ -25,6 +25,7 @@ from . import standards as std
 from .exceptions import ComputationError, InputError
 from .mapping import CI_LEVEL, ScoreMapping
 from .results import jsonable
+from .speechlevel import ActiveLevel, active_speech_level
 
 #: Sweep limits: number of SNR points and noise segments (judgement: beyond these a
 #: sweep is a mistake in the options, not a plan).
@@ -146,7 +147,13 @@ class SweepTarget:
     mean index curve reaches ``index -+ z * se`` (``se`` of the inverse mapping by the
     delta method from the fitted covariance); ``None`` without a covariance or when an
     end falls outside the swept range. ``None`` where the target is not reached inside
-    the swept range.
+    the swept range. With a processing chain, ``unprocessed_snr_db`` is the same target's
+    SNR without the chain (when it was swept too) and ``benefit_db`` the difference.
+    With several sentences (:func:`snr_sweep_sentences`), ``sentence_ci_*`` is the
+    interval from the spread of the per-sentence crossings, ``combined_ci_*`` the one
+    from sentences and noise segments together (standard errors added in quadrature,
+    Welch-Satterthwaite degrees of freedom) and ``total_ci_*`` adds the mapping's
+    uncertainty.
     """
 
     percent: float
@@ -160,6 +167,14 @@ class SweepTarget:
     map_ci_low: float | None = None
     map_ci_high: float | None = None
     note: str = ""
+    unprocessed_snr_db: float | None = None
+    sentence_sd_db: float | None = None
+    sentence_ci_low: float | None = None
+    sentence_ci_high: float | None = None
+    combined_ci_low: float | None = None
+    combined_ci_high: float | None = None
+    total_ci_low: float | None = None
+    total_ci_high: float | None = None
 
     def to_dict(self) -> dict:
         return jsonable({
@@ -168,7 +183,21 @@ class SweepTarget:
             "segment_snr_db": list(self.segment_snr_db),
             "slope_percent_per_db": self.slope_percent_per_db,
             "map_ci_low": self.map_ci_low, "map_ci_high": self.map_ci_high, "note": self.note or None,
+            "unprocessed_snr_db": self.unprocessed_snr_db, "benefit_db": self.benefit_db,
+            "sentence_sd_db": self.sentence_sd_db, "sentence_ci_low": self.sentence_ci_low,
+            "sentence_ci_high": self.sentence_ci_high, "combined_ci_low": self.combined_ci_low,
+            "combined_ci_high": self.combined_ci_high, "total_ci_low": self.total_ci_low,
+            "total_ci_high": self.total_ci_high,
         })
+
+    @property
+    def benefit_db(self) -> float | None:
+        """Predicted benefit of the processing chain at this target, dB: the SNR the
+        unprocessed mixtures need minus the SNR the processed ones need (``None`` unless
+        both were found)."""
+        if self.unprocessed_snr_db is None or self.snr_db is None:
+            return None
+        return self.unprocessed_snr_db - self.snr_db
 
 
 @dataclass(frozen=True)
@@ -185,6 +214,11 @@ class SweepResult:
     predicted_percent : mapping applied to the mean index, or ``None`` without a mapping.
     targets : one :class:`SweepTarget` per requested percent (empty without a mapping).
     level : ``"speech"`` or ``"mixture"`` (see :func:`snr_sweep`).
+    snr_reference : ``"active"`` or ``"long-term"``: the speech level the SNR is
+        referred to (see :data:`SNR_REFERENCES`).
+    speech_level : the active and long-term level of the speech (ITU-T P.56 method B)
+        and its activity factor, or ``None`` where P.56 finds no active level (only
+        with the long-term reference).
     segment_offsets_s : start of each noise segment in the noise signal, seconds.
     reverberant : whether the speech went through an impulse response.
     processed : whether the mixtures went through a processing chain.
@@ -209,6 +243,11 @@ class SweepResult:
     duration_s: float
     mapping: dict | None = None
     notes: tuple[str, ...] = field(default_factory=tuple)
+    snr_reference: str = std.SWEEP_SNR_REFERENCE
+    speech_level: ActiveLevel | None = None
+    sentences: tuple[str, ...] = ()
+    sentence_sd: np.ndarray | None = None
+    sentence_activity: tuple[float | None, ...] = ()
 
     @property
     def srt_db(self) -> float | None:
@@ -221,6 +260,7 @@ class SweepResult:
 
     def to_dict(self) -> dict:
         srt = next((t for t in self.targets if abs(t.percent - std.SRT_PERCENT) < SAME_TARGET_PERCENT), None)
+        lev = self.speech_level
         return jsonable({
             "snr_db": self.snr_db,
             "index": self.index_name,
@@ -233,6 +273,15 @@ class SweepResult:
             "slope_at_srt_percent_per_db": None if srt is None else srt.slope_percent_per_db,
             "level_convention": self.level,
             "level_convention_text": LEVEL_CONVENTIONS[self.level],
+            "snr_reference": self.snr_reference,
+            "snr_reference_text": SNR_REFERENCES[self.snr_reference],
+            "activity_factor": None if lev is None else round(lev.activity_factor, 4),
+            "speech_active_level_db": None if lev is None else round(lev.active_level_db, 2),
+            "speech_long_term_level_db": None if lev is None else round(lev.long_term_level_db, 2),
+            "n_sentences": max(1, len(self.sentences)),
+            "sentences": list(self.sentences),
+            "sentence_sd": None if self.sentence_sd is None else np.round(self.sentence_sd, 5),
+            "sentence_activity_factors": [None if a is None else round(a, 4) for a in self.sentence_activity],
             "n_segments": len(self.segment_offsets_s),
             "segment_offsets_s": self.segment_offsets_s,
             "reverberant": self.reverberant,
@@ -246,11 +295,21 @@ class SweepResult:
 
 
 LEVEL_CONVENTIONS: dict[str, str] = {
-    "speech": ("SNR = 10 log10(mean speech power / mean noise power) over the length of the speech; the "
-               "speech (after the impulse response, if any) stays at its level and each noise segment is "
+    "speech": ("the speech (after the impulse response, if any) stays at its level and each noise segment is "
                "scaled to give the SNR"),
-    "mixture": ("SNR defined as for 'speech', then each mixture is rescaled to the speech's RMS level, so "
+    "mixture": ("the noise is scaled as for 'speech', then each mixture is rescaled to the speech's RMS level, so "
                 "the presentation level stays constant as the SNR changes"),
+}
+
+#: What the SNR is referred to. The default (:data:`envpredict.standards.SWEEP_SNR_REFERENCE`)
+#: is the active speech level: speech tests set their levels that way (ITU-T P.56), and
+#: the SNR then does not fall when a sentence has longer pauses. The long-term reference
+#: is the convention of envpredict before it measured active levels.
+SNR_REFERENCES: dict[str, str] = {
+    "active": ("SNR = active speech level (ITU-T P.56 method B, pauses excluded) minus the noise segment's "
+               "long-term level, over the length of the speech"),
+    "long-term": ("SNR = 10 log10(mean speech power / mean noise power) over the length of the speech, "
+                  "pauses included"),
 }
 
 
@@ -266,6 +325,59 @@ def _crossing(snr: np.ndarray, curve: np.ndarray, level: float) -> tuple[float |
     return None, None
 
 
+def load_process(spec: str) -> Callable[[np.ndarray, int], np.ndarray]:
+    """The processing chain named ``"MODULE:FUNCTION"`` (a module on the Python path or the
+    current folder, or a ``path/to/file.py``), wrapped so that an exception it raises
+    becomes one :class:`InputError` naming it.
+
+    The function is called as ``FUNCTION(mixture, fs)`` and must return the processed
+    mixture, of the same length and time-aligned (see :func:`snr_sweep`).
+    """
+    import importlib
+    import importlib.util
+    import sys
+    from pathlib import Path
+
+    fix = "give --process MODULE:FUNCTION, a function f(mixture, fs) -> processed mixture"
+    text = str(spec).strip()
+    mod_name, sep, func_name = text.rpartition(":")
+    if not sep or not mod_name or not func_name.isidentifier():
+        raise InputError(f"--process '{spec}' is not MODULE:FUNCTION", fix)
+    try:
+        if mod_name.endswith(".py") or "/" in mod_name or "\\" in mod_name:
+            path = Path(mod_name)
+            if not path.is_file():
+                raise InputError(f"--process '{spec}': file '{path}' does not exist", fix)
+            loader_spec = importlib.util.spec_from_file_location(f"envpredict_process_{path.stem}", path)
+            module = importlib.util.module_from_spec(loader_spec)
+            loader_spec.loader.exec_module(module)
+        else:
+            added = "" not in sys.path and os.getcwd() not in sys.path
+            if added:
+                sys.path.insert(0, os.getcwd())
+            try:
+                module = importlib.import_module(mod_name)
+            finally:
+                if added:
+                    sys.path.remove(os.getcwd())
+    except InputError:
+        raise
+    except Exception as e:  # noqa: BLE001 -- any failure of the user's module is reported in one line
+        raise InputError(f"--process '{spec}' cannot be imported ({type(e).__name__}: {e})", fix) from None
+    func = getattr(module, func_name, None)
+    if not callable(func):
+        raise InputError(f"--process '{spec}': '{func_name}' is not a function of '{mod_name}'", fix)
+
+    def chain(mix: np.ndarray, fs: int) -> np.ndarray:
+        try:
+            return func(mix, fs)
+        except Exception as e:  # noqa: BLE001 -- the user's chain failed: say so in one line
+            raise InputError(f"the processing chain '{spec}' raised {type(e).__name__}: {e}",
+                             "fix the function (it is called as FUNCTION(mixture, fs))") from None
+
+    return chain
+
+
 def _processed(process: Callable[[np.ndarray, int], np.ndarray], mix: np.ndarray, fs: int,
                snr: float) -> np.ndarray:
     out = np.asarray(process(mix, fs), dtype=float).reshape(-1)
@@ -275,6 +387,15 @@ def _processed(process: Callable[[np.ndarray, int], np.ndarray], mix: np.ndarray
             f"{mix.size}-sample mixture at {snr:g} dB SNR",
             "make it return a finite signal of the same length, time-aligned with its input")
     return out
+
+
+def check_snr_reference(snr_reference: Any) -> str:
+    """``"active"`` or ``"long-term"`` (``"long_term"`` and ``"longterm"`` accepted), or ``InputError``."""
+    ref = str(snr_reference).strip().lower().replace("_", "-")
+    ref = "long-term" if ref == "longterm" else ref
+    if ref not in SNR_REFERENCES:
+        raise InputError(f"unknown SNR reference '{snr_reference}'", "use --snr-reference active or long-term")
+    return ref
 
 
 def _check_options(snr_db: Any, index: str, funcs: MappingType, level: str, n_segments: Any,
@@ -323,6 +444,7 @@ def snr_sweep(
     ir: np.ndarray | None = None,
     n_segments: int = std.SWEEP_SEGMENTS,
     level: str = std.SWEEP_LEVEL,
+    snr_reference: str = std.SWEEP_SNR_REFERENCE,
     index_functions: MappingType[str, Callable[[np.ndarray, np.ndarray, int], float]] | None = None,
     process: Callable[[np.ndarray, int], np.ndarray] | None = None,
     progress: Callable[[int, int], None] | None = None,
@@ -333,8 +455,8 @@ def snr_sweep(
     ``noise``; the same segments at every SNR, so the curves differ only by the SNR),
     the speech -- ``clean``, or ``clean`` convolved with ``ir`` from its onset
     (ISO 3382-1 A.3.2 onset, so the speech is not delayed) and cut to the length of
-    ``clean`` -- is mixed with the segment at the SNR (see :data:`LEVEL_CONVENTIONS`)
-    and the index is computed between ``clean`` and the mixture. The mean index over
+    ``clean`` -- is mixed with the segment at the SNR (see :data:`SNR_REFERENCES` and
+    :data:`LEVEL_CONVENTIONS`) and the index is computed between ``clean`` and the mixture. The mean index over
     segments is mapped to a predicted score. For each target percent the mapping is
     inverted to an index value ``x_t`` and the SNR where the mean index curve, linear
     between the swept SNRs, first rises to ``x_t`` is reported; the same is done for
@@ -356,6 +478,14 @@ def snr_sweep(
     ir : impulse response at ``fs`` applied to the speech, or ``None``.
     n_segments : number of noise segments per SNR (1 gives no interval).
     level : ``"speech"`` or ``"mixture"`` level convention.
+    snr_reference : ``"active"`` (default) or ``"long-term"``: the speech level the SNR
+        is referred to. ``"active"`` is the active speech level of ITU-T P.56 method B
+        (:func:`envpredict.speechlevel.active_speech_level`), the level speech tests are
+        set by: a researcher who mixes sentences and noise at a predicted SNR with the
+        usual tools means this SNR. ``"long-term"`` (speech power over noise power with
+        the pauses counted, envpredict's earlier convention) reads
+        ``10 log10(1 / activity factor)`` dB higher for the same mixture. The noise's
+        level is always its long-term level over the segment.
     index_functions : ``name -> f(clean, degraded, fs) -> float``; defaults to
         :func:`default_index_functions`.
     process : optional processing chain ``process(mixture, fs) -> output`` applied to
@@ -389,6 +519,7 @@ def snr_sweep(
     nz = validate_signal(noise, fs, name="noise", allow_clipping=True)
     funcs = dict(index_functions) if index_functions is not None else default_index_functions()
     snrs, name, target_list, x_targets = _check_options(snr_db, index, funcs, level, n_segments, mapping, targets)
+    reference = check_snr_reference(snr_reference)
 
     notes: list[str] = []
     speech = x
@@ -413,6 +544,8 @@ def snr_sweep(
     p_speech = float(np.mean(speech * speech))
     if p_speech <= 0:
         raise InputError("the speech after the impulse response is silent", "check the impulse response")
+    speech_level = _speech_level(speech, fs, reference)
+    p_ref = speech_level.active_mean_square if reference == "active" else p_speech
 
     f = funcs[name]
     total = snrs.size * offsets.size
@@ -424,7 +557,7 @@ def snr_sweep(
         if p_noise <= 0:
             raise InputError(f"noise segment at {o / fs:.2f} s is silent", "give a noise without silent stretches")
         for i, s in enumerate(snrs):
-            g = math.sqrt(p_speech / (p_noise * 10.0 ** (s / 10.0)))
+            g = math.sqrt(p_ref / (p_noise * 10.0 ** (s / 10.0)))
             mix = speech + g * seg
             if level == "mixture":
                 mix = mix * math.sqrt(p_speech / float(np.mean(mix * mix)))
@@ -449,9 +582,7 @@ def snr_sweep(
     predicted = None if mapping is None else mapping.percent(mean)
     tq = float(student_t.ppf(0.5 + CI_LEVEL / 2.0, offsets.size - 1)) if offsets.size > 1 else math.nan
 
-    from scipy.stats import norm
-
-    z_map = float(norm.ppf(0.5 + CI_LEVEL / 2.0))
+    z_map = mapping.quantile() if mapping is not None else math.nan
     out_targets = []
     for pct, xt in zip(target_list, x_targets):
         srt, i = _crossing(snrs, mean, xt)
@@ -494,18 +625,207 @@ def snr_sweep(
         if np.any((mean < lo_r) | (mean > hi_r)):
             notes.append(f"part of the curve lies outside the index range the mapping was fitted on "
                          f"({lo_r:.3g} to {hi_r:.3g}): those predictions are extrapolations")
+    if mapping is not None:
+        notes.extend(f"mapping: {n}" for n in mapping.notes)
     return SweepResult(
         snr_db=snrs, index_name=name, index=mean, index_segments=vals, index_sd=sd,
         predicted_percent=predicted, targets=tuple(out_targets), level=level,
         segment_offsets_s=tuple(float(o) / fs for o in offsets), reverberant=ir is not None,
         processed=process is not None, fs=fs,
         duration_s=L / fs, mapping=None if mapping is None else mapping.to_dict(), notes=tuple(notes),
+        snr_reference=reference, speech_level=speech_level,
     )
 
 
+def _half(sd: float, n: int) -> tuple[float, float]:
+    """Standard error of a mean of ``n`` values with standard deviation ``sd``, and its df."""
+    return sd / math.sqrt(n), float(n - 1)
+
+
+def snr_sweep_sentences(
+    sentences: Sequence[np.ndarray],
+    noise: np.ndarray,
+    fs: int,
+    *,
+    names: Sequence[str] | None = None,
+    mapping: ScoreMapping | None = None,
+    targets: Sequence[float] = (std.SRT_PERCENT,),
+    progress: Callable[[int, int], None] | None = None,
+    **options,
+) -> SweepResult:
+    """:func:`snr_sweep` over several sentences: the spread over sentences as well as
+    over noise segments.
+
+    Each sentence is swept on its own (its own active level, its own noise segments, as
+    :func:`snr_sweep` with ``options``); the index per SNR is the mean over sentences and
+    segments. ``index_sd`` is the standard deviation over noise segments of the
+    sentence-averaged index, ``sentence_sd`` the standard deviation over sentences of
+    the segment-averaged index. For each target, the SNR is where the grand mean curve
+    reaches the target's index value; the per-sentence curves and the per-segment curves
+    give crossings whose spreads make the sentence and segment intervals (Student t);
+    their standard errors added in quadrature make the combined interval
+    (Welch-Satterthwaite df), and adding the mapping's own standard error (from its
+    interval in dB; infinite df, or the mapping's own with quasi-binomial intervals) the
+    total one. The segments of different sentences are
+    different stretches of the noise when the sentences differ in length: the segment
+    spread then also holds some sentence-to-sentence variation (a note says so).
+
+    Parameters
+    ----------
+    sentences : clean sentences, each 1-D at ``fs`` (at least two).
+    noise : noise at ``fs``, at least as long as the longest sentence.
+    fs : sample rate, Hz.
+    names : a name per sentence (e.g. its file name), for the result.
+    mapping, targets, progress : as for :func:`snr_sweep`.
+    options : the other options of :func:`snr_sweep` (``snr_db``, ``index``, ``ir``,
+        ``n_segments``, ``level``, ``snr_reference``, ``index_functions``, ``process``).
+
+    Returns
+    -------
+    SweepResult
+        with ``sentences``, ``sentence_sd`` and ``sentence_activity`` filled in, and the
+        sentence, combined and total intervals in each target.
+    """
+    from scipy.stats import norm
+    from scipy.stats import t as student_t
+
+    items = list(sentences)
+    if len(items) < 2:
+        raise InputError(f"{len(items)} sentence(s) given", "give at least two sentences (or sweep one with snr_sweep)")
+    labels = [str(n) for n in names] if names is not None else [f"sentence {i + 1}" for i in range(len(items))]
+    if len(labels) != len(items):
+        raise InputError("names and sentences differ in number", "give one name per sentence")
+    runs = []
+    for i, x in enumerate(items):
+        step = None if progress is None else (lambda done, total, i=i: progress(i * total + done, len(items) * total))
+        runs.append(snr_sweep(x, noise, fs, mapping=mapping, targets=targets, progress=step, **options))
+    first = runs[0]
+    if any(r.index_segments.shape != first.index_segments.shape for r in runs):
+        raise InputError("the sentences give different numbers of noise segments", "give a longer noise")
+    vals = np.stack([r.index_segments for r in runs])  # (sentence, snr, segment)
+    snrs, n_sent, n_seg = first.snr_db, vals.shape[0], vals.shape[2]
+    mean = vals.mean(axis=(0, 2))
+    seg_curves = vals.mean(axis=0)  # (snr, segment)
+    sent_curves = vals.mean(axis=2)  # (sentence, snr)
+    seg_sd = seg_curves.std(axis=1, ddof=1) if n_seg > 1 else np.zeros(snrs.size)
+    sent_sd = sent_curves.std(axis=0, ddof=1)
+    q = 0.5 + CI_LEVEL / 2.0
+    notes = [f"{n_sent} sentences, each at its own level and with its own noise segments"]
+    if len({r.duration_s for r in runs}) > 1 and n_seg > 1:
+        notes.append("the sentences differ in length, so their noise segments are different stretches of the "
+                     "noise: the segment spread also holds some of the sentence-to-sentence variation")
+    out_targets = []
+    for k, t0 in enumerate(first.targets):
+        xt = t0.index
+        srt, i = _crossing(snrs, mean, xt)
+        seg_x = [_crossing(snrs, seg_curves[:, j], xt)[0] for j in range(n_seg)]
+        sent_x = [_crossing(snrs, sent_curves[s_, :], xt)[0] for s_ in range(n_sent)]
+        note = ""
+        lo = hi = s_lo = s_hi = c_lo = c_hi = tot_lo = tot_hi = seg_sd_db = sent_sd_db = slope = None
+        m_lo = m_hi = None
+        if srt is None:
+            note = t0.note or f"{t0.percent:g} % is not reached inside the swept range"
+        else:
+            slope = float(100.0 * mapping.derivative(xt) * (mean[i + 1] - mean[i]) / (snrs[i + 1] - snrs[i]))
+            se2, dfs = [], []
+            if n_seg > 1 and all(v is not None for v in seg_x):
+                seg_sd_db = float(np.std(seg_x, ddof=1))
+                se, df = _half(seg_sd_db, n_seg)
+                h = float(student_t.ppf(q, df)) * se
+                lo, hi = srt - h, srt + h
+                se2.append(se * se)
+                dfs.append(df)
+            if all(v is not None for v in sent_x):
+                sent_sd_db = float(np.std(sent_x, ddof=1))
+                se, df = _half(sent_sd_db, n_sent)
+                h = float(student_t.ppf(q, df)) * se
+                s_lo, s_hi = srt - h, srt + h
+                se2.append(se * se)
+                dfs.append(df)
+            else:
+                note = "some sentences do not reach the target inside the swept range: no sentence interval"
+            if len(se2) == 2 or (se2 and n_seg == 1):
+                v = sum(se2)
+                df = v * v / sum(a * a / d for a, d in zip(se2, dfs)) if all(d > 0 for d in dfs) else math.inf
+                h = float(student_t.ppf(q, df)) * math.sqrt(v)
+                c_lo, c_hi = srt - h, srt + h
+                if mapping.cov is not None:
+                    half_x = mapping.quantile() * mapping.index_sd_at(t0.percent)
+                    m_lo = _crossing(snrs, mean, xt - half_x)[0]
+                    m_hi = _crossing(snrs, mean, xt + half_x)[0]
+                    if m_lo is not None and m_hi is not None:
+                        m2 = ((m_hi - m_lo) / (2.0 * mapping.quantile())) ** 2
+                        w = sum(a * a / d for a, d in zip(se2, dfs)) + (
+                            0.0 if mapping.ci_df is None else m2 * m2 / mapping.ci_df)
+                        df_t = (v + m2) ** 2 / w if w > 0 else math.inf
+                        ht = float(student_t.ppf(q, df_t) if math.isfinite(df_t) else norm.ppf(q)) * math.sqrt(v + m2)
+                        tot_lo, tot_hi = srt - ht, srt + ht
+                    else:
+                        m_lo = m_hi = None
+        out_targets.append(SweepTarget(
+            percent=t0.percent, index=xt, snr_db=srt, ci_low=lo, ci_high=hi, segment_sd_db=seg_sd_db,
+            segment_snr_db=tuple(seg_x), slope_percent_per_db=slope, map_ci_low=m_lo, map_ci_high=m_hi, note=note,
+            sentence_sd_db=sent_sd_db, sentence_ci_low=s_lo, sentence_ci_high=s_hi, combined_ci_low=c_lo,
+            combined_ci_high=c_hi, total_ci_low=tot_lo, total_ci_high=tot_hi))
+    carried = [n for n in first.notes if n.startswith("mapping: ") or "extrapolation" in n or "overlap" in n]
+    from dataclasses import replace
+
+    return replace(
+        first, index=mean, index_segments=seg_curves, index_sd=seg_sd,
+        predicted_percent=None if mapping is None else mapping.percent(mean), targets=tuple(out_targets),
+        duration_s=float(sum(r.duration_s for r in runs)), speech_level=None, sentences=tuple(labels),
+        sentence_sd=sent_sd, sentence_activity=tuple(None if r.speech_level is None
+                                                     else r.speech_level.activity_factor for r in runs),
+        notes=tuple(notes + carried))
+
+
+def _speech_level(speech: np.ndarray, fs: int, reference: str) -> ActiveLevel | None:
+    """The speech's P.56 active level; ``None`` where it has none and the long-term
+    reference does not need it."""
+    try:
+        return active_speech_level(speech, fs)
+    except ComputationError as e:
+        if reference == "active":
+            raise ComputationError(f"the active speech level cannot be measured: {e.what}",
+                                   "use --snr-reference long-term, or speech with active stretches") from None
+        return None
+
+
+
+def sentence_files(clean: str | os.PathLike | Sequence[str | os.PathLike]) -> list:
+    """The clean-speech files of a sweep: a list of paths, the audio files of a folder
+    (sorted by name), the paths listed in a text file (``.txt``/``.lst``: one per line,
+    relative to the list's folder; blank lines and lines starting with ``#`` skipped), or
+    one audio file."""
+    from pathlib import Path
+
+    from .audio import audio_files_in
+
+    if isinstance(clean, (list, tuple)):
+        files = [Path(c) for c in clean]
+    else:
+        p = Path(clean)
+        if p.is_dir():
+            files = audio_files_in(p)
+            if not files:
+                raise InputError(f"folder '{p}' holds no audio files", "give a folder of WAV/FLAC/OGG sentences")
+        elif p.suffix.lower() in (".txt", ".lst") and p.is_file():
+            try:
+                lines = p.read_text(encoding="utf-8").splitlines()
+            except (OSError, UnicodeDecodeError) as e:
+                raise InputError(f"sentence list '{p}' cannot be read ({e})", "give a UTF-8 text file") from None
+            files = [p.parent / q.strip() for q in lines if q.strip() and not q.strip().startswith("#")]
+            if not files:
+                raise InputError(f"sentence list '{p}' names no files", "give one audio file per line")
+        else:
+            files = [p]
+    if not files:
+        raise InputError("no clean-speech files given", "give a file, a folder of sentences or a list")
+    return files
+
 
 def snr_sweep_files(
-    clean: str | os.PathLike,
+    clean: str | os.PathLike | Sequence[str | os.PathLike],
     noise: str | os.PathLike,
     *,
     ir: str | os.PathLike | None = None,
@@ -515,7 +835,9 @@ def snr_sweep_files(
     targets: Sequence[float] | None = None,
     n_segments: int = std.SWEEP_SEGMENTS,
     level: str = std.SWEEP_LEVEL,
+    snr_reference: str = std.SWEEP_SNR_REFERENCE,
     channel: int | None = None,
+    process: Callable[[np.ndarray, int], np.ndarray] | str | None = None,
     progress: Callable[[int, int], None] | None = None,
 ) -> SweepResult:
     """:func:`snr_sweep` of audio files: clean speech, a noise recording and an optional IR.
@@ -528,14 +850,21 @@ def snr_sweep_files(
     Parameters
     ----------
     clean, noise : audio files (WAV, FLAC, OGG); the noise at least as long as the speech.
+        ``clean`` may also name several sentences (:func:`sentence_files`: a folder, a
+        list file or a sequence of paths); they are swept by :func:`snr_sweep_sentences`,
+        each at its own level, and resampled to the first one's rate where theirs
+        differs (a note says so).
     ir : impulse-response file applied to the speech, or ``None``.
     snr_db : SNRs, dB: ``"FROM:TO:STEP"`` (:func:`parse_snr_range`) or a sequence.
     index : index to compute (:data:`SWEEP_INDICES`); default: the mapping's index, or
         :data:`DEFAULT_INDEX` without a mapping.
     mapping : a :class:`~envpredict.mapping.ScoreMapping`, the path of a MAP.json, or ``None``.
     targets : target scores, percent (default: the SRT, 50 %); they need a mapping.
-    n_segments, level, progress : as for :func:`snr_sweep`.
+    n_segments, level, snr_reference, progress : as for :func:`snr_sweep`.
     channel : channel of multi-channel files (0 = first).
+    process : a processing chain ``f(mixture, fs)`` or its ``"MODULE:FUNCTION"`` name
+        (:func:`load_process`). With a mapping, the sweep is also run without it, and
+        each target gets its unprocessed SNR and the chain's predicted benefit in dB.
 
     Returns
     -------
@@ -548,12 +877,16 @@ def snr_sweep_files(
     ComputationError
         As :func:`snr_sweep`.
     """
+    from dataclasses import replace
+
     from .audio import load_audio, resample
     from .mapping import read_mapping
 
     snrs = parse_snr_range(snr_db) if isinstance(snr_db, str) else snr_db
     if level not in LEVEL_CONVENTIONS:
         raise InputError(f"unknown level convention '{level}'", "use --level speech or --level mixture")
+    reference = check_snr_reference(snr_reference)
+    chain = load_process(process) if isinstance(process, str) else process
     if not isinstance(n_segments, (int, np.integer)) or not 1 <= n_segments <= MAX_SEGMENTS:
         raise InputError(f"--segments {n_segments} is outside 1..{MAX_SEGMENTS}", "give e.g. --segments 5")
     m = mapping if mapping is None or isinstance(mapping, ScoreMapping) else read_mapping(mapping)
@@ -569,9 +902,17 @@ def snr_sweep_files(
     target_list = list(targets) if targets else [std.SRT_PERCENT]
     _check_options(snrs, name, default_index_functions(), level, n_segments, m, target_list)
 
-    x, fs = load_audio(clean, channel, name="clean speech")
-    nz, fs_n = load_audio(noise, channel, name="noise")
+    files = sentence_files(clean)
+    x, fs = load_audio(files[0], channel, name="clean speech" if len(files) == 1 else f"sentence '{files[0]}'")
     notes = []
+    xs = [x]
+    for f in files[1:]:
+        y, fs_y = load_audio(f, channel, name=f"sentence '{f}'")
+        if fs_y != fs:
+            notes.append(f"sentence '{f.name}' was resampled from {fs_y} Hz to {fs} Hz")
+            y = resample(y, fs_y, fs)
+        xs.append(y)
+    nz, fs_n = load_audio(noise, channel, name="noise")
     if fs_n != fs:
         notes.append(f"the noise was resampled from {fs_n} Hz to {fs} Hz")
         nz = resample(nz, fs_n, fs)
@@ -581,10 +922,32 @@ def snr_sweep_files(
         if fs_h != fs:
             notes.append(f"the impulse response was resampled from {fs_h} Hz to {fs} Hz")
             h = resample(h, fs_h, fs)
-    res = snr_sweep(x, nz, fs, snr_db=snrs, index=name, mapping=m, targets=target_list, ir=h,
-                    n_segments=n_segments, level=level, progress=progress)
-    if notes:
-        from dataclasses import replace
+    kw = dict(snr_db=snrs, index=name, mapping=m, targets=target_list, ir=h, n_segments=n_segments, level=level,
+              snr_reference=reference)
+    if len(xs) > 1:
+        names = [f.name for f in files]
 
+        def sweep(process, prog):
+            return snr_sweep_sentences(xs, nz, fs, names=names, process=process, progress=prog, **kw)
+    else:
+        def sweep(process, prog):
+            return snr_sweep(x, nz, fs, process=process, progress=prog, **kw)
+
+    if chain is not None and m is not None:
+        def first(done, total):
+            if progress is not None:
+                progress(done, 2 * total)
+
+        def second(done, total):
+            if progress is not None:
+                progress(total + done, 2 * total)
+
+        plain = sweep(None, first)
+        res = sweep(chain, second)
+        res = replace(res, targets=tuple(replace(t, unprocessed_snr_db=u.snr_db)
+                                         for t, u in zip(res.targets, plain.targets)))
+    else:
+        res = sweep(chain, progress)
+    if notes:
         res = replace(res, notes=tuple(notes) + res.notes)
     return res

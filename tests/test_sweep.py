@@ -63,8 +63,8 @@ def test_parse_snr_range():
 
 
 def test_sweep_mixes_at_the_stated_snr(signals):
-    # speech-level convention: 10 log10(sum clean^2 / sum noise part^2) equals the SNR
-    # asked for, and the noise part is a contiguous piece of the noise recording
+    # long-term reference, speech-level convention: 10 log10(sum clean^2 / sum noise part^2)
+    # equals the SNR asked for, and the noise part is a contiguous piece of the noise recording
     clean, noise = signals
     seen = []
 
@@ -73,7 +73,8 @@ def test_sweep_mixes_at_the_stated_snr(signals):
         return power_index(c, d, fs)
 
     res = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], index="probe", n_segments=3,
-                    index_functions={"probe": probe})
+                    index_functions={"probe": probe}, snr_reference="long-term")
+    assert res.to_dict()["snr_reference"] == "long-term"
     assert len(seen) == 9
     snrs = [10 * np.log10(np.sum(clean ** 2) / np.sum(e ** 2)) for e in seen]
     assert snrs == pytest.approx([-6, 0, 6] * 3, abs=1e-9)
@@ -85,9 +86,36 @@ def test_sweep_mixes_at_the_stated_snr(signals):
     # mixture convention: the mixture is rescaled to the speech level
     seen.clear()
     snr_sweep(clean, noise, FS, snr_db=[-6, 0], index="probe", n_segments=2, level="mixture",
-              index_functions={"probe": lambda c, d, fs: seen.append(d) or 0.5})
+              snr_reference="long-term", index_functions={"probe": lambda c, d, fs: seen.append(d) or 0.5})
     for d in seen:
         assert np.mean(d ** 2) == pytest.approx(np.mean(clean ** 2), rel=1e-12)
+
+
+def test_the_active_reference_scales_the_noise_to_the_active_speech_level():
+    # Tone bursts of 1 s every 4 s: ITU-T P.56 method B counts each burst and its 0.2 s
+    # hangover as active (the envelope's rise and fall, T = 0.03 s, move this by < 0.1 s),
+    # so the activity factor is 1.2 / 4 and the active SNR puts the noise
+    # 10 log10(4 / 1.2) dB above where the long-term SNR puts it, at every SNR.
+    t = np.arange(FS) / FS
+    clean = np.tile(np.concatenate([0.1 * np.sin(2 * np.pi * 500 * t), np.zeros(3 * FS)]), 3)
+    noise = np.random.default_rng(2).standard_normal(2 * clean.size) * 0.05
+    parts = {}
+    for ref in ("active", "long-term"):
+        seen = []
+        res = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], index="probe", n_segments=2, snr_reference=ref,
+                        index_functions={"probe": lambda c, d, fs: seen.append(d - c) or 0.5})
+        parts[ref] = np.array([np.mean(e ** 2) for e in seen])
+        d = res.to_dict()
+        assert d["snr_reference"] == ref and ref in ("active", "long-term")
+        assert d["activity_factor"] == pytest.approx(1.2 / 4, abs=0.1 / 4)
+        assert d["speech_active_level_db"] - d["speech_long_term_level_db"] == pytest.approx(
+            -10 * np.log10(d["activity_factor"]), abs=0.01)
+    ratio_db = 10 * np.log10(parts["active"] / parts["long-term"])
+    assert ratio_db == pytest.approx(np.full(6, 10 * np.log10(4 / 1.2)), abs=10 * np.log10(1.3 / 1.2))
+    assert np.ptp(ratio_db) < 1e-9  # one factor for every SNR and segment
+    with pytest.raises(InputError):
+        snr_sweep(clean, noise, FS, snr_db=[-6, 0], index="probe", n_segments=1, snr_reference="peak",
+                  index_functions={"probe": lambda c, d, fs: 0.5})
 
 
 def test_sweep_targets_and_interval_from_segments(signals):
@@ -166,10 +194,11 @@ def test_sweep_with_impulse_response(signals):
 def test_sweep_index_values_match_reference_stoi(signals):
     # the sweep's STOI at each SNR and segment equals pystoi (reference implementation
     # of Taal 2011) on the mixture rebuilt here by the stated speech-level convention
+    # (long-term SNR reference)
     from pystoi import stoi as reference_stoi
 
     clean, noise = signals
-    res = snr_sweep(clean, noise, FS, snr_db=[-10, 0], index="stoi", n_segments=2)
+    res = snr_sweep(clean, noise, FS, snr_db=[-10, 0], index="stoi", n_segments=2, snr_reference="long-term")
     for j, off in enumerate(res.segment_offsets_s):
         o = round(off * FS)
         seg = noise[o: o + clean.size]
@@ -183,7 +212,7 @@ def test_sweep_ssti_uses_speech_based_sti(signals):
     from envpredict.pair import speech_sti
 
     clean, noise = signals
-    res = snr_sweep(clean, noise, FS, snr_db=[-5, 5], index="ssti", n_segments=1)
+    res = snr_sweep(clean, noise, FS, snr_db=[-5, 5], index="ssti", n_segments=1, snr_reference="long-term")
     seg = noise[: clean.size]
     g = np.sqrt(np.sum(clean ** 2) / (np.sum(seg ** 2) * 10 ** 0.5))
     assert res.index[1] == pytest.approx(speech_sti(clean, clean + g * seg, FS), abs=1e-12)
@@ -293,9 +322,19 @@ def test_cli_sweep(tmp_path, capsys, signals):
     assert s["index"] == "stoi" and len(s["stoi"]) == len(s["predicted_percent"]) == 5
     assert [t["percent"] for t in s["targets"]] == [20, 50]
     assert s["srt_db"] == s["targets"][1]["snr_db"]
+    assert s["snr_reference"] == "active" and s["inputs"]["snr_reference"] == "active"
+    assert 0 < s["activity_factor"] <= 1
     code, out, err = run_cli(["sweep", str(cw), str(nw), "--snr", "-6:6:6", "--segments", "2"], capsys)
     assert code == 0, err
-    assert "no mapping" in out
+    assert "no mapping" in out and "activity factor" in out and "SNR reference: SNR = active" in out
+    # the earlier convention on request: the same mixtures as snr_sweep with the long-term reference
+    code, out, err = run_cli(["sweep", str(cw), str(nw), "--snr", "-6:6:6", "--segments", "2",
+                              "--snr-reference", "long-term", "--json"], capsys)
+    assert code == 0, err
+    lt = json.loads(out)
+    assert lt["snr_reference"] == "long-term"
+    api = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], n_segments=2, snr_reference="long-term")
+    assert lt["stoi"] == pytest.approx(api.to_dict()["stoi"], abs=2e-5)  # FLOAT files vs float64 arrays
 
 
 def test_cli_sweep_refusals(tmp_path, capsys):
@@ -303,6 +342,8 @@ def test_cli_sweep_refusals(tmp_path, capsys):
     assert code == 2 and "FROM < TO" in err
     code, _out, err = run_cli(["sweep", "a.wav", "b.wav", "--target", "50"], capsys)
     assert code == 2 and "needs a mapping" in err
+    code, _out, err = run_cli(["sweep", "a.wav", "b.wav", "--snr-reference", "peak"], capsys)
+    assert code == 2 and "SNR reference" in err
 
 # ---------------------------------------------------------------------------
 # File-level function sweep.snr_sweep_files
@@ -314,6 +355,7 @@ def test_cli_sweep_refusals(tmp_path, capsys):
     ({"index": "pesq"}, "unknown index"),
     ({"level": "loud"}, "level convention"),
     ({"n_segments": 0}, "--segments"),
+    ({"snr_reference": "peak"}, "SNR reference"),
 ])
 def test_snr_sweep_files_checks_options_before_reading(tmp_path, kw, what):
     from envpredict.sweep import snr_sweep_files
@@ -332,3 +374,145 @@ def test_snr_sweep_files_equals_snr_sweep(tmp_path, signals):
     a = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], n_segments=2)
     b = snr_sweep_files(cw, nw, snr_db="-6:6:6", n_segments=2)
     assert b.to_dict() == a.to_dict()
+
+
+# ---------------------------------------------------------------------------
+# --process MODULE:FUNCTION
+# ---------------------------------------------------------------------------
+
+CHAIN_SOURCE = '''
+import numpy as np
+
+def same(x, fs):
+    return x
+
+def hiss(x, fs):
+    return x + 0.02 * np.random.default_rng(0).standard_normal(x.size)
+
+def broken(x, fs):
+    raise ValueError("no model loaded")
+'''
+
+
+def test_process_from_the_command_line_gives_the_benefit(tmp_path, capsys, signals):
+    from envpredict.sweep import snr_sweep_files
+
+    (tmp_path / "chain.py").write_text(CHAIN_SOURCE)
+    clean, noise = signals
+    cw, nw, mp = tmp_path / "clean.wav", tmp_path / "noise.wav", tmp_path / "map.json"
+    sf.write(cw, clean, FS, subtype="DOUBLE")
+    sf.write(nw, noise, FS, subtype="DOUBLE")
+    mp.write_text(json.dumps(MONO_MAP.to_dict()))
+    base = ["sweep", str(cw), str(nw), "--map", str(mp), "--snr=-18:6:6", "--segments", "2", "--json"]
+    code, out, err = run_cli(base + ["--process", f"{tmp_path / 'chain.py'}:same"], capsys)
+    assert code == 0, err
+    same = json.loads(out)
+    assert same["processed"] and same["inputs"]["process"].endswith("chain.py:same")
+    t = same["targets"][0]
+    assert t["benefit_db"] == 0.0 and t["unprocessed_snr_db"] == t["snr_db"]
+    # a chain that adds noise: the benefit is the SRT of the plain sweep minus the SRT with the chain,
+    # each from its own API run
+    code, out, err = run_cli(base + ["--process", f"{tmp_path / 'chain.py'}:hiss"], capsys)
+    assert code == 0, err
+    t = json.loads(out)["targets"][0]
+    plain = snr_sweep_files(cw, nw, mapping=mp, snr_db="-18:6:6", n_segments=2).targets[0].snr_db
+    ns = {}
+    exec(CHAIN_SOURCE, ns)  # noqa: S102 -- the test's own chain, run here as the API user would
+    with_chain = snr_sweep(clean, noise, FS, snr_db=[-18, -12, -6, 0, 6], mapping=MONO_MAP, n_segments=2,
+                           process=ns["hiss"]).targets[0].snr_db
+    assert t["unprocessed_snr_db"] == pytest.approx(plain, abs=1e-9)
+    assert t["benefit_db"] == pytest.approx(plain - with_chain, abs=1e-9) and t["benefit_db"] < 0
+
+
+@pytest.mark.parametrize("spec,what", [
+    ("nosuchmodule_xyz:f", "cannot be imported"),
+    ("CHAIN:missing", "is not a function"),
+    ("CHAIN:broken", "raised ValueError: no model loaded"),
+    ("justaname", "is not MODULE:FUNCTION"),
+])
+def test_cli_process_refusals(tmp_path, capsys, signals, spec, what):
+    (tmp_path / "chain.py").write_text(CHAIN_SOURCE)
+    clean, noise = signals
+    cw, nw = tmp_path / "clean.wav", tmp_path / "noise.wav"
+    sf.write(cw, clean, FS, subtype="FLOAT")
+    sf.write(nw, noise, FS, subtype="FLOAT")
+    code, out, err = run_cli(["sweep", str(cw), str(nw), "--snr=-6:0:6", "--segments", "1", "--process",
+                              spec.replace("CHAIN", str(tmp_path / "chain.py"))], capsys)
+    assert code == 2 and what in err and out == ""
+    assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
+
+
+# ---------------------------------------------------------------------------
+# Many sentences
+# ---------------------------------------------------------------------------
+
+def _sentences():
+    from signals_for_tests import speech_like
+
+    # different lengths and levels: each sentence is mixed at its own active level
+    return [speech_like(2.0 + 0.3 * i, FS, seed=20 + i) * (0.5 + 0.2 * i) for i in range(5)]
+
+
+def test_many_sentences_spread_and_intervals(signals):
+    from envpredict.sweep import snr_sweep_sentences
+
+    _clean, noise = signals
+    sents = _sentences()
+    m = ScoreMapping(index="probe", shape="logistic", a=-8.0, b=16.0, cov=np.array([[0.5, -0.8], [-0.8, 1.5]]))
+    kw = {"snr_db": np.arange(-12, 13, 3.0), "index": "probe", "n_segments": 3,
+          "index_functions": {"probe": power_index}}
+    res = snr_sweep_sentences(sents, noise, FS, mapping=m, names=[f"s{i}" for i in range(5)], **kw)
+    single = [snr_sweep(x, noise, FS, mapping=m, **kw) for x in sents]
+    per = np.stack([r.index_segments for r in single])  # (sentence, snr, segment)
+    np.testing.assert_allclose(res.index, per.mean(axis=(0, 2)), atol=1e-12)
+    np.testing.assert_allclose(res.sentence_sd, per.mean(axis=2).std(axis=0, ddof=1), atol=1e-12)
+    np.testing.assert_allclose(res.index_sd, per.mean(axis=0).std(axis=1, ddof=1), atol=1e-12)
+    d = res.to_dict()
+    assert d["n_sentences"] == 5 and d["sentences"] == ["s0", "s1", "s2", "s3", "s4"]
+    assert len(d["sentence_activity_factors"]) == 5
+    t = res.targets[0]
+    x_t = (logit(0.5) - m.a) / m.b  # the index at 50 %
+    snr = res.snr_db
+    # crossings by linear interpolation (np.interp on rising curves), interval by scipy.stats.t
+    sent_x = [np.interp(x_t, c, snr) for c in per.mean(axis=2)]
+    seg_x = [np.interp(x_t, c, snr) for c in per.mean(axis=0).T]
+    assert t.snr_db == pytest.approx(np.interp(x_t, res.index, snr), abs=1e-9)
+    se_sent = np.std(sent_x, ddof=1) / np.sqrt(5)
+    se_seg = np.std(seg_x, ddof=1) / np.sqrt(3)
+    assert t.sentence_sd_db == pytest.approx(np.std(sent_x, ddof=1), abs=1e-9)
+    assert t.sentence_ci_high - t.snr_db == pytest.approx(stats.t.ppf(0.975, 4) * se_sent, abs=1e-9)
+    assert t.ci_high - t.snr_db == pytest.approx(stats.t.ppf(0.975, 2) * se_seg, abs=1e-9)
+    v = se_sent ** 2 + se_seg ** 2
+    df = v ** 2 / (se_sent ** 4 / 4 + se_seg ** 4 / 2)  # Welch-Satterthwaite
+    assert t.combined_ci_high - t.snr_db == pytest.approx(stats.t.ppf(0.975, df) * np.sqrt(v), abs=1e-9)
+    assert t.total_ci_high - t.snr_db > t.combined_ci_high - t.snr_db
+    with pytest.raises(InputError):
+        snr_sweep_sentences(sents[:1], noise, FS, **kw)
+
+
+def test_sentence_folder_and_list_from_files(tmp_path, capsys, signals):
+    from envpredict.sweep import sentence_files, snr_sweep_files
+
+    _clean, noise = signals
+    folder = tmp_path / "sentences"
+    folder.mkdir()
+    sents = _sentences()[:3]
+    for i, x in enumerate(sents):
+        sf.write(folder / f"s{i}.wav", x, FS, subtype="DOUBLE")
+    sf.write(folder / "s9.wav", sents[0][::2], FS // 2, subtype="DOUBLE")  # another rate: resampled
+    (folder / "notes.txt").write_text("not audio")
+    nw = tmp_path / "noise.wav"
+    sf.write(nw, noise, FS, subtype="DOUBLE")
+    assert [p.name for p in sentence_files(folder)] == ["s0.wav", "s1.wav", "s2.wav", "s9.wav"]
+    lst = tmp_path / "list.txt"
+    lst.write_text("# my sentences\nsentences/s0.wav\n\nsentences/s2.wav\n")
+    assert sentence_files(lst) == [tmp_path / "sentences/s0.wav", tmp_path / "sentences/s2.wav"]
+    res = snr_sweep_files(folder, nw, snr_db="-6:6:6", n_segments=2)
+    assert res.to_dict()["n_sentences"] == 4
+    assert any("s9.wav" in n and "resampled from 8000 Hz" in n for n in res.notes)
+    code, out, err = run_cli(["sweep", str(lst), str(nw), "--snr=-6:6:6", "--segments", "2"], capsys)
+    assert code == 0, err
+    assert "2 sentences" in out and "sd sentences" in out
+    (folder / "s5.wav").write_bytes(b"RIFF broken")
+    code, out, err = run_cli(["sweep", str(folder), str(nw), "--snr=-6:6:6", "--segments", "2"], capsys)
+    assert code == 2 and "s5.wav" in err and len(err.strip().splitlines()) == 1

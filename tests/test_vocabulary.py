@@ -33,7 +33,7 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
              "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track", "DemoResult",
              "StipaSignalResult", "FullStiSignalsResult", "SurveyResult", "SweepSignalResult",
-             "DeconvolutionResult", "DesignResult"}
+             "DeconvolutionResult", "DesignResult", "ActiveLevel", "StimuliResult"}
 
 
 # ---------------------------------------------------------------------------
@@ -141,6 +141,9 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
              "sources": [{"name": "LS1", "position_m": [1, 1, 3], "level_1m_dba": 80, "q": 2}],
              "listeners": [{"name": "P1", "position_m": [6, 4, 1.2]}],
              "grid": {"x_m": [0, 4], "y_m": [0, 3], "z_m": 1.2, "step_m": 1}}),
+        "ActiveLevel": lambda: envpredict.active_speech_level(clean, fs),
+        "StimuliResult": lambda: _in_tmp(lambda d: envpredict.write_stimuli(
+            d / "st", clean, np.random.default_rng(3).standard_normal(2 * clean.size) * 0.05, fs, [-3, 3])),
     }
 
 
@@ -170,7 +173,7 @@ def _result_types() -> dict[str, type]:
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
          "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec", "DesignListener",
-         "DesignGrid"}
+         "DesignGrid", "Stimulus"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):

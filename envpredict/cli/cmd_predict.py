@@ -15,6 +15,9 @@ from ._common import (
 )
 
 
+#: Names of the built-in published mappings, for --map's help (envpredict.mapping.published_mapping).
+_BUILTIN_MAPS = ", ".join(sorted(std.TAAL2011_MAPPINGS))
+
 # ---------------------------------------------------------------------------
 # fitmap
 # ---------------------------------------------------------------------------
@@ -44,6 +47,13 @@ def render_fit(d: dict, rows: list[list[str]]) -> str:
         lines += ["", (f"Goodness of fit (df = {f['df']}): deviance {fmt(f['deviance'], '.2f')} "
                       f"(p = {fmt(f['deviance_p'], '.3g')}), Pearson chi-square {fmt(f['pearson_chi2'], '.2f')} "
                       f"(p = {fmt(f['pearson_p'], '.3g')})")]
+    est = d.get("dispersion_estimate")
+    if d.get("interval_method") == "quasi-binomial":
+        lines.append(f"Intervals: quasi-binomial, dispersion (Pearson chi-square / df) {d['dispersion']:.3g}: "
+                     f"covariance x {d['dispersion']:.3g}, Student t with {d['ci_df']} df")
+    elif est is not None:
+        lines.append(f"Intervals: binomial (dispersion, Pearson chi-square / df, {est:.3g}"
+                     + (": at most 1, none applied)" if est <= 1 else ": not applied, --dispersion binomial)"))
     lines += ["", table(rows, [d["index"], "correct", "trials", "observed %", "fitted %"])]
     if d["notes"]:
         lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
@@ -64,6 +74,10 @@ def fitmap_command(
                                                      "closed-set test (0 for open-set tests)."),
     lapse: float = typer.Option(std.MAPPING_LAPSE, "--lapse", help="Fixed lapse rate (proportion of errors at the best "
                                                      "condition that are not due to the signal)."),
+    dispersion: str = typer.Option(std.MAPPING_DISPERSION, "--dispersion", metavar="[quasi|binomial]",
+                                   help="Intervals: quasi (widened by the estimated dispersion, Pearson chi-square / "
+                                        "df, when the pilot scatters more than binomial sampling allows) or "
+                                        "binomial (never widened)."),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help="Write the mapping (MAP.json) to this file, atomically."),
 ) -> None:
@@ -72,10 +86,10 @@ def fitmap_command(
 
     check_outputs(out=out, inputs=[scores])
     m, data = fit_mapping_file(scores, index=index, correct=correct, trials=trials, shape=shape, guess=guess,
-                               lapse=lapse)
+                               lapse=lapse, dispersion=dispersion)
     d = m.to_dict()
     d["inputs"] = {"scores": str(scores), "index": index, "correct": correct, "trials": trials, "shape": shape,
-                   "guess": guess, "lapse": lapse}
+                   "guess": guess, "lapse": lapse, "dispersion": dispersion}
     trows = [[f"{xi:.4g}", f"{ki:g}", f"{ni:g}", f"{oi:.1f}", f"{fi:.1f}"]
              for xi, ki, ni, oi, fi in zip(data.index_values, data.correct, data.trials, data.observed_percent,
                                            data.fitted_percent)]
@@ -89,17 +103,26 @@ def fitmap_command(
 # ---------------------------------------------------------------------------
 
 def render_sweep(d: dict) -> str:
+    many = d.get("n_sentences", 1) > 1
+    what = f"{d['n_sentences']} sentences ({d['duration_s']:.2f} s)" if many else f"{d['duration_s']:.2f} s"
     lines = [
-        (f"SNR sweep: {d['index']} of {d['duration_s']:.2f} s of speech"
+        (f"SNR sweep: {d['index']} of {what} of speech"
         f"{' through the impulse response' if d['reverberant'] else ''}, {d['n_segments']} noise segment(s) per SNR"),
+        f"SNR reference: {d['snr_reference_text']}",
         f"Level convention: {d['level_convention_text']}",
-        "",
     ]
+    if d.get("activity_factor") is not None:
+        lines.append(f"Speech: active level {d['speech_active_level_db']:.1f} dB, long-term "
+                     f"{d['speech_long_term_level_db']:.1f} dB re full scale, activity factor "
+                     f"{100 * d['activity_factor']:.1f} % (ITU-T P.56 method B)")
+    lines.append("")
     mapped = d["predicted_percent"] is not None
-    head = ["SNR dB", d["index"], "sd"] + (["predicted %"] if mapped else [])
+    head = ["SNR dB", d["index"], "sd"] + (["sd sentences"] if many else []) + (["predicted %"] if mapped else [])
     rows = []
     for i, s in enumerate(d["snr_db"]):
         r = [f"{s:g}", fmt(d[d["index"]][i], ".3f"), fmt(d["index_sd"][i], ".3f")]
+        if many:
+            r.append(fmt(d["sentence_sd"][i], ".3f"))
         if mapped:
             r.append(fmt(d["predicted_percent"][i], ".1f"))
         rows.append(r)
@@ -115,9 +138,33 @@ def render_sweep(d: dict) -> str:
                           fmt(t["slope_percent_per_db"], ".1f"), t["note"] or ""])
         lines.append(table(trows, ["target", d["index"], "SNR dB", "noise segments", "mapping",
                                    "slope %/dB", ""]))
+        if many:
+            def iv(t, key):
+                lo, hi = t[f"{key}_ci_low"], t[f"{key}_ci_high"]
+                return "—" if lo is None else f"{lo:.1f} .. {hi:.1f}"
+
+            lines += ["", "With the spread over sentences (95 %): sentences alone, sentences and noise segments "
+                          "combined, and all three with the mapping:"]
+            lines.append(table([[f"{t['percent']:g} %", fmt(t["snr_db"], ".1f"), fmt(t["sentence_sd_db"], ".2f"),
+                                 iv(t, "sentence"), iv(t, "combined"), iv(t, "total")] for t in d["targets"]],
+                               ["target", "SNR dB", "sd sentences dB", "sentences", "combined", "total"]))
         if d["srt_db"] is not None:
             lines += ["", (f"Predicted SRT (50 %): {d['srt_db']:.1f} dB SNR, slope "
                           f"{d['slope_at_srt_percent_per_db']:.1f} %/dB")]
+        if d.get("processed") and any(t.get("unprocessed_snr_db") is not None for t in d["targets"]):
+            lines += ["", "Predicted benefit of the processing chain (SNR without it minus SNR with it):"]
+            lines.append(table([[f"{t['percent']:g} %", fmt(t["unprocessed_snr_db"], ".1f"), fmt(t["snr_db"], ".1f"),
+                                 fmt(t["benefit_db"], "+.1f")] for t in d["targets"]],
+                               ["target", "unprocessed dB", "processed dB", "benefit dB"]))
+    st = d.get("stimuli")
+    if st:
+        lines += ["", (f"Stimuli: {len(st['stimuli'])} file(s) in {st['folder']} (with {st['manifest']}), "
+                       f"presentation level {st['presentation_level_db'] + st['common_gain_db']:g} dB re full scale "
+                       f"({d['level_convention']} level), noise segments from seed {st['seed']}")]
+        lines.append(table([[s["file"], f"{s['snr_db']:g}", f"{s['speech_active_level_db']:.1f}",
+                             f"{s['noise_level_db']:.1f}", f"{s['peak_db']:.1f}"] for s in st["stimuli"]],
+                           ["file", "SNR dB", "speech dB", "noise dB", "peak dB"]))
+        lines += [f"  caution: {c}" for c in st["cautions"]]
     if d["notes"]:
         lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
     return "\n".join(line.rstrip() for line in "\n".join(lines).split("\n"))
@@ -129,7 +176,8 @@ _SNR_RANGE = f"{std.SWEEP_SNR_FROM_DB:g}:{std.SWEEP_SNR_TO_DB:g}:{std.SWEEP_SNR_
 
 @app.command("sweep")
 def sweep_command(
-    clean: Path = typer.Argument(..., help="Clean speech (WAV, FLAC or OGG).", show_default=False),
+    clean: Path = typer.Argument(..., help="Clean speech (WAV, FLAC or OGG), or several sentences: a folder of "
+                                           "them or a .txt list (one file per line).", show_default=False),
     noise: Path = typer.Argument(..., help="Noise recording, at least as long as the speech.", show_default=False),
     ir: Path | None = typer.Option(None, "--ir", help="Impulse response to apply to the speech before the noise "
                                                          "is added (noise is taken as recorded at the listener)."),
@@ -137,7 +185,8 @@ def sweep_command(
                                                       "when FROM is negative)."),
     index: str | None = typer.Option(None, "--index", help="Index: stoi, estoi, ssti or ssti_regression. Default: the "
                                                               "mapping's index, or stoi without a mapping."),
-    map_file: Path | None = typer.Option(None, "--map", help="Mapping (MAP.json from fitmap) for predicted "
+    map_file: Path | None = typer.Option(None, "--map", help="Mapping (MAP.json from fitmap, or a built-in "
+                                                                f"published one: {_BUILTIN_MAPS}) for predicted "
                                                                 "scores and target SNRs."),
     target: list[float] | None = typer.Option(None, "--target", help="Target score in percent; repeat for "
                                               f"several (default: {std.SRT_PERCENT:g}, the SRT)."),
@@ -147,6 +196,29 @@ def sweep_command(
                               help="Level convention: speech (speech fixed, noise "
                                                                "scaled) or mixture (mixture rescaled to the speech "
                                                                "level)."),
+    snr_reference: str = typer.Option(std.SWEEP_SNR_REFERENCE, "--snr-reference", metavar="[active|long-term]",
+                                      help="Speech level the SNR is referred to: active (ITU-T P.56 active speech "
+                                           "level, pauses excluded, as speech tests set levels) or long-term "
+                                           "(pauses included; envpredict's earlier convention)."),
+    process: str | None = typer.Option(None, "--process", metavar="MODULE:FUNCTION",
+                                       help="Processing chain applied to each mixture before the index: a function "
+                                            "f(mixture, fs) -> processed mixture (module on the Python path or in "
+                                            "the current folder, or path/to/file.py:FUNCTION). With --map the "
+                                            "predicted benefit in dB is given per target."),
+    write_stimuli: Path | None = typer.Option(None, "--write-stimuli", metavar="DIR",
+                                              help="Also write the mixtures (WAV) and a manifest.csv to this new or "
+                                                   "empty folder: at --stimuli-snr, else at the target SNRs found, "
+                                                   "else at the swept SNRs."),
+    stimuli_snr: list[float] | None = typer.Option(None, "--stimuli-snr", help="SNR of a stimulus, dB; repeat "
+                                                   "for several (write --stimuli-snr=-6 when negative)."),
+    presentation_level: float = typer.Option(std.STIMULI_LEVEL_DB, "--presentation-level",
+                                             help="Level of the stimuli, dB re full scale: of the speech (--level "
+                                                  "speech, by the SNR reference) or of the mixture (--level "
+                                                  "mixture)."),
+    scale_to_fit: bool = typer.Option(False, "--scale-to-fit", help="When a stimulus would clip, scale all of "
+                                                                     "them by one common factor (else refuse)."),
+    seed: int = typer.Option(std.TEST_SIGNAL_SEED, "--seed", help="Seed of the noise segments of the stimuli "
+                                                                  "(the same seed gives the same files)."),
     channel: int | None = typer.Option(None, "--channel", help=CHANNEL_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help="Also write the JSON result to this file (atomically)."),
@@ -156,15 +228,33 @@ def sweep_command(
     from envpredict.sweep import DEFAULT_INDEX, snr_sweep_files
 
     check_outputs(out=out, report=report, inputs=[clean, noise, ir, map_file])
+    if write_stimuli is not None:
+        from envpredict.stimuli import check_stimuli_folder
+
+        check_stimuli_folder(write_stimuli)
+    chain = None
+    if process is not None:
+        from envpredict.sweep import load_process
+
+        chain = load_process(process)
     shown = index or (None if map_file is not None else DEFAULT_INDEX)  # the mapping's index is read by the API
     with Progress(f"sweeping {shown}" if shown else "sweeping", None, quiet=as_json) as prog:
         res = snr_sweep_files(clean, noise, ir=ir, snr_db=snr, index=index, mapping=map_file, targets=target,
-                              n_segments=segments, level=level, channel=channel, progress=prog)
+                              n_segments=segments, level=level, snr_reference=snr_reference, channel=channel,
+                              process=chain, progress=prog)
     name = res.index_name
     d = res.to_dict()
     d["inputs"] = {"clean": str(clean), "noise": str(noise), "ir": None if ir is None else str(ir),
                    "map": None if map_file is None else str(map_file), "index": name, "snr": snr,
-                   "segments": segments, "level": level}
+                   "segments": segments, "level": level, "snr_reference": res.snr_reference,
+                   "write_stimuli": None if write_stimuli is None else str(write_stimuli), "process": process}
+    if write_stimuli is not None:
+        from envpredict.stimuli import stimulus_snrs, write_stimuli_files
+
+        stim = write_stimuli_files(write_stimuli, clean, noise, stimulus_snrs(res, stimuli_snr), ir=ir,
+                                   channel=channel, snr_reference=res.snr_reference, level=level,
+                                   presentation_level_db=presentation_level, scale_to_fit=scale_to_fit, seed=seed)
+        d["stimuli"] = stim.to_dict()
     write_report_if(report, "sweep", d, as_json=as_json,
                     title=f"Predicted scores against SNR: {clean.name} in {noise.name}")
     emit(d, lambda: render_sweep(d), as_json, out)
@@ -178,7 +268,8 @@ def sweep_command(
 def predict_command(
     results: Path = typer.Argument(..., help="Results CSV (e.g. from batch) with an index column.",
                                    show_default=False),
-    map_file: Path = typer.Option(..., "--map", help="Mapping (MAP.json from fitmap).", show_default=False),
+    map_file: Path = typer.Option(..., "--map", help="Mapping (MAP.json from fitmap, or a built-in published one: "
+                                                     f"{_BUILTIN_MAPS}).", show_default=False),
     column: str | None = typer.Option(None, "--column", help="Column holding the index (default: the "
                                                                 "mapping's index name)."),
     name: str = typer.Option(PREDICTED_COLUMN, "--name", help="Name of the added column."),

@@ -1,0 +1,331 @@
+"""The stimuli of a listening test: speech-in-noise mixtures at chosen SNRs, written to a folder.
+
+:func:`write_stimuli` mixes the speech with a noise segment at each SNR by the same
+rules as the sweep (:mod:`envpredict.sweep`: the SNR referred to the active or the
+long-term speech level, the noise at its long-term level over the segment, an optional
+impulse response applied to the speech), brings every mixture to one presentation
+level in dB re full scale, refuses a mixture that would clip (or scales all files by
+one common factor, and says so), and writes the WAV files with a manifest CSV. The noise
+segment of each mixture is drawn from a seeded generator: the same inputs and seed give
+the same files, bit for bit. The folder must be new or empty; it appears whole or not
+at all (:func:`envpredict.outputs.atomic_directory`).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from . import standards as std
+from .exceptions import InputError
+from .results import jsonable
+from .sweep import SweepResult
+
+#: Name of the manifest written beside the stimuli.
+MANIFEST_NAME: str = "manifest.csv"
+
+#: Sample format of the stimuli (libsndfile subtype; judgement: 24-bit PCM, which every
+#: audio player reads, 144 dB below full scale).
+STIMULUS_SUBTYPE: str = "PCM_24"
+
+#: A mixture clips when a sample reaches this magnitude (full scale).
+CLIP_PEAK: float = 1.0
+
+#: Peak the loudest mixture is brought to when all files are scaled to fit, dB re full
+#: scale (judgement: 1 dB of headroom for inter-sample peaks and converters).
+FIT_PEAK_DB: float = -1.0
+
+#: SNRs of the stimuli are rounded to this step, dB (judgement: the resolution at which
+#: test SNRs are set and reported).
+SNR_STEP_DB: float = 0.1
+
+#: Most stimuli one call writes (judgement, as the sweep's SNR limit).
+MAX_STIMULI: int = 401
+
+#: Columns of the manifest (the keys of :meth:`Stimulus.to_dict`).
+MANIFEST_COLUMNS: tuple[str, ...] = (
+    "file", "snr_db", "snr_reference", "level_convention", "speech_active_level_db", "speech_long_term_level_db",
+    "noise_level_db", "mixture_level_db", "peak_db", "noise_offset_s", "noise_offset_samples", "common_gain_db",
+    "seed",
+)
+
+
+@dataclass(frozen=True)
+class Stimulus:
+    """One written mixture: its file name, SNR and levels (dB re full scale)."""
+
+    file: str
+    snr_db: float
+    snr_reference: str
+    level_convention: str
+    speech_active_level_db: float
+    speech_long_term_level_db: float
+    noise_level_db: float
+    mixture_level_db: float
+    peak_db: float
+    noise_offset_s: float
+    noise_offset_samples: int
+    common_gain_db: float
+    seed: int
+
+    def to_dict(self) -> dict:
+        return jsonable({k: (round(v, 3) if isinstance(v, float) else v)
+                         for k, v in ((c, getattr(self, c)) for c in MANIFEST_COLUMNS)})
+
+
+@dataclass(frozen=True)
+class StimuliResult:
+    """The stimuli written to a folder.
+
+    Attributes
+    ----------
+    folder : where the files and the manifest are.
+    stimuli : one :class:`Stimulus` per file, in SNR order.
+    presentation_level_db : the level asked for, dB re full scale (the speech's level
+        for the ``"speech"`` convention, the mixture's for ``"mixture"``).
+    common_gain_db : gain applied to every file to avoid clipping (0: none).
+    fs : sample rate, Hz.
+    seed : seed of the noise-segment draw.
+    cautions, notes : what the user must read; method details.
+    """
+
+    folder: str
+    stimuli: tuple[Stimulus, ...]
+    presentation_level_db: float
+    common_gain_db: float
+    fs: int
+    seed: int
+    cautions: tuple[str, ...] = field(default_factory=tuple)
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "folder": self.folder,
+            "manifest": MANIFEST_NAME,
+            "presentation_level_db": self.presentation_level_db,
+            "common_gain_db": round(self.common_gain_db, 3),
+            "fs": self.fs,
+            "seed": self.seed,
+            "stimuli": [s.to_dict() for s in self.stimuli],
+            "cautions": list(self.cautions),
+            "notes": list(self.notes),
+        })
+
+
+def check_stimuli_folder(folder: str | os.PathLike) -> Path:
+    """Refuse a stimuli folder that exists and is not empty (before any work)."""
+    p = Path(folder)
+    if p.exists() and (not p.is_dir() or any(p.iterdir())):
+        raise InputError(f"stimuli folder '{p}' exists and is not empty",
+                         "give the name of a new or empty folder for --write-stimuli")
+    return p
+
+
+def _db(power: float) -> float:
+    return 10.0 * math.log10(power) if power > 0 else -math.inf
+
+
+def write_stimuli(
+    folder: str | os.PathLike,
+    clean: np.ndarray,
+    noise: np.ndarray,
+    fs: int,
+    snr_db: Sequence[float],
+    *,
+    ir: np.ndarray | None = None,
+    snr_reference: str = std.SWEEP_SNR_REFERENCE,
+    level: str = std.SWEEP_LEVEL,
+    presentation_level_db: float = std.STIMULI_LEVEL_DB,
+    scale_to_fit: bool = False,
+    seed: int = std.TEST_SIGNAL_SEED,
+    name: str = "stimulus",
+) -> StimuliResult:
+    """Write speech-in-noise mixtures at the given SNRs, and their manifest, to a new folder.
+
+    The speech (``clean``, through ``ir`` from its onset and cut to its length, as in
+    :func:`envpredict.sweep.snr_sweep`) is mixed at each SNR (rounded to
+    :data:`SNR_STEP_DB`) with a segment of ``noise`` whose start is drawn uniformly by
+    ``numpy.random.default_rng(seed)``. The SNR is referred to the speech's active level
+    (ITU-T P.56 method B) or its long-term level (``snr_reference``); the noise's level
+    is its long-term level over the segment. Each mixture is then scaled so that the
+    speech's reference level (``level="speech"``) or the mixture's long-term level
+    (``level="mixture"``) equals ``presentation_level_db`` dB re full scale.
+
+    Parameters
+    ----------
+    folder : new or empty folder to write (it appears whole or not at all).
+    clean, noise : speech and noise at ``fs``; the noise at least as long as the speech.
+    fs : sample rate, Hz.
+    snr_db : SNRs, dB (at most :data:`MAX_STIMULI`; repeated values after rounding are
+        written once).
+    ir : impulse response applied to the speech, or ``None``.
+    snr_reference : ``"active"`` or ``"long-term"`` (:data:`envpredict.sweep.SNR_REFERENCES`).
+    level : ``"speech"`` or ``"mixture"`` (what the presentation level fixes).
+    presentation_level_db : the common level, dB re full scale (a full-scale sine is
+        -3 dB).
+    scale_to_fit : when a mixture would clip, scale every file by one common factor that
+        brings the loudest peak to :data:`FIT_PEAK_DB` (the manifest and the result give
+        the gain) instead of refusing.
+    seed : seed of the noise-segment draw (the same seed gives the same files).
+    name : start of the file names (``NAME_snr-6.0dB.wav``).
+
+    Returns
+    -------
+    StimuliResult
+
+    Raises
+    ------
+    InputError
+        A folder that exists and is not empty, bad SNRs or options, a noise shorter than
+        the speech, or a mixture that would clip (without ``scale_to_fit``).
+    """
+    from scipy.signal import fftconvolve
+
+    from .audio import check_rate, validate_signal, write_wav
+    from .decay import onset_index
+    from .outputs import atomic_directory
+    from .speechlevel import active_speech_level
+    from .sweep import LEVEL_CONVENTIONS, check_snr_reference
+    from .tables import table_text
+
+    out = check_stimuli_folder(folder)
+    reference = check_snr_reference(snr_reference)
+    if level not in LEVEL_CONVENTIONS:
+        raise InputError(f"unknown level convention '{level}'", "use 'speech' or 'mixture'")
+    try:
+        snrs = np.asarray(snr_db, dtype=float).reshape(-1)
+        pres = float(presentation_level_db)
+    except (TypeError, ValueError):
+        raise InputError("SNRs and the presentation level must be numbers", "give them in dB") from None
+    if snrs.size == 0 or not np.all(np.isfinite(snrs)) or not math.isfinite(pres):
+        raise InputError("the stimuli need at least one finite SNR and a finite presentation level",
+                         "give e.g. SNRs -9, -6, -3 dB and a level of -26 dB re full scale")
+    if pres >= 0:
+        raise InputError(f"presentation level {pres:g} dB re full scale is at or above full scale",
+                         "give a negative level, e.g. -26")
+    snrs = np.unique(np.round(snrs / SNR_STEP_DB) * SNR_STEP_DB)
+    if snrs.size > MAX_STIMULI:
+        raise InputError(f"{snrs.size} stimuli asked for (at most {MAX_STIMULI})", "give fewer SNRs")
+    if not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise InputError(f"seed {seed!r} is not a whole number >= 0", "give e.g. --seed 0")
+    fs = check_rate(fs, "clean speech")
+    x = validate_signal(clean, fs, name="clean speech")
+    nz = validate_signal(noise, fs, name="noise", allow_clipping=True)
+    speech = x
+    if ir is not None:
+        h = validate_signal(ir, fs, name="impulse response", allow_clipping=True)
+        speech = fftconvolve(x, h[onset_index(h):])[: x.size]
+    L = x.size
+    if nz.size < L:
+        raise InputError(f"the noise ({nz.size / fs:.2f} s) is shorter than the speech ({L / fs:.2f} s)",
+                         "give a noise recording at least as long as the speech")
+    lev = active_speech_level(speech, fs)
+    p_long = float(np.mean(speech * speech))
+    p_ref = lev.active_mean_square if reference == "active" else p_long
+    target = 10.0 ** (pres / 10.0)
+    rng = np.random.default_rng(int(seed))
+    offsets = rng.integers(0, nz.size - L + 1, size=snrs.size)
+
+    mixes, rows = [], []
+    for s, o in zip(snrs, offsets):
+        seg = nz[o:o + L]
+        p_noise = float(np.mean(seg * seg))
+        if p_noise <= 0:
+            raise InputError(f"noise segment at {o / fs:.2f} s is silent", "give a noise without silent stretches")
+        g = math.sqrt(p_ref / (p_noise * 10.0 ** (s / 10.0)))
+        mix = speech + g * seg
+        k = math.sqrt(target / (p_ref if level == "speech" else float(np.mean(mix * mix))))
+        mixes.append(k * mix)
+        rows.append((float(s), int(o), k * k, g * g * p_noise))
+    peaks = np.array([float(np.max(np.abs(m))) for m in mixes])
+    common = 1.0
+    notes = [f"noise segments drawn with seed {seed}: the same inputs and seed give the same files"]
+    cautions = []
+    if np.any(peaks >= CLIP_PEAK):
+        worst = int(np.argmax(peaks))
+        over = 20.0 * math.log10(peaks[worst])
+        if not scale_to_fit:
+            raise InputError(
+                f"the mixture at {snrs[worst]:g} dB SNR would clip (peak {over:+.1f} dB re full scale at a "
+                f"presentation level of {pres:g} dB)",
+                f"lower the presentation level by at least {over - FIT_PEAK_DB:.1f} dB, or scale all files to fit")
+        common = 10.0 ** (FIT_PEAK_DB / 20.0) / float(peaks.max())
+        cautions.append(f"every file was scaled by {20 * math.log10(common):.2f} dB (one common factor) so that "
+                        f"the loudest peak is at {FIT_PEAK_DB:g} dB re full scale: the presentation level is "
+                        f"{pres + 20 * math.log10(common):.2f} dB, not {pres:g} dB")
+    gain_db = 20.0 * math.log10(common)
+    stimuli = []
+    with atomic_directory(out) as tmp:
+        for (s, o, k2, pn), mix, peak in zip(rows, mixes, peaks):
+            y = common * mix
+            fname = f"{name}_snr{s:+.1f}dB.wav"
+            write_wav(Path(tmp) / fname, y, fs, subtype=STIMULUS_SUBTYPE)
+            c2 = common * common
+            stimuli.append(Stimulus(
+                file=fname, snr_db=s, snr_reference=reference, level_convention=level,
+                speech_active_level_db=_db(lev.active_mean_square * k2 * c2),
+                speech_long_term_level_db=_db(p_long * k2 * c2), noise_level_db=_db(pn * k2 * c2),
+                mixture_level_db=_db(float(np.mean(y * y))), peak_db=20.0 * math.log10(common * peak),
+                noise_offset_s=o / fs, noise_offset_samples=o, common_gain_db=gain_db, seed=int(seed)))
+        table = table_text(MANIFEST_COLUMNS, [{k: str(v) for k, v in st.to_dict().items()} for st in stimuli])
+        (Path(tmp) / MANIFEST_NAME).write_text(table, encoding="utf-8")
+    return StimuliResult(folder=str(out), stimuli=tuple(stimuli), presentation_level_db=pres,
+                         common_gain_db=gain_db, fs=fs, seed=int(seed), cautions=tuple(cautions), notes=tuple(notes))
+
+
+def stimulus_snrs(sweep: SweepResult | None = None, chosen: Sequence[float] | None = None) -> list[float]:
+    """The SNRs to write: ``chosen`` when given; else the target SNRs a sweep found
+    (those reached inside its range); else the sweep's own SNRs."""
+    if chosen:
+        return [float(s) for s in chosen]
+    if sweep is None:
+        raise InputError("no SNRs for the stimuli", "give the SNRs to write")
+    found = [t.snr_db for t in sweep.targets if t.snr_db is not None]
+    return [float(s) for s in found] if found else [float(s) for s in sweep.snr_db]
+
+
+def write_stimuli_files(
+    folder: str | os.PathLike,
+    clean: str | os.PathLike,
+    noise: str | os.PathLike,
+    snr_db: Sequence[float],
+    *,
+    ir: str | os.PathLike | None = None,
+    channel: int | None = None,
+    **options,
+) -> StimuliResult:
+    """:func:`write_stimuli` from audio files (the noise and the impulse response are
+    resampled to the speech's rate when theirs differs, as for the sweep; a note says so).
+
+    ``options`` are those of :func:`write_stimuli` (``snr_reference``, ``level``,
+    ``presentation_level_db``, ``scale_to_fit``, ``seed``, ``name``).
+    """
+    from dataclasses import replace
+
+    from .audio import load_audio, resample
+
+    from .sweep import sentence_files
+
+    check_stimuli_folder(folder)
+    if len(sentence_files(clean)) > 1:
+        raise InputError("stimuli from several sentences are not written yet",
+                         "write them per sentence (one --write-stimuli folder per sentence file)")
+    x, fs = load_audio(clean, channel, name="clean speech")
+    nz, fs_n = load_audio(noise, channel, name="noise")
+    notes = []
+    if fs_n != fs:
+        notes.append(f"the noise was resampled from {fs_n} Hz to {fs} Hz")
+        nz = resample(nz, fs_n, fs)
+    h = None
+    if ir is not None:
+        h, fs_h = load_audio(ir, channel, name="impulse response")
+        if fs_h != fs:
+            notes.append(f"the impulse response was resampled from {fs_h} Hz to {fs} Hz")
+            h = resample(h, fs_h, fs)
+    res = write_stimuli(folder, x, nz, fs, snr_db, ir=h, **options)
+    return replace(res, notes=tuple(notes) + res.notes) if notes else res

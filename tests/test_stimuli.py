@@ -1,0 +1,157 @@
+"""Stimuli of a listening test (envpredict.stimuli) and ``sweep --write-stimuli``.
+
+The mixtures are rebuilt here from their definition -- speech + g * noise segment with
+10 log10(speech power / (g^2 noise power)) = SNR, scaled so that the speech's long-term
+level is the presentation level in dB re full scale -- and compared with the files read
+back by soundfile (24-bit PCM: within half a step, 2**-24, plus rounding). The active
+reference is checked by the manifest's levels against the P.56 measurement of the
+written speech level (itself checked against the method's definition in
+tests/test_speechlevel.py).
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import json
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from envpredict.exceptions import InputError
+from envpredict.stimuli import MANIFEST_NAME, stimulus_snrs, write_stimuli
+from envpredict.sweep import snr_sweep
+
+from cli_for_tests import run_cli
+from signals_for_tests import speech_like
+
+FS = 16000
+#: One step of 24-bit PCM (full scale 1): the written files are within this of the floats.
+PCM24_STEP = 2.0 ** -23
+
+
+@pytest.fixture(scope="module")
+def signals():
+    clean = speech_like(3.0, FS, seed=4)
+    noise = np.random.default_rng(5).standard_normal(8 * FS) * 0.05
+    return clean, noise
+
+
+def _manifest(folder):
+    with open(folder / MANIFEST_NAME, newline="", encoding="utf-8") as f:
+        return list(csv.DictReader(f))
+
+
+def _digest(folder):
+    return {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in sorted(folder.iterdir())}
+
+
+def test_mixtures_are_the_speech_plus_the_noise_at_the_snr(tmp_path, signals):
+    clean, noise = signals
+    res = write_stimuli(tmp_path / "st", clean, noise, FS, [-6, 0, 4.96], snr_reference="long-term",
+                        presentation_level_db=-30.0, seed=3)
+    rows = _manifest(tmp_path / "st")
+    assert [float(r["snr_db"]) for r in rows] == [-6.0, 0.0, 5.0]  # rounded to 0.1 dB
+    assert [r["file"] for r in rows] == [s.file for s in res.stimuli]
+    for r in rows:
+        y, fs = sf.read(tmp_path / "st" / r["file"])
+        assert fs == FS and y.size == clean.size
+        o = int(r["noise_offset_samples"])
+        assert o / FS == pytest.approx(float(r["noise_offset_s"]), abs=1e-3)
+        seg = noise[o:o + clean.size]
+        snr = float(r["snr_db"])
+        g = np.sqrt(np.mean(clean ** 2) / (np.mean(seg ** 2) * 10 ** (snr / 10)))
+        k = np.sqrt(10 ** (-30 / 10) / np.mean(clean ** 2))  # speech at -30 dB re full scale
+        np.testing.assert_allclose(y, k * (clean + g * seg), atol=PCM24_STEP)
+        assert float(r["speech_long_term_level_db"]) == pytest.approx(-30.0, abs=1e-3)
+        assert float(r["speech_long_term_level_db"]) - float(r["noise_level_db"]) == pytest.approx(snr, abs=2e-3)
+        assert float(r["mixture_level_db"]) == pytest.approx(10 * np.log10(np.mean(y ** 2)), abs=1e-3)
+
+
+def test_the_active_reference_sets_the_active_level(tmp_path, signals):
+    from envpredict.speechlevel import active_speech_level
+
+    clean, noise = signals
+    write_stimuli(tmp_path / "st", clean, noise, FS, [-3, 3], presentation_level_db=-26.0)
+    lev = active_speech_level(clean, FS)
+    for r in _manifest(tmp_path / "st"):
+        assert r["snr_reference"] == "active"
+        assert float(r["speech_active_level_db"]) == pytest.approx(-26.0, abs=1e-3)
+        assert float(r["speech_active_level_db"]) - float(r["noise_level_db"]) == pytest.approx(
+            float(r["snr_db"]), abs=2e-3)
+        # active minus long-term is 10 log10(1 / activity factor)
+        assert float(r["speech_active_level_db"]) - float(r["speech_long_term_level_db"]) == pytest.approx(
+            -10 * np.log10(lev.activity_factor), abs=2e-3)
+
+
+def test_files_are_bit_exact_from_the_seed(tmp_path, signals):
+    clean, noise = signals
+    for name, seed in (("a", 7), ("b", 7), ("c", 8)):
+        write_stimuli(tmp_path / name, clean, noise, FS, [-6, 0], seed=seed)
+    assert _digest(tmp_path / "a") == _digest(tmp_path / "b")
+    assert _digest(tmp_path / "a") != _digest(tmp_path / "c")
+
+
+def test_clipping_is_refused_or_every_file_scaled_by_one_factor(tmp_path, signals):
+    clean, noise = signals
+    with pytest.raises(InputError, match="would clip"):
+        write_stimuli(tmp_path / "x", clean, noise, FS, [-12, 0], presentation_level_db=-3.0)
+    assert not (tmp_path / "x").exists()  # nothing written
+    write_stimuli(tmp_path / "ref", clean, noise, FS, [-12, 0], presentation_level_db=-30.0)
+    res = write_stimuli(tmp_path / "fit", clean, noise, FS, [-12, 0], presentation_level_db=-3.0, scale_to_fit=True)
+    assert res.common_gain_db < 0 and res.cautions and "one common factor" in res.cautions[0]
+    peaks, ratios = [], []
+    for s in res.stimuli:
+        y, _ = sf.read(tmp_path / "fit" / s.file)
+        r, _ = sf.read(tmp_path / "ref" / s.file)
+        peaks.append(np.max(np.abs(y)))
+        ratios.append(np.sum(y * r) / np.sum(r * r))
+    assert 20 * np.log10(max(peaks)) == pytest.approx(-1.0, abs=1e-3)  # the loudest peak at -1 dB re full scale
+    assert ratios[0] == pytest.approx(ratios[1], rel=1e-5)  # one factor for every file
+    assert 20 * np.log10(ratios[0]) == pytest.approx(27.0 + res.common_gain_db, abs=1e-3)
+
+
+def test_a_folder_that_is_not_new_or_empty_is_refused(tmp_path, signals):
+    clean, noise = signals
+    (tmp_path / "full").mkdir()
+    (tmp_path / "full" / "keep.txt").write_text("mine")
+    with pytest.raises(InputError, match="not empty"):
+        write_stimuli(tmp_path / "full", clean, noise, FS, [0])
+    assert [p.name for p in (tmp_path / "full").iterdir()] == ["keep.txt"]
+    (tmp_path / "empty").mkdir()
+    write_stimuli(tmp_path / "empty", clean, noise, FS, [0])
+    assert (tmp_path / "empty" / MANIFEST_NAME).exists()
+
+
+def test_the_snrs_written(signals):
+    from envpredict.mapping import ScoreMapping
+
+    clean, noise = signals
+    m = ScoreMapping(index="probe", shape="logistic", a=-4.0, b=8.0)
+    f = {"probe": lambda c, d, fs: float(1 / (1 + np.exp(-10 * np.log10(np.sum(c ** 2) / np.sum((d - c) ** 2)) / 8)))}
+    res = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], index="probe", mapping=m, n_segments=1, index_functions=f)
+    assert stimulus_snrs(res) == [res.targets[0].snr_db]
+    assert stimulus_snrs(res, [-3.0]) == [-3.0]
+    plain = snr_sweep(clean, noise, FS, snr_db=[-6, 0, 6], index="probe", n_segments=1, index_functions=f)
+    assert stimulus_snrs(plain) == [-6.0, 0.0, 6.0]
+
+
+def test_cli_sweep_writes_the_stimuli(tmp_path, capsys, signals):
+    clean, noise = signals
+    cw, nw = tmp_path / "clean.wav", tmp_path / "noise.wav"
+    sf.write(cw, clean, FS, subtype="FLOAT")
+    sf.write(nw, noise, FS, subtype="FLOAT")
+    args = ["sweep", str(cw), str(nw), "--snr=-6:6:6", "--segments", "1", "--index", "estoi"]
+    code, out, err = run_cli(args + ["--write-stimuli", str(tmp_path / "st"), "--stimuli-snr=-2",
+                                     "--stimuli-snr", "2", "--json"], capsys)
+    assert code == 0, err
+    d = json.loads(out)
+    assert [s["snr_db"] for s in d["stimuli"]["stimuli"]] == [-2.0, 2.0]
+    assert sorted(p.name for p in (tmp_path / "st").iterdir()) == sorted(
+        [MANIFEST_NAME] + [s["file"] for s in d["stimuli"]["stimuli"]])
+    # an existing folder with files is refused before the sweep runs
+    code, out, err = run_cli(args + ["--write-stimuli", str(tmp_path / "st")], capsys)
+    assert code == 2 and "not empty" in err and out == ""
+    code, out, err = run_cli(args + ["--write-stimuli", str(tmp_path / "loud"), "--presentation-level=-1"], capsys)
+    assert code == 2 and "would clip" in err and not (tmp_path / "loud").exists()
