@@ -38,7 +38,7 @@ from .audio import (
     Window,
     as_source,
     audio_info,
-    estimate_delay,
+    find_delay,
     zero_lag_correlation,
 )
 from .bands import EnvelopeStream
@@ -56,6 +56,15 @@ from .results import jsonable
 #: sqrt(0.1/1.1) = 0.30 and unrelated signals about 1/sqrt(samples) (< 0.01 for a few
 #: seconds), so 0.1 (about -20 dB SNR) separates them with margin (judgement).
 MIN_MATCH_CORRELATION: float = 0.1
+
+#: Default delay finder of the pair job (:data:`envpredict.audio.DELAY_METHODS`):
+#: GCC-PHAT finds the direct sound where the waveform peak jumps to reflections.
+DEFAULT_DELAY_METHOD: str = "gcc-phat"
+
+#: A delay given to the pair (a condition's, a fixed one) and the pair's own estimate
+#: disagree when they differ by more than this, ms: GCC-PHAT is sample-accurate on a
+#: direct path, so a larger gap means another path or another latency (judgement).
+DELAY_AGREEMENT_MS: float = 1.0
 
 #: After alignment each signal may lose at most this much (s) or this share of the
 #: common part, whichever is larger, when trimmed to the common length; more means
@@ -219,8 +228,15 @@ class PairResult:
         limits), which follows the classical STI for steady noise; ``None`` like ``ssti``.
     delay_ms : delay of the degraded signal removed before the analysis (positive:
         degraded late); 0 when alignment is off.
-    match_correlation : normalised waveform cross-correlation at that delay.
+    match_correlation : the largest normalised waveform cross-correlation within the
+        search range (at lag 0 without a search): whether the two hold the same signal.
     aligned : whether the delay search was on.
+    delay_from : how the delay was chosen: ``"search"`` (this pair's estimate),
+        ``"given"`` (passed in, e.g. a condition's delay) or ``"off"``.
+    delay_method : the delay finder of the search (:data:`envpredict.audio.DELAY_METHODS`).
+    delay_confidence : the search's peak ratio (see :class:`envpredict.audio.DelayEstimate`).
+    own_delay_ms : this pair's own estimate when the delay was given (else ``None``).
+    correlation_at_delay : normalised waveform correlation at the delay used.
     fs : analysis sample rate (the clean signal's), Hz; ``fs_clean``, ``fs_degraded``
         the input rates.
     duration_s : length of the common (aligned, trimmed) part, s.
@@ -247,6 +263,11 @@ class PairResult:
     notes: tuple[str, ...] = field(default=())
     ssti_regression: float | None = None
     chunks: int = 1
+    delay_from: str = "search"
+    delay_method: str | None = None
+    delay_confidence: float | None = None
+    own_delay_ms: float | None = None
+    correlation_at_delay: float | None = None
 
     def timeline(self) -> dict:
         """Local STOI and ESTOI in fixed time bins of the common part (NaN: no speech)."""
@@ -302,7 +323,13 @@ class PairResult:
                 "enabled": self.aligned,
                 "delay_ms": round(self.delay_ms, 3),
                 "delay_samples": self.delay_samples,
+                "delay_from": self.delay_from,
+                "method": self.delay_method,
+                "confidence": None if self.delay_confidence is None else round(self.delay_confidence, 3),
+                "own_delay_ms": None if self.own_delay_ms is None else round(self.own_delay_ms, 3),
                 "match_correlation": round(self.match_correlation, 4),
+                "correlation_at_delay": (None if self.correlation_at_delay is None
+                                         else round(self.correlation_at_delay, 4)),
                 "trimmed_s": [round(v, 4) for v in self.trimmed_s],
             },
             "fs_clean": self.fs_clean,
@@ -334,6 +361,18 @@ class PairResult:
 # ---------------------------------------------------------------------------
 
 
+def _check_delay(delay_s: float | None) -> float | None:
+    if delay_s is None:
+        return None
+    try:
+        v = float(delay_s)
+    except (TypeError, ValueError):
+        raise InputError(f"delay '{delay_s}' is not a number", "give the delay in seconds (ms in a manifest)") from None
+    if not math.isfinite(v):
+        raise InputError(f"delay {delay_s} is not finite", "give the delay in seconds (ms in a manifest)")
+    return v
+
+
 def _check_options(max_delay_s: float, chunk_s: float) -> tuple[float, float]:
     try:
         md, cs = float(max_delay_s), float(chunk_s)
@@ -357,11 +396,20 @@ class _Aligned:
     n_common: int
     drop: tuple[int, int]
     notes: tuple[str, ...]
+    delay_from: str = "search"
+    method: str | None = None
+    confidence: float | None = None
+    own_lag: int | None = None
+    corr_at_delay: float | None = None
 
 
-def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float) -> _Aligned:
+def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float,
+           delay_method: str = DEFAULT_DELAY_METHOD, delay_s: float | None = None) -> _Aligned:
     """Check both signals, resample the degraded one to the clean rate, find and remove
-    the delay and trim both to their common part (every pair index starts here)."""
+    the delay and trim both to their common part (every pair index starts here).
+
+    ``delay_s`` given: that delay is removed; with ``align`` the search still runs, to
+    check that the two match and to report the pair's own estimate beside it."""
     notes: list[str] = []
     fs = clean.fs
     if fs < std.STOI_FS:
@@ -378,22 +426,32 @@ def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float) 
     if degraded.fs != fs:
         notes.append(f"degraded signal resampled from {degraded.fs} Hz to {fs} Hz")
 
+    method = confidence = own_lag = None
     if align:
         near = _loudest_excerpt_start(stats_c["energy_per_second"], clean.n, fs)
-        lag, corr = estimate_delay(clean, deg, max_delay_s=max_delay_s, near=near)
-        if abs(corr) < MIN_MATCH_CORRELATION:
+        est = find_delay(clean, deg, max_delay_s=max_delay_s, near=near, method=delay_method)
+        corr = est.peak_correlation
+        if corr < MIN_MATCH_CORRELATION:
             raise InputError(
-                f"clean and degraded do not match: peak waveform correlation {abs(corr):.3f} within "
+                f"clean and degraded do not match: peak waveform correlation {corr:.3f} within "
                 f"±{max_delay_s:g} s (at least {MIN_MATCH_CORRELATION} is needed)",
                 "check that both hold the same utterance; for a longer delay raise --max-delay; "
                 "--no-align skips the check",
             )
-        if corr < 0:
-            notes.append("the best match between the waveforms has inverted polarity (an inverting chain, "
-                         "or a strong reflection in a reverberant recording); the indices do not depend "
-                         "on polarity")
+        lag, method, confidence = est.lag, est.method, est.confidence
+        if delay_s is not None:
+            own_lag, lag = lag, int(round(delay_s * fs))
+            if abs(own_lag - lag) > DELAY_AGREEMENT_MS * fs / 1000.0:
+                notes.append(f"this pair's own delay estimate ({own_lag / fs * 1000:.2f} ms, {method}) differs "
+                             f"from the delay used ({lag / fs * 1000:.2f} ms) by more than "
+                             f"{DELAY_AGREEMENT_MS:g} ms")
+    elif delay_s is not None:
+        lag, corr = int(round(delay_s * fs)), math.nan
     else:
         lag, corr = 0, zero_lag_correlation(clean, deg)
+    if abs(lag) >= min(clean.n, deg.n):
+        raise InputError(f"the delay of {lag / fs * 1000:.1f} ms is longer than the files "
+                         f"({min(clean.n, deg.n) / fs:.2f} s)", "give a delay shorter than the recording")
 
     # common part: clean[s_c + n] with deg[s_c + lag + n]
     s_c = max(0, -lag)
@@ -410,8 +468,19 @@ def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float) 
     if max(drop_c, drop_d) > 0.01 * fs:
         notes.append(f"trimmed to the common part of {n_common / fs:.2f} s "
                      f"({drop_c / fs:.3f} s of clean, {drop_d / fs:.3f} s of degraded dropped)")
-    return _Aligned(clean=Window(clean, s_c, n_common), degraded=Window(deg, s_c + lag, n_common), lag=int(lag),
-                    corr=float(corr), n_common=int(n_common), drop=(int(drop_c), int(drop_d)), notes=tuple(notes))
+    c_win, d_win = Window(clean, s_c, n_common), Window(deg, s_c + lag, n_common)
+    at_delay = zero_lag_correlation(c_win, d_win) if (align or delay_s is not None) else corr
+    if not math.isfinite(corr):
+        corr = at_delay
+    if at_delay <= -MIN_MATCH_CORRELATION:
+        notes.append("the waveforms match with inverted polarity at the delay used (an inverting chain, "
+                     "or a strong reflection in a reverberant recording); the indices do not depend "
+                     "on polarity")
+    delay_from = "given" if delay_s is not None else "search" if align else "off"
+    return _Aligned(clean=c_win, degraded=d_win, lag=int(lag),
+                    corr=float(corr), n_common=int(n_common), drop=(int(drop_c), int(drop_d)), notes=tuple(notes),
+                    delay_from=delay_from, method=method, confidence=confidence, own_lag=own_lag,
+                    corr_at_delay=float(at_delay))
 
 
 @dataclass(frozen=True)
@@ -482,10 +551,13 @@ def _pair(
     max_delay_s: float,
     chunk_s: float,
     progress: Callable[[int, int], None] | None,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+    delay_s: float | None = None,
 ) -> PairResult:
     max_delay_s, chunk_s = _check_options(max_delay_s, chunk_s)
+    delay_s = _check_delay(delay_s)
     fs = clean.fs
-    al = _align(clean, degraded, align=align, max_delay_s=max_delay_s)
+    al = _align(clean, degraded, align=align, max_delay_s=max_delay_s, delay_method=delay_method, delay_s=delay_s)
     notes = list(al.notes)
     c_al, d_al, n_common, lag = al.clean, al.degraded, al.n_common, al.lag
 
@@ -542,6 +614,11 @@ def _pair(
         ssti_bands=ss.bands,
         notes=tuple(notes),
         chunks=n_stoi - 1,
+        delay_from=al.delay_from,
+        delay_method=al.method,
+        delay_confidence=al.confidence,
+        own_delay_ms=None if al.own_lag is None else al.own_lag / fs * 1000.0,
+        correlation_at_delay=al.corr_at_delay,
     )
 
 
@@ -555,14 +632,16 @@ def pair_indices(
     max_delay_s: float = std.PAIR_MAX_DELAY_S,
     chunk_s: float = DEFAULT_CHUNK_S,
     progress: Callable[[int, int], None] | None = None,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+    delay_s: float | None = None,
 ) -> PairResult:
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, aligned and trimmed.
 
     Steps: check both signals (finite, not silent, one channel); resample the
     degraded one to ``fs`` if ``fs_degraded`` differs; find the delay of the degraded
-    signal by waveform cross-correlation within ``±max_delay_s`` and refuse the pair if
-    the peak normalised correlation is below :data:`MIN_MATCH_CORRELATION`; trim both
-    to the common part; then
+    signal within ``±max_delay_s`` (GCC-PHAT by default, :func:`envpredict.audio.find_delay`)
+    and refuse the pair if the peak normalised waveform correlation is below
+    :data:`MIN_MATCH_CORRELATION`; trim both to the common part; then
 
     * STOI (Taal et al., IEEE TASLP 19(7), 2011) and ESTOI (Jensen & Taal, IEEE/ACM
       TASLP 24(11), 2016), see :func:`envpredict.stoi`;
@@ -582,13 +661,21 @@ def pair_indices(
     max_delay_s : largest delay searched, s (default 1).
     chunk_s : seconds per processing chunk; results do not depend on it.
     progress : optional ``progress(done, total)`` callback.
+    delay_method : ``"gcc-phat"`` (default) or ``"waveform"`` (the plain cross-correlation
+        peak), see :func:`envpredict.audio.find_delay`.
+    delay_s : remove this delay (s, positive: degraded late) instead of the estimate, e.g.
+        one delay for every item of a processing condition. With ``align`` the search
+        still runs: it checks the match and its estimate is reported (``own_delay_ms``,
+        a note when it differs by more than :data:`DELAY_AGREEMENT_MS`).
 
     Valid range
     -----------
-    Alignment: one fixed delay for the whole pair, taken where the waveform
-    cross-correlation peaks; in a reverberant recording that can be a strong reflection
-    rather than the direct sound (a few tens of ms later), which is the shift at which
-    the envelopes agree best. Drifting clocks and time-varying delays are not corrected.
+    Alignment: one fixed delay for the whole pair. GCC-PHAT (Knapp & Carter 1976) peaks
+    at the direct sound where the plain waveform correlation often peaks on the
+    reverberation a few ms to tens of ms later; with strong early reflections and little
+    speech a single pair can still land on a reflection (``delay_confidence`` near 1):
+    a corpus should use one delay per processing condition (``envpredict batch`` does).
+    Drifting clocks and time-varying delays are not corrected.
     STOI/ESTOI: see :func:`envpredict.stoi`. Speech-based STI: additive noise,
     reverberation and linear filtering of natural speech of at least 3 s (better whole
     sentences); the NCM only sees envelope *fluctuations*, so a perfectly steady masker
@@ -603,7 +690,8 @@ def pair_indices(
     """
     c = _as_pair_source(clean, fs, "clean signal")
     d = _as_pair_source(degraded, fs if fs_degraded is None else fs_degraded, "degraded signal")
-    return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
+    return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
+                 delay_method=delay_method, delay_s=delay_s)
 
 
 def pair_from_files(
@@ -617,6 +705,8 @@ def pair_from_files(
     progress: Callable[[int, int], None] | None = None,
     clean_channel: int | None = None,
     degraded_channel: int | None = None,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+    delay_s: float | None = None,
 ) -> PairResult:
     """:func:`pair_indices` of two audio files, read block by block (bounded memory).
 
@@ -630,7 +720,8 @@ def pair_from_files(
     with (FileSource(clean_path, cc if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
           FileSource(degraded_path, dc if _channels(degraded_path, "degraded") > 1 else None,
                      name="degraded") as d):
-        return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
+        return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
+                     delay_method=delay_method, delay_s=delay_s)
 
 
 def _channels(path: str | os.PathLike, name: str) -> int:
@@ -658,3 +749,118 @@ def speech_sti(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float | None
         raise ComputationError("; ".join(n for n in res.notes if "speech-based STI" in n),
                                "see the valid range in envpredict.pair_indices")
     return res.ssti
+
+
+# ---------------------------------------------------------------------------
+# One delay for several pairs (a processing condition of a corpus)
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class CommonDelay:
+    """One delay for a set of pairs, from their pooled delay curves.
+
+    Attributes
+    ----------
+    delay_ms : the pooled delay, ms (``None`` when no pair could be used).
+    confidence : the peak ratio of the summed curve (see :class:`envpredict.audio.DelayEstimate`).
+    method : the delay finder.
+    pooled : number of pairs in the pool.
+    own_delay_ms : each pair's own estimate, ms (``None`` where it could not be found).
+    errors : why a pair was left out ("" where it was used).
+    notes : what the user should know (pairs at another rate left out, weak pool).
+    """
+
+    delay_ms: float | None
+    confidence: float | None
+    method: str
+    pooled: int
+    own_delay_ms: tuple[float | None, ...]
+    errors: tuple[str, ...]
+    notes: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict:
+        return jsonable({"delay_ms": self.delay_ms, "confidence": self.confidence, "method": self.method,
+                         "pooled": self.pooled, "own_delay_ms": list(self.own_delay_ms),
+                         "errors": list(self.errors), "cautions": [], "notes": list(self.notes)})
+
+
+def pair_delay_curve(
+    clean_path: str | os.PathLike,
+    degraded_path: str | os.PathLike,
+    *,
+    channel: int | None = None,
+    max_delay_s: float = std.PAIR_MAX_DELAY_S,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+):
+    """The pair job's delay search on two files (the same excerpt, rate and checks as
+    :func:`pair_from_files`), with its curve: ``(DelayEstimate, DelayCurve)``.
+
+    Raises InputError when the files do not match (peak waveform correlation below
+    :data:`MIN_MATCH_CORRELATION`) or fail the input checks.
+    """
+    max_delay_s, _ = _check_options(max_delay_s, DEFAULT_CHUNK_S)
+    with (FileSource(clean_path, channel if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
+          FileSource(degraded_path, channel if _channels(degraded_path, "degraded") > 1 else None,
+                     name="degraded") as d):
+        fs = c.fs
+        deg = d if d.fs == fs else Resampled(d, fs)
+        stats = _scan(c)
+        _scan(d)
+        near = _loudest_excerpt_start(stats["energy_per_second"], c.n, fs)
+        est, curve = find_delay(c, deg, max_delay_s=max_delay_s, near=near, method=delay_method, curve=True)
+    if est.peak_correlation < MIN_MATCH_CORRELATION:
+        raise InputError(f"clean and degraded do not match: peak waveform correlation {est.peak_correlation:.3f}",
+                         "check that both hold the same utterance")
+    return est, curve
+
+
+def common_delay(
+    pairs: list[tuple[str | os.PathLike, str | os.PathLike, int | None]],
+    *,
+    max_delay_s: float = std.PAIR_MAX_DELAY_S,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+) -> CommonDelay:
+    """One delay for several clean/degraded pairs (e.g. every item of one processing chain).
+
+    Each pair's delay curve (:func:`pair_delay_curve`) is computed and the curves are
+    added (:func:`envpredict.audio.pooled_delay`): a chain has one latency, and the path
+    every item shares (the direct sound) adds up while the reflections and noise peaks
+    of single items, which differ from item to item, do not. Pairs at another clean rate
+    than the most common one, and pairs that fail (missing file, no match), are left out
+    of the pool.
+
+    Parameters
+    ----------
+    pairs : ``(clean path, degraded path, channel)`` per item.
+    max_delay_s, delay_method : as for :func:`pair_from_files`.
+    """
+    from collections import Counter
+
+    from .audio import pooled_delay
+    from .exceptions import EnvpredictError
+
+    ests, curves, errors = [], [], []
+    for clean_path, degraded_path, channel in pairs:
+        try:
+            est, curve = pair_delay_curve(clean_path, degraded_path, channel=channel, max_delay_s=max_delay_s,
+                                          delay_method=delay_method)
+            ests.append(est)
+            curves.append(curve)
+            errors.append("")
+        except EnvpredictError as e:
+            ests.append(None)
+            curves.append(None)
+            errors.append(e.one_line())
+    notes: list[str] = []
+    usable = [c for c in curves if c is not None]
+    if not usable:
+        return CommonDelay(None, None, delay_method, 0, tuple(None for _ in pairs), tuple(errors),
+                           ("no pair could be used for the common delay",))
+    fs = Counter(c.fs for c in usable).most_common(1)[0][0]
+    pool = [c for c in usable if c.fs == fs]
+    if len(pool) < len(usable):
+        notes.append(f"{len(usable) - len(pool)} pair(s) at another rate than {fs} Hz left out of the common delay")
+    lag, conf = pooled_delay(pool)
+    own = tuple(None if e is None else e.delay_ms for e in ests)
+    return CommonDelay(lag / fs * 1000.0, conf, delay_method, len(pool), own, tuple(errors), tuple(notes))

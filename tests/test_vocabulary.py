@@ -111,6 +111,18 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         rec = 0.5 * rec / np.max(np.abs(rec)) + 1e-5 * np.random.default_rng(6).standard_normal(rec.size)
         return envpredict.deconvolve_sweep(rec, 32000, played, 32000, sweep_spec())
 
+    def common_delay():
+        import soundfile as sf
+
+        from envpredict.pair import common_delay as pooled
+
+        def write(d):
+            sf.write(d / "c.wav", clean, fs, subtype="FLOAT")
+            sf.write(d / "d.wav", np.concatenate([np.zeros(40), degraded]), fs, subtype="FLOAT")
+            return pooled([(d / "c.wav", d / "d.wav", None), (d / "c.wav", d / "missing.wav", None)])
+        return _in_tmp(write)
+
+    from envpredict.audio import find_delay
     from envpredict.bands import octave_bands
     from envpredict.refcases import run_cases
 
@@ -136,6 +148,8 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "SurveyResult": lambda: survey_result,
         "SweepSignalResult": lambda: _in_tmp(lambda d: envpredict.write_sweep_signal(d / "sweep.wav", sweep_spec())),
         "DeconvolutionResult": deconvolution,
+        "DelayEstimate": lambda: find_delay(clean, degraded, fs, 0.1),
+        "CommonDelay": common_delay,
     }
 
 

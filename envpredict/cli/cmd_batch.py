@@ -27,6 +27,12 @@ NOISE_HELP = ("Default background noise for IR rows with an empty 'noise' cell: 
               "dB SPL, 125 Hz to 8 kHz, comma-separated. Default: no noise.")
 LEVEL_HELP = f"Default A-weighted speech level for IR rows, dB(A) (default {std.DEFAULT_SPEECH_LEVEL_DBA:g})."
 TALKER_HELP = "Default speech spectrum for IR rows: male or female (IEC 60268-16)."
+NO_ALIGN_HELP = "Pair rows: no delay search, compare sample by sample (a 'delay_ms' cell still applies)."
+MAX_DELAY_HELP = "Pair rows: largest delay searched, seconds."
+CONDITION_HELP = ("Pair rows: the column naming the processing condition; its items get one delay, pooled over "
+                  "all of them (default: the column 'condition' if there is one).")
+PER_ROW_HELP = "Pair rows: each row its own delay estimate (as 'envpredict pair') instead of one per condition."
+DELAY_MS_HELP = "Pair rows: one fixed delay of the degraded files, ms (a 'delay_ms' cell overrides it per row)."
 
 
 #: Seconds between plain progress lines when stderr is not a terminal (a long batch
@@ -46,6 +52,10 @@ def render_summary(d: dict) -> str:
         lines.append("")
         lines.append("Failed rows (the 'error' column of the results has all of them):")
         lines.extend(f"  row {f['row']}: {f['error']}" for f in d["failures"])
+    if d.get("notes"):
+        lines.append("")
+        lines.append("Alignment:")
+        lines.extend(f"  - {n}" for n in d["notes"])
     lines.append("")
     lines.append(f"Results: {d['inputs']['out']}")
     if d.get("cautions"):
@@ -67,6 +77,11 @@ def batch_command(
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
     speech_level: float = typer.Option(std.DEFAULT_SPEECH_LEVEL_DBA, "--speech-level", help=LEVEL_HELP),
     talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP, metavar="[male|female]"),
+    no_align: bool = typer.Option(False, "--no-align", help=NO_ALIGN_HELP),
+    max_delay: float = typer.Option(std.PAIR_MAX_DELAY_S, "--max-delay", help=MAX_DELAY_HELP),
+    condition_column: Optional[str] = typer.Option(None, "--condition-column", help=CONDITION_HELP),
+    delay_per_row: bool = typer.Option(False, "--delay-per-row", help=PER_ROW_HELP),
+    delay_ms: Optional[float] = typer.Option(None, "--delay-ms", help=DELAY_MS_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
 ) -> None:
     """Score every row of a manifest (STOI/ESTOI/speech-based STI for pairs, STI and T30/EDT for IRs).
@@ -77,9 +92,11 @@ def batch_command(
     the batch completes it is rewritten (atomically) in manifest order. Progress goes
     to stderr; with --json the summary is one JSON object on stdout.
     """
-    from envpredict.batch import read_manifest, run_batch
+    from envpredict.batch import Alignment, read_manifest, run_batch
 
     m = read_manifest(manifest, noise_db=noise, speech_level_dba=speech_level, talker=talker)
+    alignment = Alignment(align=not no_align, max_delay_s=max_delay, condition_column=condition_column,
+                          per_row=delay_per_row, fixed_delay_ms=delay_ms).check(m)
     if scheduler is not None and workers is not None:
         note("note: --workers is ignored with --scheduler (the cluster's workers score the rows)")
 
@@ -95,7 +112,7 @@ def batch_command(
 
     try:
         summary = run_batch(m, out, workers=workers, scheduler=scheduler, resume=resume, overwrite=overwrite,
-                            retry_failed=retry_failed, progress=progress)
+                            retry_failed=retry_failed, progress=progress, alignment=alignment)
     except KeyboardInterrupt:
         if out.exists():
             note(f"the finished rows are saved in {out}; finish with: envpredict batch {manifest} --out {out} "
@@ -107,7 +124,9 @@ def batch_command(
     d = summary.to_dict()
     d["inputs"] = {"manifest": str(manifest), "out": str(out), "workers": workers, "scheduler": scheduler,
                    "resume": resume, "retry_failed": retry_failed, "overwrite": overwrite, "noise": noise,
-                   "speech_level_dba": speech_level, "talker": talker}
+                   "speech_level_dba": speech_level, "talker": talker, "align": not no_align,
+                   "max_delay_s": max_delay, "condition_column": condition_column, "delay_per_row": delay_per_row,
+                   "delay_ms": delay_ms}
     emit(d, lambda: render_summary(d), as_json, None)
     if summary.failed:
         note(f"error: {summary.failed} of {summary.total} rows failed — see the 'error' column of {out}; "
