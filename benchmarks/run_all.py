@@ -6,6 +6,7 @@ Run by hand:  python benchmarks/run_all.py [--long]
 (b) IR STI + decay figures vs seven sosfiltfilt band passes    goal <= 3x their time
 (c) batch throughput, 2 workers vs 1, 400 IR rows               goal >= 1.8x
 (d) `envpredict --help` CPU time                                goal <= 1 s
+(e) sEPSM of a 10 s 16 kHz pair, one core, vs a plain version  goal < 1 s
 --long adds the peak-memory runs: a 30-minute 16 kHz pair and a 60-minute 48 kHz
 STIPA recording (goal <= 600 MB each; several minutes).
 """
@@ -23,6 +24,7 @@ RUNS = [
     ("(b) IR path vs band-pass filtering", ["bench_ir.py"]),
     ("(c) batch throughput", ["bench_batch.py", "--rows", "400", "--repeat", "3"]),
     ("(d) --help CPU time", ["bench_help.py"]),
+    ("(e) sEPSM vs a plain implementation", ["bench_sepsm.py"]),
 ]
 LONG = [
     ("long pair memory", ["bench_long_pair.py", "--minutes", "30"]),

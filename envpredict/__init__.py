@@ -38,6 +38,8 @@ Impulse response by swept sine
 Clean/degraded pairs
     stoi, estoi, correlation_indices, CorrelationResult, pair_indices,
     pair_from_files, PairResult, speech_sti
+Envelope-power index
+    sepsm, SepsmResult
 Inspection of a recording
     inspect_signal, inspect_file, InspectResult, yin_f0, F0Track
 Index-to-score mappings
@@ -116,6 +118,9 @@ _API: dict[str, str] = {
     "pair_from_files": "envpredict.pair",
     "PairResult": "envpredict.pair",
     "speech_sti": "envpredict.pair",
+    # envelope-power index
+    "sepsm": "envpredict.envpower",
+    "SepsmResult": "envpredict.envpower",
     # inspection of a recording
     "inspect_signal": "envpredict.timescales",
     "inspect_file": "envpredict.timescales",

@@ -43,6 +43,7 @@ from .audio import (
 )
 from .bands import EnvelopeStream
 from .correlation import CorrelationResult, frame_count, stoi_estoi_stream
+from .envpower import SepsmResult
 from .exceptions import ComputationError, InputError
 from .modulation import mtf_from_pair_ncm, mtf_from_pair_regression
 from .results import jsonable
@@ -237,6 +238,8 @@ class PairResult:
     delay_confidence : the search's peak ratio (see :class:`envpredict.audio.DelayEstimate`).
     own_delay_ms : this pair's own estimate when the delay was given (else ``None``).
     correlation_at_delay : normalised waveform correlation at the delay used.
+    sepsm : the envelope-power index (:func:`envpredict.envpower.sepsm`) of the degraded
+        signal and the processed noise alone, when the noise was given; else ``None``.
     fs : analysis sample rate (the clean signal's), Hz; ``fs_clean``, ``fs_degraded``
         the input rates.
     duration_s : length of the common (aligned, trimmed) part, s.
@@ -268,6 +271,7 @@ class PairResult:
     delay_confidence: float | None = None
     own_delay_ms: float | None = None
     correlation_at_delay: float | None = None
+    sepsm: "SepsmResult | None" = None
 
     def timeline(self) -> dict:
         """Local STOI and ESTOI in fixed time bins of the common part (NaN: no speech)."""
@@ -332,6 +336,7 @@ class PairResult:
                                          else round(self.correlation_at_delay, 4)),
                 "trimmed_s": [round(v, 4) for v in self.trimmed_s],
             },
+            "sepsm": None if self.sepsm is None else self.sepsm.to_dict(),
             "fs_clean": self.fs_clean,
             "fs_degraded": self.fs_degraded,
             "duration_s": round(self.duration_s, 4),
@@ -634,6 +639,7 @@ def pair_indices(
     progress: Callable[[int, int], None] | None = None,
     delay_method: str = DEFAULT_DELAY_METHOD,
     delay_s: float | None = None,
+    noise: np.ndarray | None = None,
 ) -> PairResult:
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, aligned and trimmed.
 
@@ -667,6 +673,9 @@ def pair_indices(
         one delay for every item of a processing condition. With ``align`` the search
         still runs: it checks the match and its estimate is reported (``own_delay_ms``,
         a note when it differs by more than :data:`DELAY_AGREEMENT_MS`).
+    noise : the noise alone as it is in ``degraded`` (same rate, same length, processed
+        the same way); adds the envelope-power index (``sepsm``,
+        :func:`envpredict.envpower.sepsm`) of ``degraded`` and ``noise``.
 
     Valid range
     -----------
@@ -690,8 +699,11 @@ def pair_indices(
     """
     c = _as_pair_source(clean, fs, "clean signal")
     d = _as_pair_source(degraded, fs if fs_degraded is None else fs_degraded, "degraded signal")
-    return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
-                 delay_method=delay_method, delay_s=delay_s)
+    res = _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
+                delay_method=delay_method, delay_s=delay_s)
+    if noise is None:
+        return res
+    return _with_sepsm(res, np.asarray(degraded), np.asarray(noise), d.fs, d.fs)
 
 
 def pair_from_files(
@@ -707,6 +719,7 @@ def pair_from_files(
     degraded_channel: int | None = None,
     delay_method: str = DEFAULT_DELAY_METHOD,
     delay_s: float | None = None,
+    noise_path: str | os.PathLike | None = None,
 ) -> PairResult:
     """:func:`pair_indices` of two audio files, read block by block (bounded memory).
 
@@ -714,14 +727,50 @@ def pair_from_files(
     only channel); a multi-channel file without a channel is refused. ``clean_channel``
     and ``degraded_channel`` select the channel of one file each (overriding
     ``channel``): the clean and degraded signals may be two channels of one file.
+    ``noise_path``: the noise alone as it is in the degraded file (same rate and length;
+    channel as the degraded one), for the envelope-power index (``sepsm``), which reads
+    the degraded file and the noise whole (at most
+    :data:`envpredict.envpower.MAX_SECONDS`).
     """
     cc = channel if clean_channel is None else clean_channel
     dc = channel if degraded_channel is None else degraded_channel
     with (FileSource(clean_path, cc if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
           FileSource(degraded_path, dc if _channels(degraded_path, "degraded") > 1 else None,
                      name="degraded") as d):
-        return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
-                     delay_method=delay_method, delay_s=delay_s)
+        if noise_path is not None:  # refuse a mismatched noise before the (slower) pair work
+            _noise_info(noise_path, d)
+        res = _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
+                    delay_method=delay_method, delay_s=delay_s)
+        if noise_path is None:
+            return res
+        with FileSource(noise_path, dc if _channels(noise_path, "noise") > 1 else None, name="noise") as nz:
+            return _with_sepsm(res, d.read(0, d.n), nz.read(0, nz.n), d.fs, nz.fs)
+
+
+def _noise_info(noise_path: str | os.PathLike, degraded: Source) -> None:
+    fs_n, n_n, _ = audio_info(noise_path, "noise")
+    if fs_n != degraded.fs or n_n != degraded.n:
+        raise InputError(
+            f"the noise file ({n_n} samples at {fs_n} Hz) does not match the degraded file "
+            f"({degraded.n} samples at {degraded.fs} Hz)",
+            "give the noise alone exactly as it is in the degraded file: same rate, same length, "
+            "processed the same way",
+        )
+
+
+def _with_sepsm(res: PairResult, degraded: np.ndarray, noise: np.ndarray, fs_d: int, fs_n: int) -> PairResult:
+    """The pair result with the envelope-power index of the degraded signal and its noise."""
+    import dataclasses
+
+    from .envpower import sepsm
+
+    if fs_n != fs_d or noise.size != degraded.size:
+        raise InputError(
+            f"the noise ({noise.size} samples at {fs_n} Hz) does not match the degraded signal "
+            f"({degraded.size} samples at {fs_d} Hz)",
+            "give the noise alone exactly as it is in the degraded signal: same rate, same length",
+        )
+    return dataclasses.replace(res, sepsm=sepsm(degraded, noise, fs_d))
 
 
 def _channels(path: str | os.PathLike, name: str) -> int:

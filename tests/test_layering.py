@@ -12,7 +12,7 @@ import envpredict
 #: The package's modules in pipeline order; each may import only modules before it.
 LAYERS: tuple[str, ...] = (
     "standards", "exceptions", "results", "outputs", "_data",
-    "bands", "audio", "modulation", "sti", "cautions", "decay", "correlation", "pitch", "signals",
+    "bands", "audio", "modulation", "sti", "cautions", "decay", "correlation", "envpower", "pitch", "signals",
     "sinesweep", "deconvolve", "tables", "mapping",
     "indirect", "direct", "pair", "timescales", "sweep", "stats", "batch", "survey", "refcases", "demo",
     "report", "predict",

@@ -410,3 +410,32 @@ def test_clean_and_degraded_as_two_channels_of_one_file(tmp_path, capsys):
         assert two[k] == mono[k], k
     code, out, _ = run_cli(["pair", both, both, "--channel", "0", "--json"], capsys)
     assert json.loads(out)["stoi"] > 0.99 > mono["stoi"]  # one channel against itself
+
+
+# ---------------------------------------------------------------------------
+# The envelope-power index in the pair job (--noise)
+# ---------------------------------------------------------------------------
+
+
+def test_pair_noise_adds_the_envelope_power_index(tmp_path, capsys):
+    import envpredict
+
+    fs = 16000
+    x = speech_like(4.0, fs, seed=4)
+    noise = at_snr(x, speech_shaped_noise(x, 5), 0.0) - x
+    deg = np.concatenate([np.zeros(48), (x + noise)[:-48]])  # 3 ms late
+    nz = np.concatenate([np.zeros(48), noise[:-48]])
+    for name, sig in (("c.wav", x), ("d.wav", deg), ("n.wav", nz), ("short.wav", nz[:-100])):
+        sf.write(tmp_path / name, sig, fs, subtype="FLOAT")
+    code, out, _ = run_cli(["pair", str(tmp_path / "c.wav"), str(tmp_path / "d.wav"), "--noise",
+                            str(tmp_path / "n.wav"), "--json"], capsys)
+    assert code == 0
+    d = json.loads(out)
+    direct = envpredict.sepsm(deg, nz, fs)  # the API on the same signals
+    assert d["sepsm"]["snr_env_db"] == pytest.approx(round(direct.snr_env_db, 3), abs=1e-9)
+    assert d["inputs"]["noise"].endswith("n.wav") and d["alignment"]["delay_ms"] == pytest.approx(3.0)
+    r = pair_indices(x, deg, fs, noise=nz)
+    assert r.sepsm is not None and r.sepsm.snr_env_db == pytest.approx(direct.snr_env_db)
+    code, _, err = run_cli(["pair", str(tmp_path / "c.wav"), str(tmp_path / "d.wav"), "--noise",
+                            str(tmp_path / "short.wav")], capsys)
+    assert code == 2 and "does not match the degraded file" in err and "Traceback" not in err

@@ -149,6 +149,7 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "SweepSignalResult": lambda: _in_tmp(lambda d: envpredict.write_sweep_signal(d / "sweep.wav", sweep_spec())),
         "DeconvolutionResult": deconvolution,
         "DelayEstimate": lambda: find_delay(clean, degraded, fs, 0.1),
+        "SepsmResult": lambda: envpredict.sepsm(degraded, degraded - clean, fs),
         "CommonDelay": common_delay,
     }
 

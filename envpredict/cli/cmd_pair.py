@@ -15,6 +15,8 @@ CHANNEL_HELP = ("Channel to use from any multi-channel file (0 = first); mono fi
                 "channel. Required when a file has several channels.")
 NO_ALIGN_HELP = "Do not search for a delay: compare the files sample by sample (they are still trimmed)."
 MAX_DELAY_HELP = "Largest delay between clean and degraded to search for, seconds."
+NOISE_HELP = ("The noise alone as it is in the degraded file (same rate and length, processed the same way): "
+              "adds the envelope-power index (sEPSM).")
 CHUNK_HELP = "Seconds of audio per processing chunk (memory only; the results do not change)."
 
 
@@ -22,6 +24,8 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
     """Readable text for a ``pair`` result dictionary."""
     al = d["alignment"]
     delay = f"{d['delay_ms']:.1f} ms" if al["enabled"] else "alignment off"
+    if al.get("method") and al.get("confidence") is not None:
+        delay += f" ({al['method']}, peak ratio {al['confidence']:.2f})"
     lines = [
         f"Clean:    {clean}  ({d['fs_clean']} Hz)",
         f"Degraded: {degraded}  ({d['fs_degraded']} Hz)",
@@ -33,6 +37,12 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
         f"ESTOI = {d['estoi']:.3f}",
         f"speech-based STI = {fmt(d['ssti'], '.3f')} (normalised covariance), "
         f"{fmt(d.get('ssti_regression'), '.3f')} (envelope regression)",
+    ]
+    if d.get("sepsm"):
+        sp = d["sepsm"]
+        lines.append(f"envelope-power SNR_env = {sp['snr_env_db']:.2f} dB (sEPSM), "
+                     f"{sp['percent_correct']:.1f} % correct for its sentence material (material-specific)")
+    lines += [
         "",
         "One-third-octave bands (mean per-band correlation; low values: envelope lost)",
     ]
@@ -78,6 +88,7 @@ def pair_command(
                                                 "only (overrides --channel)."),
     no_align: bool = typer.Option(False, "--no-align", help=NO_ALIGN_HELP),
     max_delay: float = typer.Option(std.PAIR_MAX_DELAY_S, "--max-delay", help=MAX_DELAY_HELP),
+    noise: Path | None = typer.Option(None, "--noise", help=NOISE_HELP),
     chunk: float = typer.Option(std.PAIR_CHUNK_S, "--chunk", help=CHUNK_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help=OUT_HELP),
@@ -86,14 +97,15 @@ def pair_command(
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, with delay alignment and per-band diagnostics."""
     from envpredict.pair import pair_from_files
 
-    check_outputs(out=out, report=report, inputs=[clean, degraded])  # before the (slower) audio work
+    # before the (slower) audio work
+    check_outputs(out=out, report=report, inputs=[clean, degraded] + ([noise] if noise else []))
     with Progress("analysing pair", None, quiet=as_json) as prog:
         result = pair_from_files(clean, degraded, channel=channel, clean_channel=clean_channel,
                                  degraded_channel=degraded_channel, align=not no_align, max_delay_s=max_delay,
-                                 chunk_s=chunk, progress=prog)
+                                 chunk_s=chunk, progress=prog, noise_path=noise)
     d = result.to_dict()
     d["inputs"] = {"clean": str(clean), "degraded": str(degraded), "channel": channel,
                    "clean_channel": clean_channel, "degraded_channel": degraded_channel, "align": not no_align,
-                   "max_delay_s": max_delay}
+                   "max_delay_s": max_delay, "noise": None if noise is None else str(noise)}
     write_report_if(report, "pair", d, as_json=as_json, title=f"{degraded.name} against {clean.name}")
     emit(d, lambda: render_pair(d, str(clean), str(degraded)), as_json, out)
