@@ -67,6 +67,13 @@ DEFAULT_DELAY_METHOD: str = "gcc-phat"
 #: direct path, so a larger gap means another path or another latency (judgement).
 DELAY_AGREEMENT_MS: float = 1.0
 
+#: Phase inversion: the derived noise may correlate with the clean speech at most this
+#: share of the derived speech's correlation (peak normalised waveform correlation within
+#: the delay range). A true counterpart leaves only what nonlinear processing fails to
+#: cancel; a file that is not the counterpart (the same mixture again, another gain, the
+#: unprocessed one) leaves speech in the difference (judgement).
+INVERTED_SPEECH_SHARE: float = 0.5
+
 #: After alignment each signal may lose at most this much (s) or this share of the
 #: common part, whichever is larger, when trimmed to the common length; more means
 #: the two files do not hold the same stretch of audio (judgement).
@@ -240,6 +247,8 @@ class PairResult:
     correlation_at_delay : normalised waveform correlation at the delay used.
     sepsm : the envelope-power index (:func:`envpredict.envpower.sepsm`) of the degraded
         signal and the processed noise alone, when the noise was given; else ``None``.
+    separation : the processed speech and noise separated by phase inversion (output SNR
+        per octave band), when the inverted counterpart was given; else ``None``.
     fs : analysis sample rate (the clean signal's), Hz; ``fs_clean``, ``fs_degraded``
         the input rates.
     duration_s : length of the common (aligned, trimmed) part, s.
@@ -272,6 +281,7 @@ class PairResult:
     own_delay_ms: float | None = None
     correlation_at_delay: float | None = None
     sepsm: "SepsmResult | None" = None
+    separation: "Separation | None" = None
 
     def timeline(self) -> dict:
         """Local STOI and ESTOI in fixed time bins of the common part (NaN: no speech)."""
@@ -337,6 +347,7 @@ class PairResult:
                 "trimmed_s": [round(v, 4) for v in self.trimmed_s],
             },
             "sepsm": None if self.sepsm is None else self.sepsm.to_dict(),
+            "separation": None if self.separation is None else self.separation.to_dict(),
             "fs_clean": self.fs_clean,
             "fs_degraded": self.fs_degraded,
             "duration_s": round(self.duration_s, 4),
@@ -720,6 +731,7 @@ def pair_from_files(
     delay_method: str = DEFAULT_DELAY_METHOD,
     delay_s: float | None = None,
     noise_path: str | os.PathLike | None = None,
+    inverted_path: str | os.PathLike | None = None,
 ) -> PairResult:
     """:func:`pair_indices` of two audio files, read block by block (bounded memory).
 
@@ -731,27 +743,44 @@ def pair_from_files(
     channel as the degraded one), for the envelope-power index (``sepsm``), which reads
     the degraded file and the noise whole (at most
     :data:`envpredict.envpower.MAX_SECONDS`).
+    ``inverted_path``: the processing's output for the speech with the noise's polarity
+    inverted (the degraded file being its output for speech + noise): the processed
+    speech and noise are separated by phase inversion (``separation``: output SNR per
+    octave band) and the derived noise feeds the envelope-power index. A file that is not
+    the counterpart (its derived noise holds speech) is refused.
     """
     cc = channel if clean_channel is None else clean_channel
     dc = channel if degraded_channel is None else degraded_channel
     with (FileSource(clean_path, cc if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
           FileSource(degraded_path, dc if _channels(degraded_path, "degraded") > 1 else None,
                      name="degraded") as d):
-        if noise_path is not None:  # refuse a mismatched noise before the (slower) pair work
-            _noise_info(noise_path, d)
+        if noise_path is not None and inverted_path is not None:
+            raise InputError("--noise and --inverted both give the processed noise", "give one of them")
+        for extra, what in ((noise_path, "noise"), (inverted_path, "inverted")):
+            if extra is not None:  # refuse a mismatched file before the (slower) pair work
+                _noise_info(extra, d, what)
         res = _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
                     delay_method=delay_method, delay_s=delay_s)
+        if inverted_path is not None:
+            with FileSource(inverted_path, dc if _channels(inverted_path, "inverted") > 1 else None,
+                            name="inverted") as inv:
+                return _separate(res, c, d.read(0, d.n), inv.read(0, inv.n), d.fs, inv.fs, max_delay_s)
         if noise_path is None:
             return res
         with FileSource(noise_path, dc if _channels(noise_path, "noise") > 1 else None, name="noise") as nz:
             return _with_sepsm(res, d.read(0, d.n), nz.read(0, nz.n), d.fs, nz.fs)
 
 
-def _noise_info(noise_path: str | os.PathLike, degraded: Source) -> None:
-    fs_n, n_n, _ = audio_info(noise_path, "noise")
+def _noise_info(noise_path: str | os.PathLike, degraded: Source, what: str = "noise") -> None:
+    from .envpower import MAX_SECONDS
+
+    fs_n, n_n, _ = audio_info(noise_path, what)
+    if degraded.n > MAX_SECONDS * degraded.fs:
+        raise InputError(f"the degraded file is {degraded.n / degraded.fs:.0f} s long; the envelope-power index "
+                         f"analyses at most {MAX_SECONDS:g} s", "cut the files to the utterances of interest")
     if fs_n != degraded.fs or n_n != degraded.n:
         raise InputError(
-            f"the noise file ({n_n} samples at {fs_n} Hz) does not match the degraded file "
+            f"the {what} file ({n_n} samples at {fs_n} Hz) does not match the degraded file "
             f"({degraded.n} samples at {degraded.fs} Hz)",
             "give the noise alone exactly as it is in the degraded file: same rate, same length, "
             "processed the same way",
@@ -771,6 +800,103 @@ def _with_sepsm(res: PairResult, degraded: np.ndarray, noise: np.ndarray, fs_d: 
             "give the noise alone exactly as it is in the degraded signal: same rate, same length",
         )
     return dataclasses.replace(res, sepsm=sepsm(degraded, noise, fs_d))
+
+
+@dataclass(frozen=True)
+class Separation:
+    """Processed speech and processed noise separated by phase inversion.
+
+    Attributes
+    ----------
+    bands_hz : octave bands (125 Hz - 8 kHz); ``output_snr_db`` per band (NaN: band absent).
+    output_snr_db : band power of the processed speech over that of the processed noise, dB.
+    broadband_snr_db : the same over the whole band, dB.
+    speech_correlation, noise_correlation : peak normalised waveform correlation of the
+        derived speech and the derived noise with the clean signal (the counterpart check).
+    """
+
+    bands_hz: tuple[float, ...]
+    output_snr_db: np.ndarray
+    broadband_snr_db: float
+    speech_correlation: float
+    noise_correlation: float
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "method": "phase inversion (Hagerman & Olofsson 2004): speech = (a + b)/2, noise = (a - b)/2",
+            "bands_hz": self.bands_hz, "output_snr_db": np.round(self.output_snr_db, 2),
+            "broadband_snr_db": round(self.broadband_snr_db, 2),
+            "speech_correlation": round(self.speech_correlation, 4),
+            "noise_correlation": round(self.noise_correlation, 4),
+        })
+
+
+def phase_inversion_split(mixture: np.ndarray, inverted: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Processed speech and processed noise from the two processed mixtures.
+
+    ``mixture`` is the processing's output for speech + noise, ``inverted`` for
+    speech - noise (the noise's polarity inverted): their half sum is the processed
+    speech and their half difference the processed noise, exactly for linear processing
+    and to the extent the processing treats both alike otherwise.
+
+    References
+    ----------
+    B. Hagerman and Å. Olofsson, "A method to measure the effect of noise reduction
+    algorithms using simultaneous speech and noise", Acta Acustica united with Acustica
+    90, 356-361 (2004).
+    """
+    a = np.asarray(mixture, dtype=float)
+    b = np.asarray(inverted, dtype=float)
+    if a.shape != b.shape:
+        raise InputError(f"the inverted mixture ({b.size} samples) and the mixture ({a.size} samples) differ in "
+                         "length", "give the processing's outputs for speech+noise and speech-noise, sample for sample")
+    return 0.5 * (a + b), 0.5 * (a - b)
+
+
+def _band_powers(x: np.ndarray, fs: int) -> np.ndarray:
+    from .bands import octave_filterbank
+
+    bank = octave_filterbank(fs, beyond_nyquist="highpass")
+    return np.array([np.mean(bank.apply(x, k, zero_phase=False) ** 2) if bank.present[k] else np.nan
+                     for k in range(len(bank.bands_hz))])
+
+
+def _separate(res: PairResult, clean: Source, degraded: np.ndarray, inverted: np.ndarray,
+              fs_d: int, fs_i: int, max_delay_s: float) -> PairResult:
+    """The pair result with the phase-inversion separation and the envelope-power index of
+    the degraded signal and the derived noise."""
+    import dataclasses
+
+    from .envpower import sepsm
+
+    if fs_i != fs_d:
+        raise InputError(f"the inverted file is sampled at {fs_i} Hz, the degraded one at {fs_d} Hz",
+                         "give the processing's output for speech-noise at the rate of the degraded file")
+    speech, noise = phase_inversion_split(degraded, inverted)
+    if float(np.max(np.abs(noise))) < 1e-9 * max(1e-30, float(np.max(np.abs(degraded)))):
+        raise InputError("the inverted file equals the degraded one: the derived noise is silent",
+                         "give the processing's output for the speech with the noise's polarity inverted")
+    cl = clean.read(0, clean.n)
+    if fs_d != clean.fs:
+        from .audio import resample
+
+        speech_c, noise_c = resample(speech, fs_d, clean.fs), resample(noise, fs_d, clean.fs)
+    else:
+        speech_c, noise_c = speech, noise
+    rs = find_delay(cl, speech_c, clean.fs, max_delay_s).peak_correlation
+    rn = find_delay(cl, noise_c, clean.fs, max_delay_s).peak_correlation
+    if rn >= MIN_MATCH_CORRELATION and rn > INVERTED_SPEECH_SHARE * rs:
+        raise InputError(
+            f"the inverted file is not the phase-inverted counterpart of the degraded one: the derived noise "
+            f"correlates with the clean speech ({rn:.2f}, the derived speech {rs:.2f})",
+            "give the processing's output for the same speech with the noise's polarity inverted (speech - noise)",
+        )
+    ps, pn = _band_powers(speech, fs_d), _band_powers(noise, fs_d)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        snr = 10 * np.log10(ps / pn)
+        broad = 10 * math.log10(float(np.mean(speech ** 2)) / max(float(np.mean(noise ** 2)), 1e-30))
+    sep = Separation(std.OCTAVE_BANDS_HZ, snr, broad, rs, rn)
+    return dataclasses.replace(res, separation=sep, sepsm=sepsm(degraded, noise, fs_d))
 
 
 def _channels(path: str | os.PathLike, name: str) -> int:

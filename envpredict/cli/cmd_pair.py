@@ -17,6 +17,9 @@ NO_ALIGN_HELP = "Do not search for a delay: compare the files sample by sample (
 MAX_DELAY_HELP = "Largest delay between clean and degraded to search for, seconds."
 NOISE_HELP = ("The noise alone as it is in the degraded file (same rate and length, processed the same way): "
               "adds the envelope-power index (sEPSM).")
+INVERTED_HELP = ("The processing's output for the speech with the noise's polarity inverted (the degraded file "
+                 "being its output for speech + noise): separates processed speech and noise by phase inversion "
+                 "(output SNR per octave band) and adds the envelope-power index.")
 CHUNK_HELP = "Seconds of audio per processing chunk (memory only; the results do not change)."
 
 
@@ -42,6 +45,10 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
         sp = d["sepsm"]
         lines.append(f"envelope-power SNR_env = {sp['snr_env_db']:.2f} dB (sEPSM), "
                      f"{sp['percent_correct']:.1f} % correct for its sentence material (material-specific)")
+    if d.get("separation"):
+        sep = d["separation"]
+        snrs = "  ".join(f"{fc:g}: {fmt(v, '.1f')}" for fc, v in zip(sep["bands_hz"], sep["output_snr_db"]))
+        lines.append(f"output SNR (phase inversion) = {sep['broadband_snr_db']:.1f} dB; per octave band, dB: {snrs}")
     lines += [
         "",
         "One-third-octave bands (mean per-band correlation; low values: envelope lost)",
@@ -89,6 +96,7 @@ def pair_command(
     no_align: bool = typer.Option(False, "--no-align", help=NO_ALIGN_HELP),
     max_delay: float = typer.Option(std.PAIR_MAX_DELAY_S, "--max-delay", help=MAX_DELAY_HELP),
     noise: Path | None = typer.Option(None, "--noise", help=NOISE_HELP),
+    inverted: Path | None = typer.Option(None, "--inverted", help=INVERTED_HELP),
     chunk: float = typer.Option(std.PAIR_CHUNK_S, "--chunk", help=CHUNK_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help=OUT_HELP),
@@ -98,14 +106,16 @@ def pair_command(
     from envpredict.pair import pair_from_files
 
     # before the (slower) audio work
-    check_outputs(out=out, report=report, inputs=[clean, degraded] + ([noise] if noise else []))
+    check_outputs(out=out, report=report, inputs=[clean, degraded] + [p for p in (noise, inverted) if p])
     with Progress("analysing pair", None, quiet=as_json) as prog:
         result = pair_from_files(clean, degraded, channel=channel, clean_channel=clean_channel,
                                  degraded_channel=degraded_channel, align=not no_align, max_delay_s=max_delay,
-                                 chunk_s=chunk, progress=prog, noise_path=noise)
+                                 chunk_s=chunk, progress=prog, noise_path=noise,
+                                 inverted_path=inverted)
     d = result.to_dict()
     d["inputs"] = {"clean": str(clean), "degraded": str(degraded), "channel": channel,
                    "clean_channel": clean_channel, "degraded_channel": degraded_channel, "align": not no_align,
-                   "max_delay_s": max_delay, "noise": None if noise is None else str(noise)}
+                   "max_delay_s": max_delay, "noise": None if noise is None else str(noise),
+                   "inverted": None if inverted is None else str(inverted)}
     write_report_if(report, "pair", d, as_json=as_json, title=f"{degraded.name} against {clean.name}")
     emit(d, lambda: render_pair(d, str(clean), str(degraded)), as_json, out)
