@@ -48,7 +48,8 @@ Index-to-score mappings
 SNR sweeps and the SRT
     snr_sweep, snr_sweep_files, SweepResult
 Corpora
-    run_batch, read_results, compare_conditions, compare_conditions_file
+    run_batch, read_results, compare_conditions, compare_conditions_file,
+    compare_all_pairs, compare_all_pairs_file
 Site surveys
     run_survey, SurveyResult, summarise_survey, parse_requirement
 Reports
@@ -149,6 +150,8 @@ _API: dict[str, str] = {
     "read_results": "envpredict.tables",
     "compare_conditions": "envpredict.stats",
     "compare_conditions_file": "envpredict.stats",
+    "compare_all_pairs": "envpredict.stats",
+    "compare_all_pairs_file": "envpredict.stats",
     # reports
     "write_report": "envpredict.report",
     # the bundled demo site

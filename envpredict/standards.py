@@ -562,3 +562,8 @@ SEPSM_K: float = 1.2 ** 0.5
 SEPSM_Q: float = 0.5
 SEPSM_SIGMA_S: float = 0.6
 SEPSM_M: float = 8000.0
+#: Smallest meaningful difference of the STI: about 0.03, the just-noticeable difference
+#: reported in the STI literature (J. S. Bradley, "Predictors of speech intelligibility in
+#: rooms", JASA 80(3), 837-845 (1986); from memory). Shown beside comparisons of the STI
+#: family (sti, ssti, ssti_regression).
+STI_JND: float = 0.03

@@ -23,11 +23,18 @@ table except the ``by`` column, the result columns written by ``envpredict batch
 other columns vary with the condition. Rows with an error or an empty index cell
 are left out. Each item may appear only once per condition.
 
+Beside each difference: the paired effect size d_z = mean(d)/sd(d) with its exact
+interval from the noncentral t distribution (``effect_size``, ``effect_ci_low``,
+``effect_ci_high``; Cumming & Finch 2001). :func:`compare_all_pairs` compares every pair
+of conditions with the same statistics, Holm-adjusted over all pairs.
+
 Sources: B. Efron, "Better bootstrap confidence intervals", JASA 82 (1987);
 B. Efron, R. J. Tibshirani, *An Introduction to the Bootstrap*, Chapman & Hall
 1993; F. Wilcoxon, "Individual comparisons by ranking methods", Biometrics
 Bulletin 1 (1945); S. Holm, "A simple sequentially rejective multiple test
-procedure", Scand. J. Statist. 6 (1979).
+procedure", Scand. J. Statist. 6 (1979); G. Cumming, S. Finch, "A primer on the
+understanding, use, and calculation of confidence intervals that are based on central
+and noncentral distributions", Educ. Psychol. Meas. 61(4) (2001).
 """
 
 from __future__ import annotations
@@ -62,6 +69,9 @@ MIN_RESAMPLES: int = 100
 #: Fewer matched items than this get a note that the interval and p-value are rough
 #: (judgement).
 FEW_ITEMS: int = 10
+#: Index columns of the STI family, whose comparisons show the smallest meaningful
+#: difference (:data:`envpredict.standards.STI_JND`).
+STI_FAMILY: tuple[str, ...] = ("sti", "ssti", "ssti_regression")
 #: Resampled values generated at once (memory bound of the bootstrap, judgement).
 _CHUNK_VALUES: int = 2_000_000
 
@@ -194,6 +204,58 @@ def wilcoxon_p(d: Sequence[float] | np.ndarray) -> float | None:
     return p if math.isfinite(p) else None
 
 
+def effect_size_dz(d: Sequence[float] | np.ndarray, confidence: float = CONFIDENCE) -> tuple[float | None, ...]:
+    """Paired effect size d_z = mean(d) / sd(d) (sd with n - 1) and its confidence interval.
+
+    The interval inverts the noncentral t distribution: t = d_z sqrt(n) has n - 1 degrees
+    of freedom and noncentrality delta sqrt(n); the ends are the deltas whose upper and
+    lower tails put t at the chosen confidence (Cumming & Finch 2001). ``(None, None,
+    None)`` for fewer than 2 differences or no spread.
+
+    Examples
+    --------
+    >>> dz, lo, hi = effect_size_dz([0.05, 0.02, 0.06, 0.03, 0.04, 0.01, 0.05, 0.05])
+    >>> round(dz, 3), round(lo, 3), round(hi, 3)
+    (2.244, 0.884, 3.568)
+    """
+    from scipy.optimize import brentq
+    from scipy.stats import nct
+
+    x = np.asarray(d, dtype=float).ravel()
+    n = x.size
+    if n < 2:
+        return None, None, None
+    sd = float(np.std(x, ddof=1))
+    if not sd > 0:
+        return None, None, None
+    dz = float(np.mean(x)) / sd
+    t = dz * math.sqrt(n)
+    df = n - 1
+    alpha = 1.0 - confidence
+
+    def cdf(nc: float) -> float:
+        v = float(nct.cdf(t, df, nc))
+        if not math.isfinite(v):  # far tails where scipy gives up: the limit
+            v = 1.0 if nc < t else 0.0
+        return v
+
+    def end(q: float) -> float:
+        # noncentrality at which P(T <= t) = q; the cdf falls as the noncentrality grows
+        step = 2.0 + 0.5 * abs(t)
+        lo, hi = t - step, t + step
+        for _ in range(200):
+            if cdf(lo) >= q:
+                break
+            lo -= step
+        for _ in range(200):
+            if cdf(hi) <= q:
+                break
+            hi += step
+        return brentq(lambda nc: cdf(nc) - q, lo, hi, xtol=1e-10)
+
+    return dz, end(1.0 - alpha / 2) / math.sqrt(n), end(alpha / 2) / math.sqrt(n)
+
+
 @dataclass(frozen=True)
 class ConditionStats:
     """One condition compared with the baseline.
@@ -216,12 +278,16 @@ class ConditionStats:
     p_value: float | None
     p_holm: float | None
     verdict: str
+    effect_size: float | None = None
+    effect_ci_low: float | None = None
+    effect_ci_high: float | None = None
 
     def to_dict(self) -> dict:
         return jsonable({
             "name": self.name, "n": self.n, "n_rows": self.n_rows, "mean": self.mean, "diff": self.diff,
             "ci_low": self.ci_low, "ci_high": self.ci_high, "p_value": self.p_value,
-            "p_holm": self.p_holm, "verdict": self.verdict,
+            "p_holm": self.p_holm, "verdict": self.verdict, "effect_size": self.effect_size,
+            "effect_ci_low": self.effect_ci_low, "effect_ci_high": self.effect_ci_high,
         })
 
 
@@ -256,56 +322,12 @@ def default_pair_on(columns: Sequence[str], by: str, index: str) -> tuple[str, .
     return tuple(c for c in columns if c not in skip)
 
 
-def compare_conditions(
-    rows: Sequence[Mapping[str, Any]],
-    *,
-    by: str,
-    baseline: str,
-    index: str | None = None,
-    pair_on: str | Sequence[str] | None = None,
-    columns: Sequence[str] | None = None,
-    confidence: float = CONFIDENCE,
-    n_resamples: int = BOOTSTRAP_RESAMPLES,
-    seed: int = BOOTSTRAP_SEED,
-    ci_method: str = "BCa",
-) -> Comparison:
-    """Compare every condition of column ``by`` with the ``baseline`` condition, paired by item.
-
-    Parameters
-    ----------
-    rows : the results table, one mapping (column -> value or cell text) per row, e.g.
-        from :func:`envpredict.tables.read_results`.
-    by : the column naming the condition.
-    baseline : the condition the others are compared with (a value of ``by``).
-    index : the numeric column compared (default: ``sti`` or ``stoi``, whichever has
-        values; both present -> it must be named).
-    pair_on : column(s) identifying an item across conditions (see the module
-        docstring for the default).
-    columns : column order of the table (default: the keys of the first row).
-    confidence, n_resamples, seed, ci_method : of the bootstrap interval
-        (:func:`bootstrap_mean_ci`).
-
-    Returns
-    -------
-    Comparison, the baseline first, then the other conditions in order of first
-    appearance. A condition with fewer than 2 matched items gets no interval and no
-    p-value (verdict "no clear difference").
-
-    Examples
-    --------
-    Eight utterances scored noisy and after a (made-up) denoiser:
-
-    >>> pairs = [(0.61, 0.66), (0.70, 0.72), (0.55, 0.61), (0.80, 0.83),
-    ...          (0.66, 0.70), (0.59, 0.60), (0.73, 0.78), (0.64, 0.69)]
-    >>> rows = [{"utterance": f"u{i}", "condition": c, "stoi": v}
-    ...         for i, (a, b) in enumerate(pairs) for c, v in (("noisy", a), ("denoised", b))]
-    >>> res = compare_conditions(rows, by="condition", baseline="noisy", pair_on="utterance")
-    >>> c = res.conditions[1]
-    >>> c.name, c.n, round(c.diff, 4), round(c.ci_low, 3), round(c.ci_high, 3), round(c.p_value, 4)
-    ('denoised', 8, 0.0387, 0.026, 0.049, 0.0078)
-    >>> c.verdict
-    'higher'
-    """
+def _table_values(rows: Sequence[Mapping[str, Any]], *, by: str, index: str | None,
+                  pair_on: str | Sequence[str] | None, columns: Sequence[str] | None
+                  ) -> tuple[str, tuple[str, ...], dict[str, dict[tuple, float]], list[str], int]:
+    """The index values of a results table per condition and item (the checks of
+    :func:`compare_conditions`): ``(index, item keys, {condition: {item: value}},
+    conditions in order of appearance, rows left out)``."""
     if not rows:
         raise InputError("the results table has no rows", "score a manifest with 'envpredict batch' first")
     cols = list(columns) if columns is not None else list(rows[0].keys())
@@ -363,6 +385,60 @@ def compare_conditions(
                 "name the column(s) that identify one item with --pair-on",
             )
         values[cond][key] = v
+    return index, keys, values, order, skipped
+
+
+def compare_conditions(
+    rows: Sequence[Mapping[str, Any]],
+    *,
+    by: str,
+    baseline: str,
+    index: str | None = None,
+    pair_on: str | Sequence[str] | None = None,
+    columns: Sequence[str] | None = None,
+    confidence: float = CONFIDENCE,
+    n_resamples: int = BOOTSTRAP_RESAMPLES,
+    seed: int = BOOTSTRAP_SEED,
+    ci_method: str = "BCa",
+) -> Comparison:
+    """Compare every condition of column ``by`` with the ``baseline`` condition, paired by item.
+
+    Parameters
+    ----------
+    rows : the results table, one mapping (column -> value or cell text) per row, e.g.
+        from :func:`envpredict.tables.read_results`.
+    by : the column naming the condition.
+    baseline : the condition the others are compared with (a value of ``by``).
+    index : the numeric column compared (default: ``sti`` or ``stoi``, whichever has
+        values; both present -> it must be named).
+    pair_on : column(s) identifying an item across conditions (see the module
+        docstring for the default).
+    columns : column order of the table (default: the keys of the first row).
+    confidence, n_resamples, seed, ci_method : of the bootstrap interval
+        (:func:`bootstrap_mean_ci`).
+
+    Returns
+    -------
+    Comparison, the baseline first, then the other conditions in order of first
+    appearance. A condition with fewer than 2 matched items gets no interval and no
+    p-value (verdict "no clear difference").
+
+    Examples
+    --------
+    Eight utterances scored noisy and after a (made-up) denoiser:
+
+    >>> pairs = [(0.61, 0.66), (0.70, 0.72), (0.55, 0.61), (0.80, 0.83),
+    ...          (0.66, 0.70), (0.59, 0.60), (0.73, 0.78), (0.64, 0.69)]
+    >>> rows = [{"utterance": f"u{i}", "condition": c, "stoi": v}
+    ...         for i, (a, b) in enumerate(pairs) for c, v in (("noisy", a), ("denoised", b))]
+    >>> res = compare_conditions(rows, by="condition", baseline="noisy", pair_on="utterance")
+    >>> c = res.conditions[1]
+    >>> c.name, c.n, round(c.diff, 4), round(c.ci_low, 3), round(c.ci_high, 3), round(c.p_value, 4)
+    ('denoised', 8, 0.0387, 0.026, 0.049, 0.0078)
+    >>> c.verdict
+    'higher'
+    """
+    index, keys, values, order, skipped = _table_values(rows, by=by, index=index, pair_on=pair_on, columns=columns)
     baseline = str(baseline).strip()
     if baseline not in values:
         raise InputError(f"baseline '{baseline}' is not a value of column '{by}'",
@@ -396,6 +472,7 @@ def compare_conditions(
             entry["ci_low"], entry["ci_high"] = bootstrap_mean_ci(
                 d, confidence=confidence, n_resamples=n_resamples, seed=seed, method=ci_method)
             entry["p_value"] = wilcoxon_p(d)
+            entry["effect_size"], entry["effect_ci_low"], entry["effect_ci_high"] = effect_size_dz(d, confidence)
             if d.size < FEW_ITEMS:
                 notes.append(f"'{cond}' has only {d.size} matched items: the interval and p-value are rough.")
         if len(common) < len(vals) or len(common) < len(base):
@@ -415,10 +492,131 @@ def compare_conditions(
         out.append(ConditionStats(p_holm=ph, verdict=verdict, **e))
     if len(out) > 2:
         notes.append("p_holm adjusts the p-values for comparing several conditions with one baseline (Holm).")
+    notes.extend(_jnd_note(index, [(c.name, c.diff) for c in out if c.verdict != "baseline"]))
     return Comparison(index=index, by=by, baseline=baseline, pair_on=keys, conditions=tuple(out),
                       ci_method="BCa" if ci_method.lower() == "bca" else "percentile",
                       n_resamples=int(n_resamples), seed=int(seed), confidence=float(confidence),
                       skipped_rows=skipped, notes=tuple(notes))
+
+
+@dataclass(frozen=True)
+class PairDifference:
+    """One pair of conditions: ``diff`` = mean over matched items of index(b) - index(a),
+    with the statistics of :class:`ConditionStats` (``p_holm`` adjusted over all pairs)."""
+
+    a: str
+    b: str
+    n: int
+    diff: float | None
+    ci_low: float | None
+    ci_high: float | None
+    p_value: float | None
+    p_holm: float | None
+    verdict: str
+    effect_size: float | None = None
+    effect_ci_low: float | None = None
+    effect_ci_high: float | None = None
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "a": self.a, "b": self.b, "n": self.n, "diff": self.diff, "ci_low": self.ci_low,
+            "ci_high": self.ci_high, "p_value": self.p_value, "p_holm": self.p_holm, "verdict": self.verdict,
+            "effect_size": self.effect_size, "effect_ci_low": self.effect_ci_low,
+            "effect_ci_high": self.effect_ci_high,
+        })
+
+
+@dataclass(frozen=True)
+class PairwiseComparison:
+    """Result of :func:`compare_all_pairs`."""
+
+    index: str
+    by: str
+    pair_on: tuple[str, ...]
+    pairs: tuple[PairDifference, ...]
+    ci_method: str = "BCa"
+    n_resamples: int = BOOTSTRAP_RESAMPLES
+    seed: int = BOOTSTRAP_SEED
+    confidence: float = CONFIDENCE
+    skipped_rows: int = 0
+    notes: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "index": self.index, "by": self.by, "pair_on": list(self.pair_on), "ci_method": self.ci_method,
+            "n_resamples": self.n_resamples, "seed": self.seed, "confidence": self.confidence, "alpha": ALPHA,
+            "skipped_rows": self.skipped_rows, "pairs": [p.to_dict() for p in self.pairs], "cautions": [],
+            "notes": list(self.notes),
+        })
+
+
+def _jnd_note(index: str, diffs: list[tuple[str, float | None]]) -> list[str]:
+    """For the STI family: the smallest meaningful difference and the differences below it."""
+    from . import standards as std
+
+    if index not in STI_FAMILY:
+        return []
+    small = [name for name, d in diffs if d is not None and abs(d) < std.STI_JND]
+    s = (f"smallest meaningful difference of the STI: about {std.STI_JND:g} (the just-noticeable difference, "
+         "Bradley 1986; from memory)")
+    return [s + (f"; below it: {', '.join(small)}" if small else "")]
+
+
+def compare_all_pairs(
+    rows: Sequence[Mapping[str, Any]],
+    *,
+    by: str,
+    index: str | None = None,
+    pair_on: str | Sequence[str] | None = None,
+    columns: Sequence[str] | None = None,
+    confidence: float = CONFIDENCE,
+    n_resamples: int = BOOTSTRAP_RESAMPLES,
+    seed: int = BOOTSTRAP_SEED,
+    ci_method: str = "BCa",
+) -> PairwiseComparison:
+    """Compare every pair of conditions of column ``by``, paired by item.
+
+    For conditions in order of first appearance, each pair (a, b) with a before b gets
+    the mean paired difference b - a over the items scored under both, its bootstrap
+    interval, the Wilcoxon signed-rank p-value, the paired effect size d_z with its
+    interval, and the p-value Holm-adjusted over *all* pairs (k conditions: k(k-1)/2
+    tests). Parameters as for :func:`compare_conditions`.
+    """
+    index, keys, values, order, skipped = _table_values(rows, by=by, index=index, pair_on=pair_on, columns=columns)
+    notes: list[str] = []
+    if skipped:
+        notes.append(f"{skipped} row(s) without a usable {index} value (error or empty cell) were left out.")
+    if len(order) < 2:
+        raise InputError(f"column '{by}' has only one condition", "compare at least two conditions")
+    raw = []
+    for i, a in enumerate(order):
+        for b in order[i + 1:]:
+            common = [k for k in values[b] if k in values[a]]
+            d = np.array([values[b][k] - values[a][k] for k in common], dtype=float)
+            e = dict(a=a, b=b, n=len(common), diff=float(np.mean(d)) if d.size else None, ci_low=None,
+                     ci_high=None, p_value=None)
+            if d.size >= 2:
+                e["ci_low"], e["ci_high"] = bootstrap_mean_ci(d, confidence=confidence, n_resamples=n_resamples,
+                                                              seed=seed, method=ci_method)
+                e["p_value"] = wilcoxon_p(d)
+                e["effect_size"], e["effect_ci_low"], e["effect_ci_high"] = effect_size_dz(d, confidence)
+            else:
+                notes.append(f"'{a}' and '{b}' share {d.size} item(s): no interval or test.")
+            raw.append(e)
+    adj = holm([e["p_value"] for e in raw])
+    pairs = []
+    for e, ph in zip(raw, adj):
+        if ph is not None and ph < ALPHA and e["ci_low"] is not None and (e["ci_low"] > 0 or e["ci_high"] < 0):
+            verdict = "b higher" if e["diff"] > 0 else "b lower"
+        else:
+            verdict = "no clear difference"
+        pairs.append(PairDifference(p_holm=ph, verdict=verdict, **e))
+    notes.append(f"p_holm adjusts the p-values for all {len(raw)} pairs of conditions (Holm).")
+    notes.extend(_jnd_note(index, [(f"{p.b} - {p.a}", p.diff) for p in pairs]))
+    return PairwiseComparison(index=index, by=by, pair_on=keys, pairs=tuple(pairs),
+                              ci_method="BCa" if ci_method.lower() == "bca" else "percentile",
+                              n_resamples=int(n_resamples), seed=int(seed), confidence=float(confidence),
+                              skipped_rows=skipped, notes=tuple(notes))
 
 
 def compare_conditions_file(
@@ -451,3 +649,11 @@ def compare_conditions_file(
     columns, rows = read_results(path)
     return compare_conditions(rows, by=by, baseline=baseline, index=index, pair_on=pair_on, columns=columns,
                               confidence=confidence, n_resamples=n_resamples, seed=seed, ci_method=ci_method)
+
+
+def compare_all_pairs_file(path: str | os.PathLike, **kwargs: Any) -> PairwiseComparison:
+    """:func:`compare_all_pairs` of a results file written by ``envpredict batch``."""
+    from .tables import read_results
+
+    columns, rows = read_results(path)
+    return compare_all_pairs(rows, columns=columns, **kwargs)

@@ -94,6 +94,11 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         return envpredict.compare_conditions(rows, by="condition", baseline="a", index="stoi", pair_on="item",
                                              n_resamples=200)
 
+    def pairwise():
+        rows = [{"condition": c, "item": str(i), "stoi": f"{0.6 + 0.01 * i - 0.05 * (c == 'b') + 0.001 * (i % 3):.3f}"}
+                for i in range(6) for c in ("a", "b", "c")]
+        return envpredict.compare_all_pairs(rows, by="condition", index="stoi", pair_on="item", n_resamples=200)
+
     def stipa():
         x = envpredict.stipa_signal(15.0, 44100, seed=1)
         return envpredict.stipa_from_recording(x, 44100)
@@ -138,6 +143,7 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
                                                     * 0.05, fs, snr_db=[-6, 0], n_segments=2),
         "ScoreMapping": mapping,
         "Comparison": comparison,
+        "PairwiseComparison": pairwise,
         "BatchSummary": lambda: batch_summary,
         "PredictedTable": predicted,
         "F0Track": lambda: envpredict.yin_f0(clean, fs),
@@ -179,7 +185,8 @@ def _result_types() -> dict[str, type]:
 
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
-         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec", "Separation"}
+         "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec", "Separation",
+         "PairDifference"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):

@@ -144,6 +144,35 @@ def _p(v) -> str:
     return "<0.0001" if v < 1e-4 else f"{v:.4f}"
 
 
+def _effect(c: dict) -> str:
+    if c.get("effect_size") is None:
+        return "—"
+    return f"{c['effect_size']:+.2f} [{c['effect_ci_low']:+.2f}, {c['effect_ci_high']:+.2f}]"
+
+
+def render_pairwise(d: dict) -> str:
+    """Readable text for an all-pairs comparison dictionary."""
+    lines = [f"Index: {d['index']}   all pairs of conditions in column '{d['by']}'   diff = b - a", ""]
+    rows = []
+    for c in d["pairs"]:
+        ci = "—" if c["ci_low"] is None else f"[{c['ci_low']:+.3f}, {c['ci_high']:+.3f}]"
+        rows.append([c["a"], c["b"], str(c["n"]), _signed(c["diff"]), ci, _p(c["p_value"]), _p(c["p_holm"]),
+                     c["verdict"], _effect(c)])
+    lines.append(table(rows, ["a", "b", "n", "diff", "95 % CI" if d["confidence"] == 0.95 else "CI", "p",
+                              "p (Holm)", "verdict", "d_z [CI]"]))
+    if d["notes"]:
+        lines.append("")
+        lines.append("Notes:")
+        lines.extend(f"  - {n}" for n in d["notes"])
+    return "\n".join(lines)
+
+
+def render_comparisons(d: dict) -> str:
+    """Readable text for several indices and/or all pairs."""
+    parts = [render_comparison(c) for c in d["comparisons"]] + [render_pairwise(p) for p in d["pairwise"]]
+    return "\n\n".join(parts)
+
+
 def render_comparison(d: dict) -> str:
     lines = [
         f"Index: {d['index']}   conditions: column '{d['by']}'   baseline: {d['baseline']}",
@@ -158,9 +187,9 @@ def render_comparison(d: dict) -> str:
         base = c["verdict"] == "baseline"
         ci = "—" if c["ci_low"] is None else f"[{c['ci_low']:+.3f}, {c['ci_high']:+.3f}]"
         rows.append([c["name"], str(c["n"]), fmt(c["mean"], ".3f"), "—" if base else _signed(c["diff"]), ci,
-                     _p(c["p_value"]), _p(c["p_holm"]), c["verdict"]])
+                     _p(c["p_value"]), _p(c["p_holm"]), c["verdict"], _effect(c)])
     lines.append(table(rows, ["condition", "n", "mean", "diff", "95 % CI" if d["confidence"] == 0.95 else "CI",
-                              "p", "p (Holm)", "verdict"]))
+                              "p", "p (Holm)", "verdict", "d_z [CI]"]))
     if d["notes"]:
         lines.append("")
         lines.append("Notes:")
@@ -175,7 +204,10 @@ def compare_command(
     baseline: str = typer.Option(..., "--baseline", help="The condition the others are compared with.",
                                  show_default=False),
     index: Optional[str] = typer.Option(None, "--index",
-                                        help="Numeric column to compare (default: sti or stoi)."),
+                                        help="Numeric column(s) to compare, comma-separated, e.g. stoi,estoi,ssti "
+                                             "(default: sti or stoi)."),
+    all_pairs: bool = typer.Option(False, "--all-pairs", help="Also compare every pair of conditions "
+                                   "(Holm-adjusted over all pairs)."),
     pair_on: Optional[str] = typer.Option(
         None, "--pair-on",
         help=("Column(s) identifying an item across conditions, comma-separated (default: every column "
@@ -185,14 +217,30 @@ def compare_command(
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
-    """Per condition: mean index, paired difference to the baseline, bootstrap 95 % CI, Wilcoxon p."""
-    from envpredict.stats import compare_conditions_file
+    """Per condition: mean index, paired difference to the baseline, bootstrap 95 % CI, Wilcoxon p, effect size."""
+    from envpredict.exceptions import InputError
+    from envpredict.stats import compare_all_pairs_file, compare_conditions_file
 
+    indices = [None] if index is None else [i.strip() for i in index.split(",") if i.strip()]
+    if not indices:
+        raise InputError("--index is empty", "name a numeric column, e.g. stoi, or several: stoi,estoi")
+    if report is not None and (len(indices) > 1 or all_pairs):
+        raise InputError("--report draws one index against its baseline",
+                         "give one --index without --all-pairs for a report")
     check_outputs(out=out, report=report, inputs=[results])
-    res = compare_conditions_file(results, by=by, baseline=baseline, index=index, pair_on=pair_on)
-    d = res.to_dict()
-    d["inputs"] = {"results": str(results), "by": by, "baseline": baseline, "index": index,
-                   "pair_on": pair_on}
-    write_report_if(report, "compare", d, as_json=as_json,
-                    title=f"{d.get('index', index)} by {by}, against {baseline}")
-    emit(d, lambda: render_comparison(d), as_json, out)
+    inputs = {"results": str(results), "by": by, "baseline": baseline, "index": index, "pair_on": pair_on,
+              "all_pairs": all_pairs}
+    comps = [compare_conditions_file(results, by=by, baseline=baseline, index=i, pair_on=pair_on).to_dict()
+             for i in indices]
+    if len(indices) == 1 and not all_pairs:
+        d = comps[0]
+        d["inputs"] = inputs
+        write_report_if(report, "compare", d, as_json=as_json,
+                        title=f"{d.get('index', index)} by {by}, against {baseline}")
+        emit(d, lambda: render_comparison(d), as_json, out)
+        return
+    pairwise = ([compare_all_pairs_file(results, by=by, index=c["index"], pair_on=pair_on).to_dict() for c in comps]
+                if all_pairs else [])
+    d = {"index": [c["index"] for c in comps], "comparisons": comps, "pairwise": pairwise, "cautions": [],
+         "notes": [], "inputs": inputs}
+    emit(d, lambda: render_comparisons(d), as_json, out)
