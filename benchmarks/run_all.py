@@ -7,6 +7,7 @@ Run by hand:  python benchmarks/run_all.py [--long]
 (c) batch throughput, 2 workers vs 1, 400 IR rows               goal >= 1.8x
 (d) `envpredict --help` CPU time                                goal <= 1 s
 (e) design grid, 10 000 points x 20 loudspeakers, one core      goal < 1 s (ratio vs plain numpy printed)
+(f) sEPSM of a 10 s 16 kHz pair, one core, vs a plain version  goal < 1 s
 --long adds the peak-memory runs: a 30-minute 16 kHz pair and a 60-minute 48 kHz
 STIPA recording (goal <= 600 MB each), and writing the one-hour 48 kHz STIPA test
 signal (goal < 300 MB); several minutes each.
@@ -26,6 +27,7 @@ RUNS = [
     ("(c) batch throughput", ["bench_batch.py", "--rows", "400", "--repeat", "3"]),
     ("(d) --help CPU time", ["bench_help.py"]),
     ("(e) design grid vs plain numpy", ["bench_design.py"]),
+    ("(f) sEPSM vs a plain implementation", ["bench_sepsm.py"]),
 ]
 LONG = [
     ("long pair memory", ["bench_long_pair.py", "--minutes", "30"]),

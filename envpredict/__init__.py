@@ -38,6 +38,8 @@ Impulse response by swept sine
 Clean/degraded pairs
     stoi, estoi, correlation_indices, CorrelationResult, pair_indices,
     pair_from_files, PairResult, speech_sti
+Envelope-power index
+    sepsm, SepsmResult
 Inspection of a recording
     inspect_signal, inspect_file, InspectResult, yin_f0, F0Track
 Index-to-score mappings
@@ -50,7 +52,8 @@ SNR sweeps and the SRT
 Stimuli of a listening test
     write_stimuli, write_stimuli_files, StimuliResult
 Corpora
-    run_batch, read_results, compare_conditions, compare_conditions_file
+    run_batch, read_results, compare_conditions, compare_conditions_file,
+    compare_all_pairs, compare_all_pairs_file
 Site surveys
     run_survey, SurveyResult, summarise_survey, parse_requirement
 Design stage (prediction from a room model)
@@ -122,6 +125,9 @@ _API: dict[str, str] = {
     "pair_from_files": "envpredict.pair",
     "PairResult": "envpredict.pair",
     "speech_sti": "envpredict.pair",
+    # envelope-power index
+    "sepsm": "envpredict.envpower",
+    "SepsmResult": "envpredict.envpower",
     # inspection of a recording
     "inspect_signal": "envpredict.timescales",
     "inspect_file": "envpredict.timescales",
@@ -165,6 +171,8 @@ _API: dict[str, str] = {
     "predict_design_file": "envpredict.design",
     "DesignResult": "envpredict.design",
     "read_scene": "envpredict.roommodel",
+    "compare_all_pairs": "envpredict.stats",
+    "compare_all_pairs_file": "envpredict.stats",
     # reports
     "write_report": "envpredict.report",
     # the bundled demo site

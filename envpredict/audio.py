@@ -26,6 +26,7 @@ from __future__ import annotations
 import math
 import os
 from collections.abc import Iterable, Iterator
+from dataclasses import dataclass
 from fractions import Fraction
 from functools import lru_cache
 from pathlib import Path
@@ -666,7 +667,118 @@ def resample_ratio(fs_in: int, fs_out: int) -> tuple[int, int]:
     return r.numerator, r.denominator
 
 
-def estimate_delay(
+#: Delay finders of :func:`find_delay`: ``"gcc-phat"``, the generalized cross-correlation
+#: with the phase transform (Knapp & Carter 1976), and ``"waveform"``, the peak of the
+#: plain waveform cross-correlation.
+DELAY_METHODS: tuple[str, ...] = ("gcc-phat", "waveform")
+
+#: GCC-PHAT: width of the rectangular (Daniell) smoothing of the cross-spectrum's
+#: magnitude before the phase transform divides by it, Hz. Knapp & Carter's weighting
+#: uses *estimated* spectra; the raw one-periodogram magnitude makes every bin count
+#: alike, noise-only bins included. On the bundled corpus (a hall with early reflections
+#: at -5 dB, -3 dB SNR) 0 Hz put 5 of 24 pairs on a reflection, 8 Hz 3, 16 Hz none
+#: (judgement from that trial; the delay found does not depend on it for a clean copy).
+GCC_SMOOTH_HZ: float = 16.0
+
+#: Peaks within this distance of the highest one count as the same peak when the
+#: confidence (highest peak over the next one) is formed, s (judgement: wider than the
+#: main lobe of a speech band's correlation, narrower than the gap to an early reflection).
+DELAY_PEAK_GUARD_S: float = 0.001
+
+
+@dataclass(frozen=True)
+class DelayCurve:
+    """A cross-correlation over the lags searched, ``values[i]`` at lag ``lags[i]`` (samples).
+
+    GCC-PHAT curves of several pairs at one rate can be added (:func:`pooled_delay`):
+    each peaks near 1 for a clean delay, whatever the level of its signals.
+    """
+
+    fs: int
+    lags: np.ndarray
+    values: np.ndarray
+    method: str
+
+
+@dataclass(frozen=True)
+class DelayEstimate:
+    """Delay of a signal relative to its reference, as found by :func:`find_delay`.
+
+    Attributes
+    ----------
+    lag : samples at ``fs``: ``x[n + lag]`` lines up with ``reference[n]`` (positive: late).
+    fs : sample rate, Hz.
+    correlation : normalised waveform correlation at ``lag`` (1 for an exact copy; negative
+        for inverted polarity).
+    peak_correlation : the largest magnitude of the normalised waveform correlation over
+        the lags searched (whether the two hold the same signal at all).
+    confidence : the highest peak of the method's curve over the highest value more than
+        :data:`DELAY_PEAK_GUARD_S` away from it (1: two equal candidates; larger is clearer).
+    method : one of :data:`DELAY_METHODS`.
+    """
+
+    lag: int
+    fs: int
+    correlation: float
+    peak_correlation: float
+    confidence: float
+    method: str
+
+    @property
+    def delay_ms(self) -> float:
+        return self.lag / self.fs * 1000.0
+
+    def to_dict(self) -> dict:
+        return {"delay_ms": round(self.delay_ms, 3), "delay_samples": int(self.lag), "method": self.method,
+                "correlation": round(self.correlation, 4), "peak_correlation": round(self.peak_correlation, 4),
+                "confidence": round(self.confidence, 3)}
+
+
+def _check_delay_method(method: str) -> str:
+    if method not in DELAY_METHODS:
+        raise InputError(f"delay method '{method}' is not known", f"give one of {', '.join(DELAY_METHODS)}")
+    return method
+
+
+def _peak(values: np.ndarray, fs: int) -> tuple[int, float]:
+    """Index of the largest magnitude and its ratio to the largest magnitude farther than
+    :data:`DELAY_PEAK_GUARD_S` from it (inf when there is none or it is zero)."""
+    a = np.abs(values)
+    i = int(np.argmax(a))
+    g = max(1, int(round(DELAY_PEAK_GUARD_S * fs)))
+    rest = np.concatenate([a[: max(0, i - g)], a[i + g + 1:]])
+    second = float(rest.max()) if rest.size else 0.0
+    return i, (float(a[i]) / second if second > 0 else math.inf)
+
+
+def _excerpts(ref_src: "Source", x_src: "Source", max_delay_s: float, near: int,
+              excerpt_s: float | None) -> tuple[np.ndarray, np.ndarray, int, int, int]:
+    """The reference excerpt (DC removed), the stretch of ``x`` widened by the search range
+    (DC removed; zeros outside ``x``), the search half-width d, the excerpt start and length."""
+    max_delay_s = checks.number(max_delay_s, "maximum delay", lo=0.0, hi=MAX_DELAY_S)
+    near = checks.number(near, "start of the excerpt", lo=0, hi=checks.MAX_SAMPLES, integer=True)
+    excerpt_s = checks.optional_number(excerpt_s, "excerpt length", lo=0.0, lo_open=True, hi=ALIGN_EXCERPT_S)
+    rate = ref_src.fs
+    d = round(max_delay_s * rate)
+    w = min(ref_src.n, int((ALIGN_EXCERPT_S if excerpt_s is None else excerpt_s) * rate))
+    s0 = max(0, min(int(near), ref_src.n - w))
+    # without their DC: a constant offset (of a recorder, a processing chain) correlates
+    # with itself at every lag and would outweigh the waveform
+    ref = ref_src.read(s0, s0 + w)
+    ref = ref - ref.mean()
+    sig = x_src.read(s0 - d, s0 + w + d)
+    sig = sig - sig.mean()
+    return ref, sig, d, s0, w
+
+
+def _normalised_at(ref: np.ndarray, x_src: "Source", s0: int, w: int, lag: int, raw: float) -> float:
+    matched = x_src.read(s0 + lag, s0 + lag + w)
+    matched = matched - matched.mean()
+    den = math.sqrt(float(np.dot(ref, ref)) * float(np.dot(matched, matched)))
+    return float(raw / den) if den > 0 else 0.0
+
+
+def find_delay(
     reference: "Source | np.ndarray",
     x: "Source | np.ndarray",
     fs: int | None = None,
@@ -674,14 +786,24 @@ def estimate_delay(
     *,
     near: int = 0,
     excerpt_s: float | None = None,
-) -> tuple[int, float]:
-    """Delay of ``x`` relative to ``reference`` by FFT cross-correlation (the one delay finder).
+    method: str = "gcc-phat",
+    curve: bool = False,
+) -> "DelayEstimate | tuple[DelayEstimate, DelayCurve]":
+    """Delay of ``x`` relative to ``reference``, with its confidence (the one delay finder).
 
     The search uses an excerpt of the reference of at most ``excerpt_s`` (default
     :data:`ALIGN_EXCERPT_S`) starting as close to sample ``near`` (e.g. the loudest
     stretch of a long input) as the length allows, and the matching stretch of ``x``
     widened by ``max_delay_s`` on each side (zeros outside ``x``): memory stays bounded
     however long the signals are.
+
+    ``method="gcc-phat"``: the generalized cross-correlation with the phase transform
+    (PHAT) weighting, the inverse transform of G_xy(f) / |G_xy(f)|, where the magnitude
+    is the cross-spectrum's smoothed over :data:`GCC_SMOOTH_HZ`. Whitening the
+    cross-spectrum turns the broad correlation of speech into a sharp peak at each path
+    of the transfer: the direct sound then stands out from reflections and reverberation
+    that pile up into the plain waveform correlation's peak. ``method="waveform"``: the
+    peak of the plain cross-correlation (the lag of best waveform match).
 
     Parameters
     ----------
@@ -691,11 +813,101 @@ def estimate_delay(
     max_delay_s : largest delay searched, s (both directions).
     near : sample of the reference the excerpt should start at.
     excerpt_s : longest excerpt of the reference used, s.
+    method : one of :data:`DELAY_METHODS`.
+    curve : also return the method's curve over the lags (to pool several pairs with
+        :func:`pooled_delay`).
+
+    Returns
+    -------
+    DelayEstimate, or ``(DelayEstimate, DelayCurve)`` with ``curve=True``.
+
+    References
+    ----------
+    C. H. Knapp and G. C. Carter, "The generalized correlation method for estimation of
+    time delay", IEEE Trans. Acoust., Speech, Signal Process. 24(4), 320-327, 1976.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> ref = np.random.default_rng(0).standard_normal(8000)
+    >>> est = find_delay(ref, np.concatenate([np.zeros(120), ref]), 8000, 0.1)
+    >>> est.lag, round(est.correlation, 6)
+    (120, 1.0)
+    """
+    from numpy.fft import irfft, rfft
+
+    _check_delay_method(method)
+    ref_src, x_src = _as_source(reference, fs, "reference"), _as_source(x, fs, "signal")
+    rate = ref_src.fs
+    ref, sig, d, s0, w = _excerpts(ref_src, x_src, max_delay_s, near, excerpt_s)
+    nf = 1 << max(1, (ref.size + sig.size - 1)).bit_length()
+    cross = np.conj(rfft(ref, nf)) * rfft(sig, nf)
+    plain = irfft(cross, nf)[: 2 * d + 1]  # index i -> lag i - d
+    i_w, conf_w = _peak(plain, rate)
+    peak_corr = _normalised_at(ref, x_src, s0, w, i_w - d, float(plain[i_w]))
+    if method == "waveform":
+        values, i, conf = plain, i_w, conf_w
+    else:
+        from scipy.ndimage import uniform_filter1d
+
+        mag = np.abs(cross)
+        k = max(1, int(round(GCC_SMOOTH_HZ * nf / rate)) | 1)
+        if k > 1:
+            mag = uniform_filter1d(mag, k, mode="nearest")
+        floor = 1e-12 * float(mag.max()) if mag.size and mag.max() > 0 else 1.0
+        values = irfft(cross / np.maximum(mag, floor), nf)[: 2 * d + 1]
+        i, conf = _peak(values, rate)
+    lag = i - d
+    corr = peak_corr if i == i_w else _normalised_at(ref, x_src, s0, w, lag, float(plain[i]))
+    est = DelayEstimate(lag=int(lag), fs=int(rate), correlation=corr, peak_correlation=abs(peak_corr),
+                        confidence=conf, method=method)
+    if curve:
+        return est, DelayCurve(fs=int(rate), lags=np.arange(-d, d + 1), values=values, method=method)
+    return est
+
+
+def pooled_delay(curves: "list[DelayCurve]") -> tuple[int, float]:
+    """One delay for several pairs: the peak of the sum of their curves.
+
+    A processing chain has one latency; adding the GCC-PHAT curves of its items keeps
+    the peak they share and averages away the reflections and noise peaks where they
+    differ (all curves must have the same rate and lags).
+
+    Returns
+    -------
+    lag : samples; confidence : the peak ratio of the summed curve (see :class:`DelayEstimate`).
+    """
+    if not curves:
+        raise ValueError("no curves to pool")
+    first = curves[0]
+    for c in curves[1:]:
+        if c.fs != first.fs or c.lags.size != first.lags.size or c.lags[0] != first.lags[0]:
+            raise ValueError("curves to pool need the same rate and lags")
+    total = np.sum([c.values for c in curves], axis=0)
+    i, conf = _peak(total, first.fs)
+    return int(first.lags[i]), conf
+
+
+def estimate_delay(
+    reference: "Source | np.ndarray",
+    x: "Source | np.ndarray",
+    fs: int | None = None,
+    max_delay_s: float = 1.0,
+    *,
+    near: int = 0,
+    excerpt_s: float | None = None,
+    method: str = "waveform",
+) -> tuple[int, float]:
+    """Delay of ``x`` relative to ``reference``: :func:`find_delay` as a plain pair.
+
+    The default method here is the plain waveform cross-correlation peak (the sweep
+    deconvolution and the direct method use it, where the signals are copies of each
+    other); the pair job uses GCC-PHAT through :func:`find_delay`.
 
     Returns
     -------
     lag : int, samples: ``x[n + lag]`` lines up with ``reference[n]`` (positive: ``x``
-        is late); the lag maximising the magnitude of the cross-correlation.
+        is late).
     correlation : float, the cross-correlation at ``lag`` divided by the root of the
         energies of the reference excerpt and of the stretch of ``x`` it is matched
         with (1 for an exact delayed copy, near 0 for unrelated signals; negative for
@@ -715,30 +927,8 @@ def estimate_delay(
     >>> lag, round(corr, 6)
     (120, 1.0)
     """
-    from scipy.signal import fftconvolve
-
-    max_delay_s = checks.number(max_delay_s, "maximum delay", lo=0.0, hi=MAX_DELAY_S)
-    near = checks.number(near, "start of the excerpt", lo=0, hi=checks.MAX_SAMPLES, integer=True)
-    excerpt_s = checks.optional_number(excerpt_s, "excerpt length", lo=0.0, lo_open=True, hi=ALIGN_EXCERPT_S)
-    ref_src, x_src = _as_source(reference, fs, "reference"), _as_source(x, fs, "signal")
-    rate = ref_src.fs
-    d = round(max_delay_s * rate)
-    w = min(ref_src.n, int((ALIGN_EXCERPT_S if excerpt_s is None else excerpt_s) * rate))
-    s0 = max(0, min(int(near), ref_src.n - w))
-    # without their DC: a constant offset (of a recorder, a processing chain) correlates
-    # with itself at every lag and would outweigh the waveform
-    ref = ref_src.read(s0, s0 + w)
-    ref = ref - ref.mean()
-    sig = x_src.read(s0 - d, s0 + w + d)
-    sig = sig - sig.mean()
-    cc = fftconvolve(sig, ref[::-1], mode="valid")  # index i -> lag i - d
-    i = int(np.argmax(np.abs(cc)))
-    lag = i - d
-    matched = x_src.read(s0 + lag, s0 + lag + w)
-    matched = matched - matched.mean()
-    den = math.sqrt(float(np.dot(ref, ref)) * float(np.dot(matched, matched)))
-    corr = float(cc[i] / den) if den > 0 else 0.0
-    return lag, corr
+    est = find_delay(reference, x, fs, max_delay_s, near=near, excerpt_s=excerpt_s, method=method)
+    return est.lag, est.correlation
 
 
 def zero_lag_correlation(reference: "Source | np.ndarray", x: "Source | np.ndarray", fs: int | None = None, *,

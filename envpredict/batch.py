@@ -27,10 +27,29 @@ Optional columns that feed the scoring (empty cell = the batch default):
 * ``calibration_db`` -- dB SPL of a full-scale RMS signal in the row's recording
   (STIPA rows, optional) or noise recording (IR rows);
 * ``sti_talker`` -- ``male`` or ``female`` speech spectrum and weights (IR and STIPA rows).
+* ``delay_ms`` -- the delay of the degraded file, ms (pair rows): overrides the batch's
+  alignment for that row. In the results file this column holds the delay used (the
+  manifest's cell where it is given).
   (A column named ``talker`` is *not* read: in speech corpora it names the speaker,
   and it is carried through like any other column.)
 
 Every other column (condition, talker, SNR, ...) is carried through unchanged.
+
+Alignment of pair rows
+----------------------
+A processing chain has one latency, and a single pair's delay estimate can land on a
+reflection. By default every pair row of one condition (the column named by
+``condition_column``; a column named ``condition`` when there is one) gets one delay:
+the peak of the summed GCC-PHAT curves of all its items
+(:func:`envpredict.pair.common_delay`). Each row's own estimate is still made: it checks
+that the files match, and a row whose estimate differs from the condition's by more
+than :data:`envpredict.pair.DELAY_AGREEMENT_MS` gets a note. The other choices:
+``delay_per_row`` (each pair its own estimate, as ``envpredict pair``), ``fixed_delay_ms``
+(one delay for all), ``align=False`` (no delay, as ``pair --no-align``), and the
+``delay_ms`` manifest column (per row, over all of these). The results record the delay
+used (``delay_ms``), how it was chosen (``delay_from``: ``condition``, ``row``,
+``fixed``, ``manifest`` or ``off``) and the peak ratio of the estimate it came from
+(``delay_confidence``).
 
 The results file has the columns ``row`` (1-based number of the data row in the
 manifest: the key that ``resume`` uses), the manifest's own columns unchanged, the
@@ -103,9 +122,11 @@ from .tables import (  # noqa: F401  (the column vocabulary, re-exported for bat
     CHANNEL_COLUMN,
     CLEAN_COLUMN,
     DEGRADED_COLUMN,
+    DELAY_COLUMN,
     ERROR_COLUMN,
     IR_COLUMN,
     IR_INDEX_COLUMNS,
+    MANIFEST_RESULT_COLUMNS,
     NOISE_COLUMN,
     NOISE_RECORDING_COLUMN,
     NOTES_COLUMN,
@@ -205,6 +226,23 @@ class Manifest:
         """Header of the results file."""
         return (ROW_COLUMN,) + self.columns + self.index_columns + (NOTES_COLUMN, ERROR_COLUMN)
 
+    def result_cells(self, row: int, values: dict) -> list[str]:
+        """The manifest's cells of ``row`` as the results file shows them: a result column
+        the manifest holds (``delay_ms``) shows the value used where its cell is empty."""
+        cells = list(self.cells[row - 1])
+        for i, c in enumerate(self.columns):
+            if c in MANIFEST_RESULT_COLUMNS and not cells[i].strip() and values.get(c) is not None:
+                cells[i] = format_cell(values.get(c))
+        return cells
+
+    def matches(self, row: int, cells: Sequence[str]) -> bool:
+        """Whether results-file cells of the manifest's columns belong to ``row``."""
+        own = self.cells[row - 1]
+        if len(cells) != len(own):
+            return False
+        return all(a == b or (c in MANIFEST_RESULT_COLUMNS and not b.strip())
+                   for c, a, b in zip(self.columns, cells, own))
+
     def __len__(self) -> int:
         return len(self.cells)
 
@@ -259,6 +297,18 @@ def _option_value(path: Path, row: int, line: int, column: str, text: str, defau
         raise InputError(f"{_where(path, row, line, column)}: {e.what}", e.fix) from None
 
 
+def _delay_cell(path: Path, row: int, line: int, text: str) -> float:
+    """A ``delay_ms`` cell: a finite number of ms."""
+    try:
+        v = float(text)
+    except ValueError:
+        v = math.nan
+    if not math.isfinite(v):
+        raise InputError(f"{_where(path, row, line, DELAY_COLUMN)}: '{text}' is not a number of milliseconds",
+                         "give the delay of the degraded file in ms (e.g. 12.5), or leave the cell empty")
+    return v
+
+
 def read_manifest(
     path: str | os.PathLike,
     *,
@@ -309,7 +359,7 @@ def read_manifest(
         if c in seen:
             raise InputError(f"{_where(p)}: column '{c}' appears twice in the header", "rename one of them")
         seen.add(c)
-        if c in RESULT_COLUMNS:
+        if c in RESULT_COLUMNS and c not in MANIFEST_RESULT_COLUMNS:
             raise InputError(
                 f"{_where(p, column=c)} has the name of a result column",
                 f"rename it (reserved: {', '.join(sorted(RESULT_COLUMNS))})",
@@ -366,6 +416,10 @@ def read_manifest(
             raise InputError(f"{_where(p, row, line, empty)} is empty", "a pair row needs both files")
         opts = {key: _option_value(p, row, line, c, get[c], defaults) if c in get else defaults[key]
                 for c, key in _OPTION_KEYS.items()}
+        delay_text = get.get(DELAY_COLUMN, "").strip()
+        if delay_text and not (clean or deg):
+            raise InputError(f"{_where(p, row, line, DELAY_COLUMN)} is filled on a row without a pair",
+                             "a delay goes with a clean/degraded pair")
         noise_rec = get.get(NOISE_RECORDING_COLUMN, "").strip()
         if noise_rec and not ir:
             raise InputError(f"{_where(p, row, line, NOISE_RECORDING_COLUMN)} is filled on a row without 'ir'",
@@ -385,13 +439,15 @@ def read_manifest(
             job.update(kind="stipa", stipa=full(stipa), talker=opts["talker"],
                        calibration_db=opts["calibration_db"])
         else:
-            job.update(kind="pair", clean=full(clean), degraded=full(deg))
+            job.update(kind="pair", clean=full(clean), degraded=full(deg),
+                       manifest_delay_ms=_delay_cell(p, row, line, delay_text) if delay_text else None)
         cells.append(tuple(rec))
         jobs.append(job)
     if not cells:
         raise InputError(f"{_where(p)} has a header but no rows", "add one row per item to score")
     sti_columns = IR_INDEX_COLUMNS if has_ir else STIPA_INDEX_COLUMNS if has_stipa else ()
     index_columns = sti_columns + (PAIR_INDEX_COLUMNS if has_pair else ())
+    index_columns = tuple(c for c in index_columns if c not in seen)  # delay_ms: the manifest's column
     return Manifest(path=p, columns=columns, cells=tuple(cells), jobs=tuple(jobs), index_columns=index_columns)
 
 
@@ -447,10 +503,134 @@ def _score_stipa(job: dict) -> dict:
 def _score_pair(job: dict) -> dict:
     from .pair import pair_from_files
 
-    r = pair_from_files(job["clean"], job["degraded"], channel=job.get("channel"))
+    delay_ms = job.get("delay_ms")
+    r = pair_from_files(job["clean"], job["degraded"], channel=job.get("channel"), align=job.get("align", True),
+                        max_delay_s=job.get("max_delay_s", std.PAIR_MAX_DELAY_S),
+                        delay_s=None if delay_ms is None else delay_ms / 1000.0)
+    delay_from = job.get("delay_from") or ("row" if r.delay_from == "search" else r.delay_from)
+    confidence = job.get("delay_confidence") if delay_from == "condition" else (
+        r.delay_confidence if delay_from == "row" else None)
+    notes = tuple(job.get("delay_notes") or ()) + r.notes
     return {"stoi": float(r.stoi), "estoi": float(r.estoi), "ssti": None if r.ssti is None else float(r.ssti),
             "ssti_regression": None if r.ssti_regression is None else float(r.ssti_regression),
-            "delay_ms": float(r.delay_ms), NOTES_COLUMN: "; ".join(r.notes)}
+            "delay_ms": float(r.delay_ms), "delay_from": delay_from,
+            "delay_confidence": None if confidence is None or not math.isfinite(confidence) else float(confidence),
+            NOTES_COLUMN: "; ".join(notes)}
+
+
+#: The name of a manifest column taken as the condition when none is named.
+DEFAULT_CONDITION_COLUMN: str = "condition"
+
+
+@dataclass(frozen=True)
+class Alignment:
+    """How the pair rows of a batch are aligned (see the module docstring).
+
+    Attributes
+    ----------
+    align : search for delays at all (``False``: no delay, as ``pair --no-align``).
+    max_delay_s : largest delay searched, s.
+    condition_column : the column naming the condition (``None``: ``condition`` when the
+        manifest has it, else one estimate per row).
+    per_row : each pair its own estimate.
+    fixed_delay_ms : one delay for every pair row, ms.
+    """
+
+    align: bool = True
+    max_delay_s: float = std.PAIR_MAX_DELAY_S
+    condition_column: str | None = None
+    per_row: bool = False
+    fixed_delay_ms: float | None = None
+
+    def check(self, m: Manifest) -> "Alignment":
+        """Refuse contradicting or malformed choices (one line each)."""
+        from .pair import _check_options
+
+        _check_options(self.max_delay_s, std.PAIR_CHUNK_S)
+        chosen = [name for name, on in (("--delay-per-row", self.per_row),
+                                        ("--delay-ms", self.fixed_delay_ms is not None),
+                                        ("--condition-column", self.condition_column is not None)) if on]
+        if len(chosen) > 1:
+            raise InputError(f"{' and '.join(chosen)} contradict each other", "choose one way to align")
+        if self.fixed_delay_ms is not None and not math.isfinite(float(self.fixed_delay_ms)):
+            raise InputError(f"--delay-ms {self.fixed_delay_ms} is not a number", "give the delay in ms")
+        if not self.align and chosen and self.fixed_delay_ms is None:
+            raise InputError(f"--no-align and {chosen[0]} contradict each other", "choose one")
+        if self.condition_column is not None and self.condition_column not in m.columns:
+            raise InputError(f"{_where(m.path)} has no column '{self.condition_column}' (--condition-column)",
+                             f"name one of its columns: {', '.join(m.columns)}")
+        return self
+
+    def condition(self, m: Manifest) -> str | None:
+        """The condition column in effect, or ``None`` (per-row estimates)."""
+        if not self.align or self.per_row or self.fixed_delay_ms is not None:
+            return None
+        if self.condition_column is not None:
+            return self.condition_column
+        return DEFAULT_CONDITION_COLUMN if DEFAULT_CONDITION_COLUMN in m.columns else None
+
+
+def plan_delays(m: Manifest, jobs: Sequence[dict], alignment: Alignment | None = None,
+                progress: Callable[[int, int], None] | None = None) -> tuple[list[dict], tuple[str, ...]]:
+    """The pair jobs with their delay choice, and notes for the batch summary.
+
+    Pooling a condition reads every pair of that condition (also rows already done, so
+    a resumed batch uses the same delay); only conditions with pending rows are pooled.
+    """
+    from .pair import common_delay
+
+    al = (alignment or Alignment()).check(m)
+    cond = al.condition(m)
+    notes: list[str] = []
+    out = [dict(j) for j in jobs]
+    pairs = [j for j in out if j.get("kind") == "pair"]
+    for j in pairs:
+        j.update(align=al.align, max_delay_s=al.max_delay_s)
+        if j.get("manifest_delay_ms") is not None:
+            j.update(delay_ms=j["manifest_delay_ms"], delay_from="manifest")
+        elif al.fixed_delay_ms is not None:
+            j.update(delay_ms=float(al.fixed_delay_ms), delay_from="fixed")
+        elif not al.align:
+            j.update(delay_ms=None, delay_from="off")
+        else:
+            j.update(delay_ms=None, delay_from="row")
+    if cond is None:
+        if al.align and al.fixed_delay_ms is None and not al.per_row and pairs:
+            notes.append("the manifest has no 'condition' column: each pair row has its own delay estimate "
+                         "(name the column of the processing condition with --condition-column to give its "
+                         "items one delay)")
+        return out, tuple(notes)
+    col = m.columns.index(cond)
+    pending = {str(m.cells[j["row"] - 1][col]) for j in pairs if j["delay_from"] == "row"}
+    groups: dict[str, list[dict]] = {}
+    for j in m.jobs:
+        if j.get("kind") == "pair" and j.get("manifest_delay_ms") is None:
+            groups.setdefault(str(m.cells[j["row"] - 1][col]), []).append(j)
+    todo = [c for c in groups if c in pending]
+    found: dict[str, Any] = {}
+    for k, c in enumerate(todo):
+        members = groups[c]
+        found[c] = common_delay([(j["clean"], j["degraded"], j.get("channel")) for j in members],
+                                max_delay_s=al.max_delay_s)
+        if progress is not None:
+            progress(k + 1, len(todo))
+    for j in pairs:
+        c = str(m.cells[j["row"] - 1][col])
+        if j["delay_from"] != "row" or c not in found:
+            continue
+        cd = found[c]
+        if cd.delay_ms is None:
+            j["delay_notes"] = [f"no common delay for {cond} '{c}' (no pair of it could be aligned): "
+                                "this row's own estimate is used"]
+            continue
+        j.update(delay_ms=cd.delay_ms, delay_from="condition", delay_confidence=cd.confidence)
+    for c in todo:
+        cd = found[c]
+        if cd.delay_ms is not None:
+            notes.append(f"{cond} '{c}': one delay of {cd.delay_ms:.2f} ms for its {cd.pooled} pair(s) "
+                         f"(GCC-PHAT curves pooled, peak ratio {cd.confidence:.2f})")
+        notes.extend(f"{cond} '{c}': {n}" for n in cd.notes)
+    return out, tuple(notes)
 
 
 def score_row(job: dict) -> dict:
@@ -595,7 +775,7 @@ class ResultWriter:
                     if not 1 <= row <= n:
                         raise InputError(f"results file '{p}', line {i} has row number '{rec[0]}', "
                                          f"not 1..{n}", "resume with the manifest it was started with")
-                    if tuple(rec[1:1 + len(manifest.columns)]) != manifest.cells[row - 1]:
+                    if not manifest.matches(row, rec[1:1 + len(manifest.columns)]):
                         raise InputError(
                             f"results file '{p}', line {i}: row {row} does not match row {row} of "
                             f"manifest '{manifest.path}' (the manifest changed since the batch started)",
@@ -650,7 +830,7 @@ class ResultWriter:
         if row in self.done:
             return self.done[row]  # a backend delivered a row twice: write it once
         values = result.get("values") or {}
-        cells = ([str(row)] + list(self.manifest.cells[row - 1])
+        cells = ([str(row)] + self.manifest.result_cells(row, values)
                  + [format_cell(values.get(c)) for c in self.manifest.index_columns + (NOTES_COLUMN,)]
                  + [format_cell(result.get("error"))])
         data = csv_line(cells).encode("utf-8")
@@ -1008,6 +1188,7 @@ class BatchSummary:
     seconds: float
     failures: tuple[tuple[int, str], ...] = field(default=())  # the first few (row, error)
     cautions: tuple[str, ...] = field(default=())  # for every STI of the file
+    notes: tuple[str, ...] = field(default=())  # how the pair rows were aligned
 
     @property
     def rows_per_s(self) -> float:
@@ -1023,7 +1204,7 @@ class BatchSummary:
             "rows_per_s": round(self.rows_per_s, 3) if self.scored else None,
             "failures": [{"row": r, "error": e} for r, e in self.failures],
             "cautions": list(self.cautions),
-            "notes": [],
+            "notes": list(self.notes),
         })
 
 
@@ -1040,6 +1221,7 @@ def run_batch(
     speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
     talker: str = std.DEFAULT_TALKER,
     progress: Callable[[int, int], None] | None = None,
+    alignment: Alignment | None = None,
 ) -> BatchSummary:
     """Score every row of a manifest into a resumable results CSV file.
 
@@ -1057,6 +1239,8 @@ def run_batch(
     progress : called as ``progress(done, total)`` after each row, counting the rows
         of this run only (``total`` = rows still to score), so that a rate and the
         time left computed from it are right when resuming.
+    alignment : how pair rows are aligned (default: one delay per condition, see
+        :class:`Alignment` and the module docstring).
 
     Returns
     -------
@@ -1099,13 +1283,15 @@ def run_batch(
         start_workers_early()  # the pool's imports run while the manifest is read
     m = manifest if isinstance(manifest, Manifest) else read_manifest(
         manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker)
+    alignment = (alignment or Alignment()).check(m)
     with _quiet_dask() if scheduler is not None else contextlib.nullcontext():
         return _run_manifest(m, out, workers=workers, scheduler=scheduler, resume=resume, overwrite=overwrite,
-                             retry_failed=retry_failed, progress=progress)
+                             retry_failed=retry_failed, progress=progress, alignment=alignment)
 
 
 def _run_manifest(m: Manifest, out: str | os.PathLike, *, workers: int | None, scheduler: str | None, resume: bool,
-                  overwrite: bool, retry_failed: bool, progress: Callable[[int, int], None] | None) -> BatchSummary:
+                  overwrite: bool, retry_failed: bool, progress: Callable[[int, int], None] | None,
+                  alignment: Alignment) -> BatchSummary:
     """The batch proper, on a read manifest with checked options (see :func:`run_batch`)."""
     client = threads = None
     if scheduler is not None:  # reach the cluster before any output is created
@@ -1121,7 +1307,7 @@ def _run_manifest(m: Manifest, out: str | os.PathLike, *, workers: int | None, s
     t0 = time.monotonic()
     scored = 0
     try:
-        jobs = writer.pending()
+        jobs, delay_notes = plan_delays(m, writer.pending(), alignment)
         skipped = len(m) - len(jobs)
         if client is not None:
             backend, n_workers = "dask", int(threads)
@@ -1162,7 +1348,7 @@ def _run_manifest(m: Manifest, out: str | os.PathLike, *, workers: int | None, s
     return BatchSummary(
         manifest=str(m.path), out=str(out), backend=backend, workers=n_workers, total=len(m),
         skipped=skipped, scored=scored, failed=len(fails), seconds=time.monotonic() - t0,
-        failures=tuple(fails[:SUMMARY_FAILURES]), cautions=_batch_cautions(m),
+        failures=tuple(fails[:SUMMARY_FAILURES]), cautions=_batch_cautions(m), notes=delay_notes,
     )
 
 

@@ -39,11 +39,12 @@ from .audio import (
     Window,
     as_source,
     audio_info,
-    estimate_delay,
+    find_delay,
     zero_lag_correlation,
 )
 from .bands import EnvelopeStream
 from .correlation import CorrelationResult, frame_count, stoi_estoi_stream
+from .envpower import SepsmResult
 from .exceptions import ComputationError, InputError
 from .modulation import mtf_from_pair_ncm, mtf_from_pair_regression
 from .results import jsonable
@@ -57,6 +58,22 @@ from .results import jsonable
 #: sqrt(0.1/1.1) = 0.30 and unrelated signals about 1/sqrt(samples) (< 0.01 for a few
 #: seconds), so 0.1 (about -20 dB SNR) separates them with margin (judgement).
 MIN_MATCH_CORRELATION: float = 0.1
+
+#: Default delay finder of the pair job (:data:`envpredict.audio.DELAY_METHODS`):
+#: GCC-PHAT finds the direct sound where the waveform peak jumps to reflections.
+DEFAULT_DELAY_METHOD: str = "gcc-phat"
+
+#: A delay given to the pair (a condition's, a fixed one) and the pair's own estimate
+#: disagree when they differ by more than this, ms: GCC-PHAT is sample-accurate on a
+#: direct path, so a larger gap means another path or another latency (judgement).
+DELAY_AGREEMENT_MS: float = 1.0
+
+#: Phase inversion: the derived noise may correlate with the clean speech at most this
+#: share of the derived speech's correlation (peak normalised waveform correlation within
+#: the delay range). A true counterpart leaves only what nonlinear processing fails to
+#: cancel; a file that is not the counterpart (the same mixture again, another gain, the
+#: unprocessed one) leaves speech in the difference (judgement).
+INVERTED_SPEECH_SHARE: float = 0.5
 
 #: After alignment each signal may lose at most this much (s) or this share of the
 #: common part, whichever is larger, when trimmed to the common length; more means
@@ -220,8 +237,19 @@ class PairResult:
         limits), which follows the classical STI for steady noise; ``None`` like ``ssti``.
     delay_ms : delay of the degraded signal removed before the analysis (positive:
         degraded late); 0 when alignment is off.
-    match_correlation : normalised waveform cross-correlation at that delay.
+    match_correlation : the largest normalised waveform cross-correlation within the
+        search range (at lag 0 without a search): whether the two hold the same signal.
     aligned : whether the delay search was on.
+    delay_from : how the delay was chosen: ``"search"`` (this pair's estimate),
+        ``"given"`` (passed in, e.g. a condition's delay) or ``"off"``.
+    delay_method : the delay finder of the search (:data:`envpredict.audio.DELAY_METHODS`).
+    delay_confidence : the search's peak ratio (see :class:`envpredict.audio.DelayEstimate`).
+    own_delay_ms : this pair's own estimate when the delay was given (else ``None``).
+    correlation_at_delay : normalised waveform correlation at the delay used.
+    sepsm : the envelope-power index (:func:`envpredict.envpower.sepsm`) of the degraded
+        signal and the processed noise alone, when the noise was given; else ``None``.
+    separation : the processed speech and noise separated by phase inversion (output SNR
+        per octave band), when the inverted counterpart was given; else ``None``.
     fs : analysis sample rate (the clean signal's), Hz; ``fs_clean``, ``fs_degraded``
         the input rates.
     duration_s : length of the common (aligned, trimmed) part, s.
@@ -248,6 +276,13 @@ class PairResult:
     notes: tuple[str, ...] = field(default=())
     ssti_regression: float | None = None
     chunks: int = 1
+    delay_from: str = "search"
+    delay_method: str | None = None
+    delay_confidence: float | None = None
+    own_delay_ms: float | None = None
+    correlation_at_delay: float | None = None
+    sepsm: "SepsmResult | None" = None
+    separation: "Separation | None" = None
 
     def timeline(self) -> dict:
         """Local STOI and ESTOI in fixed time bins of the common part (NaN: no speech)."""
@@ -303,9 +338,17 @@ class PairResult:
                 "enabled": self.aligned,
                 "delay_ms": round(self.delay_ms, 3),
                 "delay_samples": self.delay_samples,
+                "delay_from": self.delay_from,
+                "method": self.delay_method,
+                "confidence": None if self.delay_confidence is None else round(self.delay_confidence, 3),
+                "own_delay_ms": None if self.own_delay_ms is None else round(self.own_delay_ms, 3),
                 "match_correlation": round(self.match_correlation, 4),
+                "correlation_at_delay": (None if self.correlation_at_delay is None
+                                         else round(self.correlation_at_delay, 4)),
                 "trimmed_s": [round(v, 4) for v in self.trimmed_s],
             },
+            "sepsm": None if self.sepsm is None else self.sepsm.to_dict(),
+            "separation": None if self.separation is None else self.separation.to_dict(),
             "fs_clean": self.fs_clean,
             "fs_degraded": self.fs_degraded,
             "duration_s": round(self.duration_s, 4),
@@ -335,6 +378,18 @@ class PairResult:
 # ---------------------------------------------------------------------------
 
 
+def _check_delay(delay_s: float | None) -> float | None:
+    if delay_s is None:
+        return None
+    try:
+        v = float(delay_s)
+    except (TypeError, ValueError):
+        raise InputError(f"delay '{delay_s}' is not a number", "give the delay in seconds (ms in a manifest)") from None
+    if not math.isfinite(v):
+        raise InputError(f"delay {delay_s} is not finite", "give the delay in seconds (ms in a manifest)")
+    return v
+
+
 def _check_options(max_delay_s: float, chunk_s: float) -> tuple[float, float]:
     try:
         md, cs = float(max_delay_s), float(chunk_s)
@@ -358,11 +413,20 @@ class _Aligned:
     n_common: int
     drop: tuple[int, int]
     notes: tuple[str, ...]
+    delay_from: str = "search"
+    method: str | None = None
+    confidence: float | None = None
+    own_lag: int | None = None
+    corr_at_delay: float | None = None
 
 
-def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float) -> _Aligned:
+def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float,
+           delay_method: str = DEFAULT_DELAY_METHOD, delay_s: float | None = None) -> _Aligned:
     """Check both signals, resample the degraded one to the clean rate, find and remove
-    the delay and trim both to their common part (every pair index starts here)."""
+    the delay and trim both to their common part (every pair index starts here).
+
+    ``delay_s`` given: that delay is removed; with ``align`` the search still runs, to
+    check that the two match and to report the pair's own estimate beside it."""
     notes: list[str] = []
     fs = clean.fs
     if fs < std.STOI_FS:
@@ -379,22 +443,32 @@ def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float) 
     if degraded.fs != fs:
         notes.append(f"degraded signal resampled from {degraded.fs} Hz to {fs} Hz")
 
+    method = confidence = own_lag = None
     if align:
         near = _loudest_excerpt_start(stats_c["energy_per_second"], clean.n, fs)
-        lag, corr = estimate_delay(clean, deg, max_delay_s=max_delay_s, near=near)
-        if abs(corr) < MIN_MATCH_CORRELATION:
+        est = find_delay(clean, deg, max_delay_s=max_delay_s, near=near, method=delay_method)
+        corr = est.peak_correlation
+        if corr < MIN_MATCH_CORRELATION:
             raise InputError(
-                f"clean and degraded do not match: peak waveform correlation {abs(corr):.3f} within "
+                f"clean and degraded do not match: peak waveform correlation {corr:.3f} within "
                 f"±{max_delay_s:g} s (at least {MIN_MATCH_CORRELATION} is needed)",
                 "check that both hold the same utterance; for a longer delay raise --max-delay; "
                 "--no-align skips the check",
             )
-        if corr < 0:
-            notes.append("the best match between the waveforms has inverted polarity (an inverting chain, "
-                         "or a strong reflection in a reverberant recording); the indices do not depend "
-                         "on polarity")
+        lag, method, confidence = est.lag, est.method, est.confidence
+        if delay_s is not None:
+            own_lag, lag = lag, int(round(delay_s * fs))
+            if abs(own_lag - lag) > DELAY_AGREEMENT_MS * fs / 1000.0:
+                notes.append(f"this pair's own delay estimate ({own_lag / fs * 1000:.2f} ms, {method}) differs "
+                             f"from the delay used ({lag / fs * 1000:.2f} ms) by more than "
+                             f"{DELAY_AGREEMENT_MS:g} ms")
+    elif delay_s is not None:
+        lag, corr = int(round(delay_s * fs)), math.nan
     else:
         lag, corr = 0, zero_lag_correlation(clean, deg)
+    if abs(lag) >= min(clean.n, deg.n):
+        raise InputError(f"the delay of {lag / fs * 1000:.1f} ms is longer than the files "
+                         f"({min(clean.n, deg.n) / fs:.2f} s)", "give a delay shorter than the recording")
 
     # common part: clean[s_c + n] with deg[s_c + lag + n]
     s_c = max(0, -lag)
@@ -411,8 +485,19 @@ def _align(clean: Source, degraded: Source, *, align: bool, max_delay_s: float) 
     if max(drop_c, drop_d) > 0.01 * fs:
         notes.append(f"trimmed to the common part of {n_common / fs:.2f} s "
                      f"({drop_c / fs:.3f} s of clean, {drop_d / fs:.3f} s of degraded dropped)")
-    return _Aligned(clean=Window(clean, s_c, n_common), degraded=Window(deg, s_c + lag, n_common), lag=int(lag),
-                    corr=float(corr), n_common=int(n_common), drop=(int(drop_c), int(drop_d)), notes=tuple(notes))
+    c_win, d_win = Window(clean, s_c, n_common), Window(deg, s_c + lag, n_common)
+    at_delay = zero_lag_correlation(c_win, d_win) if (align or delay_s is not None) else corr
+    if not math.isfinite(corr):
+        corr = at_delay
+    if at_delay <= -MIN_MATCH_CORRELATION:
+        notes.append("the waveforms match with inverted polarity at the delay used (an inverting chain, "
+                     "or a strong reflection in a reverberant recording); the indices do not depend "
+                     "on polarity")
+    delay_from = "given" if delay_s is not None else "search" if align else "off"
+    return _Aligned(clean=c_win, degraded=d_win, lag=int(lag),
+                    corr=float(corr), n_common=int(n_common), drop=(int(drop_c), int(drop_d)), notes=tuple(notes),
+                    delay_from=delay_from, method=method, confidence=confidence, own_lag=own_lag,
+                    corr_at_delay=float(at_delay))
 
 
 @dataclass(frozen=True)
@@ -483,10 +568,13 @@ def _pair(
     max_delay_s: float,
     chunk_s: float,
     progress: Callable[[int, int], None] | None,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+    delay_s: float | None = None,
 ) -> PairResult:
     max_delay_s, chunk_s = _check_options(max_delay_s, chunk_s)
+    delay_s = _check_delay(delay_s)
     fs = clean.fs
-    al = _align(clean, degraded, align=align, max_delay_s=max_delay_s)
+    al = _align(clean, degraded, align=align, max_delay_s=max_delay_s, delay_method=delay_method, delay_s=delay_s)
     notes = list(al.notes)
     c_al, d_al, n_common, lag = al.clean, al.degraded, al.n_common, al.lag
 
@@ -543,6 +631,11 @@ def _pair(
         ssti_bands=ss.bands,
         notes=tuple(notes),
         chunks=n_stoi - 1,
+        delay_from=al.delay_from,
+        delay_method=al.method,
+        delay_confidence=al.confidence,
+        own_delay_ms=None if al.own_lag is None else al.own_lag / fs * 1000.0,
+        correlation_at_delay=al.corr_at_delay,
     )
 
 
@@ -556,14 +649,17 @@ def pair_indices(
     max_delay_s: float = std.PAIR_MAX_DELAY_S,
     chunk_s: float = DEFAULT_CHUNK_S,
     progress: Callable[[int, int], None] | None = None,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+    delay_s: float | None = None,
+    noise: np.ndarray | None = None,
 ) -> PairResult:
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, aligned and trimmed.
 
     Steps: check both signals (finite, not silent, one channel); resample the
     degraded one to ``fs`` if ``fs_degraded`` differs; find the delay of the degraded
-    signal by waveform cross-correlation within ``±max_delay_s`` and refuse the pair if
-    the peak normalised correlation is below :data:`MIN_MATCH_CORRELATION`; trim both
-    to the common part; then
+    signal within ``±max_delay_s`` (GCC-PHAT by default, :func:`envpredict.audio.find_delay`)
+    and refuse the pair if the peak normalised waveform correlation is below
+    :data:`MIN_MATCH_CORRELATION`; trim both to the common part; then
 
     * STOI (Taal et al., IEEE TASLP 19(7), 2011) and ESTOI (Jensen & Taal, IEEE/ACM
       TASLP 24(11), 2016), see :func:`envpredict.stoi`;
@@ -583,13 +679,24 @@ def pair_indices(
     max_delay_s : largest delay searched, s (default 1).
     chunk_s : seconds per processing chunk; results do not depend on it.
     progress : optional ``progress(done, total)`` callback.
+    delay_method : ``"gcc-phat"`` (default) or ``"waveform"`` (the plain cross-correlation
+        peak), see :func:`envpredict.audio.find_delay`.
+    delay_s : remove this delay (s, positive: degraded late) instead of the estimate, e.g.
+        one delay for every item of a processing condition. With ``align`` the search
+        still runs: it checks the match and its estimate is reported (``own_delay_ms``,
+        a note when it differs by more than :data:`DELAY_AGREEMENT_MS`).
+    noise : the noise alone as it is in ``degraded`` (same rate, same length, processed
+        the same way); adds the envelope-power index (``sepsm``,
+        :func:`envpredict.envpower.sepsm`) of ``degraded`` and ``noise``.
 
     Valid range
     -----------
-    Alignment: one fixed delay for the whole pair, taken where the waveform
-    cross-correlation peaks; in a reverberant recording that can be a strong reflection
-    rather than the direct sound (a few tens of ms later), which is the shift at which
-    the envelopes agree best. Drifting clocks and time-varying delays are not corrected.
+    Alignment: one fixed delay for the whole pair. GCC-PHAT (Knapp & Carter 1976) peaks
+    at the direct sound where the plain waveform correlation often peaks on the
+    reverberation a few ms to tens of ms later; with strong early reflections and little
+    speech a single pair can still land on a reflection (``delay_confidence`` near 1):
+    a corpus should use one delay per processing condition (``envpredict batch`` does).
+    Drifting clocks and time-varying delays are not corrected.
     STOI/ESTOI: see :func:`envpredict.stoi`. Speech-based STI: additive noise,
     reverberation and linear filtering of natural speech of at least 3 s (better whole
     sentences); the NCM only sees envelope *fluctuations*, so a perfectly steady masker
@@ -611,7 +718,11 @@ def pair_indices(
     align = checks.flag(align, "align")
     c = _as_pair_source(clean, fs, "clean signal")
     d = _as_pair_source(degraded, fs if fs_degraded is None else fs_degraded, "degraded signal")
-    return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
+    res = _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
+                delay_method=delay_method, delay_s=delay_s)
+    if noise is None:
+        return res
+    return _with_sepsm(res, np.asarray(degraded), np.asarray(noise), d.fs, d.fs)
 
 
 def pair_from_files(
@@ -625,6 +736,10 @@ def pair_from_files(
     progress: Callable[[int, int], None] | None = None,
     clean_channel: int | None = None,
     degraded_channel: int | None = None,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+    delay_s: float | None = None,
+    noise_path: str | os.PathLike | None = None,
+    inverted_path: str | os.PathLike | None = None,
 ) -> PairResult:
     """:func:`pair_indices` of two audio files, read block by block (bounded memory).
 
@@ -632,6 +747,15 @@ def pair_from_files(
     only channel); a multi-channel file without a channel is refused. ``clean_channel``
     and ``degraded_channel`` select the channel of one file each (overriding
     ``channel``): the clean and degraded signals may be two channels of one file.
+    ``noise_path``: the noise alone as it is in the degraded file (same rate and length;
+    channel as the degraded one), for the envelope-power index (``sepsm``), which reads
+    the degraded file and the noise whole (at most
+    :data:`envpredict.envpower.MAX_SECONDS`).
+    ``inverted_path``: the processing's output for the speech with the noise's polarity
+    inverted (the degraded file being its output for speech + noise): the processed
+    speech and noise are separated by phase inversion (``separation``: output SNR per
+    octave band) and the derived noise feeds the envelope-power index. A file that is not
+    the counterpart (its derived noise holds speech) is refused.
 
     Raises
     ------
@@ -645,7 +769,149 @@ def pair_from_files(
     with (FileSource(clean_path, cc if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
           FileSource(degraded_path, dc if _channels(degraded_path, "degraded") > 1 else None,
                      name="degraded") as d):
-        return _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress)
+        if noise_path is not None and inverted_path is not None:
+            raise InputError("--noise and --inverted both give the processed noise", "give one of them")
+        for extra, what in ((noise_path, "noise"), (inverted_path, "inverted")):
+            if extra is not None:  # refuse a mismatched file before the (slower) pair work
+                _noise_info(extra, d, what)
+        res = _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
+                    delay_method=delay_method, delay_s=delay_s)
+        if inverted_path is not None:
+            with FileSource(inverted_path, dc if _channels(inverted_path, "inverted") > 1 else None,
+                            name="inverted") as inv:
+                return _separate(res, c, d.read(0, d.n), inv.read(0, inv.n), d.fs, inv.fs, max_delay_s)
+        if noise_path is None:
+            return res
+        with FileSource(noise_path, dc if _channels(noise_path, "noise") > 1 else None, name="noise") as nz:
+            return _with_sepsm(res, d.read(0, d.n), nz.read(0, nz.n), d.fs, nz.fs)
+
+
+def _noise_info(noise_path: str | os.PathLike, degraded: Source, what: str = "noise") -> None:
+    from .envpower import MAX_SECONDS
+
+    fs_n, n_n, _ = audio_info(noise_path, what)
+    if degraded.n > MAX_SECONDS * degraded.fs:
+        raise InputError(f"the degraded file is {degraded.n / degraded.fs:.0f} s long; the envelope-power index "
+                         f"analyses at most {MAX_SECONDS:g} s", "cut the files to the utterances of interest")
+    if fs_n != degraded.fs or n_n != degraded.n:
+        raise InputError(
+            f"the {what} file ({n_n} samples at {fs_n} Hz) does not match the degraded file "
+            f"({degraded.n} samples at {degraded.fs} Hz)",
+            "give the noise alone exactly as it is in the degraded file: same rate, same length, "
+            "processed the same way",
+        )
+
+
+def _with_sepsm(res: PairResult, degraded: np.ndarray, noise: np.ndarray, fs_d: int, fs_n: int) -> PairResult:
+    """The pair result with the envelope-power index of the degraded signal and its noise."""
+    import dataclasses
+
+    from .envpower import sepsm
+
+    if fs_n != fs_d or noise.size != degraded.size:
+        raise InputError(
+            f"the noise ({noise.size} samples at {fs_n} Hz) does not match the degraded signal "
+            f"({degraded.size} samples at {fs_d} Hz)",
+            "give the noise alone exactly as it is in the degraded signal: same rate, same length",
+        )
+    return dataclasses.replace(res, sepsm=sepsm(degraded, noise, fs_d))
+
+
+@dataclass(frozen=True)
+class Separation:
+    """Processed speech and processed noise separated by phase inversion.
+
+    Attributes
+    ----------
+    bands_hz : octave bands (125 Hz - 8 kHz); ``output_snr_db`` per band (NaN: band absent).
+    output_snr_db : band power of the processed speech over that of the processed noise, dB.
+    broadband_snr_db : the same over the whole band, dB.
+    speech_correlation, noise_correlation : peak normalised waveform correlation of the
+        derived speech and the derived noise with the clean signal (the counterpart check).
+    """
+
+    bands_hz: tuple[float, ...]
+    output_snr_db: np.ndarray
+    broadband_snr_db: float
+    speech_correlation: float
+    noise_correlation: float
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "method": "phase inversion (Hagerman & Olofsson 2004): speech = (a + b)/2, noise = (a - b)/2",
+            "bands_hz": self.bands_hz, "output_snr_db": np.round(self.output_snr_db, 2),
+            "broadband_snr_db": round(self.broadband_snr_db, 2),
+            "speech_correlation": round(self.speech_correlation, 4),
+            "noise_correlation": round(self.noise_correlation, 4),
+        })
+
+
+def phase_inversion_split(mixture: np.ndarray, inverted: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Processed speech and processed noise from the two processed mixtures.
+
+    ``mixture`` is the processing's output for speech + noise, ``inverted`` for
+    speech - noise (the noise's polarity inverted): their half sum is the processed
+    speech and their half difference the processed noise, exactly for linear processing
+    and to the extent the processing treats both alike otherwise.
+
+    References
+    ----------
+    B. Hagerman and Å. Olofsson, "A method to measure the effect of noise reduction
+    algorithms using simultaneous speech and noise", Acta Acustica united with Acustica
+    90, 356-361 (2004).
+    """
+    a = np.asarray(mixture, dtype=float)
+    b = np.asarray(inverted, dtype=float)
+    if a.shape != b.shape:
+        raise InputError(f"the inverted mixture ({b.size} samples) and the mixture ({a.size} samples) differ in "
+                         "length", "give the processing's outputs for speech+noise and speech-noise, sample for sample")
+    return 0.5 * (a + b), 0.5 * (a - b)
+
+
+def _band_powers(x: np.ndarray, fs: int) -> np.ndarray:
+    from .bands import octave_filterbank
+
+    bank = octave_filterbank(fs, beyond_nyquist="highpass")
+    return np.array([np.mean(bank.apply(x, k, zero_phase=False) ** 2) if bank.present[k] else np.nan
+                     for k in range(len(bank.bands_hz))])
+
+
+def _separate(res: PairResult, clean: Source, degraded: np.ndarray, inverted: np.ndarray,
+              fs_d: int, fs_i: int, max_delay_s: float) -> PairResult:
+    """The pair result with the phase-inversion separation and the envelope-power index of
+    the degraded signal and the derived noise."""
+    import dataclasses
+
+    from .envpower import sepsm
+
+    if fs_i != fs_d:
+        raise InputError(f"the inverted file is sampled at {fs_i} Hz, the degraded one at {fs_d} Hz",
+                         "give the processing's output for speech-noise at the rate of the degraded file")
+    speech, noise = phase_inversion_split(degraded, inverted)
+    if float(np.max(np.abs(noise))) < 1e-9 * max(1e-30, float(np.max(np.abs(degraded)))):
+        raise InputError("the inverted file equals the degraded one: the derived noise is silent",
+                         "give the processing's output for the speech with the noise's polarity inverted")
+    cl = clean.read(0, clean.n)
+    if fs_d != clean.fs:
+        from .audio import resample
+
+        speech_c, noise_c = resample(speech, fs_d, clean.fs), resample(noise, fs_d, clean.fs)
+    else:
+        speech_c, noise_c = speech, noise
+    rs = find_delay(cl, speech_c, clean.fs, max_delay_s).peak_correlation
+    rn = find_delay(cl, noise_c, clean.fs, max_delay_s).peak_correlation
+    if rn >= MIN_MATCH_CORRELATION and rn > INVERTED_SPEECH_SHARE * rs:
+        raise InputError(
+            f"the inverted file is not the phase-inverted counterpart of the degraded one: the derived noise "
+            f"correlates with the clean speech ({rn:.2f}, the derived speech {rs:.2f})",
+            "give the processing's output for the same speech with the noise's polarity inverted (speech - noise)",
+        )
+    ps, pn = _band_powers(speech, fs_d), _band_powers(noise, fs_d)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        snr = 10 * np.log10(ps / pn)
+        broad = 10 * math.log10(float(np.mean(speech ** 2)) / max(float(np.mean(noise ** 2)), 1e-30))
+    sep = Separation(std.OCTAVE_BANDS_HZ, snr, broad, rs, rn)
+    return dataclasses.replace(res, separation=sep, sepsm=sepsm(degraded, noise, fs_d))
 
 
 def _channels(path: str | os.PathLike, name: str) -> int:
@@ -673,3 +939,118 @@ def speech_sti(clean: np.ndarray, degraded: np.ndarray, fs: int) -> float | None
         raise ComputationError("; ".join(n for n in res.notes if "speech-based STI" in n),
                                "see the valid range in envpredict.pair_indices")
     return res.ssti
+
+
+# ---------------------------------------------------------------------------
+# One delay for several pairs (a processing condition of a corpus)
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class CommonDelay:
+    """One delay for a set of pairs, from their pooled delay curves.
+
+    Attributes
+    ----------
+    delay_ms : the pooled delay, ms (``None`` when no pair could be used).
+    confidence : the peak ratio of the summed curve (see :class:`envpredict.audio.DelayEstimate`).
+    method : the delay finder.
+    pooled : number of pairs in the pool.
+    own_delay_ms : each pair's own estimate, ms (``None`` where it could not be found).
+    errors : why a pair was left out ("" where it was used).
+    notes : what the user should know (pairs at another rate left out, weak pool).
+    """
+
+    delay_ms: float | None
+    confidence: float | None
+    method: str
+    pooled: int
+    own_delay_ms: tuple[float | None, ...]
+    errors: tuple[str, ...]
+    notes: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict:
+        return jsonable({"delay_ms": self.delay_ms, "confidence": self.confidence, "method": self.method,
+                         "pooled": self.pooled, "own_delay_ms": list(self.own_delay_ms),
+                         "errors": list(self.errors), "cautions": [], "notes": list(self.notes)})
+
+
+def pair_delay_curve(
+    clean_path: str | os.PathLike,
+    degraded_path: str | os.PathLike,
+    *,
+    channel: int | None = None,
+    max_delay_s: float = std.PAIR_MAX_DELAY_S,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+):
+    """The pair job's delay search on two files (the same excerpt, rate and checks as
+    :func:`pair_from_files`), with its curve: ``(DelayEstimate, DelayCurve)``.
+
+    Raises InputError when the files do not match (peak waveform correlation below
+    :data:`MIN_MATCH_CORRELATION`) or fail the input checks.
+    """
+    max_delay_s, _ = _check_options(max_delay_s, DEFAULT_CHUNK_S)
+    with (FileSource(clean_path, channel if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
+          FileSource(degraded_path, channel if _channels(degraded_path, "degraded") > 1 else None,
+                     name="degraded") as d):
+        fs = c.fs
+        deg = d if d.fs == fs else Resampled(d, fs)
+        stats = _scan(c)
+        _scan(d)
+        near = _loudest_excerpt_start(stats["energy_per_second"], c.n, fs)
+        est, curve = find_delay(c, deg, max_delay_s=max_delay_s, near=near, method=delay_method, curve=True)
+    if est.peak_correlation < MIN_MATCH_CORRELATION:
+        raise InputError(f"clean and degraded do not match: peak waveform correlation {est.peak_correlation:.3f}",
+                         "check that both hold the same utterance")
+    return est, curve
+
+
+def common_delay(
+    pairs: list[tuple[str | os.PathLike, str | os.PathLike, int | None]],
+    *,
+    max_delay_s: float = std.PAIR_MAX_DELAY_S,
+    delay_method: str = DEFAULT_DELAY_METHOD,
+) -> CommonDelay:
+    """One delay for several clean/degraded pairs (e.g. every item of one processing chain).
+
+    Each pair's delay curve (:func:`pair_delay_curve`) is computed and the curves are
+    added (:func:`envpredict.audio.pooled_delay`): a chain has one latency, and the path
+    every item shares (the direct sound) adds up while the reflections and noise peaks
+    of single items, which differ from item to item, do not. Pairs at another clean rate
+    than the most common one, and pairs that fail (missing file, no match), are left out
+    of the pool.
+
+    Parameters
+    ----------
+    pairs : ``(clean path, degraded path, channel)`` per item.
+    max_delay_s, delay_method : as for :func:`pair_from_files`.
+    """
+    from collections import Counter
+
+    from .audio import pooled_delay
+    from .exceptions import EnvpredictError
+
+    ests, curves, errors = [], [], []
+    for clean_path, degraded_path, channel in pairs:
+        try:
+            est, curve = pair_delay_curve(clean_path, degraded_path, channel=channel, max_delay_s=max_delay_s,
+                                          delay_method=delay_method)
+            ests.append(est)
+            curves.append(curve)
+            errors.append("")
+        except EnvpredictError as e:
+            ests.append(None)
+            curves.append(None)
+            errors.append(e.one_line())
+    notes: list[str] = []
+    usable = [c for c in curves if c is not None]
+    if not usable:
+        return CommonDelay(None, None, delay_method, 0, tuple(None for _ in pairs), tuple(errors),
+                           ("no pair could be used for the common delay",))
+    fs = Counter(c.fs for c in usable).most_common(1)[0][0]
+    pool = [c for c in usable if c.fs == fs]
+    if len(pool) < len(usable):
+        notes.append(f"{len(usable) - len(pool)} pair(s) at another rate than {fs} Hz left out of the common delay")
+    lag, conf = pooled_delay(pool)
+    own = tuple(None if e is None else e.delay_ms for e in ests)
+    return CommonDelay(lag / fs * 1000.0, conf, delay_method, len(pool), own, tuple(errors), tuple(notes))

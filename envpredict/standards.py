@@ -625,3 +625,47 @@ TAAL2011_MAPPINGS: dict[str, tuple[str, float, float, str]] = {
     "taal2011-ieee": ("stoi", -17.4906, 9.6921, "IEEE sentences, % words correct"),
     "taal2011-dantale": ("stoi", -14.5435, 7.0792, "Dantale II sentences, % words correct"),
 }
+
+
+# ---------------------------------------------------------------------------
+# Envelope-power index: the speech-based envelope power spectrum model (sEPSM)
+# Source: S. Jørgensen and T. Dau, "Predicting speech intelligibility based on the
+# signal-to-noise envelope power ratio after modulation-frequency selective processing",
+# J. Acoust. Soc. Am. 130(3), 1475-1487 (2011). Values marked "from memory" could not
+# be checked against the paper here; the parameters of the ideal observer are those of
+# its CLUE sentence material (from memory).
+# ---------------------------------------------------------------------------
+
+#: Centre frequencies of the gammatone filterbank, Hz: 22 filters at one-third-octave
+#: spacing from 63 Hz to 8 kHz (from memory), 4th order, ERB bandwidths (Glasberg & Moore
+#: 1990, as scipy.signal.gammatone designs them).
+SEPSM_BANDS_HZ: tuple[float, ...] = (63, 80, 100, 125, 160, 200, 250, 315, 400, 500, 630, 800, 1000, 1250,
+                                     1600, 2000, 2500, 3150, 4000, 5000, 6300, 8000)
+#: Modulation filterbank: a low-pass (3rd order) at 1 Hz and band-pass filters with Q = 1
+#: at 2, 4, ..., 64 Hz (octave spacing), Hz.
+SEPSM_MODULATION_LOWPASS_HZ: float = 1.0
+SEPSM_MODULATION_HZ: tuple[float, ...] = (1.0, 2.0, 4.0, 8.0, 16.0, 32.0, 64.0)
+SEPSM_MODULATION_Q: float = 1.0
+#: Low-pass of the Hilbert envelope, Hz (1st order; from memory, as in the EPSM of Ewert
+#: & Dau 2000).
+SEPSM_ENVELOPE_LOWPASS_HZ: float = 150.0
+#: Only modulation filters centred below this share of the audio band's centre frequency
+#: are used (from memory: one fourth).
+SEPSM_MODULATION_SHARE: float = 0.25
+#: Floor of the normalised envelope power (a share of the DC power; from memory: -20 dB,
+#: a modulation-detection limit).
+SEPSM_ENVELOPE_POWER_FLOOR: float = 0.01
+#: Smallest SNR_env of one band and filter (linear; from memory, -30 dB).
+SEPSM_SNR_ENV_MIN: float = 0.001
+#: Ideal observer (Green & Birdsall 1964 as used by Jørgensen & Dau 2011): d' = k SNR_env^q,
+#: m equally likely alternatives, response noise sigma_s. CLUE material: k = sqrt(1.2),
+#: q = 0.5, sigma_s = 0.6, m = 8000 (from memory; material-specific: fit k and sigma_s for other material).
+SEPSM_K: float = 1.2 ** 0.5
+SEPSM_Q: float = 0.5
+SEPSM_SIGMA_S: float = 0.6
+SEPSM_M: float = 8000.0
+#: Smallest meaningful difference of the STI: about 0.03, the just-noticeable difference
+#: reported in the STI literature (J. S. Bradley, "Predictors of speech intelligibility in
+#: rooms", JASA 80(3), 837-845 (1986); from memory). Shown beside comparisons of the STI
+#: family (sti, ssti, ssti_regression).
+STI_JND: float = 0.03

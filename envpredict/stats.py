@@ -23,11 +23,18 @@ table except the ``by`` column, the result columns written by ``envpredict batch
 other columns vary with the condition. Rows with an error or an empty index cell
 are left out. Each item may appear only once per condition.
 
+Beside each difference: the paired effect size d_z = mean(d)/sd(d) with its exact
+interval from the noncentral t distribution (``effect_size``, ``effect_ci_low``,
+``effect_ci_high``; Cumming & Finch 2001). :func:`compare_all_pairs` compares every pair
+of conditions with the same statistics, Holm-adjusted over all pairs.
+
 Sources: B. Efron, "Better bootstrap confidence intervals", JASA 82 (1987);
 B. Efron, R. J. Tibshirani, *An Introduction to the Bootstrap*, Chapman & Hall
 1993; F. Wilcoxon, "Individual comparisons by ranking methods", Biometrics
 Bulletin 1 (1945); S. Holm, "A simple sequentially rejective multiple test
-procedure", Scand. J. Statist. 6 (1979).
+procedure", Scand. J. Statist. 6 (1979); G. Cumming, S. Finch, "A primer on the
+understanding, use, and calculation of confidence intervals that are based on central
+and noncentral distributions", Educ. Psychol. Meas. 61(4) (2001).
 """
 
 from __future__ import annotations
@@ -90,6 +97,9 @@ def _bootstrap_options(confidence: float, n_resamples: int, seed: int, method: s
 #: Fewer matched items than this get a note that the interval and p-value are rough
 #: (judgement).
 FEW_ITEMS: int = 10
+#: Index columns of the STI family, whose comparisons show the smallest meaningful
+#: difference (:data:`envpredict.standards.STI_JND`).
+STI_FAMILY: tuple[str, ...] = ("sti", "ssti", "ssti_regression")
 #: Resampled values generated at once (memory bound of the bootstrap, judgement).
 _CHUNK_VALUES: int = 2_000_000
 
@@ -246,6 +256,58 @@ def wilcoxon_p(d: Sequence[float] | np.ndarray) -> float | None:
     return p if math.isfinite(p) else None
 
 
+def effect_size_dz(d: Sequence[float] | np.ndarray, confidence: float = CONFIDENCE) -> tuple[float | None, ...]:
+    """Paired effect size d_z = mean(d) / sd(d) (sd with n - 1) and its confidence interval.
+
+    The interval inverts the noncentral t distribution: t = d_z sqrt(n) has n - 1 degrees
+    of freedom and noncentrality delta sqrt(n); the ends are the deltas whose upper and
+    lower tails put t at the chosen confidence (Cumming & Finch 2001). ``(None, None,
+    None)`` for fewer than 2 differences or no spread.
+
+    Examples
+    --------
+    >>> dz, lo, hi = effect_size_dz([0.05, 0.02, 0.06, 0.03, 0.04, 0.01, 0.05, 0.05])
+    >>> round(dz, 3), round(lo, 3), round(hi, 3)
+    (2.244, 0.884, 3.568)
+    """
+    from scipy.optimize import brentq
+    from scipy.stats import nct
+
+    x = np.asarray(d, dtype=float).ravel()
+    n = x.size
+    if n < 2:
+        return None, None, None
+    sd = float(np.std(x, ddof=1))
+    if not sd > 0:
+        return None, None, None
+    dz = float(np.mean(x)) / sd
+    t = dz * math.sqrt(n)
+    df = n - 1
+    alpha = 1.0 - confidence
+
+    def cdf(nc: float) -> float:
+        v = float(nct.cdf(t, df, nc))
+        if not math.isfinite(v):  # far tails where scipy gives up: the limit
+            v = 1.0 if nc < t else 0.0
+        return v
+
+    def end(q: float) -> float:
+        # noncentrality at which P(T <= t) = q; the cdf falls as the noncentrality grows
+        step = 2.0 + 0.5 * abs(t)
+        lo, hi = t - step, t + step
+        for _ in range(200):
+            if cdf(lo) >= q:
+                break
+            lo -= step
+        for _ in range(200):
+            if cdf(hi) <= q:
+                break
+            hi += step
+        return brentq(lambda nc: cdf(nc) - q, lo, hi, xtol=1e-10)
+
+    return dz, end(1.0 - alpha / 2) / math.sqrt(n), end(alpha / 2) / math.sqrt(n)
+
+
 @dataclass(frozen=True)
 class ConditionStats:
     """One condition compared with the baseline.
@@ -268,12 +330,16 @@ class ConditionStats:
     p_value: float | None
     p_holm: float | None
     verdict: str
+    effect_size: float | None = None
+    effect_ci_low: float | None = None
+    effect_ci_high: float | None = None
 
     def to_dict(self) -> dict:
         return jsonable({
             "name": self.name, "n": self.n, "n_rows": self.n_rows, "mean": self.mean, "diff": self.diff,
             "ci_low": self.ci_low, "ci_high": self.ci_high, "p_value": self.p_value,
-            "p_holm": self.p_holm, "verdict": self.verdict,
+            "p_holm": self.p_holm, "verdict": self.verdict, "effect_size": self.effect_size,
+            "effect_ci_low": self.effect_ci_low, "effect_ci_high": self.effect_ci_high,
         })
 
 
@@ -315,6 +381,72 @@ def default_pair_on(columns: Sequence[str], by: str, index: str) -> tuple[str, .
         raise InputError("columns are not a list of names", "pass the table's header")
     skip = set(RESULT_COLUMNS) | {by, index, DEGRADED_COLUMN, IR_COLUMN}
     return tuple(c for c in columns if c not in skip)
+
+
+def _table_values(rows: Sequence[Mapping[str, Any]], *, by: str, index: str | None,
+                  pair_on: str | Sequence[str] | None, columns: Sequence[str] | None
+                  ) -> tuple[str, tuple[str, ...], dict[str, dict[tuple, float]], list[str], int]:
+    """The index values of a results table per condition and item (the checks of
+    :func:`compare_conditions`): ``(index, item keys, {condition: {item: value}},
+    conditions in order of appearance, rows left out)``."""
+    if not rows:
+        raise InputError("the results table has no rows", "score a manifest with 'envpredict batch' first")
+    cols = list(columns) if columns is not None else list(rows[0].keys())
+    if by not in cols:
+        raise InputError(f"column '{by}' (--by) is not in the results", f"use one of: {', '.join(cols)}")
+    if index is None:
+        found = [c for c in DEFAULT_INDICES if c in cols and any(cell_number(r.get(c)) is not None for r in rows)]
+        if not found:
+            raise InputError("no index column (sti or stoi) with values in the results",
+                             "name the column to compare with --index")
+        if len(found) > 1:
+            raise InputError(f"the results hold both {' and '.join(found)}",
+                             "choose the index to compare with --index")
+        index = found[0]
+    if index not in cols:
+        raise InputError(f"column '{index}' (--index) is not in the results", f"use one of: {', '.join(cols)}")
+    if index == by:
+        raise InputError(f"--index and --by are the same column '{by}'", "compare an index across conditions")
+    if not any(cell_number(r.get(index)) is not None for r in rows):
+        raise InputError(f"column '{index}' holds no numbers", "choose a numeric index column with --index")
+    if pair_on is None:
+        keys = default_pair_on(cols, by, index)
+    else:
+        if isinstance(pair_on, str):
+            keys = tuple(k.strip() for k in pair_on.split(",") if k.strip())
+        else:
+            keys = tuple(str(k) for k in pair_on)
+        for k in keys:
+            if k not in cols:
+                raise InputError(f"column '{k}' (--pair-on) is not in the results", f"use one of: {', '.join(cols)}")
+            if k in (by, index):
+                raise InputError(f"--pair-on column '{k}' is the --by or --index column",
+                                 "pair on the column(s) that identify an item, e.g. the clean file")
+    if not keys:
+        raise InputError("no column is left to identify items across conditions",
+                         "name the item column with --pair-on")
+
+    values: dict[str, dict[tuple, float]] = {}
+    order: list[str] = []
+    skipped = 0
+    for r in rows:
+        cond = str(r.get(by, "")).strip()
+        if cond not in values:
+            values[cond] = {}
+            order.append(cond)
+        v = cell_number(r.get(index))
+        if str(r.get(ERROR_COLUMN, "") or "").strip() or v is None:
+            skipped += 1
+            continue
+        key = tuple(str(r.get(k, "")) for k in keys)
+        if key in values[cond]:
+            raise InputError(
+                f"condition '{cond}' has more than one row for the item "
+                + ", ".join(f"{k}={val!r}" for k, val in zip(keys, key)),
+                "name the column(s) that identify one item with --pair-on",
+            )
+        values[cond][key] = v
+    return index, keys, values, order, skipped
 
 
 def compare_conditions(
@@ -374,63 +506,7 @@ def compare_conditions(
         that are not numbers, or bootstrap options out of range.
     """
     confidence, n_resamples, seed, ci_method = _bootstrap_options(confidence, n_resamples, seed, ci_method)
-    if not rows:
-        raise InputError("the results table has no rows", "score a manifest with 'envpredict batch' first")
-    cols = list(columns) if columns is not None else list(rows[0].keys())
-    if by not in cols:
-        raise InputError(f"column '{by}' (--by) is not in the results", f"use one of: {', '.join(cols)}")
-    if index is None:
-        found = [c for c in DEFAULT_INDICES if c in cols and any(cell_number(r.get(c)) is not None for r in rows)]
-        if not found:
-            raise InputError("no index column (sti or stoi) with values in the results",
-                             "name the column to compare with --index")
-        if len(found) > 1:
-            raise InputError(f"the results hold both {' and '.join(found)}",
-                             "choose the index to compare with --index")
-        index = found[0]
-    if index not in cols:
-        raise InputError(f"column '{index}' (--index) is not in the results", f"use one of: {', '.join(cols)}")
-    if index == by:
-        raise InputError(f"--index and --by are the same column '{by}'", "compare an index across conditions")
-    if not any(cell_number(r.get(index)) is not None for r in rows):
-        raise InputError(f"column '{index}' holds no numbers", "choose a numeric index column with --index")
-    if pair_on is None:
-        keys = default_pair_on(cols, by, index)
-    else:
-        if isinstance(pair_on, str):
-            keys = tuple(k.strip() for k in pair_on.split(",") if k.strip())
-        else:
-            keys = tuple(str(k) for k in pair_on)
-        for k in keys:
-            if k not in cols:
-                raise InputError(f"column '{k}' (--pair-on) is not in the results", f"use one of: {', '.join(cols)}")
-            if k in (by, index):
-                raise InputError(f"--pair-on column '{k}' is the --by or --index column",
-                                 "pair on the column(s) that identify an item, e.g. the clean file")
-    if not keys:
-        raise InputError("no column is left to identify items across conditions",
-                         "name the item column with --pair-on")
-
-    values: dict[str, dict[tuple, float]] = {}
-    order: list[str] = []
-    skipped = 0
-    for r in rows:
-        cond = str(r.get(by, "")).strip()
-        if cond not in values:
-            values[cond] = {}
-            order.append(cond)
-        v = cell_number(r.get(index))
-        if str(r.get(ERROR_COLUMN, "") or "").strip() or v is None:
-            skipped += 1
-            continue
-        key = tuple(str(r.get(k, "")) for k in keys)
-        if key in values[cond]:
-            raise InputError(
-                f"condition '{cond}' has more than one row for the item "
-                + ", ".join(f"{k}={val!r}" for k, val in zip(keys, key)),
-                "name the column(s) that identify one item with --pair-on",
-            )
-        values[cond][key] = v
+    index, keys, values, order, skipped = _table_values(rows, by=by, index=index, pair_on=pair_on, columns=columns)
     baseline = str(baseline).strip()
     if baseline not in values:
         raise InputError(f"baseline '{baseline}' is not a value of column '{by}'",
@@ -464,6 +540,7 @@ def compare_conditions(
             entry["ci_low"], entry["ci_high"] = bootstrap_mean_ci(
                 d, confidence=confidence, n_resamples=n_resamples, seed=seed, method=ci_method)
             entry["p_value"] = wilcoxon_p(d)
+            entry["effect_size"], entry["effect_ci_low"], entry["effect_ci_high"] = effect_size_dz(d, confidence)
             if d.size < FEW_ITEMS:
                 notes.append(f"'{cond}' has only {d.size} matched items: the interval and p-value are rough.")
         if len(common) < len(vals) or len(common) < len(base):
@@ -483,10 +560,131 @@ def compare_conditions(
         out.append(ConditionStats(p_holm=ph, verdict=verdict, **e))
     if len(out) > 2:
         notes.append("p_holm adjusts the p-values for comparing several conditions with one baseline (Holm).")
+    notes.extend(_jnd_note(index, [(c.name, c.diff) for c in out if c.verdict != "baseline"]))
     return Comparison(index=index, by=by, baseline=baseline, pair_on=keys, conditions=tuple(out),
                       ci_method="BCa" if ci_method.lower() == "bca" else "percentile",
                       n_resamples=int(n_resamples), seed=int(seed), confidence=float(confidence),
                       skipped_rows=skipped, notes=tuple(notes))
+
+
+@dataclass(frozen=True)
+class PairDifference:
+    """One pair of conditions: ``diff`` = mean over matched items of index(b) - index(a),
+    with the statistics of :class:`ConditionStats` (``p_holm`` adjusted over all pairs)."""
+
+    a: str
+    b: str
+    n: int
+    diff: float | None
+    ci_low: float | None
+    ci_high: float | None
+    p_value: float | None
+    p_holm: float | None
+    verdict: str
+    effect_size: float | None = None
+    effect_ci_low: float | None = None
+    effect_ci_high: float | None = None
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "a": self.a, "b": self.b, "n": self.n, "diff": self.diff, "ci_low": self.ci_low,
+            "ci_high": self.ci_high, "p_value": self.p_value, "p_holm": self.p_holm, "verdict": self.verdict,
+            "effect_size": self.effect_size, "effect_ci_low": self.effect_ci_low,
+            "effect_ci_high": self.effect_ci_high,
+        })
+
+
+@dataclass(frozen=True)
+class PairwiseComparison:
+    """Result of :func:`compare_all_pairs`."""
+
+    index: str
+    by: str
+    pair_on: tuple[str, ...]
+    pairs: tuple[PairDifference, ...]
+    ci_method: str = "BCa"
+    n_resamples: int = BOOTSTRAP_RESAMPLES
+    seed: int = BOOTSTRAP_SEED
+    confidence: float = CONFIDENCE
+    skipped_rows: int = 0
+    notes: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict:
+        return jsonable({
+            "index": self.index, "by": self.by, "pair_on": list(self.pair_on), "ci_method": self.ci_method,
+            "n_resamples": self.n_resamples, "seed": self.seed, "confidence": self.confidence, "alpha": ALPHA,
+            "skipped_rows": self.skipped_rows, "pairs": [p.to_dict() for p in self.pairs], "cautions": [],
+            "notes": list(self.notes),
+        })
+
+
+def _jnd_note(index: str, diffs: list[tuple[str, float | None]]) -> list[str]:
+    """For the STI family: the smallest meaningful difference and the differences below it."""
+    from . import standards as std
+
+    if index not in STI_FAMILY:
+        return []
+    small = [name for name, d in diffs if d is not None and abs(d) < std.STI_JND]
+    s = (f"smallest meaningful difference of the STI: about {std.STI_JND:g} (the just-noticeable difference, "
+         "Bradley 1986; from memory)")
+    return [s + (f"; below it: {', '.join(small)}" if small else "")]
+
+
+def compare_all_pairs(
+    rows: Sequence[Mapping[str, Any]],
+    *,
+    by: str,
+    index: str | None = None,
+    pair_on: str | Sequence[str] | None = None,
+    columns: Sequence[str] | None = None,
+    confidence: float = CONFIDENCE,
+    n_resamples: int = BOOTSTRAP_RESAMPLES,
+    seed: int = BOOTSTRAP_SEED,
+    ci_method: str = "BCa",
+) -> PairwiseComparison:
+    """Compare every pair of conditions of column ``by``, paired by item.
+
+    For conditions in order of first appearance, each pair (a, b) with a before b gets
+    the mean paired difference b - a over the items scored under both, its bootstrap
+    interval, the Wilcoxon signed-rank p-value, the paired effect size d_z with its
+    interval, and the p-value Holm-adjusted over *all* pairs (k conditions: k(k-1)/2
+    tests). Parameters as for :func:`compare_conditions`.
+    """
+    index, keys, values, order, skipped = _table_values(rows, by=by, index=index, pair_on=pair_on, columns=columns)
+    notes: list[str] = []
+    if skipped:
+        notes.append(f"{skipped} row(s) without a usable {index} value (error or empty cell) were left out.")
+    if len(order) < 2:
+        raise InputError(f"column '{by}' has only one condition", "compare at least two conditions")
+    raw = []
+    for i, a in enumerate(order):
+        for b in order[i + 1:]:
+            common = [k for k in values[b] if k in values[a]]
+            d = np.array([values[b][k] - values[a][k] for k in common], dtype=float)
+            e = dict(a=a, b=b, n=len(common), diff=float(np.mean(d)) if d.size else None, ci_low=None,
+                     ci_high=None, p_value=None)
+            if d.size >= 2:
+                e["ci_low"], e["ci_high"] = bootstrap_mean_ci(d, confidence=confidence, n_resamples=n_resamples,
+                                                              seed=seed, method=ci_method)
+                e["p_value"] = wilcoxon_p(d)
+                e["effect_size"], e["effect_ci_low"], e["effect_ci_high"] = effect_size_dz(d, confidence)
+            else:
+                notes.append(f"'{a}' and '{b}' share {d.size} item(s): no interval or test.")
+            raw.append(e)
+    adj = holm([e["p_value"] for e in raw])
+    pairs = []
+    for e, ph in zip(raw, adj):
+        if ph is not None and ph < ALPHA and e["ci_low"] is not None and (e["ci_low"] > 0 or e["ci_high"] < 0):
+            verdict = "b higher" if e["diff"] > 0 else "b lower"
+        else:
+            verdict = "no clear difference"
+        pairs.append(PairDifference(p_holm=ph, verdict=verdict, **e))
+    notes.append(f"p_holm adjusts the p-values for all {len(raw)} pairs of conditions (Holm).")
+    notes.extend(_jnd_note(index, [(f"{p.b} - {p.a}", p.diff) for p in pairs]))
+    return PairwiseComparison(index=index, by=by, pair_on=keys, pairs=tuple(pairs),
+                              ci_method="BCa" if ci_method.lower() == "bca" else "percentile",
+                              n_resamples=int(n_resamples), seed=int(seed), confidence=float(confidence),
+                              skipped_rows=skipped, notes=tuple(notes))
 
 
 def compare_conditions_file(
@@ -526,3 +724,11 @@ def compare_conditions_file(
     columns, rows = read_results(path)
     return compare_conditions(rows, by=by, baseline=baseline, index=index, pair_on=pair_on, columns=columns,
                               confidence=confidence, n_resamples=n_resamples, seed=seed, ci_method=ci_method)
+
+
+def compare_all_pairs_file(path: str | os.PathLike, **kwargs: Any) -> PairwiseComparison:
+    """:func:`compare_all_pairs` of a results file written by ``envpredict batch``."""
+    from .tables import read_results
+
+    columns, rows = read_results(path)
+    return compare_all_pairs(rows, columns=columns, **kwargs)

@@ -52,8 +52,12 @@ SPEECH_LEVEL_COLUMN = "speech_level"
 SPEECH_LEVELS_COLUMN = "speech_levels"
 CALIBRATION_COLUMN = "calibration_db"
 STI_TALKER_COLUMN = "sti_talker"
+#: Pair rows: the delay of the degraded file, ms, overriding the batch's choice for that
+#: row. In the results file the same column holds the delay used (the manifest's where
+#: given).
+DELAY_COLUMN = "delay_ms"
 OPTION_COLUMNS: tuple[str, ...] = (CHANNEL_COLUMN, NOISE_COLUMN, SPEECH_LEVEL_COLUMN, SPEECH_LEVELS_COLUMN,
-                                   CALIBRATION_COLUMN, STI_TALKER_COLUMN)
+                                   CALIBRATION_COLUMN, STI_TALKER_COLUMN, DELAY_COLUMN)
 
 #: Result columns added to the manifest's own.
 ROW_COLUMN = "row"
@@ -65,15 +69,23 @@ NOTES_COLUMN = "notes"
 IR_INDEX_COLUMNS: tuple[str, ...] = ("sti", "rating", "t30_mid", "edt_mid")
 #: STIPA rows: the STI (direct method) and its qualification band.
 STIPA_INDEX_COLUMNS: tuple[str, ...] = ("sti", "rating")
-#: Pair rows: STOI, ESTOI, speech-based STI and the delay of the degraded signal, ms.
-PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression", "delay_ms")
-#: Index columns holding numbers (all except the rating letter).
+#: Pair rows: STOI, ESTOI, speech-based STI, the delay of the degraded signal used, ms,
+#: how it was chosen (``condition``, ``row``, ``fixed``, ``manifest`` or ``off``) and the
+#: peak ratio of the estimate it came from (empty for a given delay).
+PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression", "delay_ms", "delay_from",
+                                       "delay_confidence")
+#: Index columns holding text, not numbers.
+TEXT_INDEX_COLUMNS: tuple[str, ...] = ("rating", "delay_from")
+#: Index columns holding numbers (all except the rating letter and the delay's origin).
 NUMERIC_INDEX_COLUMNS: tuple[str, ...] = tuple(
-    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS if c != "rating"
+    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS if c not in TEXT_INDEX_COLUMNS
 )
 RESULT_COLUMNS: frozenset[str] = frozenset(
     (ROW_COLUMN, NOTES_COLUMN, ERROR_COLUMN) + IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS
 )
+#: Result columns a manifest may hold as an option column (its cell, where given, is the
+#: value the row uses, and the results file shows the value used in that one column).
+MANIFEST_RESULT_COLUMNS: frozenset[str] = frozenset((DELAY_COLUMN,))
 
 #: Default columns of a scores table (number correct, number of trials) fitted by
 #: :func:`envpredict.mapping.fit_mapping_file`, and the predicted-score column that

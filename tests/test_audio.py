@@ -36,6 +36,7 @@ from envpredict.audio import (
     zero_lag_correlation,
 )
 from envpredict.exceptions import InputError
+from signals_for_tests import speech_like
 
 FS = 24000
 DEMO = Path(__file__).resolve().parents[1] / "demo_pairs"
@@ -450,6 +451,78 @@ def test_estimate_delay_reads_a_bounded_excerpt_near_the_loud_part():
     assert lag == 250 and corr > 0.99
     assert Counting.longest <= 5 * fs + 2 * fs // 2
     assert isinstance(Counting(ref, fs), Source)
+
+
+def _direct_and_loud_tail(x: np.ndarray, fs: int, direct: int, seed: int) -> np.ndarray:
+    """x through a channel of a direct sound (gain 1 at sample ``direct``) and a loud,
+    low-frequency reverberant tail from 4 ms after it: the tail holds far more energy
+    than the direct sound, so the plain waveform correlation peaks in the tail."""
+    from scipy.signal import butter, sosfilt
+
+    rng = np.random.default_rng(seed)
+    n_tail = int(0.4 * fs)
+    tail = sosfilt(butter(4, 400, fs=fs, output="sos"), rng.standard_normal(n_tail))
+    tail *= np.exp(-np.arange(n_tail) / (0.08 * fs)) * 2.0 / np.abs(tail).max()
+    h = np.zeros(direct + int(0.004 * fs) + n_tail)
+    h[direct] = 1.0
+    h[direct + int(0.004 * fs):] += tail
+    return np.convolve(x, h)[: x.size + h.size]
+
+
+def test_find_delay_gcc_phat_finds_the_direct_sound_where_the_waveform_peak_does_not():
+    # ground truth: the construction (direct sound at 96 samples = 6 ms). GCC-PHAT (Knapp &
+    # Carter 1976) whitens the cross-spectrum, so each path of the channel is a sharp peak
+    # at its own delay; the plain correlation piles the tail's energy up later
+    from envpredict.audio import find_delay
+
+    fs = 16000
+    x = speech_like(4.0, fs, seed=5)
+    y = _direct_and_loud_tail(x, fs, 96, seed=6)
+    wave = find_delay(x, y, fs, 0.5, method="waveform")
+    gcc = find_delay(x, y, fs, 0.5, method="gcc-phat")
+    assert abs(wave.lag - 96) > 16  # the failure this estimator is there for (> 1 ms off)
+    assert gcc.lag == 96 and gcc.method == "gcc-phat" and gcc.delay_ms == pytest.approx(6.0)
+    assert gcc.confidence > 1.5
+    # the match check is the waveform's peak, whichever method chose the lag
+    assert gcc.peak_correlation == pytest.approx(abs(wave.correlation), abs=1e-9)
+
+
+def test_find_delay_confidence_is_near_one_for_two_equal_paths():
+    from envpredict.audio import find_delay
+
+    fs = 16000
+    x = speech_like(4.0, fs, seed=7)
+    single = np.concatenate([np.zeros(50), x])
+    double = np.concatenate([np.zeros(50), x, np.zeros(100)]) + np.concatenate([np.zeros(150), x])
+    assert find_delay(x, single, fs, 0.1).confidence > 5
+    est = find_delay(x, double, fs, 0.1)
+    assert est.lag in (50, 150) and est.confidence < 1.2
+
+
+def test_pooled_delay_keeps_the_shared_path_and_drops_item_specific_ones():
+    # each item: the shared direct path at 80 samples (gain 1) and an item-specific
+    # reflection (gain 1.3, at another lag per item) that wins the item's own search
+    from envpredict.audio import find_delay, pooled_delay
+
+    fs = 16000
+    curves, own = [], []
+    for k, refl in enumerate((200, 260, 330)):
+        x = speech_like(3.0, fs, seed=20 + k)
+        y = np.concatenate([np.zeros(80), x, np.zeros(400)])
+        y[refl: refl + x.size] += 1.3 * x
+        est, curve = find_delay(x, y, fs, 0.05, curve=True)
+        own.append(est.lag)
+        curves.append(curve)
+    assert own == [200, 260, 330]
+    lag, conf = pooled_delay(curves)
+    assert lag == 80 and conf > 1.2
+
+
+def test_find_delay_refuses_an_unknown_method():
+    from envpredict.audio import find_delay
+
+    with pytest.raises(InputError, match="delay method"):
+        find_delay(np.ones(100), np.ones(100), 8000, 0.01, method="peak")
 
 
 # --- calibration ------------------------------------------------------------------

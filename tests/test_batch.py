@@ -76,7 +76,8 @@ def mixed_corpus(tmp_path_factory) -> dict:
         sf.write(d / f"c{i}.wav", clean, PAIR_FS, subtype="FLOAT")
         sf.write(d / f"d{i}.wav", deg, PAIR_FS, subtype="FLOAT")
         rows.append(["", f"c{i}.wav", f"d{i}.wav", f"codec{i % 2}"])
-    manifest = _write_csv(d / "manifest.csv", ["ir", "clean", "degraded", "condition"], rows)
+    # 'chain', not 'condition': the pairs have different delays, each its own estimate
+    manifest = _write_csv(d / "manifest.csv", ["ir", "clean", "degraded", "chain"], rows)
     ref = d / "reference.csv"
     s = run_batch(manifest, ref, workers=1)
     assert s.failed == 0
@@ -154,7 +155,8 @@ def test_pair_rows_score_stoi_estoi_ssti(tmp_path):
     s = run_batch(m, out, workers=1)
     assert (s.total, s.scored, s.failed) == (5, 5, 1)
     cols, res = read_results(out)
-    assert cols[-7:] == ("stoi", "estoi", "ssti", "ssti_regression", "delay_ms", "notes", "error")
+    assert cols[-9:] == ("stoi", "estoi", "ssti", "ssti_regression", "delay_ms", "delay_from", "delay_confidence",
+                         "notes", "error")
     for r in res[:4]:
         assert not r["error"]
         clean, deg = sigs[r["degraded"]]
@@ -175,8 +177,9 @@ def test_pair_rows_score_stoi_estoi_ssti(tmp_path):
 
 def test_mixed_manifest_reference(mixed_corpus):
     cols, rows = read_results(mixed_corpus["reference"])
-    assert cols == ("row", "ir", "clean", "degraded", "condition", "sti", "rating", "t30_mid", "edt_mid",
-                    "stoi", "estoi", "ssti", "ssti_regression", "delay_ms", "notes", "error")
+    assert cols == ("row", "ir", "clean", "degraded", "chain", "sti", "rating", "t30_mid", "edt_mid",
+                    "stoi", "estoi", "ssti", "ssti_regression", "delay_ms", "delay_from", "delay_confidence",
+                    "notes", "error")
     for r in rows[:6]:
         assert r["sti"] and r["t30_mid"] and not r["stoi"]
     for i, r in enumerate(rows[6:]):
@@ -714,3 +717,95 @@ def test_a_dask_cluster_that_loses_its_only_worker_stops_instead_of_waiting_for_
     s = run_batch(long_ir_manifest["manifest"], out, workers=1, resume=True)
     assert (s.skipped, s.scored, s.failed) == (kept, long_ir_manifest["rows"] - kept, 0)
     _numeric_equal(out, long_ir_manifest["reference"])
+
+
+# ---------------------------------------------------------------------------
+# Alignment of pair rows
+# ---------------------------------------------------------------------------
+
+DEMO = Path(__file__).resolve().parents[1] / "demo_pairs"
+
+
+def test_demo_corpus_every_row_gets_the_generators_direct_sound_delay():
+    # tools/make_demo.py puts the hall's direct sound at 12 ms (d0 = 0.012 fs) and its
+    # chains add no latency; the waveform peak put rows at 17.6-145 ms
+    m = read_manifest(DEMO / "corpus.csv")
+    jobs, notes = batch.plan_delays(m, m.jobs)
+    assert len(jobs) == 24
+    for j in jobs:
+        assert j["delay_from"] == "condition"
+        assert j["delay_ms"] == pytest.approx(12.0, abs=0.5)
+    assert len(notes) == 3 and all("12.00 ms" in n for n in notes)
+
+
+@pytest.fixture(scope="module")
+def delayed_pairs(tmp_path_factory) -> dict:
+    """Four pairs of condition A whose degraded files are 5 ms late (80 samples)."""
+    d = tmp_path_factory.mktemp("delayed_pairs")
+    rng = np.random.default_rng(21)
+    n = int(PAIR_SECONDS * PAIR_FS)
+    for i in range(4):
+        clean = two_rate_modulated_noise(rng, n, PAIR_FS)
+        deg = np.concatenate([np.zeros(80), clean[: n - 80]]) + 0.05 * rng.standard_normal(n)
+        sf.write(d / f"c{i}.wav", clean, PAIR_FS, subtype="FLOAT")
+        sf.write(d / f"d{i}.wav", deg, PAIR_FS, subtype="FLOAT")
+    return {"dir": d}
+
+
+def _delay_manifest(d: Path, delays: list[str]) -> Path:
+    rows = [[f"c{i}.wav", f"d{i}.wav", "A", f"u{i}", v] for i, v in enumerate(delays)]
+    return _write_csv(d / "m.csv", ["clean", "degraded", "condition", "item", "delay_ms"], rows)
+
+
+def test_batch_alignment_choices_are_recorded_per_row(delayed_pairs, tmp_path):
+    d = delayed_pairs["dir"]
+    m = _delay_manifest(d, ["", "20", "", "5"])
+    out = tmp_path / "r.csv"
+    s = run_batch(m, out, workers=1)
+    assert s.failed == 0 and any("one delay of 5.00 ms for its 2 pair(s)" in n for n in s.notes)
+    cols, rows = read_results(out)
+    assert cols.count("delay_ms") == 1 and cols.index("delay_ms") == 5  # the manifest's own column
+    assert [r["delay_from"] for r in rows] == ["condition", "manifest", "condition", "manifest"]
+    assert [float(r["delay_ms"]) for r in rows] == [5.0, 20.0, 5.0, 5.0]
+    assert rows[1]["delay_ms"] == "20"  # the manifest's cell, as written
+    # the row given 20 ms disagrees with its own estimate (5 ms) by more than 1 ms
+    assert "own delay estimate (5.00 ms" in rows[1]["notes"]
+    assert "own delay estimate" not in rows[0]["notes"]
+    assert float(rows[0]["delay_confidence"]) > 1 and rows[1]["delay_confidence"] == ""
+    # misaligned by 15 ms, the envelopes still match, but less
+    assert float(rows[1]["stoi"]) < float(rows[0]["stoi"])
+    # resume accepts its own file (the delay column filled where the manifest's cell is empty)
+    s2 = run_batch(m, out, workers=1, resume=True)
+    assert (s2.skipped, s2.scored) == (4, 0)
+
+
+def test_batch_fixed_per_row_and_no_align(delayed_pairs, tmp_path):
+    d = delayed_pairs["dir"]
+    m = _delay_manifest(d, ["", "", "", ""])
+    for alignment, origin, value in ((batch.Alignment(fixed_delay_ms=5.0), "fixed", 5.0),
+                                     (batch.Alignment(per_row=True), "row", 5.0),
+                                     (batch.Alignment(align=False), "off", 0.0)):
+        out = tmp_path / f"{origin}.csv"
+        assert run_batch(m, out, workers=1, alignment=alignment).failed == 0
+        _, rows = read_results(out)
+        assert {r["delay_from"] for r in rows} == {origin}
+        assert all(float(r["delay_ms"]) == value for r in rows)
+
+
+def test_batch_alignment_bad_input(delayed_pairs, tmp_path):
+    d = delayed_pairs["dir"]
+    with pytest.raises(InputError, match=r"row 2 .*column 'delay_ms'.*'abc' is not a number"):
+        read_manifest(_delay_manifest(d, ["", "abc", "", ""]))
+    m = read_manifest(_delay_manifest(d, ["", "", "", ""]))
+    with pytest.raises(InputError, match="contradict"):
+        batch.Alignment(per_row=True, fixed_delay_ms=3.0).check(m)
+    with pytest.raises(InputError, match="no column 'chain'"):
+        batch.Alignment(condition_column="chain").check(m)
+    # a delay beyond the file is that row's error; the batch goes on
+    out = tmp_path / "r.csv"
+    s = run_batch(_delay_manifest(d, ["99999", "", "", ""]), out, workers=1)
+    _, rows = read_results(out)
+    assert s.failed == 1 and "longer than the files" in rows[0]["error"] and not rows[1]["error"]
+    code = cli_exit_code(["batch", str(d / "m.csv"), "--out", str(tmp_path / "c.csv"), "--delay-per-row",
+                          "--delay-ms", "4"])
+    assert code == 2

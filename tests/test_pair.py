@@ -410,3 +410,77 @@ def test_clean_and_degraded_as_two_channels_of_one_file(tmp_path, capsys):
         assert two[k] == mono[k], k
     code, out, _ = run_cli(["pair", both, both, "--channel", "0", "--json"], capsys)
     assert json.loads(out)["stoi"] > 0.99 > mono["stoi"]  # one channel against itself
+
+
+# ---------------------------------------------------------------------------
+# The envelope-power index in the pair job (--noise)
+# ---------------------------------------------------------------------------
+
+
+def test_pair_noise_adds_the_envelope_power_index(tmp_path, capsys):
+    import envpredict
+
+    fs = 16000
+    x = speech_like(4.0, fs, seed=4)
+    noise = at_snr(x, speech_shaped_noise(x, 5), 0.0) - x
+    deg = np.concatenate([np.zeros(48), (x + noise)[:-48]])  # 3 ms late
+    nz = np.concatenate([np.zeros(48), noise[:-48]])
+    for name, sig in (("c.wav", x), ("d.wav", deg), ("n.wav", nz), ("short.wav", nz[:-100])):
+        sf.write(tmp_path / name, sig, fs, subtype="FLOAT")
+    code, out, _ = run_cli(["pair", str(tmp_path / "c.wav"), str(tmp_path / "d.wav"), "--noise",
+                            str(tmp_path / "n.wav"), "--json"], capsys)
+    assert code == 0
+    d = json.loads(out)
+    direct = envpredict.sepsm(deg, nz, fs)  # the API on the same signals
+    assert d["sepsm"]["snr_env_db"] == pytest.approx(round(direct.snr_env_db, 3), abs=1e-9)
+    assert d["inputs"]["noise"].endswith("n.wav") and d["alignment"]["delay_ms"] == pytest.approx(3.0)
+    r = pair_indices(x, deg, fs, noise=nz)
+    assert r.sepsm is not None and r.sepsm.snr_env_db == pytest.approx(direct.snr_env_db)
+    code, _, err = run_cli(["pair", str(tmp_path / "c.wav"), str(tmp_path / "d.wav"), "--noise",
+                            str(tmp_path / "short.wav")], capsys)
+    assert code == 2 and "does not match the degraded file" in err and "Traceback" not in err
+
+
+# ---------------------------------------------------------------------------
+# Phase inversion (Hagerman & Olofsson 2004): --inverted
+# ---------------------------------------------------------------------------
+
+
+def test_pair_inverted_separates_processed_speech_and_noise(tmp_path, capsys):
+    # a linear chain (a low-pass and a 2 ms delay) processes speech + noise and speech - noise;
+    # half their sum is the processed speech and half their difference the processed noise,
+    # exactly (linearity), so the output SNR is that of the chain's outputs for each alone
+    import envpredict
+    from envpredict.pair import phase_inversion_split
+
+    fs = 16000
+    x = speech_like(4.0, fs, seed=8)
+    n = at_snr(x, speech_shaped_noise(x, 9), 3.0) - x
+    sos = butter(4, 3000, fs=fs, output="sos")
+
+    def chain(v):
+        return np.concatenate([np.zeros(32), sosfilt(sos, v)[:-32]])
+
+    a, b = chain(x + n), chain(x - n)
+    s_, n_ = phase_inversion_split(a, b)
+    assert np.max(np.abs(s_ - chain(x))) < 1e-12 and np.max(np.abs(n_ - chain(n))) < 1e-12
+    for name, sig in (("c.wav", x), ("a.wav", a), ("b.wav", b), ("half.wav", 0.5 * a)):
+        sf.write(tmp_path / name, sig, fs, subtype="DOUBLE")
+    code, out, _ = run_cli(["pair", str(tmp_path / "c.wav"), str(tmp_path / "a.wav"), "--inverted",
+                            str(tmp_path / "b.wav"), "--json"], capsys)
+    assert code == 0
+    d = json.loads(out)
+    sep = d["separation"]
+    direct = 10 * np.log10(np.mean(chain(x) ** 2) / np.mean(chain(n) ** 2))
+    assert sep["broadband_snr_db"] == pytest.approx(direct, abs=0.01)
+    assert sep["noise_correlation"] < 0.1 < sep["speech_correlation"]
+    assert d["sepsm"]["snr_env_db"] == pytest.approx(envpredict.sepsm(a, chain(n), fs).snr_env_db, abs=1e-3)
+    assert len(sep["output_snr_db"]) == 7 and sep["bands_hz"][0] == 125
+    # not the counterpart: half the mixture leaves speech in the difference; the same file none
+    for other, msg in (("half.wav", "not the phase-inverted counterpart"), ("a.wav", "derived noise is silent")):
+        code, _, err = run_cli(["pair", str(tmp_path / "c.wav"), str(tmp_path / "a.wav"), "--inverted",
+                                str(tmp_path / other)], capsys)
+        assert code == 2 and msg in err and "Traceback" not in err
+    with pytest.raises(InputError, match="give one of them"):
+        pair_from_files(tmp_path / "c.wav", tmp_path / "a.wav", noise_path=tmp_path / "b.wav",
+                        inverted_path=tmp_path / "b.wav")

@@ -18,7 +18,7 @@ from scipy import stats as sps
 from envpredict.exceptions import InputError
 from envpredict.stats import BOOTSTRAP_RESAMPLES, bootstrap_mean_ci, compare_conditions, holm, wilcoxon_p
 
-from cli_for_tests import cli_exit_code
+from cli_for_tests import cli_exit_code, run_cli
 
 
 def _scipy_ci(d, method, n_resamples, seed):
@@ -277,3 +277,69 @@ def test_docstring_examples():
 
     failed, attempted = doctest.testmod(envpredict.stats, optionflags=doctest.ELLIPSIS)
     assert attempted >= 5 and failed == 0
+
+
+# ---------------------------------------------------------------------------
+# Effect size, all pairs, several indices
+# ---------------------------------------------------------------------------
+
+
+def test_effect_size_dz_interval_covers_the_true_effect_at_its_level():
+    # the interval's definition, checked by simulation: normal differences with a known
+    # d_z = 0.5, n = 12; a 95 % interval should cover 0.5 in about 95 % of samples
+    from envpredict.stats import effect_size_dz
+
+    rng = np.random.default_rng(3)
+    hits, runs = 0, 600
+    for _ in range(runs):
+        d = rng.normal(0.5, 1.0, 12)
+        dz, lo, hi = effect_size_dz(d)
+        assert dz == pytest.approx(np.mean(d) / np.std(d, ddof=1))
+        hits += lo <= 0.5 <= hi
+    assert 0.925 <= hits / runs <= 0.975  # binomial sd 0.009 at 600 runs
+    assert effect_size_dz([0.1]) == (None, None, None) and effect_size_dz([0.2, 0.2]) == (None, None, None)
+
+
+def test_compare_all_pairs_matches_scipy_and_statsmodels():
+    from scipy import stats
+    from statsmodels.stats.multitest import multipletests
+
+    from envpredict.stats import compare_all_pairs
+
+    rows = _table()
+    res = compare_all_pairs(rows, by="condition")
+    conds = ["unprocessed", "denoiser-a", "denoiser-b"]
+    order = [r["condition"] for r in rows]
+    conds.sort(key=order.index)
+    want_p = []
+    for p, (a, b) in zip(res.pairs, [(a, b) for i, a in enumerate(conds) for b in conds[i + 1:]]):
+        assert (p.a, p.b) == (a, b)
+        xb, xa = _paired(rows, b, base=a)
+        assert p.diff == pytest.approx(np.mean(xb - xa), abs=1e-12)
+        assert p.p_value == pytest.approx(stats.wilcoxon(xb - xa).pvalue, rel=1e-9)
+        want_p.append(p.p_value)
+    assert [p.p_holm for p in res.pairs] == pytest.approx(list(multipletests(want_p, method="holm")[1]))
+    d = res.to_dict()
+    assert d["index"] == "stoi" and len(d["pairs"]) == 3 and "effect_ci_low" in d["pairs"][0]
+
+
+def test_cli_compare_several_indices_and_all_pairs(tmp_path, capsys):
+    rows = _table()
+    for r in rows:
+        r["estoi"] = repr(float(r["stoi"]) - 0.2)
+    path = tmp_path / "r.csv"
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        w = csv.DictWriter(fh, fieldnames=list(rows[0]))
+        w.writeheader()
+        w.writerows(rows)
+    code, out, _ = run_cli(["compare", path, "--by", "condition", "--baseline", "unprocessed", "--pair-on", "clean",
+                            "--index", "stoi,estoi", "--all-pairs", "--json"], capsys)
+    assert code == 0
+    d = json.loads(out)
+    assert d["index"] == ["stoi", "estoi"] and len(d["comparisons"]) == 2 and len(d["pairwise"]) == 2
+    # estoi = stoi - 0.2 on every row: the same paired differences
+    a, b = d["comparisons"]
+    assert [c["diff"] for c in a["conditions"]] == pytest.approx([c["diff"] for c in b["conditions"]])
+    code, _, err = run_cli(["compare", path, "--by", "condition", "--baseline", "unprocessed", "--index",
+                            "stoi,estoi", "--report", tmp_path / "rep"], capsys)
+    assert code == 2 and "one index" in err

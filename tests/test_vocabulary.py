@@ -94,6 +94,11 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         return envpredict.compare_conditions(rows, by="condition", baseline="a", index="stoi", pair_on="item",
                                              n_resamples=200)
 
+    def pairwise():
+        rows = [{"condition": c, "item": str(i), "stoi": f"{0.6 + 0.01 * i - 0.05 * (c == 'b') + 0.001 * (i % 3):.3f}"}
+                for i in range(6) for c in ("a", "b", "c")]
+        return envpredict.compare_all_pairs(rows, by="condition", index="stoi", pair_on="item", n_resamples=200)
+
     def stipa():
         x = envpredict.stipa_signal(15.0, 44100, seed=1)
         return envpredict.stipa_from_recording(x, 44100)
@@ -111,6 +116,18 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         rec = 0.5 * rec / np.max(np.abs(rec)) + 1e-5 * np.random.default_rng(6).standard_normal(rec.size)
         return envpredict.deconvolve_sweep(rec, 32000, played, 32000, sweep_spec())
 
+    def common_delay():
+        import soundfile as sf
+
+        from envpredict.pair import common_delay as pooled
+
+        def write(d):
+            sf.write(d / "c.wav", clean, fs, subtype="FLOAT")
+            sf.write(d / "d.wav", np.concatenate([np.zeros(40), degraded]), fs, subtype="FLOAT")
+            return pooled([(d / "c.wav", d / "d.wav", None), (d / "c.wav", d / "missing.wav", None)])
+        return _in_tmp(write)
+
+    from envpredict.audio import find_delay
     from envpredict.bands import octave_bands
     from envpredict.refcases import run_cases
 
@@ -126,6 +143,7 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
                                                     * 0.05, fs, snr_db=[-6, 0], n_segments=2),
         "ScoreMapping": mapping,
         "Comparison": comparison,
+        "PairwiseComparison": pairwise,
         "BatchSummary": lambda: batch_summary,
         "PredictedTable": predicted,
         "F0Track": lambda: envpredict.yin_f0(clean, fs),
@@ -144,6 +162,9 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "ActiveLevel": lambda: envpredict.active_speech_level(clean, fs),
         "StimuliResult": lambda: _in_tmp(lambda d: envpredict.write_stimuli(
             d / "st", clean, np.random.default_rng(3).standard_normal(2 * clean.size) * 0.05, fs, [-3, 3])),
+        "DelayEstimate": lambda: find_delay(clean, degraded, fs, 0.1),
+        "SepsmResult": lambda: envpredict.sepsm(degraded, degraded - clean, fs),
+        "CommonDelay": common_delay,
     }
 
 
@@ -173,7 +194,7 @@ def _result_types() -> dict[str, type]:
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
          "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec", "DesignListener",
-         "DesignGrid", "Stimulus"}
+         "DesignGrid", "Stimulus", "Separation", "PairDifference"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):

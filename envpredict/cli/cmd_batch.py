@@ -27,6 +27,12 @@ NOISE_HELP = ("Default background noise for IR rows with an empty 'noise' cell: 
               "dB SPL, 125 Hz to 8 kHz, comma-separated. Default: no noise.")
 LEVEL_HELP = f"Default A-weighted speech level for IR rows, dB(A) (default {std.DEFAULT_SPEECH_LEVEL_DBA:g})."
 TALKER_HELP = "Default speech spectrum for IR rows: male or female (IEC 60268-16)."
+NO_ALIGN_HELP = "Pair rows: no delay search, compare sample by sample (a 'delay_ms' cell still applies)."
+MAX_DELAY_HELP = "Pair rows: largest delay searched, seconds."
+CONDITION_HELP = ("Pair rows: the column naming the processing condition; its items get one delay, pooled over "
+                  "all of them (default: the column 'condition' if there is one).")
+PER_ROW_HELP = "Pair rows: each row its own delay estimate (as 'envpredict pair') instead of one per condition."
+DELAY_MS_HELP = "Pair rows: one fixed delay of the degraded files, ms (a 'delay_ms' cell overrides it per row)."
 
 
 #: Seconds between plain progress lines when stderr is not a terminal (a long batch
@@ -46,6 +52,10 @@ def render_summary(d: dict) -> str:
         lines.append("")
         lines.append("Failed rows (the 'error' column of the results has all of them):")
         lines.extend(f"  row {f['row']}: {f['error']}" for f in d["failures"])
+    if d.get("notes"):
+        lines.append("")
+        lines.append("Alignment:")
+        lines.extend(f"  - {n}" for n in d["notes"])
     lines.append("")
     lines.append(f"Results: {d['inputs']['out']}")
     if d.get("cautions"):
@@ -67,6 +77,11 @@ def batch_command(
     noise: Optional[str] = typer.Option(None, "--noise", help=NOISE_HELP),
     speech_level: float = typer.Option(std.DEFAULT_SPEECH_LEVEL_DBA, "--speech-level", help=LEVEL_HELP),
     talker: str = typer.Option(std.DEFAULT_TALKER, "--talker", help=TALKER_HELP, metavar="[male|female]"),
+    no_align: bool = typer.Option(False, "--no-align", help=NO_ALIGN_HELP),
+    max_delay: float = typer.Option(std.PAIR_MAX_DELAY_S, "--max-delay", help=MAX_DELAY_HELP),
+    condition_column: Optional[str] = typer.Option(None, "--condition-column", help=CONDITION_HELP),
+    delay_per_row: bool = typer.Option(False, "--delay-per-row", help=PER_ROW_HELP),
+    delay_ms: Optional[float] = typer.Option(None, "--delay-ms", help=DELAY_MS_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
 ) -> None:
     """Score every row of a manifest (STOI/ESTOI/speech-based STI for pairs, STI and T30/EDT for IRs).
@@ -77,9 +92,11 @@ def batch_command(
     the batch completes it is rewritten (atomically) in manifest order. Progress goes
     to stderr; with --json the summary is one JSON object on stdout.
     """
-    from envpredict.batch import read_manifest, run_batch
+    from envpredict.batch import Alignment, read_manifest, run_batch
 
     m = read_manifest(manifest, noise_db=noise, speech_level_dba=speech_level, talker=talker)
+    alignment = Alignment(align=not no_align, max_delay_s=max_delay, condition_column=condition_column,
+                          per_row=delay_per_row, fixed_delay_ms=delay_ms).check(m)
     if scheduler is not None and workers is not None:
         note("note: --workers is ignored with --scheduler (the cluster's workers score the rows)")
 
@@ -95,7 +112,7 @@ def batch_command(
 
     try:
         summary = run_batch(m, out, workers=workers, scheduler=scheduler, resume=resume, overwrite=overwrite,
-                            retry_failed=retry_failed, progress=progress)
+                            retry_failed=retry_failed, progress=progress, alignment=alignment)
     except KeyboardInterrupt:
         if out.exists():
             note(f"the finished rows are saved in {out}; finish with: envpredict batch {manifest} --out {out} "
@@ -107,7 +124,9 @@ def batch_command(
     d = summary.to_dict()
     d["inputs"] = {"manifest": str(manifest), "out": str(out), "workers": workers, "scheduler": scheduler,
                    "resume": resume, "retry_failed": retry_failed, "overwrite": overwrite, "noise": noise,
-                   "speech_level_dba": speech_level, "talker": talker}
+                   "speech_level_dba": speech_level, "talker": talker, "align": not no_align,
+                   "max_delay_s": max_delay, "condition_column": condition_column, "delay_per_row": delay_per_row,
+                   "delay_ms": delay_ms}
     emit(d, lambda: render_summary(d), as_json, None)
     if summary.failed:
         note(f"error: {summary.failed} of {summary.total} rows failed — see the 'error' column of {out}; "
@@ -125,6 +144,35 @@ def _p(v) -> str:
     return "<0.0001" if v < 1e-4 else f"{v:.4f}"
 
 
+def _effect(c: dict) -> str:
+    if c.get("effect_size") is None:
+        return "—"
+    return f"{c['effect_size']:+.2f} [{c['effect_ci_low']:+.2f}, {c['effect_ci_high']:+.2f}]"
+
+
+def render_pairwise(d: dict) -> str:
+    """Readable text for an all-pairs comparison dictionary."""
+    lines = [f"Index: {d['index']}   all pairs of conditions in column '{d['by']}'   diff = b - a", ""]
+    rows = []
+    for c in d["pairs"]:
+        ci = "—" if c["ci_low"] is None else f"[{c['ci_low']:+.3f}, {c['ci_high']:+.3f}]"
+        rows.append([c["a"], c["b"], str(c["n"]), _signed(c["diff"]), ci, _p(c["p_value"]), _p(c["p_holm"]),
+                     c["verdict"], _effect(c)])
+    lines.append(table(rows, ["a", "b", "n", "diff", "95 % CI" if d["confidence"] == 0.95 else "CI", "p",
+                              "p (Holm)", "verdict", "d_z [CI]"]))
+    if d["notes"]:
+        lines.append("")
+        lines.append("Notes:")
+        lines.extend(f"  - {n}" for n in d["notes"])
+    return "\n".join(lines)
+
+
+def render_comparisons(d: dict) -> str:
+    """Readable text for several indices and/or all pairs."""
+    parts = [render_comparison(c) for c in d["comparisons"]] + [render_pairwise(p) for p in d["pairwise"]]
+    return "\n\n".join(parts)
+
+
 def render_comparison(d: dict) -> str:
     lines = [
         f"Index: {d['index']}   conditions: column '{d['by']}'   baseline: {d['baseline']}",
@@ -139,9 +187,9 @@ def render_comparison(d: dict) -> str:
         base = c["verdict"] == "baseline"
         ci = "—" if c["ci_low"] is None else f"[{c['ci_low']:+.3f}, {c['ci_high']:+.3f}]"
         rows.append([c["name"], str(c["n"]), fmt(c["mean"], ".3f"), "—" if base else _signed(c["diff"]), ci,
-                     _p(c["p_value"]), _p(c["p_holm"]), c["verdict"]])
+                     _p(c["p_value"]), _p(c["p_holm"]), c["verdict"], _effect(c)])
     lines.append(table(rows, ["condition", "n", "mean", "diff", "95 % CI" if d["confidence"] == 0.95 else "CI",
-                              "p", "p (Holm)", "verdict"]))
+                              "p", "p (Holm)", "verdict", "d_z [CI]"]))
     if d["notes"]:
         lines.append("")
         lines.append("Notes:")
@@ -156,7 +204,10 @@ def compare_command(
     baseline: str = typer.Option(..., "--baseline", help="The condition the others are compared with.",
                                  show_default=False),
     index: Optional[str] = typer.Option(None, "--index",
-                                        help="Numeric column to compare (default: sti or stoi)."),
+                                        help="Numeric column(s) to compare, comma-separated, e.g. stoi,estoi,ssti "
+                                             "(default: sti or stoi)."),
+    all_pairs: bool = typer.Option(False, "--all-pairs", help="Also compare every pair of conditions "
+                                   "(Holm-adjusted over all pairs)."),
     pair_on: Optional[str] = typer.Option(
         None, "--pair-on",
         help=("Column(s) identifying an item across conditions, comma-separated (default: every column "
@@ -166,14 +217,30 @@ def compare_command(
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
 ) -> None:
-    """Per condition: mean index, paired difference to the baseline, bootstrap 95 % CI, Wilcoxon p."""
-    from envpredict.stats import compare_conditions_file
+    """Per condition: mean index, paired difference to the baseline, bootstrap 95 % CI, Wilcoxon p, effect size."""
+    from envpredict.exceptions import InputError
+    from envpredict.stats import compare_all_pairs_file, compare_conditions_file
 
+    indices = [None] if index is None else [i.strip() for i in index.split(",") if i.strip()]
+    if not indices:
+        raise InputError("--index is empty", "name a numeric column, e.g. stoi, or several: stoi,estoi")
+    if report is not None and (len(indices) > 1 or all_pairs):
+        raise InputError("--report draws one index against its baseline",
+                         "give one --index without --all-pairs for a report")
     check_outputs(out=out, report=report, inputs=[results])
-    res = compare_conditions_file(results, by=by, baseline=baseline, index=index, pair_on=pair_on)
-    d = res.to_dict()
-    d["inputs"] = {"results": str(results), "by": by, "baseline": baseline, "index": index,
-                   "pair_on": pair_on}
-    write_report_if(report, "compare", d, as_json=as_json,
-                    title=f"{d.get('index', index)} by {by}, against {baseline}")
-    emit(d, lambda: render_comparison(d), as_json, out)
+    inputs = {"results": str(results), "by": by, "baseline": baseline, "index": index, "pair_on": pair_on,
+              "all_pairs": all_pairs}
+    comps = [compare_conditions_file(results, by=by, baseline=baseline, index=i, pair_on=pair_on).to_dict()
+             for i in indices]
+    if len(indices) == 1 and not all_pairs:
+        d = comps[0]
+        d["inputs"] = inputs
+        write_report_if(report, "compare", d, as_json=as_json,
+                        title=f"{d.get('index', index)} by {by}, against {baseline}")
+        emit(d, lambda: render_comparison(d), as_json, out)
+        return
+    pairwise = ([compare_all_pairs_file(results, by=by, index=c["index"], pair_on=pair_on).to_dict() for c in comps]
+                if all_pairs else [])
+    d = {"index": [c["index"] for c in comps], "comparisons": comps, "pairwise": pairwise, "cautions": [],
+         "notes": [], "inputs": inputs}
+    emit(d, lambda: render_comparisons(d), as_json, out)

@@ -15,6 +15,11 @@ CHANNEL_HELP = ("Channel to use from any multi-channel file (0 = first); mono fi
                 "channel. Required when a file has several channels.")
 NO_ALIGN_HELP = "Do not search for a delay: compare the files sample by sample (they are still trimmed)."
 MAX_DELAY_HELP = "Largest delay between clean and degraded to search for, seconds."
+NOISE_HELP = ("The noise alone as it is in the degraded file (same rate and length, processed the same way): "
+              "adds the envelope-power index (sEPSM).")
+INVERTED_HELP = ("The processing's output for the speech with the noise's polarity inverted (the degraded file "
+                 "being its output for speech + noise): separates processed speech and noise by phase inversion "
+                 "(output SNR per octave band) and adds the envelope-power index.")
 CHUNK_HELP = "Seconds of audio per processing chunk (memory only; the results do not change)."
 
 
@@ -22,6 +27,8 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
     """Readable text for a ``pair`` result dictionary."""
     al = d["alignment"]
     delay = f"{d['delay_ms']:.1f} ms" if al["enabled"] else "alignment off"
+    if al.get("method") and al.get("confidence") is not None:
+        delay += f" ({al['method']}, peak ratio {al['confidence']:.2f})"
     lines = [
         f"Clean:    {clean}  ({d['fs_clean']} Hz)",
         f"Degraded: {degraded}  ({d['fs_degraded']} Hz)",
@@ -33,6 +40,16 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
         f"ESTOI = {d['estoi']:.3f}",
         f"speech-based STI = {fmt(d['ssti'], '.3f')} (normalised covariance), "
         f"{fmt(d.get('ssti_regression'), '.3f')} (envelope regression)",
+    ]
+    if d.get("sepsm"):
+        sp = d["sepsm"]
+        lines.append(f"envelope-power SNR_env = {sp['snr_env_db']:.2f} dB (sEPSM), "
+                     f"{sp['percent_correct']:.1f} % correct for its sentence material (material-specific)")
+    if d.get("separation"):
+        sep = d["separation"]
+        snrs = "  ".join(f"{fc:g}: {fmt(v, '.1f')}" for fc, v in zip(sep["bands_hz"], sep["output_snr_db"]))
+        lines.append(f"output SNR (phase inversion) = {sep['broadband_snr_db']:.1f} dB; per octave band, dB: {snrs}")
+    lines += [
         "",
         "One-third-octave bands, nominal frequency (mean per-band correlation; low values: envelope lost)",
     ]
@@ -80,6 +97,8 @@ def pair_command(
                                                 "only (overrides --channel)."),
     no_align: bool = typer.Option(False, "--no-align", help=NO_ALIGN_HELP),
     max_delay: float = typer.Option(std.PAIR_MAX_DELAY_S, "--max-delay", help=MAX_DELAY_HELP),
+    noise: Path | None = typer.Option(None, "--noise", help=NOISE_HELP),
+    inverted: Path | None = typer.Option(None, "--inverted", help=INVERTED_HELP),
     chunk: float = typer.Option(std.PAIR_CHUNK_S, "--chunk", help=CHUNK_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help=OUT_HELP),
@@ -88,14 +107,17 @@ def pair_command(
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, with delay alignment and per-band diagnostics."""
     from envpredict.pair import pair_from_files
 
-    check_outputs(out=out, report=report, inputs=[clean, degraded])  # before the (slower) audio work
+    # before the (slower) audio work
+    check_outputs(out=out, report=report, inputs=[clean, degraded] + [p for p in (noise, inverted) if p])
     with Progress("analysing pair", None, quiet=as_json) as prog:
         result = pair_from_files(clean, degraded, channel=channel, clean_channel=clean_channel,
                                  degraded_channel=degraded_channel, align=not no_align, max_delay_s=max_delay,
-                                 chunk_s=chunk, progress=prog)
+                                 chunk_s=chunk, progress=prog, noise_path=noise,
+                                 inverted_path=inverted)
     d = result.to_dict()
     d["inputs"] = {"clean": str(clean), "degraded": str(degraded), "channel": channel,
                    "clean_channel": clean_channel, "degraded_channel": degraded_channel, "align": not no_align,
-                   "max_delay_s": max_delay}
+                   "max_delay_s": max_delay, "noise": None if noise is None else str(noise),
+                   "inverted": None if inverted is None else str(inverted)}
     write_report_if(report, "pair", d, as_json=as_json, title=f"{degraded.name} against {clean.name}")
     emit(d, lambda: render_pair(d, str(clean), str(degraded)), as_json, out)
