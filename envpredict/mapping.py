@@ -1096,6 +1096,8 @@ def _is_mapping_name(path: str | os.PathLike) -> bool:
     """A bare word (no folder, no suffix) that is not an existing file names a built-in mapping."""
     from pathlib import Path
 
+    if not isinstance(path, (str, os.PathLike)) or "\x00" in str(path):
+        return False  # not a name: checks.path refuses it with its own message
     p = Path(path)
     return not p.exists() and p.parent == Path(".") and p.suffix == "" and bool(str(p).strip())
 
