@@ -542,6 +542,10 @@ def resample(x: np.ndarray, fs_in: int, fs_out: int) -> np.ndarray:
 #: Largest polyphase matrix (entries) :func:`polyphase` builds; above it (ratios with large
 #: factors on both sides) scipy's filter runs instead. 2**20 doubles = 8 MiB, cached once.
 POLYPHASE_MATRIX_MAX: int = 1 << 20
+#: Largest up or down factor :func:`polyphase` takes: that of two rates within
+#: :data:`MIN_RATE_HZ`..:data:`MAX_RATE_HZ` with no common divisor (a larger one asks
+#: for a filter of millions of taps).
+POLYPHASE_MAX_FACTOR: int = MAX_RATE_HZ
 #: Output periods (``up`` samples each) computed per matrix product: keeps the strided
 #: input copy of one product (periods x taps doubles) small enough for the cache.
 POLYPHASE_BLOCK: int = 2048
@@ -581,9 +585,32 @@ def polyphase(x: np.ndarray, up: int, down: int) -> np.ndarray:
     :func:`_polyphase_matrix`), which uses the CPU's vector units and is about twice as
     fast as scipy's tap-by-tap loop for ratios such as 16 kHz to 10 kHz; otherwise (pure
     decimation, or a matrix above :data:`POLYPHASE_MATRIX_MAX`) scipy's filter runs.
+
+    The checks here are O(1) (type, dimensions, the factors): ``x`` is an array the
+    caller has validated (its values are not scanned again).
+
+    Raises
+    ------
+    InputError
+        ``x`` is not a 1-D array of real numbers, ``up`` or ``down`` is not a whole number
+        from 1 to :data:`POLYPHASE_MAX_FACTOR`, or the result would hold more than
+        :data:`envpredict.checks.MAX_SAMPLES` values.
     """
     from numpy.lib.stride_tricks import as_strided
 
+    if not isinstance(x, np.ndarray) or x.ndim != 1 or x.dtype.kind not in "fiu":
+        kind = f"a {x.ndim}-D array of {x.dtype}" if isinstance(x, np.ndarray) else type(x).__name__
+        raise InputError(f"the signal to resample is {kind}, not a 1-D array of real numbers",
+                         "pass a 1-D float array")
+    for v, what in ((up, "up"), (down, "down")):
+        if (isinstance(v, (bool, np.bool_)) or not isinstance(v, (int, np.integer))
+                or not 1 <= v <= POLYPHASE_MAX_FACTOR):
+            raise InputError(f"resampling factor {what} is not a whole number from 1 to {POLYPHASE_MAX_FACTOR}",
+                             "give the factors of resample_ratio")
+    up, down = int(up), int(down)
+    if x.size * up // down > checks.MAX_SAMPLES:
+        raise InputError(f"resampling {x.size} samples by {up}/{down} gives more than {checks.MAX_SAMPLES}",
+                         "resample a shorter signal")
     x = np.ascontiguousarray(x, dtype=np.float64)
     rate = max(up, down)
     taps = -(-(20 * rate + 1) // up) + down + 2
@@ -1338,7 +1365,14 @@ def octave_band_levels(x: "Source | np.ndarray", fs: int | None = None, *, calib
 
 def octave_band_levels_file(path: str | os.PathLike, channel: int | None = None, *, calibration_db: float,
                             name: str = "noise recording") -> np.ndarray:
-    """:func:`octave_band_levels` of a recording in a file, read in blocks (bounded memory)."""
+    """:func:`octave_band_levels` of a recording in a file, read in blocks (bounded memory).
+
+    Raises
+    ------
+    InputError
+        A bad calibration, a missing or unreadable file, a bad channel, or a recording
+        :func:`octave_band_levels` refuses.
+    """
     cal = check_calibration_db(calibration_db)
     if cal is None:
         raise InputError(f"band levels of the {name} need a calibration",

@@ -1279,6 +1279,7 @@ def run_batch(
         raise InputError("--retry-failed works only with --resume", "add --resume")
     if resume and overwrite:
         raise InputError("--resume and --overwrite contradict each other", "choose one")
+    out = checks.path(out, "results file (--out)")
     if scheduler is None and (workers or usable_cores()) > 1:
         start_workers_early()  # the pool's imports run while the manifest is read
     m = manifest if isinstance(manifest, Manifest) else read_manifest(

@@ -87,6 +87,17 @@ def _taper(f: np.ndarray, lo: float, hi: float, f1: float, f2: float) -> np.ndar
     return w
 
 
+def _max_fft_length(n_sweep: int, fs: int) -> int:
+    """Longest transform :func:`inverse_filter` accepts for a sweep of ``n_sweep`` samples:
+    twice what :func:`deconvolve_sweep` can need (two sweeps, the longest silent tail
+    :data:`~envpredict.sinesweep.MAX_TAIL_S` and 1 s), at most
+    :data:`envpredict.checks.MAX_SAMPLES` (judgement: a longer one is a mistake)."""
+    from . import checks
+    from .sinesweep import MAX_TAIL_S
+
+    return int(min(checks.MAX_SAMPLES, 2 * (2 * n_sweep + (MAX_TAIL_S + 1.0) * fs)))
+
+
 def inverse_filter(sweep: np.ndarray, fs: int, spec: SweepSpec, n_fft: int) -> np.ndarray:
     """Spectrum (``rfft`` of length ``n_fft``) of the inverse filter of one sweep.
 
@@ -110,12 +121,27 @@ def inverse_filter(sweep: np.ndarray, fs: int, spec: SweepSpec, n_fft: int) -> n
     -------
     complex ndarray, shape (n_fft // 2 + 1,).
 
+    Raises
+    ------
+    InputError
+        A sweep that is not a 1-D array of finite numbers (or is silent), a bad rate, parameters
+        :func:`~envpredict.sinesweep.check_sweep` refuses, or a transform length shorter
+        than the sweep or longer than twice what :func:`deconvolve_sweep` can need.
+
     References
     ----------
     A. Farina, AES 108th Convention, preprint 5093, 2000, sec. 3 (inverse filter).
     S. Mueller and P. Massarani, J. Audio Eng. Soc. 49(6), 2001, sec. 5.
     """
-    s = np.fft.rfft(np.asarray(sweep, dtype=np.float64), n_fft)
+    from . import checks
+
+    check_sweep(spec, "sweep")
+    sweep = checks.array(sweep, "sweep", ndim=1)
+    if not np.any(sweep):
+        raise InputError("the sweep is silent", "give the sweep that was played")
+    fs = checks.sample_rate(fs, "sweep")
+    n_fft = checks.number(n_fft, "transform length", lo=sweep.size, hi=_max_fft_length(sweep.size, fs), integer=True)
+    s = np.fft.rfft(sweep, n_fft)
     f = np.fft.rfftfreq(n_fft, 1.0 / fs)
     lo, hi = spec.flat_range_hz
     top = 0.95 * fs / 2.0
@@ -233,9 +259,12 @@ def deconvolve_sweep(
 
     from .audio import as_mono_array, estimate_delay, resample, validate_signal
     from .bands import check_rate_for_octaves
+    from . import checks
     from .decay import onset_index
 
     check_sweep(spec, sweep_name)
+    max_offset_s = checks.number(max_offset_s, "largest offset of the sweep", lo=0.0, lo_open=True,
+                                 hi=MAX_RECORDING_S, fix="give it in seconds, e.g. 10")
     s_arr, sweep_fs = as_mono_array(sweep, sweep_fs, sweep_name)
     if sweep_fs != spec.fs:
         raise InputError(f"the parameters of {sweep_name} are for {spec.fs} Hz, the signal is at {sweep_fs} Hz",
@@ -408,10 +437,21 @@ def deconvolve_sweep_file(
     Returns
     -------
     DeconvolutionResult, with ``ir_file`` set when ``out`` was written.
+
+    Raises
+    ------
+    InputError
+        As :func:`deconvolve_sweep`; also a missing or unreadable file or parameter file,
+        parameters that do not describe the sweep file, and an ``out`` that cannot be
+        written (before any work).
     """
+    from . import checks
     from .audio import audio_info, check_rate, check_wav_path, load_audio, write_wav
     from .outputs import check_output_file
     from .sinesweep import read_sweep_parameters
+
+    max_offset_s = checks.number(max_offset_s, "largest offset of the sweep (--max-offset)", lo=0.0, lo_open=True,
+                                 hi=MAX_RECORDING_S, fix="give it in seconds, e.g. 10")
 
     if out is not None:
         check_wav_path(out)

@@ -14,6 +14,9 @@ from __future__ import annotations
 
 import math
 
+from . import checks
+from .exceptions import InputError
+
 #: ISO 266 preferred (nominal) one-third-octave mid-band frequencies, Hz, 10 Hz to 20 kHz.
 NOMINAL_THIRD_OCTAVE_HZ: tuple[float, ...] = (
     10, 12.5, 16, 20, 25, 31.5, 40, 50, 63, 80, 100, 125, 160, 200, 250, 315, 400, 500, 630, 800,
@@ -24,12 +27,17 @@ NOMINAL_THIRD_OCTAVE_HZ: tuple[float, ...] = (
 def nominal_frequency(fc: float) -> float:
     """The nominal (ISO 266) frequency nearest to ``fc`` on a logarithmic scale.
 
+    Raises
+    ------
+    InputError
+        ``fc`` is not a positive, finite frequency.
+
+    Examples
+    --------
     >>> nominal_frequency(238.1), nominal_frequency(1511.9), nominal_frequency(150.0)
     (250, 1600, 160)
     """
-    f = float(fc)
-    if not (math.isfinite(f) and f > 0):
-        raise ValueError(f"a band centre must be a positive frequency, not {fc!r}")
+    f = checks.number(fc, "band centre", lo=0.0, lo_open=True, fix="give a positive frequency in Hz")
     return min(NOMINAL_THIRD_OCTAVE_HZ, key=lambda n: abs(math.log(f / n)))
 
 
@@ -38,6 +46,13 @@ def band_label(fc: float, *, unit: bool = True) -> str:
     and in kHz from there ("125 Hz", "1.6 kHz", "3.15 kHz"; without the unit: "125",
     "1.6k").
 
+    Raises
+    ------
+    InputError
+        ``fc`` is not a positive, finite frequency.
+
+    Examples
+    --------
     >>> band_label(238.1), band_label(3809.8), band_label(8000), band_label(150, unit=False)
     ('250 Hz', '4 kHz', '8 kHz', '160')
     """
@@ -76,6 +91,15 @@ QUANTITIES: dict[str, tuple[str, str, str]] = {
 
 
 def header(key: str) -> str:
-    """A table header for a quantity: its label with the unit ("decay range, dB")."""
+    """A table header for a quantity: its label with the unit ("decay range, dB").
+
+    Raises
+    ------
+    InputError
+        ``key`` is not one of :data:`QUANTITIES`.
+    """
+    if not isinstance(key, str) or key not in QUANTITIES:
+        shown = repr(key[:40]) if isinstance(key, str) else f"of type {type(key).__name__}"
+        raise InputError(f"no label for the quantity {shown}", f"give one of {', '.join(QUANTITIES)}")
     label, unit, _ = QUANTITIES[key]
     return f"{label}, {unit}" if unit else label

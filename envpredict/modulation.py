@@ -571,6 +571,13 @@ def clock_offset(env: np.ndarray, fs_env: float, freqs: np.ndarray) -> ClockOffs
     ClockOffset (ppm, sigma_ppm, used); ``ppm`` = 0, ``sigma_ppm`` = inf and ``used`` = 0
     when the envelope is too short or no frequency is high enough.
 
+    Raises
+    ------
+    InputError
+        ``env`` or ``freqs`` is not a 1-D or 2-D array of real numbers, their numbers of
+        bands differ, or ``fs_env`` is not a rate from 1 Hz to
+        :data:`envpredict.checks.MAX_RATE_HZ`.
+
     Examples
     --------
     A 4 Hz envelope modulation observed 0.2 % fast:
@@ -581,8 +588,12 @@ def clock_offset(env: np.ndarray, fs_env: float, freqs: np.ndarray) -> ClockOffs
     >>> round(clock_offset(e[None, :], 200.0, np.array([[4.0]])).ppm)
     2000
     """
-    env = np.atleast_2d(np.asarray(env, dtype=np.float64))
-    freqs = np.atleast_2d(np.asarray(freqs, dtype=np.float64))
+    env = np.atleast_2d(checks.array(env, "envelopes", ndim=(1, 2), min_size=0, finite=False))
+    freqs = np.atleast_2d(checks.array(freqs, "modulation frequencies", ndim=(1, 2), min_size=0, finite=False))
+    fs_env = checks.number(fs_env, "envelope rate", lo=1.0, hi=checks.MAX_RATE_HZ)
+    if freqs.shape[0] != env.shape[0]:
+        raise InputError(f"{env.shape[0]} envelopes but modulation frequencies for {freqs.shape[0]} bands",
+                         "give one row of modulation frequencies per envelope")
     none = ClockOffset(0.0, float("inf"), 0)
     f_used = freqs[freqs >= CLOCK_MIN_HZ]
     if f_used.size == 0:

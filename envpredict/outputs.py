@@ -442,6 +442,12 @@ def atomic_file(path: _PathLike) -> Iterator[BinaryIO]:
     beside ``path``, flushed to disk and renamed over ``path`` when the ``with`` block
     ends without an exception; on any exception (or a kill) the final name is left as
     it was and the temporary is removed (by the next run, after a kill).
+
+    Raises
+    ------
+    InputError
+        ``path`` is not a usable output path (see :func:`check_output_file`), or the file
+        cannot be written there (read-only or full disk, a missing folder).
     """
     p = checks.path(path, "output")
     target = check_output_file(p)

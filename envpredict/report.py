@@ -1343,14 +1343,21 @@ def read_about(path: str | os.PathLike | None = None, items: Sequence[str] = ())
     {'project': 'Pier 4 PA', 'operator': 'K. Lind'}
     """
     pairs: list[tuple[str, str, str]] = []
+    if items is None:
+        items = ()
+    if isinstance(items, (str, bytes)) or not isinstance(items, (list, tuple)):
+        raise InputError(f"record items are not a list of KEY=VALUE texts ({type(items).__name__})",
+                         "give a list such as ['operator=K. Lind']")
     if path is not None:
         from .tables import read_text
 
-        text = read_text(Path(os.fspath(path)), "record file")
+        text = read_text(checks.path(path, "record file"), "record file")
         where = f"record file '{path}'"
         if text.lstrip().startswith("{"):
             try:
                 obj = json.loads(text)
+            except RecursionError:
+                raise InputError(f"{where} nests too deeply", "write a flat JSON object of fields") from None
             except ValueError as e:
                 raise InputError(f"{where} is not valid JSON ({e.args[0] if e.args else e})",
                                  "write one 'key: value' line per field, or a JSON object") from None
@@ -1366,6 +1373,8 @@ def read_about(path: str | os.PathLike | None = None, items: Sequence[str] = ())
                 k, v = line.split(":", 1)
                 pairs.append((k, v, f"{where}, line {i}"))
     for item in items:
+        if not isinstance(item, str):
+            raise InputError(f"record item {type(item).__name__} is not text", "write KEY=VALUE, e.g. operator=K. Lind")
         if "=" not in str(item):
             raise InputError(f"record item '{item}' has no '='", "write KEY=VALUE, e.g. operator=K. Lind")
         k, v = str(item).split("=", 1)

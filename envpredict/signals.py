@@ -352,7 +352,13 @@ class BlockSignal:
 def stipa_test_signal(seconds: float = std.STIPA_DEFAULT_SECONDS, fs: int = DEFAULT_RATE_HZ, *,
                       seed: int = 0) -> BlockSignal:
     """The STIPA test signal of :func:`stipa_signal` as a :class:`BlockSignal` (to be read
-    in blocks); the options are checked here."""
+    in blocks); the options are checked here.
+
+    Raises
+    ------
+    InputError
+        As :func:`stipa_signal`.
+    """
     fs = check_generation(fs, seconds)
     seed = check_seed(seed)
     n = int(round(float(seconds) * fs))

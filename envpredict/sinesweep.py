@@ -164,8 +164,8 @@ class SweepSpec:
 def _number(value, what: str, fix: str) -> float:
     try:
         v = float(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{what} '{value}' is not a number", fix) from None
+    except (TypeError, ValueError, OverflowError):
+        raise InputError(f"{what} '{str(value)[:40]}' is not a number", fix) from None
     if not math.isfinite(v):
         raise InputError(f"{what} is {value}", fix)
     return v
@@ -206,6 +206,14 @@ def sweep_spec(
     InputError
         A parameter out of range, with the fix in the message.
     """
+    spec = _build_spec(fs, f1_hz, f2_hz, seconds, fade_in_s, fade_out_s, repeats, tail_s, peak_dbfs, name)
+    _check_coverage(spec, name)
+    return spec
+
+
+def _build_spec(fs, f1_hz, f2_hz, seconds, fade_in_s, fade_out_s, repeats, tail_s, peak_dbfs,
+                name: str) -> SweepSpec:
+    """The range checks of :func:`sweep_spec` (all but the coverage of the bands)."""
     from .audio import check_rate
     from .bands import check_rate_for_octaves
 
@@ -226,10 +234,11 @@ def sweep_spec(
     peak = _number(peak_dbfs, "peak level", "give it in dBFS, e.g. -3")
     try:
         n_rep = int(repeats)
-    except (TypeError, ValueError):
-        raise InputError(f"repeats '{repeats}' is not a whole number", f"give 1 to {MAX_REPEATS}") from None
+    except (TypeError, ValueError, OverflowError):
+        raise InputError(f"repeats '{str(repeats)[:40]}' is not a whole number", f"give 1 to {MAX_REPEATS}") from None
     if n_rep != repeats or not 1 <= n_rep <= MAX_REPEATS:
-        raise InputError(f"repeats {repeats} is outside 1..{MAX_REPEATS}",
+        shown = f"{repeats:g}" if isinstance(repeats, (int, float)) and abs(repeats) < 1e9 else "out of range"
+        raise InputError(f"repeats {shown} is outside 1..{MAX_REPEATS}",
                          f"give a whole number from 1 to {MAX_REPEATS}")
     if T <= 0 or fin < 0 or fout < 0 or fin + fout >= T:
         raise InputError(f"{name} of {T:g} s with fades of {fin:g} s and {fout:g} s",
@@ -245,15 +254,35 @@ def sweep_spec(
     if total > MAX_TOTAL_SECONDS:
         raise InputError(f"{name} signal would last {total:.0f} s", f"keep repeats x (length + tail) within "
                          f"{MAX_TOTAL_SECONDS:.0f} s")
-    check_sweep(spec, name)
     return spec
+
+
+def _checked_spec(spec: SweepSpec, name: str) -> SweepSpec:
+    """``spec`` if it is a :class:`SweepSpec` whose fields pass the range checks of
+    :func:`sweep_spec` (a hand-made one may hold anything); O(1)."""
+    if not isinstance(spec, SweepSpec):
+        raise InputError(f"the parameters of the {name} are not a SweepSpec ({type(spec).__name__})",
+                         "make them with envpredict.sinesweep.sweep_spec")
+    return _build_spec(spec.fs, spec.f1_hz, spec.f2_hz, spec.seconds, spec.fade_in_s, spec.fade_out_s, spec.repeats,
+                       spec.tail_s, spec.peak_dbfs, name)
 
 
 def check_sweep(spec: SweepSpec, name: str = "sweep") -> None:
     """Refuse a sweep that cannot measure the seven octave bands and an impulse response
     long enough for the STI: its flat range must cover :data:`LOWEST_FLAT_HZ` ..
     :data:`HIGHEST_FLAT_HZ`, and it must be long enough (per octave) and have a long enough
-    tail that :attr:`SweepSpec.ir_seconds` is at least :data:`MIN_IR_SECONDS`."""
+    tail that :attr:`SweepSpec.ir_seconds` is at least :data:`MIN_IR_SECONDS`.
+
+    Raises
+    ------
+    InputError
+        ``spec`` is not a :class:`SweepSpec`, a parameter is out of the range
+        :func:`sweep_spec` accepts, or the sweep is too narrow or too short (with the fix).
+    """
+    _check_coverage(_checked_spec(spec, name), name)
+
+
+def _check_coverage(spec: SweepSpec, name: str) -> None:
     lo, hi = spec.flat_range_hz
     if lo > LOWEST_FLAT_HZ:
         raise InputError(
@@ -289,6 +318,11 @@ def exponential_sweep(spec: SweepSpec) -> np.ndarray:
     -------
     ndarray, shape (spec.sweep_samples,), float64.
 
+    Raises
+    ------
+    InputError
+        ``spec`` is not a :class:`SweepSpec` or holds a parameter :func:`sweep_spec` refuses.
+
     References
     ----------
     A. Farina, "Simultaneous measurement of impulse response and distortion with a
@@ -302,6 +336,7 @@ def exponential_sweep(spec: SweepSpec) -> np.ndarray:
     >>> s.size, round(float(np.max(np.abs(s))), 3)
     (480000, 0.708)
     """
+    spec = _checked_spec(spec, "sweep")
     n = spec.sweep_samples
     t = np.arange(n) / spec.fs
     L = spec.log_ratio
@@ -319,7 +354,14 @@ def exponential_sweep(spec: SweepSpec) -> np.ndarray:
 
 
 def sweep_signal(spec: SweepSpec) -> np.ndarray:
-    """The signal to play: ``spec.repeats`` sweeps, each followed by ``spec.tail_s`` of silence."""
+    """The signal to play: ``spec.repeats`` sweeps, each followed by ``spec.tail_s`` of silence.
+
+    Raises
+    ------
+    InputError
+        As :func:`exponential_sweep`.
+    """
+    spec = _checked_spec(spec, "sweep")
     one = np.zeros(spec.period_samples)
     one[: spec.sweep_samples] = exponential_sweep(spec)
     return np.tile(one, spec.repeats)
@@ -344,8 +386,19 @@ class SweepSignalResult:
 
 
 def parameter_path(path: str | os.PathLike) -> Path:
-    """The parameter file of a sweep file: the same name with ``.json``."""
-    return Path(path).with_suffix(PARAMETER_SUFFIX)
+    """The parameter file of a sweep file: the same name with ``.json``.
+
+    Raises
+    ------
+    InputError
+        ``path`` is not a file path (or names no file, such as ``/``).
+    """
+    from . import checks
+
+    p = checks.path(path, "sweep file")
+    if not p.name:
+        raise InputError(f"sweep file '{p}' names no file", "give the path of the sweep's WAV file")
+    return p.with_suffix(PARAMETER_SUFFIX)
 
 
 def write_sweep_signal(path: str | os.PathLike, spec: SweepSpec) -> SweepSignalResult:
@@ -360,10 +413,17 @@ def write_sweep_signal(path: str | os.PathLike, spec: SweepSpec) -> SweepSignalR
     Returns
     -------
     SweepSignalResult : both files and the parameters.
+
+    Raises
+    ------
+    InputError
+        ``spec`` is not a valid :class:`SweepSpec`, or a file cannot be written there
+        (an input, a folder, a missing folder, not a ``.wav`` name).
     """
     from .audio import check_wav_path, write_wav
     from .outputs import atomic_write_text, check_output_file
 
+    spec = _checked_spec(spec, "sweep")
     wav = check_wav_path(path)
     side = parameter_path(wav)
     check_output_file(wav, option="output")
@@ -395,8 +455,18 @@ def read_sweep_parameters(path: str | os.PathLike, fs: int, frames: int, name: s
     path : the sweep's WAV file.
     fs, frames : its sample rate and length (:func:`envpredict.audio.audio_info`).
     name : what the file is, for messages.
+
+    Raises
+    ------
+    InputError
+        No readable parameter file beside ``path``, parameters that do not describe the
+        file, or a sweep :func:`check_sweep` refuses.
     """
+    from . import checks
+
     side = parameter_path(path)
+    fs = checks.sample_rate(fs, f"{name} '{path}'")
+    frames = checks.samples(frames, f"length of {name} '{path}'")
     label = f"{name} '{path}'"
     fix = f"keep the '{side.name}' written by 'envpredict testsignal sweep' beside '{Path(path).name}'"
     if not side.is_file():
@@ -407,7 +477,7 @@ def read_sweep_parameters(path: str | os.PathLike, fs: int, frames: int, name: s
                          seconds=float(d["seconds"]), fade_in_s=float(d["fade_in_s"]),
                          fade_out_s=float(d["fade_out_s"]), repeats=int(d["repeats"]), tail_s=float(d["tail_s"]),
                          peak_dbfs=float(d.get("peak_dbfs", std.TEST_SIGNAL_PEAK_DBFS)))
-    except (OSError, ValueError, KeyError, TypeError):
+    except (OSError, ValueError, KeyError, TypeError, OverflowError, RecursionError):
         raise InputError(f"parameter file '{side}' of {label} is not readable", fix) from None
     if spec.fs != fs or spec.repeats * spec.period_samples != frames:
         raise InputError(f"parameter file '{side.name}' does not describe {label} ({spec.fs} Hz, "

@@ -87,7 +87,7 @@ def _parse_band_levels(text: str | Sequence[float], what: str, example: str) -> 
     else:
         try:
             vals = [float(v) for v in text]
-        except (TypeError, ValueError):
+        except (TypeError, ValueError, OverflowError):
             raise InputError(f"{what} levels are not all numbers", "give seven dB values, 125 Hz to 8 kHz") from None
     n = len(std.OCTAVE_BANDS_HZ)
     if len(vals) != n:
@@ -125,6 +125,12 @@ def parse_speech_levels(text: str | Sequence[float] | None) -> np.ndarray | None
     8 kHz), e.g. of the test signal played at speech level; ``None``: not given.
 
     Accepts a comma-separated string or a sequence.
+
+    Raises
+    ------
+    InputError
+        Not seven numbers, or a level outside
+        :data:`~envpredict.standards.NOISE_LEVEL_RANGE_DB`.
     """
     if text is None:
         return None
@@ -133,18 +139,33 @@ def parse_speech_levels(text: str | Sequence[float] | None) -> np.ndarray | None
 
 def a_weighted_level(band_db: Sequence[float] | np.ndarray) -> float:
     """A-weighted sum, dB(A), of seven octave-band levels (125 Hz ... 8 kHz), with the
-    octave-band A-weighting of :data:`~envpredict.standards.A_WEIGHTING_OCTAVE_DB`."""
-    lk = np.asarray(band_db, dtype=float)
+    octave-band A-weighting of :data:`~envpredict.standards.A_WEIGHTING_OCTAVE_DB`.
+
+    Raises
+    ------
+    InputError
+        ``band_db`` is not seven finite numbers.
+    """
+    lk = checks.array(band_db, "octave-band levels", fix="give seven levels in dB, 125 Hz to 8 kHz")
+    if lk.size != len(std.A_WEIGHTING_OCTAVE_DB):
+        raise InputError(f"{lk.size} octave-band level(s) given; {len(std.A_WEIGHTING_OCTAVE_DB)} are needed",
+                         "give seven levels in dB, 125 Hz to 8 kHz")
     return float(10.0 * np.log10(np.sum(10.0 ** ((lk + np.asarray(std.A_WEIGHTING_OCTAVE_DB)) / 10.0))))
 
 
 def check_requirement(value: float | None) -> float | None:
-    """Refuse a required STI that is not a number in (0, 1]; ``None`` (no requirement) passes."""
+    """Refuse a required STI that is not a number in (0, 1]; ``None`` (no requirement) passes.
+
+    Raises
+    ------
+    InputError
+        A value that is not a number within (0, 1].
+    """
     if value is None:
         return None
     try:
         v = float(value)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError(f"required STI '{value}' is not a number", "give a value such as 0.50") from None
     if not (math.isfinite(v) and 0.0 < v <= 1.0):
         raise InputError(f"required STI {value} is outside 0..1", "give a value such as 0.50")

@@ -34,6 +34,7 @@ import math
 import os
 import re
 from dataclasses import dataclass, field
+from collections.abc import Iterable, Mapping
 from typing import Callable, Sequence
 
 from .exceptions import InputError
@@ -263,15 +264,24 @@ def summarise_survey(
     Returns
     -------
     (positions, zones), each in the order the rows first name them.
+
+    Raises
+    ------
+    InputError
+        ``rows`` is not a sequence of such dicts (a key missing, a row number that is not
+        a whole number, an STI that is not a number within 0..1), or a requirement does
+        not parse.
     """
     from .sti import qualification_band
 
-    reqs = [r if isinstance(r, Requirement) else parse_requirement(r) for r in requirements]
+    reqs = _requirements(requirements)
+    if isinstance(rows, (str, bytes, Mapping)) or not isinstance(rows, Iterable):
+        raise InputError(f"survey rows are not a list of rows ({type(rows).__name__})",
+                         "give one dict per measurement with zone, position, row and sti")
     by_pos: dict[tuple[str, str], list[tuple[int, float | None]]] = {}
     for r in rows:
-        v = r.get("sti")
-        value = None if v in (None, "") else float(v)
-        by_pos.setdefault((str(r["zone"]), str(r["position"])), []).append((int(r["row"]), value))
+        row, zone, pos, value = _summary_row(r)
+        by_pos.setdefault((zone, pos), []).append((row, value))
     positions = []
     for (zone, pos), items in by_pos.items():
         vals = [v for _, v in items if v is not None]
@@ -306,6 +316,45 @@ def summarise_survey(
     return tuple(positions), tuple(zones)
 
 
+def _requirements(requirements) -> list[Requirement]:
+    """The rules as :class:`Requirement`: one text is one rule."""
+    if isinstance(requirements, (str, Requirement)):
+        requirements = (requirements,)
+    if not isinstance(requirements, Iterable):
+        raise InputError(f"requirements are not a list of rules ({type(requirements).__name__})",
+                         "give rules such as ['mean>=0.50', 'min>=0.45']")
+    return [r if isinstance(r, Requirement) else parse_requirement(r) for r in requirements]
+
+
+def _summary_row(r) -> tuple[int, str, str, float | None]:
+    """Row number, zone, position and STI (None: not scored) of one survey row."""
+    from . import checks
+
+    fix = "give one dict per measurement with zone, position, row and sti (a number within 0..1, or empty)"
+    if not isinstance(r, Mapping):
+        raise InputError(f"a survey row is not a dict ({type(r).__name__})", fix)
+    missing = [k for k in ("zone", "position", "row") if k not in r]
+    if missing:
+        raise InputError(f"a survey row has no {', '.join(missing)}", fix)
+    row = r["row"]
+    if isinstance(row, str):  # as read from a table
+        try:
+            row = int(row)
+        except ValueError:
+            raise InputError(f"survey row number '{row[:40]}' is not a whole number", fix) from None
+    row = checks.number(row, "survey row number", integer=True, fix=fix)
+    v = r.get("sti")
+    if v is None or (isinstance(v, str) and not v.strip()):
+        return row, str(r["zone"]), str(r["position"]), None
+    if isinstance(v, str):
+        try:
+            v = float(v)
+        except ValueError:
+            raise InputError(f"survey row {row}: the STI '{v[:40]}' is not a number", fix) from None
+    value = checks.number(v, f"survey row {row}: the STI", lo=0.0, hi=1.0, fix=fix)
+    return row, str(r["zone"]), str(r["position"]), value
+
+
 def _verdict(checks: list[RuleCheck], unscored: tuple[str, ...]) -> tuple[str | None, str]:
     if not checks:
         return None, "no requirement given"
@@ -321,8 +370,17 @@ def _verdict(checks: list[RuleCheck], unscored: tuple[str, ...]) -> tuple[str | 
 
 
 def check_survey_columns(columns: Sequence[str], where: str) -> None:
-    """Refuse a survey file without ``zone`` and ``position``, or with pair columns."""
+    """Refuse a survey file without ``zone`` and ``position``, or with pair columns.
+
+    Raises
+    ------
+    InputError
+        Such a file, or ``columns`` that is not a sequence of column names.
+    """
     from .tables import CLEAN_COLUMN, DEGRADED_COLUMN, IR_COLUMN, STIPA_COLUMN
+
+    if isinstance(columns, str) or not isinstance(columns, Sequence) or not all(isinstance(c, str) for c in columns):
+        raise InputError(f"the columns of {where} are not a list of names", "give the header of the survey file")
 
     missing = [c for c in (ZONE_COLUMN, POSITION_COLUMN) if c not in columns]
     if missing:
@@ -364,9 +422,21 @@ def _check_rows(manifest) -> list[dict]:
 def check_survey_outputs(survey: str | os.PathLike, outputs: dict[str, str | os.PathLike | None],
                          inputs: Sequence[str | os.PathLike] = ()) -> None:
     """Refuse, before any scoring, an output (named by its option) that is the survey
-    file or one of ``inputs``, that another output also names, or that cannot be written."""
+    file or one of ``inputs``, that another output also names, or that cannot be written.
+
+    Raises
+    ------
+    InputError
+        Such an output, or ``outputs`` that is not a dict of option to path.
+    """
     from .outputs import check_output_file, same_path
 
+    if not isinstance(outputs, Mapping):
+        raise InputError(f"the outputs are not a dict of option to path ({type(outputs).__name__})",
+                         "give them as {'--out': path, ...}")
+    if isinstance(inputs, (str, bytes, os.PathLike)) or not isinstance(inputs, Iterable):
+        raise InputError(f"the inputs are not a list of paths ({type(inputs).__name__})", "give a list of paths")
+    inputs = list(inputs)
     named = [(opt, p) for opt, p in outputs.items() if p is not None]
     for i, (opt, p) in enumerate(named):
         for opt2, p2 in named[i + 1:]:
@@ -416,7 +486,7 @@ def run_survey(
     from .batch import read_manifest, run_batch
     from .tables import read_results
 
-    reqs = tuple(r if isinstance(r, Requirement) else parse_requirement(r) for r in requirements)
+    reqs = tuple(_requirements(requirements))
     m = read_manifest(survey)
     check_survey_columns(m.columns, f"survey '{m.path}'")
     files = [j[k] for j in m.jobs for k in ("ir", "stipa", "noise_recording") if j.get(k)]
@@ -482,8 +552,18 @@ def _cells(d: dict, columns: Sequence[str]) -> dict[str, str]:
 
 def write_survey_tables(result: SurveyResult, positions_csv: str | os.PathLike | None = None,
                         zones_csv: str | os.PathLike | None = None) -> None:
-    """Write the per-position and per-zone tables as CSV (atomically), where a path is given."""
+    """Write the per-position and per-zone tables as CSV (atomically), where a path is given.
+
+    Raises
+    ------
+    InputError
+        ``result`` is not a :class:`SurveyResult`, or a table cannot be written there.
+    """
     from .tables import write_table
+
+    if not isinstance(result, SurveyResult):
+        raise InputError(f"the survey result is not a SurveyResult ({type(result).__name__})",
+                         "give the result of run_survey")
 
     d = result.to_dict()
     if positions_csv is not None:

@@ -52,7 +52,8 @@ from envpredict.exceptions import EnvpredictError
 MODULES = (
     "standards", "exceptions", "results", "outputs", "bands", "audio", "modulation", "sti", "cautions",
     "decay", "correlation", "pitch", "signals", "tables", "mapping", "indirect", "direct", "pair",
-    "timescales", "sweep", "stats", "batch", "refcases", "demo", "report",
+    "timescales", "sweep", "stats", "batch", "refcases", "demo", "report", "checks", "labels", "sinesweep",
+    "deconvolve", "survey",
 )
 
 EXAMPLE_SECONDS = 30  # one example longer than this is a hang (a huge length accepted)
@@ -155,6 +156,18 @@ def build_fixture_folder(d: Path) -> Path:
     (d / "pairs.csv").write_text("clean,degraded\nclean.wav,degraded.wav\n")
     (d / "recordings").mkdir()
     _write_wav(d / "recordings" / "r.wav", stipa_recording(24000, 16.0), 24000)
+    _write_wav(d / "noise24k.wav", noise24k(0), 24000)
+    from envpredict.sinesweep import write_sweep_signal
+
+    write_sweep_signal(d / "sweep.wav", short_spec())
+    for bad, text in (("badsweep", "{"), ("hugesweep", json.dumps({**short_spec().to_dict(), "fs": 1e400}))):
+        (d / f"{bad}.wav").write_bytes((d / "sweep.wav").read_bytes())
+        (d / f"{bad}.json").write_text(text)
+    _write_wav(d / "sweep_rec.wav", sweep_recording(0.3, 0.5, 0), SWEEP_FS)
+    (d / "survey.csv").write_text("ir,zone,position\nir.wav,hall,p1\nir.wav,hall,p2\nir.wav,foyer,p1\n")
+    (d / "about.txt").write_text("# record\nproject: Pier 4\noperator: K. Lind\n")
+    (d / "about.json").write_text(json.dumps({"project": "Pier 4", "site": None}))
+    (d / "about_bad.json").write_text("[1, 2]")
     _FOLDER[:] = [d]
     return d
 
@@ -832,6 +845,242 @@ case("report.check_report_folder", folder=S(Out("rep"), P("out")), inputs=S(None
 case("report.figure_names", folder=S(P("out"), P(".")))
 
 
+# --- checks (the boundary checks themselves) ---------------------------------------------------
+
+_NUM = st.one_of(st.floats(0.0, 10.0), st.integers(0, 10))
+_BAD_NUM = S(NAN, INF, -INF, "1", None, True, [1.0], 10**400, -(10**400), np.zeros(0))
+case("checks.path", value=S("a.wav", P("ir.wav"), Path("x.csv")), what=S("input"), fix=S("", "give it"),
+     bad_={"value": BAD_PATH, "what": None, "fix": None})
+case("checks.number", value=_NUM, what=S("x"), lo=S(-INF, 0.0), hi=S(INF, 10.0), integer=st.booleans(),
+     bad_={"value": _BAD_NUM, "what": None, "lo": None, "hi": None, "integer": None}, share_=0.4)
+case("checks.optional_number", value=st.one_of(st.none(), _NUM), what=S("x"),
+     bad_={"value": _BAD_NUM, "what": None})
+case("checks.flag", value=st.booleans(), what=S("x"), bad_={"what": None})
+case("checks.text", value=st.text(max_size=5), what=S("x"), bad_={"what": None})
+case("checks.choice", value=S("a", "b"), what=S("x"), options=J(("a", "b")), bad_={"what": None, "options": None})
+case("checks.sample_rate", fs=S(8000, 48000, 44100.0, "16000", np.int64(16000)), name=S("x"),
+     bad_={"fs": st.one_of(BAD_RATE, S(10**400, np.zeros(3), [48000])), "name": None})
+case("checks.array", x=st.lists(st.floats(-1, 1), min_size=1, max_size=10).map(np.array), what=S("x"),
+     ndim=S(1, (1, 2)), min_size=S(1), finite=st.booleans(),
+     bad_={"what": None, "ndim": None, "min_size": None, "finite": None})
+case("checks.samples", n=st.integers(0, 10**6), what=S("x"), lo=J(0),
+     bad_={"n": st.one_of(BAD_INT, S(10**400)), "what": None, "lo": None})
+
+# --- labels -------------------------------------------------------------------------------------
+
+_FC = st.floats(8.0, 25000.0)
+_BAD_FC = S(0.0, -1.0, NAN, INF, "x", None, [1000.0], np.zeros(0), 10**400)
+case("labels.nominal_frequency", fc=_FC, bad_={"fc": _BAD_FC})
+case("labels.band_label", fc=_FC, unit=st.booleans(), bad_={"fc": _BAD_FC, "unit": None})
+case("labels.header", key=S("sti", "t30_mid", "decay_range_db", "stoi"),
+     bad_={"key": S("", "nope", None, 3, ["sti"])})
+
+# --- sinesweep, deconvolve ---------------------------------------------------------------------
+# The shortest sweep accepted at 32 kHz: 50 Hz to 13 kHz (8 octaves) needs 6.6 s for its
+# 0.82 s of response before the second harmonic's (sinesweep.check_sweep).
+
+SWEEP_FS = 32000
+
+
+@lru_cache(maxsize=8)
+def short_spec(fs: int = SWEEP_FS, seconds: float = 6.6, repeats: int = 1):
+    from envpredict.sinesweep import sweep_spec
+
+    return sweep_spec(fs, 50.0, 13000.0, seconds, repeats=repeats, tail_s=1.0)
+
+
+@lru_cache(maxsize=4)
+def played_sweep(seconds: float = 6.6, repeats: int = 1) -> np.ndarray:
+    from envpredict.sinesweep import sweep_signal
+
+    return sweep_signal(short_spec(SWEEP_FS, seconds, repeats))
+
+
+@lru_cache(maxsize=8)
+def sweep_recording(offset_s: float, T: float, seed: int, repeats: int = 1) -> np.ndarray:
+    """The played sweep through a short noise decay (reverberation time ``T``), after
+    ``offset_s`` of silence, with a little noise."""
+    from scipy.signal import fftconvolve
+
+    h = noise_decay(T, fs=SWEEP_FS, seconds=0.4, seed=seed)
+    y = fftconvolve(played_sweep(6.6, repeats), h)
+    y = np.r_[np.zeros(int(offset_s * SWEEP_FS)), y, np.zeros(SWEEP_FS // 2)]
+    y = 0.4 * y / np.max(np.abs(y))
+    return y + 1e-4 * np.random.default_rng(seed).standard_normal(y.size)
+
+
+def _bad_spec():
+    from envpredict.sinesweep import SweepSpec
+
+    def spec(**kw):
+        base = dict(fs=SWEEP_FS, f1_hz=50.0, f2_hz=13000.0, seconds=6.6, fade_in_s=0.1, fade_out_s=0.02, repeats=1,
+                    tail_s=1.0)
+        return SweepSpec(**{**base, **kw})
+
+    return S(None, 3, "spec", {}, spec(f1_hz=0.0), spec(f1_hz=NAN), spec(seconds=1e9), spec(fs=0), spec(repeats=0),
+             spec(repeats=2**40), spec(f2_hz=-1.0), spec(fs="x"), spec(tail_s=INF), spec(seconds=0.0),
+             spec(fade_in_s=-1.0), spec(fs=1e12))
+
+
+BAD_SPEC = st.deferred(_bad_spec)
+SPEC = st.builds(short_spec, J(SWEEP_FS), S(6.6, 7.0), S(1, 2))
+case("sinesweep.sweep_spec", fs=S(32000, 44100, 48000), f1_hz=S(40.0, 50.0), f2_hz=S(13000.0, 15000.0),
+     seconds=S(7.0, 8.0, 10.0), repeats=S(1, 2), tail_s=S(1.0, 2.0),
+     bad_={"f1_hz": BAD_REAL, "f2_hz": BAD_REAL, "seconds": st.one_of(BAD_REAL, S(10**400)), "repeats": BAD_INT,
+           "tail_s": BAD_REAL})
+case("sinesweep.check_sweep", spec=SPEC, name=S("sweep"), bad_={"spec": BAD_SPEC, "name": None})
+case("sinesweep.exponential_sweep", spec=SPEC, bad_={"spec": BAD_SPEC})
+case("sinesweep.sweep_signal", spec=SPEC, bad_={"spec": BAD_SPEC}, examples_=8)
+case("sinesweep.parameter_path", path=S("a.wav", P("sweep.wav"), Out("s.wav")))
+case("sinesweep.write_sweep_signal", path=S(Out("sw.wav")), spec=SPEC, bad_={"spec": BAD_SPEC}, examples_=6)
+case("sinesweep.read_sweep_parameters", path=S(P("sweep.wav")), fs=J(SWEEP_FS),
+     frames=st.builds(lambda: played_sweep().size), name=S("sweep"),
+     bad_={"path": st.one_of(BAD_PATH, S(P("badsweep.wav"), P("hugesweep.wav"))), "frames": BAD_INT, "name": None})
+
+
+def _inverse(fn, kw):
+    spec = kw["spec"]
+    sweep = kw["sweep"] if kw["sweep"] is not None else _one_sweep(spec)
+    n_fft = kw["n_fft"] if kw["n_fft"] != "ok" else kw["factor"] * (sweep.size if hasattr(sweep, "size") else 1)
+    return fn(sweep, kw["fs"], spec, n_fft)
+
+
+def _one_sweep(spec):
+    from envpredict.sinesweep import exponential_sweep
+
+    try:
+        return exponential_sweep(spec)
+    except EnvpredictError:
+        return np.zeros(10)
+
+
+case("deconvolve.inverse_filter", sweep=J(None), fs=S(SWEEP_FS, 48000), spec=st.builds(short_spec), n_fft=J("ok"),
+     factor=S(1, 2), call_=_inverse, examples_=8,
+     bad_={"sweep": BAD_ARRAY, "spec": BAD_SPEC, "n_fft": BAD_INT, "factor": None})
+case("deconvolve.deconvolve_sweep",
+     recording=st.builds(sweep_recording, S(0.0, 0.3, 1.0), S(0.2, 0.5), st.integers(0, 2)), fs=J(SWEEP_FS),
+     sweep=st.builds(played_sweep), sweep_fs=J(SWEEP_FS), spec=st.builds(short_spec), max_offset_s=S(2.0, 5.0),
+     bad_={"recording": BAD_ARRAY, "sweep": BAD_ARRAY, "sweep_fs": BAD_RATE, "spec": BAD_SPEC}, examples_=8,
+     # the sweep found where it was put (within 2 ms), the response finite
+     check_=lambda r: np.all(np.isfinite(r.ir)) and min(abs(r.offset_s - o) for o in (0.0, 0.3, 1.0)) < 0.002)
+case("deconvolve.deconvolve_sweep_file", recording=S(P("sweep_rec.wav")), sweep=S(P("sweep.wav")),
+     out=S(None, Out("h.wav")), channel=S(None, 0), sweep_rate=J(None), max_offset_s=S(2.0, 5.0),
+     bad_={"recording": BAD_PATH, "sweep": st.one_of(BAD_PATH, S(P("badsweep.wav"), P("ir.wav"))),
+           "sweep_rate": S(0, -1, NAN, "x", 1e12, 8000), "max_offset_s": S(NAN, INF, -1.0, 0.0, 1e300, "x", None)},
+     examples_=6)
+
+# --- survey ---------------------------------------------------------------------------------------
+
+REQS = S((), ("mean>=0.5",), ("min >= 0.45", "mean-sd>0.4"), ["max>=0.6", "mean>0.55"])
+case("survey.parse_requirement", text=S("mean>=0.50", "min >= 0.45", "mean-sd>0.5", "max>=0.6", "mean >= 1"))
+_SROWS = st.lists(st.fixed_dictionaries({"zone": S("hall", "foyer"), "position": S("p1", "p2", "p3"),
+                                         "row": st.integers(1, 40),
+                                         "sti": st.one_of(st.floats(0.0, 1.0), S(None, "", "0.52"))}),
+                  min_size=0, max_size=8)
+case("survey.summarise_survey", rows=_SROWS, requirements=REQS,
+     bad_={"rows": S(None, 3, "x", [None], [{}], [{"zone": "a", "position": "p", "row": 1, "sti": "x"}],
+                     [{"zone": "a", "position": "p", "row": "x", "sti": 0.5}],
+                     [{"zone": "a", "position": "p", "row": 1, "sti": NAN}],
+                     [{"zone": "a", "position": "p", "row": 1, "sti": 1.5}],
+                     [{"zone": "a", "position": "p", "row": 1, "sti": [0.5]}]),
+           "requirements": S(None, 3, "mean>=0.5", [3], ["mean>=2"], [None])})
+case("survey.check_survey_columns", columns=S(("zone", "position", "ir"), ["zone", "position", "stipa", "repeat"],
+                                              ("zone", "ir"), ("zone", "position", "clean", "degraded")),
+     where=S("survey"), share_=0.3, bad_={"columns": S(None, 3, 1e300, [None, 3], np.zeros(0)), "where": None})
+case("survey.check_survey_outputs", survey=S(P("survey.csv")),
+     outputs=S({"--out": Out("r.csv")}, {"--out": Out("r.csv"), "--zones-csv": Out("z.csv"), "--positions-csv": None}),
+     inputs=S((), [P("ir.wav")]),
+     bad_={"survey": BAD_PATH, "outputs": S(None, 3, {"--out": 3}, {"--out": P("survey.csv")}, [Out("r.csv")]),
+           "inputs": S(None, 3, [None], [3])})
+case("survey.run_survey", survey=S(P("survey.csv")), out=S(Out("sr.csv")), requirements=REQS, workers=J(1),
+     bad_={"survey": st.one_of(BAD_PATH, S(P("results.csv"))), "requirements": S(["x"], [None], 3),
+           "workers": S(0, -1, 1.5, "x")}, examples_=3)
+
+
+@lru_cache(maxsize=1)
+def survey_result():
+    from envpredict.survey import SurveyResult, summarise_survey
+
+    rows = [{"zone": z, "position": p, "row": i, "sti": 0.5 + 0.01 * i} for i, (z, p) in
+            enumerate([("hall", "p1"), ("hall", "p2"), ("foyer", "p1")], start=1)]
+    pos, zones = summarise_survey(rows, ["mean>=0.5"])
+    return SurveyResult(index="sti", survey="s.csv", results="r.csv", requirements=("mean >= 0.5",), positions=pos,
+                        zones=zones, rows=3, failed_rows=0)
+
+
+case("survey.write_survey_tables", result=st.builds(survey_result), positions_csv=S(None, Out("p.csv")),
+     zones_csv=S(None, Out("z.csv")), bad_={"result": S(None, 3, {}, "x"), "positions_csv": BAD_PATH,
+                                            "zones_csv": BAD_PATH})
+
+# --- further functions of audio, modulation, outputs, report, signals, sti, demo -------------------
+
+
+@lru_cache(maxsize=4)
+def noise24k(seed: int) -> np.ndarray:
+    return 0.05 * np.random.default_rng(seed).standard_normal(6 * 24000)
+
+
+case("audio.octave_band_levels", x=scaled(st.builds(noise24k, st.integers(0, 2)), level=(1e-3, 0.9)), fs=J(24000),
+     calibration_db=st.floats(80.0, 130.0), bad_={"calibration_db": BAD_REAL}, examples_=6)
+case("audio.octave_band_levels_file", path=S(P("noise24k.wav")), channel=S(None, 0),
+     calibration_db=st.floats(80.0, 130.0), bad_={"calibration_db": BAD_REAL}, examples_=5)
+_RATIOS = S((5, 8), (2, 1), (1, 2), (160, 147), (3, 1))
+case("audio.polyphase", x=st.builds(speech, J(16000), S(0.3, 1.0), st.integers(0, 2)), ratio=_RATIOS,
+     call_=lambda fn, kw: fn(kw["x"], *kw["ratio"]) if isinstance(kw["ratio"], tuple) else fn(kw["x"], kw["ratio"], 1),
+     bad_={"ratio": S((0, 1), (1, 0), (-1, 2), (1.5, 2), ("2", 1), (None, 1), (True, 1), (2**40, 1), (1, 2**40),
+                      (NAN, 1), 3.0)})
+
+
+@lru_cache(maxsize=4)
+def drifting_envelopes(ppm: float, seconds: float) -> np.ndarray:
+    t = np.arange(int(seconds * 200)) / 200.0
+    f = np.array([[1.6, 8.0], [2.5, 12.5]])
+    return np.stack([1 + 0.5 * np.cos(2 * np.pi * fk[0] * (1 + ppm * 1e-6) * t)
+                     + 0.5 * np.cos(2 * np.pi * fk[1] * (1 + ppm * 1e-6) * t) for fk in f])
+
+
+case("modulation.clock_offset", env=st.builds(drifting_envelopes, S(0.0, 500.0, -2000.0), S(12.0, 20.0)),
+     fs_env=J(200.0), freqs=J(np.array([[1.6, 8.0], [2.5, 12.5]])),
+     bad_={"fs_env": S(0, -1.0, NAN, INF, 1e-300, "x", None, 1e12), "freqs": st.one_of(BAD_ARRAY, S(np.ones((5, 2))))},
+     check_=lambda r: math.isfinite(r.ppm))
+
+
+def _atomic(fn, kw):
+    with fn(kw["path"]) as fh:
+        fh.write(kw["data"])
+    return True
+
+
+case("outputs.atomic_file", path=OUTPATH, data=st.binary(max_size=64), call_=_atomic, bad_={"data": None})
+case("report.names_only", d=st.one_of(JSONISH, st.builds(lambda: {"inputs": {"ir": "/a/b/ir.wav", "n": 3},
+                                                                  "survey": "x/y/s.csv"})))
+case("report.read_about", path=S(None, P("about.txt"), P("about.json")), items=S((), ["project=Pier 4"],
+                                                                                    ("operator=K. Lind",)),
+     bad_={"path": st.one_of(BAD_PATH, S(P("about_bad.json"), P("scores.csv"))),
+           "items": S(None, 3, "x", [3], ["nope=1"], ["project"], [None])})
+
+
+def _block(fn, kw):
+    sig = fn(**kw)
+    return next(iter(sig.blocks(4096)))
+
+
+case("signals.full_sti_test_signal", modulation_hz=S(0.63, 4.0, 12.5), seconds=st.floats(0.5, 2.0),
+     fs=S(24000, 48000), seed=st.integers(0, 10), call_=_block,
+     bad_={"modulation_hz": BAD_REAL, "seconds": S(1e9, 0.0, -1.0, NAN, INF, None)})
+case("signals.stipa_test_signal", seconds=st.floats(15.0, 16.0), fs=S(24000, 32000), seed=st.integers(0, 100),
+     call_=_block, bad_={"seconds": S(1e9, 1e6, 0.0, -1.0, NAN, INF, "1", None, 1e-6)}, examples_=6)
+case("sti.a_weighted_level", band_db=st.lists(st.floats(0.0, 120.0), min_size=7, max_size=7),
+     bad_={"band_db": st.one_of(BAD_ARRAY, S([60.0] * 6, [NAN] * 7, ["a"] * 7, [1e300] * 7))})
+case("sti.check_requirement", value=S(None, 0.5, 0.45, 1.0, "0.6"), bad_={"value": st.one_of(BAD_REAL, S(10**400))})
+case("sti.parse_speech_levels", text=S(None, "60,63,61,55,49,43,37", "60;63;61;55;49;43;37", [60.0] * 7,
+                                       (60, 63, 61, 55, 49, 43, 37)),
+     bad_={"text": S("1;2;3", "a;b;c;d;e;f;g", [NAN] * 7, [1e300] * 7, "", 3, "1e309;" * 7, [None] * 7)})
+case("demo.demo_survey_path")
+case("demo.copy_demo", folder=S(Out("demo1"), Out("demo2")), examples_=2,
+     bad_={"folder": S(P("recordings"), P("ir.wav"), P("folder/missing/x"), 3, None, "", "a\x00b")})
+
+
 # ---------------------------------------------------------------------------
 # The tests
 # ---------------------------------------------------------------------------
@@ -848,7 +1097,8 @@ def test_every_public_function_has_a_strategy():
 #: turns every failure of a row into the row's error text).
 NEVER_RAISES = frozenset({
     "audio.usable_cores", "audio.usable_threads", "batch.score_row", "batch.score_rows", "batch.start_workers_early",
-    "correlation.analysis_window", "correlation.third_octave_matrix", "outputs.current_umask", "report.num",
+    "correlation.analysis_window", "correlation.third_octave_matrix", "demo.demo_survey_path",
+    "outputs.current_umask", "report.names_only", "report.num",
     "report.txt", "signals.full_sti_plan", "sweep.default_index_functions", "tables.cell_number", "tables.format_cell",
     "timescales.modulation_band_edges",
 })
@@ -967,6 +1217,82 @@ def test_huge_sizes_are_refused_before_they_allocate(name):
     try:
         with memory_cap(), pytest.raises(envpredict.InputError):
             _huge_calls()[name]()
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)
+
+
+def _boundary_calls():
+    """Hostile arguments that once escaped as TypeError, ValueError, AttributeError,
+    OverflowError, IndexError or KeyError from the functions added after the first
+    round (the hypothesis strategies above draw them only now and then)."""
+    from envpredict import audio, checks, deconvolve, labels, modulation, report, sinesweep, sti, survey
+    from envpredict.sinesweep import SweepSpec
+
+    x = speech(16000, 0.3, 1)
+    bad_spec = SweepSpec(fs=SWEEP_FS, f1_hz=0.0, f2_hz=13000.0, seconds=6.6, fade_in_s=0.1, fade_out_s=0.02,
+                         repeats=1, tail_s=1.0)
+    huge_spec = SweepSpec(fs=SWEEP_FS, f1_hz=50.0, f2_hz=13000.0, seconds=1e9, fade_in_s=0.1, fade_out_s=0.02,
+                          repeats=1, tail_s=1.0)
+    row = {"zone": "a", "position": "p", "row": 1, "sti": 0.5}
+    return {
+        "polyphase(a list)": lambda: audio.polyphase([0.1, 0.2, 0.3], 2, 1),
+        "polyphase(2-D)": lambda: audio.polyphase(np.zeros((2, 100)), 2, 1),
+        "polyphase(text array)": lambda: audio.polyphase(np.array(["a", "b"]), 2, 1),
+        "polyphase(up=0)": lambda: audio.polyphase(x, 0, 1),
+        "polyphase(up=1.5)": lambda: audio.polyphase(x, 1.5, 2),
+        "polyphase(down=2**40)": lambda: audio.polyphase(x, 1, 2**40),
+        "polyphase(up=2**40)": lambda: audio.polyphase(x, 2**40, 1),
+        "clock_offset(fs_env=0)": lambda: modulation.clock_offset(np.ones((1, 4000)), 0, np.array([[4.0]])),
+        "clock_offset(text)": lambda: modulation.clock_offset("abc", 200.0, np.array([[4.0]])),
+        "clock_offset(fewer rows of freqs)": lambda: modulation.clock_offset(np.ones((2, 4000)), 200.0,
+                                                                             np.array([[4.0]])),
+        "exponential_sweep(None)": lambda: sinesweep.exponential_sweep(None),
+        "exponential_sweep(f1=0)": lambda: sinesweep.exponential_sweep(bad_spec),
+        "sweep_signal(seconds=1e9)": lambda: sinesweep.sweep_signal(huge_spec),
+        "check_sweep(a dict)": lambda: sinesweep.check_sweep({"fs": 32000}),
+        "write_sweep_signal(None)": lambda: sinesweep.write_sweep_signal(str(_FOLDER[0] / "out" / "n.wav"), None),
+        "sweep_spec(seconds=10**400)": lambda: sinesweep.sweep_spec(32000, 50, 13000, 10**400),
+        "sweep_spec(repeats=inf)": lambda: sinesweep.sweep_spec(32000, 50, 13000, 8.0, repeats=INF),
+        "parameter_path('/')": lambda: sinesweep.parameter_path("/"),
+        "parameter_path(3)": lambda: sinesweep.parameter_path(3),
+        "read_sweep_parameters(fs=inf in its file)": lambda: sinesweep.read_sweep_parameters(
+            _FOLDER[0] / "hugesweep.wav", SWEEP_FS, played_sweep().size),
+        "inverse_filter(n_fft=2**40)": lambda: deconvolve.inverse_filter(np.ones(1000), SWEEP_FS, short_spec(), 2**40),
+        "inverse_filter(spec=None)": lambda: deconvolve.inverse_filter(np.ones(1000), SWEEP_FS, None, 4096),
+        "deconvolve_sweep_file(max_offset_s=inf)": lambda: deconvolve.deconvolve_sweep_file(
+            _FOLDER[0] / "sweep_rec.wav", _FOLDER[0] / "sweep.wav", max_offset_s=INF),
+        "a_weighted_level(6 levels)": lambda: sti.a_weighted_level([60.0] * 6),
+        "a_weighted_level(text)": lambda: sti.a_weighted_level(["a"] * 7),
+        "check_requirement(10**400)": lambda: sti.check_requirement(10**400),
+        "parse_speech_levels(10**400)": lambda: sti.parse_speech_levels([10**400] * 7),
+        "summarise_survey(no zone)": lambda: survey.summarise_survey([{"position": "p", "row": 1, "sti": 0.5}]),
+        "summarise_survey(sti text)": lambda: survey.summarise_survey([{**row, "sti": "x"}]),
+        "summarise_survey(row None)": lambda: survey.summarise_survey([None]),
+        "summarise_survey(rows 3)": lambda: survey.summarise_survey(3),
+        "summarise_survey(requirements None)": lambda: survey.summarise_survey([row], None),
+        "check_survey_columns(None)": lambda: survey.check_survey_columns(None, "survey"),
+        "check_survey_outputs(outputs None)": lambda: survey.check_survey_outputs(_FOLDER[0] / "survey.csv", None),
+        "write_survey_tables(None)": lambda: survey.write_survey_tables(None),
+        "nominal_frequency(0)": lambda: labels.nominal_frequency(0.0),
+        "nominal_frequency(None)": lambda: labels.nominal_frequency(None),
+        "header(unknown)": lambda: labels.header("nope"),
+        "read_about(items=3)": lambda: report.read_about(items=3),
+        "read_about(path=3)": lambda: report.read_about(3),
+        "number(10**400)": lambda: checks.number(10**400, "x"),
+        "number(10**5000, integer)": lambda: checks.number(10**5000, "x", integer=True),
+        "sample_rate(10**400)": lambda: checks.sample_rate(10**400),
+        "path(lone surrogate)": lambda: checks.path("\ud800", "x"),
+    }
+
+
+@pytest.mark.parametrize("name", sorted(_boundary_calls()))
+def test_hostile_arguments_are_refused_at_the_boundary(name):
+    old = signal.signal(signal.SIGALRM, _alarm)
+    signal.alarm(EXAMPLE_SECONDS)
+    try:
+        with memory_cap(), pytest.raises(envpredict.InputError):
+            _boundary_calls()[name]()
     finally:
         signal.alarm(0)
         signal.signal(signal.SIGALRM, old)
