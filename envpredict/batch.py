@@ -27,6 +27,9 @@ Optional columns that feed the scoring (empty cell = the batch default):
 * ``calibration_db`` -- dB SPL of a full-scale RMS signal in the row's recording
   (STIPA rows, optional) or noise recording (IR rows);
 * ``sti_talker`` -- ``male`` or ``female`` speech spectrum and weights (IR and STIPA rows).
+* ``inverted`` -- the processing's output for speech - noise (pair rows; the degraded
+  file is its output for speech + noise): adds the envelope-power index
+  (``sepsm_snr_env_db``) from the processed noise separated by phase inversion;
 * ``delay_ms`` -- the delay of the degraded file, ms (pair rows): overrides the batch's
   alignment for that row. In the results file this column holds the delay used (the
   manifest's cell where it is given).
@@ -125,6 +128,7 @@ from .tables import (  # noqa: F401  (the column vocabulary, re-exported for bat
     DELAY_COLUMN,
     ERROR_COLUMN,
     IR_COLUMN,
+    INVERTED_COLUMN,
     IR_INDEX_COLUMNS,
     MANIFEST_RESULT_COLUMNS,
     NOISE_COLUMN,
@@ -136,6 +140,7 @@ from .tables import (  # noqa: F401  (the column vocabulary, re-exported for bat
     PATH_COLUMNS,
     RESULT_COLUMNS,
     ROW_COLUMN,
+    SEPSM_INDEX_COLUMNS,
     SPEECH_LEVEL_COLUMN,
     SPEECH_LEVELS_COLUMN,
     STI_TALKER_COLUMN,
@@ -417,9 +422,11 @@ def read_manifest(
         opts = {key: _option_value(p, row, line, c, get[c], defaults) if c in get else defaults[key]
                 for c, key in _OPTION_KEYS.items()}
         delay_text = get.get(DELAY_COLUMN, "").strip()
-        if delay_text and not (clean or deg):
-            raise InputError(f"{_where(p, row, line, DELAY_COLUMN)} is filled on a row without a pair",
-                             "a delay goes with a clean/degraded pair")
+        inverted = get.get(INVERTED_COLUMN, "").strip()
+        for col_name, text_ in ((DELAY_COLUMN, delay_text), (INVERTED_COLUMN, inverted)):
+            if text_ and not (clean or deg):
+                raise InputError(f"{_where(p, row, line, col_name)} is filled on a row without a pair",
+                                 "it goes with a clean/degraded pair")
         noise_rec = get.get(NOISE_RECORDING_COLUMN, "").strip()
         if noise_rec and not ir:
             raise InputError(f"{_where(p, row, line, NOISE_RECORDING_COLUMN)} is filled on a row without 'ir'",
@@ -440,13 +447,16 @@ def read_manifest(
                        calibration_db=opts["calibration_db"])
         else:
             job.update(kind="pair", clean=full(clean), degraded=full(deg),
-                       manifest_delay_ms=_delay_cell(p, row, line, delay_text) if delay_text else None)
+                       manifest_delay_ms=_delay_cell(p, row, line, delay_text) if delay_text else None,
+                       inverted=full(inverted) if inverted else None)
         cells.append(tuple(rec))
         jobs.append(job)
     if not cells:
         raise InputError(f"{_where(p)} has a header but no rows", "add one row per item to score")
     sti_columns = IR_INDEX_COLUMNS if has_ir else STIPA_INDEX_COLUMNS if has_stipa else ()
     index_columns = sti_columns + (PAIR_INDEX_COLUMNS if has_pair else ())
+    if has_pair and INVERTED_COLUMN in seen:
+        index_columns += SEPSM_INDEX_COLUMNS
     index_columns = tuple(c for c in index_columns if c not in seen)  # delay_ms: the manifest's column
     return Manifest(path=p, columns=columns, cells=tuple(cells), jobs=tuple(jobs), index_columns=index_columns)
 
@@ -506,7 +516,7 @@ def _score_pair(job: dict) -> dict:
     delay_ms = job.get("delay_ms")
     r = pair_from_files(job["clean"], job["degraded"], channel=job.get("channel"), align=job.get("align", True),
                         max_delay_s=job.get("max_delay_s", std.PAIR_MAX_DELAY_S),
-                        delay_s=None if delay_ms is None else delay_ms / 1000.0)
+                        delay_s=None if delay_ms is None else delay_ms / 1000.0, inverted_path=job.get("inverted"))
     delay_from = job.get("delay_from") or ("row" if r.delay_from == "search" else r.delay_from)
     confidence = job.get("delay_confidence") if delay_from == "condition" else (
         r.delay_confidence if delay_from == "row" else None)
@@ -515,6 +525,7 @@ def _score_pair(job: dict) -> dict:
             "ssti_regression": None if r.ssti_regression is None else float(r.ssti_regression),
             "delay_ms": float(r.delay_ms), "delay_from": delay_from,
             "delay_confidence": None if confidence is None or not math.isfinite(confidence) else float(confidence),
+            "sepsm_snr_env_db": None if r.sepsm is None else float(r.sepsm.snr_env_db),
             NOTES_COLUMN: "; ".join(notes)}
 
 
@@ -695,7 +706,8 @@ class ResultWriter:
             if p.exists() and os.path.samefile(p, manifest.path):
                 raise InputError(f"output '{p}' is the manifest itself", "choose another --out file")
         # not the manifest nor any file it names; not a folder, pipe or device; a writable folder
-        inputs = [manifest.path] + [j[k] for j in manifest.jobs for k in ("ir", "clean", "degraded") if k in j]
+        inputs = [manifest.path] + [j[k] for j in manifest.jobs for k in ("ir", "clean", "degraded", "inverted")
+                                    if j.get(k)]
         check_output_file(p, inputs=inputs, option="results file")
         header = list(manifest.result_columns)
         exists = p.exists() and p.stat().st_size > 0

@@ -650,7 +650,7 @@ def _page_pair(d: Mapping) -> Page:
              ("ssti", "speech-based STI (normalised covariance)", ".3f", ""),
              ("ssti_regression", "speech-based STI (envelope regression)", ".3f", ""),
              ("delay_ms", "delay of degraded re clean", ".1f", "ms"),
-             ("alignment.match_correlation", "waveform match at that delay", ".3f", ""),
+             ("alignment.match_correlation", "waveform match (peak within the search)", ".3f", ""),
              ("duration_s", "common duration", ".2f", "s"), ("fs", "analysis sample rate", ".0f", "Hz"))
             if _has(d, key)]
     p.tables.insert(0, Table("Indices", ["quantity", "value"], rows))

@@ -18,7 +18,7 @@ differences d_i = index(condition, item i) - index(baseline, item i) give
 Matching (``pair_on``): by default an item is identified by all columns of the
 table except the ``by`` column, the result columns written by ``envpredict batch``
 (``row``, ``error`` and the index columns) and the per-condition input files
-(``degraded``, ``ir``); for a manifest ``clean,degraded,condition,talker`` that is
+(``degraded``, ``ir``, ``inverted``); for a manifest ``clean,degraded,condition,talker`` that is
 (``clean``, ``talker``). Give ``pair_on`` explicitly (one or more columns) when
 other columns vary with the condition. Rows with an error or an empty index cell
 are left out. Each item may appear only once per condition.
@@ -50,7 +50,7 @@ import numpy as np
 from . import checks
 from .exceptions import InputError
 from .results import jsonable
-from .tables import DEGRADED_COLUMN, ERROR_COLUMN, IR_COLUMN, RESULT_COLUMNS, cell_number
+from .tables import DEGRADED_COLUMN, ERROR_COLUMN, INVERTED_COLUMN, IR_COLUMN, RESULT_COLUMNS, cell_number
 
 #: Bootstrap resamples. Efron & Tibshirani (1993, sec. 19.3) advise at least 1000 for
 #: a percentile/BCa interval; 10000 keeps the Monte-Carlo error of the interval ends
@@ -379,7 +379,7 @@ def default_pair_on(columns: Sequence[str], by: str, index: str) -> tuple[str, .
     if isinstance(columns, (str, bytes)) or not isinstance(columns, Sequence) or not all(
             isinstance(c, str) for c in columns):
         raise InputError("columns are not a list of names", "pass the table's header")
-    skip = set(RESULT_COLUMNS) | {by, index, DEGRADED_COLUMN, IR_COLUMN}
+    skip = set(RESULT_COLUMNS) | {by, index, DEGRADED_COLUMN, IR_COLUMN, INVERTED_COLUMN}
     return tuple(c for c in columns if c not in skip)
 
 

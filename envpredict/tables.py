@@ -43,7 +43,11 @@ CLEAN_COLUMN = "clean"
 DEGRADED_COLUMN = "degraded"
 #: IR rows: a calibrated recording of the site noise (instead of ``noise``).
 NOISE_RECORDING_COLUMN = "noise_recording"
-PATH_COLUMNS: tuple[str, ...] = (IR_COLUMN, STIPA_COLUMN, CLEAN_COLUMN, DEGRADED_COLUMN, NOISE_RECORDING_COLUMN)
+#: Pair rows: the processing's output for speech - noise (the degraded file being its
+#: output for speech + noise), for the phase-inversion separation and the envelope-power index.
+INVERTED_COLUMN = "inverted"
+PATH_COLUMNS: tuple[str, ...] = (IR_COLUMN, STIPA_COLUMN, CLEAN_COLUMN, DEGRADED_COLUMN, NOISE_RECORDING_COLUMN,
+                                 INVERTED_COLUMN)
 
 #: Optional manifest columns that feed the scoring (see :mod:`envpredict.batch`).
 CHANNEL_COLUMN = "channel"
@@ -74,14 +78,17 @@ STIPA_INDEX_COLUMNS: tuple[str, ...] = ("sti", "rating")
 #: peak ratio of the estimate it came from (empty for a given delay).
 PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression", "delay_ms", "delay_from",
                                        "delay_confidence")
+#: Pair rows with an ``inverted`` file: the envelope-power index's SNR_env, dB (the
+#: ``snr_env_db`` of the pair's ``sepsm``).
+SEPSM_INDEX_COLUMNS: tuple[str, ...] = ("sepsm_snr_env_db",)
 #: Index columns holding text, not numbers.
 TEXT_INDEX_COLUMNS: tuple[str, ...] = ("rating", "delay_from")
 #: Index columns holding numbers (all except the rating letter and the delay's origin).
 NUMERIC_INDEX_COLUMNS: tuple[str, ...] = tuple(
-    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS if c not in TEXT_INDEX_COLUMNS
+    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS + SEPSM_INDEX_COLUMNS if c not in TEXT_INDEX_COLUMNS
 )
 RESULT_COLUMNS: frozenset[str] = frozenset(
-    (ROW_COLUMN, NOTES_COLUMN, ERROR_COLUMN) + IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS
+    (ROW_COLUMN, NOTES_COLUMN, ERROR_COLUMN) + IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS + SEPSM_INDEX_COLUMNS
 )
 #: Result columns a manifest may hold as an option column (its cell, where given, is the
 #: value the row uses, and the results file shows the value used in that one column).

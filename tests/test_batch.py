@@ -809,3 +809,32 @@ def test_batch_alignment_bad_input(delayed_pairs, tmp_path):
     code = cli_exit_code(["batch", str(d / "m.csv"), "--out", str(tmp_path / "c.csv"), "--delay-per-row",
                           "--delay-ms", "4"])
     assert code == 2
+
+
+def test_batch_inverted_column_adds_the_envelope_power_index(tmp_path):
+    # a linear chain of speech + noise and speech - noise: the row's SNR_env is the pair
+    # job's (pair_from_files with inverted_path) on the same files
+    from scipy.signal import butter, sosfilt
+
+    from envpredict.pair import pair_from_files
+
+    rng = np.random.default_rng(31)
+    n = int(PAIR_SECONDS * PAIR_FS)
+    sos = butter(2, 2500, fs=PAIR_FS, output="sos")
+    rows = []
+    for i in range(2):
+        clean = two_rate_modulated_noise(rng, n, PAIR_FS)
+        noise = 0.03 * rng.standard_normal(n)
+        sf.write(tmp_path / f"c{i}.wav", clean, PAIR_FS, subtype="DOUBLE")
+        sf.write(tmp_path / f"p{i}.wav", sosfilt(sos, clean + noise), PAIR_FS, subtype="DOUBLE")
+        sf.write(tmp_path / f"m{i}.wav", sosfilt(sos, clean - noise), PAIR_FS, subtype="DOUBLE")
+        rows.append([f"c{i}.wav", f"p{i}.wav", f"m{i}.wav", "chain"])
+    rows.append(["c0.wav", "p0.wav", "p0.wav", "chain"])  # not the counterpart: the row's error
+    m = _write_csv(tmp_path / "m.csv", ["clean", "degraded", "inverted", "condition"], rows)
+    out = tmp_path / "r.csv"
+    s = run_batch(m, out, workers=1, alignment=batch.Alignment(per_row=True))
+    cols, res = read_results(out)
+    assert "sepsm_snr_env_db" in cols and s.failed == 1 and "derived noise is silent" in res[2]["error"]
+    for i in range(2):
+        direct = pair_from_files(tmp_path / f"c{i}.wav", tmp_path / f"p{i}.wav", inverted_path=tmp_path / f"m{i}.wav")
+        assert float(res[i]["sepsm_snr_env_db"]) == pytest.approx(direct.sepsm.snr_env_db, abs=1e-9)
