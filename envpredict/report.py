@@ -752,8 +752,17 @@ def _page_sweep(d: Mapping) -> Page:
     new = _mpl()
     fig = new(10.0, 4.8)
     ax = fig.add_subplot(111)
+    mp0 = d.get("mapping") if isinstance(d.get("mapping"), Mapping) else None
+    rng = mp0.get("index_range") if mp0 else None
+    outside = np.zeros(snr.size, dtype=bool)
+    if isinstance(rng, (list, tuple)) and len(rng) == 2 and idx.size == snr.size:
+        outside = (idx < float(rng[0])) | (idx > float(rng[1]))
     if pred is not None and pred.size:
-        ax.plot(snr, pred, "-o", color=TEAL, lw=2.0, ms=4.5, label="predicted score")
+        ax.plot(snr, pred, "-", color=TEAL, lw=2.0, label="predicted score")
+        ax.plot(snr[~outside], pred[~outside], "o", color=TEAL, ms=4.5)
+        if outside.any():
+            ax.plot(snr[outside], pred[outside], "o", mfc="white", mec=TEAL, ms=5.5,
+                    label="extrapolated (outside the fitted index range)")
         ax.set_ylabel("predicted score, % correct")
         ax.set_ylim(-2, 102)
         for t in targets:
@@ -762,6 +771,9 @@ def _page_sweep(d: Mapping) -> Page:
                 continue
             is_srt = abs(pc - 50.0) < 1e-9
             col = COPPER if is_srt else PLUM
+            mlo, mhi = t.get("map_ci_low"), t.get("map_ci_high")
+            if mlo is not None and mhi is not None:
+                ax.axvspan(mlo, mhi, facecolor="none", edgecolor=col, alpha=0.5, hatch="///", lw=0.0)
             if lo is not None and hi is not None:
                 ax.axvspan(lo, hi, color=col, alpha=0.15, lw=0)
             ax.plot([s, s], [-2, pc], color=col, lw=1.3, ls="--")
@@ -779,7 +791,12 @@ def _page_sweep(d: Mapping) -> Page:
                     ha="right", va="bottom", fontsize=10, color=BRICK)
         ax.set_title(f"Predicted psychometric function ({name} mapped to % correct)")
         cap = ("Predicted score against SNR; the dashed line marks the predicted speech reception threshold "
-               "(SRT, 50 % correct) and the shaded strip its confidence interval over noise segments.")
+               "(SRT, 50 % correct), the shaded strip its confidence interval over noise segments and the hatched "
+               "strip the interval from the mapping's own uncertainty"
+               + ("; hollow points lie outside the index range the mapping was fitted on (extrapolations)."
+                  if outside.any() else "."))
+        if outside.any():
+            ax.legend(loc="lower right", fontsize=9, frameon=False)
     else:
         sd = _arr(d.get("index_sd")) if d.get("index_sd") is not None else None
         ax.plot(snr, idx, "-o", color=TEAL, lw=2.0, ms=4.5)
@@ -802,12 +819,31 @@ def _page_sweep(d: Mapping) -> Page:
         (["predicted, %"] if pred is not None else [])
     p.tables.append(Table("Sweep", head, rows))
     if targets:
+        def extrapolated(t):
+            v = t.get("index_value")
+            if not (isinstance(rng, (list, tuple)) and len(rng) == 2 and v is not None):
+                return ""
+            return "extrapolated (outside the fitted index range)" if not rng[0] <= v <= rng[1] else ""
+
         trow = [[num(d, f"targets.{i}.percent", "g"), num(d, f"targets.{i}.snr_db", ".1f"),
                  num(d, f"targets.{i}.ci_low", ".1f"), num(d, f"targets.{i}.ci_high", ".1f"),
+                 num(d, f"targets.{i}.map_ci_low", ".1f"), num(d, f"targets.{i}.map_ci_high", ".1f"),
                  num(d, f"targets.{i}.index_value", ".3f"), num(d, f"targets.{i}.slope_percent_per_db", ".1f"),
-                 txt(t.get("note") or "")] for i, t in enumerate(targets)]
-        p.tables.append(Table("Targets", ["target, %", "SNR, dB", "CI low, dB", "CI high, dB", f"{name} there",
-                                          "slope, %/dB", "note"], trow))
+                 txt("; ".join(x for x in (t.get("note") or "", extrapolated(t)) if x))]
+                for i, t in enumerate(targets)]
+        p.tables.append(Table("Targets (95 % intervals: noise segments; mapping)",
+                              ["target, %", "SNR, dB", "CI low, dB", "CI high, dB", "mapping low, dB",
+                               "mapping high, dB", f"{name} there", "slope, %/dB", "note"], trow))
+        if (d.get("n_sentences") or 1) > 1:
+            srow = [[num(d, f"targets.{i}.percent", "g"), num(d, f"targets.{i}.sentence_sd_db", ".2f"),
+                     num(d, f"targets.{i}.sentence_ci_low", ".1f"), num(d, f"targets.{i}.sentence_ci_high", ".1f"),
+                     num(d, f"targets.{i}.combined_ci_low", ".1f"), num(d, f"targets.{i}.combined_ci_high", ".1f"),
+                     num(d, f"targets.{i}.total_ci_low", ".1f"), num(d, f"targets.{i}.total_ci_high", ".1f")]
+                    for i in range(len(targets))]
+            p.tables.append(Table(f"Targets over {d['n_sentences']} sentences (95 % intervals)",
+                                  ["target, %", "SD over sentences, dB", "sentences low", "sentences high",
+                                   "combined low", "combined high", "with mapping low", "with mapping high"],
+                                  srow))
     mp = d.get("mapping") if isinstance(d.get("mapping"), Mapping) else None
     if mp:
         rows = [[Cell("formula"), txt(mp.get("formula"))]]
