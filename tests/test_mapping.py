@@ -561,3 +561,43 @@ def test_binomial_looking_data_keep_the_binomial_intervals():
     assert mq.ci() == mb.ci()
     with pytest.raises(InputError, match="dispersion"):
         fit_mapping(x, k, n, dispersion="beta")
+
+
+# ---------------------------------------------------------------------------
+# Per-listener data
+# ---------------------------------------------------------------------------
+
+def test_fitmap_per_listener_and_group(tmp_path, capsys):
+    sm = pytest.importorskip("statsmodels.api")
+    rng = np.random.default_rng(41)
+    x = np.linspace(0.45, 0.85, 6)
+    rows, truth = [], {"L1": 0.58, "L2": 0.63, "L3": 0.68, "L4": 0.72}
+    for name, x50 in truth.items():
+        k = rng.binomial(60, expit(20.0 * (x - x50)))
+        rows += [(name, xi, ki) for xi, ki in zip(x, k)]
+    rows += [("L5", 0.8, 60), ("L5", 0.85, 60), ("L5", 0.9, 60)]  # at the ceiling: no curve of its own
+    p = tmp_path / "pilot.csv"
+    p.write_text("listener,stoi,correct,trials\n" + "".join(f"{a},{b:.4f},{c},60\n" for a, b, c in rows))
+    code, out, err = run_cli(["fitmap", str(p), "--index", "stoi", "--listener", "listener", "--json"], capsys)
+    assert code == 0, err
+    d = json.loads(out)
+    fits = {f["listener"]: f for f in d["listeners"]}
+    assert fits["L5"]["x50"] is None and "ceiling" in fits["L5"]["error"]
+    x50s = []
+    for name in truth:
+        sel = [(b, c) for a, b, c in rows if a == name]
+        xs, ks = np.array([round(b, 4) for b, _ in sel]), np.array([c for _, c in sel])
+        glm = sm.GLM(np.column_stack([ks, 60 - ks]), sm.add_constant(xs), family=sm.families.Binomial()).fit()
+        x50s.append(-glm.params[0] / glm.params[1])
+        assert fits[name]["x50"] == pytest.approx(x50s[-1], abs=1e-5)
+    sp = d["listener_spread"]
+    assert sp["n_listeners"] == 5 and sp["n_fitted"] == 4
+    assert sp["x50_mean"] == pytest.approx(np.mean(x50s), abs=1e-5)
+    assert sp["x50_sd"] == pytest.approx(np.std(x50s, ddof=1), abs=1e-5)
+    # the listeners differ: the group's intervals carry the scatter (quasi-binomial)
+    assert d["interval_method"] == "quasi-binomial"
+    assert any("listener L5" in n for n in d["notes"])
+    code, out, err = run_cli(["fitmap", str(p), "--index", "stoi", "--listener", "listener"], capsys)
+    assert code == 0 and "Per listener (4 of 5 fitted" in out
+    code, out, err = run_cli(["fitmap", str(p), "--index", "stoi", "--listener", "who"], capsys)
+    assert code == 2 and "who" in err
