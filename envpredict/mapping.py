@@ -1183,6 +1183,48 @@ class ScoreData:
         return 100.0 * self.correct / self.trials
 
 
+#: Points of the fitted curve drawn in a fit report, and how far past the data it runs
+#: (share of the data's index range on each side; judgement).
+FIT_CURVE_POINTS: int = 101
+FIT_CURVE_MARGIN: float = 0.1
+
+
+def fit_report_data(mapping: ScoreMapping, data: ScoreData) -> dict:
+    """What a fit report draws, computed here (the report draws and computes nothing):
+    the fitted curve over the data's index range (and a margin) with its pointwise band
+    at :data:`CI_LEVEL` (delta method on eta = a + b x with the mapping's covariance and
+    quantile, mapped through F), each row's observed percent with its exact binomial
+    (Clopper-Pearson) interval (``scipy.stats.binomtest``), and the Pearson residuals
+    ``(k - n p) / sqrt(n p (1 - p))``."""
+    from scipy.stats import binomtest
+
+    x = np.asarray(data.index_values, dtype=float)
+    lo, hi = float(x.min()), float(x.max())
+    pad = FIT_CURVE_MARGIN * (hi - lo)
+    grid = np.linspace(lo - pad, hi + pad, FIT_CURVE_POINTS)
+    out: dict[str, Any] = {"index": mapping.index, "curve_index": grid, "curve_percent": mapping.percent(grid),
+                           "band_low": None, "band_high": None, "ci_level": CI_LEVEL,
+                           "interval_method": mapping.interval_method}
+    if mapping.cov is not None:
+        c = np.asarray(mapping.cov, dtype=float)
+        se = np.sqrt(np.maximum(c[0, 0] + 2 * grid * c[0, 1] + grid * grid * c[1, 1], 0.0))
+        eta = mapping.a + mapping.b * grid
+        q = mapping.quantile()
+        out["band_low"] = 100.0 * (mapping.guess + mapping.span * _cdf(mapping.shape, eta - q * se))
+        out["band_high"] = 100.0 * (mapping.guess + mapping.span * _cdf(mapping.shape, eta + q * se))
+    k, n = np.asarray(data.correct, dtype=int), np.asarray(data.trials, dtype=int)
+    cis = [binomtest(int(ki), int(ni)).proportion_ci(confidence_level=CI_LEVEL, method="exact") for ki, ni in zip(k, n)]
+    p = np.clip(mapping.proportion(x), P_CLIP, 1 - P_CLIP)
+    out.update({
+        "index_values": x, "correct": k, "trials": n, "observed_percent": 100.0 * k / n,
+        "observed_low": np.array([100.0 * c.low for c in cis]),
+        "observed_high": np.array([100.0 * c.high for c in cis]),
+        "fitted_percent": 100.0 * p, "pearson_residual": (k - n * p) / np.sqrt(n * p * (1 - p)),
+    })
+    return jsonable({key: (np.round(v, 4) if isinstance(v, np.ndarray) and v.dtype.kind == "f" else v)
+                     for key, v in out.items()})
+
+
 def fit_mapping_file(
     path: str | os.PathLike,
     *,

@@ -41,7 +41,7 @@ import numpy as np
 from . import standards as std
 from .exceptions import InputError
 
-KINDS: tuple[str, ...] = ("ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey")
+KINDS: tuple[str, ...] = ("ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey", "fitmap")
 
 KIND_TITLES: dict[str, str] = {
     "ir": "STI and decay figures from an impulse response",
@@ -52,6 +52,7 @@ KIND_TITLES: dict[str, str] = {
     "sweep": "Predicted score against SNR",
     "inspect": "Envelope, periodicity and fine structure of a recording",
     "survey": "Site survey: STI per position and zone",
+    "fitmap": "Mapping from an index to % correct, fitted on pilot scores",
 }
 
 # ---------------------------------------------------------------------------
@@ -864,6 +865,65 @@ def _page_sweep(d: Mapping) -> Page:
 
 
 # ---------------------------------------------------------------------------
+# fitmap
+# ---------------------------------------------------------------------------
+
+def _page_fitmap(d: Mapping) -> Page:
+    p = Page()
+    f = d.get("fit_data") if isinstance(d.get("fit_data"), Mapping) else {}
+    key = str(d.get("index") or "index")
+    params = d.get("params") if isinstance(d.get("params"), Mapping) else {}
+    if params.get("x50") is not None:
+        p.headline.append(("x50", num(d, "params.x50", ".4g")))
+    if d.get("interval_method"):
+        p.headline.append(("intervals", txt(d["interval_method"])))
+    if f.get("curve_index") is not None and f.get("index_values") is not None:
+        new = _mpl()
+        fig = new(10.0, 6.4)
+        ax, axr = fig.add_subplot(211), fig.add_subplot(212)
+        gx, gy = _arr(f["curve_index"]), _arr(f["curve_percent"])
+        if f.get("band_low") is not None:
+            ax.fill_between(gx, _arr(f["band_low"]), _arr(f["band_high"]), color=TEAL, alpha=0.18, lw=0,
+                            label=f"{100 * float(f.get('ci_level', 0.95)):g} % band ({f.get('interval_method')})")
+        ax.plot(gx, gy, "-", color=TEAL, lw=2.0, label="fitted mapping")
+        x, y = _arr(f["index_values"]), _arr(f["observed_percent"])
+        lo, hi = _arr(f["observed_low"]), _arr(f["observed_high"])
+        ax.errorbar(x, y, yerr=[y - lo, hi - y], fmt="o", color=COPPER, ms=5, capsize=3,
+                    label="pilot rows (exact binomial 95 % intervals)")
+        ax.set_ylim(-2, 102)
+        ax.set_ylabel("% correct")
+        ax.set_title(f"Fitted mapping from {key.upper()} to % correct")
+        ax.legend(loc="lower right", fontsize=9, frameon=False)
+        res = _arr(f["pearson_residual"])
+        axr.axhline(0.0, color=INK, lw=0.8)
+        for v in (-2.0, 2.0):
+            axr.axhline(v, color=BRICK, lw=0.8, ls=":")
+        axr.plot(x, res, "o", color=COPPER, ms=5)
+        axr.set_xlim(ax.get_xlim())
+        axr.set_xlabel(key)
+        axr.set_ylabel("Pearson residual")
+        p.figures.append(Figure("mapping_fit", "The fitted mapping with its pointwise band, the pilot rows with "
+                                "their exact binomial intervals (top), and the Pearson residuals (bottom; dotted: "
+                                "+-2).", _png(fig)))
+        rows = [[num(d, f"fit_data.index_values.{i}", ".4g"), num(d, f"fit_data.correct.{i}", "g"),
+                 num(d, f"fit_data.trials.{i}", "g"), num(d, f"fit_data.observed_percent.{i}", ".1f"),
+                 num(d, f"fit_data.observed_low.{i}", ".1f"), num(d, f"fit_data.observed_high.{i}", ".1f"),
+                 num(d, f"fit_data.fitted_percent.{i}", ".1f"), num(d, f"fit_data.pearson_residual.{i}", ".2f")]
+                for i in range(x.size)]
+        p.tables.append(Table("Pilot rows", [key, "correct", "trials", "observed, %", "low, %", "high, %",
+                                             "fitted, %", "Pearson residual"], rows))
+    prow = []
+    for k in params:
+        prow.append([Cell(html.escape(str(k))), num(d, f"params.{k}", ".4g"), num(d, f"ci.{k}.0", ".4g"),
+                     num(d, f"ci.{k}.1", ".4g")])
+    if prow:
+        p.tables.append(Table("Parameters", ["parameter", "estimate", "low", "high"], prow))
+    for n in d.get("notes") or []:
+        p.notes.append(str(n))
+    return p
+
+
+# ---------------------------------------------------------------------------
 # inspect
 # ---------------------------------------------------------------------------
 
@@ -1188,7 +1248,7 @@ def _page_survey(d: Mapping) -> Page:
 
 _PAGES: dict[str, Callable[[Mapping], Page]] = {
     "ir": _page_ir, "stipa": _page_stipa, "fullsti": _page_stipa, "pair": _page_pair, "compare": _page_compare,
-    "sweep": _page_sweep, "inspect": _page_inspect, "survey": _page_survey,
+    "sweep": _page_sweep, "inspect": _page_inspect, "survey": _page_survey, "fitmap": _page_fitmap,
 }
 
 

@@ -91,16 +91,20 @@ def fitmap_command(
                                         "binomial (never widened)."),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help="Write the mapping (MAP.json) to this file, atomically."),
+    report: Path | None = typer.Option(None, "--report", help=REPORT_HELP + " (the fitted curve with its band, "
+                                                               "the pilot rows with their intervals, the residuals)"),
 ) -> None:
     """Fit a mapping from an index to % correct (binomial maximum likelihood) on pilot scores."""
-    from envpredict.mapping import fit_mapping_file
+    from envpredict.mapping import fit_mapping_file, fit_report_data
 
-    check_outputs(out=out, inputs=[scores])
+    check_outputs(out=out, report=report, inputs=[scores])
     m, data = fit_mapping_file(scores, index=index, correct=correct, trials=trials, shape=shape, guess=guess,
                                lapse=lapse, dispersion=dispersion, listener=listener)
     d = m.to_dict()
     d["inputs"] = {"scores": str(scores), "index": index, "correct": correct, "trials": trials, "shape": shape,
                    "guess": guess, "lapse": lapse, "dispersion": dispersion, "listener": listener}
+    write_report_if(report, "fitmap", {**d, "fit_data": fit_report_data(m, data)}, as_json=as_json,
+                    title=f"Mapping from {index} to % correct: {scores.name}")
     trows = [[f"{xi:.4g}", f"{ki:g}", f"{ni:g}", f"{oi:.1f}", f"{fi:.1f}"]
              for xi, ki, ni, oi, fi in zip(data.index_values, data.correct, data.trials, data.observed_percent,
                                            data.fitted_percent)]
