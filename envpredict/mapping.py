@@ -260,6 +260,37 @@ class GoodnessOfFit:
 
 
 @dataclass(frozen=True)
+class ListenerFit:
+    """The mapping fitted to one listener's rows (``error`` when it cannot be fitted)."""
+
+    listener: str
+    n_points: int
+    n_trials: int
+    a: float | None = None
+    b: float | None = None
+    x50: float | None = None
+    slope_at_x50: float | None = None
+    error: str = ""
+
+    def to_dict(self) -> dict:
+        return jsonable({"listener": self.listener, "n_points": self.n_points, "n_trials": self.n_trials,
+                         "a": self.a, "b": self.b, "x50": self.x50, "slope_at_x50": self.slope_at_x50,
+                         "error": self.error or None})
+
+
+def listener_spread(fits: Sequence[ListenerFit]) -> dict:
+    """Mean and standard deviation over listeners of x50 and of the slope at x50 (the
+    listeners that could be fitted), and how many were."""
+    ok = [f for f in fits if f.x50 is not None]
+    out: dict[str, Any] = {"n_listeners": len(fits), "n_fitted": len(ok)}
+    for key in ("x50", "slope_at_x50"):
+        v = np.array([getattr(f, key) for f in ok], dtype=float)
+        out[f"{key}_mean"] = float(v.mean()) if v.size else None
+        out[f"{key}_sd"] = float(v.std(ddof=1)) if v.size > 1 else None
+    return jsonable(out)
+
+
+@dataclass(frozen=True)
 class ScoreMapping:
     """A psychometric function from an index value to the proportion correct.
 
@@ -307,6 +338,7 @@ class ScoreMapping:
     dispersion: float = 1.0
     dispersion_estimate: float | None = None
     ci_df: int | None = None
+    listeners: tuple[ListenerFit, ...] = ()
 
     @property
     def interval_method(self) -> str:
@@ -438,6 +470,8 @@ class ScoreMapping:
             "dispersion": self.dispersion,
             "dispersion_estimate": self.dispersion_estimate,
             "ci_df": self.ci_df,
+            "listeners": [f.to_dict() for f in self.listeners] if self.listeners else None,
+            "listener_spread": listener_spread(self.listeners) if self.listeners else None,
             "source": self.source,
             "cautions": [],
             "notes": list(self.notes),
@@ -892,6 +926,7 @@ def scores_from_rows(
 
     ``rows`` are ``(line_number, {column: text})`` pairs as read from a CSV file;
     errors name ``source``, the line and the column. Counts must be whole numbers.
+    (:func:`listener_labels` reads a listener column of the same rows.)
 
     Raises
     ------
@@ -923,6 +958,39 @@ def scores_from_rows(
         ks.append(kk)
         ns.append(nn)
     return np.array(xs), np.array(ks), np.array(ns)
+
+
+def listener_labels(rows: Sequence[tuple[int, MappingType[str, Any]]], header: Sequence[str], column: str,
+                    source: str = "scores") -> list[str]:
+    """The listener of each row (a blank cell is refused, naming the row)."""
+    col = resolve_column(header, column, source)
+    out = []
+    for line, row in rows:
+        v = str(row.get(col) or "").strip()
+        if not v:
+            raise InputError(f"{source}, row {line}, column '{col}' is blank", "name the listener of every row")
+        out.append(v)
+    return out
+
+
+def fit_listeners(x: np.ndarray, k: np.ndarray, n: np.ndarray, labels: Sequence[str], **options) -> tuple[
+        ListenerFit, ...]:
+    """:func:`fit_mapping` per listener (rows grouped by ``labels``, in order of first
+    appearance); a listener whose rows cannot determine a curve gets the reason in
+    ``error`` instead of parameters."""
+    out = []
+    lab = np.asarray(list(labels), dtype=object)
+    for name in dict.fromkeys(labels):
+        sel = lab == name
+        try:
+            m = fit_mapping(x[sel], k[sel], n[sel], dispersion="binomial", **options)
+        except (ComputationError, InputError) as e:
+            out.append(ListenerFit(listener=str(name), n_points=int(sel.sum()), n_trials=int(n[sel].sum()),
+                                   error=e.what))
+            continue
+        out.append(ListenerFit(listener=str(name), n_points=int(sel.sum()), n_trials=int(n[sel].sum()), a=m.a,
+                               b=m.b, x50=m.x50, slope_at_x50=m.slope_at_x50))
+    return tuple(out)
 
 
 def predict_scores(values: Any, mapping: ScoreMapping) -> np.ndarray:
@@ -1163,6 +1231,48 @@ class ScoreData:
         return 100.0 * self.correct / self.trials
 
 
+#: Points of the fitted curve drawn in a fit report, and how far past the data it runs
+#: (share of the data's index range on each side; judgement).
+FIT_CURVE_POINTS: int = 101
+FIT_CURVE_MARGIN: float = 0.1
+
+
+def fit_report_data(mapping: ScoreMapping, data: ScoreData) -> dict:
+    """What a fit report draws, computed here (the report draws and computes nothing):
+    the fitted curve over the data's index range (and a margin) with its pointwise band
+    at :data:`CI_LEVEL` (delta method on eta = a + b x with the mapping's covariance and
+    quantile, mapped through F), each row's observed percent with its exact binomial
+    (Clopper-Pearson) interval (``scipy.stats.binomtest``), and the Pearson residuals
+    ``(k - n p) / sqrt(n p (1 - p))``."""
+    from scipy.stats import binomtest
+
+    x = np.asarray(data.index_values, dtype=float)
+    lo, hi = float(x.min()), float(x.max())
+    pad = FIT_CURVE_MARGIN * (hi - lo)
+    grid = np.linspace(lo - pad, hi + pad, FIT_CURVE_POINTS)
+    out: dict[str, Any] = {"index": mapping.index, "curve_index": grid, "curve_percent": mapping.percent(grid),
+                           "band_low": None, "band_high": None, "ci_level": CI_LEVEL,
+                           "interval_method": mapping.interval_method}
+    if mapping.cov is not None:
+        c = np.asarray(mapping.cov, dtype=float)
+        se = np.sqrt(np.maximum(c[0, 0] + 2 * grid * c[0, 1] + grid * grid * c[1, 1], 0.0))
+        eta = mapping.a + mapping.b * grid
+        q = mapping.quantile()
+        out["band_low"] = 100.0 * (mapping.guess + mapping.span * _cdf(mapping.shape, eta - q * se))
+        out["band_high"] = 100.0 * (mapping.guess + mapping.span * _cdf(mapping.shape, eta + q * se))
+    k, n = np.asarray(data.correct, dtype=int), np.asarray(data.trials, dtype=int)
+    cis = [binomtest(int(ki), int(ni)).proportion_ci(confidence_level=CI_LEVEL, method="exact") for ki, ni in zip(k, n)]
+    p = np.clip(mapping.proportion(x), P_CLIP, 1 - P_CLIP)
+    out.update({
+        "index_values": x, "correct": k, "trials": n, "observed_percent": 100.0 * k / n,
+        "observed_low": np.array([100.0 * c.low for c in cis]),
+        "observed_high": np.array([100.0 * c.high for c in cis]),
+        "fitted_percent": 100.0 * p, "pearson_residual": (k - n * p) / np.sqrt(n * p * (1 - p)),
+    })
+    return jsonable({key: (np.round(v, 4) if isinstance(v, np.ndarray) and v.dtype.kind == "f" else v)
+                     for key, v in out.items()})
+
+
 def fit_mapping_file(
     path: str | os.PathLike,
     *,
@@ -1173,6 +1283,7 @@ def fit_mapping_file(
     guess: float = std.MAPPING_GUESS,
     lapse: float = std.MAPPING_LAPSE,
     dispersion: str = DEFAULT_DISPERSION,
+    listener: str | None = None,
 ) -> tuple[ScoreMapping, ScoreData]:
     """Fit a mapping (:func:`fit_mapping`) to the columns of a scores table (CSV).
 
@@ -1184,6 +1295,11 @@ def fit_mapping_file(
     index : column holding the index value; also the index name stored in the mapping.
     correct, trials : columns holding the number of items correct and presented.
     shape, guess, lapse, dispersion : as for :func:`fit_mapping`.
+    listener : column naming the listener of each row, or ``None``. With it the group
+        mapping is fitted to all rows (the quasi-binomial intervals then take the
+        between-listener scatter into account), each listener is fitted on his or her
+        own rows (binomial), and the mapping carries ``listeners`` and the spread of
+        x50 and of the slope across them (:func:`listener_spread`).
 
     Returns
     -------
@@ -1206,9 +1322,16 @@ def fit_mapping_file(
     header, rows = read_table(path, "scores file")
     x, k, n = scores_from_rows(rows, header, index=index, correct=correct, trials=trials,
                                source=f"scores file '{path}'")
+    labels = None if listener is None else listener_labels(rows, header, listener, source=f"scores file '{path}'")
     m = fit_mapping(x, k, n, index=index, shape=shape, guess=guess, lapse=lapse, dispersion=dispersion,
                     source=f"binomial maximum-likelihood fit to {len(rows)} rows of '{Path(path).name}' "
                            f"(columns {index}, {correct}, {trials})")
+    if labels is not None:
+        from dataclasses import replace
+
+        fits = fit_listeners(x, k, n, labels, index=index, shape=shape, guess=guess, lapse=lapse)
+        m = replace(m, listeners=fits, notes=m.notes + tuple(
+            f"listener {f.listener}: no curve of his or her own ({f.error})" for f in fits if f.error))
     return m, ScoreData(index_values=x, correct=k, trials=n, fitted_percent=m.percent(x))
 
 

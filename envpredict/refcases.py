@@ -26,7 +26,8 @@ Case file format
                 * ``sweep``, ``stipa``, ``fullsti``, ``stoi``, ``estoi``, ``ssti``: a signal recipe
                   (``reference_cases/recipes.py``: plain numpy/scipy, not the product's
                   generator ``envpredict.signals``);
-                * ``mapping``: the data rows ``{"index", "correct", "trials", "shape"}``;
+                * ``mapping``: the data rows ``{"index", "correct", "trials", "shape"}`` and
+                  optionally ``"dispersion"`` (``"binomial"`` when absent, or ``"quasi"``);
                 * ``design``: the scene (as in a scene file).
 ``settings``    ``ir``, ``sweep``: ``noise_db`` (7 values or null), ``speech_level_dba``, ``talker``,
                 ``auditory``; ``stipa``/``fullsti``: ``talker``; ``design``: ``talker``, ``auditory``
@@ -286,7 +287,8 @@ def _mapping_quantities(case: dict, folder: Path | None) -> dict:
     import envpredict
 
     rows = case["input"]
-    m = envpredict.fit_mapping(rows["index"], rows["correct"], rows["trials"], shape=rows.get("shape", "logistic"))
+    m = envpredict.fit_mapping(rows["index"], rows["correct"], rows["trials"], shape=rows.get("shape", "logistic"),
+                               dispersion=rows.get("dispersion", "binomial"))
     se = np.sqrt(np.diag(np.asarray(m.cov, dtype=float)))
     return {"a": m.a, "b": m.b, "se_a": se[0], "se_b": se[1]}
 

@@ -42,7 +42,8 @@ from . import checks
 from . import standards as std
 from .exceptions import InputError
 
-KINDS: tuple[str, ...] = ("ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey", "design")
+KINDS: tuple[str, ...] = ("ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey", "design",
+                          "fitmap")
 
 KIND_TITLES: dict[str, str] = {
     "ir": "STI and decay figures from an impulse response",
@@ -54,6 +55,7 @@ KIND_TITLES: dict[str, str] = {
     "inspect": "Envelope, periodicity and fine structure of a recording",
     "survey": "Site survey: STI per position and zone",
     "design": "Design prediction: STI of a room and its loudspeakers",
+    "fitmap": "Mapping from an index to % correct, fitted on pilot scores",
 }
 
 # ---------------------------------------------------------------------------
@@ -764,8 +766,17 @@ def _page_sweep(d: Mapping) -> Page:
     new = _mpl()
     fig = new(10.0, 4.8)
     ax = fig.add_subplot(111)
+    mp0 = d.get("mapping") if isinstance(d.get("mapping"), Mapping) else None
+    rng = mp0.get("index_range") if mp0 else None
+    outside = np.zeros(snr.size, dtype=bool)
+    if isinstance(rng, (list, tuple)) and len(rng) == 2 and idx.size == snr.size:
+        outside = (idx < float(rng[0])) | (idx > float(rng[1]))
     if pred is not None and pred.size:
-        ax.plot(snr, pred, "-o", color=TEAL, lw=2.0, ms=4.5, label="predicted score")
+        ax.plot(snr, pred, "-", color=TEAL, lw=2.0, label="predicted score")
+        ax.plot(snr[~outside], pred[~outside], "o", color=TEAL, ms=4.5)
+        if outside.any():
+            ax.plot(snr[outside], pred[outside], "o", mfc="white", mec=TEAL, ms=5.5,
+                    label="extrapolated (outside the fitted index range)")
         ax.set_ylabel("predicted score, % correct")
         ax.set_ylim(-2, 102)
         for t in targets:
@@ -774,6 +785,9 @@ def _page_sweep(d: Mapping) -> Page:
                 continue
             is_srt = abs(pc - 50.0) < 1e-9
             col = COPPER if is_srt else PLUM
+            mlo, mhi = t.get("map_ci_low"), t.get("map_ci_high")
+            if mlo is not None and mhi is not None:
+                ax.axvspan(mlo, mhi, facecolor="none", edgecolor=col, alpha=0.5, hatch="///", lw=0.0)
             if lo is not None and hi is not None:
                 ax.axvspan(lo, hi, color=col, alpha=0.15, lw=0)
             ax.plot([s, s], [-2, pc], color=col, lw=1.3, ls="--")
@@ -791,7 +805,12 @@ def _page_sweep(d: Mapping) -> Page:
                     ha="right", va="bottom", fontsize=10, color=BRICK)
         ax.set_title(f"Predicted psychometric function ({name} mapped to % correct)")
         cap = ("Predicted score against SNR; the dashed line marks the predicted speech reception threshold "
-               "(SRT, 50 % correct) and the shaded strip its confidence interval over noise segments.")
+               "(SRT, 50 % correct), the shaded strip its confidence interval over noise segments and the hatched "
+               "strip the interval from the mapping's own uncertainty"
+               + ("; hollow points lie outside the index range the mapping was fitted on (extrapolations)."
+                  if outside.any() else "."))
+        if outside.any():
+            ax.legend(loc="lower right", fontsize=9, frameon=False)
     else:
         sd = _arr(d.get("index_sd")) if d.get("index_sd") is not None else None
         ax.plot(snr, idx, "-o", color=TEAL, lw=2.0, ms=4.5)
@@ -814,12 +833,31 @@ def _page_sweep(d: Mapping) -> Page:
         (["predicted, %"] if pred is not None else [])
     p.tables.append(Table("Sweep", head, rows))
     if targets:
+        def extrapolated(t):
+            v = t.get("index_value")
+            if not (isinstance(rng, (list, tuple)) and len(rng) == 2 and v is not None):
+                return ""
+            return "extrapolated (outside the fitted index range)" if not rng[0] <= v <= rng[1] else ""
+
         trow = [[num(d, f"targets.{i}.percent", "g"), num(d, f"targets.{i}.snr_db", ".1f"),
                  num(d, f"targets.{i}.ci_low", ".1f"), num(d, f"targets.{i}.ci_high", ".1f"),
+                 num(d, f"targets.{i}.map_ci_low", ".1f"), num(d, f"targets.{i}.map_ci_high", ".1f"),
                  num(d, f"targets.{i}.index_value", ".3f"), num(d, f"targets.{i}.slope_percent_per_db", ".1f"),
-                 txt(t.get("note") or "")] for i, t in enumerate(targets)]
-        p.tables.append(Table("Targets", ["target, %", "SNR, dB", "CI low, dB", "CI high, dB", f"{name} there",
-                                          "slope, %/dB", "note"], trow))
+                 txt("; ".join(x for x in (t.get("note") or "", extrapolated(t)) if x))]
+                for i, t in enumerate(targets)]
+        p.tables.append(Table("Targets (95 % intervals: noise segments; mapping)",
+                              ["target, %", "SNR, dB", "CI low, dB", "CI high, dB", "mapping low, dB",
+                               "mapping high, dB", f"{name} there", "slope, %/dB", "note"], trow))
+        if (d.get("n_sentences") or 1) > 1:
+            srow = [[num(d, f"targets.{i}.percent", "g"), num(d, f"targets.{i}.sentence_sd_db", ".2f"),
+                     num(d, f"targets.{i}.sentence_ci_low", ".1f"), num(d, f"targets.{i}.sentence_ci_high", ".1f"),
+                     num(d, f"targets.{i}.combined_ci_low", ".1f"), num(d, f"targets.{i}.combined_ci_high", ".1f"),
+                     num(d, f"targets.{i}.total_ci_low", ".1f"), num(d, f"targets.{i}.total_ci_high", ".1f")]
+                    for i in range(len(targets))]
+            p.tables.append(Table(f"Targets over {d['n_sentences']} sentences (95 % intervals)",
+                                  ["target, %", "SD over sentences, dB", "sentences low", "sentences high",
+                                   "combined low", "combined high", "with mapping low", "with mapping high"],
+                                  srow))
     mp = d.get("mapping") if isinstance(d.get("mapping"), Mapping) else None
     if mp:
         rows = [[Cell("formula"), txt(mp.get("formula"))]]
@@ -834,6 +872,65 @@ def _page_sweep(d: Mapping) -> Page:
                        + ("." if act is None else f"; activity factor of the speech {100 * act:.1f} %."))
     if d.get("level_convention_text"):
         p.notes.append(f"Level convention ({d.get('level_convention', '')}): {d['level_convention_text']}.")
+    for n in d.get("notes") or []:
+        p.notes.append(str(n))
+    return p
+
+
+# ---------------------------------------------------------------------------
+# fitmap
+# ---------------------------------------------------------------------------
+
+def _page_fitmap(d: Mapping) -> Page:
+    p = Page()
+    f = d.get("fit_data") if isinstance(d.get("fit_data"), Mapping) else {}
+    key = str(d.get("index") or "index")
+    params = d.get("params") if isinstance(d.get("params"), Mapping) else {}
+    if params.get("x50") is not None:
+        p.headline.append(("x50", num(d, "params.x50", ".4g")))
+    if d.get("interval_method"):
+        p.headline.append(("intervals", txt(d["interval_method"])))
+    if f.get("curve_index") is not None and f.get("index_values") is not None:
+        new = _mpl()
+        fig = new(10.0, 6.4)
+        ax, axr = fig.add_subplot(211), fig.add_subplot(212)
+        gx, gy = _arr(f["curve_index"]), _arr(f["curve_percent"])
+        if f.get("band_low") is not None:
+            ax.fill_between(gx, _arr(f["band_low"]), _arr(f["band_high"]), color=TEAL, alpha=0.18, lw=0,
+                            label=f"{100 * float(f.get('ci_level', 0.95)):g} % band ({f.get('interval_method')})")
+        ax.plot(gx, gy, "-", color=TEAL, lw=2.0, label="fitted mapping")
+        x, y = _arr(f["index_values"]), _arr(f["observed_percent"])
+        lo, hi = _arr(f["observed_low"]), _arr(f["observed_high"])
+        ax.errorbar(x, y, yerr=[y - lo, hi - y], fmt="o", color=COPPER, ms=5, capsize=3,
+                    label="pilot rows (exact binomial 95 % intervals)")
+        ax.set_ylim(-2, 102)
+        ax.set_ylabel("% correct")
+        ax.set_title(f"Fitted mapping from {key.upper()} to % correct")
+        ax.legend(loc="lower right", fontsize=9, frameon=False)
+        res = _arr(f["pearson_residual"])
+        axr.axhline(0.0, color=INK, lw=0.8)
+        for v in (-2.0, 2.0):
+            axr.axhline(v, color=BRICK, lw=0.8, ls=":")
+        axr.plot(x, res, "o", color=COPPER, ms=5)
+        axr.set_xlim(ax.get_xlim())
+        axr.set_xlabel(key)
+        axr.set_ylabel("Pearson residual")
+        p.figures.append(Figure("mapping_fit", "The fitted mapping with its pointwise band, the pilot rows with "
+                                "their exact binomial intervals (top), and the Pearson residuals (bottom; dotted: "
+                                "+-2).", _png(fig)))
+        rows = [[num(d, f"fit_data.index_values.{i}", ".4g"), num(d, f"fit_data.correct.{i}", "g"),
+                 num(d, f"fit_data.trials.{i}", "g"), num(d, f"fit_data.observed_percent.{i}", ".1f"),
+                 num(d, f"fit_data.observed_low.{i}", ".1f"), num(d, f"fit_data.observed_high.{i}", ".1f"),
+                 num(d, f"fit_data.fitted_percent.{i}", ".1f"), num(d, f"fit_data.pearson_residual.{i}", ".2f")]
+                for i in range(x.size)]
+        p.tables.append(Table("Pilot rows", [key, "correct", "trials", "observed, %", "low, %", "high, %",
+                                             "fitted, %", "Pearson residual"], rows))
+    prow = []
+    for k in params:
+        prow.append([Cell(html.escape(str(k))), num(d, f"params.{k}", ".4g"), num(d, f"ci.{k}.0", ".4g"),
+                     num(d, f"ci.{k}.1", ".4g")])
+    if prow:
+        p.tables.append(Table("Parameters", ["parameter", "estimate", "low", "high"], prow))
     for n in d.get("notes") or []:
         p.notes.append(str(n))
     return p
@@ -1305,6 +1402,7 @@ def _page_design(d: Mapping) -> Page:
 _PAGES: dict[str, Callable[[Mapping], Page]] = {
     "ir": _page_ir, "stipa": _page_stipa, "fullsti": _page_stipa, "pair": _page_pair, "compare": _page_compare,
     "sweep": _page_sweep, "inspect": _page_inspect, "survey": _page_survey, "design": _page_design,
+    "fitmap": _page_fitmap,
 }
 
 

@@ -49,9 +49,9 @@ MAX_STIMULI: int = 401
 
 #: Columns of the manifest (the keys of :meth:`Stimulus.to_dict`).
 MANIFEST_COLUMNS: tuple[str, ...] = (
-    "file", "snr_db", "snr_reference", "level_convention", "speech_active_level_db", "speech_long_term_level_db",
-    "noise_level_db", "mixture_level_db", "peak_db", "noise_offset_s", "noise_offset_samples", "common_gain_db",
-    "seed",
+    "file", "sentence", "snr_db", "snr_reference", "level_convention", "speech_active_level_db",
+    "speech_long_term_level_db", "noise_level_db", "mixture_level_db", "peak_db", "noise_offset_s",
+    "noise_offset_samples", "common_gain_db", "seed",
 )
 
 
@@ -60,6 +60,7 @@ class Stimulus:
     """One written mixture: its file name, SNR and levels (dB re full scale)."""
 
     file: str
+    sentence: str
     snr_db: float
     snr_reference: str
     level_convention: str
@@ -144,6 +145,7 @@ def write_stimuli(
     scale_to_fit: bool = False,
     seed: int = std.TEST_SIGNAL_SEED,
     name: str = "stimulus",
+    names: Sequence[str] | None = None,
 ) -> StimuliResult:
     """Write speech-in-noise mixtures at the given SNRs, and their manifest, to a new folder.
 
@@ -160,6 +162,8 @@ def write_stimuli(
     ----------
     folder : new or empty folder to write (it appears whole or not at all).
     clean, noise : speech and noise at ``fs``; the noise at least as long as the speech.
+        ``clean`` may be a list of sentences: each is brought to the presentation level
+        on its own, mixed at every SNR, and named by ``names`` (default NAME01, ...).
     fs : sample rate, Hz.
     snr_db : SNRs, dB (at most :data:`MAX_STIMULI`; repeated values after rounding are
         written once).
@@ -172,7 +176,8 @@ def write_stimuli(
         brings the loudest peak to :data:`FIT_PEAK_DB` (the manifest and the result give
         the gain) instead of refusing.
     seed : seed of the noise-segment draw (the same seed gives the same files).
-    name : start of the file names (``NAME_snr-6.0dB.wav``).
+    name : start of the file names (``NAME_snr-6.0dB.wav``) of one sentence.
+    names : names of the sentences of a list (e.g. their file names without suffix).
 
     Returns
     -------
@@ -214,34 +219,42 @@ def write_stimuli(
     if not isinstance(seed, (int, np.integer)) or seed < 0:
         raise InputError(f"seed {seed!r} is not a whole number >= 0", "give e.g. --seed 0")
     fs = check_rate(fs, "clean speech")
-    x = validate_signal(clean, fs, name="clean speech")
+    many = not isinstance(clean, np.ndarray) and isinstance(clean, (list, tuple))
+    items = list(clean) if many else [clean]
+    labels = [str(n) for n in names] if names is not None else (
+        [f"{name}{i + 1:02d}" for i in range(len(items))] if many else [name])
+    if len(labels) != len(items) or len(set(labels)) != len(labels):
+        raise InputError("the sentence names are not one distinct name per sentence", "give one name per sentence")
+    if len(items) * snrs.size > MAX_STIMULI:
+        raise InputError(f"{len(items) * snrs.size} stimuli asked for (at most {MAX_STIMULI})",
+                         "give fewer SNRs or sentences")
     nz = validate_signal(noise, fs, name="noise", allow_clipping=True)
-    speech = x
-    if ir is not None:
-        h = validate_signal(ir, fs, name="impulse response", allow_clipping=True)
-        speech = fftconvolve(x, h[onset_index(h):])[: x.size]
-    L = x.size
-    if nz.size < L:
-        raise InputError(f"the noise ({nz.size / fs:.2f} s) is shorter than the speech ({L / fs:.2f} s)",
-                         "give a noise recording at least as long as the speech")
-    lev = active_speech_level(speech, fs)
-    p_long = float(np.mean(speech * speech))
-    p_ref = lev.active_mean_square if reference == "active" else p_long
+    h = None if ir is None else validate_signal(ir, fs, name="impulse response", allow_clipping=True)
     target = 10.0 ** (pres / 10.0)
     rng = np.random.default_rng(int(seed))
-    offsets = rng.integers(0, nz.size - L + 1, size=snrs.size)
-
     mixes, rows = [], []
-    for s, o in zip(snrs, offsets):
-        seg = nz[o:o + L]
-        p_noise = float(np.mean(seg * seg))
-        if p_noise <= 0:
-            raise InputError(f"noise segment at {o / fs:.2f} s is silent", "give a noise without silent stretches")
-        g = math.sqrt(p_ref / (p_noise * 10.0 ** (s / 10.0)))
-        mix = speech + g * seg
-        k = math.sqrt(target / (p_ref if level == "speech" else float(np.mean(mix * mix))))
-        mixes.append(k * mix)
-        rows.append((float(s), int(o), k * k, g * g * p_noise))
+    for label, xi in zip(labels, items):
+        x = validate_signal(xi, fs, name="clean speech" if not many else f"sentence '{label}'")
+        speech = x if h is None else fftconvolve(x, h[onset_index(h):])[: x.size]
+        L = x.size
+        if nz.size < L:
+            raise InputError(f"the noise ({nz.size / fs:.2f} s) is shorter than the speech ({L / fs:.2f} s)",
+                             "give a noise recording at least as long as the speech")
+        lev = active_speech_level(speech, fs)
+        p_long = float(np.mean(speech * speech))
+        p_ref = lev.active_mean_square if reference == "active" else p_long
+        offsets = rng.integers(0, nz.size - L + 1, size=snrs.size)
+        for s, o in zip(snrs, offsets):
+            seg = nz[o:o + L]
+            p_noise = float(np.mean(seg * seg))
+            if p_noise <= 0:
+                raise InputError(f"noise segment at {o / fs:.2f} s is silent",
+                                 "give a noise without silent stretches")
+            g = math.sqrt(p_ref / (p_noise * 10.0 ** (s / 10.0)))
+            mix = speech + g * seg
+            k = math.sqrt(target / (p_ref if level == "speech" else float(np.mean(mix * mix))))
+            mixes.append(k * mix)
+            rows.append((label, float(s), int(o), k * k, g * g * p_noise, lev.active_mean_square, p_long))
     peaks = np.array([float(np.max(np.abs(m))) for m in mixes])
     common = 1.0
     notes = [f"noise segments drawn with seed {seed}: the same inputs and seed give the same files"]
@@ -250,8 +263,9 @@ def write_stimuli(
         worst = int(np.argmax(peaks))
         over = 20.0 * math.log10(peaks[worst])
         if not scale_to_fit:
+            which = f"of {rows[worst][0]} " if many else ""
             raise InputError(
-                f"the mixture at {snrs[worst]:g} dB SNR would clip (peak {over:+.1f} dB re full scale at a "
+                f"the mixture {which}at {rows[worst][1]:g} dB SNR would clip (peak {over:+.1f} dB re full scale at a "
                 f"presentation level of {pres:g} dB)",
                 f"lower the presentation level by at least {over - FIT_PEAK_DB:.1f} dB, or scale all files to fit")
         common = 10.0 ** (FIT_PEAK_DB / 20.0) / float(peaks.max())
@@ -261,14 +275,14 @@ def write_stimuli(
     gain_db = 20.0 * math.log10(common)
     stimuli = []
     with atomic_directory(out) as tmp:
-        for (s, o, k2, pn), mix, peak in zip(rows, mixes, peaks):
+        for (label, s, o, k2, pn, p_act, p_long), mix, peak in zip(rows, mixes, peaks):
             y = common * mix
-            fname = f"{name}_snr{s:+.1f}dB.wav"
+            fname = f"{label}_snr{s:+.1f}dB.wav"
             write_wav(Path(tmp) / fname, y, fs, subtype=STIMULUS_SUBTYPE)
             c2 = common * common
             stimuli.append(Stimulus(
-                file=fname, snr_db=s, snr_reference=reference, level_convention=level,
-                speech_active_level_db=_db(lev.active_mean_square * k2 * c2),
+                file=fname, sentence=label, snr_db=s, snr_reference=reference, level_convention=level,
+                speech_active_level_db=_db(p_act * k2 * c2),
                 speech_long_term_level_db=_db(p_long * k2 * c2), noise_level_db=_db(pn * k2 * c2),
                 mixture_level_db=_db(float(np.mean(y * y))), peak_db=20.0 * math.log10(common * peak),
                 noise_offset_s=o / fs, noise_offset_samples=o, common_gain_db=gain_db, seed=int(seed)))
@@ -312,12 +326,17 @@ def write_stimuli_files(
     from .sweep import sentence_files
 
     check_stimuli_folder(folder)
-    if len(sentence_files(clean)) > 1:
-        raise InputError("stimuli from several sentences are not written yet",
-                         "write them per sentence (one --write-stimuli folder per sentence file)")
-    x, fs = load_audio(clean, channel, name="clean speech")
-    nz, fs_n = load_audio(noise, channel, name="noise")
+    files = sentence_files(clean)
+    x, fs = load_audio(files[0], channel, name="clean speech" if len(files) == 1 else f"sentence '{files[0]}'")
     notes = []
+    xs = [x]
+    for f in files[1:]:
+        y, fs_y = load_audio(f, channel, name=f"sentence '{f}'")
+        if fs_y != fs:
+            notes.append(f"sentence '{f.name}' was resampled from {fs_y} Hz to {fs} Hz")
+            y = resample(y, fs_y, fs)
+        xs.append(y)
+    nz, fs_n = load_audio(noise, channel, name="noise")
     if fs_n != fs:
         notes.append(f"the noise was resampled from {fs_n} Hz to {fs} Hz")
         nz = resample(nz, fs_n, fs)
@@ -327,5 +346,11 @@ def write_stimuli_files(
         if fs_h != fs:
             notes.append(f"the impulse response was resampled from {fs_h} Hz to {fs} Hz")
             h = resample(h, fs_h, fs)
-    res = write_stimuli(folder, x, nz, fs, snr_db, ir=h, **options)
+    if len(xs) > 1:
+        stems = [f.stem for f in files]
+        if len(set(stems)) != len(stems):
+            raise InputError("two sentence files have the same name", "give sentences with distinct file names")
+        res = write_stimuli(folder, xs, nz, fs, snr_db, ir=h, names=stems, **options)
+    else:
+        res = write_stimuli(folder, x, nz, fs, snr_db, ir=h, **options)
     return replace(res, notes=tuple(notes) + res.notes) if notes else res

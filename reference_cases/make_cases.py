@@ -496,6 +496,24 @@ def mapping_cases():
             "expected": {q: {"value": round(float(v), 10), "abs_tol": TOL_MAPPING}
                          for q, v in zip(("a", "b", "se_a", "se_b"), [*res.params, *res.bse])},
         })
+        if shape == "logistic":
+            # the same rows with the quasi-binomial intervals: standard errors times
+            # sqrt(Pearson chi-square / df) (here 2.06 > 1)
+            phi = float(res.pearson_chi2 / res.df_resid)
+            write({
+                "id": "mapping_quasi_binomial",
+                "method": "mapping",
+                "title": f"Quasi-binomial logit fit of the same 8 rows: a, b and their standard errors widened by "
+                         f"the dispersion (Pearson chi-square / df = {phi:.3g})",
+                "source": (f"statsmodels {statsmodels.__version__}: GLM(Binomial, link=logit).fit(method='newton'); "
+                           "standard errors bse * sqrt(pearson_chi2 / df_resid) (quasi-binomial, McCullagh & "
+                           "Nelder 1989, 4.5.2); rows as in mapping_logistic"),
+                "input": {"index": x.tolist(), "correct": k.tolist(), "trials": trials.tolist(), "shape": shape,
+                          "dispersion": "quasi"},
+                "expected": {q: {"value": round(float(v), 10), "abs_tol": TOL_MAPPING}
+                             for q, v in zip(("a", "b", "se_a", "se_b"),
+                                             [*res.params, *(res.bse * math.sqrt(max(phi, 1.0)))])},
+            })
 
 
 SRC_DESIGN = ("Houtgast, Steeneken & Plomp (1980), Acustica 46: m(F) = |D + R/(1 + j 2 pi F T/13.8)| / (D + R) "

@@ -561,3 +561,75 @@ def test_binomial_looking_data_keep_the_binomial_intervals():
     assert mq.ci() == mb.ci()
     with pytest.raises(InputError, match="dispersion"):
         fit_mapping(x, k, n, dispersion="beta")
+
+
+# ---------------------------------------------------------------------------
+# Per-listener data
+# ---------------------------------------------------------------------------
+
+def test_fitmap_per_listener_and_group(tmp_path, capsys):
+    sm = pytest.importorskip("statsmodels.api")
+    rng = np.random.default_rng(41)
+    x = np.linspace(0.45, 0.85, 6)
+    rows, truth = [], {"L1": 0.58, "L2": 0.63, "L3": 0.68, "L4": 0.72}
+    for name, x50 in truth.items():
+        k = rng.binomial(60, expit(20.0 * (x - x50)))
+        rows += [(name, xi, ki) for xi, ki in zip(x, k)]
+    rows += [("L5", 0.8, 60), ("L5", 0.85, 60), ("L5", 0.9, 60)]  # at the ceiling: no curve of its own
+    p = tmp_path / "pilot.csv"
+    p.write_text("listener,stoi,correct,trials\n" + "".join(f"{a},{b:.4f},{c},60\n" for a, b, c in rows))
+    code, out, err = run_cli(["fitmap", str(p), "--index", "stoi", "--listener", "listener", "--json"], capsys)
+    assert code == 0, err
+    d = json.loads(out)
+    fits = {f["listener"]: f for f in d["listeners"]}
+    assert fits["L5"]["x50"] is None and "ceiling" in fits["L5"]["error"]
+    x50s = []
+    for name in truth:
+        sel = [(b, c) for a, b, c in rows if a == name]
+        xs, ks = np.array([round(b, 4) for b, _ in sel]), np.array([c for _, c in sel])
+        glm = sm.GLM(np.column_stack([ks, 60 - ks]), sm.add_constant(xs), family=sm.families.Binomial()).fit()
+        x50s.append(-glm.params[0] / glm.params[1])
+        assert fits[name]["x50"] == pytest.approx(x50s[-1], abs=1e-5)
+    sp = d["listener_spread"]
+    assert sp["n_listeners"] == 5 and sp["n_fitted"] == 4
+    assert sp["x50_mean"] == pytest.approx(np.mean(x50s), abs=1e-5)
+    assert sp["x50_sd"] == pytest.approx(np.std(x50s, ddof=1), abs=1e-5)
+    # the listeners differ: the group's intervals carry the scatter (quasi-binomial)
+    assert d["interval_method"] == "quasi-binomial"
+    assert any("listener L5" in n for n in d["notes"])
+    code, out, err = run_cli(["fitmap", str(p), "--index", "stoi", "--listener", "listener"], capsys)
+    assert code == 0 and "Per listener (4 of 5 fitted" in out
+    code, out, err = run_cli(["fitmap", str(p), "--index", "stoi", "--listener", "who"], capsys)
+    assert code == 2 and "who" in err
+
+
+def test_fit_report_data_against_its_definitions():
+    from envpredict.mapping import ScoreData, fit_report_data
+
+    x = np.array([0.45, 0.55, 0.65, 0.75, 0.85])
+    k, n = np.array([2, 40, 30, 95, 88]), np.full(5, 100)
+    m = fit_mapping(x, k, n, index="stoi")
+    f = fit_report_data(m, ScoreData(index_values=x, correct=k, trials=n))
+    # Clopper-Pearson from the beta quantiles (scipy.stats.beta), 95 %
+    lo = np.where(k > 0, stats.beta.ppf(0.025, k, n - k + 1), 0.0)
+    hi = np.where(k < n, stats.beta.ppf(0.975, k + 1, n - k), 1.0)
+    np.testing.assert_allclose(f["observed_low"], 100 * lo, atol=1e-4)
+    np.testing.assert_allclose(f["observed_high"], 100 * hi, atol=1e-4)
+    p = expit(m.a + m.b * x)
+    np.testing.assert_allclose(f["pearson_residual"], (k - n * p) / np.sqrt(n * p * (1 - p)), atol=1e-4)
+    # the band: logistic of eta -+ t_3 * se(eta), se from the (quasi-binomial) covariance
+    g = np.array(f["curve_index"])
+    se = np.sqrt(m.cov[0, 0] + 2 * g * m.cov[0, 1] + g * g * m.cov[1, 1])
+    q = stats.t.ppf(0.975, 3)
+    np.testing.assert_allclose(f["band_low"], 100 * expit(m.a + m.b * g - q * se), atol=1e-4)
+    np.testing.assert_allclose(f["band_high"], 100 * expit(m.a + m.b * g + q * se), atol=1e-4)
+
+
+def test_cli_fitmap_report(tmp_path, capsys):
+    p = tmp_path / "pilot.csv"
+    p.write_text("stoi,correct,trials\n0.45,2,100\n0.55,40,100\n0.65,30,100\n0.75,95,100\n0.85,88,100\n")
+    code, out, err = run_cli(["fitmap", str(p), "--index", "stoi", "--report", str(tmp_path / "rep")], capsys)
+    assert code == 0, err
+    assert (tmp_path / "rep" / "report.html").is_file() and (tmp_path / "rep" / "mapping_fit.png").is_file()
+    d = json.loads((tmp_path / "rep" / "result.json").read_text())
+    assert d["interval_method"] == "quasi-binomial" and len(d["fit_data"]["pearson_residual"]) == 5

@@ -354,7 +354,8 @@ def test_inspect_report_without_figure_data(tmp_path, inspect_result):
 
 
 def test_every_kind_has_a_page():
-    assert set(KINDS) == {"ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey", "design"}
+    assert set(KINDS) == {"ir", "stipa", "fullsti", "pair", "compare", "sweep", "inspect", "survey", "design",
+                          "fitmap"}
 
 
 def test_unknown_kind_refused(tmp_path):
@@ -487,3 +488,30 @@ def test_labels_are_drawn_as_typed_not_as_mathematics(tmp_path, compare_result):
     d["conditions"][1]["name"] = "gain $\\frac$"
     write_report("compare", d, tmp_path / "rep")
     assert (tmp_path / "rep" / "report.html").is_file()
+
+
+def test_sweep_report_shows_the_mapping_interval_and_extrapolations(tmp_path):
+    d = sweep_result()
+    d["mapping"] = {"formula": "p = F(a + b x)", "params": {"a": -11.0, "b": 20.0}, "index_range": [0.5, 0.6]}
+    d["targets"][0].update({"map_ci_low": -10.4, "map_ci_high": -7.7})  # index 0.55: inside the range
+    d["targets"][1].update({"map_ci_low": -7.5, "map_ci_high": -5.0})   # index 0.70: outside it
+    write_report("sweep", d, tmp_path / "rep")
+    page = check_report(tmp_path / "rep", d, kind="sweep", required_keys=("targets.0.map_ci_low",))
+    doc = (tmp_path / "rep" / "report.html").read_text(encoding="utf-8")
+    assert "hollow points lie outside the index range" in doc and "hatched" in doc
+    assert doc.count("extrapolated (outside the fitted index range)") == 1  # the 80 % target only
+    assert page is not None
+
+
+def test_fitmap_report(tmp_path):
+    import envpredict
+    from envpredict.mapping import ScoreData, fit_report_data
+
+    x = np.array([0.45, 0.55, 0.65, 0.75, 0.85])
+    k, n = np.array([2, 40, 30, 95, 88]), np.full(5, 100)
+    m = envpredict.fit_mapping(x, k, n, index="stoi")
+    data = ScoreData(index_values=x, correct=k, trials=n, fitted_percent=m.percent(x))
+    d = json.loads(json.dumps({**m.to_dict(), "fit_data": fit_report_data(m, data), "inputs": {}}))
+    write_report("fitmap", d, tmp_path / "rep")
+    check_report(tmp_path / "rep", d, kind="fitmap",
+                 required_keys=("fit_data.observed_low.0", "fit_data.pearson_residual.2", "params.x50"))

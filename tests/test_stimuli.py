@@ -155,3 +155,33 @@ def test_cli_sweep_writes_the_stimuli(tmp_path, capsys, signals):
     assert code == 2 and "not empty" in err and out == ""
     code, out, err = run_cli(args + ["--write-stimuli", str(tmp_path / "loud"), "--presentation-level=-1"], capsys)
     assert code == 2 and "would clip" in err and not (tmp_path / "loud").exists()
+
+
+def test_several_sentences_each_at_the_presentation_level(tmp_path, signals):
+    from envpredict.stimuli import write_stimuli_files
+
+    _clean, noise = signals
+    folder = tmp_path / "sentences"
+    folder.mkdir()
+    sents = [speech_like(2.0 + 0.4 * i, FS, seed=30 + i) * (0.3 + 0.3 * i) for i in range(3)]
+    for i, x in enumerate(sents):
+        sf.write(folder / f"list1_{i}.wav", x, FS, subtype="DOUBLE")
+    nw = tmp_path / "noise.wav"
+    sf.write(nw, noise, FS, subtype="DOUBLE")
+    res = write_stimuli_files(tmp_path / "st", folder, nw, [-3, 3], snr_reference="long-term",
+                              presentation_level_db=-30.0, seed=2)
+    rows = _manifest(tmp_path / "st")
+    assert len(rows) == 6 and len(res.stimuli) == 6
+    assert {r["sentence"] for r in rows} == {"list1_0", "list1_1", "list1_2"}
+    for r in rows:
+        x = sents[int(r["sentence"][-1])]
+        y, _ = sf.read(tmp_path / "st" / r["file"])
+        o = int(r["noise_offset_samples"])
+        seg = noise[o:o + x.size]
+        g = np.sqrt(np.mean(x ** 2) / (np.mean(seg ** 2) * 10 ** (float(r["snr_db"]) / 10)))
+        k = np.sqrt(10 ** (-30 / 10) / np.mean(x ** 2))  # each sentence at -30 dB re full scale
+        np.testing.assert_allclose(y, k * (x + g * seg), atol=PCM24_STEP)
+    # bit-exact again from the same seed
+    write_stimuli_files(tmp_path / "again", folder, nw, [-3, 3], snr_reference="long-term",
+                        presentation_level_db=-30.0, seed=2)
+    assert _digest(tmp_path / "st") == _digest(tmp_path / "again")

@@ -194,7 +194,7 @@ def _result_types() -> dict[str, type]:
 #: Parts of other results, built through their owner (checked inside the owner's dict).
 PARTS = {"SstiBands", "GoodnessOfFit", "SweepTarget", "ConditionStats", "UsablePart", "FullStiSignalSpec",
          "CaseOutcome", "Check", "PositionSummary", "ZoneSummary", "RuleCheck", "SweepSpec", "DesignListener",
-         "DesignGrid", "Stimulus", "Separation", "PairDifference"}
+         "DesignGrid", "Stimulus", "Separation", "PairDifference", "ListenerFit"}
 
 
 def test_every_result_type_has_a_factory(speech, batch_summary):

@@ -54,6 +54,14 @@ def render_fit(d: dict, rows: list[list[str]]) -> str:
     elif est is not None:
         lines.append(f"Intervals: binomial (dispersion, Pearson chi-square / df, {est:.3g}"
                      + (": at most 1, none applied)" if est <= 1 else ": not applied, --dispersion binomial)"))
+    if d.get("listeners"):
+        sp = d["listener_spread"]
+        lines += ["", (f"Per listener ({sp['n_fitted']} of {sp['n_listeners']} fitted, binomial): x50 mean "
+                       f"{fmt(sp['x50_mean'], '.4g')}, sd {fmt(sp['x50_sd'], '.3g')}; slope at x50 mean "
+                       f"{fmt(sp['slope_at_x50_mean'], '.4g')}, sd {fmt(sp['slope_at_x50_sd'], '.3g')}")]
+        lines.append(table([[f["listener"], f"{f['n_points']}", f"{f['n_trials']}", fmt(f["x50"], ".4g"),
+                             fmt(f["slope_at_x50"], ".4g"), f["error"] or ""] for f in d["listeners"]],
+                           ["listener", "rows", "trials", "x50", "slope at x50", ""]))
     lines += ["", table(rows, [d["index"], "correct", "trials", "observed %", "fitted %"])]
     if d["notes"]:
         lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
@@ -74,22 +82,29 @@ def fitmap_command(
                                                      "closed-set test (0 for open-set tests)."),
     lapse: float = typer.Option(std.MAPPING_LAPSE, "--lapse", help="Fixed lapse rate (proportion of errors at the best "
                                                      "condition that are not due to the signal)."),
+    listener: str | None = typer.Option(None, "--listener", help="Column naming the listener of each row: fit each "
+                                                                 "listener as well as the group, with the spread "
+                                                                 "across listeners."),
     dispersion: str = typer.Option(std.MAPPING_DISPERSION, "--dispersion", metavar="[quasi|binomial]",
                                    help="Intervals: quasi (widened by the estimated dispersion, Pearson chi-square / "
                                         "df, when the pilot scatters more than binomial sampling allows) or "
                                         "binomial (never widened)."),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help="Write the mapping (MAP.json) to this file, atomically."),
+    report: Path | None = typer.Option(None, "--report", help=REPORT_HELP + " (the fitted curve with its band, "
+                                                               "the pilot rows with their intervals, the residuals)"),
 ) -> None:
     """Fit a mapping from an index to % correct (binomial maximum likelihood) on pilot scores."""
-    from envpredict.mapping import fit_mapping_file
+    from envpredict.mapping import fit_mapping_file, fit_report_data
 
-    check_outputs(out=out, inputs=[scores])
+    check_outputs(out=out, report=report, inputs=[scores])
     m, data = fit_mapping_file(scores, index=index, correct=correct, trials=trials, shape=shape, guess=guess,
-                               lapse=lapse, dispersion=dispersion)
+                               lapse=lapse, dispersion=dispersion, listener=listener)
     d = m.to_dict()
     d["inputs"] = {"scores": str(scores), "index": index, "correct": correct, "trials": trials, "shape": shape,
-                   "guess": guess, "lapse": lapse, "dispersion": dispersion}
+                   "guess": guess, "lapse": lapse, "dispersion": dispersion, "listener": listener}
+    write_report_if(report, "fitmap", {**d, "fit_data": fit_report_data(m, data)}, as_json=as_json,
+                    title=f"Mapping from {index} to % correct: {scores.name}")
     trows = [[f"{xi:.4g}", f"{ki:g}", f"{ni:g}", f"{oi:.1f}", f"{fi:.1f}"]
              for xi, ki, ni, oi, fi in zip(data.index_values, data.correct, data.trials, data.observed_percent,
                                            data.fitted_percent)]
