@@ -143,6 +143,11 @@ def band_envelopes(dft_frames: np.ndarray) -> np.ndarray:
     if dft_frames.shape[1] not in (std.STOI_FRAME_LEN, std.STOI_NFFT):
         raise InputError(f"DFT frames have {dft_frames.shape[1]} values each",
                          f"pass (K, {std.STOI_FRAME_LEN}) or (K, {std.STOI_NFFT}) frames")
+    return _band_envelopes(dft_frames)
+
+
+def _band_envelopes(dft_frames: np.ndarray) -> np.ndarray:
+    """:func:`band_envelopes` of frames already known good (the envelope builder's own)."""
     edges = _band_bin_edges()
     spec = np.fft.rfft(dft_frames, n=std.STOI_NFFT, axis=1)
     sq = spec[:, edges[0] : edges[-1]].view(np.float64)  # real and imaginary parts side by side
@@ -232,7 +237,7 @@ class _EnvelopeBuilder:
         dft_frames = np.zeros((blocks.shape[0] - 1, std.STOI_NFFT))
         np.multiply(blocks[:-1], w[:h], out=dft_frames[:, :h])
         np.multiply(blocks[1:], w[h:], out=dft_frames[:, h : 2 * h])
-        self.parts.append(band_envelopes(dft_frames))  # (15, frames)
+        self.parts.append(_band_envelopes(dft_frames))  # (15, frames)
 
     def result(self) -> np.ndarray:
         if not self.parts:
