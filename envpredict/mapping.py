@@ -280,7 +280,16 @@ class ListenerFit:
 
 def listener_spread(fits: Sequence[ListenerFit]) -> dict:
     """Mean and standard deviation over listeners of x50 and of the slope at x50 (the
-    listeners that could be fitted), and how many were."""
+    listeners that could be fitted), and how many were.
+
+    Raises
+    ------
+    InputError
+        If ``fits`` is not a list of :class:`ListenerFit`.
+    """
+    if isinstance(fits, (str, bytes)) or not isinstance(fits, Sequence) or not all(
+            isinstance(f, ListenerFit) for f in fits):
+        raise InputError("fits are not a list of listener fits", "pass the result of fit_listeners")
     ok = [f for f in fits if f.x50 is not None]
     out: dict[str, Any] = {"n_listeners": len(fits), "n_fitted": len(ok)}
     for key in ("x50", "slope_at_x50"):
@@ -962,8 +971,18 @@ def scores_from_rows(
 
 def listener_labels(rows: Sequence[tuple[int, MappingType[str, Any]]], header: Sequence[str], column: str,
                     source: str = "scores") -> list[str]:
-    """The listener of each row (a blank cell is refused, naming the row)."""
+    """The listener of each row (a blank cell is refused, naming the row).
+
+    Raises
+    ------
+    InputError
+        For a column that is not in ``header``, rows that are not (line, mapping) pairs,
+        or a blank cell.
+    """
     col = resolve_column(header, column, source)
+    if isinstance(rows, (str, bytes)) or not isinstance(rows, Sequence) or not all(
+            isinstance(r, tuple) and len(r) == 2 and isinstance(r[1], MappingType) for r in rows):
+        raise InputError("rows are not (line, row) pairs", "pass the rows of read_table")
     out = []
     for line, row in rows:
         v = str(row.get(col) or "").strip()
@@ -977,10 +996,30 @@ def fit_listeners(x: np.ndarray, k: np.ndarray, n: np.ndarray, labels: Sequence[
         ListenerFit, ...]:
     """:func:`fit_mapping` per listener (rows grouped by ``labels``, in order of first
     appearance); a listener whose rows cannot determine a curve gets the reason in
-    ``error`` instead of parameters."""
+    ``error`` instead of parameters.
+
+    Raises
+    ------
+    InputError
+        For values, counts or labels that are not one per row, or options
+        :func:`fit_mapping` refuses for every fit (the shape, guess or lapse).
+    """
+    x = checks.array(x, "index values", min_size=0, finite=False)
+    k = checks.array(k, "numbers correct", min_size=0, finite=False)
+    n = checks.array(n, "numbers of trials", min_size=0, finite=False)
+    if isinstance(labels, (str, bytes)) or not isinstance(labels, Sequence):
+        raise InputError("listener labels are not a list", "pass one label per row")
+    if not (x.size == k.size == n.size == len(labels)):
+        raise InputError(f"{x.size} values, {k.size} counts, {n.size} trials and {len(labels)} labels",
+                         "give one of each per row")
+    if "shape" in options:
+        options["shape"] = check_shape(options["shape"])
+    if "guess" in options or "lapse" in options:
+        options["guess"], options["lapse"] = check_guess_lapse(options.get("guess", std.MAPPING_GUESS),
+                                                               options.get("lapse", std.MAPPING_LAPSE))
     out = []
-    lab = np.asarray(list(labels), dtype=object)
-    for name in dict.fromkeys(labels):
+    lab = np.asarray([str(v) for v in labels], dtype=object)
+    for name in dict.fromkeys(lab):
         sel = lab == name
         try:
             m = fit_mapping(x[sel], k[sel], n[sel], dispersion="binomial", **options)
@@ -1243,7 +1282,17 @@ def fit_report_data(mapping: ScoreMapping, data: ScoreData) -> dict:
     at :data:`CI_LEVEL` (delta method on eta = a + b x with the mapping's covariance and
     quantile, mapped through F), each row's observed percent with its exact binomial
     (Clopper-Pearson) interval (``scipy.stats.binomtest``), and the Pearson residuals
-    ``(k - n p) / sqrt(n p (1 - p))``."""
+    ``(k - n p) / sqrt(n p (1 - p))``.
+
+    Raises
+    ------
+    InputError
+        If ``mapping`` is not a :class:`ScoreMapping` or ``data`` not a :class:`ScoreData`.
+    """
+    if not isinstance(mapping, ScoreMapping):
+        raise InputError("mapping is not a ScoreMapping", "pass the result of fit_mapping")
+    if not isinstance(data, ScoreData):
+        raise InputError("data are not ScoreData", "pass the rows the mapping was fitted on")
     from scipy.stats import binomtest
 
     x = np.asarray(data.index_values, dtype=float)

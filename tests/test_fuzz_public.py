@@ -686,6 +686,34 @@ case("mapping.read_mapping", path=S(P("mapping.json")))
 case("mapping.fit_mapping_file", path=S(P("scores.csv")), index=S("index"), shape=S("logistic", "normal"))
 case("mapping.predict_file", path=S(P("scores.csv")), mapping=S(P("mapping.json")), index_column=S("index", "Index"),
      out=S(None, Out("pred.csv")))
+_LABELS9 = ["L1", "L2", "L3"] * 3
+
+
+def _listener_fits():
+    from envpredict.mapping import fit_listeners
+
+    return fit_listeners(np.concatenate([_X9] * 2), np.concatenate([_C9] * 2), np.full(18, 20), _LABELS9 * 2)
+
+
+case("mapping.fit_listeners", x=st.builds(lambda s: np.concatenate([_X9] * 2) + 0.01 * s, st.integers(0, 3)),
+     k=J(np.concatenate([_C9] * 2)), n=J(np.full(18, 20)), labels=S(_LABELS9 * 2, ["a"] * 9 + ["b"] * 9),
+     bad_={"labels": S(None, "abc", ["a"] * 3, 3)}, examples_=6)
+case("mapping.listener_spread", fits=st.builds(_listener_fits), bad_={"fits": S(None, "x", [1, 2], [None])},
+     examples_=4)
+case("mapping.listener_labels",
+     rows=st.builds(lambda: [(i + 2, {"index": "0.5", "who": f"L{i % 3}"}) for i in range(6)]),
+     header=J(["index", "who"]), column=S("who", "WHO"),
+     bad_={"rows": S(None, "x", [1, 2], [(2, {"who": ""})])})
+
+
+def _report_data(fn, kw):
+    from envpredict.mapping import ScoreData
+
+    return fn(kw["mapping"], ScoreData(index_values=_X9, correct=_C9, trials=np.full(9, 20)) if kw["data"] else None)
+
+
+case("mapping.fit_report_data", mapping=st.builds(score_mapping), data=S(True), call_=_report_data,
+     bad_={"mapping": S(None, 3, "m"), "data": S(False)}, examples_=4)
 
 # --- indirect, direct, pair, timescales -----------------------------------------------------
 
