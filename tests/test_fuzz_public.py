@@ -1254,7 +1254,7 @@ def _boundary_calls():
     """Hostile arguments that once escaped as TypeError, ValueError, AttributeError,
     OverflowError, IndexError or KeyError from the functions added after the first
     round (the hypothesis strategies above draw them only now and then)."""
-    from envpredict import audio, checks, deconvolve, labels, modulation, report, sinesweep, sti, survey
+    from envpredict import audio, checks, deconvolve, labels, mapping, modulation, report, sinesweep, sti, survey
     from envpredict.sinesweep import SweepSpec
 
     x = speech(16000, 0.3, 1)
@@ -1311,6 +1311,11 @@ def _boundary_calls():
         "number(10**5000, integer)": lambda: checks.number(10**5000, "x", integer=True),
         "sample_rate(10**400)": lambda: checks.sample_rate(10**400),
         "path(lone surrogate)": lambda: checks.path("\ud800", "x"),
+        "listener_spread(None)": lambda: mapping.listener_spread(None),
+        "listener_spread([1])": lambda: mapping.listener_spread([1]),
+        "listener_labels(rows None)": lambda: mapping.listener_labels(None, ["who"], "who"),
+        "fit_listeners(labels short)": lambda: mapping.fit_listeners(_X9, _C9, np.full(9, 20), ["a"] * 3),
+        "fit_report_data(None)": lambda: mapping.fit_report_data(None, None),
     }
 
 
