@@ -972,11 +972,14 @@ case("envpower.envelope_powers", x=_SEPSM_X, fs=J(16000), bands_hz=S(None, (250.
 
 
 def _sepsm(fn, kw):
-    x = kw.pop("mixture")
-    nz = 0.02 * np.random.default_rng(0).standard_normal(x.size) if isinstance(kw["noise"], str) else kw["noise"]
-    kw.pop("noise")
-    ok = isinstance(x, np.ndarray) and x.dtype.kind == "f" and x.shape == nz.shape
-    return fn(x + nz if ok else x, nz, **kw)
+    """``fn(speech + noise, noise, ...)`` with a noise made to fit the drawn speech; a
+    spoiled speech or noise is passed as it is."""
+    x, nz = kw.pop("mixture"), kw.pop("noise")
+    ok = isinstance(x, np.ndarray) and x.dtype.kind == "f" and x.ndim == 1
+    if isinstance(nz, str) and nz == "made":
+        nz = 0.02 * np.random.default_rng(0).standard_normal(x.size) if ok else x
+        return fn(x + nz if ok else x, nz, **kw)
+    return fn(x, nz, **kw)
 
 
 case("envpower.sepsm", mixture=st.builds(speech, J(16000), S(1.0, 1.5), st.integers(0, 1)), noise=J("made"),
