@@ -117,6 +117,10 @@ class StimuliResult:
         })
 
 
+#: Lowest presentation level accepted, dB re full scale: below it the quietest file
+#: holds nothing but rounding to 24 bits (about -144 dB; judgement).
+MIN_LEVEL_DB: float = -140.0
+
 #: Longest start of a stimulus file name, bytes (the file name adds about 20 to it;
 #: NAME_MAX is 255 bytes).
 MAX_NAME_CHARS: int = 200
@@ -221,6 +225,9 @@ def write_stimuli(
     if pres >= 0:
         raise InputError(f"presentation level {pres:g} dB re full scale is at or above full scale",
                          "give a negative level, e.g. -26")
+    if pres < MIN_LEVEL_DB:
+        raise InputError(f"presentation level {pres:g} dB re full scale is below {MIN_LEVEL_DB:g} dB",
+                         "give a level a 24-bit file can hold, e.g. -26")
     snrs = np.unique(np.round(snrs / SNR_STEP_DB) * SNR_STEP_DB)
     if snrs.size > MAX_STIMULI:
         raise InputError(f"{snrs.size} stimuli asked for (at most {MAX_STIMULI})", "give fewer SNRs")
