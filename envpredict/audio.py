@@ -762,7 +762,7 @@ class DelayEstimate:
 
 
 def _check_delay_method(method: str) -> str:
-    if method not in DELAY_METHODS:
+    if not isinstance(method, str) or method not in DELAY_METHODS:
         raise InputError(f"delay method '{method}' is not known", f"give one of {', '.join(DELAY_METHODS)}")
     return method
 
@@ -848,6 +848,12 @@ def find_delay(
     -------
     DelayEstimate, or ``(DelayEstimate, DelayCurve)`` with ``curve=True``.
 
+    Raises
+    ------
+    InputError
+        For signals the one validation rule refuses, sources at different rates, a
+        ``max_delay_s``, ``near`` or ``excerpt_s`` out of range, or an unknown method.
+
     References
     ----------
     C. H. Knapp and G. C. Carter, "The generalized correlation method for estimation of
@@ -903,13 +909,22 @@ def pooled_delay(curves: "list[DelayCurve]") -> tuple[int, float]:
     Returns
     -------
     lag : samples; confidence : the peak ratio of the summed curve (see :class:`DelayEstimate`).
+
+    Raises
+    ------
+    InputError
+        For no curves, anything that is not a :class:`DelayCurve`, or curves of different
+        rates or lags.
     """
-    if not curves:
-        raise ValueError("no curves to pool")
+    if isinstance(curves, (str, bytes)) or not isinstance(curves, (list, tuple)) or not curves:
+        raise InputError("no delay curves to pool", "give the curves of find_delay(..., curve=True), one per pair")
+    if not all(isinstance(c, DelayCurve) for c in curves):
+        raise InputError("a curve to pool is not a DelayCurve", "give the curves of find_delay(..., curve=True)")
     first = curves[0]
     for c in curves[1:]:
         if c.fs != first.fs or c.lags.size != first.lags.size or c.lags[0] != first.lags[0]:
-            raise ValueError("curves to pool need the same rate and lags")
+            raise InputError("delay curves to pool differ in rate or lags",
+                             "pool only pairs at one rate searched over the same maximum delay")
     total = np.sum([c.values for c in curves], axis=0)
     i, conf = _peak(total, first.fs)
     return int(first.lags[i]), conf

@@ -113,7 +113,7 @@ import os
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Iterable, Iterator, Sequence
+from typing import Any, Callable, Iterable, Iterator, Mapping, Sequence
 
 from . import checks
 from . import standards as std
@@ -563,8 +563,11 @@ class Alignment:
                                         ("--condition-column", self.condition_column is not None)) if on]
         if len(chosen) > 1:
             raise InputError(f"{' and '.join(chosen)} contradict each other", "choose one way to align")
-        if self.fixed_delay_ms is not None and not math.isfinite(float(self.fixed_delay_ms)):
-            raise InputError(f"--delay-ms {self.fixed_delay_ms} is not a number", "give the delay in ms")
+        if self.fixed_delay_ms is not None:
+            checks.number(self.fixed_delay_ms, "--delay-ms", fix="give the delay in ms")
+        if self.condition_column is not None and not isinstance(self.condition_column, str):
+            raise InputError(f"--condition-column {self.condition_column!r:.40} is not a column name",
+                             "name one of the manifest's columns")
         if not self.align and chosen and self.fixed_delay_ms is None:
             raise InputError(f"--no-align and {chosen[0]} contradict each other", "choose one")
         if self.condition_column is not None and self.condition_column not in m.columns:
@@ -587,9 +590,23 @@ def plan_delays(m: Manifest, jobs: Sequence[dict], alignment: Alignment | None =
 
     Pooling a condition reads every pair of that condition (also rows already done, so
     a resumed batch uses the same delay); only conditions with pending rows are pooled.
+
+    Raises
+    ------
+    InputError
+        For an ``m`` that is not a :class:`Manifest`, jobs that are not a list of job
+        dictionaries, or alignment choices :meth:`Alignment.check` refuses.
     """
     from .pair import common_delay
 
+    if not isinstance(m, Manifest):
+        raise InputError(f"the manifest is not a Manifest ({type(m).__name__})", "read it with read_manifest")
+    if alignment is not None and not isinstance(alignment, Alignment):
+        raise InputError(f"the alignment is not an Alignment ({type(alignment).__name__})",
+                         "give Alignment(...) or None")
+    if isinstance(jobs, (str, bytes, Mapping)) or not isinstance(jobs, Sequence) or not all(
+            isinstance(j, Mapping) for j in jobs):
+        raise InputError("the jobs are not a list of job dictionaries", "give the jobs of read_manifest")
     al = (alignment or Alignment()).check(m)
     cond = al.condition(m)
     notes: list[str] = []

@@ -16,6 +16,7 @@ from typing import Callable, Mapping
 import numpy as np
 
 from . import cautions as cau
+from . import checks
 from . import standards as std
 from .results import jsonable
 from .exceptions import InputError
@@ -222,7 +223,21 @@ def _listener(scene: Scene, name: str, pos: np.ndarray, *, talker: str, auditory
 def grid_sti(scene: Scene, grid: GridSpec, *, talker: str = std.DEFAULT_TALKER, auditory: bool = True,
              progress: Callable[[int, int], None] | None = None) -> np.ndarray:
     """STI at every point of ``grid``, shape (ny, nx): the modelled MTF and speech levels
-    rated by :func:`envpredict.sti.sti_many` (the helpers of :func:`sti_from_mtf`)."""
+    rated by :func:`envpredict.sti.sti_many` (the helpers of :func:`sti_from_mtf`).
+
+    Raises
+    ------
+    InputError
+        For a ``scene`` that is not a :class:`~envpredict.roommodel.Scene`, a ``grid``
+        that is not a :class:`~envpredict.roommodel.GridSpec`, an unknown talker or an
+        ``auditory`` that is not a flag.
+    """
+    if not isinstance(scene, Scene):
+        raise InputError(f"scene is not a Scene ({type(scene).__name__})", "read it with read_scene or parse_scene")
+    if not isinstance(grid, GridSpec):
+        raise InputError(f"grid is not a GridSpec ({type(grid).__name__})", "take the grid of a checked scene")
+    talker = check_talker(talker)
+    auditory = checks.flag(auditory, "auditory")
     pts = grid.points()
     out = np.empty(pts.shape[0])
     block = 20_000
@@ -285,6 +300,7 @@ def predict_design(
     0.88
     """
     talker = check_talker(talker)
+    auditory = checks.flag(auditory, "auditory")
     req_given = requirement is not None
     req = check_requirement(requirement) if req_given else std.VOICE_ALARM_TARGET_STI
     engine = _check_engine(engine)

@@ -36,6 +36,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import InputError
 from .results import jsonable
@@ -120,13 +121,27 @@ def ideal_observer(snr_env: float | np.ndarray, *, k: float = std.SEPSM_K, q: fl
     D. M. Green and T. G. Birdsall, "The effect of vocabulary size on articulation score",
     in Signal Detection and Recognition by Human Observers, Wiley (1964).
     S. Jørgensen and T. Dau, JASA 130(3), 1475-1487 (2011).
+
+    Raises
+    ------
+    InputError
+        For an SNR_env that is not a finite number (or array) at or above 0, ``k``,
+        ``q`` or ``sigma_s`` that are not finite and positive (``sigma_s`` may be 0), or
+        an ``m`` that is not above 1.
     """
     from scipy.stats import norm
 
+    snr = checks.array(snr_env, "SNR_env", ndim=(0, 1, 2), fix="give the envelope SNR as linear values >= 0")
+    if np.any(snr < 0):
+        raise InputError("SNR_env is negative", "give the envelope SNR as a linear value, 0 or above")
+    k = checks.number(k, "the observer's k", lo=0.0, lo_open=True, hi=1e6)
+    q = checks.number(q, "the observer's q", lo=0.0, lo_open=True, hi=10.0)
+    sigma_s = checks.number(sigma_s, "the observer's sigma_s", lo=0.0, hi=1e6)
+    m = checks.number(m, "the observer's m (number of alternatives)", lo=1.0, lo_open=True, hi=1e12)
     u_n = float(norm.ppf(1.0 - 1.0 / m))
     mu_n = u_n + 0.577 / u_n
     sigma_n = 1.28255 / u_n
-    d = k * np.power(np.asarray(snr_env, dtype=float), q)
+    d = k * np.power(snr, q)
     p = 100.0 * norm.cdf((d - mu_n) / math.sqrt(sigma_s ** 2 + sigma_n ** 2))
     return float(p) if np.ndim(p) == 0 else p
 
@@ -138,8 +153,23 @@ def modulation_weights(freqs_hz: np.ndarray, modulation_hz=std.SEPSM_MODULATION_
     The first filter is the 3rd-order low-pass at ``modulation_hz[0]``,
     1 / (1 + (f/fc)^6); the others are second-order band-passes of quality ``q``,
     1 / (1 + q^2 (f/fc - fc/f)^2) (1 at fc, -3 dB at fc (sqrt(1 + 1/(4q^2)) +- 1/(2q))).
+
+    Raises
+    ------
+    InputError
+        For frequencies that are not a finite 1-D array at or above 0, filter centres
+        that are not positive numbers, or a ``q`` that is not finite and positive.
     """
-    f = np.asarray(freqs_hz, dtype=float)
+    f = checks.array(freqs_hz, "modulation frequencies", fix="give the frequencies in Hz (0 or above)")
+    if np.any(f < 0):
+        raise InputError("modulation frequencies are negative", "give the frequencies in Hz (0 or above)")
+    if isinstance(modulation_hz, (str, bytes)):
+        raise InputError("modulation filter centres are text", "give them as numbers in Hz")
+    centres = checks.array(modulation_hz, "modulation filter centres", fix="give the filter centres in Hz")
+    if np.any(centres <= 0) or centres.size > 100:
+        raise InputError("modulation filter centres must be 1 to 100 values above 0 Hz", "give them in Hz")
+    modulation_hz = tuple(float(c) for c in centres)
+    q = checks.number(q, "the modulation filters' q", lo=0.0, lo_open=True)
     out = np.empty((len(modulation_hz), f.size))
     out[0] = 1.0 / (1.0 + (f / modulation_hz[0]) ** 6)
     with np.errstate(divide="ignore"):
@@ -171,9 +201,30 @@ def envelope_powers(x: np.ndarray, fs: int, bands_hz: tuple[float, ...] | None =
     Returns
     -------
     powers : (bands, filters); bands_hz : the bands used (below MAX_BAND_SHARE x fs).
+
+    Raises
+    ------
+    InputError
+        For a signal or rate the checks of :func:`sepsm` refuse (not 1-D, non-finite,
+        silent, shorter than 1 s or longer than :data:`MAX_SECONDS`, a rate outside the
+        accepted range), or band centres that are not positive numbers.
     """
     from scipy.fft import ifft, next_fast_len, rfft
 
+    from .audio import check_rate
+
+    fs = check_rate(fs, "signal")
+    x = _check(x, fs, "signal")
+    if bands_hz is not None:
+        if isinstance(bands_hz, (str, bytes)):
+            raise InputError("band centres are text", "give the gammatone centre frequencies in Hz")
+        b = checks.array(bands_hz, "band centres", fix="give the gammatone centre frequencies in Hz")
+        if np.any(b <= 0):
+            raise InputError("band centres must be above 0 Hz", "give the gammatone centre frequencies in Hz")
+        if not np.any(b <= MAX_BAND_SHARE * fs):
+            raise InputError(f"no band centre is at or below {MAX_BAND_SHARE:g} x the rate of {fs} Hz",
+                             "give lower centre frequencies")
+        bands_hz = tuple(float(v) for v in b)
     bands = tuple(b for b in (bands_hz or std.SEPSM_BANDS_HZ) if b <= MAX_BAND_SHARE * fs)
     n = x.size
     nf = next_fast_len(n + int(PAD_S * fs), real=True)
@@ -243,7 +294,18 @@ def sepsm(mixture: np.ndarray, noise: np.ndarray, fs: int, *, k: float = std.SEP
     S. Jørgensen and T. Dau, "Predicting speech intelligibility based on the signal-to-noise
     envelope power ratio after modulation-frequency selective processing", J. Acoust. Soc.
     Am. 130(3), 1475-1487 (2011).
+
+    Raises
+    ------
+    InputError
+        For signals the one validation rule refuses (not 1-D, non-finite, silent), shorter
+        than 1 s or longer than :data:`MAX_SECONDS`, of different lengths, a rate outside
+        the accepted range, or observer parameters :func:`ideal_observer` refuses.
     """
+    from .audio import check_rate
+
+    fs = check_rate(fs, "noisy speech")
+    ideal_observer(1.0, k=k, q=q, sigma_s=sigma_s, m=m)  # the parameters, checked before the work
     x = _check(mixture, fs, "noisy speech")
     nz = _check(noise, fs, "noise alone")
     if x.size != nz.size:

@@ -190,7 +190,13 @@ def check_shape(shape: str) -> str:
 
 
 def check_dispersion(dispersion: str) -> str:
-    """``"quasi"`` or ``"binomial"`` (see :func:`fit_mapping`), or ``InputError``."""
+    """``"quasi"`` or ``"binomial"`` (see :func:`fit_mapping`).
+
+    Raises
+    ------
+    InputError
+        For anything else.
+    """
     d = str(dispersion).strip().lower()
     if d not in DISPERSIONS:
         raise InputError(f"unknown dispersion '{dispersion}'", "use --dispersion quasi or --dispersion binomial")
@@ -1161,7 +1167,12 @@ TAAL2011_SOURCE: str = (
 
 
 def published_mapping_names() -> tuple[str, ...]:
-    """Names of the built-in published mappings (usable wherever a MAP.json is)."""
+    """Names of the built-in published mappings (usable wherever a MAP.json is).
+
+    Raises
+    ------
+    Nothing: the names are fixed.
+    """
     return tuple(sorted(std.TAAL2011_MAPPINGS))
 
 
@@ -1226,9 +1237,9 @@ def read_mapping(path: str | os.PathLike) -> ScoreMapping:
     """
     import json
 
-    if _is_mapping_name(path):
-        return published_mapping(str(path))
     p = checks.path(path, "mapping")
+    if _is_mapping_name(p):
+        return published_mapping(str(path))
     if not p.exists():
         raise InputError(f"mapping '{p}' does not exist",
                          "check the path, write one with 'envpredict fitmap', or name a built-in mapping: "

@@ -859,9 +859,14 @@ def phase_inversion_split(mixture: np.ndarray, inverted: np.ndarray) -> tuple[np
     B. Hagerman and Å. Olofsson, "A method to measure the effect of noise reduction
     algorithms using simultaneous speech and noise", Acta Acustica united with Acustica
     90, 356-361 (2004).
+
+    Raises
+    ------
+    InputError
+        For mixtures that are not finite 1-D arrays of numbers, or that differ in length.
     """
-    a = np.asarray(mixture, dtype=float)
-    b = np.asarray(inverted, dtype=float)
+    a = checks.array(mixture, "the mixture", fix="give the processed mixture as a 1-D array")
+    b = checks.array(inverted, "the inverted mixture", fix="give the processed inverted mixture as a 1-D array")
     if a.shape != b.shape:
         raise InputError(f"the inverted mixture ({b.size} samples) and the mixture ({a.size} samples) differ in "
                          "length", "give the processing's outputs for speech+noise and speech-noise, sample for sample")
@@ -986,8 +991,12 @@ def pair_delay_curve(
     """The pair job's delay search on two files (the same excerpt, rate and checks as
     :func:`pair_from_files`), with its curve: ``(DelayEstimate, DelayCurve)``.
 
-    Raises InputError when the files do not match (peak waveform correlation below
-    :data:`MIN_MATCH_CORRELATION`) or fail the input checks.
+    Raises
+    ------
+    InputError
+        When the files do not match (peak waveform correlation below
+        :data:`MIN_MATCH_CORRELATION`), fail the input checks, or for a ``max_delay_s``
+        out of range or an unknown delay method.
     """
     max_delay_s, _ = _check_options(max_delay_s, DEFAULT_CHUNK_S)
     with (FileSource(clean_path, channel if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
@@ -1024,11 +1033,25 @@ def common_delay(
     ----------
     pairs : ``(clean path, degraded path, channel)`` per item.
     max_delay_s, delay_method : as for :func:`pair_from_files`.
+
+    Raises
+    ------
+    InputError
+        For ``pairs`` that are not a list of ``(clean, degraded, channel)``, a
+        ``max_delay_s`` out of range or an unknown delay method (a pair whose files fail
+        is left out, with its error, not raised).
     """
     from collections import Counter
 
-    from .audio import pooled_delay
+    from .audio import _check_delay_method, pooled_delay
     from .exceptions import EnvpredictError
+
+    _check_options(max_delay_s, DEFAULT_CHUNK_S)
+    _check_delay_method(delay_method)
+    if isinstance(pairs, (str, bytes)) or not isinstance(pairs, (list, tuple)) or not all(
+            isinstance(p, (list, tuple)) and len(p) == 3 for p in pairs):
+        raise InputError("pairs are not a list of (clean path, degraded path, channel)",
+                         "give one (clean, degraded, channel) per item")
 
     ests, curves, errors = [], [], []
     for clean_path, degraded_path, channel in pairs:

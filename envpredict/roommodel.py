@@ -43,6 +43,7 @@ from typing import Any, Mapping, Sequence
 
 import numpy as np
 
+from . import checks
 from . import standards as std
 from .exceptions import InputError
 from .sti import a_weighted_level, check_talker, speech_band_levels
@@ -87,6 +88,10 @@ KNOWN_KEYS: dict[str, tuple[str, ...]] = {
 
 RT_FORMULAS: tuple[str, ...] = ("sabine", "eyring")
 FIELDS: tuple[str, ...] = ("classic", "revised")
+
+#: Most modulation frequencies the model is asked for at once (judgement: the STI uses
+#: 14; a finer curve for a figure needs a few hundred at most).
+MAX_MODULATION_FREQUENCIES: int = 1000
 
 
 # ---------------------------------------------------------------------------
@@ -484,7 +489,7 @@ def read_scene(path: str | Path, *, talker: str = std.DEFAULT_TALKER) -> Scene:
         For a file that is missing, a folder, unreadable or not valid JSON/TOML, and for
         every scene :func:`parse_scene` refuses.
     """
-    p = Path(path)
+    p = checks.path(path, "scene file")
     try:
         text = p.read_text(encoding="utf-8")
     except FileNotFoundError:
@@ -514,6 +519,35 @@ def read_scene(path: str | Path, *, talker: str = std.DEFAULT_TALKER) -> Scene:
 # The model
 # ---------------------------------------------------------------------------
 
+def _checked(value: Any, kind: type, what: str) -> Any:
+    """``value`` when it is a ``kind`` (a :class:`Room`, :class:`Source` or :class:`Scene`
+    made by :func:`parse_scene`), else InputError."""
+    if not isinstance(value, kind):
+        raise InputError(f"{what} is not a {kind.__name__} ({type(value).__name__})",
+                         f"take the {kind.__name__.lower()} from a scene read by read_scene or parse_scene")
+    return value
+
+
+def _points(points: Any) -> np.ndarray:
+    """``points`` as a finite (P, 3) array, P >= 1 (a single point may be given as 3 numbers)."""
+    pts = checks.array(points, "points", ndim=(1, 2), min_size=3, fix="give points as (P, 3) coordinates in metres")
+    if pts.shape[-1] != 3:
+        raise InputError(f"points have {pts.shape[-1]} coordinates, not 3", "give [x, y, z] per point, in metres")
+    if pts.size // 3 > MAX_GRID_POINTS * 10:
+        raise InputError(f"{pts.size // 3} points asked for at once", f"give at most {MAX_GRID_POINTS * 10}")
+    return pts.reshape(-1, 3)
+
+
+def _modulation_hz(modulation_hz: Any) -> np.ndarray:
+    if isinstance(modulation_hz, str):
+        raise InputError("modulation frequencies are text", "give them as numbers in Hz")
+    f = checks.array(modulation_hz, "modulation frequencies", fix="give one or more frequencies in Hz")
+    if f.size > MAX_MODULATION_FREQUENCIES or np.any(f <= 0) or np.any(f > 1000.0):
+        raise InputError("modulation frequencies must be 1 to 1000 values above 0 and at most 1000 Hz",
+                         "give the modulation frequencies in Hz, e.g. the 14 of the STI")
+    return f
+
+
 def directivity_gain(source: Source, cos_theta: np.ndarray) -> np.ndarray:
     """Intensity re on-axis of ``source`` at angles with cosine ``cos_theta`` (shape (P,)),
     per octave band: shape (P, 7).
@@ -524,8 +558,16 @@ def directivity_gain(source: Source, cos_theta: np.ndarray) -> np.ndarray:
     factor is exactly Q (4 pi / integral over the sphere = 2 / integral_{-1}^{1}
     ((1 + u) / 2)^(Q - 1) du = Q), so the direct and reverberant sound use the same Q
     (a model of this tool). With a table the attenuation is interpolated linearly in angle.
+
+    Raises
+    ------
+    InputError
+        For a ``source`` that is not a :class:`Source`, or cosines that are not a finite
+        1-D array (or a single number).
     """
-    c = np.clip(np.asarray(cos_theta, dtype=float), -1.0, 1.0)
+    _checked(source, Source, "source")
+    c = np.clip(checks.array(np.atleast_1d(cos_theta) if np.ndim(cos_theta) == 0 else cos_theta,
+                             "cosines of the angles"), -1.0, 1.0)
     if source.aim_m is None:
         return np.ones((c.size, NB))
     if source.off_axis_db is None:
@@ -541,8 +583,16 @@ def source_terms(room: Room, source: Source, points: np.ndarray) -> tuple[np.nda
 
     D = I_1m g(theta) / r^2; R = I_1m 16 pi / (Q A) (times exp(-13.82 r / (c T)) with the
     revised theory); t = r / c + delay. See the module docstring for the sources.
+
+    Raises
+    ------
+    InputError
+        For a ``room`` or ``source`` that is not a :class:`Room` / :class:`Source`, or
+        points that are not finite (P, 3) coordinates.
     """
-    pts = np.asarray(points, dtype=float).reshape(-1, 3)
+    _checked(room, Room, "room")
+    _checked(source, Source, "source")
+    pts = _points(points)
     v = pts - source.position_m
     r = np.sqrt(np.einsum("ij,ij->i", v, v))
     i1 = 10.0 ** (source.level_1m_db / 10.0)               # -inf (no speech) -> 0
@@ -563,9 +613,20 @@ def source_terms(room: Room, source: Source, points: np.ndarray) -> tuple[np.nda
 
 def reverberant_transfer(rt_s: np.ndarray, modulation_hz: Sequence[float]) -> np.ndarray:
     """1 / (1 + j 2 pi F T / 13.8) per band and modulation frequency: shape (7, F)
-    (Houtgast, Steeneken & Plomp 1980)."""
-    f = np.asarray(modulation_hz, dtype=float)
-    return 1.0 / (1.0 + 1j * 2.0 * np.pi * f[None, :] * np.asarray(rt_s)[:, None] / std.MTF_DECAY_DIVISOR)
+    (Houtgast, Steeneken & Plomp 1980).
+
+    Raises
+    ------
+    InputError
+        For reverberation times that are not finite positive numbers (one per band), or
+        modulation frequencies that are not positive numbers.
+    """
+    f = _modulation_hz(modulation_hz)
+    rt = checks.array(rt_s, "reverberation times", fix="give the reverberation time per octave band, s")
+    if np.any(rt <= 0) or np.any(rt > MAX_RT_S):
+        raise InputError(f"reverberation times must be above 0 and at most {MAX_RT_S:g} s",
+                         "give the reverberation time per octave band, s")
+    return 1.0 / (1.0 + 1j * 2.0 * np.pi * f[None, :] * rt[:, None] / std.MTF_DECAY_DIVISOR)
 
 
 def modulation_transfer(room: Room, sources: Sequence[Source], points: np.ndarray,
@@ -577,9 +638,21 @@ def modulation_transfer(room: Room, sources: Sequence[Source], points: np.ndarra
     10 lg is the octave-band speech level at each point, dB SPL). The complex sums over
     the sources are taken as matrix products of the direct and reverberant intensities
     with the cosines and sines of the arrival phases.
+
+    Raises
+    ------
+    InputError
+        For a ``room`` that is not a :class:`Room`, ``sources`` that are not a non-empty
+        sequence of :class:`Source`, points that are not finite (P, 3) coordinates, or
+        modulation frequencies that are not positive numbers.
     """
-    pts = np.asarray(points, dtype=float).reshape(-1, 3)
-    f = np.asarray(modulation_hz, dtype=float)
+    _checked(room, Room, "room")
+    if isinstance(sources, (str, bytes)) or not isinstance(sources, Sequence) or not sources:
+        raise InputError("sources are not a non-empty list of loudspeakers", "take them from a checked scene")
+    for s in sources:
+        _checked(s, Source, "a source")
+    pts = _points(points)
+    f = _modulation_hz(modulation_hz)
     h = reverberant_transfer(room.rt_s, f)                 # (7, F)
     n = len(sources)
     block = max(64, BLOCK_VALUES // max(1, n * f.size))
@@ -604,13 +677,31 @@ def modulation_transfer(room: Room, sources: Sequence[Source], points: np.ndarra
 
 
 def critical_distance(room: Room, source: Source) -> np.ndarray:
-    """On-axis critical distance r_c = sqrt(Q A / (16 pi)) per octave band, m (classic theory)."""
+    """On-axis critical distance r_c = sqrt(Q A / (16 pi)) per octave band, m (classic theory).
+
+    Raises
+    ------
+    InputError
+        For a ``room`` or ``source`` that is not a :class:`Room` / :class:`Source`.
+    """
+    _checked(room, Room, "room")
+    _checked(source, Source, "source")
     return np.sqrt(source.q * room.absorption_area_m2 / (16.0 * np.pi))
 
 
 def level_dba(band_db: np.ndarray) -> float:
-    """A-weighted sum of seven octave-band levels (-inf bands count as silent)."""
-    b = np.asarray(band_db, dtype=float)
+    """A-weighted sum of seven octave-band levels (-inf bands count as silent).
+
+    Raises
+    ------
+    InputError
+        For levels that are not seven numbers (NaN or +inf included).
+    """
+    b = checks.array(band_db, "octave-band levels", min_size=NB, finite=False,
+                     fix=f"give {NB} levels, 125 Hz to 8 kHz, in dB")
+    if b.size != NB or np.any(np.isnan(b)) or np.any(b == np.inf) or np.any(b > 300.0):
+        raise InputError(f"octave-band levels must be {NB} numbers up to 300 dB (-inf: silent)",
+                         f"give {NB} levels, 125 Hz to 8 kHz, in dB")
     return a_weighted_level(np.where(np.isfinite(b), b, -400.0))
 
 
@@ -635,7 +726,17 @@ IMAGE_DECAY_DB: float = std.T30_NEEDED_RANGE_DB
 def image_absorption(room: Room) -> np.ndarray:
     """Uniform energy absorption coefficient per band for the image sources: the mean
     coefficient of the surfaces by inverting Eyring's formula, alpha = 1 - exp(-0.161 V / (S T)),
-    so that the image-source decay (reflections weakened by (1 - alpha) each) has the room's T."""
+    so that the image-source decay (reflections weakened by (1 - alpha) each) has the room's T.
+
+    Raises
+    ------
+    InputError
+        For a ``room`` that is not a :class:`Room`, or one without a surface area (give
+        ``room.dimensions_m`` or its surfaces).
+    """
+    _checked(room, Room, "room")
+    if room.surface_m2 is None:
+        raise InputError("the room has no surface area", "give room.dimensions_m or room.surfaces")
     return 1.0 - np.exp(-std.SABINE_CONSTANT * room.volume_m3 / (room.surface_m2 * room.rt_s))
 
 
@@ -652,7 +753,22 @@ def image_source_ir(scene: Scene, point: np.ndarray, fs: int = IMAGE_FS) -> tupl
     ----------
     J. B. Allen, D. A. Berkley, "Image method for efficiently simulating small-room acoustics",
     JASA 65 (1979) 943-950; R. Scheibler et al., "Pyroomacoustics", ICASSP 2018.
+
+    Raises
+    ------
+    InputError
+        For a ``scene`` that is not a :class:`Scene`, a room without dimensions, a point
+        that is not three finite coordinates inside the room, a rate outside the
+        accepted range, or when pyroomacoustics is not installed.
     """
+    _checked(scene, Scene, "scene")
+    fs = checks.sample_rate(fs, "image-source response")
+    point = _points(point)
+    if point.shape[0] != 1:
+        raise InputError(f"{point.shape[0]} points given", "give one point [x, y, z] in metres")
+    point = point[0]
+    if scene.room.dimensions_m is not None:
+        _inside(point, scene.room.dimensions_m, "the point")
     try:
         import pyroomacoustics as pra
     except ImportError:

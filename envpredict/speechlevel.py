@@ -91,8 +91,19 @@ def p56_envelope(x: np.ndarray, fs: int) -> np.ndarray:
 
     ``p[k] = g p[k-1] + (1-g) |x[k]|``, ``q[k] = g q[k-1] + (1-g) p[k]``,
     ``g = exp(-1 / (T fs))``, both starting at 0.
+
+    Raises
+    ------
+    InputError
+        For a signal that is not a finite 1-D array of numbers, or a rate outside the
+        accepted range.
     """
     from scipy.signal import lfilter
+
+    from .checks import array, sample_rate
+
+    fs = sample_rate(fs, "speech")
+    x = array(x, "speech", fix="give the speech as a 1-D array of samples")
 
     g = math.exp(-1.0 / (std.P56_TIME_CONSTANT_S * fs))
     b, a = [1.0 - g], [1.0, -g]

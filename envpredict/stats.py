@@ -264,6 +264,11 @@ def effect_size_dz(d: Sequence[float] | np.ndarray, confidence: float = CONFIDEN
     lower tails put t at the chosen confidence (Cumming & Finch 2001). ``(None, None,
     None)`` for fewer than 2 differences or no spread.
 
+    Raises
+    ------
+    InputError
+        For differences that are not finite numbers, or a confidence outside (0, 1).
+
     Examples
     --------
     >>> dz, lo, hi = effect_size_dz([0.05, 0.02, 0.06, 0.03, 0.04, 0.01, 0.05, 0.05])
@@ -273,7 +278,9 @@ def effect_size_dz(d: Sequence[float] | np.ndarray, confidence: float = CONFIDEN
     from scipy.optimize import brentq
     from scipy.stats import nct
 
-    x = np.asarray(d, dtype=float).ravel()
+    x = checks.array(d, "paired differences", ndim=(0, 1), min_size=0).ravel()
+    confidence = checks.number(confidence, "confidence", lo=0.0, hi=1.0, lo_open=True, hi_open=True,
+                               fix="give e.g. 0.95")
     n = x.size
     if n < 2:
         return None, None, None
@@ -389,8 +396,17 @@ def _table_values(rows: Sequence[Mapping[str, Any]], *, by: str, index: str | No
     """The index values of a results table per condition and item (the checks of
     :func:`compare_conditions`): ``(index, item keys, {condition: {item: value}},
     conditions in order of appearance, rows left out)``."""
+    if isinstance(rows, (str, bytes, Mapping)) or not isinstance(rows, Sequence) or not all(
+            isinstance(r, Mapping) for r in rows):
+        raise InputError("the results are not a list of rows (column -> cell)",
+                         "give the rows of a results table, e.g. from tables.read_results")
     if not rows:
         raise InputError("the results table has no rows", "score a manifest with 'envpredict batch' first")
+    by = checks.text(by, "the condition column (--by)")
+    if index is not None:
+        index = checks.text(index, "the index column (--index)")
+    if columns is not None and (isinstance(columns, (str, bytes)) or not isinstance(columns, Sequence)):
+        raise InputError("columns are not a list of column names", "give the header of the results table")
     cols = list(columns) if columns is not None else list(rows[0].keys())
     if by not in cols:
         raise InputError(f"column '{by}' (--by) is not in the results", f"use one of: {', '.join(cols)}")
@@ -414,6 +430,9 @@ def _table_values(rows: Sequence[Mapping[str, Any]], *, by: str, index: str | No
     else:
         if isinstance(pair_on, str):
             keys = tuple(k.strip() for k in pair_on.split(",") if k.strip())
+        elif isinstance(pair_on, bytes) or not isinstance(pair_on, Sequence):
+            raise InputError(f"--pair-on {pair_on!r:.40} is not a column name or a list of them",
+                             "name the column(s) that identify an item, e.g. clean")
         else:
             keys = tuple(str(k) for k in pair_on)
         for k in keys:
@@ -649,7 +668,14 @@ def compare_all_pairs(
     interval, the Wilcoxon signed-rank p-value, the paired effect size d_z with its
     interval, and the p-value Holm-adjusted over *all* pairs (k conditions: k(k-1)/2
     tests). Parameters as for :func:`compare_conditions`.
+
+    Raises
+    ------
+    InputError
+        For a missing or unknown column, fewer than two conditions, index cells that are
+        not numbers, or bootstrap options out of range.
     """
+    confidence, n_resamples, seed, ci_method = _bootstrap_options(confidence, n_resamples, seed, ci_method)
     index, keys, values, order, skipped = _table_values(rows, by=by, index=index, pair_on=pair_on, columns=columns)
     notes: list[str] = []
     if skipped:
@@ -727,8 +753,14 @@ def compare_conditions_file(
 
 
 def compare_all_pairs_file(path: str | os.PathLike, **kwargs: Any) -> PairwiseComparison:
-    """:func:`compare_all_pairs` of a results file written by ``envpredict batch``."""
+    """:func:`compare_all_pairs` of a results file written by ``envpredict batch``.
+
+    Raises
+    ------
+    InputError
+        For a file that is missing or not a results table, and as :func:`compare_all_pairs`.
+    """
     from .tables import read_results
 
-    columns, rows = read_results(path)
+    columns, rows = read_results(checks.path(path, "results file"))
     return compare_all_pairs(rows, columns=columns, **kwargs)

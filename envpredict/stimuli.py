@@ -118,9 +118,26 @@ class StimuliResult:
         })
 
 
+#: Lowest presentation level accepted, dB re full scale: below it the quietest file
+#: holds nothing but rounding to 24 bits (about -144 dB; judgement).
+MIN_LEVEL_DB: float = -140.0
+
+#: Longest start of a stimulus file name, bytes (the file name adds about 20 to it;
+#: NAME_MAX is 255 bytes).
+MAX_NAME_CHARS: int = 200
+
+
 def check_stimuli_folder(folder: str | os.PathLike) -> Path:
-    """Refuse a stimuli folder that exists and is not empty (before any work)."""
-    p = Path(folder)
+    """Refuse a stimuli folder that exists and is not empty (before any work).
+
+    Raises
+    ------
+    InputError
+        For something that is not a path, or a folder (or file) that exists and is not empty.
+    """
+    from .checks import path
+
+    p = path(folder, "stimuli folder")
     if p.exists() and (not p.is_dir() or any(p.iterdir())):
         raise InputError(f"stimuli folder '{p}' exists and is not empty",
                          "give the name of a new or empty folder for --write-stimuli")
@@ -213,11 +230,18 @@ def write_stimuli(
     if pres >= 0:
         raise InputError(f"presentation level {pres:g} dB re full scale is at or above full scale",
                          "give a negative level, e.g. -26")
+    if pres < MIN_LEVEL_DB:
+        raise InputError(f"presentation level {pres:g} dB re full scale is below {MIN_LEVEL_DB:g} dB",
+                         "give a level a 24-bit file can hold, e.g. -26")
     snrs = np.unique(np.round(snrs / SNR_STEP_DB) * SNR_STEP_DB)
     if snrs.size > MAX_STIMULI:
         raise InputError(f"{snrs.size} stimuli asked for (at most {MAX_STIMULI})", "give fewer SNRs")
     if not isinstance(seed, (int, np.integer)) or seed < 0:
         raise InputError(f"seed {seed!r} is not a whole number >= 0", "give e.g. --seed 0")
+    if not isinstance(name, str) or not name or len(name.encode()) > MAX_NAME_CHARS or any(
+            c in name for c in "/\\\x00"):
+        raise InputError(f"stimulus name {name!r:.40} cannot start a file name",
+                         f"give a short name (at most {MAX_NAME_CHARS} characters, no slashes)")
     fs = check_rate(fs, "clean speech")
     many = not isinstance(clean, np.ndarray) and isinstance(clean, (list, tuple))
     items = list(clean) if many else [clean]
@@ -294,11 +318,25 @@ def write_stimuli(
 
 def stimulus_snrs(sweep: SweepResult | None = None, chosen: Sequence[float] | None = None) -> list[float]:
     """The SNRs to write: ``chosen`` when given; else the target SNRs a sweep found
-    (those reached inside its range); else the sweep's own SNRs."""
-    if chosen:
-        return [float(s) for s in chosen]
+    (those reached inside its range); else the sweep's own SNRs.
+
+    Raises
+    ------
+    InputError
+        For chosen SNRs that are not finite numbers, a ``sweep`` that is not a
+        :class:`~envpredict.sweep.SweepResult`, or neither.
+    """
+    if chosen is not None and (isinstance(chosen, (str, bytes)) or len(np.atleast_1d(chosen)) > 0):
+        from .checks import array
+
+        snrs = array(chosen, "SNRs of the stimuli", fix="give the SNRs in dB")
+        if np.any(np.abs(snrs) > 200.0):
+            raise InputError("an SNR of the stimuli is beyond +-200 dB", "give the SNRs in dB")
+        return [float(s) for s in snrs]
     if sweep is None:
         raise InputError("no SNRs for the stimuli", "give the SNRs to write")
+    if not isinstance(sweep, SweepResult):
+        raise InputError(f"sweep is not a SweepResult ({type(sweep).__name__})", "give the result of snr_sweep")
     found = [t.snr_db for t in sweep.targets if t.snr_db is not None]
     return [float(s) for s in found] if found else [float(s) for s in sweep.snr_db]
 
@@ -318,6 +356,12 @@ def write_stimuli_files(
 
     ``options`` are those of :func:`write_stimuli` (``snr_reference``, ``level``,
     ``presentation_level_db``, ``scale_to_fit``, ``seed``, ``name``).
+
+    Raises
+    ------
+    InputError
+        For audio files that are missing or unreadable, several sentences, and as
+        :func:`write_stimuli`.
     """
     from dataclasses import replace
 

@@ -332,6 +332,13 @@ def load_process(spec: str) -> Callable[[np.ndarray, int], np.ndarray]:
 
     The function is called as ``FUNCTION(mixture, fs)`` and must return the processed
     mixture, of the same length and time-aligned (see :func:`snr_sweep`).
+
+    Raises
+    ------
+    InputError
+        For a ``spec`` that is not ``MODULE:FUNCTION``, a module or file that cannot be
+        imported, a name that is not a function of it; the returned chain raises it for
+        an exception of the function or an output that is not a mixture of the same length.
     """
     import importlib
     import importlib.util
@@ -390,7 +397,13 @@ def _processed(process: Callable[[np.ndarray, int], np.ndarray], mix: np.ndarray
 
 
 def check_snr_reference(snr_reference: Any) -> str:
-    """``"active"`` or ``"long-term"`` (``"long_term"`` and ``"longterm"`` accepted), or ``InputError``."""
+    """``"active"`` or ``"long-term"`` (``"long_term"`` and ``"longterm"`` accepted).
+
+    Raises
+    ------
+    InputError
+        For anything else.
+    """
     ref = str(snr_reference).strip().lower().replace("_", "-")
     ref = "long-term" if ref == "longterm" else ref
     if ref not in SNR_REFERENCES:
@@ -685,10 +698,23 @@ def snr_sweep_sentences(
     SweepResult
         with ``sentences``, ``sentence_sd`` and ``sentence_activity`` filled in, and the
         sentence, combined and total intervals in each target.
+
+    Raises
+    ------
+    InputError
+        For fewer than two sentences, sentences or a noise the one validation rule
+        refuses, names that do not match the sentences, and as :func:`snr_sweep`.
+    ComputationError
+        As :func:`snr_sweep` (no index value at some SNR).
     """
     from scipy.stats import norm
     from scipy.stats import t as student_t
 
+    if isinstance(sentences, (str, bytes, np.ndarray)) and np.ndim(sentences) < 2 or not isinstance(
+            sentences, (Sequence, np.ndarray)):
+        raise InputError("the sentences are not a list of signals", "give one 1-D array per sentence")
+    if names is not None and (isinstance(names, (str, bytes)) or not isinstance(names, Sequence)):
+        raise InputError("the names are not a list", "give one name per sentence")
     items = list(sentences)
     if len(items) < 2:
         raise InputError(f"{len(items)} sentence(s) given", "give at least two sentences (or sweep one with snr_sweep)")
@@ -796,15 +822,21 @@ def sentence_files(clean: str | os.PathLike | Sequence[str | os.PathLike]) -> li
     """The clean-speech files of a sweep: a list of paths, the audio files of a folder
     (sorted by name), the paths listed in a text file (``.txt``/``.lst``: one per line,
     relative to the list's folder; blank lines and lines starting with ``#`` skipped), or
-    one audio file."""
-    from pathlib import Path
+    one audio file.
 
+    Raises
+    ------
+    InputError
+        For something that is not a path or a list of paths, a folder without audio
+        files, a list file that cannot be read or names no files, or no files at all.
+    """
     from .audio import audio_files_in
+    from .checks import path as checked_path
 
     if isinstance(clean, (list, tuple)):
-        files = [Path(c) for c in clean]
+        files = [checked_path(c, "clean-speech file") for c in clean]
     else:
-        p = Path(clean)
+        p = checked_path(clean, "clean speech")
         if p.is_dir():
             files = audio_files_in(p)
             if not files:

@@ -54,6 +54,7 @@ MODULES = (
     "decay", "correlation", "pitch", "signals", "tables", "mapping", "indirect", "direct", "pair",
     "timescales", "sweep", "stats", "batch", "refcases", "demo", "report", "checks", "labels", "sinesweep",
     "deconvolve", "survey",
+    "envpower", "speechlevel", "stimuli", "roommodel", "design",
 )
 
 EXAMPLE_SECONDS = 30  # one example longer than this is a hang (a huge length accepted)
@@ -168,6 +169,18 @@ def build_fixture_folder(d: Path) -> Path:
     (d / "about.txt").write_text("# record\nproject: Pier 4\noperator: K. Lind\n")
     (d / "about.json").write_text(json.dumps({"project": "Pier 4", "site": None}))
     (d / "about_bad.json").write_text("[1, 2]")
+    # added with the design, corpus and listening-test work
+    (d / "scene.json").write_text(json.dumps(SCENE))
+    (d / "scene.toml").write_text('[room]\nvolume_m3 = 500\nrt_s = 0.8\n[[sources]]\nposition_m = [0, 0, 3]\n'
+                                  'level_1m_dba = 80\n[[listeners]]\nposition_m = [4, 0, 1.2]\n')
+    (d / "sentences").mkdir()
+    for i in range(2):
+        _write_wav(d / "sentences" / f"s{i}.wav", speech(10000, 1.5, i), 10000)
+    (d / "sentences.txt").write_text("# two sentences\nsentences/s0.wav\n\nsentences/s1.wav\n")
+    _write_wav(d / "noise10k.wav", 0.05 * np.random.default_rng(6).standard_normal(10000 * 10), 10000)
+    (d / "gain.py").write_text("def half(x, fs):\n    return 0.5 * x\n\n\ndef broken(x, fs):\n    return 1 / 0\n")
+    (d / "pairs_cond.csv").write_text("clean,degraded,condition\nclean.wav,degraded.wav,a\nclean.wav,clean.wav,a\n"
+                                      "clean.wav,degraded.wav,b\n")
     _FOLDER[:] = [d]
     return d
 
@@ -872,6 +885,242 @@ case("report.check_report_folder", folder=S(Out("rep"), P("out")), inputs=S(None
      out=S(None, Out("x.json")))
 case("report.figure_names", folder=S(P("out"), P(".")))
 
+# --- added with the design, corpus and listening-test work -------------------------------------
+
+case("audio.find_delay", reference=st.builds(speech, J(16000), J(1.0), J(1)), x=_DELAYED, fs=J(16000),
+     max_delay_s=st.floats(0.05, 1.0), near=S(0, 100), excerpt_s=S(None, 0.5), method=S("gcc-phat", "waveform"),
+     curve=st.booleans(), bad_={"curve": None})
+
+
+@lru_cache(maxsize=8)
+def delay_curve(d: int, fs: int = 16000):
+    from envpredict.audio import find_delay
+
+    x = speech(16000, 1.0, 1)
+    return find_delay(x, np.concatenate([np.zeros(d), x])[:16000], fs, 0.1, curve=True)[1]
+
+
+case("audio.pooled_delay", curves=st.lists(st.builds(delay_curve, st.integers(0, 200)), min_size=1, max_size=3),
+     bad_={"curves": S([], None, 3, [None], "x", [1.0, 2.0])})
+
+
+def _plan(fn, kw):
+    from envpredict.batch import Alignment, read_manifest
+
+    m = read_manifest(_FOLDER[0] / kw["which"])
+    al = kw["alignment"]
+    return fn(m, m.jobs, Alignment(**al) if isinstance(al, dict) else al)
+
+
+case("batch.plan_delays", which=S("pairs_cond.csv", "pairs.csv", "manifest.csv"),
+     alignment=S(None, {}, {"per_row": True}, {"fixed_delay_ms": 5.0}, {"align": False}, {"max_delay_s": 0.5}),
+     call_=_plan, examples_=6,
+     bad_={"which": None, "alignment": S(3, "x", {"max_delay_s": NAN}, {"fixed_delay_ms": "x"},
+                                         {"per_row": True, "fixed_delay_ms": 1.0}, {"condition_column": "nope"},
+                                         {"max_delay_s": -1.0}, {"condition_column": 3})})
+SCENE = {
+    "room": {"dimensions_m": [10, 8, 3], "rt_s": [0.9, 0.8, 0.7, 0.7, 0.6, 0.6, 0.5]}, "noise_db": 40,
+    "sources": [{"name": "LS1", "position_m": [1, 1, 2.5], "aim_m": [5, 4, 1.2], "level_1m_dba": 85, "q": 4},
+                {"name": "LS2", "position_m": [9, 7, 2.5], "level_1m_db": [80, 80, 78, 76, 72, 68, 64], "q": 2,
+                 "delay_ms": 10}],
+    "listeners": [{"name": "P1", "position_m": [5, 4, 1.2]}, {"position_m": [2, 6, 1.2]}],
+    "grid": {"x_m": [0.5, 9.5], "y_m": [0.5, 7.5], "z_m": 1.2, "step_m": 1.0},
+}
+
+
+def _scene_variant(k: int) -> dict:
+    d = json.loads(json.dumps(SCENE))
+    if k == 1:
+        d["room"] = {"volume_m3": 240, "surfaces": [{"area_m2": 200, "absorption": 0.2},
+                                                    {"area_m2": 50, "absorption": [0.1, 0.2, 0.3, 0.4, 0.5, 0.5, 0.5]}],
+                     "rt_formula": "eyring", "field": "revised"}
+    elif k == 2:
+        d["sources"][0]["off_axis_db"] = {"angles_deg": [0, 90, 180], "attenuation_db": [0, 6, [12] * 7]}
+        del d["grid"]
+    elif k == 3:
+        del d["listeners"]
+    return d
+
+
+SCENES = st.builds(_scene_variant, st.integers(0, 3))
+BAD_SCENE = st.one_of(BAD_ANY, S({}, {"room": 3}, {"room": {"volume_m3": NAN, "rt_s": 1}},
+                                 {**SCENE, "noise_db": [1e309] * 7},
+                                 {**SCENE, "grid": {**SCENE["grid"], "step_m": 1e-6}},
+                                 {**SCENE, "sources": [{"position_m": [5, 4, 1.2], "level_1m_dba": 80}]},
+                                 {**SCENE, "listeners": [{"position_m": ["a", 1, 1]}]}, {**SCENE, "extra": 1}))
+
+
+@lru_cache(maxsize=4)
+def scene(k: int = 0):
+    from envpredict.roommodel import parse_scene
+
+    return parse_scene(_scene_variant(k))
+
+
+SCENE_OBJ = st.builds(scene, S(0, 1, 2))
+ROOM = SCENE_OBJ.map(lambda s: s.room)
+SOURCE = st.builds(lambda k, i: scene(k).sources[i], S(0, 1, 2), S(0, 1))
+POINTS = st.builds(lambda s, n: np.random.default_rng(s).uniform([0.5, 0.5, 1.0], [9.5, 7.5, 2.0], (n, 3)),
+                   st.integers(0, 5), S(1, 10))
+BAD_OBJ = S(None, 3, "x", {}, np.zeros(3))
+
+
+def _grid_sti(fn, kw):
+    s = kw["scene"]
+    grid = getattr(s, "grid", None) if isinstance(kw["grid"], str) and kw["grid"] == "own" else kw["grid"]
+    return fn(s, grid, talker=kw["talker"], auditory=kw["auditory"])
+
+
+case("design.grid_sti", scene=st.builds(scene, S(0, 1)), grid=S("own"), talker=S("male", "female"),
+     auditory=st.booleans(), call_=_grid_sti, bad_={"scene": BAD_OBJ, "grid": BAD_OBJ, "auditory": S(None, "x")})
+case("design.predict_design", scene=st.one_of(SCENES, SCENE_OBJ), talker=S("male", "female"), auditory=st.booleans(),
+     requirement=S(None, 0.5, 0.62), engine=S("statistical", "Statistical"),
+     bad_={"scene": BAD_SCENE, "engine": S("nope", None, 3), "auditory": S(None, "x")}, examples_=10)
+case("design.predict_design_file", path=S(P("scene.json"), P("scene.toml")), talker=S("male", "female"),
+     requirement=S(None, 0.5), engine=S("statistical"), examples_=6)
+case("roommodel.parse_scene", d=SCENES, talker=S("male", "female"), bad_={"d": BAD_SCENE})
+case("roommodel.read_scene", path=S(P("scene.json"), P("scene.toml")), talker=S("male", "female"))
+case("roommodel.critical_distance", room=ROOM, source=SOURCE, bad_={"room": BAD_OBJ, "source": BAD_OBJ})
+case("roommodel.directivity_gain", source=SOURCE, cos_theta=st.lists(st.floats(-1, 1), min_size=1, max_size=9)
+     .map(np.array), bad_={"source": BAD_OBJ, "cos_theta": BAD_ARRAY})
+case("roommodel.source_terms", room=ROOM, source=SOURCE, points=POINTS,
+     bad_={"room": BAD_OBJ, "source": BAD_OBJ, "points": BAD_ARRAY})
+case("roommodel.modulation_transfer", room=ROOM, sources=SCENE_OBJ.map(lambda s: s.sources), points=POINTS,
+     modulation_hz=S((0.63, 1.0, 2.0, 4.0, 8.0, 12.5), (1.0,)),
+     bad_={"room": BAD_OBJ, "sources": S(None, (), 3, (None,)), "points": BAD_ARRAY})
+case("roommodel.reverberant_transfer", rt_s=st.lists(st.floats(0.1, 5.0), min_size=7, max_size=7).map(np.array),
+     modulation_hz=S((0.63, 1.0, 2.0, 4.0, 8.0, 12.5), (1.0,)), bad_={"rt_s": BAD_ARRAY})
+case("roommodel.level_dba", band_db=st.lists(st.one_of(st.floats(0, 120), S(-INF)), min_size=7, max_size=7)
+     .map(np.array), bad_={"band_db": BAD_ARRAY})
+case("roommodel.image_absorption", room=ROOM, bad_={"room": BAD_OBJ}, share_=0.3)
+# a small room with a short decay: a few seconds per response
+case("roommodel.image_source_ir", scene=st.builds(scene, S(0, 2)), point=S(np.array([5.0, 4.0, 1.2]),
+                                                                           np.array([2.0, 6.0, 1.5])),
+     fs=S(24000), bad_={"scene": BAD_OBJ, "point": S(None, np.zeros(2), np.array([NAN] * 3), np.array([50.0, 1, 1]),
+                                                     "x")}, examples_=3)
+case("envpower.ideal_observer", snr_env=st.one_of(st.floats(0, 1e3), st.lists(st.floats(0, 1e3), min_size=1,
+                                                                               max_size=5).map(np.array)),
+     k=S(1.0, math.sqrt(1.2)), q=S(0.5, 1.0), sigma_s=S(0.6, 1.0), m=S(8000.0, 50.0),
+     bad_={"snr_env": S(NAN, -1.0, "x", None, np.array([NAN]), INF), "k": BAD_REAL, "q": BAD_REAL,
+           "sigma_s": BAD_REAL, "m": S(1.0, 0.5, NAN, "x", None)})
+case("envpower.modulation_weights", freqs_hz=st.lists(st.floats(0, 500), min_size=1, max_size=50).map(np.array),
+     modulation_hz=S((1.0, 2.0, 4.0, 8.0, 16.0, 32.0, 64.0), (1.0, 4.0)), q=S(1.0, 0.5),
+     bad_={"freqs_hz": BAD_ARRAY, "modulation_hz": S((), (NAN,), (-1.0,), (0.0,), "abc", None), "q": BAD_REAL})
+_SEPSM_X = st.builds(lambda s, n: speech(16000, n, s) + 0.02 * np.random.default_rng(s).standard_normal(int(n * 16000)),
+                     st.integers(0, 1), S(1.0, 1.5))
+case("envpower.envelope_powers", x=_SEPSM_X, fs=J(16000), bands_hz=S(None, (250.0, 1000.0, 4000.0)),
+     bad_={"bands_hz": S((), (NAN,), (-1.0,), "x", (1e9,))}, examples_=6)
+
+
+def _sepsm(fn, kw):
+    """``fn(speech + noise, noise, ...)`` with a noise made to fit the drawn speech; a
+    spoiled speech or noise is passed as it is."""
+    x, nz = kw.pop("mixture"), kw.pop("noise")
+    ok = isinstance(x, np.ndarray) and x.dtype.kind == "f" and x.ndim == 1
+    if isinstance(nz, str) and nz == "made":
+        nz = 0.02 * np.random.default_rng(0).standard_normal(x.size) if ok else x
+        return fn(x + nz if ok else x, nz, **kw)
+    return fn(x, nz, **kw)
+
+
+case("envpower.sepsm", mixture=st.builds(speech, J(16000), S(1.0, 1.5), st.integers(0, 1)), noise=J("made"),
+     fs=J(16000), k=S(math.sqrt(1.2)), m=S(8000.0, 50.0), call_=_sepsm, examples_=6,
+     bad_={"mixture": BAD_ARRAY, "k": BAD_REAL, "m": S(1.0, NAN, None)})
+case("speechlevel.p56_envelope", x=st.builds(speech, J(16000), S(0.5, 1.0), st.integers(0, 2)), fs=S(8000, 16000))
+case("speechlevel.active_speech_level", x=scaled(st.builds(speech, J(16000), S(1.0, 2.0), st.integers(0, 2))),
+     fs=S(16000, 22050))
+case("mapping.check_dispersion", dispersion=S("quasi", "binomial"))
+case("mapping.published_mapping_names")
+case("mapping.published_mapping", name=S("taal2011-ieee", "taal2011-dantale"))
+case("pair.pair_delay_curve", clean_path=S(P("clean.wav")), degraded_path=S(P("degraded.wav"), P("clean.wav")),
+     channel=S(None, 0), max_delay_s=S(0.2, 1.0), delay_method=S("gcc-phat", "waveform"), examples_=6,
+     bad_={"delay_method": BAD_TEXT})
+case("pair.common_delay", pairs=S([(P("clean.wav"), P("degraded.wav"), None)],
+                                  [(P("clean.wav"), P("degraded.wav"), None), (P("clean.wav"), P("clean.wav"), 0)],
+                                  [(P("clean.wav"), P("degraded.wav"), None),
+                                   (P("clean.wav"), P("missing.wav"), None)]),
+     max_delay_s=S(0.2, 1.0), delay_method=S("gcc-phat", "waveform"), examples_=6,
+     bad_={"pairs": S(None, 3, [], [None], [(1, 2)], "x", [(P("missing.wav"), P("clean.wav"), None)]),
+           "delay_method": BAD_TEXT})
+_MIX = st.builds(lambda s: speech(16000, 1.0, s) + 0.01 * np.random.default_rng(s).standard_normal(16000),
+                 st.integers(0, 3))
+case("pair.phase_inversion_split", mixture=_MIX, inverted=_MIX, bad_={"mixture": BAD_ARRAY, "inverted": BAD_ARRAY})
+_CROWS3 = st.builds(lambda s: [{"item": f"u{i}", "condition": c,
+                                "sti": 0.5 + 0.03 * i + 0.04 * "abc".index(c) + 0.01 * ((i * 7 + s) % 5)}
+                               for i in range(8) for c in "abc"], st.integers(0, 5))
+case("stats.compare_all_pairs", rows=_CROWS3, by=S("condition"), index=S(None, "sti"), pair_on=S(None, "item"),
+     n_resamples=S(200, 500), confidence=S(0.9, 0.95), ci_method=S("BCa", "percentile"),
+     bad_={"rows": S(None, 3, [], [None], [{"condition": "a"}], "x")})
+case("stats.compare_all_pairs_file", path=S(P("results.csv")), by=S("condition"), n_resamples=S(200, 500),
+     examples_=6)
+case("stats.effect_size_dz", d=st.lists(st.floats(-1, 1), min_size=0, max_size=12).map(np.array),
+     confidence=S(0.9, 0.95))
+_SPEECH_DB = st.lists(st.floats(20, 90), min_size=7, max_size=7).map(np.array)
+case("sti.band_factors", speech_db=st.one_of(_SPEECH_DB, _SPEECH_DB.map(lambda v: np.stack([v, v - 10]))),
+     noise_db=S(None, np.full(7, 40.0), np.linspace(50, 20, 7)), auditory=st.booleans(),
+     bad_={"speech_db": BAD_ARRAY, "noise_db": S(np.zeros(3), [NAN] * 7, "x", np.zeros((2, 7))),
+           "auditory": S(None, "x", 1.5)})
+case("sti.combine_bands_many", mti=st.builds(lambda s, n: np.random.default_rng(s).random((n, 7)),
+                                             st.integers(0, 9), S(1, 5)),
+     talker=S("male", "female"))
+case("sti.sti_many", mtf=st.builds(lambda s: np.random.default_rng(s).uniform(0.05, 1.0, (3, 7, 14)),
+                                   st.integers(0, 9)),
+     speech_db=st.builds(lambda s: np.random.default_rng(s).uniform(40, 80, (3, 7)), st.integers(0, 5)),
+     noise_db=S(None, np.full(7, 40.0)), talker=S("male", "female"), auditory=st.booleans(),
+     bad_={"speech_db": BAD_ARRAY, "noise_db": S(np.zeros(3), "x"), "auditory": S(None, "x")})
+case("stimuli.check_stimuli_folder", folder=S(Out("stim"), Out("stim2"), P("recordings"), P("ir.wav")), share_=0.3)
+
+
+@lru_cache(maxsize=1)
+def small_sweep():
+    from envpredict.sweep import snr_sweep
+
+    return snr_sweep(speech(10000, 1.5, 0), 0.05 * np.random.default_rng(0).standard_normal(100000), 10000,
+                     snr_db=(-5.0, 0.0, 5.0), index="stoi", n_segments=1)
+
+
+case("stimuli.stimulus_snrs", sweep=S(None, "sweep"), chosen=S(None, [0.0, 5.0], (-3.0,)),
+     call_=lambda fn, kw: fn(small_sweep() if kw["sweep"] == "sweep" else kw["sweep"], kw["chosen"]),
+     bad_={"sweep": S(3, "x", [1.0]), "chosen": S("x", [NAN], 3, [None], [INF], [1e300])}, share_=0.3)
+_NOISE10K = st.builds(lambda s: 0.05 * np.random.default_rng(s).standard_normal(10000 * 10), st.integers(0, 2))
+case("stimuli.write_stimuli", folder=S(Out("stim")), clean=st.builds(speech, J(10000), J(1.5), st.integers(0, 2)),
+     noise=_NOISE10K, fs=J(10000), snr_db=S([-5.0, 0.0, 5.0], (3.0,)), ir=S(None, ir_array(48000, 0.3, 0.2, 1)[::5]),
+     snr_reference=S("active", "long-term"), level=S("speech", "mixture"), presentation_level_db=S(-30.0, -6.0),
+     scale_to_fit=S(True, True, False), seed=S(0, 7), name=S("stimulus", "s"), examples_=8,
+     bad_={"snr_db": S([], [NAN], "x", None, [1e300], list(range(1000))), "presentation_level_db": BAD_REAL,
+           "snr_reference": BAD_TEXT, "scale_to_fit": S(None, "x")})
+case("stimuli.write_stimuli_files", folder=S(Out("stimf")), clean=S(P("clean.wav")), noise=S(P("noise.wav")),
+     snr_db=S([0.0, 5.0]), ir=S(None, P("ir.wav")), channel=S(None, 0), examples_=5,
+     bad_={"clean": BAD_PATH, "noise": BAD_PATH, "ir": BAD_PATH, "snr_db": S([], [NAN], "x", None)})
+case("sweep.check_snr_reference", snr_reference=S("active", "long-term", "long_term", "longterm"))
+
+
+def _process(fn, kw):
+    f = fn(kw["spec"])
+    return f(np.ones(100), 16000) if kw["call"] else f
+
+
+case("sweep.load_process", spec=S(P("gain.py:half"), P("gain.py:broken")), call=st.booleans(), call_=_process,
+     bad_={"spec": S("", "nope", "os:nope", P("gain.py"), P("gain.py:"), "no_such_module_x:f", 3, None,
+                     P("missing.py:f"), P("text.txt:f")), "call": None}, share_=0.3)
+case("sweep.sentence_files", clean=S(P("sentences"), P("sentences.txt"), [P("clean.wav"), P("speech.wav")],
+                                     P("clean.wav")),
+     bad_={"clean": BAD_PATH})
+case("sweep.snr_sweep_sentences", sentences=st.builds(lambda a, b: [speech(10000, 1.5, a), speech(10000, 1.5, b)],
+                                                      S(0, 1), S(2, 3)),
+     noise=_NOISE10K, fs=J(10000), snr_db=S((-5.0, 0.0, 5.0), (0.0, 10.0)), index=S("stoi", "estoi"),
+     n_segments=S(1, 2), names=S(None, ["a", "b"]), examples_=5,
+     bad_={"sentences": S(None, [], [np.zeros(3)], [speech(10000, 1.5, 0)], "x", [None, None]),
+           "names": S(["a"], 3, [None, None])})
+
+# cheap functions: more examples, so each hostile value is met
+for _n in ("roommodel.critical_distance", "roommodel.directivity_gain", "roommodel.source_terms",
+           "roommodel.modulation_transfer", "roommodel.reverberant_transfer", "roommodel.level_dba",
+           "roommodel.image_absorption", "roommodel.parse_scene", "envpower.ideal_observer",
+           "envpower.modulation_weights", "pair.phase_inversion_split", "stats.effect_size_dz", "sti.band_factors",
+           "sti.combine_bands_many", "sti.sti_many", "stimuli.stimulus_snrs", "sweep.sentence_files",
+           "speechlevel.p56_envelope", "mapping.check_dispersion", "sweep.check_snr_reference"):
+    CASES[_n].examples = 30
 
 # --- checks (the boundary checks themselves) ---------------------------------------------------
 
