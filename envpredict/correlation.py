@@ -50,9 +50,6 @@ SEGMENT_BLOCK: int = 256
 #: segments) views: 15 x 2048 x 8 bytes = 0.25 MB per array.
 ESTOI_SEGMENT_BLOCK: int = 2048
 
-#: Fewest segments per half before :func:`segment_scores` splits the work over two
-#: threads (below it, about 5 s of speech, the thread start costs more than it saves).
-PARALLEL_MIN_SEGMENTS: int = 400
 
 #: Frames per chunk of the streamed passes (about 52 s of signal at 10 kHz).
 DEFAULT_CHUNK_FRAMES: int = 4096
@@ -224,17 +221,21 @@ class _EnvelopeBuilder:
         w = analysis_window()
         h = std.STOI_HOP
         a = frames * w
-        blocks = a[:, :h].copy()
-        blocks[0] += self.tail
-        blocks[1:] += a[:-1, h:]
+        # half-frame blocks of the overlap-add, after the one still pending (if any)
+        first = 0 if self.pending is None else 1
+        blocks = np.empty((a.shape[0] + first, h))
+        if first:
+            blocks[0] = self.pending
+        np.add(a[:, :h], 0.0, out=blocks[first:])
+        blocks[first] += self.tail
+        blocks[first + 1:] += a[:-1, h:]
         self.tail = a[-1, h:].copy()
-        if self.pending is not None:
-            blocks = np.vstack([self.pending[None, :], blocks])
         self.pending = blocks[-1].copy()
         if blocks.shape[0] < 2:
             return
         # DFT frame j = blocks j and j+1, windowed, zero-padded to the DFT length
-        dft_frames = np.zeros((blocks.shape[0] - 1, std.STOI_NFFT))
+        dft_frames = np.empty((blocks.shape[0] - 1, std.STOI_NFFT))
+        dft_frames[:, 2 * h:] = 0.0
         np.multiply(blocks[:-1], w[:h], out=dft_frames[:, :h])
         np.multiply(blocks[1:], w[h:], out=dft_frames[:, h : 2 * h])
         self.parts.append(_band_envelopes(dft_frames))  # (15, frames)
@@ -277,8 +278,6 @@ def tf_envelopes(
     InputError
         For readers or ``progress`` that are not callable, or a length or chunk that is not a whole number.
     """
-    from .audio import in_parallel
-
     n_samples, chunk_frames = _check_stream(clean_read, degraded_read, n_samples, chunk_frames, progress)
     total = frame_count(n_samples)
     n_chunks = max(1, -(-total // chunk_frames))
@@ -299,9 +298,8 @@ def tf_envelopes(
                 for k0 in range(0, sel.size, SPECTRUM_BLOCK):
                     builder.add(frames[sel[k0 : k0 + SPECTRUM_BLOCK]])
 
-            # clean and degraded at once where two cores are free (numpy's FFT and array
-            # arithmetic release the GIL); each builder sees its frames in order either way
-            in_parallel([lambda: spectra(fx, bx), lambda: spectra(fy, by)])
+            spectra(fx, bx)
+            spectra(fy, by)
         if progress is not None:
             progress(i + 2, n_chunks + 1)
     return bx.result(), by.result(), kept_idx, total
@@ -426,8 +424,6 @@ def segment_scores(x_env: np.ndarray, y_env: np.ndarray, which: tuple[str, ...] 
         )
     from numpy.lib.stride_tricks import sliding_window_view
 
-    from .audio import in_parallel
-
     clip = 1.0 + 10.0 ** (-std.STOI_BETA_DB / 20.0)
     out = {k: np.empty((n_bands, n_seg)) for k in SCORES if k in which}
     if SCORES[0] in out:
@@ -448,9 +444,7 @@ def segment_scores(x_env: np.ndarray, y_env: np.ndarray, which: tuple[str, ...] 
                 yw = [y_env[:, b0 + k : b1 + k] for k in range(n)]
                 out[SCORES[1]][:, b0:b1] = _estoi_block(xw, yw)
 
-    # two halves of the segments at once where two cores are free (numpy releases the GIL)
-    half = n_seg // 2 if n_seg >= 2 * PARALLEL_MIN_SEGMENTS else n_seg
-    in_parallel([lambda: part(0, half), lambda: part(half, n_seg)] if half < n_seg else [lambda: part(0, n_seg)])
+    part(0, n_seg)
     return out
 
 
@@ -581,7 +575,7 @@ def stoi_estoi_stream(
 
 
 def _prepare(clean: np.ndarray, degraded: np.ndarray, fs: int) -> tuple[np.ndarray, np.ndarray]:
-    from .audio import in_parallel, polyphase, resample_ratio, validate_signal
+    from .audio import polyphase, resample_ratio, validate_signal
 
     def checked(a: np.ndarray, name: str) -> tuple[int, np.ndarray]:
         v = validate_signal(a, fs, name=name, allow_clipping=True)
@@ -595,11 +589,9 @@ def _prepare(clean: np.ndarray, degraded: np.ndarray, fs: int) -> tuple[np.ndarr
         # validated above: the polyphase filter itself (audio.resample would check again)
         return v.size, polyphase(v, *resample_ratio(int(fs), std.STOI_FS))
 
-    # each signal checked and resampled in its own thread where two cores are free; an
-    # error of the clean signal is raised first, as if one after the other
-    (nx, x), (ny, y) = in_parallel(
-        [lambda: checked(clean, "clean signal"), lambda: checked(degraded, "degraded signal")]
-    )
+    # one after the other: on a machine of two virtual cores, threads for the two signals
+    # (and their spectra, and halves of the segments) made the calls about 1.4x slower
+    (nx, x), (ny, y) = checked(clean, "clean signal"), checked(degraded, "degraded signal")
     if nx != ny:
         raise InputError(
             f"clean ({nx} samples) and degraded ({ny} samples) differ in length",
