@@ -351,8 +351,11 @@ class SignalCheck:
     """
 
     def __init__(self, name: str = "input", *, allow_clipping: bool = False, min_seconds: float = 0.0,
-                 fs: float | None = None, subtype: str | None = None) -> None:
+                 fs: float | None = None, subtype: str | None = None, count_clipping: bool = True) -> None:
         self.name = name
+        #: with ``False`` (and clipping allowed) the clipping figures are not gathered:
+        #: for callers that take clipped input as it is and never ask (``clipped`` is False)
+        self.count_clipping = bool(count_clipping) or not allow_clipping
         self.subtype = subtype
         #: samples at full scale count as clipping (integer formats only)
         self.full_scale_rule = subtype is not None and str(subtype).upper() not in FLOAT_SUBTYPES
@@ -393,6 +396,8 @@ class SignalCheck:
         self._m2 += m2 + delta * delta * n0 * nb / n1
         self.n = n1
         self.sumsq += sq
+        if not self.count_clipping:
+            return
         ab = np.abs(b)
         bp = float(ab.max())
         if bp >= CLIP_FULL_SCALE:
@@ -502,7 +507,9 @@ def validate_signal(
     allow_clipping = checks.flag(allow_clipping, "allow_clipping")
     a, fs = as_mono_array(x, fs, name)
     a = a.astype(np.float64, copy=False)
-    check = SignalCheck(name, allow_clipping=allow_clipping, min_seconds=min_seconds, fs=fs, subtype=subtype)
+    # clipping allowed: its figures would not be used (only the array is returned)
+    check = SignalCheck(name, allow_clipping=allow_clipping, min_seconds=min_seconds, fs=fs, subtype=subtype,
+                        count_clipping=not allow_clipping)
     check.update(a)
     check.finish()
     return a

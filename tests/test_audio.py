@@ -715,3 +715,21 @@ def test_file_sources_carry_the_sample_format_into_the_check(tmp_path, subtype):
         assert np.abs(y).max() == 1.0
         sf.write(p, 4.0 * x, FS, subtype=subtype)  # peak 4.0 with no flat top: valid float data
         assert np.abs(load_audio(p)[0]).max() == 4.0
+
+
+def test_clipping_figures_are_skipped_only_where_clipping_is_allowed():
+    # a check that refuses clipping always gathers its figures (count_clipping cannot
+    # switch the rule off); one that allows it may skip them, and says "not clipped"
+    from envpredict.audio import SignalCheck
+
+    x = 0.5 * np.clip(1.5 * np.sin(np.arange(4800) / 20), -1, 1)
+    strict = SignalCheck("x", count_clipping=False)
+    strict.update(x)
+    with pytest.raises(InputError, match="clipped"):
+        strict.finish()
+    lax = SignalCheck("x", allow_clipping=True, count_clipping=False)
+    lax.update(x)
+    assert lax.finish().clipped is False
+    counted = SignalCheck("x", allow_clipping=True)
+    counted.update(x)
+    assert counted.finish().clipped is True
