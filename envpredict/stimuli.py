@@ -365,31 +365,12 @@ def write_stimuli_files(
     """
     from dataclasses import replace
 
-    from .audio import load_audio, resample
 
-    from .sweep import sentence_files
+    from .sweep import read_at_one_rate
 
     check_stimuli_folder(folder)
-    files = sentence_files(clean)
-    x, fs = load_audio(files[0], channel, name="clean speech" if len(files) == 1 else f"sentence '{files[0]}'")
-    notes = []
-    xs = [x]
-    for f in files[1:]:
-        y, fs_y = load_audio(f, channel, name=f"sentence '{f}'")
-        if fs_y != fs:
-            notes.append(f"sentence '{f.name}' was resampled from {fs_y} Hz to {fs} Hz")
-            y = resample(y, fs_y, fs)
-        xs.append(y)
-    nz, fs_n = load_audio(noise, channel, name="noise")
-    if fs_n != fs:
-        notes.append(f"the noise was resampled from {fs_n} Hz to {fs} Hz")
-        nz = resample(nz, fs_n, fs)
-    h = None
-    if ir is not None:
-        h, fs_h = load_audio(ir, channel, name="impulse response")
-        if fs_h != fs:
-            notes.append(f"the impulse response was resampled from {fs_h} Hz to {fs} Hz")
-            h = resample(h, fs_h, fs)
+    files, xs, nz, h, fs, notes = read_at_one_rate(clean, noise, ir, channel)
+    x = xs[0]
     if len(xs) > 1:
         stems = [f.stem for f in files]
         if len(set(stems)) != len(stems):

@@ -818,6 +818,42 @@ def _speech_level(speech: np.ndarray, fs: int, reference: str) -> ActiveLevel | 
 
 
 
+def read_at_one_rate(clean, noise, ir, channel: int | None
+                     ) -> tuple[list, list[np.ndarray], np.ndarray, np.ndarray | None, int, list[str]]:
+    """The sentences (:func:`sentence_files`), the noise and the optional impulse response,
+    read and brought to the first sentence's rate: ``(files, sentences, noise, ir, fs,
+    notes)``, a note for each file that was resampled.
+
+    Raises
+    ------
+    InputError
+        For a file that is missing or unreadable (named in the message).
+    """
+    from .audio import load_audio, resample
+
+    files = sentence_files(clean)
+    x, fs = load_audio(files[0], channel, name="clean speech" if len(files) == 1 else f"sentence '{files[0]}'")
+    notes = []
+    xs = [x]
+    for f in files[1:]:
+        y, fs_y = load_audio(f, channel, name=f"sentence '{f}'")
+        if fs_y != fs:
+            notes.append(f"sentence '{f.name}' was resampled from {fs_y} Hz to {fs} Hz")
+            y = resample(y, fs_y, fs)
+        xs.append(y)
+    nz, fs_n = load_audio(noise, channel, name="noise")
+    if fs_n != fs:
+        notes.append(f"the noise was resampled from {fs_n} Hz to {fs} Hz")
+        nz = resample(nz, fs_n, fs)
+    h = None
+    if ir is not None:
+        h, fs_h = load_audio(ir, channel, name="impulse response")
+        if fs_h != fs:
+            notes.append(f"the impulse response was resampled from {fs_h} Hz to {fs} Hz")
+            h = resample(h, fs_h, fs)
+    return files, xs, nz, h, int(fs), notes
+
+
 def sentence_files(clean: str | os.PathLike | Sequence[str | os.PathLike]) -> list:
     """The clean-speech files of a sweep: a list of paths, the audio files of a folder
     (sorted by name), the paths listed in a text file (``.txt``/``.lst``: one per line,
@@ -911,7 +947,6 @@ def snr_sweep_files(
     """
     from dataclasses import replace
 
-    from .audio import load_audio, resample
     from .mapping import read_mapping
 
     snrs = parse_snr_range(snr_db) if isinstance(snr_db, str) else snr_db
@@ -934,26 +969,8 @@ def snr_sweep_files(
     target_list = list(targets) if targets else [std.SRT_PERCENT]
     _check_options(snrs, name, default_index_functions(), level, n_segments, m, target_list)
 
-    files = sentence_files(clean)
-    x, fs = load_audio(files[0], channel, name="clean speech" if len(files) == 1 else f"sentence '{files[0]}'")
-    notes = []
-    xs = [x]
-    for f in files[1:]:
-        y, fs_y = load_audio(f, channel, name=f"sentence '{f}'")
-        if fs_y != fs:
-            notes.append(f"sentence '{f.name}' was resampled from {fs_y} Hz to {fs} Hz")
-            y = resample(y, fs_y, fs)
-        xs.append(y)
-    nz, fs_n = load_audio(noise, channel, name="noise")
-    if fs_n != fs:
-        notes.append(f"the noise was resampled from {fs_n} Hz to {fs} Hz")
-        nz = resample(nz, fs_n, fs)
-    h = None
-    if ir is not None:
-        h, fs_h = load_audio(ir, channel, name="impulse response")
-        if fs_h != fs:
-            notes.append(f"the impulse response was resampled from {fs_h} Hz to {fs} Hz")
-            h = resample(h, fs_h, fs)
+    files, xs, nz, h, fs, notes = read_at_one_rate(clean, noise, ir, channel)
+    x = xs[0]
     kw = dict(snr_db=snrs, index=name, mapping=m, targets=target_list, ir=h, n_segments=n_segments, level=level,
               snr_reference=reference)
     if len(xs) > 1:

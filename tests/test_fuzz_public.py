@@ -1103,6 +1103,9 @@ def _process(fn, kw):
 case("sweep.load_process", spec=S(P("gain.py:half"), P("gain.py:broken")), call=st.booleans(), call_=_process,
      bad_={"spec": S("", "nope", "os:nope", P("gain.py"), P("gain.py:"), "no_such_module_x:f", 3, None,
                      P("missing.py:f"), P("text.txt:f")), "call": None}, share_=0.3)
+case("sweep.read_at_one_rate", clean=S(P("speech.wav"), P("sentences"), [P("clean.wav"), P("speech.wav")]),
+     noise=S(P("noise.wav"), P("noise10k.wav")), ir=S(None, P("ir.wav")), channel=S(None),
+     bad_={"clean": BAD_PATH, "noise": BAD_PATH, "ir": BAD_PATH}, examples_=8)
 case("sweep.sentence_files", clean=S(P("sentences"), P("sentences.txt"), [P("clean.wav"), P("speech.wav")],
                                      P("clean.wav")),
      bad_={"clean": BAD_PATH})
