@@ -847,7 +847,9 @@ case("refcases.run_cases", id_contains=S("decay_T0.5"), method=S("ir"), examples
 def _run_all(fn, kw):
     d = _FOLDER[0] / "cases"
     d.mkdir(exist_ok=True)
-    src = Path(envpredict.__file__).parent.parent / "reference_cases" / "decay_T0.5s.json"
+    from envpredict._data import reference_dir
+
+    src = reference_dir() / "decay_T0.5s.json"  # installed or in a source checkout
     (d / "decay_T0.5s.json").write_text(src.read_text() if kw["ok"] else "{")
     return fn(d)
 
