@@ -57,22 +57,6 @@ def run(seconds: float, fs: int, repeat: int) -> bool:
         lambda: (pystoi.stoi(x, y, fs), pystoi.stoi(x, y, fs, extended=True)),
         repeat,
     )
-    # the same with one thread (as inside a batch worker, or where one core is free)
-    import os
-
-    saved = os.environ.get("OMP_NUM_THREADS")
-    os.environ["OMP_NUM_THREADS"] = "1"
-    try:
-        t_one, _, t_ref1, _ = interleaved_medians(
-            lambda: (envpredict.stoi(x, y, fs), envpredict.estoi(x, y, fs)),
-            lambda: (pystoi.stoi(x, y, fs), pystoi.stoi(x, y, fs, extended=True)),
-            repeat,
-        )
-    finally:
-        if saved is None:
-            del os.environ["OMP_NUM_THREADS"]
-        else:
-            os.environ["OMP_NUM_THREADS"] = saved
     ratio = t_ref / t_ours
     d = max(abs(ours[0] - refs[0]), abs(ours[1] - refs[1]))
     goal_ratio, goal_d = GOALS.get(fs, (5.0, 0.005))
@@ -81,7 +65,6 @@ def run(seconds: float, fs: int, repeat: int) -> bool:
     print(f"  envpredict stoi + estoi: {t_ours * 1000:8.1f} ms   STOI {ours[0]:.6f}  ESTOI {ours[1]:.6f}")
     print(f"  pystoi two calls:        {t_ref * 1000:8.1f} ms   STOI {refs[0]:.6f}  ESTOI {refs[1]:.6f}")
     print(f"  speed ratio (pystoi / envpredict): {ratio:.1f}x   (goal >= {goal_ratio:g}x)")
-    print(f"  with one thread (OMP_NUM_THREADS=1): {t_one * 1000:.1f} ms, {t_ref1 / t_one:.1f}x (for information)")
     print(f"  max |difference|: {d:.2e}   (goal <= {goal_d:g})   {'ok' if ok else 'MISSED'}")
     return ok
 

@@ -641,8 +641,8 @@ def polyphase(x: np.ndarray, up: int, down: int) -> np.ndarray:
 
 
 
-#: Environment variables that limit the threads of numeric libraries; the first one set
-#: also limits the threads of :func:`in_parallel` (1: one task after the other).
+#: Environment variables that limit the threads of numeric libraries (batch workers set
+#: them to 1).
 THREAD_LIMIT_VARS: tuple[str, ...] = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 
 
@@ -652,39 +652,6 @@ def usable_cores() -> int:
         return max(1, len(os.sched_getaffinity(0)))
     except (AttributeError, OSError):
         return max(1, os.cpu_count() or 1)
-
-
-def usable_threads() -> int:
-    """Cores this process may use, at most the first thread limit set in the environment."""
-    n = usable_cores()
-    for var in THREAD_LIMIT_VARS:
-        value = os.environ.get(var, "").strip()
-        if value.isdigit() and int(value) > 0:
-            return min(n, int(value))
-    return n
-
-
-def in_parallel(tasks: list) -> list:
-    """Results of the callables ``tasks``, in order: run in threads at the same time where
-    more than one core is usable (:func:`usable_threads`), else one after the other.
-
-    For work that releases the GIL (scipy's polyphase filter, numpy's FFT and array
-    arithmetic on long arrays); the results are the same either way.
-
-    Raises
-    ------
-    InputError
-        If ``tasks`` is not a list (or tuple) of callables.
-    """
-    if not isinstance(tasks, (list, tuple)) or not all(callable(t) for t in tasks):
-        raise InputError("tasks are not a list of callables", "pass a list of functions without arguments")
-    threads = min(len(tasks), usable_threads())
-    if threads < 2:
-        return [task() for task in tasks]
-    from concurrent.futures import ThreadPoolExecutor
-
-    with ThreadPoolExecutor(max_workers=threads) as ex:
-        return list(ex.map(lambda task: task(), tasks))
 
 
 def resample_ratio(fs_in: int, fs_out: int) -> tuple[int, int]:

@@ -461,10 +461,7 @@ def fit_decay_time(curve_db: np.ndarray, fs: float, hi_db: float, lo_db: float) 
         For a curve that is not a 1-D array of numbers, a rate that is not positive or levels that are
         not finite numbers.
     """
-    curve_db = checks.array(curve_db, "decay curve", min_size=0, finite=False)
-    fs = checks.number(fs, "sample rate", lo=0.0, lo_open=True, hi=checks.MAX_RATE_HZ)
-    hi_db, lo_db = checks.number(hi_db, "upper level"), checks.number(lo_db, "lower level")
-    return fit_decay_range(curve_db, fs, hi_db, lo_db).time_s
+    return fit_decay_range(curve_db, fs, hi_db, lo_db).time_s  # which checks the arguments
 
 
 #: Sample rate of the Schroeder curves kept in a result for its figures, Hz: 5 ms steps

@@ -621,25 +621,6 @@ def test_write_wav_is_atomic_24_bit(tmp_path):
         check_wav_path(tmp_path / "d.wav")
 
 
-def test_in_parallel_gives_the_serial_results_in_order(monkeypatch):
-    # scipy's polyphase resampler run in two threads gives exactly what it gives one call
-    # after the other; with a thread limit of 1 in the environment (as batch workers have)
-    # every task runs in the calling thread
-    import threading
-
-    from scipy.signal import resample_poly
-
-    from envpredict.audio import in_parallel
-
-    rng = np.random.default_rng(2)
-    a, b = rng.standard_normal(48000), rng.standard_normal(48000)
-    par = in_parallel([lambda: resample_poly(a, 5, 8), lambda: resample_poly(b, 5, 8)])
-    assert np.array_equal(par[0], resample_poly(a, 5, 8)) and np.array_equal(par[1], resample_poly(b, 5, 8))
-    monkeypatch.setenv("OMP_NUM_THREADS", "1")
-    me = threading.get_ident()
-    assert in_parallel([threading.get_ident, threading.get_ident]) == [me, me]
-
-
 @pytest.mark.parametrize(
     "fs_in, fs_out",
     [(16000, 10000), (48000, 10000), (44100, 10000), (22050, 16000), (96000, 44100), (20000, 10000), (8000, 44100)],

@@ -435,9 +435,6 @@ case("audio.is_clipped", x=scaled(IR))
 RES_FS = S(8000, 16000, 22050, 44100, 48000)
 case("audio.resample", x=st.builds(speech, S(16000), S(1.0), S(1)), fs_in=J(16000), fs_out=RES_FS)
 case("audio.usable_cores")
-case("audio.usable_threads")
-case("audio.in_parallel", tasks=st.lists(st.sampled_from([lambda: 1, lambda: np.ones(3).sum()]), max_size=4),
-     bad_={"tasks": S(None, 3, "x")})
 case("audio.resample_ratio", fs_in=RES_FS, fs_out=RES_FS)
 _DELAYED = st.builds(lambda d: np.concatenate([np.zeros(d), speech(16000, 1.0, 1)])[:16000], st.integers(0, 800))
 case("audio.estimate_delay", reference=st.builds(speech, J(16000), J(1.0), J(1)), x=_DELAYED, fs=J(16000),
@@ -1378,7 +1375,7 @@ def test_every_public_function_has_a_strategy():
 #: Public functions that raise nothing: no argument, or any value is taken (score_row
 #: turns every failure of a row into the row's error text).
 NEVER_RAISES = frozenset({
-    "audio.usable_cores", "audio.usable_threads", "batch.score_row", "batch.score_rows", "batch.start_workers_early",
+    "audio.usable_cores", "batch.score_row", "batch.score_rows", "batch.start_workers_early",
     "correlation.analysis_window", "correlation.third_octave_matrix", "demo.demo_survey_path",
     "outputs.current_umask", "report.names_only", "report.num",
     "report.txt", "signals.full_sti_plan", "sweep.default_index_functions", "tables.cell_number", "tables.format_cell",
