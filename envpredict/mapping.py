@@ -39,12 +39,19 @@ A mapping is stored as a JSON object (MAP.json, :meth:`ScoreMapping.to_dict`;
 ``formula``, ``guess``, ``lapse``, ``params`` (``a``, ``b``, ``x50``,
 ``slope_at_x50``), ``ci_level``, ``ci`` (one ``[low, high]`` per parameter),
 ``ci_profile`` (``{"x50": [low, high]}``), ``cov_ab``, ``n_points``, ``n_trials``,
-``index_range``, ``fit`` (goodness of fit), ``source`` and ``notes``. Only
-``index``, ``shape`` and ``params.a``/``params.b`` are needed to read one back.
+``index_range``, ``fit`` (goodness of fit), ``interval_method``, ``dispersion``,
+``dispersion_estimate``, ``ci_df``, ``listeners`` (each listener's fit, with its
+``cov_ab``) and ``listener_spread``, ``source`` and ``notes``. Only ``index``,
+``shape`` and ``params.a``/``params.b`` are needed to read one back; everything else
+written is read back too, so a mapping written and read predicts the same scores with
+the same intervals. ``MAP.json#NAME`` reads one listener's fit (:func:`read_mapping`).
 
-No built-in mapping is shipped. Published index-to-score fits belong to one speech
-corpus, one listener group and one kind of processing, and a mapping used outside
-them predicts the wrong score; fit your own with :func:`fit_mapping` on pilot data.
+The built-in published mappings (:func:`published_mapping`) are the two STOI logistics
+of Taal et al. 2011. Published index-to-score fits belong to one speech corpus, one
+listener group and one kind of processing, and a mapping used outside them predicts
+the wrong score; fit your own with :func:`fit_mapping` on pilot data. No STI-to-score
+relation is built in: none whose parameters could be checked against a published
+text with its edition was found.
 """
 
 from __future__ import annotations
@@ -267,7 +274,8 @@ class GoodnessOfFit:
 
 @dataclass(frozen=True)
 class ListenerFit:
-    """The mapping fitted to one listener's rows (``error`` when it cannot be fitted)."""
+    """The mapping fitted to one listener's rows (``error`` when it cannot be fitted);
+    ``cov`` is the binomial covariance of (a, b), or ``None``."""
 
     listener: str
     n_points: int
@@ -277,11 +285,12 @@ class ListenerFit:
     x50: float | None = None
     slope_at_x50: float | None = None
     error: str = ""
+    cov: np.ndarray | None = None
 
     def to_dict(self) -> dict:
         return jsonable({"listener": self.listener, "n_points": self.n_points, "n_trials": self.n_trials,
                          "a": self.a, "b": self.b, "x50": self.x50, "slope_at_x50": self.slope_at_x50,
-                         "error": self.error or None})
+                         "cov_ab": None if self.cov is None else np.asarray(self.cov), "error": self.error or None})
 
 
 def listener_spread(fits: Sequence[ListenerFit]) -> dict:
@@ -553,15 +562,7 @@ def mapping_from_dict(d: Any, source: str = "(dict)") -> ScoreMapping:
             raise InputError(f"mapping {source}: 'ci_profile.x50' is not two numbers", fix) from None
     guess, lapse = check_guess_lapse(_num(d, "guess", source, required=False) or 0.0,
                                      _num(d, "lapse", source, required=False) or 0.0)
-    cov = d.get("cov_ab")
-    cov_arr = None
-    if cov is not None:
-        try:
-            cov_arr = np.asarray(cov, dtype=float)
-        except (TypeError, ValueError):
-            raise InputError(f"mapping {source}: 'cov_ab' is not a 2x2 matrix of numbers", fix) from None
-        if cov_arr.shape != (2, 2) or not np.all(np.isfinite(cov_arr)):
-            raise InputError(f"mapping {source}: 'cov_ab' is not a finite 2x2 matrix", fix)
+    cov_arr = _cov_from(d.get("cov_ab"), source)
     rng = d.get("index_range")
     index_range = None
     if rng is not None:
@@ -579,10 +580,93 @@ def mapping_from_dict(d: Any, source: str = "(dict)") -> ScoreMapping:
     return ScoreMapping(
         index=index.strip().lower(), shape=shape, a=float(a), b=float(b), guess=guess, lapse=lapse,
         cov=cov_arr, n_points=int(d.get("n_points") or 0), n_trials=int(d.get("n_trials") or 0),
-        index_range=index_range, gof=None, profile_ci_x50=prof_x50, source=str(d.get("source") or source),
+        index_range=index_range, gof=_gof_from(d.get("fit"), source), profile_ci_x50=prof_x50,
+        source=str(d.get("source") or source),
         notes=tuple(str(n) for n in notes) if isinstance(notes, list) else (),
         dispersion=float(dispersion), dispersion_estimate=disp_est, ci_df=None if ci_df is None else int(ci_df),
+        listeners=_listeners_from(d.get("listeners"), source),
     )
+
+
+def _cov_from(cov: Any, source: str) -> np.ndarray | None:
+    """A finite 2x2 covariance of (a, b) from a MAP.json field (``None`` stays ``None``)."""
+    if cov is None:
+        return None
+    fix = "give a MAP.json written by 'envpredict fitmap'"
+    try:
+        arr = np.asarray(cov, dtype=float)
+    except (TypeError, ValueError):
+        raise InputError(f"mapping {source}: 'cov_ab' is not a 2x2 matrix of numbers", fix) from None
+    if arr.shape != (2, 2) or not np.all(np.isfinite(arr)):
+        raise InputError(f"mapping {source}: 'cov_ab' is not a finite 2x2 matrix", fix)
+    return arr
+
+
+def _gof_from(fit: Any, source: str) -> GoodnessOfFit | None:
+    """The goodness of fit of a MAP.json (``None`` when absent or incomplete)."""
+    if not isinstance(fit, dict):
+        return None
+    keys = ("log_likelihood", "deviance", "pearson_chi2", "df", "deviance_p", "pearson_p")
+    vals = {k: _num(fit, k, source, required=False) for k in keys}
+    if any(v is None for v in vals.values()):
+        return None
+    return GoodnessOfFit(log_likelihood=vals["log_likelihood"], deviance=vals["deviance"],
+                         pearson_chi2=vals["pearson_chi2"], df=int(vals["df"]), deviance_p=vals["deviance_p"],
+                         pearson_p=vals["pearson_p"], approximate=bool(fit.get("approximate")))
+
+
+def _listeners_from(items: Any, source: str) -> tuple[ListenerFit, ...]:
+    """The per-listener fits of a MAP.json (``fitmap --listener``), as written."""
+    if items is None:
+        return ()
+    fix = "give a MAP.json written by 'envpredict fitmap --listener'"
+    if not isinstance(items, list) or not all(isinstance(f, dict) for f in items):
+        raise InputError(f"mapping {source}: 'listeners' is not a list of objects", fix)
+    out = []
+    for f in items:
+        name = f.get("listener")
+        if not isinstance(name, str) or not name.strip():
+            raise InputError(f"mapping {source}: a listener fit does not name its listener", fix)
+        vals = {k: _num(f, k, source, required=False) for k in ("a", "b", "x50", "slope_at_x50")}
+        if f.get("error") is None and (vals["a"] is None or vals["b"] is None or vals["b"] <= 0):
+            raise InputError(f"mapping {source}: listener '{name}' has neither a curve (a, b > 0) nor an error",
+                             fix)
+        out.append(ListenerFit(listener=name, n_points=int(_num(f, "n_points", source, required=False) or 0),
+                               n_trials=int(_num(f, "n_trials", source, required=False) or 0), **vals,
+                               error=str(f.get("error") or ""), cov=_cov_from(f.get("cov_ab"), source)))
+    return tuple(out)
+
+
+def listener_mapping(mapping: ScoreMapping, listener: str) -> ScoreMapping:
+    """One listener's own mapping from a group mapping fitted with listeners
+    (``fitmap --listener``): the listener's ``a``, ``b`` and binomial covariance with the
+    group's index, shape, guess, lapse and index range.
+
+    Raises
+    ------
+    InputError
+        If ``mapping`` is not a :class:`ScoreMapping`, holds no listener of that name
+        (the error lists the ones it holds), or that listener has no curve of his or
+        her own.
+    """
+    if not isinstance(mapping, ScoreMapping):
+        raise InputError("mapping is not a ScoreMapping", "pass a mapping fitted with listeners")
+    name = str(listener).strip()
+    known = [f.listener for f in mapping.listeners]
+    fit = next((f for f in mapping.listeners if f.listener == name), None)
+    if fit is None:
+        raise InputError(f"the mapping holds no listener '{name}'",
+                         ("name one of its listeners: " + ", ".join(known)) if known else
+                         "fit the mapping with fitmap --listener COLUMN, or use the group mapping")
+    if fit.a is None or fit.b is None:
+        raise InputError(f"listener '{name}' has no curve of his or her own ({fit.error})",
+                         "use the group mapping, or another listener")
+    return ScoreMapping(
+        index=mapping.index, shape=mapping.shape, a=fit.a, b=fit.b, guess=mapping.guess, lapse=mapping.lapse,
+        cov=fit.cov, n_points=fit.n_points, n_trials=fit.n_trials, index_range=mapping.index_range,
+        source=f"listener '{name}' of {mapping.source}",
+        notes=(f"the mapping of listener '{name}' alone (binomial intervals); the group mapping is the one for "
+               "a panel",))
 
 
 # ---------------------------------------------------------------------------
@@ -1034,7 +1118,7 @@ def fit_listeners(x: np.ndarray, k: np.ndarray, n: np.ndarray, labels: Sequence[
                                    error=e.what))
             continue
         out.append(ListenerFit(listener=str(name), n_points=int(sel.sum()), n_trials=int(n[sel].sum()), a=m.a,
-                               b=m.b, x50=m.x50, slope_at_x50=m.slope_at_x50))
+                               b=m.b, x50=m.x50, slope_at_x50=m.slope_at_x50, cov=m.cov))
     return tuple(out)
 
 
@@ -1220,24 +1304,45 @@ def _is_mapping_name(path: str | os.PathLike) -> bool:
     return not p.exists() and p.parent == Path(".") and p.suffix == "" and bool(str(p).strip())
 
 
-def read_mapping(path: str | os.PathLike) -> ScoreMapping:
+#: Separates a MAP.json from the name of one of its listeners in ``--map MAP.json#NAME``.
+LISTENER_SEPARATOR: str = "#"
+
+
+def read_mapping(path: str | os.PathLike, listener: str | None = None) -> ScoreMapping:
     """Read a mapping file (MAP.json, as written by ``envpredict fitmap``), or a built-in
     published mapping by name (:func:`published_mapping`).
+
+    A MAP.json written by ``fitmap --listener`` holds the group fit and each listener's:
+    the group's is read (with its intervals and the listeners' fits and spread), or one
+    listener's (:func:`listener_mapping`) when ``listener`` names it or the path ends in
+    ``#NAME`` (``MAP.json#L03``; an existing file whose name holds ``#`` wins).
 
     Parameters
     ----------
     path : the JSON file, or the name of a built-in mapping (e.g. ``"taal2011-ieee"``);
         an existing file of that name wins.
+    listener : name of one listener of the file, or ``None`` for the group.
 
     Raises
     ------
     InputError
-        A missing file, a folder, invalid JSON, content that is not a mapping, or a
-        bare name that is not built in (the error lists the known ones).
+        A missing file, a folder, invalid JSON, content that is not a mapping, a bare
+        name that is not built in (the error lists the known ones), or a listener the
+        file does not hold (the error lists the ones it holds).
     """
+    p = checks.path(path, "mapping")
+    text = str(path)
+    if listener is None and LISTENER_SEPARATOR in text and not p.exists():
+        head, _, name = text.rpartition(LISTENER_SEPARATOR)
+        if head and name.strip():
+            return read_mapping(head, listener=name)
+    m = _read_mapping(p, path)
+    return m if listener is None else listener_mapping(m, listener)
+
+
+def _read_mapping(p, path: str | os.PathLike) -> ScoreMapping:
     import json
 
-    p = checks.path(path, "mapping")
     if _is_mapping_name(p):
         return published_mapping(str(path))
     if not p.exists():

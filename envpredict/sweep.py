@@ -382,6 +382,7 @@ def load_process(spec: str) -> Callable[[np.ndarray, int], np.ndarray]:
             raise InputError(f"the processing chain '{spec}' raised {type(e).__name__}: {e}",
                              "fix the function (it is called as FUNCTION(mixture, fs))") from None
 
+    chain.spec = text  # the name results and manifests give the chain
     return chain
 
 

@@ -18,6 +18,7 @@ import json
 import numpy as np
 import pytest
 import soundfile as sf
+from scipy.signal import resample_poly
 
 from envpredict.exceptions import InputError
 from envpredict.stimuli import MANIFEST_NAME, stimulus_snrs, write_stimuli
@@ -105,9 +106,11 @@ def test_clipping_is_refused_or_every_file_scaled_by_one_factor(tmp_path, signal
     for s in res.stimuli:
         y, _ = sf.read(tmp_path / "fit" / s.file)
         r, _ = sf.read(tmp_path / "ref" / s.file)
-        peaks.append(np.max(np.abs(y)))
+        peaks.append(np.max(np.abs(resample_poly(y, 4, 1))))  # true peak: 4x oversampled (BS.1770-4 Annex 2)
         ratios.append(np.sum(y * r) / np.sum(r * r))
-    assert 20 * np.log10(max(peaks)) == pytest.approx(-1.0, abs=1e-3)  # the loudest peak at -1 dB re full scale
+        assert s.true_peak_dbtp == pytest.approx(20 * np.log10(peaks[-1]), abs=2e-3)
+        assert s.peak_db == pytest.approx(20 * np.log10(np.max(np.abs(y))), abs=2e-3)
+    assert 20 * np.log10(max(peaks)) == pytest.approx(-1.0, abs=2e-3)  # the loudest true peak at -1 dB TP
     assert ratios[0] == pytest.approx(ratios[1], rel=1e-5)  # one factor for every file
     assert 20 * np.log10(ratios[0]) == pytest.approx(27.0 + res.common_gain_db, abs=1e-3)
 

@@ -177,8 +177,12 @@ def render_sweep(d: dict) -> str:
                        f"presentation level {st['presentation_level_db'] + st['common_gain_db']:g} dB re full scale "
                        f"({d['level_convention']} level), noise segments from seed {st['seed']}")]
         lines.append(table([[s["file"], f"{s['snr_db']:g}", f"{s['speech_active_level_db']:.1f}",
-                             f"{s['noise_level_db']:.1f}", f"{s['peak_db']:.1f}"] for s in st["stimuli"]],
-                           ["file", "SNR dB", "speech dB", "noise dB", "peak dB"]))
+                             f"{s['noise_level_db']:.1f}", f"{s['peak_db']:.1f}", fmt(s.get("true_peak_dbtp"), ".1f")]
+                            for s in st["stimuli"]],
+                           ["file", "SNR dB", "speech dB", "noise dB", "peak dB", "true peak dBTP"]))
+        if st.get("process"):
+            lines.append(f"  files ending _processed went through the processing chain {st['process']}, at the "
+                         "gain of their input mixture (its SNR and speech and noise levels are shown)")
         lines += [f"  caution: {c}" for c in st["cautions"]]
     if d["notes"]:
         lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
@@ -202,7 +206,9 @@ def sweep_command(
                                                               "mapping's index, or stoi without a mapping."),
     map_file: Path | None = typer.Option(None, "--map", help="Mapping (MAP.json from fitmap, or a built-in "
                                                                 f"published one: {_BUILTIN_MAPS}) for predicted "
-                                                                "scores and target SNRs."),
+                                                                "scores and target SNRs. A MAP.json fitted with "
+                                                                "--listener gives the group fit; MAP.json#NAME "
+                                                                "gives listener NAME's."),
     target: list[float] | None = typer.Option(None, "--target", help="Target score in percent; repeat for "
                                               f"several (default: {std.SRT_PERCENT:g}, the SRT)."),
     segments: int = typer.Option(std.SWEEP_SEGMENTS, "--segments",
@@ -223,7 +229,8 @@ def sweep_command(
     write_stimuli: Path | None = typer.Option(None, "--write-stimuli", metavar="DIR",
                                               help="Also write the mixtures (WAV) and a manifest.csv to this new or "
                                                    "empty folder: at --stimuli-snr, else at the target SNRs found, "
-                                                   "else at the swept SNRs."),
+                                                   "else at the swept SNRs. With --process, each mixture also "
+                                                   "through the chain (NAME_processed.wav)."),
     stimuli_snr: list[float] | None = typer.Option(None, "--stimuli-snr", help="SNR of a stimulus, dB; repeat "
                                                    "for several (write --stimuli-snr=-6 when negative)."),
     presentation_level: float = typer.Option(std.STIMULI_LEVEL_DB, "--presentation-level",
@@ -268,7 +275,8 @@ def sweep_command(
 
         stim = write_stimuli_files(write_stimuli, clean, noise, stimulus_snrs(res, stimuli_snr), ir=ir,
                                    channel=channel, snr_reference=res.snr_reference, level=level,
-                                   presentation_level_db=presentation_level, scale_to_fit=scale_to_fit, seed=seed)
+                                   presentation_level_db=presentation_level, scale_to_fit=scale_to_fit, seed=seed,
+                                   process=chain)
         d["stimuli"] = stim.to_dict()
     write_report_if(report, "sweep", d, as_json=as_json,
                     title=f"Predicted scores against SNR: {clean.name} in {noise.name}")
@@ -284,7 +292,9 @@ def predict_command(
     results: Path = typer.Argument(..., help="Results CSV (e.g. from batch) with an index column.",
                                    show_default=False),
     map_file: Path = typer.Option(..., "--map", help="Mapping (MAP.json from fitmap, or a built-in published one: "
-                                                     f"{_BUILTIN_MAPS}).", show_default=False),
+                                                     f"{_BUILTIN_MAPS}). A MAP.json fitted with --listener gives the "
+                                                     "group fit; MAP.json#NAME gives listener NAME's.",
+                                  show_default=False),
     column: str | None = typer.Option(None, "--column", help="Column holding the index (default: the "
                                                                 "mapping's index name)."),
     name: str = typer.Option(PREDICTED_COLUMN, "--name", help="Name of the added column."),
