@@ -264,8 +264,16 @@ def write_stimuli(
         if not callable(process):
             raise InputError(f"process is not a function ({type(process).__name__})",
                              "give f(mixture, fs) -> processed mixture, or 'MODULE:FUNCTION'")
-        chain = process
         chain_name = str(getattr(process, "spec", None) or getattr(process, "__qualname__", None) or "process")
+
+        def chain(mix: np.ndarray, fs: int, f=process, label=chain_name) -> np.ndarray:
+            try:
+                return f(mix, fs)
+            except InputError:
+                raise
+            except Exception as e:  # noqa: BLE001 -- the user's chain failed: say so in one line
+                raise InputError(f"the processing chain '{label}' raised {type(e).__name__}: {e}",
+                                 "fix the function (it is called as FUNCTION(mixture, fs))") from None
     try:
         snrs = np.asarray(snr_db, dtype=float).reshape(-1)
         pres = float(presentation_level_db)

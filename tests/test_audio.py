@@ -714,3 +714,27 @@ def test_clipping_figures_are_skipped_only_where_clipping_is_allowed():
     counted = SignalCheck("x", allow_clipping=True)
     counted.update(x)
     assert counted.finish().clipped is True
+
+
+def test_true_peak_of_a_sine_at_a_quarter_of_the_rate():
+    """Analytic case (ITU-R BS.1770-4 Annex 2, the inter-sample peak it is made for):
+    A sin(pi n / 2 + pi / 4) has every sample at +-A / sqrt 2 (sample peak -3.01 dB re
+    A) while the waveform between the samples reaches A (true peak 0 dB re A); the
+    4x-oversampled estimate finds it within the interpolation filter's ripple. The ends
+    are faded in and out (raised cosine) so that the onset transient does not count."""
+    from envpredict.audio import true_peak
+
+    fs, a = 16000, 0.5
+    n = np.arange(fs)
+    fade = np.ones(fs)
+    ramp = 0.5 - 0.5 * np.cos(np.pi * np.arange(1600) / 1600)
+    fade[:1600], fade[-1600:] = ramp, ramp[::-1]
+    x = a * np.sin(np.pi / 2 * n + np.pi / 4) * fade
+    assert 20 * np.log10(np.max(np.abs(x)) / a) == pytest.approx(-3.0103, abs=1e-3)
+    assert 20 * np.log10(true_peak(x) / a) == pytest.approx(0.0, abs=0.02)
+    # a low tone: the samples already hold the peak within 0.01 dB
+    y = a * np.sin(2 * np.pi * 100.0 * n / fs + 0.3) * fade
+    assert true_peak(y) == pytest.approx(np.max(np.abs(y)), rel=2e-3)
+    assert true_peak(np.zeros(10)) == 0.0
+    with pytest.raises(InputError):
+        true_peak(np.array([]))

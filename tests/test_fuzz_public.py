@@ -442,6 +442,7 @@ case("audio.estimate_delay", reference=st.builds(speech, J(16000), J(1.0), J(1))
 case("audio.zero_lag_correlation", reference=st.builds(speech, J(16000), J(1.0), J(1)), x=_DELAYED, fs=J(16000),
      excerpt_s=S(None, 0.5))
 case("audio.rms_dbfs", x=scaled(IR))
+case("audio.true_peak", x=scaled(IR), bad_={"x": BAD_ARRAY})
 case("audio.as_source", x=scaled(IR), fs=S(24000, 48000))
 case("audio.calibration_from_tone",
      x=st.builds(lambda a, f: a * np.sin(2 * np.pi * f * np.arange(48000) / 48000), st.floats(0.01, 0.9),
@@ -692,7 +693,7 @@ case("mapping.predict_scores", values=st.lists(st.floats(0, 1), max_size=5), map
      bad_={"mapping": S(None, 3)})
 case("mapping.add_predictions", rows=_ROWS, header=J(["index", "correct", "trials"]), mapping=st.builds(score_mapping),
      index_column=S("index", "INDEX"), bad_={"mapping": S(None, 3)})
-case("mapping.read_mapping", path=S(P("mapping.json")))
+case("mapping.read_mapping", path=S(P("mapping.json")), listener=S(None), bad_={"listener": S("x", 3, "")})
 case("mapping.fit_mapping_file", path=S(P("scores.csv")), index=S("index"), shape=S("logistic", "normal"))
 case("mapping.predict_file", path=S(P("scores.csv")), mapping=S(P("mapping.json")), index_column=S("index", "Index"),
      out=S(None, Out("pred.csv")))
@@ -710,6 +711,16 @@ case("mapping.fit_listeners", x=st.builds(lambda s: np.concatenate([_X9] * 2) + 
      bad_={"labels": S(None, "abc", ["a"] * 3, 3)}, examples_=6)
 case("mapping.listener_spread", fits=st.builds(_listener_fits), bad_={"fits": S(None, "x", [1, 2], [None])},
      examples_=4)
+
+
+def _with_listeners():
+    from dataclasses import replace
+
+    return replace(score_mapping(), listeners=_listener_fits())
+
+
+case("mapping.listener_mapping", mapping=st.builds(_with_listeners), listener=S("L1", "L2", "L3"),
+     bad_={"mapping": S(None, 3, "x"), "listener": S("L9", "", None, 3)}, examples_=6)
 case("mapping.listener_labels",
      rows=st.builds(lambda: [(i + 2, {"index": "0.5", "who": f"L{i % 3}"}) for i in range(6)]),
      header=J(["index", "who"]), column=S("who", "WHO"),
@@ -1085,9 +1096,11 @@ _NOISE10K = st.builds(lambda s: 0.05 * np.random.default_rng(s).standard_normal(
 case("stimuli.write_stimuli", folder=S(Out("stim")), clean=st.builds(speech, J(10000), J(1.5), st.integers(0, 2)),
      noise=_NOISE10K, fs=J(10000), snr_db=S([-5.0, 0.0, 5.0], (3.0,)), ir=S(None, ir_array(48000, 0.3, 0.2, 1)[::5]),
      snr_reference=S("active", "long-term"), level=S("speech", "mixture"), presentation_level_db=S(-30.0, -6.0),
-     scale_to_fit=S(True, True, False), seed=S(0, 7), name=S("stimulus", "s"), examples_=8,
+     scale_to_fit=S(True, True, False), seed=S(0, 7), name=S("stimulus", "s"),
+     process=S(None, None, lambda m, fs: np.tanh(m)), examples_=8,
      bad_={"snr_db": S([], [NAN], "x", None, [1e300], list(range(1000))), "presentation_level_db": BAD_REAL,
-           "snr_reference": BAD_TEXT, "scale_to_fit": S(None, "x")})
+           "snr_reference": BAD_TEXT, "scale_to_fit": S(None, "x"),
+           "process": S(3, "nope", "no_such_module_x:f", lambda m, fs: m[:10], lambda m, fs: 1 / 0)})
 case("stimuli.write_stimuli_files", folder=S(Out("stimf")), clean=S(P("clean.wav")), noise=S(P("noise.wav")),
      snr_db=S([0.0, 5.0]), ir=S(None, P("ir.wav")), channel=S(None, 0), examples_=5,
      bad_={"clean": BAD_PATH, "noise": BAD_PATH, "ir": BAD_PATH, "snr_db": S([], [NAN], "x", None)})

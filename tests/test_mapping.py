@@ -11,6 +11,7 @@ information).
 from __future__ import annotations
 
 import csv
+import io
 import json
 
 import numpy as np
@@ -601,6 +602,56 @@ def test_fitmap_per_listener_and_group(tmp_path, capsys):
     assert code == 0 and "Per listener (4 of 5 fitted" in out
     code, out, err = run_cli(["fitmap", str(p), "--index", "stoi", "--listener", "who"], capsys)
     assert code == 2 and "who" in err
+
+
+def test_listener_fits_survive_the_map_json_round_trip(tmp_path, capsys):
+    """fitmap --listener --out MAP.json, read back: the group (default) and each
+    listener (MAP.json#NAME) predict the same scores to 1e-12, with the same intervals;
+    each listener's curve and interval are statsmodels' binomial GLM of its own rows."""
+    sm = pytest.importorskip("statsmodels.api")
+    from envpredict.mapping import read_mapping
+
+    rng = np.random.default_rng(7)
+    x = np.linspace(0.45, 0.85, 6)
+    rows = []
+    for name, x50 in {"L1": 0.58, "L2": 0.66, "L3": 0.71}.items():
+        rows += [(name, xi, ki) for xi, ki in zip(x, rng.binomial(40, expit(18.0 * (x - x50))))]
+    p = tmp_path / "pilot.csv"
+    p.write_text("listener,stoi,correct,trials\n" + "".join(f"{a},{b:.4f},{c},40\n" for a, b, c in rows))
+    mp = tmp_path / "MAP.json"
+    code, out, err = run_cli(["fitmap", str(p), "--index", "stoi", "--listener", "listener", "--json",
+                              "--out", str(mp)], capsys)
+    assert code == 0, err
+    fitted = json.loads(out)
+    group = read_mapping(mp)
+    grid = np.linspace(0.3, 1.0, 29)
+    eta = fitted["params"]["a"] + fitted["params"]["b"] * grid
+    np.testing.assert_allclose(group.percent(grid), 100 * expit(eta), rtol=0, atol=1e-12)
+    back = group.to_dict()
+    for key in ("params", "ci", "ci_profile", "cov_ab", "interval_method", "dispersion", "ci_df", "fit",
+                "listeners", "listener_spread", "index_range"):
+        assert back[key] == fitted[key], key
+    for name in ("L1", "L2", "L3"):
+        one = read_mapping(f"{mp}#{name}")
+        xs = np.array([round(b, 4) for a, b, _ in rows if a == name])
+        ks = np.array([c for a, _, c in rows if a == name])
+        glm = sm.GLM(np.column_stack([ks, 40 - ks]), sm.add_constant(xs), family=sm.families.Binomial()).fit()
+        np.testing.assert_allclose(one.percent(grid), 100 * expit(glm.params[0] + glm.params[1] * grid),
+                                   rtol=0, atol=1e-5)
+        f = next(f for f in fitted["listeners"] if f["listener"] == name)
+        np.testing.assert_allclose(one.percent(grid), 100 * expit(f["a"] + f["b"] * grid), rtol=0, atol=1e-12)
+        np.testing.assert_allclose(one.cov, glm.cov_params(), rtol=2e-3)
+        assert one.ci()["a"] == pytest.approx(tuple(glm.conf_int()[0]), rel=2e-3)
+    # the same selection in the CLI: the group by default, a listener by #NAME, an unknown one refused
+    res = tmp_path / "res.csv"
+    res.write_text("item,stoi\na,0.6\nb,0.7\n")
+    code, out, err = run_cli(["predict", str(res), "--map", f"{mp}#L2"], capsys)
+    assert code == 0, err
+    l2 = read_mapping(mp, listener="L2")
+    assert [float(r["predicted_percent"]) for r in csv.DictReader(io.StringIO(out))] == pytest.approx(
+        list(np.round(l2.percent([0.6, 0.7]), 2)), abs=1e-9)
+    code, out, err = run_cli(["predict", str(res), "--map", f"{mp}#L9"], capsys)
+    assert code == 2 and "no listener 'L9'" in err and "L1, L2, L3" in err and len(err.strip().splitlines()) == 1
 
 
 def test_fit_report_data_against_its_definitions():

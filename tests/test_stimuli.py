@@ -188,3 +188,78 @@ def test_several_sentences_each_at_the_presentation_level(tmp_path, signals):
     write_stimuli_files(tmp_path / "again", folder, nw, [-3, 3], snr_reference="long-term",
                         presentation_level_db=-30.0, seed=2)
     assert _digest(tmp_path / "st") == _digest(tmp_path / "again")
+
+
+def _soft_clip(m, fs):
+    """A level-dependent (nonlinear) chain: the gain it is given matters."""
+    return np.tanh(4.0 * m) / 4.0
+
+
+@pytest.mark.parametrize("level", ["speech", "mixture"])
+def test_processed_mixtures_are_the_chain_of_the_swept_mixture(tmp_path, signals, level):
+    """Each processed file is the chain's output for the mixture the sweep gives the chain
+    (speech at its own level; for 'mixture', rescaled to the speech's long-term level),
+    times the gain that brought that mixture to the presentation level; flagged in the
+    manifest; bit-exact again from the seed."""
+    clean, noise = signals
+    kw = dict(snr_reference="long-term", level=level, presentation_level_db=-30.0, seed=5, process=_soft_clip)
+    res = write_stimuli(tmp_path / "st", clean, noise, FS, [-3, 3], **kw)
+    rows = _manifest(tmp_path / "st")
+    assert [r["processed"] for r in rows] == ["False", "True", "False", "True"]
+    assert [r["file"] for r in rows][:2] == ["stimulus_snr-3.0dB.wav", "stimulus_snr-3.0dB_processed.wav"]
+    assert res.process and res.to_dict()["process"] == res.process
+    p_speech = np.mean(clean ** 2)
+    for r in rows:
+        y, _ = sf.read(tmp_path / "st" / r["file"])
+        o = int(r["noise_offset_samples"])
+        seg = noise[o:o + clean.size]
+        g = np.sqrt(p_speech / (np.mean(seg ** 2) * 10 ** (float(r["snr_db"]) / 10)))
+        mix = clean + g * seg
+        p_mix = np.mean(mix ** 2)
+        if level == "speech":
+            fed, gain = mix, np.sqrt(10 ** (-3.0) / p_speech)
+        else:
+            fed, gain = mix * np.sqrt(p_speech / p_mix), np.sqrt(10 ** (-3.0) / p_speech)
+        want = gain * np.tanh(4.0 * fed) / 4.0 if r["processed"] == "True" else np.sqrt(
+            10 ** (-3.0) / (p_speech if level == "speech" else p_mix)) * mix
+        np.testing.assert_allclose(y, want, atol=PCM24_STEP)
+        assert float(r["true_peak_dbtp"]) >= float(r["peak_db"]) - 1e-9
+    write_stimuli(tmp_path / "again", clean, noise, FS, [-3, 3], **kw)
+    assert _digest(tmp_path / "st") == _digest(tmp_path / "again")
+
+
+def test_an_inter_sample_peak_above_full_scale_is_refused(tmp_path, signals):
+    """A sine at fs/4, phase pi/4, of amplitude 1.2: its samples peak at 1.2 / sqrt 2
+    (-1.4 dB re full scale, which the sample peak passes) but the waveform reaches 1.2
+    (+1.6 dB TP): refused, or scaled to -1 dB TP with --scale-to-fit."""
+    _clean, noise = signals
+    n = np.arange(2 * FS)
+    fade = np.minimum(1.0, np.minimum(n, n[::-1]) / 800.0)
+    tone = np.sin(np.pi / 2 * n + np.pi / 4) * fade
+    level = 20 * np.log10(1.2) - 10 * np.log10(2)  # long-term level of a sine of amplitude 1.2
+    kw = dict(snr_reference="long-term", presentation_level_db=level + 10 * np.log10(np.mean(fade ** 2)))
+    with pytest.raises(InputError, match=r"would clip \(true peak \+1\.[5-7] dB TP"):
+        write_stimuli(tmp_path / "x", tone, noise, FS, [80], **kw)
+    assert not (tmp_path / "x").exists()
+    res = write_stimuli(tmp_path / "fit", tone, noise, FS, [80], scale_to_fit=True, **kw)
+    s = res.stimuli[0]
+    assert s.peak_db == pytest.approx(-1.0 - 3.01, abs=0.05) and s.true_peak_dbtp == pytest.approx(-1.0, abs=1e-3)
+
+
+def test_cli_sweep_writes_the_processed_stimuli(tmp_path, capsys, signals):
+    clean, noise = signals
+    cw, nw = tmp_path / "clean.wav", tmp_path / "noise.wav"
+    sf.write(cw, clean, FS, subtype="FLOAT")
+    sf.write(nw, noise, FS, subtype="FLOAT")
+    (tmp_path / "chain.py").write_text("import numpy as np\n\ndef soft(m, fs):\n    return np.tanh(4 * m) / 4\n")
+    spec = f"{tmp_path / 'chain.py'}:soft"
+    args = ["sweep", str(cw), str(nw), "--snr=-6:6:6", "--segments", "1", "--index", "estoi", "--process", spec,
+            "--stimuli-snr=-2", "--presentation-level=-30"]
+    code, out, err = run_cli(args + ["--write-stimuli", str(tmp_path / "st")], capsys)
+    assert code == 0, err
+    assert "stimulus_snr-2.0dB_processed.wav" in out and "true peak dBTP" in out
+    rows = _manifest(tmp_path / "st")
+    assert [(r["file"], r["processed"]) for r in rows] == [("stimulus_snr-2.0dB.wav", "False"),
+                                                           ("stimulus_snr-2.0dB_processed.wav", "True")]
+    code, out, err = run_cli(args + ["--write-stimuli", str(tmp_path / "st2")], capsys)
+    assert code == 0 and _digest(tmp_path / "st") == _digest(tmp_path / "st2")
