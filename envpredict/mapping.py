@@ -1250,6 +1250,11 @@ TAAL2011_SOURCE: str = (
     "listening test; parameters read from a secondary transcription of the paper")
 
 
+#: Why no STI-to-score mapping is built in (said wherever a mapping name is refused).
+NO_STI_MAPPING: str = ("no STI-to-score mapping is built in: no published relation's parameters could be checked "
+                       "against the printed text; fit one to pilot scores with fitmap --index sti")
+
+
 def published_mapping_names() -> tuple[str, ...]:
     """Names of the built-in published mappings (usable wherever a MAP.json is).
 
@@ -1283,7 +1288,8 @@ def published_mapping(name: str) -> ScoreMapping:
     key = str(name).strip().lower()
     if key not in std.TAAL2011_MAPPINGS:
         raise InputError(f"no mapping file or built-in mapping named '{name}'",
-                         f"give a MAP.json or one of the built-in mappings: {', '.join(published_mapping_names())}")
+                         f"give a MAP.json or one of the built-in mappings: {', '.join(published_mapping_names())} "
+                         f"({NO_STI_MAPPING})")
     index, a_paper, b_paper, material = std.TAAL2011_MAPPINGS[key]
     return ScoreMapping(
         index=index, shape="logistic", a=-b_paper, b=-a_paper, source=f"{key}: {material}; {TAAL2011_SOURCE}",

@@ -484,6 +484,11 @@ def test_cli_takes_a_built_in_mapping_wherever_map_is(tmp_path, capsys):
     assert code == 2 and "taal2011-ieee" in err and "taal2011-dantale" in err
     code, _out, err = run_cli(["sweep", "a.wav", "b.wav", "--map", "nope"], capsys)
     assert code == 2 and "taal2011-ieee" in err
+    # asking for an STI mapping: refused in one line that says none is built in, and why
+    res.write_text("item,sti\na,0.5\nb,0.7\n")
+    code, out, err = run_cli(["predict", str(res), "--map", "sti-words"], capsys)
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+    assert "no STI-to-score mapping is built in" in err and "fitmap --index sti" in err
 
 
 # ---------------------------------------------------------------------------
