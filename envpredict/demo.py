@@ -118,9 +118,17 @@ def demo_survey_path() -> Path:
     return demo_dir() / SURVEY_FILE
 
 
+#: Folder of a copied demo (:func:`copy_demo`) holding the corpus's clean sentences alone,
+#: as a researcher's sentence list would be (``sNN.wav``, from ``corpus/sNN_clean.wav``).
+SENTENCES_FOLDER = "sentences"
+
+
 def copy_demo(folder: str | Path) -> list[str]:
     """Copy the demo material (impulse responses, recordings, the survey) into a new
-    folder, to try the commands on files of one's own.
+    folder, to try the commands on files of one's own. The copy also has a folder
+    :data:`SENTENCES_FOLDER` holding the eight clean sentences of the demo corpus alone
+    (``s01.wav`` ... ``s08.wav``, 3-4 s each at 16 kHz): with ``hall_noise.wav``, the
+    folder of sentences and the noise a listening test starts from.
 
     Parameters
     ----------
@@ -142,9 +150,14 @@ def copy_demo(folder: str | Path) -> list[str]:
     src = demo_dir()
     files = sorted(p.relative_to(src) for p in src.rglob("*")
                    if p.is_file() and p.suffix in (".wav", ".flac", ".csv", ".json"))
+    sentences = [(rel, Path(SENTENCES_FOLDER) / (rel.name[: -len("_clean.wav")] + ".wav")) for rel in files
+                 if rel.parent == Path("corpus") and rel.name.endswith("_clean.wav")]
     with atomic_directory(folder) as tmp:
         for rel in files:
             (tmp / rel).parent.mkdir(parents=True, exist_ok=True)
             shutil.copyfile(src / rel, tmp / rel)
-    return [str(r) for r in files]
+        for rel, dst in sentences:
+            (tmp / dst).parent.mkdir(parents=True, exist_ok=True)
+            shutil.copyfile(src / rel, tmp / dst)
+    return [str(r) for r in files] + [str(d) for _, d in sentences]
 

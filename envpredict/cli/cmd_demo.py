@@ -60,7 +60,8 @@ def demo_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     copy_to: Optional[Path] = typer.Option(
         None, "--copy-to", help="Instead of rating the demo site, copy its material (impulse responses, "
-        "recordings, the survey of three zones) into this new folder, to try the other commands on."),
+        "recordings, the survey of three zones, a folder of eight clean sentences) into this new folder, to try "
+        "the other commands on."),
 ) -> None:
     """Rate the bundled demo site (an invented ferry-terminal waiting hall): STI and decay
     figures from its impulse response and site noise, and the indices of a recorded
@@ -75,7 +76,9 @@ def demo_command(
                    f"  envpredict ir {copy_to / 'waiting_hall_ir.wav'} --noise 58,55,52,49,45,40,33 "
                    "--speech-level 68\n"
                    f"  envpredict survey {copy_to / 'survey' / 'survey.csv'} --out rows.csv "
-                   "--require 'mean>=0.50' --require 'min>=0.45' --report survey-report")
+                   "--require 'mean>=0.50' --require 'min>=0.45' --report survey-report\n"
+                   f"  envpredict sweep {copy_to / 'sentences'} {copy_to / 'hall_noise.wav'} --snr=-12:0:3 "
+                   "--segments 3   (a folder of sentences in the hall's noise)")
         return
 
     with Progress("rating the demo hall", None, quiet=as_json) as prog:
