@@ -47,3 +47,22 @@ def test_demo_mid_frequency_figures(demo_result, capsys):
     code, out, _ = run_cli(["demo"], capsys)
     assert code == 0
     assert (f"T30 = {demo_result.t30_mid_s:.2f} s, EDT = {demo_result.edt_mid_s:.2f} s") in out
+
+
+def test_copy_to_gives_a_folder_of_sentences_and_a_noise(tmp_path, capsys):
+    """The researcher's starting point: the demo corpus's clean sentences alone in
+    ``sentences/`` (the same bytes as ``corpus/sNN_clean.wav``) beside the hall noise."""
+    from envpredict._data import demo_dir
+
+    code, out, err = run_cli(["demo", "--copy-to", tmp_path / "site", "--json"], capsys)
+    assert code == 0, err
+    files = json.loads(out)["files"]
+    site = tmp_path / "site"
+    names = sorted(p.name for p in (site / "sentences").iterdir())
+    assert names == [f"s{i:02d}.wav" for i in range(1, 9)] and f"sentences{os.sep}s01.wav" in files
+    for n in names:
+        assert (site / "sentences" / n).read_bytes() == (demo_dir() / "corpus" / n.replace(".wav", "_clean.wav")
+                                                         ).read_bytes()
+    assert (site / "hall_noise.wav").is_file()
+    code, out, err = run_cli(["demo", "--copy-to", tmp_path / "site"], capsys)
+    assert code == 2 and "not empty" in err

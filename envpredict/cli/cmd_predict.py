@@ -60,10 +60,10 @@ def render_fit(d: dict, rows: list[list[str]]) -> str:
                        f"{fmt(sp['x50_mean'], '.4g')}, sd {fmt(sp['x50_sd'], '.3g')}; slope at x50 mean "
                        f"{fmt(sp['slope_at_x50_mean'], '.4g')}, sd {fmt(sp['slope_at_x50_sd'], '.3g')}")]
         why = any(f["error"] for f in d["listeners"])  # a column of reasons only when a listener has one
+        head = ["listener", "rows", "trials", "x50", "slope at x50"] + (["no curve because"] if why else [])
         lines.append(table([[f["listener"], f"{f['n_points']}", f"{f['n_trials']}", fmt(f["x50"], ".4g"),
                              fmt(f["slope_at_x50"], ".4g")] + ([f["error"] or ""] if why else [])
-                            for f in d["listeners"]],
-                           ["listener", "rows", "trials", "x50", "slope at x50"] + (["no curve because"] if why else [])))
+                            for f in d["listeners"]], head))
     lines += ["", table(rows, [d["index"], "correct", "trials", "observed %", "fitted %"])]
     if d["notes"]:
         lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
