@@ -785,6 +785,10 @@ def snr_sweep_sentences(
                         w = sum(a * a / d for a, d in zip(se2, dfs)) + (
                             0.0 if mapping.ci_df is None else m2 * m2 / mapping.ci_df)
                         df_t = (v + m2) ** 2 / w if w > 0 else math.inf
+                        # Welch-Satterthwaite can give the sum more degrees of freedom than its
+                        # parts; adding a variance must never narrow the interval, so the total
+                        # keeps at most the combined interval's degrees of freedom.
+                        df_t = min(df_t, df)
                         ht = float(student_t.ppf(q, df_t) if math.isfinite(df_t) else norm.ppf(q)) * math.sqrt(v + m2)
                         tot_lo, tot_hi = srt - ht, srt + ht
                     else:

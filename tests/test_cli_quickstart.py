@@ -88,6 +88,8 @@ def test_from_sentences_and_noise_to_the_main_test_stimuli(material, tmp_path, c
     assert t["snr_db"] == pytest.approx(np.interp(-a / b, stoi, snrs), abs=1e-3)  # 50 % at x50 = -a / b
     for key in ("ci", "map_ci", "sentence_ci", "combined_ci", "total_ci"):
         assert t[f"{key}_low"] < t["snr_db"] < t[f"{key}_high"], key
+    # adding the mapping's variance to the combined one can only widen the interval
+    assert t["total_ci_high"] - t["total_ci_low"] >= t["combined_ci_high"] - t["combined_ci_low"]
     rows = _manifest(tmp_path / "main")
     assert len(rows) == 4 and {float(r["snr_db"]) for r in rows} == {round(t["snr_db"], 1)}
     assert {r["sentence"] for r in rows} == {"s1", "s2", "s3", "s4"}
