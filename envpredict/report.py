@@ -768,7 +768,7 @@ def _page_sweep(d: Mapping) -> Page:
     if isinstance(d.get(key), Mapping):  # the envelope-power index: its SNR_env in dB per SNR
         key = f"{key}.snr_env_db"
     idx = _arr(_first_path(d, key))
-    name = "SNR_env (dB)" if key.endswith("snr_env_db") else key.upper()
+    name = "SNR_env" if key.endswith("snr_env_db") else key.upper()
     targets = list(d.get("targets") or [])
     if d.get("srt_db") is not None:
         p.headline.append(("predicted SRT", num(d, "srt_db", ".1f", "dB")))
