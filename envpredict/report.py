@@ -993,6 +993,15 @@ def _fmt_or_dash(v: Any, spec: str = ".2f") -> str:
     return "—" if not isinstance(v, (int, float)) else format(float(v), spec)
 
 
+def _index_name(index: str) -> str:
+    """How an index column is named on the paired plot (results-table column names)."""
+    from .labels import QUANTITIES
+
+    if index == "sepsm_snr_env_db":
+        return "SNR_env (envelope power), dB"
+    return QUANTITIES[index][0] if index in QUANTITIES else index.upper()
+
+
 def _paired_items_figure(p: Page, d: Mapping) -> None:
     """The compare page's per-item paired plot: each item's value under every condition
     (a line per item) and each item's difference to the baseline with the mean and its
@@ -1004,7 +1013,7 @@ def _paired_items_figure(p: Page, d: Mapping) -> None:
     base = str(d.get("baseline") or conds[0])
     others = [c for c in conds if c != base]
     order = [base] + others
-    index = str(d.get("index") or "index").upper()
+    index = _index_name(str(d.get("index") or "index"))
     new = _mpl()
     fig = new(11.0, 4.6)
     ax, ax2 = fig.add_subplot(121), fig.add_subplot(122)
@@ -1020,7 +1029,7 @@ def _paired_items_figure(p: Page, d: Mapping) -> None:
     ax.plot(x, means, "-D", color=TEAL, lw=2.2, ms=7, mec="white", label="mean over items")
     ax.set_xticks(x, order)
     ax.set_xlim(-0.4, len(order) - 0.6)
-    ax.set_ylabel(f"{index} of the item")
+    ax.set_ylabel(index)
     ax.set_title("Each item under each condition")
     ax.legend(loc="best", fontsize=9, frameon=False)
     ax.grid(axis="x", visible=False)
@@ -1040,7 +1049,7 @@ def _paired_items_figure(p: Page, d: Mapping) -> None:
     ax2.axhline(0, color=INK, lw=1.0)
     ax2.set_xticks(range(len(others)), others)
     ax2.set_xlim(-0.5, len(others) - 0.3)
-    ax2.set_ylabel(f"{index} difference to '{base}'")
+    ax2.set_ylabel(f"difference to '{base}' (same unit)")
     ax2.set_title("Each item's difference; mean and its interval")
     ax2.grid(axis="x", visible=False)
     level = d.get("confidence")
