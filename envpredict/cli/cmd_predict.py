@@ -155,7 +155,7 @@ def render_sweep(d: dict) -> str:
             mci = "—" if t["map_ci_low"] is None else f"{t['map_ci_low']:.1f} .. {t['map_ci_high']:.1f}"
             trows.append([f"{t['percent']:g} %", fmt(t["index_value"], ".3f"), fmt(t["snr_db"], ".1f"), ci, mci,
                           fmt(t["slope_percent_per_db"], ".1f"), t["note"] or ""])
-        lines.append(table(trows, ["target", d["index"], "SNR dB", "noise segments", "mapping",
+        lines.append(table(trows, ["target", head[1], "SNR dB", "noise segments", "mapping",
                                    "slope %/dB", ""]))
         if many:
             def iv(t, key):
