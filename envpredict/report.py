@@ -832,6 +832,7 @@ def _page_sweep(d: Mapping) -> Page:
         cap = f"{name} against SNR; give a score mapping to see the predicted psychometric function and SRT."
     ax.set_xlabel("signal-to-noise ratio, dB")
     p.figures.append(Figure("psychometric", cap, _png(fig)))
+    _sweep_sepsm_figure(p, d)
     rows = []
     for i in range(snr.size):
         r = [num(d, f"snr_db.{i}", ".1f"), num(d, f"{key}.{i}", ".3f")]
@@ -987,6 +988,45 @@ def _sepsm_section(p: Page, d: Mapping) -> None:
                               "Counterpart check: peak correlation with the clean speech of the derived speech "
                               f"{_fmt_or_dash(sep.get('speech_correlation'))} and of the derived noise "
                               f"{_fmt_or_dash(sep.get('noise_correlation'))}."))
+
+
+def _sweep_sepsm_figure(p: Page, d: Mapping) -> None:
+    """The sweep page's envelope-power part: SNR_env per gammatone band against the SNR,
+    and the caution on the observer's material."""
+    sp = d.get("sepsm") if isinstance(d.get("sepsm"), Mapping) else None
+    if not sp:
+        return
+    p.notes.append(SEPSM_MATERIAL_CAUTION)
+    p.notes.append("On the score figure the line joins the swept points straight, while each target's SNR is "
+                   "where the SNR_env curve (straight between the points) reaches the observer's value for that "
+                   "score; the observer is steep, so a marker can sit beside the line. A finer SNR step brings "
+                   "them together.")
+    grid = _arr(sp.get("band_snr_env_db"))
+    snr = _arr(d.get("snr_db"))
+    bands = [float(b) for b in sp.get("bands_hz") or []]
+    if grid.ndim != 2 or grid.shape != (snr.size, len(bands)) or not grid.size:
+        return
+    new = _mpl()
+    fig = new(10.0, 4.8)
+    ax = fig.add_subplot(111)
+    ax.grid(False)
+    step_snr = float(np.median(np.diff(snr))) if snr.size > 1 else 1.0
+    finite = grid[np.isfinite(grid)]
+    hi = max(10.0, float(np.ceil(finite.max() / 5) * 5)) if finite.size else 10.0
+    im = ax.imshow(np.ma.masked_invalid(grid.T), aspect="auto", origin="lower", cmap=_heat_cmap(), vmin=-30.0,
+                   vmax=hi, interpolation="nearest",
+                   extent=(snr[0] - step_snr / 2, snr[-1] + step_snr / 2, -0.5, len(bands) - 0.5))
+    step = max(1, len(bands) // 11)
+    ax.set_yticks(range(0, len(bands), step), [_band_label(b) for b in bands[::step]])
+    ax.set_xlabel("signal-to-noise ratio, dB")
+    ax.set_ylabel("gammatone band centre")
+    cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
+    cb.set_label("SNR_env of the band, dB")
+    ax.set_title("Envelope-power SNR per band against the SNR (mean over noise segments)")
+    p.figures.append(Figure(
+        "sepsm_bands", "SNR_env of each gammatone band (root sum of squares over its modulation filters), in dB, "
+        "at each swept SNR: the bands that carry the index. The index combines all bands, so a few unmasked bands "
+        "can carry it where the noise is weak in them.", _png(fig)))
 
 
 def _fmt_or_dash(v: Any, spec: str = ".2f") -> str:

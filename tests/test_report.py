@@ -582,4 +582,7 @@ def test_sweep_report_of_the_envelope_power_index(tmp_path):
     d = snr_sweep(x, np.tile(speech_shaped_noise(x, 1), 2), fs, snr_db=[-12.0, -8.0, -4.0, 0.0], index="sepsm",
                   n_segments=2, snr_reference="long-term").to_dict()
     write_report("sweep", d, tmp_path / "rep")
-    check_report(tmp_path / "rep", d, kind="sweep", required_keys=("sepsm.snr_env_db.1", "predicted_percent.2"))
+    assert (tmp_path / "rep" / "sepsm_bands.png").is_file()
+    check_report(tmp_path / "rep", d, kind="sweep", n_png=2,
+                 required_keys=("sepsm.snr_env_db.1", "predicted_percent.2"))
+    assert "ranking aid" in (tmp_path / "rep" / "report.html").read_text(encoding="utf-8")
