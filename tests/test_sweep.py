@@ -642,3 +642,15 @@ def test_sweep_sepsm_refusals_and_files(tmp_path, demo_sentence, capsys):
     assert d["sepsm"]["snr_env_db"] and len(d["targets"]) == 2 and d["srt_db"] is not None
     code, out, err = run_cli(args, capsys)
     assert code == 0 and "Predicted SRT" in out, err
+
+
+def test_sweep_sepsm_through_a_linear_chain_equals_the_plain_sweep(demo_sentence):
+    # phase inversion is exact for a linear chain, and the envelope power is normalised
+    # by its DC (Jørgensen & Dau 2011, eq. 2), so a gain changes no SNR_env: the chain's
+    # predicted benefit is 0 dB
+    x, noise, fs = demo_sentence
+    kw = {"snr_db": [-9.0, -6.0, -3.0], "index": "sepsm", "n_segments": 1, "snr_reference": "long-term"}
+    plain = snr_sweep(x, noise, fs, **kw)
+    gained = snr_sweep(x, noise, fs, process=lambda y, f: 0.25 * y, **kw)
+    assert gained.index == pytest.approx(plain.index, abs=1e-6)
+    assert gained.srt_db == pytest.approx(plain.srt_db, abs=1e-6)
