@@ -279,7 +279,8 @@ class SweepResult:
     ----------
     snr_db : swept SNRs, dB, increasing.
     index_name : the index computed.
-    index : mean index over noise segments at each SNR.
+    index : mean index over noise segments at each SNR (for ``"sepsm"``: SNR_env in dB,
+        the mean of the segments' dB values).
     index_segments : (n_snr, n_segments) index per SNR and noise segment.
     index_sd : standard deviation over segments at each SNR.
     predicted_percent : mapping applied to the mean index, or ``None`` without a mapping.
@@ -633,7 +634,9 @@ def snr_sweep(
         an unknown index or level,
         or an option out of range.
     ComputationError
-        If no level of the sweep gives a number for the index.
+        If no level of the sweep gives a number for the index, or (``"sepsm"`` through a
+        chain) the chain's outputs for speech + noise and speech - noise are the same, so
+        the processed noise alone is silent.
     """
     from scipy.signal import fftconvolve
     from scipy.stats import t as student_t
