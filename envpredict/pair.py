@@ -797,8 +797,10 @@ def _noise_info(noise_path: str | os.PathLike, degraded: Source, what: str = "no
         raise InputError(
             f"the {what} file ({n_n} samples at {fs_n} Hz) does not match the degraded file "
             f"({degraded.n} samples at {degraded.fs} Hz)",
-            "give the noise alone exactly as it is in the degraded file: same rate, same length, "
-            "processed the same way",
+            ("give the processing's output for the same speech with the noise's polarity inverted, at the "
+             "degraded file's rate and length" if what == "inverted" else
+             "give the noise alone exactly as it is in the degraded file: same rate, same length, "
+             "processed the same way"),
         )
 
 

@@ -661,9 +661,17 @@ def _page_pair(d: Mapping) -> Page:
                  num(d, f"worst_moments.{i}.estoi", ".3f"), num(d, f"worst_moments.{i}.stoi", ".3f")]
                 for i in range(len(worst))]
         p.tables.append(Table("Worst moments", ["from", "to", "ESTOI", "STOI"], rows))
+    _sepsm_section(p, d)
     for n in d.get("notes") or []:
         p.notes.append(str(n))
     return p
+
+
+def _first_path(d: Mapping, path: str) -> Any:
+    try:
+        return _get(d, path)
+    except (KeyError, IndexError, TypeError, ValueError):
+        return None
 
 
 def _has(d: Mapping, path: str) -> bool:
@@ -736,6 +744,7 @@ def _page_compare(d: Mapping) -> Page:
                             "(bar). Teal: higher than the baseline; red: lower; grey: no clear difference (the "
                             "verdict of the comparison, or the interval spanning zero).",
                             _png(fig)))
+    _paired_items_figure(p, d)
     rows = []
     for i, c in enumerate(conds):
         rows.append([txt(c.get("name")), num(d, f"conditions.{i}.n", ".0f"), num(d, f"conditions.{i}.mean", ".3f"),
@@ -756,8 +765,10 @@ def _page_sweep(d: Mapping) -> Page:
     snr = _arr(d.get("snr_db"))
     pred = _arr(d.get("predicted_percent")) if d.get("predicted_percent") is not None else None
     key = str(d.get("index") or "index")
-    idx = _arr(d.get(key))
-    name = key.upper()
+    if isinstance(d.get(key), Mapping):  # the envelope-power index: its SNR_env in dB per SNR
+        key = f"{key}.snr_env_db"
+    idx = _arr(_first_path(d, key))
+    name = "SNR_env" if key.endswith("snr_env_db") else key.upper()
     targets = list(d.get("targets") or [])
     if d.get("srt_db") is not None:
         p.headline.append(("predicted SRT", num(d, "srt_db", ".1f", "dB")))
@@ -821,6 +832,7 @@ def _page_sweep(d: Mapping) -> Page:
         cap = f"{name} against SNR; give a score mapping to see the predicted psychometric function and SRT."
     ax.set_xlabel("signal-to-noise ratio, dB")
     p.figures.append(Figure("psychometric", cap, _png(fig)))
+    _sweep_sepsm_figure(p, d)
     rows = []
     for i in range(snr.size):
         r = [num(d, f"snr_db.{i}", ".1f"), num(d, f"{key}.{i}", ".3f")]
@@ -875,6 +887,218 @@ def _page_sweep(d: Mapping) -> Page:
     for n in d.get("notes") or []:
         p.notes.append(str(n))
     return p
+
+
+# ---------------------------------------------------------------------------
+# envelope-power index (sEPSM), phase-inversion separation, per-item paired plot
+# ---------------------------------------------------------------------------
+
+SEPSM_MATERIAL_CAUTION = ("The percent correct of the envelope-power index comes from an ideal observer whose "
+                          "parameters were fitted to one sentence material (Jørgensen & Dau 2011; from memory): "
+                          "read it as a ranking aid, not as the score of your listeners with your material.")
+
+
+def _sepsm_section(p: Page, d: Mapping) -> None:
+    """The pair page's envelope-power part: SNR_env per band and modulation filter (heat
+    map and table), the observer's percent correct with its caution, and, for a phase-
+    inverted pair, the output SNR per band of the separated speech and noise."""
+    sp = d.get("sepsm") if isinstance(d.get("sepsm"), Mapping) else None
+    sep = d.get("separation") if isinstance(d.get("separation"), Mapping) else None
+    new = _mpl() if (sp or sep) else None
+    if sp:
+        if sp.get("snr_env_db") is not None:
+            p.headline.append(("SNR_env", num(d, "sepsm.snr_env_db", ".1f", "dB")))
+        grid = _arr(sp.get("snr_env_bands"))
+        bands = [float(b) for b in sp.get("bands_hz") or []]
+        mods = [float(m) for m in sp.get("modulation_hz") or []]
+        if grid.ndim == 2 and grid.shape == (len(bands), len(mods)) and grid.size:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                g_db = 10.0 * np.log10(grid)
+            fig = new(11.0, 5.2)
+            ax = fig.add_subplot(111)
+            ax.grid(False)
+            shown = np.ma.masked_invalid(g_db)
+            finite = g_db[np.isfinite(g_db)]
+            hi = max(10.0, float(np.ceil(finite.max() / 5) * 5)) if finite.size else 10.0
+            im = ax.imshow(shown, aspect="auto", origin="lower", cmap=_heat_cmap(), vmin=-30.0, vmax=hi,
+                           interpolation="nearest")
+            ax.set_facecolor("#ececec")
+            ax.set_xticks(range(len(mods)), ["≤ 1 (low-pass)" if i == 0 else f"{m:g}" for i, m in enumerate(mods)])
+            step = max(1, len(bands) // 11)
+            ax.set_yticks(range(0, len(bands), step), [_band_label(b) for b in bands[::step]])
+            ax.set_xlabel("modulation filter centre, Hz")
+            ax.set_ylabel("gammatone band centre")
+            cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
+            cb.set_label("SNR_env, dB (floor -30 dB)")
+            ax.set_title("Envelope-power SNR per audio band and modulation filter")
+            p.figures.append(Figure(
+                "sepsm_snr_env", "SNR_env = (P_env,S+N - P_env,N) / P_env,N in each gammatone band (rows) and "
+                "modulation filter (columns), in dB: how far the envelope power of the processed speech in noise "
+                "rises above that of the processed noise alone. Grey cells: filters not used in that band (a "
+                "filter counts only below a quarter of the band's centre frequency). The index is the root sum "
+                "of squares over all cells.", _png(fig)))
+        rows = [[Cell(_band_label(b)), num(d, f"sepsm.band_snr_env_db.{k}", ".1f", "dB")]
+                for k, b in enumerate(bands)]
+        if rows:
+            p.tables.append(Table("Envelope-power index per gammatone band", ["band", "SNR_env (all filters)"],
+                                  rows, "Root sum of squares of the band's SNR_env over its modulation filters."))
+        summary = [[Cell("SNR_env (all bands and filters)"), num(d, "sepsm.snr_env_db", ".2f", "dB")],
+                   [Cell("percent correct (ideal observer, material-specific)"),
+                    num(d, "sepsm.percent_correct", ".1f", "%")]]
+        p.tables.append(Table("Envelope-power index (sEPSM)", ["quantity", "value"], summary,
+                              "Jørgensen & Dau 2011, JASA 130(3):1475-1487."))
+        p.notes.append(SEPSM_MATERIAL_CAUTION)
+        for n in sp.get("notes") or []:
+            p.notes.append(f"envelope-power index: {n}")
+    if sep:
+        bands = [float(b) for b in sep.get("bands_hz") or []]
+        snr = _arr(sep.get("output_snr_db"))
+        if bands and snr.size == len(bands):
+            fig = new(10.0, 4.0)
+            ax = fig.add_subplot(111)
+            x = np.arange(len(bands))
+            ok = np.isfinite(snr)
+            ax.bar(x[ok], snr[ok], 0.6, color=[TEAL if v >= 0 else BRICK for v in snr[ok]])
+            for xi in x[~ok]:
+                ax.text(xi, 0, "absent", ha="center", va="bottom", fontsize=9, color=MUTED)
+            for xi, v in zip(x[ok], snr[ok]):
+                ax.annotate(f"{v:+.1f}", (xi, v), xytext=(0, 3 if v >= 0 else -12), textcoords="offset points",
+                            ha="center", fontsize=9)
+            ax.axhline(0, color=INK, lw=1.0)
+            if sep.get("broadband_snr_db") is not None:
+                ax.axhline(float(sep["broadband_snr_db"]), color=COPPER, lw=1.2, ls="--",
+                           label=f"broadband {float(sep['broadband_snr_db']):+.1f} dB")
+                ax.legend(loc="upper left", fontsize=9, frameon=False)
+            ax.set_xticks(x, [_band_label(b) for b in bands])
+            ax.set_xlabel("octave band centre")
+            ax.set_ylabel("output SNR, dB")
+            ax.grid(axis="x", visible=False)
+            lo, hi = float(np.nanmin(np.append(snr[ok], 0.0))), float(np.nanmax(np.append(snr[ok], 0.0)))
+            ax.set_ylim(lo - 0.15 * (hi - lo or 1.0) - 1.0, hi + 0.2 * (hi - lo or 1.0) + 1.0)
+            ax.set_title("Output SNR per band: processed speech over processed noise (phase inversion)")
+            p.figures.append(Figure(
+                "separation_snr", "The processed speech ((a + b)/2) and the processed noise ((a - b)/2), "
+                "separated from the outputs for speech + noise (a) and speech - noise (b) (Hagerman & Olofsson "
+                "2004), compared band by band: the SNR after the processing. Exact for linear processing, an "
+                "approximation for nonlinear processing.", _png(fig)))
+        rows = [[Cell(_band_label(b)), num(d, f"separation.output_snr_db.{k}", "+.1f", "dB")]
+                for k, b in enumerate(bands)]
+        rows.append([Cell("broadband"), num(d, "separation.broadband_snr_db", "+.1f", "dB")])
+        p.tables.append(Table("Output SNR after the processing (phase inversion)", ["band", "output SNR"], rows,
+                              "Counterpart check: peak correlation with the clean speech of the derived speech "
+                              f"{_fmt_or_dash(sep.get('speech_correlation'))} and of the derived noise "
+                              f"{_fmt_or_dash(sep.get('noise_correlation'))}."))
+
+
+def _sweep_sepsm_figure(p: Page, d: Mapping) -> None:
+    """The sweep page's envelope-power part: SNR_env per gammatone band against the SNR,
+    and the caution on the observer's material."""
+    sp = d.get("sepsm") if isinstance(d.get("sepsm"), Mapping) else None
+    if not sp:
+        return
+    p.notes.append(SEPSM_MATERIAL_CAUTION)
+    p.notes.append("On the score figure the line joins the swept points straight, while each target's SNR is "
+                   "where the SNR_env curve (straight between the points) reaches the observer's value for that "
+                   "score; the observer is steep, so a marker can sit beside the line. A finer SNR step brings "
+                   "them together.")
+    grid = _arr(sp.get("band_snr_env_db"))
+    snr = _arr(d.get("snr_db"))
+    bands = [float(b) for b in sp.get("bands_hz") or []]
+    if grid.ndim != 2 or grid.shape != (snr.size, len(bands)) or not grid.size:
+        return
+    new = _mpl()
+    fig = new(10.0, 4.8)
+    ax = fig.add_subplot(111)
+    ax.grid(False)
+    step_snr = float(np.median(np.diff(snr))) if snr.size > 1 else 1.0
+    finite = grid[np.isfinite(grid)]
+    hi = max(10.0, float(np.ceil(finite.max() / 5) * 5)) if finite.size else 10.0
+    im = ax.imshow(np.ma.masked_invalid(grid.T), aspect="auto", origin="lower", cmap=_heat_cmap(), vmin=-30.0,
+                   vmax=hi, interpolation="nearest",
+                   extent=(snr[0] - step_snr / 2, snr[-1] + step_snr / 2, -0.5, len(bands) - 0.5))
+    step = max(1, len(bands) // 11)
+    ax.set_yticks(range(0, len(bands), step), [_band_label(b) for b in bands[::step]])
+    ax.set_xlabel("signal-to-noise ratio, dB")
+    ax.set_ylabel("gammatone band centre")
+    cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
+    cb.set_label("SNR_env of the band, dB")
+    ax.set_title("Envelope-power SNR per band against the SNR (mean over noise segments)")
+    p.figures.append(Figure(
+        "sepsm_bands", "SNR_env of each gammatone band (root sum of squares over its modulation filters), in dB, "
+        "at each swept SNR: the bands that carry the index. The index combines all bands, so a few unmasked bands "
+        "can carry it where the noise is weak in them.", _png(fig)))
+
+
+def _fmt_or_dash(v: Any, spec: str = ".2f") -> str:
+    return "—" if not isinstance(v, (int, float)) else format(float(v), spec)
+
+
+def _index_name(index: str) -> str:
+    """How an index column is named on the paired plot (results-table column names)."""
+    from .labels import QUANTITIES
+
+    if index == "sepsm_snr_env_db":
+        return "SNR_env (envelope power), dB"
+    return QUANTITIES[index][0] if index in QUANTITIES else index.upper()
+
+
+def _paired_items_figure(p: Page, d: Mapping) -> None:
+    """The compare page's per-item paired plot: each item's value under every condition
+    (a line per item) and each item's difference to the baseline with the mean and its
+    interval."""
+    items = [it for it in d.get("items") or [] if isinstance(it, Mapping) and isinstance(it.get("values"), Mapping)]
+    conds = [str(c.get("name")) for c in d.get("conditions") or [] if isinstance(c, Mapping)]
+    if not items or len(conds) < 2:
+        return
+    base = str(d.get("baseline") or conds[0])
+    others = [c for c in conds if c != base]
+    order = [base] + others
+    index = _index_name(str(d.get("index") or "index"))
+    new = _mpl()
+    fig = new(11.0, 4.6)
+    ax, ax2 = fig.add_subplot(121), fig.add_subplot(122)
+    x = np.arange(len(order))
+    vals = np.array([[it["values"].get(c) if it["values"].get(c) is not None else np.nan for c in order]
+                     for it in items], dtype=float)
+    for row in vals:
+        ok = np.isfinite(row)
+        ax.plot(x[ok], row[ok], "-", color=MUTED, lw=0.9, alpha=0.7)
+        ax.plot(x[ok], row[ok], "o", color=MUTED, ms=3.5, alpha=0.8)
+    with np.errstate(invalid="ignore"):
+        means = np.nanmean(vals, axis=0)
+    ax.plot(x, means, "-D", color=TEAL, lw=2.2, ms=7, mec="white", label="mean over items")
+    ax.set_xticks(x, order)
+    ax.set_xlim(-0.4, len(order) - 0.6)
+    ax.set_ylabel(index)
+    ax.set_title("Each item under each condition")
+    ax.legend(loc="best", fontsize=9, frameon=False)
+    ax.grid(axis="x", visible=False)
+    rng = np.random.default_rng(0)
+    cstats = {str(c.get("name")): c for c in d.get("conditions") or [] if isinstance(c, Mapping)}
+    for k, c in enumerate(others):
+        diff = vals[:, order.index(c)] - vals[:, 0]
+        diff = diff[np.isfinite(diff)]
+        jitter = rng.uniform(-0.12, 0.12, diff.size)
+        ax2.plot(k + jitter, diff, "o", color=MUTED, ms=4, alpha=0.8)
+        st = cstats.get(c, {})
+        if st.get("ci_low") is not None and st.get("ci_high") is not None:
+            ax2.plot([k + 0.3, k + 0.3], [st["ci_low"], st["ci_high"]], color=COPPER, lw=3.0,
+                     solid_capstyle="butt")
+        if st.get("diff") is not None:
+            ax2.plot([k + 0.3], [st["diff"]], "o", color=COPPER, ms=8, mec="white")
+    ax2.axhline(0, color=INK, lw=1.0)
+    ax2.set_xticks(range(len(others)), others)
+    ax2.set_xlim(-0.5, len(others) - 0.3)
+    ax2.set_ylabel(f"difference to '{base}' (same unit)")
+    ax2.set_title("Each item's difference; mean and its interval")
+    ax2.grid(axis="x", visible=False)
+    level = d.get("confidence")
+    lvl = f"{float(level) * 100:g} % " if isinstance(level, (int, float)) else ""
+    p.figures.append(Figure(
+        "paired_items", f"Left: every item's {index} under each condition, a grey line joining an item's values "
+        "(lines that cross show items the conditions rank differently); teal: the mean over items. Right: "
+        f"each item's difference to the baseline '{base}' (grey dots, spread sideways to be seen), with the mean "
+        f"difference (copper dot) and its {lvl}bootstrap interval (copper bar).", _png(fig)))
 
 
 # ---------------------------------------------------------------------------

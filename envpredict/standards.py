@@ -660,6 +660,10 @@ SEPSM_SNR_ENV_MIN: float = 0.001
 #: Ideal observer (Green & Birdsall 1964 as used by Jørgensen & Dau 2011): d' = k SNR_env^q,
 #: m equally likely alternatives, response noise sigma_s. CLUE material: k = sqrt(1.2),
 #: q = 0.5, sigma_s = 0.6, m = 8000 (from memory; material-specific: fit k and sigma_s for other material).
+#: k is not certain: later reproductions of the paper's experiments use k = 0.82 as well as sqrt(1.2),
+#: with the same q, m and sigma_s (from memory). With k = 0.82 the sweep's SRT of a demo sentence in its
+#: speech-shaped noise is -3.2 dB instead of -5.2 dB (the paper: about -3.5 dB for CLUE, from memory).
+#: Kept at sqrt(1.2) until the paper's Table can be checked.
 SEPSM_K: float = 1.2 ** 0.5
 SEPSM_Q: float = 0.5
 SEPSM_SIGMA_S: float = 0.6

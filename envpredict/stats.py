@@ -365,13 +365,18 @@ class Comparison:
     confidence: float = CONFIDENCE
     skipped_rows: int = 0  # rows without a usable index value (error or empty)
     notes: tuple[str, ...] = field(default=())
+    #: Each item's index value per condition (for the per-item paired plot): ``(item
+    #: label, {condition: value})``, items in order of first appearance.
+    items: tuple[tuple[str, dict[str, float]], ...] = ()
 
     def to_dict(self) -> dict:
         return jsonable({
             "index": self.index, "by": self.by, "baseline": self.baseline, "pair_on": list(self.pair_on),
             "ci_method": self.ci_method, "n_resamples": self.n_resamples, "seed": self.seed,
             "confidence": self.confidence, "alpha": ALPHA, "skipped_rows": self.skipped_rows,
-            "conditions": [c.to_dict() for c in self.conditions], "cautions": [], "notes": list(self.notes),
+            "conditions": [c.to_dict() for c in self.conditions],
+            "items": [{"item": name, "values": values} for name, values in self.items],
+            "cautions": [], "notes": list(self.notes),
         })
 
 
@@ -583,7 +588,18 @@ def compare_conditions(
     return Comparison(index=index, by=by, baseline=baseline, pair_on=keys, conditions=tuple(out),
                       ci_method="BCa" if ci_method.lower() == "bca" else "percentile",
                       n_resamples=int(n_resamples), seed=int(seed), confidence=float(confidence),
-                      skipped_rows=skipped, notes=tuple(notes))
+                      skipped_rows=skipped, notes=tuple(notes), items=_item_values(values, order))
+
+
+def _item_values(values: Mapping[str, Mapping[tuple, float]], order: Sequence[str]
+                 ) -> tuple[tuple[str, dict[str, float]], ...]:
+    """Each item's value per condition, items in order of first appearance; an item is
+    labelled by its key cells joined with " / "."""
+    seen: dict[tuple, dict[str, float]] = {}
+    for cond in order:
+        for key, v in values.get(cond, {}).items():
+            seen.setdefault(key, {})[cond] = float(v)
+    return tuple((" / ".join(str(k) for k in key), vals) for key, vals in seen.items())
 
 
 @dataclass(frozen=True)

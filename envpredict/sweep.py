@@ -34,8 +34,16 @@ MAX_SEGMENTS: int = 100
 
 #: Index names the sweep knows how to compute with the package's own code; the first
 #: is the default.
-SWEEP_INDICES: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression")
+SWEEP_INDICES: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression", "sepsm")
 DEFAULT_INDEX: str = SWEEP_INDICES[0]
+
+#: Indices computed from the mixture and the noise alone (not from the clean speech):
+#: the envelope-power index (:func:`envpredict.envpower.sepsm`). Its value in the sweep
+#: is SNR_env in dB; without a mapping its scores come from the ideal observer of
+#: Jørgensen & Dau 2011 (material-specific). With a processing chain the processed
+#: noise alone is separated by phase inversion (Hagerman & Olofsson 2004): the chain is
+#: run on speech + noise and on speech - noise.
+NOISE_INDICES: tuple[str, ...] = ("sepsm",)
 
 #: Default SNRs of a sweep, dB (:data:`envpredict.standards.SWEEP_SNR_FROM_DB` ...).
 DEFAULT_SNR_RANGE: str = f"{std.SWEEP_SNR_FROM_DB:g}:{std.SWEEP_SNR_TO_DB:g}:{std.SWEEP_SNR_STEP_DB:g}"
@@ -134,6 +142,69 @@ def default_index_functions() -> dict[str, Callable[[np.ndarray, np.ndarray, int
     return {"stoi": _stoi, "estoi": _estoi, "ssti": _ssti, "ssti_regression": _ssti_regression}
 
 
+class _ObserverMapping:
+    """The ideal observer of the envelope-power index as a mapping of SNR_env in dB.
+
+    Duck-typed like :class:`~envpredict.mapping.ScoreMapping` for the sweep: ``percent``,
+    ``index_at``, ``derivative`` (proportion per dB), no covariance. p = Phi((k s^q -
+    mu_N) / sqrt(sigma_s^2 + sigma_N^2)) with s = 10^(x/10) (Jørgensen & Dau 2011;
+    :func:`envpredict.envpower.ideal_observer`).
+    """
+
+    index = "sepsm"
+    cov = None
+    ci_df = None
+    index_range = None
+
+    def __init__(self) -> None:
+        from scipy.stats import norm
+
+        from .envpower import MATERIAL_NOTE
+
+        self.k, self.q, self.sigma_s, self.m = std.SEPSM_K, std.SEPSM_Q, std.SEPSM_SIGMA_S, std.SEPSM_M
+        u = float(norm.ppf(1.0 - 1.0 / self.m))
+        self.mu = u + 0.577 / u
+        self.sd = math.sqrt(self.sigma_s ** 2 + (1.28255 / u) ** 2)
+        self.notes = (MATERIAL_NOTE,)
+
+    def percent(self, x: Any) -> np.ndarray:
+        from .envpower import ideal_observer
+
+        return np.asarray(ideal_observer(10.0 ** (np.asarray(x, dtype=float) / 10.0), k=self.k, q=self.q,
+                                         sigma_s=self.sigma_s, m=self.m))
+
+    def derivative(self, x: Any) -> np.ndarray:
+        from scipy.stats import norm
+
+        s = 10.0 ** (np.asarray(x, dtype=float) / 10.0)
+        z = (self.k * s ** self.q - self.mu) / self.sd
+        # dp/dx = phi(z) * dz/ds * ds/dx, ds/dx = s ln(10) / 10
+        return norm.pdf(z) * self.k * self.q * s ** self.q / self.sd * math.log(10.0) / 10.0
+
+    def index_at(self, percent: float) -> float:
+        from scipy.stats import norm
+
+        p = float(percent) / 100.0
+        floor = float(norm.cdf(-self.mu / self.sd))
+        if not math.isfinite(p) or not floor < p < 1.0:
+            raise InputError(f"target {percent:g} % is outside the range of the ideal observer "
+                             f"({100 * floor:.2g} % to 100 %, exclusive)", "choose a target between them")
+        d = self.sd * float(norm.ppf(p)) + self.mu
+        return 10.0 * math.log10((d / self.k) ** (1.0 / self.q))
+
+    def quantile(self) -> float:
+        return math.nan
+
+    def to_dict(self) -> dict:
+        return {
+            "index": "sepsm", "kind": "ideal observer",
+            "formula": "p = Phi((k*SNR_env^q - mu_N) / sqrt(sigma_s^2 + sigma_N^2)), SNR_env = 10^(x/10)",
+            "params": {"k": self.k, "q": self.q, "sigma_s": self.sigma_s, "m": self.m},
+            "source": "Jørgensen & Dau 2011, JASA 130(3):1475-1487 (parameters from memory)",
+            "index_range": None, "notes": list(self.notes),
+        }
+
+
 @dataclass(frozen=True)
 class SweepTarget:
     """The SNR at which the predicted score reaches ``percent``.
@@ -208,7 +279,8 @@ class SweepResult:
     ----------
     snr_db : swept SNRs, dB, increasing.
     index_name : the index computed.
-    index : mean index over noise segments at each SNR.
+    index : mean index over noise segments at each SNR (for ``"sepsm"``: SNR_env in dB,
+        the mean of the segments' dB values).
     index_segments : (n_snr, n_segments) index per SNR and noise segment.
     index_sd : standard deviation over segments at each SNR.
     predicted_percent : mapping applied to the mean index, or ``None`` without a mapping.
@@ -226,6 +298,10 @@ class SweepResult:
     duration_s : length of each mixture, seconds.
     mapping : the mapping's MAP.json content, or ``None``.
     notes : cautions.
+    band_snr_env_db : with the envelope-power index, (n_snr, bands) SNR_env of each
+        gammatone band (root sum of squares over its modulation filters), dB, mean over
+        noise segments (and sentences); else ``None``.
+    bands_hz : the gammatone bands of ``band_snr_env_db``.
     """
 
     snr_db: np.ndarray
@@ -248,6 +324,8 @@ class SweepResult:
     sentences: tuple[str, ...] = ()
     sentence_sd: np.ndarray | None = None
     sentence_activity: tuple[float | None, ...] = ()
+    band_snr_env_db: np.ndarray | None = None
+    bands_hz: tuple[float, ...] = ()
 
     @property
     def srt_db(self) -> float | None:
@@ -261,6 +339,32 @@ class SweepResult:
     def to_dict(self) -> dict:
         srt = next((t for t in self.targets if abs(t.percent - std.SRT_PERCENT) < SAME_TARGET_PERCENT), None)
         lev = self.speech_level
+        d = self._dict(srt, lev)
+        if self.index_name in NOISE_INDICES:
+            d[self.index_name] = self._sepsm_dict()
+        return d
+
+    def _sepsm_dict(self) -> dict:
+        """The ``sepsm`` object of the JSON: SNR_env in dB per SNR (as ``snr_env_db`` of a
+        pair), the ideal observer's percent correct, and SNR_env per band."""
+        from .envpower import MATERIAL_NOTE
+
+        obs = _ObserverMapping()
+        return jsonable({
+            "index": "sepsm",
+            "snr_env_db": np.round(self.index, 3),
+            "percent_correct": np.round(obs.percent(self.index), 2),
+            "bands_hz": self.bands_hz,
+            "modulation_hz": std.SEPSM_MODULATION_HZ,
+            "band_snr_env_db": None if self.band_snr_env_db is None else np.round(self.band_snr_env_db, 2),
+            "method": "sEPSM (Jørgensen & Dau 2011, JASA 130(3):1475-1487)",
+            "noise_alone": ("the noise segment as mixed" if not self.processed else
+                            "separated by phase inversion: the chain's outputs for speech + noise (a) and speech - "
+                            "noise (b), noise = (a - b)/2 (Hagerman & Olofsson 2004)"),
+            "notes": [MATERIAL_NOTE],
+        })
+
+    def _dict(self, srt, lev) -> dict:
         return jsonable({
             "snr_db": self.snr_db,
             "index": self.index_name,
@@ -417,8 +521,9 @@ def _check_options(snr_db: Any, index: str, funcs: MappingType, level: str, n_se
                    ) -> tuple[np.ndarray, str, list[float], list[float]]:
     """Refuse bad sweep options (before any audio work); the SNRs, index name and targets."""
     name = str(index).strip().lower()
-    if name not in funcs:
-        raise InputError(f"unknown index '{index}' for the sweep", f"use one of {', '.join(sorted(funcs))}")
+    if name not in funcs and name not in NOISE_INDICES:
+        raise InputError(f"unknown index '{index}' for the sweep",
+                         f"use one of {', '.join(sorted(set(funcs) | set(NOISE_INDICES)))}")
     if level not in LEVEL_CONVENTIONS:
         raise InputError(f"unknown level convention '{level}'", "use 'speech' or 'mixture'")
     try:
@@ -433,6 +538,10 @@ def _check_options(snr_db: Any, index: str, funcs: MappingType, level: str, n_se
     if not isinstance(n_segments, (int, np.integer)) or not 1 <= n_segments <= MAX_SEGMENTS:
         raise InputError(f"number of noise segments {n_segments!r} is outside 1..{MAX_SEGMENTS}",
                          "give e.g. 5 segments")
+    if mapping is None and name in NOISE_INDICES:
+        obs = _ObserverMapping()
+        target_list = [float(t) for t in targets]
+        return snrs, name, target_list, [obs.index_at(t) for t in target_list]
     if mapping is not None:
         if not isinstance(mapping, ScoreMapping):
             raise InputError("mapping is not a ScoreMapping", "fit one with fit_mapping or load a MAP.json")
@@ -486,8 +595,14 @@ def snr_sweep(
         independent segments).
     fs : sample rate, Hz.
     snr_db : SNRs to sweep, dB, strictly increasing, at least two.
-    index : ``"stoi"``, ``"estoi"``, ``"ssti"`` or a key of ``index_functions``.
-    mapping : a :class:`ScoreMapping` for the same index, or ``None`` (index only).
+    index : ``"stoi"``, ``"estoi"``, ``"ssti"``, ``"ssti_regression"``, ``"sepsm"`` or a key
+        of ``index_functions``. ``"sepsm"`` is the envelope-power index
+        (:func:`envpredict.envpower.sepsm`) of the mixture and the noise alone, known by
+        construction (with ``process``: separated by phase inversion, the chain run on
+        speech + noise and on speech - noise); its value is SNR_env in dB.
+    mapping : a :class:`ScoreMapping` for the same index, or ``None`` (index only; for
+        ``"sepsm"``, the ideal observer of Jørgensen & Dau 2011 with the parameters of
+        their sentence material, so the SRT is where its percent correct crosses 50 %).
     targets : target scores, percent (used only with a mapping).
     ir : impulse response at ``fs`` applied to the speech, or ``None``.
     n_segments : number of noise segments per SNR (1 gives no interval).
@@ -520,7 +635,9 @@ def snr_sweep(
         an unknown index or level,
         or an option out of range.
     ComputationError
-        If no level of the sweep gives a number for the index.
+        If no level of the sweep gives a number for the index, or (``"sepsm"`` through a
+        chain) the chain's outputs for speech + noise and speech - noise are the same, so
+        the processed noise alone is silent.
     """
     from scipy.signal import fftconvolve
     from scipy.stats import t as student_t
@@ -534,6 +651,10 @@ def snr_sweep(
     funcs = dict(index_functions) if index_functions is not None else default_index_functions()
     snrs, name, target_list, x_targets = _check_options(snr_db, index, funcs, level, n_segments, mapping, targets)
     reference = check_snr_reference(snr_reference)
+    noise_index = name in NOISE_INDICES and name not in funcs
+    user_mapping = mapping
+    if mapping is None and noise_index:
+        mapping = _ObserverMapping()
 
     notes: list[str] = []
     speech = x
@@ -561,9 +682,11 @@ def snr_sweep(
     speech_level = _speech_level(speech, fs, reference)
     p_ref = speech_level.active_mean_square if reference == "active" else p_speech
 
-    f = funcs[name]
+    f = funcs.get(name)
     total = snrs.size * offsets.size
     vals = np.empty((snrs.size, offsets.size))
+    bands_db: list[list[np.ndarray]] = [[] for _ in snrs]
+    bands_hz: tuple[float, ...] = ()
     done = 0
     for j, o in enumerate(offsets):
         seg = nz[o:o + L]
@@ -572,12 +695,23 @@ def snr_sweep(
             raise InputError(f"noise segment at {o / fs:.2f} s is silent", "give a noise without silent stretches")
         for i, s in enumerate(snrs):
             g = math.sqrt(p_ref / (p_noise * 10.0 ** (s / 10.0)))
-            mix = speech + g * seg
+            alone = g * seg
+            mix = speech + alone
             if level == "mixture":
-                mix = mix * math.sqrt(p_speech / float(np.mean(mix * mix)))
-            if process is not None:
-                mix = _processed(process, mix, fs, s)
-            v = float(f(x, mix, fs))
+                r = math.sqrt(p_speech / float(np.mean(mix * mix)))
+                mix, alone = mix * r, alone * r
+            if noise_index:
+                if process is not None:
+                    # phase inversion: the chain's output for speech - noise gives the noise alone
+                    a = _processed(process, mix, fs, s)
+                    b = _processed(process, mix - 2.0 * alone, fs, s)
+                    mix, alone = a, 0.5 * (a - b)
+                v, band, bands_hz = _sepsm_point(mix, alone, fs, s)
+                bands_db[i].append(band)
+            else:
+                if process is not None:
+                    mix = _processed(process, mix, fs, s)
+                v = float(f(x, mix, fs))
             if not math.isfinite(v):
                 raise ComputationError(f"the {name} of the mixture at {s:g} dB SNR is not a number",
                                        "check the signals (long silences?)")
@@ -593,7 +727,7 @@ def snr_sweep(
         i = int(falls[0])
         notes.append(f"the mean {name} falls between {snrs[i]:g} and {snrs[i + 1]:g} dB SNR: the curve is not "
                      "monotonic (fluctuating noise?); target SNRs use the first crossing")
-    predicted = None if mapping is None else mapping.percent(mean)
+    predicted = None if mapping is None else np.asarray(mapping.percent(mean), dtype=float)
     tq = float(student_t.ppf(0.5 + CI_LEVEL / 2.0, offsets.size - 1)) if offsets.size > 1 else math.nan
 
     z_map = mapping.quantile() if mapping is not None else math.nan
@@ -632,23 +766,46 @@ def snr_sweep(
             percent=pct, index=float(xt), snr_db=srt, ci_low=lo, ci_high=hi, segment_sd_db=seg_sd,
             segment_snr_db=tuple(seg_srts), slope_percent_per_db=slope, map_ci_low=m_lo, map_ci_high=m_hi,
             note=note))
-    if mapping is None:
+    if noise_index and user_mapping is None:
+        notes.append("scores from the ideal observer of the envelope-power index: " + mapping.notes[0])
+    elif mapping is None:
         notes.append("no mapping: give one (fitted with fitmap) to get predicted scores and target SNRs")
     elif mapping.index_range is not None:
         lo_r, hi_r = mapping.index_range
         if np.any((mean < lo_r) | (mean > hi_r)):
             notes.append(f"part of the curve lies outside the index range the mapping was fitted on "
                          f"({lo_r:.3g} to {hi_r:.3g}): those predictions are extrapolations")
-    if mapping is not None:
+    if user_mapping is not None:
         notes.extend(f"mapping: {n}" for n in mapping.notes)
+    if noise_index and process is not None:
+        notes.append("the processed noise alone was separated by phase inversion (Hagerman & Olofsson 2004): "
+                     "the chain ran on speech + noise and on speech - noise; exact for a linear chain, an "
+                     "approximation for a nonlinear one")
+    band_arr = None
+    if noise_index:
+        band_arr = np.stack([np.mean(np.stack(b), axis=0) for b in bands_db])
     return SweepResult(
         snr_db=snrs, index_name=name, index=mean, index_segments=vals, index_sd=sd,
         predicted_percent=predicted, targets=tuple(out_targets), level=level,
         segment_offsets_s=tuple(float(o) / fs for o in offsets), reverberant=ir is not None,
         processed=process is not None, fs=fs,
         duration_s=L / fs, mapping=None if mapping is None else mapping.to_dict(), notes=tuple(notes),
-        snr_reference=reference, speech_level=speech_level,
+        snr_reference=reference, speech_level=speech_level, band_snr_env_db=band_arr, bands_hz=bands_hz,
     )
+
+
+def _sepsm_point(mix: np.ndarray, alone: np.ndarray, fs: int, snr: float
+                 ) -> tuple[float, np.ndarray, tuple[float, ...]]:
+    """SNR_env in dB of one mixture, its per-band SNR_env in dB and the bands."""
+    from .envpower import sepsm
+
+    if float(np.max(np.abs(alone))) <= 0.0:
+        raise ComputationError(f"the processed noise alone at {snr:g} dB SNR is silent",
+                               "check the processing chain (does it remove all of the noise?)")
+    r = sepsm(mix, alone, fs)
+    with np.errstate(divide="ignore"):
+        band = 10.0 * np.log10(np.sqrt(np.nansum(r.snr_env_bands ** 2, axis=1)))
+    return r.snr_env_db, band, r.bands_hz
 
 
 def _half(sd: float, n: int) -> tuple[float, float]:
@@ -722,6 +879,9 @@ def snr_sweep_sentences(
     labels = [str(n) for n in names] if names is not None else [f"sentence {i + 1}" for i in range(len(items))]
     if len(labels) != len(items):
         raise InputError("names and sentences differ in number", "give one name per sentence")
+    name = str(options.get("index", DEFAULT_INDEX)).strip().lower()
+    custom = options.get("index_functions") is not None and name in options["index_functions"]
+    scorer = _ObserverMapping() if mapping is None and name in NOISE_INDICES and not custom else mapping
     runs = []
     for i, x in enumerate(items):
         step = None if progress is None else (lambda done, total, i=i: progress(i * total + done, len(items) * total))
@@ -753,7 +913,7 @@ def snr_sweep_sentences(
         if srt is None:
             note = t0.note or f"{t0.percent:g} % is not reached inside the swept range"
         else:
-            slope = float(100.0 * mapping.derivative(xt) * (mean[i + 1] - mean[i]) / (snrs[i + 1] - snrs[i]))
+            slope = float(100.0 * scorer.derivative(xt) * (mean[i + 1] - mean[i]) / (snrs[i + 1] - snrs[i]))
             se2, dfs = [], []
             if n_seg > 1 and all(v is not None for v in seg_x):
                 seg_sd_db = float(np.std(seg_x, ddof=1))
@@ -776,14 +936,14 @@ def snr_sweep_sentences(
                 df = v * v / sum(a * a / d for a, d in zip(se2, dfs)) if all(d > 0 for d in dfs) else math.inf
                 h = float(student_t.ppf(q, df)) * math.sqrt(v)
                 c_lo, c_hi = srt - h, srt + h
-                if mapping.cov is not None:
-                    half_x = mapping.quantile() * mapping.index_sd_at(t0.percent)
+                if scorer.cov is not None:
+                    half_x = scorer.quantile() * scorer.index_sd_at(t0.percent)
                     m_lo = _crossing(snrs, mean, xt - half_x)[0]
                     m_hi = _crossing(snrs, mean, xt + half_x)[0]
                     if m_lo is not None and m_hi is not None:
-                        m2 = ((m_hi - m_lo) / (2.0 * mapping.quantile())) ** 2
+                        m2 = ((m_hi - m_lo) / (2.0 * scorer.quantile())) ** 2
                         w = sum(a * a / d for a, d in zip(se2, dfs)) + (
-                            0.0 if mapping.ci_df is None else m2 * m2 / mapping.ci_df)
+                            0.0 if scorer.ci_df is None else m2 * m2 / scorer.ci_df)
                         df_t = (v + m2) ** 2 / w if w > 0 else math.inf
                         # Welch-Satterthwaite can give the sum more degrees of freedom than its
                         # parts; adding a variance must never narrow the interval, so the total
@@ -803,7 +963,10 @@ def snr_sweep_sentences(
 
     return replace(
         first, index=mean, index_segments=seg_curves, index_sd=seg_sd,
-        predicted_percent=None if mapping is None else mapping.percent(mean), targets=tuple(out_targets),
+        predicted_percent=None if scorer is None else np.asarray(scorer.percent(mean), dtype=float),
+        targets=tuple(out_targets),
+        band_snr_env_db=None if first.band_snr_env_db is None else np.mean(
+            np.stack([r.band_snr_env_db for r in runs]), axis=0),
         duration_s=float(sum(r.duration_s for r in runs)), speech_level=None, sentences=tuple(labels),
         sentence_sd=sent_sd, sentence_activity=tuple(None if r.speech_level is None
                                                      else r.speech_level.activity_factor for r in runs),
@@ -932,7 +1095,9 @@ def snr_sweep_files(
     index : index to compute (:data:`SWEEP_INDICES`); default: the mapping's index, or
         :data:`DEFAULT_INDEX` without a mapping.
     mapping : a :class:`~envpredict.mapping.ScoreMapping`, the path of a MAP.json, or ``None``.
-    targets : target scores, percent (default: the SRT, 50 %); they need a mapping.
+    targets : target scores, percent (default: the SRT, 50 %); they need a mapping, except
+        for the envelope-power index (``"sepsm"``), whose default scores come from its
+        ideal observer (material-specific).
     n_segments, level, snr_reference, progress : as for :func:`snr_sweep`.
     channel : channel of multi-channel files (0 = first).
     process : a processing chain ``f(mixture, fs)`` or its ``"MODULE:FUNCTION"`` name
@@ -969,7 +1134,7 @@ def snr_sweep_files(
         where = "" if isinstance(mapping, ScoreMapping) else f" '{mapping}'"
         raise InputError(f"the mapping{where} takes '{m.index}' but --index is '{name}'",
                          f"use --index {m.index} or a mapping fitted on {name}")
-    if m is None and targets:
+    if m is None and targets and name not in NOISE_INDICES:
         raise InputError("--target needs a mapping", "give --map MAP.json (write one with 'envpredict fitmap')")
     target_list = list(targets) if targets else [std.SRT_PERCENT]
     _check_options(snrs, name, default_index_functions(), level, n_segments, m, target_list)
@@ -987,7 +1152,7 @@ def snr_sweep_files(
         def sweep(process, prog):
             return snr_sweep(x, nz, fs, process=process, progress=prog, **kw)
 
-    if chain is not None and m is not None:
+    if chain is not None and (m is not None or name in NOISE_INDICES):
         def first(done, total):
             if progress is not None:
                 progress(done, 2 * total)

@@ -838,3 +838,39 @@ def test_batch_inverted_column_adds_the_envelope_power_index(tmp_path):
     for i in range(2):
         direct = pair_from_files(tmp_path / f"c{i}.wav", tmp_path / f"p{i}.wav", inverted_path=tmp_path / f"m{i}.wav")
         assert float(res[i]["sepsm_snr_env_db"]) == pytest.approx(direct.sepsm.snr_env_db, abs=1e-9)
+
+
+def test_batch_rows_with_a_bad_inverted_file_or_delay_error_one_by_one(tmp_path):
+    # issue 15, bad input: an inverted file that is not the counterpart (half the mixture:
+    # its derived noise holds speech), of another rate or length, missing, and a delay
+    # beyond the file (either sign) are each that row's error; the good rows are scored.
+    # A delay cell that is not a number refuses the manifest in one line (exit 2).
+    rng = np.random.default_rng(41)
+    n = int(PAIR_SECONDS * PAIR_FS)
+    clean = two_rate_modulated_noise(rng, n, PAIR_FS)
+    noise = 0.3 * rng.standard_normal(n)
+    for name, sig, rate in (("c.wav", clean, PAIR_FS), ("d.wav", clean + noise, PAIR_FS),
+                            ("inv.wav", clean - noise, PAIR_FS), ("half.wav", 0.5 * (clean + noise), PAIR_FS),
+                            ("slow.wav", (clean - noise)[::2], PAIR_FS // 2),
+                            ("short.wav", (clean - noise)[:-50], PAIR_FS)):
+        sf.write(tmp_path / name, sig, rate, subtype="FLOAT")
+    rows = [["c.wav", "d.wav", inv, delay] for inv, delay in
+            (("inv.wav", ""), ("half.wav", ""), ("slow.wav", ""), ("short.wav", ""), ("gone.wav", ""),
+             ("inv.wav", "99999"), ("inv.wav", "-99999"))]
+    m = _write_csv(tmp_path / "m.csv", ["clean", "degraded", "inverted", "delay_ms"], rows)
+    out = tmp_path / "r.csv"
+    s = run_batch(m, out, workers=1, alignment=batch.Alignment(per_row=True))
+    _, res = read_results(out)
+    errors = [r["error"] for r in res]
+    assert s.failed == 6 and not errors[0] and res[0]["sepsm_snr_env_db"]
+    assert "not the phase-inverted counterpart" in errors[1]
+    assert "does not match the degraded file" in errors[2] and "does not match the degraded file" in errors[3]
+    assert "does not exist" in errors[4]
+    assert "longer than the files" in errors[5] and "longer than the files" in errors[6]
+    assert all("\n" not in e for e in errors)
+    _write_csv(tmp_path / "bad.csv", ["clean", "degraded", "delay_ms"], [["c.wav", "d.wav", "12 ms"]])
+    proc = subprocess.run([sys.executable, "-c", "from envpredict.cli import main; main()", "batch",
+                           str(tmp_path / "bad.csv"), "--out",
+                           str(tmp_path / "b.csv")], capture_output=True, text=True)
+    assert proc.returncode == 2 and proc.stderr.strip().count("\n") == 0 and "'12 ms' is not a number" in proc.stderr
+    assert not (tmp_path / "b.csv").exists()

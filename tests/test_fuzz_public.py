@@ -793,7 +793,8 @@ case("sweep.parse_snr_range", text=S("-15:15:3", "0:10:5", "-5,0,5", "3"), share
 case("sweep.default_index_functions")
 case("sweep.snr_sweep", clean=st.builds(speech, J(10000), J(1.5), st.integers(0, 2)),
      noise=st.builds(lambda s: 0.05 * np.random.default_rng(s).standard_normal(10000 * 10), st.integers(0, 2)),
-     fs=J(10000), snr_db=S((-5.0, 0.0, 5.0), (0.0, 10.0)), index=S("stoi", "estoi"), n_segments=S(1, 2), examples_=6)
+     fs=J(10000), snr_db=S((-5.0, 0.0, 5.0), (0.0, 10.0)), index=S("stoi", "estoi", "sepsm"), n_segments=S(1, 2),
+     examples_=6)
 case("sweep.snr_sweep_files", clean=S(P("clean.wav")), noise=S(P("noise.wav")), snr_db=S("-5:5:5", [0.0, 5.0]),
      n_segments=S(1, 2), examples_=5)
 case("stats.bootstrap_mean_ci", d=st.lists(st.floats(-1, 1), min_size=3, max_size=12).map(np.array),

@@ -484,3 +484,22 @@ def test_pair_inverted_separates_processed_speech_and_noise(tmp_path, capsys):
     with pytest.raises(InputError, match="give one of them"):
         pair_from_files(tmp_path / "c.wav", tmp_path / "a.wav", noise_path=tmp_path / "b.wav",
                         inverted_path=tmp_path / "b.wav")
+
+
+def test_noise_and_inverted_files_of_another_rate_or_length_are_refused(tmp_path, capsys):
+    # issue 15, bad input: a noise or inverted file that does not match the degraded
+    # file's rate or length gets one line and exit 2 (no traceback, no partial output),
+    # with a remedy that names what the file must be
+    fs = 16000
+    x = speech_like(2.0, fs, seed=3)
+    n = 0.5 * speech_shaped_noise(x, 4)
+    for name, sig, rate in (("c.wav", x, fs), ("d.wav", x + n, fs), ("n8k.wav", n[::2], 8000),
+                            ("i8k.wav", (x - n)[::2], 8000), ("ishort.wav", (x - n)[:-100], fs)):
+        sf.write(tmp_path / name, sig, rate, subtype="FLOAT")
+    for option, other, fix in (("--noise", "n8k.wav", "noise alone"), ("--inverted", "i8k.wav", "polarity inverted"),
+                               ("--inverted", "ishort.wav", "polarity inverted")):
+        code, out, err = run_cli(["pair", tmp_path / "c.wav", tmp_path / "d.wav", option, tmp_path / other,
+                                  "--json"], capsys)
+        lines = err.strip().splitlines()
+        assert code == 2 and out == "" and len(lines) == 1, (other, err)
+        assert lines[0].startswith("error: ") and "does not match the degraded file" in lines[0] and fix in lines[0]

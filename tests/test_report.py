@@ -515,3 +515,74 @@ def test_fitmap_report(tmp_path):
     write_report("fitmap", d, tmp_path / "rep")
     check_report(tmp_path / "rep", d, kind="fitmap",
                  required_keys=("fit_data.observed_low.0", "fit_data.pearson_residual.2", "params.x50"))
+
+
+# ---------------------------------------------------------------------------
+# envelope-power index, phase-inversion separation, per-item paired plot
+# ---------------------------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def inverted_pair_result(tmp_path_factory):
+    # a phase-inverted pair through a linear chain (a gain): the report shows the
+    # envelope-power index and the output SNR per band of the separated speech and noise
+    import soundfile as sf
+
+    from envpredict.pair import pair_from_files
+    from signals_for_tests import speech_like, speech_shaped_noise
+
+    fs = 16000
+    d = tmp_path_factory.mktemp("inv")
+    x = speech_like(3.0, fs, seed=4)
+    n = speech_shaped_noise(x, 5) * 0.7
+    for name, sig in (("c", x), ("a", 0.8 * (x + n)), ("b", 0.8 * (x - n))):
+        sf.write(d / f"{name}.wav", sig, fs, subtype="FLOAT")
+    return pair_from_files(d / "c.wav", d / "a.wav", inverted_path=d / "b.wav").to_dict()
+
+
+def test_pair_report_with_the_envelope_power_index_and_separation(tmp_path, inverted_pair_result):
+    d = inverted_pair_result
+    assert d["sepsm"] is not None and d["separation"] is not None
+    write_report("pair", d, tmp_path / "rep")
+    for fig in ("sepsm_snr_env.png", "separation_snr.png"):
+        assert (tmp_path / "rep" / fig).is_file(), fig
+    check_report(tmp_path / "rep", d, kind="pair", n_png=5,
+                 required_keys=("sepsm.snr_env_db", "sepsm.percent_correct", "sepsm.band_snr_env_db.12",
+                                "separation.output_snr_db.3", "separation.broadband_snr_db"))
+    page = (tmp_path / "rep" / "report.html").read_text(encoding="utf-8")
+    assert "material" in page and "ranking aid" in page
+    # a linear chain: the separated speech and noise are the scaled inputs, so the output
+    # SNR is the input SNR (-20 log10(0.7) = 3.1 dB broadband, by construction)
+    assert d["separation"]["broadband_snr_db"] == pytest.approx(-20 * np.log10(0.7), abs=0.05)
+
+
+def test_compare_report_shows_each_item_paired(tmp_path, compare_result):
+    # the JSON carries each item's value per condition (the rows' own cells), the page
+    # draws them as a paired plot
+    items = {it["item"]: it["values"] for it in compare_result["items"]}
+    assert len(items) == 10 and set(items["3"]) == {"quiet", "fan on", "door open"}
+    rng = np.random.default_rng(8)  # the fixture's rows, drawn again
+    first = {}
+    for item in range(10):
+        base = rng.uniform(0.5, 0.7)
+        for cond, shift in (("quiet", 0.0), ("fan on", -0.08), ("door open", 0.01)):
+            first[(str(item), cond)] = float(f"{base + shift + 0.02 * rng.standard_normal():.4f}")
+    for (item, cond), v in first.items():
+        assert items[item][cond] == pytest.approx(v, abs=1e-12)
+    write_report("compare", compare_result, tmp_path / "rep")
+    assert (tmp_path / "rep" / "paired_items.png").is_file()
+    check_report(tmp_path / "rep", compare_result, kind="compare", n_png=2)
+
+
+def test_sweep_report_of_the_envelope_power_index(tmp_path):
+    from envpredict.sweep import snr_sweep
+    from signals_for_tests import speech_like, speech_shaped_noise
+
+    fs = 16000
+    x = speech_like(1.5, fs, seed=2)
+    d = snr_sweep(x, np.tile(speech_shaped_noise(x, 1), 2), fs, snr_db=[-12.0, -8.0, -4.0, 0.0], index="sepsm",
+                  n_segments=2, snr_reference="long-term").to_dict()
+    write_report("sweep", d, tmp_path / "rep")
+    assert (tmp_path / "rep" / "sepsm_bands.png").is_file()
+    check_report(tmp_path / "rep", d, kind="sweep", n_png=2,
+                 required_keys=("sepsm.snr_env_db.1", "predicted_percent.2"))
+    assert "ranking aid" in (tmp_path / "rep" / "report.html").read_text(encoding="utf-8")

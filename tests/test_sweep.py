@@ -516,3 +516,140 @@ def test_sentence_folder_and_list_from_files(tmp_path, capsys, signals):
     (folder / "s5.wav").write_bytes(b"RIFF broken")
     code, out, err = run_cli(["sweep", str(folder), str(nw), "--snr=-6:6:6", "--segments", "2"], capsys)
     assert code == 2 and "s5.wav" in err and len(err.strip().splitlines()) == 1
+
+
+# ---------------------------------------------------------------------------
+# envelope-power index (sEPSM) in the sweep
+# ---------------------------------------------------------------------------
+
+#: Jørgensen & Dau 2011 (JASA 130(3):1475-1487), Fig. 6 reference condition: SRT of CLUE
+#: sentences in stationary speech-shaped noise, unprocessed, about -3.5 dB SNR (long-term
+#: levels). From memory (the paper could not be checked here): used only with a wide
+#: tolerance, since the model's k was fitted to CLUE sentences and this test speaks
+#: synthetic sentences.
+PAPER_SRT_DB = -3.5
+
+
+@pytest.fixture(scope="module")
+def demo_sentence():
+    from envpredict._data import demo_dir
+    from signals_for_tests import speech_shaped_noise
+
+    x, fs = sf.read(demo_dir() / "corpus" / "s01_clean.wav")
+    return x, np.concatenate([speech_shaped_noise(x, 2), speech_shaped_noise(x, 3)]), fs
+
+
+def _ideal_observer_by_hand(snr_env_db, k=1.2 ** 0.5, q=0.5, sigma_s=0.6, m=8000):
+    """Green & Birdsall's m-alternative observer written out (Jørgensen & Dau 2011, eqs. 8-10)."""
+    u = stats.norm.ppf(1 - 1 / m)
+    mu, sn = u + 0.577 / u, 1.28255 / u
+    return 100 * stats.norm.cdf((k * (10 ** (np.asarray(snr_env_db) / 10)) ** q - mu) / np.hypot(sigma_s, sn))
+
+
+def test_sweep_sepsm_srt_is_where_the_ideal_observer_crosses_50(demo_sentence):
+    # the sweep's SNR_env per SNR equals the index of the mixture and the scaled noise
+    # segment (envpower.sepsm, mixed here by hand at the long-term SNR); the SRT is where
+    # the observer's percent correct, linear in SNR_env dB between the swept SNRs, crosses 50 %
+    from envpredict.envpower import sepsm
+
+    x, noise, fs = demo_sentence
+    snrs = np.arange(-12.0, 4.0, 3.0)
+    res = snr_sweep(x, noise, fs, snr_db=snrs, index="sepsm", n_segments=1, snr_reference="long-term")
+    seg = noise[: x.size]
+    for i in (0, 3):
+        nz = seg * math.sqrt(np.mean(x ** 2) / np.mean(seg ** 2) / 10 ** (snrs[i] / 10))
+        assert res.index[i] == pytest.approx(sepsm(x + nz, nz, fs).snr_env_db, abs=1e-9)
+    assert res.predicted_percent == pytest.approx(_ideal_observer_by_hand(res.index), abs=1e-6)
+    # the SNR_env the observer needs for 50 %: d' = mu_N, SNR_env = (mu_N / k)^(1/q)
+    u = stats.norm.ppf(1 - 1 / 8000)
+    x50 = 10 * math.log10(((u + 0.577 / u) / 1.2 ** 0.5) ** 2)
+    assert res.targets[0].index == pytest.approx(x50, abs=1e-9)
+    i = int(np.flatnonzero(res.index >= x50)[0]) - 1
+    by_hand = snrs[i] + (x50 - res.index[i]) * 3.0 / (res.index[i + 1] - res.index[i])
+    assert res.srt_db == pytest.approx(by_hand, abs=1e-9)
+    d = res.to_dict()
+    assert d["index"] == "sepsm" and d["srt_db"] == pytest.approx(res.srt_db)
+    assert d["sepsm"]["snr_env_db"] == pytest.approx(np.round(res.index, 3))
+    assert np.asarray(d["sepsm"]["band_snr_env_db"]).shape == (snrs.size, len(d["sepsm"]["bands_hz"]))
+    assert d["mapping"]["kind"] == "ideal observer"
+    assert any("specific to that material" in n for n in d["notes"])
+    # near the paper's SRT for unprocessed sentences in speech-shaped noise (from memory;
+    # 3 dB: the synthetic talker is not the CLUE material the observer was fitted to)
+    assert abs(res.srt_db - PAPER_SRT_DB) < 3.0, res.srt_db
+
+
+def _spectral_subtraction(alpha: float, speech_power: float, noise_shape: np.ndarray, nper: int = 512):
+    """Power spectral subtraction with over-subtraction factor ``alpha`` (Berouti, Schwartz
+    & Makhoul 1979, ICASSP): |S|^2 = max(|Y|^2 - alpha |N|^2, 0), |N|^2 the noise's
+    long-term power spectrum (its shape known, its level the input's mean power minus the
+    speech's: the oracle noise estimate of Jørgensen & Dau 2011's simulation)."""
+    from scipy.signal import istft, stft
+
+    def chain(y, fs):
+        _, _, spec = stft(y, fs, nperseg=nper)
+        pn = noise_shape * max(float(np.mean(y ** 2)) - speech_power, 1e-12)
+        py = np.abs(spec) ** 2
+        ps = np.maximum(py - alpha * pn, 0.0)
+        return istft(spec * np.sqrt(ps / np.maximum(py, 1e-30)), fs, nperseg=nper)[1][: y.size]
+
+    return chain
+
+
+def test_spectral_subtraction_raises_the_sepsm_srt_while_the_speech_based_sti_rises(demo_sentence):
+    # Jørgensen & Dau 2011: listeners' SRT rises with the over-subtraction factor and the
+    # sEPSM follows, while the STI family predicts a benefit. The processed noise alone
+    # comes from phase inversion inside the sweep. Here, on a synthetic sentence with the
+    # oracle noise estimate: the predicted SRT rises over alpha = 1 -> 4 and lies above the
+    # unprocessed one at alpha = 4, while the normalised-covariance speech-based STI is
+    # higher than unprocessed at the SNRs below the unprocessed SRT (-12 to -6 dB; above
+    # them the two are within 0.02 and the chain's speech loss shows). (Not asserted, because it does not
+    # hold here: at alpha <= 1 the sEPSM predicts a small benefit, where the paper
+    # reports the SRT rising already from 0.5, from memory.)
+    from scipy.signal import stft
+
+    x, noise, fs = demo_sentence
+    _, _, nn = stft(noise / np.sqrt(np.mean(noise ** 2)), fs, nperseg=512)
+    shape = np.mean(np.abs(nn) ** 2, axis=1, keepdims=True)
+    kw = {"n_segments": 1, "snr_reference": "long-term"}
+    low = [-12.0, -9.0, -6.0]  # below the unprocessed SRT, where the chain is judged
+    srt, ssti = {}, {}
+    for alpha in (None, 1.0, 4.0):
+        chain = None if alpha is None else _spectral_subtraction(alpha, float(np.mean(x ** 2)), shape)
+        res = snr_sweep(x, noise, fs, index="sepsm", process=chain, snr_db=np.arange(-12.0, 1.0, 3.0), **kw)
+        srt[alpha] = res.srt_db
+        ssti[alpha] = snr_sweep(x, noise, fs, index="ssti", process=chain, snr_db=low, **kw).index
+        if alpha is not None:
+            assert any("phase inversion" in n for n in res.notes)
+    assert srt[None] is not None and srt[1.0] is not None and srt[4.0] is not None, srt
+    assert srt[4.0] > srt[1.0] + 1.0 and srt[4.0] > srt[None] + 1.0, srt
+    assert np.all(ssti[4.0] > ssti[None]), (ssti[4.0], ssti[None])
+
+
+def test_sweep_sepsm_refusals_and_files(tmp_path, demo_sentence, capsys):
+    x, noise, fs = demo_sentence
+    with pytest.raises(InputError, match="outside the range of the ideal observer"):
+        snr_sweep(x, noise, fs, index="sepsm", targets=[100.0])
+    with pytest.raises(ComputationError, match="noise alone .* is silent"):
+        # a chain that returns the same output for speech + noise and speech - noise
+        snr_sweep(x, noise, fs, snr_db=[0, 3], index="sepsm", n_segments=1, process=lambda y, f: np.ones_like(y))
+    sf.write(tmp_path / "c.wav", x, fs)
+    sf.write(tmp_path / "n.wav", noise, fs)
+    args = ["sweep", tmp_path / "c.wav", tmp_path / "n.wav", "--index", "sepsm", "--snr=-9:-3:3", "--segments", "1"]
+    code, out, err = run_cli(args + ["--target", "50", "--target", "80", "--json"], capsys)
+    assert code == 0, err
+    d = json.loads(out)
+    assert d["sepsm"]["snr_env_db"] and len(d["targets"]) == 2 and d["srt_db"] is not None
+    code, out, err = run_cli(args, capsys)
+    assert code == 0 and "Predicted SRT" in out, err
+
+
+def test_sweep_sepsm_through_a_linear_chain_equals_the_plain_sweep(demo_sentence):
+    # phase inversion is exact for a linear chain, and the envelope power is normalised
+    # by its DC (Jørgensen & Dau 2011, eq. 2), so a gain changes no SNR_env: the chain's
+    # predicted benefit is 0 dB
+    x, noise, fs = demo_sentence
+    kw = {"snr_db": [-9.0, -6.0, -3.0], "index": "sepsm", "n_segments": 1, "snr_reference": "long-term"}
+    plain = snr_sweep(x, noise, fs, **kw)
+    gained = snr_sweep(x, noise, fs, process=lambda y, f: 0.25 * y, **kw)
+    assert gained.index == pytest.approx(plain.index, abs=1e-6)
+    assert gained.srt_db == pytest.approx(plain.srt_db, abs=1e-6)

@@ -17,12 +17,23 @@ hall_noise.wav               the hall's background noise alone (16 kHz)
 corpus/                      eight short announcements, each dry ("clean"), through the hall
                              in noise ("unprocessed"), and after two invented noise-reduction
                              chains ("wiener", "gate"); corpus.csv is the batch manifest
+corpus/*_inverted.flac       each condition's output for the speech with the noise's polarity
+                             inverted (speech - noise), at the gain of its degraded file: the
+                             phase-inversion counterparts (Hagerman & Olofsson 2004) from which
+                             `envpredict batch` separates the processed noise for the
+                             envelope-power index (the manifest's "inverted" column)
+
+Run ``python tools/make_demo.py`` to write everything (needs espeak-ng), or
+``python tools/make_demo.py --inverted-only`` to write only the inverted counterparts and the
+manifest from the committed clean sentences (no speech synthesis; the committed files stay as
+they are).
 """
 
 from __future__ import annotations
 
 import json
 import subprocess
+import sys
 import tempfile
 from pathlib import Path
 
@@ -125,33 +136,45 @@ def stft_gain(mix, noise_only, fs, kind):
     return y[: mix.size]
 
 
-def corpus(ir, fs_ir, fs=16000):
+def corpus(ir, fs_ir, fs=16000, inverted_only=False):
+    """The corpus: clean, degraded and inverted files per sentence and condition, and the
+    manifest. ``inverted_only``: read the committed clean sentences instead of synthesising
+    them and write only the inverted counterparts and the manifest."""
     folder = OUT / "corpus"
     folder.mkdir(exist_ok=True)
-    for old in folder.glob("*.wav"):
-        old.unlink()
+    for old in folder.glob("*_inverted.flac" if inverted_only else "*.*"):
+        if old.suffix in (".wav", ".flac"):
+            old.unlink()
     ir16 = resample_poly(ir, fs, fs_ir)
     rows = []
     for i, text in enumerate(SENTENCES, start=1):
-        x = say(text, fs)
+        name = f"s{i:02d}"
+        x = sf.read(folder / f"{name}_clean.wav")[0] if inverted_only else say(text, fs)
         wet = fftconvolve(x, ir16)[: x.size]
         wet = wet / np.sqrt(np.mean(wet ** 2)) * np.sqrt(np.mean(x ** 2))
         nz = shaped_noise(x.size, fs, seed=100 + i) * np.sqrt(np.mean(wet ** 2)) * 10 ** (-3.0 / 20)
-        mix = wet + nz
-        versions = {"unprocessed": mix, "wiener": stft_gain(mix, nz, fs, "wiener"),
-                    "gate": stft_gain(mix, nz, fs, "gate")}
-        name = f"s{i:02d}"
-        sf.write(folder / f"{name}_clean.wav", x, fs, subtype="PCM_16")
-        for cond, y in versions.items():
-            y = 0.4 * y / np.max(np.abs(y))
-            sf.write(folder / f"{name}_{cond}.wav", y, fs, subtype="PCM_16")
-            rows.append(f"corpus/{name}_clean.wav,corpus/{name}_{cond}.wav,{cond},{name}")
-    (OUT / "corpus.csv").write_text("clean,degraded,condition,sentence\n" + "\n".join(rows) + "\n")
+        mix, inv = wet + nz, wet - nz
+        versions = {"unprocessed": (mix, inv),
+                    "wiener": (stft_gain(mix, nz, fs, "wiener"), stft_gain(inv, nz, fs, "wiener")),
+                    "gate": (stft_gain(mix, nz, fs, "gate"), stft_gain(inv, nz, fs, "gate"))}
+        if not inverted_only:
+            sf.write(folder / f"{name}_clean.wav", x, fs, subtype="PCM_16")
+        for cond, (y, y_inv) in versions.items():
+            gain = 0.4 / np.max(np.abs(y))  # the degraded file's gain, for both outputs of the chain
+            if not inverted_only:
+                sf.write(folder / f"{name}_{cond}.wav", gain * y, fs, subtype="PCM_16")
+            sf.write(folder / f"{name}_{cond}_inverted.flac", gain * y_inv, fs, subtype="PCM_16")
+            rows.append(f"corpus/{name}_clean.wav,corpus/{name}_{cond}.wav,{cond},{name},"
+                        f"corpus/{name}_{cond}_inverted.flac")
+    (OUT / "corpus.csv").write_text("clean,degraded,condition,sentence,inverted\n" + "\n".join(rows) + "\n")
 
 
 def main():
     OUT.mkdir(exist_ok=True)
     ir, fs_ir = hall_ir()
+    if "--inverted-only" in sys.argv[1:]:
+        corpus(ir, fs_ir, inverted_only=True)
+        return
     sf.write(OUT / "waiting_hall_ir.wav", ir, fs_ir, subtype="PCM_24")
     x, fs = speech()
     sf.write(OUT / "announcement_clean.wav", x, fs, subtype="PCM_16")

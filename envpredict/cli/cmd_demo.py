@@ -47,7 +47,8 @@ def render_demo(out: dict) -> str:
         f"  envpredict ir {folder / sc['ir']} --noise {noise} --speech-level {sc['speech_level_dba']:g} "
         "--report hall_report",
         f"  envpredict batch {folder / 'corpus.csv'} --out demo_results.csv",
-        "  envpredict compare demo_results.csv --by condition --baseline unprocessed --pair-on sentence",
+        "  envpredict compare demo_results.csv --by condition --baseline unprocessed --pair-on sentence "
+        "--index stoi,ssti,sepsm_snr_env_db",
         f"  envpredict sweep {folder / sc['clean']} {folder / sc['noise']} --snr=-15:6:3",
         f"  envpredict design {folder / 'design_hall.json'} --report hall_design   (design-stage prediction)",
         "  envpredict check        (the reference-case library)",

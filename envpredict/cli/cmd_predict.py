@@ -134,10 +134,14 @@ def render_sweep(d: dict) -> str:
                      f"{100 * d['activity_factor']:.1f} % (ITU-T P.56 method B)")
     lines.append("")
     mapped = d["predicted_percent"] is not None
-    head = ["SNR dB", d["index"], "sd"] + (["sd sentences"] if many else []) + (["predicted %"] if mapped else [])
+    # the envelope-power index is an object (its SNR_env in dB per SNR), the others a list
+    obj = isinstance(d[d["index"]], dict)
+    values = d[d["index"]]["snr_env_db"] if obj else d[d["index"]]
+    head = ["SNR dB", "SNR_env dB" if obj else d["index"], "sd"] + (["sd sentences"] if many else []) + \
+        (["predicted %"] if mapped else [])
     rows = []
     for i, s in enumerate(d["snr_db"]):
-        r = [f"{s:g}", fmt(d[d["index"]][i], ".3f"), fmt(d["index_sd"][i], ".3f")]
+        r = [f"{s:g}", fmt(values[i], ".3f"), fmt(d["index_sd"][i], ".3f")]
         if many:
             r.append(fmt(d["sentence_sd"][i], ".3f"))
         if mapped:
@@ -153,7 +157,7 @@ def render_sweep(d: dict) -> str:
             mci = "—" if t["map_ci_low"] is None else f"{t['map_ci_low']:.1f} .. {t['map_ci_high']:.1f}"
             trows.append([f"{t['percent']:g} %", fmt(t["index_value"], ".3f"), fmt(t["snr_db"], ".1f"), ci, mci,
                           fmt(t["slope_percent_per_db"], ".1f"), t["note"] or ""])
-        lines.append(table(trows, ["target", d["index"], "SNR dB", "noise segments", "mapping",
+        lines.append(table(trows, ["target", head[1], "SNR dB", "noise segments", "mapping",
                                    "slope %/dB", ""]))
         if many:
             def iv(t, key):
@@ -204,8 +208,10 @@ def sweep_command(
                                                          "is added (noise is taken as recorded at the listener)."),
     snr: str = typer.Option(_SNR_RANGE, "--snr", help="SNRs to sweep, FROM:TO:STEP in dB (write --snr=-20:10:2 "
                                                       "when FROM is negative)."),
-    index: str | None = typer.Option(None, "--index", help="Index: stoi, estoi, ssti or ssti_regression. Default: the "
-                                                              "mapping's index, or stoi without a mapping."),
+    index: str | None = typer.Option(None, "--index", help="Index: stoi, estoi, ssti, ssti_regression or sepsm "
+                                                              "(envelope power; SNR_env in dB, scored by its ideal "
+                                                              "observer without --map). Default: the mapping's "
+                                                              "index, or stoi without a mapping."),
     map_file: Path | None = typer.Option(None, "--map", help="Mapping (MAP.json from fitmap, or a built-in "
                                                                 f"published one: {_BUILTIN_MAPS}) for predicted "
                                                                 "scores and target SNRs. A MAP.json fitted with "
