@@ -242,6 +242,17 @@ class EarsResult:
                                 "ear's alone.")
         notes.insert(0, f"Two ears: channel 0 = left, channel 1 = right. {self._binaural()['rule']}. "
                         f"Source: {BETTER_EAR_SOURCE}.")
+        key = "ssti" if self.kind == "pair" else "sti"
+        combined = self.ssti if self.kind == "pair" else self.better.sti
+        ears = {e: getattr(r, "ssti", None) if self.kind == "pair" else r.sti.sti
+                for e, r in self.ears.items() if r is not None}
+        lower = {e: v for e, v in ears.items() if v is not None and combined is not None and combined < v - 1e-12}
+        if lower:
+            e, v = max(lower.items(), key=lambda kv: kv[1])
+            notes.insert(1, f"The better-ear {key} ({combined:.4f}) is below the {e} ear's own ({v:.4f}): the "
+                            "redundancy term of IEC 60268-16:2011 (A.2.6, minus beta_k sqrt(MTI_k MTI_k+1)) "
+                            "grows when a band beside a weak band rises, so raising a weak band a little can lower "
+                            "the index. The rule is kept as published.")
         return cautions, notes
 
     def to_dict(self) -> dict:
@@ -430,7 +441,7 @@ def stipa_file_ears(path: str | os.PathLike, **options: Any) -> EarsResult:
 def _no_channel(options: dict) -> None:
     for k in ("channel", "clean_channel", "degraded_channel"):
         if options.get(k) is not None:
-            raise InputError(f"a channel ({k.replace('_', '-')}) was given with the two-ear analysis",
+            raise InputError(f"--{k.replace('_', '-')} was given with the two-ear analysis (--ears)",
                              "leave it out: the ears are channel 0 (left) and 1 (right)")
         options.pop(k, None)
 

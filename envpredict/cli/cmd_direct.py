@@ -11,6 +11,7 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
+from ._ears import EARS_HELP, render_ears_sti
 from ._common import (
     JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, Progress, check_report, emit, fmt, format_sti,
     table, write_report_if,
@@ -167,6 +168,7 @@ def stipa_command(
         "states whether it is met, judged on the unrounded value.", show_default=False),
     record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
     record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
+    ears: bool = typer.Option(False, "--ears", help=EARS_HELP),
 ) -> None:
     """STI from a recording of the STIPA test signal (IEC 60268-16 direct method, Annex B).
     The file is read in blocks, so recordings of an hour or more (up to 2 h) are analysed in
@@ -176,17 +178,25 @@ def stipa_command(
 
     about = read_about(record, record_field or ())
     check_report(report)
+    opts = dict(calibration_db=calibration_db, calibrator=calibrator, calibrator_level=calibrator_level,
+                calibrator_channel=calibrator_channel, noise_db=noise, talker=talker, requirement=require)
     # steps: the blocks of both passes over the file, then the modulation depths
     with Progress("analysing STIPA recording", None, quiet=as_json) as prog:
-        result = stipa_from_file(recording, channel, calibration_db=calibration_db, calibrator=calibrator,
-                                 calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
-                                 noise_db=noise, talker=talker, progress=prog, requirement=require)
+        if ears:
+            from envpredict.binaural import stipa_file_ears
+
+            result = stipa_file_ears(recording, channel=channel, progress=prog, **opts)
+        else:
+            result = stipa_from_file(recording, channel, progress=prog, **opts)
     d = result.to_dict()
     d["inputs"] = {"recording": str(recording), "channel": channel, **_calibration_inputs(
         calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker,
         "require": require, "about": about}
-    write_report_if(report, "stipa", d, as_json=as_json, title=f"STIPA: {recording.name}")
-    emit(d, lambda: render_direct(d), as_json, out)
+    if ears:
+        d["inputs"]["ears"] = True
+    write_report_if(report, "stipa", d, as_json=as_json,
+                    title=f"STIPA{' of two ears' if ears else ''}: {recording.name}")
+    emit(d, lambda: render_ears_sti(d, str(recording)) if ears else render_direct(d), as_json, out)
 
 
 def _calibration_inputs(calibration_db, calibrator, calibrator_level, calibrator_channel) -> dict:
