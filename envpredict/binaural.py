@@ -203,11 +203,19 @@ class EarsResult:
             "mti_difference": np.round(diff, 4),
             "errors": {e: msg for e, msg in zip(EARS, self.errors)},
         }
+        out.update({k: None if v is None else round(v, 4) for k, v in self.ear_indices.items()})
+        return out
+
+    @property
+    def ear_indices(self) -> dict[str, float | None]:
+        """Each ear's index, unrounded: ``sti_left``, ``sti_right`` (STI kinds) or
+        ``stoi_left`` ... ``ssti_right`` (pair); ``None`` where an ear has none."""
         index = ("stoi", "estoi", "ssti") if self.kind == "pair" else ("sti",)
+        out: dict[str, float | None] = {}
         for ear, r in self.ears.items():
             for k in index:
                 v = None if r is None else (r.sti.sti if k == "sti" else getattr(r, k))
-                out[f"{k}_{ear}"] = None if v is None else round(float(v), 4)
+                out[f"{k}_{ear}"] = None if v is None else float(v)
         return out
 
     def _cautions_notes(self, dicts: dict) -> tuple[list, list]:

@@ -81,14 +81,21 @@ PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression
 #: Pair rows with an ``inverted`` file: the envelope-power index's SNR_env, dB (the
 #: ``snr_env_db`` of the pair's ``sepsm``).
 SEPSM_INDEX_COLUMNS: tuple[str, ...] = ("sepsm_snr_env_db",)
+#: Two-ear rows (``batch --ears``): each ear's index beside the better-ear one (the index
+#: columns above then hold the better ear's value; see :mod:`envpredict.binaural`).
+EARS_STI_COLUMNS: tuple[str, ...] = ("sti_left", "sti_right")
+EARS_PAIR_COLUMNS: tuple[str, ...] = ("stoi_left", "stoi_right", "estoi_left", "estoi_right", "ssti_left",
+                                      "ssti_right")
 #: Index columns holding text, not numbers.
 TEXT_INDEX_COLUMNS: tuple[str, ...] = ("rating", "delay_from")
 #: Index columns holding numbers (all except the rating letter and the delay's origin).
 NUMERIC_INDEX_COLUMNS: tuple[str, ...] = tuple(
-    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS + SEPSM_INDEX_COLUMNS if c not in TEXT_INDEX_COLUMNS
+    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS + SEPSM_INDEX_COLUMNS + EARS_STI_COLUMNS + EARS_PAIR_COLUMNS
+    if c not in TEXT_INDEX_COLUMNS
 )
 RESULT_COLUMNS: frozenset[str] = frozenset(
     (ROW_COLUMN, NOTES_COLUMN, ERROR_COLUMN) + IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS + SEPSM_INDEX_COLUMNS
+    + EARS_STI_COLUMNS + EARS_PAIR_COLUMNS
 )
 #: Result columns a manifest may hold as an option column (its cell, where given, is the
 #: value the row uses, and the results file shows the value used in that one column).

@@ -65,6 +65,12 @@ def render_summary(d: dict) -> str:
     return "\n".join(lines)
 
 
+EARS_HELP = ("Two ears: every file is a two-channel recording, channel 0 the left ear and channel 1 the right "
+             "(a pair's clean file may be mono). The index columns hold the better ear's value (the larger "
+             "MTI per octave band; STOI and ESTOI: the larger of the ears'), and each ear's is added "
+             "(sti_left, sti_right, stoi_left, ...). IR rows then have no decay columns.")
+
+
 @app.command("batch")
 def batch_command(
     manifest: Path = typer.Argument(..., help=MANIFEST_HELP, show_default=False),
@@ -82,6 +88,7 @@ def batch_command(
     condition_column: Optional[str] = typer.Option(None, "--condition-column", help=CONDITION_HELP),
     delay_per_row: bool = typer.Option(False, "--delay-per-row", help=PER_ROW_HELP),
     delay_ms: Optional[float] = typer.Option(None, "--delay-ms", help=DELAY_MS_HELP),
+    ears: bool = typer.Option(False, "--ears", help=EARS_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
 ) -> None:
     """Score every row of a manifest (STOI/ESTOI/speech-based STI for pairs, STI and T30/EDT for IRs).
@@ -94,7 +101,7 @@ def batch_command(
     """
     from envpredict.batch import Alignment, read_manifest, run_batch
 
-    m = read_manifest(manifest, noise_db=noise, speech_level_dba=speech_level, talker=talker)
+    m = read_manifest(manifest, noise_db=noise, speech_level_dba=speech_level, talker=talker, ears=ears)
     alignment = Alignment(align=not no_align, max_delay_s=max_delay, condition_column=condition_column,
                           per_row=delay_per_row, fixed_delay_ms=delay_ms).check(m)
     if scheduler is not None and workers is not None:
@@ -127,6 +134,8 @@ def batch_command(
                    "speech_level_dba": speech_level, "talker": talker, "align": not no_align,
                    "max_delay_s": max_delay, "condition_column": condition_column, "delay_per_row": delay_per_row,
                    "delay_ms": delay_ms}
+    if ears:
+        d["inputs"]["ears"] = True
     emit(d, lambda: render_summary(d), as_json, None)
     if summary.failed:
         note(f"error: {summary.failed} of {summary.total} rows failed — see the 'error' column of {out}; "
