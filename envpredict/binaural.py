@@ -268,7 +268,6 @@ class EarsResult:
         cautions, notes = self._cautions_notes(dicts)
         if self.kind == "pair":
             d: dict = {
-                "index": "stoi",
                 "stoi": None if self.stoi is None else round(self.stoi, 4),
                 "estoi": None if self.estoi is None else round(self.estoi, 4),
                 "ssti": None if self.ssti is None else round(self.ssti, 4),

@@ -54,7 +54,7 @@ MODULES = (
     "decay", "correlation", "pitch", "signals", "tables", "mapping", "indirect", "direct", "pair",
     "timescales", "sweep", "stats", "batch", "refcases", "demo", "report", "checks", "labels", "sinesweep",
     "deconvolve", "survey",
-    "envpower", "speechlevel", "stimuli", "roommodel", "design",
+    "envpower", "speechlevel", "stimuli", "roommodel", "design", "binaural",
 )
 
 EXAMPLE_SECONDS = 30  # one example longer than this is a hang (a huge length accepted)
@@ -131,10 +131,13 @@ def build_fixture_folder(d: Path) -> Path:
     _write_wav(d / "ir.wav", ir_array(48000, 1.2, 0.6, 1), 48000)
     _write_wav(d / "ir_stereo.wav", np.stack([ir_array(48000, 1.2, 0.6, 1)] * 2, axis=1), 48000)
     _write_wav(d / "stipa.wav", stipa_recording(24000, 16.0), 24000)
+    _write_wav(d / "stipa_stereo.wav", np.stack([stipa_recording(24000, 16.0)] * 2, axis=1), 24000)
     _write_wav(d / "clean.wav", speech(16000, 2.0, 1), 16000)
     _write_wav(d / "degraded.wav", speech(16000, 2.0, 1) + 0.003 * np.random.default_rng(2).standard_normal(32000),
                16000)
     _write_wav(d / "speech.wav", speech(16000, 3.0, 2), 16000)
+    _write_wav(d / "degraded_stereo.wav", np.stack([speech(16000, 2.0, 1), 0.5 * speech(16000, 2.0, 1)], axis=1),
+               16000)
     _write_wav(d / "noise.wav", 0.05 * np.random.default_rng(3).standard_normal(16000 * 12), 16000)
     _write_wav(d / "calibrator.wav", 0.5 * np.sin(2 * np.pi * 1000 * np.arange(96000) / 48000), 48000)
     _write_wav(d / "silent.wav", np.zeros(48000), 48000)
@@ -755,6 +758,46 @@ case("pair.pair_indices", pair=_PAIR, fs=J("ok"), align=st.booleans(), max_delay
      bad_={"pair": BAD_ARRAY, "fs": BAD_RATE}, examples_=8)
 case("pair.pair_from_files", clean_path=S(P("clean.wav")), degraded_path=S(P("degraded.wav"), P("clean.wav")),
      align=st.booleans(), examples_=6)
+# --- binaural (two ears) -------------------------------------------------------------
+
+
+def _ears_call(fn, kw):
+    """``fn(left, right, fs, ...)`` from one drawn signal (the right ear a scaled copy); a
+    spoiled ``x`` is used as both ears, or the right ear cut short (different lengths)."""
+    x, fs = kw.pop("x"), kw.pop("fs")
+    if isinstance(x, np.ndarray) and x.ndim == 1 and x.size > 10 and kw.pop("cut", False):
+        return fn(x, 0.5 * x[:-7], fs, **kw)
+    kw.pop("cut", None)
+    return fn(x, 0.5 * x if isinstance(x, np.ndarray) else x, fs, **kw)
+
+
+def _pair_ears_call(fn, kw):
+    p, fs = kw.pop("pair"), kw.pop("fs")
+    if isinstance(p, tuple):
+        return fn(p[0], p[1], 0.7 * p[1], p[2] if fs == "ok" else fs, **kw)
+    return fn(p, p, p, 16000 if fs == "ok" else fs, **kw)
+
+
+_STI_RESULT = st.builds(lambda m: __import__("envpredict").sti_from_mtf(np.full((7, 14), m)), st.floats(0.0, 1.0))
+case("binaural.better_ear_bands", left=st.lists(st.floats(0, 1), min_size=7, max_size=7),
+     right=st.lists(st.floats(0, 1), min_size=7, max_size=7))
+case("binaural.better_ear_sti", left=_STI_RESULT, right=_STI_RESULT,
+     bad_={"left": S(None, 3, "x", np.zeros(7)), "right": S(None, 3, "x", np.zeros(7))})
+case("binaural.check_ears", left=st.builds(lambda n: np.ones(n), st.integers(1, 50)),
+     right=st.builds(lambda n: np.ones(n), st.integers(1, 50)), share_=0.0)
+case("binaural.two_channels", path=S(P("ir_stereo.wav"), P("ir.wav")), name=S("recording"), share_=0.3)
+case("binaural.ir_ears", x=scaled(IR), fs=J(48000), cut=st.booleans(), call_=_ears_call, share_=0.3, examples_=6,
+     bad_={"fs": S(0, -1, NAN, 1e12, "x", None, 16000), "cut": None})
+case("binaural.ir_file_ears", path=S(P("ir_stereo.wav"), P("ir.wav")), speech_level_dba=st.floats(50, 80),
+     share_=0.3, examples_=5)
+case("binaural.stipa_ears", x=st.builds(stipa_recording, J(24000), J(16.0)), fs=J(24000), cut=st.booleans(),
+     call_=_ears_call, share_=0.3, examples_=4, bad_={"fs": S(0, NAN, 1e12, "x", None), "cut": None})
+case("binaural.stipa_file_ears", path=S(P("stipa_stereo.wav"), P("stipa.wav")), share_=0.3, examples_=3)
+case("binaural.pair_ears", pair=_PAIR, fs=J("ok"), align=st.booleans(), call_=_pair_ears_call,
+     bad_={"pair": BAD_ARRAY, "fs": BAD_RATE}, share_=0.3, examples_=5)
+case("binaural.pair_file_ears", clean_path=S(P("clean.wav")), degraded_path=S(P("degraded_stereo.wav"),
+                                                                             P("degraded.wav")),
+     align=st.booleans(), share_=0.3, examples_=4)
 case("timescales.usable_bands", fs=S(8000, 16000, 44100, 48000))
 case("timescales.modulation_band_edges")
 _ENV1 = st.builds(lambda s, n: 1 + 0.5 * np.cos(2 * np.pi * 4 * np.arange(n) / 100.0)

@@ -14,7 +14,8 @@ LAYERS: tuple[str, ...] = (
     "standards", "exceptions", "checks", "results", "labels", "outputs", "_data",
     "bands", "audio", "speechlevel", "modulation", "sti", "roommodel", "cautions", "decay", "correlation", "envpower",
     "pitch", "signals", "sinesweep", "deconvolve", "tables", "mapping",
-    "indirect", "design", "direct", "pair", "binaural", "timescales", "sweep", "stimuli", "stats", "batch", "survey", "refcases",
+    "indirect", "design", "direct", "pair", "binaural", "timescales", "sweep", "stimuli", "stats", "batch", "survey",
+    "refcases",
     "demo",
     "report", "predict",
 )
