@@ -502,9 +502,9 @@ def _score_ir(job: dict) -> dict:
               talker=job.get("talker", std.DEFAULT_TALKER), speech_db=levels,
               noise_recording=noise_rec, calibration_db=job.get("calibration_db") if noise_rec else None)
     if job.get("ears"):
-        from .binaural import ir_file_ears
+        from .binaural import ir_ears_file
 
-        return _ears_values(ir_file_ears(job["ir"], **kw))
+        return _ears_values(ir_ears_file(job["ir"], **kw))
     r = sti_from_ir_file(job["ir"], channel=job.get("channel"), **kw)
     values = {
         "sti": float(r.sti.sti),
@@ -544,9 +544,9 @@ def _score_stipa(job: dict) -> dict:
     from .direct import stipa_from_file
 
     if job.get("ears"):
-        from .binaural import stipa_file_ears
+        from .binaural import stipa_ears_file
 
-        return _ears_values(stipa_file_ears(job["stipa"], calibration_db=job.get("calibration_db"),
+        return _ears_values(stipa_ears_file(job["stipa"], calibration_db=job.get("calibration_db"),
                                             talker=job.get("talker", std.DEFAULT_TALKER)))
     r = stipa_from_file(job["stipa"], channel=job.get("channel"), calibration_db=job.get("calibration_db"),
                         talker=job.get("talker", std.DEFAULT_TALKER))
@@ -560,9 +560,9 @@ def _score_pair(job: dict) -> dict:
     kw = dict(align=job.get("align", True), max_delay_s=job.get("max_delay_s", std.PAIR_MAX_DELAY_S),
               delay_s=None if delay_ms is None else delay_ms / 1000.0, inverted_path=job.get("inverted"))
     if job.get("ears"):
-        from .binaural import pair_file_ears
+        from .binaural import pair_ears_file
 
-        e = pair_file_ears(job["clean"], job["degraded"], **kw)
+        e = pair_ears_file(job["clean"], job["degraded"], **kw)
         values = _pair_values(job, e.left or e.right)
         values.update({"stoi": e.stoi, "estoi": e.estoi, "ssti": e.ssti, "ssti_regression": e.ssti_regression,
                        **e.ear_indices})

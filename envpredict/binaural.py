@@ -380,7 +380,7 @@ def ir_ears(left: np.ndarray, right: np.ndarray, fs: int, **options: Any) -> Ear
     return _sti_ears("ir", results, errors)
 
 
-def ir_file_ears(path: str | os.PathLike, **options: Any) -> EarsResult:
+def ir_ears_file(path: str | os.PathLike, **options: Any) -> EarsResult:
     """STI (indirect method) of a two-channel impulse-response file (channel 0 left,
     channel 1 right): each ear by :func:`envpredict.indirect.sti_from_ir_file` with the
     same ``options`` (any but ``channel``), then the better ear per octave band.
@@ -421,7 +421,7 @@ def stipa_ears(left: np.ndarray, right: np.ndarray, fs: int, **options: Any) -> 
     return _sti_ears("stipa", results, errors)
 
 
-def stipa_file_ears(path: str | os.PathLike, **options: Any) -> EarsResult:
+def stipa_ears_file(path: str | os.PathLike, **options: Any) -> EarsResult:
     """STI (direct method, STIPA) of a two-channel recording file (channel 0 left,
     channel 1 right), each ear by :func:`envpredict.direct.stipa_from_file` (read in
     blocks), then the better ear per octave band. A calibrator recording, if given,
@@ -508,7 +508,7 @@ def pair_ears(clean: np.ndarray | tuple[np.ndarray, np.ndarray], left: np.ndarra
     return _pair_ears(results, errors)
 
 
-def pair_file_ears(clean_path: str | os.PathLike, degraded_path: str | os.PathLike, **options: Any) -> EarsResult:
+def pair_ears_file(clean_path: str | os.PathLike, degraded_path: str | os.PathLike, **options: Any) -> EarsResult:
     """:func:`pair_ears` of files: a two-channel degraded file (channel 0 left, 1 right)
     against a mono clean reference, or a two-channel one (each ear its own reference),
     each ear by :func:`envpredict.pair.pair_from_files` with the same ``options`` (any but

@@ -27,9 +27,9 @@ from envpredict.binaural import (
     better_ear_bands,
     better_ear_sti,
     ir_ears,
-    ir_file_ears,
+    ir_ears_file,
     pair_ears,
-    pair_file_ears,
+    pair_ears_file,
     stipa_ears,
 )
 from envpredict.exceptions import InputError
@@ -165,14 +165,14 @@ def test_channels_of_different_lengths_are_refused(irs):
 def test_a_file_ear_is_the_one_channel_analysis_of_its_channel(irs, write_wav):
     a, b = irs
     p = write_wav("lr.wav", np.stack([a, b], axis=1), FS, "FLOAT")
-    two = ir_file_ears(p, noise_db=[40] * 7)
+    two = ir_ears_file(p, noise_db=[40] * 7)
     for ch, ear in enumerate(("left", "right")):
         assert two.ears[ear].sti.sti == sti_from_ir_file(p, channel=ch, noise_db=[40] * 7).sti.sti
     assert two.better.sti == pytest.approx(_iec_sti(np.maximum(two.mti_left, two.mti_right)), abs=1e-12)
     with pytest.raises(InputError):
-        ir_file_ears(p, channel=0)
+        ir_ears_file(p, channel=0)
     with pytest.raises(InputError):
-        ir_file_ears(write_wav("mono.wav", a, FS, "FLOAT"))
+        ir_ears_file(write_wav("mono.wav", a, FS, "FLOAT"))
 
 
 # ---------------------------------------------------------------------------
@@ -305,14 +305,14 @@ def test_batch_ears(irs, speech, write_wav, tmp_path, capsys):
                          capsys)
     rows = list(csv.DictReader((tmp_path / "o.csv").open()))
     assert code == 1 and "t30_mid" not in rows[0]
-    e = ir_file_ears(tmp_path / "lr.wav")
+    e = ir_ears_file(tmp_path / "lr.wav")
     assert float(rows[0]["sti"]) == e.better.sti and float(rows[0]["sti_right"]) == e.right.sti.sti
     assert "two-channel" in rows[1]["error"]
     (tmp_path / "p.csv").write_text("clean,degraded\nc.wav,d.wav\n")
     code, _, _ = run_cli(["batch", tmp_path / "p.csv", "--out", tmp_path / "po.csv", "--ears", "--workers", "1",
                           "--delay-per-row"], capsys)
     row = next(csv.DictReader((tmp_path / "po.csv").open()))
-    pe = pair_file_ears(tmp_path / "c.wav", tmp_path / "d.wav")
+    pe = pair_ears_file(tmp_path / "c.wav", tmp_path / "d.wav")
     assert code == 0 and float(row["stoi"]) == pe.stoi and float(row["stoi_right"]) == pe.right.stoi
     assert float(row["stoi"]) == max(float(row["stoi_left"]), float(row["stoi_right"]))
     # a channel column contradicts --ears

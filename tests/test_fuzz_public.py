@@ -788,14 +788,14 @@ case("binaural.check_ears", left=st.builds(lambda n: np.ones(n), st.integers(1, 
 case("binaural.two_channels", path=S(P("ir_stereo.wav"), P("ir.wav")), name=S("recording"), share_=0.3)
 case("binaural.ir_ears", x=scaled(IR), fs=J(48000), cut=st.booleans(), call_=_ears_call, share_=0.3, examples_=6,
      bad_={"fs": S(0, -1, NAN, 1e12, "x", None, 16000), "cut": None})
-case("binaural.ir_file_ears", path=S(P("ir_stereo.wav"), P("ir.wav")), speech_level_dba=st.floats(50, 80),
+case("binaural.ir_ears_file", path=S(P("ir_stereo.wav"), P("ir.wav")), speech_level_dba=st.floats(50, 80),
      share_=0.3, examples_=5)
 case("binaural.stipa_ears", x=st.builds(stipa_recording, J(24000), J(16.0)), fs=J(24000), cut=st.booleans(),
      call_=_ears_call, share_=0.3, examples_=4, bad_={"fs": S(0, NAN, 1e12, "x", None), "cut": None})
-case("binaural.stipa_file_ears", path=S(P("stipa_stereo.wav"), P("stipa.wav")), share_=0.3, examples_=3)
+case("binaural.stipa_ears_file", path=S(P("stipa_stereo.wav"), P("stipa.wav")), share_=0.3, examples_=3)
 case("binaural.pair_ears", pair=_PAIR, fs=J("ok"), align=st.booleans(), call_=_pair_ears_call,
      bad_={"pair": BAD_ARRAY, "fs": BAD_RATE}, share_=0.3, examples_=5)
-case("binaural.pair_file_ears", clean_path=S(P("clean.wav")), degraded_path=S(P("degraded_stereo.wav"),
+case("binaural.pair_ears_file", clean_path=S(P("clean.wav")), degraded_path=S(P("degraded_stereo.wav"),
                                                                              P("degraded.wav")),
      align=st.booleans(), share_=0.3, examples_=4)
 case("timescales.usable_bands", fs=S(8000, 16000, 44100, 48000))

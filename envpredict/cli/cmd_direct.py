@@ -183,9 +183,9 @@ def stipa_command(
     # steps: the blocks of both passes over the file, then the modulation depths
     with Progress("analysing STIPA recording", None, quiet=as_json) as prog:
         if ears:
-            from envpredict.binaural import stipa_file_ears
+            from envpredict.binaural import stipa_ears_file
 
-            result = stipa_file_ears(recording, channel=channel, progress=prog, **opts)
+            result = stipa_ears_file(recording, channel=channel, progress=prog, **opts)
         else:
             result = stipa_from_file(recording, channel, progress=prog, **opts)
     d = result.to_dict()

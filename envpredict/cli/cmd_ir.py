@@ -127,7 +127,7 @@ def ir_command(
     about = read_about(record, record_field or ())
     check_outputs(out=out, report=report, inputs=[p for p in (ir_file, noise_recording, calibrator, sweep) if p])
     if ears:
-        from envpredict.binaural import ir_file_ears as analyse
+        from envpredict.binaural import ir_ears_file as analyse
     else:
         analyse = sti_from_ir_file
     with Progress("analysing impulse response", None, quiet=as_json) as prog:

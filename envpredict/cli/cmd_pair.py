@@ -116,7 +116,7 @@ def pair_command(
     # before the (slower) audio work
     check_outputs(out=out, report=report, inputs=[clean, degraded] + [p for p in (noise, inverted) if p])
     if ears:
-        from envpredict.binaural import pair_file_ears as analyse
+        from envpredict.binaural import pair_ears_file as analyse
     else:
         analyse = pair_from_files
     with Progress("analysing pair", None, quiet=as_json) as prog:
