@@ -250,7 +250,7 @@ class EarsResult:
                                 "ear's alone.")
         notes.insert(0, f"Two ears: channel 0 = left, channel 1 = right. {self._binaural()['rule']}. "
                         f"Source: {BETTER_EAR_SOURCE}.")
-        key = "ssti" if self.kind == "pair" else "sti"
+        key = "speech-based STI" if self.kind == "pair" else "STI"
         combined = self.ssti if self.kind == "pair" else self.better.sti
         ears = {e: getattr(r, "ssti", None) if self.kind == "pair" else r.sti.sti
                 for e, r in self.ears.items() if r is not None}

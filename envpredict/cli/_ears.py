@@ -42,6 +42,11 @@ def render_ears_sti(d: dict, source: str) -> str:
         lines[-1:-1] = [f"Required: STI {d['requirement']:g} or more — "
                         f"{'met' if d['meets_requirement'] else 'NOT met'} (better ear)"]
     lines += _ear_rows(d, "MTI")
+    dec = {ear: (r or {}).get("decay") for ear, r in d["ears"].items()}
+    if any(dec.values()):
+        lines.append("Mid-frequency (mean of 500 Hz and 1 kHz, ISO 3382-1), each ear: " + "; ".join(
+            f"{ear} T30 {fmt(v['t30_mid'] if v else None)} s, EDT {fmt(v['edt_mid'] if v else None)} s"
+            for ear, v in dec.items()))
     return "\n".join(lines + _tail(d))
 
 
