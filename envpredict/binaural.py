@@ -424,8 +424,8 @@ def stipa_ears(left: np.ndarray, right: np.ndarray, fs: int, **options: Any) -> 
 def stipa_ears_file(path: str | os.PathLike, **options: Any) -> EarsResult:
     """STI (direct method, STIPA) of a two-channel recording file (channel 0 left,
     channel 1 right), each ear by :func:`envpredict.direct.stipa_from_file` (read in
-    blocks), then the better ear per octave band. A calibrator recording, if given,
-    is read from its channel of the same number as the ear unless
+    blocks), then the better ear per octave band. A two-channel calibrator recording,
+    if given, calibrates each ear from its own channel (a mono one both ears) unless
     ``calibrator_channel`` is given.
 
     Raises
@@ -436,8 +436,14 @@ def stipa_ears_file(path: str | os.PathLike, **options: Any) -> EarsResult:
     """
     from .direct import stipa_from_file
 
+    from .audio import audio_info
+
     _no_channel(options)
     two_channels(path, "recording")
+    if options.get("calibrator") is not None and options.get("calibrator_channel") is None:
+        # a mono calibrator serves both ears; a two-channel one gives each ear its own
+        if audio_info(options["calibrator"], "calibrator recording")[2] == 1:
+            options["calibrator_channel"] = 0
     progress = options.pop("progress", None)
     name = os.path.basename(os.fsdecode(path))
     results, errors = _each_ear(lambda i: stipa_from_file(path, i, progress=_halves(progress, i),

@@ -319,3 +319,16 @@ def test_batch_ears(irs, speech, write_wav, tmp_path, capsys):
     (tmp_path / "c.csv").write_text("ir,channel\nlr.wav,0\n")
     code, _, err = run_cli(["batch", tmp_path / "c.csv", "--out", tmp_path / "co.csv", "--ears"], capsys)
     assert code == 2 and "channel" in err
+
+
+def test_a_mono_calibrator_calibrates_both_ears(write_wav):
+    from envpredict.binaural import stipa_ears_file
+
+    x = envpredict.stipa_signal(15.0, 24000, seed=4)
+    x = (0.3 * x / np.max(np.abs(x))).astype(np.float32)
+    p = write_wav("st.wav", np.stack([x, 0.5 * x], axis=1), 24000, "FLOAT")
+    cal = write_wav("cal.wav", 0.5 * np.sin(2 * np.pi * 1000 * np.arange(96000) / 48000), 48000)
+    e = stipa_ears_file(p, calibrator=cal, calibrator_level=94.0)
+    assert e.errors == ("", "") and e.left.calibrated and e.right.calibrated
+    # the same calibration for both: the right ear's levels are 20 log10(0.5) = -6.02 dB lower
+    assert np.allclose(e.left.band_levels_db - e.right.band_levels_db, 20 * np.log10(2), atol=0.01)
