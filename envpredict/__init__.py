@@ -38,6 +38,9 @@ Impulse response by swept sine
 Clean/degraded pairs
     stoi, estoi, correlation_indices, CorrelationResult, pair_indices,
     pair_from_files, PairResult, speech_sti
+Two ears (better ear per octave band)
+    ir_ears, ir_ears_file, stipa_ears, stipa_ears_file, pair_ears, pair_ears_file,
+    better_ear_sti, EarsResult
 Envelope-power index
     sepsm, SepsmResult
 Inspection of a recording
@@ -125,6 +128,15 @@ _API: dict[str, str] = {
     "pair_from_files": "envpredict.pair",
     "PairResult": "envpredict.pair",
     "speech_sti": "envpredict.pair",
+    # two ears
+    "ir_ears": "envpredict.binaural",
+    "ir_ears_file": "envpredict.binaural",
+    "stipa_ears": "envpredict.binaural",
+    "stipa_ears_file": "envpredict.binaural",
+    "pair_ears": "envpredict.binaural",
+    "pair_ears_file": "envpredict.binaural",
+    "better_ear_sti": "envpredict.binaural",
+    "EarsResult": "envpredict.binaural",
     # envelope-power index
     "sepsm": "envpredict.envpower",
     "SepsmResult": "envpredict.envpower",
