@@ -165,6 +165,7 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "DelayEstimate": lambda: find_delay(clean, degraded, fs, 0.1),
         "SepsmResult": lambda: envpredict.sepsm(degraded, degraded - clean, fs),
         "CommonDelay": common_delay,
+        "Audiogram": lambda: envpredict.parse_audiogram("250:20,500:25,1000:30,2000:45,4000:60,8000:70"),
     }
 
 
