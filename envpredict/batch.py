@@ -27,6 +27,11 @@ Optional columns that feed the scoring (empty cell = the batch default):
 * ``calibration_db`` -- dB SPL of a full-scale RMS signal in the row's recording
   (STIPA rows, optional) or noise recording (IR rows);
 * ``sti_talker`` -- ``male`` or ``female`` speech spectrum and weights (IR and STIPA rows).
+* ``audiogram`` -- the listener's hearing levels (:mod:`envpredict.hearing`):
+  ``250:20;500:25;...`` (frequency in Hz : dB HL) or a CSV audiogram file; it raises
+  the STI's reception threshold (IR rows; STIPA rows with ``calibration_db``) or adds
+  the threshold-simulating noise of the pair indices (pair rows; needs
+  ``calibration_db``, the level of the pair's full-scale RMS in dB SPL). Audibility only.
 * ``inverted`` -- the processing's output for speech - noise (pair rows; the degraded
   file is its output for speech + noise): adds the envelope-power index
   (``sepsm_snr_env_db``) from the processed noise separated by phase inversion;
@@ -121,6 +126,7 @@ from .audio import THREAD_LIMIT_VARS, usable_cores
 from .exceptions import ComputationError, EnvpredictError, InputError
 
 from .tables import (  # noqa: F401  (the column vocabulary, re-exported for batch users)
+    AUDIOGRAM_COLUMN,
     CALIBRATION_COLUMN,
     CHANNEL_COLUMN,
     CLEAN_COLUMN,
@@ -266,11 +272,13 @@ def _where(path: Path, row: int | None = None, line: int | None = None, column: 
 #: Manifest option columns and the job keys they fill.
 _OPTION_KEYS: dict[str, str] = {CHANNEL_COLUMN: "channel", NOISE_COLUMN: "noise", SPEECH_LEVEL_COLUMN: "speech_level",
                                 SPEECH_LEVELS_COLUMN: "speech_levels", CALIBRATION_COLUMN: "calibration_db",
-                                STI_TALKER_COLUMN: "talker"}
+                                STI_TALKER_COLUMN: "talker", AUDIOGRAM_COLUMN: "audiogram"}
 
 
 def _option_value(path: Path, row: int, line: int, column: str, text: str, defaults: dict) -> Any:
     """Parse one option cell (empty: the batch default); errors name file, row and column."""
+    from .tables import load_audiogram
+
     from .sti import check_speech_level, check_talker, parse_noise_levels
 
     text = text.strip()
@@ -297,6 +305,8 @@ def _option_value(path: Path, row: int, line: int, column: str, text: str, defau
             return [float(v) for v in parse_noise_levels(text.replace(";", ","))]
         if column == SPEECH_LEVEL_COLUMN:
             return check_speech_level(text)
+        if column == AUDIOGRAM_COLUMN:
+            return load_audiogram(text, base=path.resolve().parent)
         return check_talker(text)
     except InputError as e:
         raise InputError(f"{_where(path, row, line, column)}: {e.what}", e.fix) from None
@@ -320,6 +330,7 @@ def read_manifest(
     noise_db: Sequence[float] | str | None = None,
     speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
     talker: str = std.DEFAULT_TALKER,
+    audiogram: Any = None,
 ) -> Manifest:
     """Read and validate a manifest (see the module docstring for its columns).
 
@@ -328,6 +339,9 @@ def read_manifest(
     path : the manifest CSV file (UTF-8, comma-separated, header on the first line).
     noise_db, speech_level_dba, talker : defaults for IR rows whose ``noise``,
         ``speech_level`` or ``sti_talker`` cell is empty (or absent).
+    audiogram : the listener of rows whose ``audiogram`` cell is empty (or absent): an
+        :class:`~envpredict.hearing.Audiogram`, its text form or a CSV file
+        (:func:`envpredict.tables.load_audiogram`), or ``None`` (normal hearing).
 
     Raises
     ------
@@ -337,8 +351,10 @@ def read_manifest(
         audio file is a per-row error of the batch.
     """
     from .sti import check_speech_level, check_talker, parse_noise_levels
+    from .tables import load_audiogram
 
     p = checks.path(path, "manifest")
+    listener = load_audiogram(audiogram)
     text = read_text(p, "manifest")
     noise = parse_noise_levels(noise_db)
     defaults = {
@@ -348,6 +364,7 @@ def read_manifest(
         "speech_levels": None,
         "calibration_db": None,
         "talker": check_talker(talker),
+        "audiogram": listener,
     }
     def bad(line: int, e: Exception) -> InputError:
         return InputError(f"{_where(p)}: line {line} is not valid CSV ({e})", "check the quotes on that line")
@@ -436,7 +453,7 @@ def read_manifest(
             q = Path(s).expanduser()
             return str(q if q.is_absolute() else base / q)
 
-        job: dict[str, Any] = {"row": row, "channel": opts["channel"]}
+        job: dict[str, Any] = {"row": row, "channel": opts["channel"], "audiogram": opts["audiogram"]}
         if ir:
             job.update(kind="ir", ir=full(ir), noise=opts["noise"], speech_level=opts["speech_level"],
                        talker=opts["talker"], speech_levels=opts["speech_levels"],
@@ -446,7 +463,7 @@ def read_manifest(
             job.update(kind="stipa", stipa=full(stipa), talker=opts["talker"],
                        calibration_db=opts["calibration_db"])
         else:
-            job.update(kind="pair", clean=full(clean), degraded=full(deg),
+            job.update(kind="pair", clean=full(clean), degraded=full(deg), calibration_db=opts["calibration_db"],
                        manifest_delay_ms=_delay_cell(p, row, line, delay_text) if delay_text else None,
                        inverted=full(inverted) if inverted else None)
         cells.append(tuple(rec))
@@ -476,7 +493,8 @@ def _score_ir(job: dict) -> dict:
                          noise_db=None if noise_rec else job.get("noise"),
                          speech_level_dba=None if levels else job.get("speech_level", std.DEFAULT_SPEECH_LEVEL_DBA),
                          talker=job.get("talker", std.DEFAULT_TALKER), speech_db=levels,
-                         noise_recording=noise_rec, calibration_db=job.get("calibration_db") if noise_rec else None)
+                         noise_recording=noise_rec, calibration_db=job.get("calibration_db") if noise_rec else None,
+                         audiogram=job.get("audiogram"))
     values = {
         "sti": float(r.sti.sti),
         "rating": r.sti.rating,
@@ -499,14 +517,15 @@ def _specific_cautions(r: Any) -> tuple[str, ...]:
     from . import cautions as cau
 
     generic = {cau.LIFE_SAFETY, cau.NO_NOISE, cau.NO_AUDITORY, cau.below_target(r.sti.sti)}
-    return tuple(c for c in r.cautions if c not in generic)
+    # the listener's audibility caution holds for every row with an audiogram (batch summary)
+    return tuple(c for c in r.cautions if c not in generic and not c.startswith("Listener: "))
 
 
 def _score_stipa(job: dict) -> dict:
     from .direct import stipa_from_file
 
     r = stipa_from_file(job["stipa"], channel=job.get("channel"), calibration_db=job.get("calibration_db"),
-                        talker=job.get("talker", std.DEFAULT_TALKER))
+                        talker=job.get("talker", std.DEFAULT_TALKER), audiogram=job.get("audiogram"))
     return {"sti": float(r.sti.sti), "rating": r.sti.rating, NOTES_COLUMN: "; ".join(_specific_cautions(r))}
 
 
@@ -1251,6 +1270,7 @@ def run_batch(
     talker: str = std.DEFAULT_TALKER,
     progress: Callable[[int, int], None] | None = None,
     alignment: Alignment | None = None,
+    audiogram: Any = None,
 ) -> BatchSummary:
     """Score every row of a manifest into a resumable results CSV file.
 
@@ -1270,6 +1290,7 @@ def run_batch(
         time left computed from it are right when resuming.
     alignment : how pair rows are aligned (default: one delay per condition, see
         :class:`Alignment` and the module docstring).
+    audiogram : the listener of rows without an ``audiogram`` cell (see :func:`read_manifest`).
 
     Returns
     -------
@@ -1312,7 +1333,7 @@ def run_batch(
     if scheduler is None and (workers or usable_cores()) > 1:
         start_workers_early()  # the pool's imports run while the manifest is read
     m = manifest if isinstance(manifest, Manifest) else read_manifest(
-        manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker)
+        manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker, audiogram=audiogram)
     alignment = (alignment or Alignment()).check(m)
     with _quiet_dask() if scheduler is not None else contextlib.nullcontext():
         return _run_manifest(m, out, workers=workers, scheduler=scheduler, resume=resume, overwrite=overwrite,
@@ -1386,10 +1407,13 @@ def _batch_cautions(m: Manifest) -> tuple[str, ...]:
     """Cautions that hold for every STI of an IR batch."""
     from . import cautions as cau
 
+    from .hearing import CAUTION_AUDIBILITY
+
     ir_jobs = [j for j in m.jobs if j["kind"] == "ir"]
+    listener = [CAUTION_AUDIBILITY + " (rows with an audiogram)."] if any(j.get("audiogram") for j in m.jobs) else []
     if not ir_jobs and not any(j["kind"] == "stipa" for j in m.jobs):
-        return ()
-    out = [cau.LIFE_SAFETY]
+        return tuple(listener)
+    out = [cau.LIFE_SAFETY] + listener
     if any(j.get("noise") is None and j.get("noise_recording") is None for j in ir_jobs):
         out.append("Rows without noise levels hold only for a noise-free site: give the octave-band noise "
                    "at the listener in a 'noise' column or with --noise.")

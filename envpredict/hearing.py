@@ -81,7 +81,7 @@ DEFAULT_NOISE_SEED: int = 17
 #: 48 kHz; the noise is shaped in one FFT, so memory grows with the length).
 MAX_NOISE_SAMPLES: int = 2**26
 
-CAUTION_AUDIBILITY = ("the listener's hearing loss is modelled as a raised threshold (audibility) only; the "
+CAUTION_AUDIBILITY = ("The listener's hearing loss is modelled as a raised threshold (audibility) only; the "
                       "suprathreshold deficits of sensorineural loss are not modelled, so the prediction for such a "
                       "listener is an upper bound")
 
@@ -128,7 +128,7 @@ class Audiogram:
         return jsonable({
             "source": self.source,
             "measured_hz": self.measured_hz,
-            "measured_hl_db": self.measured_hl_db,
+            "measured_hl_db": np.round(np.asarray(self.measured_hl_db), 2),
             "bands_hz": self.bands_hz,
             "band_hl_db": np.round(np.asarray(self.band_hl_db), 1),
             "threshold_spl_db": np.round(band_threshold_spl_db(self), 1),
@@ -386,6 +386,25 @@ def listener_audiogram(audiogram: "Audiogram | str | None" = None, age: float | 
     if audiogram is None or isinstance(audiogram, Audiogram):
         return audiogram
     return parse_audiogram(audiogram)
+
+
+def check_auditory(audiogram: Audiogram | None, auditory: bool) -> Audiogram | None:
+    """``audiogram`` once it is known the auditory effects are on: the hearing loss raises
+    the reception threshold, one of those effects, so an audiogram without them is refused.
+
+    Raises
+    ------
+    InputError
+        An audiogram with ``auditory`` False, an ``auditory`` that is not a flag, or an
+        ``audiogram`` that is not an :class:`Audiogram` or ``None``.
+    """
+    auditory = checks.flag(auditory, "auditory")
+    if audiogram is None:
+        return None
+    if not auditory:
+        raise InputError("an audiogram (or age) was given with the auditory corrections off",
+                         "leave out --no-auditory: the hearing loss raises the reception threshold")
+    return _audiogram(audiogram)
 
 
 def _audiogram(a: Audiogram) -> Audiogram:

@@ -60,8 +60,12 @@ STI_TALKER_COLUMN = "sti_talker"
 #: row. In the results file the same column holds the delay used (the manifest's where
 #: given).
 DELAY_COLUMN = "delay_ms"
+#: Manifest column holding a row's listener (issue 17): an audiogram's text form
+#: ("250:20;500:25;..." -- ';' between points, or ',' inside a quoted cell) or a CSV
+#: audiogram file (:func:`load_audiogram`).
+AUDIOGRAM_COLUMN = "audiogram"
 OPTION_COLUMNS: tuple[str, ...] = (CHANNEL_COLUMN, NOISE_COLUMN, SPEECH_LEVEL_COLUMN, SPEECH_LEVELS_COLUMN,
-                                   CALIBRATION_COLUMN, STI_TALKER_COLUMN, DELAY_COLUMN)
+                                   CALIBRATION_COLUMN, STI_TALKER_COLUMN, DELAY_COLUMN, AUDIOGRAM_COLUMN)
 
 #: Result columns added to the manifest's own.
 ROW_COLUMN = "row"
@@ -438,8 +442,6 @@ def write_table(path: str | os.PathLike, header: Sequence[str], rows: Sequence[M
 #: Columns of an audiogram file: audiometric frequency (Hz) and hearing level (dB HL).
 AUDIOGRAM_FREQUENCY_COLUMN = "frequency_hz"
 AUDIOGRAM_LEVEL_COLUMN = "hearing_level_db"
-#: Manifest column (batch, survey) holding a row's audiogram: its text form or a CSV file.
-AUDIOGRAM_COLUMN = "audiogram"
 
 
 def read_audiogram(path: str | os.PathLike):
