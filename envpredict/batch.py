@@ -535,11 +535,12 @@ def _score_pair(job: dict) -> dict:
     delay_ms = job.get("delay_ms")
     r = pair_from_files(job["clean"], job["degraded"], channel=job.get("channel"), align=job.get("align", True),
                         max_delay_s=job.get("max_delay_s", std.PAIR_MAX_DELAY_S),
-                        delay_s=None if delay_ms is None else delay_ms / 1000.0, inverted_path=job.get("inverted"))
+                        delay_s=None if delay_ms is None else delay_ms / 1000.0, inverted_path=job.get("inverted"),
+                        audiogram=job.get("audiogram"), calibration_db=job.get("calibration_db"))
     delay_from = job.get("delay_from") or ("row" if r.delay_from == "search" else r.delay_from)
     confidence = job.get("delay_confidence") if delay_from == "condition" else (
         r.delay_confidence if delay_from == "row" else None)
-    notes = tuple(job.get("delay_notes") or ()) + r.notes
+    notes = tuple(job.get("delay_notes") or ()) + tuple(n for n in r.notes if not n.startswith("threshold-simulating"))
     return {"stoi": float(r.stoi), "estoi": float(r.estoi), "ssti": None if r.ssti is None else float(r.ssti),
             "ssti_regression": None if r.ssti_regression is None else float(r.ssti_regression),
             "delay_ms": float(r.delay_ms), "delay_from": delay_from,
