@@ -61,6 +61,8 @@ Site surveys
     run_survey, SurveyResult, summarise_survey, parse_requirement
 Design stage (prediction from a room model)
     predict_design, predict_design_file, DesignResult, read_scene
+Listeners with hearing loss
+    parse_audiogram, read_audiogram, age_audiogram, Audiogram
 Reports
     write_report
 Demo
@@ -183,6 +185,11 @@ _API: dict[str, str] = {
     "predict_design_file": "envpredict.design",
     "DesignResult": "envpredict.design",
     "read_scene": "envpredict.roommodel",
+    # listeners with hearing loss (audiograms, ISO 7029 age presets)
+    "parse_audiogram": "envpredict.hearing",
+    "read_audiogram": "envpredict.tables",
+    "age_audiogram": "envpredict.hearing",
+    "Audiogram": "envpredict.hearing",
     "compare_all_pairs": "envpredict.stats",
     "compare_all_pairs_file": "envpredict.stats",
     # reports

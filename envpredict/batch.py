@@ -27,6 +27,11 @@ Optional columns that feed the scoring (empty cell = the batch default):
 * ``calibration_db`` -- dB SPL of a full-scale RMS signal in the row's recording
   (STIPA rows, optional) or noise recording (IR rows);
 * ``sti_talker`` -- ``male`` or ``female`` speech spectrum and weights (IR and STIPA rows).
+* ``audiogram`` -- the listener's hearing levels (:mod:`envpredict.hearing`):
+  ``250:20;500:25;...`` (frequency in Hz : dB HL) or a CSV audiogram file; it raises
+  the STI's reception threshold (IR rows; STIPA rows with ``calibration_db``) or adds
+  the threshold-simulating noise of the pair indices (pair rows; needs
+  ``calibration_db``, the level of the pair's full-scale RMS in dB SPL). Audibility only.
 * ``inverted`` -- the processing's output for speech - noise (pair rows; the degraded
   file is its output for speech + noise): adds the envelope-power index
   (``sepsm_snr_env_db``) from the processed noise separated by phase inversion;
@@ -131,6 +136,7 @@ from .audio import THREAD_LIMIT_VARS, usable_cores
 from .exceptions import ComputationError, EnvpredictError, InputError
 
 from .tables import (  # noqa: F401  (the column vocabulary, re-exported for batch users)
+    AUDIOGRAM_COLUMN,
     CALIBRATION_COLUMN,
     CHANNEL_COLUMN,
     CLEAN_COLUMN,
@@ -278,11 +284,13 @@ def _where(path: Path, row: int | None = None, line: int | None = None, column: 
 #: Manifest option columns and the job keys they fill.
 _OPTION_KEYS: dict[str, str] = {CHANNEL_COLUMN: "channel", NOISE_COLUMN: "noise", SPEECH_LEVEL_COLUMN: "speech_level",
                                 SPEECH_LEVELS_COLUMN: "speech_levels", CALIBRATION_COLUMN: "calibration_db",
-                                STI_TALKER_COLUMN: "talker"}
+                                STI_TALKER_COLUMN: "talker", AUDIOGRAM_COLUMN: "audiogram"}
 
 
 def _option_value(path: Path, row: int, line: int, column: str, text: str, defaults: dict) -> Any:
     """Parse one option cell (empty: the batch default); errors name file, row and column."""
+    from .tables import load_audiogram
+
     from .sti import check_speech_level, check_talker, parse_noise_levels
 
     text = text.strip()
@@ -309,6 +317,8 @@ def _option_value(path: Path, row: int, line: int, column: str, text: str, defau
             return [float(v) for v in parse_noise_levels(text.replace(";", ","))]
         if column == SPEECH_LEVEL_COLUMN:
             return check_speech_level(text)
+        if column == AUDIOGRAM_COLUMN:
+            return load_audiogram(text, base=path.resolve().parent)
         return check_talker(text)
     except InputError as e:
         raise InputError(f"{_where(path, row, line, column)}: {e.what}", e.fix) from None
@@ -333,6 +343,7 @@ def read_manifest(
     speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
     talker: str = std.DEFAULT_TALKER,
     ears: bool = False,
+    audiogram: Any = None,
 ) -> Manifest:
     """Read and validate a manifest (see the module docstring for its columns).
 
@@ -342,6 +353,9 @@ def read_manifest(
     noise_db, speech_level_dba, talker : defaults for IR rows whose ``noise``,
         ``speech_level`` or ``sti_talker`` cell is empty (or absent).
     ears : score every row's two-channel files as two ears (see the module docstring).
+    audiogram : the listener of rows whose ``audiogram`` cell is empty (or absent): an
+        :class:`~envpredict.hearing.Audiogram`, its text form or a CSV file
+        (:func:`envpredict.tables.load_audiogram`), or ``None`` (normal hearing).
 
     Raises
     ------
@@ -351,9 +365,11 @@ def read_manifest(
         audio file is a per-row error of the batch.
     """
     from .sti import check_speech_level, check_talker, parse_noise_levels
+    from .tables import load_audiogram
 
     p = checks.path(path, "manifest")
     ears = checks.flag(ears, "ears")
+    listener = load_audiogram(audiogram)
     text = read_text(p, "manifest")
     noise = parse_noise_levels(noise_db)
     defaults = {
@@ -363,6 +379,7 @@ def read_manifest(
         "speech_levels": None,
         "calibration_db": None,
         "talker": check_talker(talker),
+        "audiogram": listener,
     }
     def bad(line: int, e: Exception) -> InputError:
         return InputError(f"{_where(p)}: line {line} is not valid CSV ({e})", "check the quotes on that line")
@@ -455,7 +472,7 @@ def read_manifest(
             q = Path(s).expanduser()
             return str(q if q.is_absolute() else base / q)
 
-        job: dict[str, Any] = {"row": row, "channel": opts["channel"]}
+        job: dict[str, Any] = {"row": row, "channel": opts["channel"], "audiogram": opts["audiogram"]}
         if ears:
             job["ears"] = True
         if ir:
@@ -467,7 +484,7 @@ def read_manifest(
             job.update(kind="stipa", stipa=full(stipa), talker=opts["talker"],
                        calibration_db=opts["calibration_db"])
         else:
-            job.update(kind="pair", clean=full(clean), degraded=full(deg),
+            job.update(kind="pair", clean=full(clean), degraded=full(deg), calibration_db=opts["calibration_db"],
                        manifest_delay_ms=_delay_cell(p, row, line, delay_text) if delay_text else None,
                        inverted=full(inverted) if inverted else None)
         cells.append(tuple(rec))
@@ -500,7 +517,8 @@ def _score_ir(job: dict) -> dict:
     kw = dict(noise_db=None if noise_rec else job.get("noise"),
               speech_level_dba=None if levels else job.get("speech_level", std.DEFAULT_SPEECH_LEVEL_DBA),
               talker=job.get("talker", std.DEFAULT_TALKER), speech_db=levels,
-              noise_recording=noise_rec, calibration_db=job.get("calibration_db") if noise_rec else None)
+              noise_recording=noise_rec, calibration_db=job.get("calibration_db") if noise_rec else None,
+              audiogram=job.get("audiogram"))
     if job.get("ears"):
         from .binaural import ir_ears_file
 
@@ -528,7 +546,8 @@ def _specific_cautions(r: Any) -> tuple[str, ...]:
     from . import cautions as cau
 
     generic = {cau.LIFE_SAFETY, cau.NO_NOISE, cau.NO_AUDITORY, cau.below_target(r.sti.sti)}
-    return tuple(c for c in r.cautions if c not in generic)
+    # the listener's audibility caution holds for every row with an audiogram (batch summary)
+    return tuple(c for c in r.cautions if c not in generic and not c.startswith("Listener: "))
 
 
 def _ears_values(e: Any) -> dict:
@@ -536,7 +555,9 @@ def _ears_values(e: Any) -> dict:
     from . import cautions as cau
 
     generic = {cau.LIFE_SAFETY, cau.NO_NOISE, cau.NO_AUDITORY}
-    notes = [c for c in e.to_dict()["cautions"] if c not in generic and not c.startswith("Better ear: ")]
+    # the listener's audibility caution holds for every row with an audiogram (batch summary)
+    notes = [c for c in e.to_dict()["cautions"]
+             if c not in generic and not c.startswith(("Better ear: ", "Listener: "))]
     return {"sti": float(e.better.sti), "rating": e.better.rating, **e.ear_indices, NOTES_COLUMN: "; ".join(notes)}
 
 
@@ -547,9 +568,10 @@ def _score_stipa(job: dict) -> dict:
         from .binaural import stipa_ears_file
 
         return _ears_values(stipa_ears_file(job["stipa"], calibration_db=job.get("calibration_db"),
-                                            talker=job.get("talker", std.DEFAULT_TALKER)))
+                                            talker=job.get("talker", std.DEFAULT_TALKER),
+                                            audiogram=job.get("audiogram")))
     r = stipa_from_file(job["stipa"], channel=job.get("channel"), calibration_db=job.get("calibration_db"),
-                        talker=job.get("talker", std.DEFAULT_TALKER))
+                        talker=job.get("talker", std.DEFAULT_TALKER), audiogram=job.get("audiogram"))
     return {"sti": float(r.sti.sti), "rating": r.sti.rating, NOTES_COLUMN: "; ".join(_specific_cautions(r))}
 
 
@@ -558,7 +580,8 @@ def _score_pair(job: dict) -> dict:
 
     delay_ms = job.get("delay_ms")
     kw = dict(align=job.get("align", True), max_delay_s=job.get("max_delay_s", std.PAIR_MAX_DELAY_S),
-              delay_s=None if delay_ms is None else delay_ms / 1000.0, inverted_path=job.get("inverted"))
+              delay_s=None if delay_ms is None else delay_ms / 1000.0, inverted_path=job.get("inverted"),
+              audiogram=job.get("audiogram"), calibration_db=job.get("calibration_db"))
     if job.get("ears"):
         from .binaural import pair_ears_file
 
@@ -579,7 +602,7 @@ def _pair_values(job: dict, r: Any) -> dict:
     delay_from = job.get("delay_from") or ("row" if r.delay_from == "search" else r.delay_from)
     confidence = job.get("delay_confidence") if delay_from == "condition" else (
         r.delay_confidence if delay_from == "row" else None)
-    notes = tuple(job.get("delay_notes") or ()) + r.notes
+    notes = tuple(job.get("delay_notes") or ()) + tuple(n for n in r.notes if not n.startswith("threshold-simulating"))
     return {"stoi": float(r.stoi), "estoi": float(r.estoi), "ssti": None if r.ssti is None else float(r.ssti),
             "ssti_regression": None if r.ssti_regression is None else float(r.ssti_regression),
             "delay_ms": float(r.delay_ms), "delay_from": delay_from,
@@ -1313,6 +1336,7 @@ def run_batch(
     progress: Callable[[int, int], None] | None = None,
     alignment: Alignment | None = None,
     ears: bool = False,
+    audiogram: Any = None,
 ) -> BatchSummary:
     """Score every row of a manifest into a resumable results CSV file.
 
@@ -1334,6 +1358,7 @@ def run_batch(
         :class:`Alignment` and the module docstring).
     ears : score two-channel files as two ears, the better ear per octave band (see the
         module docstring; with a :class:`Manifest`, read it with ``ears`` instead).
+    audiogram : the listener of rows without an ``audiogram`` cell (see :func:`read_manifest`).
 
     Returns
     -------
@@ -1379,7 +1404,8 @@ def run_batch(
     if scheduler is None and (workers or usable_cores()) > 1:
         start_workers_early()  # the pool's imports run while the manifest is read
     m = manifest if isinstance(manifest, Manifest) else read_manifest(
-        manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker, ears=ears)
+        manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker, ears=ears,
+        audiogram=audiogram)
     alignment = (alignment or Alignment()).check(m)
     with _quiet_dask() if scheduler is not None else contextlib.nullcontext():
         return _run_manifest(m, out, workers=workers, scheduler=scheduler, resume=resume, overwrite=overwrite,
@@ -1453,10 +1479,13 @@ def _batch_cautions(m: Manifest) -> tuple[str, ...]:
     """Cautions that hold for every STI of an IR batch."""
     from . import cautions as cau
 
+    from .hearing import CAUTION_AUDIBILITY
+
     ir_jobs = [j for j in m.jobs if j["kind"] == "ir"]
+    listener = [CAUTION_AUDIBILITY + " (rows with an audiogram)."] if any(j.get("audiogram") for j in m.jobs) else []
     if not ir_jobs and not any(j["kind"] == "stipa" for j in m.jobs):
-        return ()
-    out = [cau.LIFE_SAFETY]
+        return tuple(listener)
+    out = [cau.LIFE_SAFETY] + listener
     if any(j.get("noise") is None and j.get("noise_recording") is None for j in ir_jobs):
         out.append("Rows without noise levels hold only for a noise-free site: give the octave-band noise "
                    "at the listener in a 'noise' column or with --noise.")

@@ -1494,6 +1494,31 @@ def _page_pair_ears(d: Mapping) -> Page:
                    "and ears.right.")
     p.notes += [str(n) for n in d.get("notes") or []]
     return p
+def _listener_tables(d: Mapping) -> list[Table]:
+    """The listener's audiogram (issue 17), for any kind whose result carries one: hearing
+    level per octave band, the listener's threshold, and whether the loss made the band
+    inaudible."""
+    a = d.get("audiogram")
+    if not isinstance(a, Mapping):
+        return []
+    gone = a.get("inaudible_bands_hz")
+    filled = set(a.get("filled_bands_hz") or [])
+    rows = []
+    for k, fc in enumerate(a["bands_hz"]):
+        row = [Cell(_band_label(fc)), num(d, f"audiogram.band_hl_db.{k}", ".0f"),
+               txt("filled" if fc in filled else "measured"),
+               num(d, f"audiogram.threshold_spl_db.{k}", ".1f"), num(d, f"audiogram.reception_threshold_db.{k}", ".1f")]
+        if gone is not None:
+            row.append(Cell("inaudible", cls="fail") if fc in gone else txt("audible"))
+        rows.append(row)
+    head = ["band", "hearing loss, dB HL", "value", "pure-tone threshold, dB SPL (free field)",
+            "reception threshold used, dB"]
+    if gone is not None:
+        head.append("made inaudible by the loss")
+    measured = ", ".join(f"{f:g} Hz: {round(v, 1):g}" for f, v in zip(a["measured_hz"], a["measured_hl_db"]))
+    note = (f"Audiogram ({a.get('source')}): {measured} dB HL. " + "".join(f"{n}. " for n in a.get("notes") or [])
+            + "Audibility only: the suprathreshold deficits of sensorineural loss are not modelled.")
+    return [Table("Listener: hearing loss per octave band", head, rows, note)]
 
 
 _PAGES: dict[str, Callable[[Mapping], Page]] = {
@@ -1900,6 +1925,7 @@ def write_report(
     with _style():
         try:
             page = _PAGES[kind](result)
+            page.tables += _listener_tables(result)
         except (KeyError, IndexError, TypeError, ValueError, AttributeError) as e:
             # the page reads the result's fields by name and shape: a dictionary that lacks
             # one, or holds one of another shape, is not a result of this kind

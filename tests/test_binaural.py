@@ -332,3 +332,20 @@ def test_a_mono_calibrator_calibrates_both_ears(write_wav):
     assert e.errors == ("", "") and e.left.calibrated and e.right.calibrated
     # the same calibration for both: the right ear's levels are 20 log10(0.5) = -6.02 dB lower
     assert np.allclose(e.left.band_levels_db - e.right.band_levels_db, 20 * np.log10(2), atol=0.01)
+
+
+def test_one_listener_for_both_ears(irs, write_wav, capsys):
+    # a 0 dB HL audiogram leaves the two-ear result unchanged (issue 17: to 1e-9); a loss
+    # reaches each ear as it reaches the one-ear analysis of that channel
+    a, b = irs
+    p = write_wav("lr.wav", np.stack([a, b], axis=1), FS, "FLOAT")
+    flat0 = envpredict.parse_audiogram("250:0,500:0,1000:0,2000:0,4000:0,8000:0")
+    loss = envpredict.parse_audiogram("250:20,500:25,1000:30,2000:45,4000:60,8000:70")
+    assert abs(ir_ears_file(p, audiogram=flat0).better.sti - ir_ears_file(p).better.sti) <= 1e-9
+    e = ir_ears_file(p, audiogram=loss)
+    for ch, ear in enumerate(("left", "right")):
+        assert e.ears[ear].sti.sti == sti_from_ir_file(p, channel=ch, audiogram=loss).sti.sti
+    assert e.better.sti < ir_ears_file(p).better.sti
+    code, out, _ = run_cli(["ir", p, "--ears", "--audiogram", "250:20,500:25,1000:30,2000:45,4000:60,8000:70"],
+                           capsys)
+    assert code == 0 and "Listener:" in out

@@ -167,6 +167,7 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "SepsmResult": lambda: envpredict.sepsm(degraded, degraded - clean, fs),
         "CommonDelay": common_delay,
         "EarsResult": lambda: ears_ir(ir, noise_decay(1.1, seed=3, seconds=ir.size / 48000), 48000),
+        "Audiogram": lambda: envpredict.parse_audiogram("250:20,500:25,1000:30,2000:45,4000:60,8000:70"),
     }
 
 

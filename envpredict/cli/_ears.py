@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ._common import fmt, format_sti, table
+from ._common import fmt, format_sti, listener_lines, table
 
 EARS_HELP = ("Two ears: the file is a two-channel recording, channel 0 the left ear and channel 1 the right. "
              "Gives the index of each ear and the better-ear combination per octave band (the larger MTI of "
@@ -19,6 +19,16 @@ def _ear_rows(d: dict, label: str) -> list[str]:
             table(rows, ["band Hz", "left", "right", "difference", "better ear"])]
 
 
+def _listener(d: dict) -> list[str]:
+    """The listener's audiogram (one listener, both ears): from the better-ear result, else an ear's."""
+    lines = listener_lines(d)
+    for ear in d["ears"].values():
+        if lines or not ear:
+            break
+        lines = listener_lines(ear)
+    return lines
+
+
 def _tail(d: dict) -> list[str]:
     lines = ["", "Notes:"]
     lines.extend(f"  - {n}" for n in d["notes"])
@@ -33,6 +43,7 @@ def render_ears_sti(d: dict, source: str) -> str:
     b = d["binaural"]
     lines = [f"Two ears: {source}   method: {d['method']}",
              f"Talker: {d['talker']}",
+             *_listener(d),
              "",
              f"STI, better ear per band = {format_sti(d)}   qualification band {d['rating']}   ({d['subjective']})",
              f"STI of the left ear  = {fmt(b['sti_left'], '.2f')}",
@@ -57,6 +68,7 @@ def render_ears_pair(d: dict, clean: str, degraded: str) -> str:
             for k, name in (("stoi", "STOI"), ("estoi", "ESTOI"), ("ssti", "speech-based STI"))]
     lines = [f"Clean:    {clean}",
              f"Degraded: {degraded} (two ears)",
+             *_listener(d),
              "",
              table(rows, ["index", "left", "right", "better ear"]),
              "",
