@@ -558,6 +558,19 @@ case("sti.sti_from_mtf", mtf=st.builds(lambda s: np.random.default_rng(s).unifor
      talker=S("male", "female"), auditory=st.booleans(), bad_={"auditory": None})
 case("cautions.below_target", sti=STI_VALUE)
 
+
+def _sti_for_listener(text):
+    from envpredict.hearing import parse_audiogram
+    from envpredict.sti import sti_from_mtf
+
+    return sti_from_mtf(np.full((7, 14), 0.7), audiogram=None if text is None else parse_audiogram(text))
+
+
+case("cautions.listener_cautions", result=st.one_of(S(None), AUDIOGRAM_TEXT).map(_sti_for_listener),
+     bad_={"result": S(None, "x", 3, {})})
+case("hearing.check_auditory", audiogram=st.one_of(S(None), AUDIOGRAM), auditory=J(True),
+     bad_={"audiogram": S("x", 3), "auditory": S(False, None, "yes", 1)})
+
 # --- decay -----------------------------------------------------------------------------
 
 _E = st.builds(lambda fs, T: (band_irs(fs, T)[3] ** 2), J(48000), S(0.3, 0.6, 1.5))
