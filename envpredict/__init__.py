@@ -38,6 +38,9 @@ Impulse response by swept sine
 Clean/degraded pairs
     stoi, estoi, correlation_indices, CorrelationResult, pair_indices,
     pair_from_files, PairResult, speech_sti
+Two ears (better ear per octave band)
+    ir_ears, ir_ears_file, stipa_ears, stipa_ears_file, pair_ears, pair_ears_file,
+    better_ear_sti, EarsResult
 Envelope-power index
     sepsm, SepsmResult
 Inspection of a recording
@@ -58,6 +61,8 @@ Site surveys
     run_survey, SurveyResult, summarise_survey, parse_requirement
 Design stage (prediction from a room model)
     predict_design, predict_design_file, DesignResult, read_scene
+Listeners with hearing loss
+    parse_audiogram, read_audiogram, age_audiogram, Audiogram
 Reports
     write_report
 Demo
@@ -125,6 +130,15 @@ _API: dict[str, str] = {
     "pair_from_files": "envpredict.pair",
     "PairResult": "envpredict.pair",
     "speech_sti": "envpredict.pair",
+    # two ears
+    "ir_ears": "envpredict.binaural",
+    "ir_ears_file": "envpredict.binaural",
+    "stipa_ears": "envpredict.binaural",
+    "stipa_ears_file": "envpredict.binaural",
+    "pair_ears": "envpredict.binaural",
+    "pair_ears_file": "envpredict.binaural",
+    "better_ear_sti": "envpredict.binaural",
+    "EarsResult": "envpredict.binaural",
     # envelope-power index
     "sepsm": "envpredict.envpower",
     "SepsmResult": "envpredict.envpower",
@@ -171,6 +185,11 @@ _API: dict[str, str] = {
     "predict_design_file": "envpredict.design",
     "DesignResult": "envpredict.design",
     "read_scene": "envpredict.roommodel",
+    # listeners with hearing loss (audiograms, ISO 7029 age presets)
+    "parse_audiogram": "envpredict.hearing",
+    "read_audiogram": "envpredict.tables",
+    "age_audiogram": "envpredict.hearing",
+    "Audiogram": "envpredict.hearing",
     "compare_all_pairs": "envpredict.stats",
     "compare_all_pairs_file": "envpredict.stats",
     # reports

@@ -27,6 +27,11 @@ Optional columns that feed the scoring (empty cell = the batch default):
 * ``calibration_db`` -- dB SPL of a full-scale RMS signal in the row's recording
   (STIPA rows, optional) or noise recording (IR rows);
 * ``sti_talker`` -- ``male`` or ``female`` speech spectrum and weights (IR and STIPA rows).
+* ``audiogram`` -- the listener's hearing levels (:mod:`envpredict.hearing`):
+  ``250:20;500:25;...`` (frequency in Hz : dB HL) or a CSV audiogram file; it raises
+  the STI's reception threshold (IR rows; STIPA rows with ``calibration_db``) or adds
+  the threshold-simulating noise of the pair indices (pair rows; needs
+  ``calibration_db``, the level of the pair's full-scale RMS in dB SPL). Audibility only.
 * ``inverted`` -- the processing's output for speech - noise (pair rows; the degraded
   file is its output for speech + noise): adds the envelope-power index
   (``sepsm_snr_env_db``) from the processed noise separated by phase inversion;
@@ -37,6 +42,16 @@ Optional columns that feed the scoring (empty cell = the batch default):
   and it is carried through like any other column.)
 
 Every other column (condition, talker, SNR, ...) is carried through unchanged.
+
+Two ears (``ears=True``, ``batch --ears``): every file to score is a two-channel
+recording, channel 0 the left ear and channel 1 the right (a pair's clean file may be
+mono); each row is scored ear by ear and combined by the better ear
+(:mod:`envpredict.binaural`). The index columns then hold the better ear's values, and
+each ear's index is added (:data:`EARS_STI_COLUMNS`, :data:`EARS_PAIR_COLUMNS`); IR rows
+leave out the decay columns (per-ear decay figures: ``envpredict ir --ears``), and a
+``channel`` or ``inverted`` column is refused. A condition's delay is found on the left
+ear and used for both; a row's own estimate is made per ear (``delay_ms`` shows the left
+ear's).
 
 Alignment of pair rows
 ----------------------
@@ -121,11 +136,14 @@ from .audio import THREAD_LIMIT_VARS, usable_cores
 from .exceptions import ComputationError, EnvpredictError, InputError
 
 from .tables import (  # noqa: F401  (the column vocabulary, re-exported for batch users)
+    AUDIOGRAM_COLUMN,
     CALIBRATION_COLUMN,
     CHANNEL_COLUMN,
     CLEAN_COLUMN,
     DEGRADED_COLUMN,
     DELAY_COLUMN,
+    EARS_PAIR_COLUMNS,
+    EARS_STI_COLUMNS,
     ERROR_COLUMN,
     IR_COLUMN,
     INVERTED_COLUMN,
@@ -266,11 +284,13 @@ def _where(path: Path, row: int | None = None, line: int | None = None, column: 
 #: Manifest option columns and the job keys they fill.
 _OPTION_KEYS: dict[str, str] = {CHANNEL_COLUMN: "channel", NOISE_COLUMN: "noise", SPEECH_LEVEL_COLUMN: "speech_level",
                                 SPEECH_LEVELS_COLUMN: "speech_levels", CALIBRATION_COLUMN: "calibration_db",
-                                STI_TALKER_COLUMN: "talker"}
+                                STI_TALKER_COLUMN: "talker", AUDIOGRAM_COLUMN: "audiogram"}
 
 
 def _option_value(path: Path, row: int, line: int, column: str, text: str, defaults: dict) -> Any:
     """Parse one option cell (empty: the batch default); errors name file, row and column."""
+    from .tables import load_audiogram
+
     from .sti import check_speech_level, check_talker, parse_noise_levels
 
     text = text.strip()
@@ -297,6 +317,8 @@ def _option_value(path: Path, row: int, line: int, column: str, text: str, defau
             return [float(v) for v in parse_noise_levels(text.replace(";", ","))]
         if column == SPEECH_LEVEL_COLUMN:
             return check_speech_level(text)
+        if column == AUDIOGRAM_COLUMN:
+            return load_audiogram(text, base=path.resolve().parent)
         return check_talker(text)
     except InputError as e:
         raise InputError(f"{_where(path, row, line, column)}: {e.what}", e.fix) from None
@@ -320,6 +342,8 @@ def read_manifest(
     noise_db: Sequence[float] | str | None = None,
     speech_level_dba: float = std.DEFAULT_SPEECH_LEVEL_DBA,
     talker: str = std.DEFAULT_TALKER,
+    ears: bool = False,
+    audiogram: Any = None,
 ) -> Manifest:
     """Read and validate a manifest (see the module docstring for its columns).
 
@@ -328,6 +352,10 @@ def read_manifest(
     path : the manifest CSV file (UTF-8, comma-separated, header on the first line).
     noise_db, speech_level_dba, talker : defaults for IR rows whose ``noise``,
         ``speech_level`` or ``sti_talker`` cell is empty (or absent).
+    ears : score every row's two-channel files as two ears (see the module docstring).
+    audiogram : the listener of rows whose ``audiogram`` cell is empty (or absent): an
+        :class:`~envpredict.hearing.Audiogram`, its text form or a CSV file
+        (:func:`envpredict.tables.load_audiogram`), or ``None`` (normal hearing).
 
     Raises
     ------
@@ -337,8 +365,11 @@ def read_manifest(
         audio file is a per-row error of the batch.
     """
     from .sti import check_speech_level, check_talker, parse_noise_levels
+    from .tables import load_audiogram
 
     p = checks.path(path, "manifest")
+    ears = checks.flag(ears, "ears")
+    listener = load_audiogram(audiogram)
     text = read_text(p, "manifest")
     noise = parse_noise_levels(noise_db)
     defaults = {
@@ -348,6 +379,7 @@ def read_manifest(
         "speech_levels": None,
         "calibration_db": None,
         "talker": check_talker(talker),
+        "audiogram": listener,
     }
     def bad(line: int, e: Exception) -> InputError:
         return InputError(f"{_where(p)}: line {line} is not valid CSV ({e})", "check the quotes on that line")
@@ -369,6 +401,10 @@ def read_manifest(
                 f"{_where(p, column=c)} has the name of a result column",
                 f"rename it (reserved: {', '.join(sorted(RESULT_COLUMNS))})",
             )
+    for c, fix in ((CHANNEL_COLUMN, "remove the column: the ears are channel 0 (left) and 1 (right)"),
+                   (INVERTED_COLUMN, "score the phase-inversion rows without --ears")):
+        if ears and c in seen:
+            raise InputError(f"{_where(p, column=c)} is given with the two-ear scoring (--ears)", fix)
     has_ir, has_stipa = IR_COLUMN in seen, STIPA_COLUMN in seen
     has_clean, has_deg = CLEAN_COLUMN in seen, DEGRADED_COLUMN in seen
     if has_clean != has_deg:
@@ -436,7 +472,9 @@ def read_manifest(
             q = Path(s).expanduser()
             return str(q if q.is_absolute() else base / q)
 
-        job: dict[str, Any] = {"row": row, "channel": opts["channel"]}
+        job: dict[str, Any] = {"row": row, "channel": opts["channel"], "audiogram": opts["audiogram"]}
+        if ears:
+            job["ears"] = True
         if ir:
             job.update(kind="ir", ir=full(ir), noise=opts["noise"], speech_level=opts["speech_level"],
                        talker=opts["talker"], speech_levels=opts["speech_levels"],
@@ -446,7 +484,7 @@ def read_manifest(
             job.update(kind="stipa", stipa=full(stipa), talker=opts["talker"],
                        calibration_db=opts["calibration_db"])
         else:
-            job.update(kind="pair", clean=full(clean), degraded=full(deg),
+            job.update(kind="pair", clean=full(clean), degraded=full(deg), calibration_db=opts["calibration_db"],
                        manifest_delay_ms=_delay_cell(p, row, line, delay_text) if delay_text else None,
                        inverted=full(inverted) if inverted else None)
         cells.append(tuple(rec))
@@ -454,7 +492,11 @@ def read_manifest(
     if not cells:
         raise InputError(f"{_where(p)} has a header but no rows", "add one row per item to score")
     sti_columns = IR_INDEX_COLUMNS if has_ir else STIPA_INDEX_COLUMNS if has_stipa else ()
+    if ears and sti_columns:
+        sti_columns = STIPA_INDEX_COLUMNS + EARS_STI_COLUMNS  # no decay columns: they are per ear
     index_columns = sti_columns + (PAIR_INDEX_COLUMNS if has_pair else ())
+    if ears and has_pair:
+        index_columns += EARS_PAIR_COLUMNS
     if has_pair and INVERTED_COLUMN in seen:
         index_columns += SEPSM_INDEX_COLUMNS
     index_columns = tuple(c for c in index_columns if c not in seen)  # delay_ms: the manifest's column
@@ -472,11 +514,16 @@ def _score_ir(job: dict) -> dict:
 
     levels = job.get("speech_levels")
     noise_rec = job.get("noise_recording")
-    r = sti_from_ir_file(job["ir"], channel=job.get("channel"),
-                         noise_db=None if noise_rec else job.get("noise"),
-                         speech_level_dba=None if levels else job.get("speech_level", std.DEFAULT_SPEECH_LEVEL_DBA),
-                         talker=job.get("talker", std.DEFAULT_TALKER), speech_db=levels,
-                         noise_recording=noise_rec, calibration_db=job.get("calibration_db") if noise_rec else None)
+    kw = dict(noise_db=None if noise_rec else job.get("noise"),
+              speech_level_dba=None if levels else job.get("speech_level", std.DEFAULT_SPEECH_LEVEL_DBA),
+              talker=job.get("talker", std.DEFAULT_TALKER), speech_db=levels,
+              noise_recording=noise_rec, calibration_db=job.get("calibration_db") if noise_rec else None,
+              audiogram=job.get("audiogram"))
+    if job.get("ears"):
+        from .binaural import ir_ears_file
+
+        return _ears_values(ir_ears_file(job["ir"], **kw))
+    r = sti_from_ir_file(job["ir"], channel=job.get("channel"), **kw)
     values = {
         "sti": float(r.sti.sti),
         "rating": r.sti.rating,
@@ -499,14 +546,32 @@ def _specific_cautions(r: Any) -> tuple[str, ...]:
     from . import cautions as cau
 
     generic = {cau.LIFE_SAFETY, cau.NO_NOISE, cau.NO_AUDITORY, cau.below_target(r.sti.sti)}
-    return tuple(c for c in r.cautions if c not in generic)
+    # the listener's audibility caution holds for every row with an audiogram (batch summary)
+    return tuple(c for c in r.cautions if c not in generic and not c.startswith("Listener: "))
+
+
+def _ears_values(e: Any) -> dict:
+    """The results-file values of a two-ear STI result: the better ear's STI and each ear's."""
+    from . import cautions as cau
+
+    generic = {cau.LIFE_SAFETY, cau.NO_NOISE, cau.NO_AUDITORY}
+    # the listener's audibility caution holds for every row with an audiogram (batch summary)
+    notes = [c for c in e.to_dict()["cautions"]
+             if c not in generic and not c.startswith(("Better ear: ", "Listener: "))]
+    return {"sti": float(e.better.sti), "rating": e.better.rating, **e.ear_indices, NOTES_COLUMN: "; ".join(notes)}
 
 
 def _score_stipa(job: dict) -> dict:
     from .direct import stipa_from_file
 
+    if job.get("ears"):
+        from .binaural import stipa_ears_file
+
+        return _ears_values(stipa_ears_file(job["stipa"], calibration_db=job.get("calibration_db"),
+                                            talker=job.get("talker", std.DEFAULT_TALKER),
+                                            audiogram=job.get("audiogram")))
     r = stipa_from_file(job["stipa"], channel=job.get("channel"), calibration_db=job.get("calibration_db"),
-                        talker=job.get("talker", std.DEFAULT_TALKER))
+                        talker=job.get("talker", std.DEFAULT_TALKER), audiogram=job.get("audiogram"))
     return {"sti": float(r.sti.sti), "rating": r.sti.rating, NOTES_COLUMN: "; ".join(_specific_cautions(r))}
 
 
@@ -514,13 +579,30 @@ def _score_pair(job: dict) -> dict:
     from .pair import pair_from_files
 
     delay_ms = job.get("delay_ms")
-    r = pair_from_files(job["clean"], job["degraded"], channel=job.get("channel"), align=job.get("align", True),
-                        max_delay_s=job.get("max_delay_s", std.PAIR_MAX_DELAY_S),
-                        delay_s=None if delay_ms is None else delay_ms / 1000.0, inverted_path=job.get("inverted"))
+    kw = dict(align=job.get("align", True), max_delay_s=job.get("max_delay_s", std.PAIR_MAX_DELAY_S),
+              delay_s=None if delay_ms is None else delay_ms / 1000.0, inverted_path=job.get("inverted"),
+              audiogram=job.get("audiogram"), calibration_db=job.get("calibration_db"))
+    if job.get("ears"):
+        from .binaural import pair_ears_file
+
+        e = pair_ears_file(job["clean"], job["degraded"], **kw)
+        values = _pair_values(job, e.left or e.right)
+        values.update({"stoi": e.stoi, "estoi": e.estoi, "ssti": e.ssti, "ssti_regression": e.ssti_regression,
+                       **e.ear_indices})
+        if e.left is None or e.right is None:
+            bad = "left" if e.left is None else "right"
+            why = e.errors[0 if bad == "left" else 1]
+            values[NOTES_COLUMN] = "; ".join(v for v in (values[NOTES_COLUMN], f"{bad} ear: no result ({why})") if v)
+        return values
+    return _pair_values(job, pair_from_files(job["clean"], job["degraded"], channel=job.get("channel"), **kw))
+
+
+def _pair_values(job: dict, r: Any) -> dict:
+    """The results-file values of one pair result (one ear of a two-ear row)."""
     delay_from = job.get("delay_from") or ("row" if r.delay_from == "search" else r.delay_from)
     confidence = job.get("delay_confidence") if delay_from == "condition" else (
         r.delay_confidence if delay_from == "row" else None)
-    notes = tuple(job.get("delay_notes") or ()) + r.notes
+    notes = tuple(job.get("delay_notes") or ()) + tuple(n for n in r.notes if not n.startswith("threshold-simulating"))
     return {"stoi": float(r.stoi), "estoi": float(r.estoi), "ssti": None if r.ssti is None else float(r.ssti),
             "ssti_regression": None if r.ssti_regression is None else float(r.ssti_regression),
             "delay_ms": float(r.delay_ms), "delay_from": delay_from,
@@ -638,7 +720,9 @@ def plan_delays(m: Manifest, jobs: Sequence[dict], alignment: Alignment | None =
     found: dict[str, Any] = {}
     for k, c in enumerate(todo):
         members = groups[c]
-        found[c] = common_delay([(j["clean"], j["degraded"], j.get("channel")) for j in members],
+        # two ears: the delay of the left ear (channel 0), used for both
+        found[c] = common_delay([(j["clean"], j["degraded"], 0 if j.get("ears") else j.get("channel"))
+                                 for j in members],
                                 max_delay_s=al.max_delay_s)
         if progress is not None:
             progress(k + 1, len(todo))
@@ -1251,6 +1335,8 @@ def run_batch(
     talker: str = std.DEFAULT_TALKER,
     progress: Callable[[int, int], None] | None = None,
     alignment: Alignment | None = None,
+    ears: bool = False,
+    audiogram: Any = None,
 ) -> BatchSummary:
     """Score every row of a manifest into a resumable results CSV file.
 
@@ -1270,6 +1356,9 @@ def run_batch(
         time left computed from it are right when resuming.
     alignment : how pair rows are aligned (default: one delay per condition, see
         :class:`Alignment` and the module docstring).
+    ears : score two-channel files as two ears, the better ear per octave band (see the
+        module docstring; with a :class:`Manifest`, read it with ``ears`` instead).
+    audiogram : the listener of rows without an ``audiogram`` cell (see :func:`read_manifest`).
 
     Returns
     -------
@@ -1291,6 +1380,9 @@ def run_batch(
     """
     if not isinstance(manifest, Manifest):
         manifest = checks.path(manifest, "manifest")
+    elif checks.flag(ears, "ears") and not all(j.get("ears") for j in manifest.jobs):
+        raise InputError("ears=True was given with a manifest read without it", "read it with read_manifest(..., "
+                         "ears=True)")
     if workers is not None:
         try:
             w = int(workers)
@@ -1312,7 +1404,8 @@ def run_batch(
     if scheduler is None and (workers or usable_cores()) > 1:
         start_workers_early()  # the pool's imports run while the manifest is read
     m = manifest if isinstance(manifest, Manifest) else read_manifest(
-        manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker)
+        manifest, noise_db=noise_db, speech_level_dba=speech_level_dba, talker=talker, ears=ears,
+        audiogram=audiogram)
     alignment = (alignment or Alignment()).check(m)
     with _quiet_dask() if scheduler is not None else contextlib.nullcontext():
         return _run_manifest(m, out, workers=workers, scheduler=scheduler, resume=resume, overwrite=overwrite,
@@ -1386,10 +1479,13 @@ def _batch_cautions(m: Manifest) -> tuple[str, ...]:
     """Cautions that hold for every STI of an IR batch."""
     from . import cautions as cau
 
+    from .hearing import CAUTION_AUDIBILITY
+
     ir_jobs = [j for j in m.jobs if j["kind"] == "ir"]
+    listener = [CAUTION_AUDIBILITY + " (rows with an audiogram)."] if any(j.get("audiogram") for j in m.jobs) else []
     if not ir_jobs and not any(j["kind"] == "stipa" for j in m.jobs):
-        return ()
-    out = [cau.LIFE_SAFETY]
+        return tuple(listener)
+    out = [cau.LIFE_SAFETY] + listener
     if any(j.get("noise") is None and j.get("noise_recording") is None for j in ir_jobs):
         out.append("Rows without noise levels hold only for a noise-free site: give the octave-band noise "
                    "at the listener in a 'noise' column or with --noise.")

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from . import checks
 from . import standards as std
+from .exceptions import InputError
 from .sti import format_index
 
 LIFE_SAFETY = (
@@ -44,3 +45,29 @@ def below_target(sti: float, requirement: float | None = None) -> str | None:
         return (f"STI {format_index(sti)} is below {std.VOICE_ALARM_TARGET_STI:.2f}, the value commonly "
                 "required of voice-alarm systems.")
     return None
+
+
+def listener_cautions(result) -> list[str]:
+    """The cautions of an STI for a listener with hearing loss (an
+    :class:`~envpredict.sti.StiResult` with an audiogram): audibility only, and the bands
+    the loss made inaudible. Empty for normal hearing.
+
+    Raises
+    ------
+    InputError
+        If ``result`` is not an StiResult.
+    """
+    from .hearing import CAUTION_AUDIBILITY, inaudible_bands_hz
+    from .sti import StiResult
+
+    if not isinstance(result, StiResult):
+        raise InputError(f"result is a {type(result).__name__}", "give an StiResult")
+    if result.audiogram is None:
+        return []
+    out = [f"Listener: {result.audiogram.source}. {CAUTION_AUDIBILITY}."]
+    gone = inaudible_bands_hz(result.speech_db, result.audiogram)
+    if gone:
+        out.append("The hearing loss puts the speech below the listener's threshold at "
+                   + ", ".join(f"{f:g} Hz" for f in gone) + ": those bands count less (nothing once the speech is "
+                   "15 dB or more below it).")
+    return out

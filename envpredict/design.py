@@ -24,7 +24,9 @@ from .roommodel import (
     IMAGE_FS, GridSpec, Room, Scene, Source, critical_distance, image_source_ir, level_dba, modulation_transfer,
     parse_scene, read_scene, source_terms,
 )
+from .hearing import CAUTION_AUDIBILITY, Audiogram, audiogram_summary, check_auditory, inaudible_bands_hz
 from .sti import StiResult, check_requirement, check_talker, format_index, sti_from_mtf, sti_many
+from .tables import load_audiogram
 
 #: The decimals of grid STI values in the JSON (as for a single STI).
 GRID_DECIMALS: int = 4
@@ -164,9 +166,11 @@ class DesignResult:
     cautions: tuple[str, ...]
     notes: tuple[str, ...]
     engine: str = "statistical"
+    audiogram: Audiogram | None = None
 
     def to_dict(self) -> dict:
         room: Room = self.scene.room
+        listener = {} if self.audiogram is None else {"audiogram": audiogram_summary(self.audiogram)}
         return jsonable({
             "index": "sti",
             "method": METHOD,
@@ -190,6 +194,7 @@ class DesignResult:
             "echo_criterion": ECHO_CRITERION,
             "cautions": list(self.cautions),
             "notes": list(self.notes),
+            **listener,
         })
 
 
@@ -202,11 +207,12 @@ def _source_dict(room: Room, s: Source) -> dict:
 
 
 def _listener(scene: Scene, name: str, pos: np.ndarray, *, talker: str, auditory: bool,
-              requirement: float) -> DesignListener:
+              requirement: float, audiogram: Audiogram | None = None) -> DesignListener:
     mtf, total = modulation_transfer(scene.room, scene.sources, pos[None, :])
     with np.errstate(divide="ignore"):
         speech_db = 10.0 * np.log10(total[0])
-    res = sti_from_mtf(mtf[0], noise_db=scene.noise_db, talker=talker, auditory=auditory, speech_db=speech_db)
+    res = sti_from_mtf(mtf[0], noise_db=scene.noise_db, talker=talker, auditory=auditory, speech_db=speech_db,
+                       audiogram=audiogram)
     res = replace(res, requirement=requirement)
     direct = []
     for s in scene.sources:
@@ -221,16 +227,18 @@ def _listener(scene: Scene, name: str, pos: np.ndarray, *, talker: str, auditory
 
 
 def grid_sti(scene: Scene, grid: GridSpec, *, talker: str = std.DEFAULT_TALKER, auditory: bool = True,
-             progress: Callable[[int, int], None] | None = None) -> np.ndarray:
+             progress: Callable[[int, int], None] | None = None, audiogram: Audiogram | None = None) -> np.ndarray:
     """STI at every point of ``grid``, shape (ny, nx): the modelled MTF and speech levels
-    rated by :func:`envpredict.sti.sti_many` (the helpers of :func:`sti_from_mtf`).
+    rated by :func:`envpredict.sti.sti_many` (the helpers of :func:`sti_from_mtf`), for a
+    listener with the hearing loss of ``audiogram`` when given.
 
     Raises
     ------
     InputError
         For a ``scene`` that is not a :class:`~envpredict.roommodel.Scene`, a ``grid``
-        that is not a :class:`~envpredict.roommodel.GridSpec`, an unknown talker or an
-        ``auditory`` that is not a flag.
+        that is not a :class:`~envpredict.roommodel.GridSpec`, an unknown talker, an
+        ``auditory`` that is not a flag, or an audiogram refused by
+        :func:`envpredict.hearing.check_auditory`.
     """
     if not isinstance(scene, Scene):
         raise InputError(f"scene is not a Scene ({type(scene).__name__})", "read it with read_scene or parse_scene")
@@ -238,6 +246,7 @@ def grid_sti(scene: Scene, grid: GridSpec, *, talker: str = std.DEFAULT_TALKER, 
         raise InputError(f"grid is not a GridSpec ({type(grid).__name__})", "take the grid of a checked scene")
     talker = check_talker(talker)
     auditory = checks.flag(auditory, "auditory")
+    audiogram = check_auditory(audiogram, auditory)
     pts = grid.points()
     out = np.empty(pts.shape[0])
     block = 20_000
@@ -245,7 +254,8 @@ def grid_sti(scene: Scene, grid: GridSpec, *, talker: str = std.DEFAULT_TALKER, 
         mtf, total = modulation_transfer(scene.room, scene.sources, pts[a:a + block])
         with np.errstate(divide="ignore"):
             speech_db = 10.0 * np.log10(total)
-        out[a:a + block] = sti_many(mtf, speech_db, scene.noise_db, talker=talker, auditory=auditory)
+        out[a:a + block] = sti_many(mtf, speech_db, scene.noise_db, talker=talker, auditory=auditory,
+                                    audiogram=audiogram)
         if progress:
             progress(min(a + block, pts.shape[0]), pts.shape[0])
     return out.reshape(grid.y_m.size, grid.x_m.size)
@@ -259,6 +269,7 @@ def predict_design(
     requirement: float | None = None,
     progress: Callable[[int, int], None] | None = None,
     engine: str = "statistical",
+    audiogram: Audiogram | str | Path | None = None,
 ) -> DesignResult:
     """Predict the STI at the scene's listeners and over its grid.
 
@@ -274,6 +285,9 @@ def predict_design(
         image-source impulse responses of the rectangular room (pyroomacoustics; needs
         ``room.dimensions_m``); the grid stays statistical, and each listener also carries
         the statistical STI for comparison.
+    audiogram : a listener with hearing loss (:mod:`envpredict.hearing`): an Audiogram, its
+        text form or a CSV file (:func:`envpredict.tables.load_audiogram`); it raises the
+        reception threshold of each band (audibility only). Needs ``auditory``.
 
     Returns
     -------
@@ -284,7 +298,7 @@ def predict_design(
     InputError
         A scene that does not pass :func:`envpredict.roommodel.parse_scene` (unknown keys,
         wrong lengths, impossible rooms, a listener at a loudspeaker, too large a grid), an
-        unknown talker or a requirement outside 0..1.
+        unknown talker, a requirement outside 0..1, or a refused audiogram.
 
     References
     ----------
@@ -304,24 +318,28 @@ def predict_design(
     req_given = requirement is not None
     req = check_requirement(requirement) if req_given else std.VOICE_ALARM_TARGET_STI
     engine = _check_engine(engine)
+    audiogram = check_auditory(load_audiogram(audiogram), auditory)
     if not isinstance(scene, Scene):
         scene = parse_scene(scene, talker=talker)
-    listeners = tuple(_listener(scene, n, p, talker=talker, auditory=auditory, requirement=req)
+    listeners = tuple(_listener(scene, n, p, talker=talker, auditory=auditory, requirement=req, audiogram=audiogram)
                       for n, p in scene.listeners)
     image_cautions: tuple[str, ...] = ()
     if engine == "image":
         listeners, image_cautions = _image_listeners(scene, listeners, talker=talker, auditory=auditory,
-                                                     requirement=req)
+                                                     requirement=req, audiogram=audiogram)
     grid = None
     if scene.grid is not None:
         g = scene.grid
         grid = DesignGrid(x_m=g.x_m, y_m=g.y_m, z_m=g.z_m, step_m=g.step_m,
-                          sti=grid_sti(scene, g, talker=talker, auditory=auditory, progress=progress),
+                          sti=grid_sti(scene, g, talker=talker, auditory=auditory, progress=progress,
+                                       audiogram=audiogram),
                           requirement=req)
     return DesignResult(scene=scene, listeners=listeners, grid=grid, talker=talker, auditory=bool(auditory),
                         requirement=req, requirement_given=req_given,
-                        cautions=_cautions(scene, listeners, grid, req, req_given, auditory) + image_cautions,
-                        notes=_notes(scene) + (IMAGE_NOTES if engine == "image" else ()), engine=engine)
+                        cautions=(_cautions(scene, listeners, grid, req, req_given, auditory, audiogram)
+                                  + image_cautions),
+                        notes=_notes(scene) + (IMAGE_NOTES if engine == "image" else ()), engine=engine,
+                        audiogram=audiogram)
 
 
 def predict_design_file(
@@ -332,6 +350,7 @@ def predict_design_file(
     requirement: float | None = None,
     progress: Callable[[int, int], None] | None = None,
     engine: str = "statistical",
+    audiogram: Audiogram | str | Path | None = None,
 ) -> DesignResult:
     """:func:`predict_design` of a scene file (JSON, or TOML with the suffix ``.toml``);
     every option is checked before the file is read.
@@ -346,8 +365,9 @@ def predict_design_file(
     engine = _check_engine(engine)
     if requirement is not None:
         check_requirement(requirement)
+    audiogram = check_auditory(load_audiogram(audiogram), auditory)
     return predict_design(read_scene(path, talker=talker), talker=talker, auditory=auditory,
-                          requirement=requirement, progress=progress, engine=engine)
+                          requirement=requirement, progress=progress, engine=engine, audiogram=audiogram)
 
 
 def _check_engine(engine: str) -> str:
@@ -367,7 +387,8 @@ IMAGE_NOTES = (
 
 
 def _image_listeners(scene: Scene, listeners: tuple[DesignListener, ...], *, talker: str, auditory: bool,
-                     requirement: float) -> tuple[tuple[DesignListener, ...], tuple[str, ...]]:
+                     requirement: float, audiogram: Audiogram | None = None
+                     ) -> tuple[tuple[DesignListener, ...], tuple[str, ...]]:
     """The listeners rated by the indirect method on image-source responses (the statistical
     STI kept beside each), and the cautions of those responses."""
     from . import cautions as cau_mod
@@ -380,9 +401,10 @@ def _image_listeners(scene: Scene, listeners: tuple[DesignListener, ...], *, tal
         ir, speech_db = image_source_ir(scene, li.position_m)
         speech_db = np.where(np.isfinite(speech_db), np.maximum(speech_db, lo), lo)
         res = sti_from_ir(0.5 * ir / np.max(np.abs(ir)), IMAGE_FS, noise_db=scene.noise_db, speech_db=speech_db,
-                          talker=talker, auditory=auditory, requirement=requirement)
+                          talker=talker, auditory=auditory, requirement=requirement, audiogram=audiogram)
         for c in res.cautions:
-            if c not in generic and not c.startswith("STI ") and f"{li.name}: {c}" not in extra:
+            if (c not in generic and not c.startswith(("STI ", "Listener: ", "The hearing loss puts"))
+                    and f"{li.name}: {c}" not in extra):
                 extra.append(f"{li.name}: {c}")
         out.append(replace(li, sti=res.sti, statistical_sti=li.sti.sti))
     diffs = [li.sti.sti - li.statistical_sti for li in out]
@@ -397,7 +419,7 @@ def _image_listeners(scene: Scene, listeners: tuple[DesignListener, ...], *, tal
 
 
 def _cautions(scene: Scene, listeners, grid: DesignGrid | None, req: float, req_given: bool,
-              auditory: bool) -> tuple[str, ...]:
+              auditory: bool, audiogram: Audiogram | None = None) -> tuple[str, ...]:
     out = [STATISTICAL]
     if not req_given:
         out.append(DEFAULT_REQUIREMENT)
@@ -420,6 +442,13 @@ def _cautions(scene: Scene, listeners, grid: DesignGrid | None, req: float, req_
         out.append(NO_NOISE)
     if not auditory:
         out.append(cau.NO_AUDITORY)
+    if audiogram is not None:
+        out.append(f"Listener: {audiogram.source}. {CAUTION_AUDIBILITY}.")
+        gone = [(li.name, inaudible_bands_hz(li.sti.speech_db, audiogram)) for li in listeners]
+        gone = [(n, g) for n, g in gone if g]
+        if gone:
+            out.append("The hearing loss puts the speech below the listener's threshold at "
+                       + "; ".join(f"{n} ({', '.join(f'{f:g}' for f in g)} Hz)" for n, g in gone) + ".")
     return tuple(out)
 
 

@@ -64,10 +64,12 @@ from .audio import (
 )
 from .bands import EnvelopeStream, check_rate_for_octaves, envelope_delays
 from .exceptions import InputError
+from .hearing import Audiogram
 from .modulation import ClockOffset, clock_offset, modulation_depths, mtf_from_test_signal
 from .results import jsonable
 from .signals import SETTLE_S
 from .sti import StiResult, check_requirement, check_talker, parse_noise_levels, sti_from_mtf
+from .tables import load_audiogram
 
 #: Frame length and smoothing of the energy detector of the usable part, s.
 FRAME_S: float = 0.050
@@ -628,6 +630,7 @@ def _finish(
     signal_s: Sequence[float],
     clock: Sequence[tuple[ClockOffset, float]],
     requirement: float | None = None,
+    audiogram: Audiogram | None = None,
 ) -> DirectResult:
     calibrated = calibration_db is not None
     if calibrated:
@@ -644,7 +647,7 @@ def _finish(
         la = None
     kw = dict(modulation_hz=modulation_hz, talker=talker, noise_db=noise_db,
               speech_level_dba=la if calibrated else std.DEFAULT_SPEECH_LEVEL_DBA, auditory=calibrated,
-              speech_db=band_db if calibrated else None)
+              speech_db=band_db if calibrated else None, audiogram=audiogram if calibrated else None)
     res = replace(sti_from_mtf(mtf_full, **kw), requirement=requirement)
     win = [sti_from_mtf(m, **kw).sti for m in mtf_windows]
     unc_win = float(np.std(win, ddof=1) / np.sqrt(len(win))) if len(win) > 1 else float("nan")
@@ -664,6 +667,7 @@ def _finish(
         cautions.append(NO_CALIBRATION)
     if noise_db is not None:
         cautions.append(ADDED_NOISE)
+    cautions.extend(cau.listener_cautions(res))
     if np.isfinite(unc_win) and unc_win > UNCERTAIN_STI:
         cautions.append(UNSTEADY.format(u=unc_win))
     need = std.STIPA_MIN_SECONDS if method == "STIPA" else std.FULL_STI_ANALYSIS_SECONDS + 2 * SETTLE_S
@@ -721,6 +725,16 @@ def _check_options(calibration_db, noise_db, talker):
     return cal, noise, talker
 
 
+def _check_listener(audiogram, calibration_db) -> Audiogram | None:
+    """The listener's audiogram (:func:`envpredict.tables.load_audiogram`); refused without
+    a calibration (the reception threshold it raises needs absolute levels)."""
+    audiogram = load_audiogram(audiogram)
+    if audiogram is not None and calibration_db is None:
+        raise InputError("an audiogram (or age) needs absolute levels, and no calibration was given",
+                         "give --calibration-db or --calibrator with --calibrator-level")
+    return audiogram
+
+
 def _check_talker_and_noise(talker, noise_db):
     """The option checks that come before the calibration (and its calibrator recording)."""
     check_talker(talker)
@@ -762,9 +776,11 @@ def _pooled_clock(clocks: Sequence[ClockOffset]) -> ClockOffset:
 
 
 def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_db, talker, name: str,
-           progress, calibration_source: str | None = None, requirement: float | None = None) -> DirectResult:
+           progress, calibration_source: str | None = None, requirement: float | None = None,
+           audiogram: Audiogram | str | None = None) -> DirectResult:
     cal, noise, talker = _check_options(calibration_db, noise_db, talker)
     requirement = check_requirement(requirement)
+    audiogram = _check_listener(audiogram, cal)
     nominal = np.asarray(std.STIPA_MODULATION_HZ, dtype=float)
     f_low = float(nominal.min())
     min_s = MIN_WINDOWS * MIN_PERIODS_PER_WINDOW / f_low
@@ -786,7 +802,7 @@ def _stipa(analyse: Callable[[float, _Ticks], _Analysed], calibration_db, noise_
     out = _finish("STIPA", depth / nom, mtf_w, std.STIPA_MODULATION_HZ, depth, nom, floor,
                   rec.band_ms, cal, noise, talker, [info], calibration_source,
                   local=local, signal_s=[(rec.part.signal_stop - rec.part.signal_start) / rec.fs],
-                  clock=[(clock, scale)], requirement=requirement)
+                  clock=[(clock, scale)], requirement=requirement, audiogram=audiogram)
     ticks.finish()
     return out
 
@@ -802,6 +818,7 @@ def stipa_from_recording(
     block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
     requirement: float | None = None,
+    audiogram: Audiogram | str | os.PathLike | None = None,
 ) -> DirectResult:
     """STI from a recording of the STIPA test signal (IEC 60268-16:2011, Annex B).
 
@@ -820,6 +837,9 @@ def stipa_from_recording(
     progress : optional ``progress(done, total)`` callback.
     requirement : the STI the system must reach; the result states whether it is met
         (on the unrounded value).
+    audiogram : a listener with hearing loss (:mod:`envpredict.hearing`): an Audiogram, its
+        text form or a CSV file (:func:`envpredict.tables.load_audiogram`); it raises the
+        reception threshold of each band (audibility only). Needs a calibration.
 
     Valid input: at least 2 x 2 periods of 0.63 Hz (6.3 s) of test signal plus 1.25 s at
     each end (8.9 s); 15-30 s is usual; at most :data:`MAX_RECORDING_S` (2 h). Not
@@ -842,7 +862,7 @@ def stipa_from_recording(
     """
     return _stipa(lambda min_s, ticks: _analyse_recording(x, fs, min_s, name, block_seconds=block_seconds,
                                                           ticks=ticks),
-                  calibration_db, noise_db, talker, name, progress, requirement=requirement)
+                  calibration_db, noise_db, talker, name, progress, requirement=requirement, audiogram=audiogram)
 
 
 def stipa_from_file(
@@ -859,6 +879,7 @@ def stipa_from_file(
     block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
     requirement: float | None = None,
+    audiogram: Audiogram | str | os.PathLike | None = None,
 ) -> DirectResult:
     """STI from a recording file of the STIPA test signal (IEC 60268-16:2011, Annex B).
 
@@ -874,7 +895,8 @@ def stipa_from_file(
     channel : channel of a multi-channel file (``None``: the file must be mono).
     name : what the recording is called in the result (default: the file name).
     block_seconds : length of the blocks read, s.
-    calibration_db, noise_db, talker, progress, requirement : as for :func:`stipa_from_recording`.
+    calibration_db, noise_db, talker, progress, requirement, audiogram : as for
+        :func:`stipa_from_recording`.
     calibrator, calibrator_level : instead of ``calibration_db``, a recording of a 1 kHz
         acoustic calibrator made with the same gain and its level in dB SPL
         (:func:`envpredict.audio.resolve_calibration`).
@@ -889,21 +911,24 @@ def stipa_from_file(
         For a file that cannot be read, or as :func:`stipa_from_recording`.
     """
     _check_talker_and_noise(talker, noise_db)
+    audiogram = load_audiogram(audiogram)
     cal, source = resolve_calibration(calibration_db, calibrator, calibrator_level,
                                       channel if calibrator_channel is None else calibrator_channel)
     name = Path(path).name if name is None else name
     return _stipa(lambda min_s, ticks: _analyse_file(path, channel, min_s, name, block_seconds=block_seconds,
                                                      ticks=ticks),
-                  cal, noise_db, talker, name, progress, source, requirement=requirement)
+                  cal, noise_db, talker, name, progress, source, requirement=requirement, audiogram=audiogram)
 
 
 def _full_sti(
     sources: Sequence[tuple[str, Callable[[float, str], _Analysed]]],
     calibration_db, noise_db, talker, progress, calibration_source: str | None = None,
     requirement: float | None = None,
+    audiogram: Audiogram | str | None = None,
 ) -> DirectResult:
     cal, noise, talker = _check_options(calibration_db, noise_db, talker)
     requirement = check_requirement(requirement)
+    audiogram = _check_listener(audiogram, cal)
     freqs = np.asarray(std.MODULATION_FREQUENCIES_HZ, dtype=float)
     nb, nf = len(std.OCTAVE_BANDS_HZ), freqs.size
     if len(sources) > nf or not sources:
@@ -989,7 +1014,7 @@ def _full_sti(
     out = _finish("full STI", depth / nom, mtf_w, std.MODULATION_FREQUENCIES_HZ, depth, nom,
                   floor, band_ms, cal, noise, talker, infos, calibration_source,
                   local=local, signal_s=signal_s, clock=[(pooled, max(scales.values(), key=lambda v: abs(v - 1)))],
-                  requirement=requirement)
+                  requirement=requirement, audiogram=audiogram)
     if progress:
         progress(nf + 1, nf + 1)
     return out
@@ -1004,6 +1029,7 @@ def full_sti_from_recordings(
     block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
     requirement: float | None = None,
+    audiogram: Audiogram | str | os.PathLike | None = None,
 ) -> DirectResult:
     """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16:2011, 6.1).
 
@@ -1016,7 +1042,7 @@ def full_sti_from_recordings(
     Parameters
     ----------
     recordings : sequence of ``(x, fs, name)``.
-    calibration_db, noise_db, talker : as for :func:`stipa_from_recording`.
+    calibration_db, noise_db, talker, requirement, audiogram : as for :func:`stipa_from_recording`.
     block_seconds : the arrays are processed in blocks of this length, exactly as files
         by :func:`full_sti_from_files`.
     progress : optional ``progress(done, total)`` callback (one step per recording).
@@ -1040,7 +1066,7 @@ def full_sti_from_recordings(
                                                               block_seconds=block_seconds)
 
     return _full_sti([source(x, fs, name) for x, fs, name in recordings], calibration_db, noise_db, talker,
-                     progress, requirement=requirement)
+                     progress, requirement=requirement, audiogram=audiogram)
 
 
 def recording_paths(paths: str | os.PathLike | Sequence[str | os.PathLike]) -> list[Path]:
@@ -1079,6 +1105,7 @@ def full_sti_from_files(
     block_seconds: float = BLOCK_SECONDS,
     progress: Callable[[int, int], None] | None = None,
     requirement: float | None = None,
+    audiogram: Audiogram | str | os.PathLike | None = None,
 ) -> DirectResult:
     """Full STI from the 14 recording files of the full-STI test signals (IEC 60268-16:2011, 6.1).
 
@@ -1090,7 +1117,7 @@ def full_sti_from_files(
     paths : the 14 files, any order, or folders holding them (each folder's audio files,
         hidden files skipped: :func:`recording_paths`).
     channel : channel of multi-channel files (``None``: the files must be mono).
-    calibration_db, noise_db, talker, block_seconds, progress : as for
+    calibration_db, noise_db, talker, block_seconds, progress, requirement, audiogram : as for
         :func:`full_sti_from_recordings`.
     calibrator, calibrator_level, calibrator_channel : as for :func:`stipa_from_file`.
 
@@ -1101,6 +1128,7 @@ def full_sti_from_files(
     """
     check_block_seconds(block_seconds)
     _check_talker_and_noise(talker, noise_db)
+    audiogram = load_audiogram(audiogram)
     cal, cal_source = resolve_calibration(calibration_db, calibrator, calibrator_level,
                                           channel if calibrator_channel is None else calibrator_channel)
     files = recording_paths(paths)
@@ -1116,4 +1144,4 @@ def full_sti_from_files(
                                                          block_seconds=block_seconds)
 
     return _full_sti([source(p) for p in files], cal, noise_db, talker, progress, cal_source,
-                     requirement=requirement)
+                     requirement=requirement, audiogram=audiogram)

@@ -15,6 +15,7 @@ from .audio import validate_signal
 from .bands import check_rate_for_octaves, octave_bands
 from .decay import DecayResult, check_impulse_response, decay_figures, onset_index
 from .exceptions import InputError
+from .hearing import Audiogram, check_auditory
 from .modulation import mtf_from_ir
 from .results import jsonable
 from .sti import (
@@ -27,6 +28,7 @@ from .sti import (
     parse_speech_levels,
     sti_from_mtf,
 )
+from .tables import load_audiogram
 
 if TYPE_CHECKING:
     from .deconvolve import DeconvolutionResult
@@ -99,6 +101,7 @@ def sti_from_ir(
     progress: Callable[[int, int], None] | None = None,
     speech_db: Sequence[float] | str | None = None,
     requirement: float | None = None,
+    audiogram: Audiogram | str | os.PathLike | None = None,
 ) -> IrResult:
     """STI (indirect method) and ISO 3382-1 decay figures from an impulse response.
 
@@ -124,6 +127,10 @@ def sti_from_ir(
         system's speech level, measured with a band level meter).
     requirement : the STI the system must reach (e.g. a local code's 0.50); the result
         then states whether it is met, judged on the unrounded value.
+    audiogram : a listener with hearing loss (:mod:`envpredict.hearing`): an Audiogram
+        (e.g. of :func:`envpredict.hearing.age_audiogram`), its text form
+        ``"250:20,500:25,..."`` or a CSV file (:func:`envpredict.tables.load_audiogram`);
+        it raises the reception threshold of each band (audibility only). Needs ``auditory``.
 
     Valid input: at least 0.79 s of response after its onset; the response should
     decay to its noise floor within the file. The array is taken as floating-point
@@ -147,18 +154,19 @@ def sti_from_ir(
         For an impulse response refused by the input rule (not numeric, not one channel, empty,
         NaN/inf, silent, clipped, a rate outside the supported range), too short, or not an impulse
         response, or an
-        option out of range (noise levels, speech level, talker).
+        option out of range (noise levels, speech level, talker), or a refused audiogram.
     """
     talker = check_talker(talker)
     speech, speech_level_dba = _speech_levels(speech_level_dba, speech_db)
     requirement = check_requirement(requirement)
+    audiogram = check_auditory(load_audiogram(audiogram), auditory)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
     x = validate_signal(ir, fs, name="impulse response")
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
     return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
                     progress=progress, label="the signal", speech_db=speech,
-                    notes=_speech_note(speech, speech_level_dba), requirement=requirement)
+                    notes=_speech_note(speech, speech_level_dba), requirement=requirement, audiogram=audiogram)
 
 
 def _speech_levels(speech_level_dba: float | None, speech_db) -> tuple[np.ndarray | None, float]:
@@ -184,7 +192,7 @@ def _speech_note(speech: np.ndarray | None, level_dba: float) -> tuple[str, ...]
 def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_dba: float, talker: str,
              auditory: bool, progress: Callable[[int, int], None] | None, label: str,
              speech_db: np.ndarray | None = None, notes: tuple[str, ...] = (),
-             requirement: float | None = None) -> IrResult:
+             requirement: float | None = None, audiogram: Audiogram | None = None) -> IrResult:
     """The indirect method on a validated response (options already checked)."""
     if x.size / fs < MIN_IR_SECONDS:  # too short to judge its shape, and for any figure
         raise InputError(
@@ -221,7 +229,7 @@ def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_d
     lengths = t0 + np.round(decay.crossing_s * fs).astype(int)
     mtf = mtf_from_ir(bands, fs, std.MODULATION_FREQUENCIES_HZ, lengths=lengths)
     res = replace(sti_from_mtf(mtf, noise_db=noise, speech_level_dba=speech_level_dba, talker=talker,
-                               auditory=auditory, speech_db=speech_db), requirement=requirement)
+                               auditory=auditory, speech_db=speech_db, audiogram=audiogram), requirement=requirement)
     if progress:
         progress(3, 3)
 
@@ -233,6 +241,7 @@ def _analyse(x: np.ndarray, fs: int, *, noise: np.ndarray | None, speech_level_d
         cautions.append(cau.NO_NOISE)
     if not auditory:
         cautions.append(cau.NO_AUDITORY)
+    cautions.extend(cau.listener_cautions(res))
     no_floor = ~np.isfinite(decay.noise_floor_db)
     cut = no_floor & (decay.range_db < TRUNCATION_RANGE_DB)
     if np.any(cut):
@@ -300,6 +309,7 @@ def sti_from_ir_file(
     requirement: float | None = None,
     sweep: str | os.PathLike | None = None,
     sweep_rate: int | None = None,
+    audiogram: Audiogram | str | os.PathLike | None = None,
 ) -> IrResult:
     """STI (indirect method) and ISO 3382-1 decay figures of an impulse-response file.
 
@@ -312,8 +322,8 @@ def sti_from_ir_file(
     ----------
     path : WAV, FLAC or OGG file holding the impulse response.
     channel : channel of a multi-channel file (0 = first); ``None`` requires a mono file.
-    noise_db, speech_level_dba, talker, auditory, progress, speech_db, requirement : as for
-        :func:`sti_from_ir`.
+    noise_db, speech_level_dba, talker, auditory, progress, speech_db, requirement, audiogram :
+        as for :func:`sti_from_ir`.
     noise_recording : instead of ``noise_db``, a calibrated recording of the site's
         background noise at the listener; its octave-band levels (Leq over the whole
         file, :func:`envpredict.audio.octave_band_levels`) are the noise levels.
@@ -343,6 +353,7 @@ def sti_from_ir_file(
     talker = check_talker(talker)
     speech, speech_level_dba = _speech_levels(speech_level_dba, speech_db)
     requirement = check_requirement(requirement)
+    audiogram = check_auditory(load_audiogram(audiogram), auditory)
     notes = _speech_note(speech, speech_level_dba)
     noise = parse_noise_levels(noise_db) if noise_db is not None else None
     calibrated = calibration_db is not None or calibrator is not None or calibrator_level is not None
@@ -373,7 +384,7 @@ def sti_from_ir_file(
         dec = deconvolve_sweep_file(path, sweep, channel=channel, sweep_rate=sweep_rate)
         res = _analyse(dec.ir, dec.fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker,
                        auditory=auditory, progress=progress, label=f"the response recovered from '{name}'",
-                       speech_db=speech, notes=notes, requirement=requirement)
+                       speech_db=speech, notes=notes, requirement=requirement, audiogram=audiogram)
         return replace(res, cautions=res.cautions + dec.cautions, deconvolution=dec)
     # validated once, as it is read, by the clipping rule of the file's sample format
     # (floating-point files may peak above 1.0; see envpredict.audio.SignalCheck)
@@ -381,7 +392,8 @@ def sti_from_ir_file(
     fs = int(fs)
     check_rate_for_octaves(fs, "impulse response")
     return _analyse(x, fs, noise=noise, speech_level_dba=speech_level_dba, talker=talker, auditory=auditory,
-                    progress=progress, label=f"'{name}'", speech_db=speech, notes=notes, requirement=requirement)
+                    progress=progress, label=f"'{name}'", speech_db=speech, notes=notes, requirement=requirement,
+                    audiogram=audiogram)
 
 
 def _printable(name: str) -> str:

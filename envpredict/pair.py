@@ -46,6 +46,9 @@ from .bands import EnvelopeStream
 from .correlation import CorrelationResult, frame_count, stoi_estoi_stream
 from .envpower import SepsmResult
 from .exceptions import ComputationError, InputError
+from .hearing import (
+    CAUTION_AUDIBILITY, DEFAULT_NOISE_SEED, Audiogram, audiogram_summary, threshold_noise, threshold_noise_band_db,
+)
 from .modulation import mtf_from_pair_ncm, mtf_from_pair_regression
 from .results import jsonable
 
@@ -250,6 +253,10 @@ class PairResult:
         signal and the processed noise alone, when the noise was given; else ``None``.
     separation : the processed speech and noise separated by phase inversion (output SNR
         per octave band), when the inverted counterpart was given; else ``None``.
+    audiogram, calibration_db : the listener with hearing loss whose threshold-simulating
+        noise was added to the degraded signal (and to the noise of ``sepsm``), and the
+        calibration (dB SPL of the degraded file's full-scale RMS) that set its level; else
+        ``None`` (normal hearing).
     fs : analysis sample rate (the clean signal's), Hz; ``fs_clean``, ``fs_degraded``
         the input rates.
     duration_s : length of the common (aligned, trimmed) part, s.
@@ -283,6 +290,8 @@ class PairResult:
     correlation_at_delay: float | None = None
     sepsm: "SepsmResult | None" = None
     separation: "Separation | None" = None
+    audiogram: Audiogram | None = None
+    calibration_db: float | None = None
 
     def timeline(self) -> dict:
         """Local STOI and ESTOI in fixed time bins of the common part (NaN: no speech)."""
@@ -368,9 +377,17 @@ class PairResult:
                                    "on the same envelopes: m = slope x mean(clean)/mean(degraded); follows "
                                    "m = 1/(1+N/S) for steady noise",
             },
-            "cautions": [],
+            "cautions": [] if self.audiogram is None else [_audibility_caution(self.audiogram)],
             "notes": list(self.notes),
+            **({} if self.audiogram is None else {"audiogram": audiogram_summary(self.audiogram),
+                                                  "calibration_db": self.calibration_db}),
         })
+
+
+def _audibility_caution(audiogram: Audiogram) -> str:
+    return (f"Listener: {audiogram.source}. {CAUTION_AUDIBILITY}: a noise shaped like the listener's raised "
+            "threshold was added to the degraded signal (and to the noise of the envelope-power index), so that "
+            "what the listener cannot hear stops counting.")
 
 
 # ---------------------------------------------------------------------------
@@ -570,6 +587,7 @@ def _pair(
     progress: Callable[[int, int], None] | None,
     delay_method: str = DEFAULT_DELAY_METHOD,
     delay_s: float | None = None,
+    listener: tuple[Audiogram, float, int] | None = None,
 ) -> PairResult:
     max_delay_s, chunk_s = _check_options(max_delay_s, chunk_s)
     delay_s = _check_delay(delay_s)
@@ -577,6 +595,9 @@ def _pair(
     al = _align(clean, degraded, align=align, max_delay_s=max_delay_s, delay_method=delay_method, delay_s=delay_s)
     notes = list(al.notes)
     c_al, d_al, n_common, lag = al.clean, al.degraded, al.n_common, al.lag
+    if listener is not None:  # the listener's threshold, after alignment so the delay search never sees it
+        d_al, note = _with_threshold_noise(d_al, *listener)
+        notes.extend(note)
 
     # STOI / ESTOI on the 10 kHz grid
     c10 = c_al if fs == std.STOI_FS else Resampled(c_al, std.STOI_FS)
@@ -636,7 +657,51 @@ def _pair(
         delay_confidence=al.confidence,
         own_delay_ms=None if al.own_lag is None else al.own_lag / fs * 1000.0,
         correlation_at_delay=al.corr_at_delay,
+        audiogram=None if listener is None else listener[0],
+        calibration_db=None if listener is None else listener[1],
     )
+
+
+class _PlusNoise(Source):
+    """A source with a noise (an array of its length) added, read a stretch at a time."""
+
+    def __init__(self, src: Source, noise: np.ndarray) -> None:
+        self.src, self.noise = src, noise
+        self.n, self.fs, self.name, self.subtype = src.n, src.fs, src.name, src.subtype
+
+    def _read(self, a: int, b: int) -> np.ndarray:
+        return self.src.read(a, b) + self.noise[a:b]
+
+
+def _with_threshold_noise(src: Source, audiogram: Audiogram, calibration_db: float, seed: int
+                          ) -> tuple[Source, tuple[str, ...]]:
+    """``src`` with the listener's threshold-simulating noise added
+    (:func:`envpredict.hearing.threshold_noise`), and the note that says so."""
+    noise = threshold_noise(audiogram, src.n, src.fs, calibration_db, seed=seed)
+    if noise is None:
+        return src, ("the audiogram is nowhere above 0 dB HL: no threshold noise was added",)
+    levels = threshold_noise_band_db(audiogram)
+    shown = ", ".join(f"{f:g}: {'-' if not np.isfinite(v) else f'{v:.0f}'}" for f, v in zip(audiogram.bands_hz, levels))
+    return _PlusNoise(src, noise), (
+        f"threshold-simulating noise added to the degraded signal (octave-band levels, Hz: dB SPL, {shown}; the "
+        f"excess of the listener's reception threshold over the normal one, IEC 60268-16 Table A.4 plus the "
+        f"hearing loss; calibration {calibration_db:g} dB SPL for full-scale RMS; seed {seed})",)
+
+
+def _check_listener(audiogram, calibration_db, seed) -> tuple[Audiogram, float, int] | None:
+    """The listener of a pair job: an audiogram needs the calibration of the degraded signal."""
+    from .audio import check_calibration_db
+    from .tables import load_audiogram
+
+    audiogram = load_audiogram(audiogram)
+    cal = check_calibration_db(calibration_db)
+    seed = checks.number(seed, "noise seed", lo=0, hi=2**63 - 1, integer=True)
+    if audiogram is None:
+        return None
+    if cal is None:
+        raise InputError("an audiogram (or age) was given without a calibration: audibility needs absolute levels",
+                         "give --calibration-db, the dB SPL of a full-scale RMS signal in the degraded file")
+    return audiogram, cal, seed
 
 
 def pair_indices(
@@ -652,6 +717,9 @@ def pair_indices(
     delay_method: str = DEFAULT_DELAY_METHOD,
     delay_s: float | None = None,
     noise: np.ndarray | None = None,
+    audiogram: Audiogram | str | os.PathLike | None = None,
+    calibration_db: float | None = None,
+    seed: int = DEFAULT_NOISE_SEED,
 ) -> PairResult:
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, aligned and trimmed.
 
@@ -688,6 +756,15 @@ def pair_indices(
     noise : the noise alone as it is in ``degraded`` (same rate, same length, processed
         the same way); adds the envelope-power index (``sepsm``,
         :func:`envpredict.envpower.sepsm`) of ``degraded`` and ``noise``.
+    audiogram : a listener with hearing loss (:mod:`envpredict.hearing`; an Audiogram, its
+        text form or a CSV file): a noise with the spectrum of the listener's raised
+        threshold (:func:`envpredict.hearing.threshold_noise`) is added to the degraded
+        signal after alignment, and to ``noise`` and ``degraded`` for the envelope-power
+        index, so that what the listener cannot hear stops counting. Audibility only: the
+        suprathreshold deficits of sensorineural loss are not modelled. Needs
+        ``calibration_db``. 0 dB HL (or better) everywhere adds nothing.
+    calibration_db : dB SPL of a full-scale RMS signal in ``degraded`` (with ``audiogram``).
+    seed : seed of the threshold-simulating noise (the same seed, the same noise).
 
     Valid range
     -----------
@@ -713,16 +790,18 @@ def pair_indices(
     ------
     InputError
         For files or signals refused by the input rule, a pair that does not match, or an
-        option out of range (``align`` not True or False, ``max_delay_s``, ``chunk_s``).
+        option out of range (``align`` not True or False, ``max_delay_s``, ``chunk_s``), or an
+        audiogram refused or given without ``calibration_db``.
     """
     align = checks.flag(align, "align")
+    listener = _check_listener(audiogram, calibration_db, seed)
     c = _as_pair_source(clean, fs, "clean signal")
     d = _as_pair_source(degraded, fs if fs_degraded is None else fs_degraded, "degraded signal")
     res = _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
-                delay_method=delay_method, delay_s=delay_s)
+                delay_method=delay_method, delay_s=delay_s, listener=listener)
     if noise is None:
         return res
-    return _with_sepsm(res, np.asarray(degraded), np.asarray(noise), d.fs, d.fs)
+    return _with_sepsm(res, np.asarray(degraded), np.asarray(noise), d.fs, d.fs, listener)
 
 
 def pair_from_files(
@@ -740,6 +819,9 @@ def pair_from_files(
     delay_s: float | None = None,
     noise_path: str | os.PathLike | None = None,
     inverted_path: str | os.PathLike | None = None,
+    audiogram: Audiogram | str | os.PathLike | None = None,
+    calibration_db: float | None = None,
+    seed: int = DEFAULT_NOISE_SEED,
 ) -> PairResult:
     """:func:`pair_indices` of two audio files, read block by block (bounded memory).
 
@@ -756,6 +838,8 @@ def pair_from_files(
     speech and noise are separated by phase inversion (``separation``: output SNR per
     octave band) and the derived noise feeds the envelope-power index. A file that is not
     the counterpart (its derived noise holds speech) is refused.
+    ``audiogram``, ``calibration_db``, ``seed``: the listener, as for :func:`pair_indices`
+    (the calibration is that of the degraded file).
 
     Raises
     ------
@@ -764,6 +848,7 @@ def pair_from_files(
         not match, or an option out of range.
     """
     align = checks.flag(align, "align")
+    listener = _check_listener(audiogram, calibration_db, seed)
     cc = channel if clean_channel is None else clean_channel
     dc = channel if degraded_channel is None else degraded_channel
     with (FileSource(clean_path, cc if _channels(clean_path, "clean") > 1 else None, name="clean") as c,
@@ -775,15 +860,15 @@ def pair_from_files(
             if extra is not None:  # refuse a mismatched file before the (slower) pair work
                 _noise_info(extra, d, what)
         res = _pair(c, d, align=align, max_delay_s=max_delay_s, chunk_s=chunk_s, progress=progress,
-                    delay_method=delay_method, delay_s=delay_s)
+                    delay_method=delay_method, delay_s=delay_s, listener=listener)
         if inverted_path is not None:
             with FileSource(inverted_path, dc if _channels(inverted_path, "inverted") > 1 else None,
                             name="inverted") as inv:
-                return _separate(res, c, d.read(0, d.n), inv.read(0, inv.n), d.fs, inv.fs, max_delay_s)
+                return _separate(res, c, d.read(0, d.n), inv.read(0, inv.n), d.fs, inv.fs, max_delay_s, listener)
         if noise_path is None:
             return res
         with FileSource(noise_path, dc if _channels(noise_path, "noise") > 1 else None, name="noise") as nz:
-            return _with_sepsm(res, d.read(0, d.n), nz.read(0, nz.n), d.fs, nz.fs)
+            return _with_sepsm(res, d.read(0, d.n), nz.read(0, nz.n), d.fs, nz.fs, listener)
 
 
 def _noise_info(noise_path: str | os.PathLike, degraded: Source, what: str = "noise") -> None:
@@ -804,8 +889,10 @@ def _noise_info(noise_path: str | os.PathLike, degraded: Source, what: str = "no
         )
 
 
-def _with_sepsm(res: PairResult, degraded: np.ndarray, noise: np.ndarray, fs_d: int, fs_n: int) -> PairResult:
-    """The pair result with the envelope-power index of the degraded signal and its noise."""
+def _with_sepsm(res: PairResult, degraded: np.ndarray, noise: np.ndarray, fs_d: int, fs_n: int,
+                listener: tuple[Audiogram, float, int] | None = None) -> PairResult:
+    """The pair result with the envelope-power index of the degraded signal and its noise
+    (both with the listener's threshold noise added, when there is a listener)."""
     import dataclasses
 
     from .envpower import sepsm
@@ -816,7 +903,21 @@ def _with_sepsm(res: PairResult, degraded: np.ndarray, noise: np.ndarray, fs_d: 
             f"({degraded.size} samples at {fs_d} Hz)",
             "give the noise alone exactly as it is in the degraded signal: same rate, same length",
         )
+    degraded, noise = _threshold_on_both(degraded, noise, fs_d, listener)
     return dataclasses.replace(res, sepsm=sepsm(degraded, noise, fs_d))
+
+
+def _threshold_on_both(degraded: np.ndarray, noise: np.ndarray, fs: int,
+                       listener: tuple[Audiogram, float, int] | None) -> tuple[np.ndarray, np.ndarray]:
+    """The degraded signal and its noise alone, each with the same threshold-simulating
+    noise added (the envelope-power index then sees it as part of the masker)."""
+    if listener is None:
+        return degraded, noise
+    audiogram, cal, seed = listener
+    t = threshold_noise(audiogram, int(np.asarray(degraded).size), fs, cal, seed=seed)
+    if t is None:
+        return degraded, noise
+    return np.asarray(degraded, dtype=float) + t, np.asarray(noise, dtype=float) + t
 
 
 @dataclass(frozen=True)
@@ -884,7 +985,8 @@ def _band_powers(x: np.ndarray, fs: int) -> np.ndarray:
 
 
 def _separate(res: PairResult, clean: Source, degraded: np.ndarray, inverted: np.ndarray,
-              fs_d: int, fs_i: int, max_delay_s: float) -> PairResult:
+              fs_d: int, fs_i: int, max_delay_s: float,
+              listener: tuple[Audiogram, float, int] | None = None) -> PairResult:
     """The pair result with the phase-inversion separation and the envelope-power index of
     the degraded signal and the derived noise."""
     import dataclasses
@@ -918,6 +1020,7 @@ def _separate(res: PairResult, clean: Source, degraded: np.ndarray, inverted: np
         snr = 10 * np.log10(ps / pn)
         broad = 10 * math.log10(float(np.mean(speech ** 2)) / max(float(np.mean(noise ** 2)), 1e-30))
     sep = Separation(std.OCTAVE_BANDS_HZ, snr, broad, rs, rn)
+    degraded, noise = _threshold_on_both(degraded, noise, fs_d, listener)
     return dataclasses.replace(res, separation=sep, sepsm=sepsm(degraded, noise, fs_d))
 
 

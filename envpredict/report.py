@@ -473,6 +473,8 @@ def _sti_headline(d: Mapping) -> list[tuple[str, Cell]]:
 
 
 def _page_ir(d: Mapping) -> Page:
+    if d.get("binaural"):
+        return _page_ears(d, False)
     p = Page(headline=_sti_headline(d))
     p.figures += [_mtf_heatmap(d, False), _ti_figure(d)]
     dec_fig = _decay_figure(d)
@@ -498,6 +500,8 @@ def _page_ir(d: Mapping) -> Page:
 
 
 def _page_stipa(d: Mapping) -> Page:
+    if d.get("binaural"):
+        return _page_ears(d, True)
     p = Page(headline=_sti_headline(d))
     if d.get("uncertainty") is not None:
         from .sti import verdict_decimals
@@ -550,6 +554,8 @@ def _first(d: Mapping, *keys: str) -> Any:
 
 
 def _page_pair(d: Mapping) -> Page:
+    if d.get("binaural"):
+        return _page_pair_ears(d)
     p = Page()
     for key, label, spec in (("stoi", "STOI", ".3f"), ("estoi", "ESTOI", ".3f"), ("ssti", "speech-based STI", ".3f"),
                              ("delay_ms", "delay", ".1f")):
@@ -1623,6 +1629,122 @@ def _page_design(d: Mapping) -> Page:
     return p
 
 
+# ---------------------------------------------------------------------------
+# Two ears (``--ears``): the interaural difference per octave band
+# ---------------------------------------------------------------------------
+
+def _ears_figure(d: Mapping) -> Figure:
+    """Each ear's band index (MTI; for a pair the speech-based STI's TI) and the left-minus-right
+    difference per octave band, the better ear marked."""
+    new = _mpl()
+    b = d["binaural"]
+    bands = [float(f) for f in b["bands_hz"]]
+    left, right, diff = _arr(b["mti_left"]), _arr(b["mti_right"]), _arr(b["mti_difference"])
+    what = "TI of the speech-based STI" if "ssti_left" in b else "MTI"
+    fig = new(10.0, 5.6)
+    gs = fig.add_gridspec(2, 1, height_ratios=[2.0, 1.2], hspace=0.35)
+    ax = fig.add_subplot(gs[0])
+    x = np.arange(len(bands))
+    w = 0.38
+    ax.bar(x - w / 2, np.nan_to_num(left), w, color=STEEL, label="left ear")
+    ax.bar(x + w / 2, np.nan_to_num(right), w, color=COPPER, label="right ear")
+    for k, ear in enumerate(b["better_ear"]):
+        v = left[k] if ear == "left" else right[k]
+        if np.isfinite(v):
+            ax.text(x[k] + (-w / 2 if ear == "left" else w / 2), v + 0.02, "better", ha="center", va="bottom",
+                    fontsize=8.5, color=INK)
+    ax.set_xticks(x, [_band_label(f) for f in bands])
+    ax.set_ylim(0, 1.12)
+    ax.set_ylabel(what)
+    ax.grid(axis="x", visible=False)
+    ax.legend(loc="lower right", ncols=2, fontsize=9.5, bbox_to_anchor=(1.0, 1.0), borderaxespad=0.2)
+    ax.set_title(f"{what} of each ear per octave band")
+    ax2 = fig.add_subplot(gs[1])
+    ax2.bar(x, np.nan_to_num(diff), 0.6, color=[STEEL if v >= 0 else COPPER for v in np.nan_to_num(diff)])
+    ax2.axhline(0, color=INK, lw=1.0)
+    lim = max(0.1, float(np.nanmax(np.abs(diff))) * 1.2) if np.isfinite(diff).any() else 0.1
+    ax2.set_ylim(-lim, lim)
+    ax2.set_xticks(x, [_band_label(f) for f in bands])
+    ax2.set_xlabel("octave band")
+    ax2.set_ylabel("left minus right")
+    ax2.grid(axis="x", visible=False)
+    ax2.set_title("Interaural difference (above zero: the left ear is better)")
+    return Figure("interaural_difference", f"{what} of the left and right ear per octave band (top) and their "
+                  "difference, left minus right (bottom). The better-ear value takes, in each band, the ear "
+                  "marked \u201cbetter\u201d.", _png(fig))
+
+
+def _ears_tables(d: Mapping) -> list[Table]:
+    b = d["binaural"]
+    rows = [[Cell(_band_label(float(f))), num(d, f"binaural.mti_left.{k}", ".3f"),
+             num(d, f"binaural.mti_right.{k}", ".3f"), num(d, f"binaural.mti_difference.{k}", "+.3f"),
+             txt(b["better_ear"][k])] for k, f in enumerate(b["bands_hz"])]
+    what = "TI (speech-based STI)" if "ssti_left" in b else "MTI"
+    out = [Table(f"Two ears per octave band: {what}", ["band", "left", "right", "left minus right", "better ear"],
+                 rows, f"Rule: {b['rule']}. Source: {b['source']}.")]
+    keys = [k for k in ("sti", "stoi", "estoi", "ssti") if f"{k}_left" in b]
+    names = {"sti": "STI", "stoi": "STOI", "estoi": "ESTOI", "ssti": "speech-based STI"}
+    out.append(Table("Each ear and the better ear", ["index", "left ear", "right ear", "better ear"],
+                     [[Cell(names[k]), num(d, f"binaural.{k}_left", ".3f"), num(d, f"binaural.{k}_right", ".3f"),
+                       num(d, k, ".3f")] for k in keys]))
+    for ear, msg in (b.get("errors") or {}).items():
+        if msg:
+            out[-1].note += f"The {ear} ear gave no result: {msg}. "
+    return out
+
+
+def _page_ears(d: Mapping, stipa: bool) -> Page:
+    """An STI page of two ears: the better-ear STI, its MTF and MTI, the interaural difference."""
+    p = Page(headline=_sti_headline(d))
+    p.headline[1:1] = [("left ear", num(d, "binaural.sti_left", ".2f")), ("right ear", num(d, "binaural.sti_right",
+                                                                                          ".2f"))]
+    p.figures += [_ears_figure(d), _ti_figure(d), _mtf_heatmap(d, stipa)]
+    p.tables += _ears_tables(d) + _sti_tables(d, stipa)
+    p.notes.append("Each ear's full result (decay figures, uncertainty, levels) is in result.json under "
+                   "ears.left and ears.right.")
+    p.notes += [str(n) for n in d.get("notes") or []]
+    return p
+
+
+def _page_pair_ears(d: Mapping) -> Page:
+    p = Page()
+    for key, label in (("stoi", "STOI, better ear"), ("estoi", "ESTOI, better ear"),
+                       ("ssti", "speech-based STI, better ear")):
+        if d.get(key) is not None:
+            p.headline.append((label, num(d, key, ".3f")))
+    p.figures.append(_ears_figure(d))
+    p.tables += _ears_tables(d)
+    p.notes.append("Each ear's full result (per band, over time, alignment) is in result.json under ears.left "
+                   "and ears.right.")
+    p.notes += [str(n) for n in d.get("notes") or []]
+    return p
+def _listener_tables(d: Mapping) -> list[Table]:
+    """The listener's audiogram (issue 17), for any kind whose result carries one: hearing
+    level per octave band, the listener's threshold, and whether the loss made the band
+    inaudible."""
+    a = d.get("audiogram")
+    if not isinstance(a, Mapping):
+        return []
+    gone = a.get("inaudible_bands_hz")
+    filled = set(a.get("filled_bands_hz") or [])
+    rows = []
+    for k, fc in enumerate(a["bands_hz"]):
+        row = [Cell(_band_label(fc)), num(d, f"audiogram.band_hl_db.{k}", ".0f"),
+               txt("filled" if fc in filled else "measured"),
+               num(d, f"audiogram.threshold_spl_db.{k}", ".1f"), num(d, f"audiogram.reception_threshold_db.{k}", ".1f")]
+        if gone is not None:
+            row.append(Cell("inaudible", cls="fail") if fc in gone else txt("audible"))
+        rows.append(row)
+    head = ["band", "hearing loss, dB HL", "value", "pure-tone threshold, dB SPL (free field)",
+            "reception threshold used, dB"]
+    if gone is not None:
+        head.append("made inaudible by the loss")
+    measured = ", ".join(f"{f:g} Hz: {round(v, 1):g}" for f, v in zip(a["measured_hz"], a["measured_hl_db"]))
+    note = (f"Audiogram ({a.get('source')}): {measured} dB HL. " + "".join(f"{n}. " for n in a.get("notes") or [])
+            + "Audibility only: the suprathreshold deficits of sensorineural loss are not modelled.")
+    return [Table("Listener: hearing loss per octave band", head, rows, note)]
+
+
 _PAGES: dict[str, Callable[[Mapping], Page]] = {
     "ir": _page_ir, "stipa": _page_stipa, "fullsti": _page_stipa, "pair": _page_pair, "compare": _page_compare,
     "sweep": _page_sweep, "inspect": _page_inspect, "survey": _page_survey, "design": _page_design,
@@ -2027,6 +2149,7 @@ def write_report(
     with _style():
         try:
             page = _PAGES[kind](result)
+            page.tables += _listener_tables(result)
         except (KeyError, IndexError, TypeError, ValueError, AttributeError) as e:
             # the page reads the result's fields by name and shape: a dictionary that lacks
             # one, or holds one of another shape, is not a result of this kind

@@ -673,3 +673,48 @@ SEPSM_M: float = 8000.0
 #: rooms", JASA 80(3), 837-845 (1986); from memory). Shown beside comparisons of the STI
 #: family (sti, ssti, ssti_regression).
 STI_JND: float = 0.03
+
+# ---------------------------------------------------------------------------
+# Listeners with hearing loss (issue 17): audiograms, ISO 389-7, ISO 7029
+# ---------------------------------------------------------------------------
+
+#: Audiometric frequencies an audiogram may name, Hz (pure-tone audiometry; ISO 8253-1 and
+#: ISO 7029 use these eleven from 125 Hz to 8 kHz).
+AUDIOMETRIC_FREQUENCIES_HZ: tuple[float, ...] = (125.0, 250.0, 500.0, 750.0, 1000.0, 1500.0, 2000.0, 3000.0,
+                                                 4000.0, 6000.0, 8000.0)
+
+#: Range of hearing levels an audiometer reports, dB HL (the usual audiometer range: -10 dB HL
+#: at best, 120 dB HL at most; common practice, no source).
+HEARING_LEVEL_RANGE_DB: tuple[float, float] = (-10.0, 120.0)
+
+#: Reference threshold of hearing under free-field listening (frontal incidence, binaural),
+#: dB SPL, at :data:`AUDIOMETRIC_FREQUENCIES_HZ`: the sound pressure level of 0 dB HL in a
+#: free field. Source: ISO 389-7:2005, Table 1 (from memory; the same values are the
+#: threshold curve of ISO 226:2003 and agree with a published open-source transcription).
+REFERENCE_THRESHOLD_FREE_FIELD_DB: tuple[float, ...] = (22.1, 11.4, 4.4, 2.4, 2.4, 2.4, -1.3, -5.8, -5.4, 4.3,
+                                                        12.6)
+
+#: Median hearing threshold deviation from the median at 18 years:
+#: dH_md = a * (Y - 18) ** b dB for age Y in years, per sex, at
+#: :data:`AUDIOMETRIC_FREQUENCIES_HZ`, as (a, b) pairs. Source: ISO 7029:2017, 4.2 and
+#: Table 1 (third edition). The coefficients were NOT read from the printed standard: they
+#: are taken from a published open-source transcription of Table 1 and checked against the
+#: one printed value we can name (4 kHz, male, 60 years: 20.2 dB). Treat as "from a
+#: secondary source"; verify against your copy before relying on them.
+ISO7029_MEDIAN_MALE: tuple[tuple[float, float], ...] = (
+    (2.50e-6, 3.841), (1.39e-4, 2.832), (4.59e-4, 2.537), (5.70e-4, 2.512), (7.02e-4, 2.494), (1.09e-3, 2.446),
+    (1.56e-3, 2.404), (2.54e-3, 2.350), (3.40e-3, 2.325), (4.53e-3, 2.315), (5.06e-3, 2.328),
+)
+ISO7029_MEDIAN_FEMALE: tuple[tuple[float, float], ...] = (
+    (6.16e-4, 2.451), (3.98e-4, 2.568), (2.61e-4, 2.708), (2.25e-4, 2.775), (2.21e-4, 2.805), (2.53e-4, 2.813),
+    (3.12e-4, 2.792), (4.88e-4, 2.728), (7.37e-4, 2.660), (1.47e-3, 2.539), (2.53e-3, 2.439),
+)
+ISO7029_MEDIAN: dict[str, tuple[tuple[float, float], ...]] = {"m": ISO7029_MEDIAN_MALE, "f": ISO7029_MEDIAN_FEMALE}
+
+#: Ages the ISO 7029:2017 formulae cover, years (18 to 80; above 70 years the values at
+#: 3 kHz to 8 kHz are given for information only). Source: ISO 7029:2017, Scope.
+ISO7029_AGE_RANGE_YEARS: tuple[float, float] = (18.0, 80.0)
+#: Age above which ISO 7029:2017 gives the values from 3 kHz up for information only, years.
+ISO7029_INFORMATIVE_ABOVE_YEARS: float = 70.0
+#: Lowest frequency of that informative range, Hz (ISO 7029:2017, Scope).
+ISO7029_INFORMATIVE_FROM_HZ: float = 3000.0

@@ -16,6 +16,7 @@ import numpy as np
 from . import checks
 from . import standards as std
 from .exceptions import InputError
+from .hearing import Audiogram, audiogram_summary, reception_threshold_db
 from .results import jsonable
 
 TALKERS = tuple(std.WEIGHTS)
@@ -266,21 +267,24 @@ def combine_bands_many(mti: np.ndarray, talker: str = "male") -> np.ndarray:
     return np.clip(sti, 0.0, 1.0)
 
 
-def band_factors(speech_db: np.ndarray, noise_db: np.ndarray | None, auditory: bool
-                 ) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None]:
+def band_factors(speech_db: np.ndarray, noise_db: np.ndarray | None, auditory: bool,
+                 audiogram: Audiogram | None = None) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None]:
     """The factor I_k / (I_k + I_n,k + I_am,k + I_rt,k) that scales the MTF of each
     octave band for noise, auditory masking and the reception threshold
     (IEC 60268-16:2011, A.2.2 - A.2.3), with the masking and threshold levels, dB.
 
     ``speech_db`` has shape (..., 7) (NaN or -inf: no speech in that band); ``noise_db``
     seven levels or ``None``. Used by :func:`sti_from_mtf` for one MTF and by the room
-    model for many listener positions at once.
+    model for many listener positions at once. An ``audiogram`` (a listener with hearing
+    loss, :mod:`envpredict.hearing`) raises the reception threshold of each band by its
+    hearing loss, RT_k + HL_k (with ``auditory`` only: the threshold is an auditory effect).
 
     Raises
     ------
     InputError
         For speech levels that are not an array with seven values along its last axis,
-        noise levels that are not seven numbers, or an ``auditory`` that is not a flag.
+        noise levels that are not seven numbers, an ``auditory`` that is not a flag, or an
+        ``audiogram`` with ``auditory=False`` (or that is not an Audiogram).
     """
     nb = len(std.OCTAVE_BANDS_HZ)
     speech_db = checks.array(speech_db, "band speech levels", ndim=(1, 2, 3, 4), min_size=0, finite=False)
@@ -292,6 +296,10 @@ def band_factors(speech_db: np.ndarray, noise_db: np.ndarray | None, auditory: b
         if noise_db.size != nb:
             raise InputError(f"{noise_db.size} band noise levels", f"give {nb}, one per octave band")
     auditory = checks.flag(auditory, "auditory")
+    if audiogram is not None and not auditory:
+        raise InputError("an audiogram was given without the auditory effects",
+                         "keep the auditory corrections on (the hearing loss raises their reception threshold)")
+    threshold = reception_threshold_db(audiogram)
     i_s = np.where(np.isfinite(speech_db), 10.0 ** (speech_db / 10.0), 0.0)
     i_n = 10.0 ** (np.asarray(noise_db, dtype=float) / 10.0) if noise_db is not None else np.zeros(nb)
     masking_db = threshold_db = None
@@ -303,10 +311,10 @@ def band_factors(speech_db: np.ndarray, noise_db: np.ndarray | None, auditory: b
             level_total = 10.0 * np.log10(i_total)
         amf = masking_factor(level_total)
         i_am[..., 1:] = i_total[..., :-1] * amf[..., :-1]
-        i_rt = 10.0 ** (table_array(std.RECEPTION_THRESHOLD_DB) / 10.0)
+        i_rt = 10.0 ** (threshold / 10.0)
         with np.errstate(divide="ignore"):
             masking_db = 10.0 * np.log10(i_am)
-        threshold_db = table_array(std.RECEPTION_THRESHOLD_DB)
+        threshold_db = threshold
     den = i_s + i_n + i_am + i_rt
     with np.errstate(invalid="ignore", divide="ignore"):
         factor = np.where(den > 0, i_s / den, 0.0)
@@ -314,7 +322,7 @@ def band_factors(speech_db: np.ndarray, noise_db: np.ndarray | None, auditory: b
 
 
 def sti_many(mtf: np.ndarray, speech_db: np.ndarray, noise_db: np.ndarray | None = None, *,
-             talker: str = "male", auditory: bool = True) -> np.ndarray:
+             talker: str = "male", auditory: bool = True, audiogram: Audiogram | None = None) -> np.ndarray:
     """STI of many modulation transfer matrices at once, by the steps of
     :func:`sti_from_mtf` (same helpers): ``mtf`` (..., 7, F), ``speech_db`` (..., 7)
     octave-band speech levels at each position, ``noise_db`` seven levels or ``None``.
@@ -327,7 +335,7 @@ def sti_many(mtf: np.ndarray, speech_db: np.ndarray, noise_db: np.ndarray | None
         ``speech_db``'s with a last axis of modulation frequencies, or an unknown talker.
     """
     talker = check_talker(talker)
-    factor, _, _ = band_factors(speech_db, noise_db, auditory)
+    factor, _, _ = band_factors(speech_db, noise_db, auditory, audiogram)
     mtf = checks.array(mtf, "modulation transfer", ndim=(2, 3, 4, 5), finite=False)
     if mtf.shape[:-1] != factor.shape:
         raise InputError(f"modulation transfer of shape {mtf.shape} does not follow band levels {factor.shape}",
@@ -454,6 +462,9 @@ class StiResult:
     auditory : whether masking and reception threshold were applied.
     requirement : the STI the user requires (``--require``), or None; the verdict
         ``meets_requirement`` is taken on the unrounded ``sti``.
+    audiogram : the listener's hearing loss (:class:`~envpredict.hearing.Audiogram`) that
+        raised ``threshold_db``, or None (normal hearing). With one, the dictionary carries
+        ``audiogram`` (with ``inaudible_bands_hz``, the bands it made inaudible).
     """
 
     sti: float
@@ -473,6 +484,7 @@ class StiResult:
     auditory: bool
     bands_hz: tuple[float, ...] = field(default=std.OCTAVE_BANDS_HZ)
     requirement: float | None = None
+    audiogram: Audiogram | None = None
 
     @property
     def meets_requirement(self) -> bool | None:
@@ -481,6 +493,7 @@ class StiResult:
 
     def to_dict(self) -> dict:
         req = std.VOICE_ALARM_TARGET_STI if self.requirement is None else self.requirement
+        listener = {} if self.audiogram is None else {"audiogram": audiogram_summary(self.audiogram, self.speech_db)}
         return jsonable(
             {
                 "index": "sti",
@@ -504,6 +517,7 @@ class StiResult:
                 "auditory_corrections": self.auditory,
                 # a band without speech (the female talker's 125 Hz band) carries no weight
                 "bands_used": [bool(u) for u in np.isfinite(self.speech_db)],
+                **listener,
             }
         )
 
@@ -517,6 +531,7 @@ def sti_from_mtf(
     talker: str = "male",
     auditory: bool = True,
     speech_db: Sequence[float] | np.ndarray | None = None,
+    audiogram: Audiogram | None = None,
 ) -> StiResult:
     """STI from a modulation transfer matrix, IEC 60268-16:2011 Annex A.
 
@@ -546,6 +561,9 @@ def sti_from_mtf(
     speech_db : optional measured octave-band levels of the received signal, dB SPL
         (direct method with a calibrated recording); they replace the standard
         spectrum at ``speech_level_dba``.
+    audiogram : the listener's hearing loss (:mod:`envpredict.hearing`), or ``None`` for
+        normal hearing: the reception threshold I_rt,k of each band is raised by the
+        band's hearing loss (RT_k + HL_k dB); needs ``auditory``.
 
     Valid range: speech levels 20-120 dB(A); noise levels -20-140 dB SPL.
 
@@ -572,7 +590,7 @@ def sti_from_mtf(
         speech_db = np.asarray(speech_db, dtype=float)
         if speech_db.shape != (nb,) or np.any(np.isnan(speech_db)) or np.any(speech_db > 160):
             raise InputError("band speech levels must be seven numbers in dB SPL", "check the calibration")
-    factor, masking_db, threshold_db = band_factors(speech_db, noise, auditory)
+    factor, masking_db, threshold_db = band_factors(speech_db, noise, auditory, audiogram)
     m_eff = np.clip(m * factor[:, None], 0.0, std.MTF_MAX)
     snr, ti = transmission_index(m_eff)
     mti = ti.mean(axis=1)
@@ -600,4 +618,5 @@ def sti_from_mtf(
         masking_db=masking_db,
         threshold_db=threshold_db,
         auditory=bool(auditory),
+        audiogram=audiogram,
     )

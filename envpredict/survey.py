@@ -457,6 +457,7 @@ def run_survey(
     progress: Callable[[int, int], None] | None = None,
     positions_csv: str | os.PathLike | None = None,
     zones_csv: str | os.PathLike | None = None,
+    audiogram=None,
 ) -> SurveyResult:
     """Score every measurement of a survey file and summarise it per position and zone.
 
@@ -471,6 +472,9 @@ def run_survey(
         :func:`envpredict.batch.run_batch`.
     positions_csv, zones_csv : also write the per-position and per-zone tables there
         (:func:`write_survey_tables`).
+    audiogram : the listener of rows without an ``audiogram`` cell: an
+        :class:`~envpredict.hearing.Audiogram`, its text form or a CSV file (see
+        :func:`envpredict.batch.read_manifest`); ``None``: normal hearing.
 
     Returns
     -------
@@ -487,7 +491,7 @@ def run_survey(
     from .tables import read_results
 
     reqs = tuple(_requirements(requirements))
-    m = read_manifest(survey)
+    m = read_manifest(survey, audiogram=audiogram)
     check_survey_columns(m.columns, f"survey '{m.path}'")
     files = [j[k] for j in m.jobs for k in ("ir", "stipa", "noise_recording") if j.get(k)]
     check_survey_outputs(survey, {"--out": out, "--positions-csv": positions_csv, "--zones-csv": zones_csv}, files)

@@ -60,8 +60,12 @@ STI_TALKER_COLUMN = "sti_talker"
 #: row. In the results file the same column holds the delay used (the manifest's where
 #: given).
 DELAY_COLUMN = "delay_ms"
+#: Manifest column holding a row's listener (issue 17): an audiogram's text form
+#: ("250:20;500:25;..." -- ';' between points, or ',' inside a quoted cell) or a CSV
+#: audiogram file (:func:`load_audiogram`).
+AUDIOGRAM_COLUMN = "audiogram"
 OPTION_COLUMNS: tuple[str, ...] = (CHANNEL_COLUMN, NOISE_COLUMN, SPEECH_LEVEL_COLUMN, SPEECH_LEVELS_COLUMN,
-                                   CALIBRATION_COLUMN, STI_TALKER_COLUMN, DELAY_COLUMN)
+                                   CALIBRATION_COLUMN, STI_TALKER_COLUMN, DELAY_COLUMN, AUDIOGRAM_COLUMN)
 
 #: Result columns added to the manifest's own.
 ROW_COLUMN = "row"
@@ -81,14 +85,21 @@ PAIR_INDEX_COLUMNS: tuple[str, ...] = ("stoi", "estoi", "ssti", "ssti_regression
 #: Pair rows with an ``inverted`` file: the envelope-power index's SNR_env, dB (the
 #: ``snr_env_db`` of the pair's ``sepsm``).
 SEPSM_INDEX_COLUMNS: tuple[str, ...] = ("sepsm_snr_env_db",)
+#: Two-ear rows (``batch --ears``): each ear's index beside the better-ear one (the index
+#: columns above then hold the better ear's value; see :mod:`envpredict.binaural`).
+EARS_STI_COLUMNS: tuple[str, ...] = ("sti_left", "sti_right")
+EARS_PAIR_COLUMNS: tuple[str, ...] = ("stoi_left", "stoi_right", "estoi_left", "estoi_right", "ssti_left",
+                                      "ssti_right")
 #: Index columns holding text, not numbers.
 TEXT_INDEX_COLUMNS: tuple[str, ...] = ("rating", "delay_from")
 #: Index columns holding numbers (all except the rating letter and the delay's origin).
 NUMERIC_INDEX_COLUMNS: tuple[str, ...] = tuple(
-    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS + SEPSM_INDEX_COLUMNS if c not in TEXT_INDEX_COLUMNS
+    c for c in IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS + SEPSM_INDEX_COLUMNS + EARS_STI_COLUMNS + EARS_PAIR_COLUMNS
+    if c not in TEXT_INDEX_COLUMNS
 )
 RESULT_COLUMNS: frozenset[str] = frozenset(
     (ROW_COLUMN, NOTES_COLUMN, ERROR_COLUMN) + IR_INDEX_COLUMNS + PAIR_INDEX_COLUMNS + SEPSM_INDEX_COLUMNS
+    + EARS_STI_COLUMNS + EARS_PAIR_COLUMNS
 )
 #: Result columns a manifest may hold as an option column (its cell, where given, is the
 #: value the row uses, and the results file shows the value used in that one column).
@@ -429,3 +440,60 @@ def write_table(path: str | os.PathLike, header: Sequence[str], rows: Sequence[M
     from .outputs import atomic_write_text
 
     return atomic_write_text(path, table_text(header, rows))
+
+
+# ---------------------------------------------------------------------------
+# Audiograms (issue 17): a two-column CSV file, frequency_hz,hearing_level_db
+# ---------------------------------------------------------------------------
+
+#: Columns of an audiogram file: audiometric frequency (Hz) and hearing level (dB HL).
+AUDIOGRAM_FREQUENCY_COLUMN = "frequency_hz"
+AUDIOGRAM_LEVEL_COLUMN = "hearing_level_db"
+
+
+def read_audiogram(path: str | os.PathLike):
+    """An audiogram from a CSV file with the header ``frequency_hz,hearing_level_db``
+    (one row per audiometric frequency; other columns are ignored), as
+    :class:`envpredict.hearing.Audiogram`.
+
+    Raises
+    ------
+    InputError
+        A file that cannot be read, lacks those columns, or holds an audiogram refused by
+        :func:`envpredict.hearing.audiogram_from_rows`.
+    """
+    from .hearing import audiogram_from_rows
+
+    p = checks.path(path, "audiogram file")
+    header, rows = read_table(p, "audiogram file")
+    fcol = resolve_column(header, AUDIOGRAM_FREQUENCY_COLUMN, f"audiogram file '{p}'")
+    lcol = resolve_column(header, AUDIOGRAM_LEVEL_COLUMN, f"audiogram file '{p}'")
+    return audiogram_from_rows([(r[fcol], r[lcol]) for _, r in rows], source=p.name)
+
+
+def load_audiogram(value, *, base: str | os.PathLike | None = None):
+    """An audiogram option or manifest cell: ``None``/empty (normal hearing), an
+    :class:`~envpredict.hearing.Audiogram`, the text form ``"250:20,500:25,..."``, or the
+    path of a CSV audiogram file (:func:`read_audiogram`; a relative path is taken from
+    ``base`` when given).
+
+    Raises
+    ------
+    InputError
+        As :func:`read_audiogram` and :func:`envpredict.hearing.parse_audiogram`.
+    """
+    from .hearing import Audiogram, parse_audiogram
+
+    if value is None or isinstance(value, Audiogram):
+        return value
+    if isinstance(value, os.PathLike):
+        value = os.fspath(value)
+    text = checks.text(value, "audiogram", "give frequency:dB HL pairs or a CSV file").strip()
+    if not text:
+        return None
+    if ":" in text and not text.lower().endswith(".csv"):
+        return parse_audiogram(text)
+    p = Path(text)
+    if base is not None and not p.is_absolute():
+        p = Path(base) / p
+    return read_audiogram(p)

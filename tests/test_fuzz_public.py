@@ -54,7 +54,7 @@ MODULES = (
     "decay", "correlation", "pitch", "signals", "tables", "mapping", "indirect", "direct", "pair",
     "timescales", "sweep", "stats", "batch", "refcases", "demo", "report", "checks", "labels", "sinesweep",
     "deconvolve", "survey",
-    "envpower", "speechlevel", "stimuli", "roommodel", "design",
+    "envpower", "speechlevel", "stimuli", "roommodel", "design", "binaural", "hearing",
 )
 
 EXAMPLE_SECONDS = 30  # one example longer than this is a hang (a huge length accepted)
@@ -131,10 +131,13 @@ def build_fixture_folder(d: Path) -> Path:
     _write_wav(d / "ir.wav", ir_array(48000, 1.2, 0.6, 1), 48000)
     _write_wav(d / "ir_stereo.wav", np.stack([ir_array(48000, 1.2, 0.6, 1)] * 2, axis=1), 48000)
     _write_wav(d / "stipa.wav", stipa_recording(24000, 16.0), 24000)
+    _write_wav(d / "stipa_stereo.wav", np.stack([stipa_recording(24000, 16.0)] * 2, axis=1), 24000)
     _write_wav(d / "clean.wav", speech(16000, 2.0, 1), 16000)
     _write_wav(d / "degraded.wav", speech(16000, 2.0, 1) + 0.003 * np.random.default_rng(2).standard_normal(32000),
                16000)
     _write_wav(d / "speech.wav", speech(16000, 3.0, 2), 16000)
+    _write_wav(d / "degraded_stereo.wav", np.stack([speech(16000, 2.0, 1), 0.5 * speech(16000, 2.0, 1)], axis=1),
+               16000)
     _write_wav(d / "noise.wav", 0.05 * np.random.default_rng(3).standard_normal(16000 * 12), 16000)
     _write_wav(d / "calibrator.wav", 0.5 * np.sin(2 * np.pi * 1000 * np.arange(96000) / 48000), 48000)
     _write_wav(d / "silent.wav", np.zeros(48000), 48000)
@@ -181,6 +184,9 @@ def build_fixture_folder(d: Path) -> Path:
     (d / "gain.py").write_text("def half(x, fs):\n    return 0.5 * x\n\n\ndef broken(x, fs):\n    return 1 / 0\n")
     (d / "pairs_cond.csv").write_text("clean,degraded,condition\nclean.wav,degraded.wav,a\nclean.wav,clean.wav,a\n"
                                       "clean.wav,degraded.wav,b\n")
+    (d / "audiogram.csv").write_text("frequency_hz,hearing_level_db\n250,20\n500,25\n1000,30\n2000,45\n4000,60\n"
+                                     "8000,70\n")
+    (d / "audiogram_bad.csv").write_text("frequency_hz,hearing_level_db\n1000,30\n")
     _FOLDER[:] = [d]
     return d
 
@@ -493,6 +499,46 @@ case("modulation.mtf_from_pair_regression", clean_envelopes=st.builds(lambda: en
 # --- sti, cautions -------------------------------------------------------------------
 
 STI_VALUE = st.floats(0.0, 1.0)
+# --- hearing (issue 17) --------------------------------------------------------------
+
+AUDIOGRAM_TEXT = S("250:20,500:25,1000:30,2000:45,4000:60,8000:70", "125:0;250:0;500:0;1000:0;2000:0;4000:0;8000:0",
+                   "250:10, 500:15, 1000:20, 2000:40, 4000:50, 6000:55", "125:-10,500:0,2000:30,8000:120")
+BAD_AUDIOGRAM = S("", "250", "250:x", "255:20,500:20", "250:121,4000:20", "1000:30", "250:20,250:30", 3, None,
+                  "250:nan,500:1,1000:1,2000:1,4000:1,8000:1", "a:b:c")
+AUDIOGRAM = st.builds(lambda t: __import__("envpredict.hearing", fromlist=["x"]).parse_audiogram(t), AUDIOGRAM_TEXT)
+HL = st.floats(-10.0, 120.0)
+case("hearing.parse_audiogram", text=AUDIOGRAM_TEXT, source=S("audiogram", "a.csv"), bad_={"text": BAD_AUDIOGRAM})
+case("hearing.audiogram_from_points", frequencies_hz=J([125, 250, 500, 1000, 2000, 4000, 8000]),
+     hearing_level_db=st.lists(HL, min_size=7, max_size=7),
+     bad_={"frequencies_hz": S([], [130.0] * 7, [NAN] * 7, "abc", None, [125.0] * 7, [250, 4000]),
+           "hearing_level_db": S([], [NAN] * 7, [200.0] * 7, "abc", None, [1e400] * 7)})
+case("hearing.audiogram_from_rows", rows=st.lists(st.tuples(S("250", "500", "1000", "2000", "4000", "8000"),
+                                                         st.floats(-10, 120).map(str)), min_size=6, max_size=6,
+                                                unique_by=lambda r: r[0]), source=S("a.csv"), share_=0.3,
+     bad_={"rows": S([], [("x", "1")], [("250",)], None, 3, [["250", "1", "2"]])})
+case("hearing.check_sex", sex=S("f", "m", "F", "male", "female"))
+case("hearing.iso7029_median_db", age=st.floats(18.0, 80.0), sex=S("f", "m"),
+     frequencies_hz=S((125.0, 4000.0), (1000.0,), (125.0, 250.0, 500.0, 750.0, 1000.0, 1500.0, 2000.0)),
+     bad_={"frequencies_hz": S((130.0,), (NAN,), "abc", None, (1e400,))})
+case("hearing.age_audiogram", age=st.floats(18.0, 80.0), sex=S("f", "m"))
+case("hearing.listener_audiogram", audiogram=st.one_of(S(None), AUDIOGRAM_TEXT, AUDIOGRAM), age=J(None), sex=J(None),
+     bad_={"audiogram": BAD_AUDIOGRAM, "age": S(17.0, 90.0, NAN, "x", 60.0), "sex": S("x", "f", 3)})
+case("hearing.reception_threshold_db", audiogram=st.one_of(S(None), AUDIOGRAM), bad_={"audiogram": S("x", 3, [1.0])})
+case("hearing.band_threshold_spl_db", audiogram=AUDIOGRAM, bad_={"audiogram": S("x", 3, None)})
+case("hearing.threshold_noise_band_db", audiogram=AUDIOGRAM, bad_={"audiogram": S("x", 3, None)})
+case("hearing.threshold_noise", audiogram=AUDIOGRAM, n=S(1, 100, 16000), fs=S(8000, 16000, 48000),
+     calibration_db=st.floats(60.0, 130.0), seed=st.integers(0, 100),
+     bad_={"n": S(0, -1, 10**15, NAN, "x", None), "fs": S(0, -1, 1e12, NAN), "seed": S(-1, 1.5, "x", None)})
+case("hearing.inaudible_bands_hz", speech_db=st.lists(st.floats(-20.0, 120.0), min_size=7, max_size=7),
+     audiogram=st.one_of(S(None), AUDIOGRAM),
+     bad_={"speech_db": S([], [1.0] * 6, "abc", None), "audiogram": S("x", 3)})
+case("hearing.audiogram_summary", audiogram=st.one_of(S(None), AUDIOGRAM),
+     speech_db=S(None, [60.0, 63.0, 61.0, 55.0, 49.0, 43.0, 37.0]),
+     bad_={"speech_db": S([], [1.0] * 6, "abc"), "audiogram": S("x", 3)})
+case("tables.read_audiogram", path=S(P("audiogram.csv")),
+     bad_={"path": S(P("audiogram_bad.csv"), P("results.csv"), P("missing.csv"), P("folder"), 3, None, "")})
+case("tables.load_audiogram", value=st.one_of(S(None, "", P("audiogram.csv")), AUDIOGRAM_TEXT, AUDIOGRAM),
+     base=S(None), bad_={"value": st.one_of(BAD_AUDIOGRAM, S(P("audiogram_bad.csv"), P("text.txt"))), "base": None})
 case("sti.table_array", values=S((1.0, 2.0), ((1.0, 2.0), (3.0, 4.0)), (0.5,)))
 case("sti.check_talker", talker=S("male", "female"))
 case("sti.check_speech_level", level_dba=st.floats(30.0, 110.0))
@@ -512,6 +558,19 @@ case("sti.sti_from_mtf", mtf=st.builds(lambda s: np.random.default_rng(s).unifor
      noise_db=S(None, [40.0] * 7, np.linspace(50, 20, 7)), speech_level_dba=st.floats(40, 90),
      talker=S("male", "female"), auditory=st.booleans(), bad_={"auditory": None})
 case("cautions.below_target", sti=STI_VALUE)
+
+
+def _sti_for_listener(text):
+    from envpredict.hearing import parse_audiogram
+    from envpredict.sti import sti_from_mtf
+
+    return sti_from_mtf(np.full((7, 14), 0.7), audiogram=None if text is None else parse_audiogram(text))
+
+
+case("cautions.listener_cautions", result=st.one_of(S(None), AUDIOGRAM_TEXT).map(_sti_for_listener),
+     bad_={"result": S(None, "x", 3, {})})
+case("hearing.check_auditory", audiogram=st.one_of(S(None), AUDIOGRAM), auditory=J(True),
+     bad_={"audiogram": S("x", 3), "auditory": S(False, None, "yes", 1)})
 
 # --- decay -----------------------------------------------------------------------------
 
@@ -766,6 +825,46 @@ case("pair.pair_indices", pair=_PAIR, fs=J("ok"), align=st.booleans(), max_delay
      bad_={"pair": BAD_ARRAY, "fs": BAD_RATE}, examples_=8)
 case("pair.pair_from_files", clean_path=S(P("clean.wav")), degraded_path=S(P("degraded.wav"), P("clean.wav")),
      align=st.booleans(), examples_=6)
+# --- binaural (two ears) -------------------------------------------------------------
+
+
+def _ears_call(fn, kw):
+    """``fn(left, right, fs, ...)`` from one drawn signal (the right ear a scaled copy); a
+    spoiled ``x`` is used as both ears, or the right ear cut short (different lengths)."""
+    x, fs = kw.pop("x"), kw.pop("fs")
+    if isinstance(x, np.ndarray) and x.ndim == 1 and x.size > 10 and kw.pop("cut", False):
+        return fn(x, 0.5 * x[:-7], fs, **kw)
+    kw.pop("cut", None)
+    return fn(x, 0.5 * x if isinstance(x, np.ndarray) else x, fs, **kw)
+
+
+def _pair_ears_call(fn, kw):
+    p, fs = kw.pop("pair"), kw.pop("fs")
+    if isinstance(p, tuple):
+        return fn(p[0], p[1], 0.7 * p[1], p[2] if fs == "ok" else fs, **kw)
+    return fn(p, p, p, 16000 if fs == "ok" else fs, **kw)
+
+
+_STI_RESULT = st.builds(lambda m: __import__("envpredict").sti_from_mtf(np.full((7, 14), m)), st.floats(0.0, 1.0))
+case("binaural.better_ear_bands", left=st.lists(st.floats(0, 1), min_size=7, max_size=7),
+     right=st.lists(st.floats(0, 1), min_size=7, max_size=7))
+case("binaural.better_ear_sti", left=_STI_RESULT, right=_STI_RESULT,
+     bad_={"left": S(None, 3, "x", np.zeros(7)), "right": S(None, 3, "x", np.zeros(7))})
+case("binaural.check_ears", left=st.builds(lambda n: np.ones(n), st.integers(1, 50)),
+     right=st.builds(lambda n: np.ones(n), st.integers(1, 50)), share_=0.0)
+case("binaural.two_channels", path=S(P("ir_stereo.wav"), P("ir.wav")), name=S("recording"), share_=0.3)
+case("binaural.ir_ears", x=scaled(IR), fs=J(48000), cut=st.booleans(), call_=_ears_call, share_=0.3, examples_=6,
+     bad_={"fs": S(0, -1, NAN, 1e12, "x", None, 16000), "cut": None})
+case("binaural.ir_ears_file", path=S(P("ir_stereo.wav"), P("ir.wav")), speech_level_dba=st.floats(50, 80),
+     share_=0.3, examples_=5)
+case("binaural.stipa_ears", x=st.builds(stipa_recording, J(24000), J(16.0)), fs=J(24000), cut=st.booleans(),
+     call_=_ears_call, share_=0.3, examples_=4, bad_={"fs": S(0, NAN, 1e12, "x", None), "cut": None})
+case("binaural.stipa_ears_file", path=S(P("stipa_stereo.wav"), P("stipa.wav")), share_=0.3, examples_=3)
+case("binaural.pair_ears", pair=_PAIR, fs=J("ok"), align=st.booleans(), call_=_pair_ears_call,
+     bad_={"pair": BAD_ARRAY, "fs": BAD_RATE}, share_=0.3, examples_=5)
+case("binaural.pair_ears_file", clean_path=S(P("clean.wav")), degraded_path=S(P("degraded_stereo.wav"),
+                                                                             P("degraded.wav")),
+     align=st.booleans(), share_=0.3, examples_=4)
 case("timescales.usable_bands", fs=S(8000, 16000, 44100, 48000))
 case("timescales.modulation_band_edges")
 _ENV1 = st.builds(lambda s, n: 1 + 0.5 * np.cos(2 * np.pi * 4 * np.arange(n) / 100.0)

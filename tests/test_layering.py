@@ -12,9 +12,11 @@ import envpredict
 #: The package's modules in pipeline order; each may import only modules before it.
 LAYERS: tuple[str, ...] = (
     "standards", "exceptions", "checks", "results", "labels", "outputs", "_data",
-    "bands", "audio", "speechlevel", "modulation", "sti", "roommodel", "cautions", "decay", "correlation", "envpower",
+    "bands", "audio", "speechlevel", "modulation", "hearing", "sti", "roommodel", "cautions", "decay", "correlation",
+    "envpower",
     "pitch", "signals", "sinesweep", "deconvolve", "tables", "mapping",
-    "indirect", "design", "direct", "pair", "timescales", "sweep", "stimuli", "stats", "batch", "survey", "refcases",
+    "indirect", "design", "direct", "pair", "binaural", "timescales", "sweep", "stimuli", "stats", "batch", "survey",
+    "refcases",
     "demo",
     "report", "predict",
 )

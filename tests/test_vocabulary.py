@@ -33,7 +33,7 @@ SYNONYMS = {"input", "centre_hz", "center_hz", "index_name", "caution", "warning
 TOP_LEVEL = {"IrResult", "DirectResult", "PairResult", "InspectResult", "SweepResult", "ScoreMapping",
              "Comparison", "BatchSummary", "PredictedTable", "CorrelationResult", "F0Track", "DemoResult",
              "StipaSignalResult", "FullStiSignalsResult", "SurveyResult", "SweepSignalResult",
-             "DeconvolutionResult", "DesignResult", "ActiveLevel", "StimuliResult"}
+             "DeconvolutionResult", "DesignResult", "ActiveLevel", "StimuliResult", "EarsResult"}
 
 
 # ---------------------------------------------------------------------------
@@ -129,6 +129,7 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
 
     from envpredict.audio import find_delay
     from envpredict.bands import octave_bands
+    from envpredict.binaural import ir_ears as ears_ir
     from envpredict.refcases import run_cases
 
     return {
@@ -165,6 +166,8 @@ def _factories(speech, batch_summary, survey_result=None) -> dict:
         "DelayEstimate": lambda: find_delay(clean, degraded, fs, 0.1),
         "SepsmResult": lambda: envpredict.sepsm(degraded, degraded - clean, fs),
         "CommonDelay": common_delay,
+        "EarsResult": lambda: ears_ir(ir, noise_decay(1.1, seed=3, seconds=ir.size / 48000), 48000),
+        "Audiogram": lambda: envpredict.parse_audiogram("250:20,500:25,1000:30,2000:45,4000:60,8000:70"),
     }
 
 

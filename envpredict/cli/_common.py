@@ -261,3 +261,43 @@ def fmt(v: Any, spec: str = ".2f", none: str = "—") -> str:
         return format(float(v), spec)
     except (TypeError, ValueError):
         return str(v)
+
+
+# --- the listener (issue 17) -------------------------------------------------------
+
+AUDIOGRAM_HELP = ("Listener with hearing loss: hearing levels in dB HL at audiometric frequencies, "
+                  "e.g. \"250:20,500:25,1000:30,2000:45,4000:60,8000:70\", or a CSV file with columns "
+                  "frequency_hz,hearing_level_db. Raises each octave band's reception threshold by the loss "
+                  "(audibility only). Bands not measured are interpolated on a log-frequency axis (across at "
+                  "most two octaves) or take the nearest value within one octave (stated); otherwise refused.")
+AGE_HELP = ("Listener of this age, years (18-80): the median hearing levels of ISO 7029:2017 for that age "
+            "and --sex, instead of --audiogram (audibility only).")
+SEX_HELP = "With --age: f or m (ISO 7029 gives separate medians). Default m."
+
+
+def listener(audiogram: str | None, age: float | None, sex: str | None):
+    """The listener of a command: ``--audiogram`` (text or CSV file), or ``--age`` with
+    ``--sex`` (ISO 7029 median), or None."""
+    from envpredict.hearing import listener_audiogram
+    from envpredict.tables import load_audiogram
+
+    if audiogram is not None and age is not None:
+        return listener_audiogram("x", age, sex)  # refused: both given
+    return listener_audiogram(load_audiogram(audiogram), age, sex)
+
+
+def listener_lines(d: dict) -> list[str]:
+    """Text lines for the audiogram of a result dictionary (none without one)."""
+    a = d.get("audiogram")
+    if not a:
+        return []
+    pts = ", ".join(f"{f:g} Hz {round(v, 1):g}" for f, v in zip(a["measured_hz"], a["measured_hl_db"]))
+    bands = "  ".join(f"{f:g}:{v:.0f}" for f, v in zip(a["bands_hz"], a["band_hl_db"]))
+    lines = [f"Listener: {a['source']} — {pts} dB HL",
+             f"  hearing loss per octave band (Hz:dB HL): {bands}"]
+    if a.get("filled_bands_hz"):
+        lines.append("  filled: " + "; ".join(a["notes"]))
+    if a.get("inaudible_bands_hz") is not None:
+        gone = a["inaudible_bands_hz"]
+        lines.append("  bands made inaudible: " + (", ".join(f"{f:g} Hz" for f in gone) if gone else "none"))
+    return lines

@@ -10,7 +10,10 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, note, table, write_report_if
+from ._common import (
+    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs, emit, fmt, listener,
+    note, table, write_report_if,
+)
 
 MANIFEST_HELP = ("Manifest CSV: columns 'clean' and 'degraded' (pair rows) or 'ir' (impulse-response rows), "
                  "paths relative to the manifest; optional 'channel', and for IR rows 'noise', 'speech_level', "
@@ -65,6 +68,12 @@ def render_summary(d: dict) -> str:
     return "\n".join(lines)
 
 
+EARS_HELP = ("Two ears: every file is a two-channel recording, channel 0 the left ear and channel 1 the right "
+             "(a pair's clean file may be mono). The index columns hold the better ear's value (the larger "
+             "MTI per octave band; STOI and ESTOI: the larger of the ears'), and each ear's is added "
+             "(sti_left, sti_right, stoi_left, ...). IR rows then have no decay columns.")
+
+
 @app.command("batch")
 def batch_command(
     manifest: Path = typer.Argument(..., help=MANIFEST_HELP, show_default=False),
@@ -82,7 +91,12 @@ def batch_command(
     condition_column: Optional[str] = typer.Option(None, "--condition-column", help=CONDITION_HELP),
     delay_per_row: bool = typer.Option(False, "--delay-per-row", help=PER_ROW_HELP),
     delay_ms: Optional[float] = typer.Option(None, "--delay-ms", help=DELAY_MS_HELP),
+    ears: bool = typer.Option(False, "--ears", help=EARS_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
+    audiogram: Optional[str] = typer.Option(None, "--audiogram", help=AUDIOGRAM_HELP + " The listener of rows "
+                                            "without an 'audiogram' cell (pair rows need 'calibration_db')."),
+    age: Optional[float] = typer.Option(None, "--age", help=AGE_HELP, show_default=False),
+    sex: Optional[str] = typer.Option(None, "--sex", help=SEX_HELP, metavar="[f|m]"),
 ) -> None:
     """Score every row of a manifest (STOI/ESTOI/speech-based STI for pairs, STI and T30/EDT for IRs).
 
@@ -94,7 +108,9 @@ def batch_command(
     """
     from envpredict.batch import Alignment, read_manifest, run_batch
 
-    m = read_manifest(manifest, noise_db=noise, speech_level_dba=speech_level, talker=talker)
+    listener_ = listener(audiogram, age, sex)
+    m = read_manifest(manifest, noise_db=noise, speech_level_dba=speech_level, talker=talker, audiogram=listener_,
+                      ears=ears)
     alignment = Alignment(align=not no_align, max_delay_s=max_delay, condition_column=condition_column,
                           per_row=delay_per_row, fixed_delay_ms=delay_ms).check(m)
     if scheduler is not None and workers is not None:
@@ -127,6 +143,10 @@ def batch_command(
                    "speech_level_dba": speech_level, "talker": talker, "align": not no_align,
                    "max_delay_s": max_delay, "condition_column": condition_column, "delay_per_row": delay_per_row,
                    "delay_ms": delay_ms}
+    if ears:
+        d["inputs"]["ears"] = True
+    if listener_ is not None:
+        d["inputs"].update({"audiogram": audiogram, "age": age, "sex": sex})
     emit(d, lambda: render_summary(d), as_json, None)
     if summary.failed:
         note(f"error: {summary.failed} of {summary.total} rows failed — see the 'error' column of {out}; "

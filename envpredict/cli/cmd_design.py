@@ -10,7 +10,10 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, table, write_report_if
+from ._common import (
+    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs, emit, fmt, listener,
+    listener_lines, table, write_report_if,
+)
 
 SCENE_HELP = ("Scene file (JSON, or TOML with the suffix .toml): room (volume_m3 and/or dimensions_m; rt_s or "
               "surfaces), noise_db, sources (position_m, level_1m_db or level_1m_dba, q, aim_m, delay_ms), "
@@ -37,6 +40,7 @@ def render_design(d: dict, source: str) -> str:
         f"(125 Hz - 8 kHz, {room['rt_from']}); {len(d['sources'])} loudspeaker(s); talker {d['talker']}; "
         f"auditory corrections {'on' if d['auditory_corrections'] else 'off'}",
         f"Requirement: STI {req:g}{'' if d['requirement_given'] else ' (default)'}   engine: {d['engine']}",
+    ] + listener_lines(d) + [
         "",
     ]
     if d["listeners"]:
@@ -85,17 +89,23 @@ def design_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Optional[Path] = typer.Option(None, "--out", help=OUT_HELP),
     report: Optional[Path] = typer.Option(None, "--report", help=REPORT_HELP),
+    audiogram: Optional[str] = typer.Option(None, "--audiogram", help=AUDIOGRAM_HELP),
+    age: Optional[float] = typer.Option(None, "--age", help=AGE_HELP, show_default=False),
+    sex: Optional[str] = typer.Option(None, "--sex", help=SEX_HELP, metavar="[f|m]"),
 ) -> None:
     """Predict the STI of a room and its loudspeakers before anything is built (statistical model:
     direct sound + diffuse reverberation per loudspeaker), at listener positions and over a grid."""
     from envpredict.design import predict_design_file
 
+    listener_ = listener(audiogram, age, sex)
     check_outputs(out=out, report=report, inputs=[scene])
     with Progress("predicting the grid", None, quiet=as_json) as prog:
         result = predict_design_file(scene, talker=talker, auditory=not no_auditory, requirement=require,
-                                     progress=prog, engine=engine)
+                                     progress=prog, engine=engine, audiogram=listener_)
     d = result.to_dict()
     d["inputs"] = {"scene": str(scene), "talker": talker, "auditory_corrections": not no_auditory,
                    "require": require, "engine": engine}
+    if listener_ is not None:
+        d["inputs"].update({"audiogram": audiogram, "age": age, "sex": sex})
     write_report_if(report, "design", d, as_json=as_json, title=f"Design prediction: {d['title'] or scene.name}")
     emit(d, lambda: render_design(d, str(scene)), as_json, out)

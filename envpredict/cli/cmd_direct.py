@@ -11,9 +11,10 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
+from ._ears import EARS_HELP, render_ears_sti
 from ._common import (
-    JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, Progress, check_report, emit, fmt, format_sti,
-    table, write_report_if,
+    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, SEX_HELP, Progress,
+    check_report, emit, fmt, format_sti, listener, listener_lines, table, write_report_if,
 )
 
 testsignal_app = typer.Typer(
@@ -109,8 +110,8 @@ def render_direct(d: dict) -> str:
                      + (f"; clock {r['clock_offset_ppm']:+.0f} ppm, corrected" if r.get("clock_corrected") else ""))
     cal = (f"calibrated ({d['calibration_source']}, {d['calibration_db']:.1f} dB), level "
            f"{d['level_dba']:.1f} dB(A)" if d["calibrated"] else "NOT calibrated (no auditory corrections)")
+    lines += [f"Talker weights: {d['talker']}   {cal}"] + listener_lines(d)
     lines += [
-        f"Talker weights: {d['talker']}   {cal}",
         "",
         f"STI = {format_sti(d)} ± {fmt(d['uncertainty'], unc_spec)}   qualification band {d['rating']}   "
         f"({d['subjective']})",
@@ -167,6 +168,10 @@ def stipa_command(
         "states whether it is met, judged on the unrounded value.", show_default=False),
     record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
     record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
+    ears: bool = typer.Option(False, "--ears", help=EARS_HELP),
+    audiogram: Optional[str] = typer.Option(None, "--audiogram", help=AUDIOGRAM_HELP + " Needs a calibration."),
+    age: Optional[float] = typer.Option(None, "--age", help=AGE_HELP, show_default=False),
+    sex: Optional[str] = typer.Option(None, "--sex", help=SEX_HELP, metavar="[f|m]"),
 ) -> None:
     """STI from a recording of the STIPA test signal (IEC 60268-16 direct method, Annex B).
     The file is read in blocks, so recordings of an hour or more (up to 2 h) are analysed in
@@ -175,18 +180,31 @@ def stipa_command(
     from envpredict.report import read_about
 
     about = read_about(record, record_field or ())
+    listener_ = listener(audiogram, age, sex)
     check_report(report)
+    opts = dict(calibration_db=calibration_db, calibrator=calibrator, calibrator_level=calibrator_level,
+                calibrator_channel=calibrator_channel, noise_db=noise, talker=talker, requirement=require)
     # steps: the blocks of both passes over the file, then the modulation depths
     with Progress("analysing STIPA recording", None, quiet=as_json) as prog:
-        result = stipa_from_file(recording, channel, calibration_db=calibration_db, calibrator=calibrator,
-                                 calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
-                                 noise_db=noise, talker=talker, progress=prog, requirement=require)
+        if ears:
+            from envpredict.binaural import stipa_ears_file
+
+            result = stipa_ears_file(recording, channel=channel, progress=prog, audiogram=listener_, **opts)
+        else:
+            result = stipa_from_file(recording, channel, progress=prog, audiogram=listener_, **opts)
     d = result.to_dict()
     d["inputs"] = {"recording": str(recording), "channel": channel, **_calibration_inputs(
         calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker,
-        "require": require, "about": about}
-    write_report_if(report, "stipa", d, as_json=as_json, title=f"STIPA: {recording.name}")
-    emit(d, lambda: render_direct(d), as_json, out)
+        "require": require, "about": about, **_listener_inputs(listener_, audiogram, age, sex)}
+    if ears:
+        d["inputs"]["ears"] = True
+    write_report_if(report, "stipa", d, as_json=as_json,
+                    title=f"STIPA{' of two ears' if ears else ''}: {recording.name}")
+    emit(d, lambda: render_ears_sti(d, str(recording)) if ears else render_direct(d), as_json, out)
+
+
+def _listener_inputs(listener_, audiogram, age, sex) -> dict:
+    return {} if listener_ is None else {"audiogram": audiogram, "age": age, "sex": sex}
 
 
 def _calibration_inputs(calibration_db, calibrator, calibrator_level, calibrator_channel) -> dict:
@@ -213,20 +231,25 @@ def fullsti_command(
         "states whether it is met, judged on the unrounded value.", show_default=False),
     record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
     record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
+    audiogram: Optional[str] = typer.Option(None, "--audiogram", help=AUDIOGRAM_HELP + " Needs a calibration."),
+    age: Optional[float] = typer.Option(None, "--age", help=AGE_HELP, show_default=False),
+    sex: Optional[str] = typer.Option(None, "--sex", help=SEX_HELP, metavar="[f|m]"),
 ) -> None:
     """Full STI from recordings of the 14 full-STI test signals (IEC 60268-16 direct method)."""
     from envpredict.direct import full_sti_from_files
     from envpredict.report import read_about
 
     about = read_about(record, record_field or ())
+    listener_ = listener(audiogram, age, sex)
     check_report(report)
     with Progress("analysing full-STI recordings", None, quiet=as_json) as prog:
         result = full_sti_from_files(recordings, channel, calibration_db=calibration_db, calibrator=calibrator,
                                      calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
-                                     noise_db=noise, talker=talker, progress=prog, requirement=require)
+                                     noise_db=noise, talker=talker, progress=prog, requirement=require,
+                                     audiogram=listener_)
     d = result.to_dict()
     d["inputs"] = {"recordings": [str(f) for f in recordings], "channel": channel, **_calibration_inputs(
         calibration_db, calibrator, calibrator_level, calibrator_channel), "noise": noise, "talker": talker,
-        "require": require, "about": about}
+        "require": require, "about": about, **_listener_inputs(listener_, audiogram, age, sex)}
     write_report_if(report, "fullsti", d, as_json=as_json)
     emit(d, lambda: render_direct(d), as_json, out)

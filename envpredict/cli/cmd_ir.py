@@ -10,9 +10,10 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
+from ._ears import EARS_HELP, render_ears_sti
 from ._common import (
-    CHANNEL_HELP, JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, Progress, check_outputs, emit,
-    fmt, format_sti, table, write_report_if,
+    AGE_HELP, AUDIOGRAM_HELP, CHANNEL_HELP, JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, SEX_HELP,
+    Progress, check_outputs, emit, fmt, format_sti, listener, listener_lines, table, write_report_if,
 )
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
@@ -51,6 +52,7 @@ def render_ir(d: dict, source: str) -> str:
         lines.append(f"Recovered from a sweep recording: sweep found at {dec['offset_s']:.3f} s, "
                      f"{dec['repeats_used']} of {dec['repeats_played']} repeat(s) averaged; peak-to-noise dB "
                      f"per band {pnr}")
+    lines += listener_lines(d)
     lines += [
         "",
         f"STI = {format_sti(d)}   qualification band {d['rating']}   ({d['subjective']})",
@@ -117,30 +119,45 @@ def ir_command(
     record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
     sweep: Optional[Path] = typer.Option(None, "--sweep", help=SWEEP_HELP),
     sweep_rate: Optional[int] = typer.Option(None, "--sweep-rate", help=SWEEP_RATE_HELP),
+    ears: bool = typer.Option(False, "--ears", help=EARS_HELP),
+    audiogram: Optional[str] = typer.Option(None, "--audiogram", help=AUDIOGRAM_HELP),
+    age: Optional[float] = typer.Option(None, "--age", help=AGE_HELP, show_default=False),
+    sex: Optional[str] = typer.Option(None, "--sex", help=SEX_HELP, metavar="[f|m]"),
 ) -> None:
     """STI (IEC 60268-16 indirect method) and ISO 3382-1 decay figures from an impulse response."""
     from envpredict.indirect import sti_from_ir_file
     from envpredict.report import read_about
 
     about = read_about(record, record_field or ())
+    listener_ = listener(audiogram, age, sex)
     check_outputs(out=out, report=report, inputs=[p for p in (ir_file, noise_recording, calibrator, sweep) if p])
+    if ears:
+        from envpredict.binaural import ir_ears_file as analyse
+    else:
+        analyse = sti_from_ir_file
     with Progress("analysing impulse response", None, quiet=as_json) as prog:
-        result = sti_from_ir_file(ir_file, channel=channel, noise_db=noise, speech_level_dba=speech_level,
-                                  talker=talker, auditory=not no_auditory, progress=prog, speech_db=speech_levels,
-                                  noise_recording=noise_recording, noise_channel=noise_channel,
-                                  calibration_db=calibration_db, calibrator=calibrator,
-                                  calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
-                                  requirement=require, sweep=sweep, sweep_rate=sweep_rate)
+        result = analyse(ir_file, channel=channel, noise_db=noise, speech_level_dba=speech_level,
+                         talker=talker, auditory=not no_auditory, progress=prog, speech_db=speech_levels,
+                         noise_recording=noise_recording, noise_channel=noise_channel,
+                         calibration_db=calibration_db, calibrator=calibrator,
+                         calibrator_level=calibrator_level, calibrator_channel=calibrator_channel,
+                         requirement=require, sweep=sweep, sweep_rate=sweep_rate, audiogram=listener_)
     d = result.to_dict()
+    level = (result.left or result.right).speech_level_dba if ears else result.speech_level_dba
     d["inputs"] = {"impulse_response": str(ir_file), "channel": channel,
                    "noise": noise, "noise_recording": None if noise_recording is None else str(noise_recording),
                    "noise_channel": noise_channel,
                    "calibration": ("calibrator" if calibrator else "offset" if calibration_db is not None else None),
                    "calibrator": None if calibrator is None else str(calibrator),
-                   "speech_level_dba": result.speech_level_dba, "speech_levels": speech_levels,
+                   "speech_level_dba": level, "speech_levels": speech_levels,
                    "talker": talker, "auditory_corrections": not no_auditory, "require": require,
                    "about": about}
+    if listener_ is not None:
+        d["inputs"].update({"audiogram": audiogram, "age": age, "sex": sex})
     if sweep is not None:
         d["inputs"].update({"sweep": str(sweep), "sweep_rate": sweep_rate})
-    write_report_if(report, "ir", d, as_json=as_json, title=f"STI and decay figures of {ir_file.name}")
-    emit(d, lambda: render_ir(d, str(ir_file)), as_json, out)
+    if ears:
+        d["inputs"]["ears"] = True
+    write_report_if(report, "ir", d, as_json=as_json,
+                    title=f"STI {'of two ears ' if ears else 'and decay figures '}of {ir_file.name}")
+    emit(d, lambda: render_ears_sti(d, str(ir_file)) if ears else render_ir(d, str(ir_file)), as_json, out)

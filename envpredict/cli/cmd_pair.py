@@ -9,7 +9,14 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, table, write_report_if
+from ._common import (
+    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs, emit, fmt, listener,
+    listener_lines, table, write_report_if,
+)
+from ._ears import render_ears_pair
+
+PAIR_CAL_HELP = ("Calibration of the degraded file: the dB SPL that a full-scale RMS signal (0 dBFS RMS) in it "
+                 "corresponds to. Needed with --audiogram or --age (audibility needs absolute levels).")
 
 CHANNEL_HELP = ("Channel to use from any multi-channel file (0 = first); mono files use their only "
                 "channel. Required when a file has several channels.")
@@ -20,6 +27,10 @@ NOISE_HELP = ("The noise alone as it is in the degraded file (same rate and leng
 INVERTED_HELP = ("The processing's output for the speech with the noise's polarity inverted (the degraded file "
                  "being its output for speech + noise): separates processed speech and noise by phase inversion "
                  "(output SNR per octave band) and adds the envelope-power index.")
+EARS_PAIR_HELP = ("Two ears: the degraded file has two channels, channel 0 the left ear and channel 1 the right; "
+                  "the clean file is mono (one reference for both ears) or two-channel (one per ear). Gives each "
+                  "ear's indices and the better ear's: the larger STOI and ESTOI of the two ears, the "
+                  "speech-based STI by the better ear per octave band. Not with the channel options.")
 CHUNK_HELP = "Seconds of audio per processing chunk (memory only; the results do not change)."
 
 
@@ -35,6 +46,7 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
         (f"Delay: {delay}   match correlation {al['match_correlation']:.2f}   "
          f"common part {d['duration_s']:.2f} s   "
          f"frames with speech {d['frames']['kept']}/{d['frames']['total']}"),
+    ] + listener_lines(d) + [
         "",
         f"STOI  = {d['stoi']:.3f}",
         f"ESTOI = {d['estoi']:.3f}",
@@ -82,6 +94,10 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
         lines.append("")
         lines.append("Notes:")
         lines.extend(f"  - {n}" for n in d["notes"])
+    if d.get("cautions"):
+        lines.append("")
+        lines.append("Cautions:")
+        lines.extend(f"  - {c}" for c in d["cautions"])
     return "\n".join(lines)
 
 
@@ -103,21 +119,40 @@ def pair_command(
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
     out: Path | None = typer.Option(None, "--out", help=OUT_HELP),
     report: Path | None = typer.Option(None, "--report", help=REPORT_HELP),
+    ears: bool = typer.Option(False, "--ears", help=EARS_PAIR_HELP),
+    audiogram: str | None = typer.Option(None, "--audiogram", help=AUDIOGRAM_HELP.replace(
+        "Raises each octave band's reception threshold by the loss", "Adds a noise shaped like the listener's "
+        "raised threshold to the degraded signal") + " Needs --calibration-db."),
+    age: float | None = typer.Option(None, "--age", help=AGE_HELP, show_default=False),
+    sex: str | None = typer.Option(None, "--sex", help=SEX_HELP, metavar="[f|m]"),
+    calibration_db: float | None = typer.Option(None, "--calibration-db", help=PAIR_CAL_HELP),
 ) -> None:
     """STOI, ESTOI and speech-based STI of a clean/degraded pair, with delay alignment and per-band diagnostics."""
     from envpredict.pair import pair_from_files
 
     # before the (slower) audio work
+    listener_ = listener(audiogram, age, sex)
     check_outputs(out=out, report=report, inputs=[clean, degraded] + [p for p in (noise, inverted) if p])
+    if ears:
+        from envpredict.binaural import pair_ears_file as analyse
+    else:
+        analyse = pair_from_files
     with Progress("analysing pair", None, quiet=as_json) as prog:
-        result = pair_from_files(clean, degraded, channel=channel, clean_channel=clean_channel,
-                                 degraded_channel=degraded_channel, align=not no_align, max_delay_s=max_delay,
-                                 chunk_s=chunk, progress=prog, noise_path=noise,
-                                 inverted_path=inverted)
+        result = analyse(clean, degraded, channel=channel, clean_channel=clean_channel,
+                         degraded_channel=degraded_channel, align=not no_align, max_delay_s=max_delay,
+                         chunk_s=chunk, progress=prog, noise_path=noise, inverted_path=inverted,
+                         audiogram=listener_, calibration_db=calibration_db)
     d = result.to_dict()
     d["inputs"] = {"clean": str(clean), "degraded": str(degraded), "channel": channel,
                    "clean_channel": clean_channel, "degraded_channel": degraded_channel, "align": not no_align,
                    "max_delay_s": max_delay, "noise": None if noise is None else str(noise),
                    "inverted": None if inverted is None else str(inverted)}
-    write_report_if(report, "pair", d, as_json=as_json, title=f"{degraded.name} against {clean.name}")
-    emit(d, lambda: render_pair(d, str(clean), str(degraded)), as_json, out)
+    if listener_ is not None or calibration_db is not None:
+        d["inputs"].update({"audiogram": audiogram, "age": age, "sex": sex, "calibration_db": calibration_db})
+    if ears:
+        d["inputs"]["ears"] = True
+    write_report_if(report, "pair", d, as_json=as_json,
+                    title=f"{degraded.name}{' (two ears)' if ears else ''} against {clean.name}")
+    emit(d, lambda: render_ears_pair(d, str(clean), str(degraded)) if ears else render_pair(d, str(clean),
+                                                                                             str(degraded)),
+         as_json, out)

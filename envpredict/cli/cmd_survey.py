@@ -9,8 +9,8 @@ import typer
 
 from ._app import app
 from ._common import (
-    JSON_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, note, table,
-    write_report_if,
+    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs,
+    emit, fmt, listener, note, table, write_report_if,
 )
 from .cmd_batch import OVERWRITE_HELP, PROGRESS_EVERY_S, RESUME_HELP, RETRY_HELP, WORKERS_HELP
 
@@ -83,6 +83,10 @@ def survey_command(
     record: Optional[Path] = typer.Option(None, "--record", help=RECORD_HELP),
     record_field: Optional[List[str]] = typer.Option(None, "--record-field", help=RECORD_FIELD_HELP),
     as_json: bool = typer.Option(False, "--json", help=JSON_HELP),
+    audiogram: Optional[str] = typer.Option(None, "--audiogram", help=AUDIOGRAM_HELP + " The listener of rows "
+                                            "without an 'audiogram' cell."),
+    age: Optional[float] = typer.Option(None, "--age", help=AGE_HELP, show_default=False),
+    sex: Optional[str] = typer.Option(None, "--sex", help=SEX_HELP, metavar="[f|m]"),
 ) -> None:
     """Score every measurement of a site survey, then summarise per position and per zone.
 
@@ -94,6 +98,7 @@ def survey_command(
     from envpredict.survey import check_survey_outputs, parse_requirement, run_survey
 
     about = read_about(record, record_field or ())
+    listener_ = listener(audiogram, age, sex)
     for r in require or ():
         parse_requirement(r)  # refused before anything is scored (run_survey checks them again)
 
@@ -110,7 +115,7 @@ def survey_command(
     try:
         result = run_survey(survey, out, requirements=require or (), workers=workers, resume=resume,
                             overwrite=overwrite, retry_failed=retry_failed, progress=progress,
-                            positions_csv=positions_csv, zones_csv=zones_csv)
+                            positions_csv=positions_csv, zones_csv=zones_csv, audiogram=listener_)
     except KeyboardInterrupt:
         if out.exists():
             note(f"the finished rows are saved in {out}; finish with: envpredict survey {survey} --out {out} "
@@ -122,6 +127,8 @@ def survey_command(
     d = result.to_dict()
     d["inputs"] = {"survey": str(survey), "out": str(out), "require": list(require or []), "workers": workers,
                    "resume": resume, "retry_failed": retry_failed, "overwrite": overwrite, "about": about}
+    if listener_ is not None:
+        d["inputs"].update({"audiogram": audiogram, "age": age, "sex": sex})
     write_report_if(report, "survey", d, as_json=as_json, title=f"Survey {survey.name}")
     emit(d, lambda: render_survey(d), as_json, summary)
     if result.failed_rows:
