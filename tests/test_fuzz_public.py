@@ -1153,6 +1153,20 @@ case("labels.nominal_frequency", fc=_FC, bad_={"fc": _BAD_FC})
 case("labels.band_label", fc=_FC, unit=st.booleans(), bad_={"fc": _BAD_FC, "unit": None})
 case("labels.header", key=S("sti", "t30_mid", "decay_range_db", "stoi"),
      bad_={"key": S("", "nope", None, 3, ["sti"])})
+case("labels.term", key=S("sti", "t30", "p_holm", "envelope_noise_depth"), bad_={"key": S("", "nope", None, 3)})
+case("labels.name", key=S("stoi", "sti", "my_score"), bad_={"key": S(None, 3, ["stoi"])})
+case("labels.show", key=S("sti", "t30", "c50", "stoi"), value=st.one_of(st.none(), st.floats(allow_nan=True)),
+     decimals=S(None, 0, 3), bad_={"key": S("", "nope", None), "decimals": S(-1, 10, "x")})
+case("labels.known_label", text=st.one_of(S("T30, s", "band", "STI (image engine)", "1.6k", "range dB"),
+                                          st.text(max_size=30)), bad_={"text": S(None, 3, ["x"])})
+case("labels.key_of", text=st.one_of(S("noise depth", "T30, s", "1.6k"), st.text(max_size=30)),
+     bad_={"text": S(None, 3)})
+case("labels.glossary", labels=st.lists(st.one_of(S("band", "T30, s", "p (Holm)"), st.text(max_size=12)),
+                                        max_size=6), bad_={"labels": S(None, "T30, s", 3)})
+case("labels.column_notes", headers=st.lists(st.one_of(S("noise depth", "MTI", "band, Hz"), st.text(max_size=12)),
+                                             max_size=6), bad_={"headers": S(None, "MTI", 3)})
+case("labels.rating_text", rating=S("G", "A+", None, ""), subjective=S("fair", None),
+     bad_={"rating": S(3, ["G"]), "subjective": S(3)})
 
 # --- sinesweep, deconvolve ---------------------------------------------------------------------
 # The shortest sweep accepted at 32 kHz: 50 Hz to 13 kHz (8 octaves) needs 6.6 s for its
