@@ -103,6 +103,10 @@ TERMS: dict[str, Term] = {
                       "to 0 (at -15 dB) to 1 (at +15 dB)", note=True),
     "mtf": _T("m", "", 2, "modulation transfer: the fraction of the speech envelope's modulation depth that "
                       "reaches the listener, 0 (lost) to 1 (kept), per band and modulation frequency", note=True),
+    "f1": _T("f1", "Hz", 2, "the lower of the band's two modulation frequencies (STIPA)", note=True),
+    "f2": _T("f2", "Hz", 2, "the higher of the band's two modulation frequencies (STIPA)", note=True),
+    "m_f1": _T("m at f1", "", 2, "modulation transfer m at f1, 0 (lost) to 1 (kept)", note=True),
+    "m_f2": _T("m at f2", "", 2, "modulation transfer m at f2, 0 (lost) to 1 (kept)", note=True),
     "mtf_measured": _T("measured m", "", 3, "modulation transfer as measured, before the noise and auditory "
                                           "corrections"),
     "rating": _T("qualification band", "", None, f"{_IEC} Annex F band of the STI, A+ (best) to U (below 0.36); "
@@ -123,8 +127,8 @@ TERMS: dict[str, Term] = {
                                                          f"({_IEC})", note=True),
     "band_levels_db": _T("level (signal + noise)", "dB SPL", 1, "octave-band level of the whole recording: the test "
                                                                "signal plus the noise at the position", note=True),
-    "band_levels_dbfs": _T("level (signal + noise)", "dB re full scale", 1, "octave-band level of the whole "
-                          "recording (test signal plus noise), uncalibrated", note=True),
+    "band_levels_dbfs": _T("level (signal + noise)", "dBFS", 1, "octave-band level of the whole "
+                          "recording (test signal plus noise), uncalibrated: dB re digital full scale", note=True),
     "envelope_noise_depth": _T("noise depth", "", 3, "the modulation depth the recording's own noise shows at "
                                                     "modulation frequencies the test signal does not use (a floor "
                                                     "under every measured m; near 0 is good)", note=True),
@@ -210,15 +214,20 @@ TERMS: dict[str, Term] = {
     "ci_low": _T("CI low", "", 3, "lower end of the confidence interval"),
     "ci_high": _T("CI high", "", 3, "upper end of the confidence interval"),
     "ci": _T("CI", "", 3, "confidence interval of the difference [low, high]"),
-    "mapping_ci": _T("mapping interval", "", 1, "interval from the mapping's own uncertainty"),
-    "segments_ci": _T("noise-segment interval", "", 1, "interval from the spread over noise segments"),
+    "sentences_ci": _T("interval over sentences", "dB", 1, "95 % interval of the SNR from the spread over "
+                                                          "sentences"),
+    "combined_ci": _T("sentences and segments", "dB", 1, "95 % interval from sentences and noise segments "
+                                                        "combined"),
+    "total_ci": _T("all three", "dB", 1, "95 % interval from sentences, noise segments and the mapping"),
+    "mapping_ci": _T("mapping interval", "dB", 1, "interval from the mapping's own uncertainty"),
+    "segments_ci": _T("noise-segment interval", "dB", 1, "interval from the spread over noise segments"),
     "correct": _T("correct", "", None, "items repeated correctly"),
     "trials": _T("trials", "", None, "items presented"),
     "pearson_residual": _T("Pearson residual", "", 2, "(observed - fitted) / binomial SD; beyond +-2 the row is "
                                                      "far from the curve", note=True),
-    "speech_active_level_db": _T("speech level", "dB re full scale", 1, "active speech level (ITU-T P.56)"),
-    "noise_level_db": _T("noise level", "dB re full scale", 1, "RMS level of the noise"),
-    "peak_db": _T("peak", "dB re full scale", 1, "highest sample of the file"),
+    "speech_active_level_db": _T("speech level", "dBFS", 1, "active speech level (ITU-T P.56)"),
+    "noise_level_db": _T("noise level", "dBFS", 1, "RMS level of the noise"),
+    "peak_db": _T("peak", "dBFS", 1, "highest sample of the file"),
     # --- comparisons
     "condition": _T("condition", "", None, "the processing or listening condition compared"),
     "n": _T("n", "", None, "number of matched items"),
@@ -390,6 +399,8 @@ def show(key: str, value: float | None, *, decimals: int | None = None) -> str:
         return "—"
     if not math.isfinite(v):
         return "—"
+    if key in ("p_value", "p_holm") and d is not None and 0 <= v < 10 ** -int(d):
+        return f"< {10 ** -int(d):.{int(d)}f}"  # "< 0.0001", not "0.0000"
     return f"{v:.{int(d)}f}" if d is not None else f"{v:g}"
 
 

@@ -10,7 +10,9 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
-from ._common import JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, note, table, write_report_if
+from ._common import (
+    JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_outputs, emit, fmt, h, note, table, write_report_if,
+)
 
 MANIFEST_HELP = ("Manifest CSV: columns 'clean' and 'degraded' (pair rows) or 'ir' (impulse-response rows), "
                  "paths relative to the manifest; optional 'channel', and for IR rows 'noise', 'speech_level', "
@@ -139,9 +141,9 @@ def _signed(v, spec: str = "+.3f") -> str:
 
 
 def _p(v) -> str:
-    if v is None:
-        return "—"
-    return "<0.0001" if v < 1e-4 else f"{v:.4f}"
+    from envpredict.labels import show
+
+    return show("p_value", v)
 
 
 def _effect(c: dict) -> str:
@@ -152,14 +154,16 @@ def _effect(c: dict) -> str:
 
 def render_pairwise(d: dict) -> str:
     """Readable text for an all-pairs comparison dictionary."""
-    lines = [f"Index: {d['index']}   all pairs of conditions in column '{d['by']}'   diff = b - a", ""]
+    from envpredict.labels import name
+
+    lines = [f"Index: {name(d['index'])}   all pairs of conditions in column '{d['by']}'   diff = b - a", ""]
     rows = []
     for c in d["pairs"]:
         ci = "—" if c["ci_low"] is None else f"[{c['ci_low']:+.3f}, {c['ci_high']:+.3f}]"
         rows.append([c["a"], c["b"], str(c["n"]), _signed(c["diff"]), ci, _p(c["p_value"]), _p(c["p_holm"]),
                      c["verdict"], _effect(c)])
-    lines.append(table(rows, ["a", "b", "n", "diff", "95 % CI" if d["confidence"] == 0.95 else "CI", "p",
-                              "p (Holm)", "verdict", "d_z [CI]"]))
+    lines.append(table(rows, [h("pair_a"), h("pair_b"), h("n"), h("diff"), f"CI ({100 * d['confidence']:g} %)",
+                              h("p_value"), h("p_holm"), h("verdict"), "d_z (with its CI)"]))
     if d["notes"]:
         lines.append("")
         lines.append("Notes:")
@@ -174,8 +178,10 @@ def render_comparisons(d: dict) -> str:
 
 
 def render_comparison(d: dict) -> str:
+    from envpredict.labels import name
+
     lines = [
-        f"Index: {d['index']}   conditions: column '{d['by']}'   baseline: {d['baseline']}",
+        f"Index: {name(d['index'])}   conditions: column '{d['by']}'   baseline: {d['baseline']}",
         f"Items matched on: {', '.join(d['pair_on'])}",
         f"Difference = condition - baseline, mean over matched items; {d['ci_method']} bootstrap "
         f"{100 * d['confidence']:g} % interval ({d['n_resamples']} resamples, seed {d['seed']}); "
@@ -188,8 +194,8 @@ def render_comparison(d: dict) -> str:
         ci = "—" if c["ci_low"] is None else f"[{c['ci_low']:+.3f}, {c['ci_high']:+.3f}]"
         rows.append([c["name"], str(c["n"]), fmt(c["mean"], ".3f"), "—" if base else _signed(c["diff"]), ci,
                      _p(c["p_value"]), _p(c["p_holm"]), c["verdict"], _effect(c)])
-    lines.append(table(rows, ["condition", "n", "mean", "diff", "95 % CI" if d["confidence"] == 0.95 else "CI",
-                              "p", "p (Holm)", "verdict", "d_z [CI]"]))
+    lines.append(table(rows, [h("condition"), h("n"), h("mean"), h("diff"), f"CI ({100 * d['confidence']:g} %)",
+                              h("p_value"), h("p_holm"), h("verdict"), "d_z (with its CI)"]))
     if d["notes"]:
         lines.append("")
         lines.append("Notes:")
