@@ -79,6 +79,9 @@ class Term:
     note: bool = False
     #: decimals of the column in a results CSV (None: written as computed)
     csv_decimals: int | None = None
+    #: the CSV value is cut (rounded toward minus infinity), not rounded: a value below a
+    #: requirement of up to ``csv_decimals`` decimals stays below it (as sti.format_index)
+    csv_cut: bool = False
 
     @property
     def header(self) -> str:
@@ -96,7 +99,7 @@ _ISO = "ISO 3382-1"
 TERMS: dict[str, Term] = {
     # --- the STI family
     "sti": _T("STI", "", 2, f"Speech Transmission Index, 0 (nothing transmitted) to 1 (perfect), {_IEC}; shown "
-                        "with more decimals where rounding would contradict a verdict", csv_decimals=6),
+                        "with more decimals where rounding would contradict a verdict", csv_decimals=6, csv_cut=True),
     "mti": _T("MTI", "", 2, "modulation transfer index of an octave band: the mean transmission index over its "
                         "modulation frequencies, 0 to 1", note=True),
     "ti": _T("TI", "", 3, "transmission index: the modulation transfer m turned into an apparent SNR and scaled "
@@ -164,12 +167,13 @@ TERMS: dict[str, Term] = {
     "peak_to_noise_db": _T("peak-to-noise", "dB", 1, "level of the impulse response's peak over its noise floor"),
     "distortion_db": _T("distortion", "dB", 1, "level of the harmonic distortion re the linear response"),
     # --- pairs: envelope correlation and envelope power
-    "stoi": _T("STOI", "", 3, "short-time objective intelligibility, 0 to 1 (Taal et al. 2011)", csv_decimals=6),
-    "estoi": _T("ESTOI", "", 3, "extended STOI, 0 to 1 (Jensen & Taal 2016)", csv_decimals=6),
+    "stoi": _T("STOI", "", 3, "short-time objective intelligibility, 0 to 1 (Taal et al. 2011)",
+               csv_decimals=6, csv_cut=True),
+    "estoi": _T("ESTOI", "", 3, "extended STOI, 0 to 1 (Jensen & Taal 2016)", csv_decimals=6, csv_cut=True),
     "ssti": _T("speech-based STI", "", 3, "STI computed from the clean and degraded speech themselves "
-                                         "(normalised covariance)", csv_decimals=6),
+                                         "(normalised covariance)", csv_decimals=6, csv_cut=True),
     "ssti_regression": _T("speech-based STI (regression)", "", 3, "speech-based STI from the envelope regression",
-                         csv_decimals=6),
+                         csv_decimals=6, csv_cut=True),
     "stoi_band": _T("STOI part", "", 3, "the band's mean envelope correlation (STOI is the mean over the bands)"),
     "estoi_band": _T("ESTOI part", "", 3, "the band's share of the spectral correlation times the number of bands "
                                          "(15): ESTOI is the mean of these", note=True),
@@ -185,6 +189,8 @@ TERMS: dict[str, Term] = {
                   csv_decimals=3),
     "sepsm_snr_env_db": _T("SNR_env", "dB", 2, "envelope-power SNR of the sEPSM (Jorgensen & Dau 2011)",
                           csv_decimals=3),
+    "delay_confidence": _T("delay confidence", "", 2, "how clearly the delay stands out (peak ratio of the "
+                                                      "alignment)", csv_decimals=3),
     "match_correlation": _T("waveform match", "", 3, "correlation of the aligned waveforms at the delay found"),
     "duration_s": _T("duration", "s", 2, "length of the (common part of the) audio"),
     "fs": _T("sample rate", "Hz", 0, "samples per second of the analysis"),
@@ -193,7 +199,7 @@ TERMS: dict[str, Term] = {
     "index_sd": _T("SD", "", 3, "standard deviation over the noise segments"),
     "sentence_sd": _T("SD over sentences", "", 3, "standard deviation of the index over the sentences"),
     "sentence_sd_db": _T("SD over sentences", "dB", 2, "standard deviation of the SNR over the sentences"),
-    "percent_correct": _T("% correct", "%", 1, "share of the test items repeated correctly"),
+    "percent_correct": _T("% correct", "", 1, "share of the test items repeated correctly"),
     "predicted_percent": _T("predicted score", "% correct", 1, "score predicted by the mapping from the index"),
     "observed_percent": _T("observed score", "% correct", 1, "score of the pilot row, correct / trials"),
     "fitted_percent": _T("fitted score", "% correct", 1, "score of the fitted mapping at the row's index value"),
@@ -298,6 +304,15 @@ TERMS: dict[str, Term] = {
     "f0_hz": _T("F0", "Hz", 1, "fundamental frequency of the voice (YIN)"),
     "voiced_fraction": _T("voiced fraction", "%", 0, "share of the time with a voiced (periodic) signal"),
     "resolution_hz": _T("spectral resolution", "Hz", 3, "spacing of the modulation spectrum's lines"),
+    "index": _T("index", "", None, "the intelligibility index compared"),
+    "baseline": _T("baseline", "", None, "the condition every other is compared with"),
+    "conditions": _T("conditions", "", None, "number of conditions compared"),
+    "interval_method": _T("intervals", "", None, "how the intervals were computed: binomial, or quasi-binomial "
+                                                 "(widened by the dispersion Pearson chi-square / df)"),
+    "grid_share": _T("share of the grid", "%", 1, "share of the grid points at or above the required STI"),
+    "listeners_meeting": _T("listeners meeting the requirement", "", None, "listener positions at or above the "
+                                                                          "required STI"),
+    "verdict_zone": _T("zone verdict", "", None, "PASS or FAIL of the zone against the requirements"),
     # --- generic table words
     "quantity": _T("quantity", "", None, "what the row shows"),
     "value": _T("value", "", None, "its value"),
@@ -402,6 +417,30 @@ def show(key: str, value: float | None, *, decimals: int | None = None) -> str:
     if key in ("p_value", "p_holm") and d is not None and 0 <= v < 10 ** -int(d):
         return f"< {10 ** -int(d):.{int(d)}f}"  # "< 0.0001", not "0.0000"
     return f"{v:.{int(d)}f}" if d is not None else f"{v:g}"
+
+
+def significant_decimals(value: float | None, digits: int = 4) -> int:
+    """Decimals that show ``digits`` significant digits of ``value`` (0 to 6), to be used for
+    an estimate and both ends of its interval alike ("3.683 .. 5.360", not "3.683 .. 5.36").
+
+    Raises
+    ------
+    InputError
+        ``digits`` is not 1..9.
+
+    Examples
+    --------
+    >>> significant_decimals(0.6435), significant_decimals(-11.49), significant_decimals(None)
+    (4, 2, 4)
+    """
+    digits = int(checks.number(digits, "digits", lo=1, hi=9, integer=True))
+    try:
+        v = abs(float(value))  # type: ignore[arg-type]
+    except (TypeError, ValueError, OverflowError):
+        return digits
+    if not math.isfinite(v) or v == 0:
+        return digits
+    return int(min(6, max(0, digits - 1 - math.floor(math.log10(v)))))
 
 
 def known_label(text: str) -> bool:

@@ -24,13 +24,11 @@ _BUILTIN_MAPS = ", ".join(sorted(std.TAAL2011_MAPPINGS))
 # ---------------------------------------------------------------------------
 
 def _decimals(v) -> int:
-    """Decimals that show four significant digits of ``v`` (at most 6), for an estimate and
-    both ends of its interval alike ("3.683 .. 5.360", not "3.683 .. 5.36")."""
-    import math
+    """Decimals that show four significant digits of ``v``, for an estimate and both ends of
+    its interval alike (``envpredict.labels.significant_decimals``)."""
+    from envpredict.labels import significant_decimals
 
-    if v is None or not math.isfinite(float(v)) or float(v) == 0:
-        return 4
-    return int(min(6, max(0, 3 - math.floor(math.log10(abs(float(v)))))))
+    return significant_decimals(v)
 
 
 def render_fit(d: dict, rows: list[list[str]]) -> str:
