@@ -242,7 +242,8 @@ TERMS: dict[str, Term] = {
     "p_value": _T("p", "", 4, "two-sided Wilcoxon signed-rank p, not adjusted for several comparisons", note=True),
     "p_holm": _T("p (Holm)", "", 4, "p adjusted for the several comparisons (Holm 1979); the verdict uses it",
                 note=True),
-    "verdict": _T("verdict", "", None, "higher, lower or no clear difference (from the interval and p (Holm))"),
+    "verdict": _T("verdict", "", None, "comparisons: higher, lower or no clear difference (from the interval and "
+                                       "p (Holm)); surveys: PASS or FAIL against the requirements"),
     "d_z": _T("d_z", "", 2, "paired effect size: mean difference / SD of the differences, with its interval",
              note=True),
     "pair_a": _T("a", "", None, "first condition of the pair"),
@@ -312,7 +313,6 @@ TERMS: dict[str, Term] = {
     "grid_share": _T("share of the grid", "%", 1, "share of the grid points at or above the required STI"),
     "listeners_meeting": _T("listeners meeting the requirement", "", None, "listener positions at or above the "
                                                                           "required STI"),
-    "verdict_zone": _T("zone verdict", "", None, "PASS or FAIL of the zone against the requirements"),
     # --- generic table words
     "quantity": _T("quantity", "", None, "what the row shows"),
     "value": _T("value", "", None, "its value"),
@@ -325,6 +325,10 @@ TERMS: dict[str, Term] = {
     "rows": _T("rows", "", None, "pilot rows of the listener"),
     "engine": _T("engine", "", None, "room model used: statistical or image sources"),
 }
+
+#: Terms too plain for a glossary (generic table words): in the vocabulary, not explained.
+PLAIN: frozenset[str] = frozenset({"quantity", "value", "note", "file", "number", "from_s", "to_s", "window", "n",
+                                   "name", "time_s", "time_ms", "rows", "parameter"})
 
 #: Words a person may read alone in a header or label position that are not quantities
 #: (empty headers of a remarks column).
@@ -443,6 +447,31 @@ def significant_decimals(value: float | None, digits: int = 4) -> int:
     return int(min(6, max(0, digits - 1 - math.floor(math.log10(v)))))
 
 
+def uncertainty_decimals(uncertainty: float | None, decimals: int) -> int:
+    """Decimals for an uncertainty shown beside a value with ``decimals`` decimals: as many,
+    or more until its first significant digit shows (0.004 beside an STI of 0.41 is
+    "0.004", not "0.00", which would read as no uncertainty at all; at most 6).
+
+    Raises
+    ------
+    InputError
+        ``decimals`` is not 0..6.
+
+    Examples
+    --------
+    >>> uncertainty_decimals(0.004, 2), uncertainty_decimals(0.012, 2), uncertainty_decimals(None, 3)
+    (3, 2, 3)
+    """
+    d = int(checks.number(decimals, "decimals", lo=0, hi=6, integer=True))
+    try:
+        u = abs(float(uncertainty))  # type: ignore[arg-type]
+    except (TypeError, ValueError, OverflowError):
+        return d
+    while d < 6 and math.isfinite(u) and u > 0 and round(u, d) == 0:
+        d += 1
+    return d
+
+
 def known_label(text: str) -> bool:
     """Whether a header or axis label a person reads is in the vocabulary: a term's
     header or name (a qualification in brackets may follow: "STI (image engine)",
@@ -513,11 +542,13 @@ def glossary(labels: Sequence[str]) -> list[tuple[str, str]]:
     out, seen = [], set()
     for lab in labels:
         k = key_of(lab)
-        if k is None or k in seen:
+        if k is None or k in seen or k in PLAIN:
             continue
         seen.add(k)
         t = TERMS[k]
-        out.append((t.header, t.explain))
+        # as the page shows it: the name alone where its cells carry the unit ("band": "1.6 kHz")
+        bare = " ".join(_PAREN.sub("", " ".join(lab.split())).split())
+        out.append((t.name if bare == t.name else t.header, t.explain))
     return out
 
 

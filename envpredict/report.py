@@ -389,7 +389,7 @@ def _decay_figure(d: Mapping) -> Figure | None:
         c = curves[k]
         ok = np.isfinite(c)
         lines = []
-        gap = 0.025 * t_end
+        gap = 0.018 * t_end
         for j, (name, (hi, lo), col, lab) in enumerate(fits):
             T = _arr(dec.get(name, []))
             T = T[k] if k < T.size else np.nan
@@ -398,8 +398,7 @@ def _decay_figure(d: Mapping) -> Figure | None:
             # that it sits on the curve in every band
             below = np.flatnonzero(ok & (c <= lo))
             t_lo = float(t[below[0]]) if below.size else (float(t[ok][-1]) if ok.any() else 0.0)
-            ax.plot([t_lo + gap * (j + 1)] * 2, [hi, lo], color=col, lw=4, solid_capstyle="butt", label=lab,
-                    alpha=0.9)
+            ax.plot([t_lo + gap] * 2, [hi, lo], color=col, lw=4, solid_capstyle="butt", label=lab, alpha=0.9)
             if not np.isfinite(T):
                 lines.append(f"{name.upper()} —")
                 continue
@@ -436,14 +435,16 @@ def _decay_figure(d: Mapping) -> Figure | None:
                     labels.append(lab)
         leg_ax.axis("off")
         leg_ax.legend(handles, labels, loc="center left", fontsize=9.5, frameon=False,
-                      title="bars: evaluation ranges;\nsleeves: fitted lines", title_fontsize=9.5,
+                      title="bars: evaluation ranges (beside the curve\nwhere it leaves them); sleeves: fitted lines",
+                      title_fontsize=9.5,
                       bbox_to_anchor=(0.08, 0.5))
     fig.suptitle("Schroeder decay curves per octave band, with the fitted ranges (ISO 3382-1)",
                  x=0.01, ha="left", fontweight="bold", fontsize=11.5)
     return _fig("decay_curves", "Backward-integrated (Schroeder) decay curves per octave band, truncated "
                   "at the crossing with the noise floor (dotted). Coloured bars mark the EDT, T20 and T30 "
-                  "evaluation ranges; the sleeves of the same colour are the regression lines over them, "
-                  "and the box gives the decay times they extrapolate to 60 dB.", fig)
+                  "evaluation ranges, each standing beside the curve where the curve leaves it; the sleeves of "
+                  "the same colour are the regression lines over them, and the box gives "
+                  "the decay times they extrapolate to 60 dB.", fig)
 
 
 def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
@@ -544,7 +545,10 @@ def _page_stipa(d: Mapping) -> Page:
 
         # with as many decimals as the STI beside it, as in the terminal
         req = d.get("requirement") if isinstance(d.get("requirement"), (int, float)) else std.VOICE_ALARM_TARGET_STI
+        from .labels import uncertainty_decimals
+
         dec = verdict_decimals(d["sti"], req) if isinstance(d.get("sti"), (int, float)) else 2
+        dec = uncertainty_decimals(d["uncertainty"], dec)
         p.headline.insert(1, ("standard uncertainty (±)", num(d, "uncertainty", f".{dec}f")))
     p.figures += [_mtf_heatmap(d, True), _ti_figure(d)]
     win = _arr(d.get("window_sti")) if d.get("window_sti") else np.array([])
@@ -566,7 +570,7 @@ def _page_stipa(d: Mapping) -> Page:
         ax.set_xlabel("time, s (in the recording)" if one else "time, s (from the start of each recording's "
                       "analysed stretch)")
         ax.set_ylabel("STI")
-        ax.legend(loc="lower right", ncols=2, fontsize=9.5, bbox_to_anchor=(1.0, 1.0), borderaxespad=0.2)
+        ax.legend(loc="upper center", ncols=2, fontsize=9.5, bbox_to_anchor=(0.5, -0.2))
         ax.set_title("Consistency over time")
         unc = d.get("uncertainty")
         cap = ("STI of consecutive analysis windows (dots at their centres, bars over their stretches; x: time in "
@@ -1347,7 +1351,7 @@ def _page_survey(d: Mapping) -> Page:
                      num(d, f"positions.{i}.sti_spread", ".3f"), txt(q.get("rating")),
                      txt(", ".join(format_index(v, ref) for v in q["sti_values"]) or "—"),
                      txt(", ".join(str(r) for r in q["failed_rows"]) or "")])
-    p.tables.append(Table("Positions", ["zone", "position", "repeats", "STI mean", "sd", "spread", "band",
+    p.tables.append(Table("Positions", ["zone", "position", "repeats", "STI mean", "sd", "spread", "qualification band",
                                         "repeats' STI", "rows not scored"], rows))
     for f in d.get("failures") or []:
         p.notes.append(f"Row {f['row']} could not be scored: {f['error']}")
@@ -1742,6 +1746,9 @@ def _input_files(result: Mapping) -> dict[str, str]:
     for k, v in inputs.items():
         if isinstance(v, str) and "." in Path(v).name:
             out[str(k)] = Path(v).name
+        elif isinstance(v, list) and v and all(isinstance(x, str) for x in v):
+            names = [Path(x).name for x in v]
+            out[str(k)] = ", ".join(names) if len(names) <= 3 else f"{names[0]} … {names[-1]} ({len(names)} files)"
     return out
 
 

@@ -1191,6 +1191,8 @@ case("labels.column_notes", headers=st.lists(st.one_of(S("noise depth", "MTI", "
                                              max_size=6), bad_={"headers": S(None, "MTI", 3)})
 case("labels.significant_decimals", value=st.one_of(st.none(), st.floats(allow_nan=True)), digits=S(4, 1, 9),
      bad_={"digits": S(0, 10, "x", None)})
+case("labels.uncertainty_decimals", uncertainty=st.one_of(st.none(), st.floats(allow_nan=True)),
+     decimals=S(2, 0, 6), bad_={"decimals": S(-1, 7, "x", None)})
 case("labels.rating_text", rating=S("G", "A+", None, ""), subjective=S("fair", None),
      bad_={"rating": S(3, ["G"]), "subjective": S(3)})
 

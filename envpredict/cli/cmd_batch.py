@@ -238,11 +238,13 @@ def compare_command(
               "all_pairs": all_pairs}
     comps = [compare_conditions_file(results, by=by, baseline=baseline, index=i, pair_on=pair_on).to_dict()
              for i in indices]
+    from envpredict.labels import name as label_name
+
     if len(indices) == 1 and not all_pairs:
         d = comps[0]
         d["inputs"] = inputs
         write_report_if(report, "compare", d, as_json=as_json,
-                        title=f"{d.get('index', index)} by {by}, against {baseline}")
+                        title=f"{label_name(str(d.get('index', index)))} by {by}, against {baseline}")
         emit(d, lambda: render_comparison(d), as_json, out)
         return
     pairwise = ([compare_all_pairs_file(results, by=by, index=c["index"], pair_on=pair_on).to_dict() for c in comps]

@@ -95,11 +95,12 @@ def render_direct(d: dict) -> str:
     import numpy as np
 
     from envpredict import standards as std
-    from envpredict.labels import rating_text
+    from envpredict.labels import rating_text, uncertainty_decimals
     from envpredict.sti import verdict_decimals
 
     req = std.VOICE_ALARM_TARGET_STI if d.get("requirement") is None else d["requirement"]
-    unc_spec = f".{verdict_decimals(d['sti'], req)}f"  # the uncertainty with as many decimals as the STI
+    # the uncertainty with as many decimals as the STI, or more until it shows a digit
+    unc_spec = f".{uncertainty_decimals(d['uncertainty'], verdict_decimals(d['sti'], req))}f"
 
     lines = [f"Method: {d['method']}"]
     for r in d["recordings"]:
