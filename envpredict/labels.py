@@ -281,6 +281,7 @@ TERMS: dict[str, Term] = {
     "critical_distance_m": _T("critical distance at 1 kHz", "m", 1, "distance where direct and reverberant sound "
                                                                     "are equal"),
     "directivity": _T("directivity", "", None, "the loudspeaker's directivity pattern"),
+    "source_delay_ms": _T("signal delay", "ms", 1, "electronic delay of the loudspeaker's feed"),
     "rt_s": _T("RT", "s", 2, "reverberation time of the room model"),
     "absorption_area_m2": _T("absorption area", "m2", 0, "equivalent absorption area"),
     "noise_db_design": _T("noise", "dB SPL", 1, "octave-band background noise"),

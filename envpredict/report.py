@@ -1488,7 +1488,7 @@ def _page_design(d: Mapping) -> Page:
                      num(d, f"sources.{i}.critical_distance_m.3", ".1f"), num(d, f"sources.{i}.delay_ms", ".1f"),
                      txt(s.get("pattern"))])
     p.tables.append(Table("Loudspeakers", ["name", "position, m", "aim, m", "level at 1 m, dB(A)", "Q at 1 kHz",
-                                           "critical distance at 1 kHz, m", "delay, ms", "directivity"], rows))
+                                           "critical distance at 1 kHz, m", "signal delay, ms", "directivity"], rows))
     room = d.get("room") or {}
     bands = list(d.get("bands_hz", std.OCTAVE_BANDS_HZ))
     rows = [[Cell(_band_label(fc)), num(d, f"room.rt_s.{k}", ".2f"), num(d, f"room.absorption_area_m2.{k}", ".0f"),
