@@ -276,9 +276,9 @@ def _mtf_heatmap(d: Mapping, stipa: bool) -> Figure:
     cb.set_label("m (modulation transfer: 0 = lost, 1 = kept)")
     corr = "after noise and auditory corrections" if d.get("auditory_corrections", True) else "after noise correction"
     ax.set_title(f"Modulation transfer used for the index ({corr})")
-    return _fig("mtf", "Modulation transfer function m per octave band and modulation frequency: "
-                  "each cell is the fraction of the speech envelope modulation that survives the "
-                  "path to the listener.", fig)
+    return _fig("mtf", "Modulation transfer m per octave band (rows) and modulation frequency (columns): "
+                  "each cell is the fraction of the speech envelope's modulation that survives the path to "
+                  "the listener, written in the cell and coloured from dark (0, lost) to cream (1, kept).", fig)
 
 
 def _ti_figure(d: Mapping) -> Figure:
@@ -648,9 +648,10 @@ def _page_pair(d: Mapping) -> Page:
         cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
         cb.set_label("envelope correlation (STOI part)")
         ax.set_title("Envelope correlation per band over time, clean vs degraded")
-        p.figures.append(_fig("band_correlation", "Correlation of the clean and degraded band envelopes in each "
-                                "analysis segment: dark patches show in which bands and when the degraded signal "
-                                "lost the envelope of the clean one.", fig))
+        p.figures.append(_fig("band_correlation", "Correlation of the clean and degraded band envelopes per "
+                                "one-third-octave band (rows) and time bin (columns), coloured from dark (0: the "
+                                "envelope is lost) to cream (1: kept): dark patches show in which bands and when "
+                                "the degraded signal lost the envelope of the clean one.", fig))
     if tl.get("start_s") is not None and (tl.get("stoi") is not None or tl.get("estoi") is not None):
         start = _arr(tl["start_s"])
         step_s = float(tl.get("step_s") or (start[1] - start[0] if start.size > 1 else 1.0))
@@ -1120,9 +1121,9 @@ def _page_inspect(d: Mapping) -> Page:
         ax.legend(loc="upper left", ncols=3, fontsize=9)
         fb = float(ex.get("excerpt_band_hz", 1000.0))
         ax.set_title(f"The three timing levels in the {_band_label(fb)} band ({t[-1]:.0f} ms excerpt)")
-        p.figures.append(_fig("three_levels", "One octave band over a short stretch: the carrier (fine "
-                                "structure), its amplitude envelope (which beats at the voice's F0: periodicity) "
-                                "and the slow envelope that carries syllables.", fig))
+        p.figures.append(_fig("three_levels", "One octave band over a short stretch: the carrier (grey, fine "
+                                "structure), its amplitude envelope (teal, which beats at the voice's F0: "
+                                "periodicity) and the slow envelope that carries syllables (copper).", fig))
     # 3. modulation depth per band by timescale
     env_m, per_m = _arr(d.get("envelope_modulation")), _arr(d.get("periodicity_modulation"))
     if bands and env_m.size:
@@ -1297,8 +1298,9 @@ def _survey_chart(d: Mapping) -> Figure:
     if reqs:
         ax.legend(loc="lower right", fontsize=9, framealpha=0.95)
     worst = [p for p in positions if p["sti_mean"] is not None]
-    cap = ("STI at every position, grouped by zone (with its verdict), over the qualification bands of "
-           "IEC 60268-16 Annex F (labels at the right)")
+    cap = ("STI at every position (dot: mean of its repeats; dashes: the repeats), one colour per zone, grouped "
+           "by zone (with its verdict), over the qualification bands of IEC 60268-16 Annex F (stripes, labels at "
+           "the right)")
     if reqs:
         cap += "; the lines are the required values"
     if worst:
