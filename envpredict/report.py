@@ -1842,7 +1842,10 @@ def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str
         parts.append("<h2>Figures</h2>")
         for f in page.figures:
             b64 = base64.b64encode(f.png).decode("ascii")
-            parts.append(f'<figure id="fig-{f.name}"><img alt="{html.escape(f.caption, quote=True)}" '
+            # the axis and colour-bar labels drawn, for a reader (or a test) checking the page's terms
+            labels = html.escape(json.dumps(f.labels), quote=True)
+            parts.append(f'<figure id="fig-{f.name}" data-labels="{labels}">'
+                         f'<img alt="{html.escape(f.caption, quote=True)}" '
                          f'src="data:image/png;base64,{b64}"><figcaption>{html.escape(f.caption)}</figcaption>'
                          "</figure>")
     if page.tables:

@@ -148,6 +148,7 @@ class ReportPage:
     columns: dict[str, list[str]] = field(default_factory=dict)  # header -> its cells, all tables
     headline: list[str] = field(default_factory=list)
     glossary: list[str] = field(default_factory=list)
+    figures: dict[str, list[str]] = field(default_factory=dict)  # figure id -> its axis and colour-bar labels
 
 
 def _text(fragment: str) -> str:
@@ -165,16 +166,12 @@ def report_page(folder: Path) -> ReportPage:
                 page.columns.setdefault(h, []).append(_text(c))
     page.headline = [_text(t) for t in re.findall(r'<div class="label">(.*?)</div>', doc, re.S)]
     page.glossary = [_text(t) for t in re.findall(r"<dt>(.*?)</dt>", doc, re.S)]
+    # each figure carries the labels its axes and colour bars draw (report.py reads them off the
+    # matplotlib figure before saving it)
+    page.figures = {i: json.loads(html.unescape(v))
+                    for i, v in re.findall(r'<figure id="([^"]+)" data-labels="([^"]*)">', doc)}
+    assert len(page.figures) == doc.count("<figure "), "a figure without its labels"
     return page
-
-
-def figure_labels(folder: Path, kind: str) -> list[str]:
-    """The axis and colour-bar labels the report's figures draw (rebuilt from result.json,
-    as the report is)."""
-    from envpredict.report import build_page
-
-    d = json.loads((folder / "result.json").read_text(encoding="utf-8"))
-    return [lab for f in build_page(kind, d).figures for lab in f.labels]
 
 
 def unknown(labels) -> list[str]:
@@ -208,7 +205,7 @@ def test_terminal_headers_are_in_the_vocabulary(runs, command):
 def test_report_labels_are_in_the_vocabulary_and_explained(runs, command):
     _, folder = runs[command]
     page = report_page(folder)
-    figs = figure_labels(folder, REPORT_KINDS[command])
+    figs = [lab for labels in page.figures.values() for lab in labels]
     assert page.headers and figs
     for what, labels in (("table header", page.headers), ("headline label", page.headline),
                          ("figure label", figs)):
@@ -226,12 +223,21 @@ def test_report_labels_are_in_the_vocabulary_and_explained(runs, command):
 
 def test_figures_name_their_axes(runs):
     # every figure of every report kind labels at least one axis (a chart without units misleads)
+    for command in REPORT_KINDS:
+        for name, labels in report_page(runs[command][1]).figures.items():
+            assert labels, f"{command}: figure {name} has no axis label"
+
+
+def test_the_figure_labels_in_the_page_are_those_drawn(runs):
+    # the labels the page lists are read off the drawn figures: rebuilding the page from
+    # result.json gives the same ones (so the check above reads what the PNGs show)
     from envpredict.report import build_page
 
-    for command, kind in REPORT_KINDS.items():
-        d = json.loads((runs[command][1] / "result.json").read_text(encoding="utf-8"))
-        for f in build_page(kind, d).figures:
-            assert f.labels, f"{command}: figure {f.name} has no axis label"
+    folder = runs["ir"][1]
+    d = json.loads((folder / "result.json").read_text(encoding="utf-8"))
+    drawn = {f"fig-{f.name}": f.labels for f in build_page("ir", d).figures}
+    assert drawn == report_page(folder).figures
+    assert "time after onset, s" in drawn["fig-decay_curves"]
 
 
 def test_results_csv_numbers_are_rounded(runs):
