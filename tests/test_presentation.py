@@ -73,6 +73,14 @@ def runs(tmp_path_factory):
     for k, (spec, x) in enumerate(full_sti_signals(FS, seed=3)):
         sf.write(root / "full" / spec.filename, _room(x, 10 + k), FS, subtype="PCM_24")
     (root / "pilot.csv").write_text(PILOT)
+    # a recording of the README's short sweep through the synthetic room (for deconvolve)
+    code, _ = _run(["testsignal", "sweep", root / "sweep.wav", "--repeats", "1", "--rate", "32000", "--f2", "14000"])
+    assert code == 0
+    from scipy.signal import fftconvolve
+
+    sweep, fs_sweep = sf.read(root / "sweep.wav")
+    rec = fftconvolve(sweep, noise_decay(0.5, fs=fs_sweep, seconds=0.8, seed=5))[: sweep.size]
+    sf.write(root / "sweep_rec.wav", 0.5 * rec / np.max(np.abs(rec)), fs_sweep, subtype="PCM_24")
     # four sentences of the demo corpus in its three conditions
     rows = (site / "corpus.csv").read_text().splitlines()
     (site / "small.csv").write_text("\n".join(rows[:13]) + "\n")
@@ -94,6 +102,7 @@ def runs(tmp_path_factory):
                     "sentence"],
         "demo": ["demo"],
         "testsignal full": ["testsignal", "full", root / "signals"],
+        "deconvolve": ["deconvolve", root / "sweep_rec.wav", "--sweep", root / "sweep.wav", "--out", root / "ir.wav"],
     }
     reports = {"ir", "stipa", "fullsti", "pair", "fitmap", "sweep", "inspect", "survey", "design", "compare"}
     out = {}
@@ -183,7 +192,7 @@ def unknown(labels) -> list[str]:
 # ---------------------------------------------------------------------------
 
 TEXT_COMMANDS = ["ir", "stipa", "fullsti", "pair", "fitmap", "sweep", "inspect", "survey", "design", "batch",
-                 "compare", "demo", "testsignal full"]
+                 "compare", "demo", "testsignal full", "deconvolve"]
 REPORT_KINDS = {"ir": "ir", "stipa": "stipa", "fullsti": "fullsti", "pair": "pair", "fitmap": "fitmap",
                 "sweep": "sweep", "inspect": "inspect", "survey": "survey", "design": "design", "compare": "compare"}
 
