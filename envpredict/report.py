@@ -194,6 +194,14 @@ def _term(key: str) -> str:
     return header(key)
 
 
+def _spec(key: str) -> str:
+    """The format of a quantity's numbers: the vocabulary's decimals (as the terminal shows them)."""
+    from .labels import term
+
+    d = term(key).decimals
+    return "g" if d is None else f".{d}f"
+
+
 def _name(key: str) -> str:
     from .labels import name
 
@@ -460,7 +468,7 @@ def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
     for k, fc in enumerate(bands):
         rows.append([
             Cell(_band_label(fc)),
-            num(d, f"mti.{k}", ".3f") if (d.get("bands_used") or [True] * 7)[k] else Cell("not used", cls="na"),
+            num(d, f"mti.{k}", _spec("mti")) if (d.get("bands_used") or [True] * 7)[k] else Cell("not used", cls="na"),
             num(d, f"{level_path}.{k}", ".1f"),
             num(d, f"noise_db.{k}", ".1f") if noise else Cell("—"),
             num(d, f"masking_db.{k}", ".1f") if d.get("masking_db") else Cell("—"),
@@ -479,7 +487,7 @@ def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
     if per_band:
         head = ["band"] + [_term(f"m_f{j + 1}") for j in range(nf)] + [_term(f"f{j + 1}") for j in range(nf)] + \
             [f"{_term('mtf_measured')} (at f{j + 1})" for j in range(nf)]
-        rows = [[Cell(_band_label(fc))] + [num(d, f"mtf.{k}.{j}", ".3f") for j in range(nf)]
+        rows = [[Cell(_band_label(fc))] + [num(d, f"mtf.{k}.{j}", _spec("m_f1")) for j in range(nf)]
                 + [num(d, f"modulation_hz.{k}.{j}", "g") for j in range(nf)]
                 + [num(d, f"mtf_measured.{k}.{j}", ".3f") for j in range(nf)] for k, fc in enumerate(bands)]
     else:
