@@ -8,6 +8,13 @@ Band labels are the nominal frequencies of the bands (ISO 266:1997 preferred
 frequencies, the R10 series for one-third octaves and every third one of it for
 octaves; IEC 61260-1:2014 Annex E names bands by them): the band centred on 238.1 Hz
 is "250 Hz", on 1511.9 Hz "1.6 kHz", whatever exact centre the method computes with.
+
+The vocabulary (:data:`TERMS`) gives each quantity a :class:`Term`: display name, unit,
+decimals, a one-line explanation, whether a terminal table needs a column note for it,
+and its precision in a results CSV. Adding a quantity (a new command's column) is one
+line there; a header is ``header(key)`` ("T30, s"), a label may add a qualification in
+brackets ("STI (image engine)"), and :func:`known_label` says whether a shown label is in
+the vocabulary (the test of every command's output uses it).
 """
 
 from __future__ import annotations

@@ -49,7 +49,7 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
                      f"{sp['percent_correct']:.1f} % correct for its sentence material (material-specific)")
     if d.get("separation"):
         sep = d["separation"]
-        snrs = "  ".join(f"{fc:g}: {fmt(v, '.1f')}" for fc, v in zip(sep["bands_hz"], sep["output_snr_db"]))
+        snrs = "  ".join(f"{fc}: {fmt(v, '.1f')}" for fc, v in zip(bands(sep["bands_hz"]), sep["output_snr_db"]))
         lines.append(f"output SNR (phase inversion) = {sep['broadband_snr_db']:.1f} dB; per octave band, dB: {snrs}")
     lines += [
         "",
