@@ -271,7 +271,8 @@ def _mtf_heatmap(d: Mapping, stipa: bool) -> Figure:
                 label += f"\n{mod[i][j]:g} Hz"
             ax.text(j, i, label, ha="center", va="center", fontsize=8.5 if wide else 10,
                     color=_text_colour(im.cmap(im.norm(v))))
-    ax.set_yticks(range(nb), [_band_label(f) for f in bands])
+    used = list(d.get("bands_used") or [True] * nb)
+    ax.set_yticks(range(nb), [_band_label(f) + ("" if u else "\n(not used)") for f, u in zip(bands, used)])
     ax.set_ylabel("octave band")
     if per_band:
         ax.set_xticks(range(nf), ["lower modulation\nfrequency", "upper modulation\nfrequency"][:nf] if nf == 2
