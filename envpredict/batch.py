@@ -255,7 +255,7 @@ class Manifest:
         cells = list(self.cells[row - 1])
         for i, c in enumerate(self.columns):
             if c in MANIFEST_RESULT_COLUMNS and not cells[i].strip() and values.get(c) is not None:
-                cells[i] = format_cell(values.get(c))
+                cells[i] = format_cell(values.get(c), c)
         return cells
 
     def matches(self, row: int, cells: Sequence[str]) -> bool:
@@ -944,7 +944,7 @@ class ResultWriter:
             return self.done[row]  # a backend delivered a row twice: write it once
         values = result.get("values") or {}
         cells = ([str(row)] + self.manifest.result_cells(row, values)
-                 + [format_cell(values.get(c)) for c in self.manifest.index_columns + (NOTES_COLUMN,)]
+                 + [format_cell(values.get(c), c) for c in self.manifest.index_columns + (NOTES_COLUMN,)]
                  + [format_cell(result.get("error"))])
         data = csv_line(cells).encode("utf-8")
         assert self._fd is not None

@@ -155,6 +155,8 @@ class Figure:
     name: str          # file name without suffix
     caption: str
     png: bytes
+    #: the axis and colour-bar labels drawn (checked against the vocabulary, listed in the glossary)
+    labels: list[str] = field(default_factory=list)
 
 
 @dataclass
@@ -178,6 +180,32 @@ class Page:
     figures: list[Figure] = field(default_factory=list)
     tables: list[Table] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)   # e.g. figures left out and why
+
+
+def _fig(name: str, caption: str, fig) -> Figure:
+    """The :class:`Figure` of a drawn matplotlib figure, with the axis and colour-bar labels it shows."""
+    labels = [t for ax in fig.axes for t in (ax.get_xlabel(), ax.get_ylabel()) if t]
+    return Figure(name, caption, _png(fig), labels)
+
+
+def _term(key: str) -> str:
+    from .labels import header
+
+    return header(key)
+
+
+def _spec(key: str) -> str:
+    """The format of a quantity's numbers: the vocabulary's decimals (as the terminal shows them)."""
+    from .labels import term
+
+    d = term(key).decimals
+    return "g" if d is None else f".{d}f"
+
+
+def _name(key: str) -> str:
+    from .labels import name
+
+    return name(key)
 
 
 def _png(fig) -> bytes:
@@ -206,6 +234,8 @@ def num(d: Mapping, path: str, spec: str = ".2f", unit: str = "") -> Cell:
         return Cell("—", path, "na")
     if isinstance(v, bool) or not isinstance(v, (int, float)):
         return Cell(html.escape(str(v)))
+    if spec.endswith("%"):  # a fraction shown as a percentage, "44 %"
+        return Cell(f"{100 * float(v):{spec[:-1]}f} %", path)
     return Cell(format(float(v), spec) + (f" {unit}" if unit else ""), path)
 
 
@@ -241,22 +271,23 @@ def _mtf_heatmap(d: Mapping, stipa: bool) -> Figure:
                 label += f"\n{mod[i][j]:g} Hz"
             ax.text(j, i, label, ha="center", va="center", fontsize=8.5 if wide else 10,
                     color=_text_colour(im.cmap(im.norm(v))))
-    ax.set_yticks(range(nb), [_band_label(f) for f in bands])
+    used = list(d.get("bands_used") or [True] * nb)
+    ax.set_yticks(range(nb), [_band_label(f) + ("" if u else "\n(not used)") for f, u in zip(bands, used)])
     ax.set_ylabel("octave band")
     if per_band:
         ax.set_xticks(range(nf), ["lower modulation\nfrequency", "upper modulation\nfrequency"][:nf] if nf == 2
                       else [f"#{j + 1}" for j in range(nf)])
-        ax.set_xlabel("modulation frequency of each band (value shown under m)")
+        ax.set_xlabel("modulation frequency (each band's own f1 and f2: the value shown under m)")
     else:
         ax.set_xticks(range(nf), [f"{f:g}" for f in mod])
         ax.set_xlabel("modulation frequency, Hz")
     cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
-    cb.set_label("modulation transfer m (0 = lost, 1 = kept)")
+    cb.set_label("m (modulation transfer: 0 = lost, 1 = kept)")
     corr = "after noise and auditory corrections" if d.get("auditory_corrections", True) else "after noise correction"
     ax.set_title(f"Modulation transfer used for the index ({corr})")
-    return Figure("mtf", "Modulation transfer function m per octave band and modulation frequency: "
-                  "each cell is the fraction of the speech envelope modulation that survives the "
-                  "path to the listener.", _png(fig))
+    return _fig("mtf", "Modulation transfer m per octave band (rows) and modulation frequency (columns): "
+                  "each cell is the fraction of the speech envelope's modulation that survives the path to "
+                  "the listener, written in the cell and coloured from dark (0, lost) to cream (1, kept).", fig)
 
 
 def _ti_figure(d: Mapping) -> Figure:
@@ -270,7 +301,8 @@ def _ti_figure(d: Mapping) -> Figure:
     gs = fig.add_gridspec(1, 2, width_ratios=[5.2, 1.0], wspace=0.08)
     ax = fig.add_subplot(gs[0])
     x = np.arange(len(bands))
-    bars = ax.bar(x, np.nan_to_num(mti), color=[BAND_COLOURS[i % 7] for i in x], width=0.66)
+    # one colour: a bar's height is the MTI, its colour says nothing more
+    bars = ax.bar(x, np.nan_to_num(mti), color=TEAL, width=0.66)
     for b, v, u in zip(bars, mti, used):
         if not u:
             ax.text(b.get_x() + b.get_width() / 2, 0.02, "not\nused", ha="center", va="bottom", fontsize=9,
@@ -282,7 +314,7 @@ def _ti_figure(d: Mapping) -> Figure:
                     color="white" if inside else INK)
     ax.set_xticks(x, [_band_label(f) for f in bands])
     ax.set_xlabel("octave band")
-    ax.set_ylabel("transmission index (MTI), 0 to 1")
+    ax.set_ylabel("MTI (0 to 1)")
     ax.set_ylim(0, 1.08)
     ax.grid(axis="x", visible=False)
     if sti is not None:
@@ -322,9 +354,13 @@ def _ti_figure(d: Mapping) -> Figure:
         y = sti
         sc.axhline(y, color=INK, lw=2.4)
         sc.plot([0.0], [y], marker=">", ms=11, color=INK, clip_on=False, zorder=5)
-    sc.set_title(f"band {d.get('rating', '?')}", loc="center")
-    return Figure("transmission_index", "Transmission index (MTI) per octave band with the STI (dashed) and "
-                  "the qualification band of IEC 60268-16 Annex F (right, A+ best, U below 0.36).", _png(fig))
+    from .labels import rating_text
+
+    sc.set_title(rating_text(d.get("rating"), d.get("subjective")), loc="center", fontsize=10.5)
+    return _fig("transmission_index", "Modulation transfer index (MTI, 0 to 1) per octave band (bars, one "
+                  "colour), the STI (dashed: the weighted combination of the bands) and, on the same vertical "
+                  "scale at the right, the qualification bands of IEC 60268-16 Annex F (A+ best, U below 0.36) "
+                  "with the arrow at the STI.", fig)
 
 
 def _rect(xy, w, h, colour, alpha=1.0):
@@ -355,8 +391,6 @@ def _decay_figure(d: Mapping) -> Figure | None:
     fits = tuple((name, std.DECAY_RANGES_DB[name], col,
                   f"{name.upper()}, {std.DECAY_RANGES_DB[name][0]:g} to {std.DECAY_RANGES_DB[name][1]:g} dB")
                  for name, col in (("edt", COPPER), ("t20", STEEL), ("t30", PLUM)))
-    from matplotlib.transforms import blended_transform_factory
-
     cross = _arr(dec.get("crossing_s", []))
     for k, ax in enumerate(axes[: len(bands)]):
         if k >= curves.shape[0]:
@@ -364,13 +398,16 @@ def _decay_figure(d: Mapping) -> Figure | None:
         c = curves[k]
         ok = np.isfinite(c)
         lines = []
-        tr = blended_transform_factory(ax.transAxes, ax.transData)
+        gap = 0.018 * t_end
         for j, (name, (hi, lo), col, lab) in enumerate(fits):
             T = _arr(dec.get(name, []))
             T = T[k] if k < T.size else np.nan
-            # the evaluation range, as a bar at the right edge of the panel
-            ax.plot([0.72 + 0.05 * j] * 2, [hi, lo], color=col, lw=5, solid_capstyle="butt", transform=tr,
-                    label=lab)
+            # the evaluation range, as a bar standing just right of where this band's curve
+            # leaves the range (its lower end, or the curve's end if it never gets there), so
+            # that it sits on the curve in every band
+            below = np.flatnonzero(ok & (c <= lo))
+            t_lo = float(t[below[0]]) if below.size else (float(t[ok][-1]) if ok.any() else 0.0)
+            ax.plot([t_lo + gap] * 2, [hi, lo], color=col, lw=4, solid_capstyle="butt", label=lab, alpha=0.9)
             if not np.isfinite(T):
                 lines.append(f"{name.upper()} —")
                 continue
@@ -407,32 +444,38 @@ def _decay_figure(d: Mapping) -> Figure | None:
                     labels.append(lab)
         leg_ax.axis("off")
         leg_ax.legend(handles, labels, loc="center left", fontsize=9.5, frameon=False,
-                      title="bars: evaluation ranges;\nsleeves: fitted lines", title_fontsize=9.5,
+                      title="bars: evaluation ranges (beside the curve\nwhere it leaves them); sleeves: fitted lines",
+                      title_fontsize=9.5,
                       bbox_to_anchor=(0.08, 0.5))
     fig.suptitle("Schroeder decay curves per octave band, with the fitted ranges (ISO 3382-1)",
                  x=0.01, ha="left", fontweight="bold", fontsize=11.5)
-    return Figure("decay_curves", "Backward-integrated (Schroeder) decay curves per octave band, truncated "
+    return _fig("decay_curves", "Backward-integrated (Schroeder) decay curves per octave band, truncated "
                   "at the crossing with the noise floor (dotted). Coloured bars mark the EDT, T20 and T30 "
-                  "evaluation ranges; the sleeves of the same colour are the regression lines over them, "
-                  "and the box gives the decay times they extrapolate to 60 dB.", _png(fig))
+                  "evaluation ranges, each standing beside the curve where the curve leaves it; the sleeves of "
+                  "the same colour are the regression lines over them, and the box gives "
+                  "the decay times they extrapolate to 60 dB.", fig)
 
 
 def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
     bands = list(d.get("bands_hz", std.OCTAVE_BANDS_HZ))
     rows = []
     noise = d.get("noise_db")
+    # the direct method's band levels are of the whole recording (test signal and noise), in
+    # dB SPL when calibrated, else dB re full scale, as in the terminal
+    level_key = "speech_db"
+    if stipa:
+        level_key = "band_levels_db" if d.get("band_levels_unit", "dB SPL") == "dB SPL" else "band_levels_dbfs"
+    level_path = "band_levels_db" if stipa else "speech_db"
     for k, fc in enumerate(bands):
         rows.append([
             Cell(_band_label(fc)),
-            num(d, f"mti.{k}", ".3f") if (d.get("bands_used") or [True] * 7)[k] else Cell("not used", cls="na"),
-            num(d, f"speech_db.{k}", ".1f"),
+            num(d, f"mti.{k}", _spec("mti")) if (d.get("bands_used") or [True] * 7)[k] else Cell("not used", cls="na"),
+            num(d, f"{level_path}.{k}", ".1f"),
             num(d, f"noise_db.{k}", ".1f") if noise else Cell("—"),
             num(d, f"masking_db.{k}", ".1f") if d.get("masking_db") else Cell("—"),
             num(d, f"threshold_db.{k}", ".1f") if d.get("threshold_db") else Cell("—"),
         ])
-    # the direct method's band levels are of the whole recording: test signal and noise
-    level = "band level (signal + noise), dB" if stipa else "speech level, dB"
-    head = ["band", "MTI", level, "noise level, dB", "masking level, dB", "reception threshold, dB"]
+    head = ["band", _term("mti"), _term(level_key), _term("noise_db"), _term("masking_db"), _term("threshold_db")]
     # leave out the level columns the result has no values for (e.g. an uncalibrated recording)
     keep = [j for j in range(len(head)) if j < 2 or any(r[j].text != "—" for r in rows)]
     tables = [Table("Per octave band", [head[j] for j in keep], [[r[j] for j in keep] for r in rows])]
@@ -443,17 +486,21 @@ def _sti_tables(d: Mapping, stipa: bool) -> list[Table]:
     m = d.get("mtf") or []
     nf = len(m[0]) if m else 0
     if per_band:
-        head = ["band"] + [f"m at f{j + 1}" for j in range(nf)] + [f"f{j + 1}, Hz" for j in range(nf)] + \
-            [f"measured m at f{j + 1}" for j in range(nf)]
-        rows = [[Cell(_band_label(fc))] + [num(d, f"mtf.{k}.{j}", ".3f") for j in range(nf)]
+        head = ["band"] + [_term(f"m_f{j + 1}") for j in range(nf)] + [_term(f"f{j + 1}") for j in range(nf)] + \
+            [f"{_term('mtf_measured')} (at f{j + 1})" for j in range(nf)]
+        rows = [[Cell(_band_label(fc))] + [num(d, f"mtf.{k}.{j}", _spec("m_f1")) for j in range(nf)]
                 + [num(d, f"modulation_hz.{k}.{j}", "g") for j in range(nf)]
                 + [num(d, f"mtf_measured.{k}.{j}", ".3f") for j in range(nf)] for k, fc in enumerate(bands)]
     else:
         head = ["band"] + [f"{f:g} Hz" for f in mod]
         rows = [[Cell(_band_label(fc))] + [num(d, f"mtf.{k}.{j}", ".2f") for j in range(nf)]
                 for k, fc in enumerate(bands)]
-    tables.append(Table("Modulation transfer used for the index", head, rows,
-                        "Rows: octave bands. Columns: modulation frequencies."))
+    note = ("Rows: octave bands. Columns: m at the band's two modulation frequencies f1 and f2 (after the noise "
+            "and auditory corrections, as used for the index), f1 and f2 themselves, and m as measured before the "
+            "corrections." if per_band else
+            "Rows: octave bands. Columns: modulation frequencies; each cell is the modulation transfer m used for "
+            "the index (0 = lost, 1 = kept).")
+    tables.append(Table("Modulation transfer m used for the index", head, rows, note))
     return tables
 
 
@@ -464,11 +511,14 @@ def _sti_headline(d: Mapping) -> list[tuple[str, Cell]]:
     ref = std.VOICE_ALARM_TARGET_STI if not isinstance(req, (int, float)) else float(req)
     # two decimals, or more where rounding would contradict the verdict (0.498, not "0.50")
     spec = f".{verdict_decimals(d['sti'], ref)}f" if isinstance(d.get("sti"), (int, float)) else ".2f"
-    out = [("STI", num(d, "sti", spec)), ("qualification band", txt(d.get("rating"))),
-           ("rating", txt(d.get("subjective"))), ("talker", txt(d.get("talker")))]
+    from .labels import rating_text
+
+    out = [("STI", num(d, "sti", spec)),
+           ("qualification band", txt(rating_text(d.get("rating"), d.get("subjective")))),
+           ("talker", txt(d.get("talker")))]
     if isinstance(req, (int, float)) and d.get("meets_requirement") is not None:
         met = bool(d["meets_requirement"])
-        out.insert(1, (f"required: {req:g}", Cell("MET" if met else "NOT MET", cls="pass" if met else "fail")))
+        out.insert(1, (f"required STI ({req:g})", Cell("MET" if met else "NOT MET", cls="pass" if met else "fail")))
     return out
 
 
@@ -491,8 +541,8 @@ def _page_ir(d: Mapping) -> Page:
                  num(d, f"decay.d50.{k}", ".2f"), num(d, f"decay.decay_range_db.{k}", ".0f"),
                  num(d, f"decay.crossing_s.{k}", ".2f")]
                 for k, fc in enumerate(bands)]
-        p.tables.append(Table("Decay figures (ISO 3382-1)", ["band", "EDT, s", "T20, s", "T30, s", "C50, dB",
-                                                             "C80, dB", "D50", "decay range, dB", "crossing, s"],
+        p.tables.append(Table("Decay figures (ISO 3382-1)", ["band"] + [_term(k) for k in (
+                              "edt", "t20", "t30", "c50", "c80", "d50", "decay_range_db", "crossing_s")],
                               rows, "A dash: not computed (see the notes below)." if dec.get("notes") else ""))
         for n in dec.get("notes", []):
             p.notes.append(str(n))
@@ -508,7 +558,10 @@ def _page_stipa(d: Mapping) -> Page:
 
         # with as many decimals as the STI beside it, as in the terminal
         req = d.get("requirement") if isinstance(d.get("requirement"), (int, float)) else std.VOICE_ALARM_TARGET_STI
+        from .labels import uncertainty_decimals
+
         dec = verdict_decimals(d["sti"], req) if isinstance(d.get("sti"), (int, float)) else 2
+        dec = uncertainty_decimals(d["uncertainty"], dec)
         p.headline.insert(1, ("standard uncertainty (±)", num(d, "uncertainty", f".{dec}f")))
     p.figures += [_mtf_heatmap(d, True), _ti_figure(d)]
     win = _arr(d.get("window_sti")) if d.get("window_sti") else np.array([])
@@ -516,30 +569,52 @@ def _page_stipa(d: Mapping) -> Page:
         new = _mpl()
         fig = new(10.0, 3.4)
         ax = fig.add_subplot(111)
-        x = np.arange(1, win.size + 1)
-        ax.plot(x, win, "o", color=TEAL, ms=7, label="STI of each analysis window")
+        t0, t1, one = _window_span(d)
+        edges = np.linspace(t0, t1, win.size + 1)
+        x = (edges[:-1] + edges[1:]) / 2
+        ax.hlines(win, edges[:-1], edges[1:], color=TEAL, lw=3.0, alpha=0.45)
+        ax.plot(x, win, "o", color=TEAL, ms=7, label="STI of each analysis window (bar: its stretch)")
         if d.get("sti") is not None:
             ax.axhline(d["sti"], color=INK, lw=1.2, ls="--", label=f"STI of the whole recording {d['sti']:.2f}")
         # at least +-0.05 around the values: a scatter of 0.01 should look small
         span = max(0.05, float(np.nanmax(win) - np.nanmin(win)))
         ax.set_ylim(float(np.nanmin(win)) - span, float(np.nanmax(win)) + span)
-        ax.set_xticks(x)
-        ax.set_xlabel("analysis window (consecutive stretches of the recording)")
+        ax.set_xlim(min(0.0, t0), t1 + 0.02 * (t1 - t0))
+        ax.set_xlabel("time, s (in the recording)" if one else "time, s (from the start of each recording's "
+                      "analysed stretch)")
         ax.set_ylabel("STI")
-        ax.legend(loc="lower right", ncols=2, fontsize=9.5, bbox_to_anchor=(1.0, 1.0), borderaxespad=0.2)
+        ax.legend(loc="upper center", ncols=2, fontsize=9.5, bbox_to_anchor=(0.5, -0.2))
         ax.set_title("Consistency over time")
         unc = d.get("uncertainty")
-        cap = "STI of consecutive analysis windows of the recording: a wide scatter points to a changing noise or a "\
-              "disturbed measurement."
+        cap = ("STI of consecutive analysis windows (dots at their centres, bars over their stretches; x: time in "
+               + ("the recording" if one else "each recording, the windows of the 14 recordings pooled") +
+               "): a wide scatter points to a changing noise or a disturbed measurement.")
         if unc is not None:
             cap += (f" The uncertainty given above, {unc:.3f}, is the larger of their standard error and the spread "
                     "from the envelope noise, combined with the expected offset.")
-        p.figures.append(Figure("window_sti", cap, _png(fig)))
+        p.figures.append(_fig("window_sti", cap, fig))
     p.tables += _sti_tables(d, True)
     if win.size:
-        p.tables.append(Table("STI per analysis window", ["window", "STI"],
-                              [[Cell(str(i + 1)), num(d, f"window_sti.{i}", ".3f")] for i in range(win.size)]))
+        t0, t1, _ = _window_span(d)
+        edges = np.linspace(t0, t1, win.size + 1)
+        p.tables.append(Table("STI per analysis window", ["window", _term("from_s"), _term("to_s"), "STI"],
+                              [[Cell(str(i + 1)), Cell(f"{edges[i]:.1f}"), Cell(f"{edges[i + 1]:.1f}"),
+                                num(d, f"window_sti.{i}", ".3f")] for i in range(win.size)]))
     return p
+
+
+def _window_span(d: Mapping) -> tuple[float, float, bool]:
+    """Start and end (s) of the analysed stretch the windows split into equal parts, and
+    whether it is one recording's (STIPA) rather than the median of several (full STI)."""
+    recs = [r for r in d.get("recordings") or [] if isinstance(r, Mapping)]
+    spans = [(float(r["analysed_start_s"]), float(r["analysed_end_s"])) for r in recs
+             if all(isinstance(r.get(k), (int, float)) for k in ("analysed_start_s", "analysed_end_s"))]
+    if len(spans) == 1:
+        return spans[0][0], spans[0][1], True
+    if spans:
+        return 0.0, float(np.median([b - a for a, b in spans])), False
+    n = len(d.get("window_sti") or [])
+    return 0.0, float(max(n, 1)), False
 
 
 # ---------------------------------------------------------------------------
@@ -583,14 +658,15 @@ def _page_pair(d: Mapping) -> Page:
                        extent=(lo_t, hi_t, -0.5, c.shape[0] - 0.5), interpolation="nearest")
         step = max(1, len(cf) // 8)
         ax.set_yticks(range(0, len(cf), step), [_band_label(float(f)) for f in cf[::step]])
-        ax.set_xlabel(f"time in the aligned pair, s (bins of {step_s:g} s; blank: no speech)")
-        ax.set_ylabel("band centre frequency")
+        ax.set_xlabel(f"time, s (in the aligned pair; bins of {step_s:g} s; blank: no speech)")
+        ax.set_ylabel("one-third-octave band")
         cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
-        cb.set_label("envelope correlation")
+        cb.set_label("envelope correlation (STOI part)")
         ax.set_title("Envelope correlation per band over time, clean vs degraded")
-        p.figures.append(Figure("band_correlation", "Correlation of the clean and degraded band envelopes in each "
-                                "analysis segment: dark patches show in which bands and when the degraded signal "
-                                "lost the envelope of the clean one.", _png(fig)))
+        p.figures.append(_fig("band_correlation", "Correlation of the clean and degraded band envelopes per "
+                                "one-third-octave band (rows) and time bin (columns), coloured from dark (0: the "
+                                "envelope is lost) to cream (1: kept): dark patches show in which bands and when "
+                                "the degraded signal lost the envelope of the clean one.", fig))
     if tl.get("start_s") is not None and (tl.get("stoi") is not None or tl.get("estoi") is not None):
         start = _arr(tl["start_s"])
         step_s = float(tl.get("step_s") or (start[1] - start[0] if start.size > 1 else 1.0))
@@ -610,12 +686,12 @@ def _page_pair(d: Mapping) -> Page:
         low = float(np.nanmin(vals)) if np.isfinite(vals).any() else 0.0
         ax.set_ylim(min(0.0, low - 0.05), 1.02)
         ax.set_xlim(0, float(start[-1] + step_s) if start.size else 1.0)
-        ax.set_xlabel(f"time in the aligned pair, s (bins of {step_s:g} s)")
+        ax.set_xlabel(f"time, s (in the aligned pair; bins of {step_s:g} s)")
         ax.set_ylabel("envelope correlation")
         ax.set_title("Envelope correlation over time (all bands)")
-        p.figures.append(Figure("correlation_over_time", "Local STOI and ESTOI (mean envelope correlation over "
+        p.figures.append(_fig("correlation_over_time", "Local STOI and ESTOI (mean envelope correlation over "
                                 "the bands) in each time bin; shaded: the bin where the envelope is lost most. "
-                                "Gaps: no speech in the bin.", _png(fig)))
+                                "Gaps: no speech in the bin.", fig))
     # 2. per band
     cf = third.get("bands_hz")
     if cf is not None and (third.get("stoi") is not None or third.get("estoi") is not None):
@@ -625,13 +701,14 @@ def _page_pair(d: Mapping) -> Page:
         x = np.arange(len(cfl))
         w = 0.4
         if third.get("stoi") is not None:
-            ax.bar(x - w / 2, _arr(third["stoi"]), w, color=TEAL, label="STOI: mean envelope correlation")
+            ax.bar(x - w / 2, _arr(third["stoi"]), w, color=TEAL, label="STOI part (mean envelope correlation)")
         if third.get("estoi") is not None:
-            ax.bar(x + w / 2, _arr(third["estoi"]), w, color=PLUM, label="ESTOI: band share x 15")
+            ax.bar(x + w / 2, _arr(third["estoi"]), w, color=PLUM,
+                   label="ESTOI part (the band's share of the correlation x 15)")
         from .labels import band_label
 
         ax.set_xticks(x, [band_label(f, unit=False) for f in cfl])
-        ax.set_xlabel("one-third-octave band centre, Hz")
+        ax.set_xlabel("one-third-octave band, Hz")
         ax.set_ylabel("per-band value")
         vals = np.concatenate([_arr(third.get("stoi") or []), _arr(third.get("estoi") or [])])
         low = float(np.nanmin(vals)) if np.isfinite(vals).any() else 0.0
@@ -639,20 +716,22 @@ def _page_pair(d: Mapping) -> Page:
         ax.legend(loc="upper left", ncols=2, fontsize=9)
         ax.grid(axis="x", visible=False)
         ax.set_title("Envelope correlation per band (mean over the segments; their mean is the index)")
-        p.figures.append(Figure("band_correlation_mean", "Per one-third-octave band: the mean envelope correlation "
-                                "(STOI) and 15 times the band's share of the spectral correlation (ESTOI). Low bars "
-                                "are the bands whose envelope the degradation destroyed.", _png(fig)))
+        p.figures.append(_fig("band_correlation_mean", "Per one-third-octave band (nominal frequencies): teal, the "
+                                "band's STOI part, its mean envelope correlation (STOI is the mean of the teal bars); "
+                                "plum, the band's ESTOI part, its share of ESTOI's spectral correlation times the 15 "
+                                "bands (ESTOI is the mean of the plum bars). Low bars are the bands whose envelope "
+                                "the degradation destroyed.", fig))
         rows = [[Cell(_band_label(f)), num(d, f"bands.third_octave.stoi.{k}", ".3f"),
                  num(d, f"bands.third_octave.estoi.{k}", ".3f")] for k, f in enumerate(cfl)]
-        p.tables.append(Table("Per one-third-octave band", ["band", "STOI part", "ESTOI part"], rows))
+        p.tables.append(Table("Per one-third-octave band", ["band", _term("stoi_band"), _term("estoi_band")], rows))
     if octave.get("bands_hz") is not None:
         rows = []
         for k, f in enumerate(octave["bands_hz"]):
             rows.append([Cell(_band_label(float(f))), num(d, f"bands.octave.correlation.{k}", ".3f"),
                          num(d, f"bands.octave.mtf.{k}", ".3f"), num(d, f"bands.octave.apparent_snr_db.{k}", ".1f"),
                          num(d, f"bands.octave.ti.{k}", ".3f")])
-        p.tables.append(Table("Speech-based STI per octave band", ["band", "envelope correlation",
-                                                                    "apparent MTF", "apparent SNR, dB", "TI"], rows))
+        p.tables.append(Table("Speech-based STI per octave band", ["band", _term("correlation"), _term("apparent_mtf"),
+                                                                    _term("apparent_snr_db"), _term("ti")], rows))
     rows = [[Cell(label), num(d, key, spec, unit)] for key, label, spec, unit in
             (("stoi", "STOI", ".3f", ""), ("estoi", "ESTOI", ".3f", ""),
              ("ssti", "speech-based STI (normalised covariance)", ".3f", ""),
@@ -687,11 +766,19 @@ def _has(d: Mapping, path: str) -> bool:
         return False
 
 
+def _p_cell(d: Mapping, path: str) -> Cell:
+    """A p-value cell with the vocabulary's decimals, as the terminal shows it ("0.0156", "< 0.0001")."""
+    from .labels import show
+
+    c = num(d, path, ".4f")
+    return Cell(html.escape(show("p_value", _get(d, path))), path) if c.key and c.cls != "na" else c
+
+
 def _page_compare(d: Mapping) -> Page:
     p = Page()
     conds = list(d.get("conditions") or [])
     if d.get("index"):
-        p.headline.append(("index", txt(str(d["index"]).upper())))
+        p.headline.append(("index", txt(_name(str(d["index"])))))
     if d.get("baseline") is not None:
         p.headline.append(("baseline", txt(d["baseline"])))
     p.headline.append(("conditions", Cell(str(len(conds)))))
@@ -709,6 +796,8 @@ def _page_compare(d: Mapping) -> Page:
     left = min([c.get("ci_low") for c in conds if c.get("ci_low") is not None]
                + [c.get("diff") for c in conds if c.get("diff") is not None] + [0.0])
     label_x = right + 0.04 * ((right - left) or 1.0)
+    from .labels import show
+
     for yi, c in zip(y, conds):
         diff, lo, hi = c.get("diff"), c.get("ci_low"), c.get("ci_high")
         if diff is None or c.get("verdict") == "baseline":
@@ -724,10 +813,11 @@ def _page_compare(d: Mapping) -> Page:
         if lo is not None and hi is not None:
             ax.plot([lo, hi], [yi, yi], color=col, lw=3.0, solid_capstyle="butt", alpha=0.85)
         ax.plot([diff], [yi], "o", color=col, ms=8, mec="white", mew=1.2)
-        pv = c.get("p_value")
+        # the verdict uses the Holm-adjusted p: the figure shows that one, labelled as such
+        pv = c.get("p_holm")
         lab = f"{diff:+.3f}" + (f"  [{lo:+.3f}, {hi:+.3f}]" if lo is not None and hi is not None else "")
         if pv is not None:
-            lab += f"  p = {pv:.3g}"
+            lab += f"  p (Holm) = {show('p_holm', pv)}"
         ax.annotate(lab, (label_x, yi), xytext=(0, 0), textcoords="offset points", va="center", fontsize=9.5)
     ax.axvline(0, color=INK, lw=1.0)
     ax.set_yticks(y, [str(c.get("name", "?")) for c in conds])
@@ -736,7 +826,7 @@ def _page_compare(d: Mapping) -> Page:
     index = d.get("index") or "index"
     ref = _first(d, "baseline", "reference")
     ref_text = f" from '{ref}'" if ref else ""
-    ax.set_xlabel(f"difference in {str(index).upper()}{ref_text} (dot) with {lvl}confidence interval (bar)")
+    ax.set_xlabel(f"difference ({_name(str(index))}{ref_text}; dot: mean, bar: {lvl}confidence interval)")
     ax.grid(axis="y", visible=False)
     lo_all = [c.get("ci_low") for c in conds if c.get("ci_low") is not None] + \
              [c.get("diff") for c in conds if c.get("diff") is not None] + [0.0]
@@ -746,21 +836,24 @@ def _page_compare(d: Mapping) -> Page:
     ax.set_xlim(min(lo_all) - 0.08 * span, max(hi_all) + 0.75 * span)
     ax.set_ylim(-0.7, len(conds) - 0.3)
     ax.set_title("Differences between conditions")
-    p.figures.append(Figure("differences", "Difference of each condition (dot) with its confidence interval "
-                            "(bar). Teal: higher than the baseline; red: lower; grey: no clear difference (the "
-                            "verdict of the comparison, or the interval spanning zero).",
-                            _png(fig)))
+    p.figures.append(_fig("differences", "Mean paired difference of each condition from the baseline (dot) with its "
+                            "confidence interval (bar), and beside it the p adjusted for the several comparisons "
+                            "(p (Holm), which the verdict uses). Teal: higher than the baseline; red: lower; grey: "
+                            "no clear difference (the verdict of the comparison). "
+                            + "; ".join(f"{c.get('name')}: p (Holm) = {show('p_holm', c['p_holm'])}"
+                                        for c in conds if c.get("p_holm") is not None) + ".", fig))
     _paired_items_figure(p, d)
     rows = []
     for i, c in enumerate(conds):
         rows.append([txt(c.get("name")), num(d, f"conditions.{i}.n", ".0f"), num(d, f"conditions.{i}.mean", ".3f"),
                      num(d, f"conditions.{i}.diff", "+.3f"), num(d, f"conditions.{i}.ci_low", "+.3f"),
-                     num(d, f"conditions.{i}.ci_high", "+.3f"), num(d, f"conditions.{i}.p_value", ".3g"),
-                     num(d, f"conditions.{i}.p_holm", ".3g"), txt(c.get("verdict"))])
+                     num(d, f"conditions.{i}.ci_high", "+.3f"), _p_cell(d, f"conditions.{i}.p_value"),
+                     _p_cell(d, f"conditions.{i}.p_holm"), txt(c.get("verdict"))])
     p.tables.append(Table("Conditions", ["condition", "n", "mean", "difference", "CI low", "CI high", "p",
                                          "p (Holm)", "verdict"], rows,
                           "Difference: mean paired difference to the baseline; CI: "
-                          f"{lvl}bootstrap confidence interval ({d.get('ci_method', 'bootstrap')})."))
+                          f"{lvl}bootstrap confidence interval ({d.get('ci_method', 'bootstrap')}); p: Wilcoxon "
+                          "signed-rank; p (Holm): adjusted for the several comparisons, used by the verdict."))
     for n in d.get("notes") or []:
         p.notes.append(str(n))
     return p
@@ -774,12 +867,12 @@ def _page_sweep(d: Mapping) -> Page:
     if isinstance(d.get(key), Mapping):  # the envelope-power index: its SNR_env in dB per SNR
         key = f"{key}.snr_env_db"
     idx = _arr(_first_path(d, key))
-    name = "SNR_env" if key.endswith("snr_env_db") else key.upper()
+    name = _name("sepsm_snr_env_db") if key.endswith("snr_env_db") else _name(key)
     targets = list(d.get("targets") or [])
     if d.get("srt_db") is not None:
-        p.headline.append(("predicted SRT", num(d, "srt_db", ".1f", "dB")))
+        p.headline.append(("SRT (predicted)", num(d, "srt_db", ".1f", "dB")))
     if d.get("slope_at_srt_percent_per_db") is not None:
-        p.headline.append(("slope at SRT", num(d, "slope_at_srt_percent_per_db", ".1f", "%/dB")))
+        p.headline.append(("slope (at the SRT)", num(d, "slope_at_srt_percent_per_db", ".1f", "%/dB")))
     new = _mpl()
     fig = new(10.0, 4.8)
     ax = fig.add_subplot(111)
@@ -836,8 +929,8 @@ def _page_sweep(d: Mapping) -> Page:
         ax.set_ylabel(f"{name} (mean over noise segments)")
         ax.set_title(f"{name} against SNR (no score mapping given)")
         cap = f"{name} against SNR; give a score mapping to see the predicted psychometric function and SRT."
-    ax.set_xlabel("signal-to-noise ratio, dB")
-    p.figures.append(Figure("psychometric", cap, _png(fig)))
+    ax.set_xlabel("SNR, dB (speech re noise)")
+    p.figures.append(_fig("psychometric", cap, fig))
     _sweep_sepsm_figure(p, d)
     rows = []
     for i in range(snr.size):
@@ -847,8 +940,8 @@ def _page_sweep(d: Mapping) -> Page:
         if pred is not None:
             r.append(num(d, f"predicted_percent.{i}", ".1f"))
         rows.append(r)
-    head = ["SNR, dB", f"{name}"] + (["SD"] if d.get("index_sd") is not None else []) + \
-        (["predicted, %"] if pred is not None else [])
+    head = [_term("snr_db"), f"{name}"] + ([_term("index_sd")] if d.get("index_sd") is not None else []) + \
+        ([_term("predicted_percent")] if pred is not None else [])
     p.tables.append(Table("Sweep", head, rows))
     if targets:
         def extrapolated(t):
@@ -864,8 +957,10 @@ def _page_sweep(d: Mapping) -> Page:
                  txt("; ".join(x for x in (t.get("note") or "", extrapolated(t)) if x))]
                 for i, t in enumerate(targets)]
         p.tables.append(Table("Targets (95 % intervals: noise segments; mapping)",
-                              ["target, %", "SNR, dB", "CI low, dB", "CI high, dB", "mapping low, dB",
-                               "mapping high, dB", f"{name} there", "slope, %/dB", "note"], trow))
+                              [_term("target_percent"), _term("snr_db"), f"{_term('segments_ci')} (low)",
+                               f"{_term('segments_ci')} (high)", f"{_term('mapping_ci')} (low)",
+                               f"{_term('mapping_ci')} (high)", f"{name} (at the target)",
+                               _term("slope_percent_per_db"), "note"], trow))
         if (d.get("n_sentences") or 1) > 1:
             srow = [[num(d, f"targets.{i}.percent", "g"), num(d, f"targets.{i}.sentence_sd_db", ".2f"),
                      num(d, f"targets.{i}.sentence_ci_low", ".1f"), num(d, f"targets.{i}.sentence_ci_high", ".1f"),
@@ -873,8 +968,9 @@ def _page_sweep(d: Mapping) -> Page:
                      num(d, f"targets.{i}.total_ci_low", ".1f"), num(d, f"targets.{i}.total_ci_high", ".1f")]
                     for i in range(len(targets))]
             p.tables.append(Table(f"Targets over {d['n_sentences']} sentences (95 % intervals)",
-                                  ["target, %", "SD over sentences, dB", "sentences low", "sentences high",
-                                   "combined low", "combined high", "with mapping low", "with mapping high"],
+                                  [_term("target_percent"), _term("sentence_sd_db")]
+                                  + [f"{_term(k)} ({end})" for k in ("sentences_ci", "combined_ci", "total_ci")
+                                     for end in ("low", "high")],
                                   srow))
     mp = d.get("mapping") if isinstance(d.get("mapping"), Mapping) else None
     if mp:
@@ -937,12 +1033,12 @@ def _sepsm_section(p: Page, d: Mapping) -> None:
             cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
             cb.set_label("SNR_env, dB (floor -30 dB)")
             ax.set_title("Envelope-power SNR per audio band and modulation filter")
-            p.figures.append(Figure(
+            p.figures.append(_fig(
                 "sepsm_snr_env", "SNR_env = (P_env,S+N - P_env,N) / P_env,N in each gammatone band (rows) and "
                 "modulation filter (columns), in dB: how far the envelope power of the processed speech in noise "
                 "rises above that of the processed noise alone. Grey cells: filters not used in that band (a "
                 "filter counts only below a quarter of the band's centre frequency). The index is the root sum "
-                "of squares over all cells.", _png(fig)))
+                "of squares over all cells.", fig))
         rows = [[Cell(_band_label(b)), num(d, f"sepsm.band_snr_env_db.{k}", ".1f", "dB")]
                 for k, b in enumerate(bands)]
         if rows:
@@ -982,11 +1078,11 @@ def _sepsm_section(p: Page, d: Mapping) -> None:
             lo, hi = float(np.nanmin(np.append(snr[ok], 0.0))), float(np.nanmax(np.append(snr[ok], 0.0)))
             ax.set_ylim(lo - 0.15 * (hi - lo or 1.0) - 1.0, hi + 0.2 * (hi - lo or 1.0) + 1.0)
             ax.set_title("Output SNR per band: processed speech over processed noise (phase inversion)")
-            p.figures.append(Figure(
+            p.figures.append(_fig(
                 "separation_snr", "The processed speech ((a + b)/2) and the processed noise ((a - b)/2), "
                 "separated from the outputs for speech + noise (a) and speech - noise (b) (Hagerman & Olofsson "
                 "2004), compared band by band: the SNR after the processing. Exact for linear processing, an "
-                "approximation for nonlinear processing.", _png(fig)))
+                "approximation for nonlinear processing.", fig))
         rows = [[Cell(_band_label(b)), num(d, f"separation.output_snr_db.{k}", "+.1f", "dB")]
                 for k, b in enumerate(bands)]
         rows.append([Cell("broadband"), num(d, "separation.broadband_snr_db", "+.1f", "dB")])
@@ -1029,10 +1125,10 @@ def _sweep_sepsm_figure(p: Page, d: Mapping) -> None:
     cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
     cb.set_label("SNR_env of the band, dB")
     ax.set_title("Envelope-power SNR per band against the SNR (mean over noise segments)")
-    p.figures.append(Figure(
+    p.figures.append(_fig(
         "sepsm_bands", "SNR_env of each gammatone band (root sum of squares over its modulation filters), in dB, "
         "at each swept SNR: the bands that carry the index. The index combines all bands, so a few unmasked bands "
-        "can carry it where the noise is weak in them.", _png(fig)))
+        "can carry it where the noise is weak in them.", fig))
 
 
 def _fmt_or_dash(v: Any, spec: str = ".2f") -> str:
@@ -1100,11 +1196,11 @@ def _paired_items_figure(p: Page, d: Mapping) -> None:
     ax2.grid(axis="x", visible=False)
     level = d.get("confidence")
     lvl = f"{float(level) * 100:g} % " if isinstance(level, (int, float)) else ""
-    p.figures.append(Figure(
+    p.figures.append(_fig(
         "paired_items", f"Left: every item's {index} under each condition, a grey line joining an item's values "
         "(lines that cross show items the conditions rank differently); teal: the mean over items. Right: "
         f"each item's difference to the baseline '{base}' (grey dots, spread sideways to be seen), with the mean "
-        f"difference (copper dot) and its {lvl}bootstrap interval (copper bar).", _png(fig)))
+        f"difference (copper dot) and its {lvl}bootstrap interval (copper bar).", fig))
 
 
 # ---------------------------------------------------------------------------
@@ -1117,7 +1213,9 @@ def _page_fitmap(d: Mapping) -> Page:
     key = str(d.get("index") or "index")
     params = d.get("params") if isinstance(d.get("params"), Mapping) else {}
     if params.get("x50") is not None:
-        p.headline.append(("x50", num(d, "params.x50", ".4g")))
+        from .labels import significant_decimals
+
+        p.headline.append(("x50", num(d, "params.x50", f".{significant_decimals(params['x50'])}f")))
     if d.get("interval_method"):
         p.headline.append(("intervals", txt(d["interval_method"])))
     if f.get("curve_index") is not None and f.get("index_values") is not None:
@@ -1143,24 +1241,31 @@ def _page_fitmap(d: Mapping) -> Page:
             axr.axhline(v, color=BRICK, lw=0.8, ls=":")
         axr.plot(x, res, "o", color=COPPER, ms=5)
         axr.set_xlim(ax.get_xlim())
-        axr.set_xlabel(key)
+        axr.set_xlabel(_name(key))
         axr.set_ylabel("Pearson residual")
-        p.figures.append(Figure("mapping_fit", "The fitted mapping with its pointwise band, the pilot rows with "
+        p.figures.append(_fig("mapping_fit", "The fitted mapping with its pointwise band, the pilot rows with "
                                 "their exact binomial intervals (top), and the Pearson residuals (bottom; dotted: "
-                                "+-2).", _png(fig)))
+                                "+-2).", fig))
         rows = [[num(d, f"fit_data.index_values.{i}", ".4g"), num(d, f"fit_data.correct.{i}", "g"),
                  num(d, f"fit_data.trials.{i}", "g"), num(d, f"fit_data.observed_percent.{i}", ".1f"),
                  num(d, f"fit_data.observed_low.{i}", ".1f"), num(d, f"fit_data.observed_high.{i}", ".1f"),
                  num(d, f"fit_data.fitted_percent.{i}", ".1f"), num(d, f"fit_data.pearson_residual.{i}", ".2f")]
                 for i in range(x.size)]
-        p.tables.append(Table("Pilot rows", [key, "correct", "trials", "observed, %", "low, %", "high, %",
-                                             "fitted, %", "Pearson residual"], rows))
+        obs = _term("observed_percent")
+        p.tables.append(Table("Pilot rows", [_name(key), "correct", "trials", obs, f"{obs} (95 % low)",
+                                             f"{obs} (95 % high)", _term("fitted_percent"), "Pearson residual"],
+                              rows))
     prow = []
     for k in params:
-        prow.append([Cell(html.escape(str(k))), num(d, f"params.{k}", ".4g"), num(d, f"ci.{k}.0", ".4g"),
-                     num(d, f"ci.{k}.1", ".4g")])
+        from .labels import significant_decimals
+
+        spec = f".{significant_decimals(params[k])}f"  # the estimate and its interval with the same decimals
+        prow.append([Cell(html.escape(str(k))), num(d, f"params.{k}", spec), num(d, f"ci.{k}.0", spec),
+                     num(d, f"ci.{k}.1", spec)])
     if prow:
-        p.tables.append(Table("Parameters", ["parameter", "estimate", "low", "high"], prow))
+        lvl = f"{100 * float(d.get('ci_level') or 0.95):g} %"
+        p.tables.append(Table("Parameters", ["parameter", "estimate", f"interval ({lvl}, low)",
+                                             f"interval ({lvl}, high)"], prow))
     for n in d.get("notes") or []:
         p.notes.append(str(n))
     return p
@@ -1179,9 +1284,11 @@ def _voiced_spans(t: np.ndarray, voiced: np.ndarray, hop: float) -> list[tuple[f
 
 def _page_inspect(d: Mapping) -> Page:
     p = Page()
-    p.headline = [("duration", num(d, "duration_s", ".2f", "s")), ("voiced fraction", num(d, "voiced_fraction", ".2f")),
-                  ("median F0", num(d, "f0_median_hz", ".1f", "Hz")),
-                  ("modulation peak", num(d, "modulation_peak_hz", ".2f", "Hz"))]
+    vf = d.get("voiced_fraction")
+    p.headline = [("duration", num(d, "duration_s", ".2f", "s")),
+                  ("voiced fraction", Cell("—" if vf is None else f"{100 * vf:.0f} %", "voiced_fraction")),
+                  ("F0 (median)", num(d, "f0_median_hz", ".1f", "Hz")),
+                  ("dominant modulation rate", num(d, "modulation_peak_hz", ".2f", "Hz"))]
     new = _mpl()
     bands = list(d.get("bands_hz", []))
     # figure data of the result: JSON lists (null for NaN) back to float arrays
@@ -1229,12 +1336,12 @@ def _page_inspect(d: Mapping) -> Page:
         ax2.set_xlabel("time, s")
         ax2.set_xlim(0, float(d.get("duration_s") or tw[-1]))
         ax2.set_title(f"Voicing and F0 (YIN, {lo:g}-{hi:g} Hz)")
-        p.figures.append(Figure("waveform_f0", "Top: waveform (grey) with its envelope below 50 Hz (copper). "
+        p.figures.append(_fig("waveform_f0", "Top: waveform (grey) with its envelope below 50 Hz (copper). "
                                 "Bottom: voiced stretches (shaded) and the fundamental frequency of each voiced "
                                 "10 ms frame."
                                 + (f" The recording is longer than {LONG_VIEW_S:g} s, so this is an overview; "
                                    "look closer at an excerpt with 'envpredict inspect --start S --duration S'."
-                                   if long_view else ""), _png(fig)))
+                                   if long_view else ""), fig))
     # 2. three levels of one band, zoomed
     if "excerpt_t_s" in ex and len(ex["excerpt_t_s"]):
         fig = new(11.0, 3.9)
@@ -1253,9 +1360,9 @@ def _page_inspect(d: Mapping) -> Page:
         ax.legend(loc="upper left", ncols=3, fontsize=9)
         fb = float(ex.get("excerpt_band_hz", 1000.0))
         ax.set_title(f"The three timing levels in the {_band_label(fb)} band ({t[-1]:.0f} ms excerpt)")
-        p.figures.append(Figure("three_levels", "One octave band over a short stretch: the carrier (fine "
-                                "structure), its amplitude envelope (which beats at the voice's F0: periodicity) "
-                                "and the slow envelope that carries syllables.", _png(fig)))
+        p.figures.append(_fig("three_levels", "One octave band over a short stretch: the carrier (grey, fine "
+                                "structure), its amplitude envelope (teal, which beats at the voice's F0: "
+                                "periodicity) and the slow envelope that carries syllables (copper).", fig))
     # 3. modulation depth per band by timescale
     env_m, per_m = _arr(d.get("envelope_modulation")), _arr(d.get("periodicity_modulation"))
     if bands and env_m.size:
@@ -1276,13 +1383,15 @@ def _page_inspect(d: Mapping) -> Page:
         ax.set_ylim(0, top * 1.42)
         ax.set_xticks(x, [_band_label(f) for f in bands])
         ax.set_xlabel("octave band (carrier above 500 Hz: fine structure, blue)")
-        ax.set_ylabel("modulation index of the\namplitude envelope")
+        ax.set_ylabel("modulation index\n(1 = full sinusoidal modulation)")
         ax.legend(loc="upper left", ncols=2, fontsize=9, bbox_to_anchor=(0.0, 1.0))
         ax.grid(axis="x", visible=False)
         ax.set_title("Where the envelope and the periodicity are carried, per octave band")
-        p.figures.append(Figure("timescales_per_band", "Depth of the slow envelope modulation and of the "
-                                "periodicity modulation of each band's amplitude envelope (1 = a full sinusoidal "
-                                "modulation), with the band's carrier rate.", _png(fig)))
+        p.figures.append(_fig("timescales_per_band", "Depth of the slow envelope modulation (copper, below 50 Hz) "
+                                "and of the periodicity modulation (teal, 50-500 Hz) of each band's amplitude "
+                                "envelope, as sqrt(2) x SD / mean: 1 for a full sinusoidal modulation; values above "
+                                "1 are a peaky envelope with pauses, as in running speech. Above the bars: the "
+                                "band's carrier rate.", fig))
     # 4. modulation spectra
     spec = _arr(d.get("modulation_spectra"))
     mb = list(d.get("modulation_bands_hz", std.MODULATION_BANDS_HZ))
@@ -1297,10 +1406,10 @@ def _page_inspect(d: Mapping) -> Page:
         ax.set_yticks(range(len(bands)), [_band_label(f) for f in bands])
         step = 3
         ax.set_xticks(range(0, len(mb), step), [f"{f:g}" for f in mb[::step]])
-        ax.set_xlabel("modulation frequency (1/3-octave bands), Hz")
+        ax.set_xlabel("modulation frequency, Hz (one-third-octave modulation bands)")
         ax.set_ylabel("octave band")
         cb = fig.colorbar(im, ax=ax, fraction=0.05, pad=0.02)
-        cb.set_label("modulation index (1 = full sine)")
+        cb.set_label("modulation index (1 = full sinusoidal modulation;\nabove 1: peaky envelope with pauses)")
         ax.set_title("Envelope modulation spectrum per band")
         ax2 = fig.add_subplot(gs[1])
         fq = np.asarray(ex.get("modulation_freqs_hz", []), float)
@@ -1311,7 +1420,7 @@ def _page_inspect(d: Mapping) -> Page:
             y = y / np.max(y) if np.max(y) > 0 else y
             ax2.fill_between(fq[sel], 0, y, color=TEAL, alpha=0.25, lw=0)
             ax2.plot(fq[sel], y, color=TEAL, lw=1.4)
-            ax2.set_ylabel("relative power per unit log-frequency")
+            ax2.set_ylabel("relative power (per unit log-frequency)")
             ax2.set_ylim(0, 1.15)
         else:
             # from the JSON alone: the mean modulation index over the bands
@@ -1319,7 +1428,7 @@ def _page_inspect(d: Mapping) -> Page:
             mean = np.where(ok.any(axis=0), np.where(ok, spec, 0.0).sum(axis=0) / np.maximum(ok.sum(axis=0), 1),
                             np.nan)
             ax2.plot(mb, mean, "-o", ms=3, color=TEAL, lw=1.4)
-            ax2.set_ylabel("mean modulation index over the bands")
+            ax2.set_ylabel("modulation index (mean over the bands)")
         ax2.set_xscale("log")
         ticks = [0.5, 1, 2, 4, 8, 16, 32]
         ax2.set_xticks(ticks, [f"{t:g}" for t in ticks])
@@ -1331,15 +1440,17 @@ def _page_inspect(d: Mapping) -> Page:
             ax2.annotate(f"peak {pk:.2f} Hz", (pk, 1.0), xycoords=("data", "axes fraction"), xytext=(6, -16),
                          textcoords="offset points", fontsize=10, fontweight="bold")
         ax2.set_title("All bands together, with the dominant rate")
-        p.figures.append(Figure("modulation_spectra", "Modulation spectrum of each band's intensity envelope: "
-                                "left as modulation indices in 1/3-octave modulation bands per octave band (grey: "
-                                "too short to resolve); right, the intensity-weighted sum over the bands as power "
+        p.figures.append(_fig("modulation_spectra", "Modulation spectrum of each band's intensity envelope: "
+                                "left as modulation indices in one-third-octave modulation bands per octave band "
+                                "(sqrt(2 x power) of the envelope normalised by its mean: 1 for a full sinusoidal "
+                                "modulation, above 1 for speech with pauses; grey: too short to resolve); right, the "
+                                "intensity-weighted sum over the bands as power "
                                 "per unit log-frequency, with its dominant rate (the syllable rate for running "
-                                "speech).", _png(fig)))
+                                "speech).", fig))
     # tables
     rows = [[Cell(label), num(d, key, spec, unit)] for label, key, spec, unit in (
         ("duration", "duration_s", ".2f", "s"), ("sample rate", "fs", ".0f", "Hz"),
-        ("voiced fraction", "voiced_fraction", ".3f", ""), ("median F0", "f0_median_hz", ".1f", "Hz"),
+        ("voiced fraction", "voiced_fraction", ".0%", ""), ("median F0", "f0_median_hz", ".1f", "Hz"),
         ("F0 10th percentile", "f0_p10_hz", ".1f", "Hz"), ("F0 90th percentile", "f0_p90_hz", ".1f", "Hz"),
         ("dominant modulation rate", "modulation_peak_hz", ".2f", "Hz"),
         ("spectral resolution", "modulation_resolution_hz", ".3f", "Hz"))]
@@ -1426,15 +1537,16 @@ def _survey_chart(d: Mapping) -> Figure:
     if reqs:
         ax.legend(loc="lower right", fontsize=9, framealpha=0.95)
     worst = [p for p in positions if p["sti_mean"] is not None]
-    cap = ("STI at every position, grouped by zone (with its verdict), over the qualification bands of "
-           "IEC 60268-16 Annex F (labels at the right)")
+    cap = ("STI at every position (dot: mean of its repeats; dashes: the repeats), one colour per zone, grouped "
+           "by zone (with its verdict), over the qualification bands of IEC 60268-16 Annex F (stripes, labels at "
+           "the right)")
     if reqs:
         cap += "; the lines are the required values"
     if worst:
         w = min(worst, key=lambda p: p["sti_mean"])
         ref = _rule_value(reqs[0]) if reqs else std.VOICE_ALARM_TARGET_STI
         cap += f". Lowest position: {w['zone']}, {w['position']} ({format_index(w['sti_mean'], ref)})"
-    return Figure("positions", cap + ".", _png(fig))
+    return _fig("positions", cap + ".", fig)
 
 
 def _page_survey(d: Mapping) -> Page:
@@ -1446,7 +1558,7 @@ def _page_survey(d: Mapping) -> Page:
     p = Page()
     for z in zones:
         verdict = z.get("verdict")
-        p.headline.append((z["zone"], Cell(html.escape((verdict or "no requirement").upper()),
+        p.headline.append((f"zone ({z['zone']})", Cell(html.escape((verdict or "no requirement").upper()),
                                            cls={"pass": "pass", "fail": "fail"}.get(verdict or "", ""))))
     p.figures.append(_survey_chart(d))
 
@@ -1480,7 +1592,7 @@ def _page_survey(d: Mapping) -> Page:
                      num(d, f"positions.{i}.sti_spread", ".3f"), txt(q.get("rating")),
                      txt(", ".join(format_index(v, ref) for v in q["sti_values"]) or "—"),
                      txt(", ".join(str(r) for r in q["failed_rows"]) or "")])
-    p.tables.append(Table("Positions", ["zone", "position", "repeats", "STI mean", "sd", "spread", "band",
+    p.tables.append(Table("Positions", ["zone", "position", "repeats", "STI mean", "sd", "spread", "qualification band",
                                         "repeats' STI", "rows not scored"], rows))
     for f in d.get("failures") or []:
         p.notes.append(f"Row {f['row']} could not be scored: {f['error']}")
@@ -1560,7 +1672,7 @@ def _design_map(d: Mapping) -> Figure:
                           spacing="uniform")
         cb.ax.set_yticklabels([f"{lab}  {a:.2f}" for lab, a in zip(labels, edges)], fontsize=8)
         cb.ax.axhline(req, color=INK, lw=2.0, ls="--")
-        cb.set_label("predicted STI (qualification band and its lower edge)")
+        cb.set_label("STI (predicted; qualification band and its lower edge)")
         ax.set_title(f"Predicted STI at z = {g['z_m']:g} m: {100 * g['share_meeting_requirement']:.1f} % "
                      f"at or above {req:g}")
     else:
@@ -1568,7 +1680,7 @@ def _design_map(d: Mapping) -> Figure:
     cap = ("Plan of the predicted STI: grid cells coloured by qualification band (IEC 60268-16 Annex F), the dashed "
            f"line is the requirement {req:g}, triangles are loudspeakers (line: aim), dots are listener positions "
            "(teal: requirement met; brick: not met), the cross is the lowest grid value.")
-    return Figure("map", cap, _png(fig))
+    return _fig("map", cap, fig)
 
 
 def _page_design(d: Mapping) -> Page:
@@ -1578,14 +1690,14 @@ def _page_design(d: Mapping) -> Page:
     p = Page()
     g = d.get("grid")
     if g:
-        p.headline.append((f"grid at or above {req:g}", Cell(f"{100 * g['share_meeting_requirement']:.1f} %",
-                                                             "grid.share_meeting_requirement")))
-        p.headline.append(("lowest grid STI", Cell(format_index(g["min_sti"], req), "grid.min_sti")))
-        p.headline.append(("mean grid STI", num(d, "grid.mean_sti", ".2f")))
+        p.headline.append((f"share of the grid (at or above {req:g})",
+                           Cell(f"{100 * g['share_meeting_requirement']:.1f} %", "grid.share_meeting_requirement")))
+        p.headline.append(("STI (lowest on the grid)", Cell(format_index(g["min_sti"], req), "grid.min_sti")))
+        p.headline.append(("STI (mean over the grid)", num(d, "grid.mean_sti", ".2f")))
     lis = d.get("listeners") or []
     if lis:
         met = sum(1 for li in lis if li["sti"] >= req)
-        p.headline.append(("listeners meeting",
+        p.headline.append(("listeners meeting the requirement",
                            Cell(f"{met} of {len(lis)}", cls="pass" if met == len(lis) else "fail")))
     p.headline.append(("engine", txt(d.get("engine"))))
     p.figures.append(_design_map(d))
@@ -1600,8 +1712,8 @@ def _page_design(d: Mapping) -> Page:
                      txt("—" if late is None else f"{late['source']}: {late['delay_ms']:.0f} ms, "
                          f"{late['level_db']:+.1f} dB"),
                      Cell("ECHO", cls="fail") if li.get("echo") else txt("no")])
-    head = ["listener", "position, m", "STI", "band", f"meets {req:g}", "speech, dB(A)", "dominant source",
-            "strongest late arrival", "echo"]
+    head = ["listener", "position, m", "STI", "qualification band", f"meets ({req:g})", _term("speech_level_dba"),
+            "dominant source", "strongest late arrival", "echo"]
     if any(li.get("statistical_sti") is not None for li in lis):
         head[2] = "STI (image engine)"
         head.insert(3, "STI (statistical)")
@@ -1617,7 +1729,7 @@ def _page_design(d: Mapping) -> Page:
                      num(d, f"sources.{i}.critical_distance_m.3", ".1f"), num(d, f"sources.{i}.delay_ms", ".1f"),
                      txt(s.get("pattern"))])
     p.tables.append(Table("Loudspeakers", ["name", "position, m", "aim, m", "level at 1 m, dB(A)", "Q at 1 kHz",
-                                           "critical distance at 1 kHz, m", "delay, ms", "directivity"], rows))
+                                           "critical distance at 1 kHz, m", "signal delay, ms", "directivity"], rows))
     room = d.get("room") or {}
     bands = list(d.get("bands_hz", std.OCTAVE_BANDS_HZ))
     rows = [[Cell(_band_label(fc)), num(d, f"room.rt_s.{k}", ".2f"), num(d, f"room.absorption_area_m2.{k}", ".0f"),
@@ -1669,9 +1781,9 @@ def _ears_figure(d: Mapping) -> Figure:
     ax2.set_ylabel("left minus right")
     ax2.grid(axis="x", visible=False)
     ax2.set_title("Interaural difference (above zero: the left ear is better)")
-    return Figure("interaural_difference", f"{what} of the left and right ear per octave band (top) and their "
+    return _fig("interaural_difference", f"{what} of the left and right ear per octave band (top) and their "
                   "difference, left minus right (bottom). The better-ear value takes, in each band, the ear "
-                  "marked \u201cbetter\u201d.", _png(fig))
+                  "marked \u201cbetter\u201d.", fig)
 
 
 def _ears_tables(d: Mapping) -> list[Table]:
@@ -1922,6 +2034,9 @@ td.fail,.stat .value.fail{color:#a8443a;font-weight:700}
 .record table,.signoff table{min-width:60%}
 .record th,.signoff th{width:14em}
 .signoff td{height:2.6em}
+.glossary dl{display:grid;grid-template-columns:max-content 1fr;gap:3px 16px;font-size:14px;margin:6px 0}
+.glossary dt{font-weight:600}
+.glossary dd{margin:0;color:var(--ink)}
 @page{size:A4 portrait;margin:14mm 12mm 16mm}
 @media print{
 body{background:white;font-size:11pt}
@@ -1939,9 +2054,9 @@ details{display:none}
 }
 """
 CSS = _CSS_TEMPLATE
-for _name, _value in (("INK", INK), ("MUTED", MUTED), ("GRID", GRID), ("PAPER", PAPER), ("TEAL", TEAL),
+for _colour, _value in (("INK", INK), ("MUTED", MUTED), ("GRID", GRID), ("PAPER", PAPER), ("TEAL", TEAL),
                      ("COPPER", COPPER)):
-    CSS = CSS.replace(f"@{_name}@", _value)
+    CSS = CSS.replace(f"@{_colour}@", _value)
 
 
 def _td(c: Cell, first: bool) -> str:
@@ -1988,6 +2103,9 @@ def _input_files(result: Mapping) -> dict[str, str]:
     for k, v in inputs.items():
         if isinstance(v, str) and "." in Path(v).name:
             out[str(k)] = Path(v).name
+        elif isinstance(v, list) and v and all(isinstance(x, str) for x in v):
+            names = [Path(x).name for x in v]
+            out[str(k)] = ", ".join(names) if len(names) <= 3 else f"{names[0]} … {names[-1]} ({len(names)} files)"
     return out
 
 
@@ -2002,6 +2120,34 @@ def _check_result(kind: str, result: Any) -> None:
     except (TypeError, ValueError, RecursionError) as e:
         raise InputError(f"the result is not plain JSON ({str(e)[:80]})",
                          "pass result.to_dict(), not the result object") from None
+
+
+def page_labels(page: Page) -> list[str]:
+    """Every label a person reads on ``page`` as a name of a quantity: the headline labels,
+    the table headers and the figures' axis and colour-bar labels, in page order.
+
+    Raises
+    ------
+    InputError
+        ``page`` is not a :class:`Page`.
+    """
+    if not isinstance(page, Page):
+        raise InputError("page is not a Page", "pass the page built for the result")
+    return ([label for label, _ in page.headline] + [lab for f in page.figures for lab in f.labels]
+            + [h for t in page.tables for h in t.header])
+
+
+def page_glossary(page: Page) -> list[tuple[str, str]]:
+    """(term, explanation) for the terms on ``page`` only (:func:`envpredict.labels.glossary`).
+
+    Raises
+    ------
+    InputError
+        ``page`` is not a :class:`Page`.
+    """
+    from .labels import glossary
+
+    return glossary(page_labels(page))
 
 
 def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str, Any], title: str,
@@ -2051,7 +2197,10 @@ def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str
         parts.append("<h2>Figures</h2>")
         for f in page.figures:
             b64 = base64.b64encode(f.png).decode("ascii")
-            parts.append(f'<figure id="fig-{f.name}"><img alt="{html.escape(f.caption, quote=True)}" '
+            # the axis and colour-bar labels drawn, for a reader (or a test) checking the page's terms
+            labels = html.escape(json.dumps(f.labels), quote=True)
+            parts.append(f'<figure id="fig-{f.name}" data-labels="{labels}">'
+                         f'<img alt="{html.escape(f.caption, quote=True)}" '
                          f'src="data:image/png;base64,{b64}"><figcaption>{html.escape(f.caption)}</figcaption>'
                          "</figure>")
     if page.tables:
@@ -2061,6 +2210,11 @@ def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str
         parts.append("<h3>Notes</h3><ul class=\"notes\">")
         parts += [f"<li>{html.escape(n)}</li>" for n in page.notes]
         parts.append("</ul>")
+    terms = page_glossary(page)
+    if terms:
+        parts.append('<section class="glossary"><h2>Terms on this page</h2><dl>')
+        parts += [f"<dt>{html.escape(k)}</dt><dd>{html.escape(v)}</dd>" for k, v in terms]
+        parts.append("</dl></section>")
     parts.append("<h2>Inputs and settings</h2>")
     base = {"envpredict version": version, "report kind": kind, "created": created}
     method = result.get("method")
@@ -2075,6 +2229,27 @@ def render_html(kind: str, result: Mapping, page: Page, *, settings: Mapping[str
                  "the JSON result above; a dash marks a figure that could not be computed.</footer>")
     parts.append("</main></body></html>")
     return "\n".join(parts) + "\n"
+
+
+def build_page(kind: str, result: Mapping[str, Any]) -> Page:
+    """The figures, tables, headline and notes of a report of ``kind`` drawn from ``result``
+    (what :func:`write_report` lays out as HTML).
+
+    Raises
+    ------
+    InputError
+        For an unknown ``kind`` or a result that is not a complete result of ``kind``.
+    """
+    _check_result(kind, result)
+    with _style():
+        try:
+            return _PAGES[kind](result)
+        except (KeyError, IndexError, TypeError, ValueError, AttributeError) as e:
+            # the page reads the result's fields by name and shape: a dictionary that lacks
+            # one, or holds one of another shape, is not a result of this kind
+            raise InputError(f"the result is not a complete '{kind}' result ({type(e).__name__}: {str(e)[:80]})",
+                             f"pass the dictionary of a '{kind}' result (result.to_dict() plus its inputs) "
+                             "unchanged") from None
 
 
 def write_report(
@@ -2146,16 +2321,8 @@ def write_report(
     if not isinstance(settings, Mapping):
         raise InputError("settings are not a dictionary", "pass a dict of the inputs and options, or None")
     settings = names_only(dict(settings))
-    with _style():
-        try:
-            page = _PAGES[kind](result)
-            page.tables += _listener_tables(result)
-        except (KeyError, IndexError, TypeError, ValueError, AttributeError) as e:
-            # the page reads the result's fields by name and shape: a dictionary that lacks
-            # one, or holds one of another shape, is not a result of this kind
-            raise InputError(f"the result is not a complete '{kind}' result ({type(e).__name__}: {str(e)[:80]})",
-                             f"pass the dictionary of a '{kind}' result (result.to_dict() plus its inputs) "
-                             "unchanged") from None
+    page = build_page(kind, result)
+    page.tables += _listener_tables(result)
     created = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     doc = render_html(kind, result, page, settings=dict(settings), title=title or KIND_TITLES[kind],
                       version=__version__, created=created)
@@ -2277,5 +2444,5 @@ def figure_names(folder: str | Path) -> list[str]:
     return sorted(p.name for p in Path(folder).glob("*.png"))
 
 
-__all__: Sequence[str] = ("KINDS", "REPORT_MANIFEST", "check_report_folder", "figure_names", "render_html",
-                          "write_report")
+__all__: Sequence[str] = ("KINDS", "REPORT_MANIFEST", "build_page", "check_report_folder", "figure_names",
+                          "page_glossary", "page_labels", "render_html", "write_report")

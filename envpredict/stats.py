@@ -583,7 +583,8 @@ def compare_conditions(
             verdict = "no clear difference"
         out.append(ConditionStats(p_holm=ph, verdict=verdict, **e))
     if len(out) > 2:
-        notes.append("p_holm adjusts the p-values for comparing several conditions with one baseline (Holm).")
+        notes.append("p (Holm) adjusts the p-values for comparing several conditions with one baseline (Holm 1979); "
+                     "the verdict uses it.")
     notes.extend(_jnd_note(index, [(c.name, c.diff) for c in out if c.verdict != "baseline"]))
     return Comparison(index=index, by=by, baseline=baseline, pair_on=keys, conditions=tuple(out),
                       ci_method="BCa" if ci_method.lower() == "bca" else "percentile",

@@ -487,6 +487,13 @@ class StiResult:
     audiogram: Audiogram | None = None
 
     @property
+    def bands_used(self) -> np.ndarray:
+        """Bands that count in the index: with speech and with a weight for the talker."""
+        alpha = np.asarray(std.WEIGHTS.get(self.talker, std.WEIGHTS["male"])[0], dtype=float)
+        used = np.isfinite(self.speech_db)
+        return used & (alpha[: used.size] > 0) if alpha.size >= used.size else used
+
+    @property
     def meets_requirement(self) -> bool | None:
         """``sti >= requirement`` on the unrounded value (None without a requirement)."""
         return None if self.requirement is None else bool(self.sti >= self.requirement)
@@ -515,8 +522,9 @@ class StiResult:
                 "masking_db": None if self.masking_db is None else np.round(self.masking_db, 1),
                 "threshold_db": self.threshold_db,
                 "auditory_corrections": self.auditory,
-                # a band without speech (the female talker's 125 Hz band) carries no weight
-                "bands_used": [bool(u) for u in np.isfinite(self.speech_db)],
+                # a band without speech or without weight (the female talker's 125 Hz band, also
+                # when the direct method measured a level there) carries no weight
+                "bands_used": [bool(u) for u in self.bands_used],
                 **listener,
             }
         )

@@ -376,8 +376,18 @@ def resolve_column(header: Sequence[str], name: str, source: str) -> str:
                      "name the column with the matching option, or add it to the file")
 
 
-def format_cell(v: Any) -> str:
-    """A result value as CSV text: full-precision numbers, empty for missing/non-finite."""
+def format_cell(v: Any, column: str | None = None) -> str:
+    """A result value as CSV text, empty for missing/non-finite. A number of a ``column``
+    the presentation vocabulary gives CSV decimals (:data:`envpredict.labels.TERMS`,
+    ``csv_decimals``) is written with at most that many (indices 6, cut toward minus
+    infinity so that no verdict against a requirement of up to 6 decimals flips; delays and
+    dB 3; decay times 4); other numbers at full precision (``repr``).
+
+    Examples
+    --------
+    >>> format_cell(0.39182706657172495, "stoi"), format_cell(0.4999999, "sti"), format_cell(12.0, "delay_ms")
+    ('0.391827', '0.499999', '12.0')
+    """
     if v is None:
         return ""
     if isinstance(v, bool):
@@ -386,8 +396,28 @@ def format_cell(v: Any) -> str:
         return str(v)
     if isinstance(v, float) or hasattr(v, "__float__") and not isinstance(v, str):
         f = float(v)
-        return repr(f) if math.isfinite(f) else ""
+        if not math.isfinite(f):
+            return ""
+        return _rounded(f, column) if isinstance(column, str) else repr(f)
     return " ".join(str(v).split())  # one line
+
+
+def _rounded(f: float, column: str) -> str:
+    """``f`` with the CSV decimals of its column (see :func:`format_cell`)."""
+    from decimal import ROUND_FLOOR, ROUND_HALF_EVEN, Decimal
+
+    from .labels import TERMS
+
+    t = TERMS.get(column)
+    if t is None or t.csv_decimals is None or abs(f) >= 1e15:  # (beyond the decimal context's 28 digits)
+        return repr(f)
+    q = Decimal(repr(f)).quantize(Decimal(1).scaleb(-t.csv_decimals), rounding=ROUND_FLOOR if t.csv_cut
+                                  else ROUND_HALF_EVEN)
+    text = format(q, "f")
+    if "." in text:
+        text = text.rstrip("0")
+        text = text + "0" if text.endswith(".") else text
+    return "0.0" if text in ("-0.0", "-0") else text
 
 
 # ---------------------------------------------------------------------------

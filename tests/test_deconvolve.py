@@ -282,7 +282,7 @@ def test_deconvolve_cli_writes_the_api_response_and_its_report(measured, capsys)
     assert fs == FS and np.allclose(ir, api.ir, atol=1e-7)
     assert set(got) >= {"peak_to_noise_db", "distortion_db", "offset_s", "repeats_used", "cautions", "notes"}
     code, text, err = run_cli(["deconvolve", recording, "--sweep", sweep, "--out", d / "ir2.wav"], capsys)
-    assert code == 0 and "peak-to-noise dB" in text and "2 of 2 repeat(s)" in text
+    assert code == 0 and "peak-to-noise, dB" in text and "2 of 2 repeat(s)" in text
 
 
 def test_ir_with_sweep_deconvolves_first(measured, capsys):

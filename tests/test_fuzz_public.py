@@ -718,7 +718,8 @@ case("tables.cell_number", v=st.one_of(st.text(max_size=10), st.floats(), st.non
 case("tables.cell_float", row=st.fixed_dictionaries({"a": st.one_of(S("1.5", "0", ""), st.text(max_size=5))}),
      column=S("a"), line=S(2), source=S("f.csv"), blank_ok=st.booleans(), share_=0.3)
 case("tables.resolve_column", header=S(["a", "B", "c"]), name=S("a", "b", "C"), source=S("f.csv"), share_=0.3)
-case("tables.format_cell", v=st.one_of(st.floats(), st.text(max_size=5), st.none(), st.integers()), bad_={"v": None})
+case("tables.format_cell", v=st.one_of(st.floats(), st.text(max_size=5), st.none(), st.integers()),
+     column=S(None, "sti", "delay_ms", "t30_mid", "rating", "nope"), bad_={"v": None, "column": S(3, ["sti"])})
 case("tables.csv_line", cells=st.lists(st.text(max_size=5), max_size=4))
 case("tables.table_text", header=S(["a", "b"]), rows=st.lists(st.fixed_dictionaries({"a": st.text(max_size=4),
                                                                                         "b": S("1", "")}),
@@ -995,6 +996,29 @@ case("report.check_report_folder", folder=S(Out("rep"), P("out")), inputs=S(None
      out=S(None, Out("x.json")))
 case("report.figure_names", folder=S(P("out"), P(".")))
 
+
+def _page(fn, kw):
+    d = ir_result().to_dict()
+    d.update(kw["extra"])
+    return fn(kw["kind"], d)
+
+
+case("report.build_page", kind=S("ir"), extra=S({}, {"requirement": 0.5}), call_=_page,
+     bad_={"kind": S("nope", None), "extra": S({"sti": "x"}, {"bands_hz": [1]})}, examples_=3)
+
+
+def _page_of(fn, kw):
+    from envpredict.report import Cell, Figure, Page, Table
+
+    page = kw["page"]
+    if page == "built":
+        page = Page([("STI", Cell("0.50"))], [Figure("f", "c", b"", ["T30, s"])], [Table("t", ["band", "MTI"], [])])
+    return fn(page)
+
+
+case("report.page_labels", page=S("built"), call_=_page_of, bad_={"page": S(None, "x", 3)})
+case("report.page_glossary", page=S("built"), call_=_page_of, bad_={"page": S(None, "x", 3)})
+
 # --- added with the design, corpus and listening-test work -------------------------------------
 
 case("audio.find_delay", reference=st.builds(speech, J(16000), J(1.0), J(1)), x=_DELAYED, fs=J(16000),
@@ -1266,6 +1290,24 @@ case("labels.nominal_frequency", fc=_FC, bad_={"fc": _BAD_FC})
 case("labels.band_label", fc=_FC, unit=st.booleans(), bad_={"fc": _BAD_FC, "unit": None})
 case("labels.header", key=S("sti", "t30_mid", "decay_range_db", "stoi"),
      bad_={"key": S("", "nope", None, 3, ["sti"])})
+case("labels.term", key=S("sti", "t30", "p_holm", "envelope_noise_depth"), bad_={"key": S("", "nope", None, 3)})
+case("labels.name", key=S("stoi", "sti", "my_score"), bad_={"key": S(None, 3, ["stoi"])})
+case("labels.show", key=S("sti", "t30", "c50", "stoi"), value=st.one_of(st.none(), st.floats(allow_nan=True)),
+     decimals=S(None, 0, 3), bad_={"key": S("", "nope", None), "decimals": S(-1, 10, "x")})
+case("labels.known_label", text=st.one_of(S("T30, s", "band", "STI (image engine)", "1.6k", "range dB"),
+                                          st.text(max_size=30)), bad_={"text": S(None, 3, ["x"])})
+case("labels.key_of", text=st.one_of(S("noise depth", "T30, s", "1.6k"), st.text(max_size=30)),
+     bad_={"text": S(None, 3)})
+case("labels.glossary", labels=st.lists(st.one_of(S("band", "T30, s", "p (Holm)"), st.text(max_size=12)),
+                                        max_size=6), bad_={"labels": S(None, "T30, s", 3)})
+case("labels.column_notes", headers=st.lists(st.one_of(S("noise depth", "MTI", "band, Hz"), st.text(max_size=12)),
+                                             max_size=6), bad_={"headers": S(None, "MTI", 3)})
+case("labels.significant_decimals", value=st.one_of(st.none(), st.floats(allow_nan=True)), digits=S(4, 1, 9),
+     bad_={"digits": S(0, 10, "x", None)})
+case("labels.uncertainty_decimals", uncertainty=st.one_of(st.none(), st.floats(allow_nan=True)),
+     decimals=S(2, 0, 6), bad_={"decimals": S(-1, 7, "x", None)})
+case("labels.rating_text", rating=S("G", "A+", None, ""), subjective=S("fair", None),
+     bad_={"rating": S(3, ["G"]), "subjective": S(3)})
 
 # --- sinesweep, deconvolve ---------------------------------------------------------------------
 # The shortest sweep accepted at 32 kHz: 50 Hz to 13 kHz (8 octaves) needs 6.6 s for its

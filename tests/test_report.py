@@ -100,6 +100,8 @@ def check_shown_number(text: str, value) -> None:
         return
     m = NUMBER.match(text)
     assert m, f"not a number: {text!r}"
+    if text.endswith(" %") and value is not None:  # a fraction shown as a percentage ("44 %")
+        value = 100 * float(value)
     shown = float(m.group(0).replace("−", "-"))
     decimals = len(m.group(1) or "")
     exp = int(m.group(2) or 0)
@@ -435,9 +437,9 @@ def test_the_page_checks_catch_a_wrong_number(tmp_path, inspect_result):
     write_report("inspect", d, folder)
     page = folder / "report.html"
     doc = page.read_text()
-    shown = f'data-key="voiced_fraction">{d["voiced_fraction"]:.3f}<'
+    shown = f'data-key="voiced_fraction">{100 * d["voiced_fraction"]:.0f} %<'
     assert shown in doc
-    page.write_text(doc.replace(shown, f'data-key="voiced_fraction">{d["voiced_fraction"] + 0.01:.3f}<'))
+    page.write_text(doc.replace(shown, f'data-key="voiced_fraction">{100 * d["voiced_fraction"] + 1:.0f} %<'))
     with pytest.raises(AssertionError, match="shown for"):
         check_report(folder, d, kind="inspect")
     other = dict(d, voiced_fraction=d["voiced_fraction"] + 0.01)

@@ -263,7 +263,7 @@ def test_cli_compare_table_and_errors(tmp_path, capsys):
     assert cli_exit_code(["compare", str(p), "--by", "condition", "--baseline", "unprocessed",
                           "--pair-on", "clean"]) == 0
     text = capsys.readouterr().out
-    assert "denoiser-a" in text and "95 % CI" in text and "higher" in text
+    assert "denoiser-a" in text and "CI (95 %)" in text and "higher" in text
     assert cli_exit_code(["compare", str(p), "--by", "condition", "--baseline", "nope"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("error: baseline 'nope'") and "Traceback" not in err

@@ -512,7 +512,7 @@ def test_sentence_folder_and_list_from_files(tmp_path, capsys, signals):
     assert any("s9.wav" in n and "resampled from 8000 Hz" in n for n in res.notes)
     code, out, err = run_cli(["sweep", str(lst), str(nw), "--snr=-6:6:6", "--segments", "2"], capsys)
     assert code == 0, err
-    assert "2 sentences" in out and "sd sentences" in out
+    assert "2 sentences" in out and "SD over sentences" in out
     (folder / "s5.wav").write_bytes(b"RIFF broken")
     code, out, err = run_cli(["sweep", str(folder), str(nw), "--snr=-6:6:6", "--segments", "2"], capsys)
     assert code == 2 and "s5.wav" in err and len(err.strip().splitlines()) == 1

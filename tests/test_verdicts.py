@@ -51,7 +51,7 @@ def test_a_users_requirement_decides_the_verdict_everywhere(tmp_path, capsys):
         below = [c for c in d["cautions"] if "below the required" in c]
         assert bool(below) is not met
         page = (tmp_path / require / "report.html").read_text()
-        assert ("MET" if met else "NOT MET") in page and f"required: {float(require):g}" in page
+        assert ("MET" if met else "NOT MET") in page and f"required STI ({float(require):g})" in page
 
 
 def test_a_requirement_outside_0_1_is_refused(capsys):

@@ -228,9 +228,12 @@ class Progress:
             self._bar.__exit__(*exc)
 
 
-def table(rows: list[list[str]], header: list[str] | None = None, *, align: str | None = None) -> str:
+def table(rows: list[list[str]], header: list[str] | None = None, *, align: str | None = None,
+          notes: bool = True) -> str:
     """A plain aligned text table. ``align`` has one letter per column, ``l`` (names) or
-    ``r`` (numbers); default: the first column left, the others right."""
+    ``r`` (numbers); default: the first column left, the others right. With ``notes``,
+    columns whose term is not self-evident (``envpredict.labels.TERMS``, ``note=True``)
+    get a one-line explanation under the table."""
     allrows = ([header] if header else []) + rows
     widths = [max(len(str(r[i])) for r in allrows) for i in range(len(allrows[0]))]
     align = align or "l" + "r" * (len(widths) - 1)
@@ -240,7 +243,25 @@ def table(rows: list[list[str]], header: list[str] | None = None, *, align: str 
                                for c, w, a in zip(r, widths, align)).rstrip())
         if header and j == 0:
             lines.append("  ".join("-" * w for w in widths))
+    if notes and header:
+        from envpredict.labels import column_notes
+
+        lines += column_notes(list(header))
     return "\n".join(lines)
+
+
+def bands(values) -> list[str]:
+    """Nominal band labels for a terminal column headed "band, Hz" ("125", "1k", "1.6k")."""
+    from envpredict.labels import band_label
+
+    return [band_label(float(f), unit=False) for f in values]
+
+
+def h(key: str) -> str:
+    """The header of a quantity (``envpredict.labels.header``)."""
+    from envpredict.labels import header
+
+    return header(key)
 
 
 def format_sti(d: dict) -> str:

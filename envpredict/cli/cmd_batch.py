@@ -11,8 +11,8 @@ from envpredict import standards as std
 
 from ._app import app
 from ._common import (
-    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs, emit, fmt, listener,
-    note, table, write_report_if,
+    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs, emit, fmt, h,
+    listener, note, table, write_report_if,
 )
 
 MANIFEST_HELP = ("Manifest CSV: columns 'clean' and 'degraded' (pair rows) or 'ir' (impulse-response rows), "
@@ -159,9 +159,9 @@ def _signed(v, spec: str = "+.3f") -> str:
 
 
 def _p(v) -> str:
-    if v is None:
-        return "—"
-    return "<0.0001" if v < 1e-4 else f"{v:.4f}"
+    from envpredict.labels import show
+
+    return show("p_value", v)
 
 
 def _effect(c: dict) -> str:
@@ -172,14 +172,16 @@ def _effect(c: dict) -> str:
 
 def render_pairwise(d: dict) -> str:
     """Readable text for an all-pairs comparison dictionary."""
-    lines = [f"Index: {d['index']}   all pairs of conditions in column '{d['by']}'   diff = b - a", ""]
+    from envpredict.labels import name
+
+    lines = [f"Index: {name(d['index'])}   all pairs of conditions in column '{d['by']}'   diff = b - a", ""]
     rows = []
     for c in d["pairs"]:
         ci = "—" if c["ci_low"] is None else f"[{c['ci_low']:+.3f}, {c['ci_high']:+.3f}]"
         rows.append([c["a"], c["b"], str(c["n"]), _signed(c["diff"]), ci, _p(c["p_value"]), _p(c["p_holm"]),
                      c["verdict"], _effect(c)])
-    lines.append(table(rows, ["a", "b", "n", "diff", "95 % CI" if d["confidence"] == 0.95 else "CI", "p",
-                              "p (Holm)", "verdict", "d_z [CI]"]))
+    lines.append(table(rows, [h("pair_a"), h("pair_b"), h("n"), h("diff"), f"CI ({100 * d['confidence']:g} %)",
+                              h("p_value"), h("p_holm"), h("verdict"), "d_z (with its CI)"]))
     if d["notes"]:
         lines.append("")
         lines.append("Notes:")
@@ -194,8 +196,10 @@ def render_comparisons(d: dict) -> str:
 
 
 def render_comparison(d: dict) -> str:
+    from envpredict.labels import name
+
     lines = [
-        f"Index: {d['index']}   conditions: column '{d['by']}'   baseline: {d['baseline']}",
+        f"Index: {name(d['index'])}   conditions: column '{d['by']}'   baseline: {d['baseline']}",
         f"Items matched on: {', '.join(d['pair_on'])}",
         f"Difference = condition - baseline, mean over matched items; {d['ci_method']} bootstrap "
         f"{100 * d['confidence']:g} % interval ({d['n_resamples']} resamples, seed {d['seed']}); "
@@ -208,8 +212,8 @@ def render_comparison(d: dict) -> str:
         ci = "—" if c["ci_low"] is None else f"[{c['ci_low']:+.3f}, {c['ci_high']:+.3f}]"
         rows.append([c["name"], str(c["n"]), fmt(c["mean"], ".3f"), "—" if base else _signed(c["diff"]), ci,
                      _p(c["p_value"]), _p(c["p_holm"]), c["verdict"], _effect(c)])
-    lines.append(table(rows, ["condition", "n", "mean", "diff", "95 % CI" if d["confidence"] == 0.95 else "CI",
-                              "p", "p (Holm)", "verdict", "d_z [CI]"]))
+    lines.append(table(rows, [h("condition"), h("n"), h("mean"), h("diff"), f"CI ({100 * d['confidence']:g} %)",
+                              h("p_value"), h("p_holm"), h("verdict"), "d_z (with its CI)"]))
     if d["notes"]:
         lines.append("")
         lines.append("Notes:")
@@ -252,11 +256,13 @@ def compare_command(
               "all_pairs": all_pairs}
     comps = [compare_conditions_file(results, by=by, baseline=baseline, index=i, pair_on=pair_on).to_dict()
              for i in indices]
+    from envpredict.labels import name as label_name
+
     if len(indices) == 1 and not all_pairs:
         d = comps[0]
         d["inputs"] = inputs
         write_report_if(report, "compare", d, as_json=as_json,
-                        title=f"{d.get('index', index)} by {by}, against {baseline}")
+                        title=f"{label_name(str(d.get('index', index)))} by {by}, against {baseline}")
         emit(d, lambda: render_comparison(d), as_json, out)
         return
     pairwise = ([compare_all_pairs_file(results, by=by, index=c["index"], pair_on=pair_on).to_dict() for c in comps]

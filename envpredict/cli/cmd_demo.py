@@ -8,11 +8,12 @@ from typing import Optional
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, Progress, dumps, fmt, table
+from ._common import JSON_HELP, Progress, bands, dumps, fmt, h, table
 
 
 def render_demo(out: dict) -> str:
     """Readable text for a ``demo`` result dictionary."""
+    from envpredict.labels import rating_text
     from envpredict.sti import format_index
 
     sc, d, pair = out["scenario"], out["ir"], out["announcement"]
@@ -24,15 +25,15 @@ def render_demo(out: dict) -> str:
         f"  Speech {sc['speech_level_dba']:.0f} dB(A) at the listener; site noise per octave band "
         f"{', '.join(f'{v:.0f}' for v in sc['noise_db'])} dB SPL (125 Hz - 8 kHz).",
         "",
-        f"STI = {format_index(d['sti'])}, qualification band {d['rating']} ({d['subjective']})",
+        f"STI = {format_index(d['sti'])}, qualification band {rating_text(d['rating'], d['subjective'])}",
         # ISO 3382-1 single number (500 Hz and 1 kHz); a dash if either band is missing
         (f"Reverberation (mid frequencies, 500 Hz-1 kHz): T30 = {fmt(out['t30_mid_s'])} s, "
          f"EDT = {fmt(out['edt_mid_s'])} s"),
         "",
     ]
-    rows = [[f"{fc:g}", fmt(d["mti"][k]), fmt(dec["t30"][k]), fmt(dec["c50"][k], ".1f")]
-            for k, fc in enumerate(d["bands_hz"])]
-    lines.append(table(rows, ["band Hz", "MTI", "T30 s", "C50 dB"]))
+    rows = [[fc, fmt(d["mti"][k]), fmt(dec["t30"][k]), fmt(dec["c50"][k], ".1f")]
+            for k, fc in enumerate(bands(d["bands_hz"]))]
+    lines.append(table(rows, [h("band"), h("mti"), h("t30"), h("c50")]))
     lines += [
         "",
         "Announcement recorded in the hall vs its clean original:",

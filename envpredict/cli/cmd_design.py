@@ -11,8 +11,8 @@ from envpredict import standards as std
 
 from ._app import app
 from ._common import (
-    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs, emit, fmt, listener,
-    listener_lines, table, write_report_if,
+    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs, emit, fmt, h,
+    listener, listener_lines, table, write_report_if,
 )
 
 SCENE_HELP = ("Scene file (JSON, or TOML with the suffix .toml): room (volume_m3 and/or dimensions_m; rt_s or "
@@ -51,10 +51,11 @@ def render_design(d: dict, source: str) -> str:
                          li["rating"], "yes" if li["meets_requirement"] else "NO", fmt(li["speech_level_dba"], ".1f"),
                          li["dominant_source"],
                          _late(late)])
-        head = ["listener", "position m", "STI", "band", "meets", "speech dB(A)", "dominant", "strongest late arrival"]
+        head = [h("listener"), h("position_m"), h("sti"), h("rating"), f"meets ({req:g})", h("speech_level_dba"),
+                h("dominant_source"), h("late_arrival")]
         if d.get("engine") == "image":
-            head[2] = "STI (image)"
-            head.insert(3, "statistical")
+            head[2] = "STI (image engine)"
+            head.insert(3, h("statistical_sti"))
             for row, li in zip(rows, d["listeners"]):
                 row.insert(3, fmt(li.get("statistical_sti")))
         lines.append(table(rows, head))

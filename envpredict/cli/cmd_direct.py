@@ -14,7 +14,7 @@ from ._app import app
 from ._ears import EARS_HELP, render_ears_sti
 from ._common import (
     AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, SEX_HELP, Progress,
-    check_report, emit, fmt, format_sti, listener, listener_lines, table, write_report_if,
+    bands, check_report, emit, fmt, format_sti, h, listener, listener_lines, table, write_report_if,
 )
 
 testsignal_app = typer.Typer(
@@ -85,7 +85,7 @@ def testsignal_full(
         rows = [[str(s["number"]), f"{s['modulation_hz']:g}", f"{s['seconds']:.2f}", s["file"]] for s in d["signals"]]
         return (f"wrote {len(rows)} full-STI test signals to {out_folder} ({d['fs']} Hz, seed {seed}, "
                 f"{d['total_seconds']:.0f} s in all):\n"
-                + table(rows, ["#", "F Hz", "seconds", "file"])
+                + table(rows, [h("number"), h("modulation_hz"), h("seconds"), h("file")])
                 + "\nRecord each signal completely; analyse with 'envpredict fullsti FOLDER_OF_RECORDINGS'.")
 
     emit(d, human, as_json, None)
@@ -96,10 +96,12 @@ def render_direct(d: dict) -> str:
     import numpy as np
 
     from envpredict import standards as std
+    from envpredict.labels import rating_text, uncertainty_decimals
     from envpredict.sti import verdict_decimals
 
     req = std.VOICE_ALARM_TARGET_STI if d.get("requirement") is None else d["requirement"]
-    unc_spec = f".{verdict_decimals(d['sti'], req)}f"  # the uncertainty with as many decimals as the STI
+    # the uncertainty with as many decimals as the STI, or more until it shows a digit
+    unc_spec = f".{uncertainty_decimals(d['uncertainty'], verdict_decimals(d['sti'], req))}f"
 
     lines = [f"Method: {d['method']}"]
     for r in d["recordings"]:
@@ -113,8 +115,8 @@ def render_direct(d: dict) -> str:
     lines += [f"Talker weights: {d['talker']}   {cal}"] + listener_lines(d)
     lines += [
         "",
-        f"STI = {format_sti(d)} ± {fmt(d['uncertainty'], unc_spec)}   qualification band {d['rating']}   "
-        f"({d['subjective']})",
+        f"STI = {format_sti(d)} ± {fmt(d['uncertainty'], unc_spec)}   qualification band "
+        f"{rating_text(d['rating'], d['subjective'])}",
         "(± is the standard uncertainty: envelope noise or window spread, and the expected offset "
         f"{fmt(d.get('expected_offset'), '+.3f')})",
         "",
@@ -122,16 +124,17 @@ def render_direct(d: dict) -> str:
     if d.get("requirement") is not None:
         lines[-1:-1] = [f"Required: STI {d['requirement']:g} or more — "
                         f"{'met' if d['meets_requirement'] else 'NOT met'}"]
-    head = ["band Hz", "MTI", f"level (signal+noise) {d['band_levels_unit']}", "envelope noise depth"]
+    level = "band_levels_db" if d["band_levels_unit"] == "dB SPL" else "band_levels_dbfs"
+    head = [h("band"), h("mti"), h(level), h("envelope_noise_depth")]
     nmod = len(d["mtf"][0])
     if nmod == 2:
-        head += ["F1 Hz", "MTF1", "F2 Hz", "MTF2"]
+        head += [h("f1"), h("m_f1"), h("f2"), h("m_f2")]
     rows = []
-    for k, fc in enumerate(d["bands_hz"]):
+    for k, fc in enumerate(bands(d["bands_hz"])):
         nd = d["envelope_noise_depth"][k]
         if isinstance(nd, list):  # full STI: one per recording; show the median
             nd = float(np.median([v for v in nd if v is not None])) if any(v is not None for v in nd) else None
-        row = [f"{fc:g}", fmt(d["mti"][k]) if d["bands_used"][k] else "not used", fmt(d["band_levels_db"][k], ".1f"),
+        row = [fc, fmt(d["mti"][k]) if d["bands_used"][k] else "not used", fmt(d["band_levels_db"][k], ".1f"),
                fmt(nd, ".3f")]
         if nmod == 2:
             for f, m in zip(d["modulation_hz"][k], d["mtf"][k]):
@@ -140,9 +143,11 @@ def render_direct(d: dict) -> str:
     lines.append(table(rows, head))
     if nmod != 2:
         lines.append("")
-        lines.append("MTF used for the index (rows: octave bands; columns: modulation frequency, Hz)")
-        mh = ["band Hz"] + [f"{f:g}" for f in d["modulation_hz"][0]]
-        lines.append(table([[f"{fc:g}"] + [f"{v:.2f}" for v in row] for fc, row in zip(d["bands_hz"], d["mtf"])], mh))
+        lines.append("Modulation transfer m used for the index (rows: octave bands; columns: modulation "
+                     "frequency, Hz)")
+        mh = [h("band")] + [f"{f:g}" for f in d["modulation_hz"][0]]
+        lines.append(table([[fc] + [f"{v:.2f}" for v in row] for fc, row in zip(bands(d["bands_hz"]), d["mtf"])],
+                           mh))
     lines.append("")
     lines.append("Cautions:")
     lines.extend(f"  - {c}" for c in d["cautions"])

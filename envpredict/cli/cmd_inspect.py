@@ -11,7 +11,8 @@ from envpredict import standards as std
 
 from ._app import app
 from ._common import (
-    CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, check_report, emit, fmt, table, write_report_if,
+    CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, bands, check_report, emit, fmt, h, table,
+    write_report_if,
 )
 
 START_HELP = "Start of the excerpt to inspect, seconds from the beginning of the file."
@@ -20,6 +21,12 @@ DURATION_HELP = ("Length of the excerpt, seconds (1 to 14400, i.e. 4 hours; the 
 F0_MIN_HELP = ("Lowest F0 searched, Hz. Periodicity spans about 50-500 Hz and adult voices are commonly "
                "100-300 Hz (common practice, no source), hence the 50-500 Hz default range.")
 F0_MAX_HELP = "Highest F0 searched, Hz (see --f0-min)."
+
+
+def _explain(key: str) -> str:
+    from envpredict.labels import term
+
+    return term(key).explain
 
 
 def render_inspect(d: dict, source: str) -> str:
@@ -33,22 +40,25 @@ def render_inspect(d: dict, source: str) -> str:
         f"Dominant envelope modulation: {fmt(d['modulation_peak_hz'], '.2f')} Hz "
         f"(resolution {fmt(d['modulation_resolution_hz'], '.3f')} Hz)",
         "",
-        "Per octave band: modulation index of the amplitude envelope below 50 Hz (envelope) and at "
-        "50-500 Hz (periodicity), carrier rate (fine structure above 500 Hz)",
+        "Per octave band: level re the whole recording, modulation of the amplitude envelope below 50 Hz "
+        "(envelope) and at 50-500 Hz (periodicity), carrier rate (fine structure above 500 Hz)",
     ]
     rows = []
-    for k, fc in enumerate(d["bands_hz"]):
-        rows.append([f"{fc:g}", fmt(d["band_level_db"][k], ".1f"), fmt(d["envelope_modulation"][k]),
+    for k, fc in enumerate(bands(d["bands_hz"])):
+        rows.append([fc, fmt(d["band_level_db"][k], ".1f"), fmt(d["envelope_modulation"][k]),
                      fmt(d["periodicity_modulation"][k]), fmt(d["carrier_hz"][k], ".0f"),
                      fmt(d["band_peak_hz"][k])])
-    lines.append(table(rows, ["band Hz", "level dB", "envelope", "periodicity", "carrier Hz", "mod. peak Hz"]))
+    lines.append(table(rows, [h("band"), h("level_re_total"), h("envelope_modulation"), h("periodicity_modulation"),
+                              h("carrier_hz"), h("band_peak_hz")]))
     lines.append("")
-    lines.append("Envelope modulation spectra (modulation index per 1/3-octave modulation band, Hz)")
+    lines.append("Envelope modulation spectra: modulation index per one-third-octave modulation band (columns: "
+                 "its centre, Hz)")
     mb = d["modulation_bands_hz"]
     keep = [j for j, f in enumerate(mb) if j % 2 == 0]
-    head = ["band Hz"] + [f"{mb[j]:g}" for j in keep]
-    lines.append(table([[f"{fc:g}"] + [fmt(d["modulation_spectra"][k][j]) for j in keep]
-                        for k, fc in enumerate(d["bands_hz"])], head))
+    head = [h("band")] + [f"{mb[j]:g}" for j in keep]
+    lines.append(table([[fc] + [fmt(d["modulation_spectra"][k][j]) for j in keep]
+                        for k, fc in enumerate(bands(d["bands_hz"]))], head))
+    lines.append("  " + h("modulation_index") + ": " + _explain("modulation_index"))
     lines.append("(every second modulation band shown; --json has all)")
     if d["cautions"]:
         lines.append("")

@@ -13,7 +13,7 @@ from ._app import app
 from ._ears import EARS_HELP, render_ears_sti
 from ._common import (
     AGE_HELP, AUDIOGRAM_HELP, CHANNEL_HELP, JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, SEX_HELP,
-    Progress, check_outputs, emit, fmt, format_sti, listener, listener_lines, table, write_report_if,
+    Progress, bands, check_outputs, emit, fmt, format_sti, h, listener, listener_lines, table, write_report_if,
 )
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
@@ -41,6 +41,8 @@ AUDITORY_HELP = ("Switch off auditory masking and the reception threshold (textb
 
 def render_ir(d: dict, source: str) -> str:
     """Readable text for an ``ir`` result dictionary."""
+    from envpredict.labels import rating_text
+
     lines = [
         f"Impulse response: {source}  ({d['fs']} Hz, {d['duration_s']:.2f} s)",
         f"Talker: {d['talker']}   speech level: {d['speech_level_dba']:.1f} dB(A)   "
@@ -55,7 +57,7 @@ def render_ir(d: dict, source: str) -> str:
     lines += listener_lines(d)
     lines += [
         "",
-        f"STI = {format_sti(d)}   qualification band {d['rating']}   ({d['subjective']})",
+        f"STI = {format_sti(d)}   qualification band {rating_text(d['rating'], d['subjective'])}",
         "",
     ]
     if d.get("requirement") is not None:
@@ -63,22 +65,23 @@ def render_ir(d: dict, source: str) -> str:
                         f"{'met' if d['meets_requirement'] else 'NOT met'}"]
     dec = d["decay"]
     rows = []
-    for k, fc in enumerate(d["bands_hz"]):
+    for k, fc in enumerate(bands(d["bands_hz"])):
         rows.append([
-            f"{fc:g}", fmt(d["mti"][k]) if d["bands_used"][k] else "not used", fmt(d["speech_db"][k], ".1f"),
+            fc, fmt(d["mti"][k]) if d["bands_used"][k] else "not used", fmt(d["speech_db"][k], ".1f"),
             fmt(d["noise_db"][k] if d["noise_db"] else None, ".1f"),
             fmt(dec["edt"][k]), fmt(dec["t20"][k]), fmt(dec["t30"][k]),
             fmt(dec["c50"][k], ".1f"), fmt(dec["c80"][k], ".1f"), fmt(dec["d50"][k]),
             fmt(dec["decay_range_db"][k], ".0f"),
         ])
-    lines.append(table(rows, ["band Hz", "MTI", "speech dB", "noise dB", "EDT s", "T20 s", "T30 s",
-                              "C50 dB", "C80 dB", "D50", "range dB"]))
+    lines.append(table(rows, [h("band"), h("mti"), h("speech_db"), h("noise_db"), h("edt"), h("t20"), h("t30"),
+                              h("c50"), h("c80"), h("d50"), h("decay_range_db")]))
     lines.append(f"Mid-frequency (mean of 500 Hz and 1 kHz, ISO 3382-1): T30 {fmt(dec['t30_mid'])} s, "
                  f"EDT {fmt(dec['edt_mid'])} s")
     lines.append("")
-    lines.append("MTF used for the index (rows: octave bands; columns: modulation frequency, Hz)")
-    head = ["band Hz"] + [f"{f:g}" for f in d["modulation_hz"][0]]
-    lines.append(table([[f"{fc:g}"] + [f"{v:.2f}" for v in row] for fc, row in zip(d["bands_hz"], d["mtf"])], head))
+    lines.append("Modulation transfer m used for the index (rows: octave bands; columns: modulation frequency, Hz)")
+    head = [h("band")] + [f"{f:g}" for f in d["modulation_hz"][0]]
+    lines.append(table([[fc] + [f"{v:.2f}" for v in row] for fc, row in zip(bands(d["bands_hz"]), d["mtf"])],
+                       head))
     if dec["notes"]:
         lines.append("")
         lines.append("Decay figures not computed:")

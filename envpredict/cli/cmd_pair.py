@@ -10,8 +10,8 @@ from envpredict import standards as std
 
 from ._app import app
 from ._common import (
-    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs, emit, fmt, listener,
-    listener_lines, table, write_report_if,
+    AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, bands, check_outputs, emit, fmt, h,
+    listener, listener_lines, table, write_report_if,
 )
 from ._ears import render_ears_pair
 
@@ -59,7 +59,7 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
                      f"{sp['percent_correct']:.1f} % correct for its sentence material (material-specific)")
     if d.get("separation"):
         sep = d["separation"]
-        snrs = "  ".join(f"{fc:g}: {fmt(v, '.1f')}" for fc, v in zip(sep["bands_hz"], sep["output_snr_db"]))
+        snrs = "  ".join(f"{fc}: {fmt(v, '.1f')}" for fc, v in zip(bands(sep["bands_hz"]), sep["output_snr_db"]))
         lines.append(f"output SNR (phase inversion) = {sep['broadband_snr_db']:.1f} dB; per octave band, dB: {snrs}")
     lines += [
         "",
@@ -70,26 +70,27 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
 
     rows = [[band_label(fc, unit=False), fmt(s, ".3f"), fmt(e, ".3f")]
             for fc, s, e in zip(third["bands_hz"], third["stoi"], third["estoi"])]
-    lines.append(table(rows, ["band Hz", "STOI", "ESTOI"]))
+    lines.append(table(rows, [h("band"), h("stoi_band"), h("estoi_band")]))
     octv = d["bands"]["octave"]
     if octv is not None:
         lines.append("")
         lines.append("Octave bands, speech-based STI: normalised covariance (r) and envelope regression (m)")
         reg_snr = octv.get("regression_snr_db") or [None] * len(octv["bands_hz"])
         reg_ti = octv.get("regression_ti") or [None] * len(octv["bands_hz"])
-        rows = [[f"{fc:g}" + (" *" if p else ""), fmt(r, ".3f"), fmt(s, ".1f"), fmt(t, ".3f"), fmt(rs, ".1f"),
+        rows = [[fc + (" *" if p else ""), fmt(r, ".3f"), fmt(s, ".1f"), fmt(t, ".3f"), fmt(rs, ".1f"),
                  fmt(rt, ".3f")]
-                for fc, r, s, t, p, rs, rt in zip(octv["bands_hz"], octv["correlation"], octv["apparent_snr_db"],
+                for fc, r, s, t, p, rs, rt in zip(bands(octv["bands_hz"]), octv["correlation"], octv["apparent_snr_db"],
                                                   octv["ti"], octv["partial"], reg_snr, reg_ti)]
-        lines.append(table(rows, ["band Hz", "r", "app. SNR dB", "TI", "regr. SNR dB", "regr. TI"]))
+        lines.append(table(rows, [h("band"), h("correlation"), h("apparent_snr_db"), h("ti"), h("regression_snr_db"),
+                                  h("regression_ti")]))
         if any(octv["partial"]):
             lines.append("  * band only partly below the Nyquist frequency")
     if d["worst_moments"]:
         lines.append("")
         lines.append("Moments with the lowest local ESTOI")
-        rows = [[f"{w['start_s']:.0f}-{w['end_s']:.0f} s", fmt(w["estoi"], ".3f"), fmt(w["stoi"], ".3f")]
+        rows = [[f"{w['start_s']:.0f}-{w['end_s']:.0f}", fmt(w["estoi"], ".3f"), fmt(w["stoi"], ".3f")]
                 for w in d["worst_moments"]]
-        lines.append(table(rows, ["time", "ESTOI", "STOI"]))
+        lines.append(table(rows, [h("time_s"), h("estoi"), h("stoi")], notes=False))
     if d["notes"]:
         lines.append("")
         lines.append("Notes:")

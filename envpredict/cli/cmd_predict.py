@@ -11,7 +11,8 @@ from envpredict.tables import CORRECT_COLUMN, PREDICTED_COLUMN, TRIALS_COLUMN
 
 from ._app import app
 from ._common import (
-    CHANNEL_HELP, JSON_HELP, REPORT_HELP, Progress, check_outputs, dumps, echo, emit, fmt, note, table, write_report_if,
+    CHANNEL_HELP, JSON_HELP, REPORT_HELP, Progress, check_outputs, dumps, echo, emit, fmt, h, note, table,
+    write_report_if,
 )
 
 
@@ -22,6 +23,14 @@ _BUILTIN_MAPS = ", ".join(sorted(std.TAAL2011_MAPPINGS))
 # fitmap
 # ---------------------------------------------------------------------------
 
+def _decimals(v) -> int:
+    """Decimals that show four significant digits of ``v``, for an estimate and both ends of
+    its interval alike (``envpredict.labels.significant_decimals``)."""
+    from envpredict.labels import significant_decimals
+
+    return significant_decimals(v)
+
+
 def render_fit(d: dict, rows: list[list[str]]) -> str:
     lines = [
         (f"Mapping from {d['index']} to proportion correct: {d['shape']} "
@@ -30,23 +39,27 @@ def render_fit(d: dict, rows: list[list[str]]) -> str:
         f"  fitted by binomial maximum likelihood to {d['n_points']} rows, {d['n_trials']} trials",
         "",
     ]
-    lvl = f"{100 * d['ci_level']:g} % interval"
+    from envpredict.labels import name, show
+
+    lvl = f"interval ({100 * d['ci_level']:g} %)"
     prow = []
     labels = {"a": "a (intercept)", "b": "b (slope of eta)", "x50": f"x50 ({d['index']} at F = 1/2)",
               "slope_at_x50": "slope at x50 (per index unit)"}
     for k, v in d["params"].items():
         ci = d["ci"].get(k)
-        prow.append([labels.get(k, k), fmt(v, ".4g"), "—" if ci is None else f"{ci[0]:.4g} .. {ci[1]:.4g}"])
+        spec = f".{_decimals(v)}f"  # four significant digits of the estimate; its interval the same
+        prow.append([labels.get(k, k), fmt(v, spec), "—" if ci is None else f"{ci[0]:{spec}} .. {ci[1]:{spec}}"])
     prof = (d.get("ci_profile") or {}).get("x50")
     if prof is not None:
-        ends = [("open" if v is None else f"{v:.4g}") for v in prof]
+        spec = f".{_decimals(d['params'].get('x50'))}f"
+        ends = [("open" if v is None else f"{v:{spec}}") for v in prof]
         prow.append(["x50, profile likelihood", "", f"{ends[0]} .. {ends[1]}"])
-    lines.append(table(prow, ["parameter", "estimate", lvl]))
+    lines.append(table(prow, [h("parameter"), h("estimate"), lvl]))
     f = d["fit"]
     if f:
         lines += ["", (f"Goodness of fit (df = {f['df']}): deviance {fmt(f['deviance'], '.2f')} "
-                      f"(p = {fmt(f['deviance_p'], '.3g')}), Pearson chi-square {fmt(f['pearson_chi2'], '.2f')} "
-                      f"(p = {fmt(f['pearson_p'], '.3g')})")]
+                      f"(p = {show('p_value', f['deviance_p'])}), Pearson chi-square {fmt(f['pearson_chi2'], '.2f')} "
+                      f"(p = {show('p_value', f['pearson_p'])})")]
     est = d.get("dispersion_estimate")
     if d.get("interval_method") == "quasi-binomial":
         lines.append(f"Intervals: quasi-binomial, dispersion (Pearson chi-square / df) {d['dispersion']:.3g}: "
@@ -60,11 +73,13 @@ def render_fit(d: dict, rows: list[list[str]]) -> str:
                        f"{fmt(sp['x50_mean'], '.4g')}, sd {fmt(sp['x50_sd'], '.3g')}; slope at x50 mean "
                        f"{fmt(sp['slope_at_x50_mean'], '.4g')}, sd {fmt(sp['slope_at_x50_sd'], '.3g')}")]
         why = any(f["error"] for f in d["listeners"])  # a column of reasons only when a listener has one
-        head = ["listener", "rows", "trials", "x50", "slope at x50"] + (["no curve because"] if why else [])
+        head = [h("listener"), h("rows"), h("trials"), h("x50"), h("slope_at_x50")] + \
+            ([h("no_curve_because")] if why else [])
         lines.append(table([[f["listener"], f"{f['n_points']}", f"{f['n_trials']}", fmt(f["x50"], ".4g"),
                              fmt(f["slope_at_x50"], ".4g")] + ([f["error"] or ""] if why else [])
                             for f in d["listeners"]], head))
-    lines += ["", table(rows, [d["index"], "correct", "trials", "observed %", "fitted %"])]
+    lines += ["", table(rows, [name(d["index"]), h("correct"), h("trials"), h("observed_percent"),
+                               h("fitted_percent")])]
     if d["notes"]:
         lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
     return "\n".join(lines)
@@ -120,10 +135,12 @@ def fitmap_command(
 # ---------------------------------------------------------------------------
 
 def render_sweep(d: dict) -> str:
+    from envpredict.labels import name
+
     many = d.get("n_sentences", 1) > 1
     what = f"{d['n_sentences']} sentences ({d['duration_s']:.2f} s)" if many else f"{d['duration_s']:.2f} s"
     lines = [
-        (f"SNR sweep: {d['index']} of {what} of speech"
+        (f"SNR sweep: {name(d['index'])} of {what} of speech"
         f"{' through the impulse response' if d['reverberant'] else ''}, {d['n_segments']} noise segment(s) per SNR"),
         f"SNR reference: {d['snr_reference_text']}",
         f"Level convention: {d['level_convention_text']}",
@@ -137,8 +154,8 @@ def render_sweep(d: dict) -> str:
     # the envelope-power index is an object (its SNR_env in dB per SNR), the others a list
     obj = isinstance(d[d["index"]], dict)
     values = d[d["index"]]["snr_env_db"] if obj else d[d["index"]]
-    head = ["SNR dB", "SNR_env dB" if obj else d["index"], "sd"] + (["sd sentences"] if many else []) + \
-        (["predicted %"] if mapped else [])
+    head = [h("snr_db"), h("sepsm_snr_env_db") if obj else name(d["index"]), h("index_sd")] + \
+        ([h("sentence_sd")] if many else []) + ([h("predicted_percent")] if mapped else [])
     rows = []
     for i, s in enumerate(d["snr_db"]):
         r = [f"{s:g}", fmt(values[i], ".3f"), fmt(d["index_sd"][i], ".3f")]
@@ -155,10 +172,10 @@ def render_sweep(d: dict) -> str:
         for t in d["targets"]:
             ci = "—" if t["ci_low"] is None else f"{t['ci_low']:.1f} .. {t['ci_high']:.1f}"
             mci = "—" if t["map_ci_low"] is None else f"{t['map_ci_low']:.1f} .. {t['map_ci_high']:.1f}"
-            trows.append([f"{t['percent']:g} %", fmt(t["index_value"], ".3f"), fmt(t["snr_db"], ".1f"), ci, mci,
+            trows.append([f"{t['percent']:g}", fmt(t["index_value"], ".3f"), fmt(t["snr_db"], ".1f"), ci, mci,
                           fmt(t["slope_percent_per_db"], ".1f"), t["note"] or ""])
-        lines.append(table(trows, ["target", head[1], "SNR dB", "noise segments", "mapping",
-                                   "slope %/dB", ""]))
+        lines.append(table(trows, [h("target_percent"), head[1], h("snr_db"), h("segments_ci"),
+                                   h("mapping_ci"), h("slope_percent_per_db"), ""]))
         if many:
             def iv(t, key):
                 lo, hi = t[f"{key}_ci_low"], t[f"{key}_ci_high"]
@@ -166,17 +183,18 @@ def render_sweep(d: dict) -> str:
 
             lines += ["", "With the spread over sentences (95 %): sentences alone, sentences and noise segments "
                           "combined, and all three with the mapping:"]
-            lines.append(table([[f"{t['percent']:g} %", fmt(t["snr_db"], ".1f"), fmt(t["sentence_sd_db"], ".2f"),
+            lines.append(table([[f"{t['percent']:g}", fmt(t["snr_db"], ".1f"), fmt(t["sentence_sd_db"], ".2f"),
                                  iv(t, "sentence"), iv(t, "combined"), iv(t, "total")] for t in d["targets"]],
-                               ["target", "SNR dB", "sd sentences dB", "sentences", "combined", "total"]))
+                               [h("target_percent"), h("snr_db"), h("sentence_sd_db"), h("sentences_ci"),
+                                h("combined_ci"), h("total_ci")]))
         if d["srt_db"] is not None:
             lines += ["", (f"Predicted SRT (50 %): {d['srt_db']:.1f} dB SNR, slope "
                           f"{d['slope_at_srt_percent_per_db']:.1f} %/dB")]
         if d.get("processed") and any(t.get("unprocessed_snr_db") is not None for t in d["targets"]):
             lines += ["", "Predicted benefit of the processing chain (SNR without it minus SNR with it):"]
-            lines.append(table([[f"{t['percent']:g} %", fmt(t["unprocessed_snr_db"], ".1f"), fmt(t["snr_db"], ".1f"),
+            lines.append(table([[f"{t['percent']:g}", fmt(t["unprocessed_snr_db"], ".1f"), fmt(t["snr_db"], ".1f"),
                                  fmt(t["benefit_db"], "+.1f")] for t in d["targets"]],
-                               ["target", "unprocessed dB", "processed dB", "benefit dB"]))
+                               [h("target_percent"), h("unprocessed_db"), h("processed_db"), h("benefit_db")]))
     st = d.get("stimuli")
     if st:
         lines += ["", (f"Stimuli: {len(st['stimuli'])} file(s) in {st['folder']} (with {st['manifest']}), "
@@ -185,7 +203,8 @@ def render_sweep(d: dict) -> str:
         lines.append(table([[s["file"], f"{s['snr_db']:g}", f"{s['speech_active_level_db']:.1f}",
                              f"{s['noise_level_db']:.1f}", f"{s['peak_db']:.1f}", fmt(s.get("true_peak_dbtp"), ".1f")]
                             for s in st["stimuli"]],
-                           ["file", "SNR dB", "speech dB", "noise dB", "peak dB", "true peak dBTP"]))
+                           [h("file"), h("snr_db"), h("speech_active_level_db"), h("noise_level_db"), h("peak_db"),
+                            h("true_peak_dbtp")]))
         if st.get("process"):
             lines.append(f"  files ending _processed went through the processing chain {st['process']}, at the "
                          "gain of their input mixture (its SNR and speech and noise levels are shown)")

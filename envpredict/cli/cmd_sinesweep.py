@@ -11,7 +11,7 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
-from ._common import CHANNEL_HELP, JSON_HELP, emit, fmt, table
+from ._common import CHANNEL_HELP, JSON_HELP, bands, emit, fmt, h, table
 from .cmd_direct import testsignal_app
 
 SWEEP_RATE_HELP = ("The rate the sweep was played at, Hz, where it is not the rate in the sweep file (a player "
@@ -67,9 +67,9 @@ def render_deconvolution(d: dict, source: str) -> str:
         f"Impulse response: {d['ir_seconds']:.2f} s" + (f", written to {d['ir_file']}" if d["ir_file"] else ""),
         "",
     ]
-    rows = [[f"{fc:g}", fmt(p, ".1f"), fmt(q, ".1f")]
-            for fc, p, q in zip(d["bands_hz"], d["peak_to_noise_db"], d["distortion_db"])]
-    lines.append(table(rows, ["band Hz", "peak-to-noise dB", "distortion dB"]))
+    rows = [[fc, fmt(p, ".1f"), fmt(q, ".1f")]
+            for fc, p, q in zip(bands(d["bands_hz"]), d["peak_to_noise_db"], d["distortion_db"])]
+    lines.append(table(rows, [h("band"), h("peak_to_noise_db"), h("distortion_db")]))
     lines.append(f"(distortion: harmonics {d['harmonic_orders'][0]}-{d['harmonic_orders'][1]} re the linear "
                  "response, cut away; — where the response shows no noise floor)")
     for title, key in (("Cautions:", "cautions"), ("Notes:", "notes")):

@@ -10,7 +10,7 @@ import typer
 from ._app import app
 from ._common import (
     AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs,
-    emit, fmt, listener, note, table, write_report_if,
+    emit, fmt, h, listener, note, table, write_report_if,
 )
 from .cmd_batch import OVERWRITE_HELP, PROGRESS_EVERY_S, RESUME_HELP, RETRY_HELP, WORKERS_HELP
 
@@ -42,14 +42,16 @@ def render_survey(d: dict) -> str:
     rows = [[p["zone"], p["position"], str(p["repeats"]), v(p["sti_mean"]), fmt(p["sti_sd"], ".3f"),
              fmt(p["sti_spread"], ".3f"), p["rating"] or "—",
              ", ".join(str(r) for r in p["failed_rows"]) or ""] for p in d["positions"]]
-    lines.append(table(rows, ["zone", "position", "repeats", "STI mean", "sd", "spread", "band", "failed rows"],
+    lines.append(table(rows, [h("zone"), h("position"), h("repeats"), h("sti_mean"), h("sd"), h("spread"), h("rating"),
+                              h("failed_rows")],
                        align="llrrrrlr"))
     lines += ["", "Zones (statistics of the position means):"]
     rows = []
     for z in d["zones"]:
         rows.append([z["zone"], str(z["positions"]), v(z["sti_mean"]), fmt(z["sti_sd"], ".3f"), v(z["sti_min"]),
                      v(z["sti_max"]), (z["verdict"] or "—").upper(), z["decided_by"]])
-    lines.append(table(rows, ["zone", "positions", "mean", "sd", "min", "max", "verdict", "decided by"],
+    lines.append(table(rows, [h("zone"), h("positions"), h("mean"), h("sd"), h("min"), h("max"), h("verdict"),
+                              h("decided_by")],
                        align="lrrrrrll"))
     for z in d["zones"]:
         for c in z["checks"]:
