@@ -219,6 +219,7 @@ TERMS: dict[str, Term] = {
     "activity_factor": _T("activity factor", "%", 1, "share of the time the speech is active (ITU-T P.56 method B)"),
     "x50": _T("x50", "", 4, "index value at which the mapping gives 50 % of the way from guess to 1 - lapse"),
     "slope_at_x50": _T("slope at x50", "per index unit", 4, "steepness of the mapping at x50"),
+    "no_curve_because": _T("no curve because", "", None, "why a listener's scores gave no fitted curve"),
     "mapping_a": _T("a (intercept)", "", 4, "intercept of the mapping's linear predictor"),
     "mapping_b": _T("b (slope)", "", 4, "slope of the mapping's linear predictor"),
     "parameter": _T("parameter", "", None, "a parameter of the fitted mapping"),
@@ -241,6 +242,35 @@ TERMS: dict[str, Term] = {
     "speech_active_level_db": _T("speech level", "dBFS", 1, "active speech level (ITU-T P.56)"),
     "noise_level_db": _T("noise level", "dBFS", 1, "RMS level of the noise"),
     "peak_db": _T("peak", "dBFS", 1, "highest sample of the file"),
+    # --- listeners (issue 17): hearing loss and two ears
+    "hearing_level_db": _T("hearing loss", "dB HL", 0, "the listener's hearing level in the band: dB above the "
+                                                       "reference threshold of young normal hearing (ISO 389-7)",
+                           note=True),
+    "threshold_spl_db": _T("pure-tone threshold", "dB SPL", 1, "the listener's free-field pure-tone threshold at the "
+                                                               "band centre: the ISO 389-7 reference plus the loss"),
+    "reception_threshold_used_db": _T("reception threshold used", "dB", 1, "the band's absolute reception "
+                                      "threshold of IEC 60268-16 raised by the hearing loss", note=True),
+    "inaudible": _T("made inaudible by the loss", "", None, "whether the loss puts the band's speech below its "
+                                                           "raised reception threshold"),
+    "left_ear": _T("left ear", "", 3, "the value of the left-ear channel (channel 0)"),
+    "right_ear": _T("right ear", "", 3, "the value of the right-ear channel (channel 1)"),
+    "better_ear": _T("better ear", "", 3, "per octave band the ear with the larger band value, combined by the IEC "
+                                          "weights (van Wijngaarden & Drullman 2008, from memory); for STOI and "
+                                          "ESTOI the larger of the two ears' indices", note=True),
+    "ear_difference": _T("left minus right", "", 3, "the left ear's band value minus the right ear's", note=True),
+    # --- processed speech and noise, envelope power (issue 15)
+    "output_snr_db": _T("output SNR", "dB", 1, "SNR per band after the processing: the processed speech over the "
+                                              "processed noise, separated by phase inversion (Hagerman & "
+                                              "Olofsson 2004)", note=True),
+    "gammatone_band_hz": _T("gammatone band centre", "Hz", None, "centre frequency of one of the sEPSM's "
+                                                                 "gammatone filters"),
+    "modulation_filter_hz": _T("modulation filter centre", "Hz", None, "centre frequency of one of the sEPSM's "
+                                                                        "modulation filters (1 Hz low-pass, then "
+                                                                        "octaves from 2 to 64 Hz)"),
+    "band_snr_env_db": _T("SNR_env of the band", "dB", 2, "envelope-power SNR of one gammatone band over its "
+                                                          "modulation filters (Jorgensen & Dau 2011)"),
+    "true_peak_dbtp": _T("true peak", "dBTP", 1, "highest value of the waveform between the samples too (4x "
+                                               "oversampling, ITU-R BS.1770-4 Annex 2), re full scale", note=True),
     # --- comparisons
     "condition": _T("condition", "", None, "the processing or listening condition compared"),
     "n": _T("n", "", None, "number of matched items"),

@@ -1028,8 +1028,8 @@ def _sepsm_section(p: Page, d: Mapping) -> None:
             ax.set_xticks(range(len(mods)), ["≤ 1 (low-pass)" if i == 0 else f"{m:g}" for i, m in enumerate(mods)])
             step = max(1, len(bands) // 11)
             ax.set_yticks(range(0, len(bands), step), [_band_label(b) for b in bands[::step]])
-            ax.set_xlabel("modulation filter centre, Hz")
-            ax.set_ylabel("gammatone band centre")
+            ax.set_xlabel(_term("modulation_filter_hz"))
+            ax.set_ylabel(_term("gammatone_band_hz"))
             cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
             cb.set_label("SNR_env, dB (floor -30 dB)")
             ax.set_title("Envelope-power SNR per audio band and modulation filter")
@@ -1072,8 +1072,8 @@ def _sepsm_section(p: Page, d: Mapping) -> None:
                            label=f"broadband {float(sep['broadband_snr_db']):+.1f} dB")
                 ax.legend(loc="upper left", fontsize=9, frameon=False)
             ax.set_xticks(x, [_band_label(b) for b in bands])
-            ax.set_xlabel("octave band centre")
-            ax.set_ylabel("output SNR, dB")
+            ax.set_xlabel(_name("octave_band"))
+            ax.set_ylabel(_term("output_snr_db"))
             ax.grid(axis="x", visible=False)
             lo, hi = float(np.nanmin(np.append(snr[ok], 0.0))), float(np.nanmax(np.append(snr[ok], 0.0)))
             ax.set_ylim(lo - 0.15 * (hi - lo or 1.0) - 1.0, hi + 0.2 * (hi - lo or 1.0) + 1.0)
@@ -1086,7 +1086,8 @@ def _sepsm_section(p: Page, d: Mapping) -> None:
         rows = [[Cell(_band_label(b)), num(d, f"separation.output_snr_db.{k}", "+.1f", "dB")]
                 for k, b in enumerate(bands)]
         rows.append([Cell("broadband"), num(d, "separation.broadband_snr_db", "+.1f", "dB")])
-        p.tables.append(Table("Output SNR after the processing (phase inversion)", ["band", "output SNR"], rows,
+        p.tables.append(Table("Output SNR after the processing (phase inversion)",
+                              ["band", _term("output_snr_db")], rows,
                               "Counterpart check: peak correlation with the clean speech of the derived speech "
                               f"{_fmt_or_dash(sep.get('speech_correlation'))} and of the derived noise "
                               f"{_fmt_or_dash(sep.get('noise_correlation'))}."))
@@ -1120,10 +1121,10 @@ def _sweep_sepsm_figure(p: Page, d: Mapping) -> None:
                    extent=(snr[0] - step_snr / 2, snr[-1] + step_snr / 2, -0.5, len(bands) - 0.5))
     step = max(1, len(bands) // 11)
     ax.set_yticks(range(0, len(bands), step), [_band_label(b) for b in bands[::step]])
-    ax.set_xlabel("signal-to-noise ratio, dB")
-    ax.set_ylabel("gammatone band centre")
+    ax.set_xlabel(f"{_term('snr_db')} (speech re noise)")
+    ax.set_ylabel(_term("gammatone_band_hz"))
     cb = fig.colorbar(im, ax=ax, fraction=0.04, pad=0.02)
-    cb.set_label("SNR_env of the band, dB")
+    cb.set_label(_term("band_snr_env_db"))
     ax.set_title("Envelope-power SNR per band against the SNR (mean over noise segments)")
     p.figures.append(_fig(
         "sepsm_bands", "SNR_env of each gammatone band (root sum of squares over its modulation filters), in dB, "
@@ -1136,12 +1137,10 @@ def _fmt_or_dash(v: Any, spec: str = ".2f") -> str:
 
 
 def _index_name(index: str) -> str:
-    """How an index column is named on the paired plot (results-table column names)."""
-    from .labels import QUANTITIES
+    """How an index column is named on the paired plot: its header in the vocabulary."""
+    from .labels import TERMS, header
 
-    if index == "sepsm_snr_env_db":
-        return "SNR_env (envelope power), dB"
-    return QUANTITIES[index][0] if index in QUANTITIES else index.upper()
+    return header(index) if index in TERMS else index.upper()
 
 
 def _paired_items_figure(p: Page, d: Mapping) -> None:
@@ -1191,7 +1190,7 @@ def _paired_items_figure(p: Page, d: Mapping) -> None:
     ax2.axhline(0, color=INK, lw=1.0)
     ax2.set_xticks(range(len(others)), others)
     ax2.set_xlim(-0.5, len(others) - 0.3)
-    ax2.set_ylabel(f"difference to '{base}' (same unit)")
+    ax2.set_ylabel(f"difference ({index} re '{base}')")
     ax2.set_title("Each item's difference; mean and its interval")
     ax2.grid(axis="x", visible=False)
     level = d.get("confidence")
@@ -1778,7 +1777,7 @@ def _ears_figure(d: Mapping) -> Figure:
     ax2.set_ylim(-lim, lim)
     ax2.set_xticks(x, [_band_label(f) for f in bands])
     ax2.set_xlabel("octave band")
-    ax2.set_ylabel("left minus right")
+    ax2.set_ylabel(_term("ear_difference"))
     ax2.grid(axis="x", visible=False)
     ax2.set_title("Interaural difference (above zero: the left ear is better)")
     return _fig("interaural_difference", f"{what} of the left and right ear per octave band (top) and their "
@@ -1792,11 +1791,13 @@ def _ears_tables(d: Mapping) -> list[Table]:
              num(d, f"binaural.mti_right.{k}", ".3f"), num(d, f"binaural.mti_difference.{k}", "+.3f"),
              txt(b["better_ear"][k])] for k, f in enumerate(b["bands_hz"])]
     what = "TI (speech-based STI)" if "ssti_left" in b else "MTI"
-    out = [Table(f"Two ears per octave band: {what}", ["band", "left", "right", "left minus right", "better ear"],
+    head = ["band", _term("left_ear"), _term("right_ear"), _term("ear_difference"), _term("better_ear")]
+    out = [Table(f"Two ears per octave band: {what}", head,
                  rows, f"Rule: {b['rule']}. Source: {b['source']}.")]
     keys = [k for k in ("sti", "stoi", "estoi", "ssti") if f"{k}_left" in b]
     names = {"sti": "STI", "stoi": "STOI", "estoi": "ESTOI", "ssti": "speech-based STI"}
-    out.append(Table("Each ear and the better ear", ["index", "left ear", "right ear", "better ear"],
+    out.append(Table("Each ear and the better ear",
+                     ["index", _term("left_ear"), _term("right_ear"), _term("better_ear")],
                      [[Cell(names[k]), num(d, f"binaural.{k}_left", ".3f"), num(d, f"binaural.{k}_right", ".3f"),
                        num(d, k, ".3f")] for k in keys]))
     for ear, msg in (b.get("errors") or {}).items():
@@ -1847,10 +1848,10 @@ def _listener_tables(d: Mapping) -> list[Table]:
         if gone is not None:
             row.append(Cell("inaudible", cls="fail") if fc in gone else txt("audible"))
         rows.append(row)
-    head = ["band", "hearing loss, dB HL", "value", "pure-tone threshold, dB SPL (free field)",
-            "reception threshold used, dB"]
+    head = ["band", _term("hearing_level_db"), "value", f"{_term('threshold_spl_db')} (free field)",
+            _term("reception_threshold_used_db")]
     if gone is not None:
-        head.append("made inaudible by the loss")
+        head.append(_term("inaudible"))
     measured = ", ".join(f"{f:g} Hz: {round(v, 1):g}" for f, v in zip(a["measured_hz"], a["measured_hl_db"]))
     note = (f"Audiogram ({a.get('source')}): {measured} dB HL. " + "".join(f"{n}. " for n in a.get("notes") or [])
             + "Audibility only: the suprathreshold deficits of sensorineural loss are not modelled.")

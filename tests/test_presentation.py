@@ -34,13 +34,23 @@ FS = 24000  # the 8 kHz octave band needs more than 22.6 kHz
 
 #: ISO 266:1997 preferred frequencies 125 Hz ... 8 kHz, typed from the standard's table (not
 #: from the module), as a person should read them in a band column.
-ISO_266_LABELS = {"125", "160", "200", "250", "315", "400", "500", "630", "800", "1k", "1.25k", "1.6k", "2k",
-                  "2.5k", "3.15k", "4k", "5k", "6.3k", "8k"}
-ISO_266_LABELS_HZ = {(f"{v} Hz" if not v.endswith("k") else f"{v[:-1]} kHz") for v in ISO_266_LABELS}
+ISO_266_LABELS = {"50", "63", "80", "100", "125", "160", "200", "250", "315", "400", "500", "630", "800", "1k",
+                  "1.25k", "1.6k", "2k", "2.5k", "3.15k", "4k", "5k", "6.3k", "8k"}
+#: a report's band column may end with the row of all bands together
+ISO_266_LABELS_HZ = {(f"{v} Hz" if not v.endswith("k") else f"{v[:-1]} kHz") for v in ISO_266_LABELS} | {"broadband"}
 
 #: The README's pilot scores (section "Pilot and fitted mapping").
 PILOT = ("condition,snr_db,stoi,correct,trials\npilot_a,-12,0.567,19,100\npilot_b,-9,0.621,43,100\n"
          "pilot_c,-6,0.675,61,100\npilot_d,-3,0.725,83,100\npilot_e,0,0.772,90,100\n")
+
+
+def _two_listeners() -> str:
+    """The pilot scores of two listeners (the README's invented scores)."""
+    rows = ["listener,snr_db,stoi,correct,trials"]
+    for who, scores in (("A", (8, 20, 32, 40, 46)), ("B", (11, 23, 29, 43, 44))):
+        for snr, x, c in zip((-12, -9, -6, -3, 0), (0.586, 0.642, 0.697, 0.747, 0.793), scores):
+            rows.append(f"{who},{snr},{x},{c},50")
+    return "\n".join(rows) + "\n"
 
 
 def _run(args) -> tuple[int, str]:
@@ -85,6 +95,12 @@ def runs(tmp_path_factory):
     rows = (site / "corpus.csv").read_text().splitlines()
     (site / "small.csv").write_text("\n".join(rows[:13]) + "\n")
     noise = "58,55,52,49,45,40,33"
+    # a two-channel response (the hall's at both ears, the right one 6 dB down and with more noise)
+    ir, fs_ir = sf.read(site / "waiting_hall_ir.wav")
+    right = 0.5 * ir + 1e-4 * np.random.default_rng(7).standard_normal(ir.size)
+    sf.write(root / "ears_ir.wav", np.stack([ir, right], axis=1), fs_ir, subtype="FLOAT")
+    (root / "listeners.csv").write_text(_two_listeners())
+    audiogram = "250:20,500:25,1000:30,2000:45,4000:60,8000:70"
     cmds = {
         "ir": ["ir", site / "waiting_hall_ir.wav", "--noise", noise, "--speech-level", "68", "--require", "0.5"],
         "stipa": ["stipa", root / "stipa.wav", "--calibration-db", "110", "--talker", "female"],
@@ -100,11 +116,23 @@ def runs(tmp_path_factory):
         "batch": ["batch", site / "small.csv", "--out", root / "results.csv", "--workers", "1"],
         "compare": ["compare", root / "results.csv", "--by", "condition", "--baseline", "unprocessed", "--pair-on",
                     "sentence"],
+        "ir listener": ["ir", site / "waiting_hall_ir.wav", "--noise", noise, "--audiogram", audiogram],
+        "ir ears": ["ir", root / "ears_ir.wav", "--ears"],
+        "pair listener": ["pair", site / "announcement_clean.wav", site / "announcement_in_hall.wav",
+                          "--age", "70", "--calibration-db", "100"],
+        "pair inverted": ["pair", site / "corpus" / "s01_clean.wav", site / "corpus" / "s01_wiener.wav",
+                          "--inverted", site / "corpus" / "s01_wiener_inverted.flac"],
+        "fitmap listener": ["fitmap", root / "listeners.csv", "--index", "stoi", "--listener", "listener"],
+        "sweep sepsm": ["sweep", site / "announcement_clean.wav", site / "hall_noise.wav", "--snr=-12:0:6",
+                        "--segments", "2", "--index", "sepsm", "--target", "50"],
+        "sweep stimuli": ["sweep", site / "sentences", site / "hall_noise.wav", "--snr=-6:0:6", "--segments", "2",
+                          "--write-stimuli", root / "stimuli", "--presentation-level=-30"],
         "demo": ["demo"],
         "testsignal full": ["testsignal", "full", root / "signals"],
         "deconvolve": ["deconvolve", root / "sweep_rec.wav", "--sweep", root / "sweep.wav", "--out", root / "ir.wav"],
     }
-    reports = {"ir", "stipa", "fullsti", "pair", "fitmap", "sweep", "inspect", "survey", "design", "compare"}
+    reports = {"ir", "stipa", "fullsti", "pair", "fitmap", "sweep", "inspect", "survey", "design", "compare",
+               "ir listener", "ir ears", "pair listener", "pair inverted", "fitmap listener", "sweep sepsm"}
     out = {}
     for name, args in cmds.items():
         folder = root / f"report_{name}" if name in reports else None
@@ -192,9 +220,12 @@ def unknown(labels) -> list[str]:
 # ---------------------------------------------------------------------------
 
 TEXT_COMMANDS = ["ir", "stipa", "fullsti", "pair", "fitmap", "sweep", "inspect", "survey", "design", "batch",
-                 "compare", "demo", "testsignal full", "deconvolve"]
+                 "compare", "demo", "testsignal full", "deconvolve", "ir listener", "ir ears", "pair listener",
+                 "pair inverted", "fitmap listener", "sweep sepsm", "sweep stimuli"]
 REPORT_KINDS = {"ir": "ir", "stipa": "stipa", "fullsti": "fullsti", "pair": "pair", "fitmap": "fitmap",
-                "sweep": "sweep", "inspect": "inspect", "survey": "survey", "design": "design", "compare": "compare"}
+                "sweep": "sweep", "inspect": "inspect", "survey": "survey", "design": "design", "compare": "compare",
+                "ir listener": "ir", "ir ears": "ir", "pair listener": "pair", "pair inverted": "pair",
+                "fitmap listener": "fitmap", "sweep sepsm": "sweep"}
 
 
 @pytest.mark.parametrize("command", TEXT_COMMANDS)
@@ -308,6 +339,6 @@ def test_a_stray_figure_label_is_caught():
 
 
 def test_every_nominal_label_of_the_bands_shown_is_iso_266():
-    # the sets typed above agree with the module's table (ISO 266 R10) for 125 Hz ... 8 kHz
-    mine = {band_label(f, unit=False) for f in NOMINAL_THIRD_OCTAVE_HZ if 125 <= f <= 8000}
+    # the sets typed above agree with the module's table (ISO 266 R10) for 50 Hz ... 8 kHz
+    mine = {band_label(f, unit=False) for f in NOMINAL_THIRD_OCTAVE_HZ if 50 <= f <= 8000}
     assert mine == ISO_266_LABELS

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ._common import fmt, format_sti, listener_lines, table
+from ._common import bands, fmt, format_sti, h, listener_lines, table
 
 EARS_HELP = ("Two ears: the file is a two-channel recording, channel 0 the left ear and channel 1 the right. "
              "Gives the index of each ear and the better-ear combination per octave band (the larger MTI of "
@@ -12,11 +12,11 @@ EARS_HELP = ("Two ears: the file is a two-channel recording, channel 0 the left 
 def _ear_rows(d: dict, label: str) -> list[str]:
     b = d["binaural"]
     rows = []
-    for k, fc in enumerate(b["bands_hz"]):
-        rows.append([f"{fc:g}", fmt(b["mti_left"][k], ".3f"), fmt(b["mti_right"][k], ".3f"),
+    for k, fc in enumerate(bands(b["bands_hz"])):
+        rows.append([fc, fmt(b["mti_left"][k], ".3f"), fmt(b["mti_right"][k], ".3f"),
                      fmt(b["mti_difference"][k], "+.3f"), b["better_ear"][k]])
-    return [f"Per octave band ({label}; difference = left minus right)",
-            table(rows, ["band Hz", "left", "right", "difference", "better ear"])]
+    return [f"Per octave band ({label})",
+            table(rows, [h("band"), h("left_ear"), h("right_ear"), h("ear_difference"), h("better_ear")])]
 
 
 def _listener(d: dict) -> list[str]:
@@ -70,7 +70,7 @@ def render_ears_pair(d: dict, clean: str, degraded: str) -> str:
              f"Degraded: {degraded} (two ears)",
              *_listener(d),
              "",
-             table(rows, ["index", "left", "right", "better ear"]),
+             table(rows, ["index", h("left_ear"), h("right_ear"), h("better_ear")]),
              "",
              *_ear_rows(d, "speech-based STI, TI")]
     return "\n".join(lines + _tail(d))
