@@ -174,6 +174,8 @@ TERMS: dict[str, Term] = {
     "peak_to_noise_db": _T("peak-to-noise", "dB", 1, "level of the impulse response's peak over its noise floor"),
     "distortion_db": _T("distortion", "dB", 1, "level of the harmonic distortion re the linear response"),
     # --- pairs: envelope correlation and envelope power
+    "sepsm": _T("sEPSM", "", None, "speech-based envelope power spectrum model (Jorgensen & Dau 2011): the "
+                               "envelope-power SNR of speech over noise, SNR_env, and its ideal-observer score"),
     "stoi": _T("STOI", "", 3, "short-time objective intelligibility, 0 to 1 (Taal et al. 2011)",
                csv_decimals=6, csv_cut=True),
     "estoi": _T("ESTOI", "", 3, "extended STOI, 0 to 1 (Jensen & Taal 2016)", csv_decimals=6, csv_cut=True),

@@ -1973,15 +1973,15 @@ def _file_name(v: str) -> str:
     return Path(v).name or v
 
 
-def names_only(d: Any, *, _key: str = "") -> Any:
+def names_only(d: Any, *, _key: str = "", _inputs: bool = False) -> Any:
     """A copy of a result with every path among its inputs (and the survey's file
     entries) cut to its file name: a report handed to a client shows no folders."""
     if isinstance(d, Mapping):
-        return {k: names_only(v, _key=str(k)) for k, v in d.items()}
+        return {k: names_only(v, _key=str(k), _inputs=_inputs or k in ("inputs", "settings")) for k, v in d.items()}
     if isinstance(d, list):
-        return [names_only(v, _key=_key) for v in d]
+        return [names_only(v, _key=_key, _inputs=_inputs) for v in d]
     if isinstance(d, str) and (os.sep in d or (os.altsep and os.altsep in d)) and "\n" not in d:
-        if _key in _PATH_KEYS or os.path.isabs(d):
+        if _inputs or _key in _PATH_KEYS or os.path.isabs(d):
             return _file_name(d)
     return d
 
@@ -1989,7 +1989,7 @@ def names_only(d: Any, *, _key: str = "") -> Any:
 #: Result keys that hold paths (beside the ``inputs`` object, whose path values are cut too).
 _PATH_KEYS: frozenset[str] = frozenset(
     {"survey", "results", "folder", "manifest", "out", "impulse_response", "recording", "noise_recording",
-     "calibrator", "clean", "degraded", "scores", "map", "file", "path"})
+     "calibrator", "clean", "degraded", "scores", "map", "file", "path", "inverted", "sentences", "ir"})
 
 # ---------------------------------------------------------------------------
 # HTML

@@ -408,7 +408,8 @@ def _rounded(f: float, column: str) -> str:
 
     from .labels import TERMS
 
-    t = TERMS.get(column)
+    # an ear's column (sti_left, stoi_right) keeps the precision of its index
+    t = TERMS.get(column) or TERMS.get(column.removesuffix("_left").removesuffix("_right"))
     if t is None or t.csv_decimals is None or abs(f) >= 1e15:  # (beyond the decimal context's 28 digits)
         return repr(f)
     q = Decimal(repr(f)).quantize(Decimal(1).scaleb(-t.csv_decimals), rounding=ROUND_FLOOR if t.csv_cut

@@ -588,3 +588,17 @@ def test_sweep_report_of_the_envelope_power_index(tmp_path):
     check_report(tmp_path / "rep", d, kind="sweep", n_png=2,
                  required_keys=("sepsm.snr_env_db.1", "predicted_percent.2"))
     assert "ranking aid" in (tmp_path / "rep" / "report.html").read_text(encoding="utf-8")
+
+
+def test_every_path_among_the_inputs_is_cut_to_its_file_name():
+    # a report handed to a client shows file names, never folders: any input path, whatever its
+    # key (the inverted file of a pair, a sentence folder, a noise recording), relative or not
+    from envpredict.report import names_only
+
+    d = {"sti": 0.5, "inputs": {"inverted": "site/corpus/s01_wiener_inverted.flac", "noise": "a/b/noise.wav",
+                                "levels": "58,55,52", "nested": {"x": "deep/er/file.csv"}},
+         "notes": ["compare a/b with c"]}
+    out = names_only(d)
+    assert out["inputs"] == {"inverted": "s01_wiener_inverted.flac", "noise": "noise.wav", "levels": "58,55,52",
+                             "nested": {"x": "file.csv"}}
+    assert out["notes"] == ["compare a/b with c"]  # text outside the inputs stays as written

@@ -312,13 +312,15 @@ def listener_lines(d: dict) -> list[str]:
     a = d.get("audiogram")
     if not a:
         return []
-    pts = ", ".join(f"{f:g} Hz {round(v, 1):g}" for f, v in zip(a["measured_hz"], a["measured_hl_db"]))
-    bands = "  ".join(f"{f:g}:{v:.0f}" for f, v in zip(a["bands_hz"], a["band_hl_db"]))
+    from envpredict.labels import band_label
+
+    pts = ", ".join(f"{band_label(f)} {round(v, 1):g}" for f, v in zip(a["measured_hz"], a["measured_hl_db"]))
+    per_band = "  ".join(f"{band_label(f, unit=False)}:{v:.0f}" for f, v in zip(a["bands_hz"], a["band_hl_db"]))
     lines = [f"Listener: {a['source']} — {pts} dB HL",
-             f"  hearing loss per octave band (Hz:dB HL): {bands}"]
+             f"  hearing loss per octave band (band:dB HL): {per_band}"]
     if a.get("filled_bands_hz"):
         lines.append("  filled: " + "; ".join(a["notes"]))
     if a.get("inaudible_bands_hz") is not None:
         gone = a["inaudible_bands_hz"]
-        lines.append("  bands made inaudible: " + (", ".join(f"{f:g} Hz" for f in gone) if gone else "none"))
+        lines.append("  bands made inaudible: " + (", ".join(band_label(f) for f in gone) if gone else "none"))
     return lines

@@ -70,13 +70,13 @@ def render_fit(d: dict, rows: list[list[str]]) -> str:
     if d.get("listeners"):
         sp = d["listener_spread"]
         lines += ["", (f"Per listener ({sp['n_fitted']} of {sp['n_listeners']} fitted, binomial): x50 mean "
-                       f"{fmt(sp['x50_mean'], '.4g')}, sd {fmt(sp['x50_sd'], '.3g')}; slope at x50 mean "
-                       f"{fmt(sp['slope_at_x50_mean'], '.4g')}, sd {fmt(sp['slope_at_x50_sd'], '.3g')}")]
+                       f"{fmt(sp['x50_mean'], '#.4g')}, sd {fmt(sp['x50_sd'], '#.3g')}; slope at x50 mean "
+                       f"{fmt(sp['slope_at_x50_mean'], '#.4g')}, sd {fmt(sp['slope_at_x50_sd'], '#.3g')}")]
         why = any(f["error"] for f in d["listeners"])  # a column of reasons only when a listener has one
         head = [h("listener"), h("rows"), h("trials"), h("x50"), h("slope_at_x50")] + \
             ([h("no_curve_because")] if why else [])
-        lines.append(table([[f["listener"], f"{f['n_points']}", f"{f['n_trials']}", fmt(f["x50"], ".4g"),
-                             fmt(f["slope_at_x50"], ".4g")] + ([f["error"] or ""] if why else [])
+        lines.append(table([[f["listener"], f"{f['n_points']}", f"{f['n_trials']}", fmt(f["x50"], "#.4g"),
+                             fmt(f["slope_at_x50"], "#.4g")] + ([f["error"] or ""] if why else [])
                             for f in d["listeners"]], head))
     lines += ["", table(rows, [name(d["index"]), h("correct"), h("trials"), h("observed_percent"),
                                h("fitted_percent")])]
@@ -157,8 +157,9 @@ def render_sweep(d: dict) -> str:
     head = [h("snr_db"), h("sepsm_snr_env_db") if obj else name(d["index"]), h("index_sd")] + \
         ([h("sentence_sd")] if many else []) + ([h("predicted_percent")] if mapped else [])
     rows = []
+    spec = ".2f" if obj else ".3f"  # SNR_env in dB with the vocabulary's 2 decimals, an index with 3
     for i, s in enumerate(d["snr_db"]):
-        r = [f"{s:g}", fmt(values[i], ".3f"), fmt(d["index_sd"][i], ".3f")]
+        r = [f"{s:g}", fmt(values[i], spec), fmt(d["index_sd"][i], spec)]
         if many:
             r.append(fmt(d["sentence_sd"][i], ".3f"))
         if mapped:
@@ -172,7 +173,7 @@ def render_sweep(d: dict) -> str:
         for t in d["targets"]:
             ci = "—" if t["ci_low"] is None else f"{t['ci_low']:.1f} .. {t['ci_high']:.1f}"
             mci = "—" if t["map_ci_low"] is None else f"{t['map_ci_low']:.1f} .. {t['map_ci_high']:.1f}"
-            trows.append([f"{t['percent']:g}", fmt(t["index_value"], ".3f"), fmt(t["snr_db"], ".1f"), ci, mci,
+            trows.append([f"{t['percent']:g}", fmt(t["index_value"], spec), fmt(t["snr_db"], ".1f"), ci, mci,
                           fmt(t["slope_percent_per_db"], ".1f"), t["note"] or ""])
         lines.append(table(trows, [h("target_percent"), head[1], h("snr_db"), h("segments_ci"),
                                    h("mapping_ci"), h("slope_percent_per_db"), ""]))
