@@ -1046,7 +1046,7 @@ def _sepsm_section(p: Page, d: Mapping) -> None:
                                   rows, "Root sum of squares of the band's SNR_env over its modulation filters."))
         summary = [[Cell("SNR_env (all bands and filters)"), num(d, "sepsm.snr_env_db", ".2f", "dB")],
                    [Cell("percent correct (ideal observer, material-specific)"),
-                    num(d, "sepsm.percent_correct", ".1f", "%")]]
+                    num(d, "sepsm.percent_correct", ".1f", "% correct")]]
         p.tables.append(Table("Envelope-power index (sEPSM)", ["quantity", "value"], summary,
                               "Jørgensen & Dau 2011, JASA 130(3):1475-1487."))
         p.notes.append(SEPSM_MATERIAL_CAUTION)

@@ -257,7 +257,7 @@ def test_cli_sweep_writes_the_processed_stimuli(tmp_path, capsys, signals):
             "--stimuli-snr=-2", "--presentation-level=-30"]
     code, out, err = run_cli(args + ["--write-stimuli", str(tmp_path / "st")], capsys)
     assert code == 0, err
-    assert "stimulus_snr-2.0dB_processed.wav" in out and "true peak dBTP" in out
+    assert "stimulus_snr-2.0dB_processed.wav" in out and "true peak, dBTP" in out
     rows = _manifest(tmp_path / "st")
     assert [(r["file"], r["processed"]) for r in rows] == [("stimulus_snr-2.0dB.wav", "False"),
                                                            ("stimulus_snr-2.0dB_processed.wav", "True")]
