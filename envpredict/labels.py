@@ -528,16 +528,24 @@ def known_label(text: str) -> bool:
     >>> known_label("T30, s"), known_label("STI (dot: mean of repeats)"), known_label("range dB")
     (True, True, False)
     """
+    t = " ".join(_label_text(text).split())
+    return bool(t in _BLANK or _NUMBER.match(t)) or _lookup(t) is not None
+
+
+def _label_text(text: str) -> str:
     if not isinstance(text, str):
         raise InputError(f"a label of type {type(text).__name__}", "pass the label as text")
-    t = " ".join(text.split())
-    if t in _BLANK or _NUMBER.match(t):
-        return True
+    return text
+
+
+def _lookup(t: str) -> str | None:
+    """The key of the term shown as ``t`` (whitespace-normalised), with or without a
+    qualification in brackets; None where the vocabulary has none."""
     known = _known_texts()
     if t in known:
-        return True
+        return known[t]
     bare = " ".join(_PAREN.sub("", t).split())
-    return bare in known or bare.rstrip(",") in known
+    return known.get(bare, known.get(bare.rstrip(",")))
 
 
 def key_of(text: str) -> str | None:
@@ -553,14 +561,7 @@ def key_of(text: str) -> str | None:
     >>> key_of("noise depth"), key_of("T30, s"), key_of("1.6k")
     ('envelope_noise_depth', 't30', None)
     """
-    if not isinstance(text, str):
-        raise InputError(f"a label of type {type(text).__name__}", "pass the label as text")
-    known = _known_texts()
-    t = " ".join(text.split())
-    if t in known:
-        return known[t]
-    bare = " ".join(_PAREN.sub("", t).split())
-    return known.get(bare, known.get(bare.rstrip(",")))
+    return _lookup(" ".join(_label_text(text).split()))
 
 
 def glossary(labels: Sequence[str]) -> list[tuple[str, str]]:
