@@ -325,6 +325,7 @@ def test_ir_json_carries_the_audiogram_and_the_bands_it_made_inaudible(ir_file, 
     (["--age", "12"], "age is 12"),
     (["--age", "60", "--sex", "x"], "sex"),
     (["--age", "60", "--audiogram", flat(10)], "both an audiogram and an age"),
+    (["--audiogram", "  "], "--audiogram is empty"),
 ])
 def test_bad_listener_options_exit_2_with_one_line(ir_file, capsys, args, words):
     code, out, err = run_cli(["ir", ir_file, *args], capsys)

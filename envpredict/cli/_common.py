@@ -304,6 +304,12 @@ def listener(audiogram: str | None, age: float | None, sex: str | None):
 
     if audiogram is not None and age is not None:
         return listener_audiogram("x", age, sex)  # refused: both given
+    if audiogram is not None and not audiogram.strip():
+        # (an empty manifest cell means normal hearing; an option given empty is a mistake)
+        from envpredict.exceptions import InputError
+
+        raise InputError("--audiogram is empty", 'give frequency:dB HL pairs, e.g. "250:20,500:25,1000:30,'
+                         '2000:45,4000:60,8000:70", or a CSV file, or leave out --audiogram')
     return listener_audiogram(load_audiogram(audiogram), age, sex)
 
 
