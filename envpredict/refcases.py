@@ -30,7 +30,8 @@ Case file format
                   optionally ``"dispersion"`` (``"binomial"`` when absent, or ``"quasi"``);
                 * ``design``: the scene (as in a scene file).
 ``settings``    ``ir``, ``sweep``: ``noise_db`` (7 values or null), ``speech_level_dba``, ``talker``,
-                ``auditory``; ``stipa``/``fullsti``: ``talker``; ``design``: ``talker``, ``auditory``
+                ``auditory``, ``audiogram`` (``ir``: text form, dB HL); ``stipa``/``fullsti``:
+                ``talker``; ``design``: ``talker``, ``auditory``
 ``expected``    per quantity ``{"value": number or list, "abs_tol" or "rel_tol"}``;
                 ``ir`` quantities: ``sti``, ``rating``, ``mti``, ``t30``, ``t20``, ``edt``,
                 ``c50``, ``c80``, ``d50``, ``mtf_500_1k`` (mean MTF of the 500 Hz and 1 kHz
@@ -199,7 +200,7 @@ def _ir_quantities(case: dict, folder: Path | None) -> dict:
     s = case.get("settings", {})
     r = envpredict.sti_from_ir(
         ir, fs, noise_db=s.get("noise_db"), speech_level_dba=s.get("speech_level_dba", 60.0),
-        talker=s.get("talker", "male"), auditory=s.get("auditory", True),
+        talker=s.get("talker", "male"), auditory=s.get("auditory", True), audiogram=s.get("audiogram"),
     )
     return {
         "sti": r.sti.sti,

@@ -249,6 +249,34 @@ def main():
                          "mti": {"value": np.round(mti, 4).tolist(), "abs_tol": 0.02}},
         })
 
+    # 5b. a listener with hearing loss: the band's reception threshold raised by its hearing
+    # level (audiogram given at the seven octave centres, so no interpolation is involved)
+    for level, hl, name in ((60.0, [40.0] * 7, "flat40"), (60.0, [10, 15, 20, 30, 45, 60, 70], "sloping"),
+                            (70.0, [0.0] * 7, "normal")):
+        speech = np.array(band_speech(level), dtype=float)
+        i_s = 10 ** (speech / 10)
+        L = 10 * np.log10(i_s)
+        amdb = np.where(L < 63, 0.5 * L - 65, np.where(L < 67, 1.8 * L - 146.9,
+                        np.where(L < 100, 0.5 * L - 59.8, -10.0)))
+        i_am = np.concatenate([[0.0], i_s[:-1] * 10 ** (amdb[:-1] / 10)])
+        i_rt = 10 ** ((np.array(THRESHOLD) + np.array(hl, dtype=float)) / 10)
+        m = i_s / (i_s + i_am + i_rt)
+        mti = ti_of(m)
+        sti = sti_of(mti)
+        audiogram = ",".join(f"{f:g}:{v:g}" for f, v in zip((125, 250, 500, 1000, 2000, 4000, 8000), hl))
+        write({
+            "id": f"hearing_{name}_{level:.0f}dBA",
+            "title": f"Ideal channel, speech {level:.0f} dB(A), listener audiogram {audiogram} dB HL",
+            "source": SRC_AUDITORY + "; hearing loss as a raised reception threshold RT_k + HL_k (the "
+                                     "modelling choice of envpredict.hearing, IEC 60268-16 treats the "
+                                     "absolute threshold as a noise-like limit)",
+            "input": {"synth": "impulse", "fs": 48000, "seconds": 1.2},
+            "settings": {"noise_db": None, "speech_level_dba": level, "talker": "male", "auditory": True,
+                         "audiogram": audiogram},
+            "expected": {"sti": {"value": round(sti, 4), "abs_tol": 0.01},
+                         "mti": {"value": np.round(mti, 4).tolist(), "abs_tol": 0.02}},
+        })
+
     # 6. noise floor in the response: T30 refused when the range is too small
     write({
         "id": "decay_floor_-40dB",
