@@ -35,7 +35,7 @@ import os
 import re
 from dataclasses import dataclass, field
 from collections.abc import Iterable, Mapping
-from typing import Callable, Sequence
+from typing import Any, Callable, Sequence
 
 from .exceptions import InputError
 from .results import jsonable
@@ -216,9 +216,13 @@ class SurveyResult:
     failures: tuple[tuple[int, str], ...] = field(default=())
     cautions: tuple[str, ...] = field(default=())
     notes: tuple[str, ...] = field(default=())
+    #: the listener of the rows without an ``audiogram`` cell (None: normal hearing)
+    audiogram: Any = None
 
     def to_dict(self) -> dict:
+        listener = {} if self.audiogram is None else {"audiogram": self.audiogram.to_dict()}
         return jsonable({
+            **listener,
             "index": self.index, "survey": self.survey, "results": self.results,
             "requirements": list(self.requirements), "rows": self.rows, "failed_rows": self.failed_rows,
             "failures": [{"row": r, "error": e} for r, e in self.failures],
@@ -490,7 +494,10 @@ def run_survey(
     from .batch import read_manifest, run_batch
     from .tables import read_results
 
+    from .tables import load_audiogram
+
     reqs = tuple(_requirements(requirements))
+    audiogram = load_audiogram(audiogram)
     m = read_manifest(survey, audiogram=audiogram)
     check_survey_columns(m.columns, f"survey '{m.path}'")
     files = [j[k] for j in m.jobs for k in ("ir", "stipa", "noise_recording") if j.get(k)]
@@ -520,7 +527,7 @@ def run_survey(
     result = SurveyResult(
         index="sti", survey=str(m.path), results=str(out), requirements=tuple(q.text for q in reqs),
         positions=positions, zones=zones, rows=len(where), failed_rows=len(failures), failures=failures,
-        cautions=tuple(cautions), notes=notes,
+        cautions=tuple(cautions), notes=notes, audiogram=audiogram,
     )
     write_survey_tables(result, positions_csv, zones_csv)
     return result
@@ -535,22 +542,30 @@ ZONE_COLUMNS: tuple[str, ...] = ("zone", "positions", "sti_mean", "sti_sd", "sti
                                  "decided_by", "checks", "below", "unscored_positions")
 
 
+#: The results-CSV precision each survey column takes (the vocabulary's CSV decimals): STI
+#: values as the STI (6 decimals, cut, so a value below a requirement stays below it), their
+#: spread as a standard deviation.
+_PRECISION_OF: dict[str, str] = {"sti_mean": "sti", "sti_min": "sti", "sti_max": "sti", "sti_values": "sti",
+                                 "sti_sd": "sd", "sti_spread": "spread"}
+
+
 def _cells(d: dict, columns: Sequence[str]) -> dict[str, str]:
     from .tables import format_cell
 
     out = {}
     for c in columns:
         v = d[c]
+        like = _PRECISION_OF.get(c)
         if c == "checks":
-            v = "; ".join(f"{k['rule']}: {format_cell(k['value']) or '—'} "
+            v = "; ".join(f"{k['rule']}: {format_cell(k['value'], 'sti') or '—'} "
                           f"({'holds' if k['holds'] else 'fails' if k['holds'] is False else 'not judged'})"
                           for k in v)
         elif c == "below":
             v = "; ".join(f"below {b['rule'].split()[-1]} ({b['rule']}): {', '.join(b['positions']) or 'none'}"
                           for b in v)
         elif isinstance(v, list):
-            v = "; ".join(format_cell(x) for x in v)
-        out[c] = v if isinstance(v, str) else format_cell(v)
+            v = "; ".join(format_cell(x, like) for x in v)
+        out[c] = v if isinstance(v, str) else format_cell(v, like)
     return out
 
 

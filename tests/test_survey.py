@@ -124,9 +124,20 @@ def test_demo_survey_scores_every_row_and_judges_each_zone(demo_run, capsys):
     with open(d / "zones.csv", newline="") as fh:
         zrows = list(csv.DictReader(fh))
     assert [r["verdict"] for r in zrows] == ["fail", "pass", "pass"]
-    assert float(zrows[0]["sti_mean"]) == pytest.approx(hall["sti_mean"], abs=1e-12)
+    # people read these tables: 6 decimals of an STI, cut (so a value below a requirement stays
+    # below it), not the 17 digits of a float's repr
+    assert float(zrows[0]["sti_mean"]) == pytest.approx(hall["sti_mean"], abs=1e-6)
+    assert float(zrows[0]["sti_mean"]) <= hall["sti_mean"]
     with open(d / "pos.csv", newline="") as fh:
-        assert len(list(csv.DictReader(fh))) == len(res["positions"])
+        prows = list(csv.DictReader(fh))
+    assert len(prows) == len(res["positions"])
+    for r in zrows + prows:
+        for c in ("sti_mean", "sti_sd", "sti_min", "sti_max", "sti_spread"):
+            if r.get(c):
+                assert len(r[c].split(".")[-1]) <= 6, (c, r[c])
+        for part in r.get("checks", "").split(";"):
+            if ":" in part:
+                assert len(part.split(":")[1].split()[0].split(".")[-1]) <= 6, part
 
 
 def test_survey_report_shows_names_not_folders_and_the_record(demo_run):
@@ -220,3 +231,22 @@ def test_demo_sweep_recording_gives_the_halls_sti(tmp_path, capsys):
     via_sweep = _json.loads(out)["sti"]
     code, out, _ = run_cli(["ir", demo_dir() / "waiting_hall_ir.wav", *levels], capsys)
     assert abs(via_sweep - _json.loads(out)["sti"]) < 0.01
+
+
+def test_the_listener_of_a_survey_is_in_its_result_and_report(tmp_path):
+    # issue 17: the report shows the audiogram. The survey's listener (here the ISO 7029
+    # median of a 75-year-old man) is the one age_audiogram gives, and it lowers every
+    # position's STI (a raised reception threshold takes audibility away, IEC 60268-16 A.2)
+    from envpredict.demo import demo_survey_path
+    from envpredict.hearing import age_audiogram
+    from envpredict.report import write_report
+    from envpredict.survey import run_survey
+
+    normal = run_survey(demo_survey_path(), tmp_path / "a.csv", workers=1)
+    old = run_survey(demo_survey_path(), tmp_path / "b.csv", workers=1, audiogram=age_audiogram(75, "m"))
+    d = old.to_dict()
+    assert "audiogram" not in normal.to_dict()
+    assert d["audiogram"] == age_audiogram(75, "m").to_dict()
+    assert all(o.mean < n.mean for o, n in zip(old.positions, normal.positions))
+    html = write_report("survey", d, tmp_path / "rep").read_text()
+    assert "hearing loss" in html and "ISO 7029:2017 median, age 75" in html
