@@ -902,9 +902,15 @@ def _page_sweep(d: Mapping) -> Page:
                 ax.axvspan(lo, hi, color=col, alpha=0.15, lw=0)
             ax.plot([s, s], [-2, pc], color=col, lw=1.3, ls="--")
             ax.plot([snr[0], s], [pc, pc], color=col, lw=0.9, ls=":")
-            ax.plot([s], [pc], "D", color=col, ms=7, mec="white")
+            tlo, thi = t.get("total_ci_low"), t.get("total_ci_high")
+            if tlo is not None and thi is not None:  # several sentences: the interval to plan with
+                ax.errorbar([s], [pc], xerr=[[s - tlo], [thi - s]], fmt="none", ecolor=col, elinewidth=2.2,
+                            capsize=5, zorder=4)
+            ax.plot([s], [pc], "D", color=col, ms=7, mec="white", zorder=5)
             lab = (f"SRT {s:.1f} dB" if is_srt else f"{pc:g} % at {s:.1f} dB")
-            if lo is not None and hi is not None:
+            if tlo is not None and thi is not None:
+                lab += f"\n(total CI {tlo:.1f} to {thi:.1f} dB)"
+            elif lo is not None and hi is not None:
                 lab += f"\n(CI {lo:.1f} to {hi:.1f} dB)"
             # up and to the left of the point: above a rising curve, where it is empty
             ax.annotate(lab, (s, pc), xytext=(-12, 12), textcoords="offset points", va="bottom", ha="right",
@@ -917,6 +923,9 @@ def _page_sweep(d: Mapping) -> Page:
         cap = ("Predicted score against SNR; the dashed line marks the predicted speech reception threshold "
                "(SRT, 50 % correct), the shaded strip its confidence interval over noise segments and the hatched "
                "strip the interval from the mapping's own uncertainty"
+               + ("; the bar through each target is its total interval (sentences, noise segments and mapping "
+                  "together: the interval to plan with)" if any(t.get("total_ci_low") is not None for t in targets)
+                  else "")
                + ("; hollow points lie outside the index range the mapping was fitted on (extrapolations)."
                   if outside.any() else "."))
         if outside.any():

@@ -78,9 +78,14 @@ def test_from_sentences_and_noise_to_the_main_test_stimuli(material, tmp_path, c
     # 3. the predicted psychometric curve, the target SNRs with their intervals, the main test's stimuli
     code, out, err = run_cli(["sweep", sentences, noise, "--map", mp, "--snr=-9:3:3", "--segments", "2",
                               "--target", "50", "--write-stimuli", tmp_path / "main", "--presentation-level=-30",
-                              "--json"], capsys)
+                              "--report", tmp_path / "curve", "--json"], capsys)
     assert code == 0, err
     main = json.loads(out)
+    # the report's curve draws the interval to plan with, and its caption says which it is
+    from envpredict.report import build_page
+
+    page = build_page("sweep", json.loads((tmp_path / "curve" / "result.json").read_text()))
+    assert "total interval (sentences, noise segments and mapping" in page.figures[0].caption
     np.testing.assert_allclose(main["stoi"], stoi, atol=1e-12)  # the same mixtures as the pilot's sweep
     # the JSON holds the index to 5 decimals and the percent to 3: within those roundings
     np.testing.assert_allclose(main["predicted_percent"], 100 * expit(a + b * stoi), atol=0.01)
