@@ -473,6 +473,26 @@ def _table_values(rows: Sequence[Mapping[str, Any]], *, by: str, index: str | No
     return index, keys, values, order, skipped
 
 
+def _paired(d: np.ndarray, boot: tuple[float, int, int, str]) -> dict:
+    """The statistics of one set of paired differences ``d``: their mean and, from two
+    items on, its bootstrap interval, the Wilcoxon p-value and d_z with its interval
+    (``boot``: the checked options of :func:`_bootstrap_options`)."""
+    confidence, n_resamples, seed, method = boot
+    e: dict = dict(diff=float(np.mean(d)) if d.size else None, ci_low=None, ci_high=None, p_value=None)
+    if d.size >= 2:
+        e["ci_low"], e["ci_high"] = bootstrap_mean_ci(d, confidence=confidence, n_resamples=n_resamples,
+                                                      seed=seed, method=method)
+        e["p_value"] = wilcoxon_p(d)
+        e["effect_size"], e["effect_ci_low"], e["effect_ci_high"] = effect_size_dz(d, confidence)
+    return e
+
+
+def _clear(e: Mapping[str, Any], p_holm: float | None) -> bool:
+    """A clear difference: Holm-adjusted p below ALPHA and an interval that excludes zero."""
+    return (p_holm is not None and p_holm < ALPHA and e["ci_low"] is not None
+            and (e["ci_low"] > 0 or e["ci_high"] < 0))
+
+
 def compare_conditions(
     rows: Sequence[Mapping[str, Any]],
     *,
@@ -529,7 +549,8 @@ def compare_conditions(
         For a missing or unknown column, a baseline that is not a condition, index cells
         that are not numbers, or bootstrap options out of range.
     """
-    confidence, n_resamples, seed, ci_method = _bootstrap_options(confidence, n_resamples, seed, ci_method)
+    boot = _bootstrap_options(confidence, n_resamples, seed, ci_method)
+    confidence, n_resamples, seed, ci_method = boot
     index, keys, values, order, skipped = _table_values(rows, by=by, index=index, pair_on=pair_on, columns=columns)
     baseline = str(baseline).strip()
     if baseline not in values:
@@ -553,20 +574,14 @@ def compare_conditions(
             continue
         common = [k for k in vals if k in base]
         d = np.array([vals[k] - base[k] for k in common], dtype=float)
-        entry = dict(name=cond, n=len(common), n_rows=len(vals), mean=mean,
-                     diff=float(np.mean(d)) if d.size else None, ci_low=None, ci_high=None, p_value=None)
+        entry = dict(name=cond, n=len(common), n_rows=len(vals), mean=mean, **_paired(d, boot))
         if d.size == 0:
             notes.append(f"No item of '{cond}' matches the baseline on ({', '.join(keys)}): give --pair-on "
                          "with the column(s) that identify an item.")
         elif d.size < 2:
             notes.append(f"'{cond}' has only {d.size} matched item: no interval or test.")
-        else:
-            entry["ci_low"], entry["ci_high"] = bootstrap_mean_ci(
-                d, confidence=confidence, n_resamples=n_resamples, seed=seed, method=ci_method)
-            entry["p_value"] = wilcoxon_p(d)
-            entry["effect_size"], entry["effect_ci_low"], entry["effect_ci_high"] = effect_size_dz(d, confidence)
-            if d.size < FEW_ITEMS:
-                notes.append(f"'{cond}' has only {d.size} matched items: the interval and p-value are rough.")
+        elif d.size < FEW_ITEMS:
+            notes.append(f"'{cond}' has only {d.size} matched items: the interval and p-value are rough.")
         if len(common) < len(vals) or len(common) < len(base):
             notes.append(f"'{cond}': {len(common)} item(s) matched; {len(vals) - len(common)} of its rows and "
                          f"{len(base) - len(common)} baseline rows have no partner.")
@@ -576,8 +591,7 @@ def compare_conditions(
     for e, ph in zip(raw, adj):
         if e["name"] == baseline:
             verdict = "baseline"
-        elif (ph is not None and ph < ALPHA and e["ci_low"] is not None
-              and (e["ci_low"] > 0 or e["ci_high"] < 0)):
+        elif _clear(e, ph):
             verdict = "higher" if e["diff"] > 0 else "lower"
         else:
             verdict = "no clear difference"
@@ -692,7 +706,8 @@ def compare_all_pairs(
         For a missing or unknown column, fewer than two conditions, index cells that are
         not numbers, or bootstrap options out of range.
     """
-    confidence, n_resamples, seed, ci_method = _bootstrap_options(confidence, n_resamples, seed, ci_method)
+    boot = _bootstrap_options(confidence, n_resamples, seed, ci_method)
+    confidence, n_resamples, seed, ci_method = boot
     index, keys, values, order, skipped = _table_values(rows, by=by, index=index, pair_on=pair_on, columns=columns)
     notes: list[str] = []
     if skipped:
@@ -704,20 +719,14 @@ def compare_all_pairs(
         for b in order[i + 1:]:
             common = [k for k in values[b] if k in values[a]]
             d = np.array([values[b][k] - values[a][k] for k in common], dtype=float)
-            e = dict(a=a, b=b, n=len(common), diff=float(np.mean(d)) if d.size else None, ci_low=None,
-                     ci_high=None, p_value=None)
-            if d.size >= 2:
-                e["ci_low"], e["ci_high"] = bootstrap_mean_ci(d, confidence=confidence, n_resamples=n_resamples,
-                                                              seed=seed, method=ci_method)
-                e["p_value"] = wilcoxon_p(d)
-                e["effect_size"], e["effect_ci_low"], e["effect_ci_high"] = effect_size_dz(d, confidence)
-            else:
+            e = dict(a=a, b=b, n=len(common), **_paired(d, boot))
+            if d.size < 2:
                 notes.append(f"'{a}' and '{b}' share {d.size} item(s): no interval or test.")
             raw.append(e)
     adj = holm([e["p_value"] for e in raw])
     pairs = []
     for e, ph in zip(raw, adj):
-        if ph is not None and ph < ALPHA and e["ci_low"] is not None and (e["ci_low"] > 0 or e["ci_high"] < 0):
+        if _clear(e, ph):
             verdict = "b higher" if e["diff"] > 0 else "b lower"
         else:
             verdict = "no clear difference"
