@@ -731,7 +731,8 @@ def compare_all_pairs(
         else:
             verdict = "no clear difference"
         pairs.append(PairDifference(p_holm=ph, verdict=verdict, **e))
-    notes.append(f"p_holm adjusts the p-values for all {len(raw)} pairs of conditions (Holm).")
+    notes.append(f"p (Holm) adjusts the p-values for all {len(raw)} pairs of conditions (Holm 1979); "
+                 "the verdict uses it.")
     notes.extend(_jnd_note(index, [(f"{p.b} - {p.a}", p.diff) for p in pairs]))
     return PairwiseComparison(index=index, by=by, pair_on=keys, pairs=tuple(pairs),
                               ci_method="BCa" if ci_method.lower() == "bca" else "percentile",

@@ -116,6 +116,8 @@ def runs(tmp_path_factory):
         "batch": ["batch", site / "small.csv", "--out", root / "results.csv", "--workers", "1"],
         "compare": ["compare", root / "results.csv", "--by", "condition", "--baseline", "unprocessed", "--pair-on",
                     "sentence"],
+        "compare all pairs": ["compare", root / "results.csv", "--by", "condition", "--baseline", "unprocessed",
+                              "--pair-on", "sentence", "--all-pairs"],
         "ir listener": ["ir", site / "waiting_hall_ir.wav", "--noise", noise, "--audiogram", audiogram],
         "ir ears": ["ir", root / "ears_ir.wav", "--ears"],
         "pair listener": ["pair", site / "announcement_clean.wav", site / "announcement_in_hall.wav",
@@ -221,7 +223,7 @@ def unknown(labels) -> list[str]:
 
 TEXT_COMMANDS = ["ir", "stipa", "fullsti", "pair", "fitmap", "sweep", "inspect", "survey", "design", "batch",
                  "compare", "demo", "testsignal full", "deconvolve", "ir listener", "ir ears", "pair listener",
-                 "pair inverted", "fitmap listener", "sweep sepsm", "sweep stimuli"]
+                 "pair inverted", "fitmap listener", "sweep sepsm", "sweep stimuli", "compare all pairs"]
 REPORT_KINDS = {"ir": "ir", "stipa": "stipa", "fullsti": "fullsti", "pair": "pair", "fitmap": "fitmap",
                 "sweep": "sweep", "inspect": "inspect", "survey": "survey", "design": "design", "compare": "compare",
                 "ir listener": "ir", "ir ears": "ir", "pair listener": "pair", "pair inverted": "pair",
@@ -307,6 +309,8 @@ def test_compare_figure_and_note_use_the_holm_adjusted_p(runs):
     d = json.loads((folder / "result.json").read_text(encoding="utf-8"))
     html = (folder / "report.html").read_text(encoding="utf-8")
     assert "p_holm" not in text and "p (Holm)" in text
+    every_pair = runs["compare all pairs"][0]
+    assert "p_holm" not in every_pair and "p (Holm) adjusts the p-values for all 3 pairs" in every_pair
     from envpredict.labels import show
 
     for c in d["conditions"]:
