@@ -220,7 +220,9 @@ class SurveyResult:
     audiogram: Any = None
 
     def to_dict(self) -> dict:
-        listener = {} if self.audiogram is None else {"audiogram": self.audiogram.to_dict()}
+        from .hearing import audiogram_summary
+
+        listener = {} if self.audiogram is None else {"audiogram": audiogram_summary(self.audiogram)}
         return jsonable({
             **listener,
             "index": self.index, "survey": self.survey, "results": self.results,
