@@ -248,6 +248,7 @@ def test_the_listener_of_a_survey_is_in_its_result_and_report(tmp_path):
     assert "audiogram" not in normal.to_dict()
     listener = age_audiogram(75, "m").to_dict()
     assert {k: d["audiogram"][k] for k in listener} == listener  # plus the audibility caution, as every result
+    assert set(d["audiogram"]) == set(listener) | {"cautions"} and "audibility" in d["audiogram"]["cautions"][0]
     assert all(o.mean < n.mean for o, n in zip(old.positions, normal.positions))
     html = write_report("survey", d, tmp_path / "rep").read_text()
     assert "hearing loss" in html and "ISO 7029:2017 median, age 75" in html
