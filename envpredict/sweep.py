@@ -640,7 +640,6 @@ def snr_sweep(
         the processed noise alone is silent.
     """
     from scipy.signal import fftconvolve
-    from scipy.stats import t as student_t
 
     from .audio import check_rate, validate_signal
     from .decay import onset_index
@@ -728,8 +727,6 @@ def snr_sweep(
         notes.append(f"the mean {name} falls between {snrs[i]:g} and {snrs[i + 1]:g} dB SNR: the curve is not "
                      "monotonic (fluctuating noise?); target SNRs use the first crossing")
     predicted = None if mapping is None else np.asarray(mapping.percent(mean), dtype=float)
-    tq = float(student_t.ppf(0.5 + CI_LEVEL / 2.0, offsets.size - 1)) if offsets.size > 1 else math.nan
-
     z_map = mapping.quantile() if mapping is not None else math.nan
     out_targets = []
     for pct, xt in zip(target_list, x_targets):
@@ -752,16 +749,11 @@ def snr_sweep(
             elif any(v is None for v in seg_srts):
                 note = "some noise segments do not reach the target inside the swept range: no interval"
             else:
-                seg_sd = float(np.std(seg_srts, ddof=1))
-                half = tq * seg_sd / math.sqrt(offsets.size)
+                seg_sd, half, _, _ = _mean_interval(seg_srts)
                 lo, hi = srt - half, srt + half
         m_lo = m_hi = None
         if srt is not None and mapping.cov is not None:
-            half_x = z_map * mapping.index_sd_at(pct)
-            m_lo = _crossing(snrs, mean, xt - half_x)[0]
-            m_hi = _crossing(snrs, mean, xt + half_x)[0]
-            if m_lo is None or m_hi is None:
-                m_lo = m_hi = None
+            m_lo, m_hi = _mapping_interval(snrs, mean, xt, z_map * mapping.index_sd_at(pct))
         out_targets.append(SweepTarget(
             percent=pct, index=float(xt), snr_db=srt, ci_low=lo, ci_high=hi, segment_sd_db=seg_sd,
             segment_snr_db=tuple(seg_srts), slope_percent_per_db=slope, map_ci_low=m_lo, map_ci_high=m_hi,
@@ -808,9 +800,25 @@ def _sepsm_point(mix: np.ndarray, alone: np.ndarray, fs: int, snr: float
     return r.snr_env_db, band, r.bands_hz
 
 
-def _half(sd: float, n: int) -> tuple[float, float]:
-    """Standard error of a mean of ``n`` values with standard deviation ``sd``, and its df."""
-    return sd / math.sqrt(n), float(n - 1)
+def _mean_interval(values: Sequence[float]) -> tuple[float, float, float, float]:
+    """Of ``values`` (one SRT per noise segment or per sentence): their SD, the half-width
+    of the Student-t interval (level :data:`CI_LEVEL`) of their mean, the squared standard
+    error of the mean and its degrees of freedom."""
+    from scipy.stats import t as student_t
+
+    n = len(values)
+    sd = float(np.std(values, ddof=1))
+    se, df = sd / math.sqrt(n), float(n - 1)
+    return sd, float(student_t.ppf(0.5 + CI_LEVEL / 2.0, df)) * se, se * se, df
+
+
+def _mapping_interval(snrs: np.ndarray, mean: np.ndarray, index: float, half_x: float
+                      ) -> tuple[float | None, float | None]:
+    """The SNRs where the mean index curve reaches ``index`` -/+ ``half_x`` (the target's
+    index moved by the mapping's uncertainty); ``(None, None)`` unless both are reached."""
+    lo = _crossing(snrs, mean, index - half_x)[0]
+    hi = _crossing(snrs, mean, index + half_x)[0]
+    return (lo, hi) if lo is not None and hi is not None else (None, None)
 
 
 def snr_sweep_sentences(
@@ -916,18 +924,14 @@ def snr_sweep_sentences(
             slope = float(100.0 * scorer.derivative(xt) * (mean[i + 1] - mean[i]) / (snrs[i + 1] - snrs[i]))
             se2, dfs = [], []
             if n_seg > 1 and all(v is not None for v in seg_x):
-                seg_sd_db = float(np.std(seg_x, ddof=1))
-                se, df = _half(seg_sd_db, n_seg)
-                h = float(student_t.ppf(q, df)) * se
+                seg_sd_db, h, v2, df = _mean_interval(seg_x)
                 lo, hi = srt - h, srt + h
-                se2.append(se * se)
+                se2.append(v2)
                 dfs.append(df)
             if all(v is not None for v in sent_x):
-                sent_sd_db = float(np.std(sent_x, ddof=1))
-                se, df = _half(sent_sd_db, n_sent)
-                h = float(student_t.ppf(q, df)) * se
+                sent_sd_db, h, v2, df = _mean_interval(sent_x)
                 s_lo, s_hi = srt - h, srt + h
-                se2.append(se * se)
+                se2.append(v2)
                 dfs.append(df)
             else:
                 note = "some sentences do not reach the target inside the swept range: no sentence interval"
@@ -937,10 +941,8 @@ def snr_sweep_sentences(
                 h = float(student_t.ppf(q, df)) * math.sqrt(v)
                 c_lo, c_hi = srt - h, srt + h
                 if scorer.cov is not None:
-                    half_x = scorer.quantile() * scorer.index_sd_at(t0.percent)
-                    m_lo = _crossing(snrs, mean, xt - half_x)[0]
-                    m_hi = _crossing(snrs, mean, xt + half_x)[0]
-                    if m_lo is not None and m_hi is not None:
+                    m_lo, m_hi = _mapping_interval(snrs, mean, xt, scorer.quantile() * scorer.index_sd_at(t0.percent))
+                    if m_lo is not None:
                         m2 = ((m_hi - m_lo) / (2.0 * scorer.quantile())) ** 2
                         w = sum(a * a / d for a, d in zip(se2, dfs)) + (
                             0.0 if scorer.ci_df is None else m2 * m2 / scorer.ci_df)
@@ -951,8 +953,6 @@ def snr_sweep_sentences(
                         df_t = min(df_t, df)
                         ht = float(student_t.ppf(q, df_t) if math.isfinite(df_t) else norm.ppf(q)) * math.sqrt(v + m2)
                         tot_lo, tot_hi = srt - ht, srt + ht
-                    else:
-                        m_lo = m_hi = None
         out_targets.append(SweepTarget(
             percent=t0.percent, index=xt, snr_db=srt, ci_low=lo, ci_high=hi, segment_sd_db=seg_sd_db,
             segment_snr_db=tuple(seg_x), slope_percent_per_db=slope, map_ci_low=m_lo, map_ci_high=m_hi, note=note,
