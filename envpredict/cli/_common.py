@@ -228,6 +228,13 @@ class Progress:
             self._bar.__exit__(*exc)
 
 
+def listed(title: str, items) -> list[str]:
+    """Text lines of a titled list ("Cautions:", "Notes:"): a blank line, the title and one
+    "  - item" line each; nothing for no items."""
+    items = [str(i) for i in items or ()]
+    return ["", title] + [f"  - {i}" for i in items] if items else []
+
+
 def table(rows: list[list[str]], header: list[str] | None = None, *, align: str | None = None,
           notes: bool = True) -> str:
     """A plain aligned text table. ``align`` has one letter per column, ``l`` (names) or

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ._common import bands, fmt, format_sti, h, listener_lines, table
+from ._common import bands, fmt, format_sti, h, listed, listener_lines, table
 
 EARS_HELP = ("Two ears: the file is a two-channel recording, channel 0 the left ear and channel 1 the right. "
              "Gives the index of each ear and the better-ear combination per octave band (the larger MTI of "
@@ -30,12 +30,7 @@ def _listener(d: dict) -> list[str]:
 
 
 def _tail(d: dict) -> list[str]:
-    lines = ["", "Notes:"]
-    lines.extend(f"  - {n}" for n in d["notes"])
-    if d["cautions"]:
-        lines += ["", "Cautions:"]
-        lines.extend(f"  - {c}" for c in d["cautions"])
-    return lines
+    return listed("Notes:", d["notes"]) + listed("Cautions:", d["cautions"])
 
 
 def render_ears_sti(d: dict, source: str) -> str:

@@ -12,7 +12,7 @@ from envpredict import standards as std
 from ._app import app
 from ._common import (
     AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs, emit, fmt, h,
-    listener, note, table, write_report_if,
+    listed, listener, note, table, write_report_if,
 )
 
 MANIFEST_HELP = ("Manifest CSV: columns 'clean' and 'degraded' (pair rows) or 'ir' (impulse-response rows), "
@@ -61,10 +61,7 @@ def render_summary(d: dict) -> str:
         lines.extend(f"  - {n}" for n in d["notes"])
     lines.append("")
     lines.append(f"Results: {d['inputs']['out']}")
-    if d.get("cautions"):
-        lines.append("")
-        lines.append("Cautions:")
-        lines.extend(f"  - {c}" for c in d["cautions"])
+    lines += listed("Cautions:", d.get("cautions"))
     return "\n".join(lines)
 
 
@@ -182,10 +179,7 @@ def render_pairwise(d: dict) -> str:
                      c["verdict"], _effect(c)])
     lines.append(table(rows, [h("pair_a"), h("pair_b"), h("n"), h("diff"), f"CI ({100 * d['confidence']:g} %)",
                               h("p_value"), h("p_holm"), h("verdict"), "d_z (with its CI)"]))
-    if d["notes"]:
-        lines.append("")
-        lines.append("Notes:")
-        lines.extend(f"  - {n}" for n in d["notes"])
+    lines += listed("Notes:", d["notes"])
     return "\n".join(lines)
 
 
@@ -214,10 +208,7 @@ def render_comparison(d: dict) -> str:
                      _p(c["p_value"]), _p(c["p_holm"]), c["verdict"], _effect(c)])
     lines.append(table(rows, [h("condition"), h("n"), h("mean"), h("diff"), f"CI ({100 * d['confidence']:g} %)",
                               h("p_value"), h("p_holm"), h("verdict"), "d_z (with its CI)"]))
-    if d["notes"]:
-        lines.append("")
-        lines.append("Notes:")
-        lines.extend(f"  - {n}" for n in d["notes"])
+    lines += listed("Notes:", d["notes"])
     return "\n".join(lines)
 
 

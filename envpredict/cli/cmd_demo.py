@@ -8,7 +8,7 @@ from typing import Optional
 import typer
 
 from ._app import app
-from ._common import JSON_HELP, Progress, bands, dumps, fmt, h, table
+from ._common import JSON_HELP, Progress, bands, dumps, fmt, h, listed, table
 
 
 def render_demo(out: dict) -> str:
@@ -40,7 +40,7 @@ def render_demo(out: dict) -> str:
         f"  STOI = {fmt(pair.get('stoi'), '.3f')}   ESTOI = {fmt(pair.get('estoi'), '.3f')}   "
         f"speech-based STI = {fmt(pair.get('ssti'), '.2f')}   delay = {fmt(pair.get('delay_ms'), '.1f')} ms",
     ]
-    lines += ["", "Cautions:"] + [f"  - {c}" for c in out["cautions"]]
+    lines += listed("Cautions:", out["cautions"])
     noise = ",".join(f"{v:g}" for v in sc["noise_db"])
     lines += [
         "",

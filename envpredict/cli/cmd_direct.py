@@ -14,7 +14,7 @@ from ._app import app
 from ._ears import EARS_HELP, render_ears_sti
 from ._common import (
     AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, SEX_HELP, Progress,
-    bands, check_report, emit, fmt, format_sti, h, listener, listener_lines, table, write_report_if,
+    bands, check_report, emit, fmt, format_sti, h, listed, listener, listener_lines, table, write_report_if,
 )
 
 testsignal_app = typer.Typer(
@@ -148,9 +148,7 @@ def render_direct(d: dict) -> str:
         mh = [h("band")] + [f"{f:g}" for f in d["modulation_hz"][0]]
         lines.append(table([[fc] + [f"{v:.2f}" for v in row] for fc, row in zip(bands(d["bands_hz"]), d["mtf"])],
                            mh))
-    lines.append("")
-    lines.append("Cautions:")
-    lines.extend(f"  - {c}" for c in d["cautions"])
+    lines += listed("Cautions:", d["cautions"])
     return "\n".join(lines)
 
 

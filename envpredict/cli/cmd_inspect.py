@@ -11,7 +11,7 @@ from envpredict import standards as std
 
 from ._app import app
 from ._common import (
-    CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, bands, check_report, emit, fmt, h, table,
+    CHANNEL_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, Progress, bands, check_report, emit, fmt, h, listed, table,
     write_report_if,
 )
 
@@ -60,10 +60,7 @@ def render_inspect(d: dict, source: str) -> str:
                         for k, fc in enumerate(bands(d["bands_hz"]))], head))
     lines.append("  " + h("modulation_index") + ": " + _explain("modulation_index"))
     lines.append("(every second modulation band shown; --json has all)")
-    if d["cautions"]:
-        lines.append("")
-        lines.append("Cautions:")
-        lines.extend(f"  - {c}" for c in d["cautions"])
+    lines += listed("Cautions:", d["cautions"])
     return "\n".join(lines)
 
 

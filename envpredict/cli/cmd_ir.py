@@ -13,7 +13,7 @@ from ._app import app
 from ._ears import EARS_HELP, render_ears_sti
 from ._common import (
     AGE_HELP, AUDIOGRAM_HELP, CHANNEL_HELP, JSON_HELP, OUT_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, SEX_HELP,
-    Progress, bands, check_outputs, emit, fmt, format_sti, h, listener, listener_lines, table, write_report_if,
+    Progress, bands, check_outputs, emit, fmt, format_sti, h, listed, listener, listener_lines, table, write_report_if,
 )
 
 NOISE_HELP = ("Background noise at the listener: seven octave-band levels in dB SPL, 125 Hz to 8 kHz, "
@@ -90,9 +90,7 @@ def render_ir(d: dict, source: str) -> str:
         lines.append("")
         lines.append("Levels used:")
         lines.extend(f"  - {n}" for n in d["notes"])
-    lines.append("")
-    lines.append("Cautions:")
-    lines.extend(f"  - {c}" for c in d["cautions"])
+    lines += listed("Cautions:", d["cautions"])
     return "\n".join(lines)
 
 

@@ -11,7 +11,7 @@ from envpredict import standards as std
 from ._app import app
 from ._common import (
     AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, OUT_HELP, REPORT_HELP, SEX_HELP, Progress, bands, check_outputs, emit, fmt, h,
-    listener, listener_lines, table, write_report_if,
+    listed, listener, listener_lines, table, write_report_if,
 )
 from ._ears import render_ears_pair
 
@@ -91,14 +91,7 @@ def render_pair(d: dict, clean: str, degraded: str) -> str:
         rows = [[f"{w['start_s']:.0f}-{w['end_s']:.0f}", fmt(w["estoi"], ".3f"), fmt(w["stoi"], ".3f")]
                 for w in d["worst_moments"]]
         lines.append(table(rows, [h("time_s"), h("estoi"), h("stoi")], notes=False))
-    if d["notes"]:
-        lines.append("")
-        lines.append("Notes:")
-        lines.extend(f"  - {n}" for n in d["notes"])
-    if d.get("cautions"):
-        lines.append("")
-        lines.append("Cautions:")
-        lines.extend(f"  - {c}" for c in d["cautions"])
+    lines += listed("Notes:", d["notes"]) + listed("Cautions:", d.get("cautions"))
     return "\n".join(lines)
 
 

@@ -11,7 +11,7 @@ from envpredict.tables import CORRECT_COLUMN, PREDICTED_COLUMN, TRIALS_COLUMN
 
 from ._app import app
 from ._common import (
-    CHANNEL_HELP, JSON_HELP, REPORT_HELP, Progress, check_outputs, dumps, echo, emit, fmt, h, note, table,
+    CHANNEL_HELP, JSON_HELP, REPORT_HELP, Progress, check_outputs, dumps, echo, emit, fmt, h, listed, note, table,
     write_report_if,
 )
 
@@ -80,8 +80,7 @@ def render_fit(d: dict, rows: list[list[str]]) -> str:
                             for f in d["listeners"]], head))
     lines += ["", table(rows, [name(d["index"]), h("correct"), h("trials"), h("observed_percent"),
                                h("fitted_percent")])]
-    if d["notes"]:
-        lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
+    lines += listed("Notes:", d["notes"])
     return "\n".join(lines)
 
 
@@ -210,8 +209,7 @@ def render_sweep(d: dict) -> str:
             lines.append(f"  files ending _processed went through the processing chain {st['process']}, at the "
                          "gain of their input mixture (its SNR and speech and noise levels are shown)")
         lines += [f"  caution: {c}" for c in st["cautions"]]
-    if d["notes"]:
-        lines += ["", "Notes:"] + [f"  - {n}" for n in d["notes"]]
+    lines += listed("Notes:", d["notes"])
     return "\n".join(line.rstrip() for line in "\n".join(lines).split("\n"))
 
 

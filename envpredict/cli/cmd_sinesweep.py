@@ -11,7 +11,7 @@ import typer
 from envpredict import standards as std
 
 from ._app import app
-from ._common import CHANNEL_HELP, JSON_HELP, bands, emit, fmt, h, table
+from ._common import CHANNEL_HELP, JSON_HELP, bands, emit, fmt, h, listed, table
 from .cmd_direct import testsignal_app
 
 SWEEP_RATE_HELP = ("The rate the sweep was played at, Hz, where it is not the rate in the sweep file (a player "
@@ -72,9 +72,7 @@ def render_deconvolution(d: dict, source: str) -> str:
     lines.append(table(rows, [h("band"), h("peak_to_noise_db"), h("distortion_db")]))
     lines.append(f"(distortion: harmonics {d['harmonic_orders'][0]}-{d['harmonic_orders'][1]} re the linear "
                  "response, cut away; — where the response shows no noise floor)")
-    for title, key in (("Cautions:", "cautions"), ("Notes:", "notes")):
-        if d[key]:
-            lines += ["", title] + [f"  - {c}" for c in d[key]]
+    lines += listed("Cautions:", d["cautions"]) + listed("Notes:", d["notes"])
     return "\n".join(lines)
 
 

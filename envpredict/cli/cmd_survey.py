@@ -10,7 +10,7 @@ import typer
 from ._app import app
 from ._common import (
     AGE_HELP, AUDIOGRAM_HELP, JSON_HELP, RECORD_FIELD_HELP, RECORD_HELP, REPORT_HELP, SEX_HELP, Progress, check_outputs,
-    emit, fmt, h, listener, note, table, write_report_if,
+    emit, fmt, h, listed, listener, note, table, write_report_if,
 )
 from .cmd_batch import OVERWRITE_HELP, PROGRESS_EVERY_S, RESUME_HELP, RETRY_HELP, WORKERS_HELP
 
@@ -64,8 +64,7 @@ def render_survey(d: dict) -> str:
     if d["failures"]:
         lines += ["", "Measurements that could not be scored:"]
         lines.extend(f"  row {f['row']}: {f['error']}" for f in d["failures"])
-    lines += ["", "Cautions:"]
-    lines.extend(f"  - {c}" for c in d["cautions"])
+    lines += listed("Cautions:", d["cautions"])
     return "\n".join(lines)
 
 
