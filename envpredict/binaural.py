@@ -327,15 +327,17 @@ def _halves(progress: Callable[[int, int], None] | None, ear: int) -> Callable[[
     return lambda done, total: progress(done + ear * total, 2 * total)
 
 
-def _each_ear(run: Callable[[int], Any]) -> tuple[list, list[str]]:
-    """``run(0)`` and ``run(1)``; an ear refused with an InputError gives ``None`` and its
-    reason, unless both are refused (then the left ear's error is raised)."""
+def _each_ear(run: Callable[[int, Any], Any], options: dict) -> tuple[list, list[str]]:
+    """``run(ear, progress)`` for ear 0 and 1, with the ``progress`` option of ``options``
+    (taken out of them) split in halves; an ear refused with an InputError gives ``None``
+    and its reason, unless both are refused (then the left ear's error is raised)."""
+    progress = options.pop("progress", None)
     results: list = [None, None]
     errors = ["", ""]
     first: InputError | None = None
     for i in (0, 1):
         try:
-            results[i] = run(i)
+            results[i] = run(i, _halves(progress, i))
         except InputError as e:
             first = first or e
             errors[i] = e.one_line()
@@ -375,8 +377,7 @@ def ir_ears(left: np.ndarray, right: np.ndarray, fs: int, **options: Any) -> Ear
     from .indirect import sti_from_ir
 
     lv, rv = check_ears(left, right)
-    progress = options.pop("progress", None)
-    results, errors = _each_ear(lambda i: sti_from_ir((lv, rv)[i], fs, progress=_halves(progress, i), **options))
+    results, errors = _each_ear(lambda i, step: sti_from_ir((lv, rv)[i], fs, progress=step, **options), options)
     return _sti_ears("ir", results, errors)
 
 
@@ -395,9 +396,8 @@ def ir_ears_file(path: str | os.PathLike, **options: Any) -> EarsResult:
 
     _no_channel(options)
     two_channels(path, "impulse response")
-    progress = options.pop("progress", None)
-    results, errors = _each_ear(lambda i: sti_from_ir_file(path, channel=i, progress=_halves(progress, i),
-                                                           **options))
+    results, errors = _each_ear(lambda i, step: sti_from_ir_file(path, channel=i, progress=step, **options),
+                                options)
     return _sti_ears("ir", results, errors)
 
 
@@ -415,9 +415,8 @@ def stipa_ears(left: np.ndarray, right: np.ndarray, fs: int, **options: Any) -> 
     from .direct import stipa_from_recording
 
     lv, rv = check_ears(left, right)
-    progress = options.pop("progress", None)
-    results, errors = _each_ear(lambda i: stipa_from_recording((lv, rv)[i], fs, progress=_halves(progress, i),
-                                                               name=f"{EARS[i]} ear", **options))
+    results, errors = _each_ear(lambda i, step: stipa_from_recording((lv, rv)[i], fs, progress=step,
+                                                                     name=f"{EARS[i]} ear", **options), options)
     return _sti_ears("stipa", results, errors)
 
 
@@ -444,10 +443,9 @@ def stipa_ears_file(path: str | os.PathLike, **options: Any) -> EarsResult:
         # a mono calibrator serves both ears; a two-channel one gives each ear its own
         if audio_info(options["calibrator"], "calibrator recording")[2] == 1:
             options["calibrator_channel"] = 0
-    progress = options.pop("progress", None)
     name = os.path.basename(os.fsdecode(path))
-    results, errors = _each_ear(lambda i: stipa_from_file(path, i, progress=_halves(progress, i),
-                                                          name=f"{name} ({EARS[i]})", **options))
+    results, errors = _each_ear(lambda i, step: stipa_from_file(path, i, progress=step,
+                                                                name=f"{name} ({EARS[i]})", **options), options)
     return _sti_ears("stipa", results, errors)
 
 
@@ -508,9 +506,8 @@ def pair_ears(clean: np.ndarray | tuple[np.ndarray, np.ndarray], left: np.ndarra
     refs = clean if isinstance(clean, tuple) else (clean, clean)
     if len(refs) != 2:
         raise InputError("the clean reference is a tuple of more than two signals", "give one, or (left, right)")
-    progress = options.pop("progress", None)
-    results, errors = _each_ear(lambda i: pair_indices(refs[i], (lv, rv)[i], fs, progress=_halves(progress, i),
-                                                       **options))
+    results, errors = _each_ear(lambda i, step: pair_indices(refs[i], (lv, rv)[i], fs, progress=step, **options),
+                                options)
     return _pair_ears(results, errors)
 
 
@@ -536,8 +533,7 @@ def pair_ears_file(clean_path: str | os.PathLike, degraded_path: str | os.PathLi
     if n_clean > 2:
         raise InputError(f"the clean file has {n_clean} channels",
                          "give a mono clean reference, or a two-channel one (left, right)")
-    progress = options.pop("progress", None)
-    results, errors = _each_ear(lambda i: pair_from_files(
+    results, errors = _each_ear(lambda i, step: pair_from_files(
         clean_path, degraded_path, clean_channel=i if n_clean == 2 else None, degraded_channel=i,
-        progress=_halves(progress, i), **options))
+        progress=step, **options), options)
     return _pair_ears(results, errors)
