@@ -753,6 +753,7 @@ def _page_pair(d: Mapping) -> Page:
 
 
 def _first_path(d: Mapping, path: str) -> Any:
+    """The value at ``path`` of ``d``, or None where the path leads nowhere."""
     try:
         return _get(d, path)
     except (KeyError, IndexError, TypeError, ValueError):
@@ -760,10 +761,7 @@ def _first_path(d: Mapping, path: str) -> Any:
 
 
 def _has(d: Mapping, path: str) -> bool:
-    try:
-        return _get(d, path) is not None
-    except (KeyError, IndexError, TypeError, ValueError):
-        return False
+    return _first_path(d, path) is not None
 
 
 def _p_cell(d: Mapping, path: str) -> Cell:
