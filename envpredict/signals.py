@@ -146,10 +146,12 @@ def octave_band_noise(
     ------
     InputError
         For a length that is not a positive whole number (at most :data:`envpredict.checks.MAX_SAMPLES`),
-        a rate outside the supported range, an ``rng`` that is not a Generator or a width outside (0, 2] octaves.
+        a rate outside the supported range or too low for the 8 kHz band, an ``rng`` that is not a
+        Generator or a width outside (0, 2] octaves.
     """
     n = checks.samples(n, "signal length", lo=1)
     fs = check_rate(fs, "test signal")
+    check_rate_for_octaves(fs, "test signal")  # a band above the Nyquist frequency would be all NaN
     if not isinstance(rng, np.random.Generator):
         raise InputError("rng is not a numpy Generator", "pass numpy.random.default_rng(seed)")
     width_octaves = checks.number(width_octaves, "carrier width", lo=0.0, lo_open=True, hi=2.0)

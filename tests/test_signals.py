@@ -399,3 +399,10 @@ def test_a_failure_while_writing_in_blocks_leaves_no_file(tmp_path, monkeypatch)
     with pytest.raises(RuntimeError, match="simulated"):
         signals.write_stipa_signal(tmp_path / "s.wav", 20, FS)
     assert list(tmp_path.iterdir()) == []  # no output, no .part, no noise file
+
+
+def test_band_noise_at_a_rate_too_low_for_the_8_khz_band_is_refused():
+    # at 8 kHz the 8 kHz octave band lies wholly above the Nyquist frequency (4 kHz): a unit-RMS
+    # noise of an empty band is 0/0. It is refused, not returned as NaN.
+    with pytest.raises(InputError, match="8 kHz|8000"):
+        octave_band_noise(1000, 8000, np.random.default_rng(0), 1.0)
