@@ -147,7 +147,8 @@ def octave_band_noise(
     InputError
         For a length that is not a positive whole number (at most :data:`envpredict.checks.MAX_SAMPLES`),
         a rate outside the supported range or too low for the 8 kHz band, an ``rng`` that is not a
-        Generator or a width outside (0, 2] octaves.
+        Generator, a width outside (0, 2] octaves, or a length too short to hold any frequency of
+        a band that wide.
     """
     n = checks.samples(n, "signal length", lo=1)
     fs = check_rate(fs, "test signal")
@@ -169,6 +170,9 @@ def _band_noises(n: int, fs: int, rng: np.random.Generator,
     for fc in std.OCTAVE_BANDS_HZ:
         spec = np.fft.rfft(rng.standard_normal(n))
         keep = (freqs >= fc / half) & (freqs < fc * half)
+        if not keep.any():  # a unit-RMS noise of no frequencies would be 0/0
+            raise InputError(f"{n} samples at {fs} Hz hold no frequency of the {fc:g} Hz band "
+                             f"{width_octaves:g} octave wide", "give a longer signal or a wider band")
         spec[~keep] = 0.0
         b = np.fft.irfft(spec, n)
         del spec

@@ -406,3 +406,10 @@ def test_band_noise_at_a_rate_too_low_for_the_8_khz_band_is_refused():
     # noise of an empty band is 0/0. It is refused, not returned as NaN.
     with pytest.raises(InputError, match="8 kHz|8000"):
         octave_band_noise(1000, 8000, np.random.default_rng(0), 1.0)
+
+
+def test_band_noise_too_short_for_its_band_width_is_refused():
+    # 1000 samples at 24 kHz resolve 24 Hz; a 125 Hz band 0.11 octave wide (about 9.5 Hz)
+    # holds no FFT bin, so its unit-RMS noise would be 0/0: refused, not NaN
+    with pytest.raises(InputError, match="no frequency of the 125 Hz band"):
+        octave_band_noise(1000, 24000, np.random.default_rng(0), 0.109375)
